@@ -1,0 +1,10 @@
+//! The DSP engine: windows, STFT, PSD averaging and calibration.
+
+pub mod engine;
+pub mod spectrum;
+pub mod stft;
+pub mod window;
+
+pub use engine::{Engine, EngineConfig};
+pub use spectrum::Spectrum;
+pub use window::{Window, WindowKind};

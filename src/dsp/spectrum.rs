@@ -1,0 +1,110 @@
+//! The calibrated spectrum every consumer shares: the TUI, the logger, `measure` and `picture`.
+
+use super::window::{Window, WindowKind};
+use crate::units::db;
+
+/// An averaged power spectral density with everything needed to read it in absolute units.
+///
+/// `psd[i]` is in FS²/Hz (linear, full scale squared per hertz), in fftshift order: index `i`
+/// lies at `center_hz + (i − ⌊N/2⌋)·fs/N`. Levels are Welch / modified-periodogram estimates,
+/// `P[k] = |X[k]|² / (fs·S2)`, averaged in linear power (Heinzel et al. 2002, eq. 24).
+#[derive(Clone, Debug)]
+pub struct Spectrum {
+    pub center_hz: f64,
+    pub sample_rate_hz: f64,
+    pub fft_size: usize,
+    pub window: WindowKind,
+    /// Equivalent noise bandwidth of the window, in bins.
+    pub enbw_bins: f64,
+    /// Resolution bandwidth: `ENBW_bins · fs / N`.
+    pub rbw_hz: f64,
+    pub psd: Vec<f64>,
+    /// How many periodograms were averaged.
+    pub frames: u64,
+    /// Equivalent degrees of freedom of each bin's χ² estimate (2 per independent periodogram,
+    /// fewer when overlapping frames are correlated; Welch 1967).
+    pub dof: f64,
+    /// Index (from the first sample of the input) of the first sample that contributed.
+    pub first_sample: u64,
+    /// One past the last sample that contributed.
+    pub end_sample: u64,
+}
+
+impl Spectrum {
+    /// Builds a spectrum from accumulated `|X[k]|²` in FFT order (not shifted).
+    #[allow(clippy::too_many_arguments)]
+    pub fn from_power_sum(
+        power_sum: &[f64],
+        frames: u64,
+        dof: f64,
+        window: &Window,
+        sample_rate_hz: f64,
+        center_hz: f64,
+        first_sample: u64,
+        end_sample: u64,
+    ) -> Spectrum {
+        let n = power_sum.len();
+        let scale = 1.0 / (frames.max(1) as f64 * sample_rate_hz * window.s2);
+        let half = n / 2;
+        let mut psd = vec![0.0; n];
+        for (k, p) in power_sum.iter().enumerate() {
+            psd[(k + half) % n] = p * scale;
+        }
+        let enbw_bins = window.enbw_bins();
+        Spectrum {
+            center_hz,
+            sample_rate_hz,
+            fft_size: n,
+            window: window.kind,
+            enbw_bins,
+            rbw_hz: enbw_bins * sample_rate_hz / n as f64,
+            psd,
+            frames,
+            dof,
+            first_sample,
+            end_sample,
+        }
+    }
+
+    /// Width of one FFT bin in hertz.
+    pub fn bin_hz(&self) -> f64 {
+        self.sample_rate_hz / self.fft_size as f64
+    }
+
+    /// Absolute frequency of the centre of bin `i` (fftshift order).
+    pub fn freq_of_bin(&self, i: f64) -> f64 {
+        self.center_hz + (i - (self.fft_size / 2) as f64) * self.bin_hz()
+    }
+
+    /// Fractional bin index of an absolute frequency.
+    pub fn bin_of_freq(&self, freq_hz: f64) -> f64 {
+        (freq_hz - self.center_hz) / self.bin_hz() + (self.fft_size / 2) as f64
+    }
+
+    /// Lowest and highest frequency covered (edges of the outer bins).
+    pub fn span_hz(&self) -> (f64, f64) {
+        let lo = self.freq_of_bin(-0.5);
+        (lo, lo + self.sample_rate_hz)
+    }
+
+    /// Power of a sinusoid whose peak falls in bin `i`: `PSD·RBW`, i.e. `|X|²/S1²`
+    /// (Heinzel et al. 2002: the power spectrum and the PSD differ by the ENBW).
+    pub fn tone_power(&self, i: usize) -> f64 {
+        self.psd[i] * self.rbw_hz
+    }
+
+    /// PSD of bin `i` in dBFS/Hz.
+    pub fn density_dbfs_per_hz(&self, i: usize) -> f64 {
+        db(self.psd[i])
+    }
+
+    /// Duration covered, in seconds.
+    pub fn duration_s(&self) -> f64 {
+        (self.end_sample - self.first_sample) as f64 / self.sample_rate_hz
+    }
+
+    /// Total power in the captured band (the integral of the PSD), in FS².
+    pub fn total_power(&self) -> f64 {
+        self.psd.iter().sum::<f64>() * self.bin_hz()
+    }
+}

@@ -1,0 +1,270 @@
+//! Sample formats: bytes on disk or on a pipe to complex samples at full scale.
+//!
+//! Names follow the SigMF `core:datatype` vocabulary (an open standard), so the same word works on
+//! the command line and in a `.sigmf-meta` file.
+//!
+//! **Full scale.** A complex sample of magnitude 1.0 is 0 dBFS. Integer formats map onto [-1, 1):
+//! - `cu8`: `(x − 127.5) / 127.5` (the unsigned byte's midpoint is zero; ±1 at 0 and 255);
+//! - `ci8`: `x / 128`;
+//! - `ci16_*`: `x / 32768` (so −32768 is exactly −1.0; we chose the power of two so a full-scale
+//!   converter code maps to 1.0 with no rounding);
+//! - `ci32_le`: `x / 2³¹`.
+//!
+//! Float formats are taken as they are. Non-finite float samples (NaN, ±Inf) are counted and
+//! skipped, never passed to the FFT, where one NaN would poison a whole frame.
+
+use num_complex::Complex32;
+use std::fmt;
+use std::str::FromStr;
+
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
+pub enum SampleFormat {
+    Cu8,
+    Ci8,
+    Ci16Le,
+    Ci16Be,
+    Ci32Le,
+    Cf32Le,
+    Cf32Be,
+    Cf64Le,
+}
+
+impl SampleFormat {
+    pub const ALL: [SampleFormat; 8] = [
+        SampleFormat::Cu8,
+        SampleFormat::Ci8,
+        SampleFormat::Ci16Le,
+        SampleFormat::Ci16Be,
+        SampleFormat::Ci32Le,
+        SampleFormat::Cf32Le,
+        SampleFormat::Cf32Be,
+        SampleFormat::Cf64Le,
+    ];
+
+    /// The SigMF datatype name.
+    pub fn name(self) -> &'static str {
+        match self {
+            SampleFormat::Cu8 => "cu8",
+            SampleFormat::Ci8 => "ci8",
+            SampleFormat::Ci16Le => "ci16_le",
+            SampleFormat::Ci16Be => "ci16_be",
+            SampleFormat::Ci32Le => "ci32_le",
+            SampleFormat::Cf32Le => "cf32_le",
+            SampleFormat::Cf32Be => "cf32_be",
+            SampleFormat::Cf64Le => "cf64_le",
+        }
+    }
+
+    /// Bytes in one complex sample (I and Q).
+    pub fn bytes_per_sample(self) -> usize {
+        match self {
+            SampleFormat::Cu8 | SampleFormat::Ci8 => 2,
+            SampleFormat::Ci16Le | SampleFormat::Ci16Be => 4,
+            SampleFormat::Ci32Le | SampleFormat::Cf32Le | SampleFormat::Cf32Be => 8,
+            SampleFormat::Cf64Le => 16,
+        }
+    }
+
+    /// The format implied by a common file extension, used only when `--format` is absent.
+    pub fn guess_from_extension(path: &str) -> Option<SampleFormat> {
+        let ext = path.rsplit_once('.')?.1.to_ascii_lowercase();
+        match ext.as_str() {
+            "cu8" => Some(SampleFormat::Cu8),
+            "cs8" | "ci8" => Some(SampleFormat::Ci8),
+            "cs16" | "ci16" => Some(SampleFormat::Ci16Le),
+            "cf32" | "cfile" => Some(SampleFormat::Cf32Le),
+            _ => None,
+        }
+    }
+
+    /// Decodes whole samples from `bytes` (whose length must be a multiple of
+    /// [`bytes_per_sample`](Self::bytes_per_sample)) and appends them to `out`. Returns how many
+    /// non-finite samples were skipped.
+    pub fn decode(self, bytes: &[u8], out: &mut Vec<Complex32>) -> u64 {
+        let bps = self.bytes_per_sample();
+        debug_assert_eq!(bytes.len() % bps, 0);
+        let chunks = bytes.chunks_exact(bps);
+        out.reserve(chunks.len());
+        match self {
+            SampleFormat::Cu8 => {
+                const SCALE: f32 = 1.0 / 127.5;
+                out.extend(chunks.map(|c| {
+                    Complex32::new((c[0] as f32 - 127.5) * SCALE, (c[1] as f32 - 127.5) * SCALE)
+                }));
+                0
+            }
+            SampleFormat::Ci8 => {
+                const SCALE: f32 = 1.0 / 128.0;
+                out.extend(chunks.map(|c| {
+                    Complex32::new(c[0] as i8 as f32 * SCALE, c[1] as i8 as f32 * SCALE)
+                }));
+                0
+            }
+            SampleFormat::Ci16Le | SampleFormat::Ci16Be => {
+                const SCALE: f32 = 1.0 / 32768.0;
+                let le = self == SampleFormat::Ci16Le;
+                let get = |b: &[u8]| {
+                    let v = [b[0], b[1]];
+                    (if le { i16::from_le_bytes(v) } else { i16::from_be_bytes(v) }) as f32
+                };
+                out.extend(chunks.map(|c| Complex32::new(get(&c[0..2]) * SCALE, get(&c[2..4]) * SCALE)));
+                0
+            }
+            SampleFormat::Ci32Le => {
+                const SCALE: f64 = 1.0 / 2147483648.0;
+                let get = |b: &[u8]| (i32::from_le_bytes([b[0], b[1], b[2], b[3]]) as f64 * SCALE) as f32;
+                out.extend(chunks.map(|c| Complex32::new(get(&c[0..4]), get(&c[4..8]))));
+                0
+            }
+            SampleFormat::Cf32Le | SampleFormat::Cf32Be => {
+                let le = self == SampleFormat::Cf32Le;
+                let get = |b: &[u8]| {
+                    let v = [b[0], b[1], b[2], b[3]];
+                    if le {
+                        f32::from_le_bytes(v)
+                    } else {
+                        f32::from_be_bytes(v)
+                    }
+                };
+                push_finite(chunks.map(|c| Complex32::new(get(&c[0..4]), get(&c[4..8]))), out)
+            }
+            SampleFormat::Cf64Le => {
+                let get = |b: &[u8]| {
+                    f64::from_le_bytes([b[0], b[1], b[2], b[3], b[4], b[5], b[6], b[7]]) as f32
+                };
+                push_finite(chunks.map(|c| Complex32::new(get(&c[0..8]), get(&c[8..16]))), out)
+            }
+        }
+    }
+
+    /// Encodes samples in this format (used by `bandwarden demo` and by tests). Values outside
+    /// full scale are clipped for integer formats.
+    pub fn encode(self, samples: &[Complex32], out: &mut Vec<u8>) {
+        out.reserve(samples.len() * self.bytes_per_sample());
+        for s in samples {
+            for v in [s.re, s.im] {
+                match self {
+                    SampleFormat::Cu8 => {
+                        out.push((v * 127.5 + 127.5).round().clamp(0.0, 255.0) as u8)
+                    }
+                    SampleFormat::Ci8 => out.push((v * 128.0).round().clamp(-128.0, 127.0) as i8 as u8),
+                    SampleFormat::Ci16Le => out.extend_from_slice(
+                        &((v * 32768.0).round().clamp(-32768.0, 32767.0) as i16).to_le_bytes(),
+                    ),
+                    SampleFormat::Ci16Be => out.extend_from_slice(
+                        &((v * 32768.0).round().clamp(-32768.0, 32767.0) as i16).to_be_bytes(),
+                    ),
+                    SampleFormat::Ci32Le => out.extend_from_slice(
+                        &((v as f64 * 2147483648.0).round().clamp(-2147483648.0, 2147483647.0)
+                            as i32)
+                            .to_le_bytes(),
+                    ),
+                    SampleFormat::Cf32Le => out.extend_from_slice(&v.to_le_bytes()),
+                    SampleFormat::Cf32Be => out.extend_from_slice(&v.to_be_bytes()),
+                    SampleFormat::Cf64Le => out.extend_from_slice(&(v as f64).to_le_bytes()),
+                }
+            }
+        }
+    }
+}
+
+fn push_finite(samples: impl Iterator<Item = Complex32>, out: &mut Vec<Complex32>) -> u64 {
+    let mut bad = 0;
+    for s in samples {
+        if s.re.is_finite() && s.im.is_finite() {
+            out.push(s);
+        } else {
+            bad += 1;
+        }
+    }
+    bad
+}
+
+impl fmt::Display for SampleFormat {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(self.name())
+    }
+}
+
+impl FromStr for SampleFormat {
+    type Err = String;
+
+    fn from_str(s: &str) -> Result<Self, Self::Err> {
+        let lower = s.trim().to_ascii_lowercase();
+        SampleFormat::ALL.into_iter().find(|f| f.name() == lower).ok_or_else(|| {
+            let names: Vec<_> = SampleFormat::ALL.iter().map(|f| f.name()).collect();
+            format!("unknown sample format '{s}'; choose one of: {}", names.join(", "))
+        })
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn full_scale_mapping_is_as_documented() {
+        let mut out = Vec::new();
+        SampleFormat::Cu8.decode(&[0, 255], &mut out);
+        assert_eq!(out[0], Complex32::new(-1.0, 1.0));
+        out.clear();
+        SampleFormat::Ci8.decode(&[0x80, 0x40], &mut out);
+        assert_eq!(out[0], Complex32::new(-1.0, 0.5));
+        out.clear();
+        SampleFormat::Ci16Le.decode(&[0x00, 0x80, 0x00, 0x40], &mut out);
+        assert_eq!(out[0], Complex32::new(-1.0, 0.5));
+        out.clear();
+        SampleFormat::Ci16Be.decode(&[0x80, 0x00, 0x40, 0x00], &mut out);
+        assert_eq!(out[0], Complex32::new(-1.0, 0.5));
+        out.clear();
+        let mut b = (i32::MIN).to_le_bytes().to_vec();
+        b.extend_from_slice(&(1i32 << 30).to_le_bytes());
+        SampleFormat::Ci32Le.decode(&b, &mut out);
+        assert_eq!(out[0], Complex32::new(-1.0, 0.5));
+    }
+
+    #[test]
+    fn every_format_round_trips() {
+        let samples: Vec<Complex32> =
+            (0..64).map(|i| Complex32::new((i as f32 / 40.0).sin() * 0.7, (i as f32 / 13.0).cos() * -0.6)).collect();
+        for fmt in SampleFormat::ALL {
+            let mut bytes = Vec::new();
+            fmt.encode(&samples, &mut bytes);
+            assert_eq!(bytes.len(), samples.len() * fmt.bytes_per_sample(), "{fmt}");
+            let mut back = Vec::new();
+            assert_eq!(fmt.decode(&bytes, &mut back), 0);
+            // One quantisation step of the coarsest format (8 bits) is 1/128.
+            let tol = match fmt {
+                SampleFormat::Cu8 | SampleFormat::Ci8 => 1.0 / 127.0,
+                SampleFormat::Ci16Le | SampleFormat::Ci16Be => 1.0 / 32000.0,
+                _ => 1e-6,
+            };
+            for (a, b) in samples.iter().zip(&back) {
+                assert!((a - b).norm() < tol, "{fmt}: {a} vs {b}");
+            }
+        }
+    }
+
+    #[test]
+    fn non_finite_floats_are_counted_and_skipped() {
+        let mut bytes = Vec::new();
+        SampleFormat::Cf32Le.encode(
+            &[Complex32::new(0.5, 0.5), Complex32::new(f32::NAN, 0.0), Complex32::new(0.0, f32::INFINITY)],
+            &mut bytes,
+        );
+        let mut out = Vec::new();
+        assert_eq!(SampleFormat::Cf32Le.decode(&bytes, &mut out), 2);
+        assert_eq!(out, vec![Complex32::new(0.5, 0.5)]);
+    }
+
+    #[test]
+    fn names_and_extensions() {
+        for f in SampleFormat::ALL {
+            assert_eq!(f.name().parse::<SampleFormat>().unwrap(), f);
+        }
+        assert!("s16".parse::<SampleFormat>().unwrap_err().contains("cu8, ci8"));
+        assert_eq!(SampleFormat::guess_from_extension("x.cu8"), Some(SampleFormat::Cu8));
+        assert_eq!(SampleFormat::guess_from_extension("dir.v2/x.cs16"), Some(SampleFormat::Ci16Le));
+        assert_eq!(SampleFormat::guess_from_extension("x.bin"), None);
+    }
+}

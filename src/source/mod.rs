@@ -1,0 +1,152 @@
+//! Sample sources: raw files, stdin, SigMF recordings, WAV files and the built-in demo scene.
+//!
+//! Every source yields `Complex32` samples at full scale (see [`format`]) and describes itself
+//! with a [`SourceInfo`]. The [`reader`] module runs a source on its own thread and hands blocks
+//! to the DSP over a bounded channel.
+
+pub mod demo;
+pub mod format;
+pub mod raw;
+pub mod reader;
+pub mod sigmf;
+pub mod wav;
+
+pub use format::SampleFormat;
+
+use anyhow::{bail, Context, Result};
+use num_complex::Complex32;
+use time::OffsetDateTime;
+
+/// What a source knows about itself; command-line options override file metadata.
+#[derive(Clone, Debug)]
+pub struct SourceInfo {
+    /// For people: a path, `stdin` or `demo scene`. Control characters are removed before it is
+    /// shown (see [`sanitize`]).
+    pub label: String,
+    pub format: Option<SampleFormat>,
+    pub sample_rate_hz: f64,
+    pub center_hz: f64,
+    /// Time of the first sample, when the recording says (SigMF `core:datetime`) or `--start`.
+    pub start_time: Option<OffsetDateTime>,
+    /// Number of samples when known in advance (files), for progress and ETA.
+    pub total_samples: Option<u64>,
+    /// True when samples arrive in real time and are lost if not taken (stdin, paced demo).
+    pub live: bool,
+}
+
+/// Counts of input problems that do not stop the run but must be reported.
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct InputIssues {
+    /// Samples with a NaN or infinite component, skipped.
+    pub non_finite: u64,
+    /// Bytes at the end that did not make a whole sample, dropped.
+    pub trailing_bytes: u64,
+}
+
+/// A stream of samples.
+pub trait SampleSource: Send {
+    fn info(&self) -> &SourceInfo;
+
+    /// Appends up to `max` samples to `out`; returns how many. Zero means end of input.
+    fn read(&mut self, out: &mut Vec<Complex32>, max: usize) -> Result<usize>;
+
+    /// Problems seen so far.
+    fn issues(&self) -> InputIssues {
+        InputIssues::default()
+    }
+
+    /// Starts again from the first sample, for `watch --loop`. Sources that cannot (stdin)
+    /// return an error.
+    fn rewind(&mut self) -> Result<()> {
+        bail!("this input cannot be replayed")
+    }
+}
+
+/// What the user asked for on the command line.
+#[derive(Clone, Debug, Default)]
+pub struct InputRequest {
+    /// `None` for the demo scene, `-` for stdin, otherwise a path.
+    pub path: Option<String>,
+    pub format: Option<SampleFormat>,
+    pub sample_rate_hz: Option<f64>,
+    pub center_hz: Option<f64>,
+    pub start_time: Option<OffsetDateTime>,
+    /// For the demo scene: deliver samples at the sample rate (as a receiver would).
+    pub realtime: bool,
+}
+
+/// Opens the source the request names. Messages about guesses go to `notes` (printed on stderr
+/// by the caller) so library code never prints.
+pub fn open(req: &InputRequest, notes: &mut Vec<String>) -> Result<Box<dyn SampleSource>> {
+    let src: Box<dyn SampleSource> = match req.path.as_deref() {
+        None => Box::new(demo::DemoSource::new(
+            req.sample_rate_hz.unwrap_or(demo::DEFAULT_RATE_HZ),
+            req.center_hz.unwrap_or(demo::DEFAULT_CENTER_HZ),
+            req.realtime,
+        )),
+        Some("-") => {
+            let format = req.format.context(
+                "reading stdin needs --format (one of cu8, ci8, ci16_le, ci16_be, ci32_le, cf32_le, cf32_be, cf64_le)",
+            )?;
+            let rate = req.sample_rate_hz.context(
+                "reading stdin needs --rate (the sample rate, e.g. --rate 2.4M)",
+            )?;
+            let info = SourceInfo {
+                label: "stdin".into(),
+                format: Some(format),
+                sample_rate_hz: rate,
+                center_hz: req.center_hz.unwrap_or(0.0),
+                start_time: req.start_time,
+                total_samples: None,
+                live: true,
+            };
+            Box::new(raw::RawSource::new(Box::new(std::io::stdin()), format, info))
+        }
+        Some(path) => open_path(path, req, notes)?,
+    };
+    Ok(src)
+}
+
+fn open_path(path: &str, req: &InputRequest, notes: &mut Vec<String>) -> Result<Box<dyn SampleSource>> {
+    let lower = path.to_ascii_lowercase();
+    if lower.ends_with(".sigmf-meta") || lower.ends_with(".sigmf-data") || lower.ends_with(".sigmf") {
+        return sigmf::open(path, req);
+    }
+    if lower.ends_with(".wav") {
+        return wav::open(path, req);
+    }
+    let format = match req.format {
+        Some(f) => f,
+        None => match SampleFormat::guess_from_extension(path) {
+            Some(f) => {
+                notes.push(format!("guessed --format {f} from the file name '{}'", sanitize(path)));
+                f
+            }
+            None => bail!(
+                "cannot tell the sample format of '{}': give --format (one of cu8, ci8, ci16_le, ci16_be, ci32_le, cf32_le, cf32_be, cf64_le)",
+                sanitize(path)
+            ),
+        },
+    };
+    let rate = req.sample_rate_hz.with_context(|| {
+        format!("'{}' is a raw file with no sample rate: give --rate (e.g. --rate 2.4M)", sanitize(path))
+    })?;
+    raw::open_file(path, format, rate, req)
+}
+
+/// Removes control characters (including ESC) from text that came from a file, so metadata
+/// cannot move the cursor or change colours when shown in a terminal.
+pub fn sanitize(text: &str) -> String {
+    text.chars().map(|c| if c.is_control() { '?' } else { c }).collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn sanitize_removes_escapes() {
+        assert_eq!(sanitize("ok\x1b[2Jbad\x07"), "ok?[2Jbad?");
+        assert_eq!(sanitize("Höhenweg ✓"), "Höhenweg ✓");
+    }
+}

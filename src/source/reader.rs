@@ -1,0 +1,180 @@
+//! The reader thread: pulls blocks from a source and sends them to the DSP over a bounded channel.
+//!
+//! File input is never dropped: when the queue is full the reader waits. A live source (stdin, the
+//! paced demo) cannot wait without the samples piling up upstream, so when `drop_when_full` is set
+//! a block that finds the queue full is counted in [`ReaderStats::dropped`] and discarded; the next
+//! block's `start` index jumps by the gap, so time stays exact and the DSP knows to re-frame.
+
+use super::{InputIssues, SampleSource};
+use anyhow::Result;
+use crossbeam_channel::{Sender, TrySendError};
+use num_complex::Complex32;
+use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
+use std::sync::Arc;
+use std::thread::JoinHandle;
+use std::time::{Duration, Instant};
+
+/// A run of consecutive samples; `start` counts samples from the beginning of the input,
+/// dropped ones included.
+#[derive(Clone, Debug)]
+pub struct Block {
+    pub start: u64,
+    pub samples: Vec<Complex32>,
+}
+
+/// Counters shared with whoever displays or logs progress.
+#[derive(Debug, Default)]
+pub struct ReaderStats {
+    /// Samples taken from the source (delivered or dropped).
+    pub samples: AtomicU64,
+    /// Samples discarded because the DSP was behind.
+    pub dropped: AtomicU64,
+    /// Set when the source reached its end.
+    pub finished: AtomicBool,
+}
+
+#[derive(Clone, Debug)]
+pub struct ReaderOptions {
+    /// Samples per block.
+    pub block_len: usize,
+    /// Drop (and count) blocks when the queue is full instead of waiting.
+    pub drop_when_full: bool,
+    /// Deliver at `speed` × the sample rate (file playback in `watch`); `None` = as fast as the
+    /// consumer takes them.
+    pub pace: Option<f64>,
+    /// Start again at the end (files only).
+    pub loop_input: bool,
+    /// Stop after this many samples (`--seconds`).
+    pub max_samples: Option<u64>,
+}
+
+impl Default for ReaderOptions {
+    fn default() -> Self {
+        ReaderOptions { block_len: 65536, drop_when_full: false, pace: None, loop_input: false, max_samples: None }
+    }
+}
+
+/// Runs `src` on a new thread. The thread ends (dropping `tx`, which ends the stream) at end of
+/// input, when `stop` is set, or when the receiver hangs up. It returns the source's issues.
+pub fn spawn(
+    mut src: Box<dyn SampleSource>,
+    opts: ReaderOptions,
+    tx: Sender<Block>,
+    stop: Arc<AtomicBool>,
+    stats: Arc<ReaderStats>,
+) -> JoinHandle<Result<InputIssues>> {
+    std::thread::Builder::new()
+        .name("reader".into())
+        .spawn(move || {
+            let result = run(&mut *src, &opts, &tx, &stop, &stats);
+            stats.finished.store(true, Ordering::SeqCst);
+            result.map(|_| src.issues())
+        })
+        .expect("spawning the reader thread")
+}
+
+fn run(
+    src: &mut dyn SampleSource,
+    opts: &ReaderOptions,
+    tx: &Sender<Block>,
+    stop: &AtomicBool,
+    stats: &ReaderStats,
+) -> Result<()> {
+    let rate = src.info().sample_rate_hz;
+    let mut index = 0u64;
+    let started = Instant::now();
+    let mut paced_samples = 0u64;
+    while !stop.load(Ordering::Relaxed) {
+        let mut want = opts.block_len;
+        if let Some(max) = opts.max_samples {
+            if index >= max {
+                break;
+            }
+            want = want.min((max - index) as usize);
+        }
+        let mut samples = Vec::with_capacity(want);
+        let n = src.read(&mut samples, want)?;
+        if n == 0 {
+            if opts.loop_input && index > 0 && src.rewind().is_ok() {
+                continue;
+            }
+            break;
+        }
+        if let Some(speed) = opts.pace {
+            paced_samples += n as u64;
+            let due = Duration::from_secs_f64(paced_samples as f64 / (rate * speed));
+            let elapsed = started.elapsed();
+            if due > elapsed {
+                sleep_unless_stopped(due - elapsed, stop);
+            }
+        }
+        let block = Block { start: index, samples };
+        index += n as u64;
+        stats.samples.fetch_add(n as u64, Ordering::Relaxed);
+        if opts.drop_when_full {
+            match tx.try_send(block) {
+                Ok(()) => {}
+                Err(TrySendError::Full(b)) => {
+                    stats.dropped.fetch_add(b.samples.len() as u64, Ordering::Relaxed);
+                }
+                Err(TrySendError::Disconnected(_)) => break,
+            }
+        } else if tx.send(block).is_err() {
+            break;
+        }
+    }
+    Ok(())
+}
+
+fn sleep_unless_stopped(mut d: Duration, stop: &AtomicBool) {
+    let slice = Duration::from_millis(20);
+    while d > Duration::ZERO && !stop.load(Ordering::Relaxed) {
+        let s = d.min(slice);
+        std::thread::sleep(s);
+        d -= s;
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::source::demo::DemoSource;
+    use crossbeam_channel::bounded;
+
+    #[test]
+    fn a_full_queue_drops_and_counts_live_blocks() {
+        let src = Box::new(DemoSource::new(1e6, 0.0, false));
+        let (tx, rx) = bounded(2);
+        let stats = Arc::new(ReaderStats::default());
+        let opts = ReaderOptions {
+            block_len: 1000,
+            drop_when_full: true,
+            max_samples: Some(10_000),
+            ..Default::default()
+        };
+        let h = spawn(src, opts, tx, Arc::new(AtomicBool::new(false)), stats.clone());
+        h.join().unwrap().unwrap();
+        let got: Vec<Block> = rx.try_iter().collect();
+        assert_eq!(got.len(), 2);
+        assert_eq!(stats.dropped.load(Ordering::SeqCst), 8000);
+        assert_eq!(stats.samples.load(Ordering::SeqCst), 10_000);
+        assert_eq!(got[1].start, 1000);
+    }
+
+    #[test]
+    fn file_style_input_is_never_dropped() {
+        let src = Box::new(DemoSource::new(1e6, 0.0, false));
+        let (tx, rx) = bounded(1);
+        let stats = Arc::new(ReaderStats::default());
+        let opts = ReaderOptions { block_len: 1000, max_samples: Some(10_500), ..Default::default() };
+        let h = spawn(src, opts, tx, Arc::new(AtomicBool::new(false)), stats.clone());
+        let mut next = 0;
+        for b in rx.iter() {
+            assert_eq!(b.start, next);
+            next += b.samples.len() as u64;
+        }
+        h.join().unwrap().unwrap();
+        assert_eq!(next, 10_500);
+        assert_eq!(stats.dropped.load(Ordering::SeqCst), 0);
+    }
+}
