@@ -19,7 +19,9 @@ pub fn parse_hz(text: &str) -> Result<f64, String> {
         .unwrap_or(t)
         .trim_end();
     if t.is_empty() {
-        return Err(format!("'{text}' is not a frequency: expected a number such as 2.4M, 12.5k or 1e6"));
+        return Err(format!(
+            "'{text}' is not a frequency: expected a number such as 2.4M, 12.5k or 1e6"
+        ));
     }
     let (num, mult) = match t.chars().last() {
         Some('k') | Some('K') => (&t[..t.len() - 1], 1e3),
@@ -56,9 +58,10 @@ pub fn parse_duration(text: &str) -> Result<Duration, String> {
     let t = text.trim();
     let split = t.find(|c: char| c.is_ascii_alphabetic()).unwrap_or(t.len());
     let (num, unit) = t.split_at(split);
-    let value: f64 = num.trim().parse().map_err(|_| {
-        format!("'{text}' is not a duration: expected e.g. 10ms, 2s, 15m or 1h")
-    })?;
+    let value: f64 = num
+        .trim()
+        .parse()
+        .map_err(|_| format!("'{text}' is not a duration: expected e.g. 10ms, 2s, 15m or 1h"))?;
     let scale = match unit.trim() {
         "" | "s" | "sec" => 1.0,
         "ms" => 1e-3,

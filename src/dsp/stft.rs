@@ -22,7 +22,12 @@ impl Stft {
         let mut planner = FftPlanner::new();
         let fft = planner.plan_fft_forward(fft_size);
         let scratch = vec![Complex32::default(); fft.get_inplace_scratch_len()];
-        Stft { window: Window::new(kind, fft_size), fft, buf: vec![Complex32::default(); fft_size], scratch }
+        Stft {
+            window: Window::new(kind, fft_size),
+            fft,
+            buf: vec![Complex32::default(); fft_size],
+            scratch,
+        }
     }
 
     pub fn window(&self) -> &Window {

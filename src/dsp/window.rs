@@ -356,8 +356,10 @@ mod tests {
                 if kind == WindowKind::Rect && d == 0.0 {
                     continue; // both neighbours are exact nulls: any offset ≤ 0 fits.
                 }
-                assert!((est - d).abs() < 1e-6 || (d == 0.5 && (est + d).abs() < 1e-6),
-                    "{kind}: offset {d} estimated as {est}");
+                assert!(
+                    (est - d).abs() < 1e-6 || (d == 0.5 && (est + d).abs() < 1e-6),
+                    "{kind}: offset {d} estimated as {est}"
+                );
                 assert!((g - p0).abs() < 1e-9, "{kind}: gain {g} vs {p0}");
             }
         }

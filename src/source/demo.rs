@@ -38,7 +38,10 @@ impl Scene {
         for s in out.iter_mut() {
             let t = self.n as f64 / self.rate;
             let ph = 2.0 * std::f64::consts::PI * 250e3 * t;
-            *s = Complex32::new(0.1 * ph.cos() as f32 + sigma * self.gauss(), 0.1 * ph.sin() as f32 + sigma * self.gauss());
+            *s = Complex32::new(
+                0.1 * ph.cos() as f32 + sigma * self.gauss(),
+                0.1 * ph.sin() as f32 + sigma * self.gauss(),
+            );
             self.n += 1;
         }
     }

@@ -95,9 +95,11 @@ impl SampleFormat {
             }
             SampleFormat::Ci8 => {
                 const SCALE: f32 = 1.0 / 128.0;
-                out.extend(chunks.map(|c| {
-                    Complex32::new(c[0] as i8 as f32 * SCALE, c[1] as i8 as f32 * SCALE)
-                }));
+                out.extend(
+                    chunks.map(|c| {
+                        Complex32::new(c[0] as i8 as f32 * SCALE, c[1] as i8 as f32 * SCALE)
+                    }),
+                );
                 0
             }
             SampleFormat::Ci16Le | SampleFormat::Ci16Be => {
@@ -107,12 +109,15 @@ impl SampleFormat {
                     let v = [b[0], b[1]];
                     (if le { i16::from_le_bytes(v) } else { i16::from_be_bytes(v) }) as f32
                 };
-                out.extend(chunks.map(|c| Complex32::new(get(&c[0..2]) * SCALE, get(&c[2..4]) * SCALE)));
+                out.extend(
+                    chunks.map(|c| Complex32::new(get(&c[0..2]) * SCALE, get(&c[2..4]) * SCALE)),
+                );
                 0
             }
             SampleFormat::Ci32Le => {
                 const SCALE: f64 = 1.0 / 2147483648.0;
-                let get = |b: &[u8]| (i32::from_le_bytes([b[0], b[1], b[2], b[3]]) as f64 * SCALE) as f32;
+                let get =
+                    |b: &[u8]| (i32::from_le_bytes([b[0], b[1], b[2], b[3]]) as f64 * SCALE) as f32;
                 out.extend(chunks.map(|c| Complex32::new(get(&c[0..4]), get(&c[4..8]))));
                 0
             }
@@ -147,7 +152,9 @@ impl SampleFormat {
                     SampleFormat::Cu8 => {
                         out.push((v * 127.5 + 127.5).round().clamp(0.0, 255.0) as u8)
                     }
-                    SampleFormat::Ci8 => out.push((v * 128.0).round().clamp(-128.0, 127.0) as i8 as u8),
+                    SampleFormat::Ci8 => {
+                        out.push((v * 128.0).round().clamp(-128.0, 127.0) as i8 as u8)
+                    }
                     SampleFormat::Ci16Le => out.extend_from_slice(
                         &((v * 32768.0).round().clamp(-32768.0, 32767.0) as i16).to_le_bytes(),
                     ),
@@ -225,8 +232,9 @@ mod tests {
 
     #[test]
     fn every_format_round_trips() {
-        let samples: Vec<Complex32> =
-            (0..64).map(|i| Complex32::new((i as f32 / 40.0).sin() * 0.7, (i as f32 / 13.0).cos() * -0.6)).collect();
+        let samples: Vec<Complex32> = (0..64)
+            .map(|i| Complex32::new((i as f32 / 40.0).sin() * 0.7, (i as f32 / 13.0).cos() * -0.6))
+            .collect();
         for fmt in SampleFormat::ALL {
             let mut bytes = Vec::new();
             fmt.encode(&samples, &mut bytes);
@@ -249,7 +257,11 @@ mod tests {
     fn non_finite_floats_are_counted_and_skipped() {
         let mut bytes = Vec::new();
         SampleFormat::Cf32Le.encode(
-            &[Complex32::new(0.5, 0.5), Complex32::new(f32::NAN, 0.0), Complex32::new(0.0, f32::INFINITY)],
+            &[
+                Complex32::new(0.5, 0.5),
+                Complex32::new(f32::NAN, 0.0),
+                Complex32::new(0.0, f32::INFINITY),
+            ],
             &mut bytes,
         );
         let mut out = Vec::new();

@@ -88,9 +88,9 @@ pub fn open(req: &InputRequest, notes: &mut Vec<String>) -> Result<Box<dyn Sampl
             let format = req.format.context(
                 "reading stdin needs --format (one of cu8, ci8, ci16_le, ci16_be, ci32_le, cf32_le, cf32_be, cf64_le)",
             )?;
-            let rate = req.sample_rate_hz.context(
-                "reading stdin needs --rate (the sample rate, e.g. --rate 2.4M)",
-            )?;
+            let rate = req
+                .sample_rate_hz
+                .context("reading stdin needs --rate (the sample rate, e.g. --rate 2.4M)")?;
             let info = SourceInfo {
                 label: "stdin".into(),
                 format: Some(format),
@@ -107,9 +107,14 @@ pub fn open(req: &InputRequest, notes: &mut Vec<String>) -> Result<Box<dyn Sampl
     Ok(src)
 }
 
-fn open_path(path: &str, req: &InputRequest, notes: &mut Vec<String>) -> Result<Box<dyn SampleSource>> {
+fn open_path(
+    path: &str,
+    req: &InputRequest,
+    notes: &mut Vec<String>,
+) -> Result<Box<dyn SampleSource>> {
     let lower = path.to_ascii_lowercase();
-    if lower.ends_with(".sigmf-meta") || lower.ends_with(".sigmf-data") || lower.ends_with(".sigmf") {
+    if lower.ends_with(".sigmf-meta") || lower.ends_with(".sigmf-data") || lower.ends_with(".sigmf")
+    {
         return sigmf::open(path, req);
     }
     if lower.ends_with(".wav") {
@@ -129,7 +134,10 @@ fn open_path(path: &str, req: &InputRequest, notes: &mut Vec<String>) -> Result<
         },
     };
     let rate = req.sample_rate_hz.with_context(|| {
-        format!("'{}' is a raw file with no sample rate: give --rate (e.g. --rate 2.4M)", sanitize(path))
+        format!(
+            "'{}' is a raw file with no sample rate: give --rate (e.g. --rate 2.4M)",
+            sanitize(path)
+        )
     })?;
     raw::open_file(path, format, rate, req)
 }

@@ -53,12 +53,25 @@ pub struct RawSource {
 
 impl RawSource {
     pub fn new(stream: Box<dyn ByteStream>, format: SampleFormat, info: SourceInfo) -> RawSource {
-        RawSource { stream, format, info, bytes: Vec::new(), carry: 0, issues: InputIssues::default(), finished: false }
+        RawSource {
+            stream,
+            format,
+            info,
+            bytes: Vec::new(),
+            carry: 0,
+            issues: InputIssues::default(),
+            finished: false,
+        }
     }
 }
 
 /// Opens a raw file; the length tells how many samples to expect.
-pub fn open_file(path: &str, format: SampleFormat, rate: f64, req: &InputRequest) -> Result<Box<dyn SampleSource>> {
+pub fn open_file(
+    path: &str,
+    format: SampleFormat,
+    rate: f64,
+    req: &InputRequest,
+) -> Result<Box<dyn SampleSource>> {
     let file = File::open(path).with_context(|| format!("cannot open '{}'", sanitize(path)))?;
     let len = file.metadata().map(|m| m.len()).unwrap_or(0);
     let info = SourceInfo {
@@ -164,7 +177,8 @@ mod tests {
     #[test]
     fn reads_survive_short_chunks_and_rewind() {
         let mut bytes = Vec::new();
-        let samples: Vec<Complex32> = (0..100).map(|i| Complex32::new(i as f32 / 200.0, 0.25)).collect();
+        let samples: Vec<Complex32> =
+            (0..100).map(|i| Complex32::new(i as f32 / 200.0, 0.25)).collect();
         SampleFormat::Cf32Le.encode(&samples, &mut bytes);
         let mut src = RawSource::new(Box::new(Cursor::new(bytes)), SampleFormat::Cf32Le, info());
         let mut out = Vec::new();

@@ -50,7 +50,13 @@ pub struct ReaderOptions {
 
 impl Default for ReaderOptions {
     fn default() -> Self {
-        ReaderOptions { block_len: 65536, drop_when_full: false, pace: None, loop_input: false, max_samples: None }
+        ReaderOptions {
+            block_len: 65536,
+            drop_when_full: false,
+            pace: None,
+            loop_input: false,
+            max_samples: None,
+        }
     }
 }
 
@@ -166,7 +172,8 @@ mod tests {
         let src = Box::new(DemoSource::new(1e6, 0.0, false));
         let (tx, rx) = bounded(1);
         let stats = Arc::new(ReaderStats::default());
-        let opts = ReaderOptions { block_len: 1000, max_samples: Some(10_500), ..Default::default() };
+        let opts =
+            ReaderOptions { block_len: 1000, max_samples: Some(10_500), ..Default::default() };
         let h = spawn(src, opts, tx, Arc::new(AtomicBool::new(false)), stats.clone());
         let mut next = 0;
         for b in rx.iter() {

@@ -40,7 +40,9 @@ pub fn parse_meta(text: &str, name: &str) -> Result<Meta> {
         format!("'{name}' has no \"global\" object; a SigMF meta file needs global.core:datatype")
     })?;
     let dt = global.get("core:datatype").and_then(Value::as_str).with_context(|| {
-        format!("'{name}': global.core:datatype is missing; add e.g. \"core:datatype\": \"cf32_le\"")
+        format!(
+            "'{name}': global.core:datatype is missing; add e.g. \"core:datatype\": \"cf32_le\""
+        )
     })?;
     let datatype: SampleFormat = dt.parse().map_err(|e: String| {
         anyhow::anyhow!("'{name}': core:datatype '{}' is not supported ({e}); bandwarden reads complex data only", sanitize(dt))
@@ -48,9 +50,10 @@ pub fn parse_meta(text: &str, name: &str) -> Result<Meta> {
     let sample_rate_hz = match global.get("core:sample_rate") {
         None | Some(Value::Null) => None,
         Some(r) => {
-            let r = r.as_f64().filter(|r| *r > 0.0 && r.is_finite()).with_context(|| {
-                format!("'{name}': core:sample_rate must be a positive number")
-            })?;
+            let r = r
+                .as_f64()
+                .filter(|r| *r > 0.0 && r.is_finite())
+                .with_context(|| format!("'{name}': core:sample_rate must be a positive number"))?;
             Some(r)
         }
     };
@@ -74,7 +77,10 @@ pub fn open(path: &str, req: &InputRequest) -> Result<Box<dyn SampleSource>> {
     let meta = parse_meta(&text, &sanitize(&meta_path))?;
     let format = req.format.unwrap_or(meta.datatype);
     let Some(rate) = req.sample_rate_hz.or(meta.sample_rate_hz) else {
-        bail!("'{}' gives no core:sample_rate: give --rate (e.g. --rate 2.4M)", sanitize(&meta_path));
+        bail!(
+            "'{}' gives no core:sample_rate: give --rate (e.g. --rate 2.4M)",
+            sanitize(&meta_path)
+        );
     };
     let offset = meta.sample_start * format.bytes_per_sample() as u64;
     let stream = file_stream(&data_path, offset)?;
@@ -142,7 +148,8 @@ mod tests {
         assert!(e.contains("not valid SigMF JSON") && e.contains("line"), "{e}");
         let e = parse_meta(r#"{"global":{}}"#, "x").unwrap_err().to_string();
         assert!(e.contains("core:datatype is missing"), "{e}");
-        let e = parse_meta(r#"{"global":{"core:datatype":"rf32_le"}}"#, "x").unwrap_err().to_string();
+        let e =
+            parse_meta(r#"{"global":{"core:datatype":"rf32_le"}}"#, "x").unwrap_err().to_string();
         assert!(e.contains("not supported"), "{e}");
         let e = parse_meta(r#"{"global":{"core:datatype":"cu8","core:sample_rate":-1}}"#, "x")
             .unwrap_err()
@@ -155,7 +162,16 @@ mod tests {
         let t = OffsetDateTime::from_unix_timestamp(1_800_000_000).unwrap();
         let text = meta_json(SampleFormat::Cu8, 2.4e6, 145e6, Some(t), "x");
         let m = parse_meta(&text, "t").unwrap();
-        assert_eq!(m, Meta { datatype: SampleFormat::Cu8, sample_rate_hz: Some(2.4e6), center_hz: Some(145e6), datetime: Some(t), sample_start: 0 });
+        assert_eq!(
+            m,
+            Meta {
+                datatype: SampleFormat::Cu8,
+                sample_rate_hz: Some(2.4e6),
+                center_hz: Some(145e6),
+                datetime: Some(t),
+                sample_start: 0
+            }
+        );
     }
 
     #[test]

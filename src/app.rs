@@ -1,0 +1,51 @@
+//! One exit path for the binary: dispatch a parsed command line and map errors to exit codes.
+//!
+//! Exit codes: 0 success (also when the reader of our output went away: a broken pipe is the
+//! normal end of `bandwarden … | head`); 1 the input or a setting was bad, or the run failed;
+//! 2 the command line itself was malformed (clap's own code).
+
+use crate::cli::{Cli, Command};
+use crate::cmd;
+use clap::Parser;
+use std::ffi::OsString;
+use std::process::ExitCode;
+
+pub fn main_with_args(args: impl IntoIterator<Item = OsString>) -> ExitCode {
+    let cli = match Cli::try_parse_from(args) {
+        Ok(cli) => cli,
+        Err(e) => {
+            let _ = e.print();
+            return ExitCode::from(if e.use_stderr() { 2 } else { 0 });
+        }
+    };
+    match run(cli) {
+        Ok(code) => code,
+        Err(err) => {
+            if is_broken_pipe(&err) {
+                return ExitCode::SUCCESS;
+            }
+            eprintln!("bandwarden: {err:#}");
+            ExitCode::from(1)
+        }
+    }
+}
+
+pub fn run(cli: Cli) -> anyhow::Result<ExitCode> {
+    match cli.command {
+        None => cmd::measure::run_default(),
+        Some(Command::Measure(args)) => cmd::measure::run(args),
+        Some(Command::Demo(args)) => cmd::demo::run(args),
+    }
+}
+
+fn is_broken_pipe(err: &anyhow::Error) -> bool {
+    err.chain().any(|e| {
+        e.downcast_ref::<std::io::Error>()
+            .is_some_and(|io| io.kind() == std::io::ErrorKind::BrokenPipe)
+    })
+}
+
+/// Prints a non-fatal note for the user on stderr, with the program's prefix.
+pub fn note(text: &str) {
+    eprintln!("bandwarden: {text}");
+}

@@ -1,0 +1,4 @@
+//! One module per subcommand; each turns validated arguments into a run.
+
+pub mod demo;
+pub mod measure;
