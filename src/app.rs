@@ -32,9 +32,10 @@ pub fn main_with_args(args: impl IntoIterator<Item = OsString>) -> ExitCode {
 
 pub fn run(cli: Cli) -> anyhow::Result<ExitCode> {
     match cli.command {
-        None => cmd::measure::run_default(),
+        None => cmd::watch::run_default(),
         Some(Command::Measure(args)) => cmd::measure::run(args),
         Some(Command::Demo(args)) => cmd::demo::run(args),
+        Some(Command::Watch(args)) => cmd::watch::run(args),
     }
 }
 

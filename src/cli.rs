@@ -32,6 +32,8 @@ pub enum Command {
     Measure(MeasureArgs),
     /// Write the built-in demo scene as IQ samples (to a file or stdout), to try pipes and files.
     Demo(DemoArgs),
+    /// Live monitor in the terminal: spectrum, waterfall and the strongest signals.
+    Watch(crate::cmd::watch::WatchArgs),
 }
 
 /// Where samples come from and how to read them.

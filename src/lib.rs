@@ -2,7 +2,7 @@
 //!
 //! The binary is a thin shell over this library: [`app`] dispatches commands in [`cmd`]; samples
 //! come from [`source`] on a reader thread, become calibrated spectra in [`dsp`], are measured by
-//! the pure functions in [`measure`] and written by [`output`].
+//! the pure functions in [`measure`] and written by [`output`] or shown live by [`tui`].
 
 pub mod app;
 pub mod cli;
@@ -12,4 +12,5 @@ pub mod measure;
 pub mod output;
 pub mod pipeline;
 pub mod source;
+pub mod tui;
 pub mod units;

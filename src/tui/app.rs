@@ -1,0 +1,686 @@
+//! The monitor's state and what each intent does to it; no terminal code, so it is tested
+//! directly.
+//!
+//! Levels are kept in dBFS of power in one RBW (so a tone reads its own level); a reference
+//! offset only changes what is printed. Measurements (noise floor, signal table, automatic
+//! scale) run on the average trace a few times a second, not on every row: the table must be
+//! readable and the monitor light.
+
+use super::colour::{Depth, MapKind, Palette, Theme};
+use super::dsp_thread::DspSettings;
+use super::history::{History, Row};
+use super::input::Intent;
+use super::layout::Screen;
+use super::traces::Traces;
+use super::view::{column_max, BinGrid, View, MIN_VIEW_BINS};
+use crate::dsp::{Spectrum, Window, WindowKind};
+use crate::measure::{find_signals, noise_floor, Detection, Signal};
+use crate::units::db;
+use std::time::{Duration, Instant};
+
+/// How often the table, the noise floor and the automatic scale are refreshed.
+pub const MEASURE_EVERY: Duration = Duration::from_millis(250);
+/// Signals measured for the table (the screen shows as many as fit).
+pub const MAX_SIGNALS: usize = 12;
+/// FFT sizes reachable with the keys.
+pub const FFT_KEYS_MIN: usize = 64;
+pub const FFT_KEYS_MAX: usize = 65536;
+/// Row rates reachable with the keys, rows per second.
+pub const ROW_RATES: [f64; 8] = [1.0, 2.0, 5.0, 10.0, 15.0, 20.0, 30.0, 50.0];
+/// Limits of the dynamic range, dB.
+pub const RANGE_MIN_DB: f64 = 20.0;
+pub const RANGE_MAX_DB: f64 = 200.0;
+
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Mode {
+    Live,
+    /// The display holds still; rows that arrive are not shown.
+    Frozen,
+    Quit,
+}
+
+/// A named channel shown over the spectrum and in the table.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Channel {
+    /// Shown as is; callers remove control characters first.
+    pub name: String,
+    pub center_hz: f64,
+    pub width_hz: f64,
+}
+
+impl Channel {
+    pub fn contains(&self, freq_hz: f64) -> bool {
+        (freq_hz - self.center_hz).abs() <= 0.5 * self.width_hz
+    }
+}
+
+/// What the status line says about the input.
+#[derive(Clone, Debug, PartialEq)]
+pub struct SourceSummary {
+    /// Free of control characters.
+    pub label: String,
+    pub sample_rate_hz: f64,
+    pub center_hz: f64,
+    pub total_samples: Option<u64>,
+    pub live: bool,
+    /// Playback speed for files (× real time).
+    pub speed: Option<f64>,
+    pub looping: bool,
+}
+
+/// The vertical scale shared by the spectrum and the waterfall colours.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Levels {
+    /// Top of the scale, dBFS.
+    pub top_dbfs: f64,
+    pub range_db: f64,
+    /// Follow the noise floor and the strongest signal.
+    pub auto: bool,
+    /// Added to every printed level: dBFS → dBm for a calibrated receiver.
+    pub offset_db: Option<f64>,
+}
+
+impl Levels {
+    pub fn bottom_dbfs(&self) -> f64 {
+        self.top_dbfs - self.range_db
+    }
+
+    pub fn unit(&self) -> &'static str {
+        if self.offset_db.is_some() {
+            "dBm"
+        } else {
+            "dBFS"
+        }
+    }
+
+    /// A dBFS level in printed units.
+    pub fn shown(&self, dbfs: f64) -> f64 {
+        dbfs + self.offset_db.unwrap_or(0.0)
+    }
+}
+
+/// Counters for the status line, refreshed once a second so the figures are readable.
+#[derive(Clone, Debug)]
+pub struct Stats {
+    pub fps: f64,
+    pub rows_per_s: f64,
+    /// Rows the DSP threw away because the screen was behind.
+    pub skipped: u64,
+    /// Samples the reader threw away because the DSP was behind.
+    pub dropped: u64,
+    /// Input time of the newest row, seconds.
+    pub position_s: Option<f64>,
+    frames: u32,
+    rows: u32,
+    since: Instant,
+}
+
+impl Stats {
+    fn new(now: Instant) -> Stats {
+        Stats {
+            fps: 0.0,
+            rows_per_s: 0.0,
+            skipped: 0,
+            dropped: 0,
+            position_s: None,
+            frames: 0,
+            rows: 0,
+            since: now,
+        }
+    }
+
+    pub fn count_frame(&mut self, now: Instant) {
+        self.frames += 1;
+        let dt = now.duration_since(self.since).as_secs_f64();
+        if dt >= 1.0 {
+            self.fps = self.frames as f64 / dt;
+            self.rows_per_s = self.rows as f64 / dt;
+            self.frames = 0;
+            self.rows = 0;
+            self.since = now;
+        }
+    }
+}
+
+pub struct App {
+    pub mode: Mode,
+    pub help: bool,
+    pub source: SourceSummary,
+    /// What the DSP was last asked for.
+    pub settings: DspSettings,
+    pending_settings: Option<DspSettings>,
+    pub view: Option<View>,
+    pub levels: Levels,
+    pub marker_hz: Option<f64>,
+    pub ref_marker_hz: Option<f64>,
+    pub depth: Depth,
+    pub palette: Palette,
+    pub theme: Theme,
+    pub channels: Vec<Channel>,
+    pub plan_visible: bool,
+    pub traces: Traces,
+    pub history: History,
+    pub signals: Vec<Signal>,
+    /// Noise power in one RBW, dBFS.
+    pub floor_dbfs: Option<f64>,
+    pub stats: Stats,
+    /// The input has ended (and is not looping).
+    pub ended: bool,
+    /// Bumped whenever every waterfall line must be drawn again (zoom, scale, colours).
+    pub waterfall_epoch: u64,
+    /// The waterfall is drawn by the scrolling painter, not through the cell buffer.
+    pub waterfall_external: bool,
+    /// Where things were on the last frame, for mouse clicks and marker steps.
+    pub screen: Option<Screen>,
+    signal_cursor: usize,
+    window: Option<Window>,
+    last_measure: Option<Instant>,
+}
+
+impl App {
+    pub fn new(
+        source: SourceSummary,
+        settings: DspSettings,
+        depth: Depth,
+        offset_db: Option<f64>,
+        channels: Vec<Channel>,
+        now: Instant,
+    ) -> App {
+        let plan_visible = !channels.is_empty();
+        App {
+            mode: Mode::Live,
+            help: false,
+            source,
+            settings,
+            pending_settings: None,
+            view: None,
+            levels: Levels { top_dbfs: 0.0, range_db: 100.0, auto: true, offset_db },
+            marker_hz: None,
+            ref_marker_hz: None,
+            depth,
+            palette: Palette::new(depth, MapKind::Viridis),
+            theme: Theme::new(depth),
+            channels,
+            plan_visible,
+            traces: Traces::default(),
+            history: History::new(256),
+            signals: Vec::new(),
+            floor_dbfs: None,
+            stats: Stats::new(now),
+            ended: false,
+            waterfall_epoch: 0,
+            waterfall_external: false,
+            screen: None,
+            signal_cursor: 0,
+            window: None,
+            last_measure: None,
+        }
+    }
+
+    /// Settings the DSP thread should switch to, once.
+    pub fn take_pending_settings(&mut self) -> Option<DspSettings> {
+        self.pending_settings.take()
+    }
+
+    /// Takes a new row from the DSP.
+    pub fn push_row(&mut self, spec: Spectrum) {
+        self.stats.position_s = Some(spec.end_sample as f64 / spec.sample_rate_hz);
+        if self.mode == Mode::Frozen {
+            return;
+        }
+        self.stats.rows += 1;
+        let (lo, hi) = spec.span_hz();
+        let span = View::new(lo, hi);
+        let row = Row::from_spectrum(&spec);
+        if self.traces.push(spec) {
+            self.window = None;
+            self.view = Some(self.view.map_or(span, |v| v.inside(span)));
+        }
+        self.history.push(row);
+    }
+
+    /// The captured span, once a row has arrived.
+    pub fn span(&self) -> Option<View> {
+        self.traces.current().map(|s| {
+            let (lo, hi) = s.span_hz();
+            View::new(lo, hi)
+        })
+    }
+
+    /// Periodic work: measurements when due.
+    pub fn tick(&mut self, now: Instant) {
+        let due = self.last_measure.map_or(true, |t| now.duration_since(t) >= MEASURE_EVERY);
+        if due && self.mode == Mode::Live && self.traces.current().is_some() {
+            self.measure();
+            self.last_measure = Some(now);
+        }
+    }
+
+    /// Noise floor, signal table and (when on) the automatic scale, from the average trace.
+    pub fn measure(&mut self) {
+        let Some(avg) = self.traces.average_spectrum() else { return };
+        let window = match self.window.take() {
+            Some(w) if w.kind == avg.window && w.len() == avg.fft_size => w,
+            _ => Window::new(avg.window, avg.fft_size),
+        };
+        let floor = noise_floor(&avg.psd, avg.dof);
+        self.signals = find_signals(&avg, &window, floor, MAX_SIGNALS, Detection::default());
+        self.window = Some(window);
+        let floor_dbfs = db(floor * avg.rbw_hz);
+        self.floor_dbfs = Some(floor_dbfs);
+        if self.levels.auto {
+            let peak = self.visible_peak_dbfs(&avg).unwrap_or(floor_dbfs);
+            self.auto_scale(floor_dbfs, peak);
+        }
+    }
+
+    /// Largest level of the average in view, dBFS in one RBW.
+    fn visible_peak_dbfs(&self, avg: &Spectrum) -> Option<f64> {
+        let view = self.view?;
+        let grid = grid_of(avg);
+        let r = grid.bins_in(view.lo_hz, view.hi_hz);
+        let max = avg.psd[r].iter().copied().fold(0.0, f64::max);
+        (max > 0.0).then(|| db(max * avg.rbw_hz))
+    }
+
+    /// Puts the bottom of the scale 10 dB under the noise and the top 5 dB over the strongest
+    /// signal (at least 40 dB above the noise), in 5 dB steps, and only moves when the target has
+    /// moved by more than 4 dB so the colours do not flicker.
+    pub fn auto_scale(&mut self, floor_dbfs: f64, peak_dbfs: f64) {
+        let want_bottom = floor_dbfs - 10.0;
+        let want_top = (peak_dbfs + 5.0).max(floor_dbfs + 40.0);
+        let l = &mut self.levels;
+        let moved =
+            (want_top - l.top_dbfs).abs() > 4.0 || (want_bottom - l.bottom_dbfs()).abs() > 4.0;
+        if moved {
+            let top = (want_top / 5.0).ceil() * 5.0;
+            let bottom = (want_bottom / 5.0).floor() * 5.0;
+            l.top_dbfs = top;
+            l.range_db = (top - bottom).clamp(RANGE_MIN_DB, RANGE_MAX_DB);
+            self.waterfall_epoch += 1;
+        }
+    }
+
+    /// Width of the plot in columns (from the last frame; a guess before the first).
+    pub fn plot_width(&self) -> usize {
+        self.screen.map_or(74, |s| s.spectrum_plot.width as usize).max(1)
+    }
+
+    /// Applies an intent.
+    pub fn apply(&mut self, intent: Intent) {
+        match intent {
+            Intent::Quit => self.mode = Mode::Quit,
+            Intent::ToggleHelp => self.help = !self.help,
+            Intent::CloseHelp => self.help = false,
+            Intent::Freeze => {
+                self.mode = if self.mode == Mode::Frozen { Mode::Live } else { Mode::Frozen }
+            }
+            Intent::MarkerLeft(n) => self.step_marker(-(n as i64)),
+            Intent::MarkerRight(n) => self.step_marker(n as i64),
+            Intent::MarkerToStrongest => {
+                self.signal_cursor = 0;
+                self.marker_to_signal();
+            }
+            Intent::MarkerToNext => {
+                if !self.signals.is_empty() {
+                    self.signal_cursor = (self.signal_cursor + 1) % self.signals.len();
+                }
+                self.marker_to_signal();
+            }
+            Intent::SetRefMarker => self.ref_marker_hz = self.marker_hz,
+            Intent::ClearRefMarker => self.ref_marker_hz = None,
+            Intent::ZoomIn => self.zoom(0.5),
+            Intent::ZoomOut => self.zoom(2.0),
+            Intent::PanLeft => self.pan(-0.25),
+            Intent::PanRight => self.pan(0.25),
+            Intent::FullSpan => {
+                if let Some(span) = self.span() {
+                    self.set_view(span);
+                }
+            }
+            Intent::CentreOnMarker => {
+                if let (Some(v), Some(span), Some(m)) = (self.view, self.span(), self.marker_hz) {
+                    self.set_view(v.centred_on(m, span));
+                }
+            }
+            Intent::FftLarger => self.change_fft(true),
+            Intent::FftSmaller => self.change_fft(false),
+            Intent::WindowNext => self.change_window(1),
+            Intent::WindowPrev => self.change_window(WindowKind::ALL.len() - 1),
+            Intent::RefUp => self.manual_scale(5.0, 0.0),
+            Intent::RefDown => self.manual_scale(-5.0, 0.0),
+            Intent::RangeWider => self.manual_scale(0.0, 10.0),
+            Intent::RangeNarrower => self.manual_scale(0.0, -10.0),
+            Intent::AutoRange => {
+                self.levels.auto = !self.levels.auto;
+                if self.levels.auto {
+                    // Move to the automatic scale now, whatever the hysteresis says.
+                    self.levels.top_dbfs = f64::INFINITY;
+                    self.measure();
+                    if !self.levels.top_dbfs.is_finite() {
+                        self.levels.top_dbfs = 0.0;
+                    }
+                }
+            }
+            Intent::ResetHold => self.traces.reset_hold(),
+            Intent::NextColourMap => {
+                self.palette = Palette::new(self.depth, self.palette.map.next());
+                self.waterfall_epoch += 1;
+            }
+            Intent::TogglePlan => self.plan_visible = !self.plan_visible,
+            Intent::RowsSlower => self.change_row_rate(false),
+            Intent::RowsFaster => self.change_row_rate(true),
+            Intent::PointAt(x, y) => {
+                if let Some(col) = self.plot_column_at(x, y) {
+                    self.marker_hz = self.snap_to_column(col);
+                }
+            }
+            Intent::PointRefAt(x, y) => {
+                if let Some(col) = self.plot_column_at(x, y) {
+                    self.ref_marker_hz = self.snap_to_column(col);
+                }
+            }
+        }
+    }
+
+    fn set_view(&mut self, v: View) {
+        if self.view != Some(v) {
+            self.view = Some(v);
+            self.waterfall_epoch += 1;
+        }
+    }
+
+    fn zoom(&mut self, factor: f64) {
+        let (Some(v), Some(span), Some(cur)) = (self.view, self.span(), self.traces.current())
+        else {
+            return;
+        };
+        let anchor = self.marker_hz.filter(|m| (v.lo_hz..v.hi_hz).contains(m));
+        let min_width = MIN_VIEW_BINS * cur.bin_hz();
+        self.set_view(v.zoom(factor, anchor.unwrap_or(v.centre_hz()), span, min_width));
+    }
+
+    fn pan(&mut self, fraction: f64) {
+        if let (Some(v), Some(span)) = (self.view, self.span()) {
+            self.set_view(v.pan(fraction, span));
+        }
+    }
+
+    fn manual_scale(&mut self, top: f64, range: f64) {
+        self.levels.auto = false;
+        self.levels.top_dbfs += top;
+        self.levels.range_db = (self.levels.range_db + range).clamp(RANGE_MIN_DB, RANGE_MAX_DB);
+        self.waterfall_epoch += 1;
+    }
+
+    fn change_fft(&mut self, larger: bool) {
+        let n = self.settings.fft_size;
+        let next = if larger {
+            (n + 1).next_power_of_two()
+        } else if n.is_power_of_two() {
+            n / 2
+        } else {
+            n.next_power_of_two() / 2
+        };
+        let next = next.clamp(FFT_KEYS_MIN, FFT_KEYS_MAX);
+        if next != n {
+            self.request(DspSettings { fft_size: next, ..self.settings });
+        }
+    }
+
+    fn change_window(&mut self, step: usize) {
+        let all = WindowKind::ALL;
+        let i = all
+            .iter()
+            .position(|w| {
+                std::mem::discriminant(w) == std::mem::discriminant(&self.settings.window)
+            })
+            .unwrap_or(0);
+        self.request(DspSettings { window: all[(i + step) % all.len()], ..self.settings });
+    }
+
+    fn change_row_rate(&mut self, faster: bool) {
+        let r = self.settings.row_rate;
+        let next = if faster {
+            ROW_RATES.iter().copied().find(|&x| x > r + 1e-9)
+        } else {
+            ROW_RATES.iter().rev().copied().find(|&x| x < r - 1e-9)
+        };
+        if let Some(row_rate) = next {
+            self.request(DspSettings { row_rate, ..self.settings });
+        }
+    }
+
+    fn request(&mut self, s: DspSettings) {
+        self.settings = s;
+        self.pending_settings = Some(s);
+    }
+
+    fn marker_to_signal(&mut self) {
+        let Some(sig) = self.signals.get(self.signal_cursor) else { return };
+        let f = sig.freq_hz;
+        self.marker_hz = Some(f);
+        if let (Some(v), Some(span)) = (self.view, self.span()) {
+            if !(v.lo_hz..v.hi_hz).contains(&f) {
+                self.set_view(v.centred_on(f, span));
+            }
+        }
+    }
+
+    fn step_marker(&mut self, by: i64) {
+        let Some(v) = self.view else { return };
+        let w = self.plot_width();
+        let col =
+            self.marker_hz.and_then(|m| v.column_of(m, w)).map_or(w as i64 / 2, |c| c as i64 + by);
+        self.marker_hz = self.snap_to_column(col.clamp(0, w as i64 - 1) as usize);
+    }
+
+    /// The frequency of the strongest bin of the average trace within column `col`, so the
+    /// marker sits on what the column shows.
+    pub fn snap_to_column(&self, col: usize) -> Option<f64> {
+        let v = self.view?;
+        let w = self.plot_width();
+        let (lo, hi) = v.column_edges(col, w);
+        let Some(cur) = self.traces.current() else { return Some(0.5 * (lo + hi)) };
+        let grid = grid_of(cur);
+        let avg = self.traces.average_psd();
+        let bins = grid.bins_in(lo, hi);
+        let best = bins.clone().max_by(|&a, &b| avg[a].total_cmp(&avg[b]));
+        Some(best.map_or(0.5 * (lo + hi), |b| grid.freq(b)))
+    }
+
+    /// The plot column under a screen cell, in the spectrum or the waterfall.
+    fn plot_column_at(&self, x: u16, y: u16) -> Option<usize> {
+        let s = self.screen?;
+        let inside = |r: ratatui::layout::Rect| {
+            x >= r.x && x < r.x + r.width && y >= r.y && y < r.y + r.height
+        };
+        if inside(s.spectrum_plot) || inside(s.waterfall_plot()) {
+            Some((x - s.spectrum_plot.x) as usize)
+        } else {
+            None
+        }
+    }
+
+    /// Frequency and level (dBFS in one RBW, from the average trace) at a marker.
+    pub fn reading(&self, freq_hz: f64) -> Option<(f64, f64)> {
+        let cur = self.traces.current()?;
+        let grid = grid_of(cur);
+        let bin = grid.nearest(freq_hz)?;
+        Some((grid.freq(bin), db(self.traces.average_psd()[bin] * cur.rbw_hz)))
+    }
+
+    /// Trace levels (dBFS in one RBW) for `ncols` columns of the view: current, average, hold.
+    pub fn trace_columns(&self, ncols: usize) -> Option<[Vec<f64>; 3]> {
+        let cur = self.traces.current()?;
+        let map = grid_of(cur).column_map(&self.view?, ncols);
+        let to_db = |v: Vec<f64>| -> Vec<f64> {
+            v.into_iter()
+                .map(|p| if p.is_finite() { db(p * cur.rbw_hz) } else { f64::NEG_INFINITY })
+                .collect()
+        };
+        Some([
+            to_db(column_max(&cur.psd, &map)),
+            to_db(column_max(self.traces.average_psd(), &map)),
+            to_db(column_max(self.traces.hold_psd(), &map)),
+        ])
+    }
+
+    /// The channel a frequency falls in, if a plan is loaded.
+    pub fn channel_at(&self, freq_hz: f64) -> Option<&Channel> {
+        self.channels.iter().find(|c| c.contains(freq_hz))
+    }
+}
+
+/// The bin grid of a spectrum (fftshift order).
+pub fn grid_of(s: &Spectrum) -> BinGrid {
+    BinGrid { first_hz: s.freq_of_bin(0.0), bin_hz: s.bin_hz(), len: s.fft_size }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::dsp::Window;
+
+    fn summary() -> SourceSummary {
+        SourceSummary {
+            label: "test".into(),
+            sample_rate_hz: 1.024e6,
+            center_hz: 100e6,
+            total_samples: None,
+            live: true,
+            speed: None,
+            looping: false,
+        }
+    }
+
+    fn settings() -> DspSettings {
+        DspSettings { fft_size: 1024, window: WindowKind::Hann, overlap: 0.5, row_rate: 20.0 }
+    }
+
+    /// A row with a flat floor of `floor` (FS²/Hz, before scaling) and a tone in FFT bin `k`.
+    fn row(k: usize, tone: f64) -> Spectrum {
+        let n = 1024;
+        let mut power = vec![1.0; n];
+        power[k] = tone;
+        let w = Window::new(WindowKind::Hann, n);
+        Spectrum::from_power_sum(&power, 1, 2.0, &w, 1.024e6, 100e6, 0, n as u64)
+    }
+
+    fn app() -> App {
+        let t = Instant::now();
+        let mut a = App::new(summary(), settings(), Depth::TrueColour, None, Vec::new(), t);
+        a.push_row(row(100, 1e6));
+        a
+    }
+
+    #[test]
+    fn the_first_row_shows_the_whole_span() {
+        let a = app();
+        let v = a.view.unwrap();
+        assert!((v.lo_hz - (100e6 - 512e3 - 500.0)).abs() < 1e-6);
+        assert!((v.width_hz() - 1.024e6).abs() < 1e-6);
+    }
+
+    #[test]
+    fn marker_snaps_to_the_peak_of_its_column() {
+        let mut a = app();
+        // 1 kHz bins, 74 columns of 13.8 kHz. FFT bin 100 is shifted to 612: 100.1 MHz.
+        let tone = 100e6 + 100e3;
+        let col = a.view.unwrap().column_of(tone, 74).unwrap();
+        a.marker_hz = Some(a.view.unwrap().column_centre(col - 1, 74));
+        a.apply(Intent::MarkerRight(1));
+        assert_eq!(a.marker_hz, Some(tone));
+        let (f, level) = a.reading(tone).unwrap();
+        assert_eq!(f, tone);
+        let cur = a.traces.current().unwrap();
+        assert!((level - db(cur.psd[612] * cur.rbw_hz)).abs() < 1e-9);
+    }
+
+    #[test]
+    fn zoom_centres_on_the_marker_and_full_span_returns() {
+        let mut a = app();
+        a.marker_hz = Some(100.2e6);
+        let e0 = a.waterfall_epoch;
+        a.apply(Intent::ZoomIn);
+        let v = a.view.unwrap();
+        assert!((v.width_hz() - 0.512e6).abs() < 1e-3);
+        assert!(v.lo_hz < 100.2e6 && v.hi_hz > 100.2e6);
+        assert!(a.waterfall_epoch > e0, "zoom redraws the waterfall");
+        a.apply(Intent::FullSpan);
+        assert_eq!(a.view, a.span());
+    }
+
+    #[test]
+    fn fft_and_window_keys_ask_the_dsp() {
+        let mut a = app();
+        a.apply(Intent::FftLarger);
+        assert_eq!(a.take_pending_settings().unwrap().fft_size, 2048);
+        assert_eq!(a.take_pending_settings(), None);
+        a.apply(Intent::FftSmaller);
+        a.apply(Intent::FftSmaller);
+        assert_eq!(a.take_pending_settings().unwrap().fft_size, 512);
+        a.apply(Intent::WindowNext);
+        assert_eq!(a.take_pending_settings().unwrap().window, WindowKind::Hamming);
+        a.apply(Intent::WindowPrev);
+        a.apply(Intent::WindowPrev);
+        assert_eq!(a.settings.window, WindowKind::Rect);
+        a.apply(Intent::RowsSlower);
+        assert_eq!(a.take_pending_settings().unwrap().row_rate, 15.0);
+    }
+
+    #[test]
+    fn measurement_finds_the_tone_and_scales_automatically() {
+        let mut a = app();
+        for _ in 0..10 {
+            a.push_row(row(100, 1e6));
+        }
+        a.measure();
+        assert_eq!(a.signals.len(), 1);
+        assert!((a.signals[0].freq_hz - 100.1e6).abs() < 1.0);
+        let cur = a.traces.current().unwrap();
+        // The floor is flat: 1.0 per bin before scaling, i.e. cur.psd away from the tone.
+        let floor = db(cur.psd[0] * cur.rbw_hz);
+        assert!((a.floor_dbfs.unwrap() - floor).abs() < 0.01);
+        let l = a.levels;
+        assert!(l.bottom_dbfs() <= floor - 10.0 && l.bottom_dbfs() > floor - 15.0);
+        assert!(l.top_dbfs >= floor + 60.0 + 5.0, "top {} floor {floor}", l.top_dbfs);
+        // A small change does not move the scale.
+        let before = a.levels;
+        a.auto_scale(floor + 2.0, floor + 61.0);
+        assert_eq!(a.levels, before);
+    }
+
+    #[test]
+    fn manual_scale_turns_auto_off() {
+        let mut a = app();
+        a.apply(Intent::RefDown);
+        assert!(!a.levels.auto);
+        assert_eq!(a.levels.top_dbfs, -5.0);
+        a.apply(Intent::RangeNarrower);
+        assert_eq!(a.levels.range_db, 90.0);
+        for _ in 0..20 {
+            a.apply(Intent::RangeNarrower);
+        }
+        assert_eq!(a.levels.range_db, RANGE_MIN_DB);
+    }
+
+    #[test]
+    fn frozen_display_ignores_rows() {
+        let mut a = app();
+        a.apply(Intent::Freeze);
+        let total = a.history.total();
+        a.push_row(row(5, 1e6));
+        assert_eq!(a.history.total(), total);
+        a.apply(Intent::Freeze);
+        a.push_row(row(5, 1e6));
+        assert_eq!(a.history.total(), total + 1);
+    }
+
+    #[test]
+    fn reference_offset_changes_units_only() {
+        let l = Levels { top_dbfs: -10.0, range_db: 80.0, auto: false, offset_db: Some(-30.0) };
+        assert_eq!(l.unit(), "dBm");
+        assert_eq!(l.shown(-50.0), -80.0);
+    }
+}

@@ -1,0 +1,317 @@
+//! Colours for the monitor in the three depths a terminal may offer, and the waterfall's maps.
+//!
+//! The depth comes from the environment: `NO_COLOR` (any non-empty value, per the convention at
+//! no-color.org) gives a monochrome screen, `COLORTERM=truecolor|24bit` gives 24-bit colour, and
+//! anything else the 256-colour palette, which every terminal of the last decades has.
+//!
+//! The waterfall quantises levels to [`LEVELS`] steps. Fewer steps mean longer runs of cells that
+//! share one colour, so fewer colour codes go over the wire; 32 steps of an 80 dB range are
+//! 2.5 dB each, finer than the eye separates in a colour map.
+//!
+//! viridis, magma and inferno were published by their authors (Nathaniel J. Smith, Stefan van der
+//! Walt, Eric Firing) under CC0. The tables below keep 33 of their 256 entries, sampled from
+//! matplotlib 3.11.2 by `scripts/colour-maps.py`; we interpolate between them.
+
+use ratatui::style::{Color, Modifier, Style};
+
+/// Waterfall colour steps.
+pub const LEVELS: usize = 32;
+
+/// Monochrome waterfall ramp, from nothing to full; one character per cell.
+pub const MONO_RAMP: [&str; 7] = [" ", "·", ":", "░", "▒", "▓", "█"];
+
+/// How many colours the terminal can show.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Depth {
+    TrueColour,
+    Palette256,
+    Mono,
+}
+
+impl Depth {
+    /// Reads the depth from `COLORTERM` and `NO_COLOR` values.
+    pub fn from_env(colorterm: Option<&str>, no_color: Option<&str>) -> Depth {
+        if no_color.is_some_and(|v| !v.is_empty()) {
+            return Depth::Mono;
+        }
+        match colorterm.map(str::to_ascii_lowercase).as_deref() {
+            Some("truecolor") | Some("24bit") => Depth::TrueColour,
+            _ => Depth::Palette256,
+        }
+    }
+
+    /// Reads the depth from this process's environment.
+    pub fn detect() -> Depth {
+        let ct = std::env::var("COLORTERM").ok();
+        let nc = std::env::var("NO_COLOR").ok();
+        Depth::from_env(ct.as_deref(), nc.as_deref())
+    }
+
+    pub fn name(self) -> &'static str {
+        match self {
+            Depth::TrueColour => "24-bit",
+            Depth::Palette256 => "256",
+            Depth::Mono => "mono",
+        }
+    }
+}
+
+/// The waterfall's colour maps, in cycling order.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum MapKind {
+    Viridis,
+    Magma,
+    Inferno,
+    Grey,
+}
+
+impl MapKind {
+    pub const ALL: [MapKind; 4] =
+        [MapKind::Viridis, MapKind::Magma, MapKind::Inferno, MapKind::Grey];
+
+    pub fn next(self) -> MapKind {
+        let i = MapKind::ALL.iter().position(|m| *m == self).unwrap_or(0);
+        MapKind::ALL[(i + 1) % MapKind::ALL.len()]
+    }
+
+    pub fn name(self) -> &'static str {
+        match self {
+            MapKind::Viridis => "viridis",
+            MapKind::Magma => "magma",
+            MapKind::Inferno => "inferno",
+            MapKind::Grey => "grey",
+        }
+    }
+
+    /// Colour at `t` in 0..=1, interpolated between the table's entries.
+    pub fn rgb(self, t: f64) -> [u8; 3] {
+        let table: &[[u8; 3]] = match self {
+            MapKind::Viridis => &VIRIDIS,
+            MapKind::Magma => &MAGMA,
+            MapKind::Inferno => &INFERNO,
+            MapKind::Grey => &GREY,
+        };
+        let x = t.clamp(0.0, 1.0) * (table.len() - 1) as f64;
+        let i = (x.floor() as usize).min(table.len() - 2);
+        let f = x - i as f64;
+        let mut out = [0u8; 3];
+        for (c, o) in out.iter_mut().enumerate() {
+            let v = table[i][c] as f64 * (1.0 - f) + table[i + 1][c] as f64 * f;
+            *o = v.round() as u8;
+        }
+        out
+    }
+}
+
+/// The waterfall's colours, quantised to the terminal's depth.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Palette {
+    pub depth: Depth,
+    pub map: MapKind,
+    colours: Vec<Color>,
+}
+
+impl Palette {
+    pub fn new(depth: Depth, map: MapKind) -> Palette {
+        let colours = (0..LEVELS)
+            .map(|i| {
+                let [r, g, b] = map.rgb(i as f64 / (LEVELS - 1) as f64);
+                match depth {
+                    Depth::TrueColour => Color::Rgb(r, g, b),
+                    Depth::Palette256 => Color::Indexed(nearest_xterm256(r, g, b)),
+                    Depth::Mono => Color::Reset,
+                }
+            })
+            .collect();
+        Palette { depth, map, colours }
+    }
+
+    /// Step of a level between `bottom` and `bottom + range` (dB), clamped to the map's ends.
+    pub fn step(level_db: f32, bottom_db: f64, range_db: f64) -> u8 {
+        if !level_db.is_finite() {
+            return 0;
+        }
+        let t = (level_db as f64 - bottom_db) / range_db;
+        (t * LEVELS as f64).floor().clamp(0.0, (LEVELS - 1) as f64) as u8
+    }
+
+    pub fn colour(&self, step: u8) -> Color {
+        self.colours[(step as usize).min(LEVELS - 1)]
+    }
+
+    /// The monochrome character for a step.
+    pub fn mono_symbol(step: u8) -> &'static str {
+        let i = step as usize * MONO_RAMP.len() / LEVELS;
+        MONO_RAMP[i.min(MONO_RAMP.len() - 1)]
+    }
+}
+
+/// Colours of everything that is not the waterfall. They are palette indices even on a 24-bit
+/// terminal: `38;5;n` is eight bytes shorter than `38;2;r;g;b`, and these few colours need no
+/// more. In monochrome, traces differ by intensity instead.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Theme {
+    pub current: Style,
+    pub average: Style,
+    pub hold: Style,
+    pub marker: Style,
+    pub ref_marker: Style,
+    pub grid: Style,
+    pub label: Style,
+    pub title: Style,
+    pub warn: Style,
+    pub plan: Style,
+    pub header: Style,
+}
+
+impl Theme {
+    pub fn new(depth: Depth) -> Theme {
+        let plain = Style::new();
+        if depth == Depth::Mono {
+            return Theme {
+                current: plain,
+                average: plain.add_modifier(Modifier::BOLD),
+                hold: plain.add_modifier(Modifier::DIM),
+                marker: plain.add_modifier(Modifier::BOLD),
+                ref_marker: plain,
+                grid: plain.add_modifier(Modifier::DIM),
+                label: plain,
+                title: plain.add_modifier(Modifier::BOLD),
+                warn: plain.add_modifier(Modifier::REVERSED),
+                plan: plain,
+                header: plain.add_modifier(Modifier::BOLD),
+            };
+        }
+        let fg = |n: u8| plain.fg(Color::Indexed(n));
+        Theme {
+            current: fg(228),
+            average: fg(81),
+            hold: fg(244),
+            marker: fg(213),
+            ref_marker: fg(177),
+            grid: fg(238),
+            label: fg(250),
+            title: fg(255).add_modifier(Modifier::BOLD),
+            warn: fg(16).bg(Color::Indexed(214)),
+            plan: fg(150),
+            header: fg(252).add_modifier(Modifier::BOLD),
+        }
+    }
+}
+
+/// The xterm 256-colour index closest to an RGB colour (squared distance in RGB, common
+/// practice): the 6×6×6 cube at levels 0, 95, 135, 175, 215, 255 or the 24-step grey ramp
+/// 8, 18, …, 238.
+pub fn nearest_xterm256(r: u8, g: u8, b: u8) -> u8 {
+    const CUBE: [i32; 6] = [0, 95, 135, 175, 215, 255];
+    let near = |v: u8| -> usize {
+        (0..6).min_by_key(|&i| (CUBE[i] - v as i32).abs()).expect("six levels")
+    };
+    let (ri, gi, bi) = (near(r), near(g), near(b));
+    let dist = |cr: i32, cg: i32, cb: i32| {
+        let (dr, dg, db) = (cr - r as i32, cg - g as i32, cb - b as i32);
+        dr * dr + dg * dg + db * db
+    };
+    let cube_index = 16 + 36 * ri + 6 * gi + bi;
+    let cube_d = dist(CUBE[ri], CUBE[gi], CUBE[bi]);
+    let mean = (r as i32 + g as i32 + b as i32) / 3;
+    let gi_ramp = ((mean - 8 + 5) / 10).clamp(0, 23);
+    let grey = 8 + 10 * gi_ramp;
+    let grey_d = dist(grey, grey, grey);
+    if grey_d < cube_d {
+        (232 + gi_ramp) as u8
+    } else {
+        cube_index as u8
+    }
+}
+
+// Sampled from matplotlib 3.11.2 by scripts/colour-maps.py.
+#[rustfmt::skip]
+const VIRIDIS: [[u8; 3]; 33] = [
+    [68, 1, 84], [71, 13, 96], [72, 24, 106], [72, 35, 116], [71, 45, 123], [69, 55, 129],
+    [66, 64, 134], [62, 73, 137], [59, 82, 139], [55, 91, 141], [51, 99, 141], [47, 107, 142],
+    [44, 114, 142], [41, 122, 142], [38, 130, 142], [35, 137, 142], [33, 145, 140], [31, 152, 139],
+    [31, 160, 136], [34, 167, 133], [40, 174, 128], [50, 182, 122], [63, 188, 115], [78, 195, 107],
+    [94, 201, 98], [112, 207, 87], [132, 212, 75], [152, 216, 62], [173, 220, 48], [194, 223, 35],
+    [216, 226, 25], [236, 229, 27], [253, 231, 37],
+];
+#[rustfmt::skip]
+const MAGMA: [[u8; 3]; 33] = [
+    [0, 0, 4], [3, 3, 18], [10, 8, 34], [19, 13, 52], [29, 17, 71], [41, 17, 90],
+    [54, 16, 107], [68, 15, 118], [81, 18, 124], [93, 23, 127], [106, 28, 129], [118, 33, 129],
+    [131, 38, 129], [144, 42, 129], [156, 46, 127], [170, 51, 125], [183, 55, 121], [196, 60, 117],
+    [208, 65, 111], [220, 72, 105], [231, 82, 99], [239, 93, 94], [245, 107, 92], [249, 121, 93],
+    [252, 137, 97], [253, 152, 105], [254, 167, 114], [254, 182, 124], [254, 196, 136], [254, 211, 149],
+    [253, 226, 163], [252, 240, 178], [252, 253, 191],
+];
+#[rustfmt::skip]
+const INFERNO: [[u8; 3]; 33] = [
+    [0, 0, 4], [4, 3, 18], [11, 7, 36], [21, 11, 55], [33, 12, 74], [47, 10, 91],
+    [61, 9, 101], [74, 12, 107], [87, 16, 110], [100, 21, 110], [113, 25, 110], [125, 30, 109],
+    [138, 34, 106], [151, 39, 102], [163, 44, 97], [176, 49, 91], [188, 55, 84], [199, 62, 76],
+    [210, 70, 68], [219, 80, 59], [228, 90, 49], [235, 102, 40], [241, 115, 29], [246, 128, 19],
+    [249, 142, 9], [251, 157, 7], [252, 172, 17], [251, 188, 33], [249, 203, 53], [245, 219, 76],
+    [242, 234, 105], [243, 246, 138], [252, 255, 164],
+];
+/// Our own neutral map: a straight ramp from near-black to near-white.
+const GREY: [[u8; 3]; 2] = [[18, 18, 18], [238, 238, 238]];
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn depth_follows_the_environment() {
+        assert_eq!(Depth::from_env(Some("truecolor"), None), Depth::TrueColour);
+        assert_eq!(Depth::from_env(Some("24bit"), None), Depth::TrueColour);
+        assert_eq!(Depth::from_env(Some("yes"), None), Depth::Palette256);
+        assert_eq!(Depth::from_env(None, None), Depth::Palette256);
+        // no-color.org: set and non-empty disables colour, whatever else is set.
+        assert_eq!(Depth::from_env(Some("truecolor"), Some("1")), Depth::Mono);
+        assert_eq!(Depth::from_env(Some("truecolor"), Some("")), Depth::TrueColour);
+    }
+
+    #[test]
+    fn xterm_palette_matches_known_entries() {
+        // The xterm 256-colour layout (common practice): 16 + 36r + 6g + b over the levels
+        // 0/95/135/175/215/255, greys 232..=255 at 8 + 10k.
+        assert_eq!(nearest_xterm256(0, 0, 0), 16);
+        assert_eq!(nearest_xterm256(255, 255, 255), 231);
+        assert_eq!(nearest_xterm256(255, 0, 0), 196);
+        assert_eq!(nearest_xterm256(95, 135, 175), 16 + 36 + 2 * 6 + 3);
+        assert_eq!(nearest_xterm256(128, 128, 128), 244);
+        assert_eq!(nearest_xterm256(8, 8, 8), 232);
+    }
+
+    #[test]
+    fn maps_run_dark_to_light_and_hit_their_ends() {
+        for m in MapKind::ALL {
+            let lum =
+                |c: [u8; 3]| 0.2126 * c[0] as f64 + 0.7152 * c[1] as f64 + 0.0722 * c[2] as f64;
+            let mut last = -1.0;
+            for i in 0..=20 {
+                let l = lum(m.rgb(i as f64 / 20.0));
+                assert!(l > last, "{m:?} not monotonic in luminance at {i}");
+                last = l;
+            }
+        }
+        // First and last entries of matplotlib's viridis table (0.267004, 0.004874, 0.329415)
+        // and (0.993248, 0.906157, 0.143936), scaled to 8 bits.
+        assert_eq!(MapKind::Viridis.rgb(0.0), [68, 1, 84]);
+        assert_eq!(MapKind::Viridis.rgb(1.0), [253, 231, 37]);
+    }
+
+    #[test]
+    fn steps_clamp_and_quantise() {
+        assert_eq!(Palette::step(-200.0, -100.0, 80.0), 0);
+        assert_eq!(Palette::step(0.0, -100.0, 80.0), (LEVELS - 1) as u8);
+        assert_eq!(Palette::step(-60.0, -100.0, 80.0), 16);
+        assert_eq!(Palette::step(f32::NAN, -100.0, 80.0), 0);
+        let p = Palette::new(Depth::TrueColour, MapKind::Viridis);
+        assert_eq!(p.colour(0), Color::Rgb(68, 1, 84));
+        let p = Palette::new(Depth::Palette256, MapKind::Grey);
+        assert!(matches!(p.colour(31), Color::Indexed(i) if i >= 250 || i == 231));
+        assert_eq!(Palette::mono_symbol(0), " ");
+        assert_eq!(Palette::mono_symbol((LEVELS - 1) as u8), "█");
+    }
+}

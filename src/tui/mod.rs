@@ -1,0 +1,183 @@
+//! The live terminal monitor behind `bandwarden watch`.
+//!
+//! Threads: the reader ([`crate::pipeline`]) feeds the DSP thread ([`dsp_thread`]), which sends
+//! one averaged spectrum per waterfall row to this, the UI thread, over a small queue where the
+//! newest row wins. The UI never blocks the DSP.
+//!
+//! Each frame (paced by `--fps`) the UI takes every queued row, handles keys and the mouse,
+//! redraws what changed through ratatui's cell diff, and brings the waterfall up to date with
+//! the scrolling [`painter`]. The cost that matters over SSH is bytes per second; the README's
+//! "Watching live" section has the figures and `scripts/ssh-bytes` measures them.
+
+pub mod app;
+pub mod colour;
+pub mod dsp_thread;
+pub mod history;
+pub mod input;
+pub mod layout;
+pub mod painter;
+pub mod term;
+pub mod traces;
+pub mod view;
+pub mod widgets;
+
+use app::{App, Mode};
+use crossbeam_channel::TryRecvError;
+use crossterm::event::{self, Event};
+use dsp_thread::DspThread;
+use layout::Screen;
+use painter::Painter;
+use ratatui::layout::Rect;
+use std::io::Write;
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::Arc;
+use std::time::{Duration, Instant};
+
+use crate::source::reader::ReaderStats;
+
+/// How the monitor draws.
+#[derive(Clone, Copy, Debug)]
+pub struct RunOptions {
+    /// Frames per second at most.
+    pub fps: f64,
+    /// Scroll the waterfall with the terminal's scroll region (else: cell by cell).
+    pub scroll_region: bool,
+    pub mouse: bool,
+}
+
+/// Longest wait for input before checking the signal flag and the clock again.
+const POLL_SLICE: Duration = Duration::from_millis(50);
+
+/// Runs the monitor until the user quits or a signal (SIGTERM, SIGINT, SIGHUP) asks it to stop.
+/// The terminal is restored on every way out, panics included.
+pub fn run(
+    mut app: App,
+    dsp: &DspThread,
+    reader: &ReaderStats,
+    opts: RunOptions,
+) -> anyhow::Result<()> {
+    let stop = Arc::new(AtomicBool::new(false));
+    let mut ids = Vec::new();
+    for sig in
+        [signal_hook::consts::SIGTERM, signal_hook::consts::SIGINT, signal_hook::consts::SIGHUP]
+    {
+        ids.push(signal_hook::flag::register(sig, stop.clone())?);
+    }
+    let result = (|| {
+        let (mut term, _guard) = term::init(opts.mouse)?;
+        event_loop(&mut term, &mut app, dsp, reader, opts, &stop)
+    })();
+    for id in ids {
+        signal_hook::low_level::unregister(id);
+    }
+    result
+}
+
+fn event_loop(
+    term: &mut term::Term,
+    app: &mut App,
+    dsp: &DspThread,
+    reader: &ReaderStats,
+    opts: RunOptions,
+    stop: &AtomicBool,
+) -> anyhow::Result<()> {
+    let frame = Duration::from_secs_f64(1.0 / opts.fps);
+    let mut painter = Painter::default();
+    let mut drawn_mode = None;
+    let mut out = Vec::with_capacity(1 << 16);
+    let mut next = Instant::now();
+    loop {
+        // Input until the next frame is due.
+        loop {
+            if stop.load(Ordering::Relaxed) {
+                app.mode = Mode::Quit;
+            }
+            if app.mode == Mode::Quit {
+                return Ok(());
+            }
+            let now = Instant::now();
+            if now >= next {
+                break;
+            }
+            if event::poll((next - now).min(POLL_SLICE))? {
+                handle_event(app, event::read()?);
+            }
+        }
+        let now = Instant::now();
+        next = (next + frame).max(now);
+        take_rows(app, dsp);
+        app.stats.dropped = reader.dropped.load(Ordering::Relaxed);
+        app.stats.skipped = dsp.skipped.load(Ordering::Relaxed);
+        app.tick(now);
+        if let Some(s) = app.take_pending_settings() {
+            dsp.apply(s);
+        }
+        draw(term, app, &mut painter, &mut drawn_mode, &mut out, opts)?;
+        app.stats.count_frame(now);
+    }
+}
+
+fn handle_event(app: &mut App, ev: Event) {
+    let intent = match ev {
+        Event::Key(k) => input::intent_for_key(k, app.help),
+        Event::Mouse(m) => input::intent_for_mouse(m),
+        _ => None,
+    };
+    if let Some(i) = intent {
+        app.apply(i);
+    }
+}
+
+/// Takes every queued row; notes the end of the input.
+fn take_rows(app: &mut App, dsp: &DspThread) {
+    loop {
+        match dsp.rows.try_recv() {
+            Ok(row) => app.push_row(row),
+            Err(TryRecvError::Empty) => return,
+            Err(TryRecvError::Disconnected) => {
+                app.ended = true;
+                return;
+            }
+        }
+    }
+}
+
+/// What decides whether the cell diff's picture of the screen can be trusted.
+type DrawnMode = (Rect, Option<Screen>, bool);
+
+fn draw(
+    term: &mut term::Term,
+    app: &mut App,
+    painter: &mut Painter,
+    drawn_mode: &mut Option<DrawnMode>,
+    out: &mut Vec<u8>,
+    opts: RunOptions,
+) -> anyhow::Result<()> {
+    let size = term.size()?;
+    let area = Rect::new(0, 0, size.width, size.height);
+    let screen = Screen::split(area, app.plan_row());
+    if let Some(s) = screen {
+        app.history.ensure_capacity(2 * s.waterfall.height as usize + 4);
+    }
+    app.screen = screen;
+    app.waterfall_external = opts.scroll_region && !app.help && screen.is_some();
+    let mode = (area, screen, app.waterfall_external);
+    if *drawn_mode != Some(mode) {
+        // The layout moved or the waterfall changed hands: start from a blank screen, with the
+        // cell diff told so (both of its buffers emptied), and the painter drawing every line.
+        term.backend_mut().write_all(b"\x1b[0m\x1b[2J")?;
+        term.swap_buffers();
+        painter.invalidate();
+        *drawn_mode = Some(mode);
+    }
+    term.draw(|f| f.render_widget(&*app, f.area()))?;
+    if let (true, Some(s), Some(plot)) = (app.waterfall_external, screen, app.waterfall_plot()) {
+        out.clear();
+        painter.paint(out, s.waterfall, app.waterfall_epoch, &plot);
+        if !out.is_empty() {
+            term.backend_mut().write_all(out)?;
+            term.backend_mut().flush()?;
+        }
+    }
+    Ok(())
+}

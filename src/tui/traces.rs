@@ -1,0 +1,155 @@
+//! The three spectrum traces: the newest row, a running average and a peak hold.
+//!
+//! The average is exponential in linear power (weight `α` per row), started as a plain mean so the
+//! first rows are not biased towards zero. Its χ² degrees of freedom grow with the rows it holds,
+//! up to `ν·(2 − α)/α` for rows of `ν` each (the equivalent number of averages of an exponential
+//! average of independent estimates, common practice); measurements on it use that figure.
+//! A change of FFT size, window or rate restarts all three, since their bins no longer line up.
+
+use crate::dsp::{Spectrum, WindowKind};
+
+/// Weight of the newest row in the average: about the last ten rows count.
+pub const AVERAGE_WEIGHT: f64 = 0.1;
+
+/// What must match for rows to be combined.
+#[derive(Clone, Copy, Debug, PartialEq)]
+struct Geometry {
+    fft_size: usize,
+    window: WindowKind,
+    sample_rate_hz: f64,
+    center_hz: f64,
+}
+
+impl Geometry {
+    fn of(s: &Spectrum) -> Geometry {
+        Geometry {
+            fft_size: s.fft_size,
+            window: s.window,
+            sample_rate_hz: s.sample_rate_hz,
+            center_hz: s.center_hz,
+        }
+    }
+}
+
+#[derive(Clone, Debug, Default)]
+pub struct Traces {
+    geometry: Option<Geometry>,
+    /// The newest row as received (its PSD is the current trace).
+    current: Option<Spectrum>,
+    average: Vec<f64>,
+    hold: Vec<f64>,
+    rows: u64,
+}
+
+impl Traces {
+    /// Adds a row; returns true when the traces restarted (new geometry).
+    pub fn push(&mut self, spec: Spectrum) -> bool {
+        let g = Geometry::of(&spec);
+        let restarted = self.geometry != Some(g);
+        if restarted {
+            self.geometry = Some(g);
+            self.average = spec.psd.clone();
+            self.hold = spec.psd.clone();
+            self.rows = 1;
+        } else {
+            self.rows += 1;
+            let w = AVERAGE_WEIGHT.max(1.0 / self.rows as f64);
+            for (a, p) in self.average.iter_mut().zip(&spec.psd) {
+                *a += w * (p - *a);
+            }
+            for (h, p) in self.hold.iter_mut().zip(&spec.psd) {
+                *h = h.max(*p);
+            }
+        }
+        self.current = Some(spec);
+        restarted
+    }
+
+    /// Starts the hold trace again from the newest row.
+    pub fn reset_hold(&mut self) {
+        if let Some(c) = &self.current {
+            self.hold = c.psd.clone();
+        }
+    }
+
+    pub fn current(&self) -> Option<&Spectrum> {
+        self.current.as_ref()
+    }
+
+    pub fn average_psd(&self) -> &[f64] {
+        &self.average
+    }
+
+    pub fn hold_psd(&self) -> &[f64] {
+        &self.hold
+    }
+
+    /// The average as a spectrum of its own, with its equivalent degrees of freedom, for
+    /// measurements.
+    pub fn average_spectrum(&self) -> Option<Spectrum> {
+        let cur = self.current.as_ref()?;
+        let equivalent = (self.rows as f64).min((2.0 - AVERAGE_WEIGHT) / AVERAGE_WEIGHT);
+        let mut s = cur.clone();
+        s.psd.clone_from(&self.average);
+        s.dof = cur.dof * equivalent;
+        s.frames = cur.frames * equivalent.round() as u64;
+        Some(s)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::dsp::Window;
+
+    fn row(level: f64, n: usize, window: WindowKind) -> Spectrum {
+        let w = Window::new(window, n);
+        let power = vec![level; n];
+        Spectrum::from_power_sum(&power, 1, 2.0, &w, 1e6, 0.0, 0, n as u64)
+    }
+
+    #[test]
+    fn average_starts_as_a_mean_then_weights_the_newest() {
+        let mut t = Traces::default();
+        assert!(t.push(row(1.0, 64, WindowKind::Hann)));
+        assert!(!t.push(row(3.0, 64, WindowKind::Hann)));
+        let unit = row(1.0, 64, WindowKind::Hann).psd[0];
+        // Two rows: plain mean (1 + 3)/2.
+        assert!((t.average_psd()[0] / unit - 2.0).abs() < 1e-12);
+        for _ in 0..100 {
+            t.push(row(3.0, 64, WindowKind::Hann));
+        }
+        assert!((t.average_psd()[0] / unit - 3.0).abs() < 1e-3);
+        // Hold keeps the largest; reset brings it back to the newest row.
+        t.push(row(0.5, 64, WindowKind::Hann));
+        assert!((t.hold_psd()[0] / unit - 3.0).abs() < 1e-12);
+        t.reset_hold();
+        assert!((t.hold_psd()[0] / unit - 0.5).abs() < 1e-12);
+    }
+
+    #[test]
+    fn a_new_window_restarts_the_traces() {
+        let mut t = Traces::default();
+        t.push(row(1.0, 64, WindowKind::Hann));
+        t.push(row(1.0, 64, WindowKind::Hann));
+        assert!(t.push(row(9.0, 64, WindowKind::Blackman)));
+        let unit = row(1.0, 64, WindowKind::Blackman).psd[0];
+        assert!((t.average_psd()[0] / unit - 9.0).abs() < 1e-12);
+        assert!(t.push(row(1.0, 128, WindowKind::Blackman)));
+        assert_eq!(t.average_psd().len(), 128);
+    }
+
+    #[test]
+    fn average_spectrum_counts_its_degrees_of_freedom() {
+        let mut t = Traces::default();
+        for _ in 0..5 {
+            t.push(row(1.0, 64, WindowKind::Hann));
+        }
+        assert_eq!(t.average_spectrum().unwrap().dof, 10.0);
+        for _ in 0..100 {
+            t.push(row(1.0, 64, WindowKind::Hann));
+        }
+        // (2 − 0.1)/0.1 = 19 equivalent rows of 2 dof each.
+        assert!((t.average_spectrum().unwrap().dof - 38.0).abs() < 1e-9);
+    }
+}

@@ -1,0 +1,128 @@
+//! The frequency axis under the spectrum, and the channel-plan row under it.
+
+use super::super::app::Channel;
+use super::super::colour::Theme;
+use super::super::layout::GUTTER;
+use super::super::view::{freq_ticks, View};
+use ratatui::buffer::Buffer;
+use ratatui::layout::Rect;
+use ratatui::widgets::Widget;
+
+/// Tick marks with round frequencies; the unit sits in the gutter; markers are flagged under
+/// their columns.
+pub struct FreqAxis<'a> {
+    pub view: View,
+    pub marker_col: Option<u16>,
+    pub ref_marker_col: Option<u16>,
+    pub theme: &'a Theme,
+}
+
+impl Widget for &FreqAxis<'_> {
+    fn render(self, area: Rect, buf: &mut Buffer) {
+        if area.width <= GUTTER || area.height == 0 {
+            return;
+        }
+        let width = (area.width - GUTTER) as usize;
+        let x0 = area.x + GUTTER;
+        let (ticks, unit) = freq_ticks(&self.view, width);
+        buf.set_string(area.x, area.y, format!("{unit:>5} "), self.theme.label);
+        for t in ticks {
+            buf.set_string(x0 + t.col as u16, area.y, "╵", self.theme.grid);
+            buf.set_string(x0 + t.col as u16 + 1, area.y, &t.label, self.theme.label);
+        }
+        for (col, glyph, style) in [
+            (self.ref_marker_col, "△", self.theme.ref_marker),
+            (self.marker_col, "▲", self.theme.marker),
+        ] {
+            if let Some(c) = col.filter(|c| (*c as usize) < width) {
+                buf.set_string(x0 + c, area.y, glyph, style);
+            }
+        }
+    }
+}
+
+/// Each channel of the plan as a bracket `├─name─┤` over the columns it covers.
+pub struct PlanRow<'a> {
+    pub view: View,
+    pub channels: &'a [Channel],
+    pub theme: &'a Theme,
+}
+
+impl Widget for &PlanRow<'_> {
+    fn render(self, area: Rect, buf: &mut Buffer) {
+        if area.width <= GUTTER || area.height == 0 {
+            return;
+        }
+        let width = (area.width - GUTTER) as usize;
+        let x0 = area.x + GUTTER;
+        buf.set_string(area.x, area.y, " plan ", self.theme.label);
+        let v = self.view;
+        for ch in self.channels {
+            let (lo, hi) = (ch.center_hz - 0.5 * ch.width_hz, ch.center_hz + 0.5 * ch.width_hz);
+            if hi < v.lo_hz || lo >= v.hi_hz {
+                continue;
+            }
+            let c0 = v.column_of(lo.max(v.lo_hz), width).unwrap_or(0);
+            let c1 = v.column_of(hi.min(v.hi_hz) - 1e-9 * v.width_hz(), width).unwrap_or(width - 1);
+            let style = self.theme.plan;
+            if c1 <= c0 {
+                buf.set_string(x0 + c0 as u16, area.y, "┃", style);
+                continue;
+            }
+            let inner = c1 - c0 - 1;
+            let name: String = ch.name.chars().take(inner).collect();
+            let pad = inner - name.chars().count();
+            let text = format!(
+                "{}{}{}{}{}",
+                if lo >= v.lo_hz { "├" } else { "─" },
+                "─".repeat(pad / 2),
+                name,
+                "─".repeat(pad - pad / 2),
+                if hi < v.hi_hz { "┤" } else { "─" },
+            );
+            buf.set_string(x0 + c0 as u16, area.y, text, style);
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::tui::colour::Depth;
+    use crate::tui::widgets::text_lines;
+
+    #[test]
+    fn axis_labels_sit_right_of_their_ticks() {
+        let theme = Theme::new(Depth::Mono);
+        let axis = FreqAxis {
+            view: View::new(99.5e6, 100.5e6),
+            marker_col: Some(10),
+            ref_marker_col: None,
+            theme: &theme,
+        };
+        let mut buf = Buffer::empty(Rect::new(0, 0, GUTTER + 40, 1));
+        (&axis).render(buf.area, &mut buf);
+        // 1 MHz over 40 columns; ticks every 0.2 MHz fit ("99.6" needs 4 + 3 columns of 8):
+        // 99.6 at column 4, 99.8 at 12, 100.0 at 20, 100.2 at 28, 100.4 at 36.
+        // 100.4 at column 36 would run past the edge and is left out.
+        assert_eq!(text_lines(&buf), ["  MHz     ╵99.6 ▲ ╵99.8   ╵100.0  ╵100.2      "]);
+        assert_eq!(
+            buf[(GUTTER + 10, 0)].style(),
+            buf[(GUTTER + 10, 0)].style().patch(theme.marker)
+        );
+    }
+
+    #[test]
+    fn channels_are_bracketed_and_named() {
+        let theme = Theme::new(Depth::Mono);
+        let channels = vec![
+            Channel { name: "GATE".into(), center_hz: 1_000.0, width_hz: 1_000.0 },
+            Channel { name: "far-away".into(), center_hz: 1e6, width_hz: 10.0 },
+        ];
+        let row = PlanRow { view: View::new(0.0, 2_000.0), channels: &channels, theme: &theme };
+        let mut buf = Buffer::empty(Rect::new(0, 0, GUTTER + 20, 1));
+        (&row).render(buf.area, &mut buf);
+        // 100 Hz a column: 500..1500 Hz covers columns 5..=14.
+        assert_eq!(text_lines(&buf), [" plan      ├──GATE──┤     "]);
+    }
+}

@@ -1,0 +1,243 @@
+//! The spectrum plot: current, average and hold traces in braille dots (2×4 per cell), with the
+//! level scale in the gutter and the markers as vertical lines.
+//!
+//! Where traces share a cell the average's colour wins (it moves least, so cells change colour
+//! least often), then the current trace, then the hold.
+
+use super::super::colour::Theme;
+use super::super::layout::GUTTER;
+use super::super::view::level_step;
+use ratatui::buffer::Buffer;
+use ratatui::layout::Rect;
+use ratatui::style::Style;
+use ratatui::widgets::Widget;
+
+/// Offset of the braille block and the bit of each dot (column, row) in a 2×4 cell (Unicode
+/// braille patterns: dots 1-2-3-7 down the left, 4-5-6-8 down the right).
+const BRAILLE_BASE: u32 = 0x2800;
+const DOT_BITS: [[u8; 4]; 2] = [[0x01, 0x02, 0x04, 0x40], [0x08, 0x10, 0x20, 0x80]];
+
+pub struct SpectrumPlot<'a> {
+    /// Levels in printed units for each half column (two per plot cell); empty before data.
+    pub current: &'a [f64],
+    pub average: &'a [f64],
+    pub hold: &'a [f64],
+    /// Top of the scale in printed units.
+    pub top: f64,
+    pub range_db: f64,
+    pub unit: &'a str,
+    pub marker_col: Option<u16>,
+    pub ref_marker_col: Option<u16>,
+    pub theme: &'a Theme,
+}
+
+impl SpectrumPlot<'_> {
+    /// Dot row (0 at the top) of a level, or `None` when there is nothing to draw.
+    fn dot_row(&self, level: f64, dots: usize) -> Option<usize> {
+        if !level.is_finite() {
+            return None;
+        }
+        let d = ((self.top - level) / self.range_db * dots as f64).floor();
+        Some(d.clamp(0.0, (dots - 1) as f64) as usize)
+    }
+
+    /// Dot masks of one trace for every cell, row-major `height × width`.
+    fn trace_masks(&self, values: &[f64], width: usize, height: usize) -> Vec<u8> {
+        let mut masks = vec![0u8; width * height];
+        let dots = height * 4;
+        let mut prev: Option<usize> = None;
+        for (x, &v) in values.iter().enumerate().take(width * 2) {
+            let Some(y) = self.dot_row(v, dots) else {
+                prev = None;
+                continue;
+            };
+            // Join to the previous column without doubling its dot.
+            let (a, b) = match prev {
+                Some(p) if p < y => (p + 1, y),
+                Some(p) if p > y => (y, p - 1),
+                _ => (y, y),
+            };
+            for yy in a..=b {
+                masks[(yy / 4) * width + x / 2] |= DOT_BITS[x % 2][yy % 4];
+            }
+            prev = Some(y);
+        }
+        masks
+    }
+
+    fn render_gutter(&self, area: Rect, buf: &mut Buffer) {
+        let rows = area.height as usize;
+        let t = self.theme;
+        for r in 0..area.height {
+            buf.set_string(area.x, area.y + r, "     │", t.grid);
+        }
+        buf.set_stringn(area.x, area.y, self.unit, 5, t.label);
+        for (row, label) in self.level_labels(rows) {
+            let text = format!("{label:>5}┤");
+            buf.set_string(area.x, area.y + row as u16, text, t.label);
+        }
+    }
+
+    /// Rows (below the unit on row 0) that carry a round level, with the label, top first.
+    pub fn level_labels(&self, rows: usize) -> Vec<(usize, String)> {
+        let step = level_step(self.range_db, rows, 2.0);
+        let bottom = self.top - self.range_db;
+        let mut out: Vec<(usize, String)> = Vec::new();
+        let mut k = (self.top / step).floor() as i64;
+        while k as f64 * step >= bottom {
+            let l = k as f64 * step;
+            let row = ((self.top - l) / self.range_db * rows as f64).floor() as usize;
+            if (1..rows).contains(&row) && out.last().map_or(true, |(r, _)| *r != row) {
+                out.push((row, format!("{}", l.round() as i64)));
+            }
+            k -= 1;
+        }
+        out
+    }
+}
+
+impl Widget for &SpectrumPlot<'_> {
+    fn render(self, area: Rect, buf: &mut Buffer) {
+        if area.width <= GUTTER || area.height == 0 {
+            return;
+        }
+        self.render_gutter(Rect::new(area.x, area.y, GUTTER, area.height), buf);
+        let plot = Rect::new(area.x + GUTTER, area.y, area.width - GUTTER, area.height);
+        let (w, h) = (plot.width as usize, plot.height as usize);
+        let layers = [
+            (self.trace_masks(self.average, w, h), self.theme.average),
+            (self.trace_masks(self.current, w, h), self.theme.current),
+            (self.trace_masks(self.hold, w, h), self.theme.hold),
+        ];
+        let grid_rows: Vec<usize> = self.level_labels(h).into_iter().map(|(r, _)| r).collect();
+        for y in 0..h {
+            for x in 0..w {
+                let i = y * w + x;
+                let bits = layers.iter().fold(0u8, |acc, (m, _)| acc | m[i]);
+                let style = layers.iter().find(|(m, _)| m[i] != 0).map(|(_, s)| *s);
+                let cell = &mut buf[(plot.x + x as u16, plot.y + y as u16)];
+                if bits != 0 {
+                    let ch = char::from_u32(BRAILLE_BASE + bits as u32).unwrap_or(' ');
+                    cell.set_char(ch).set_style(style.unwrap_or_default());
+                } else if grid_rows.contains(&y) {
+                    cell.set_char('┄').set_style(self.theme.grid);
+                }
+            }
+        }
+        for (col, style, glyph) in [
+            (self.ref_marker_col, self.theme.ref_marker, '┆'),
+            (self.marker_col, self.theme.marker, '│'),
+        ] {
+            let Some(c) = col.filter(|c| (*c as usize) < w) else { continue };
+            for y in 0..plot.height {
+                let cell = &mut buf[(plot.x + c, plot.y + y)];
+                if cell.symbol().chars().next().is_some_and(is_braille) {
+                    cell.set_style(Style::reset().patch(style));
+                } else {
+                    cell.set_char(glyph).set_style(Style::reset().patch(style));
+                }
+            }
+        }
+    }
+}
+
+fn is_braille(c: char) -> bool {
+    (0x2801..=0x28FF).contains(&(c as u32))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::tui::colour::Depth;
+
+    fn plot<'a>(
+        cur: &'a [f64],
+        avg: &'a [f64],
+        hold: &'a [f64],
+        theme: &'a Theme,
+    ) -> SpectrumPlot<'a> {
+        SpectrumPlot {
+            current: cur,
+            average: avg,
+            hold,
+            top: 0.0,
+            range_db: 80.0,
+            unit: "dBFS",
+            marker_col: None,
+            ref_marker_col: None,
+            theme,
+        }
+    }
+
+    #[test]
+    fn a_flat_trace_sits_in_the_right_dot_row() {
+        let theme = Theme::new(Depth::TrueColour);
+        // 4 rows × 4 dots over 80 dB: 5 dB a dot. −50 dB is dot row 10: text row 2, dot row 2,
+        // both columns: bits 0x04 | 0x20 = ⠤.
+        let avg = vec![-50.0; 20];
+        let p = plot(&[], &avg, &[], &theme);
+        let mut buf = Buffer::empty(Rect::new(0, 0, GUTTER + 10, 4));
+        (&p).render(buf.area, &mut buf);
+        for x in GUTTER..GUTTER + 10 {
+            assert_eq!(buf[(x, 2)].symbol(), "⠤");
+            assert_eq!(buf[(x, 2)].style().fg, theme.average.fg);
+        }
+        assert_eq!(buf[(GUTTER, 1)].symbol(), " ");
+    }
+
+    #[test]
+    fn a_tone_draws_a_joined_peak() {
+        let theme = Theme::new(Depth::TrueColour);
+        let mut cur = vec![-75.0; 20];
+        cur[9] = -1.0; // dot row 0
+        let p = plot(&cur, &[], &[], &theme);
+        let mut buf = Buffer::empty(Rect::new(0, 0, GUTTER + 10, 4));
+        (&p).render(buf.area, &mut buf);
+        // Half-column 9 is the right half of cell 4: its line runs from the top to the floor
+        // (dot row 15 is the bottom row, −75 dB), so every row of that cell has right dots.
+        let c = GUTTER + 4;
+        assert_eq!(buf[(c, 0)].symbol(), "⢸"); // right column, all four dots: 0x08|0x10|0x20|0x80
+        assert_eq!(buf[(c, 0)].style().fg, theme.current.fg);
+        // The bottom row holds the floor in both halves of other cells: dot row 15 → ⣀.
+        assert_eq!(buf[(GUTTER, 3)].symbol(), "⣀");
+    }
+
+    #[test]
+    fn gutter_shows_unit_and_round_levels() {
+        let theme = Theme::new(Depth::Mono);
+        let p = plot(&[], &[], &[], &theme);
+        let mut buf = Buffer::empty(Rect::new(0, 0, GUTTER + 4, 8));
+        (&p).render(buf.area, &mut buf);
+        // 8 rows over 80 dB: 10 dB a row; labels at least two rows apart → 20 dB steps.
+        let expect = Buffer::with_lines([
+            "dBFS │    ",
+            "     │    ",
+            "  -20┤┄┄┄┄",
+            "     │    ",
+            "  -40┤┄┄┄┄",
+            "     │    ",
+            "  -60┤┄┄┄┄",
+            "     │    ",
+        ]);
+        for y in 0..8 {
+            for x in 0..GUTTER + 4 {
+                assert_eq!(buf[(x, y)].symbol(), expect[(x, y)].symbol(), "at {x},{y}");
+            }
+        }
+    }
+
+    #[test]
+    fn the_marker_is_a_line_through_the_plot() {
+        let theme = Theme::new(Depth::TrueColour);
+        let avg = vec![-50.0; 20];
+        let mut p = plot(&[], &avg, &[], &theme);
+        p.marker_col = Some(3);
+        let mut buf = Buffer::empty(Rect::new(0, 0, GUTTER + 10, 4));
+        (&p).render(buf.area, &mut buf);
+        assert_eq!(buf[(GUTTER + 3, 0)].symbol(), "│");
+        assert_eq!(buf[(GUTTER + 3, 0)].style().fg, theme.marker.fg);
+        // The trace cell keeps its dots but takes the marker's colour.
+        assert_eq!(buf[(GUTTER + 3, 2)].symbol(), "⠤");
+        assert_eq!(buf[(GUTTER + 3, 2)].style().fg, theme.marker.fg);
+    }
+}

@@ -1,0 +1,206 @@
+//! The three text lines: the source line at the top, the marker readout and the settings line
+//! at the bottom. Each is a list of segments; on a narrow screen the ones that do not fit are
+//! left out rather than cut in half.
+
+use super::super::app::{App, Mode};
+use super::super::widgets::waterfall::clock;
+use crate::units::format_hz;
+use ratatui::buffer::Buffer;
+use ratatui::layout::Rect;
+use ratatui::style::Style;
+use ratatui::text::{Line, Span};
+
+const SEP: &str = " · ";
+/// Display width of [`SEP`] (the dot is one column, two bytes).
+const SEP_WIDTH: usize = 3;
+
+/// Joins segments (in priority order of appearance) with separators, leaving out those that do
+/// not fit in `width`; `right` is kept at the right edge when there is room for it.
+pub fn fit(
+    segments: Vec<Span<'static>>,
+    right: Option<Span<'static>>,
+    width: usize,
+) -> Line<'static> {
+    let right_w = right.as_ref().map_or(0, |r| r.width() + 1);
+    let room = width.saturating_sub(right_w);
+    let mut spans: Vec<Span<'static>> = Vec::new();
+    let mut used = 0;
+    for seg in segments {
+        let extra = seg.width() + if spans.is_empty() { 1 } else { SEP_WIDTH };
+        if used + extra <= room {
+            spans.push(Span::raw(if spans.is_empty() { " " } else { SEP }));
+            used += extra;
+            spans.push(seg);
+        }
+    }
+    if let Some(r) = right {
+        if used + right_w <= width {
+            spans.push(Span::raw(" ".repeat(width - used - right_w + 1)));
+            spans.push(r);
+        }
+    }
+    Line::from(spans)
+}
+
+/// Sample rate for people: `2.400 MS/s`.
+pub fn format_rate(hz: f64) -> String {
+    if hz >= 1e6 {
+        format!("{:.3} MS/s", hz / 1e6)
+    } else if hz >= 1e3 {
+        format!("{:.1} kS/s", hz / 1e3)
+    } else {
+        format!("{hz:.0} S/s")
+    }
+}
+
+/// Keeps the end of a long label (the file name), marking the cut.
+fn tail(text: &str, max: usize) -> String {
+    let n = text.chars().count();
+    if n <= max {
+        return text.to_string();
+    }
+    let keep: String = text.chars().skip(n - (max - 1)).collect();
+    format!("…{keep}")
+}
+
+/// Source, rate, centre, span, playback state and dropped samples.
+pub fn source_line(app: &App, width: usize) -> Line<'static> {
+    let t = &app.theme;
+    let s = &app.source;
+    let mut segs = vec![
+        Span::styled(tail(&s.label, 28), t.title),
+        Span::styled(format_rate(s.sample_rate_hz), t.label),
+        Span::styled(format!("centre {}", format_hz(s.center_hz)), t.label),
+    ];
+    if let (Some(v), Some(span)) = (app.view, app.span()) {
+        let text = if (v.width_hz() - span.width_hz()).abs() < 1e-6 * span.width_hz() {
+            format!("span {}", format_hz(span.width_hz()))
+        } else {
+            format!("view {} of {}", format_hz(v.width_hz()), format_hz(span.width_hz()))
+        };
+        segs.push(Span::styled(text, t.label));
+    }
+    segs.push(state(app));
+    if s.live {
+        let d = app.stats.dropped;
+        let style = if d > 0 { t.warn } else { t.label };
+        segs.push(Span::styled(format!("dropped {d} samples"), style));
+    }
+    fit(segs, None, width)
+}
+
+fn state(app: &App) -> Span<'static> {
+    let t = &app.theme;
+    if app.mode == Mode::Frozen {
+        return Span::styled(" FROZEN ", t.warn);
+    }
+    if app.ended {
+        return Span::styled(" end of input ", t.warn);
+    }
+    let s = &app.source;
+    match (s.total_samples, app.stats.position_s) {
+        (Some(total), Some(pos)) => {
+            let total_s = total as f64 / s.sample_rate_hz;
+            let pos = if s.looping && total_s > 0.0 { pos % total_s } else { pos };
+            let mut text = format!("▶ {} / {}", clock(pos), clock(total_s));
+            if let Some(x) = s.speed.filter(|x| (*x - 1.0).abs() > 1e-9) {
+                text.push_str(&format!(" ×{x}"));
+            }
+            if s.looping {
+                text.push_str(" loop");
+            }
+            Span::styled(text, t.label)
+        }
+        (None, Some(pos)) => Span::styled(format!("live {}", clock(pos)), t.label),
+        _ => Span::styled("waiting for samples", t.label),
+    }
+}
+
+/// Marker frequency and level, and the difference to the reference marker.
+pub fn marker_line(app: &App, width: usize) -> Line<'static> {
+    let t = &app.theme;
+    let l = app.levels;
+    let unit = l.unit();
+    let Some((f1, v1)) = app.marker_hz.and_then(|m| app.reading(m)) else {
+        let hint = "marker: p strongest signal · ← → move · click to place · ? all keys";
+        return fit(vec![Span::styled(hint, t.label)], None, width);
+    };
+    let mut segs =
+        vec![Span::styled(format!("▲ {}  {:.1} {unit}", format_hz(f1), l.shown(v1)), t.marker)];
+    if let Some(ch) = app.channel_at(f1) {
+        segs.push(Span::styled(ch.name.clone(), t.plan));
+    }
+    if let Some((f2, v2)) = app.ref_marker_hz.and_then(|m| app.reading(m)) {
+        segs.push(Span::styled(
+            format!("△ {}  {:.1} {unit}", format_hz(f2), l.shown(v2)),
+            t.ref_marker,
+        ));
+        segs.push(Span::styled(
+            format!(
+                "Δ {}{}  {:+.1} dB",
+                if f1 >= f2 { "+" } else { "" },
+                format_hz(f1 - f2),
+                v1 - v2
+            ),
+            t.marker,
+        ));
+    }
+    fit(segs, None, width)
+}
+
+/// FFT, window, RBW, scale, pacing and the help key.
+pub fn settings_line(app: &App, width: usize) -> Line<'static> {
+    let t = &app.theme;
+    let l = app.levels;
+    let (fft, window, rbw) = match app.traces.current() {
+        Some(c) => (c.fft_size, c.window, Some(c.rbw_hz)),
+        None => (app.settings.fft_size, app.settings.window, None),
+    };
+    let mut segs = vec![Span::styled(format!("FFT {fft} {window}"), t.label)];
+    if let Some(rbw) = rbw {
+        segs.push(Span::styled(format!("RBW {}", format_hz(rbw)), t.label));
+    }
+    segs.push(Span::styled(format!("ref {:.0} {}", l.shown(l.top_dbfs), l.unit()), t.label));
+    segs.push(Span::styled(
+        format!("range {:.0} dB{}", l.range_db, if l.auto { " auto" } else { "" }),
+        t.label,
+    ));
+    let st = &app.stats;
+    segs.push(Span::styled(format!("{:.0} fps", st.fps), t.label));
+    segs.push(Span::styled(format!("{:.0} rows/s", st.rows_per_s), t.label));
+    let style = if st.skipped > 0 { t.warn } else { t.label };
+    segs.push(Span::styled(format!("skipped {} rows", st.skipped), style));
+    segs.push(Span::styled(app.palette.map.name().to_string(), t.label));
+    fit(segs, Some(Span::styled("? keys ", t.header)), width)
+}
+
+/// Writes a line into one row of the buffer.
+pub fn put_line(buf: &mut Buffer, area: Rect, line: &Line<'_>, base: Style) {
+    buf.set_style(area, base);
+    buf.set_line(area.x, area.y, line, area.width);
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn text(line: &Line<'_>) -> String {
+        line.spans.iter().map(|s| s.content.as_ref()).collect()
+    }
+
+    #[test]
+    fn segments_that_do_not_fit_are_left_out_whole() {
+        let segs = || vec![Span::raw("aaaa"), Span::raw("bbbbbbbbbb"), Span::raw("cc")];
+        assert_eq!(text(&fit(segs(), None, 40)), " aaaa · bbbbbbbbbb · cc");
+        assert_eq!(text(&fit(segs(), None, 12)), " aaaa · cc");
+        assert_eq!(text(&fit(segs(), Some(Span::raw("? k")), 20)), " aaaa · cc       ? k");
+    }
+
+    #[test]
+    fn rates_and_tails() {
+        assert_eq!(format_rate(2.4e6), "2.400 MS/s");
+        assert_eq!(format_rate(48e3), "48.0 kS/s");
+        assert_eq!(tail("/very/long/path/to/recording.sigmf-meta", 20), "…ecording.sigmf-meta");
+        assert_eq!(tail("short", 20), "short");
+    }
+}
