@@ -284,19 +284,27 @@ impl App {
     }
 
     /// Puts the bottom of the scale 10 dB under the noise and the top 5 dB over the strongest
-    /// signal (at least 40 dB above the noise), in 5 dB steps, and only moves when the target has
-    /// moved by more than 4 dB so the colours do not flicker.
+    /// signal (at least 40 dB above the noise), on 5 dB steps. The scale stays put while the
+    /// targets stay inside it with less than 8 dB to spare (a 5 dB step plus 3 dB of
+    /// hysteresis), so the colours do not flicker; every change redraws the waterfall.
     pub fn auto_scale(&mut self, floor_dbfs: f64, peak_dbfs: f64) {
+        const SLACK_DB: f64 = 8.0;
         let want_bottom = floor_dbfs - 10.0;
         let want_top = (peak_dbfs + 5.0).max(floor_dbfs + 40.0);
         let l = &mut self.levels;
-        let moved =
-            (want_top - l.top_dbfs).abs() > 4.0 || (want_bottom - l.bottom_dbfs()).abs() > 4.0;
-        if moved {
-            let top = (want_top / 5.0).ceil() * 5.0;
-            let bottom = (want_bottom / 5.0).floor() * 5.0;
+        let (top, bottom) = (l.top_dbfs, l.bottom_dbfs());
+        let fits = want_top <= top
+            && want_top >= top - SLACK_DB
+            && want_bottom >= bottom
+            && want_bottom <= bottom + SLACK_DB;
+        if fits {
+            return;
+        }
+        let top = (want_top / 5.0).ceil() * 5.0;
+        let range = (top - (want_bottom / 5.0).floor() * 5.0).clamp(RANGE_MIN_DB, RANGE_MAX_DB);
+        if (top, range) != (l.top_dbfs, l.range_db) {
             l.top_dbfs = top;
-            l.range_db = (top - bottom).clamp(RANGE_MIN_DB, RANGE_MAX_DB);
+            l.range_db = range;
             self.waterfall_epoch += 1;
         }
     }
@@ -502,12 +510,29 @@ impl App {
         }
     }
 
-    /// Frequency and level (dBFS in one RBW, from the average trace) at a marker.
+    /// Frequency and level (dBFS in one RBW, from the average trace) at a marker. On a peak that
+    /// stands clear of the noise, the reading is refined between bins with the window's own
+    /// response, as the signal table is, so a tone reads its level wherever it falls between
+    /// bins (no scalloping loss; Harris 1978 gives 1.42 dB for Hann half-way between bins).
     pub fn reading(&self, freq_hz: f64) -> Option<(f64, f64)> {
         let cur = self.traces.current()?;
         let grid = grid_of(cur);
         let bin = grid.nearest(freq_hz)?;
-        Some((grid.freq(bin), db(self.traces.average_psd()[bin] * cur.rbw_hz)))
+        let avg = self.traces.average_psd();
+        let p0 = avg[bin];
+        let raw = (grid.freq(bin), db(p0 * cur.rbw_hz));
+        let pm = if bin > 0 { avg[bin - 1] } else { 0.0 };
+        let pp = avg.get(bin + 1).copied().unwrap_or(0.0);
+        let clear = self.floor_dbfs.is_some_and(|f| raw.1 >= f + Detection::default().min_snr_db);
+        let window =
+            self.window.as_ref().filter(|w| w.kind == cur.window && w.len() == cur.fft_size);
+        match window {
+            Some(w) if clear && p0 >= pm && p0 >= pp => {
+                let (delta, gain) = w.tone_offset(pm, p0, pp);
+                Some((grid.freq(bin) + delta * grid.bin_hz, db(p0 * cur.rbw_hz / gain.max(1e-12))))
+            }
+            _ => Some(raw),
+        }
     }
 
     /// Trace levels (dBFS in one RBW) for `ncols` columns of the view: current, average, hold.
@@ -598,6 +623,47 @@ mod tests {
     }
 
     #[test]
+    fn the_marker_reads_a_tone_between_bins_at_its_level() {
+        // A −30 dBFS tone half-way between bins (bin 100.5 of 1024 at 1.024 MS/s) in faint
+        // noise: the raw bin reads low by Hann's scalloping loss, 1.42 dB (Harris 1978, table
+        // 1); the marker's refined reading must be within 0.1 dB of the tone and its frequency.
+        use crate::dsp::{Engine, EngineConfig};
+        use num_complex::Complex32;
+        let (rate, n) = (1.024e6, 1024);
+        let f = 100.5 * rate / n as f64;
+        let a = 10f64.powf(-30.0 / 20.0);
+        let mut s = 7u64;
+        let x: Vec<Complex32> = (0..n * 64)
+            .map(|i| {
+                s = s.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+                let e = ((s >> 40) as f64 / (1u64 << 24) as f64 - 0.5) * 1e-4;
+                let ph = 2.0 * std::f64::consts::PI * f * i as f64 / rate;
+                Complex32::new((a * ph.cos() + e) as f32, (a * ph.sin() - e) as f32)
+            })
+            .collect();
+        let cfg = EngineConfig {
+            fft_size: n,
+            window: WindowKind::Hann,
+            overlap: 0.5,
+            frames_per_output: Some(16),
+        };
+        let mut e = Engine::new(cfg, rate, 100e6);
+        let mut a_ = App::new(summary(), settings(), Depth::Mono, None, Vec::new(), Instant::now());
+        e.push(0, &x, &mut |sp| a_.push_row(sp));
+        a_.measure();
+        let tone_hz = 100e6 + f;
+        let (_, raw) = {
+            let cur = a_.traces.current().unwrap();
+            let k = grid_of(cur).nearest(tone_hz).unwrap();
+            (k, db(a_.traces.average_psd()[k] * cur.rbw_hz))
+        };
+        assert!((raw + 30.0 + 1.42).abs() < 0.1, "raw bin {raw}");
+        let (rf, level) = a_.reading(tone_hz).unwrap();
+        assert!((level + 30.0).abs() < 0.1, "marker {level}");
+        assert!((rf - tone_hz).abs() < 0.05 * rate / n as f64, "marker at {rf}");
+    }
+
+    #[test]
     fn zoom_centres_on_the_marker_and_full_span_returns() {
         let mut a = app();
         a.marker_hz = Some(100.2e6);
@@ -645,10 +711,16 @@ mod tests {
         let l = a.levels;
         assert!(l.bottom_dbfs() <= floor - 10.0 && l.bottom_dbfs() > floor - 15.0);
         assert!(l.top_dbfs >= floor + 60.0 + 5.0, "top {} floor {floor}", l.top_dbfs);
-        // A small change does not move the scale.
-        let before = a.levels;
-        a.auto_scale(floor + 2.0, floor + 61.0);
-        assert_eq!(a.levels, before);
+        // Small changes do not move the scale (nor redraw the waterfall), repeatedly.
+        let (before, epoch) = (a.levels, a.waterfall_epoch);
+        for _ in 0..3 {
+            a.auto_scale(floor + 2.0, floor + 61.0);
+            a.measure();
+        }
+        assert_eq!((a.levels, a.waterfall_epoch), (before, epoch));
+        // A signal that needs more room moves the top.
+        a.auto_scale(floor, floor + 75.0);
+        assert!(a.levels.top_dbfs >= floor + 80.0 && a.waterfall_epoch == epoch + 1);
     }
 
     #[test]

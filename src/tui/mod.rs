@@ -16,6 +16,7 @@ pub mod history;
 pub mod input;
 pub mod layout;
 pub mod painter;
+pub mod signals;
 pub mod term;
 pub mod traces;
 pub mod view;
@@ -30,7 +31,6 @@ use painter::Painter;
 use ratatui::layout::Rect;
 use std::io::Write;
 use std::sync::atomic::{AtomicBool, Ordering};
-use std::sync::Arc;
 use std::time::{Duration, Instant};
 
 use crate::source::reader::ReaderStats;
@@ -56,21 +56,10 @@ pub fn run(
     reader: &ReaderStats,
     opts: RunOptions,
 ) -> anyhow::Result<()> {
-    let stop = Arc::new(AtomicBool::new(false));
-    let mut ids = Vec::new();
-    for sig in
-        [signal_hook::consts::SIGTERM, signal_hook::consts::SIGINT, signal_hook::consts::SIGHUP]
-    {
-        ids.push(signal_hook::flag::register(sig, stop.clone())?);
-    }
-    let result = (|| {
-        let (mut term, _guard) = term::init(opts.mouse)?;
-        event_loop(&mut term, &mut app, dsp, reader, opts, &stop)
-    })();
-    for id in ids {
-        signal_hook::low_level::unregister(id);
-    }
-    result
+    // Drop order: the terminal guard first (restore), then the signal watchdog.
+    let watch = signals::SignalWatch::start()?;
+    let (mut term, _guard) = term::init(opts.mouse)?;
+    event_loop(&mut term, &mut app, dsp, reader, opts, watch.stop_flag())
 }
 
 fn event_loop(

@@ -45,9 +45,9 @@ impl Painter {
         if area.height == 0 || area.width == 0 {
             return;
         }
-        let total = plot.history.total();
+        let total = plot.shown_rows();
         let lines: Vec<u16> = match self.drawn {
-            Some(d) if d.area == area && d.epoch == epoch => {
+            Some(d) if d.area == area && d.epoch == epoch && total >= d.total => {
                 if d.total == total {
                     return;
                 }
@@ -56,7 +56,9 @@ impl Painter {
                     (0..area.height).collect()
                 } else {
                     let scroll = scroll as u16;
-                    scroll_down(out, area, scroll);
+                    if scroll > 0 {
+                        scroll_down(out, area, scroll);
+                    }
                     // New lines, and the line whose pair was half drawn if it is now complete.
                     let partial = u16::from(d.total % 2 == 1);
                     (0..scroll + partial).collect()
@@ -337,6 +339,7 @@ mod tests {
                 palette: &palette,
                 theme: &theme,
                 label_every_s: 1.0,
+                pairs_only: batch % 2 == 0,
             };
             let mut out = Vec::new();
             painter.paint(&mut out, area, 0, &plot);
@@ -366,6 +369,7 @@ mod tests {
                 palette: p,
                 theme: t,
                 label_every_s: 60.0,
+                pairs_only: false,
             }
         }
         let mut full = Vec::new();

@@ -26,7 +26,13 @@ impl Widget for &FreqAxis<'_> {
         let x0 = area.x + GUTTER;
         let (ticks, unit) = freq_ticks(&self.view, width);
         buf.set_string(area.x, area.y, format!("{unit:>5} "), self.theme.label);
+        let markers: Vec<usize> =
+            [self.marker_col, self.ref_marker_col].into_iter().flatten().map(usize::from).collect();
         for t in ticks {
+            // A label a marker would cut in two is left out; the marker line names the frequency.
+            if markers.iter().any(|m| (t.col + 1..=t.col + t.label.len()).contains(m)) {
+                continue;
+            }
             buf.set_string(x0 + t.col as u16, area.y, "╵", self.theme.grid);
             buf.set_string(x0 + t.col as u16 + 1, area.y, &t.label, self.theme.label);
         }
@@ -97,15 +103,16 @@ mod tests {
         let axis = FreqAxis {
             view: View::new(99.5e6, 100.5e6),
             marker_col: Some(10),
-            ref_marker_col: None,
+            ref_marker_col: Some(22),
             theme: &theme,
         };
         let mut buf = Buffer::empty(Rect::new(0, 0, GUTTER + 40, 1));
         (&axis).render(buf.area, &mut buf);
         // 1 MHz over 40 columns; ticks every 0.2 MHz fit ("99.6" needs 4 + 3 columns of 8):
         // 99.6 at column 4, 99.8 at 12, 100.0 at 20, 100.2 at 28, 100.4 at 36.
-        // 100.4 at column 36 would run past the edge and is left out.
-        assert_eq!(text_lines(&buf), ["  MHz     ╵99.6 ▲ ╵99.8   ╵100.0  ╵100.2      "]);
+        // 100.4 at column 36 would run past the edge and is left out; the reference marker at
+        // column 22 would cut "100.0", which is left out too.
+        assert_eq!(text_lines(&buf), ["  MHz     ╵99.6 ▲ ╵99.8     △     ╵100.2      "]);
         assert_eq!(
             buf[(GUTTER + 10, 0)].style(),
             buf[(GUTTER + 10, 0)].style().patch(theme.marker)

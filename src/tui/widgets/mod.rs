@@ -19,7 +19,7 @@ use ratatui::widgets::Widget;
 use spectrum::SpectrumPlot;
 use status::{marker_line, put_line, settings_line, source_line};
 use table::SignalTable;
-use waterfall::{label_interval, WaterfallPlot};
+use waterfall::{label_interval, WaterfallPlot, PAIRS_ONLY_FROM_ROWS_PER_S};
 
 impl App {
     /// Whether the channel-plan row is on screen.
@@ -35,6 +35,7 @@ impl App {
 
     /// The waterfall as the painter and the widget see it.
     pub fn waterfall_plot(&self) -> Option<WaterfallPlot<'_>> {
+        let rows_per_s = self.effective_row_rate();
         Some(WaterfallPlot {
             history: &self.history,
             view: self.view?,
@@ -42,7 +43,8 @@ impl App {
             range_db: self.levels.range_db,
             palette: &self.palette,
             theme: &self.theme,
-            label_every_s: label_interval(self.effective_row_rate()),
+            label_every_s: label_interval(rows_per_s),
+            pairs_only: rows_per_s >= PAIRS_ONLY_FROM_ROWS_PER_S,
         })
     }
 

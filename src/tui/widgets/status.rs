@@ -53,6 +53,14 @@ pub fn format_rate(hz: f64) -> String {
     }
 }
 
+/// A frequency without trailing zeros: `433.5 MHz`, `150 kHz`; as exact as [`format_hz`].
+pub fn format_hz_compact(hz: f64) -> String {
+    let full = format_hz(hz);
+    let Some((num, unit)) = full.split_once(' ') else { return full };
+    let num = if num.contains('.') { num.trim_end_matches('0').trim_end_matches('.') } else { num };
+    format!("{num} {unit}")
+}
+
 /// Keeps the end of a long label (the file name), marking the cut.
 fn tail(text: &str, max: usize) -> String {
     let n = text.chars().count();
@@ -70,13 +78,17 @@ pub fn source_line(app: &App, width: usize) -> Line<'static> {
     let mut segs = vec![
         Span::styled(tail(&s.label, 28), t.title),
         Span::styled(format_rate(s.sample_rate_hz), t.label),
-        Span::styled(format!("centre {}", format_hz(s.center_hz)), t.label),
+        Span::styled(format!("centre {}", format_hz_compact(s.center_hz)), t.label),
     ];
     if let (Some(v), Some(span)) = (app.view, app.span()) {
         let text = if (v.width_hz() - span.width_hz()).abs() < 1e-6 * span.width_hz() {
-            format!("span {}", format_hz(span.width_hz()))
+            format!("span {}", format_hz_compact(span.width_hz()))
         } else {
-            format!("view {} of {}", format_hz(v.width_hz()), format_hz(span.width_hz()))
+            format!(
+                "view {} of {}",
+                format_hz_compact(v.width_hz()),
+                format_hz_compact(span.width_hz())
+            )
         };
         segs.push(Span::styled(text, t.label));
     }
@@ -200,6 +212,9 @@ mod tests {
     fn rates_and_tails() {
         assert_eq!(format_rate(2.4e6), "2.400 MS/s");
         assert_eq!(format_rate(48e3), "48.0 kS/s");
+        assert_eq!(format_hz_compact(433.5e6), "433.5 MHz");
+        assert_eq!(format_hz_compact(150e3), "150 kHz");
+        assert_eq!(format_hz_compact(433.920001e6), "433.920001 MHz");
         assert_eq!(tail("/very/long/path/to/recording.sigmf-meta", 20), "…ecording.sigmf-meta");
         assert_eq!(tail("short", 20), "short");
     }

@@ -65,7 +65,8 @@ impl Widget for &SignalTable<'_> {
         let block_w = area.width / blocks;
         let rows = (area.height - 1) as usize;
         let header = self.header();
-        for b in 0..blocks {
+        let used = self.signals.len().div_ceil(rows.max(1)).clamp(1, blocks as usize) as u16;
+        for b in 0..used {
             let x = area.x + b * block_w;
             buf.set_stringn(x, area.y, &header, block_w as usize, self.theme.header);
         }
@@ -170,5 +171,10 @@ mod tests {
         assert!(lines[1].starts_with(" 1 100.000000 MHz"));
         assert!(lines[2].starts_with(" 2 100.100000 MHz"));
         assert!(lines[1][80..].starts_with(" 3 100.200000 MHz"), "{}", &lines[1]);
+        // With fewer signals than rows, the second block (and its header) stays empty.
+        let t = SignalTable { signals: &signals[..2], ..t };
+        let mut buf = Buffer::empty(Rect::new(0, 0, 160, 3));
+        (&t).render(buf.area, &mut buf);
+        assert!(text_lines(&buf)[0][80..].trim().is_empty());
     }
 }

@@ -29,7 +29,13 @@ pub struct WaterfallPlot<'a> {
     pub theme: &'a Theme,
     /// Seconds between time labels.
     pub label_every_s: f64,
+    /// Show a line only once both of its rows are in. At a brisk row rate the wait is one row
+    /// (50 ms at 20 rows/s), and it halves the bytes: a half-filled line would be sent twice.
+    pub pairs_only: bool,
 }
+
+/// Row rate from which lines wait for both their rows.
+pub const PAIRS_ONLY_FROM_ROWS_PER_S: f64 = 5.0;
 
 /// A label interval that puts about one label every six lines at `rows_per_s`.
 pub fn label_interval(rows_per_s: f64) -> f64 {
@@ -48,6 +54,16 @@ pub fn clock(t_s: f64) -> String {
 }
 
 impl WaterfallPlot<'_> {
+    /// Rows on show: all that arrived, less an unpaired newest one when lines wait for pairs.
+    pub fn shown_rows(&self) -> u64 {
+        let total = self.history.total();
+        if self.pairs_only {
+            total & !1
+        } else {
+            total
+        }
+    }
+
     /// Colour steps of a row across `ncols` plot columns.
     fn steps(&self, row: &Row, ncols: usize) -> Vec<Option<u8>> {
         let map = row.grid.column_map(&self.view, ncols);
@@ -62,7 +78,7 @@ impl WaterfallPlot<'_> {
     /// The cells of text line `line` (0 = top), `width` wide including the gutter.
     pub fn line_cells(&self, line: u16, width: u16) -> Vec<Cell> {
         let mut cells = vec![Cell::EMPTY; width as usize];
-        let Some(rows) = line_rows(self.history.total(), line as u64) else { return cells };
+        let Some(rows) = line_rows(self.shown_rows(), line as u64) else { return cells };
         let Some(lower) = self.history.by_index(rows.lower) else { return cells };
         let upper = rows.upper.and_then(|i| self.history.by_index(i));
         self.gutter(&mut cells, upper.unwrap_or(lower), rows.lower);
@@ -140,6 +156,7 @@ mod tests {
             palette: p,
             theme: t,
             label_every_s: 1.0,
+            pairs_only: false,
         }
     }
 
@@ -184,6 +201,10 @@ mod tests {
         assert_eq!((second[g + 2].fg, second[g + 1].bg), (p.colour(31), p.colour(31)));
         // No rows for the third line: left empty.
         assert!(w.line_cells(2, GUTTER + 8).iter().all(|c| *c == Cell::EMPTY));
+        // Waiting for pairs, the lone newest row is not shown yet: the complete pair is on top.
+        let w = WaterfallPlot { pairs_only: true, ..w };
+        assert_eq!(w.shown_rows(), 2);
+        assert_eq!(w.line_cells(0, GUTTER + 8)[g + 2].fg, p.colour(31));
     }
 
     #[test]

@@ -1,0 +1,175 @@
+//! End to end, as a user sees it: the real binary runs `watch` in a tmux pane at 80×24 and at
+//! 160×48 on a SigMF recording with a tone at a known frequency. The signal table must show that
+//! frequency; the quit key must end the program with status 0, leave the alternate screen and
+//! mouse reporting, and give the shell back. Skipped (with a message) where tmux is not
+//! installed.
+
+use bandwarden::source::sigmf::meta_json;
+use bandwarden::source::SampleFormat;
+use num_complex::Complex32;
+use std::path::{Path, PathBuf};
+use std::process::Command;
+use std::time::{Duration, Instant};
+
+const RATE_HZ: f64 = 1e6;
+const CENTER_HZ: f64 = 100e6;
+/// 125 kHz above the centre: bin 512 of a 4096-point FFT at 1 MS/s, so the table reads it
+/// exactly.
+const TONE_OFFSET_HZ: f64 = 125e3;
+
+fn tmux_available() -> bool {
+    Command::new("tmux").arg("-V").output().is_ok_and(|o| o.status.success())
+}
+
+/// A tmux server of our own (its own socket), killed when dropped.
+struct Tmux {
+    socket: String,
+}
+
+impl Tmux {
+    fn start(tag: &str, cols: u16, rows: u16) -> Tmux {
+        let t = Tmux { socket: format!("bw-e2e-{}-{tag}", std::process::id()) };
+        let size = (cols.to_string(), rows.to_string());
+        t.cmd(&[
+            "-f",
+            "/dev/null",
+            "new-session",
+            "-d",
+            "-s",
+            "e2e",
+            "-x",
+            &size.0,
+            "-y",
+            &size.1,
+            "sh",
+        ])
+        .env("PS1", "$ ")
+        .env("ENV", "/dev/null")
+        .env_remove("COLORTERM")
+        .status()
+        .expect("starting tmux");
+        t
+    }
+
+    fn cmd(&self, args: &[&str]) -> Command {
+        let mut c = Command::new("tmux");
+        c.arg("-L").arg(&self.socket).args(args);
+        c
+    }
+
+    fn keys(&self, keys: &[&str]) {
+        let mut args = vec!["send-keys", "-t", "e2e"];
+        args.extend_from_slice(keys);
+        assert!(self.cmd(&args).status().unwrap().success());
+    }
+
+    fn screen(&self) -> String {
+        let out = self.cmd(&["capture-pane", "-p", "-t", "e2e"]).output().unwrap();
+        String::from_utf8_lossy(&out.stdout).into_owned()
+    }
+
+    fn pane_flag(&self, name: &str) -> String {
+        let fmt = format!("#{{{name}}}");
+        let out = self.cmd(&["display-message", "-p", "-t", "e2e", &fmt]).output().unwrap();
+        String::from_utf8_lossy(&out.stdout).trim().to_string()
+    }
+
+    /// Polls the screen until `pred` holds; the last screen is in the panic message otherwise.
+    fn wait_for(&self, what: &str, timeout: Duration, pred: impl Fn(&str) -> bool) -> String {
+        let t0 = Instant::now();
+        loop {
+            let s = self.screen();
+            if pred(&s) {
+                return s;
+            }
+            assert!(t0.elapsed() < timeout, "timed out waiting for {what}; screen:\n{s}");
+            std::thread::sleep(Duration::from_millis(200));
+        }
+    }
+}
+
+impl Drop for Tmux {
+    fn drop(&mut self) {
+        let _ = self.cmd(&["kill-server"]).status();
+    }
+}
+
+/// Writes half a second of a −20 dBFS tone in faint noise as a cf32_le SigMF pair.
+fn write_recording(dir: &Path) -> PathBuf {
+    std::fs::create_dir_all(dir).unwrap();
+    let n = (RATE_HZ / 2.0) as usize;
+    let mut s = 0x2545_f491_4f6c_dd1du64;
+    let samples: Vec<Complex32> = (0..n)
+        .map(|i| {
+            let mut noise = || {
+                s ^= s << 13;
+                s ^= s >> 7;
+                s ^= s << 17;
+                ((s >> 11) as f64 / (1u64 << 53) as f64 - 0.5) * 2e-3
+            };
+            let ph = 2.0 * std::f64::consts::PI * TONE_OFFSET_HZ * i as f64 / RATE_HZ;
+            Complex32::new((0.1 * ph.cos() + noise()) as f32, (0.1 * ph.sin() + noise()) as f32)
+        })
+        .collect();
+    let mut bytes = Vec::new();
+    SampleFormat::Cf32Le.encode(&samples, &mut bytes);
+    let data = dir.join("tone.sigmf-data");
+    std::fs::write(&data, bytes).unwrap();
+    let meta = meta_json(SampleFormat::Cf32Le, RATE_HZ, CENTER_HZ, None, "tone for the tmux test");
+    let meta_path = dir.join("tone.sigmf-meta");
+    std::fs::write(&meta_path, meta).unwrap();
+    meta_path
+}
+
+/// The frequency (MHz) in the first row of the signal table, if it is on screen.
+fn first_signal_mhz(screen: &str) -> Option<f64> {
+    screen.lines().find_map(|l| {
+        let mut words = l.split_whitespace();
+        (words.next() == Some("1")).then_some(())?;
+        let f: f64 = words.next()?.parse().ok()?;
+        (words.next() == Some("MHz")).then_some(f)
+    })
+}
+
+fn run_at(cols: u16, rows: u16) {
+    if !tmux_available() {
+        eprintln!("skipping the tmux end-to-end test: tmux is not installed");
+        return;
+    }
+    let dir = std::env::temp_dir().join(format!("bw-e2e-{}-{cols}x{rows}", std::process::id()));
+    let rec = write_recording(&dir);
+    let tmux = Tmux::start(&format!("{cols}x{rows}"), cols, rows);
+    tmux.wait_for("the shell prompt", Duration::from_secs(10), |s| s.contains('$'));
+    let line = format!(
+        "{} watch {} --loop --fft 4096; echo BW-DONE-$?",
+        env!("CARGO_BIN_EXE_bandwarden"),
+        rec.display()
+    );
+    tmux.keys(&[&line, "Enter"]);
+    let expect_mhz = (CENTER_HZ + TONE_OFFSET_HZ) / 1e6;
+    let screen = tmux.wait_for("the tone in the signal table", Duration::from_secs(60), |s| {
+        first_signal_mhz(s).is_some_and(|f| (f - expect_mhz).abs() < 0.5e-3)
+    });
+    assert!(screen.contains("Level dBFS"), "{screen}");
+    assert_eq!(tmux.pane_flag("alternate_on"), "1", "the monitor runs on the alternate screen");
+    tmux.keys(&["q"]);
+    let back = tmux
+        .wait_for("the shell after quitting", Duration::from_secs(20), |s| s.contains("BW-DONE-"));
+    assert!(back.contains("BW-DONE-0"), "exit status not 0:\n{back}");
+    assert!(!back.contains("Level dBFS"), "the monitor is still on screen:\n{back}");
+    assert_eq!(tmux.pane_flag("alternate_on"), "0", "alternate screen left on");
+    assert_eq!(tmux.pane_flag("mouse_any_flag"), "0", "mouse reporting left on");
+    assert_eq!(tmux.pane_flag("pane_current_command"), "sh", "the shell has the pane again");
+    drop(tmux);
+    let _ = std::fs::remove_dir_all(&dir);
+}
+
+#[test]
+fn tone_is_found_and_quit_restores_the_terminal_at_80x24() {
+    run_at(80, 24);
+}
+
+#[test]
+fn tone_is_found_and_quit_restores_the_terminal_at_160x48() {
+    run_at(160, 48);
+}
