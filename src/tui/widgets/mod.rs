@@ -141,3 +141,156 @@ pub fn text_lines(buf: &Buffer) -> Vec<String> {
         .map(|y| (a.left()..a.right()).map(|x| buf[(x, y)].symbol().to_string()).collect())
         .collect()
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::dsp::{Spectrum, Window, WindowKind};
+    use crate::tui::app::{Channel, SourceSummary};
+    use crate::tui::colour::Depth;
+    use crate::tui::dsp_thread::DspSettings;
+    use crate::tui::input::Intent;
+    use ratatui::backend::TestBackend;
+    use ratatui::Terminal;
+    use std::time::Instant;
+
+    /// 1024 bins of 1 kHz around 100 MHz: a flat floor and a tone in FFT bin 100 (100.1 MHz).
+    fn row() -> Spectrum {
+        let n = 1024;
+        let mut power = vec![1.0; n];
+        power[100] = 1e6;
+        let w = Window::new(WindowKind::Hann, n);
+        Spectrum::from_power_sum(&power, 1, 2.0, &w, 1.024e6, 100e6, 0, n as u64)
+    }
+
+    fn app(channels: Vec<Channel>) -> App {
+        let source = SourceSummary {
+            label: "bench\u{1b}[2J.cf32".chars().filter(|c| !c.is_control()).collect(),
+            sample_rate_hz: 1.024e6,
+            center_hz: 100e6,
+            total_samples: Some(10_240_000),
+            live: false,
+            speed: Some(1.0),
+            looping: false,
+        };
+        let settings =
+            DspSettings { fft_size: 1024, window: WindowKind::Hann, overlap: 0.5, row_rate: 20.0 };
+        let mut a = App::new(source, settings, Depth::TrueColour, None, channels, Instant::now());
+        for _ in 0..30 {
+            a.push_row(row());
+        }
+        a.measure();
+        a
+    }
+
+    fn draw(app: &App, w: u16, h: u16) -> Buffer {
+        let mut term = Terminal::new(TestBackend::new(w, h)).unwrap();
+        term.draw(|f| f.render_widget(app, f.area())).unwrap();
+        term.backend().buffer().clone()
+    }
+
+    #[test]
+    fn the_whole_screen_at_80x24() {
+        let a = app(Vec::new());
+        let buf = draw(&a, 80, 24);
+        let lines = text_lines(&buf);
+        assert!(lines[0].starts_with(" bench[2J.cf32 · "), "{}", lines[0]);
+        assert!(lines[0].contains("centre 100 MHz") && lines[0].contains("▶ 00:00 / 00:10"));
+        assert!(lines[1].starts_with("dBFS │"));
+        // Axis row (below 6 spectrum rows) with its unit and a label at 100.0 MHz.
+        assert!(lines[7].starts_with("  MHz ") && lines[7].contains("╵100.0"), "{}", lines[7]);
+        // The table lists the tone; the marker line invites a marker; the settings line ends
+        // with the help key.
+        assert!(lines[18].starts_with(" # Frequency"));
+        assert!(lines[19].starts_with(" 1 100.100000 MHz"), "{}", lines[19]);
+        assert!(lines[22].starts_with(" marker: p strongest signal"));
+        assert!(
+            lines[23].starts_with(" FFT 1024 hann · RBW 1.5 kHz ·")
+                || lines[23].contains("RBW 1.500 kHz")
+        );
+        assert!(lines[23].trim_end().ends_with("? keys"));
+        // The newest waterfall line (row 8) has the tone's colour in the tone's column, and
+        // the floor's colour elsewhere.
+        let s = Screen::split(buf.area, false).unwrap();
+        let plot = s.waterfall_plot();
+        let col = a.view.unwrap().column_of(100.1e6, plot.width as usize).unwrap() as u16;
+        let top = plot.y;
+        let cur = a.traces.current().unwrap();
+        let step = |i: usize| {
+            let level = crate::units::db(cur.psd[i] * cur.rbw_hz) as f32;
+            crate::tui::colour::Palette::step(level, a.levels.bottom_dbfs(), a.levels.range_db)
+        };
+        // Bin 612 holds the tone (FFT bin 100 after the shift); bin 0 is floor.
+        let (tone, floor) = (step(612), step(0));
+        assert!(tone >= 25 && floor <= 8, "tone step {tone}, floor step {floor}");
+        assert_eq!(buf[(plot.x + col, top)].bg, a.palette.colour(tone));
+        assert_eq!(buf[(plot.x + 2, top)].bg, a.palette.colour(floor));
+    }
+
+    #[test]
+    fn marker_zoom_and_reference_marker_show_on_screen() {
+        let mut a = app(Vec::new());
+        a.apply(Intent::MarkerToStrongest);
+        a.apply(Intent::SetRefMarker);
+        a.apply(Intent::ZoomIn);
+        a.apply(Intent::MarkerRight(10));
+        let buf = draw(&a, 80, 24);
+        let lines = text_lines(&buf);
+        assert!(lines[0].contains("view 512 kHz of 1.024 MHz"), "{}", lines[0]);
+        // The moving marker is on the floor, 10 columns (of 6.9 kHz) above the tone; at 80
+        // columns the reference marker's own reading gives way to the difference.
+        assert!(lines[22].contains("▲ 100.174000 MHz"), "{}", lines[22]);
+        assert!(lines[22].contains("Δ +74.000 kHz"), "{}", lines[22]);
+        // The axis flags both markers.
+        assert!(lines[7].contains('▲') && lines[7].contains('△'), "{}", lines[7]);
+        // A wider screen has room for the reference marker's reading too.
+        let wide = text_lines(&draw(&a, 120, 30));
+        let marker = wide.iter().find(|l| l.starts_with(" ▲")).unwrap();
+        assert!(marker.contains("△ 100.100000 MHz"), "{marker}");
+    }
+
+    #[test]
+    fn a_plan_adds_its_row_and_names_signals() {
+        let ch = vec![Channel { name: "Gate-North".into(), center_hz: 100.1e6, width_hz: 200e3 }];
+        let mut a = app(ch);
+        let buf = draw(&a, 160, 48);
+        let lines = text_lines(&buf);
+        let s = Screen::split(buf.area, true).unwrap();
+        let plan = s.plan.unwrap().y as usize;
+        assert!(lines[plan].starts_with(" plan ") && lines[plan].contains("Gate-North"));
+        let row1 = &lines[s.table.y as usize + 1];
+        assert!(row1.starts_with(" 1 100.100000 MHz") && row1.contains("Gate-North"), "{row1}");
+        // Toggling the overlay removes the row; the table keeps the channel column.
+        a.apply(Intent::TogglePlan);
+        let lines = text_lines(&draw(&a, 160, 48));
+        assert!(!lines.iter().any(|l| l.starts_with(" plan ")));
+        assert!(lines
+            .iter()
+            .any(|l| l.starts_with(" 1 100.100000 MHz") && l.contains("Gate-North")));
+    }
+
+    #[test]
+    fn help_overlay_and_small_terminals() {
+        let mut a = app(Vec::new());
+        a.apply(Intent::ToggleHelp);
+        let lines = text_lines(&draw(&a, 80, 24));
+        assert!(lines.iter().any(|l| l.contains("┌ keys ")));
+        assert!(lines.iter().any(|l| l.contains("FFT size ×2 / ÷2")));
+        let small = text_lines(&draw(&a, 30, 10));
+        assert!(small[0].starts_with("bandwarden needs a terminal of"));
+    }
+
+    #[test]
+    fn the_painted_waterfall_is_left_to_the_painter() {
+        let mut a = app(Vec::new());
+        a.waterfall_external = true;
+        let buf = draw(&a, 80, 24);
+        let s = Screen::split(buf.area, false).unwrap();
+        let w = s.waterfall;
+        for y in w.top()..w.bottom() {
+            for x in w.left()..w.right() {
+                assert_eq!(buf[(x, y)].bg, ratatui::style::Color::Reset, "cell {x},{y} drawn");
+            }
+        }
+    }
+}

@@ -14,28 +14,39 @@ const SEP: &str = " · ";
 /// Display width of [`SEP`] (the dot is one column, two bytes).
 const SEP_WIDTH: usize = 3;
 
-/// Joins segments (in priority order of appearance) with separators, leaving out those that do
-/// not fit in `width`; `right` is kept at the right edge when there is room for it.
+/// Joins segments with separators in the order given, leaving out those that do not fit in
+/// `width`: the segments with the lowest `rank` go in first. `right` is kept at the right edge,
+/// two columns clear, when there is room for it.
 pub fn fit(
-    segments: Vec<Span<'static>>,
+    segments: Vec<(u8, Span<'static>)>,
     right: Option<Span<'static>>,
     width: usize,
 ) -> Line<'static> {
-    let right_w = right.as_ref().map_or(0, |r| r.width() + 1);
+    let right_w = right.as_ref().map_or(0, |r| r.width() + 2);
     let room = width.saturating_sub(right_w);
-    let mut spans: Vec<Span<'static>> = Vec::new();
+    let mut order: Vec<usize> = (0..segments.len()).collect();
+    order.sort_by_key(|&i| segments[i].0);
+    let mut keep = vec![false; segments.len()];
     let mut used = 0;
-    for seg in segments {
-        let extra = seg.width() + if spans.is_empty() { 1 } else { SEP_WIDTH };
-        if used + extra <= room {
-            spans.push(Span::raw(if spans.is_empty() { " " } else { SEP }));
+    for i in order {
+        // The first segment has a leading space, the others a separator.
+        let extra = segments[i].1.width() + SEP_WIDTH;
+        if used + extra <= room + SEP_WIDTH - 1 {
+            keep[i] = true;
             used += extra;
-            spans.push(seg);
         }
     }
+    let mut spans: Vec<Span<'static>> = Vec::new();
+    let mut w = 0;
+    for (seg, _) in segments.into_iter().zip(&keep).filter(|(_, k)| **k) {
+        let lead = if spans.is_empty() { " " } else { SEP };
+        w += Span::raw(lead).width() + seg.1.width();
+        spans.push(Span::raw(lead));
+        spans.push(seg.1);
+    }
     if let Some(r) = right {
-        if used + right_w <= width {
-            spans.push(Span::raw(" ".repeat(width - used - right_w + 1)));
+        if w + right_w <= width {
+            spans.push(Span::raw(" ".repeat(width - w - right_w + 2)));
             spans.push(r);
         }
     }
@@ -76,9 +87,9 @@ pub fn source_line(app: &App, width: usize) -> Line<'static> {
     let t = &app.theme;
     let s = &app.source;
     let mut segs = vec![
-        Span::styled(tail(&s.label, 28), t.title),
-        Span::styled(format_rate(s.sample_rate_hz), t.label),
-        Span::styled(format!("centre {}", format_hz_compact(s.center_hz)), t.label),
+        (0, Span::styled(tail(&s.label, (width / 4).max(12)), t.title)),
+        (5, Span::styled(format_rate(s.sample_rate_hz), t.label)),
+        (2, Span::styled(format!("centre {}", format_hz_compact(s.center_hz)), t.label)),
     ];
     if let (Some(v), Some(span)) = (app.view, app.span()) {
         let text = if (v.width_hz() - span.width_hz()).abs() < 1e-6 * span.width_hz() {
@@ -90,13 +101,13 @@ pub fn source_line(app: &App, width: usize) -> Line<'static> {
                 format_hz_compact(span.width_hz())
             )
         };
-        segs.push(Span::styled(text, t.label));
+        segs.push((3, Span::styled(text, t.label)));
     }
-    segs.push(state(app));
+    segs.push((1, state(app)));
     if s.live {
         let d = app.stats.dropped;
-        let style = if d > 0 { t.warn } else { t.label };
-        segs.push(Span::styled(format!("dropped {d} samples"), style));
+        let (rank, style) = if d > 0 { (1, t.warn) } else { (4, t.label) };
+        segs.push((rank, Span::styled(format!("dropped {d} samples"), style)));
     }
     fit(segs, None, width)
 }
@@ -135,26 +146,31 @@ pub fn marker_line(app: &App, width: usize) -> Line<'static> {
     let unit = l.unit();
     let Some((f1, v1)) = app.marker_hz.and_then(|m| app.reading(m)) else {
         let hint = "marker: p strongest signal · ← → move · click to place · ? all keys";
-        return fit(vec![Span::styled(hint, t.label)], None, width);
+        return fit(vec![(0, Span::styled(hint, t.label))], None, width);
     };
-    let mut segs =
-        vec![Span::styled(format!("▲ {}  {:.1} {unit}", format_hz(f1), l.shown(v1)), t.marker)];
+    let mut segs = vec![(
+        0,
+        Span::styled(format!("▲ {}  {:.1} {unit}", format_hz(f1), l.shown(v1)), t.marker),
+    )];
     if let Some(ch) = app.channel_at(f1) {
-        segs.push(Span::styled(ch.name.clone(), t.plan));
+        segs.push((3, Span::styled(ch.name.clone(), t.plan)));
     }
     if let Some((f2, v2)) = app.ref_marker_hz.and_then(|m| app.reading(m)) {
-        segs.push(Span::styled(
-            format!("△ {}  {:.1} {unit}", format_hz(f2), l.shown(v2)),
-            t.ref_marker,
+        segs.push((
+            2,
+            Span::styled(format!("△ {}  {:.1} {unit}", format_hz(f2), l.shown(v2)), t.ref_marker),
         ));
-        segs.push(Span::styled(
-            format!(
-                "Δ {}{}  {:+.1} dB",
-                if f1 >= f2 { "+" } else { "" },
-                format_hz(f1 - f2),
-                v1 - v2
+        segs.push((
+            1,
+            Span::styled(
+                format!(
+                    "Δ {}{}  {:+.1} dB",
+                    if f1 >= f2 { "+" } else { "" },
+                    format_hz(f1 - f2),
+                    v1 - v2
+                ),
+                t.marker,
             ),
-            t.marker,
         ));
     }
     fit(segs, None, width)
@@ -168,21 +184,20 @@ pub fn settings_line(app: &App, width: usize) -> Line<'static> {
         Some(c) => (c.fft_size, c.window, Some(c.rbw_hz)),
         None => (app.settings.fft_size, app.settings.window, None),
     };
-    let mut segs = vec![Span::styled(format!("FFT {fft} {window}"), t.label)];
+    let mut segs = vec![(0, Span::styled(format!("FFT {fft} {window}"), t.label))];
     if let Some(rbw) = rbw {
-        segs.push(Span::styled(format!("RBW {}", format_hz(rbw)), t.label));
+        segs.push((1, Span::styled(format!("RBW {}", format_hz(rbw)), t.label)));
     }
-    segs.push(Span::styled(format!("ref {:.0} {}", l.shown(l.top_dbfs), l.unit()), t.label));
-    segs.push(Span::styled(
-        format!("range {:.0} dB{}", l.range_db, if l.auto { " auto" } else { "" }),
-        t.label,
-    ));
+    let scale = format!("ref {:.0} {}", l.shown(l.top_dbfs), l.unit());
+    segs.push((2, Span::styled(scale, t.label)));
+    let range = format!("range {:.0} dB{}", l.range_db, if l.auto { " auto" } else { "" });
+    segs.push((3, Span::styled(range, t.label)));
     let st = &app.stats;
-    segs.push(Span::styled(format!("{:.0} fps", st.fps), t.label));
-    segs.push(Span::styled(format!("{:.0} rows/s", st.rows_per_s), t.label));
-    let style = if st.skipped > 0 { t.warn } else { t.label };
-    segs.push(Span::styled(format!("skipped {} rows", st.skipped), style));
-    segs.push(Span::styled(app.palette.map.name().to_string(), t.label));
+    segs.push((5, Span::styled(format!("{:.0} fps", st.fps), t.label)));
+    segs.push((6, Span::styled(format!("{:.0} rows/s", st.rows_per_s), t.label)));
+    let (rank, style) = if st.skipped > 0 { (1, t.warn) } else { (4, t.label) };
+    segs.push((rank, Span::styled(format!("skipped {} rows", st.skipped), style)));
+    segs.push((7, Span::styled(app.palette.map.name().to_string(), t.label)));
     fit(segs, Some(Span::styled("? keys ", t.header)), width)
 }
 
@@ -202,10 +217,18 @@ mod tests {
 
     #[test]
     fn segments_that_do_not_fit_are_left_out_whole() {
-        let segs = || vec![Span::raw("aaaa"), Span::raw("bbbbbbbbbb"), Span::raw("cc")];
+        let segs =
+            || vec![(0, Span::raw("aaaa")), (1, Span::raw("bbbbbbbbbb")), (2, Span::raw("cc"))];
         assert_eq!(text(&fit(segs(), None, 40)), " aaaa · bbbbbbbbbb · cc");
         assert_eq!(text(&fit(segs(), None, 12)), " aaaa · cc");
         assert_eq!(text(&fit(segs(), Some(Span::raw("? k")), 20)), " aaaa · cc       ? k");
+        // Rank decides what stays, not position: "cc" first, then "aaaa"; "b…" is dropped.
+        let ranked =
+            vec![(1, Span::raw("aaaa")), (2, Span::raw("bbbbbbbbbb")), (0, Span::raw("cc"))];
+        assert_eq!(text(&fit(ranked, None, 12)), " aaaa · cc");
+        let ranked =
+            vec![(1, Span::raw("aaaa")), (0, Span::raw("bbbbbbbbbb")), (2, Span::raw("cc"))];
+        assert_eq!(text(&fit(ranked, None, 12)), " bbbbbbbbbb");
     }
 
     #[test]
