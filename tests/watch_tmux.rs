@@ -1,7 +1,7 @@
 //! End to end, as a user sees it: the real binary runs `watch` in a tmux pane at 80×24 and at
 //! 160×48 on a SigMF recording with a tone at a known frequency. The signal table must show that
-//! frequency; the quit key must end the program with status 0, leave the alternate screen and
-//! mouse reporting, and give the shell back. Skipped (with a message) where tmux is not
+//! frequency; the quit key (or SIGTERM) must end the program with status 0, leave the alternate
+//! screen and mouse reporting, and give the shell back. Skipped (with a message) where tmux is not
 //! installed.
 
 use bandwarden::source::sigmf::meta_json;
@@ -131,7 +131,14 @@ fn first_signal_mhz(screen: &str) -> Option<f64> {
     })
 }
 
-fn run_at(cols: u16, rows: u16) {
+/// How the test ends the monitor.
+#[derive(Clone, Copy, PartialEq)]
+enum End {
+    QuitKey,
+    Sigterm,
+}
+
+fn run_at(cols: u16, rows: u16, end: End) {
     let t0 = Instant::now();
     if !tmux_available() {
         eprintln!("skipping the tmux end-to-end test: tmux is not installed");
@@ -153,7 +160,17 @@ fn run_at(cols: u16, rows: u16) {
     });
     assert!(screen.contains("Level dBFS"), "{screen}");
     assert_eq!(tmux.pane_flag("alternate_on"), "1", "the monitor runs on the alternate screen");
-    tmux.keys(&["q"]);
+    match end {
+        End::QuitKey => tmux.keys(&["q"]),
+        End::Sigterm => {
+            // The monitor is the shell's only child; signal it by its process id.
+            let shell = tmux.pane_flag("pane_pid");
+            let out = Command::new("pgrep").args(["-P", &shell]).output().unwrap();
+            let pid = String::from_utf8_lossy(&out.stdout).trim().to_string();
+            assert!(!pid.is_empty(), "no child of the shell {shell}");
+            assert!(Command::new("kill").args(["-TERM", &pid]).status().unwrap().success());
+        }
+    }
     // The echo's output, not the command line that contains it.
     let status_line = |s: &str| s.lines().find(|l| l.starts_with("BW-DONE-")).map(str::to_owned);
     let back = tmux.wait_for("the shell after quitting", Duration::from_secs(20), |s| {
@@ -171,10 +188,15 @@ fn run_at(cols: u16, rows: u16) {
 
 #[test]
 fn tone_is_found_and_quit_restores_the_terminal_at_80x24() {
-    run_at(80, 24);
+    run_at(80, 24, End::QuitKey);
 }
 
 #[test]
 fn tone_is_found_and_quit_restores_the_terminal_at_160x48() {
-    run_at(160, 48);
+    run_at(160, 48, End::QuitKey);
+}
+
+#[test]
+fn sigterm_also_restores_the_terminal() {
+    run_at(100, 30, End::Sigterm);
 }

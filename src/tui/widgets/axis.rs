@@ -71,18 +71,29 @@ impl Widget for &PlanRow<'_> {
             let c0 = v.column_of(lo.max(v.lo_hz), width).unwrap_or(0);
             let c1 = v.column_of(hi.min(v.hi_hz) - 1e-9 * v.width_hz(), width).unwrap_or(width - 1);
             let style = self.theme.plan;
-            if c1 <= c0 {
-                buf.set_string(x0 + c0 as u16, area.y, "┃", style);
+            let inner = c1.saturating_sub(c0 + 1);
+            let name_w = ch.name.chars().count();
+            if name_w > inner {
+                // Too narrow to hold its name: a mark, with the name beside it where it fits.
+                let mark = if c1 <= c0 {
+                    "┃".to_string()
+                } else {
+                    format!("├{}┤", "─".repeat(inner))
+                };
+                buf.set_string(x0 + c0 as u16, area.y, &mark, style);
+                let after = c0 + mark.chars().count();
+                if after < width {
+                    let room = width - after;
+                    buf.set_stringn(x0 + after as u16, area.y, &ch.name, room, style);
+                }
                 continue;
             }
-            let inner = c1 - c0 - 1;
-            let name: String = ch.name.chars().take(inner).collect();
-            let pad = inner - name.chars().count();
+            let pad = inner - name_w;
             let text = format!(
                 "{}{}{}{}{}",
                 if lo >= v.lo_hz { "├" } else { "─" },
                 "─".repeat(pad / 2),
-                name,
+                ch.name,
                 "─".repeat(pad - pad / 2),
                 if hi < v.hi_hz { "┤" } else { "─" },
             );
@@ -131,5 +142,11 @@ mod tests {
         (&row).render(buf.area, &mut buf);
         // 100 Hz a column: 500..1500 Hz covers columns 5..=14.
         assert_eq!(text_lines(&buf), [" plan      ├──GATE──┤     "]);
+        // A channel narrower than its name gets a mark and the name beside it.
+        let narrow = vec![Channel { name: "Beacon".into(), center_hz: 300.0, width_hz: 100.0 }];
+        let row = PlanRow { view: View::new(0.0, 2_000.0), channels: &narrow, theme: &theme };
+        let mut buf = Buffer::empty(Rect::new(0, 0, GUTTER + 20, 1));
+        (&row).render(buf.area, &mut buf);
+        assert_eq!(text_lines(&buf), [" plan   ├┤Beacon          "]);
     }
 }
