@@ -267,6 +267,15 @@ mod tests {
     }
 
     #[test]
+    fn the_readme_documents_every_key_row() {
+        let readme = include_str!(concat!(env!("CARGO_MANIFEST_DIR"), "/README.md"));
+        for row in HELP {
+            assert!(readme.contains(row.what), "README.md does not describe: {}", row.what);
+        }
+        assert!(readme.contains(MOUSE_HELP.1));
+    }
+
+    #[test]
     fn no_key_is_bound_twice() {
         let keys: Vec<Key> = HELP.iter().flat_map(|r| r.bindings.iter().map(|b| b.0)).collect();
         for (i, k) in keys.iter().enumerate() {

@@ -45,6 +45,9 @@ pub struct RunOptions {
     pub mouse: bool,
 }
 
+/// A symbol no widget draws, marking every cell of the diff's previous picture as stale.
+const STALE: &str = "\u{fffd}";
+
 /// Longest wait for input before checking the signal flag and the clock again.
 const POLL_SLICE: Duration = Duration::from_millis(50);
 
@@ -131,7 +134,8 @@ fn take_rows(app: &mut App, dsp: &DspThread) {
     }
 }
 
-/// What decides whether the cell diff's picture of the screen can be trusted.
+/// What decides whether the cell diff's and the painter's picture of the screen can be trusted:
+/// the screen size, the layout and whether the help is open.
 type DrawnMode = (Rect, Option<Screen>, bool);
 
 fn draw(
@@ -142,6 +146,8 @@ fn draw(
     out: &mut Vec<u8>,
     opts: RunOptions,
 ) -> anyhow::Result<()> {
+    // Resize now rather than inside `draw`, whose clearing would wipe the painter's lines.
+    term.autoresize()?;
     let size = term.size()?;
     let area = Rect::new(0, 0, size.width, size.height);
     let screen = Screen::split(area, app.plan_row());
@@ -149,24 +155,30 @@ fn draw(
         app.history.ensure_capacity(2 * s.waterfall.height as usize + 4);
     }
     app.screen = screen;
-    app.waterfall_external = opts.scroll_region && !app.help && screen.is_some();
-    let mode = (area, screen, app.waterfall_external);
+    app.waterfall_external = opts.scroll_region && screen.is_some();
+    let mode = (area, screen, app.help);
     if *drawn_mode != Some(mode) {
-        // The layout moved or the waterfall changed hands: start from a blank screen, with the
-        // cell diff told so (both of its buffers emptied), and the painter drawing every line.
+        // The layout moved or the help opened or closed: start from a blank screen, have the
+        // painter draw every line and the cell diff send every cell (its idea of the screen
+        // becomes cells that match nothing, so blanks over painted lines are sent too).
         term.backend_mut().write_all(b"\x1b[0m\x1b[2J")?;
+        for cell in term.current_buffer_mut().content.iter_mut() {
+            cell.set_symbol(STALE);
+        }
         term.swap_buffers();
         painter.invalidate();
         *drawn_mode = Some(mode);
     }
-    term.draw(|f| f.render_widget(&*app, f.area()))?;
+    // The waterfall goes first, so the help overlay lands on top of it; while the help is open
+    // the waterfall holds still (drawn once), which costs nothing over the wire.
     if let (true, Some(s), Some(plot)) = (app.waterfall_external, screen, app.waterfall_plot()) {
-        out.clear();
-        painter.paint(out, s.waterfall, app.waterfall_epoch, &plot);
-        if !out.is_empty() {
+        if !app.help || !painter.is_valid() {
+            out.clear();
+            painter.paint(out, s.waterfall, app.waterfall_epoch, &plot);
             term.backend_mut().write_all(out)?;
-            term.backend_mut().flush()?;
         }
     }
+    // Draws the rest and flushes everything as one write.
+    term.draw(|f| f.render_widget(&*app, f.area()))?;
     Ok(())
 }

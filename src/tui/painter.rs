@@ -39,6 +39,11 @@ impl Painter {
         self.drawn = None;
     }
 
+    /// Whether the terminal shows what the painter last drew.
+    pub fn is_valid(&self) -> bool {
+        self.drawn.is_some()
+    }
+
     /// Appends to `out` what brings the terminal's waterfall `area` up to date with `plot`;
     /// `epoch` changes whenever every line must be drawn again.
     pub fn paint(&mut self, out: &mut Vec<u8>, area: Rect, epoch: u64, plot: &WaterfallPlot<'_>) {

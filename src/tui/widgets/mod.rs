@@ -292,5 +292,15 @@ mod tests {
                 assert_eq!(buf[(x, y)].bg, ratatui::style::Color::Reset, "cell {x},{y} drawn");
             }
         }
+        // With the help open, the overlay's cells are drawn through the diff; the waterfall
+        // around it stays with the painter.
+        a.apply(Intent::ToggleHelp);
+        let mut b = Buffer::empty(Rect::new(0, 0, 80, 24));
+        (&a).render(b.area, &mut b);
+        let (x, y) = (w.x, w.y + 2);
+        assert_eq!(b[(x, y)].diff_option, CellDiffOption::Skip);
+        let popup_edge = (w.left()..w.right()).find(|&x| b[(x, y)].symbol() == "│").unwrap();
+        assert_eq!(b[(popup_edge, y)].diff_option, CellDiffOption::None);
+        assert_eq!(b[(popup_edge + 2, y)].diff_option, CellDiffOption::None);
     }
 }
