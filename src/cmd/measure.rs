@@ -87,6 +87,7 @@ pub fn run(args: MeasureArgs) -> Result<ExitCode> {
 /// Runs the DSP over the whole input on this thread; returns the average and the sample count.
 fn average_all(input: &Input, cfg: EngineConfig) -> (Option<Spectrum>, u64) {
     let mut engine = Engine::new(cfg, input.info.sample_rate_hz, input.info.center_hz);
+    engine.set_threads(std::thread::available_parallelism().map_or(1, |n| n.get()));
     let mut out = None;
     let mut samples = 0u64;
     for block in input.blocks.iter() {
