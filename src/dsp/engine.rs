@@ -114,7 +114,13 @@ impl Engine {
             self.pending_start = start;
         }
         self.pending.extend_from_slice(samples);
-        let batch = if self.threads() == 1 { 1 } else { 2 * self.threads() };
+        // Two frames per thread amortise the thread hand-off; very long frames need only one
+        // each, and holding more would cost memory (a 1M-point frame is 8 MiB).
+        let batch = match self.threads() {
+            1 => 1,
+            t if self.cfg.fft_size >= 65536 => t,
+            t => 2 * t,
+        };
         if self.frames_ready() >= batch {
             self.process_ready(emit);
         }

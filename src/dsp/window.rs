@@ -154,7 +154,6 @@ pub struct Window {
     pub s1: f64,
     /// `Σw²`.
     pub s2: f64,
-    exact: Vec<f64>,
 }
 
 impl Window {
@@ -163,15 +162,15 @@ impl Window {
         let s1 = exact.iter().sum();
         let s2 = exact.iter().map(|w| w * w).sum();
         let coeffs = exact.iter().map(|&w| w as f32).collect();
-        Window { kind, coeffs, s1, s2, exact }
+        Window { kind, coeffs, s1, s2 }
     }
 
     pub fn len(&self) -> usize {
-        self.exact.len()
+        self.coeffs.len()
     }
 
     pub fn is_empty(&self) -> bool {
-        self.exact.is_empty()
+        self.coeffs.is_empty()
     }
 
     /// Equivalent noise bandwidth in bins, `N·S2/S1²`.
@@ -195,7 +194,7 @@ impl Window {
         let step = -2.0 * PI * delta / n as f64;
         let (mut re, mut im, mut sum) = (0.0f64, 0.0f64, 0.0f64);
         for i in (0..n).step_by(stride) {
-            let w = self.exact[i];
+            let w = self.coeffs[i] as f64;
             let (s, c) = (step * i as f64).sin_cos();
             re += w * c;
             im += w * s;
