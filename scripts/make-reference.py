@@ -1,7 +1,7 @@
 #!/usr/bin/env python3
 """Writes the reference vectors that tests/accuracy.rs compares bandwarden against.
 
-Run from the repository root:
+Run it (from anywhere; it writes next to itself, under ../tests/reference):
 
     python3 scripts/make-reference.py
 
@@ -30,7 +30,7 @@ import scipy
 import scipy.signal
 import scipy.special
 
-OUT = os.path.join("tests", "reference")
+OUT = os.path.join(os.path.dirname(os.path.abspath(__file__)), os.pardir, "tests", "reference")
 FS = 1.0e6
 LEN = 12000  # not a multiple of any hop below: welch and bandwarden must both drop the tail
 SEED = 20240611
@@ -199,7 +199,7 @@ def main():
         f.write(f"python {platform.python_version()}\n")
         f.write(f"numpy {np.__version__}\n")
         f.write(f"scipy {scipy.__version__}\n")
-        f.write("command: python3 scripts/make-reference.py (from the repository root)\n")
+        f.write("command: python3 scripts/make-reference.py\n")
         f.write(f"seed: {SEED}\n")
 
 

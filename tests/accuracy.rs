@@ -433,8 +433,8 @@ fn noise_floor_is_unbiased_on_noise_alone() {
     }
 }
 
-/// With a few strong carriers (60 dB above the noise in one RBW) the floor still reads within
-/// 1 dB of σ²/fs (definition of a PSD): the carriers and their window skirts are excised.
+/// With a few strong carriers (51 to 60 dB above the noise in one RBW) the floor still reads
+/// within 1 dB of σ²/fs (definition of a PSD): the carriers and their window skirts are excised.
 #[test]
 fn noise_floor_holds_with_strong_carriers() {
     let (rate, n) = (1e6, 1024usize);
@@ -444,15 +444,25 @@ fn noise_floor_holds_with_strong_carriers() {
     let carrier_dbfs = db(truth * rbw) + 60.0;
     for frames in [1usize, 16] {
         let len = n + (frames - 1) * n / 2;
-        let mut rng = Rng::new(77 + frames as u64);
-        let mut x = noise64(&mut rng, len, variance);
-        for (i, f) in [-301_234.5, -12_345.6, 88_888.8, 250_101.0].into_iter().enumerate() {
-            add_tone(&mut x, rate, f, carrier_dbfs - 3.0 * i as f64, rng.uniform() * 2.0 * PI);
+        let (mut sum, mut worst) = (0.0, 0.0f64);
+        for seed in 0..4u64 {
+            let mut rng = Rng::new(77 + 10 * seed + frames as u64);
+            let mut x = noise64(&mut rng, len, variance);
+            for (i, f) in [-301_234.5, -12_345.6, 88_888.8, 250_101.0].into_iter().enumerate() {
+                let phase = rng.uniform() * 2.0 * PI;
+                add_tone(&mut x, rate, f, carrier_dbfs - 3.0 * i as f64, phase);
+            }
+            let spec = average(&to_f32(&x), cfg(n, WindowKind::Hann, 0.5), rate, 0.0);
+            let err = db(noise_floor(&spec.psd, spec.dof) / truth);
+            assert!(err.abs() < 1.0, "{frames} frame(s), seed {seed}: floor off by {err:.3} dB");
+            sum += err;
+            worst = worst.max(err.abs());
         }
-        let spec = average(&to_f32(&x), cfg(n, WindowKind::Hann, 0.5), rate, 0.0);
-        let err = db(noise_floor(&spec.psd, spec.dof) / truth);
-        assert!(err.abs() < 1.0, "{frames} frame(s) with carriers: floor off by {err:.3} dB");
-        eprintln!("noise floor with 4 carriers at +60 dB, {frames} frame(s): {err:+.3} dB");
+        eprintln!(
+            "noise floor with 4 carriers at +51..+60 dB, {frames} frame(s): mean {:+.3} dB, \
+             worst {worst:.3} dB",
+            sum / 4.0
+        );
     }
 }
 
@@ -481,7 +491,8 @@ fn bessel_reference_agrees_with_abramowitz_stegun() {
     for (k, table) in [(0, -0.177_596_77), (1, -0.327_579_14), (2, 0.046_565_12)] {
         assert!((j[k] - table).abs() < 1e-8, "J{k}(5) = {} vs A&S {table}", j[k]);
     }
-    // Σ J_k² over all k (both signs) = 1: the lines carry all of the carrier's power (A&S 9.1.76).
+    // Σ J_k² over all k (both signs) = 1: the lines carry all of the carrier's power
+    // (A&S 9.1.76, from memory).
     for beta in [2.4, 5.0] {
         let j = bessel_j(beta);
         let total = j[0] * j[0] + 2.0 * j[1..].iter().map(|v| v * v).sum::<f64>();
@@ -519,7 +530,7 @@ fn fm_line_powers_are_bessel_squares() {
         let mut worst = 0.0f64;
         let mut lines = 0;
         for k in -15i32..=15 {
-            // J_−k = (−1)^k·J_k (A&S 9.1.5): both sidebands carry J_k².
+            // J_−k = (−1)^k·J_k (A&S 9.1.5, from memory): both sidebands carry J_k².
             let jk = j[k.unsigned_abs() as usize];
             let expect_dbfs = FM_LEVEL_DBFS + db(jk * jk);
             if expect_dbfs < FM_LEVEL_DBFS - 40.0 {
@@ -546,8 +557,8 @@ fn fm_line_powers_are_bessel_squares() {
 
 /// ITU-R SM.328 99 % OBW applied to the ideal line spectrum: the upper limit sits on line n, the
 /// outermost line for which the lines from n outwards hold at least 0.5 % of the power; the
-/// lower limit mirrors it (|J_−k| = |J_k|, A&S 9.1.5). Also returns the share of line n's own
-/// power that lies beyond the limit.
+/// lower limit mirrors it (|J_−k| = |J_k|, A&S 9.1.5, from memory). Also returns the share of
+/// line n's own power that lies beyond the limit.
 fn bessel_obw_line(j: &[f64]) -> (usize, f64) {
     let mut beyond = 0.0;
     for n in (1..j.len()).rev() {
@@ -564,7 +575,7 @@ fn bessel_obw_line(j: &[f64]) -> (usize, f64) {
 /// power lies: a quantile of the window's power response |W(δ)|², integrated numerically over
 /// ±`half` bins. A line seen through the window has exactly this shape.
 fn line_tail_bins(window: &Window, q: f64, half: f64) -> f64 {
-    let step = 1.0 / 128.0;
+    let step = 1.0 / 64.0;
     let count = (2.0 * half / step) as usize;
     let power: Vec<f64> =
         (0..=count).map(|i| window.response(half - i as f64 * step).powi(2)).collect();
@@ -582,13 +593,18 @@ fn line_tail_bins(window: &Window, q: f64, half: f64) -> f64 {
 /// The 99 % occupied bandwidth (ITU-R SM.328) of the FM carrier equals the width computed from
 /// the Bessel line powers (A&S table 9.1 / scipy.special.jv): each limit within one RBW of the
 /// line it falls on. A measured line is smeared over the window's main lobe, so the limit moves
-/// inside that lobe; predicting where from the window's response must agree within half a bin
-/// (the PSD is integrated as one rectangle per bin).
+/// inside that lobe: the less of the limit line lies beyond the limit, the further out it goes
+/// (up to the main lobe's half-width, 1.3 RBW for Hann and 2 RBW for Blackman-Harris), so one
+/// RBW holds for these β but is not a law. The sharper check predicts the limit from the
+/// window's response and must agree within half a bin (the PSD is integrated as one rectangle
+/// per bin).
 #[test]
 fn fm_occupied_bandwidth_matches_bessel_lines() {
     let n = 4096;
     for kind in [WindowKind::Hann, WindowKind::BlackmanHarris] {
-        let window = Window::new(kind, n);
+        // The response in bins hardly depends on N (Dirichlet kernels differ by O((δ/N)²));
+        // a 512-point window keeps the integration quick.
+        let window = Window::new(kind, 512);
         for beta in [2.4, 5.0] {
             let j = bessel_j(beta);
             let (line, q) = bessel_obw_line(&j);
@@ -798,7 +814,8 @@ fn measure_command_reports_the_truth() {
     let obw = num(&band["obw_hz"]);
     assert!((obw - obw_truth).abs() < 2.0 * bin, "band OBW {obw:.1} Hz vs {obw_truth:.1} Hz");
     eprintln!(
-        "measure: floor {:+.3} dB, peak {:+.4} bins / {:+.3} dB, band power {:+.3} dB, OBW {:+.2} bins",
+        "measure: floor {:+.3} dB, peak {:+.4} bins / {:+.3} dB, band power {:+.3} dB, \
+         OBW {:+.2} bins",
         floor - db(noise_density),
         (f - centre_hz - tone_hz) / bin,
         lvl - tone_dbfs,
