@@ -244,7 +244,9 @@ fn window_figures_match_scipy() {
         close(w.s2, "s2", 1e-12);
         close(w.enbw_bins(), "enbw_bins", 1e-12);
         close(w.coherent_gain(), "coherent_gain", 1e-12);
-        close(w.scalloping_loss_db(), "scalloping_db", 1e-9);
+        // The response is computed from the f32 coefficients the FFT really uses, so it agrees with
+        // scipy's float64 figure to float32 precision (~1e-7), not better.
+        close(w.scalloping_loss_db(), "scalloping_db", 1e-7);
         // Both walk the same 1/64-bin grid, so they find the same side-lobe sample.
         close(w.highest_sidelobe_db(), "highest_sidelobe_db", 1e-3);
         checked += 1;
