@@ -536,6 +536,62 @@ mod tests {
         assert!(beacon > 0.5 * 10f64.powf(BEACON_LEVEL_DBFS / 10.0));
     }
 
+    /// A file of the repository, for the checks of the committed recording and plan.
+    fn repo_file(name: &str) -> std::path::PathBuf {
+        std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join(name)
+    }
+
+    #[test]
+    fn plan_matches_the_scene() {
+        // Truth: the channel table. The plan is written by hand, so check every entry.
+        let text = std::fs::read_to_string(repo_file("recordings/wrenhollow-plan.toml")).unwrap();
+        let plan: toml::Value = toml::from_str(&text).unwrap();
+        let entries = plan["channel"].as_array().unwrap();
+        let hz = |v: &toml::Value| match v {
+            toml::Value::String(s) => crate::units::parse_hz(s).unwrap(),
+            v => v.as_float().or(v.as_integer().map(|i| i as f64)).unwrap(),
+        };
+        let all = channels();
+        assert_eq!(entries.len(), all.len());
+        for (e, c) in entries.iter().zip(&all) {
+            assert_eq!(e["name"].as_str(), Some(c.name));
+            assert!((hz(&e["center"]) - c.center_hz(DEFAULT_CENTER_HZ)).abs() < 1e-3, "{}", c.name);
+            assert!((hz(&e["width"]) - c.width_hz).abs() < 1e-3, "{}", c.name);
+        }
+    }
+
+    #[test]
+    fn recording_matches_the_scene() {
+        // The committed recording must be what `scripts/make-recordings` makes from this scene:
+        // regenerate it and compare, allowing one quantisation step on a few samples for
+        // last-bit differences of the platform's maths library.
+        let meta_text =
+            std::fs::read_to_string(repo_file("recordings/wrenhollow-demo.sigmf-meta")).unwrap();
+        let meta = crate::source::sigmf::parse_meta(&meta_text, "recording").unwrap();
+        assert_eq!(meta.datatype, crate::source::SampleFormat::Cu8);
+        assert_eq!(meta.sample_rate_hz, Some(1e6));
+        assert_eq!(meta.center_hz, Some(DEFAULT_CENTER_HZ));
+        assert!(meta.datetime.is_some(), "the recording needs core:datetime");
+        let data = std::fs::read(repo_file("recordings/wrenhollow-demo.sigmf-data")).unwrap();
+        assert_eq!(data.len(), 8_000_000, "1 MS/s × 4 s of cu8");
+        let mut src = DemoSource::new(1e6, DEFAULT_CENTER_HZ, false);
+        let mut samples = Vec::new();
+        src.read(&mut samples, 4_000_000).unwrap();
+        let mut fresh = Vec::new();
+        crate::source::SampleFormat::Cu8.encode(&samples, &mut fresh);
+        let differ: Vec<i32> = fresh
+            .iter()
+            .zip(&data)
+            .map(|(&a, &b)| a as i32 - b as i32)
+            .filter(|d| *d != 0)
+            .collect();
+        assert!(
+            differ.len() <= 800 && differ.iter().all(|d| d.abs() <= 1),
+            "{} bytes differ; rerun scripts/make-recordings after changing the scene",
+            differ.len()
+        );
+    }
+
     #[test]
     fn source_reads_and_rewinds() {
         let mut src = DemoSource::new(1e6, DEFAULT_CENTER_HZ, false);

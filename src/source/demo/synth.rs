@@ -44,6 +44,12 @@ pub fn splitmix64(state: &mut u64) -> u64 {
 /// A full-cycle sine table indexed by the top bits of a 32-bit phase.
 pub struct SineTable(Box<[f32; SINE_LEN]>);
 
+impl Default for SineTable {
+    fn default() -> Self {
+        SineTable::new()
+    }
+}
+
 impl SineTable {
     pub fn new() -> SineTable {
         let mut t = Box::new([0f32; SINE_LEN]);
