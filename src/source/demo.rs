@@ -42,8 +42,9 @@
 //! The generators (see [`synth`]) avoid per-sample transcendental functions: phase accumulators
 //! with table look-up for FM and FSK, exact per-chunk rotation tables for fixed tones, and a walked
 //! table for Gaussian noise. `cargo run --release --example demo_speed` reports the rate; on a
-//! shared two-core server it was 80–100 MS/s as scheduled and 50–60 MS/s with every channel
-//! keyed, at both 2.4 and 20 MS/s, so `bandwarden demo --realtime --rate 20M` keeps up.
+//! busy shared two-core server it read 60–100 MS/s as scheduled and 36–76 MS/s with every
+//! channel keyed, at 2.4 and at 20 MS/s (the spread is the other load), and
+//! `bandwarden demo --realtime --rate 20M --format cu8` kept pace using half a core.
 
 mod channels;
 mod schedule;
