@@ -18,8 +18,10 @@ use crate::measure::{find_signals, noise_floor, Detection, Signal};
 use crate::units::db;
 use std::time::{Duration, Instant};
 
-/// How often the table, the noise floor and the automatic scale are refreshed.
-pub const MEASURE_EVERY: Duration = Duration::from_millis(250);
+/// How often the table, the noise floor, the marker readings and the automatic scale are
+/// refreshed: often enough to follow the band, seldom enough to read, and light (refining a
+/// peak between bins evaluates the window's response many times).
+pub const MEASURE_EVERY: Duration = Duration::from_millis(500);
 /// Signals measured for the table (the screen shows as many as fit).
 pub const MAX_SIGNALS: usize = 12;
 /// FFT sizes reachable with the keys.
@@ -153,6 +155,10 @@ pub struct App {
     pub levels: Levels,
     pub marker_hz: Option<f64>,
     pub ref_marker_hz: Option<f64>,
+    /// What the markers read (frequency, dBFS), refreshed with the measurements and whenever a
+    /// marker moves.
+    pub marker_reading: Option<(f64, f64)>,
+    pub ref_reading: Option<(f64, f64)>,
     pub depth: Depth,
     pub palette: Palette,
     pub theme: Theme,
@@ -197,6 +203,8 @@ impl App {
             levels: Levels { top_dbfs: 0.0, range_db: 100.0, auto: true, offset_db },
             marker_hz: None,
             ref_marker_hz: None,
+            marker_reading: None,
+            ref_reading: None,
             depth,
             palette: Palette::new(depth, MapKind::Viridis),
             theme: Theme::new(depth),
@@ -272,6 +280,13 @@ impl App {
             let peak = self.visible_peak_dbfs(&avg).unwrap_or(floor_dbfs);
             self.auto_scale(floor_dbfs, peak);
         }
+        self.refresh_readings();
+    }
+
+    /// Reads both markers again.
+    pub fn refresh_readings(&mut self) {
+        self.marker_reading = self.marker_hz.and_then(|m| self.reading(m));
+        self.ref_reading = self.ref_marker_hz.and_then(|m| self.reading(m));
     }
 
     /// Largest level of the average in view, dBFS in one RBW.
@@ -316,6 +331,14 @@ impl App {
 
     /// Applies an intent.
     pub fn apply(&mut self, intent: Intent) {
+        let markers = (self.marker_hz, self.ref_marker_hz);
+        self.apply_inner(intent);
+        if (self.marker_hz, self.ref_marker_hz) != markers {
+            self.refresh_readings();
+        }
+    }
+
+    fn apply_inner(&mut self, intent: Intent) {
         match intent {
             Intent::Quit => self.mode = Mode::Quit,
             Intent::ToggleHelp => self.help = !self.help,

@@ -54,6 +54,29 @@ pub struct PlanRow<'a> {
     pub theme: &'a Theme,
 }
 
+impl PlanRow<'_> {
+    /// The channels in view with their first and last columns, left to right.
+    fn spans(&self, width: usize) -> Vec<(usize, usize, &Channel)> {
+        let v = self.view;
+        let mut spans: Vec<(usize, usize, &Channel)> = self
+            .channels
+            .iter()
+            .filter_map(|ch| {
+                let (lo, hi) = (ch.center_hz - 0.5 * ch.width_hz, ch.center_hz + 0.5 * ch.width_hz);
+                if hi < v.lo_hz || lo >= v.hi_hz {
+                    return None;
+                }
+                let c0 = v.column_of(lo.max(v.lo_hz), width).unwrap_or(0);
+                let c1 =
+                    v.column_of(hi.min(v.hi_hz) - 1e-9 * v.width_hz(), width).unwrap_or(width - 1);
+                Some((c0, c1.max(c0), ch))
+            })
+            .collect();
+        spans.sort_by_key(|s| s.0);
+        spans
+    }
+}
+
 impl Widget for &PlanRow<'_> {
     fn render(self, area: Rect, buf: &mut Buffer) {
         if area.width <= GUTTER || area.height == 0 {
@@ -63,28 +86,25 @@ impl Widget for &PlanRow<'_> {
         let x0 = area.x + GUTTER;
         buf.set_string(area.x, area.y, " plan ", self.theme.label);
         let v = self.view;
-        for ch in self.channels {
+        let style = self.theme.plan;
+        let spans = self.spans(width);
+        for (i, &(c0, c1, ch)) in spans.iter().enumerate() {
             let (lo, hi) = (ch.center_hz - 0.5 * ch.width_hz, ch.center_hz + 0.5 * ch.width_hz);
-            if hi < v.lo_hz || lo >= v.hi_hz {
-                continue;
-            }
-            let c0 = v.column_of(lo.max(v.lo_hz), width).unwrap_or(0);
-            let c1 = v.column_of(hi.min(v.hi_hz) - 1e-9 * v.width_hz(), width).unwrap_or(width - 1);
-            let style = self.theme.plan;
             let inner = c1.saturating_sub(c0 + 1);
             let name_w = ch.name.chars().count();
             if name_w > inner {
-                // Too narrow to hold its name: a mark, with the name beside it where it fits.
-                let mark = if c1 <= c0 {
+                // Too narrow to hold its name: a mark, and as much of the name beside it as
+                // fits before the next channel.
+                let mark = if c1 == c0 {
                     "┃".to_string()
                 } else {
                     format!("├{}┤", "─".repeat(inner))
                 };
                 buf.set_string(x0 + c0 as u16, area.y, &mark, style);
                 let after = c0 + mark.chars().count();
-                if after < width {
-                    let room = width - after;
-                    buf.set_stringn(x0 + after as u16, area.y, &ch.name, room, style);
+                let next = spans.get(i + 1).map_or(width, |s| s.0);
+                if after < next {
+                    buf.set_stringn(x0 + after as u16, area.y, &ch.name, next - after, style);
                 }
                 continue;
             }
@@ -148,5 +168,14 @@ mod tests {
         let mut buf = Buffer::empty(Rect::new(0, 0, GUTTER + 20, 1));
         (&row).render(buf.area, &mut buf);
         assert_eq!(text_lines(&buf), [" plan   ├┤Beacon          "]);
+        // Names beside narrow channels stop where the next channel starts.
+        let two = vec![
+            Channel { name: "ops".into(), center_hz: 300.0, width_hz: 100.0 },
+            Channel { name: "yard".into(), center_hz: 700.0, width_hz: 100.0 },
+        ];
+        let row = PlanRow { view: View::new(0.0, 2_000.0), channels: &two, theme: &theme };
+        let mut buf = Buffer::empty(Rect::new(0, 0, GUTTER + 20, 1));
+        (&row).render(buf.area, &mut buf);
+        assert_eq!(text_lines(&buf), [" plan   ├┤op├┤yard        "]);
     }
 }

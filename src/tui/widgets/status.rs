@@ -144,7 +144,7 @@ pub fn marker_line(app: &App, width: usize) -> Line<'static> {
     let t = &app.theme;
     let l = app.levels;
     let unit = l.unit();
-    let Some((f1, v1)) = app.marker_hz.and_then(|m| app.reading(m)) else {
+    let Some((f1, v1)) = app.marker_hz.and(app.marker_reading) else {
         let hint = "marker: p strongest signal · ← → move · click to place · ? all keys";
         return fit(vec![(0, Span::styled(hint, t.label))], None, width);
     };
@@ -155,7 +155,7 @@ pub fn marker_line(app: &App, width: usize) -> Line<'static> {
     if let Some(ch) = app.channel_at(f1) {
         segs.push((3, Span::styled(ch.name.clone(), t.plan)));
     }
-    if let Some((f2, v2)) = app.ref_marker_hz.and_then(|m| app.reading(m)) {
+    if let Some((f2, v2)) = app.ref_marker_hz.and(app.ref_reading) {
         segs.push((
             2,
             Span::styled(format!("△ {}  {:.1} {unit}", format_hz(f2), l.shown(v2)), t.ref_marker),
