@@ -165,9 +165,10 @@ fn run_at(cols: u16, rows: u16, end: End) {
         End::Sigterm => {
             // The monitor is the shell's only child; signal it by its process id.
             let shell = tmux.pane_flag("pane_pid");
-            let out = Command::new("pgrep").args(["-P", &shell]).output().unwrap();
-            let pid = String::from_utf8_lossy(&out.stdout).trim().to_string();
-            assert!(!pid.is_empty(), "no child of the shell {shell}");
+            let children = std::fs::read_to_string(format!("/proc/{shell}/task/{shell}/children"))
+                .expect("reading the shell's children from /proc");
+            let pid =
+                children.split_whitespace().next().expect("the shell has a child").to_string();
             assert!(Command::new("kill").args(["-TERM", &pid]).status().unwrap().success());
         }
     }

@@ -274,7 +274,8 @@ mod tests {
     #[test]
     fn bad_values_are_explained() {
         assert!(validate(&parse(&["--fps", "0"])).unwrap_err().to_string().contains("1 ..= 60"));
-        assert!(validate(&parse(&["--speed", "-1"])).is_err());
+        assert!(validate(&parse(&["--speed=-1"])).is_err());
+        assert!(validate(&parse(&["--speed", "0"])).unwrap_err().to_string().contains("--speed"));
         assert!(validate(&parse(&["--row-rate", "1000"]))
             .unwrap_err()
             .to_string()

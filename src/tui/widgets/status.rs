@@ -13,6 +13,8 @@ use ratatui::text::{Line, Span};
 const SEP: &str = " · ";
 /// Display width of [`SEP`] (the dot is one column, two bytes).
 const SEP_WIDTH: usize = 3;
+/// The first segment is led by one space instead of a separator.
+const FIRST_SAVING: usize = SEP_WIDTH - 1;
 
 /// Joins segments with separators in the order given, leaving out those that do not fit in
 /// `width`: the segments with the lowest `rank` go in first. `right` is kept at the right edge,
@@ -29,9 +31,9 @@ pub fn fit(
     let mut keep = vec![false; segments.len()];
     let mut used = 0;
     for i in order {
-        // The first segment has a leading space, the others a separator.
+        // Each segment is counted with a separator; the first shown has a single space instead.
         let extra = segments[i].1.width() + SEP_WIDTH;
-        if used + extra <= room + SEP_WIDTH - 1 {
+        if used + extra <= room + FIRST_SAVING {
             keep[i] = true;
             used += extra;
         }
