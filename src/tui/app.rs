@@ -574,6 +574,17 @@ impl App {
         ])
     }
 
+    /// Whether the channel-plan row is on screen.
+    pub fn plan_row(&self) -> bool {
+        self.plan_visible && !self.channels.is_empty()
+    }
+
+    /// Rows per second the DSP delivers (the request, limited by the frames the input has).
+    pub fn effective_row_rate(&self) -> f64 {
+        let cfg = self.settings.engine(self.source.sample_rate_hz);
+        self.source.sample_rate_hz / cfg.hop() as f64 / cfg.frames_per_output.unwrap_or(1) as f64
+    }
+
     /// The channel a frequency falls in, if a plan is loaded.
     pub fn channel_at(&self, freq_hz: f64) -> Option<&Channel> {
         self.channels.iter().find(|c| c.contains(freq_hz))

@@ -22,17 +22,6 @@ use table::SignalTable;
 use waterfall::{label_interval, WaterfallPlot, PAIRS_ONLY_FROM_ROWS_PER_S};
 
 impl App {
-    /// Whether the channel-plan row is on screen.
-    pub fn plan_row(&self) -> bool {
-        self.plan_visible && !self.channels.is_empty()
-    }
-
-    /// Rows per second the DSP delivers (the request, limited by the frames the input has).
-    pub fn effective_row_rate(&self) -> f64 {
-        let cfg = self.settings.engine(self.source.sample_rate_hz);
-        self.source.sample_rate_hz / cfg.hop() as f64 / cfg.frames_per_output.unwrap_or(1) as f64
-    }
-
     /// The waterfall as the painter and the widget see it.
     pub fn waterfall_plot(&self) -> Option<WaterfallPlot<'_>> {
         let rows_per_s = self.effective_row_rate();
