@@ -35,6 +35,7 @@ pub fn run(cli: Cli) -> anyhow::Result<ExitCode> {
         None => cmd::measure::run_default(),
         Some(Command::Measure(args)) => cmd::measure::run(args),
         Some(Command::Demo(args)) => cmd::demo::run(args),
+        Some(Command::Log(args)) => cmd::log::run(args),
     }
 }
 

@@ -32,6 +32,9 @@ pub enum Command {
     Measure(MeasureArgs),
     /// Write the built-in demo scene as IQ samples (to a file or stdout), to try pipes and files.
     Demo(DemoArgs),
+    /// Log how busy each channel of a plan is (ITU-R SM.1880 occupancy) and every emission, as
+    /// JSON Lines or CSV, for unattended runs.
+    Log(crate::cmd::log::LogArgs),
 }
 
 /// Where samples come from and how to read them.
@@ -120,6 +123,8 @@ pub struct MeasureArgs {
     /// Print one JSON object instead of the table.
     #[arg(long)]
     pub json: bool,
+    #[command(flatten)]
+    pub channels: crate::plan::ChannelArgs,
 }
 
 #[derive(Args, Debug)]

@@ -11,5 +11,6 @@ pub mod dsp;
 pub mod measure;
 pub mod output;
 pub mod pipeline;
+pub mod plan;
 pub mod source;
 pub mod units;

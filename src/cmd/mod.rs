@@ -1,4 +1,5 @@
 //! One module per subcommand; each turns validated arguments into a run.
 
 pub mod demo;
+pub mod log;
 pub mod measure;
