@@ -8,10 +8,13 @@
 //! # Definitions
 //!
 //! - **Measurement sample** (SM.1880): one averaged STFT row, i.e. `frames_per_sample` FFT frames
-//!   taken `hop` samples apart. Its *dwell* is `frames_per_sample · hop / fs` seconds; a row is
-//!   stamped with the time span `[first_sample, first_sample + frames_per_sample · hop)`, so rows
-//!   tile time without overlap (the last frame of a row reaches `fft_size − hop` samples further;
-//!   those samples are measured again by the next row).
+//!   taken `hop` samples apart. Its *dwell* is `frames_per_sample · hop / fs` seconds. The frames
+//!   of a row cover `dwell + (fft_size − hop)` samples; the row is stamped with the middle
+//!   `dwell` of them (`[first + (fft_size − hop)/2, … + dwell)`), where the window gives most
+//!   weight, so consecutive rows tile time without overlap. Time resolution is therefore the
+//!   longer of the dwell and the FFT frame: an emission far above the threshold is seen by a row
+//!   whose window only grazes it, so its start and end can be off by up to half a frame more
+//!   than a dwell.
 //! - **Channel power** `P`: the integral of the row's PSD over the channel, in FS²
 //!   ([`band_power`]).
 //! - **Noise floor**: a density `D` (FS²/Hz) shared by all channels. For each row we estimate it
@@ -39,7 +42,7 @@
 //!   subtracted bin by bin first so that the figure describes the emission, not the receiver's
 //!   noise across the channel.
 //! - **Intervals** are aligned to the first sample of the input: interval `k` covers samples
-//!   `[k·I, (k+1)·I)`; a row belongs to the interval holding its first sample.
+//!   `[k·I, (k+1)·I)`; a row belongs to the interval holding the start of its stamped span.
 //! - **Gaps** (samples a live source dropped): the row being built when the gap came is discarded
 //!   by the caller, open emissions are closed and flagged partial (what happened in the gap is
 //!   unknown), and the gap is counted in the interval it falls in.
@@ -93,6 +96,14 @@ pub struct Timing {
 }
 
 impl Timing {
+    /// The time span a row stands for: `stride` samples centred in the span its frames cover,
+    /// where the window gives most weight (a longer span if the row straddles dropped samples).
+    pub fn row_span(&self, row: &Spectrum) -> (u64, u64) {
+        let start = row.first_sample + self.overhang / 2;
+        let end = (start + self.stride).max(row.end_sample.saturating_sub(self.overhang / 2));
+        (start, end)
+    }
+
     /// Builds the time base from durations in seconds.
     pub fn new(
         sample_rate_hz: f64,
@@ -343,7 +354,8 @@ impl Occupancy {
         if self.shape.is_none() {
             self.learn_shape(row);
         }
-        let k = row.first_sample / self.timing.interval;
+        let (row_start, row_end) = self.timing.row_span(row);
+        let k = row_start / self.timing.interval;
         if self.interval != Some(k) {
             if let Some(prev) = self.interval {
                 let end = (prev + 1).saturating_mul(self.timing.interval);
@@ -352,8 +364,6 @@ impl Occupancy {
             self.interval = Some(k);
         }
         let density = self.floor.push(noise_floor(&row.psd, row.dof));
-        let row_end = (row.first_sample + self.timing.stride)
-            .max(row.end_sample.saturating_sub(self.timing.overhang));
         let hang = self.timing.hang_samples;
         for (index, ch) in self.channels.iter_mut().enumerate() {
             let r = read_channel(row, &ch.def, density);
@@ -366,7 +376,7 @@ impl Occupancy {
             if r.occupied {
                 let (b0, b1) = ch.bins;
                 let e = ch.open.get_or_insert_with(|| OpenEmission {
-                    start: row.first_sample,
+                    start: row_start,
                     end: row_end,
                     rows: 0,
                     power_sum: 0.0,
