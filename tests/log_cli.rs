@@ -40,8 +40,11 @@ impl Drop for Scratch {
     }
 }
 
-/// Complex white noise of total power −40 dBFS plus carriers `(offset Hz, dBFS, on(index))`.
-fn samples(n: usize, carriers: &[(f64, f64, &dyn Fn(u64) -> bool)], seed: u64) -> Vec<Complex32> {
+/// A carrier: offset from the centre (Hz), level (dBFS), and whether it is on at a sample index.
+type Carrier<'a> = (f64, f64, &'a dyn Fn(u64) -> bool);
+
+/// Complex white noise of total power −40 dBFS plus carriers.
+fn samples(n: usize, carriers: &[Carrier], seed: u64) -> Vec<Complex32> {
     let sigma = (1e-4f64 / 2.0).sqrt();
     let mut s = seed | 1;
     let mut uniform = move || {

@@ -304,7 +304,7 @@ impl Setup {
     fn describe(&self, plan: &Plan) {
         let k = self.engine.frames_per_output.unwrap_or(1);
         note(&format!(
-            "{} channels; one measurement sample = {:.3} ms ({k} FFT frames of {}, hop {}); hang {:.1} ms; interval {} s",
+            "{} channel(s); one measurement sample = {:.3} ms ({k} FFT frames of {}, hop {}); hang {:.1} ms; interval {} s",
             plan.channels.len(),
             self.dwell_s() * 1e3,
             self.engine.fft_size,

@@ -33,14 +33,15 @@
 //! - `stop` (last line of an orderly end): `t_end_s, end, reason` (`end_of_input`, `limit`,
 //!   `interrupted`, `terminated`, `input_error`), `iq_samples` (read), `dropped_samples` (total).
 //!
-//! Worked example (an invented site, abridged `start`):
+//! Worked example: a 12 s recording of an invented site, with a carrier keyed 0.3 s on in every
+//! second in channel `ch-low` (`--interval 5s`; one line of each kind):
 //!
 //! ```text
-//! {"kind":"start","version":"0.1.0","source":"ridge.sigmf-data","sample_rate_hz":2400000.0,...,"dwell_s":0.009386666666666667,...}
-//! {"kind":"channel","channel":"north-gate","center_hz":433100000.0,"width_hz":25000.0,"threshold_db":10.0}
-//! {"kind":"emission","channel":"north-gate","center_hz":433100000.0,"t_start_s":1.2014933333333333,"t_end_s":1.5019733333333334,"start":"2026-05-01T08:00:01.201Z","end":"2026-05-01T08:00:01.502Z","duration_s":0.30048,"peak_dbfs":-31.02,"mean_dbfs":-31.35,"obw_hz":3210.5,"samples":32,"partial":false}
-//! {"kind":"interval","channel":"north-gate","center_hz":433100000.0,"width_hz":25000.0,"t_start_s":0.0,"t_end_s":60.0,"start":"2026-05-01T08:00:00.000Z","end":"2026-05-01T08:01:00.000Z","occupancy_pct":30.204,"mean_dbfs":-36.4,"peak_dbfs":-30.88,"noise_floor_dbfs_per_hz":-112.31,"samples":6392,"occupied_samples":1931,"dropped_samples":0,"partial":false}
-//! {"kind":"stop","t_end_s":60.0,"end":"2026-05-01T08:01:00.000Z","reason":"end_of_input","iq_samples":144000000,"dropped_samples":0}
+//! {"kind":"start","version":"0.1.0","source":"keyed.sigmf-data","sample_rate_hz":2400000.0,"center_hz":433500000.0,"fft_size":4096,"window":"hann","overlap":0.5,"rbw_hz":878.906,"dwell_s":0.009386666666666666,"frames_per_sample":11,"interval_s":5.0,"hang_s":0.02816,"threshold_db":10.0,"obw_percent":99.0,"floor_memory_s":2.0,"t_start_s":0.0,"start":"2026-05-01T08:00:00.000Z","time_source":"sigmf"}
+//! {"kind":"channel","channel":"ch-low","center_hz":433200000.0,"width_hz":25000.0,"threshold_db":10.0}
+//! {"kind":"emission","channel":"ch-low","center_hz":433200000.0,"t_start_s":0.9954133333333334,"t_end_s":1.3051733333333333,"start":"2026-05-01T08:00:00.995Z","end":"2026-05-01T08:00:01.305Z","duration_s":0.30976,"peak_dbfs":-29.99,"mean_dbfs":-30.14,"obw_hz":1724.1,"samples":33,"partial":false}
+//! {"kind":"interval","channel":"ch-low","center_hz":433200000.0,"width_hz":25000.0,"t_start_s":0.0,"t_end_s":5.0,"start":"2026-05-01T08:00:00.000Z","end":"2026-05-01T08:00:05.000Z","occupancy_pct":30.769,"mean_dbfs":-35.22,"peak_dbfs":-29.99,"noise_floor_dbfs_per_hz":-113.8,"samples":533,"occupied_samples":164,"dropped_samples":0,"partial":false}
+//! {"kind":"stop","t_end_s":12.0,"end":"2026-05-01T08:00:12.000Z","reason":"end_of_input","iq_samples":28800000,"dropped_samples":0}
 //! ```
 //!
 //! CSV (`--csv`) has one header row naming every field of every kind ([`CSV_COLUMNS`]); each
