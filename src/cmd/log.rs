@@ -49,8 +49,6 @@ pub struct LogArgs {
     pub source: InputArgs,
     #[command(flatten)]
     pub dsp: DspArgs,
-    #[command(flatten)]
-    pub channels: ChannelArgs,
     /// Length of each occupancy record (interval), e.g. 10s, 15m, 1h.
     #[arg(long, value_name = "DURATION", default_value = "60s", value_parser = parse_duration)]
     pub interval: Duration,
@@ -73,6 +71,8 @@ pub struct LogArgs {
     /// Stop after this many seconds of input.
     #[arg(long, value_name = "SECONDS")]
     pub seconds: Option<f64>,
+    #[command(flatten)]
+    pub channels: ChannelArgs,
 }
 
 /// Why a run ended, as written in the `stop` record.
@@ -824,6 +824,59 @@ mod tests {
         assert_eq!(kinds, ["start", "channel", "channel", "stop"]);
         assert_eq!(recs[0]["time_source"], "none");
         assert_eq!(recs[3]["reason"], "interrupted");
+    }
+
+    #[test]
+    fn log_flags_parse_with_units() {
+        use crate::cli::{Cli, Command};
+        use clap::Parser;
+        let cli = Cli::try_parse_from([
+            "bandwarden",
+            "log",
+            "-",
+            "--format",
+            "cu8",
+            "--rate",
+            "2.4M",
+            "--channel",
+            "a=433.1M:25k",
+            "--plan",
+            "site.toml",
+            "--dwell",
+            "20ms",
+            "--threshold-db",
+            "6",
+            "--interval",
+            "15m",
+            "--hang",
+            "100ms",
+            "--csv",
+            "--append",
+            "--no-drop",
+            "-o",
+            "x.csv",
+            "--seconds",
+            "3600",
+        ])
+        .unwrap();
+        let Some(Command::Log(a)) = cli.command else { panic!("not log") };
+        assert_eq!(a.input, "-");
+        assert_eq!(a.channels.channels[0].center_hz, 433.1e6);
+        assert_eq!(a.channels.plan.as_deref(), Some("site.toml"));
+        assert_eq!(a.channels.dwell, Some(Duration::from_millis(20)));
+        assert_eq!(a.channels.threshold_db, 6.0);
+        assert_eq!(a.interval, Duration::from_secs(900));
+        assert_eq!(a.hang, Duration::from_millis(100));
+        assert!(a.csv && a.append && a.no_drop);
+        assert_eq!((a.out.as_str(), a.seconds), ("x.csv", Some(3600.0)));
+        let defaults = Cli::try_parse_from(["bandwarden", "log", "f.cu8"]).unwrap();
+        let Some(Command::Log(d)) = defaults.command else { panic!("not log") };
+        assert_eq!((d.interval, d.hang), default_durations());
+        assert_eq!(d.channels.threshold_db, crate::plan::DEFAULT_THRESHOLD_DB);
+        assert_eq!(d.out, "-");
+        assert!(Cli::try_parse_from(["bandwarden", "log", "f", "--interval", "soon"]).is_err());
+        assert!(Cli::try_parse_from(["bandwarden", "log", "f", "--channel", "a=1M"]).is_err());
+        assert!(Cli::try_parse_from(["bandwarden", "log"]).is_err(), "INPUT is required");
     }
 
     #[test]

@@ -29,7 +29,8 @@
 //!   above the noise), `samples` (occupied samples), `partial` (cut short by the end of the run or
 //!   by dropped input: it may have gone on).
 //! - `dropped`: `t_start_s, t_end_s, start, end, dropped_samples`: input samples a live source lost
-//!   because processing fell behind.
+//!   because processing fell behind. An interval in which not one sample could be measured (all
+//!   of its input lost) has no `interval` records; the `dropped` record covers it.
 //! - `stop` (last line of an orderly end): `t_end_s, end, reason` (`end_of_input`, `limit`,
 //!   `interrupted`, `terminated`, `input_error`), `iq_samples` (read), `dropped_samples` (total).
 //!

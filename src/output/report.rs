@@ -7,6 +7,8 @@
 //! `peaks[]`: `freq_hz, level_dbfs, snr_db, power_dbfs, obw_hz` (strongest first).
 //! `bands[]`: `center_hz, width_hz, power_dbfs, obw_hz, obw_low_hz, obw_high_hz,
 //! xdb_bandwidth_hz`.
+//! `channels[]` (only with `--channel`/`--plan`): `name, center_hz, width_hz, power_dbfs, obw_hz,
+//! occupancy_pct, samples, dwell_s`.
 
 use crate::units::{format_hz, format_hz_short};
 use serde::Serialize;
