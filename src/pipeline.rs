@@ -8,9 +8,11 @@ use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::Arc;
 use std::thread::JoinHandle;
 
-/// Blocks in flight between the reader and the DSP. With 64k-sample blocks this bounds the queue
-/// at 32 MiB of samples whatever the input rate.
-pub const QUEUE_BLOCKS: usize = 64;
+/// Blocks in flight between the reader and a live source's DSP: with 64k-sample blocks, 32 MiB,
+/// about 0.2 s at 20 MS/s, so a brief stall of the DSP loses nothing.
+pub const LIVE_QUEUE_BLOCKS: usize = 64;
+/// For files a short queue suffices (the reader simply waits) and keeps memory low.
+pub const FILE_QUEUE_BLOCKS: usize = 8;
 
 /// A running reader and the receiving end of its queue.
 pub struct Input {
@@ -24,7 +26,7 @@ pub struct Input {
 impl Input {
     pub fn start(src: Box<dyn SampleSource>, opts: ReaderOptions) -> Input {
         let info = src.info().clone();
-        let (tx, rx) = bounded(QUEUE_BLOCKS);
+        let (tx, rx) = bounded(if info.live { LIVE_QUEUE_BLOCKS } else { FILE_QUEUE_BLOCKS });
         let stats = Arc::new(ReaderStats::default());
         let stop = Arc::new(AtomicBool::new(false));
         let handle = reader::spawn(src, opts, tx, stop.clone(), stats.clone());

@@ -295,6 +295,14 @@ impl Setup {
         })
     }
 
+    /// The engine for these settings, on every core: frames are independent, and batching them
+    /// delays a row by a few frames at most.
+    pub fn new_engine(&self) -> Engine {
+        let mut e = Engine::new(self.engine.clone(), self.sample_rate_hz, self.center_hz);
+        e.set_threads(std::thread::available_parallelism().map_or(1, |n| n.get()));
+        e
+    }
+
     pub fn dwell_s(&self) -> f64 {
         self.timing.stride as f64 / self.sample_rate_hz
     }
@@ -427,7 +435,7 @@ impl<W: Write> Session<W> {
             time_source: "none".into(),
         };
         Session {
-            engine: Engine::new(setup.engine.clone(), setup.sample_rate_hz, setup.center_hz),
+            engine: setup.new_engine(),
             occupancy: Occupancy::new(setup.timing.clone(), setup.channels.clone()),
             writer,
             clock: Clock { rate: setup.sample_rate_hz, start: None },
@@ -483,6 +491,7 @@ impl<W: Write> Session<W> {
     /// Writes the open interval and emissions (partial) and the `stop` record.
     pub fn finish(&mut self, reason: StopReason) -> std::io::Result<()> {
         self.begin()?;
+        self.drain_engine();
         self.occupancy.finish(self.next_sample, &mut self.events);
         self.flush_events()?;
         let rec = Record::Stop(StopRecord {
@@ -513,9 +522,20 @@ impl<W: Write> Session<W> {
         Ok(())
     }
 
+    /// Hands every complete row still inside the engine to the tracker and discards the partial
+    /// one (it would be a shorter sample, or straddle a gap).
+    fn drain_engine(&mut self) {
+        let k = self.engine.config().frames_per_output;
+        let Session { engine, occupancy, events, .. } = self;
+        engine.finish(&mut |row: Spectrum| {
+            if Some(row.frames) == k {
+                occupancy.push(&row, events);
+            }
+        });
+    }
+
     fn gap(&mut self, from: u64, to: u64) -> std::io::Result<()> {
-        // The row being averaged when the samples were lost would straddle the gap: discard it.
-        self.engine.finish(&mut |_| {});
+        self.drain_engine();
         self.occupancy.gap(from, to, &mut self.events);
         self.flush_events()?;
         self.dropped_total += to - from;
@@ -670,7 +690,7 @@ pub struct WholeInput {
 
 /// Runs the DSP over the whole input with short rows, tracking occupancy per channel.
 pub fn measure_channels(input: &Input, setup: &Setup) -> WholeInput {
-    let mut engine = Engine::new(setup.engine.clone(), setup.sample_rate_hz, setup.center_hz);
+    let mut engine = setup.new_engine();
     let timing = Timing { interval: u64::MAX, ..setup.timing.clone() };
     let mut occ = Occupancy::new(timing, setup.channels.clone());
     let mut sum = SpectrumSum::new();
@@ -686,7 +706,13 @@ pub fn measure_channels(input: &Input, setup: &Setup) -> WholeInput {
         });
         events.clear();
     }
-    engine.finish(&mut |row| sum.add(&row));
+    let k = setup.engine.frames_per_output;
+    engine.finish(&mut |row| {
+        if Some(row.frames) == k {
+            occ.push(&row, &mut events);
+        }
+        sum.add(&row);
+    });
     occ.finish(end, &mut events);
     let mut occupancy = vec![(0.0, 0); setup.channels.len()];
     for e in &events {

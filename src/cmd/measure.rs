@@ -39,13 +39,13 @@ pub fn run_default() -> Result<ExitCode> {
 }
 
 pub fn run(args: MeasureArgs) -> Result<ExitCode> {
-    if !(0.0 < args.obw_percent && args.obw_percent < 100.0) {
+    if args.obw_percent.is_nan() || args.obw_percent <= 0.0 || args.obw_percent >= 100.0 {
         bail!(
             "--obw-percent {} is out of range; choose a value between 0 and 100 (99 is usual)",
             args.obw_percent
         );
     }
-    if !(args.xdb > 0.0) {
+    if args.xdb.is_nan() || args.xdb <= 0.0 {
         bail!("--xdb {} must be a positive number of dB (26 is usual)", args.xdb);
     }
     let cfg = args.dsp.engine(None).map_err(anyhow::Error::msg)?;
@@ -55,7 +55,7 @@ pub fn run(args: MeasureArgs) -> Result<ExitCode> {
     notes.iter().for_each(|n| note(n));
     let seconds = args.seconds.or(if args.input.is_none() { Some(DEMO_SECONDS) } else { None });
     if let Some(s) = seconds {
-        if !(s > 0.0) {
+        if s.is_nan() || s <= 0.0 {
             bail!("--seconds {s} must be positive");
         }
     }
@@ -110,6 +110,7 @@ pub fn run(args: MeasureArgs) -> Result<ExitCode> {
 /// Runs the DSP over the whole input on this thread; returns the average and the sample count.
 fn average_all(input: &Input, cfg: EngineConfig) -> (Option<Spectrum>, u64) {
     let mut engine = Engine::new(cfg, input.info.sample_rate_hz, input.info.center_hz);
+    engine.set_threads(std::thread::available_parallelism().map_or(1, |n| n.get()));
     let mut out = None;
     let mut samples = 0u64;
     for block in input.blocks.iter() {

@@ -49,6 +49,8 @@ pub struct Engine {
     cfg: EngineConfig,
     hop: usize,
     stft: Stft,
+    /// Extra transforms with their own accumulators, one per additional thread.
+    helpers: Vec<(Stft, Vec<f64>)>,
     sample_rate_hz: f64,
     center_hz: f64,
     pending: Vec<Complex32>,
@@ -67,6 +69,7 @@ impl Engine {
             acc: vec![0.0; cfg.fft_size],
             pending: Vec::with_capacity(cfg.fft_size * 2),
             stft,
+            helpers: Vec::new(),
             cfg,
             sample_rate_hz,
             center_hz,
@@ -77,6 +80,26 @@ impl Engine {
         }
     }
 
+    /// Spreads the frames over `threads` threads (frames are independent; partial sums are added
+    /// in a fixed order, so the result does not depend on scheduling). With more than one thread,
+    /// frames are gathered into batches of at least two per thread before they are transformed,
+    /// which delays an output by at most that many frames.
+    pub fn set_threads(&mut self, threads: usize) {
+        let extra = threads.max(1) - 1;
+        self.helpers.truncate(extra);
+        while self.helpers.len() < extra {
+            self.helpers.push((
+                Stft::new(self.cfg.fft_size, self.cfg.window),
+                vec![0.0; self.cfg.fft_size],
+            ));
+        }
+    }
+
+    /// The number of threads the transform runs on.
+    pub fn threads(&self) -> usize {
+        1 + self.helpers.len()
+    }
+
     pub fn config(&self) -> &EngineConfig {
         &self.cfg
     }
@@ -85,31 +108,97 @@ impl Engine {
     pub fn push(&mut self, start: u64, samples: &[Complex32], emit: &mut dyn FnMut(Spectrum)) {
         let expected = self.pending_start + self.pending.len() as u64;
         if start != expected || self.pending.is_empty() {
+            // Frames complete before the gap still count; the partial one cannot.
+            self.process_ready(emit);
             self.pending.clear();
             self.pending_start = start;
         }
         self.pending.extend_from_slice(samples);
+        // Two frames per thread amortise the thread hand-off; very long frames need only one
+        // each, and holding more would cost memory (a 1M-point frame is 8 MiB).
+        let batch = match self.threads() {
+            1 => 1,
+            t if self.cfg.fft_size >= 65536 => t,
+            t => 2 * t,
+        };
+        if self.frames_ready() >= batch {
+            self.process_ready(emit);
+        }
+    }
+
+    /// Whole frames waiting in `pending`.
+    fn frames_ready(&self) -> usize {
         let n = self.cfg.fft_size;
-        let mut pos = 0usize;
-        while self.pending.len() - pos >= n {
+        if self.pending.len() < n {
+            0
+        } else {
+            (self.pending.len() - n) / self.hop + 1
+        }
+    }
+
+    /// Transforms every whole frame in `pending`, emitting each completed average.
+    fn process_ready(&mut self, emit: &mut dyn FnMut(Spectrum)) {
+        let ready = self.frames_ready();
+        let n = self.cfg.fft_size;
+        let mut f = 0usize;
+        while f < ready {
             if self.acc_frames == 0 {
-                self.acc_first = self.pending_start + pos as u64;
+                self.acc_first = self.pending_start + (f * self.hop) as u64;
             }
-            self.stft.accumulate_power(&self.pending[pos..pos + n], &mut self.acc);
-            self.acc_frames += 1;
-            self.acc_end = self.pending_start + (pos + n) as u64;
-            pos += self.hop;
+            let room = self.cfg.frames_per_output.map_or(u64::MAX, |k| k - self.acc_frames);
+            let m = ((ready - f) as u64).min(room) as usize;
+            self.accumulate_frames(f, m);
+            self.acc_frames += m as u64;
+            self.acc_end = self.pending_start + ((f + m - 1) * self.hop + n) as u64;
+            f += m;
             if Some(self.acc_frames) == self.cfg.frames_per_output {
                 emit(self.take());
             }
         }
-        let consumed = pos.min(self.pending.len());
+        let consumed = (f * self.hop).min(self.pending.len());
         self.pending.drain(..consumed);
         self.pending_start += consumed as u64;
     }
 
+    /// Adds the power of frames `first .. first + count` of `pending` into `acc`.
+    fn accumulate_frames(&mut self, first: usize, count: usize) {
+        let (n, hop) = (self.cfg.fft_size, self.hop);
+        let threads = self.threads();
+        if threads == 1 || count < 2 * threads {
+            for f in first..first + count {
+                self.stft.accumulate_power(&self.pending[f * hop..f * hop + n], &mut self.acc);
+            }
+            return;
+        }
+        let per = count.div_ceil(threads);
+        let end = first + count;
+        let pending = &self.pending;
+        let (stft, acc, helpers) = (&mut self.stft, &mut self.acc, &mut self.helpers);
+        std::thread::scope(|scope| {
+            for (i, (h_stft, h_acc)) in helpers.iter_mut().enumerate() {
+                let a = (first + (i + 1) * per).min(end);
+                let b = (a + per).min(end);
+                scope.spawn(move || {
+                    for f in a..b {
+                        h_stft.accumulate_power(&pending[f * hop..f * hop + n], h_acc);
+                    }
+                });
+            }
+            for f in first..(first + per).min(end) {
+                stft.accumulate_power(&pending[f * hop..f * hop + n], acc);
+            }
+        });
+        for (_, h_acc) in helpers.iter_mut() {
+            for (a, h) in acc.iter_mut().zip(h_acc.iter_mut()) {
+                *a += *h;
+                *h = 0.0;
+            }
+        }
+    }
+
     /// Emits what has been accumulated (if any frame was); call at end of input.
     pub fn finish(&mut self, emit: &mut dyn FnMut(Spectrum)) {
+        self.process_ready(emit);
         if self.acc_frames > 0 {
             emit(self.take());
         }
@@ -167,6 +256,36 @@ mod tests {
             assert_eq!(a.first_sample, b.first_sample);
             for (p, q) in a.psd.iter().zip(&b.psd) {
                 assert!((p - q).abs() <= 1e-12 * p.abs().max(1e-30));
+            }
+        }
+    }
+
+    #[test]
+    fn two_threads_give_the_same_spectra_as_one() {
+        let x = seeded(50_000, 11);
+        for k in [Some(3u64), Some(40), None] {
+            let run = |threads: usize| {
+                let mut out = Vec::new();
+                let mut e = Engine::new(cfg(512, 0.5, k), 1e6, 0.0);
+                e.set_threads(threads);
+                let mut start = 0u64;
+                for chunk in x.chunks(3000) {
+                    e.push(start, chunk, &mut |s| out.push(s));
+                    start += chunk.len() as u64;
+                }
+                e.finish(&mut |s| out.push(s));
+                out
+            };
+            let (one, two) = (run(1), run(2));
+            assert_eq!(one.len(), two.len(), "k={k:?}");
+            for (a, b) in one.iter().zip(&two) {
+                assert_eq!(
+                    (a.frames, a.first_sample, a.end_sample),
+                    (b.frames, b.first_sample, b.end_sample)
+                );
+                for (p, q) in a.psd.iter().zip(&b.psd) {
+                    assert!((p - q).abs() <= 1e-9 * p.abs().max(1e-30), "k={k:?}: {p} vs {q}");
+                }
             }
         }
     }

@@ -122,12 +122,12 @@ mod tests {
     #[test]
     fn incomplete_gamma_closed_forms() {
         // P(1, x) = 1 − e^{−x} (exponential distribution): the single-periodogram case.
-        for x in [0.01, 0.5, 1.0, 3.0, 10.0] {
-            assert!((gamma_p(1.0, x) - (1.0 - (-x as f64).exp())).abs() < 1e-13, "x={x}");
+        for x in [0.01f64, 0.5, 1.0, 3.0, 10.0] {
+            assert!((gamma_p(1.0, x) - (1.0 - (-x).exp())).abs() < 1e-13, "x={x}");
         }
         // P(2, x) = 1 − (1 + x) e^{−x}.
-        for x in [0.3, 2.0, 7.5] {
-            assert!((gamma_p(2.0, x) - (1.0 - (1.0 + x) * (-x as f64).exp())).abs() < 1e-13);
+        for x in [0.3f64, 2.0, 7.5] {
+            assert!((gamma_p(2.0, x) - (1.0 - (1.0 + x) * (-x).exp())).abs() < 1e-13);
         }
     }
 

@@ -175,15 +175,25 @@ impl SampleFormat {
     }
 }
 
+/// Appends all samples (a branch-free, vectorisable loop), then removes non-finite ones in a second
+/// pass that only runs when the block holds any: clean data pays one cheap scan.
 fn push_finite(samples: impl Iterator<Item = Complex32>, out: &mut Vec<Complex32>) -> u64 {
-    let mut bad = 0;
-    for s in samples {
+    let before = out.len();
+    out.extend(samples);
+    let clean = out[before..].iter().fold(true, |ok, s| ok & (s.re.is_finite() & s.im.is_finite()));
+    if clean {
+        return 0;
+    }
+    let mut kept = before;
+    for i in before..out.len() {
+        let s = out[i];
         if s.re.is_finite() && s.im.is_finite() {
-            out.push(s);
-        } else {
-            bad += 1;
+            out[kept] = s;
+            kept += 1;
         }
     }
+    let bad = (out.len() - kept) as u64;
+    out.truncate(kept);
     bad
 }
 

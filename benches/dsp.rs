@@ -1,0 +1,90 @@
+//! Criterion benchmarks: sample conversion for each format, the STFT with each window, and each
+//! measurement. Run with `cargo bench`; compare runs with criterion's own reports.
+
+use bandwarden::dsp::stft::Stft;
+use bandwarden::dsp::{Engine, EngineConfig, Spectrum, Window, WindowKind};
+use bandwarden::measure::{
+    band_power, find_signals, noise_floor, occupied_bandwidth, xdb_bandwidth, Detection,
+};
+use bandwarden::source::SampleFormat;
+use criterion::{black_box, criterion_group, criterion_main, BenchmarkId, Criterion, Throughput};
+use num_complex::Complex32;
+
+fn test_signal(n: usize) -> Vec<Complex32> {
+    let mut s = 1u64;
+    (0..n)
+        .map(|i| {
+            s = s.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+            let noise = ((s >> 40) as f32 / (1u64 << 24) as f32 - 0.5) * 0.01;
+            Complex32::from_polar(0.3, i as f32 * 0.21) + Complex32::new(noise, -noise)
+        })
+        .collect()
+}
+
+fn conversion(c: &mut Criterion) {
+    let samples = test_signal(65536);
+    let mut g = c.benchmark_group("decode");
+    g.throughput(Throughput::Elements(samples.len() as u64));
+    for fmt in SampleFormat::ALL {
+        let mut bytes = Vec::new();
+        fmt.encode(&samples, &mut bytes);
+        let mut out = Vec::with_capacity(samples.len());
+        g.bench_function(BenchmarkId::from_parameter(fmt.name()), |b| {
+            b.iter(|| {
+                out.clear();
+                black_box(fmt.decode(black_box(&bytes), &mut out));
+            })
+        });
+    }
+    g.finish();
+}
+
+fn stft(c: &mut Criterion) {
+    let n = 4096;
+    let frame = test_signal(n);
+    let mut g = c.benchmark_group("stft_4096");
+    g.throughput(Throughput::Elements(n as u64));
+    for kind in WindowKind::ALL {
+        let mut stft = Stft::new(n, kind);
+        let mut acc = vec![0.0; n];
+        g.bench_function(BenchmarkId::from_parameter(kind.to_string()), |b| {
+            b.iter(|| stft.accumulate_power(black_box(&frame), &mut acc))
+        });
+    }
+    g.finish();
+}
+
+fn averaged_spectrum() -> Spectrum {
+    let cfg = EngineConfig {
+        fft_size: 4096,
+        window: WindowKind::Hann,
+        overlap: 0.5,
+        frames_per_output: None,
+    };
+    let mut e = Engine::new(cfg, 2.4e6, 433.5e6);
+    let mut out = None;
+    e.push(0, &test_signal(1 << 18), &mut |s| out = Some(s));
+    e.finish(&mut |s| out = Some(s));
+    out.expect("one spectrum")
+}
+
+fn measurements(c: &mut Criterion) {
+    let spec = averaged_spectrum();
+    let window = Window::new(spec.window, spec.fft_size);
+    let floor = noise_floor(&spec.psd, spec.dof);
+    let (lo, hi) = (433.4e6, 433.6e6);
+    let mut g = c.benchmark_group("measure_4096");
+    g.bench_function("noise_floor", |b| b.iter(|| noise_floor(black_box(&spec.psd), spec.dof)));
+    g.bench_function("find_signals", |b| {
+        b.iter(|| find_signals(black_box(&spec), &window, floor, 10, Detection::default()))
+    });
+    g.bench_function("band_power", |b| b.iter(|| band_power(black_box(&spec), lo, hi)));
+    g.bench_function("occupied_bandwidth", |b| {
+        b.iter(|| occupied_bandwidth(black_box(&spec), lo, hi, 99.0))
+    });
+    g.bench_function("xdb_bandwidth", |b| b.iter(|| xdb_bandwidth(black_box(&spec), lo, hi, 26.0)));
+    g.finish();
+}
+
+criterion_group!(benches, conversion, stft, measurements);
+criterion_main!(benches);

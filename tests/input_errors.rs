@@ -1,0 +1,211 @@
+//! Bad input, run through the real binary: each case must give one clear `bandwarden:` line that
+//! names the cause and the fix, a non-zero exit (or a warning and exit 0 where the data is still
+//! usable), and never a panic.
+
+use bandwarden::source::SampleFormat;
+use num_complex::Complex32;
+use std::io::Write;
+use std::path::PathBuf;
+use std::process::{Command, Output, Stdio};
+
+fn bin() -> Command {
+    Command::new(env!("CARGO_BIN_EXE_bandwarden"))
+}
+
+fn tmp(name: &str) -> PathBuf {
+    let dir = std::env::temp_dir().join(format!("bandwarden-errors-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    dir.join(name)
+}
+
+fn tone(n: usize) -> Vec<Complex32> {
+    (0..n).map(|i| Complex32::from_polar(0.3, i as f32 * 0.37)).collect()
+}
+
+fn write_samples(name: &str, fmt: SampleFormat, samples: &[Complex32], extra: &[u8]) -> PathBuf {
+    let mut bytes = Vec::new();
+    fmt.encode(samples, &mut bytes);
+    bytes.extend_from_slice(extra);
+    let p = tmp(name);
+    std::fs::write(&p, bytes).unwrap();
+    p
+}
+
+fn stderr(o: &Output) -> String {
+    String::from_utf8_lossy(&o.stderr).into_owned()
+}
+
+/// The common contract of a refused input.
+fn assert_refused(o: &Output, needles: &[&str]) {
+    let err = stderr(o);
+    assert!(!o.status.success(), "expected failure, got success; stderr: {err}");
+    assert!(!err.contains("panicked"), "panic: {err}");
+    assert!(err.starts_with("bandwarden:") || err.starts_with("error:"), "unprefixed: {err}");
+    for n in needles {
+        assert!(err.contains(n), "stderr lacks '{n}': {err}");
+    }
+}
+
+#[test]
+fn unknown_format_names_the_choices() {
+    let p = write_samples("a.bin", SampleFormat::Cu8, &tone(4096), &[]);
+    let o =
+        bin().args(["measure"]).arg(&p).args(["--format", "s16", "--rate", "1M"]).output().unwrap();
+    assert_refused(&o, &["unknown sample format 's16'", "cf32_le"]);
+}
+
+#[test]
+fn trailing_partial_sample_is_dropped_with_a_warning() {
+    let p = write_samples("b.cs16", SampleFormat::Ci16Le, &tone(8192), &[1, 2, 3]);
+    let o = bin().args(["measure"]).arg(&p).args(["--rate", "1M", "--json"]).output().unwrap();
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert!(stderr(&o).contains("dropped 3 bytes at the end"), "{}", stderr(&o));
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(v["input_issues"]["trailing_bytes"], 3);
+    assert_eq!(v["samples"], 8192);
+}
+
+#[test]
+fn empty_input_is_refused() {
+    let p = write_samples("c.cu8", SampleFormat::Cu8, &[], &[]);
+    let o = bin().args(["measure"]).arg(&p).args(["--rate", "1M"]).output().unwrap();
+    assert_refused(&o, &["holds no samples"]);
+}
+
+#[test]
+fn input_shorter_than_a_frame_says_to_use_a_smaller_fft() {
+    let p = write_samples("c2.cu8", SampleFormat::Cu8, &tone(100), &[]);
+    let o = bin().args(["measure"]).arg(&p).args(["--rate", "1M"]).output().unwrap();
+    assert_refused(&o, &["fewer than one FFT frame", "--fft"]);
+}
+
+#[test]
+fn non_finite_samples_are_counted_and_skipped() {
+    let mut s = tone(8192);
+    s[100] = Complex32::new(f32::NAN, 0.0);
+    s[200] = Complex32::new(0.0, f32::INFINITY);
+    let p = write_samples("d.cf32", SampleFormat::Cf32Le, &s, &[]);
+    let o = bin().args(["measure"]).arg(&p).args(["--rate", "1M", "--json"]).output().unwrap();
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert!(stderr(&o).contains("skipped 2 samples holding NaN or infinity"), "{}", stderr(&o));
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(v["input_issues"]["non_finite_samples"], 2);
+    assert!(v["total_power_dbfs"].as_f64().unwrap().is_finite());
+}
+
+#[test]
+fn missing_rate_is_refused() {
+    let p = write_samples("e.cu8", SampleFormat::Cu8, &tone(4096), &[]);
+    let o = bin().args(["measure"]).arg(&p).output().unwrap();
+    assert_refused(&o, &["no sample rate", "--rate"]);
+}
+
+#[test]
+fn unknown_extension_without_format_is_refused() {
+    let p = write_samples("f.bin", SampleFormat::Cu8, &tone(4096), &[]);
+    let o = bin().args(["measure"]).arg(&p).args(["--rate", "1M"]).output().unwrap();
+    assert_refused(&o, &["cannot tell the sample format", "--format"]);
+}
+
+#[test]
+fn malformed_sigmf_is_refused_with_the_position() {
+    let p = tmp("g.sigmf-meta");
+    std::fs::write(&p, "{\"global\": {\"core:datatype\": \"cu8\",\n \"core:sample_rate\": }")
+        .unwrap();
+    std::fs::write(tmp("g.sigmf-data"), [0u8; 8192]).unwrap();
+    let o = bin().args(["measure"]).arg(&p).output().unwrap();
+    assert_refused(&o, &["not valid SigMF JSON", "line 2"]);
+}
+
+#[test]
+fn sigmf_without_rate_needs_the_option() {
+    let p = tmp("h.sigmf-meta");
+    std::fs::write(&p, r#"{"global":{"core:datatype":"cu8","core:version":"1.0.0"},"captures":[],"annotations":[]}"#)
+        .unwrap();
+    std::fs::write(tmp("h.sigmf-data"), [128u8; 16384]).unwrap();
+    let o = bin().args(["measure"]).arg(&p).output().unwrap();
+    assert_refused(&o, &["no core:sample_rate", "--rate"]);
+    let o = bin().args(["measure"]).arg(&p).args(["--rate", "1M", "--json"]).output().unwrap();
+    assert!(o.status.success(), "{}", stderr(&o));
+}
+
+#[test]
+fn fft_size_out_of_range_is_refused() {
+    let p = write_samples("i.cu8", SampleFormat::Cu8, &tone(4096), &[]);
+    for n in ["8", "2000000"] {
+        let o =
+            bin().args(["measure"]).arg(&p).args(["--rate", "1M", "--fft", n]).output().unwrap();
+        assert_refused(&o, &["out of range", "16 ..= 1048576"]);
+    }
+}
+
+#[test]
+fn unreadable_file_is_refused() {
+    let o = bin().args(["measure", "/nonexistent/dir/x.cu8", "--rate", "1M"]).output().unwrap();
+    assert_refused(&o, &["cannot open '/nonexistent/dir/x.cu8'"]);
+}
+
+#[test]
+fn stdin_needs_format_and_rate() {
+    let o = bin().args(["measure", "-", "--rate", "1M"]).stdin(Stdio::null()).output().unwrap();
+    assert_refused(&o, &["stdin needs --format"]);
+    let o = bin().args(["measure", "-", "--format", "cu8"]).stdin(Stdio::null()).output().unwrap();
+    assert_refused(&o, &["stdin needs --rate"]);
+}
+
+#[test]
+fn stdin_pipe_is_measured() {
+    let mut bytes = Vec::new();
+    SampleFormat::Cu8.encode(&tone(65536), &mut bytes);
+    let mut child = bin()
+        .args([
+            "measure", "-", "--format", "cu8", "--rate", "2.4M", "--center", "433.92M", "--json",
+        ])
+        .stdin(Stdio::piped())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    child.stdin.take().unwrap().write_all(&bytes).unwrap();
+    let o = child.wait_with_output().unwrap();
+    assert!(o.status.success(), "{}", stderr(&o));
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(v["samples"], 65536);
+    assert_eq!(v["center_hz"], 433.92e6);
+}
+
+#[test]
+fn bad_option_values_are_refused() {
+    let p = write_samples("j.cu8", SampleFormat::Cu8, &tone(8192), &[]);
+    let cases: &[(&[&str], &str)] = &[
+        (&["--overlap", "0.99"], "0 ..= 0.95"),
+        (&["--window", "gauss"], "unknown window"),
+        (&["--band", "5M:10k"], "outside the captured span"),
+        (&["--obw-percent", "100"], "--obw-percent"),
+    ];
+    for (extra, needle) in cases {
+        let o =
+            bin().args(["measure"]).arg(&p).args(["--rate", "1M"]).args(*extra).output().unwrap();
+        assert_refused(&o, &[needle]);
+    }
+    let o = bin().args(["measure"]).arg(&p).args(["--rate", "fast"]).output().unwrap();
+    assert_refused(&o, &["not a frequency"]);
+    assert_eq!(o.status.code(), Some(2), "a malformed command line exits 2");
+}
+
+#[test]
+fn broken_pipe_is_a_normal_end() {
+    let mut child = bin()
+        .args(["demo", "--format", "cu8", "--rate", "1M"])
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    let mut out = child.stdout.take().unwrap();
+    let mut buf = [0u8; 4096];
+    std::io::Read::read_exact(&mut out, &mut buf).unwrap();
+    drop(out);
+    let o = child.wait_with_output().unwrap();
+    assert!(o.status.success(), "exit {:?}: {}", o.status, stderr(&o));
+    assert!(stderr(&o).is_empty(), "{}", stderr(&o));
+}
