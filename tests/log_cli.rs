@@ -384,3 +384,61 @@ fn measure_reports_channels_over_the_whole_input() {
     let text = String::from_utf8(table.stdout).unwrap();
     assert!(text.contains("beta") && text.contains("100.0 %"), "{text}");
 }
+
+#[test]
+fn live_input_that_outruns_the_dsp_has_its_drops_logged() {
+    // A deliberately heavy analysis (65536-point frames, 90 % overlap) on 4 M samples written as
+    // fast as the pipe takes them: the reader must drop blocks, and every dropped sample must be
+    // accounted for in `dropped` records, the intervals and the stop record.
+    let n = 4_000_000usize;
+    let mut bytes = Vec::with_capacity(2 * n);
+    let x = samples(n / 10, &[], 3);
+    for _ in 0..10 {
+        SampleFormat::Ci8.encode(&x, &mut bytes);
+    }
+    let mut child = Command::new(BIN)
+        .args([
+            "log",
+            "-",
+            "--format",
+            "ci8",
+            "--rate",
+            "1M",
+            "--center",
+            "0",
+            "--fft",
+            "65536",
+            "--overlap",
+            "0.9",
+            "--channel",
+            "a=100k:20k",
+            "--interval",
+            "1s",
+        ])
+        .stdin(Stdio::piped())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    let mut stdin = child.stdin.take().unwrap();
+    let writer = std::thread::spawn(move || {
+        let _ = stdin.write_all(&bytes);
+    });
+    let out = child.wait_with_output().unwrap();
+    writer.join().unwrap();
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let recs = parse_lines(&String::from_utf8(out.stdout).unwrap());
+    let stop = recs.last().unwrap();
+    assert_eq!(stop["reason"], "end_of_input");
+    assert_eq!(stop["iq_samples"], n as u64);
+    let total = stop["dropped_samples"].as_u64().unwrap();
+    assert!(total > 0, "the DSP kept up after all; the test needs a heavier load");
+    let in_records: u64 =
+        of_kind(&recs, "dropped").iter().map(|d| d["dropped_samples"].as_u64().unwrap()).sum();
+    let in_intervals: u64 =
+        of_kind(&recs, "interval").iter().map(|d| d["dropped_samples"].as_u64().unwrap()).sum();
+    assert_eq!(in_records, total);
+    assert!(in_intervals <= total, "{in_intervals} > {total}");
+    let stderr = String::from_utf8(out.stderr).unwrap();
+    assert!(stderr.contains("dropped because processing fell behind"), "{stderr}");
+}
