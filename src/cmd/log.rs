@@ -18,7 +18,7 @@ use crate::dsp::stft::welch_dof;
 use crate::dsp::{Engine, EngineConfig, Spectrum, Window};
 use crate::measure::occupancy::{
     self, frames_per_sample, noise_false_occupancy, ChannelDef, Event, Occupancy, Timing,
-    DEFAULT_HANG_S, DEFAULT_INTERVAL_S, FLOOR_MEMORY_S, OBW_PERCENT,
+    DEFAULT_HANG_S, DEFAULT_INTERVAL_S, FLOOR_MEMORY_S, FLOOR_SMOOTHING_S, OBW_PERCENT,
 };
 use crate::output::log::{
     ChannelRecord, DroppedRecord, EmissionRecord, IntervalRecord, LogFormat, LogWriter, Record,
@@ -430,6 +430,7 @@ impl<W: Write> Session<W> {
             threshold_db: setup.default_threshold_db,
             obw_percent: OBW_PERCENT,
             floor_memory_s: FLOOR_MEMORY_S,
+            floor_smoothing_s: FLOOR_SMOOTHING_S,
             t_start_s: 0.0,
             start: None,
             time_source: "none".into(),

@@ -17,16 +17,24 @@
 //!   than a dwell.
 //! - **Channel power** `P`: the integral of the row's PSD over the channel, in FS²
 //!   ([`band_power`]).
-//! - **Noise floor**: a density `D` (FS²/Hz) shared by all channels. For each row we estimate it
-//!   over the *whole* captured band with [`noise_floor`] (FCME, which excises the occupied bins,
-//!   so channels that are busy all the time are excluded by construction: they are simply part of
-//!   the occupied fraction of the band, up to three quarters of it). Over time we follow the
-//!   **median of the per-row estimates over the last [`FLOOR_MEMORY_S`] seconds**, so a wideband
-//!   burst that covers most of the band for less than half that memory cannot lift the floor, while
-//!   a receiver whose gain changes is followed within about a second. The noise in a channel is
-//!   `D · width`: a steady carrier in one channel raises no other channel's floor. The method
-//!   assumes the receiver's noise density is flat across the span; keep channels off the centre
-//!   spike and out of the outer edges where the receiver's filters roll off (common practice).
+//! - **Noise floor**: a density `D` (FS²/Hz) shared by all channels, estimated over the *whole*
+//!   captured band in three steps:
+//!   1. the rows' PSD is smoothed over time with an exponential average of time constant
+//!      [`FLOOR_SMOOTHING_S`], which narrows the spread of noise-only bins (its equivalent degrees
+//!      of freedom grow from one row's to about `(2 − α)/α` times that) so that step 2 can tell
+//!      noise from weak signals;
+//!   2. [`noise_floor`] (FCME) estimates the density of that smoothed PSD, setting aside every
+//!      bin that stands above the noise: channels that are busy all, or most, of the time are
+//!      simply part of the occupied fraction of the band (it may be up to three quarters);
+//!   3. the tracked floor is the **median of the step-2 estimates over the last
+//!      [`FLOOR_MEMORY_S`] seconds**, so a wideband burst that covers most of the band for less
+//!      than half that memory cannot lift it, while a receiver whose gain changes is followed
+//!      within about 1.5 s.
+//!
+//!   The noise in a channel is `D · width`: a steady carrier in one channel raises no other
+//!   channel's floor. The method assumes the receiver's noise density is flat across the span;
+//!   keep channels off the centre spike and out of the outer edges where the receiver's filters
+//!   roll off (common practice).
 //! - **Occupied**: `P > D · width · 10^(threshold_db/10)` (SM.1880: level above a threshold set
 //!   relative to the noise). Default threshold [`crate::plan::DEFAULT_THRESHOLD_DB`] = 10 dB: at
 //!   the default dwell the channel power of noise alone fluctuates by well under 1 dB, so noise
@@ -61,8 +69,10 @@ pub const DEFAULT_MAX_DWELL_S: f64 = 0.010;
 pub const DEFAULT_HANG_S: f64 = 0.025;
 /// Default interval between occupancy records: one minute (a common reporting period).
 pub const DEFAULT_INTERVAL_S: f64 = 60.0;
-/// Memory of the noise-floor tracker.
+/// Memory of the noise-floor tracker (a running median of this many seconds of estimates).
 pub const FLOOR_MEMORY_S: f64 = 2.0;
+/// Time constant of the PSD smoothing under the noise-floor estimate.
+pub const FLOOR_SMOOTHING_S: f64 = 0.5;
 /// Percentage for the occupied bandwidth of emissions (ITU-R SM.328: 99 %).
 pub const OBW_PERCENT: f64 = 99.0;
 
@@ -93,6 +103,8 @@ pub struct Timing {
     pub hang_samples: u64,
     /// Rows remembered by the noise-floor tracker.
     pub floor_rows: usize,
+    /// Weight of a new row in the smoothed PSD under the floor estimate.
+    pub floor_alpha: f64,
 }
 
 impl Timing {
@@ -132,6 +144,7 @@ impl Timing {
             interval,
             hang_samples: ((hang_s / dwell_s - 1e-9).ceil() as u64).max(1),
             floor_rows: ((FLOOR_MEMORY_S / dwell_s).round() as usize).max(1) | 1,
+            floor_alpha: (dwell_s / FLOOR_SMOOTHING_S).min(1.0),
         })
     }
 }
@@ -240,6 +253,38 @@ pub fn read_channel(row: &Spectrum, ch: &ChannelDef, noise_density: f64) -> Read
     Reading { power, noise_power, occupied: power > noise_power * undb(ch.threshold_db) }
 }
 
+/// The rows' PSD averaged over time: a cumulative mean for the first `1/α` rows, an exponential
+/// average of weight `α` after that.
+#[derive(Clone, Debug)]
+pub struct SmoothedPsd {
+    alpha: f64,
+    psd: Vec<f64>,
+    rows: u64,
+}
+
+impl SmoothedPsd {
+    pub fn new(alpha: f64) -> SmoothedPsd {
+        SmoothedPsd { alpha: alpha.clamp(1e-6, 1.0), psd: Vec::new(), rows: 0 }
+    }
+
+    /// Adds a row; returns the smoothed PSD and its equivalent degrees of freedom (the row's times
+    /// the number of rows averaged, at most `(2 − α)/α`, the steady-state variance ratio of an
+    /// exponential average of independent values; rows are treated as independent).
+    pub fn push(&mut self, row: &Spectrum) -> (&[f64], f64) {
+        if self.psd.len() != row.psd.len() {
+            self.psd = vec![0.0; row.psd.len()];
+            self.rows = 0;
+        }
+        self.rows += 1;
+        let a = (1.0 / self.rows as f64).max(self.alpha);
+        for (s, p) in self.psd.iter_mut().zip(&row.psd) {
+            *s += a * (p - *s);
+        }
+        let averages = (self.rows as f64).min((2.0 - self.alpha) / self.alpha);
+        (&self.psd, row.dof * averages)
+    }
+}
+
 /// Median of the per-row noise densities over a sliding window of rows.
 #[derive(Clone, Debug)]
 pub struct FloorTracker {
@@ -316,6 +361,7 @@ pub struct Occupancy {
     timing: Timing,
     channels: Vec<ChannelState>,
     floor: FloorTracker,
+    smoothed: SmoothedPsd,
     interval: Option<u64>,
     last_row_end: u64,
     gaps: Vec<(u64, u64)>,
@@ -331,6 +377,7 @@ impl Occupancy {
             .collect();
         Occupancy {
             floor: FloorTracker::new(timing.floor_rows),
+            smoothed: SmoothedPsd::new(timing.floor_alpha),
             timing,
             channels,
             interval: None,
@@ -363,7 +410,8 @@ impl Occupancy {
             }
             self.interval = Some(k);
         }
-        let density = self.floor.push(noise_floor(&row.psd, row.dof));
+        let (psd, dof) = self.smoothed.push(row);
+        let density = self.floor.push(noise_floor(psd, dof));
         let hang = self.timing.hang_samples;
         for (index, ch) in self.channels.iter_mut().enumerate() {
             let r = read_channel(row, &ch.def, density);
@@ -749,20 +797,21 @@ pub(crate) mod tests {
         assert_eq!(intervals(&events, 2)[0].occupied, 0);
     }
 
-    #[test]
-    fn emission_obw_of_a_flat_block_is_99_percent_of_its_width() {
-        // ITU-R SM.328: for a spectrum flat over B and empty elsewhere, 0.5 % of the power lies
-        // below each limit, so the 99 % bandwidth is 0.99·B. Band-limited Gaussian noise (10 kHz
-        // wide, built in the frequency domain) is keyed on for 1.5 s in a 25 kHz channel,
-        // 20 dB over the channel's noise.
+    /// Gaussian noise with a flat spectrum `width_hz` wide around `offset_hz` and total power
+    /// `level_dbfs`, built in the frequency domain (`n` a power of two).
+    fn flat_block(
+        n: usize,
+        offset_hz: f64,
+        width_hz: f64,
+        level_dbfs: f64,
+        seed: u64,
+    ) -> Vec<Complex32> {
         use rustfft::FftPlanner;
-        let n = 1 << 19;
-        let b_hz = 10e3;
-        let mut g = Gauss::new(21);
+        let mut g = Gauss::new(seed);
         let mut spec: Vec<num_complex::Complex64> = (0..n)
             .map(|k| {
                 let f = if k < n / 2 { k as f64 } else { k as f64 - n as f64 } * FS / n as f64;
-                if (f - 40e3).abs() < b_hz / 2.0 {
+                if (f - offset_hz).abs() < width_hz / 2.0 {
                     num_complex::Complex64::new(g.next(), g.next())
                 } else {
                     num_complex::Complex64::new(0.0, 0.0)
@@ -771,19 +820,25 @@ pub(crate) mod tests {
             .collect();
         FftPlanner::new().plan_fft_inverse(n).process(&mut spec);
         let p: f64 = spec.iter().map(|c| c.norm_sqr()).sum::<f64>() / n as f64;
-        let gain = (undb(-38.0) / p).sqrt(); // −38 dBFS in 25 kHz of −93 dBFS/Hz noise: +11 dB
+        let gain = (undb(level_dbfs) / p).sqrt();
+        spec.iter().map(|c| Complex32::new((c.re * gain) as f32, (c.im * gain) as f32)).collect()
+    }
+
+    #[test]
+    fn emission_obw_of_a_flat_block_is_99_percent_of_its_width() {
+        // ITU-R SM.328: for a spectrum flat over B and empty elsewhere, 0.5 % of the power lies
+        // below each limit, so the 99 % bandwidth is 0.99·B. Band-limited Gaussian noise (10 kHz
+        // wide) is keyed on for 1.5 s in a 25 kHz channel, 11 dB over the channel's noise.
+        let n = 1 << 19;
+        let b_hz = 10e3;
+        let block = flat_block(n, 40e3, b_hz, -38.0, 21);
         let noise = band(n, &[], 4);
         let (a, b) = (s(0.5) as usize, s(2.0) as usize);
         let x: Vec<Complex32> = noise
             .iter()
+            .zip(&block)
             .enumerate()
-            .map(|(i, v)| {
-                if (a..b).contains(&i) {
-                    v + Complex32::new((spec[i].re * gain) as f32, (spec[i].im * gain) as f32)
-                } else {
-                    *v
-                }
-            })
+            .map(|(i, (v, w))| if (a..b).contains(&i) { v + w } else { *v })
             .collect();
         let (events, _) = run(&x, 4096, None, 60.0, DEFAULT_HANG_S, vec![channel(40e3, 25e3)]);
         let found = emissions(&events, 0);
@@ -791,6 +846,27 @@ pub(crate) mod tests {
         let obw = found[0].obw_hz.unwrap();
         eprintln!("emission OBW {obw:.1} Hz, expected {:.1} Hz", 0.99 * b_hz);
         assert!((obw / (0.99 * b_hz) - 1.0).abs() < 0.02, "OBW {obw:.0} Hz");
+    }
+
+    #[test]
+    fn a_wideband_link_that_never_stops_does_not_lift_the_floor() {
+        // A noise-like link 60 kHz wide (30 % of the band) at −25 dBFS, 19 dB over the noise in
+        // its width, on all the time, plus a keyed carrier elsewhere. The tracked floor must stay
+        // within 0.3 dB of the true density of the synthetic noise (total power / fs, Parseval).
+        let n = 1 << 20;
+        let link = flat_block(n, -40e3, 60e3, -25.0, 12);
+        let keyed = |i: u64| i % s(0.5) < s(0.2);
+        let noise = band(n, &[Keyed { offset_hz: 70e3, level_dbfs: -35.0, on: &keyed }], 6);
+        let x: Vec<Complex32> = noise.iter().zip(&link).map(|(a, b)| a + b).collect();
+        let chans = vec![channel(-40e3, 60e3), channel(70e3, 10e3), channel(40e3, 10e3)];
+        let (events, _) = run(&x, 512, None, 60.0, DEFAULT_HANG_S, chans);
+        let iv = intervals(&events, 2);
+        let truth = NOISE_DBFS - db(FS);
+        let got = db(iv[0].noise_density);
+        eprintln!("busy band: floor {got:.3} dBFS/Hz, truth {truth:.3}");
+        assert!((got - truth).abs() < 0.3, "floor {got:.2} vs {truth:.2}");
+        assert_eq!(intervals(&events, 0)[0].occupancy_pct(), 100.0);
+        assert_eq!(iv[0].occupied, 0);
     }
 
     #[test]
@@ -841,6 +917,30 @@ pub(crate) mod tests {
         t.push(100.0);
         assert_eq!(t.current(), 100.0);
         assert_eq!(FloorTracker::new(3).current(), 0.0);
+    }
+
+    #[test]
+    fn the_smoothed_psd_averages_then_forgets() {
+        let row = |v: f64| {
+            let mut s = crate::measure::band::tests::spectrum_with(vec![v; 4]);
+            s.dof = 2.0;
+            s
+        };
+        let mut sm = SmoothedPsd::new(0.25);
+        // Cumulative mean for the first 1/α = 4 rows: (4 + 0 + 2 + 2)/4 = 2.
+        for v in [4.0, 0.0, 2.0] {
+            sm.push(&row(v));
+        }
+        let (psd, dof) = sm.push(&row(2.0));
+        assert_eq!((psd[0], dof), (2.0, 8.0));
+        // Then weight α: 2 + 0.25·(10 − 2) = 4.
+        let (psd, dof) = sm.push(&row(10.0));
+        assert_eq!((psd[0], dof), (4.0, 10.0));
+        // ν stops growing at (2 − α)/α = 7 rows' worth.
+        for _ in 0..5 {
+            sm.push(&row(4.0));
+        }
+        assert_eq!(sm.push(&row(4.0)).1, 14.0);
     }
 
     #[test]

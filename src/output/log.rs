@@ -14,8 +14,8 @@
 //!
 //! - `start` (first line): the settings. `version, source, sample_rate_hz, center_hz, fft_size,
 //!   window, overlap, rbw_hz, dwell_s` (one measurement sample), `frames_per_sample, interval_s,
-//!   hang_s, threshold_db` (default threshold), `obw_percent, floor_memory_s, t_start_s, start,
-//!   time_source` (`sigmf`, `option`, `wall_clock` or `none`).
+//!   hang_s, threshold_db` (default threshold), `obw_percent, floor_memory_s, floor_smoothing_s,
+//!   t_start_s, start, time_source` (`sigmf`, `option`, `wall_clock` or `none`).
 //! - `channel` (one per plan channel): `channel, center_hz, width_hz, threshold_db`.
 //! - `interval` (one per channel per interval): `channel, center_hz, width_hz, t_start_s, t_end_s,
 //!   start, end, occupancy_pct` (occupied samples / samples × 100, ITU-R SM.1880), `mean_dbfs`
@@ -38,7 +38,7 @@
 //! second in channel `ch-low` (`--interval 5s`; one line of each kind):
 //!
 //! ```text
-//! {"kind":"start","version":"0.1.0","source":"keyed.sigmf-data","sample_rate_hz":2400000.0,"center_hz":433500000.0,"fft_size":4096,"window":"hann","overlap":0.5,"rbw_hz":878.906,"dwell_s":0.009386666666666666,"frames_per_sample":11,"interval_s":5.0,"hang_s":0.02816,"threshold_db":10.0,"obw_percent":99.0,"floor_memory_s":2.0,"t_start_s":0.0,"start":"2026-05-01T08:00:00.000Z","time_source":"sigmf"}
+//! {"kind":"start","version":"0.1.0","source":"keyed.sigmf-data","sample_rate_hz":2400000.0,"center_hz":433500000.0,"fft_size":4096,"window":"hann","overlap":0.5,"rbw_hz":878.906,"dwell_s":0.009386666666666666,"frames_per_sample":11,"interval_s":5.0,"hang_s":0.02816,"threshold_db":10.0,"obw_percent":99.0,"floor_memory_s":2.0,"floor_smoothing_s":0.5,"t_start_s":0.0,"start":"2026-05-01T08:00:00.000Z","time_source":"sigmf"}
 //! {"kind":"channel","channel":"ch-low","center_hz":433200000.0,"width_hz":25000.0,"threshold_db":10.0}
 //! {"kind":"emission","channel":"ch-low","center_hz":433200000.0,"t_start_s":0.9954133333333334,"t_end_s":1.3051733333333333,"start":"2026-05-01T08:00:00.995Z","end":"2026-05-01T08:00:01.305Z","duration_s":0.30976,"peak_dbfs":-29.99,"mean_dbfs":-30.14,"obw_hz":1724.1,"samples":33,"partial":false}
 //! {"kind":"interval","channel":"ch-low","center_hz":433200000.0,"width_hz":25000.0,"t_start_s":0.0,"t_end_s":5.0,"start":"2026-05-01T08:00:00.000Z","end":"2026-05-01T08:00:05.000Z","occupancy_pct":30.769,"mean_dbfs":-35.22,"peak_dbfs":-29.99,"noise_floor_dbfs_per_hz":-113.8,"samples":533,"occupied_samples":164,"dropped_samples":0,"partial":false}
@@ -149,6 +149,7 @@ mod tests {
                 threshold_db: 10.0,
                 obw_percent: 99.0,
                 floor_memory_s: 2.0,
+                floor_smoothing_s: 0.5,
                 t_start_s: 0.0,
                 start: None,
                 time_source: "none".into(),

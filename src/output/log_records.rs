@@ -36,6 +36,7 @@ pub struct StartRecord {
     pub threshold_db: f64,
     pub obw_percent: f64,
     pub floor_memory_s: f64,
+    pub floor_smoothing_s: f64,
     pub t_start_s: f64,
     pub start: Option<String>,
     /// Where `start` comes from: `sigmf`, `option`, `wall_clock` or `none`.
@@ -144,6 +145,7 @@ pub const CSV_COLUMNS: &[&str] = &[
     "hang_s",
     "obw_percent",
     "floor_memory_s",
+    "floor_smoothing_s",
     "time_source",
     "version",
 ];
