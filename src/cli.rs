@@ -147,6 +147,13 @@ pub struct DemoArgs {
     /// Write at the sample rate, as a receiver would, instead of as fast as possible.
     #[arg(long)]
     pub realtime: bool,
+    /// Time of the first sample, RFC 3339 (e.g. 2026-05-01T08:00:00Z), written to SigMF
+    /// core:datetime.
+    #[arg(long, value_name = "TIME", value_parser = parse_time)]
+    pub start: Option<OffsetDateTime>,
+    /// Seed of the scene's noise and phases (keying and levels do not depend on it).
+    #[arg(long, value_name = "N", default_value_t = crate::source::demo::DEFAULT_SEED)]
+    pub seed: u64,
 }
 
 /// A band given as `CENTER:WIDTH` in absolute hertz.
@@ -228,6 +235,26 @@ mod tests {
         assert!(m.json);
         assert!(Cli::try_parse_from(["bandwarden", "measure", "--window", "gauss"]).is_err());
         assert!(Cli::try_parse_from(["bandwarden", "measure", "--format", "s16"]).is_err());
+    }
+
+    #[test]
+    fn demo_flags() {
+        let cli = Cli::try_parse_from([
+            "bandwarden",
+            "demo",
+            "--rate",
+            "1M",
+            "--start",
+            "2031-04-17T06:30:00Z",
+            "--seed",
+            "9",
+        ])
+        .unwrap();
+        let Some(Command::Demo(d)) = cli.command else { panic!("not demo") };
+        assert_eq!(d.rate, 1e6);
+        assert_eq!(d.start.unwrap().unix_timestamp(), 1_934_173_800);
+        assert_eq!(d.seed, 9);
+        assert!(Cli::try_parse_from(["bandwarden", "demo", "--start", "today"]).is_err());
     }
 
     #[test]

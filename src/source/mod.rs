@@ -79,11 +79,14 @@ pub struct InputRequest {
 /// by the caller) so library code never prints.
 pub fn open(req: &InputRequest, notes: &mut Vec<String>) -> Result<Box<dyn SampleSource>> {
     let src: Box<dyn SampleSource> = match req.path.as_deref() {
-        None => Box::new(demo::DemoSource::new(
-            req.sample_rate_hz.unwrap_or(demo::DEFAULT_RATE_HZ),
-            req.center_hz.unwrap_or(demo::DEFAULT_CENTER_HZ),
-            req.realtime,
-        )),
+        None => Box::new(
+            demo::DemoSource::new(
+                req.sample_rate_hz.unwrap_or(demo::DEFAULT_RATE_HZ),
+                req.center_hz.unwrap_or(demo::DEFAULT_CENTER_HZ),
+                req.realtime,
+            )
+            .with_start_time(req.start_time),
+        ),
         Some("-") => {
             let format = req.format.context(
                 "reading stdin needs --format (one of cu8, ci8, ci16_le, ci16_be, ci32_le, cf32_le, cf32_be, cf64_le)",
