@@ -442,3 +442,50 @@ fn live_input_that_outruns_the_dsp_has_its_drops_logged() {
     let stderr = String::from_utf8(out.stderr).unwrap();
     assert!(stderr.contains("dropped because processing fell behind"), "{stderr}");
 }
+
+#[test]
+fn the_demo_recording_logs_the_scenes_keying() {
+    // The shipped recording of the demo scene, logged with the shipped plan, against the scene's
+    // own schedule (truth as data: `source::demo`). Occupancy per 2 s interval within ±2 points of
+    // the keyed fraction (ITU-R SM.1880 definition); one emission per keyed run, each edge within
+    // one measurement sample.
+    use bandwarden::source::demo;
+    let dir = env!("CARGO_MANIFEST_DIR");
+    let meta = format!("{dir}/recordings/wrenhollow-demo.sigmf-meta");
+    let plan = format!("{dir}/recordings/wrenhollow-plan.toml");
+    let out = run(&["log", &meta, "--plan", &plan, "--interval", "2s"]);
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let recs = parse_lines(&String::from_utf8(out.stdout).unwrap());
+    let start = &recs[0];
+    assert_eq!(start["start"], "2031-04-17T06:30:00.000Z", "core:datetime of the recording");
+    let rate = start["sample_rate_hz"].as_f64().unwrap();
+    let dwell = start["dwell_s"].as_f64().unwrap();
+    let n = recs.last().unwrap()["iq_samples"].as_u64().unwrap();
+    assert_eq!(n, 4_000_000);
+    let names: Vec<&str> =
+        of_kind(&recs, "channel").iter().map(|c| c["channel"].as_str().unwrap()).collect();
+    assert_eq!(names.len(), demo::channels().len());
+    for name in names {
+        let truth = demo::channel(name).unwrap_or_else(|| panic!("'{name}' is not in the scene"));
+        for iv in of_kind(&recs, "interval").iter().filter(|r| r["channel"] == name) {
+            let (t0, t1) = (iv["t_start_s"].as_f64().unwrap(), iv["t_end_s"].as_f64().unwrap());
+            let want = 100.0 * truth.schedule.keyed_time(t0, t1) / (t1 - t0);
+            let got = iv["occupancy_pct"].as_f64().unwrap();
+            eprintln!("{name:>8} {t0}..{t1} s: logged {got:6.2} %, scene {want:6.2} %");
+            assert!((got - want).abs() <= 2.0, "{name} {t0}..{t1}: {got} % vs {want} %");
+        }
+        let mut runs = Vec::new();
+        truth.schedule.runs(rate, 0, n, &mut runs);
+        let em: Vec<&Value> =
+            of_kind(&recs, "emission").into_iter().filter(|r| r["channel"] == name).collect();
+        assert_eq!(em.len(), runs.len(), "{name}: {em:#?} vs {runs:?}");
+        for (e, &(a, b)) in em.iter().zip(&runs) {
+            let (s0, s1) = (e["t_start_s"].as_f64().unwrap(), e["t_end_s"].as_f64().unwrap());
+            let (a, b) = (a as f64 / rate, b as f64 / rate);
+            assert!(
+                (s0 - a).abs() <= dwell && (s1 - b).abs() <= dwell,
+                "{name}: {s0}..{s1} vs {a}..{b}"
+            );
+        }
+    }
+}

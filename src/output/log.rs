@@ -34,15 +34,15 @@
 //! - `stop` (last line of an orderly end): `t_end_s, end, reason` (`end_of_input`, `limit`,
 //!   `interrupted`, `terminated`, `input_error`), `iq_samples` (read), `dropped_samples` (total).
 //!
-//! Worked example: a 12 s recording of an invented site, with a carrier keyed 0.3 s on in every
-//! second in channel `ch-low` (`--interval 5s`; one line of each kind):
+//! Worked example: the shipped demo recording (an invented site) logged with its plan,
+//! `--interval 2s`; one line of each kind, for the `telem` channel (FSK bursts of 40 and 80 ms):
 //!
 //! ```text
-//! {"kind":"start","version":"0.1.0","source":"keyed.sigmf-data","sample_rate_hz":2400000.0,"center_hz":433500000.0,"fft_size":4096,"window":"hann","overlap":0.5,"rbw_hz":878.906,"dwell_s":0.009386666666666666,"frames_per_sample":11,"interval_s":5.0,"hang_s":0.02816,"threshold_db":10.0,"obw_percent":99.0,"floor_memory_s":2.0,"floor_smoothing_s":0.5,"t_start_s":0.0,"start":"2026-05-01T08:00:00.000Z","time_source":"sigmf"}
-//! {"kind":"channel","channel":"ch-low","center_hz":433200000.0,"width_hz":25000.0,"threshold_db":10.0}
-//! {"kind":"emission","channel":"ch-low","center_hz":433200000.0,"t_start_s":0.9954133333333334,"t_end_s":1.3051733333333333,"start":"2026-05-01T08:00:00.995Z","end":"2026-05-01T08:00:01.305Z","duration_s":0.30976,"peak_dbfs":-29.99,"mean_dbfs":-30.14,"obw_hz":1724.1,"samples":33,"partial":false}
-//! {"kind":"interval","channel":"ch-low","center_hz":433200000.0,"width_hz":25000.0,"t_start_s":0.0,"t_end_s":5.0,"start":"2026-05-01T08:00:00.000Z","end":"2026-05-01T08:00:05.000Z","occupancy_pct":30.769,"mean_dbfs":-35.22,"peak_dbfs":-29.99,"noise_floor_dbfs_per_hz":-113.8,"samples":533,"occupied_samples":164,"dropped_samples":0,"partial":false}
-//! {"kind":"stop","t_end_s":12.0,"end":"2026-05-01T08:00:12.000Z","reason":"end_of_input","iq_samples":28800000,"dropped_samples":0}
+//! {"kind":"start","version":"0.1.0","source":"recordings/wrenhollow-demo.sigmf-data","sample_rate_hz":1000000.0,"center_hz":433500000.0,"fft_size":4096,"window":"hann","overlap":0.5,"rbw_hz":366.211,"dwell_s":0.008192,"frames_per_sample":4,"interval_s":2.0,"hang_s":0.032768,"threshold_db":10.0,"obw_percent":99.0,"floor_memory_s":2.0,"floor_smoothing_s":0.5,"t_start_s":0.0,"start":"2031-04-17T06:30:00.000Z","time_source":"sigmf"}
+//! {"kind":"channel","channel":"telem","center_hz":433637500.0,"width_hz":12500.0,"threshold_db":10.0}
+//! {"kind":"emission","channel":"telem","center_hz":433637500.0,"t_start_s":1.647616,"t_end_s":1.729536,"start":"2031-04-17T06:30:01.648Z","end":"2031-04-17T06:30:01.730Z","duration_s":0.08192,"peak_dbfs":-33.88,"mean_dbfs":-34.1,"obw_hz":7185.5,"samples":10,"partial":false}
+//! {"kind":"interval","channel":"telem","center_hz":433637500.0,"width_hz":12500.0,"t_start_s":0.0,"t_end_s":2.0,"start":"2031-04-17T06:30:00.000Z","end":"2031-04-17T06:30:02.000Z","occupancy_pct":6.531,"mean_dbfs":-45.59,"peak_dbfs":-33.88,"noise_floor_dbfs_per_hz":-94.8,"samples":245,"occupied_samples":16,"dropped_samples":0,"partial":false}
+//! {"kind":"stop","t_end_s":4.0,"end":"2031-04-17T06:30:04.000Z","reason":"end_of_input","iq_samples":4000000,"dropped_samples":0}
 //! ```
 //!
 //! CSV (`--csv`) has one header row naming every field of every kind ([`CSV_COLUMNS`]); each
