@@ -1,6 +1,6 @@
 //! Sample sources: raw files, stdin, SigMF recordings, WAV files and the built-in demo scene.
 //!
-//! Every source yields `Complex32` samples at full scale (see [`format`]) and describes itself
+//! Every source yields `Complex32` samples at full scale (see [`self::format`]) and describes itself
 //! with a [`SourceInfo`]. The [`reader`] module runs a source on its own thread and hands blocks
 //! to the DSP over a bounded channel.
 
