@@ -224,9 +224,11 @@ pub struct ChannelArgs {
     /// repeatable, combines with --plan.
     #[arg(long = "channel", value_name = "NAME=CENTER:WIDTH", value_parser = parse_channel_arg)]
     pub channels: Vec<ChannelArg>,
-    /// A channel plan: a TOML file of [[channel]] tables with name, center, width and an optional
-    /// threshold_db.
-    #[arg(long, value_name = "FILE.toml")]
+    #[arg(
+        long,
+        value_name = "FILE.toml",
+        help = "A channel plan: a TOML file of [[channel]] tables with name, center, width and an optional threshold_db"
+    )]
     pub plan: Option<String>,
     /// Length of one measurement sample (one averaged row of FFT frames), e.g. 10ms; rounded to
     /// a whole number of FFT hops. Default: the most hops that fit in 10 ms.
