@@ -36,6 +36,7 @@ pub fn run(cli: Cli) -> anyhow::Result<ExitCode> {
         Some(Command::Measure(args)) => cmd::measure::run(args),
         Some(Command::Demo(args)) => cmd::demo::run(args),
         Some(Command::Watch(args)) => cmd::watch::run(args),
+        Some(Command::Log(args)) => cmd::log::run(args),
     }
 }
 

@@ -34,6 +34,9 @@ pub enum Command {
     Demo(DemoArgs),
     /// Live monitor in the terminal: spectrum, waterfall and the strongest signals.
     Watch(crate::cmd::watch::WatchArgs),
+    /// Log how busy each channel of a plan is (ITU-R SM.1880 occupancy) and every emission, as
+    /// JSON Lines or CSV, for unattended runs.
+    Log(crate::cmd::log::LogArgs),
 }
 
 /// Where samples come from and how to read them.
@@ -122,6 +125,8 @@ pub struct MeasureArgs {
     /// Print one JSON object instead of the table.
     #[arg(long)]
     pub json: bool,
+    #[command(flatten)]
+    pub channels: crate::plan::ChannelArgs,
 }
 
 #[derive(Args, Debug)]

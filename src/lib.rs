@@ -11,6 +11,7 @@ pub mod dsp;
 pub mod measure;
 pub mod output;
 pub mod pipeline;
+pub mod plan;
 pub mod source;
 pub mod tui;
 pub mod units;

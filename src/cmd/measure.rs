@@ -2,13 +2,16 @@
 
 use crate::app::note;
 use crate::cli::{DspArgs, InputArgs, MeasureArgs};
+use crate::cmd::log;
 use crate::dsp::{Engine, EngineConfig, Spectrum, Window};
 use crate::measure::stats::gamma_quantile_unit_mean;
 use crate::measure::{
     band_power, find_signals, noise_floor, occupied_bandwidth, xdb_bandwidth, Detection,
 };
+use crate::output::report::ChannelRow;
 use crate::output::report::{BandRow, IssuesRow, PeakRow, Report};
 use crate::pipeline::Input;
+use crate::plan::Plan;
 use crate::source::reader::ReaderOptions;
 use crate::source::{self, InputIssues};
 use crate::units::{db, format_hz};
@@ -31,6 +34,7 @@ pub fn run_default() -> Result<ExitCode> {
         obw_percent: 99.0,
         xdb: 26.0,
         json: false,
+        channels: crate::plan::ChannelArgs::default(),
     })
 }
 
@@ -45,6 +49,7 @@ pub fn run(args: MeasureArgs) -> Result<ExitCode> {
         bail!("--xdb {} must be a positive number of dB (26 is usual)", args.xdb);
     }
     let cfg = args.dsp.engine(None).map_err(anyhow::Error::msg)?;
+    let plan = args.channels.plan()?;
     let mut notes = Vec::new();
     let src = source::open(&args.source.request(args.input.clone()), &mut notes)?;
     notes.iter().for_each(|n| note(n));
@@ -55,10 +60,25 @@ pub fn run(args: MeasureArgs) -> Result<ExitCode> {
         }
     }
     let max_samples = seconds.map(|s| (s * src.info().sample_rate_hz).round() as u64);
+    let setup = if plan.is_empty() {
+        None
+    } else {
+        let (interval, hang) = log::default_durations();
+        Some(log::Setup::new(src.info(), &cfg, &plan, &args.channels, interval, hang)?)
+    };
     let input = Input::start(src, ReaderOptions { max_samples, ..Default::default() });
     let info = input.info.clone();
 
-    let (spectrum, samples) = average_all(&input, cfg.clone());
+    let (spectrum, samples, occupancy) = match &setup {
+        None => {
+            let (spectrum, samples) = average_all(&input, cfg.clone());
+            (spectrum, samples, None)
+        }
+        Some(setup) => {
+            let whole = log::measure_channels(&input, setup);
+            (whole.spectrum, whole.samples, Some((whole.occupancy, whole.dwell_s)))
+        }
+    };
     let dropped = input.stats.dropped.load(Ordering::Relaxed);
     let issues = input.finish()?;
     report_issues(&issues);
@@ -75,7 +95,10 @@ pub fn run(args: MeasureArgs) -> Result<ExitCode> {
             cfg.fft_size
         );
     };
-    let report = build_report(&args, &info.label, &spectrum, samples, &issues, dropped)?;
+    let mut report = build_report(&args, &info.label, &spectrum, samples, &issues, dropped)?;
+    if let Some((occupancy, dwell_s)) = occupancy {
+        report.channels = channel_rows(&plan, &spectrum, &occupancy, dwell_s, args.obw_percent);
+    }
     if args.json {
         println!("{}", report.to_json());
     } else {
@@ -173,12 +196,39 @@ fn build_report(
         noise_floor_dbfs_per_hz: db(floor),
         peaks,
         bands,
+        channels: Vec::new(),
         input_issues: IssuesRow {
             non_finite_samples: issues.non_finite,
             trailing_bytes: issues.trailing_bytes,
             dropped_samples: dropped,
         },
     })
+}
+
+/// Power and occupied bandwidth of each plan channel in the whole-input average, with the
+/// channel's occupancy over the whole input.
+fn channel_rows(
+    plan: &Plan,
+    spec: &Spectrum,
+    occupancy: &[(f64, u64)],
+    dwell_s: f64,
+    obw_percent: f64,
+) -> Vec<ChannelRow> {
+    plan.channels
+        .iter()
+        .zip(occupancy)
+        .map(|(c, &(pct, n))| ChannelRow {
+            name: c.name.clone(),
+            center_hz: c.center_hz,
+            width_hz: c.width_hz,
+            power_dbfs: db(band_power(spec, c.low_hz(), c.high_hz())),
+            obw_hz: occupied_bandwidth(spec, c.low_hz(), c.high_hz(), obw_percent)
+                .map_or(0.0, |e| e.width_hz()),
+            occupancy_pct: pct,
+            samples: n,
+            dwell_s,
+        })
+        .collect()
 }
 
 /// Half-width in dB of the 95 % interval of `χ²_ν/ν` (the larger side).

@@ -7,13 +7,13 @@
 use crate::app::note;
 use crate::cli::{DspArgs, InputArgs};
 use crate::pipeline::Input;
+use crate::plan::{parse_channel_arg, ChannelArg, Plan};
 use crate::source::reader::ReaderOptions;
 use crate::source::{self, sanitize};
 use crate::tui::app::{App, Channel, SourceSummary};
 use crate::tui::colour::Depth;
 use crate::tui::dsp_thread::{DspSettings, DspThread};
 use crate::tui::{self, RunOptions};
-use crate::units::{parse_hz, parse_positive_hz};
 use anyhow::{bail, Result};
 use clap::{Args, Parser};
 use std::io::IsTerminal;
@@ -46,10 +46,16 @@ pub struct WatchArgs {
     /// Add this many dB to every level shown, turning dBFS into dBm for a calibrated receiver.
     #[arg(long, value_name = "DB", allow_negative_numbers = true)]
     pub ref_offset: Option<f64>,
-    /// A channel to mark on the spectrum and in the table, NAME=CENTER:WIDTH in Hz
-    /// (e.g. Gate-North=433.92M:25k); repeatable.
-    #[arg(long = "channel", value_name = "NAME=CENTER:WIDTH", value_parser = parse_channel)]
-    pub channels: Vec<Channel>,
+    /// A channel to mark on the spectrum and in the table, NAME=CENTER:WIDTH in absolute Hz
+    /// (e.g. gate=433.2625M:12.5k); repeatable, combines with --plan.
+    #[arg(long = "channel", value_name = "NAME=CENTER:WIDTH", value_parser = parse_channel_arg)]
+    pub channels: Vec<ChannelArg>,
+    #[arg(
+        long,
+        value_name = "FILE.toml",
+        help = "A channel plan to show: a TOML file of [[channel]] tables with name, center and width"
+    )]
+    pub plan: Option<String>,
     /// Colours: auto (24-bit when COLORTERM says truecolor or 24bit, none under NO_COLOR,
     /// else 256), 24bit, 256 or mono.
     #[arg(long, value_name = "MODE", default_value = "auto", value_parser = parse_colour)]
@@ -80,22 +86,12 @@ pub fn parse_colour(text: &str) -> Result<ColourChoice, String> {
     }
 }
 
-/// `NAME=CENTER:WIDTH`, frequencies with SI suffixes; the name is cleaned of control
-/// characters.
-pub fn parse_channel(text: &str) -> Result<Channel, String> {
-    let (name, band) = text.split_once('=').ok_or_else(|| {
-        format!("channel '{text}' must be NAME=CENTER:WIDTH, e.g. Gate-North=433.92M:25k")
-    })?;
-    let (c, w) = band.split_once(':').ok_or_else(|| {
-        format!("channel '{text}' must be NAME=CENTER:WIDTH, e.g. Gate-North=433.92M:25k")
-    })?;
-    let name = sanitize(name.trim());
-    if name.is_empty() {
-        return Err(format!("channel '{text}' has no name before '='"));
-    }
-    let center_hz = parse_hz(c).map_err(|e| format!("channel '{text}': centre {e}"))?;
-    let width_hz = parse_positive_hz(w).map_err(|e| format!("channel '{text}': width {e}"))?;
-    Ok(Channel { name, center_hz, width_hz })
+/// The plan's channels as the monitor shows them, names cleaned of control characters.
+fn overlay(plan: &Plan) -> Vec<Channel> {
+    plan.channels
+        .iter()
+        .map(|c| Channel { name: sanitize(&c.name), center_hz: c.center_hz, width_hz: c.width_hz })
+        .collect()
 }
 
 /// Plain `bandwarden`: the monitor on the demo scene when there is a terminal to draw on, else
@@ -114,21 +110,25 @@ pub fn run_default() -> Result<ExitCode> {
 
 pub fn run(args: WatchArgs) -> Result<ExitCode> {
     validate(&args)?;
-    if !std::io::stdout().is_terminal() {
-        bail!("watch draws on a terminal and standard output is not one; use `bandwarden measure` for a report");
-    }
     let settings = DspSettings {
         fft_size: args.dsp.fft_size,
         window: args.dsp.window,
         overlap: args.dsp.overlap,
         row_rate: args.row_rate,
     };
+    let plan = Plan::from_args(args.plan.as_deref(), &args.channels)?;
     let mut notes = Vec::new();
     let mut req = args.source.request(args.input.clone());
     req.realtime = args.input.is_none();
     let src = source::open(&req, &mut notes)?;
     notes.iter().for_each(|n| note(n));
     let info = src.info().clone();
+    let half = info.sample_rate_hz / 2.0;
+    plan.check_span(info.center_hz - half, info.center_hz + half)?;
+    // Checked after the input and the plan, so their mistakes are reported first.
+    if !std::io::stdout().is_terminal() {
+        bail!("watch draws on a terminal and standard output is not one; use `bandwarden measure` for a report");
+    }
     let is_file = args.input.as_deref().is_some_and(|p| p != "-");
     if args.loop_input && !is_file {
         note("--loop only replays files; ignored for this input");
@@ -157,7 +157,7 @@ pub fn run(args: WatchArgs) -> Result<ExitCode> {
         ColourChoice::Auto => Depth::detect(),
         ColourChoice::Forced(d) => d,
     };
-    let app = App::new(summary, settings, depth, args.ref_offset, args.channels, Instant::now());
+    let app = App::new(summary, settings, depth, args.ref_offset, overlay(&plan), Instant::now());
     let run_opts =
         RunOptions { fps: args.fps, scroll_region: !args.no_scroll_region, mouse: !args.no_mouse };
     let result = tui::run(app, &dsp, &input.stats, run_opts);
@@ -252,7 +252,9 @@ mod tests {
             "--ref-offset",
             "-30.5",
             "--channel",
-            "Gate-North=433.92M:25k",
+            "gate=433.2625M:12.5k",
+            "--plan",
+            "site.toml",
             "--colour",
             "mono",
             "--fps",
@@ -263,12 +265,24 @@ mod tests {
         assert_eq!(w.speed, 4.0);
         assert!(w.loop_input);
         assert_eq!(w.ref_offset, Some(-30.5));
-        assert_eq!(
-            w.channels[0],
-            Channel { name: "Gate-North".into(), center_hz: 433.92e6, width_hz: 25e3 }
-        );
+        assert_eq!((w.channels[0].name.as_str(), w.channels[0].center_hz), ("gate", 433.2625e6));
+        assert_eq!(w.plan.as_deref(), Some("site.toml"));
         assert_eq!(w.colour, ColourChoice::Forced(Depth::Mono));
         assert_eq!(w.fps, 15.0);
+    }
+
+    #[test]
+    fn plans_become_the_overlay() {
+        let plan = Plan::parse(
+            "[[channel]]\nname = \"gate\"\ncenter = \"433.2625M\"\nwidth = \"12.5k\"\n",
+            "t.toml",
+        )
+        .unwrap();
+        let o = overlay(&plan);
+        assert_eq!(
+            o,
+            vec![Channel { name: "gate".into(), center_hz: 433.2625e6, width_hz: 12.5e3 }]
+        );
     }
 
     #[test]
@@ -281,10 +295,13 @@ mod tests {
             .to_string()
             .contains("--row-rate"));
         assert!(validate(&parse(&["--fft", "8"])).unwrap_err().to_string().contains("FFT size"));
-        assert!(parse_channel("433.92M:25k").unwrap_err().contains("NAME=CENTER:WIDTH"));
-        assert!(parse_channel("=433.92M:25k").unwrap_err().contains("no name"));
-        assert!(parse_channel("A=433.92M:0").unwrap_err().contains("width"));
-        assert_eq!(parse_channel("bad\x1b[2J=1M:1k").unwrap().name, "bad?[2J");
+        let bad = |a: &[&str]| {
+            let mut all = vec!["bandwarden", "watch"];
+            all.extend_from_slice(a);
+            Cli::try_parse_from(all).unwrap_err().to_string()
+        };
+        assert!(bad(&["--channel", "433.92M:25k"]).contains("NAME=CENTER:WIDTH"));
+        assert!(bad(&["--channel", "bad\x1b[2J=1M:1k"]).contains("control characters"));
         assert!(parse_colour("16").unwrap_err().contains("auto, 24bit, 256 or mono"));
     }
 }

@@ -1,5 +1,6 @@
 //! The DSP engine: windows, STFT, PSD averaging and calibration.
 
+pub mod average;
 pub mod engine;
 pub mod spectrum;
 pub mod stft;

@@ -3,6 +3,7 @@
 
 pub mod band;
 pub mod noise;
+pub mod occupancy;
 pub mod signals;
 pub mod stats;
 

@@ -7,6 +7,8 @@
 //! `peaks[]`: `freq_hz, level_dbfs, snr_db, power_dbfs, obw_hz` (strongest first).
 //! `bands[]`: `center_hz, width_hz, power_dbfs, obw_hz, obw_low_hz, obw_high_hz,
 //! xdb_bandwidth_hz`.
+//! `channels[]` (only with `--channel`/`--plan`): `name, center_hz, width_hz, power_dbfs, obw_hz,
+//! occupancy_pct, samples, dwell_s`.
 
 use crate::units::{format_hz, format_hz_short};
 use serde::Serialize;
@@ -32,6 +34,9 @@ pub struct Report {
     pub noise_floor_dbfs_per_hz: f64,
     pub peaks: Vec<PeakRow>,
     pub bands: Vec<BandRow>,
+    /// Plan channels (`--channel`/`--plan`); absent from the JSON when none were given.
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub channels: Vec<ChannelRow>,
     pub input_issues: IssuesRow,
 }
 
@@ -53,6 +58,20 @@ pub struct BandRow {
     pub obw_low_hz: f64,
     pub obw_high_hz: f64,
     pub xdb_bandwidth_hz: f64,
+}
+
+/// A plan channel over the whole input: power and OBW of the average spectrum, and occupancy
+/// (ITU-R SM.1880) over `samples` measurement samples of `dwell_s` each.
+#[derive(Serialize, Debug, Clone)]
+pub struct ChannelRow {
+    pub name: String,
+    pub center_hz: f64,
+    pub width_hz: f64,
+    pub power_dbfs: f64,
+    pub obw_hz: f64,
+    pub occupancy_pct: f64,
+    pub samples: u64,
+    pub dwell_s: f64,
 }
 
 #[derive(Serialize, Debug, Clone, Default)]
@@ -138,6 +157,39 @@ impl Report {
                     b.power_dbfs,
                     format_hz_short(b.obw_hz, 2),
                     format_hz_short(b.xdb_bandwidth_hz, 2)
+                );
+            }
+        }
+        if !self.channels.is_empty() {
+            let _ = writeln!(s);
+            let _ = writeln!(
+                s,
+                "{:<16}  {:>18}  {:>9}  {:>11}  {:>12}  {:>10}",
+                "channel",
+                "centre",
+                "width",
+                "power dBFS",
+                format!("OBW {obw_percent}%"),
+                "occupancy"
+            );
+            for c in &self.channels {
+                let _ = writeln!(
+                    s,
+                    "{:<16}  {:>18}  {:>9}  {:>11.2}  {:>12}  {:>8.1} %",
+                    c.name,
+                    format_hz(c.center_hz),
+                    format_hz_short(c.width_hz, 2),
+                    c.power_dbfs,
+                    format_hz_short(c.obw_hz, 2),
+                    c.occupancy_pct
+                );
+            }
+            if let Some(c) = self.channels.first() {
+                let _ = writeln!(
+                    s,
+                    "occupancy over {} samples of {:.2} ms (ITU-R SM.1880)",
+                    c.samples,
+                    c.dwell_s * 1e3
                 );
             }
         }

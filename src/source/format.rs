@@ -121,6 +121,20 @@ impl SampleFormat {
                 out.extend(chunks.map(|c| Complex32::new(get(&c[0..4]), get(&c[4..8]))));
                 0
             }
+            SampleFormat::Cf32Le if cfg!(target_endian = "little") => {
+                let before = out.len();
+                let count = bytes.len() / 8;
+                out.reserve(count);
+                // SAFETY: `Complex32` is `repr(C)` {re: f32, im: f32}, so on a little-endian
+                // machine cf32_le bytes are its exact memory image; `reserve` made room for
+                // `count` samples, and every byte of them is written before `set_len`.
+                unsafe {
+                    let dst = out.as_mut_ptr().add(before) as *mut u8;
+                    std::ptr::copy_nonoverlapping(bytes.as_ptr(), dst, count * 8);
+                    out.set_len(before + count);
+                }
+                drop_non_finite(out, before)
+            }
             SampleFormat::Cf32Le | SampleFormat::Cf32Be => {
                 let le = self == SampleFormat::Cf32Le;
                 let get = |b: &[u8]| {
@@ -193,6 +207,11 @@ fn round_i32(x: f32) -> i32 {
 fn push_finite(samples: impl Iterator<Item = Complex32>, out: &mut Vec<Complex32>) -> u64 {
     let before = out.len();
     out.extend(samples);
+    drop_non_finite(out, before)
+}
+
+/// Removes non-finite samples from `out[before..]`, returning how many there were.
+fn drop_non_finite(out: &mut Vec<Complex32>, before: usize) -> u64 {
     let clean = out[before..].iter().fold(true, |ok, s| ok & (s.re.is_finite() & s.im.is_finite()));
     if clean {
         return 0;

@@ -1,0 +1,259 @@
+//! The occupancy log written by `bandwarden log`: JSON Lines (default) or CSV.
+//!
+//! Other programs read this file while it grows (`tail -f`, a database loader), possibly after a
+//! power cut, so every line is built whole in memory, written with one `write` and flushed: a line
+//! is either complete or absent, never half-written.
+//!
+//! # Records
+//!
+//! Every line is one flat JSON object with a `kind`. Times: `t_start_s`/`t_end_s` are seconds from
+//! the first input sample, computed from sample counts (a replay of the same recording gives the
+//! same numbers); `start`/`end` are the same instants in RFC 3339 UTC with milliseconds, or `null`
+//! when the time of the first sample is unknown (raw file without `--start`). Levels are dBFS (a
+//! complex sample of magnitude 1 is 0 dBFS), frequencies absolute hertz.
+//!
+//! - `start` (first line): the settings. `version, source, sample_rate_hz, center_hz, fft_size,
+//!   window, overlap, rbw_hz, dwell_s` (one measurement sample), `frames_per_sample, interval_s,
+//!   hang_s, threshold_db` (default threshold), `obw_percent, floor_memory_s, floor_smoothing_s,
+//!   t_start_s, start, time_source` (`sigmf`, `option`, `wall_clock` or `none`).
+//! - `channel` (one per plan channel): `channel, center_hz, width_hz, threshold_db`.
+//! - `interval` (one per channel per interval): `channel, center_hz, width_hz, t_start_s, t_end_s,
+//!   start, end, occupancy_pct` (occupied samples / samples × 100, ITU-R SM.1880), `mean_dbfs`
+//!   (mean channel power over the samples), `peak_dbfs` (highest channel power of one sample),
+//!   `noise_floor_dbfs_per_hz` (mean tracked noise density), `samples` (measurement samples),
+//!   `occupied_samples, dropped_samples` (input samples lost in the interval), `partial` (the
+//!   interval was cut short by the end of the run).
+//! - `emission` (when an emission ends): `channel, center_hz, t_start_s, t_end_s, start, end,
+//!   duration_s, peak_dbfs, mean_dbfs` (over its occupied samples), `obw_hz` (99 % occupied
+//!   bandwidth of its noise-corrected average spectrum, ITU-R SM.328; `null` if nothing stood
+//!   above the noise), `samples` (occupied samples), `partial` (cut short by the end of the run or
+//!   by dropped input: it may have gone on).
+//! - `dropped`: `t_start_s, t_end_s, start, end, dropped_samples`: input samples a live source lost
+//!   because processing fell behind. An interval in which not one sample could be measured (all
+//!   of its input lost) has no `interval` records; the `dropped` record covers it.
+//! - `stop` (last line of an orderly end): `t_end_s, end, reason` (`end_of_input`, `limit`,
+//!   `interrupted`, `terminated`, `input_error`), `iq_samples` (read), `dropped_samples` (total).
+//!
+//! Worked example: the shipped demo recording (an invented site) logged with its plan,
+//! `--interval 2s`; one line of each kind, for the `telem` channel (FSK bursts of 40 and 80 ms):
+//!
+//! ```text
+//! {"kind":"start","version":"0.1.0","source":"recordings/wrenhollow-demo.sigmf-data","sample_rate_hz":1000000.0,"center_hz":433500000.0,"fft_size":4096,"window":"hann","overlap":0.5,"rbw_hz":366.211,"dwell_s":0.008192,"frames_per_sample":4,"interval_s":2.0,"hang_s":0.032768,"threshold_db":10.0,"obw_percent":99.0,"floor_memory_s":2.0,"floor_smoothing_s":0.5,"t_start_s":0.0,"start":"2031-04-17T06:30:00.000Z","time_source":"sigmf"}
+//! {"kind":"channel","channel":"telem","center_hz":433637500.0,"width_hz":12500.0,"threshold_db":10.0}
+//! {"kind":"emission","channel":"telem","center_hz":433637500.0,"t_start_s":1.647616,"t_end_s":1.729536,"start":"2031-04-17T06:30:01.648Z","end":"2031-04-17T06:30:01.730Z","duration_s":0.08192,"peak_dbfs":-33.88,"mean_dbfs":-34.1,"obw_hz":7185.5,"samples":10,"partial":false}
+//! {"kind":"interval","channel":"telem","center_hz":433637500.0,"width_hz":12500.0,"t_start_s":0.0,"t_end_s":2.0,"start":"2031-04-17T06:30:00.000Z","end":"2031-04-17T06:30:02.000Z","occupancy_pct":6.531,"mean_dbfs":-45.59,"peak_dbfs":-33.88,"noise_floor_dbfs_per_hz":-94.8,"samples":245,"occupied_samples":16,"dropped_samples":0,"partial":false}
+//! {"kind":"stop","t_end_s":4.0,"end":"2031-04-17T06:30:04.000Z","reason":"end_of_input","iq_samples":4000000,"dropped_samples":0}
+//! ```
+//!
+//! CSV (`--csv`) has one header row naming every field of every kind ([`CSV_COLUMNS`]); each
+//! record fills the columns it has and leaves the others empty, so one file holds every kind and
+//! the `kind` column tells them apart.
+
+pub use super::log_records::*;
+use serde_json::Value;
+use std::io::{self, Write};
+
+/// How records are written.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum LogFormat {
+    JsonLines,
+    Csv,
+}
+
+/// Writes records, one complete line per `write` call, flushed at once.
+pub struct LogWriter<W: Write> {
+    out: W,
+    format: LogFormat,
+    line: String,
+}
+
+impl<W: Write> LogWriter<W> {
+    /// Starts a log; a CSV log gets its header row unless `header` is false (appending to a file
+    /// that already has one).
+    pub fn new(out: W, format: LogFormat, header: bool) -> io::Result<LogWriter<W>> {
+        let mut w = LogWriter { out, format, line: String::new() };
+        if format == LogFormat::Csv && header {
+            w.line = CSV_COLUMNS.join(",");
+            w.line.push('\n');
+            w.emit()?;
+        }
+        Ok(w)
+    }
+
+    pub fn write(&mut self, record: &Record) -> io::Result<()> {
+        self.line = match self.format {
+            LogFormat::JsonLines => {
+                let mut s = serde_json::to_string(record).map_err(io::Error::other)?;
+                s.push('\n');
+                s
+            }
+            LogFormat::Csv => csv_line(record),
+        };
+        self.emit()
+    }
+
+    /// The writer, for tests that inspect what was written.
+    pub fn into_inner(self) -> W {
+        self.out
+    }
+
+    fn emit(&mut self) -> io::Result<()> {
+        self.out.write_all(self.line.as_bytes())?;
+        self.out.flush()
+    }
+}
+
+/// One CSV row (with its newline) for a record, quoting fields as RFC 4180 requires.
+pub fn csv_line(record: &Record) -> String {
+    let value = serde_json::to_value(record).unwrap_or(Value::Null);
+    let fields: Vec<String> = CSV_COLUMNS
+        .iter()
+        .map(|col| match value.get(*col) {
+            None | Some(Value::Null) => String::new(),
+            Some(Value::String(s)) => csv_quote(s),
+            Some(other) => other.to_string(),
+        })
+        .collect();
+    let mut line = fields.join(",");
+    line.push('\n');
+    line
+}
+
+fn csv_quote(s: &str) -> String {
+    if s.contains([',', '"', '\n', '\r']) {
+        format!("\"{}\"", s.replace('"', "\"\""))
+    } else {
+        s.to_string()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn samples() -> Vec<Record> {
+        vec![
+            Record::Start(StartRecord {
+                version: "0.1.0".into(),
+                source: "a, \"quoted\" file".into(),
+                sample_rate_hz: 2.4e6,
+                center_hz: 433.5e6,
+                fft_size: 4096,
+                window: "hann".into(),
+                overlap: 0.5,
+                rbw_hz: 878.9,
+                dwell_s: 0.0094,
+                frames_per_sample: 11,
+                interval_s: 60.0,
+                hang_s: 0.028,
+                threshold_db: 10.0,
+                obw_percent: 99.0,
+                floor_memory_s: 2.0,
+                floor_smoothing_s: 0.5,
+                t_start_s: 0.0,
+                start: None,
+                time_source: "none".into(),
+            }),
+            Record::Channel(ChannelRecord {
+                channel: "north-gate".into(),
+                center_hz: 433.1e6,
+                width_hz: 25e3,
+                threshold_db: 10.0,
+            }),
+            Record::Interval(IntervalRecord {
+                channel: "north-gate".into(),
+                center_hz: 433.1e6,
+                width_hz: 25e3,
+                t_start_s: 0.0,
+                t_end_s: 60.0,
+                start: Some("2026-05-01T08:00:00.000Z".into()),
+                end: Some("2026-05-01T08:01:00.000Z".into()),
+                occupancy_pct: 30.2,
+                mean_dbfs: -36.4,
+                peak_dbfs: -30.9,
+                noise_floor_dbfs_per_hz: -112.3,
+                samples: 6392,
+                occupied_samples: 1931,
+                dropped_samples: 0,
+                partial: false,
+            }),
+            Record::Emission(EmissionRecord {
+                channel: "north-gate".into(),
+                center_hz: 433.1e6,
+                t_start_s: 1.2,
+                t_end_s: 1.5,
+                start: None,
+                end: None,
+                duration_s: 0.3,
+                peak_dbfs: -31.0,
+                mean_dbfs: -31.4,
+                obw_hz: None,
+                samples: 32,
+                partial: true,
+            }),
+            Record::Dropped(DroppedRecord {
+                t_start_s: 2.0,
+                t_end_s: 2.1,
+                start: None,
+                end: None,
+                dropped_samples: 240_000,
+            }),
+            Record::Stop(StopRecord {
+                t_end_s: 60.0,
+                end: None,
+                reason: "end_of_input".into(),
+                iq_samples: 144_000_000,
+                dropped_samples: 240_000,
+            }),
+        ]
+    }
+
+    #[test]
+    fn json_lines_are_flat_objects_with_a_kind() {
+        let mut w = LogWriter::new(Vec::new(), LogFormat::JsonLines, true).unwrap();
+        for r in samples() {
+            w.write(&r).unwrap();
+        }
+        let text = String::from_utf8(w.into_inner()).unwrap();
+        let kinds: Vec<String> = text
+            .lines()
+            .map(|l| serde_json::from_str::<Value>(l).unwrap()["kind"].as_str().unwrap().into())
+            .collect();
+        assert_eq!(kinds, ["start", "channel", "interval", "emission", "dropped", "stop"]);
+        assert!(text
+            .lines()
+            .nth(2)
+            .unwrap()
+            .starts_with(r#"{"kind":"interval","channel":"north-gate""#));
+    }
+
+    #[test]
+    fn every_field_has_a_csv_column() {
+        // A field missing from the header would silently vanish from CSV logs.
+        for r in samples() {
+            let v = serde_json::to_value(&r).unwrap();
+            for key in v.as_object().unwrap().keys() {
+                assert!(CSV_COLUMNS.contains(&key.as_str()), "no CSV column for '{key}'");
+            }
+        }
+    }
+
+    #[test]
+    fn csv_rows_parse_with_a_csv_reader() {
+        let mut w = LogWriter::new(Vec::new(), LogFormat::Csv, true).unwrap();
+        for r in samples() {
+            w.write(&r).unwrap();
+        }
+        let bytes = w.into_inner();
+        let mut reader = csv::Reader::from_reader(bytes.as_slice());
+        let header: Vec<String> = reader.headers().unwrap().iter().map(String::from).collect();
+        assert_eq!(header, CSV_COLUMNS);
+        let rows: Vec<csv::StringRecord> = reader.records().map(Result::unwrap).collect();
+        assert_eq!(rows.len(), 6);
+        assert_eq!(&rows[0][21], "a, \"quoted\" file");
+        assert_eq!(&rows[2][0], "interval");
+        assert_eq!(&rows[2][9], "30.2");
+        assert_eq!(&rows[3][16], "", "a null OBW is an empty cell");
+        assert_eq!(&rows[3][18], "true");
+    }
+}

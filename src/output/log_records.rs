@@ -1,0 +1,151 @@
+//! Serialize-only record types of the occupancy log; the schema is documented in
+//! [`super::log`].
+
+use serde::Serialize;
+
+/// One line of the log. Serialized flat, with the variant name in `kind`.
+#[derive(Serialize, Debug, Clone, PartialEq)]
+#[serde(tag = "kind", rename_all = "snake_case")]
+pub enum Record {
+    Start(StartRecord),
+    Channel(ChannelRecord),
+    Interval(IntervalRecord),
+    Emission(EmissionRecord),
+    Dropped(DroppedRecord),
+    Stop(StopRecord),
+}
+
+/// The settings of the run, written once at the top.
+#[derive(Serialize, Debug, Clone, PartialEq)]
+pub struct StartRecord {
+    pub version: String,
+    pub source: String,
+    pub sample_rate_hz: f64,
+    pub center_hz: f64,
+    pub fft_size: usize,
+    pub window: String,
+    pub overlap: f64,
+    pub rbw_hz: f64,
+    /// Duration of one measurement sample.
+    pub dwell_s: f64,
+    pub frames_per_sample: u64,
+    pub interval_s: f64,
+    /// Hang time actually used (a whole number of samples).
+    pub hang_s: f64,
+    /// The run's default threshold (channels may override it).
+    pub threshold_db: f64,
+    pub obw_percent: f64,
+    pub floor_memory_s: f64,
+    pub floor_smoothing_s: f64,
+    pub t_start_s: f64,
+    pub start: Option<String>,
+    /// Where `start` comes from: `sigmf`, `option`, `wall_clock` or `none`.
+    pub time_source: String,
+}
+
+/// One per channel of the plan, after the start record.
+#[derive(Serialize, Debug, Clone, PartialEq)]
+pub struct ChannelRecord {
+    pub channel: String,
+    pub center_hz: f64,
+    pub width_hz: f64,
+    pub threshold_db: f64,
+}
+
+#[derive(Serialize, Debug, Clone, PartialEq)]
+pub struct IntervalRecord {
+    pub channel: String,
+    pub center_hz: f64,
+    pub width_hz: f64,
+    pub t_start_s: f64,
+    pub t_end_s: f64,
+    pub start: Option<String>,
+    pub end: Option<String>,
+    pub occupancy_pct: f64,
+    pub mean_dbfs: f64,
+    pub peak_dbfs: f64,
+    pub noise_floor_dbfs_per_hz: f64,
+    pub samples: u64,
+    pub occupied_samples: u64,
+    pub dropped_samples: u64,
+    pub partial: bool,
+}
+
+#[derive(Serialize, Debug, Clone, PartialEq)]
+pub struct EmissionRecord {
+    pub channel: String,
+    pub center_hz: f64,
+    pub t_start_s: f64,
+    pub t_end_s: f64,
+    pub start: Option<String>,
+    pub end: Option<String>,
+    pub duration_s: f64,
+    pub peak_dbfs: f64,
+    pub mean_dbfs: f64,
+    pub obw_hz: Option<f64>,
+    pub samples: u64,
+    pub partial: bool,
+}
+
+/// Input samples a live source lost because the DSP fell behind.
+#[derive(Serialize, Debug, Clone, PartialEq)]
+pub struct DroppedRecord {
+    pub t_start_s: f64,
+    pub t_end_s: f64,
+    pub start: Option<String>,
+    pub end: Option<String>,
+    pub dropped_samples: u64,
+}
+
+/// The last line of a run that ended in an orderly way.
+#[derive(Serialize, Debug, Clone, PartialEq)]
+pub struct StopRecord {
+    pub t_end_s: f64,
+    pub end: Option<String>,
+    /// `end_of_input`, `limit` (`--seconds`), `interrupted` (SIGINT), `terminated` (SIGTERM) or
+    /// `input_error`.
+    pub reason: String,
+    /// Input samples read (delivered or dropped).
+    pub iq_samples: u64,
+    pub dropped_samples: u64,
+}
+
+/// Every CSV column, in order: the union of all record fields.
+pub const CSV_COLUMNS: &[&str] = &[
+    "kind",
+    "channel",
+    "center_hz",
+    "width_hz",
+    "t_start_s",
+    "t_end_s",
+    "start",
+    "end",
+    "duration_s",
+    "occupancy_pct",
+    "samples",
+    "occupied_samples",
+    "mean_dbfs",
+    "peak_dbfs",
+    "noise_floor_dbfs_per_hz",
+    "threshold_db",
+    "obw_hz",
+    "dropped_samples",
+    "partial",
+    "reason",
+    "iq_samples",
+    "source",
+    "sample_rate_hz",
+    "fft_size",
+    "window",
+    "overlap",
+    "rbw_hz",
+    "dwell_s",
+    "frames_per_sample",
+    "interval_s",
+    "hang_s",
+    "obw_percent",
+    "floor_memory_s",
+    "floor_smoothing_s",
+    "time_source",
+    "version",
+];

@@ -1,0 +1,514 @@
+//! Channel plans: the named channels an operator wants measured, from a TOML file or flags.
+//!
+//! A plan exists so that `log` and `measure` speak of the same channels by name, and so that a
+//! mistake in a plan (a typo, two channels overlapping, a channel outside what the receiver
+//! captures) is caught before hours of logging, with the line of the plan that caused it.
+//!
+//! File format (`--plan FILE.toml`), one `[[channel]]` table per channel:
+//!
+//! ```toml
+//! [[channel]]
+//! name = "north-gate"        # unique; letters, digits and punctuation, no control characters
+//! center = "433.100M"        # absolute Hz: a number (433100000) or a string with k/M/G
+//! width = "25k"              # Hz, > 0
+//! threshold_db = 8           # optional: occupancy threshold over the noise, dB
+//! ```
+//!
+//! Keys other than these four inside a `[[channel]]` table are refused (a misspelt `centre`
+//! would otherwise be ignored silently); other top-level tables and keys are ignored, so a plan may
+//! carry a description of the site. Channels may touch but not overlap.
+//!
+//! On the command line, `--channel NAME=CENTER:WIDTH` adds a channel (repeatable); it combines
+//! with `--plan`.
+
+use crate::units::{format_hz, parse_duration, parse_hz};
+use anyhow::{bail, Context, Result};
+use serde::Deserialize;
+use std::fmt;
+use std::time::Duration;
+use toml::Spanned;
+
+/// Highest accepted per-channel threshold: above this nothing short of a transmitter in the
+/// receiver's antenna port would ever count as occupied, so it is surely a typo.
+const MAX_THRESHOLD_DB: f64 = 100.0;
+
+/// One channel of a plan, in absolute hertz.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Channel {
+    pub name: String,
+    pub center_hz: f64,
+    pub width_hz: f64,
+    /// Overrides the run's `--threshold-db` for this channel.
+    pub threshold_db: Option<f64>,
+    /// Where the channel was defined, for error messages.
+    pub origin: Origin,
+}
+
+impl Channel {
+    pub fn low_hz(&self) -> f64 {
+        self.center_hz - self.width_hz / 2.0
+    }
+
+    pub fn high_hz(&self) -> f64 {
+        self.center_hz + self.width_hz / 2.0
+    }
+}
+
+/// Where a channel came from: a line of a plan file or a `--channel` flag.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Origin {
+    Plan { path: String, line: usize },
+    Flag { text: String },
+}
+
+impl fmt::Display for Origin {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            Origin::Plan { path, line } => write!(f, "plan '{path}' line {line}"),
+            Origin::Flag { text } => write!(f, "--channel '{text}'"),
+        }
+    }
+}
+
+/// A validated set of channels, in the order they were given.
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct Plan {
+    pub channels: Vec<Channel>,
+}
+
+impl Plan {
+    /// Combines a plan file (if any) and `--channel` flags, and validates the result.
+    pub fn from_args(plan_path: Option<&str>, flags: &[ChannelArg]) -> Result<Plan> {
+        let mut channels = match plan_path {
+            Some(path) => Plan::load(path)?.channels,
+            None => Vec::new(),
+        };
+        channels.extend(flags.iter().map(ChannelArg::to_channel));
+        let plan = Plan { channels };
+        plan.validate()?;
+        Ok(plan)
+    }
+
+    /// Reads and validates a plan file.
+    pub fn load(path: &str) -> Result<Plan> {
+        let shown = crate::source::sanitize(path);
+        let bytes = std::fs::read(path)
+            .with_context(|| format!("cannot read plan '{shown}'; check the path"))?;
+        let text = String::from_utf8(bytes).map_err(|e| {
+            let line =
+                line_of(&String::from_utf8_lossy(e.as_bytes()), e.utf8_error().valid_up_to());
+            anyhow::anyhow!("plan '{shown}' line {line}: not UTF-8 text; a plan is a TOML file")
+        })?;
+        let plan = Plan::parse(&text, &shown)?;
+        if plan.channels.is_empty() {
+            bail!(
+                "plan '{shown}' defines no channels; add [[channel]] tables with name, center and width"
+            );
+        }
+        plan.validate()?;
+        Ok(plan)
+    }
+
+    /// Parses the text of a plan file (`path` is only used in messages). Checks each channel on
+    /// its own; [`Plan::validate`] checks them against each other.
+    pub fn parse(text: &str, path: &str) -> Result<Plan> {
+        let file: PlanFile = toml::from_str(text).map_err(|e| {
+            let line = e.span().map_or(1, |s| line_of(text, s.start));
+            anyhow::anyhow!("plan '{path}' line {line}: {}", one_line(e.message()))
+        })?;
+        let headers = table_header_lines(text);
+        let mut channels = Vec::with_capacity(file.channel.len());
+        for (i, entry) in file.channel.into_iter().enumerate() {
+            let table_line =
+                headers.get(i).copied().unwrap_or_else(|| line_of(text, entry.name.span().start));
+            channels.push(entry.into_channel(text, path, table_line)?);
+        }
+        Ok(Plan { channels })
+    }
+
+    /// Checks the channels against each other: unique names, no overlap.
+    pub fn validate(&self) -> Result<()> {
+        for (i, c) in self.channels.iter().enumerate() {
+            if let Some(first) = self.channels[..i].iter().find(|o| o.name == c.name) {
+                bail!(
+                    "{}: channel name '{}' is already used ({}); give each channel its own name",
+                    c.origin,
+                    c.name,
+                    first.origin
+                );
+            }
+        }
+        let mut order: Vec<&Channel> = self.channels.iter().collect();
+        order.sort_by(|a, b| a.low_hz().total_cmp(&b.low_hz()));
+        for pair in order.windows(2) {
+            let (a, b) = (pair[0], pair[1]);
+            // Touching edges are fine; a millihertz of rounding in user input is forgiven.
+            if a.high_hz() > b.low_hz() + 1e-3 {
+                bail!(
+                    "{}: channel '{}' ({} .. {}) overlaps channel '{}' ({} .. {}, {}); channels may touch but not overlap",
+                    b.origin,
+                    b.name,
+                    format_hz(b.low_hz()),
+                    format_hz(b.high_hz()),
+                    a.name,
+                    format_hz(a.low_hz()),
+                    format_hz(a.high_hz()),
+                    a.origin
+                );
+            }
+        }
+        Ok(())
+    }
+
+    /// Checks every channel lies inside the captured span `[low_hz, high_hz]`.
+    pub fn check_span(&self, low_hz: f64, high_hz: f64) -> Result<()> {
+        for c in &self.channels {
+            if c.low_hz() < low_hz - 1e-3 || c.high_hz() > high_hz + 1e-3 {
+                bail!(
+                    "{}: channel '{}' ({} .. {}) lies outside the captured span {} .. {}; check the plan, --center and --rate",
+                    c.origin,
+                    c.name,
+                    format_hz(c.low_hz()),
+                    format_hz(c.high_hz()),
+                    format_hz(low_hz),
+                    format_hz(high_hz)
+                );
+            }
+        }
+        Ok(())
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.channels.is_empty()
+    }
+}
+
+/// `--channel NAME=CENTER:WIDTH` as typed.
+#[derive(Clone, Debug, PartialEq)]
+pub struct ChannelArg {
+    pub name: String,
+    pub center_hz: f64,
+    pub width_hz: f64,
+    pub text: String,
+}
+
+impl ChannelArg {
+    fn to_channel(&self) -> Channel {
+        Channel {
+            name: self.name.clone(),
+            center_hz: self.center_hz,
+            width_hz: self.width_hz,
+            threshold_db: None,
+            origin: Origin::Flag { text: self.text.clone() },
+        }
+    }
+}
+
+/// Parses `NAME=CENTER:WIDTH`, e.g. `north-gate=433.1M:25k`.
+pub fn parse_channel_arg(text: &str) -> Result<ChannelArg, String> {
+    let usage = "expected NAME=CENTER:WIDTH in Hz, e.g. north-gate=433.1M:25k";
+    let (name, band) = text.split_once('=').ok_or_else(|| format!("'{text}': {usage}"))?;
+    let (c, w) = band.split_once(':').ok_or_else(|| format!("'{text}': {usage}"))?;
+    check_name(name).map_err(|e| format!("'{text}': {e}"))?;
+    let center_hz = parse_hz(c).map_err(|e| format!("'{text}': centre {e}"))?;
+    let width_hz = parse_hz(w).map_err(|e| format!("'{text}': width {e}"))?;
+    check_width(width_hz).map_err(|e| format!("'{text}': {e}"))?;
+    Ok(ChannelArg { name: name.trim().to_string(), center_hz, width_hz, text: text.to_string() })
+}
+
+/// Options shared by every command that measures channels (`log`, `measure`).
+#[derive(clap::Args, Debug, Clone)]
+#[command(next_help_heading = "Channels")]
+pub struct ChannelArgs {
+    /// A channel to measure, NAME=CENTER:WIDTH in absolute Hz (e.g. north-gate=433.1M:25k);
+    /// repeatable, combines with --plan.
+    #[arg(long = "channel", value_name = "NAME=CENTER:WIDTH", value_parser = parse_channel_arg)]
+    pub channels: Vec<ChannelArg>,
+    #[arg(
+        long,
+        value_name = "FILE.toml",
+        help = "A channel plan: a TOML file of [[channel]] tables with name, center, width and an optional threshold_db"
+    )]
+    pub plan: Option<String>,
+    /// Length of one measurement sample (one averaged row of FFT frames), e.g. 10ms; rounded to
+    /// a whole number of FFT hops. Default: the most hops that fit in 10 ms.
+    #[arg(long, value_name = "DURATION", value_parser = parse_duration)]
+    pub dwell: Option<Duration>,
+    /// A channel is occupied in a sample when its power exceeds the noise in its width by this
+    /// many dB (ITU-R SM.1880); a plan's threshold_db overrides it per channel.
+    #[arg(long, value_name = "DB", default_value_t = DEFAULT_THRESHOLD_DB)]
+    pub threshold_db: f64,
+}
+
+impl Default for ChannelArgs {
+    fn default() -> Self {
+        ChannelArgs {
+            channels: Vec::new(),
+            plan: None,
+            dwell: None,
+            threshold_db: DEFAULT_THRESHOLD_DB,
+        }
+    }
+}
+
+impl ChannelArgs {
+    /// The plan these options describe (possibly empty).
+    pub fn plan(&self) -> Result<Plan> {
+        if !(self.threshold_db > 0.0 && self.threshold_db <= MAX_THRESHOLD_DB) {
+            bail!(
+                "--threshold-db {} is out of range; choose a value above 0 and at most {MAX_THRESHOLD_DB} dB (10 is the default)",
+                self.threshold_db
+            );
+        }
+        Plan::from_args(self.plan.as_deref(), &self.channels)
+    }
+}
+
+/// Default occupancy threshold over the noise in the channel, dB. See `measure::occupancy`.
+pub const DEFAULT_THRESHOLD_DB: f64 = 10.0;
+
+#[derive(Deserialize)]
+struct PlanFile {
+    #[serde(default)]
+    channel: Vec<ChannelEntry>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct ChannelEntry {
+    name: Spanned<String>,
+    center: Spanned<HzValue>,
+    width: Spanned<HzValue>,
+    threshold_db: Option<Spanned<f64>>,
+}
+
+/// A frequency in a plan: a plain number of hertz or a string with an SI suffix.
+#[derive(Deserialize)]
+#[serde(untagged)]
+enum HzValue {
+    Number(f64),
+    Text(String),
+}
+
+impl HzValue {
+    fn hz(&self) -> Result<f64, String> {
+        match self {
+            HzValue::Number(v) if v.is_finite() => Ok(*v),
+            HzValue::Number(v) => Err(format!("{v} is not a finite frequency")),
+            HzValue::Text(t) => parse_hz(t),
+        }
+    }
+}
+
+impl ChannelEntry {
+    fn into_channel(self, text: &str, path: &str, table_line: usize) -> Result<Channel> {
+        let at = |span: std::ops::Range<usize>| line_of(text, span.start);
+        let name = self.name.get_ref().trim().to_string();
+        if let Err(e) = check_name(&name) {
+            bail!("plan '{path}' line {}: {e}", at(self.name.span()));
+        }
+        let center_hz = self.center.get_ref().hz().map_err(|e| {
+            anyhow::anyhow!(
+                "plan '{path}' line {}: channel '{name}' center: {e}",
+                at(self.center.span())
+            )
+        })?;
+        let width_hz =
+            self.width.get_ref().hz().and_then(|w| check_width(w).map(|_| w)).map_err(|e| {
+                anyhow::anyhow!(
+                    "plan '{path}' line {}: channel '{name}' width: {e}",
+                    at(self.width.span())
+                )
+            })?;
+        let threshold_db = match self.threshold_db {
+            None => None,
+            Some(t) => {
+                let v = *t.get_ref();
+                if !(v > 0.0 && v <= MAX_THRESHOLD_DB) {
+                    bail!(
+                        "plan '{path}' line {}: channel '{name}' threshold_db {v} is out of range; choose above 0 and at most {MAX_THRESHOLD_DB} dB",
+                        at(t.span())
+                    );
+                }
+                Some(v)
+            }
+        };
+        Ok(Channel {
+            name,
+            center_hz,
+            width_hz,
+            threshold_db,
+            origin: Origin::Plan { path: path.to_string(), line: table_line },
+        })
+    }
+}
+
+fn check_name(name: &str) -> Result<(), String> {
+    let name = name.trim();
+    if name.is_empty() {
+        return Err("the channel name is empty; give each channel a name".into());
+    }
+    if name.chars().any(char::is_control) {
+        return Err("the channel name holds control characters; use printable text".into());
+    }
+    Ok(())
+}
+
+fn check_width(width_hz: f64) -> Result<(), String> {
+    if width_hz > 0.0 && width_hz.is_finite() {
+        Ok(())
+    } else {
+        Err(format!("width {width_hz} Hz must be greater than zero"))
+    }
+}
+
+/// 1-based line number of byte offset `pos`.
+fn line_of(text: &str, pos: usize) -> usize {
+    let pos = pos.min(text.len());
+    text.as_bytes()[..pos].iter().filter(|&&b| b == b'\n').count() + 1
+}
+
+/// Lines of the `[[channel]]` headers, in order (tables given inline have none).
+fn table_header_lines(text: &str) -> Vec<usize> {
+    text.lines()
+        .enumerate()
+        .filter(|(_, l)| {
+            let t: String = l.chars().filter(|c| !c.is_whitespace()).collect();
+            t.starts_with("[[channel]]")
+        })
+        .map(|(i, _)| i + 1)
+        .collect()
+}
+
+/// toml's messages may span lines; ours are one line.
+fn one_line(msg: &str) -> String {
+    msg.split_whitespace().collect::<Vec<_>>().join(" ")
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    const GOOD: &str = r#"
+# An invented site.
+site = "Kestrel Ridge"
+
+[[channel]]
+name = "north-gate"
+center = "433.100M"
+width = "25k"
+
+[[channel]]
+name = "weather"
+center = 433300000
+width = 12500.0
+threshold_db = 6
+"#;
+
+    fn err(text: &str) -> String {
+        match Plan::parse(text, "p.toml").and_then(|p| p.validate().map(|_| p)) {
+            Ok(p) => panic!("accepted: {p:?}"),
+            Err(e) => e.to_string(),
+        }
+    }
+
+    #[test]
+    fn a_good_plan_parses_with_lines_and_suffixes() {
+        let p = Plan::parse(GOOD, "p.toml").unwrap();
+        p.validate().unwrap();
+        assert_eq!(p.channels.len(), 2);
+        assert_eq!(p.channels[0].name, "north-gate");
+        assert_eq!(p.channels[0].center_hz, 433.1e6);
+        assert_eq!(p.channels[0].width_hz, 25e3);
+        assert_eq!(p.channels[0].threshold_db, None);
+        assert_eq!(p.channels[0].origin, Origin::Plan { path: "p.toml".into(), line: 5 });
+        assert_eq!(p.channels[1].center_hz, 433.3e6);
+        assert_eq!(p.channels[1].threshold_db, Some(6.0));
+        assert_eq!(p.channels[1].origin.to_string(), "plan 'p.toml' line 10");
+    }
+
+    #[test]
+    fn zero_or_negative_width_names_its_line() {
+        let e = err("[[channel]]\nname = \"a\"\ncenter = \"1M\"\nwidth = 0\n");
+        assert!(e.contains("line 4") && e.contains("greater than zero"), "{e}");
+        let e = err("[[channel]]\nname = \"a\"\ncenter = \"1M\"\nwidth = \"-5k\"\n");
+        assert!(e.contains("line 4") && e.contains("greater than zero"), "{e}");
+    }
+
+    #[test]
+    fn overlap_names_both_channels_and_lines() {
+        let text = "[[channel]]\nname = \"a\"\ncenter = \"1M\"\nwidth = \"20k\"\n\n\
+                    [[channel]]\nname = \"b\"\ncenter = \"1.015M\"\nwidth = \"20k\"\n";
+        let e = err(text);
+        assert!(e.contains("line 6") && e.contains("line 1") && e.contains("overlaps"), "{e}");
+        // Touching is allowed.
+        let ok = text.replace("1.015M", "1.02M");
+        Plan::parse(&ok, "p").unwrap().validate().unwrap();
+    }
+
+    #[test]
+    fn duplicate_names_are_refused() {
+        let text = "[[channel]]\nname = \"a\"\ncenter = \"1M\"\nwidth = \"20k\"\n\
+                    [[channel]]\nname = \"a\"\ncenter = \"2M\"\nwidth = \"20k\"\n";
+        let e = err(text);
+        assert!(e.contains("line 5") && e.contains("already used") && e.contains("line 1"), "{e}");
+    }
+
+    #[test]
+    fn garbage_and_truncated_files_give_a_line() {
+        let e = err("[[channel]]\nname = \"a\"\ncenter = \"1M\"\nwidth = \"2");
+        assert!(e.starts_with("plan 'p.toml' line 4:"), "{e}");
+        assert!(!e.contains('\n'), "one line: {e}");
+        let e = err("\u{1}\u{2}garbage ][ = =\n");
+        assert!(e.starts_with("plan 'p.toml' line 1:"), "{e}");
+        let e = err("[[channel]]\nname = \"a\"\ncentre = \"1M\"\nwidth = \"20k\"\n");
+        assert!(e.contains("centre"), "{e}");
+        let e = err("[[channel]]\nname = \"a\"\nwidth = \"20k\"\n");
+        assert!(e.contains("center"), "{e}");
+        let e = err("[[channel]]\nname = \"a\"\ncenter = \"fast\"\nwidth = \"20k\"\n");
+        assert!(e.contains("line 3") && e.contains("not a frequency"), "{e}");
+        let e = err("[[channel]]\nname = \"\"\ncenter = \"1M\"\nwidth = \"20k\"\n");
+        assert!(e.contains("line 2") && e.contains("empty"), "{e}");
+        let e =
+            err("[[channel]]\nname = \"a\"\ncenter = \"1M\"\nwidth = \"20k\"\nthreshold_db = -3\n");
+        assert!(e.contains("line 5") && e.contains("threshold_db"), "{e}");
+    }
+
+    #[test]
+    fn files_without_channels_or_text_are_refused() {
+        let dir = std::env::temp_dir().join(format!("bw-plan-{}", std::process::id()));
+        std::fs::create_dir_all(&dir).unwrap();
+        let empty = dir.join("empty.toml");
+        std::fs::write(&empty, "site = \"x\"\n").unwrap();
+        let e = Plan::load(empty.to_str().unwrap()).unwrap_err().to_string();
+        assert!(e.contains("defines no channels"), "{e}");
+        let binary = dir.join("binary.toml");
+        std::fs::write(&binary, b"[[channel]]\n\xff\xfe\x00\n").unwrap();
+        let e = Plan::load(binary.to_str().unwrap()).unwrap_err().to_string();
+        assert!(e.contains("line 2") && e.contains("not UTF-8"), "{e}");
+        let e = Plan::load(dir.join("missing.toml").to_str().unwrap()).unwrap_err().to_string();
+        assert!(e.contains("cannot read plan"), "{e}");
+        std::fs::remove_dir_all(&dir).unwrap();
+    }
+
+    #[test]
+    fn span_check_names_the_channel() {
+        let p = Plan::parse(GOOD, "p.toml").unwrap();
+        p.check_span(432e6, 434e6).unwrap();
+        let e = p.check_span(433.2e6, 434e6).unwrap_err().to_string();
+        assert!(e.contains("line 5") && e.contains("north-gate") && e.contains("outside"), "{e}");
+    }
+
+    #[test]
+    fn channel_flags_parse_and_combine() {
+        let a = parse_channel_arg("north-gate=433.1M:25k").unwrap();
+        assert_eq!((a.name.as_str(), a.center_hz, a.width_hz), ("north-gate", 433.1e6, 25e3));
+        assert!(parse_channel_arg("433.1M:25k").unwrap_err().contains("NAME=CENTER:WIDTH"));
+        assert!(parse_channel_arg("a=433.1M").unwrap_err().contains("NAME=CENTER:WIDTH"));
+        assert!(parse_channel_arg("a=433.1M:0").unwrap_err().contains("greater than zero"));
+        assert!(parse_channel_arg("=433.1M:1k").unwrap_err().contains("empty"));
+        let b = parse_channel_arg("b=433.11M:10k").unwrap();
+        let e = Plan::from_args(None, &[a, b]).unwrap_err().to_string();
+        assert!(e.contains("--channel 'b=433.11M:10k'") && e.contains("overlaps"), "{e}");
+    }
+}
