@@ -259,6 +259,21 @@ mod tests {
     }
 
     #[test]
+    fn the_largest_screen_keeps_every_part() {
+        let a = app(vec![Channel { name: "gate".into(), center_hz: 100.1e6, width_hz: 25e3 }]);
+        let buf = draw(&a, 300, 100);
+        let lines = text_lines(&buf);
+        let s = Screen::split(buf.area, true).unwrap();
+        assert!(lines[0].contains("centre 100 MHz"));
+        assert!(lines[s.axis.y as usize].starts_with("  MHz "));
+        assert!(lines[s.plan.unwrap().y as usize].contains("gate"));
+        assert!(lines[s.table.y as usize + 1].starts_with(" 1 100.100000 MHz"));
+        assert!(lines[99].trim_end().ends_with("? keys"));
+        // Finer axis steps on a wider plot: more than ten labels.
+        assert!(lines[s.axis.y as usize].matches('╵').count() > 10);
+    }
+
+    #[test]
     fn help_overlay_and_small_terminals() {
         let mut a = app(Vec::new());
         a.apply(Intent::ToggleHelp);
