@@ -82,4 +82,19 @@ fn frames_allocate_nothing() {
         }
     });
     assert_eq!(n, 0, "engine: {n} allocations over 50 blocks (~1600 frames)");
+
+    // On two threads: the worker's accumulator travels with each job, so batches allocate
+    // nothing either.
+    engine.set_threads(2);
+    for _ in 0..4 {
+        engine.push(start, &block, &mut |_| {});
+        start += block.len() as u64;
+    }
+    let n = counted(|| {
+        for _ in 0..50 {
+            engine.push(start, &block, &mut |_| {});
+            start += block.len() as u64;
+        }
+    });
+    assert_eq!(n, 0, "two-thread engine: {n} allocations over 50 blocks");
 }

@@ -8,6 +8,7 @@
 use super::spectrum::Spectrum;
 use super::stft::{welch_dof, Stft, MAX_FFT, MIN_FFT};
 use super::window::WindowKind;
+use super::worker::Worker;
 use num_complex::Complex32;
 
 /// How the STFT is cut and averaged.
@@ -50,12 +51,14 @@ pub struct Engine {
     hop: usize,
     stft: Stft,
     /// Extra transforms with their own accumulators, one per additional thread.
-    helpers: Vec<(Stft, Vec<f64>)>,
+    helpers: Vec<Worker>,
     sample_rate_hz: f64,
     center_hz: f64,
     pending: Vec<Complex32>,
     pending_start: u64,
     acc: Vec<f64>,
+    /// f32 scratch for [`Stft::accumulate_frames`].
+    partial: Vec<f32>,
     acc_frames: u64,
     acc_first: u64,
     acc_end: u64,
@@ -67,6 +70,7 @@ impl Engine {
         Engine {
             hop: cfg.hop(),
             acc: vec![0.0; cfg.fft_size],
+            partial: vec![0.0; cfg.fft_size],
             pending: Vec::with_capacity(cfg.fft_size * 2),
             stft,
             helpers: Vec::new(),
@@ -80,18 +84,16 @@ impl Engine {
         }
     }
 
-    /// Spreads the frames over `threads` threads (frames are independent; partial sums are added
-    /// in a fixed order, so the result does not depend on scheduling). With more than one thread,
+    /// Spreads the frames over `threads` threads, the extra ones long-lived workers (frames are
+    /// independent; partial sums are added in a fixed order, so the result does not depend on
+    /// scheduling). With more than one thread,
     /// frames are gathered into batches of at least two per thread before they are transformed,
     /// which delays an output by at most that many frames.
     pub fn set_threads(&mut self, threads: usize) {
         let extra = threads.max(1) - 1;
         self.helpers.truncate(extra);
         while self.helpers.len() < extra {
-            self.helpers.push((
-                Stft::new(self.cfg.fft_size, self.cfg.window),
-                vec![0.0; self.cfg.fft_size],
-            ));
+            self.helpers.push(Worker::new(self.cfg.fft_size, self.cfg.window));
         }
     }
 
@@ -162,37 +164,38 @@ impl Engine {
 
     /// Adds the power of frames `first .. first + count` of `pending` into `acc`.
     fn accumulate_frames(&mut self, first: usize, count: usize) {
-        let (n, hop) = (self.cfg.fft_size, self.hop);
+        let hop = self.hop;
         let threads = self.threads();
         if threads == 1 || count < 2 * threads {
-            for f in first..first + count {
-                self.stft.accumulate_power(&self.pending[f * hop..f * hop + n], &mut self.acc);
-            }
+            let end = first + count;
+            self.stft.accumulate_frames(
+                &self.pending,
+                first,
+                end,
+                hop,
+                &mut self.partial,
+                &mut self.acc,
+            );
             return;
         }
         let per = count.div_ceil(threads);
         let end = first + count;
-        let pending = &self.pending;
-        let (stft, acc, helpers) = (&mut self.stft, &mut self.acc, &mut self.helpers);
-        std::thread::scope(|scope| {
-            for (i, (h_stft, h_acc)) in helpers.iter_mut().enumerate() {
-                let a = (first + (i + 1) * per).min(end);
-                let b = (a + per).min(end);
-                scope.spawn(move || {
-                    for f in a..b {
-                        h_stft.accumulate_power(&pending[f * hop..f * hop + n], h_acc);
-                    }
-                });
-            }
-            for f in first..(first + per).min(end) {
-                stft.accumulate_power(&pending[f * hop..f * hop + n], acc);
-            }
-        });
-        for (_, h_acc) in helpers.iter_mut() {
-            for (a, h) in acc.iter_mut().zip(h_acc.iter_mut()) {
-                *a += *h;
-                *h = 0.0;
-            }
+        for (i, worker) in self.helpers.iter_mut().enumerate() {
+            let a = (first + (i + 1) * per).min(end);
+            worker.start(&self.pending, a, (a + per).min(end), hop);
+        }
+        let mine = (first + per).min(end);
+        self.stft.accumulate_frames(
+            &self.pending,
+            first,
+            mine,
+            hop,
+            &mut self.partial,
+            &mut self.acc,
+        );
+        // Always in the same order, so the sums do not depend on which thread finished first.
+        for worker in self.helpers.iter_mut() {
+            worker.wait(&mut self.acc);
         }
     }
 
@@ -254,8 +257,10 @@ mod tests {
         assert_eq!(whole.len(), 19);
         for (a, b) in whole.iter().zip(&pieces) {
             assert_eq!(a.first_sample, b.first_sample);
+            // Frames are summed in f32 batches whose grouping follows the blocks, so the
+            // totals agree to f32 rounding of a few dozen terms, not to the last bit.
             for (p, q) in a.psd.iter().zip(&b.psd) {
-                assert!((p - q).abs() <= 1e-12 * p.abs().max(1e-30));
+                assert!((p - q).abs() <= 1e-5 * p.abs().max(1e-30), "{p} vs {q}");
             }
         }
     }
@@ -283,8 +288,9 @@ mod tests {
                     (a.frames, a.first_sample, a.end_sample),
                     (b.frames, b.first_sample, b.end_sample)
                 );
+                // Same f32 batch rounding as above.
                 for (p, q) in a.psd.iter().zip(&b.psd) {
-                    assert!((p - q).abs() <= 1e-9 * p.abs().max(1e-30), "k={k:?}: {p} vs {q}");
+                    assert!((p - q).abs() <= 1e-5 * p.abs().max(1e-30), "k={k:?}: {p} vs {q}");
                 }
             }
         }

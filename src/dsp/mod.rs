@@ -5,6 +5,7 @@ pub mod engine;
 pub mod spectrum;
 pub mod stft;
 pub mod window;
+pub mod worker;
 
 pub use engine::{Engine, EngineConfig};
 pub use spectrum::Spectrum;

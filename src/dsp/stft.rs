@@ -47,6 +47,32 @@ impl Stft {
         }
     }
 
+    /// Adds the power of frames `first .. end` of `data` (starting every `hop` samples) into
+    /// `acc`. The frames are summed in f32 in `partial` (as long as `acc`), which vectorises
+    /// better than a per-bin f64 sum, and folded into the f64 total once per call; a few dozen
+    /// f32 additions lose under 1e-5 relative, far below the statistical scatter of any average.
+    pub fn accumulate_frames(
+        &mut self,
+        data: &[Complex32],
+        first: usize,
+        end: usize,
+        hop: usize,
+        partial: &mut [f32],
+        acc: &mut [f64],
+    ) {
+        let n = self.fft_size();
+        partial.iter_mut().for_each(|p| *p = 0.0);
+        for f in first..end {
+            self.transform(&data[f * hop..f * hop + n]);
+            for (p, x) in partial.iter_mut().zip(&self.buf) {
+                *p += x.norm_sqr();
+            }
+        }
+        for (a, p) in acc.iter_mut().zip(partial.iter()) {
+            *a += *p as f64;
+        }
+    }
+
     /// Like [`accumulate_power`](Self::accumulate_power) but also keeps the frame's own power
     /// (FFT order) in `frame_power`, for waterfall rows and hold traces.
     pub fn frame_power(&mut self, frame: &[Complex32], frame_power: &mut [f32]) {
