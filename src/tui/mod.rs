@@ -61,8 +61,21 @@ pub fn run(
 ) -> anyhow::Result<()> {
     // Drop order: the terminal guard first (restore), then the signal watchdog.
     let watch = signals::SignalWatch::start()?;
-    let (mut term, _guard) = term::init(opts.mouse)?;
-    event_loop(&mut term, &mut app, dsp, reader, opts, watch.stop_flag())
+    let started = Instant::now();
+    let result = {
+        let (mut term, _guard) = term::init(opts.mouse)?;
+        event_loop(&mut term, &mut app, dsp, reader, opts, watch.stop_flag())
+    };
+    // The terminal is restored now: leave one line on stderr saying what was seen and lost, so
+    // that a session (or a script) can tell whether the monitor kept up.
+    eprintln!(
+        "bandwarden: watched {:.1} s: {} samples read, {} dropped, {} waterfall rows skipped",
+        started.elapsed().as_secs_f64(),
+        reader.samples.load(Ordering::Relaxed),
+        reader.dropped.load(Ordering::Relaxed),
+        dsp.skipped.load(Ordering::Relaxed)
+    );
+    result
 }
 
 fn event_loop(
