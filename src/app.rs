@@ -10,7 +10,11 @@ use clap::Parser;
 use std::ffi::OsString;
 use std::process::ExitCode;
 
+/// When the process started, for the start-up figure `watch` reports.
+pub static STARTED: std::sync::OnceLock<std::time::Instant> = std::sync::OnceLock::new();
+
 pub fn main_with_args(args: impl IntoIterator<Item = OsString>) -> ExitCode {
+    STARTED.get_or_init(std::time::Instant::now);
     let cli = match Cli::try_parse_from(args) {
         Ok(cli) => cli,
         Err(e) => {

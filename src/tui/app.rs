@@ -230,6 +230,11 @@ impl App {
         self.pending_settings.take()
     }
 
+    /// Whether any spectrum has arrived yet.
+    pub fn has_rows(&self) -> bool {
+        self.stats.rows > 0
+    }
+
     /// Takes a new row from the DSP.
     pub fn push_row(&mut self, spec: Spectrum) {
         self.stats.position_s = Some(spec.end_sample as f64 / spec.sample_rate_hz);

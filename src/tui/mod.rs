@@ -62,18 +62,24 @@ pub fn run(
     // Drop order: the terminal guard first (restore), then the signal watchdog.
     let watch = signals::SignalWatch::start()?;
     let started = Instant::now();
+    let mut first_frame = None;
     let result = {
         let (mut term, _guard) = term::init(opts.mouse)?;
-        event_loop(&mut term, &mut app, dsp, reader, opts, watch.stop_flag())
+        event_loop(&mut term, &mut app, dsp, reader, opts, watch.stop_flag(), &mut first_frame)
     };
+    let process_start = *crate::app::STARTED.get_or_init(|| started);
     // The terminal is restored now: leave one line on stderr saying what was seen and lost, so
     // that a session (or a script) can tell whether the monitor kept up.
     eprintln!(
-        "bandwarden: watched {:.1} s: {} samples read, {} dropped, {} waterfall rows skipped",
+        "bandwarden: watched {:.1} s: {} samples read, {} dropped, {} waterfall rows skipped; \
+         first frame {} ms after start",
         started.elapsed().as_secs_f64(),
         reader.samples.load(Ordering::Relaxed),
         reader.dropped.load(Ordering::Relaxed),
-        dsp.skipped.load(Ordering::Relaxed)
+        dsp.skipped.load(Ordering::Relaxed),
+        first_frame.map_or("never drawn".to_string(), |t: Instant| {
+            format!("{}", t.duration_since(process_start).as_millis())
+        })
     );
     result
 }
@@ -85,6 +91,7 @@ fn event_loop(
     reader: &ReaderStats,
     opts: RunOptions,
     stop: &AtomicBool,
+    first_frame: &mut Option<Instant>,
 ) -> anyhow::Result<()> {
     let frame = Duration::from_secs_f64(1.0 / opts.fps);
     let mut painter = Painter::default();
@@ -118,6 +125,10 @@ fn event_loop(
             dsp.apply(s);
         }
         draw(term, app, &mut painter, &mut drawn_mode, &mut out, opts)?;
+        // The first frame with spectrum data on it is the one a user waits for.
+        if first_frame.is_none() && app.has_rows() {
+            *first_frame = Some(Instant::now());
+        }
         app.stats.count_frame(now);
     }
 }
