@@ -55,3 +55,16 @@ fn is_broken_pipe(err: &anyhow::Error) -> bool {
 pub fn note(text: &str) {
     eprintln!("bandwarden: {text}");
 }
+
+/// Tells the user what was wrong with the input but did not stop the run.
+pub fn report_input_issues(issues: &crate::source::InputIssues) {
+    if issues.non_finite > 0 {
+        note(&format!("skipped {} samples holding NaN or infinity", issues.non_finite));
+    }
+    if issues.trailing_bytes > 0 {
+        note(&format!(
+            "dropped {} bytes at the end that do not make a whole sample (wrong --format, or a cut file?)",
+            issues.trailing_bytes
+        ));
+    }
+}

@@ -28,7 +28,7 @@ use crate::output::progress::Progress;
 use crate::pipeline::Input;
 use crate::plan::{ChannelArgs, Plan};
 use crate::source::reader::{Block, ReaderOptions};
-use crate::source::{self, InputIssues, SourceInfo};
+use crate::source::{self, SourceInfo};
 use crate::units::{db, parse_duration};
 use anyhow::{bail, Context, Result};
 use crossbeam_channel::RecvTimeoutError;
@@ -180,7 +180,7 @@ pub fn run(args: LogArgs) -> Result<ExitCode> {
                         StopReason::EndOfInput
                     };
                     session.finish(reason)?;
-                    report_issues(&issues);
+                    crate::app::report_input_issues(&issues);
                     if read == 0 {
                         bail!(
                             "the input '{}' holds no samples; check the file, or that the pipe delivers data",
@@ -665,18 +665,6 @@ fn open_output(path: &str, append: bool) -> Result<(Box<dyn Write>, bool)> {
         })?;
     let empty = file.metadata().map(|m| m.len() == 0).unwrap_or(true);
     Ok((Box::new(file), empty))
-}
-
-fn report_issues(issues: &InputIssues) {
-    if issues.non_finite > 0 {
-        note(&format!("skipped {} samples holding NaN or infinity", issues.non_finite));
-    }
-    if issues.trailing_bytes > 0 {
-        note(&format!(
-            "dropped {} bytes at the end that do not make a whole sample (wrong --format, or a cut file?)",
-            issues.trailing_bytes
-        ));
-    }
 }
 
 /// For `measure --channel/--plan`: the whole-input average (as without channels) plus each

@@ -81,7 +81,7 @@ pub fn run(args: MeasureArgs) -> Result<ExitCode> {
     };
     let dropped = input.stats.dropped.load(Ordering::Relaxed);
     let issues = input.finish()?;
-    report_issues(&issues);
+    crate::app::report_input_issues(&issues);
     let Some(spectrum) = spectrum else {
         if samples == 0 {
             bail!(
@@ -119,18 +119,6 @@ fn average_all(input: &Input, cfg: EngineConfig) -> (Option<Spectrum>, u64) {
     }
     engine.finish(&mut |s| out = Some(s));
     (out, samples)
-}
-
-fn report_issues(issues: &InputIssues) {
-    if issues.non_finite > 0 {
-        note(&format!("skipped {} samples holding NaN or infinity", issues.non_finite));
-    }
-    if issues.trailing_bytes > 0 {
-        note(&format!(
-            "dropped {} bytes at the end that do not make a whole sample (wrong --format, or a cut file?)",
-            issues.trailing_bytes
-        ));
-    }
 }
 
 fn build_report(

@@ -199,15 +199,7 @@ fn shut_down(input: Input) {
     }
     match input.finish() {
         Ok(issues) => {
-            if issues.non_finite > 0 {
-                note(&format!("skipped {} samples holding NaN or infinity", issues.non_finite));
-            }
-            if issues.trailing_bytes > 0 {
-                note(&format!(
-                    "dropped {} bytes at the end that do not make a whole sample (wrong --format, or a cut file?)",
-                    issues.trailing_bytes
-                ));
-            }
+            crate::app::report_input_issues(&issues);
         }
         Err(e) => note(&format!("{e:#}")),
     }
