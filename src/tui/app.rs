@@ -563,8 +563,9 @@ impl App {
         }
     }
 
-    /// Trace levels (dBFS in one RBW) for `ncols` columns of the view: current, average, hold.
-    pub fn trace_columns(&self, ncols: usize) -> Option<[Vec<f64>; 3]> {
+    /// Trace levels (dBFS in one RBW) for `ncols` columns of the view: current, average, peak
+    /// hold, minimum hold.
+    pub fn trace_columns(&self, ncols: usize) -> Option<[Vec<f64>; 4]> {
         let cur = self.traces.current()?;
         let map = grid_of(cur).column_map(&self.view?, ncols);
         let to_db = |v: Vec<f64>| -> Vec<f64> {
@@ -576,6 +577,7 @@ impl App {
             to_db(column_max(&cur.psd, &map)),
             to_db(column_max(self.traces.average_psd(), &map)),
             to_db(column_max(self.traces.hold_psd(), &map)),
+            to_db(column_max(self.traces.min_hold_psd(), &map)),
         ])
     }
 

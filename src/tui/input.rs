@@ -134,7 +134,11 @@ pub const HELP: &[HelpRow] = &[
         what: "automatic scale from the noise floor (on / off)",
         bindings: &[(C('a'), I::AutoRange)],
     },
-    HelpRow { keys: "x", what: "restart the peak-hold trace", bindings: &[(C('x'), I::ResetHold)] },
+    HelpRow {
+        keys: "x",
+        what: "restart the peak- and min-hold traces",
+        bindings: &[(C('x'), I::ResetHold)],
+    },
     HelpRow { keys: "k", what: "next colour map", bindings: &[(C('k'), I::NextColourMap)] },
     HelpRow {
         keys: "o",

@@ -1,4 +1,5 @@
-//! The three spectrum traces: the newest row, a running average and a peak hold.
+//! The spectrum traces: the newest row, a running average, and the peak and minimum holds
+//! (per-bin maximum and minimum over the rows since the last reset).
 //!
 //! The average is exponential in linear power (weight `α` per row), started as a plain mean so the
 //! first rows are not biased towards zero. Its χ² degrees of freedom grow with the rows it holds,
@@ -38,6 +39,7 @@ pub struct Traces {
     current: Option<Spectrum>,
     average: Vec<f64>,
     hold: Vec<f64>,
+    min_hold: Vec<f64>,
     rows: u64,
 }
 
@@ -50,6 +52,7 @@ impl Traces {
             self.geometry = Some(g);
             self.average = spec.psd.clone();
             self.hold = spec.psd.clone();
+            self.min_hold = spec.psd.clone();
             self.rows = 1;
         } else {
             self.rows += 1;
@@ -57,19 +60,25 @@ impl Traces {
             for (a, p) in self.average.iter_mut().zip(&spec.psd) {
                 *a += w * (p - *a);
             }
-            for (h, p) in self.hold.iter_mut().zip(&spec.psd) {
+            for ((h, m), p) in self.hold.iter_mut().zip(self.min_hold.iter_mut()).zip(&spec.psd) {
                 *h = h.max(*p);
+                *m = m.min(*p);
             }
         }
         self.current = Some(spec);
         restarted
     }
 
-    /// Starts the hold trace again from the newest row.
+    /// Starts both hold traces again from the newest row.
     pub fn reset_hold(&mut self) {
         if let Some(c) = &self.current {
             self.hold = c.psd.clone();
+            self.min_hold = c.psd.clone();
         }
+    }
+
+    pub fn min_hold_psd(&self) -> &[f64] {
+        &self.min_hold
     }
 
     pub fn current(&self) -> Option<&Spectrum> {
@@ -125,6 +134,19 @@ mod tests {
         assert!((t.hold_psd()[0] / unit - 3.0).abs() < 1e-12);
         t.reset_hold();
         assert!((t.hold_psd()[0] / unit - 0.5).abs() < 1e-12);
+    }
+
+    #[test]
+    fn min_hold_keeps_the_lowest_until_reset() {
+        let mut t = Traces::default();
+        t.push(row(2.0, 64, WindowKind::Hann));
+        t.push(row(0.25, 64, WindowKind::Hann));
+        t.push(row(5.0, 64, WindowKind::Hann));
+        let unit = row(1.0, 64, WindowKind::Hann).psd[0];
+        assert!((t.min_hold_psd()[0] / unit - 0.25).abs() < 1e-12);
+        assert!((t.hold_psd()[0] / unit - 5.0).abs() < 1e-12);
+        t.reset_hold();
+        assert!((t.min_hold_psd()[0] / unit - 5.0).abs() < 1e-12);
     }
 
     #[test]

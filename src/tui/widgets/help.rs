@@ -30,7 +30,7 @@ impl HelpOverlay<'_> {
             Span::styled(format!(" {:<KEYS_W$} ", "traces"), t.header),
             Span::styled("⣀⣀ average  ", t.average),
             Span::styled("⣀⣀ current  ", t.current),
-            Span::styled("⣀⣀ peak hold  ", t.hold),
+            Span::styled("⣀⣀ peak/min hold  ", t.hold),
             Span::styled("│ marker", t.marker),
         ]));
         lines

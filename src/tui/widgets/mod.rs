@@ -44,14 +44,15 @@ impl App {
             |f: Option<f64>| view.zip(f).and_then(|(v, f)| v.column_of(f, w)).map(|c| c as u16);
         let l = self.levels;
         let shown = |v: Vec<f64>| -> Vec<f64> { v.into_iter().map(|x| l.shown(x)).collect() };
-        let [cur, avg, hold] = match self.trace_columns(2 * w) {
-            Some([c, a, h]) => [shown(c), shown(a), shown(h)],
-            None => [Vec::new(), Vec::new(), Vec::new()],
+        let [cur, avg, hold, min_hold] = match self.trace_columns(2 * w) {
+            Some([c, a, h, m]) => [shown(c), shown(a), shown(h), shown(m)],
+            None => [Vec::new(), Vec::new(), Vec::new(), Vec::new()],
         };
         let plot = SpectrumPlot {
             current: &cur,
             average: &avg,
             hold: &hold,
+            min_hold: &min_hold,
             top: l.shown(l.top_dbfs),
             range_db: l.range_db,
             unit: l.unit(),

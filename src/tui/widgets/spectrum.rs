@@ -22,6 +22,8 @@ pub struct SpectrumPlot<'a> {
     pub current: &'a [f64],
     pub average: &'a [f64],
     pub hold: &'a [f64],
+    /// Per-bin minimum since the last reset, drawn in the hold style.
+    pub min_hold: &'a [f64],
     /// Top of the scale in printed units.
     pub top: f64,
     pub range_db: f64,
@@ -108,6 +110,7 @@ impl Widget for &SpectrumPlot<'_> {
             (self.trace_masks(self.average, w, h), self.theme.average),
             (self.trace_masks(self.current, w, h), self.theme.current),
             (self.trace_masks(self.hold, w, h), self.theme.hold),
+            (self.trace_masks(self.min_hold, w, h), self.theme.hold),
         ];
         let grid_rows: Vec<usize> = self.level_labels(h).into_iter().map(|(r, _)| r).collect();
         for y in 0..h {
@@ -160,6 +163,7 @@ mod tests {
             current: cur,
             average: avg,
             hold,
+            min_hold: &[],
             top: 0.0,
             range_db: 80.0,
             unit: "dBFS",
