@@ -6,9 +6,9 @@
 //! source dropped samples) discards the partial frame so no frame straddles missing data.
 
 use super::spectrum::Spectrum;
-use super::stft::{welch_dof, Stft, MAX_FFT, MIN_FFT};
+use super::stft::{welch_dof, FrameSet, Stft, MAX_FFT, MIN_FFT};
 use super::window::WindowKind;
-use super::worker::Worker;
+use super::worker::{Batch, Team};
 use num_complex::Complex32;
 
 /// How the STFT is cut and averaged.
@@ -50,158 +50,199 @@ pub struct Engine {
     cfg: EngineConfig,
     hop: usize,
     stft: Stft,
-    /// Extra transforms with their own accumulators, one per additional thread.
-    helpers: Vec<Worker>,
+    /// Helper threads with their own transforms (none on one thread).
+    team: Team,
     sample_rate_hz: f64,
     center_hz: f64,
-    pending: Vec<Complex32>,
-    pending_start: u64,
+    /// Samples not yet covered by a transformed frame; always starts at a frame boundary.
+    tail: Vec<Complex32>,
+    tail_start: u64,
     acc: Vec<f64>,
-    /// f32 scratch for [`Stft::accumulate_frames`].
-    partial: Vec<f32>,
+    /// Per-group f32 sums of the current batch, `fft_size` floats each.
+    slots: Vec<f32>,
+    /// Frame ranges of the current batch, one per slot at most.
+    groups: Vec<(usize, usize)>,
     acc_frames: u64,
     acc_first: u64,
     acc_end: u64,
 }
 
+/// Memory the per-group sums may use; bounds the groups of very long transforms.
+const SLOT_BYTES: usize = 8 << 20;
+
 impl Engine {
     pub fn new(cfg: EngineConfig, sample_rate_hz: f64, center_hz: f64) -> Engine {
         let stft = Stft::new(cfg.fft_size, cfg.window);
-        Engine {
+        let mut e = Engine {
             hop: cfg.hop(),
             acc: vec![0.0; cfg.fft_size],
-            partial: vec![0.0; cfg.fft_size],
-            pending: Vec::with_capacity(cfg.fft_size * 2),
+            slots: Vec::new(),
+            groups: Vec::new(),
+            tail: Vec::with_capacity(cfg.fft_size * 2),
             stft,
-            helpers: Vec::new(),
+            team: Team::new(0, cfg.fft_size, cfg.window),
             cfg,
             sample_rate_hz,
             center_hz,
-            pending_start: 0,
+            tail_start: 0,
             acc_frames: 0,
             acc_first: 0,
             acc_end: 0,
+        };
+        e.size_slots();
+        e
+    }
+
+    /// Spreads the frames over `threads` threads, the extra ones long-lived helpers. Frames are
+    /// independent: each batch is cut into groups that the threads take in turn, and the groups'
+    /// sums are added in a fixed order, so the result does not depend on scheduling. With more
+    /// than one thread, frames are gathered until there are at least two per thread, which
+    /// delays an output by at most that many frames.
+    pub fn set_threads(&mut self, threads: usize) {
+        let helpers = threads.max(1) - 1;
+        if helpers != self.team.helpers() {
+            self.team = Team::new(helpers, self.cfg.fft_size, self.cfg.window);
+            self.size_slots();
         }
     }
 
-    /// Spreads the frames over `threads` threads, the extra ones long-lived workers (frames are
-    /// independent; partial sums are added in a fixed order, so the result does not depend on
-    /// scheduling). With more than one thread,
-    /// frames are gathered into batches of at least two per thread before they are transformed,
-    /// which delays an output by at most that many frames.
-    pub fn set_threads(&mut self, threads: usize) {
-        let extra = threads.max(1) - 1;
-        self.helpers.truncate(extra);
-        while self.helpers.len() < extra {
-            self.helpers.push(Worker::new(self.cfg.fft_size, self.cfg.window));
-        }
+    /// Four groups per thread let a thread that is held up (by the reader, say) hand work to
+    /// the others; very long transforms get fewer so the sums stay within [`SLOT_BYTES`].
+    fn size_slots(&mut self) {
+        let n = self.cfg.fft_size;
+        let wanted = (4 * self.threads()).max(8);
+        let fit = (SLOT_BYTES / (4 * n)).max(self.threads());
+        let count = wanted.min(fit);
+        self.slots = vec![0.0; count * n];
+        self.groups = Vec::with_capacity(count);
     }
 
     /// The number of threads the transform runs on.
     pub fn threads(&self) -> usize {
-        1 + self.helpers.len()
+        1 + self.team.helpers()
     }
 
     pub fn config(&self) -> &EngineConfig {
         &self.cfg
     }
 
-    /// Feeds samples whose first has index `start`; calls `emit` for each finished spectrum.
-    pub fn push(&mut self, start: u64, samples: &[Complex32], emit: &mut dyn FnMut(Spectrum)) {
-        let expected = self.pending_start + self.pending.len() as u64;
-        if start != expected || self.pending.is_empty() {
-            // Frames complete before the gap still count; the partial one cannot.
-            self.process_ready(emit);
-            self.pending.clear();
-            self.pending_start = start;
-        }
-        self.pending.extend_from_slice(samples);
-        // Two frames per thread amortise the thread hand-off; very long frames need only one
-        // each, and holding more would cost memory (a 1M-point frame is 8 MiB).
-        let batch = match self.threads() {
+    /// Frames to gather before transforming: two per thread amortise waking the helpers; very
+    /// long frames need only one each, and holding more would cost memory (a 1M-point frame is
+    /// 8 MiB).
+    fn min_batch(&self) -> usize {
+        match self.threads() {
             1 => 1,
             t if self.cfg.fft_size >= 65536 => t,
             t => 2 * t,
-        };
-        if self.frames_ready() >= batch {
-            self.process_ready(emit);
         }
     }
 
-    /// Whole frames waiting in `pending`.
-    fn frames_ready(&self) -> usize {
-        let n = self.cfg.fft_size;
-        if self.pending.len() < n {
-            0
-        } else {
-            (self.pending.len() - n) / self.hop + 1
+    /// Feeds samples whose first has index `start`; calls `emit` for each finished spectrum.
+    ///
+    /// Frames that lie wholly inside `samples` are transformed where they are; only the samples
+    /// of frames that straddle blocks are copied, into `tail`.
+    pub fn push(&mut self, start: u64, samples: &[Complex32], emit: &mut dyn FnMut(Spectrum)) {
+        if start != self.tail_start + self.tail.len() as u64 || self.tail.is_empty() {
+            // Frames complete before the gap still count; the partial one cannot.
+            self.flush_tail(emit);
+            self.tail.clear();
+            self.tail_start = start;
         }
-    }
-
-    /// Transforms every whole frame in `pending`, emitting each completed average.
-    fn process_ready(&mut self, emit: &mut dyn FnMut(Spectrum)) {
-        let ready = self.frames_ready();
-        let n = self.cfg.fft_size;
-        let mut f = 0usize;
-        while f < ready {
-            if self.acc_frames == 0 {
-                self.acc_first = self.pending_start + (f * self.hop) as u64;
-            }
-            let room = self.cfg.frames_per_output.map_or(u64::MAX, |k| k - self.acc_frames);
-            let m = ((ready - f) as u64).min(room) as usize;
-            self.accumulate_frames(f, m);
-            self.acc_frames += m as u64;
-            self.acc_end = self.pending_start + ((f + m - 1) * self.hop + n) as u64;
-            f += m;
-            if Some(self.acc_frames) == self.cfg.frames_per_output {
-                emit(self.take());
-            }
-        }
-        let consumed = (f * self.hop).min(self.pending.len());
-        self.pending.drain(..consumed);
-        self.pending_start += consumed as u64;
-    }
-
-    /// Adds the power of frames `first .. first + count` of `pending` into `acc`.
-    fn accumulate_frames(&mut self, first: usize, count: usize) {
-        let hop = self.hop;
-        let threads = self.threads();
-        if threads == 1 || count < 2 * threads {
-            let end = first + count;
-            self.stft.accumulate_frames(
-                &self.pending,
-                first,
-                end,
-                hop,
-                &mut self.partial,
-                &mut self.acc,
-            );
+        let (n, hop) = (self.cfg.fft_size, self.hop);
+        let held = self.tail.len();
+        let total = held + samples.len();
+        let count = if total < n { 0 } else { (total - n) / hop + 1 };
+        if count < self.min_batch() {
+            self.tail.extend_from_slice(samples);
             return;
         }
-        let per = count.div_ceil(threads);
-        let end = first + count;
-        for (i, worker) in self.helpers.iter_mut().enumerate() {
-            let a = (first + (i + 1) * per).min(end);
-            worker.start(&self.pending, a, (a + per).min(end), hop);
+        // Frames that start in the tail run on into `samples`: complete them in the tail.
+        let split = held.div_ceil(hop).min(count);
+        if split > 0 {
+            let need = ((split - 1) * hop + n).saturating_sub(held);
+            self.tail.extend_from_slice(&samples[..need]);
         }
-        let mine = (first + per).min(end);
-        self.stft.accumulate_frames(
-            &self.pending,
-            first,
-            mine,
-            hop,
-            &mut self.partial,
-            &mut self.acc,
-        );
-        // Always in the same order, so the sums do not depend on which thread finished first.
-        for worker in self.helpers.iter_mut() {
-            worker.wait(&mut self.acc);
+        let tail = std::mem::take(&mut self.tail);
+        let frames = FrameSet { head: &tail, split, body: samples, body_at: held, hop, n };
+        self.run(frames, count, self.tail_start, emit);
+        self.tail = tail;
+        // Keep what the next frame needs: it starts `count · hop` samples in.
+        let next = count * hop;
+        if next >= held {
+            self.tail.clear();
+            self.tail.extend_from_slice(&samples[next - held..]);
+        } else {
+            self.tail.truncate(held);
+            self.tail.drain(..next);
+            self.tail.extend_from_slice(samples);
+        }
+        self.tail_start += next as u64;
+    }
+
+    /// Transforms the whole frames still in `tail`.
+    fn flush_tail(&mut self, emit: &mut dyn FnMut(Spectrum)) {
+        let (n, hop) = (self.cfg.fft_size, self.hop);
+        if self.tail.len() < n {
+            return;
+        }
+        let count = (self.tail.len() - n) / hop + 1;
+        let tail = std::mem::take(&mut self.tail);
+        self.run(FrameSet::contiguous(&tail, n, hop), count, self.tail_start, emit);
+        self.tail = tail;
+        self.tail.drain(..count * hop);
+        self.tail_start += (count * hop) as u64;
+    }
+
+    /// Transforms frames `0 .. count` of `frames` (frame 0 starts at sample index `origin`),
+    /// emitting each completed average.
+    fn run(
+        &mut self,
+        frames: FrameSet<'_>,
+        count: usize,
+        origin: u64,
+        emit: &mut dyn FnMut(Spectrum),
+    ) {
+        let (n, hop) = (self.cfg.fft_size, self.hop);
+        let slots = self.slots.len() / n;
+        let mut k = 0;
+        while k < count {
+            // Cut the next batch into at most `slots` groups, none crossing an output boundary.
+            self.groups.clear();
+            let size = (count - k).div_ceil(slots);
+            let mut held = self.acc_frames;
+            while self.groups.len() < slots && k < count {
+                let room = self.cfg.frames_per_output.map_or(u64::MAX, |f| f - held);
+                let len = (size.min(count - k) as u64).min(room) as usize;
+                self.groups.push((k, k + len));
+                k += len;
+                held += len as u64;
+                if Some(held) == self.cfg.frames_per_output {
+                    held = 0;
+                }
+            }
+            let batch = Batch::new(frames, &self.groups, &mut self.slots);
+            self.team.run(&batch, &mut self.stft);
+            // Fold the groups in order, so the sums do not depend on which thread did which.
+            for g in 0..self.groups.len() {
+                let (first, end) = self.groups[g];
+                if self.acc_frames == 0 {
+                    self.acc_first = origin + (first * hop) as u64;
+                }
+                for (a, p) in self.acc.iter_mut().zip(&self.slots[g * n..(g + 1) * n]) {
+                    *a += *p as f64;
+                }
+                self.acc_frames += (end - first) as u64;
+                self.acc_end = origin + ((end - 1) * hop + n) as u64;
+                if Some(self.acc_frames) == self.cfg.frames_per_output {
+                    emit(self.take());
+                }
+            }
         }
     }
 
     /// Emits what has been accumulated (if any frame was); call at end of input.
     pub fn finish(&mut self, emit: &mut dyn FnMut(Spectrum)) {
-        self.process_ready(emit);
+        self.flush_tail(emit);
         if self.acc_frames > 0 {
             emit(self.take());
         }
@@ -234,6 +275,7 @@ impl Engine {
 mod tests {
     use super::*;
     use crate::dsp::stft::tests::seeded;
+    use crate::dsp::Window;
 
     fn cfg(n: usize, overlap: f64, k: Option<u64>) -> EngineConfig {
         EngineConfig { fft_size: n, window: WindowKind::Hann, overlap, frames_per_output: k }
@@ -291,6 +333,63 @@ mod tests {
                 // Same f32 batch rounding as above.
                 for (p, q) in a.psd.iter().zip(&b.psd) {
                     assert!((p - q).abs() <= 1e-5 * p.abs().max(1e-30), "k={k:?}: {p} vs {q}");
+                }
+            }
+        }
+    }
+
+    /// Reference: every frame transformed on its own and summed in f64, k frames per output.
+    fn frame_by_frame(x: &[Complex32], c: &EngineConfig) -> Vec<(u64, u64, Vec<f64>)> {
+        let (n, hop) = (c.fft_size, c.hop());
+        let k = c.frames_per_output.unwrap_or(u64::MAX) as usize;
+        let mut stft = Stft::new(n, c.window);
+        let count = (x.len() - n) / hop + 1;
+        let mut out = Vec::new();
+        let mut f = 0;
+        while f < count {
+            let m = k.min(count - f);
+            let mut acc = vec![0.0; n];
+            for j in f..f + m {
+                stft.accumulate_power(&x[j * hop..j * hop + n], &mut acc);
+            }
+            out.push(((f * hop) as u64, ((f + m - 1) * hop + n) as u64, acc));
+            f += m;
+        }
+        out
+    }
+
+    #[test]
+    fn ragged_blocks_on_one_or_two_threads_match_frame_by_frame_sums() {
+        let x = seeded(30_000, 17);
+        let mut s = 99u64;
+        let mut next_len = move || {
+            s = s.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+            1 + (s >> 33) as usize % 700 // from 1 sample to several frames
+        };
+        for (overlap, k) in [(0.25, Some(1u64)), (0.5, Some(7)), (0.0, None), (0.9, Some(3))] {
+            let c = cfg(128, overlap, k);
+            let reference = frame_by_frame(&x, &c);
+            let w = Window::new(c.window, c.fft_size);
+            for threads in [1, 2, 3] {
+                let mut out = Vec::new();
+                let mut e = Engine::new(c.clone(), 1e6, 0.0);
+                e.set_threads(threads);
+                let mut at = 0;
+                while at < x.len() {
+                    let len = next_len().min(x.len() - at);
+                    e.push(at as u64, &x[at..at + len], &mut |s| out.push(s));
+                    at += len;
+                }
+                e.finish(&mut |s| out.push(s));
+                assert_eq!(out.len(), reference.len(), "overlap {overlap} k {k:?} t {threads}");
+                for (got, (first, end, acc)) in out.iter().zip(&reference) {
+                    assert_eq!((got.first_sample, got.end_sample), (*first, *end));
+                    let frames = got.frames;
+                    let want =
+                        Spectrum::from_power_sum(acc, frames, got.dof, &w, 1e6, 0.0, *first, *end);
+                    for (p, q) in got.psd.iter().zip(&want.psd) {
+                        assert!((p - q).abs() <= 1e-5 * q.abs(), "t {threads}: {p} vs {q}");
+                    }
                 }
             }
         }

@@ -9,6 +9,39 @@ use std::sync::Arc;
 pub const MIN_FFT: usize = 16;
 pub const MAX_FFT: usize = 1 << 20;
 
+/// Frames `0, 1, 2, …` of `n` samples starting every `hop` samples of a stream held in two
+/// slices: frames `0 .. split` lie in `head` (at `k·hop`), the rest in `body` (at
+/// `k·hop − body_at`). This lets the engine transform frames straight out of the block the
+/// reader delivered, copying only the few that straddle two blocks into `head`.
+#[derive(Clone, Copy, Debug)]
+pub struct FrameSet<'a> {
+    pub head: &'a [Complex32],
+    pub split: usize,
+    pub body: &'a [Complex32],
+    pub body_at: usize,
+    pub hop: usize,
+    pub n: usize,
+}
+
+impl<'a> FrameSet<'a> {
+    /// Frames of one contiguous slice.
+    pub fn contiguous(data: &'a [Complex32], n: usize, hop: usize) -> FrameSet<'a> {
+        FrameSet { head: data, split: usize::MAX, body: &[], body_at: 0, hop, n }
+    }
+
+    /// The samples of frame `k`.
+    #[inline]
+    pub fn frame(&self, k: usize) -> &'a [Complex32] {
+        let at = k * self.hop;
+        if k < self.split {
+            &self.head[at..at + self.n]
+        } else {
+            let at = at - self.body_at;
+            &self.body[at..at + self.n]
+        }
+    }
+}
+
 /// One planned transform with its window and scratch space. Per-frame calls allocate nothing.
 pub struct Stft {
     window: Window,
@@ -47,29 +80,16 @@ impl Stft {
         }
     }
 
-    /// Adds the power of frames `first .. end` of `data` (starting every `hop` samples) into
-    /// `acc`. The frames are summed in f32 in `partial` (as long as `acc`), which vectorises
-    /// better than a per-bin f64 sum, and folded into the f64 total once per call; a few dozen
-    /// f32 additions lose under 1e-5 relative, far below the statistical scatter of any average.
-    pub fn accumulate_frames(
-        &mut self,
-        data: &[Complex32],
-        first: usize,
-        end: usize,
-        hop: usize,
-        partial: &mut [f32],
-        acc: &mut [f64],
-    ) {
-        let n = self.fft_size();
-        partial.iter_mut().for_each(|p| *p = 0.0);
-        for f in first..end {
-            self.transform(&data[f * hop..f * hop + n]);
-            for (p, x) in partial.iter_mut().zip(&self.buf) {
+    /// Sets `out` to the summed power `Σ |X[k]|²` (f32, FFT order) of frames `first .. end` of
+    /// `frames`. Sums of a few frames in f32 vectorise better than per-bin f64 sums and lose
+    /// under 1e-6 relative; the engine folds each group into its f64 total.
+    pub fn sum_frames(&mut self, frames: &FrameSet<'_>, first: usize, end: usize, out: &mut [f32]) {
+        out.iter_mut().for_each(|p| *p = 0.0);
+        for k in first..end {
+            self.transform(frames.frame(k));
+            for (p, x) in out.iter_mut().zip(&self.buf) {
                 *p += x.norm_sqr();
             }
-        }
-        for (a, p) in acc.iter_mut().zip(partial.iter()) {
-            *a += *p as f64;
         }
     }
 
