@@ -9,6 +9,7 @@ use crate::cli::DemoArgs;
 use crate::source::demo::{channels, DemoSource, DEFAULT_CENTER_HZ, SITE_NAME};
 use crate::source::{sigmf, SampleSource};
 use anyhow::{bail, Context, Result};
+use num_complex::Complex32;
 use serde_json::{json, Value};
 use std::fs::File;
 use std::io::{BufWriter, Write};
@@ -55,9 +56,9 @@ pub fn run(args: DemoArgs) -> Result<ExitCode> {
             Some(t) => ((t - written) as usize).min(block),
             None => block,
         };
-        samples.clear();
+        samples.resize(want, Complex32::default());
         bytes.clear();
-        let n = src.read(&mut samples, want)?;
+        let n = src.read(&mut samples[..want])?;
         args.format.encode(&samples[..n], &mut bytes);
         out.write_all(&bytes)?;
         if args.realtime {

@@ -789,7 +789,7 @@ mod tests {
             if (250_000..290_000).contains(&start) {
                 continue;
             }
-            let block = Block { start: start as u64, samples: x[start..start + 10_000].to_vec() };
+            let block = Block::new(start as u64, x[start..start + 10_000].to_vec());
             session.feed(&block).unwrap();
         }
         session.lost_tail(600_000).unwrap();

@@ -304,7 +304,7 @@ impl SampleSource for DemoSource {
         &self.info
     }
 
-    fn read(&mut self, out: &mut Vec<Complex32>, max: usize) -> Result<usize> {
+    fn read(&mut self, out: &mut [Complex32]) -> Result<usize> {
         if self.realtime {
             let start = *self.started.get_or_insert_with(Instant::now);
             let due = Duration::from_secs_f64(self.produced as f64 / self.info.sample_rate_hz);
@@ -312,11 +312,9 @@ impl SampleSource for DemoSource {
                 std::thread::sleep(wait);
             }
         }
-        let before = out.len();
-        out.resize(before + max, Complex32::default());
-        self.scene.fill(&mut out[before..]);
-        self.produced += max as u64;
-        Ok(max)
+        self.scene.fill(out);
+        self.produced += out.len() as u64;
+        Ok(out.len())
     }
 
     fn rewind(&mut self) -> Result<()> {
@@ -612,8 +610,8 @@ mod tests {
         let data = std::fs::read(repo_file("recordings/wrenhollow-demo.sigmf-data")).unwrap();
         assert_eq!(data.len(), 8_000_000, "1 MS/s × 4 s of cu8");
         let mut src = DemoSource::new(1e6, DEFAULT_CENTER_HZ, false);
-        let mut samples = Vec::new();
-        src.read(&mut samples, 4_000_000).unwrap();
+        let mut samples = vec![Complex32::default(); 4_000_000];
+        src.read(&mut samples).unwrap();
         let mut fresh = Vec::new();
         crate::source::SampleFormat::Cu8.encode(&samples, &mut fresh);
         let differ: Vec<i32> = fresh
@@ -632,11 +630,11 @@ mod tests {
     #[test]
     fn source_reads_and_rewinds() {
         let mut src = DemoSource::new(1e6, DEFAULT_CENTER_HZ, false);
-        let mut first = Vec::new();
-        assert_eq!(src.read(&mut first, 5000).unwrap(), 5000);
+        let mut first = vec![Complex32::default(); 5000];
+        assert_eq!(src.read(&mut first).unwrap(), 5000);
         src.rewind().unwrap();
-        let mut again = Vec::new();
-        src.read(&mut again, 5000).unwrap();
+        let mut again = vec![Complex32::default(); 5000];
+        src.read(&mut again).unwrap();
         assert!(first == again);
         assert!(src.info().label.contains(SITE_NAME));
     }

@@ -77,30 +77,34 @@ impl SampleFormat {
         }
     }
 
+    /// True when this format's bytes are the memory image of `Complex32` on this machine
+    /// (cf32_le on a little-endian one), so sources can read straight into the sample buffer.
+    pub fn is_native(self) -> bool {
+        self == SampleFormat::Cf32Le && cfg!(target_endian = "little")
+    }
+
     /// Decodes whole samples from `bytes` (whose length must be a multiple of
-    /// [`bytes_per_sample`](Self::bytes_per_sample)) and appends them to `out`. Returns how many
-    /// non-finite samples were skipped.
-    pub fn decode(self, bytes: &[u8], out: &mut Vec<Complex32>) -> u64 {
+    /// [`bytes_per_sample`](Self::bytes_per_sample)) into the start of `out`, which must have
+    /// room for them. Non-finite samples are skipped; returns how many samples were kept.
+    pub fn decode(self, bytes: &[u8], out: &mut [Complex32]) -> usize {
         let bps = self.bytes_per_sample();
         debug_assert_eq!(bytes.len() % bps, 0);
-        let chunks = bytes.chunks_exact(bps);
-        out.reserve(chunks.len());
+        let count = bytes.len() / bps;
+        let out = &mut out[..count];
         match self {
             SampleFormat::Cu8 => {
                 const SCALE: f32 = 1.0 / 127.5;
-                out.extend(chunks.map(|c| {
+                fill_from(out, bytes, bps, |c: &[u8]| {
                     Complex32::new((c[0] as f32 - 127.5) * SCALE, (c[1] as f32 - 127.5) * SCALE)
-                }));
-                0
+                });
+                return count;
             }
             SampleFormat::Ci8 => {
                 const SCALE: f32 = 1.0 / 128.0;
-                out.extend(
-                    chunks.map(|c| {
-                        Complex32::new(c[0] as i8 as f32 * SCALE, c[1] as i8 as f32 * SCALE)
-                    }),
-                );
-                0
+                fill_from(out, bytes, bps, |c: &[u8]| {
+                    Complex32::new(c[0] as i8 as f32 * SCALE, c[1] as i8 as f32 * SCALE)
+                });
+                return count;
             }
             SampleFormat::Ci16Le | SampleFormat::Ci16Be => {
                 const SCALE: f32 = 1.0 / 32768.0;
@@ -109,32 +113,19 @@ impl SampleFormat {
                     let v = [b[0], b[1]];
                     (if le { i16::from_le_bytes(v) } else { i16::from_be_bytes(v) }) as f32
                 };
-                out.extend(
-                    chunks.map(|c| Complex32::new(get(&c[0..2]) * SCALE, get(&c[2..4]) * SCALE)),
-                );
-                0
+                fill_from(out, bytes, bps, |c: &[u8]| {
+                    Complex32::new(get(&c[0..2]) * SCALE, get(&c[2..4]) * SCALE)
+                });
+                return count;
             }
             SampleFormat::Ci32Le => {
                 const SCALE: f64 = 1.0 / 2147483648.0;
                 let get =
                     |b: &[u8]| (i32::from_le_bytes([b[0], b[1], b[2], b[3]]) as f64 * SCALE) as f32;
-                out.extend(chunks.map(|c| Complex32::new(get(&c[0..4]), get(&c[4..8]))));
-                0
+                fill_from(out, bytes, bps, |c: &[u8]| Complex32::new(get(&c[0..4]), get(&c[4..8])));
+                return count;
             }
-            SampleFormat::Cf32Le if cfg!(target_endian = "little") => {
-                let before = out.len();
-                let count = bytes.len() / 8;
-                out.reserve(count);
-                // SAFETY: `Complex32` is `repr(C)` {re: f32, im: f32}, so on a little-endian
-                // machine cf32_le bytes are its exact memory image; `reserve` made room for
-                // `count` samples, and every byte of them is written before `set_len`.
-                unsafe {
-                    let dst = out.as_mut_ptr().add(before) as *mut u8;
-                    std::ptr::copy_nonoverlapping(bytes.as_ptr(), dst, count * 8);
-                    out.set_len(before + count);
-                }
-                drop_non_finite(out, before)
-            }
+            _ if self.is_native() => sample_bytes_mut(out).copy_from_slice(bytes),
             SampleFormat::Cf32Le | SampleFormat::Cf32Be => {
                 let le = self == SampleFormat::Cf32Le;
                 let get = |b: &[u8]| {
@@ -145,15 +136,18 @@ impl SampleFormat {
                         f32::from_be_bytes(v)
                     }
                 };
-                push_finite(chunks.map(|c| Complex32::new(get(&c[0..4]), get(&c[4..8]))), out)
+                fill_from(out, bytes, bps, |c: &[u8]| Complex32::new(get(&c[0..4]), get(&c[4..8])));
             }
             SampleFormat::Cf64Le => {
                 let get = |b: &[u8]| {
                     f64::from_le_bytes([b[0], b[1], b[2], b[3], b[4], b[5], b[6], b[7]]) as f32
                 };
-                push_finite(chunks.map(|c| Complex32::new(get(&c[0..8]), get(&c[8..16]))), out)
+                fill_from(out, bytes, bps, |c: &[u8]| {
+                    Complex32::new(get(&c[0..8]), get(&c[8..16]))
+                });
             }
         }
+        keep_finite(out)
     }
 
     /// Encodes samples in this format (used by `bandwarden demo` and by tests). Values outside
@@ -204,33 +198,40 @@ fn round_i32(x: f32) -> i32 {
     (x + 0.5f32.copysign(x)) as i32
 }
 
-fn push_finite(samples: impl Iterator<Item = Complex32>, out: &mut Vec<Complex32>) -> u64 {
-    let before = out.len();
-    out.extend(samples);
-    drop_non_finite(out, before)
+/// Decodes each `bps`-byte chunk of `bytes` into `out` with `f`; generic, so `f` is inlined and
+/// the loop vectorises.
+fn fill_from<F: Fn(&[u8]) -> Complex32>(out: &mut [Complex32], bytes: &[u8], bps: usize, f: F) {
+    for (o, c) in out.iter_mut().zip(bytes.chunks_exact(bps)) {
+        *o = f(c);
+    }
 }
 
-/// Removes non-finite samples from `out[before..]`, returning how many there were.
-fn drop_non_finite(out: &mut Vec<Complex32>, before: usize) -> u64 {
+/// The bytes of a sample buffer, for reading a native-format stream straight into it.
+pub fn sample_bytes_mut(samples: &mut [Complex32]) -> &mut [u8] {
+    // SAFETY: `Complex32` is `repr(C)` {re: f32, im: f32} with no padding, so the buffer is
+    // `8 · len` initialised bytes, and every byte pattern is a valid `f32`.
+    unsafe { std::slice::from_raw_parts_mut(samples.as_mut_ptr().cast::<u8>(), samples.len() * 8) }
+}
+
+/// Moves the finite samples of `samples` to its front, in order; returns how many there are.
+pub fn keep_finite(samples: &mut [Complex32]) -> usize {
     // Exponent bits all set means NaN or infinity; OR-ing the test over the block vectorises.
     const EXP: u32 = 0x7f80_0000;
-    let clean = !out[before..]
+    let clean = !samples
         .iter()
         .fold(false, |bad, s| bad | (s.re.to_bits() & EXP == EXP) | (s.im.to_bits() & EXP == EXP));
     if clean {
-        return 0;
+        return samples.len();
     }
-    let mut kept = before;
-    for i in before..out.len() {
-        let s = out[i];
+    let mut kept = 0;
+    for i in 0..samples.len() {
+        let s = samples[i];
         if s.re.is_finite() && s.im.is_finite() {
-            out[kept] = s;
+            samples[kept] = s;
             kept += 1;
         }
     }
-    let bad = (out.len() - kept) as u64;
-    out.truncate(kept);
-    bad
+    kept
 }
 
 impl fmt::Display for SampleFormat {
@@ -255,25 +256,24 @@ impl FromStr for SampleFormat {
 mod tests {
     use super::*;
 
+    /// Decodes `bytes` into a fresh buffer, returning only the kept samples.
+    fn decoded(fmt: SampleFormat, bytes: &[u8]) -> Vec<Complex32> {
+        let mut out = vec![Complex32::default(); bytes.len() / fmt.bytes_per_sample()];
+        let kept = fmt.decode(bytes, &mut out);
+        out.truncate(kept);
+        out
+    }
+
     #[test]
     fn full_scale_mapping_is_as_documented() {
-        let mut out = Vec::new();
-        SampleFormat::Cu8.decode(&[0, 255], &mut out);
-        assert_eq!(out[0], Complex32::new(-1.0, 1.0));
-        out.clear();
-        SampleFormat::Ci8.decode(&[0x80, 0x40], &mut out);
-        assert_eq!(out[0], Complex32::new(-1.0, 0.5));
-        out.clear();
-        SampleFormat::Ci16Le.decode(&[0x00, 0x80, 0x00, 0x40], &mut out);
-        assert_eq!(out[0], Complex32::new(-1.0, 0.5));
-        out.clear();
-        SampleFormat::Ci16Be.decode(&[0x80, 0x00, 0x40, 0x00], &mut out);
-        assert_eq!(out[0], Complex32::new(-1.0, 0.5));
-        out.clear();
+        let half = Complex32::new(-1.0, 0.5);
+        assert_eq!(decoded(SampleFormat::Cu8, &[0, 255])[0], Complex32::new(-1.0, 1.0));
+        assert_eq!(decoded(SampleFormat::Ci8, &[0x80, 0x40])[0], half);
+        assert_eq!(decoded(SampleFormat::Ci16Le, &[0x00, 0x80, 0x00, 0x40])[0], half);
+        assert_eq!(decoded(SampleFormat::Ci16Be, &[0x80, 0x00, 0x40, 0x00])[0], half);
         let mut b = (i32::MIN).to_le_bytes().to_vec();
         b.extend_from_slice(&(1i32 << 30).to_le_bytes());
-        SampleFormat::Ci32Le.decode(&b, &mut out);
-        assert_eq!(out[0], Complex32::new(-1.0, 0.5));
+        assert_eq!(decoded(SampleFormat::Ci32Le, &b)[0], half);
     }
 
     #[test]
@@ -285,8 +285,8 @@ mod tests {
             let mut bytes = Vec::new();
             fmt.encode(&samples, &mut bytes);
             assert_eq!(bytes.len(), samples.len() * fmt.bytes_per_sample(), "{fmt}");
-            let mut back = Vec::new();
-            assert_eq!(fmt.decode(&bytes, &mut back), 0);
+            let back = decoded(fmt, &bytes);
+            assert_eq!(back.len(), samples.len(), "{fmt}");
             // One quantisation step of the coarsest format (8 bits) is 1/128.
             let tol = match fmt {
                 SampleFormat::Cu8 | SampleFormat::Ci8 => 1.0 / 127.0,
@@ -300,19 +300,18 @@ mod tests {
     }
 
     #[test]
-    fn non_finite_floats_are_counted_and_skipped() {
-        let mut bytes = Vec::new();
-        SampleFormat::Cf32Le.encode(
-            &[
-                Complex32::new(0.5, 0.5),
-                Complex32::new(f32::NAN, 0.0),
-                Complex32::new(0.0, f32::INFINITY),
-            ],
-            &mut bytes,
-        );
-        let mut out = Vec::new();
-        assert_eq!(SampleFormat::Cf32Le.decode(&bytes, &mut out), 2);
-        assert_eq!(out, vec![Complex32::new(0.5, 0.5)]);
+    fn non_finite_floats_are_skipped_in_order() {
+        let x = [
+            Complex32::new(0.5, 0.5),
+            Complex32::new(f32::NAN, 0.0),
+            Complex32::new(0.0, f32::INFINITY),
+            Complex32::new(-0.25, 0.125),
+        ];
+        for fmt in [SampleFormat::Cf32Le, SampleFormat::Cf32Be, SampleFormat::Cf64Le] {
+            let mut bytes = Vec::new();
+            fmt.encode(&x, &mut bytes);
+            assert_eq!(decoded(fmt, &bytes), vec![x[0], x[3]], "{fmt}");
+        }
     }
 
     #[test]

@@ -47,8 +47,9 @@ pub struct InputIssues {
 pub trait SampleSource: Send {
     fn info(&self) -> &SourceInfo;
 
-    /// Appends up to `max` samples to `out`; returns how many. Zero means end of input.
-    fn read(&mut self, out: &mut Vec<Complex32>, max: usize) -> Result<usize>;
+    /// Fills the start of `out` with up to `out.len()` samples; returns how many. Zero means end
+    /// of input. Filling a caller's buffer lets the reader reuse its blocks.
+    fn read(&mut self, out: &mut [Complex32]) -> Result<usize>;
 
     /// Problems seen so far.
     fn issues(&self) -> InputIssues {

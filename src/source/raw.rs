@@ -1,6 +1,6 @@
 //! Raw interleaved IQ from a file or a pipe.
 
-use super::{sanitize, InputIssues, InputRequest, SampleFormat, SampleSource, SourceInfo};
+use super::{format, sanitize, InputIssues, InputRequest, SampleFormat, SampleSource, SourceInfo};
 use anyhow::{Context, Result};
 use num_complex::Complex32;
 use std::fs::File;
@@ -93,46 +93,84 @@ pub fn file_stream(path: &str, offset: u64) -> Result<FileStream> {
     Ok(FileStream { file, offset })
 }
 
+impl RawSource {
+    /// Native samples (see [`SampleFormat::is_native`]) are read straight into `out`, with no
+    /// copy besides the kernel's; others go through `bytes` and are decoded into `out`.
+    fn read_into(&mut self, out: &mut [Complex32]) -> Result<usize> {
+        let native = self.format.is_native();
+        let bps = self.format.bytes_per_sample();
+        let want = if native { bps } else { out.len() * bps };
+        if self.bytes.len() < want {
+            self.bytes.resize(want, 0);
+        }
+        let mut have = self.carry;
+        if native {
+            format::sample_bytes_mut(out)[..have].copy_from_slice(&self.bytes[..have]);
+        }
+        loop {
+            let buf = if native { format::sample_bytes_mut(out) } else { &mut self.bytes[..want] };
+            let n = read_some(&mut *self.stream, &mut buf[have..], &self.info.label)?;
+            if n == 0 {
+                return Ok(self.end(have));
+            }
+            have += n;
+            let whole = have / bps;
+            if whole == 0 {
+                continue;
+            }
+            // An incomplete last sample waits at the start of `bytes` for the next call.
+            let rest = whole * bps..have;
+            let kept = if native {
+                let bytes = format::sample_bytes_mut(out);
+                self.bytes[..rest.len()].copy_from_slice(&bytes[rest.clone()]);
+                format::keep_finite(&mut out[..whole])
+            } else {
+                let kept = self.format.decode(&self.bytes[..whole * bps], out);
+                self.bytes.copy_within(rest.clone(), 0);
+                kept
+            };
+            self.carry = rest.len();
+            self.issues.non_finite += (whole - kept) as u64;
+            if kept > 0 {
+                return Ok(kept);
+            }
+            // Every sample was dropped: read on after the incomplete one.
+            if native {
+                format::sample_bytes_mut(out).copy_within(rest, 0);
+            }
+            have = self.carry;
+        }
+    }
+
+    /// End of input with `partial` bytes of an incomplete sample left over.
+    fn end(&mut self, partial: usize) -> usize {
+        self.finished = true;
+        self.carry = partial;
+        self.issues.trailing_bytes = partial as u64;
+        0
+    }
+}
+
+/// One `read` call, retried when interrupted; 0 means end of input.
+fn read_some(stream: &mut dyn ByteStream, buf: &mut [u8], label: &str) -> Result<usize> {
+    loop {
+        match stream.read(buf) {
+            Err(e) if e.kind() == ErrorKind::Interrupted => continue,
+            other => return other.with_context(|| format!("reading {label}")),
+        }
+    }
+}
+
 impl SampleSource for RawSource {
     fn info(&self) -> &SourceInfo {
         &self.info
     }
 
-    fn read(&mut self, out: &mut Vec<Complex32>, max: usize) -> Result<usize> {
-        if self.finished {
+    fn read(&mut self, out: &mut [Complex32]) -> Result<usize> {
+        if self.finished || out.is_empty() {
             return Ok(0);
         }
-        let bps = self.format.bytes_per_sample();
-        let want = max.max(1) * bps;
-        if self.bytes.len() < want {
-            self.bytes.resize(want, 0);
-        }
-        loop {
-            let n = match self.stream.read(&mut self.bytes[self.carry..want]) {
-                Ok(n) => n,
-                Err(e) if e.kind() == ErrorKind::Interrupted => continue,
-                Err(e) => return Err(e).with_context(|| format!("reading {}", self.info.label)),
-            };
-            if n == 0 {
-                self.finished = true;
-                self.issues.trailing_bytes = self.carry as u64;
-                return Ok(0);
-            }
-            let have = self.carry + n;
-            let whole = have / bps * bps;
-            if whole == 0 {
-                self.carry = have;
-                continue;
-            }
-            let before = out.len();
-            self.issues.non_finite += self.format.decode(&self.bytes[..whole], out);
-            self.bytes.copy_within(whole..have, 0);
-            self.carry = have - whole;
-            let got = out.len() - before;
-            if got > 0 {
-                return Ok(got);
-            }
-        }
+        self.read_into(out)
     }
 
     fn issues(&self) -> InputIssues {
@@ -164,12 +202,24 @@ mod tests {
         }
     }
 
+    /// Reads to the end in calls of at most `max` samples.
+    fn read_all(src: &mut RawSource, max: usize) -> Vec<Complex32> {
+        let mut all = Vec::new();
+        let mut buf = vec![Complex32::default(); max];
+        loop {
+            let n = src.read(&mut buf).unwrap();
+            if n == 0 {
+                return all;
+            }
+            all.extend_from_slice(&buf[..n]);
+        }
+    }
+
     #[test]
     fn trailing_partial_sample_is_dropped_and_counted() {
         let bytes: Vec<u8> = (0..4 * 10 + 3).map(|i| i as u8).collect();
         let mut src = RawSource::new(Box::new(Cursor::new(bytes)), SampleFormat::Ci16Le, info());
-        let mut out = Vec::new();
-        while src.read(&mut out, 3).unwrap() > 0 {}
+        let out = read_all(&mut src, 3);
         assert_eq!(out.len(), 10);
         assert_eq!(src.issues().trailing_bytes, 3);
     }
@@ -181,12 +231,53 @@ mod tests {
             (0..100).map(|i| Complex32::new(i as f32 / 200.0, 0.25)).collect();
         SampleFormat::Cf32Le.encode(&samples, &mut bytes);
         let mut src = RawSource::new(Box::new(Cursor::new(bytes)), SampleFormat::Cf32Le, info());
-        let mut out = Vec::new();
-        while src.read(&mut out, 7).unwrap() > 0 {}
-        assert_eq!(out, samples);
+        assert_eq!(read_all(&mut src, 7), samples);
         src.rewind().unwrap();
-        let mut again = Vec::new();
-        while src.read(&mut again, 64).unwrap() > 0 {}
-        assert_eq!(again, samples);
+        assert_eq!(read_all(&mut src, 64), samples);
+    }
+
+    /// A stream that hands out at most `step` bytes per read, as pipes may.
+    struct Trickle {
+        data: Vec<u8>,
+        at: usize,
+        step: usize,
+    }
+
+    impl Read for Trickle {
+        fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
+            let n = buf.len().min(self.step).min(self.data.len() - self.at);
+            buf[..n].copy_from_slice(&self.data[self.at..self.at + n]);
+            self.at += n;
+            Ok(n)
+        }
+    }
+
+    impl ByteStream for Trickle {}
+
+    #[test]
+    fn ragged_reads_keep_every_finite_sample_in_order() {
+        let mut x: Vec<Complex32> =
+            (0..300).map(|i| Complex32::new((i as f32 * 0.37).sin(), i as f32 / 400.0)).collect();
+        for i in [0, 1, 2, 77, 150, 151, 299] {
+            x[i] = Complex32::new(f32::NAN, if i % 2 == 0 { 0.0 } else { f32::INFINITY });
+        }
+        let finite: Vec<Complex32> =
+            x.iter().copied().filter(|s| s.re.is_finite() && s.im.is_finite()).collect();
+        for fmt in [SampleFormat::Cf32Le, SampleFormat::Cf32Be, SampleFormat::Cf64Le] {
+            for step in [1, 3, 13, 1000] {
+                for max in [1, 5, 64] {
+                    let mut bytes = Vec::new();
+                    fmt.encode(&x, &mut bytes);
+                    bytes.extend_from_slice(&[1, 2, 3]); // an incomplete last sample
+                    let stream = Box::new(Trickle { data: bytes, at: 0, step });
+                    let mut src = RawSource::new(stream, fmt, info());
+                    let got = read_all(&mut src, max);
+                    let case = format!("{fmt} step {step} max {max}");
+                    assert_eq!(got, finite, "{case}");
+                    assert_eq!(src.issues().non_finite, 7, "{case}");
+                    assert_eq!(src.issues().trailing_bytes, 3, "{case}");
+                }
+            }
+        }
     }
 }

@@ -7,7 +7,7 @@
 
 use super::{InputIssues, SampleSource};
 use anyhow::Result;
-use crossbeam_channel::{Sender, TrySendError};
+use crossbeam_channel::{bounded, Sender, TrySendError};
 use num_complex::Complex32;
 use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
 use std::sync::Arc;
@@ -16,10 +16,29 @@ use std::time::{Duration, Instant};
 
 /// A run of consecutive samples; `start` counts samples from the beginning of the input,
 /// dropped ones included.
-#[derive(Clone, Debug)]
+///
+/// A block from the reader goes back to it when dropped, so its buffer is filled again instead
+/// of a new one being allocated (and faulted in) for every block.
+#[derive(Debug)]
 pub struct Block {
     pub start: u64,
     pub samples: Vec<Complex32>,
+    home: Option<Sender<Vec<Complex32>>>,
+}
+
+impl Block {
+    pub fn new(start: u64, samples: Vec<Complex32>) -> Block {
+        Block { start, samples, home: None }
+    }
+}
+
+impl Drop for Block {
+    fn drop(&mut self) {
+        if let Some(home) = &self.home {
+            // A full or closed return queue just means this buffer is freed.
+            let _ = home.try_send(std::mem::take(&mut self.samples));
+        }
+    }
 }
 
 /// Counters shared with whoever displays or logs progress.
@@ -87,6 +106,8 @@ fn run(
     stats: &ReaderStats,
 ) -> Result<()> {
     let rate = src.info().sample_rate_hz;
+    // Buffers come back from dropped blocks; a few more than can be in flight at once.
+    let (home, spare) = bounded::<Vec<Complex32>>(tx.capacity().unwrap_or(8) + 4);
     let mut index = 0u64;
     let started = Instant::now();
     let mut paced_samples = 0u64;
@@ -98,8 +119,10 @@ fn run(
             }
             want = want.min((max - index) as usize);
         }
-        let mut samples = Vec::with_capacity(want);
-        let n = src.read(&mut samples, want)?;
+        let mut samples = spare.try_recv().unwrap_or_default();
+        samples.resize(want, Complex32::default());
+        let n = src.read(&mut samples)?;
+        samples.truncate(n);
         if n == 0 {
             if opts.loop_input && index > 0 && src.rewind().is_ok() {
                 continue;
@@ -114,7 +137,7 @@ fn run(
                 sleep_unless_stopped(due - elapsed, stop);
             }
         }
-        let block = Block { start: index, samples };
+        let block = Block { start: index, samples, home: Some(home.clone()) };
         index += n as u64;
         stats.samples.fetch_add(n as u64, Ordering::Relaxed);
         if opts.drop_when_full {
@@ -145,7 +168,6 @@ fn sleep_unless_stopped(mut d: Duration, stop: &AtomicBool) {
 mod tests {
     use super::*;
     use crate::source::demo::DemoSource;
-    use crossbeam_channel::bounded;
 
     #[test]
     fn a_full_queue_drops_and_counts_live_blocks() {
@@ -183,5 +205,19 @@ mod tests {
         h.join().unwrap().unwrap();
         assert_eq!(next, 10_500);
         assert_eq!(stats.dropped.load(Ordering::SeqCst), 0);
+    }
+
+    #[test]
+    fn a_dropped_block_sends_its_buffer_home() {
+        let (home, spare) = bounded(1);
+        let buf = vec![Complex32::new(0.5, 0.0); 1000];
+        let ptr = buf.as_ptr();
+        drop(Block { start: 0, samples: buf, home: Some(home.clone()) });
+        let back = spare.try_recv().expect("the buffer came back");
+        assert_eq!((back.as_ptr(), back.len()), (ptr, 1000));
+        // With the return queue full the buffer is simply freed.
+        home.try_send(Vec::new()).unwrap();
+        drop(Block { start: 0, samples: back, home: Some(home) });
+        assert!(spare.try_recv().unwrap().is_empty());
     }
 }

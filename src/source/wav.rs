@@ -44,16 +44,18 @@ impl SampleSource for WavSource {
         &self.info
     }
 
-    fn read(&mut self, out: &mut Vec<Complex32>, max: usize) -> Result<usize> {
+    fn read(&mut self, out: &mut [Complex32]) -> Result<usize> {
         let spec = self.reader.spec();
         let label = self.info.label.clone();
-        let before = out.len();
+        let max = out.len();
+        let mut kept = 0;
         let mut pending: Option<f32> = None;
-        let mut take = |v: f32, out: &mut Vec<Complex32>, bad: &mut u64| match pending.take() {
+        let mut take = |v: f32, out: &mut [Complex32], bad: &mut u64| match pending.take() {
             None => pending = Some(v),
             Some(i) => {
                 if i.is_finite() && v.is_finite() {
-                    out.push(Complex32::new(i, v));
+                    out[kept] = Complex32::new(i, v);
+                    kept += 1;
                 } else {
                     *bad += 1;
                 }
@@ -76,7 +78,7 @@ impl SampleSource for WavSource {
             }
         }
         self.issues.non_finite += bad;
-        Ok(out.len() - before)
+        Ok(kept)
     }
 
     fn issues(&self) -> InputIssues {

@@ -189,7 +189,7 @@ mod tests {
         let dsp = DspThread::spawn(rx, 1e6, 0.0, s);
         // 2010 frames of 256 at a hop of 128: 20 full rows and a partial one of 10 frames.
         let n = 2009 * 128 + 256;
-        let block = Block { start: 0, samples: vec![Complex32::new(0.1, 0.0); n] };
+        let block = Block::new(0, vec![Complex32::new(0.1, 0.0); n]);
         tx.send(block).unwrap();
         drop(tx); // end of input
         let t0 = std::time::Instant::now();
@@ -217,7 +217,7 @@ mod tests {
         let dsp = DspThread::spawn(rx, 1e6, 0.0, settings(1000.0));
         dsp.apply(DspSettings { fft_size: 512, ..settings(1000.0) });
         std::thread::sleep(Duration::from_millis(100));
-        tx.send(Block { start: 0, samples: vec![Complex32::new(0.0, 0.1); 4096] }).unwrap();
+        tx.send(Block::new(0, vec![Complex32::new(0.0, 0.1); 4096])).unwrap();
         let r = dsp.rows.recv_timeout(Duration::from_secs(5)).unwrap();
         assert_eq!(r.fft_size, 512);
         drop(tx);
