@@ -3,6 +3,7 @@
 
 use bandwarden::dsp::stft::Stft;
 use bandwarden::dsp::{Engine, EngineConfig, Spectrum, Window, WindowKind};
+use bandwarden::kernels::Kernels;
 use bandwarden::measure::{
     band_power, find_signals, noise_floor, occupied_bandwidth, xdb_bandwidth, Detection,
 };
@@ -28,12 +29,9 @@ fn conversion(c: &mut Criterion) {
     for fmt in SampleFormat::ALL {
         let mut bytes = Vec::new();
         fmt.encode(&samples, &mut bytes);
-        let mut out = Vec::with_capacity(samples.len());
+        let mut out = vec![Complex32::default(); samples.len()];
         g.bench_function(BenchmarkId::from_parameter(fmt.name()), |b| {
-            b.iter(|| {
-                out.clear();
-                black_box(fmt.decode(black_box(&bytes), &mut out));
-            })
+            b.iter(|| black_box(fmt.decode(black_box(&bytes), &mut out)))
         });
     }
     g.finish();
@@ -49,6 +47,29 @@ fn stft(c: &mut Criterion) {
         let mut acc = vec![0.0; n];
         g.bench_function(BenchmarkId::from_parameter(kind.to_string()), |b| {
             b.iter(|| stft.accumulate_power(black_box(&frame), &mut acc))
+        });
+    }
+    g.finish();
+}
+
+/// The loops around the FFT, baseline build against the copy picked for this CPU.
+fn kernels(c: &mut Criterion) {
+    let n = 4096;
+    let x = test_signal(n);
+    let w = Window::new(WindowKind::Hann, n).coeffs;
+    let mut g = c.benchmark_group("kernels_4096");
+    g.throughput(Throughput::Elements(n as u64));
+    for (name, k) in [("baseline", Kernels::baseline()), ("detected", Kernels::detect())] {
+        let mut buf = vec![Complex32::default(); n];
+        let mut power = vec![0.0f32; n];
+        g.bench_function(BenchmarkId::new("window", name), |b| {
+            b.iter(|| k.window(&mut buf, black_box(&x), &w))
+        });
+        g.bench_function(BenchmarkId::new("add_power", name), |b| {
+            b.iter(|| k.add_power(&mut power, black_box(&x)))
+        });
+        g.bench_function(BenchmarkId::new("any_non_finite", name), |b| {
+            b.iter(|| k.any_non_finite(black_box(&x)))
         });
     }
     g.finish();
@@ -86,5 +107,5 @@ fn measurements(c: &mut Criterion) {
     g.finish();
 }
 
-criterion_group!(benches, conversion, stft, measurements);
+criterion_group!(benches, conversion, stft, kernels, measurements);
 criterion_main!(benches);

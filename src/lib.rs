@@ -8,6 +8,7 @@ pub mod app;
 pub mod cli;
 pub mod cmd;
 pub mod dsp;
+pub mod kernels;
 pub mod measure;
 pub mod output;
 pub mod pipeline;

@@ -9,6 +9,7 @@ use super::spectrum::Spectrum;
 use super::stft::{welch_dof, FrameSet, Stft, MAX_FFT, MIN_FFT};
 use super::window::WindowKind;
 use super::worker::{Batch, Team};
+use crate::kernels::Kernels;
 use num_complex::Complex32;
 
 /// How the STFT is cut and averaged.
@@ -65,6 +66,7 @@ pub struct Engine {
     acc_frames: u64,
     acc_first: u64,
     acc_end: u64,
+    kernels: Kernels,
 }
 
 /// Memory the per-group sums may use; bounds the groups of very long transforms.
@@ -88,6 +90,7 @@ impl Engine {
             acc_frames: 0,
             acc_first: 0,
             acc_end: 0,
+            kernels: Kernels::detect(),
         };
         e.size_slots();
         e
@@ -228,9 +231,7 @@ impl Engine {
                 if self.acc_frames == 0 {
                     self.acc_first = origin + (first * hop) as u64;
                 }
-                for (a, p) in self.acc.iter_mut().zip(&self.slots[g * n..(g + 1) * n]) {
-                    *a += *p as f64;
-                }
+                self.kernels.add_wide(&mut self.acc, &self.slots[g * n..(g + 1) * n]);
                 self.acc_frames += (end - first) as u64;
                 self.acc_end = origin + ((end - 1) * hop + n) as u64;
                 if Some(self.acc_frames) == self.cfg.frames_per_output {

@@ -1,6 +1,7 @@
 //! Windowed FFT of one frame, planned once and run without allocation.
 
 use super::window::{Window, WindowKind};
+use crate::kernels::Kernels;
 use num_complex::Complex32;
 use rustfft::{Fft, FftPlanner};
 use std::sync::Arc;
@@ -48,6 +49,7 @@ pub struct Stft {
     fft: Arc<dyn Fft<f32>>,
     buf: Vec<Complex32>,
     scratch: Vec<Complex32>,
+    kernels: Kernels,
 }
 
 impl Stft {
@@ -60,6 +62,7 @@ impl Stft {
             fft,
             buf: vec![Complex32::default(); fft_size],
             scratch,
+            kernels: Kernels::detect(),
         }
     }
 
@@ -87,9 +90,7 @@ impl Stft {
         out.iter_mut().for_each(|p| *p = 0.0);
         for k in first..end {
             self.transform(frames.frame(k));
-            for (p, x) in out.iter_mut().zip(&self.buf) {
-                *p += x.norm_sqr();
-            }
+            self.kernels.add_power(out, &self.buf);
         }
     }
 
@@ -104,9 +105,7 @@ impl Stft {
 
     fn transform(&mut self, frame: &[Complex32]) {
         debug_assert_eq!(frame.len(), self.buf.len());
-        for ((b, s), w) in self.buf.iter_mut().zip(frame).zip(&self.window.coeffs) {
-            *b = s * *w;
-        }
+        self.kernels.window(&mut self.buf, frame, &self.window.coeffs);
         self.fft.process_with_scratch(&mut self.buf, &mut self.scratch);
     }
 }

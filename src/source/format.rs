@@ -13,6 +13,7 @@
 //! Float formats are taken as they are. Non-finite float samples (NaN, ±Inf) are counted and
 //! skipped, never passed to the FFT, where one NaN would poison a whole frame.
 
+use crate::kernels::Kernels;
 use num_complex::Complex32;
 use std::fmt;
 use std::str::FromStr;
@@ -215,12 +216,7 @@ pub fn sample_bytes_mut(samples: &mut [Complex32]) -> &mut [u8] {
 
 /// Moves the finite samples of `samples` to its front, in order; returns how many there are.
 pub fn keep_finite(samples: &mut [Complex32]) -> usize {
-    // Exponent bits all set means NaN or infinity; OR-ing the test over the block vectorises.
-    const EXP: u32 = 0x7f80_0000;
-    let clean = !samples
-        .iter()
-        .fold(false, |bad, s| bad | (s.re.to_bits() & EXP == EXP) | (s.im.to_bits() & EXP == EXP));
-    if clean {
+    if !Kernels::detect().any_non_finite(samples) {
         return samples.len();
     }
     let mut kept = 0;

@@ -1,0 +1,170 @@
+//! The per-sample loops around the FFT, compiled twice on x86-64: once for the baseline
+//! instruction set and once for AVX2, picked at run time (as rustfft picks its own AVX code).
+//! The loops are plain Rust that the compiler vectorises. On the development machine the AVX2
+//! copy windows 4096 samples in 1.32 µs instead of 1.62 µs and sums their power in 1.01 µs
+//! instead of 1.22 µs; the non-finite scan gains nothing measurable but costs nothing either
+//! (`cargo bench --bench dsp -- kernels`).
+
+use num_complex::Complex32;
+
+/// Which copy of the loops this machine runs; detected once, then passed around by value.
+#[derive(Clone, Copy, Debug)]
+pub struct Kernels {
+    #[cfg_attr(not(target_arch = "x86_64"), allow(dead_code))]
+    avx2: bool,
+}
+
+impl Kernels {
+    pub fn detect() -> Kernels {
+        #[cfg(target_arch = "x86_64")]
+        let avx2 = std::arch::is_x86_feature_detected!("avx2");
+        #[cfg(not(target_arch = "x86_64"))]
+        let avx2 = false;
+        Kernels { avx2 }
+    }
+
+    /// The baseline loops only (for tests that compare the two).
+    pub fn baseline() -> Kernels {
+        Kernels { avx2: false }
+    }
+
+    /// `out[i] = x[i] · w[i]`.
+    pub fn window(self, out: &mut [Complex32], x: &[Complex32], w: &[f32]) {
+        #[cfg(target_arch = "x86_64")]
+        if self.avx2 {
+            // SAFETY: `detect` found AVX2 on this CPU.
+            return unsafe { avx2::window(out, x, w) };
+        }
+        window(out, x, w)
+    }
+
+    /// `out[i] += |x[i]|²`.
+    pub fn add_power(self, out: &mut [f32], x: &[Complex32]) {
+        #[cfg(target_arch = "x86_64")]
+        if self.avx2 {
+            // SAFETY: as above.
+            return unsafe { avx2::add_power(out, x) };
+        }
+        add_power(out, x)
+    }
+
+    /// True when some component of some sample is NaN or infinite.
+    pub fn any_non_finite(self, x: &[Complex32]) -> bool {
+        #[cfg(target_arch = "x86_64")]
+        if self.avx2 {
+            // SAFETY: as above.
+            return unsafe { avx2::any_non_finite(x) };
+        }
+        any_non_finite(x)
+    }
+
+    /// `out[i] += x[i]` in f64.
+    pub fn add_wide(self, out: &mut [f64], x: &[f32]) {
+        #[cfg(target_arch = "x86_64")]
+        if self.avx2 {
+            // SAFETY: as above.
+            return unsafe { avx2::add_wide(out, x) };
+        }
+        add_wide(out, x)
+    }
+}
+
+#[inline(always)]
+fn window(out: &mut [Complex32], x: &[Complex32], w: &[f32]) {
+    for ((o, s), w) in out.iter_mut().zip(x).zip(w) {
+        *o = Complex32::new(s.re * w, s.im * w);
+    }
+}
+
+#[inline(always)]
+fn add_power(out: &mut [f32], x: &[Complex32]) {
+    for (p, x) in out.iter_mut().zip(x) {
+        *p += x.re * x.re + x.im * x.im;
+    }
+}
+
+#[inline(always)]
+fn any_non_finite(x: &[Complex32]) -> bool {
+    // Exponent bits all set means NaN or infinity; OR-ing the test over the block vectorises
+    // where an early exit would not.
+    const EXP: u32 = 0x7f80_0000;
+    x.iter()
+        .fold(false, |bad, s| bad | (s.re.to_bits() & EXP == EXP) | (s.im.to_bits() & EXP == EXP))
+}
+
+#[inline(always)]
+fn add_wide(out: &mut [f64], x: &[f32]) {
+    for (a, p) in out.iter_mut().zip(x) {
+        *a += *p as f64;
+    }
+}
+
+#[cfg(target_arch = "x86_64")]
+mod avx2 {
+    use num_complex::Complex32;
+
+    #[target_feature(enable = "avx2")]
+    pub unsafe fn window(out: &mut [Complex32], x: &[Complex32], w: &[f32]) {
+        super::window(out, x, w)
+    }
+
+    #[target_feature(enable = "avx2")]
+    pub unsafe fn add_power(out: &mut [f32], x: &[Complex32]) {
+        super::add_power(out, x)
+    }
+
+    #[target_feature(enable = "avx2")]
+    pub unsafe fn any_non_finite(x: &[Complex32]) -> bool {
+        super::any_non_finite(x)
+    }
+
+    #[target_feature(enable = "avx2")]
+    pub unsafe fn add_wide(out: &mut [f64], x: &[f32]) {
+        super::add_wide(out, x)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::dsp::stft::tests::seeded;
+
+    /// The two copies are the same source compiled twice; they must agree to the last bit,
+    /// because no operation in them is reassociated or fused.
+    #[test]
+    fn the_avx2_copy_agrees_with_the_baseline_bit_for_bit() {
+        let (fast, base) = (Kernels::detect(), Kernels::baseline());
+        for n in [1usize, 7, 64, 1000, 4099] {
+            let x = seeded(n, n as u64);
+            let w: Vec<f32> = (0..n).map(|i| (i as f32 * 0.01).sin()).collect();
+            let (mut a, mut b) = (vec![Complex32::default(); n], vec![Complex32::default(); n]);
+            fast.window(&mut a, &x, &w);
+            base.window(&mut b, &x, &w);
+            assert_eq!(a, b, "window n={n}");
+            let (mut p, mut q) = (vec![0.5f32; n], vec![0.5f32; n]);
+            fast.add_power(&mut p, &x);
+            base.add_power(&mut q, &x);
+            assert_eq!(p, q, "power n={n}");
+            let (mut s, mut t) = (vec![1.0f64; n], vec![1.0f64; n]);
+            fast.add_wide(&mut s, &p);
+            base.add_wide(&mut t, &q);
+            assert_eq!(s, t, "wide n={n}");
+            let mut y = x.clone();
+            assert!(!fast.any_non_finite(&y) && !base.any_non_finite(&y));
+            for bad in [f32::NAN, f32::INFINITY, f32::NEG_INFINITY] {
+                y[n - 1].im = bad;
+                assert!(fast.any_non_finite(&y) && base.any_non_finite(&y), "n={n} {bad}");
+                y[n - 1].im = 0.0;
+            }
+            // Largest finite values and subnormals are finite.
+            y[0] = Complex32::new(f32::MAX, f32::MIN_POSITIVE / 2.0);
+            assert!(!fast.any_non_finite(&y) && !base.any_non_finite(&y));
+            // And they compute what they say: |x|² of the windowed sample, by hand.
+            let i = n / 2;
+            let by_hand = (x[i].re * w[i]).powi(2) + (x[i].im * w[i]).powi(2);
+            let mut one = [0.0f32];
+            base.add_power(&mut one, &a[i..=i]);
+            assert_eq!(one[0], by_hand);
+        }
+    }
+}
