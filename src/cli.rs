@@ -83,6 +83,9 @@ pub struct DspArgs {
     /// Fraction of each FFT frame shared with the next, 0 ..= 0.95.
     #[arg(long, value_name = "FRACTION", default_value_t = 0.5)]
     pub overlap: f64,
+    /// Threads for the transforms [default: one per core]; 1 leaves the other cores free.
+    #[arg(long, value_name = "N", value_parser = clap::value_parser!(u16).range(1..=256))]
+    pub threads: Option<u16>,
 }
 
 impl DspArgs {
@@ -95,6 +98,14 @@ impl DspArgs {
         };
         cfg.validate()?;
         Ok(cfg)
+    }
+
+    /// Transform threads: as asked, else one per core.
+    pub fn threads(&self) -> usize {
+        self.threads.map_or_else(
+            || std::thread::available_parallelism().map_or(1, |n| n.get()),
+            |t| t as usize,
+        )
     }
 }
 
@@ -223,6 +234,8 @@ mod tests {
             "kaiser:7",
             "--overlap",
             "0.75",
+            "--threads",
+            "3",
             "--band",
             "433.9M:100k",
             "--json",
@@ -233,10 +246,12 @@ mod tests {
         assert_eq!(m.source.center, Some(433.92e6));
         assert_eq!(m.dsp.fft_size, 1000);
         assert_eq!(m.dsp.window, WindowKind::Kaiser(7.0));
+        assert_eq!(m.dsp.threads(), 3);
         assert_eq!(m.bands.len(), 1);
         assert!(m.json);
         assert!(Cli::try_parse_from(["bandwarden", "measure", "--window", "gauss"]).is_err());
         assert!(Cli::try_parse_from(["bandwarden", "measure", "--format", "s16"]).is_err());
+        assert!(Cli::try_parse_from(["bandwarden", "measure", "--threads", "0"]).is_err());
     }
 
     #[test]

@@ -115,7 +115,8 @@ pub fn run(args: LogArgs) -> Result<ExitCode> {
     let src = source::open(&args.source.request(Some(args.input.clone())), &mut notes)?;
     notes.iter().for_each(|n| note(n));
     let info = src.info().clone();
-    let setup = Setup::new(&info, &base, &plan, &args.channels, args.interval, args.hang)?;
+    let mut setup = Setup::new(&info, &base, &plan, &args.channels, args.interval, args.hang)?;
+    setup.threads = args.dsp.threads();
     setup.describe(&plan);
 
     let format = if args.csv { LogFormat::Csv } else { LogFormat::JsonLines };
@@ -247,6 +248,8 @@ pub struct Setup {
     pub default_threshold_db: f64,
     pub rbw_hz: f64,
     pub row_dof: f64,
+    /// Transform threads (one per core unless `--threads` says otherwise).
+    pub threads: usize,
 }
 
 impl Setup {
@@ -292,14 +295,15 @@ impl Setup {
             default_threshold_db: args.threshold_db,
             rbw_hz: window.enbw_bins() * bin,
             row_dof: welch_dof(&window, hop, k),
+            threads: std::thread::available_parallelism().map_or(1, |n| n.get()),
         })
     }
 
-    /// The engine for these settings, on every core: frames are independent, and batching them
-    /// delays a row by a few frames at most.
+    /// The engine for these settings on `threads` threads: frames are independent, and batching
+    /// them delays a row by a few frames at most.
     pub fn new_engine(&self) -> Engine {
         let mut e = Engine::new(self.engine.clone(), self.sample_rate_hz, self.center_hz);
-        e.set_threads(std::thread::available_parallelism().map_or(1, |n| n.get()));
+        e.set_threads(self.threads);
         e
     }
 

@@ -27,7 +27,12 @@ pub fn run_default() -> Result<ExitCode> {
     run(MeasureArgs {
         input: None,
         source: InputArgs::default(),
-        dsp: DspArgs { fft_size: 4096, window: crate::dsp::WindowKind::Hann, overlap: 0.5 },
+        dsp: DspArgs {
+            fft_size: 4096,
+            window: crate::dsp::WindowKind::Hann,
+            overlap: 0.5,
+            threads: None,
+        },
         seconds: None,
         peaks: 10,
         bands: Vec::new(),
@@ -64,14 +69,16 @@ pub fn run(args: MeasureArgs) -> Result<ExitCode> {
         None
     } else {
         let (interval, hang) = log::default_durations();
-        Some(log::Setup::new(src.info(), &cfg, &plan, &args.channels, interval, hang)?)
+        let mut setup = log::Setup::new(src.info(), &cfg, &plan, &args.channels, interval, hang)?;
+        setup.threads = args.dsp.threads();
+        Some(setup)
     };
     let input = Input::start(src, ReaderOptions { max_samples, ..Default::default() });
     let info = input.info.clone();
 
     let (spectrum, samples, occupancy) = match &setup {
         None => {
-            let (spectrum, samples) = average_all(&input, cfg.clone());
+            let (spectrum, samples) = average_all(&input, cfg.clone(), args.dsp.threads());
             (spectrum, samples, None)
         }
         Some(setup) => {
@@ -108,9 +115,9 @@ pub fn run(args: MeasureArgs) -> Result<ExitCode> {
 }
 
 /// Runs the DSP over the whole input on this thread; returns the average and the sample count.
-fn average_all(input: &Input, cfg: EngineConfig) -> (Option<Spectrum>, u64) {
+fn average_all(input: &Input, cfg: EngineConfig, threads: usize) -> (Option<Spectrum>, u64) {
     let mut engine = Engine::new(cfg, input.info.sample_rate_hz, input.info.center_hz);
-    engine.set_threads(std::thread::available_parallelism().map_or(1, |n| n.get()));
+    engine.set_threads(threads);
     let mut out = None;
     let mut samples = 0u64;
     for block in input.blocks.iter() {

@@ -115,6 +115,7 @@ pub fn run(args: WatchArgs) -> Result<ExitCode> {
         window: args.dsp.window,
         overlap: args.dsp.overlap,
         row_rate: args.row_rate,
+        threads: args.dsp.threads(),
     };
     let plan = Plan::from_args(args.plan.as_deref(), &args.channels)?;
     let mut notes = Vec::new();

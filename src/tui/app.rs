@@ -621,7 +621,13 @@ mod tests {
     }
 
     fn settings() -> DspSettings {
-        DspSettings { fft_size: 1024, window: WindowKind::Hann, overlap: 0.5, row_rate: 20.0 }
+        DspSettings {
+            fft_size: 1024,
+            window: WindowKind::Hann,
+            overlap: 0.5,
+            row_rate: 20.0,
+            threads: 1,
+        }
     }
 
     /// A row with a flat floor of `floor` (FS²/Hz, before scaling) and a tone in FFT bin `k`.

@@ -25,9 +25,17 @@ pub struct DspSettings {
     pub overlap: f64,
     /// Waterfall rows per second of input.
     pub row_rate: f64,
+    /// Transform threads.
+    pub threads: usize,
 }
 
 impl DspSettings {
+    fn new_engine(&self, sample_rate_hz: f64, center_hz: f64) -> Engine {
+        let mut e = Engine::new(self.engine(sample_rate_hz), sample_rate_hz, center_hz);
+        e.set_threads(self.threads);
+        e
+    }
+
     /// The engine configuration that averages enough frames for one row at `sample_rate_hz`.
     pub fn engine(&self, sample_rate_hz: f64) -> EngineConfig {
         let mut cfg = EngineConfig {
@@ -68,7 +76,7 @@ impl DspThread {
             rows: row_tx,
             oldest: row_rx.clone(),
             skipped: skipped.clone(),
-            engine: Engine::new(settings.engine(sample_rate_hz), sample_rate_hz, center_hz),
+            engine: settings.new_engine(sample_rate_hz, center_hz),
             sample_rate_hz,
             center_hz,
         };
@@ -127,11 +135,7 @@ impl Worker {
                 },
                 recv(control) -> msg => match msg {
                     Ok(settings) => {
-                        self.engine = Engine::new(
-                            settings.engine(self.sample_rate_hz),
-                            self.sample_rate_hz,
-                            self.center_hz,
-                        );
+                        self.engine = settings.new_engine(self.sample_rate_hz, self.center_hz);
                     }
                     Err(_) => return,
                 },
@@ -170,7 +174,7 @@ mod tests {
     use num_complex::Complex32;
 
     fn settings(row_rate: f64) -> DspSettings {
-        DspSettings { fft_size: 256, window: WindowKind::Hann, overlap: 0.5, row_rate }
+        DspSettings { fft_size: 256, window: WindowKind::Hann, overlap: 0.5, row_rate, threads: 1 }
     }
 
     #[test]

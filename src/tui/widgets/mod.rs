@@ -163,8 +163,13 @@ mod tests {
             speed: Some(1.0),
             looping: false,
         };
-        let settings =
-            DspSettings { fft_size: 1024, window: WindowKind::Hann, overlap: 0.5, row_rate: 20.0 };
+        let settings = DspSettings {
+            fft_size: 1024,
+            window: WindowKind::Hann,
+            overlap: 0.5,
+            row_rate: 20.0,
+            threads: 1,
+        };
         let mut a = App::new(source, settings, Depth::TrueColour, None, channels, Instant::now());
         for _ in 0..30 {
             a.push_row(row());
