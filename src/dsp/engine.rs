@@ -72,6 +72,11 @@ pub struct Engine {
 /// Memory the per-group sums may use; bounds the groups of very long transforms.
 const SLOT_BYTES: usize = 8 << 20;
 
+/// Groups per batch: enough that a thread held up (by the reader, say) hands work to the
+/// others on machines of two to four cores. Fixed, not tied to the thread count, so that the
+/// sums do not depend on it.
+pub const GROUPS: usize = 8;
+
 impl Engine {
     pub fn new(cfg: EngineConfig, sample_rate_hz: f64, center_hz: f64) -> Engine {
         let stft = Stft::new(cfg.fft_size, cfg.window);
@@ -98,24 +103,21 @@ impl Engine {
 
     /// Spreads the frames over `threads` threads, the extra ones long-lived helpers. Frames are
     /// independent: each batch is cut into groups that the threads take in turn, and the groups'
-    /// sums are added in a fixed order, so the result does not depend on scheduling. With more
-    /// than one thread, frames are gathered until there are at least two per thread, which
-    /// delays an output by at most that many frames.
+    /// sums are added in a fixed order. How batches are cut depends only on the input, so the
+    /// result is the same, to the bit, for any number of threads and any scheduling. More than
+    /// [`GROUPS`] threads bring nothing.
     pub fn set_threads(&mut self, threads: usize) {
         let helpers = threads.max(1) - 1;
         if helpers != self.team.helpers() {
             self.team = Team::new(helpers, self.cfg.fft_size, self.cfg.window);
-            self.size_slots();
         }
     }
 
-    /// Four groups per thread let a thread that is held up (by the reader, say) hand work to
-    /// the others; very long transforms get fewer so the sums stay within [`SLOT_BYTES`].
+    /// Room for [`GROUPS`] group sums, fewer for very long transforms so they stay within
+    /// [`SLOT_BYTES`].
     fn size_slots(&mut self) {
         let n = self.cfg.fft_size;
-        let wanted = (4 * self.threads()).max(8);
-        let fit = (SLOT_BYTES / (4 * n)).max(self.threads());
-        let count = wanted.min(fit);
+        let count = GROUPS.min((SLOT_BYTES / (4 * n)).max(1));
         self.slots = vec![0.0; count * n];
         self.groups = Vec::with_capacity(count);
     }
@@ -129,15 +131,11 @@ impl Engine {
         &self.cfg
     }
 
-    /// Frames to gather before transforming: two per thread amortise waking the helpers; very
-    /// long frames need only one each, and holding more would cost memory (a 1M-point frame is
-    /// 8 MiB).
+    /// Frames to gather before transforming: one per group, so every thread has work when the
+    /// helpers are woken. This delays an output by at most that many frames (8, or 2 of 1M
+    /// points).
     fn min_batch(&self) -> usize {
-        match self.threads() {
-            1 => 1,
-            t if self.cfg.fft_size >= 65536 => t,
-            t => 2 * t,
-        }
+        self.slots.len() / self.cfg.fft_size
     }
 
     /// Feeds samples whose first has index `start`; calls `emit` for each finished spectrum.
@@ -288,6 +286,7 @@ mod tests {
         let mut whole = Vec::new();
         let mut e = Engine::new(cfg(256, 0.5, Some(4)), 1e6, 0.0);
         e.push(0, &x, &mut |s| whole.push(s));
+        e.finish(&mut |s| whole.push(s));
         let mut pieces = Vec::new();
         let mut e2 = Engine::new(cfg(256, 0.5, Some(4)), 1e6, 0.0);
         let mut start = 0u64;
@@ -295,9 +294,11 @@ mod tests {
             e2.push(start, chunk, &mut |s| pieces.push(s));
             start += chunk.len() as u64;
         }
+        e2.finish(&mut |s| pieces.push(s));
         assert_eq!(whole.len(), pieces.len());
-        // (10000 − 256)/128 + 1 = 77 frames → 19 outputs of 4.
-        assert_eq!(whole.len(), 19);
+        // (10000 − 256)/128 + 1 = 77 frames → 19 outputs of 4 and one of the last frame.
+        assert_eq!(whole.len(), 20);
+        assert_eq!(whole[19].frames, 1);
         for (a, b) in whole.iter().zip(&pieces) {
             assert_eq!(a.first_sample, b.first_sample);
             // Frames are summed in f32 batches whose grouping follows the blocks, so the
@@ -331,10 +332,8 @@ mod tests {
                     (a.frames, a.first_sample, a.end_sample),
                     (b.frames, b.first_sample, b.end_sample)
                 );
-                // Same f32 batch rounding as above.
-                for (p, q) in a.psd.iter().zip(&b.psd) {
-                    assert!((p - q).abs() <= 1e-5 * p.abs().max(1e-30), "k={k:?}: {p} vs {q}");
-                }
+                // Batches are cut the same way whatever the thread count: equal to the bit.
+                assert_eq!(a.psd, b.psd, "k={k:?}");
             }
         }
     }
@@ -371,15 +370,17 @@ mod tests {
             let c = cfg(128, overlap, k);
             let reference = frame_by_frame(&x, &c);
             let w = Window::new(c.window, c.fft_size);
+            let mut cuts = vec![0];
+            while *cuts.last().unwrap() < x.len() {
+                cuts.push((cuts.last().unwrap() + next_len()).min(x.len()));
+            }
+            let mut first_run: Option<Vec<Spectrum>> = None;
             for threads in [1, 2, 3] {
                 let mut out = Vec::new();
                 let mut e = Engine::new(c.clone(), 1e6, 0.0);
                 e.set_threads(threads);
-                let mut at = 0;
-                while at < x.len() {
-                    let len = next_len().min(x.len() - at);
-                    e.push(at as u64, &x[at..at + len], &mut |s| out.push(s));
-                    at += len;
+                for w in cuts.windows(2) {
+                    e.push(w[0] as u64, &x[w[0]..w[1]], &mut |s| out.push(s));
                 }
                 e.finish(&mut |s| out.push(s));
                 assert_eq!(out.len(), reference.len(), "overlap {overlap} k {k:?} t {threads}");
@@ -390,6 +391,15 @@ mod tests {
                         Spectrum::from_power_sum(acc, frames, got.dof, &w, 1e6, 0.0, *first, *end);
                     for (p, q) in got.psd.iter().zip(&want.psd) {
                         assert!((p - q).abs() <= 1e-5 * q.abs(), "t {threads}: {p} vs {q}");
+                    }
+                }
+                // The same blocks give the same sums to the bit on any number of threads.
+                let psd: Vec<_> = out.iter().map(|s| s.psd.clone()).collect();
+                match &first_run {
+                    None => first_run = Some(out),
+                    Some(one) => {
+                        let one: Vec<_> = one.iter().map(|s| s.psd.clone()).collect();
+                        assert!(one == psd, "overlap {overlap} k {k:?}: {threads} threads differ");
                     }
                 }
             }
