@@ -61,7 +61,8 @@ fn frames_allocate_nothing() {
         assert_eq!(n, 0, "{kind}: {n} allocations in 100 frames");
     }
 
-    // The engine on one thread with no output due: blocks of equal size reuse the pending buffer.
+    // The engine on one thread with no output due: frames are taken from the blocks, and the tail
+    // that carries frames across blocks keeps its capacity.
     let cfg = EngineConfig {
         fft_size: 1024,
         window: WindowKind::Hann,
@@ -83,8 +84,8 @@ fn frames_allocate_nothing() {
     });
     assert_eq!(n, 0, "engine: {n} allocations over 50 blocks (~1600 frames)");
 
-    // On two threads: the worker's accumulator travels with each job, so batches allocate
-    // nothing either.
+    // On two threads: group sums live in slots sized once, and helpers are handed each batch by
+    // address over bounded channels, so batches allocate nothing either.
     engine.set_threads(2);
     for _ in 0..4 {
         engine.push(start, &block, &mut |_| {});

@@ -41,6 +41,9 @@ impl Drop for Block {
     }
 }
 
+/// Returned buffers kept for reuse.
+const SPARE_BLOCKS: usize = 4;
+
 /// Counters shared with whoever displays or logs progress.
 #[derive(Debug, Default)]
 pub struct ReaderStats {
@@ -106,8 +109,9 @@ fn run(
     stats: &ReaderStats,
 ) -> Result<()> {
     let rate = src.info().sample_rate_hz;
-    // Buffers come back from dropped blocks; a few more than can be in flight at once.
-    let (home, spare) = bounded::<Vec<Complex32>>(tx.capacity().unwrap_or(8) + 4);
+    // Buffers come back from dropped blocks. A consumer that keeps up needs only a couple; more
+    // are freed on return, so a backlog that has cleared does not stay resident.
+    let (home, spare) = bounded::<Vec<Complex32>>(SPARE_BLOCKS);
     let mut index = 0u64;
     let started = Instant::now();
     let mut paced_samples = 0u64;
