@@ -105,9 +105,9 @@ impl Engine {
     /// independent: each batch is cut into groups that the threads take in turn, and the groups'
     /// sums are added in a fixed order. How batches are cut depends only on the input, so the
     /// result is the same, to the bit, for any number of threads and any scheduling. More than
-    /// [`GROUPS`] threads bring nothing.
+    /// [`GROUPS`] threads would find nothing to do, so no more are started.
     pub fn set_threads(&mut self, threads: usize) {
-        let helpers = threads.max(1) - 1;
+        let helpers = threads.clamp(1, GROUPS) - 1;
         if helpers != self.team.helpers() {
             self.team = Team::new(helpers, self.cfg.fft_size, self.cfg.window);
         }
