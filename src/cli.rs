@@ -83,7 +83,8 @@ pub struct DspArgs {
     /// Fraction of each FFT frame shared with the next, 0 ..= 0.95.
     #[arg(long, value_name = "FRACTION", default_value_t = 0.5)]
     pub overlap: f64,
-    /// Threads for the transforms [default: one per core]; 1 leaves the other cores free.
+    /// Threads for the transforms [default: one per core, at most 8]; 1 leaves the other cores
+    /// free.
     #[arg(long, value_name = "N", value_parser = clap::value_parser!(u16).range(1..=256))]
     pub threads: Option<u16>,
 }

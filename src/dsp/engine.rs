@@ -132,10 +132,11 @@ impl Engine {
     }
 
     /// Frames to gather before transforming: one per group, so every thread has work when the
-    /// helpers are woken. This delays an output by at most that many frames (8, or 2 of 1M
-    /// points).
+    /// helpers are woken, but never more than one output's worth, so a spectrum is emitted as
+    /// soon as its last frame arrives (a slow input in `watch` must not wait for 8 frames).
     fn min_batch(&self) -> usize {
-        self.slots.len() / self.cfg.fft_size
+        let groups = self.slots.len() / self.cfg.fft_size;
+        self.cfg.frames_per_output.map_or(groups, |k| groups.min(k as usize))
     }
 
     /// Feeds samples whose first has index `start`; calls `emit` for each finished spectrum.
@@ -403,6 +404,20 @@ mod tests {
                     }
                 }
             }
+        }
+    }
+
+    #[test]
+    fn an_output_is_emitted_as_soon_as_its_last_frame_arrives() {
+        // One frame per output, fed one hop at a time as a slow live input would deliver it.
+        let x = seeded(256 * 6, 8);
+        let mut e = Engine::new(cfg(256, 0.5, Some(1)), 48e3, 0.0);
+        e.set_threads(2);
+        let mut out = Vec::new();
+        for (i, hop) in x.chunks(128).enumerate() {
+            e.push(i as u64 * 128, hop, &mut |s| out.push(s));
+            // After chunk i, frames 0 ..= i − 1 are complete.
+            assert_eq!(out.len(), i, "after {} samples", (i + 1) * 128);
         }
     }
 
