@@ -61,6 +61,12 @@ pub fn report_input_issues(issues: &crate::source::InputIssues) {
     if issues.non_finite > 0 {
         note(&format!("skipped {} samples holding NaN or infinity", issues.non_finite));
     }
+    if issues.beyond_scale > 0 {
+        note(&format!(
+            "{} float samples lie beyond ±1e6 while full scale is ±1: the input is probably not in the format it was read as; check --format",
+            issues.beyond_scale
+        ));
+    }
     if issues.trailing_bytes > 0 {
         note(&format!(
             "dropped {} bytes at the end that do not make a whole sample (wrong --format, or a cut file?)",

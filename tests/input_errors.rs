@@ -94,6 +94,15 @@ fn non_finite_samples_are_counted_and_skipped() {
 }
 
 #[test]
+fn bytes_read_in_the_wrong_format_are_named_as_the_likely_cause() {
+    // The shipped cu8 recording read as cf32_le: many floats near 3e38, whose squares overflow.
+    let data = concat!(env!("CARGO_MANIFEST_DIR"), "/recordings/wrenhollow-demo.sigmf-data");
+    let o = bin().args(["measure", data, "--format", "cf32_le", "--rate", "1M"]).output().unwrap();
+    assert_refused(&o, &["overflowed", "probably not cf32_le", "--format"]);
+    assert!(stderr(&o).contains("beyond ±1e6 while full scale is ±1"), "{}", stderr(&o));
+}
+
+#[test]
 fn missing_rate_is_refused() {
     let p = write_samples("e.cu8", SampleFormat::Cu8, &tone(4096), &[]);
     let o = bin().args(["measure"]).arg(&p).output().unwrap();

@@ -102,6 +102,14 @@ pub fn run(args: MeasureArgs) -> Result<ExitCode> {
             cfg.fft_size
         );
     };
+    if spectrum.psd.iter().any(|p| !p.is_finite()) {
+        bail!(
+            "the spectrum of '{}' overflowed: {} samples are too large to square (float input should lie within ±1); the input is probably not {}; check --format",
+            info.label,
+            issues.beyond_scale,
+            info.format.map_or("in the format it was read as".to_string(), |f| f.to_string())
+        );
+    }
     let mut report = build_report(&args, &info.label, &spectrum, samples, &issues, dropped)?;
     if let Some((occupancy, dwell_s)) = occupancy {
         report.channels = channel_rows(&plan, &spectrum, &occupancy, dwell_s, args.obw_percent);
@@ -194,6 +202,7 @@ fn build_report(
         channels: Vec::new(),
         input_issues: IssuesRow {
             non_finite_samples: issues.non_finite,
+            beyond_scale_samples: issues.beyond_scale,
             trailing_bytes: issues.trailing_bytes,
             dropped_samples: dropped,
         },

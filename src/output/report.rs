@@ -77,6 +77,8 @@ pub struct ChannelRow {
 #[derive(Serialize, Debug, Clone, Default)]
 pub struct IssuesRow {
     pub non_finite_samples: u64,
+    /// Float samples beyond ±1e6, a sign of a wrong `--format`.
+    pub beyond_scale_samples: u64,
     pub trailing_bytes: u64,
     pub dropped_samples: u64,
 }
@@ -194,12 +196,13 @@ impl Report {
             }
         }
         let i = &self.input_issues;
-        if i.non_finite_samples + i.trailing_bytes + i.dropped_samples > 0 {
+        if i.non_finite_samples + i.beyond_scale_samples + i.trailing_bytes + i.dropped_samples > 0
+        {
             let _ = writeln!(s);
             let _ = writeln!(
                 s,
-                "input      {} non-finite samples skipped, {} trailing bytes dropped, {} samples dropped",
-                i.non_finite_samples, i.trailing_bytes, i.dropped_samples
+                "input      {} non-finite samples skipped, {} beyond full scale, {} trailing bytes dropped, {} samples dropped",
+                i.non_finite_samples, i.beyond_scale_samples, i.trailing_bytes, i.dropped_samples
             );
         }
         s

@@ -86,8 +86,9 @@ impl SampleFormat {
 
     /// Decodes whole samples from `bytes` (whose length must be a multiple of
     /// [`bytes_per_sample`](Self::bytes_per_sample)) into the start of `out`, which must have
-    /// room for them. Non-finite samples are skipped; returns how many samples were kept.
-    pub fn decode(self, bytes: &[u8], out: &mut [Complex32]) -> usize {
+    /// room for them. Non-finite samples are skipped and samples far beyond full scale counted
+    /// (see [`screen`]); integer formats cannot produce either.
+    pub fn decode(self, bytes: &[u8], out: &mut [Complex32]) -> Screened {
         let bps = self.bytes_per_sample();
         debug_assert_eq!(bytes.len() % bps, 0);
         let count = bytes.len() / bps;
@@ -98,14 +99,14 @@ impl SampleFormat {
                 fill_from(out, bytes, bps, |c: &[u8]| {
                     Complex32::new((c[0] as f32 - 127.5) * SCALE, (c[1] as f32 - 127.5) * SCALE)
                 });
-                return count;
+                return Screened { kept: count, beyond_scale: 0 };
             }
             SampleFormat::Ci8 => {
                 const SCALE: f32 = 1.0 / 128.0;
                 fill_from(out, bytes, bps, |c: &[u8]| {
                     Complex32::new(c[0] as i8 as f32 * SCALE, c[1] as i8 as f32 * SCALE)
                 });
-                return count;
+                return Screened { kept: count, beyond_scale: 0 };
             }
             SampleFormat::Ci16Le | SampleFormat::Ci16Be => {
                 const SCALE: f32 = 1.0 / 32768.0;
@@ -117,14 +118,14 @@ impl SampleFormat {
                 fill_from(out, bytes, bps, |c: &[u8]| {
                     Complex32::new(get(&c[0..2]) * SCALE, get(&c[2..4]) * SCALE)
                 });
-                return count;
+                return Screened { kept: count, beyond_scale: 0 };
             }
             SampleFormat::Ci32Le => {
                 const SCALE: f64 = 1.0 / 2147483648.0;
                 let get =
                     |b: &[u8]| (i32::from_le_bytes([b[0], b[1], b[2], b[3]]) as f64 * SCALE) as f32;
                 fill_from(out, bytes, bps, |c: &[u8]| Complex32::new(get(&c[0..4]), get(&c[4..8])));
-                return count;
+                return Screened { kept: count, beyond_scale: 0 };
             }
             _ if self.is_native() => sample_bytes_mut(out).copy_from_slice(bytes),
             SampleFormat::Cf32Le | SampleFormat::Cf32Be => {
@@ -148,7 +149,7 @@ impl SampleFormat {
                 });
             }
         }
-        keep_finite(out)
+        screen(out)
     }
 
     /// Encodes samples in this format (used by `bandwarden demo` and by tests). Values outside
@@ -214,20 +215,37 @@ pub fn sample_bytes_mut(samples: &mut [Complex32]) -> &mut [u8] {
     unsafe { std::slice::from_raw_parts_mut(samples.as_mut_ptr().cast::<u8>(), samples.len() * 8) }
 }
 
-/// Moves the finite samples of `samples` to its front, in order; returns how many there are.
-pub fn keep_finite(samples: &mut [Complex32]) -> usize {
-    if !Kernels::detect().any_non_finite(samples) {
-        return samples.len();
+/// Float samples are expected within about ±1 (full scale). A component this large is not a
+/// strong signal but a sign that the bytes are in another format than they were read as (cu8
+/// read as cf32_le gives values near 1e38, whose squares overflow the spectrum).
+pub const BEYOND_SCALE: f32 = 1e6;
+
+/// What screening a block of float samples found.
+#[derive(Clone, Copy, Debug, Default, PartialEq)]
+pub struct Screened {
+    /// Samples kept (at the front of the block).
+    pub kept: usize,
+    /// Kept samples with a component of magnitude [`BEYOND_SCALE`] or more.
+    pub beyond_scale: u64,
+}
+
+/// Moves the finite samples of `samples` to its front, in order, and counts those beyond scale.
+pub fn screen(samples: &mut [Complex32]) -> Screened {
+    if !Kernels::detect().any_outside(samples, BEYOND_SCALE) {
+        return Screened { kept: samples.len(), beyond_scale: 0 };
     }
-    let mut kept = 0;
+    let mut out = Screened::default();
     for i in 0..samples.len() {
         let s = samples[i];
         if s.re.is_finite() && s.im.is_finite() {
-            samples[kept] = s;
-            kept += 1;
+            samples[out.kept] = s;
+            out.kept += 1;
+            if s.re.abs().max(s.im.abs()) >= BEYOND_SCALE {
+                out.beyond_scale += 1;
+            }
         }
     }
-    kept
+    out
 }
 
 impl fmt::Display for SampleFormat {
@@ -255,7 +273,7 @@ mod tests {
     /// Decodes `bytes` into a fresh buffer, returning only the kept samples.
     fn decoded(fmt: SampleFormat, bytes: &[u8]) -> Vec<Complex32> {
         let mut out = vec![Complex32::default(); bytes.len() / fmt.bytes_per_sample()];
-        let kept = fmt.decode(bytes, &mut out);
+        let kept = fmt.decode(bytes, &mut out).kept;
         out.truncate(kept);
         out
     }
@@ -308,6 +326,18 @@ mod tests {
             fmt.encode(&x, &mut bytes);
             assert_eq!(decoded(fmt, &bytes), vec![x[0], x[3]], "{fmt}");
         }
+    }
+
+    #[test]
+    fn floats_far_beyond_full_scale_are_kept_but_counted() {
+        // cu8 bytes read as cf32_le: 0x7f7f7f7f is about 3.4e38.
+        let bytes = [0x7f, 0x7f, 0x7f, 0x7f, 0, 0, 0, 0, 0, 0, 0x80, 0x3e, 0, 0, 0, 0];
+        let mut out = vec![Complex32::default(); 2];
+        let got = SampleFormat::Cf32Le.decode(&bytes, &mut out);
+        assert_eq!(got, Screened { kept: 2, beyond_scale: 1 });
+        assert_eq!(out[1], Complex32::new(0.25, 0.0));
+        let mut loud = [Complex32::new(0.0, -2e6), Complex32::new(f32::NAN, 5e6)];
+        assert_eq!(screen(&mut loud), Screened { kept: 1, beyond_scale: 1 });
     }
 
     #[test]

@@ -41,6 +41,9 @@ pub struct InputIssues {
     pub non_finite: u64,
     /// Bytes at the end that did not make a whole sample, dropped.
     pub trailing_bytes: u64,
+    /// Float samples with a component beyond ±1e6 (full scale is ±1), kept but a sign of a
+    /// wrong `--format` (see [`format::BEYOND_SCALE`]).
+    pub beyond_scale: u64,
 }
 
 /// A stream of samples.

@@ -120,17 +120,19 @@ impl RawSource {
             }
             // An incomplete last sample waits at the start of `bytes` for the next call.
             let rest = whole * bps..have;
-            let kept = if native {
+            let screened = if native {
                 let bytes = format::sample_bytes_mut(out);
                 self.bytes[..rest.len()].copy_from_slice(&bytes[rest.clone()]);
-                format::keep_finite(&mut out[..whole])
+                format::screen(&mut out[..whole])
             } else {
-                let kept = self.format.decode(&self.bytes[..whole * bps], out);
+                let screened = self.format.decode(&self.bytes[..whole * bps], out);
                 self.bytes.copy_within(rest.clone(), 0);
-                kept
+                screened
             };
+            let kept = screened.kept;
             self.carry = rest.len();
             self.issues.non_finite += (whole - kept) as u64;
+            self.issues.beyond_scale += screened.beyond_scale;
             if kept > 0 {
                 return Ok(kept);
             }
