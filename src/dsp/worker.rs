@@ -5,12 +5,12 @@
 //! thread that the reader or the scheduler slows down simply takes fewer groups; the engine then
 //! folds the slots in group order, so the totals do not depend on who computed what. Starting a
 //! scoped thread per batch cost about as much as transforming a few frames; threads started once
-//! and woken over channels do not, and nothing is allocated per batch.
+//! and woken through a mailbox do not, and nothing is allocated per batch.
 
 use super::stft::{FrameSet, Stft};
 use super::window::WindowKind;
-use crossbeam_channel::{bounded, Receiver, Sender};
 use std::sync::atomic::{AtomicUsize, Ordering};
+use std::sync::{Arc, Condvar, Mutex};
 use std::thread::JoinHandle;
 
 /// One batch: groups of frames (`first .. end` of `frames`) and where each group's sum goes.
@@ -44,6 +44,7 @@ impl<'a> Batch<'a> {
 }
 
 /// A batch handed to a helper thread by address.
+#[derive(Clone, Copy)]
 struct Job(*const Batch<'static>);
 
 // SAFETY: the batch lives on the engine's stack and stays there, unchanged except through its
@@ -51,9 +52,54 @@ struct Job(*const Batch<'static>);
 // answer, even while unwinding). Every field it points to is `Sync` data.
 unsafe impl Send for Job {}
 
+/// What a helper's mailbox holds. A mutex and a condition variable (futexes on Linux) hand
+/// batches over without allocating, not even the first time a thread has to sleep, which
+/// channels do lazily (and `tests/no_alloc.rs` would catch).
+enum Mail {
+    Empty,
+    Job(Job),
+    Working,
+    Done,
+    /// The helper should end.
+    Quit,
+    /// The helper ended by panicking.
+    Dead,
+}
+
+struct Mailbox {
+    mail: Mutex<Mail>,
+    changed: Condvar,
+}
+
+impl Mailbox {
+    /// Hands a job over; false if the helper has died.
+    fn post(&self, job: Job) -> bool {
+        let mut mail = self.mail.lock().unwrap_or_else(|e| e.into_inner());
+        if matches!(*mail, Mail::Dead) {
+            return false;
+        }
+        *mail = Mail::Job(job);
+        drop(mail);
+        self.changed.notify_all();
+        true
+    }
+
+    fn put(&self, mail: Mail) {
+        *self.mail.lock().unwrap_or_else(|e| e.into_inner()) = mail;
+        self.changed.notify_all();
+    }
+
+    /// Waits until `ready` accepts the mail, then replaces it with `next` and returns the old.
+    fn take(&self, ready: impl Fn(&Mail) -> bool, next: Mail) -> Mail {
+        let guard = self.mail.lock().unwrap_or_else(|e| e.into_inner());
+        let mut guard =
+            self.changed.wait_while(guard, |m| !ready(m)).unwrap_or_else(|e| e.into_inner());
+        std::mem::replace(&mut *guard, next)
+    }
+}
+
 struct Member {
-    jobs: Option<Sender<Job>>,
-    done: Receiver<()>,
+    mailbox: Arc<Mailbox>,
     handle: Option<JoinHandle<()>>,
 }
 
@@ -66,23 +112,14 @@ impl Team {
     pub fn new(helpers: usize, fft_size: usize, window: WindowKind) -> Team {
         let members = (0..helpers)
             .map(|_| {
-                let (job_tx, job_rx) = bounded::<Job>(1);
-                let (done_tx, done_rx) = bounded(1);
+                let mailbox =
+                    Arc::new(Mailbox { mail: Mutex::new(Mail::Empty), changed: Condvar::new() });
+                let own = mailbox.clone();
                 let handle = std::thread::Builder::new()
                     .name("dsp-worker".into())
-                    .spawn(move || {
-                        let mut stft = Stft::new(fft_size, window);
-                        for job in job_rx.iter() {
-                            // SAFETY: see `Job`.
-                            let batch = unsafe { &*job.0 };
-                            batch.work(&mut stft);
-                            if done_tx.send(()).is_err() {
-                                break;
-                            }
-                        }
-                    })
+                    .spawn(move || helper(&own, fft_size, window))
                     .expect("spawning a DSP worker thread");
-                Member { jobs: Some(job_tx), done: done_rx, handle: Some(handle) }
+                Member { mailbox, handle: Some(handle) }
             })
             .collect();
         Team { members }
@@ -98,13 +135,39 @@ impl Team {
         // Helpers are only worth waking when there is more than one group.
         let wake = if batch.groups.len() > 1 { self.members.len() } else { 0 };
         let mut guard = Waiting { members: &self.members[..0] };
-        for (i, m) in self.members[..wake].iter().enumerate() {
+        for i in 0..wake {
             let job = Job(std::ptr::from_ref(batch).cast());
-            m.jobs.as_ref().expect("team is running").send(job).expect("DSP worker thread ended");
+            assert!(self.members[i].mailbox.post(job), "DSP worker thread ended");
             guard.members = &self.members[..=i];
         }
         batch.work(stft);
         drop(guard);
+    }
+}
+
+/// A helper thread's life: take a batch, work on it, report, until told to quit.
+fn helper(mailbox: &Mailbox, fft_size: usize, window: WindowKind) {
+    /// Tells the engine if this thread dies while it may be waiting for us.
+    struct Obituary<'a>(&'a Mailbox);
+    impl Drop for Obituary<'_> {
+        fn drop(&mut self) {
+            if std::thread::panicking() {
+                self.0.put(Mail::Dead);
+            }
+        }
+    }
+    let _obituary = Obituary(mailbox);
+    let mut stft = Stft::new(fft_size, window);
+    loop {
+        match mailbox.take(|m| matches!(m, Mail::Job(_) | Mail::Quit), Mail::Working) {
+            Mail::Job(job) => {
+                // SAFETY: see `Job`.
+                let batch = unsafe { &*job.0 };
+                batch.work(&mut stft);
+                mailbox.put(Mail::Done);
+            }
+            _ => return,
+        }
     }
 }
 
@@ -117,8 +180,12 @@ struct Waiting<'a> {
 impl Drop for Waiting<'_> {
     fn drop(&mut self) {
         for m in self.members {
-            if m.done.recv().is_err() && !std::thread::panicking() {
-                panic!("DSP worker thread ended");
+            let answer = m.mailbox.take(|m| matches!(m, Mail::Done | Mail::Dead), Mail::Empty);
+            if matches!(answer, Mail::Dead) {
+                m.mailbox.put(Mail::Dead);
+                if !std::thread::panicking() {
+                    panic!("DSP worker thread ended");
+                }
             }
         }
     }
@@ -126,8 +193,13 @@ impl Drop for Waiting<'_> {
 
 impl Drop for Team {
     fn drop(&mut self) {
-        for m in &mut self.members {
-            m.jobs.take();
+        for m in &self.members {
+            let mut mail = m.mailbox.mail.lock().unwrap_or_else(|e| e.into_inner());
+            if !matches!(*mail, Mail::Dead) {
+                *mail = Mail::Quit;
+            }
+            drop(mail);
+            m.mailbox.changed.notify_all();
         }
         for m in &mut self.members {
             if let Some(h) = m.handle.take() {
