@@ -41,6 +41,16 @@ fn counted(f: impl FnOnce()) -> usize {
     ALLOCATIONS.load(Ordering::SeqCst)
 }
 
+/// Feeds 4 blocks to warm the engine up, then counts the allocations of the next 50.
+fn warm_then_count(engine: &mut Engine, block: &[Complex32], start: &mut u64) -> usize {
+    let mut feed = |engine: &mut Engine| {
+        engine.push(*start, block, &mut |_| {});
+        *start += block.len() as u64;
+    };
+    (0..4).for_each(|_| feed(engine));
+    counted(|| (0..50).for_each(|_| feed(engine)))
+}
+
 fn signal(n: usize) -> Vec<Complex32> {
     (0..n).map(|i| Complex32::from_polar(0.5, i as f32 * 0.1)).collect()
 }
@@ -77,30 +87,12 @@ fn frames_allocate_nothing() {
     let mut engine = Engine::new(cfg, 1e6, 0.0);
     let block = signal(16384);
     let mut start = 0;
-    for _ in 0..4 {
-        engine.push(start, &block, &mut |_| {});
-        start += block.len() as u64;
-    }
-    let n = counted(|| {
-        for _ in 0..50 {
-            engine.push(start, &block, &mut |_| {});
-            start += block.len() as u64;
-        }
-    });
+    let n = warm_then_count(&mut engine, &block, &mut start);
     assert_eq!(n, 0, "engine: {n} allocations over 50 blocks (~1600 frames)");
 
     // On two threads: group sums live in slots sized once, and helpers are handed each batch by
-    // address over bounded channels, so batches allocate nothing either.
+    // address through a mailbox, so batches allocate nothing either.
     engine.set_threads(2);
-    for _ in 0..4 {
-        engine.push(start, &block, &mut |_| {});
-        start += block.len() as u64;
-    }
-    let n = counted(|| {
-        for _ in 0..50 {
-            engine.push(start, &block, &mut |_| {});
-            start += block.len() as u64;
-        }
-    });
+    let n = warm_then_count(&mut engine, &block, &mut start);
     assert_eq!(n, 0, "two-thread engine: {n} allocations over 50 blocks");
 }

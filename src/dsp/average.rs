@@ -84,7 +84,7 @@ mod tests {
             (b.frames, b.first_sample, b.end_sample)
         );
         assert!((a.dof - b.dof).abs() < 1e-9 * a.dof);
-        // The engine sums frames in f32 batches (see `Stft::accumulate_frames`), so the two
+        // The engine sums frames in f32 batches (see `Stft::sum_frames`), so the two
         // groupings agree to f32 rounding.
         for (p, q) in a.psd.iter().zip(&b.psd) {
             assert!((p - q).abs() <= 1e-5 * p.abs().max(1e-30), "{p} vs {q}");
