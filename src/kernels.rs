@@ -161,7 +161,9 @@ mod tests {
                 assert_eq!(outside(&y, 1e6), (true, true), "n={n} {bad}");
                 y[n - 1].im = 0.0;
             }
-            // Just inside the bound, and subnormals, are inside; only NaN is beyond infinity.
+            // Just inside the bound, and subnormals, are inside; only NaN is beyond infinity
+            // (IEEE 754: with the sign cleared, bit patterns order like magnitudes, NaN above
+            // infinity).
             y[0] = Complex32::new(-999_999.94, f32::MIN_POSITIVE / 2.0);
             assert_eq!(outside(&y, 1e6), (false, false));
             y[0] = Complex32::new(f32::MAX, f32::NEG_INFINITY);

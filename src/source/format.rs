@@ -330,7 +330,8 @@ mod tests {
 
     #[test]
     fn floats_far_beyond_full_scale_are_kept_but_counted() {
-        // cu8 bytes read as cf32_le: 0x7f7f7f7f is about 3.4e38.
+        // cu8 bytes read as cf32_le: 0x7f7f7f7f is about 3.4e38 and 0x3e800000 is 0.25 (IEEE 754
+        // binary32 encoding; the standard's layout, values worked out by hand).
         let bytes = [0x7f, 0x7f, 0x7f, 0x7f, 0, 0, 0, 0, 0, 0, 0x80, 0x3e, 0, 0, 0, 0];
         let mut out = vec![Complex32::default(); 2];
         let got = SampleFormat::Cf32Le.decode(&bytes, &mut out);
