@@ -84,8 +84,8 @@ fn averaged_spectrum() -> Spectrum {
     };
     let mut e = Engine::new(cfg, 2.4e6, 433.5e6);
     let mut out = None;
-    e.push(0, &test_signal(1 << 18), &mut |s| out = Some(s));
-    e.finish(&mut |s| out = Some(s));
+    e.push(0, &test_signal(1 << 18), &mut |s| out = Some(s.clone()));
+    e.finish(&mut |s| out = Some(s.clone()));
     out.expect("one spectrum")
 }
 

@@ -1,8 +1,10 @@
 //! bandwarden: watch, measure and log a radio band from complex IQ samples.
 //!
-//! The binary is a thin shell over this library: [`app`] dispatches commands in [`cmd`]; samples
-//! come from [`source`] on a reader thread, become calibrated spectra in [`dsp`], are measured by
-//! the pure functions in [`measure`] and written by [`output`] or shown live by [`tui`].
+//! The binary is a thin shell over this library. Layers, bottom to top, each importing only those
+//! below it: [`messages`] and [`units`]; [`kernels`]; [`source`] (samples in); [`dsp`] (calibrated
+//! spectra); [`measure`] (pure measurements); [`plan`] (channel plans); [`pipeline`] (reader,
+//! drive loop, stop rules); [`output`] and [`tui`] (consumers); [`cli`] (flags to configs);
+//! [`cmd`] (configs to consumers and a run); [`app`] (dispatch and exit codes).
 
 pub mod app;
 pub mod cli;
@@ -10,6 +12,7 @@ pub mod cmd;
 pub mod dsp;
 pub mod kernels;
 pub mod measure;
+pub mod messages;
 pub mod output;
 pub mod pipeline;
 pub mod plan;

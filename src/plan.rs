@@ -21,11 +21,10 @@
 //! On the command line, `--channel NAME=CENTER:WIDTH` adds a channel (repeatable); it combines
 //! with `--plan`.
 
-use crate::units::{format_hz, parse_duration, parse_hz};
+use crate::units::{format_hz, parse_hz};
 use anyhow::{bail, Context, Result};
 use serde::Deserialize;
 use std::fmt;
-use std::time::Duration;
 use toml::Spanned;
 
 /// Highest accepted per-channel threshold: above this nothing short of a transmitter in the
@@ -78,12 +77,12 @@ pub struct Plan {
 
 impl Plan {
     /// Combines a plan file (if any) and `--channel` flags, and validates the result.
-    pub fn from_args(plan_path: Option<&str>, flags: &[ChannelArg]) -> Result<Plan> {
+    pub fn from_parts(plan_path: Option<&str>, flags: &[Channel]) -> Result<Plan> {
         let mut channels = match plan_path {
             Some(path) => Plan::load(path)?.channels,
             None => Vec::new(),
         };
-        channels.extend(flags.iter().map(ChannelArg::to_channel));
+        channels.extend(flags.iter().cloned());
         let plan = Plan { channels };
         plan.validate()?;
         Ok(plan)
@@ -183,85 +182,35 @@ impl Plan {
     }
 }
 
-/// `--channel NAME=CENTER:WIDTH` as typed.
-#[derive(Clone, Debug, PartialEq)]
-pub struct ChannelArg {
-    pub name: String,
-    pub center_hz: f64,
-    pub width_hz: f64,
-    pub text: String,
-}
-
-impl ChannelArg {
-    fn to_channel(&self) -> Channel {
-        Channel {
-            name: self.name.clone(),
-            center_hz: self.center_hz,
-            width_hz: self.width_hz,
-            threshold_db: None,
-            origin: Origin::Flag { text: self.text.clone() },
-        }
-    }
-}
-
-/// Parses `NAME=CENTER:WIDTH`, e.g. `north-gate=433.1M:25k`.
-pub fn parse_channel_arg(text: &str) -> Result<ChannelArg, String> {
+/// Parses a channel given on the command line, `NAME=CENTER:WIDTH`, e.g.
+/// `north-gate=433.1M:25k`.
+pub fn parse_channel_flag(text: &str) -> Result<Channel, String> {
     let usage = "expected NAME=CENTER:WIDTH in Hz, e.g. north-gate=433.1M:25k";
-    let (name, band) = text.split_once('=').ok_or_else(|| format!("'{text}': {usage}"))?;
-    let (c, w) = band.split_once(':').ok_or_else(|| format!("'{text}': {usage}"))?;
-    check_name(name).map_err(|e| format!("'{text}': {e}"))?;
-    let center_hz = parse_hz(c).map_err(|e| format!("'{text}': centre {e}"))?;
-    let width_hz = parse_hz(w).map_err(|e| format!("'{text}': width {e}"))?;
-    check_width(width_hz).map_err(|e| format!("'{text}': {e}"))?;
-    Ok(ChannelArg { name: name.trim().to_string(), center_hz, width_hz, text: text.to_string() })
+    let shown = crate::messages::sanitize(text);
+    let (name, band) = text.split_once('=').ok_or_else(|| format!("'{shown}': {usage}"))?;
+    let (c, w) = band.split_once(':').ok_or_else(|| format!("'{shown}': {usage}"))?;
+    check_name(name).map_err(|e| format!("'{shown}': {e}"))?;
+    let center_hz = parse_hz(c).map_err(|e| format!("'{shown}': centre {e}"))?;
+    let width_hz = parse_hz(w).map_err(|e| format!("'{shown}': width {e}"))?;
+    check_width(width_hz).map_err(|e| format!("'{shown}': {e}"))?;
+    Ok(Channel {
+        name: name.trim().to_string(),
+        center_hz,
+        width_hz,
+        threshold_db: None,
+        origin: Origin::Flag { text: shown },
+    })
 }
 
-/// Options shared by every command that measures channels (`log`, `measure`).
-#[derive(clap::Args, Debug, Clone)]
-#[command(next_help_heading = "Channels")]
-pub struct ChannelArgs {
-    /// A channel to measure, NAME=CENTER:WIDTH in absolute Hz (e.g. north-gate=433.1M:25k);
-    /// repeatable, combines with --plan.
-    #[arg(long = "channel", value_name = "NAME=CENTER:WIDTH", value_parser = parse_channel_arg)]
-    pub channels: Vec<ChannelArg>,
-    #[arg(
-        long,
-        value_name = "FILE.toml",
-        help = "A channel plan: a TOML file of [[channel]] tables with name, center, width and an optional threshold_db"
-    )]
-    pub plan: Option<String>,
-    /// Length of one measurement sample (one averaged row of FFT frames), e.g. 10ms; rounded to
-    /// a whole number of FFT hops. Default: the most hops that fit in 10 ms.
-    #[arg(long, value_name = "DURATION", value_parser = parse_duration)]
-    pub dwell: Option<Duration>,
-    /// A channel is occupied in a sample when its power exceeds the noise in its width by this
-    /// many dB (ITU-R SM.1880); a plan's threshold_db overrides it per channel.
-    #[arg(long, value_name = "DB", default_value_t = DEFAULT_THRESHOLD_DB)]
-    pub threshold_db: f64,
-}
-
-impl Default for ChannelArgs {
-    fn default() -> Self {
-        ChannelArgs {
-            channels: Vec::new(),
-            plan: None,
-            dwell: None,
-            threshold_db: DEFAULT_THRESHOLD_DB,
-        }
+/// Highest accepted threshold, dB (see [`MAX_THRESHOLD_DB`]); a run's default threshold is checked
+/// against it too.
+pub fn check_threshold_db(threshold_db: f64) -> Result<()> {
+    if !(threshold_db > 0.0 && threshold_db <= MAX_THRESHOLD_DB) {
+        bail!(
+            "--threshold-db {threshold_db} is out of range; choose a value above 0 and at most {MAX_THRESHOLD_DB} dB (10 is the default)"
+        );
     }
-}
-
-impl ChannelArgs {
-    /// The plan these options describe (possibly empty).
-    pub fn plan(&self) -> Result<Plan> {
-        if !(self.threshold_db > 0.0 && self.threshold_db <= MAX_THRESHOLD_DB) {
-            bail!(
-                "--threshold-db {} is out of range; choose a value above 0 and at most {MAX_THRESHOLD_DB} dB (10 is the default)",
-                self.threshold_db
-            );
-        }
-        Plan::from_args(self.plan.as_deref(), &self.channels)
-    }
+    Ok(())
 }
 
 /// Default occupancy threshold over the noise in the channel, dB. See `measure::occupancy`.
@@ -501,14 +450,14 @@ threshold_db = 6
 
     #[test]
     fn channel_flags_parse_and_combine() {
-        let a = parse_channel_arg("north-gate=433.1M:25k").unwrap();
+        let a = parse_channel_flag("north-gate=433.1M:25k").unwrap();
         assert_eq!((a.name.as_str(), a.center_hz, a.width_hz), ("north-gate", 433.1e6, 25e3));
-        assert!(parse_channel_arg("433.1M:25k").unwrap_err().contains("NAME=CENTER:WIDTH"));
-        assert!(parse_channel_arg("a=433.1M").unwrap_err().contains("NAME=CENTER:WIDTH"));
-        assert!(parse_channel_arg("a=433.1M:0").unwrap_err().contains("greater than zero"));
-        assert!(parse_channel_arg("=433.1M:1k").unwrap_err().contains("empty"));
-        let b = parse_channel_arg("b=433.11M:10k").unwrap();
-        let e = Plan::from_args(None, &[a, b]).unwrap_err().to_string();
+        assert!(parse_channel_flag("433.1M:25k").unwrap_err().contains("NAME=CENTER:WIDTH"));
+        assert!(parse_channel_flag("a=433.1M").unwrap_err().contains("NAME=CENTER:WIDTH"));
+        assert!(parse_channel_flag("a=433.1M:0").unwrap_err().contains("greater than zero"));
+        assert!(parse_channel_flag("=433.1M:1k").unwrap_err().contains("empty"));
+        let b = parse_channel_flag("b=433.11M:10k").unwrap();
+        let e = Plan::from_parts(None, &[a, b]).unwrap_err().to_string();
         assert!(e.contains("--channel 'b=433.11M:10k'") && e.contains("overlaps"), "{e}");
     }
 }

@@ -107,8 +107,8 @@ fn band_limited_noise(
 fn average(x: &[Complex32], cfg: EngineConfig, rate: f64, center: f64) -> Spectrum {
     let mut engine = Engine::new(cfg, rate, center);
     let mut out = None;
-    engine.push(0, x, &mut |s| out = Some(s));
-    engine.finish(&mut |s| out = Some(s));
+    engine.push(0, x, &mut |s| out = Some(s.clone()));
+    engine.finish(&mut |s| out = Some(s.clone()));
     out.expect("record holds at least one frame")
 }
 

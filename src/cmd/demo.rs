@@ -4,27 +4,20 @@
 //! channel (sample range, frequency edges, channel name), so other tools can check what they find
 //! against what was sent.
 
-use crate::app::note;
-use crate::cli::DemoArgs;
-use crate::source::demo::{channels, DemoSource, DEFAULT_CENTER_HZ, SITE_NAME};
+use crate::cli::DemoConfig;
+use crate::messages::note;
+use crate::source::demo::{channels, DemoSource, SITE_NAME};
 use crate::source::{sigmf, SampleSource};
-use anyhow::{bail, Context, Result};
+use anyhow::{Context, Result};
 use num_complex::Complex32;
 use serde_json::{json, Value};
 use std::fs::File;
 use std::io::{BufWriter, Write};
 use std::process::ExitCode;
 
-pub fn run(args: DemoArgs) -> Result<ExitCode> {
-    let center = args.center.unwrap_or(DEFAULT_CENTER_HZ);
-    let total = match args.seconds {
-        Some(s) if s > 0.0 && s.is_finite() => Some((s * args.rate).round() as u64),
-        Some(s) => bail!("--seconds {s} must be a positive number"),
-        None if args.out != "-" => {
-            bail!("writing to a file needs --seconds (how long a recording to make)")
-        }
-        None => None,
-    };
+pub fn run(args: DemoConfig) -> Result<ExitCode> {
+    let center = args.center_hz;
+    let total = args.total_samples;
     let lower = args.out.to_ascii_lowercase();
     let is_sigmf = lower.ends_with(".sigmf-meta") || lower.ends_with(".sigmf-data");
     if args.start.is_some() && !is_sigmf {
@@ -71,7 +64,7 @@ pub fn run(args: DemoArgs) -> Result<ExitCode> {
 }
 
 /// The `.sigmf-meta` text: the core fields plus the scene's keyed intervals as annotations.
-fn annotated_meta(args: &DemoArgs, center_hz: f64, total: u64) -> Result<String> {
+fn annotated_meta(args: &DemoConfig, center_hz: f64, total: u64) -> Result<String> {
     let description = format!(
         "bandwarden demo scene: {SITE_NAME} (an invented site), synthetic, seed {}",
         args.seed

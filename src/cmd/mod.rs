@@ -1,4 +1,5 @@
-//! One module per subcommand; each turns validated arguments into a run.
+//! One module per subcommand; each turns a validated config into consumers and runs the
+//! pipeline. No engine loop lives here.
 
 pub mod demo;
 pub mod log;

@@ -72,12 +72,12 @@ mod tests {
         };
         let mut whole = Vec::new();
         let mut e = Engine::new(cfg(None), 1e6, 5e6);
-        e.push(0, &x, &mut |s| whole.push(s));
-        e.finish(&mut |s| whole.push(s));
+        e.push(0, &x, &mut |s| whole.push(s.clone()));
+        e.finish(&mut |s| whole.push(s.clone()));
         let mut sum = SpectrumSum::new();
         let mut e = Engine::new(cfg(Some(7)), 1e6, 5e6);
-        e.push(0, &x, &mut |s| sum.add(&s));
-        e.finish(&mut |s| sum.add(&s));
+        e.push(0, &x, &mut |s| sum.add(s));
+        e.finish(&mut |s| sum.add(s));
         let (a, b) = (&whole[0], sum.average(256).unwrap());
         assert_eq!(
             (a.frames, a.first_sample, a.end_sample),

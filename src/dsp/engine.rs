@@ -5,12 +5,42 @@
 //! spectrum covers the whole input (emitted by [`Engine::finish`]). A gap in sample indices (a live
 //! source dropped samples) discards the partial frame so no frame straddles missing data.
 
-use super::spectrum::Spectrum;
+use super::spectrum::{Geometry, Spectrum};
 use super::stft::{welch_dof, FrameSet, Stft, MAX_FFT, MIN_FFT};
 use super::window::WindowKind;
 use super::worker::{Batch, Team};
 use crate::kernels::Kernels;
 use num_complex::Complex32;
+use std::sync::Arc;
+
+/// The analysis a user chose (`--fft`, `--window`, `--overlap`, `--threads`), shared by every
+/// command; [`DspConfig::engine`] adds how many frames make one output.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct DspConfig {
+    pub fft_size: usize,
+    pub window: WindowKind,
+    /// Fraction of a frame shared with the next one, 0 ..= 0.95.
+    pub overlap: f64,
+    /// Transform threads.
+    pub threads: usize,
+}
+
+impl DspConfig {
+    /// The engine configuration averaging `frames_per_output` frames per output (`None`: all).
+    pub fn engine(&self, frames_per_output: Option<u64>) -> EngineConfig {
+        EngineConfig {
+            fft_size: self.fft_size,
+            window: self.window,
+            overlap: self.overlap,
+            frames_per_output,
+        }
+    }
+
+    /// Samples between the starts of consecutive frames.
+    pub fn hop(&self) -> usize {
+        self.engine(None).hop()
+    }
+}
 
 /// How the STFT is cut and averaged.
 #[derive(Clone, Debug, PartialEq)]
@@ -53,8 +83,6 @@ pub struct Engine {
     stft: Stft,
     /// Helper threads with their own transforms (none on one thread).
     team: Team,
-    sample_rate_hz: f64,
-    center_hz: f64,
     /// Samples not yet covered by a transformed frame; always starts at a frame boundary.
     tail: Vec<Complex32>,
     tail_start: u64,
@@ -66,6 +94,8 @@ pub struct Engine {
     acc_frames: u64,
     acc_first: u64,
     acc_end: u64,
+    /// The spectrum handed to `emit`, refilled for every output.
+    out: Spectrum,
     kernels: Kernels,
 }
 
@@ -80,7 +110,9 @@ pub const GROUPS: usize = 8;
 impl Engine {
     pub fn new(cfg: EngineConfig, sample_rate_hz: f64, center_hz: f64) -> Engine {
         let stft = Stft::new(cfg.fft_size, cfg.window);
+        let geometry = Geometry::new(stft.window(), sample_rate_hz, center_hz);
         let mut e = Engine {
+            out: Spectrum::empty(Arc::new(geometry)),
             hop: cfg.hop(),
             acc: vec![0.0; cfg.fft_size],
             slots: Vec::new(),
@@ -89,8 +121,6 @@ impl Engine {
             stft,
             team: Team::new(0, cfg.fft_size, cfg.window),
             cfg,
-            sample_rate_hz,
-            center_hz,
             tail_start: 0,
             acc_frames: 0,
             acc_first: 0,
@@ -143,7 +173,7 @@ impl Engine {
     ///
     /// Frames that lie wholly inside `samples` are transformed where they are; only the samples
     /// of frames that straddle blocks are copied, into `tail`.
-    pub fn push(&mut self, start: u64, samples: &[Complex32], emit: &mut dyn FnMut(Spectrum)) {
+    pub fn push(&mut self, start: u64, samples: &[Complex32], emit: &mut dyn FnMut(&Spectrum)) {
         if start != self.tail_start + self.tail.len() as u64 || self.tail.is_empty() {
             // Frames complete before the gap still count; the partial one cannot.
             self.flush_tail(emit);
@@ -182,7 +212,7 @@ impl Engine {
     }
 
     /// Transforms the whole frames still in `tail`.
-    fn flush_tail(&mut self, emit: &mut dyn FnMut(Spectrum)) {
+    fn flush_tail(&mut self, emit: &mut dyn FnMut(&Spectrum)) {
         let (n, hop) = (self.cfg.fft_size, self.hop);
         if self.tail.len() < n {
             return;
@@ -202,7 +232,7 @@ impl Engine {
         frames: FrameSet<'_>,
         count: usize,
         origin: u64,
-        emit: &mut dyn FnMut(Spectrum),
+        emit: &mut dyn FnMut(&Spectrum),
     ) {
         let (n, hop) = (self.cfg.fft_size, self.hop);
         let slots = self.slots.len() / n;
@@ -241,33 +271,21 @@ impl Engine {
     }
 
     /// Emits what has been accumulated (if any frame was); call at end of input.
-    pub fn finish(&mut self, emit: &mut dyn FnMut(Spectrum)) {
+    pub fn finish(&mut self, emit: &mut dyn FnMut(&Spectrum)) {
         self.flush_tail(emit);
         if self.acc_frames > 0 {
             emit(self.take());
         }
     }
 
-    /// Frames accumulated since the last output.
-    pub fn frames_pending(&self) -> u64 {
-        self.acc_frames
-    }
-
-    fn take(&mut self) -> Spectrum {
+    /// Turns the accumulated sums into the output spectrum (whose buffer is reused, so rows
+    /// allocate nothing) and starts the next accumulation.
+    fn take(&mut self) -> &Spectrum {
         let dof = welch_dof(self.stft.window(), self.hop, self.acc_frames);
-        let s = Spectrum::from_power_sum(
-            &self.acc,
-            self.acc_frames,
-            dof,
-            self.stft.window(),
-            self.sample_rate_hz,
-            self.center_hz,
-            self.acc_first,
-            self.acc_end,
-        );
+        self.out.fill_from_power_sum(&self.acc, self.acc_frames, dof, self.acc_first, self.acc_end);
         self.acc.iter_mut().for_each(|a| *a = 0.0);
         self.acc_frames = 0;
-        s
+        &self.out
     }
 }
 
@@ -286,16 +304,16 @@ mod tests {
         let x = seeded(10_000, 3);
         let mut whole = Vec::new();
         let mut e = Engine::new(cfg(256, 0.5, Some(4)), 1e6, 0.0);
-        e.push(0, &x, &mut |s| whole.push(s));
-        e.finish(&mut |s| whole.push(s));
+        e.push(0, &x, &mut |s| whole.push(s.clone()));
+        e.finish(&mut |s| whole.push(s.clone()));
         let mut pieces = Vec::new();
         let mut e2 = Engine::new(cfg(256, 0.5, Some(4)), 1e6, 0.0);
         let mut start = 0u64;
         for chunk in x.chunks(77) {
-            e2.push(start, chunk, &mut |s| pieces.push(s));
+            e2.push(start, chunk, &mut |s| pieces.push(s.clone()));
             start += chunk.len() as u64;
         }
-        e2.finish(&mut |s| pieces.push(s));
+        e2.finish(&mut |s| pieces.push(s.clone()));
         assert_eq!(whole.len(), pieces.len());
         // (10000 − 256)/128 + 1 = 77 frames → 19 outputs of 4 and one of the last frame.
         assert_eq!(whole.len(), 20);
@@ -320,10 +338,10 @@ mod tests {
                 e.set_threads(threads);
                 let mut start = 0u64;
                 for chunk in x.chunks(3000) {
-                    e.push(start, chunk, &mut |s| out.push(s));
+                    e.push(start, chunk, &mut |s| out.push(s.clone()));
                     start += chunk.len() as u64;
                 }
-                e.finish(&mut |s| out.push(s));
+                e.finish(&mut |s| out.push(s.clone()));
                 out
             };
             let (one, two) = (run(1), run(2));
@@ -381,9 +399,9 @@ mod tests {
                 let mut e = Engine::new(c.clone(), 1e6, 0.0);
                 e.set_threads(threads);
                 for w in cuts.windows(2) {
-                    e.push(w[0] as u64, &x[w[0]..w[1]], &mut |s| out.push(s));
+                    e.push(w[0] as u64, &x[w[0]..w[1]], &mut |s| out.push(s.clone()));
                 }
-                e.finish(&mut |s| out.push(s));
+                e.finish(&mut |s| out.push(s.clone()));
                 assert_eq!(out.len(), reference.len(), "overlap {overlap} k {k:?} t {threads}");
                 for (got, (first, end, acc)) in out.iter().zip(&reference) {
                     assert_eq!((got.first_sample, got.end_sample), (*first, *end));
@@ -415,7 +433,7 @@ mod tests {
         e.set_threads(2);
         let mut out = Vec::new();
         for (i, hop) in x.chunks(128).enumerate() {
-            e.push(i as u64 * 128, hop, &mut |s| out.push(s));
+            e.push(i as u64 * 128, hop, &mut |s| out.push(s.clone()));
             // After chunk i, frames 0 ..= i − 1 are complete.
             assert_eq!(out.len(), i, "after {} samples", (i + 1) * 128);
         }
@@ -426,9 +444,9 @@ mod tests {
         let x = seeded(1000, 5);
         let mut out = Vec::new();
         let mut e = Engine::new(cfg(256, 0.0, None), 1e6, 0.0);
-        e.push(0, &x[..300], &mut |s| out.push(s)); // one frame, 44 samples left over
-        e.push(5000, &x[300..], &mut |s| out.push(s)); // gap: the 44 are discarded
-        e.finish(&mut |s| out.push(s));
+        e.push(0, &x[..300], &mut |s| out.push(s.clone())); // one frame, 44 samples left over
+        e.push(5000, &x[300..], &mut |s| out.push(s.clone())); // gap: the 44 are discarded
+        e.finish(&mut |s| out.push(s.clone()));
         assert_eq!(out.len(), 1);
         assert_eq!(out[0].frames, 1 + 700 / 256);
         assert_eq!(out[0].end_sample, 5000 + 2 * 256);

@@ -7,6 +7,6 @@ pub mod stft;
 pub mod window;
 pub mod worker;
 
-pub use engine::{Engine, EngineConfig};
-pub use spectrum::Spectrum;
+pub use engine::{DspConfig, Engine, EngineConfig};
+pub use spectrum::{Geometry, Spectrum};
 pub use window::{Window, WindowKind};

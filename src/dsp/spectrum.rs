@@ -2,14 +2,15 @@
 
 use super::window::{Window, WindowKind};
 use crate::units::db;
+use std::ops::Deref;
+use std::sync::Arc;
 
-/// An averaged power spectral density with everything needed to read it in absolute units.
-///
-/// `psd[i]` is in FS²/Hz (linear, full scale squared per hertz), in fftshift order: index `i`
-/// lies at `center_hz + (i − ⌊N/2⌋)·fs/N`. Levels are Welch / modified-periodogram estimates,
-/// `P[k] = |X[k]|² / (fs·S2)`, averaged in linear power (Heinzel et al. 2002, eq. 24).
-#[derive(Clone, Debug)]
-pub struct Spectrum {
+/// What every row of one analysis shares: where its bins lie and how wide they are. Built once
+/// per engine and shared by reference count, so a row carries its calibration without copying it
+/// and a measurement can be made on any PSD of the same shape (an emission's average, a trace)
+/// without building a spectrum around it.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Geometry {
     pub center_hz: f64,
     pub sample_rate_hz: f64,
     pub fft_size: usize,
@@ -18,51 +19,22 @@ pub struct Spectrum {
     pub enbw_bins: f64,
     /// Resolution bandwidth: `ENBW_bins · fs / N`.
     pub rbw_hz: f64,
-    pub psd: Vec<f64>,
-    /// How many periodograms were averaged.
-    pub frames: u64,
-    /// Equivalent degrees of freedom of each bin's χ² estimate (2 per independent periodogram,
-    /// fewer when overlapping frames are correlated; Welch 1967).
-    pub dof: f64,
-    /// Index (from the first sample of the input) of the first sample that contributed.
-    pub first_sample: u64,
-    /// One past the last sample that contributed.
-    pub end_sample: u64,
+    /// `S2 = Σw²` of the window, for the PSD's normalisation.
+    s2: f64,
 }
 
-impl Spectrum {
-    /// Builds a spectrum from accumulated `|X[k]|²` in FFT order (not shifted).
-    #[allow(clippy::too_many_arguments)]
-    pub fn from_power_sum(
-        power_sum: &[f64],
-        frames: u64,
-        dof: f64,
-        window: &Window,
-        sample_rate_hz: f64,
-        center_hz: f64,
-        first_sample: u64,
-        end_sample: u64,
-    ) -> Spectrum {
-        let n = power_sum.len();
-        let scale = 1.0 / (frames.max(1) as f64 * sample_rate_hz * window.s2);
-        let half = n / 2;
-        let mut psd = vec![0.0; n];
-        for (k, p) in power_sum.iter().enumerate() {
-            psd[(k + half) % n] = p * scale;
-        }
+impl Geometry {
+    pub fn new(window: &Window, sample_rate_hz: f64, center_hz: f64) -> Geometry {
+        let n = window.len();
         let enbw_bins = window.enbw_bins();
-        Spectrum {
+        Geometry {
             center_hz,
             sample_rate_hz,
             fft_size: n,
             window: window.kind,
             enbw_bins,
             rbw_hz: enbw_bins * sample_rate_hz / n as f64,
-            psd,
-            frames,
-            dof,
-            first_sample,
-            end_sample,
+            s2: window.s2,
         }
     }
 
@@ -85,6 +57,94 @@ impl Spectrum {
     pub fn span_hz(&self) -> (f64, f64) {
         let lo = self.freq_of_bin(-0.5);
         (lo, lo + self.sample_rate_hz)
+    }
+}
+
+/// An averaged power spectral density with everything needed to read it in absolute units.
+///
+/// `psd[i]` is in FS²/Hz (linear, full scale squared per hertz), in fftshift order: index `i`
+/// lies at `center_hz + (i − ⌊N/2⌋)·fs/N`. Levels are Welch / modified-periodogram estimates,
+/// `P[k] = |X[k]|² / (fs·S2)`, averaged in linear power (Heinzel et al. 2002, eq. 24).
+///
+/// The geometry's fields read as the spectrum's own (`spec.rbw_hz`) through `Deref`.
+#[derive(Clone, Debug)]
+pub struct Spectrum {
+    pub geometry: Arc<Geometry>,
+    pub psd: Vec<f64>,
+    /// How many periodograms were averaged.
+    pub frames: u64,
+    /// Equivalent degrees of freedom of each bin's χ² estimate (2 per independent periodogram,
+    /// fewer when overlapping frames are correlated; Welch 1967).
+    pub dof: f64,
+    /// Index (from the first sample of the input) of the first sample that contributed.
+    pub first_sample: u64,
+    /// One past the last sample that contributed.
+    pub end_sample: u64,
+}
+
+impl Deref for Spectrum {
+    type Target = Geometry;
+
+    fn deref(&self) -> &Geometry {
+        &self.geometry
+    }
+}
+
+impl Spectrum {
+    /// A spectrum of this geometry with no frames yet; its PSD is allocated once here.
+    pub fn empty(geometry: Arc<Geometry>) -> Spectrum {
+        let n = geometry.fft_size;
+        Spectrum {
+            geometry,
+            psd: vec![0.0; n],
+            frames: 0,
+            dof: 0.0,
+            first_sample: 0,
+            end_sample: 0,
+        }
+    }
+
+    /// Builds a spectrum from accumulated `|X[k]|²` in FFT order (not shifted).
+    #[allow(clippy::too_many_arguments)]
+    pub fn from_power_sum(
+        power_sum: &[f64],
+        frames: u64,
+        dof: f64,
+        window: &Window,
+        sample_rate_hz: f64,
+        center_hz: f64,
+        first_sample: u64,
+        end_sample: u64,
+    ) -> Spectrum {
+        let mut s = Spectrum::empty(Arc::new(Geometry::new(window, sample_rate_hz, center_hz)));
+        s.fill_from_power_sum(power_sum, frames, dof, first_sample, end_sample);
+        s
+    }
+
+    /// Refills this spectrum from accumulated `|X[k]|²` in FFT order, without allocating.
+    pub fn fill_from_power_sum(
+        &mut self,
+        power_sum: &[f64],
+        frames: u64,
+        dof: f64,
+        first_sample: u64,
+        end_sample: u64,
+    ) {
+        let n = power_sum.len();
+        debug_assert_eq!(n, self.geometry.fft_size);
+        let g = &*self.geometry;
+        let scale = 1.0 / (frames.max(1) as f64 * g.sample_rate_hz * g.s2);
+        let half = n / 2;
+        self.psd.resize(n, 0.0);
+        let (low, high) = power_sum.split_at(n - half);
+        let (first, second) = self.psd.split_at_mut(half);
+        for (out, p) in first.iter_mut().zip(high).chain(second.iter_mut().zip(low)) {
+            *out = p * scale;
+        }
+        self.frames = frames;
+        self.dof = dof;
+        self.first_sample = first_sample;
+        self.end_sample = end_sample;
     }
 
     /// Power of a sinusoid whose peak falls in bin `i`: `PSD·RBW`, i.e. `|X|²/S1²`

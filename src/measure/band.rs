@@ -109,19 +109,9 @@ pub(crate) mod tests {
     /// A spectrum with a given PSD shape, rate 1 MHz, centre 100 MHz.
     pub(crate) fn spectrum_with(psd: Vec<f64>) -> Spectrum {
         let n = psd.len();
-        Spectrum {
-            center_hz: 100e6,
-            sample_rate_hz: 1e6,
-            fft_size: n,
-            window: WindowKind::Rect,
-            enbw_bins: 1.0,
-            rbw_hz: 1e6 / n as f64,
-            psd,
-            frames: 1,
-            dof: 2.0,
-            first_sample: 0,
-            end_sample: n as u64,
-        }
+        let window = crate::dsp::Window::new(WindowKind::Rect, n);
+        let geometry = std::sync::Arc::new(crate::dsp::Geometry::new(&window, 1e6, 100e6));
+        Spectrum { geometry, psd, frames: 1, dof: 2.0, first_sample: 0, end_sample: n as u64 }
     }
 
     #[test]

@@ -174,8 +174,8 @@ mod tests {
         };
         let mut out = Vec::new();
         let mut e = Engine::new(cfg, rate, 0.0);
-        e.push(0, &x, &mut |s| out.push(s));
-        e.finish(&mut |s| out.push(s));
+        e.push(0, &x, &mut |s| out.push(s.clone()));
+        e.finish(&mut |s| out.push(s.clone()));
         let spec = &out[0];
         let floor = noise_floor(&spec.psd, spec.dof);
         let w = Window::new(WindowKind::Hann, 1024);
@@ -201,7 +201,7 @@ mod tests {
         };
         let mut specs = Vec::new();
         let mut e = Engine::new(cfg, 1e6, 0.0);
-        e.push(0, &x, &mut |s| specs.push(s));
+        e.push(0, &x, &mut |s| specs.push(s.clone()));
         let w = Window::new(WindowKind::Hann, 4096);
         let found: usize = specs
             .iter()

@@ -3,7 +3,9 @@
 //! Shown only when stderr is a terminal, so logs of unattended runs are not filled with carriage
 //! returns. The text is built by a pure function and tested; drawing is a thin shell around it.
 
-use std::io::{IsTerminal, Write};
+use crate::pipeline::{Consumer, RunEnd, RunInfo};
+use crate::source::reader::Block;
+use std::io::{self, IsTerminal, Write};
 use std::time::{Duration, Instant};
 
 /// Redraws at most this often.
@@ -57,6 +59,20 @@ impl Progress {
             let _ = err.flush();
             self.last_draw = None;
         }
+    }
+}
+
+/// The bar follows the blocks as they are handed to the run, and is gone before the run's last
+/// words are printed.
+impl Consumer for Progress {
+    fn block(&mut self, block: &Block) -> io::Result<()> {
+        self.update(block.start + block.samples.len() as u64);
+        Ok(())
+    }
+
+    fn finish(&mut self, _end: &RunEnd, _run: &RunInfo) -> io::Result<()> {
+        self.clear();
+        Ok(())
     }
 }
 

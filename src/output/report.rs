@@ -10,9 +10,149 @@
 //! `channels[]` (only with `--channel`/`--plan`): `name, center_hz, width_hz, power_dbfs, obw_hz,
 //! occupancy_pct, samples, dwell_s`.
 
-use crate::units::{format_hz, format_hz_short};
+use crate::dsp::{Spectrum, Window};
+use crate::measure::stats::gamma_quantile_unit_mean;
+use crate::measure::{
+    band_power, find_signals, noise_floor, occupied_bandwidth, xdb_bandwidth, Detection,
+};
+use crate::plan::Plan;
+use crate::source::InputIssues;
+use crate::units::{db, format_hz, format_hz_short};
+use anyhow::{bail, Result};
 use serde::Serialize;
 use std::fmt::Write as _;
+
+/// A band given as `CENTER:WIDTH` in absolute hertz (`measure --band`).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Band {
+    pub center_hz: f64,
+    pub width_hz: f64,
+}
+
+/// What the report measures beyond the fixed figures.
+#[derive(Clone, Debug, PartialEq)]
+pub struct ReportSettings {
+    /// How many of the strongest signals to list.
+    pub peaks: usize,
+    pub bands: Vec<Band>,
+    pub obw_percent: f64,
+    pub xdb: f64,
+}
+
+/// What the run counted besides the spectrum.
+#[derive(Clone, Debug, Default)]
+pub struct InputCounts {
+    pub samples: u64,
+    pub issues: InputIssues,
+    pub dropped: u64,
+}
+
+/// Measures the whole-input spectrum for the report.
+pub fn build_report(
+    settings: &ReportSettings,
+    label: &str,
+    spec: &Spectrum,
+    counts: &InputCounts,
+) -> Result<Report> {
+    let window = Window::new(spec.window, spec.fft_size);
+    let floor = noise_floor(&spec.psd, spec.dof);
+    let det = Detection { obw_percent: settings.obw_percent, ..Detection::default() };
+    let peaks = find_signals(spec, &window, floor, settings.peaks, det)
+        .into_iter()
+        .map(|s| PeakRow {
+            freq_hz: s.freq_hz,
+            level_dbfs: s.level_dbfs,
+            snr_db: s.snr_db,
+            power_dbfs: s.power_dbfs,
+            obw_hz: s.obw.width_hz(),
+        })
+        .collect();
+    let (span_lo, span_hi) = spec.span_hz();
+    let mut bands = Vec::new();
+    for b in &settings.bands {
+        let (lo, hi) = (b.center_hz - b.width_hz / 2.0, b.center_hz + b.width_hz / 2.0);
+        if lo < span_lo - 1e-6 || hi > span_hi + 1e-6 {
+            bail!(
+                "band {} wide at {} reaches outside the captured span {} .. {}; check --band and --center",
+                format_hz(b.width_hz),
+                format_hz(b.center_hz),
+                format_hz(span_lo),
+                format_hz(span_hi)
+            );
+        }
+        let obw = occupied_bandwidth(spec, lo, hi, settings.obw_percent);
+        let xdb = xdb_bandwidth(spec, lo, hi, settings.xdb);
+        bands.push(BandRow {
+            center_hz: b.center_hz,
+            width_hz: b.width_hz,
+            power_dbfs: db(band_power(spec, lo, hi)),
+            obw_hz: obw.map_or(0.0, |e| e.width_hz()),
+            obw_low_hz: obw.map_or(b.center_hz, |e| e.low_hz),
+            obw_high_hz: obw.map_or(b.center_hz, |e| e.high_hz),
+            xdb_bandwidth_hz: xdb.map_or(0.0, |e| e.width_hz()),
+        });
+    }
+    let issues = &counts.issues;
+    Ok(Report {
+        source: label.to_string(),
+        sample_rate_hz: spec.sample_rate_hz,
+        center_hz: spec.center_hz,
+        fft_size: spec.fft_size,
+        window: spec.window.to_string(),
+        rbw_hz: spec.rbw_hz,
+        enbw_bins: spec.enbw_bins,
+        frames: spec.frames,
+        samples: counts.samples,
+        duration_s: counts.samples as f64 / spec.sample_rate_hz,
+        dof: spec.dof,
+        psd_uncertainty_db: uncertainty_db(spec.dof),
+        total_power_dbfs: db(spec.total_power()),
+        noise_floor_dbfs_per_hz: db(floor),
+        peaks,
+        bands,
+        channels: Vec::new(),
+        input_issues: IssuesRow {
+            non_finite_samples: issues.non_finite,
+            beyond_scale_samples: issues.beyond_scale,
+            trailing_bytes: issues.trailing_bytes,
+            dropped_samples: counts.dropped,
+        },
+    })
+}
+
+/// Power and occupied bandwidth of each plan channel in the whole-input average, with the
+/// channel's occupancy over the whole input: (occupancy %, measurement samples) per channel.
+pub fn channel_rows(
+    plan: &Plan,
+    spec: &Spectrum,
+    occupancy: &[(f64, u64)],
+    dwell_s: f64,
+    obw_percent: f64,
+) -> Vec<ChannelRow> {
+    plan.channels
+        .iter()
+        .zip(occupancy)
+        .map(|(c, &(pct, n))| ChannelRow {
+            name: c.name.clone(),
+            center_hz: c.center_hz,
+            width_hz: c.width_hz,
+            power_dbfs: db(band_power(spec, c.low_hz(), c.high_hz())),
+            obw_hz: occupied_bandwidth(spec, c.low_hz(), c.high_hz(), obw_percent)
+                .map_or(0.0, |e| e.width_hz()),
+            occupancy_pct: pct,
+            samples: n,
+            dwell_s,
+        })
+        .collect()
+}
+
+/// Half-width in dB of the 95 % interval of `χ²_ν/ν` (the larger side).
+pub fn uncertainty_db(dof: f64) -> f64 {
+    let a = dof / 2.0;
+    let lo = gamma_quantile_unit_mean(0.025, a);
+    let hi = gamma_quantile_unit_mean(0.975, a);
+    (-db(lo)).max(db(hi))
+}
 
 #[derive(Serialize, Debug, Clone)]
 pub struct Report {

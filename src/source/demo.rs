@@ -358,10 +358,10 @@ mod tests {
         while start < skip + total {
             let m = ((skip + total - start) as usize).min(buf.len());
             scene.fill(&mut buf[..m]);
-            engine.push(start, &buf[..m], &mut |s| out.push(s));
+            engine.push(start, &buf[..m], &mut |s| out.push(s.clone()));
             start += m as u64;
         }
-        engine.finish(&mut |s| out.push(s));
+        engine.finish(&mut |s| out.push(s.clone()));
         out
     }
 

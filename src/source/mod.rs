@@ -11,6 +11,7 @@ pub mod reader;
 pub mod sigmf;
 pub mod wav;
 
+pub use crate::messages::sanitize;
 pub use format::SampleFormat;
 
 use anyhow::{bail, Context, Result};
@@ -147,12 +148,6 @@ fn open_path(
         )
     })?;
     raw::open_file(path, format, rate, req)
-}
-
-/// Removes control characters (including ESC) from text that came from a file, so metadata
-/// cannot move the cursor or change colours when shown in a terminal.
-pub fn sanitize(text: &str) -> String {
-    text.chars().map(|c| if c.is_control() { '?' } else { c }).collect()
 }
 
 #[cfg(test)]

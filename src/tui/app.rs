@@ -7,7 +7,6 @@
 //! readable and the monitor light.
 
 use super::colour::{Depth, MapKind, Palette, Theme};
-use super::dsp_thread::DspSettings;
 use super::history::{History, Row};
 use super::input::Intent;
 use super::layout::Screen;
@@ -15,6 +14,7 @@ use super::traces::Traces;
 use super::view::{column_max, BinGrid, View, MIN_VIEW_BINS};
 use crate::dsp::{Spectrum, Window, WindowKind};
 use crate::measure::{find_signals, noise_floor, Detection, Signal};
+use crate::pipeline::latest::RowSettings;
 use crate::units::db;
 use std::time::{Duration, Instant};
 
@@ -43,14 +43,14 @@ pub enum Mode {
 
 /// A named channel shown over the spectrum and in the table.
 #[derive(Clone, Debug, PartialEq)]
-pub struct Channel {
+pub struct ChannelMark {
     /// Shown as is; callers remove control characters first.
     pub name: String,
     pub center_hz: f64,
     pub width_hz: f64,
 }
 
-impl Channel {
+impl ChannelMark {
     pub fn contains(&self, freq_hz: f64) -> bool {
         (freq_hz - self.center_hz).abs() <= 0.5 * self.width_hz
     }
@@ -149,8 +149,8 @@ pub struct App {
     pub help: bool,
     pub source: SourceSummary,
     /// What the DSP was last asked for.
-    pub settings: DspSettings,
-    pending_settings: Option<DspSettings>,
+    pub settings: RowSettings,
+    pending_settings: Option<RowSettings>,
     pub view: Option<View>,
     pub levels: Levels,
     pub marker_hz: Option<f64>,
@@ -162,7 +162,7 @@ pub struct App {
     pub depth: Depth,
     pub palette: Palette,
     pub theme: Theme,
-    pub channels: Vec<Channel>,
+    pub channels: Vec<ChannelMark>,
     pub plan_visible: bool,
     pub traces: Traces,
     pub history: History,
@@ -186,10 +186,10 @@ pub struct App {
 impl App {
     pub fn new(
         source: SourceSummary,
-        settings: DspSettings,
+        settings: RowSettings,
         depth: Depth,
         offset_db: Option<f64>,
-        channels: Vec<Channel>,
+        channels: Vec<ChannelMark>,
         now: Instant,
     ) -> App {
         let plan_visible = !channels.is_empty();
@@ -226,7 +226,7 @@ impl App {
     }
 
     /// Settings the DSP thread should switch to, once.
-    pub fn take_pending_settings(&mut self) -> Option<DspSettings> {
+    pub fn take_pending_settings(&mut self) -> Option<RowSettings> {
         self.pending_settings.take()
     }
 
@@ -460,7 +460,7 @@ impl App {
         };
         let next = next.clamp(FFT_KEYS_MIN, FFT_KEYS_MAX);
         if next != n {
-            self.request(DspSettings { fft_size: next, ..self.settings });
+            self.request(RowSettings { fft_size: next, ..self.settings });
         }
     }
 
@@ -472,7 +472,7 @@ impl App {
                 std::mem::discriminant(w) == std::mem::discriminant(&self.settings.window)
             })
             .unwrap_or(0);
-        self.request(DspSettings { window: all[(i + step) % all.len()], ..self.settings });
+        self.request(RowSettings { window: all[(i + step) % all.len()], ..self.settings });
     }
 
     fn change_row_rate(&mut self, faster: bool) {
@@ -483,11 +483,11 @@ impl App {
             ROW_RATES.iter().rev().copied().find(|&x| x < r - 1e-9)
         };
         if let Some(row_rate) = next {
-            self.request(DspSettings { row_rate, ..self.settings });
+            self.request(RowSettings { row_rate, ..self.settings });
         }
     }
 
-    fn request(&mut self, s: DspSettings) {
+    fn request(&mut self, s: RowSettings) {
         self.settings = s;
         self.pending_settings = Some(s);
     }
@@ -593,7 +593,7 @@ impl App {
     }
 
     /// The channel a frequency falls in, if a plan is loaded.
-    pub fn channel_at(&self, freq_hz: f64) -> Option<&Channel> {
+    pub fn channel_at(&self, freq_hz: f64) -> Option<&ChannelMark> {
         self.channels.iter().find(|c| c.contains(freq_hz))
     }
 }
@@ -620,8 +620,8 @@ mod tests {
         }
     }
 
-    fn settings() -> DspSettings {
-        DspSettings {
+    fn settings() -> RowSettings {
+        RowSettings {
             fft_size: 1024,
             window: WindowKind::Hann,
             overlap: 0.5,
@@ -696,7 +696,7 @@ mod tests {
         };
         let mut e = Engine::new(cfg, rate, 100e6);
         let mut a_ = App::new(summary(), settings(), Depth::Mono, None, Vec::new(), Instant::now());
-        e.push(0, &x, &mut |sp| a_.push_row(sp));
+        e.push(0, &x, &mut |sp| a_.push_row(sp.clone()));
         a_.measure();
         let tone_hz = 100e6 + f;
         let (_, raw) = {

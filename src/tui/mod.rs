@@ -1,8 +1,8 @@
 //! The live terminal monitor behind `bandwarden watch`.
 //!
-//! Threads: the reader ([`crate::pipeline`]) feeds the DSP thread ([`dsp_thread`]), which sends
-//! one averaged spectrum per waterfall row to this, the UI thread, over a small queue where the
-//! newest row wins. The UI never blocks the DSP.
+//! Threads: the reader feeds the pipeline's run on its own thread
+//! ([`crate::pipeline::latest::RowFeed`]), which sends one averaged spectrum per waterfall row to
+//! this, the UI thread, over a small queue where the newest row wins. The UI never blocks the DSP.
 //!
 //! Each frame (paced by `--fps`) the UI takes every queued row, handles keys and the mouse,
 //! redraws what changed through ratatui's cell diff, and brings the waterfall up to date with
@@ -11,12 +11,10 @@
 
 pub mod app;
 pub mod colour;
-pub mod dsp_thread;
 pub mod history;
 pub mod input;
 pub mod layout;
 pub mod painter;
-pub mod signals;
 pub mod term;
 pub mod traces;
 pub mod view;
@@ -25,14 +23,15 @@ pub mod widgets;
 use app::{App, Mode};
 use crossbeam_channel::TryRecvError;
 use crossterm::event::{self, Event};
-use dsp_thread::DspThread;
 use layout::Screen;
 use painter::Painter;
 use ratatui::layout::Rect;
 use std::io::Write;
-use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::atomic::Ordering;
 use std::time::{Duration, Instant};
 
+use crate::pipeline::latest::RowFeed;
+use crate::pipeline::stop::{Escalation, StopSignals};
 use crate::source::reader::ReaderStats;
 
 /// How the monitor draws.
@@ -48,6 +47,11 @@ pub struct RunOptions {
 /// A symbol no widget draws, marking every cell of the diff's previous picture as stale.
 const STALE: &str = "\u{fffd}";
 
+/// Time the UI loop gets to stop on its own after a signal: when the terminal itself is gone
+/// (SIGHUP after an SSH drop or a closed window), the terminal library's input reader can spin on
+/// the dead descriptor and the loop never looks at the flag again.
+const GRACE: Duration = Duration::from_millis(1500);
+
 /// Longest wait for input before checking the signal flag and the clock again.
 const POLL_SLICE: Duration = Duration::from_millis(50);
 
@@ -55,19 +59,20 @@ const POLL_SLICE: Duration = Duration::from_millis(50);
 /// The terminal is restored on every way out, panics included.
 pub fn run(
     mut app: App,
-    dsp: &DspThread,
+    dsp: &RowFeed,
     reader: &ReaderStats,
     opts: RunOptions,
 ) -> anyhow::Result<()> {
     // Drop order: the terminal guard first (restore), then the signal watchdog.
-    let watch = signals::SignalWatch::start()?;
+    let watch =
+        StopSignals::install(true, Escalation::Watchdog { grace: GRACE, restore: term::restore })?;
     let started = Instant::now();
     let mut first_frame = None;
     let result = {
         let (mut term, _guard) = term::init(opts.mouse)?;
-        event_loop(&mut term, &mut app, dsp, reader, opts, watch.stop_flag(), &mut first_frame)
+        event_loop(&mut term, &mut app, dsp, reader, opts, &watch, &mut first_frame)
     };
-    let process_start = *crate::app::STARTED.get_or_init(|| started);
+    let process_start = *crate::messages::STARTED.get_or_init(|| started);
     // The terminal is restored now: leave one line on stderr saying what was seen and lost, so
     // that a session (or a script) can tell whether the monitor kept up.
     eprintln!(
@@ -87,10 +92,10 @@ pub fn run(
 fn event_loop(
     term: &mut term::Term,
     app: &mut App,
-    dsp: &DspThread,
+    dsp: &RowFeed,
     reader: &ReaderStats,
     opts: RunOptions,
-    stop: &AtomicBool,
+    stop: &StopSignals,
     first_frame: &mut Option<Instant>,
 ) -> anyhow::Result<()> {
     let frame = Duration::from_secs_f64(1.0 / opts.fps);
@@ -101,7 +106,7 @@ fn event_loop(
     loop {
         // Input until the next frame is due.
         loop {
-            if stop.load(Ordering::Relaxed) {
+            if stop.reason().is_some() {
                 app.mode = Mode::Quit;
             }
             if app.mode == Mode::Quit {
@@ -122,7 +127,7 @@ fn event_loop(
         app.stats.skipped = dsp.skipped.load(Ordering::Relaxed);
         app.tick(now);
         if let Some(s) = app.take_pending_settings() {
-            dsp.apply(s);
+            dsp.apply(&s);
         }
         draw(term, app, &mut painter, &mut drawn_mode, &mut out, opts)?;
         // The first frame with spectrum data on it is the one a user waits for.
@@ -145,7 +150,7 @@ fn handle_event(app: &mut App, ev: Event) {
 }
 
 /// Takes every queued row; notes the end of the input.
-fn take_rows(app: &mut App, dsp: &DspThread) {
+fn take_rows(app: &mut App, dsp: &RowFeed) {
     loop {
         match dsp.rows.try_recv() {
             Ok(row) => app.push_row(row),

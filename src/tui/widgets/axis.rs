@@ -1,6 +1,6 @@
 //! The frequency axis under the spectrum, and the channel-plan row under it.
 
-use super::super::app::Channel;
+use super::super::app::ChannelMark;
 use super::super::colour::Theme;
 use super::super::layout::GUTTER;
 use super::super::view::{freq_ticks, View};
@@ -50,15 +50,15 @@ impl Widget for &FreqAxis<'_> {
 /// Each channel of the plan as a bracket `├─name─┤` over the columns it covers.
 pub struct PlanRow<'a> {
     pub view: View,
-    pub channels: &'a [Channel],
+    pub channels: &'a [ChannelMark],
     pub theme: &'a Theme,
 }
 
 impl PlanRow<'_> {
     /// The channels in view with their first and last columns, left to right.
-    fn spans(&self, width: usize) -> Vec<(usize, usize, &Channel)> {
+    fn spans(&self, width: usize) -> Vec<(usize, usize, &ChannelMark)> {
         let v = self.view;
-        let mut spans: Vec<(usize, usize, &Channel)> = self
+        let mut spans: Vec<(usize, usize, &ChannelMark)> = self
             .channels
             .iter()
             .filter_map(|ch| {
@@ -154,8 +154,8 @@ mod tests {
     fn channels_are_bracketed_and_named() {
         let theme = Theme::new(Depth::Mono);
         let channels = vec![
-            Channel { name: "GATE".into(), center_hz: 1_000.0, width_hz: 1_000.0 },
-            Channel { name: "far-away".into(), center_hz: 1e6, width_hz: 10.0 },
+            ChannelMark { name: "GATE".into(), center_hz: 1_000.0, width_hz: 1_000.0 },
+            ChannelMark { name: "far-away".into(), center_hz: 1e6, width_hz: 10.0 },
         ];
         let row = PlanRow { view: View::new(0.0, 2_000.0), channels: &channels, theme: &theme };
         let mut buf = Buffer::empty(Rect::new(0, 0, GUTTER + 20, 1));
@@ -163,15 +163,15 @@ mod tests {
         // 100 Hz a column: 500..1500 Hz covers columns 5..=14.
         assert_eq!(text_lines(&buf), [" plan      ├──GATE──┤     "]);
         // A channel narrower than its name gets a mark and the name beside it.
-        let narrow = vec![Channel { name: "Beacon".into(), center_hz: 300.0, width_hz: 100.0 }];
+        let narrow = vec![ChannelMark { name: "Beacon".into(), center_hz: 300.0, width_hz: 100.0 }];
         let row = PlanRow { view: View::new(0.0, 2_000.0), channels: &narrow, theme: &theme };
         let mut buf = Buffer::empty(Rect::new(0, 0, GUTTER + 20, 1));
         (&row).render(buf.area, &mut buf);
         assert_eq!(text_lines(&buf), [" plan   ├┤Beacon          "]);
         // Names beside narrow channels stop where the next channel starts.
         let two = vec![
-            Channel { name: "ops".into(), center_hz: 300.0, width_hz: 100.0 },
-            Channel { name: "yard".into(), center_hz: 700.0, width_hz: 100.0 },
+            ChannelMark { name: "ops".into(), center_hz: 300.0, width_hz: 100.0 },
+            ChannelMark { name: "yard".into(), center_hz: 700.0, width_hz: 100.0 },
         ];
         let row = PlanRow { view: View::new(0.0, 2_000.0), channels: &two, theme: &theme };
         let mut buf = Buffer::empty(Rect::new(0, 0, GUTTER + 20, 1));

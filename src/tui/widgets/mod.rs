@@ -136,9 +136,9 @@ pub fn text_lines(buf: &Buffer) -> Vec<String> {
 mod tests {
     use super::*;
     use crate::dsp::{Spectrum, Window, WindowKind};
-    use crate::tui::app::{Channel, SourceSummary};
+    use crate::pipeline::latest::RowSettings;
+    use crate::tui::app::{ChannelMark, SourceSummary};
     use crate::tui::colour::Depth;
-    use crate::tui::dsp_thread::DspSettings;
     use crate::tui::input::Intent;
     use ratatui::backend::TestBackend;
     use ratatui::Terminal;
@@ -153,7 +153,7 @@ mod tests {
         Spectrum::from_power_sum(&power, 1, 2.0, &w, 1.024e6, 100e6, 0, n as u64)
     }
 
-    fn app(channels: Vec<Channel>) -> App {
+    fn app(channels: Vec<ChannelMark>) -> App {
         let source = SourceSummary {
             label: "bench\u{1b}[2J.cf32".chars().filter(|c| !c.is_control()).collect(),
             sample_rate_hz: 1.024e6,
@@ -163,7 +163,7 @@ mod tests {
             speed: Some(1.0),
             looping: false,
         };
-        let settings = DspSettings {
+        let settings = RowSettings {
             fft_size: 1024,
             window: WindowKind::Hann,
             overlap: 0.5,
@@ -246,7 +246,8 @@ mod tests {
 
     #[test]
     fn a_plan_adds_its_row_and_names_signals() {
-        let ch = vec![Channel { name: "Gate-North".into(), center_hz: 100.1e6, width_hz: 200e3 }];
+        let ch =
+            vec![ChannelMark { name: "Gate-North".into(), center_hz: 100.1e6, width_hz: 200e3 }];
         let mut a = app(ch);
         let buf = draw(&a, 160, 48);
         let lines = text_lines(&buf);
@@ -266,7 +267,7 @@ mod tests {
 
     #[test]
     fn the_largest_screen_keeps_every_part() {
-        let a = app(vec![Channel { name: "gate".into(), center_hz: 100.1e6, width_hz: 25e3 }]);
+        let a = app(vec![ChannelMark { name: "gate".into(), center_hz: 100.1e6, width_hz: 25e3 }]);
         let buf = draw(&a, 300, 100);
         let lines = text_lines(&buf);
         let s = Screen::split(buf.area, true).unwrap();

@@ -1,7 +1,7 @@
 //! The table of the strongest signals: frequency, level, SNR, occupied bandwidth and the channel
 //! they fall in. On wide screens it runs in several side-by-side blocks so more signals fit.
 
-use super::super::app::{Channel, Levels};
+use super::super::app::{ChannelMark, Levels};
 use super::super::colour::Theme;
 use crate::measure::Signal;
 use crate::units::format_hz;
@@ -15,7 +15,7 @@ pub const BLOCK_WIDTH: u16 = 80;
 pub struct SignalTable<'a> {
     pub signals: &'a [Signal],
     /// The plan's channels (empty without a plan; the column is then left out).
-    pub channels: &'a [Channel],
+    pub channels: &'a [ChannelMark],
     pub levels: Levels,
     /// Frequency of the marker, to flag the row it sits on.
     pub marker_hz: Option<f64>,
@@ -110,7 +110,8 @@ mod tests {
     fn rows_show_frequency_level_snr_obw_and_channel() {
         let theme = Theme::new(Depth::Palette256);
         let signals = [sig(433.92e6, -23.44), sig(433.5e6, -61.0)];
-        let channels = [Channel { name: "Gate-North".into(), center_hz: 433.92e6, width_hz: 25e3 }];
+        let channels =
+            [ChannelMark { name: "Gate-North".into(), center_hz: 433.92e6, width_hz: 25e3 }];
         let t = SignalTable {
             signals: &signals,
             channels: &channels,

@@ -1,4 +1,7 @@
-//! Wiring of the reader thread to whoever runs the DSP, shared by every command.
+//! Starting the reader thread on a bounded queue, shared by every command.
+//!
+//! Queues are bounded so a slow consumer never makes memory grow: file input simply waits, a live
+//! source drops whole blocks (counted in [`ReaderStats::dropped`]) when asked to.
 
 use crate::source::reader::{self, Block, ReaderOptions, ReaderStats};
 use crate::source::{InputIssues, SampleSource, SourceInfo};
@@ -14,12 +17,23 @@ pub const LIVE_QUEUE_BLOCKS: usize = 64;
 /// For files a short queue suffices (the reader simply waits) and keeps memory low.
 pub const FILE_QUEUE_BLOCKS: usize = 8;
 
+/// Samples per block for input that is watched as it arrives (live sources, paced playback):
+/// about 10 ms of signal, so records and the screen follow the signal closely and a row never
+/// waits on a block; files read for a report use large blocks, which read faster.
+pub fn live_block_len(sample_rate_hz: f64) -> usize {
+    (sample_rate_hz / 100.0).clamp(1024.0, 65536.0) as usize
+}
+
+/// Samples per block for input read as fast as it comes.
+pub const FILE_BLOCK_LEN: usize = 65536;
+
 /// A running reader and the receiving end of its queue.
 pub struct Input {
     pub info: SourceInfo,
     pub blocks: Receiver<Block>,
     pub stats: Arc<ReaderStats>,
     pub stop: Arc<AtomicBool>,
+    max_samples: Option<u64>,
     handle: Option<JoinHandle<Result<InputIssues>>>,
 }
 
@@ -29,13 +43,24 @@ impl Input {
         let (tx, rx) = bounded(if info.live { LIVE_QUEUE_BLOCKS } else { FILE_QUEUE_BLOCKS });
         let stats = Arc::new(ReaderStats::default());
         let stop = Arc::new(AtomicBool::new(false));
+        let max_samples = opts.max_samples;
         let handle = reader::spawn(src, opts, tx, stop.clone(), stats.clone());
-        Input { info, blocks: rx, stats, stop, handle: Some(handle) }
+        Input { info, blocks: rx, stats, stop, max_samples, handle: Some(handle) }
+    }
+
+    /// The most samples the reader was asked to take (`--seconds`), if limited.
+    pub fn max_samples(&self) -> Option<u64> {
+        self.max_samples
     }
 
     /// Asks the reader to stop at its next block.
     pub fn request_stop(&self) {
         self.stop.store(true, Ordering::SeqCst);
+    }
+
+    /// Samples the reader has taken from the source so far (delivered or dropped).
+    pub fn samples_read(&self) -> u64 {
+        self.stats.samples.load(Ordering::SeqCst)
     }
 
     /// Waits for the reader and returns what it found wrong with the input, or its error.

@@ -1,0 +1,218 @@
+//! Flag groups several commands share: where samples come from, how the spectrum is estimated,
+//! which channels are measured; and the value parsers every flag uses, each written once.
+
+use crate::dsp::{DspConfig, EngineConfig, WindowKind};
+use crate::output::report::Band;
+use crate::plan::{check_threshold_db, parse_channel_flag, Channel, Plan, DEFAULT_THRESHOLD_DB};
+use crate::source::{InputRequest, SampleFormat};
+use crate::units::{parse_duration, parse_hz, parse_positive_hz};
+use anyhow::Result;
+use clap::Args;
+use std::time::Duration;
+use time::format_description::well_known::Rfc3339;
+use time::OffsetDateTime;
+
+/// Where samples come from and how to read them.
+#[derive(Args, Debug, Clone, Default)]
+pub struct InputArgs {
+    /// Sample format (SigMF names): cu8, ci8, ci16_le, ci16_be, ci32_le, cf32_le, cf32_be,
+    /// cf64_le. Overrides a SigMF file; guessed from .cu8/.cs8/.cs16/.cf32 when absent.
+    #[arg(long, value_name = "FORMAT", value_parser = parse_format)]
+    pub format: Option<SampleFormat>,
+    /// Sample rate in samples/s (e.g. 2.4M); overrides the file's own.
+    #[arg(long, value_name = "HZ", value_parser = parse_positive_hz)]
+    pub rate: Option<f64>,
+    /// Centre frequency in Hz (e.g. 433.92M) so the axis shows absolute frequency.
+    #[arg(long, value_name = "HZ", value_parser = parse_hz)]
+    pub center: Option<f64>,
+    /// Time of the first sample, RFC 3339 (e.g. 2026-05-01T08:00:00Z); overrides SigMF
+    /// core:datetime.
+    #[arg(long, value_name = "TIME", value_parser = parse_time)]
+    pub start: Option<OffsetDateTime>,
+}
+
+impl InputArgs {
+    /// The request for `path` (`None`: the demo scene, `-`: stdin).
+    pub fn request(&self, path: Option<String>) -> InputRequest {
+        InputRequest {
+            path,
+            format: self.format,
+            sample_rate_hz: self.rate,
+            center_hz: self.center,
+            start_time: self.start,
+            realtime: false,
+        }
+    }
+}
+
+/// How the spectrum is estimated.
+#[derive(Args, Debug, Clone)]
+pub struct DspArgs {
+    /// FFT size in samples, 16 ..= 1048576 (any length; powers of two are fastest).
+    #[arg(long = "fft", value_name = "N", default_value_t = 4096)]
+    pub fft_size: usize,
+    /// Window: rect, hann, hamming, blackman, blackman-harris, flattop, kaiser:BETA.
+    #[arg(long, value_name = "NAME", default_value = "hann", value_parser = parse_window)]
+    pub window: WindowKind,
+    /// Fraction of each FFT frame shared with the next, 0 ..= 0.95.
+    #[arg(long, value_name = "FRACTION", default_value_t = 0.5)]
+    pub overlap: f64,
+    /// Threads for the transforms [default: one per core, at most 8]; 1 leaves the other cores
+    /// free.
+    #[arg(long, value_name = "N", value_parser = clap::value_parser!(u16).range(1..=256))]
+    pub threads: Option<u16>,
+}
+
+impl Default for DspArgs {
+    fn default() -> Self {
+        DspArgs { fft_size: 4096, window: WindowKind::Hann, overlap: 0.5, threads: None }
+    }
+}
+
+impl DspArgs {
+    /// Checks the ranges; threads default to one per core.
+    pub fn validate(&self) -> Result<DspConfig> {
+        let threads = self.threads.map_or_else(
+            || std::thread::available_parallelism().map_or(1, |n| n.get()),
+            |t| t as usize,
+        );
+        let cfg = DspConfig {
+            fft_size: self.fft_size,
+            window: self.window,
+            overlap: self.overlap,
+            threads,
+        };
+        EngineConfig::validate(&cfg.engine(None)).map_err(anyhow::Error::msg)?;
+        Ok(cfg)
+    }
+}
+
+/// The channels of a run: a plan file and channels given one by one (`log`, `measure`, `watch`).
+#[derive(Args, Debug, Clone, Default)]
+pub struct PlanArgs {
+    /// A channel, NAME=CENTER:WIDTH in absolute Hz (e.g. north-gate=433.1M:25k); repeatable,
+    /// combines with --plan.
+    #[arg(
+        long = "channel",
+        value_name = "NAME=CENTER:WIDTH",
+        value_parser = parse_channel_flag,
+        help_heading = "Channels"
+    )]
+    pub channels: Vec<Channel>,
+    #[arg(
+        long,
+        value_name = "FILE.toml",
+        help_heading = "Channels",
+        help = "A channel plan: a TOML file of [[channel]] tables with name, center, width and an optional threshold_db"
+    )]
+    pub plan: Option<String>,
+}
+
+impl PlanArgs {
+    /// The plan file and the flags combined, checked (possibly empty).
+    pub fn validate(&self) -> Result<Plan> {
+        Plan::from_parts(self.plan.as_deref(), &self.channels)
+    }
+}
+
+/// Options shared by every command that measures channels (`log`, `measure`).
+#[derive(Args, Debug, Clone)]
+pub struct ChannelArgs {
+    #[command(flatten)]
+    pub plan: PlanArgs,
+    /// Length of one measurement sample (one averaged row of FFT frames), e.g. 10ms; rounded to
+    /// a whole number of FFT hops. Default: the most hops that fit in 10 ms.
+    #[arg(long, value_name = "DURATION", value_parser = parse_duration, help_heading = "Channels")]
+    pub dwell: Option<Duration>,
+    /// A channel is occupied in a sample when its power exceeds the noise in its width by this
+    /// many dB (ITU-R SM.1880); a plan's threshold_db overrides it per channel.
+    #[arg(long, value_name = "DB", default_value_t = DEFAULT_THRESHOLD_DB, help_heading = "Channels")]
+    pub threshold_db: f64,
+}
+
+impl Default for ChannelArgs {
+    fn default() -> Self {
+        ChannelArgs { plan: PlanArgs::default(), dwell: None, threshold_db: DEFAULT_THRESHOLD_DB }
+    }
+}
+
+/// Channels to measure, validated: the plan (possibly empty) and how they are sampled.
+#[derive(Clone, Debug, PartialEq)]
+pub struct ChannelConfig {
+    pub plan: Plan,
+    /// Length of one measurement sample, seconds; `None` for the default.
+    pub dwell_s: Option<f64>,
+    pub threshold_db: f64,
+}
+
+impl ChannelArgs {
+    pub fn validate(&self) -> Result<ChannelConfig> {
+        check_threshold_db(self.threshold_db)?;
+        Ok(ChannelConfig {
+            plan: self.plan.validate()?,
+            dwell_s: self.dwell.map(|d| d.as_secs_f64()),
+            threshold_db: self.threshold_db,
+        })
+    }
+}
+
+/// `--band CENTER:WIDTH` in absolute hertz.
+pub fn parse_band(text: &str) -> Result<Band, String> {
+    let (c, w) = text
+        .split_once(':')
+        .ok_or_else(|| format!("band '{text}' must be CENTER:WIDTH, e.g. 433.92M:25k"))?;
+    let center_hz = parse_hz(c)?;
+    let width_hz = parse_positive_hz(w).map_err(|e| format!("band '{text}': width {e}"))?;
+    Ok(Band { center_hz, width_hz })
+}
+
+pub fn parse_format(text: &str) -> Result<SampleFormat, String> {
+    text.parse()
+}
+
+pub fn parse_window(text: &str) -> Result<WindowKind, String> {
+    text.parse()
+}
+
+pub fn parse_time(text: &str) -> Result<OffsetDateTime, String> {
+    OffsetDateTime::parse(text.trim(), &Rfc3339)
+        .map_err(|e| format!("'{text}' is not an RFC 3339 time such as 2026-05-01T08:00:00Z ({e})"))
+}
+
+/// `--seconds`: how much input to take, a positive number of seconds.
+pub fn parse_seconds(text: &str) -> Result<f64, String> {
+    let s: f64 = text.trim().parse().map_err(|_| format!("'{text}' is not a number of seconds"))?;
+    if !(s > 0.0 && s.is_finite()) {
+        return Err(format!("{s} must be a positive number of seconds"));
+    }
+    Ok(s)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn band_parses_with_suffixes() {
+        assert_eq!(
+            parse_band("433.92M:25k").unwrap(),
+            Band { center_hz: 433.92e6, width_hz: 25e3 }
+        );
+        assert!(parse_band("433.92M").unwrap_err().contains("CENTER:WIDTH"));
+        assert!(parse_band("433.92M:0").unwrap_err().contains("greater than zero"));
+    }
+
+    #[test]
+    fn start_time_is_rfc3339() {
+        assert!(parse_time("2026-05-01T08:00:00Z").is_ok());
+        assert!(parse_time("yesterday").unwrap_err().contains("RFC 3339"));
+    }
+
+    #[test]
+    fn seconds_are_positive_and_finite() {
+        assert_eq!(parse_seconds("2.5"), Ok(2.5));
+        for bad in ["0", "-1", "nan", "inf", "soon"] {
+            assert!(parse_seconds(bad).is_err(), "{bad}");
+        }
+    }
+}

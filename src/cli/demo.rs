@@ -1,0 +1,103 @@
+//! `demo` flags and their validation.
+
+use super::common::{parse_format, parse_seconds, parse_time};
+use crate::source::demo::{DEFAULT_CENTER_HZ, DEFAULT_SEED};
+use crate::source::SampleFormat;
+use crate::units::{parse_hz, parse_positive_hz};
+use anyhow::{bail, Result};
+use clap::Args;
+use time::OffsetDateTime;
+
+#[derive(Args, Debug)]
+pub struct DemoArgs {
+    /// Output file, or - for stdout. A name ending .sigmf-meta/.sigmf-data writes a SigMF pair.
+    #[arg(short = 'o', long = "out", value_name = "FILE", default_value = "-")]
+    pub out: String,
+    /// Sample format to write.
+    #[arg(long, value_name = "FORMAT", default_value = "cf32_le", value_parser = parse_format)]
+    pub format: SampleFormat,
+    /// Sample rate in samples/s.
+    #[arg(long, value_name = "HZ", default_value = "2.4M", value_parser = parse_positive_hz)]
+    pub rate: f64,
+    /// Centre frequency in Hz (written to SigMF metadata).
+    #[arg(long, value_name = "HZ", value_parser = parse_hz)]
+    pub center: Option<f64>,
+    /// Seconds of signal to write; without it, stdout gets an endless stream.
+    #[arg(long, value_name = "SECONDS", value_parser = parse_seconds)]
+    pub seconds: Option<f64>,
+    /// Write at the sample rate, as a receiver would, instead of as fast as possible.
+    #[arg(long)]
+    pub realtime: bool,
+    /// Time of the first sample, RFC 3339 (e.g. 2026-05-01T08:00:00Z), written to SigMF
+    /// core:datetime.
+    #[arg(long, value_name = "TIME", value_parser = parse_time)]
+    pub start: Option<OffsetDateTime>,
+    /// Seed of the scene's noise and phases (keying and levels do not depend on it).
+    #[arg(long, value_name = "N", default_value_t = DEFAULT_SEED)]
+    pub seed: u64,
+}
+
+/// A validated `demo`.
+#[derive(Clone, Debug)]
+pub struct DemoConfig {
+    pub out: String,
+    pub format: SampleFormat,
+    pub rate: f64,
+    pub center_hz: f64,
+    /// Samples to write; `None` for an endless stream.
+    pub total_samples: Option<u64>,
+    pub realtime: bool,
+    pub start: Option<OffsetDateTime>,
+    pub seed: u64,
+}
+
+impl DemoArgs {
+    pub fn validate(self) -> Result<DemoConfig> {
+        let total_samples = match self.seconds {
+            Some(s) => Some((s * self.rate).round() as u64),
+            None if self.out != "-" => {
+                bail!("writing to a file needs --seconds (how long a recording to make)")
+            }
+            None => None,
+        };
+        Ok(DemoConfig {
+            out: self.out,
+            format: self.format,
+            rate: self.rate,
+            center_hz: self.center.unwrap_or(DEFAULT_CENTER_HZ),
+            total_samples,
+            realtime: self.realtime,
+            start: self.start,
+            seed: self.seed,
+        })
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use crate::cli::{Cli, Command};
+    use clap::Parser;
+
+    #[test]
+    fn demo_flags() {
+        let cli = Cli::try_parse_from([
+            "bandwarden",
+            "demo",
+            "--rate",
+            "1M",
+            "--start",
+            "2031-04-17T06:30:00Z",
+            "--seed",
+            "9",
+        ])
+        .unwrap();
+        let Some(Command::Demo(d)) = cli.command else { panic!("not demo") };
+        assert_eq!(d.rate, 1e6);
+        assert_eq!(d.start.unwrap().unix_timestamp(), 1_934_173_800);
+        assert_eq!(d.seed, 9);
+        assert!(Cli::try_parse_from(["bandwarden", "demo", "--start", "today"]).is_err());
+        let file = Cli::try_parse_from(["bandwarden", "demo", "-o", "x.cf32"]).unwrap();
+        let Some(Command::Demo(f)) = file.command else { panic!("not demo") };
+        assert!(f.validate().unwrap_err().to_string().contains("--seconds"));
+    }
+}

@@ -1,0 +1,144 @@
+//! `log` flags and their validation.
+
+use super::common::{parse_seconds, ChannelArgs, ChannelConfig, DspArgs, InputArgs};
+use crate::dsp::DspConfig;
+use crate::output::log::LogFormat;
+use crate::source::InputRequest;
+use crate::units::parse_duration;
+use anyhow::{bail, Result};
+use clap::Args;
+use std::time::Duration;
+
+#[derive(Args, Debug)]
+pub struct LogArgs {
+    /// Input: a file (raw, .sigmf-meta/.sigmf-data, .wav) or - for stdin (live).
+    #[arg(value_name = "INPUT")]
+    pub input: String,
+    #[command(flatten)]
+    pub source: InputArgs,
+    #[command(flatten)]
+    pub dsp: DspArgs,
+    /// Length of each occupancy record (interval), e.g. 10s, 15m, 1h.
+    #[arg(long, value_name = "DURATION", default_value = "60s", value_parser = parse_duration)]
+    pub interval: Duration,
+    /// An emission ends after this long below threshold (rounded up to whole samples).
+    #[arg(long, value_name = "DURATION", default_value = "25ms", value_parser = parse_duration)]
+    pub hang: Duration,
+    /// Write the log here (default stdout, -); a file is replaced unless --append.
+    #[arg(short = 'o', long = "out", value_name = "FILE", default_value = "-")]
+    pub out: String,
+    /// Add to the end of --out instead of replacing it.
+    #[arg(long)]
+    pub append: bool,
+    /// CSV with a header row instead of JSON Lines.
+    #[arg(long)]
+    pub csv: bool,
+    /// Live input: make the source wait when processing falls behind, instead of dropping (and
+    /// logging) blocks.
+    #[arg(long)]
+    pub no_drop: bool,
+    /// Stop after this many seconds of input.
+    #[arg(long, value_name = "SECONDS", value_parser = parse_seconds)]
+    pub seconds: Option<f64>,
+    #[command(flatten)]
+    pub channels: ChannelArgs,
+}
+
+/// A validated `log`.
+#[derive(Clone, Debug)]
+pub struct LogConfig {
+    pub input: InputRequest,
+    pub dsp: DspConfig,
+    pub channels: ChannelConfig,
+    pub interval_s: f64,
+    pub hang_s: f64,
+    /// A path, or `-` for stdout.
+    pub out: String,
+    pub append: bool,
+    pub format: LogFormat,
+    pub no_drop: bool,
+    pub seconds: Option<f64>,
+}
+
+impl LogArgs {
+    pub fn validate(self) -> Result<LogConfig> {
+        let channels = self.channels.validate()?;
+        if channels.plan.is_empty() {
+            bail!("log needs channels: give --plan FILE.toml or --channel NAME=CENTER:WIDTH");
+        }
+        if self.interval.is_zero() {
+            bail!("--interval must be longer than zero (e.g. 60s)");
+        }
+        Ok(LogConfig {
+            dsp: self.dsp.validate()?,
+            input: self.source.request(Some(self.input)),
+            channels,
+            interval_s: self.interval.as_secs_f64(),
+            hang_s: self.hang.as_secs_f64(),
+            out: self.out,
+            append: self.append,
+            format: if self.csv { LogFormat::Csv } else { LogFormat::JsonLines },
+            no_drop: self.no_drop,
+            seconds: self.seconds,
+        })
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use crate::cli::{Cli, Command};
+    use clap::Parser;
+    use std::time::Duration;
+
+    #[test]
+    fn log_flags_parse_with_units() {
+        let cli = Cli::try_parse_from([
+            "bandwarden",
+            "log",
+            "-",
+            "--format",
+            "cu8",
+            "--rate",
+            "2.4M",
+            "--channel",
+            "a=433.1M:25k",
+            "--plan",
+            "site.toml",
+            "--dwell",
+            "20ms",
+            "--threshold-db",
+            "6",
+            "--interval",
+            "15m",
+            "--hang",
+            "100ms",
+            "--csv",
+            "--append",
+            "--no-drop",
+            "-o",
+            "x.csv",
+            "--seconds",
+            "3600",
+        ])
+        .unwrap();
+        let Some(Command::Log(a)) = cli.command else { panic!("not log") };
+        assert_eq!(a.input, "-");
+        assert_eq!(a.channels.plan.channels[0].center_hz, 433.1e6);
+        assert_eq!(a.channels.plan.plan.as_deref(), Some("site.toml"));
+        assert_eq!(a.channels.dwell, Some(Duration::from_millis(20)));
+        assert_eq!(a.channels.threshold_db, 6.0);
+        assert_eq!(a.interval, Duration::from_secs(900));
+        assert_eq!(a.hang, Duration::from_millis(100));
+        assert!(a.csv && a.append && a.no_drop);
+        assert_eq!((a.out.as_str(), a.seconds), ("x.csv", Some(3600.0)));
+        let defaults = Cli::try_parse_from(["bandwarden", "log", "f.cu8"]).unwrap();
+        let Some(Command::Log(d)) = defaults.command else { panic!("not log") };
+        assert_eq!(d.interval.as_secs_f64(), crate::measure::occupancy::DEFAULT_INTERVAL_S);
+        assert_eq!(d.hang.as_secs_f64(), crate::measure::occupancy::DEFAULT_HANG_S);
+        assert_eq!(d.channels.threshold_db, crate::plan::DEFAULT_THRESHOLD_DB);
+        assert_eq!(d.out, "-");
+        assert!(Cli::try_parse_from(["bandwarden", "log", "f", "--interval", "soon"]).is_err());
+        assert!(Cli::try_parse_from(["bandwarden", "log", "f", "--channel", "a=1M"]).is_err());
+        assert!(Cli::try_parse_from(["bandwarden", "log"]).is_err(), "INPUT is required");
+    }
+}

@@ -1,0 +1,86 @@
+//! `measure` flags and their validation.
+
+use super::common::{parse_band, parse_seconds, ChannelArgs, ChannelConfig};
+use super::common::{DspArgs, InputArgs};
+use crate::dsp::DspConfig;
+use crate::output::report::Band;
+use crate::source::InputRequest;
+use anyhow::{bail, Result};
+use clap::Args;
+
+/// Seconds of the demo scene measured when no input and no `--seconds` are given.
+const DEMO_SECONDS: f64 = 2.0;
+
+#[derive(Args, Debug)]
+pub struct MeasureArgs {
+    /// Input: a file (raw, .sigmf-meta/.sigmf-data, .wav) or - for stdin. Default: the demo scene.
+    #[arg(value_name = "INPUT")]
+    pub input: Option<String>,
+    #[command(flatten)]
+    pub source: InputArgs,
+    #[command(flatten)]
+    pub dsp: DspArgs,
+    /// Read at most this many seconds of input (the demo scene defaults to 2 s).
+    #[arg(long, value_name = "SECONDS", value_parser = parse_seconds)]
+    pub seconds: Option<f64>,
+    /// How many of the strongest signals to list.
+    #[arg(long, value_name = "K", default_value_t = 10)]
+    pub peaks: usize,
+    /// A band to measure, CENTER:WIDTH in Hz (absolute, e.g. 433.92M:25k); repeatable.
+    #[arg(long = "band", value_name = "CENTER:WIDTH", value_parser = parse_band)]
+    pub bands: Vec<Band>,
+    /// Occupied bandwidth: percentage of a band's power inside it (ITU-R SM.328 β = 100 − this).
+    #[arg(long, value_name = "PERCENT", default_value_t = 99.0)]
+    pub obw_percent: f64,
+    /// x for the x-dB bandwidth, in dB below the band's highest PSD.
+    #[arg(long, value_name = "DB", default_value_t = 26.0)]
+    pub xdb: f64,
+    /// Print one JSON object instead of the table.
+    #[arg(long)]
+    pub json: bool,
+    #[command(flatten)]
+    pub channels: ChannelArgs,
+}
+
+/// A validated `measure`.
+#[derive(Clone, Debug)]
+pub struct MeasureConfig {
+    pub input: InputRequest,
+    pub dsp: DspConfig,
+    /// Seconds of input to take at most.
+    pub seconds: Option<f64>,
+    pub peaks: usize,
+    pub bands: Vec<Band>,
+    pub obw_percent: f64,
+    pub xdb: f64,
+    pub json: bool,
+    pub channels: ChannelConfig,
+}
+
+impl MeasureArgs {
+    pub fn validate(self) -> Result<MeasureConfig> {
+        if self.obw_percent.is_nan() || self.obw_percent <= 0.0 || self.obw_percent >= 100.0 {
+            bail!(
+                "--obw-percent {} is out of range; choose a value between 0 and 100 (99 is usual)",
+                self.obw_percent
+            );
+        }
+        if self.xdb.is_nan() || self.xdb <= 0.0 {
+            bail!("--xdb {} must be a positive number of dB (26 is usual)", self.xdb);
+        }
+        let dsp = self.dsp.validate()?;
+        let channels = self.channels.validate()?;
+        let demo = self.input.is_none();
+        Ok(MeasureConfig {
+            input: self.source.request(self.input),
+            dsp,
+            seconds: self.seconds.or(demo.then_some(DEMO_SECONDS)),
+            peaks: self.peaks,
+            bands: self.bands,
+            obw_percent: self.obw_percent,
+            xdb: self.xdb,
+            json: self.json,
+            channels,
+        })
+    }
+}

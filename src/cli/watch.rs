@@ -1,0 +1,202 @@
+//! `watch` flags and their validation.
+
+use super::common::{DspArgs, InputArgs, PlanArgs};
+use crate::pipeline::latest::RowSettings;
+use crate::plan::Plan;
+use crate::source::InputRequest;
+use crate::tui::colour::Depth;
+use anyhow::{bail, Result};
+use clap::Args;
+
+#[derive(Args, Debug)]
+pub struct WatchArgs {
+    /// Input: a file (raw, .sigmf-meta/.sigmf-data, .wav) or - for stdin. Default: the demo scene.
+    #[arg(value_name = "INPUT")]
+    pub input: Option<String>,
+    #[command(flatten)]
+    pub source: InputArgs,
+    #[command(flatten)]
+    pub dsp: DspArgs,
+    /// Screen updates per second at most, 1 ..= 60.
+    #[arg(long, value_name = "N", default_value_t = 20.0)]
+    pub fps: f64,
+    /// Waterfall rows per second of input, 0.1 ..= 200; each row averages the FFT frames of
+    /// its time.
+    #[arg(long, value_name = "N", default_value_t = 20.0)]
+    pub row_rate: f64,
+    /// Play a file at this multiple of its recorded rate (1 = as recorded).
+    #[arg(long, value_name = "X", default_value_t = 1.0)]
+    pub speed: f64,
+    /// Start a file again when it ends.
+    #[arg(long = "loop")]
+    pub loop_input: bool,
+    /// Add this many dB to every level shown, turning dBFS into dBm for a calibrated receiver.
+    #[arg(long, value_name = "DB", allow_negative_numbers = true)]
+    pub ref_offset: Option<f64>,
+    #[command(flatten)]
+    pub channels: PlanArgs,
+    /// Colours: auto (24-bit when COLORTERM says truecolor or 24bit, none under NO_COLOR,
+    /// else 256), 24bit, 256 or mono.
+    #[arg(long, value_name = "MODE", default_value = "auto", value_parser = parse_colour)]
+    pub colour: ColourChoice,
+    /// Redraw the waterfall cell by cell instead of scrolling it with the terminal's scroll
+    /// region; for a terminal that mishandles scroll regions (sends many more bytes).
+    #[arg(long)]
+    pub no_scroll_region: bool,
+    /// Leave the mouse to the terminal (e.g. for selecting text) instead of placing markers.
+    #[arg(long)]
+    pub no_mouse: bool,
+}
+
+/// `--colour`: automatic or forced.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum ColourChoice {
+    Auto,
+    Forced(Depth),
+}
+
+pub fn parse_colour(text: &str) -> Result<ColourChoice, String> {
+    match text {
+        "auto" => Ok(ColourChoice::Auto),
+        "24bit" | "truecolor" => Ok(ColourChoice::Forced(Depth::TrueColour)),
+        "256" => Ok(ColourChoice::Forced(Depth::Palette256)),
+        "mono" => Ok(ColourChoice::Forced(Depth::Mono)),
+        _ => Err(format!("'{text}' is not a colour mode; choose auto, 24bit, 256 or mono")),
+    }
+}
+
+/// A validated `watch`.
+#[derive(Clone, Debug)]
+pub struct WatchConfig {
+    pub input: InputRequest,
+    pub rows: RowSettings,
+    pub fps: f64,
+    pub speed: f64,
+    pub loop_input: bool,
+    pub ref_offset: Option<f64>,
+    pub plan: Plan,
+    pub colour: ColourChoice,
+    pub scroll_region: bool,
+    pub mouse: bool,
+}
+
+impl WatchArgs {
+    pub fn validate(self) -> Result<WatchConfig> {
+        let dsp = self.dsp.validate()?;
+        if !(1.0..=60.0).contains(&self.fps) {
+            bail!("--fps {} is out of range; choose 1 ..= 60 (20 is usual)", self.fps);
+        }
+        if !(0.1..=200.0).contains(&self.row_rate) {
+            bail!(
+                "--row-rate {} is out of range; choose 0.1 ..= 200 rows per second",
+                self.row_rate
+            );
+        }
+        if !(self.speed > 0.0 && self.speed.is_finite()) {
+            bail!(
+                "--speed {} must be a positive number (1 plays at the recorded rate)",
+                self.speed
+            );
+        }
+        if self.ref_offset.is_some_and(|o| !o.is_finite()) {
+            bail!("--ref-offset must be a finite number of dB");
+        }
+        let plan = self.channels.validate()?;
+        let mut input = self.source.request(self.input);
+        input.realtime = input.path.is_none();
+        Ok(WatchConfig {
+            input,
+            rows: RowSettings::new(dsp, self.row_rate),
+            fps: self.fps,
+            speed: self.speed,
+            loop_input: self.loop_input,
+            ref_offset: self.ref_offset,
+            plan,
+            colour: self.colour,
+            scroll_region: !self.no_scroll_region,
+            mouse: !self.no_mouse,
+        })
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::cli::{Cli, Command};
+    use clap::Parser;
+
+    fn parse(args: &[&str]) -> WatchArgs {
+        let mut all = vec!["bandwarden", "watch"];
+        all.extend_from_slice(args);
+        match Cli::try_parse_from(all).unwrap().command {
+            Some(Command::Watch(w)) => w,
+            other => panic!("not watch: {other:?}"),
+        }
+    }
+
+    fn error(args: &[&str]) -> String {
+        parse(args).validate().unwrap_err().to_string()
+    }
+
+    #[test]
+    fn defaults_are_sensible() {
+        let w = parse(&[]);
+        assert_eq!(w.input, None);
+        assert_eq!(w.fps, 20.0);
+        assert_eq!(w.row_rate, 20.0);
+        assert_eq!(w.speed, 1.0);
+        assert!(!w.loop_input && !w.no_scroll_region);
+        assert_eq!(w.colour, ColourChoice::Auto);
+        let c = w.validate().unwrap();
+        assert!(c.input.realtime, "the demo scene plays live");
+    }
+
+    #[test]
+    fn flags_parse_with_units() {
+        let w = parse(&[
+            "rec.sigmf-meta",
+            "--fft",
+            "8192",
+            "--speed",
+            "4",
+            "--loop",
+            "--ref-offset",
+            "-30.5",
+            "--channel",
+            "gate=433.2625M:12.5k",
+            "--plan",
+            "site.toml",
+            "--colour",
+            "mono",
+            "--fps",
+            "15",
+        ]);
+        assert_eq!(w.input.as_deref(), Some("rec.sigmf-meta"));
+        assert_eq!(w.dsp.fft_size, 8192);
+        assert_eq!(w.speed, 4.0);
+        assert!(w.loop_input);
+        assert_eq!(w.ref_offset, Some(-30.5));
+        let c = &w.channels.channels[0];
+        assert_eq!((c.name.as_str(), c.center_hz), ("gate", 433.2625e6));
+        assert_eq!(w.channels.plan.as_deref(), Some("site.toml"));
+        assert_eq!(w.colour, ColourChoice::Forced(Depth::Mono));
+        assert_eq!(w.fps, 15.0);
+    }
+
+    #[test]
+    fn bad_values_are_explained() {
+        assert!(error(&["--fps", "0"]).contains("1 ..= 60"));
+        assert!(parse(&["--speed=-1"]).validate().is_err());
+        assert!(error(&["--speed", "0"]).contains("--speed"));
+        assert!(error(&["--row-rate", "1000"]).contains("--row-rate"));
+        assert!(error(&["--fft", "8"]).contains("FFT size"));
+        let bad = |a: &[&str]| {
+            let mut all = vec!["bandwarden", "watch"];
+            all.extend_from_slice(a);
+            Cli::try_parse_from(all).unwrap_err().to_string()
+        };
+        assert!(bad(&["--channel", "433.92M:25k"]).contains("NAME=CENTER:WIDTH"));
+        assert!(bad(&["--channel", "bad\x1b[2J=1M:1k"]).contains("control characters"));
+        assert!(parse_colour("16").unwrap_err().contains("auto, 24bit, 256 or mono"));
+    }
+}

@@ -1,0 +1,66 @@
+//! Notes to the user and the start-up instant: the bottom layer every other module may use.
+//!
+//! Library code mostly returns notes and errors and lets the command print them; what is printed
+//! goes through here so that every line carries the program's prefix and no text that came from a
+//! file or a flag can move the cursor, change colours or reach the clipboard of the terminal.
+
+use std::sync::OnceLock;
+use std::time::Instant;
+
+/// When the process started, for the start-up figure `watch` reports.
+pub static STARTED: OnceLock<Instant> = OnceLock::new();
+
+/// Records the start of the process (the first call wins).
+pub fn mark_start() -> Instant {
+    *STARTED.get_or_init(Instant::now)
+}
+
+/// Prints a non-fatal note for the user on stderr, with the program's prefix.
+pub fn note(text: &str) {
+    eprintln!("bandwarden: {}", sanitize_message(text));
+}
+
+/// Removes control characters (including ESC) from text that came from a file, so metadata
+/// cannot move the cursor or change colours when shown in a terminal.
+pub fn sanitize(text: &str) -> String {
+    text.chars().map(|c| if c.is_control() { '?' } else { c }).collect()
+}
+
+/// As [`sanitize`], but keeps line breaks and tabs, which messages use for layout.
+pub fn sanitize_message(text: &str) -> String {
+    text.chars().map(|c| if c.is_control() && c != '\n' && c != '\t' { '?' } else { c }).collect()
+}
+
+/// Tells the user what was wrong with the input but did not stop the run.
+pub fn report_input_issues(issues: &crate::source::InputIssues) {
+    if issues.non_finite > 0 {
+        note(&format!("skipped {} samples holding NaN or infinity", issues.non_finite));
+    }
+    if issues.beyond_scale > 0 {
+        note(&format!(
+            "{} float samples lie beyond ±1e6 while full scale is ±1: the input is probably not in the format it was read as; check --format",
+            issues.beyond_scale
+        ));
+    }
+    if issues.trailing_bytes > 0 {
+        note(&format!(
+            "dropped {} bytes at the end that do not make a whole sample (wrong --format, or a cut file?)",
+            issues.trailing_bytes
+        ));
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn control_characters_never_pass() {
+        // ESC (CSI), BEL and an OSC 52 clipboard request: the three ways a string can act on a
+        // terminal (ECMA-48 control functions; common practice to strip them).
+        let hostile = "a\x1b[2Jb\x07c\x1b]52;c;aGk=\x07d";
+        assert!(!sanitize(hostile).chars().any(|c| c.is_control()));
+        assert!(!sanitize_message(hostile).chars().any(|c| c.is_control() && c != '\n'));
+        assert_eq!(sanitize_message("two\nlines"), "two\nlines");
+    }
+}

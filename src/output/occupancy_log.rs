@@ -1,0 +1,271 @@
+//! The occupancy log as a pipeline consumer: the run's settings, then every interval, emission
+//! and gap as it becomes final, then why the run stopped. The record schema is in [`super::log`].
+
+use super::log::{
+    ChannelRecord, DroppedRecord, EmissionRecord, IntervalRecord, LogWriter, Record, StartRecord,
+    StopRecord,
+};
+use crate::measure::occupancy::{Event, FLOOR_MEMORY_S, FLOOR_SMOOTHING_S, OBW_PERCENT};
+use crate::pipeline::clock::rfc3339_ms;
+use crate::pipeline::occupancy::OccupancySetup;
+use crate::pipeline::{Consumer, RunEnd, RunInfo};
+use crate::plan::Plan;
+use crate::units::db;
+use std::io::{self, Write};
+
+/// Writes the log of one run.
+pub struct OccupancyLog<W: Write> {
+    writer: LogWriter<W>,
+    plan: Plan,
+    setup: OccupancySetup,
+}
+
+impl<W: Write> OccupancyLog<W> {
+    pub fn new(writer: LogWriter<W>, plan: &Plan, setup: &OccupancySetup) -> OccupancyLog<W> {
+        OccupancyLog { writer, plan: plan.clone(), setup: setup.clone() }
+    }
+
+    pub fn into_writer(self) -> W {
+        self.writer.into_inner()
+    }
+
+    fn start_record(&self, run: &RunInfo) -> StartRecord {
+        let s = &self.setup;
+        StartRecord {
+            version: env!("CARGO_PKG_VERSION").to_string(),
+            source: run.source.label.clone(),
+            sample_rate_hz: s.sample_rate_hz,
+            center_hz: run.source.center_hz,
+            fft_size: s.engine.fft_size,
+            window: s.engine.window.to_string(),
+            overlap: s.engine.overlap,
+            rbw_hz: round_to(s.rbw_hz, 3),
+            dwell_s: s.dwell_s(),
+            frames_per_sample: s.engine.frames_per_output.unwrap_or(1),
+            interval_s: s.interval_s,
+            hang_s: s.hang_s,
+            threshold_db: s.default_threshold_db,
+            obw_percent: OBW_PERCENT,
+            floor_memory_s: FLOOR_MEMORY_S,
+            floor_smoothing_s: FLOOR_SMOOTHING_S,
+            t_start_s: 0.0,
+            start: run.clock.start.and_then(rfc3339_ms),
+            time_source: run.time_source.as_str().to_string(),
+        }
+    }
+
+    fn record(&self, event: &Event, run: &RunInfo) -> Record {
+        let c = &run.clock;
+        match event {
+            Event::Interval(i) => {
+                let l = &self.plan.channels[i.channel];
+                Record::Interval(IntervalRecord {
+                    channel: l.name.clone(),
+                    center_hz: l.center_hz,
+                    width_hz: l.width_hz,
+                    t_start_s: c.seconds(i.start_sample),
+                    t_end_s: c.seconds(i.end_sample),
+                    start: c.stamp(i.start_sample),
+                    end: c.stamp(i.end_sample),
+                    occupancy_pct: round_to(i.occupancy_pct(), 3),
+                    mean_dbfs: round_to(db(i.mean_power), 2),
+                    peak_dbfs: round_to(db(i.peak_power), 2),
+                    noise_floor_dbfs_per_hz: round_to(db(i.noise_density), 2),
+                    samples: i.samples,
+                    occupied_samples: i.occupied,
+                    dropped_samples: i.dropped_samples,
+                    partial: i.partial,
+                })
+            }
+            Event::Emission(e) => {
+                let l = &self.plan.channels[e.channel];
+                Record::Emission(EmissionRecord {
+                    channel: l.name.clone(),
+                    center_hz: l.center_hz,
+                    t_start_s: c.seconds(e.start_sample),
+                    t_end_s: c.seconds(e.end_sample),
+                    start: c.stamp(e.start_sample),
+                    end: c.stamp(e.end_sample),
+                    duration_s: (e.end_sample - e.start_sample) as f64 / c.rate,
+                    peak_dbfs: round_to(db(e.peak_power), 2),
+                    mean_dbfs: round_to(db(e.mean_power), 2),
+                    obw_hz: e.obw_hz.map(|w| round_to(w, 1)),
+                    samples: e.samples,
+                    partial: e.partial,
+                })
+            }
+        }
+    }
+}
+
+impl<W: Write> Consumer for OccupancyLog<W> {
+    fn start(&mut self, run: &RunInfo) -> io::Result<()> {
+        self.writer.write(&Record::Start(self.start_record(run)))?;
+        for (c, def) in self.plan.channels.iter().zip(&self.setup.channels) {
+            self.writer.write(&Record::Channel(ChannelRecord {
+                channel: c.name.clone(),
+                center_hz: c.center_hz,
+                width_hz: c.width_hz,
+                threshold_db: def.threshold_db,
+            }))?;
+        }
+        Ok(())
+    }
+
+    fn event(&mut self, event: &Event, run: &RunInfo) -> io::Result<()> {
+        let rec = self.record(event, run);
+        self.writer.write(&rec)
+    }
+
+    fn gap(&mut self, from: u64, to: u64, run: &RunInfo) -> io::Result<()> {
+        let c = &run.clock;
+        self.writer.write(&Record::Dropped(DroppedRecord {
+            t_start_s: c.seconds(from),
+            t_end_s: c.seconds(to),
+            start: c.stamp(from),
+            end: c.stamp(to),
+            dropped_samples: to - from,
+        }))
+    }
+
+    fn finish(&mut self, end: &RunEnd, run: &RunInfo) -> io::Result<()> {
+        let c = &run.clock;
+        self.writer.write(&Record::Stop(StopRecord {
+            t_end_s: c.seconds(end.end_sample),
+            end: c.stamp(end.end_sample),
+            reason: end.reason.as_str().into(),
+            iq_samples: end.end_sample,
+            dropped_samples: end.dropped_samples,
+        }))
+    }
+}
+
+fn round_to(x: f64, decimals: i32) -> f64 {
+    let f = 10f64.powi(decimals);
+    (x * f).round() / f
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::dsp::{DspConfig, WindowKind};
+    use crate::measure::occupancy::tests::{band, Keyed, CENTER, FS};
+    use crate::output::log::LogFormat;
+    use crate::pipeline::occupancy::OccupancyRequest;
+    use crate::pipeline::{Run, RunSpec, StopReason, TimeSource};
+    use crate::plan::parse_channel_flag;
+    use crate::source::reader::Block;
+    use crate::source::SourceInfo;
+    use serde_json::Value;
+    use time::format_description::well_known::Rfc3339;
+    use time::OffsetDateTime;
+
+    fn setup(interval_s: f64) -> (OccupancySetup, Plan, SourceInfo) {
+        let info = SourceInfo {
+            label: "synthetic".into(),
+            format: None,
+            sample_rate_hz: FS,
+            center_hz: CENTER,
+            start_time: None,
+            total_samples: None,
+            live: true,
+        };
+        let dsp = DspConfig { fft_size: 512, window: WindowKind::Hann, overlap: 0.5, threads: 1 };
+        let channels =
+            ["busy=100.02M:10k", "idle=99.95M:10k"].map(|c| parse_channel_flag(c).unwrap());
+        let plan = Plan::from_parts(None, &channels).unwrap();
+        let req = OccupancyRequest {
+            dwell_s: None,
+            threshold_db: crate::plan::DEFAULT_THRESHOLD_DB,
+            interval_s,
+            hang_s: 0.025,
+        };
+        (OccupancySetup::new(&info, &dsp, &plan, &req).unwrap(), plan, info)
+    }
+
+    fn spec(setup: &OccupancySetup, info: &SourceInfo, start: Option<OffsetDateTime>) -> RunSpec {
+        let mut spec = RunSpec::new(info.clone(), setup.engine.clone(), 1);
+        spec.tracker = Some(setup.tracker());
+        spec.start_time = start;
+        spec.time_source = TimeSource::Option;
+        spec
+    }
+
+    fn lines(bytes: Vec<u8>) -> Vec<Value> {
+        String::from_utf8(bytes)
+            .unwrap()
+            .lines()
+            .map(|l| serde_json::from_str(l).expect("every line is one JSON object"))
+            .collect()
+    }
+
+    #[test]
+    fn a_gap_in_block_indices_is_logged_exactly_and_times_follow_the_sample_count() {
+        let on = |_: u64| true;
+        let x = band(600_000, &[Keyed { offset_hz: 20e3, level_dbfs: -30.0, on: &on }], 2);
+        let (setup, plan, info) = setup(1.0);
+        let writer = LogWriter::new(Vec::new(), LogFormat::JsonLines, true).unwrap();
+        let mut log = OccupancyLog::new(writer, &plan, &setup);
+        let t0 = OffsetDateTime::parse("2026-05-01T08:00:00Z", &Rfc3339).unwrap();
+        let mut run = Run::new(spec(&setup, &info, Some(t0)), vec![&mut log]);
+        // Blocks of 10 000 samples; the ones covering 250 000 .. 290 000 never arrive.
+        for start in (0..600_000).step_by(10_000) {
+            if (250_000..290_000).contains(&start) {
+                continue;
+            }
+            let block = Block::new(start as u64, x[start..start + 10_000].to_vec());
+            run.feed(&block).unwrap();
+        }
+        run.lost_tail(600_000).unwrap();
+        run.finish(StopReason::EndOfInput).unwrap();
+        drop(run);
+        let recs = lines(log.into_writer());
+        let kinds: Vec<&str> = recs.iter().map(|r| r["kind"].as_str().unwrap()).collect();
+        assert_eq!(&kinds[..3], ["start", "channel", "channel"]);
+        assert_eq!(*kinds.last().unwrap(), "stop");
+        assert_eq!(recs[0]["time_source"], "option");
+        let dropped: Vec<&Value> = recs.iter().filter(|r| r["kind"] == "dropped").collect();
+        assert_eq!(dropped.len(), 1);
+        assert_eq!(dropped[0]["dropped_samples"], 40_000);
+        assert_eq!(dropped[0]["t_start_s"], 1.25);
+        assert_eq!(dropped[0]["start"], "2026-05-01T08:00:01.250Z");
+        assert_eq!(dropped[0]["end"], "2026-05-01T08:00:01.450Z");
+        // The busy channel's emission is cut by the gap: two partial pieces, then the last one
+        // cut by the end of input.
+        let em: Vec<&Value> = recs.iter().filter(|r| r["kind"] == "emission").collect();
+        assert_eq!(em.len(), 2, "{em:?}");
+        assert!(em.iter().all(|e| e["channel"] == "busy" && e["partial"] == true));
+        // Intervals of 1 s: [0,1) full, [1,2) full with the gap counted, [2,3) partial.
+        let iv: Vec<&Value> =
+            recs.iter().filter(|r| r["kind"] == "interval" && r["channel"] == "busy").collect();
+        assert_eq!(iv.len(), 3);
+        assert_eq!(iv[1]["dropped_samples"], 40_000);
+        assert_eq!(iv[1]["t_end_s"], 2.0);
+        assert_eq!(iv[1]["end"], "2026-05-01T08:00:02.000Z");
+        assert_eq!(iv[2]["partial"], true);
+        assert_eq!(iv[2]["t_end_s"], 3.0);
+        assert!(iv.iter().all(|i| i["occupancy_pct"] == 100.0));
+        let idle: Vec<&Value> =
+            recs.iter().filter(|r| r["kind"] == "interval" && r["channel"] == "idle").collect();
+        assert!(idle.iter().all(|i| i["occupancy_pct"] == 0.0));
+        let stop = recs.last().unwrap();
+        assert_eq!(stop["iq_samples"], 600_000);
+        assert_eq!(stop["dropped_samples"], 40_000);
+        assert_eq!(stop["reason"], "end_of_input");
+    }
+
+    #[test]
+    fn an_empty_run_still_writes_start_and_stop() {
+        let (setup, plan, info) = setup(60.0);
+        let writer = LogWriter::new(Vec::new(), LogFormat::JsonLines, true).unwrap();
+        let mut log = OccupancyLog::new(writer, &plan, &setup);
+        let mut run = Run::new(spec(&setup, &info, None), vec![&mut log]);
+        run.finish(StopReason::Interrupted).unwrap();
+        drop(run);
+        let recs = lines(log.into_writer());
+        let kinds: Vec<&str> = recs.iter().map(|r| r["kind"].as_str().unwrap()).collect();
+        assert_eq!(kinds, ["start", "channel", "channel", "stop"]);
+        assert_eq!(recs[0]["time_source"], "none");
+        assert_eq!(recs[3]["reason"], "interrupted");
+    }
+}

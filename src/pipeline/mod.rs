@@ -1,0 +1,143 @@
+//! One pipeline, many consumers: sample blocks from the reader become rows (averaged spectra),
+//! rows become occupancy events, and every consumer sees them in the same order.
+//!
+//! ```text
+//!  reader thread ──blocks──► Run: Engine ──rows──► Occupancy tracker ──events──┐
+//!  (input.rs)                  │ gaps, end rules     │                          │
+//!                              ▼                     ▼                          ▼
+//!                        Consumer::block       Consumer::row              Consumer::event
+//! ```
+//!
+//! Everything that every command needs once lives here: starting the reader ([`input`]), driving
+//! blocks through the engine with gap and drop accounting and the end-of-input rules ([`run`]),
+//! why a run stopped and the signals that stop it ([`stop`]), sample-exact time ([`clock`]), and
+//! the newest-wins hand-over to a screen ([`latest`]). A command builds its consumers and calls
+//! [`run::run_input`]; adding a sink is one new type implementing [`Consumer`].
+//!
+//! # Rules
+//! - A **row** holds `frames_per_output` FFT frames. Only complete rows reach
+//!   [`Consumer::row`] and the occupancy tracker; the incomplete row left at a gap or at the end of
+//!   the input goes to [`Consumer::partial_row`] (a screen shows it, a log ignores it, a whole-input
+//!   average adds it). With `frames_per_output = None` the single row emitted at the end covers the
+//!   whole input and counts as complete.
+//! - A **gap** is a jump in the blocks' sample indices (a live source dropped samples while the DSP
+//!   was behind). The rows before it are finished first, then the tracker closes open emissions
+//!   (partial), then [`Consumer::gap`] is told the exact range. Time stays exact: indices count the
+//!   lost samples.
+//! - [`Consumer::start`] is called once, before the first block is handed over (or at the end of an
+//!   empty input), when the time of the first sample is settled: for live input without a known
+//!   start, the wall clock at the first block's arrival less that block's length.
+
+pub mod clock;
+pub mod input;
+pub mod latest;
+pub mod occupancy;
+pub mod run;
+pub mod stop;
+
+pub use clock::Clock;
+pub use input::Input;
+pub use run::{run_input, Run, RunSpec};
+pub use stop::{StopReason, StopSignals};
+
+use crate::dsp::{EngineConfig, Spectrum};
+use crate::measure::occupancy::Event;
+use crate::source::reader::Block;
+use crate::source::SourceInfo;
+use std::io;
+
+/// What a consumer may ask of the pipeline after a row or a poll.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Flow {
+    Continue,
+    /// End the run now (the reason recorded is [`StopReason::Limit`]).
+    Stop,
+    /// Rebuild the engine with new settings from the next block on (the live monitor's keys).
+    Retune(EngineConfig),
+}
+
+/// Where the time of the first sample came from, as the log's `start` record says it.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum TimeSource {
+    /// `--start` on the command line.
+    Option,
+    /// The recording's own metadata (SigMF `core:datetime`).
+    Recording,
+    /// Live input: the wall clock when the first block arrived.
+    WallClock,
+    None,
+}
+
+impl TimeSource {
+    pub fn as_str(self) -> &'static str {
+        match self {
+            TimeSource::Option => "option",
+            TimeSource::Recording => "sigmf",
+            TimeSource::WallClock => "wall_clock",
+            TimeSource::None => "none",
+        }
+    }
+}
+
+/// What every consumer is told when the run starts.
+#[derive(Clone, Debug)]
+pub struct RunInfo {
+    pub source: SourceInfo,
+    pub engine: EngineConfig,
+    pub clock: Clock,
+    pub time_source: TimeSource,
+}
+
+/// How a run ended.
+#[derive(Clone, Debug, PartialEq)]
+pub struct RunEnd {
+    pub reason: StopReason,
+    /// One past the last input sample handled (delivered or known lost).
+    pub end_sample: u64,
+    /// Input samples lost because processing fell behind a live source.
+    pub dropped_samples: u64,
+}
+
+/// Whatever takes part in a run. Every method has a default that does nothing, so a consumer
+/// implements only what it uses. An `Err` ends the run: the pipeline passes the first error on.
+pub trait Consumer {
+    /// Once, before the first block (see the module's rules).
+    fn start(&mut self, _run: &RunInfo) -> io::Result<()> {
+        Ok(())
+    }
+
+    /// Raw IQ, for consumers that keep samples (capture, recording) or count them (progress).
+    fn block(&mut self, _block: &Block) -> io::Result<()> {
+        Ok(())
+    }
+
+    /// A complete row.
+    fn row(&mut self, _row: &Spectrum) -> io::Result<Flow> {
+        Ok(Flow::Continue)
+    }
+
+    /// The incomplete row cut off by a gap or the end of the input.
+    fn partial_row(&mut self, _row: &Spectrum) -> io::Result<()> {
+        Ok(())
+    }
+
+    /// An occupancy event (interval summary, emission) from the tracker, when the run has one.
+    fn event(&mut self, _event: &Event, _run: &RunInfo) -> io::Result<()> {
+        Ok(())
+    }
+
+    /// Samples `[from, to)` were lost.
+    fn gap(&mut self, _from: u64, _to: u64, _run: &RunInfo) -> io::Result<()> {
+        Ok(())
+    }
+
+    /// Asked between blocks and while waiting for one (at least every 100 ms).
+    fn poll(&mut self) -> Flow {
+        Flow::Continue
+    }
+
+    /// Once, at the end of every run that started, whatever the reason.
+    fn finish(&mut self, _end: &RunEnd, _run: &RunInfo) -> io::Result<()> {
+        Ok(())
+    }
+}

@@ -1,0 +1,343 @@
+//! The drive loop, written once: blocks in, rows and occupancy events out to every consumer.
+//!
+//! [`Run`] holds the engine, the optional occupancy tracker and the consumers, and is fed block by
+//! block, so tests drive it with any blocks, gaps included, without threads. [`run_input`] adds
+//! the reader: it pumps blocks until the input ends, a signal comes or a consumer stops the run,
+//! then applies the end-of-input rules (samples read but never delivered are a gap; the reader's
+//! error ends the run as `input_error`) and finishes every consumer.
+
+use super::input::Input;
+use super::stop::{StopReason, StopSignals};
+use super::{Clock, Consumer, Flow, RunEnd, RunInfo, TimeSource};
+use crate::dsp::{Engine, EngineConfig, Spectrum};
+use crate::measure::occupancy::{Event, Occupancy};
+use crate::source::reader::Block;
+use crate::source::{InputIssues, SourceInfo};
+use anyhow::Result;
+use crossbeam_channel::{Receiver, RecvTimeoutError};
+use std::io;
+use std::time::Duration;
+use time::OffsetDateTime;
+
+/// Longest wait for a block before the loop looks at signals and consumers again.
+const POLL_INTERVAL: Duration = Duration::from_millis(50);
+
+/// Everything a run is built from.
+pub struct RunSpec {
+    pub source: SourceInfo,
+    pub engine: EngineConfig,
+    /// Transform threads (one per core unless `--threads` says otherwise).
+    pub threads: usize,
+    /// Occupancy tracking, for the consumers that take events.
+    pub tracker: Option<Occupancy>,
+    /// Time of the first sample and where it came from. Live input without one is stamped with
+    /// the wall clock at the first block.
+    pub start_time: Option<OffsetDateTime>,
+    pub time_source: TimeSource,
+}
+
+impl RunSpec {
+    /// A spec without tracker, timed from the source's own start time.
+    pub fn new(source: SourceInfo, engine: EngineConfig, threads: usize) -> RunSpec {
+        let time_source =
+            if source.start_time.is_some() { TimeSource::Recording } else { TimeSource::None };
+        RunSpec {
+            start_time: source.start_time,
+            time_source,
+            source,
+            engine,
+            threads,
+            tracker: None,
+        }
+    }
+}
+
+/// One run: engine, tracker and consumers, fed block by block.
+pub struct Run<'a> {
+    info: RunInfo,
+    engine: Engine,
+    threads: usize,
+    tracker: Option<Occupancy>,
+    events: Vec<Event>,
+    consumers: Vec<&'a mut dyn Consumer>,
+    started: bool,
+    next_sample: u64,
+    dropped: u64,
+    stop_asked: bool,
+}
+
+impl<'a> Run<'a> {
+    pub fn new(spec: RunSpec, consumers: Vec<&'a mut dyn Consumer>) -> Run<'a> {
+        let engine = new_engine(&spec.engine, &spec.source, spec.threads);
+        let time_source =
+            if spec.start_time.is_some() { spec.time_source } else { TimeSource::None };
+        let info = RunInfo {
+            clock: Clock { rate: spec.source.sample_rate_hz, start: spec.start_time },
+            source: spec.source,
+            engine: spec.engine,
+            time_source,
+        };
+        Run {
+            info,
+            engine,
+            threads: spec.threads,
+            tracker: spec.tracker,
+            events: Vec::new(),
+            consumers,
+            started: false,
+            next_sample: 0,
+            dropped: 0,
+            stop_asked: false,
+        }
+    }
+
+    pub fn info(&self) -> &RunInfo {
+        &self.info
+    }
+
+    /// One past the last input sample handled (delivered or known lost).
+    pub fn next_sample(&self) -> u64 {
+        self.next_sample
+    }
+
+    /// Processes one block; a jump in `block.start` is a gap of lost samples. Returns a reason
+    /// when a consumer asked to stop.
+    pub fn feed(&mut self, block: &Block) -> io::Result<Option<StopReason>> {
+        if !self.started && self.info.source.live && self.info.clock.start.is_none() {
+            // Wall clock for live input: the arrival of the first block, less its length.
+            let len = block.samples.len() as f64 / self.info.clock.rate;
+            let arrived = OffsetDateTime::now_utc();
+            if let Some(t) =
+                time::Duration::checked_seconds_f64(len).and_then(|d| arrived.checked_sub(d))
+            {
+                self.info.clock.start = Some(t);
+                self.info.time_source = TimeSource::WallClock;
+            }
+        }
+        self.begin()?;
+        if block.start > self.next_sample {
+            self.gap(self.next_sample, block.start)?;
+        }
+        for c in self.consumers.iter_mut() {
+            c.block(block)?;
+        }
+        let k = self.info.engine.frames_per_output;
+        let Run { engine, tracker, events, consumers, stop_asked, .. } = self;
+        let mut failed = None;
+        engine.push(block.start, &block.samples, &mut |row: &Spectrum| {
+            deliver(row, k, consumers, tracker, events, stop_asked, &mut failed);
+        });
+        if let Some(e) = failed {
+            return Err(e);
+        }
+        self.next_sample = block.start + block.samples.len() as u64;
+        self.dispatch_events()?;
+        Ok(self.stop_asked.then_some(StopReason::Limit))
+    }
+
+    /// Asks every consumer whether to go on; applies a new engine setting. Returns a reason when
+    /// one asked to stop.
+    pub fn poll(&mut self) -> Option<StopReason> {
+        for i in 0..self.consumers.len() {
+            match self.consumers[i].poll() {
+                Flow::Continue => {}
+                Flow::Stop => self.stop_asked = true,
+                Flow::Retune(cfg) => self.retune(cfg),
+            }
+        }
+        self.stop_asked.then_some(StopReason::Limit)
+    }
+
+    /// At the end of input: samples read but never delivered (dropped at the very end).
+    pub fn lost_tail(&mut self, samples_read: u64) -> io::Result<()> {
+        self.begin()?;
+        if samples_read > self.next_sample {
+            self.gap(self.next_sample, samples_read)?;
+            self.next_sample = samples_read;
+        }
+        Ok(())
+    }
+
+    /// Ends the run: the rows still in the engine, the tracker's open interval and emissions,
+    /// then every consumer's `finish`.
+    pub fn finish(&mut self, reason: StopReason) -> io::Result<RunEnd> {
+        self.begin()?;
+        self.drain_rows()?;
+        if let Some(t) = self.tracker.as_mut() {
+            t.finish(self.next_sample, &mut self.events);
+        }
+        self.dispatch_events()?;
+        let end = RunEnd { reason, end_sample: self.next_sample, dropped_samples: self.dropped };
+        for c in self.consumers.iter_mut() {
+            c.finish(&end, &self.info)?;
+        }
+        Ok(end)
+    }
+
+    /// Moves blocks from `blocks` into the run until the input ends or `stop` gives a reason.
+    pub fn pump(
+        &mut self,
+        blocks: &Receiver<Block>,
+        stop: &dyn Fn() -> Option<StopReason>,
+    ) -> io::Result<StopReason> {
+        loop {
+            if let Some(reason) = stop().or_else(|| self.poll()) {
+                return Ok(reason);
+            }
+            match blocks.recv_timeout(POLL_INTERVAL) {
+                Ok(block) => {
+                    if let Some(reason) = self.feed(&block)? {
+                        return Ok(reason);
+                    }
+                }
+                Err(RecvTimeoutError::Timeout) => {}
+                Err(RecvTimeoutError::Disconnected) => return Ok(StopReason::EndOfInput),
+            }
+        }
+    }
+
+    fn begin(&mut self) -> io::Result<()> {
+        if self.started {
+            return Ok(());
+        }
+        self.started = true;
+        for c in self.consumers.iter_mut() {
+            c.start(&self.info)?;
+        }
+        Ok(())
+    }
+
+    fn retune(&mut self, cfg: EngineConfig) {
+        self.engine = new_engine(&cfg, &self.info.source, self.threads);
+        self.info.engine = cfg;
+    }
+
+    /// Hands every row still inside the engine on: complete ones as rows, the last, shorter one
+    /// as a partial row (it would be a shorter sample, or straddle a gap).
+    fn drain_rows(&mut self) -> io::Result<()> {
+        let k = self.info.engine.frames_per_output;
+        let Run { engine, tracker, events, consumers, stop_asked, .. } = self;
+        let mut failed = None;
+        engine.finish(&mut |row: &Spectrum| {
+            deliver(row, k, consumers, tracker, events, stop_asked, &mut failed);
+        });
+        failed.map_or(Ok(()), Err)
+    }
+
+    fn gap(&mut self, from: u64, to: u64) -> io::Result<()> {
+        self.drain_rows()?;
+        if let Some(t) = self.tracker.as_mut() {
+            t.gap(from, to, &mut self.events);
+        }
+        self.dispatch_events()?;
+        self.dropped += to - from;
+        for c in self.consumers.iter_mut() {
+            c.gap(from, to, &self.info)?;
+        }
+        Ok(())
+    }
+
+    fn dispatch_events(&mut self) -> io::Result<()> {
+        for event in self.events.drain(..) {
+            for c in self.consumers.iter_mut() {
+                c.event(&event, &self.info)?;
+            }
+        }
+        Ok(())
+    }
+}
+
+/// Gives one row from the engine to the tracker and the consumers; the first error is kept.
+fn deliver(
+    row: &Spectrum,
+    frames_per_output: Option<u64>,
+    consumers: &mut [&mut dyn Consumer],
+    tracker: &mut Option<Occupancy>,
+    events: &mut Vec<Event>,
+    stop_asked: &mut bool,
+    failed: &mut Option<io::Error>,
+) {
+    if failed.is_some() {
+        return;
+    }
+    let complete = !matches!(frames_per_output, Some(k) if row.frames != k);
+    if complete {
+        if let Some(t) = tracker.as_mut() {
+            t.push(row, events);
+        }
+    }
+    for c in consumers.iter_mut() {
+        let result = if complete { c.row(row) } else { c.partial_row(row).map(|_| Flow::Continue) };
+        match result {
+            Ok(Flow::Stop) => *stop_asked = true,
+            Ok(_) => {}
+            Err(e) => {
+                *failed = Some(e);
+                return;
+            }
+        }
+    }
+}
+
+fn new_engine(cfg: &EngineConfig, source: &SourceInfo, threads: usize) -> Engine {
+    let mut e = Engine::new(cfg.clone(), source.sample_rate_hz, source.center_hz);
+    e.set_threads(threads);
+    e
+}
+
+/// What a run over a reader's input came to.
+#[derive(Debug)]
+pub struct Outcome {
+    pub end: RunEnd,
+    /// What the reader found wrong with the input (`None` when a signal left it behind).
+    pub issues: Option<InputIssues>,
+    /// Samples taken from the source.
+    pub samples_read: u64,
+}
+
+impl Outcome {
+    /// An input that held nothing is an error worth a clear word.
+    pub fn require_samples(&self, label: &str) -> Result<()> {
+        if self.samples_read == 0 && !self.end.reason.is_signal() {
+            anyhow::bail!(
+                "the input '{}' holds no samples; check the file, or that the pipe delivers data",
+                crate::messages::sanitize(label)
+            );
+        }
+        Ok(())
+    }
+}
+
+/// Runs `run` over the reader's blocks until the end of the input, a signal or a consumer's stop,
+/// and finishes it. A reader error finishes the run as `input_error`, then is returned.
+pub fn run_input(input: Input, mut run: Run<'_>, signals: Option<&StopSignals>) -> Result<Outcome> {
+    let stop = || signals.and_then(StopSignals::reason);
+    let reason = run.pump(&input.blocks, &stop)?;
+    if reason.is_signal() {
+        input.request_stop();
+        let end = run.finish(reason)?;
+        let samples_read = input.samples_read();
+        // A file reader stops at its next block; stdin may sit in a read that no flag
+        // interrupts, so it is left behind (the process exits now).
+        let issues = if input.info.live { None } else { input.finish().ok() };
+        return Ok(Outcome { end, issues, samples_read });
+    }
+    input.request_stop();
+    // A consumer's stop leaves the reader running: what it read after that was never wanted.
+    let samples_read =
+        if reason == StopReason::Limit { run.next_sample() } else { input.samples_read() };
+    let limit = input.max_samples();
+    match input.finish() {
+        Ok(issues) => {
+            run.lost_tail(samples_read)?;
+            let reason =
+                if limit.is_some_and(|m| samples_read >= m) { StopReason::Limit } else { reason };
+            let end = run.finish(reason)?;
+            Ok(Outcome { end, issues: Some(issues), samples_read })
+        }
+        Err(e) => {
+            run.finish(StopReason::InputError)?;
+            Err(e)
+        }
+    }
+}

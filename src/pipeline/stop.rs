@@ -1,0 +1,136 @@
+//! Why a run stopped, and the signals that stop it.
+//!
+//! The first SIGINT or SIGTERM (and SIGHUP where a command asks for it) sets a flag the drive loop
+//! reads between blocks, so the run ends through its normal path: open intervals and emissions are
+//! written, logs flushed, the terminal restored. What a second signal, or a loop that does not
+//! come back, does is the command's choice ([`Escalation`]): a log exits at once on a second
+//! signal; the live monitor, whose terminal input may spin on a dead descriptor after an SSH drop,
+//! restores the terminal itself after a grace period and exits. Either way the status is
+//! `128 + signal` (common practice for shells).
+
+use anyhow::{Context, Result};
+use signal_hook::consts::{SIGHUP, SIGINT, SIGTERM};
+use signal_hook::iterator::{Handle, Signals};
+use std::sync::atomic::{AtomicBool, AtomicI32, Ordering};
+use std::sync::Arc;
+use std::thread::JoinHandle;
+use std::time::{Duration, Instant};
+
+/// Why a run ended, as written in the log's `stop` record.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum StopReason {
+    EndOfInput,
+    /// `--seconds` reached, or a consumer asked to stop.
+    Limit,
+    /// SIGINT.
+    Interrupted,
+    /// SIGTERM (or SIGHUP: the session that started us is gone).
+    Terminated,
+    InputError,
+}
+
+impl StopReason {
+    pub fn as_str(self) -> &'static str {
+        match self {
+            StopReason::EndOfInput => "end_of_input",
+            StopReason::Limit => "limit",
+            StopReason::Interrupted => "interrupted",
+            StopReason::Terminated => "terminated",
+            StopReason::InputError => "input_error",
+        }
+    }
+
+    /// True when a signal ended the run.
+    pub fn is_signal(self) -> bool {
+        matches!(self, StopReason::Interrupted | StopReason::Terminated)
+    }
+}
+
+/// What happens after the first signal if the run does not end by itself.
+#[derive(Clone, Copy, Debug)]
+pub enum Escalation {
+    /// A second signal exits at once.
+    SecondSignalExits,
+    /// After `grace` without [`StopSignals`] being dropped, call `restore` and exit.
+    Watchdog { grace: Duration, restore: fn() },
+}
+
+/// Installed signal handlers and the flag they set; dropping it gives the signals back.
+pub struct StopSignals {
+    caught: Arc<AtomicI32>,
+    done: Arc<AtomicBool>,
+    handle: Handle,
+    thread: Option<JoinHandle<()>>,
+}
+
+impl StopSignals {
+    /// Catches SIGINT and SIGTERM, and SIGHUP when `hangup` is set.
+    pub fn install(hangup: bool, escalation: Escalation) -> Result<StopSignals> {
+        let mut list = vec![SIGINT, SIGTERM];
+        if hangup {
+            list.push(SIGHUP);
+        }
+        let mut signals = Signals::new(&list).context("cannot install the signal handlers")?;
+        let handle = signals.handle();
+        let caught = Arc::new(AtomicI32::new(0));
+        let done = Arc::new(AtomicBool::new(false));
+        let (caught2, done2) = (caught.clone(), done.clone());
+        let thread = std::thread::Builder::new()
+            .name("signals".into())
+            .spawn(move || {
+                for sig in signals.forever() {
+                    let first =
+                        caught2.compare_exchange(0, sig, Ordering::SeqCst, Ordering::SeqCst);
+                    match escalation {
+                        Escalation::SecondSignalExits => {
+                            if first.is_err() {
+                                std::process::exit(128 + sig);
+                            }
+                        }
+                        Escalation::Watchdog { grace, restore } => {
+                            let t0 = Instant::now();
+                            while !done2.load(Ordering::SeqCst) && t0.elapsed() < grace {
+                                std::thread::sleep(Duration::from_millis(20));
+                            }
+                            if !done2.load(Ordering::SeqCst) {
+                                restore();
+                                std::process::exit(128 + sig);
+                            }
+                        }
+                    }
+                }
+            })
+            .context("cannot start the signal thread")?;
+        Ok(StopSignals { caught, done, handle, thread: Some(thread) })
+    }
+
+    /// The reason a caught signal gives, if one came.
+    pub fn reason(&self) -> Option<StopReason> {
+        match self.caught.load(Ordering::SeqCst) {
+            0 => None,
+            SIGINT => Some(StopReason::Interrupted),
+            _ => Some(StopReason::Terminated),
+        }
+    }
+
+    /// The name of the signal caught, for messages.
+    pub fn signal_name(&self) -> &'static str {
+        match self.caught.load(Ordering::SeqCst) {
+            SIGINT => "SIGINT",
+            SIGTERM => "SIGTERM",
+            SIGHUP => "SIGHUP",
+            _ => "a signal",
+        }
+    }
+}
+
+impl Drop for StopSignals {
+    /// The run is over: stand the watchdog down and give the signals back.
+    fn drop(&mut self) {
+        self.done.store(true, Ordering::SeqCst);
+        self.handle.close();
+        if let Some(t) = self.thread.take() {
+            let _ = t.join();
+        }
+    }
+}
