@@ -4,7 +4,7 @@
 //! normal end of `bandwarden … | head`); 1 the input or a setting was bad, or the run failed;
 //! 2 the command line itself was malformed (clap's own code).
 
-use crate::cli::{Cli, Command};
+use crate::cli::{package, Cli, Command};
 use crate::cmd;
 use crate::messages::{mark_start, sanitize_message};
 use clap::Parser;
@@ -39,6 +39,14 @@ pub fn run(cli: Cli) -> anyhow::Result<ExitCode> {
         Some(Command::Demo(args)) => cmd::demo::run(args.validate()?),
         Some(Command::Watch(args)) => cmd::watch::run(args.validate()?),
         Some(Command::Log(args)) => cmd::log::run(args.validate()?),
+        Some(Command::Completions(args)) => {
+            package::write_completions(args.shell, &mut std::io::stdout().lock())?;
+            Ok(ExitCode::SUCCESS)
+        }
+        Some(Command::Manual) => {
+            package::write_manual(&mut std::io::stdout().lock())?;
+            Ok(ExitCode::SUCCESS)
+        }
     }
 }
 

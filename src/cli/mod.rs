@@ -9,6 +9,7 @@ pub mod common;
 pub mod demo;
 pub mod log;
 pub mod measure;
+pub mod package;
 pub mod watch;
 
 pub use common::{ChannelArgs, ChannelConfig, DspArgs, InputArgs, PlanArgs};
@@ -46,6 +47,10 @@ pub enum Command {
     /// Log how busy each channel of a plan is (ITU-R SM.1880 occupancy) and every emission, as
     /// JSON Lines or CSV, for unattended runs.
     Log(LogArgs),
+    /// Print a shell completion script (bash, zsh or fish) on stdout.
+    Completions(package::CompletionsArgs),
+    /// Print the manual page (roff) on stdout, e.g. `bandwarden manual > bandwarden.1`.
+    Manual,
 }
 
 /// The flags of `bandwarden NAME` with every default, for commands that stand in for another.
