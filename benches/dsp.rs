@@ -8,18 +8,14 @@ use bandwarden::measure::{
     band_power, find_signals, noise_floor, occupied_bandwidth, xdb_bandwidth, Detection,
 };
 use bandwarden::source::SampleFormat;
+use bandwarden::testkit::{keyed_band, Keyed};
+use bandwarden::units::undb;
 use criterion::{black_box, criterion_group, criterion_main, BenchmarkId, Criterion, Throughput};
 use num_complex::Complex32;
 
+/// A −10 dBFS tone 80 kHz above the centre (at 2.4 MS/s) over −45 dBFS of white noise.
 fn test_signal(n: usize) -> Vec<Complex32> {
-    let mut s = 1u64;
-    (0..n)
-        .map(|i| {
-            s = s.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
-            let noise = ((s >> 40) as f32 / (1u64 << 24) as f32 - 0.5) * 0.01;
-            Complex32::from_polar(0.3, i as f32 * 0.21) + Complex32::new(noise, -noise)
-        })
-        .collect()
+    keyed_band(n, 2.4e6, undb(-45.0), &[Keyed::steady(80e3, -10.0)], 1)
 }
 
 fn conversion(c: &mut Criterion) {

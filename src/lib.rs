@@ -17,5 +17,7 @@ pub mod output;
 pub mod pipeline;
 pub mod plan;
 pub mod source;
+#[doc(hidden)]
+pub mod testkit;
 pub mod tui;
 pub mod units;

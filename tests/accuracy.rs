@@ -8,61 +8,17 @@
 use bandwarden::dsp::{Engine, EngineConfig, Spectrum, Window, WindowKind};
 use bandwarden::measure::stats::{gamma_p, gamma_quantile_unit_mean};
 use bandwarden::measure::{band_power, find_signals, noise_floor, occupied_bandwidth, Detection};
+use bandwarden::testkit::{add_tone, band_limited_noise, noise64, to_f32, Rng};
 use bandwarden::units::db;
 use num_complex::{Complex32, Complex64};
-use rustfft::FftPlanner;
 use serde_json::Value;
 use std::f64::consts::PI;
 use std::path::PathBuf;
 
 // ---------------------------------------------------------------------------------------------
-// Helpers: deterministic signals, the engine run over a whole record, reference files.
+// Helpers: the engine run over a whole record, reference files (signals come from the seeded
+// test kit, `bandwarden::testkit`).
 // ---------------------------------------------------------------------------------------------
-
-/// splitmix64 with Box–Muller: deterministic Gaussian samples without an RNG crate.
-struct Rng(u64);
-
-impl Rng {
-    fn new(seed: u64) -> Rng {
-        Rng(seed)
-    }
-
-    fn next_u64(&mut self) -> u64 {
-        self.0 = self.0.wrapping_add(0x9E37_79B9_7F4A_7C15);
-        let mut z = self.0;
-        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-        z ^ (z >> 31)
-    }
-
-    /// Uniform on the open interval (0, 1).
-    fn uniform(&mut self) -> f64 {
-        ((self.next_u64() >> 11) as f64 + 0.5) / (1u64 << 53) as f64
-    }
-
-    fn gauss(&mut self) -> f64 {
-        let (u1, u2) = (self.uniform(), self.uniform());
-        (-2.0 * u1.ln()).sqrt() * (2.0 * PI * u2).cos()
-    }
-}
-
-/// Complex white Gaussian noise of mean power `power` (FS²), in f64.
-fn noise64(rng: &mut Rng, n: usize, power: f64) -> Vec<Complex64> {
-    let sigma = (power / 2.0).sqrt();
-    (0..n).map(|_| Complex64::new(sigma * rng.gauss(), sigma * rng.gauss())).collect()
-}
-
-fn to_f32(x: &[Complex64]) -> Vec<Complex32> {
-    x.iter().map(|v| Complex32::new(v.re as f32, v.im as f32)).collect()
-}
-
-/// Adds a sinusoid of `level_dbfs` (power; a unit-magnitude phasor is 0 dBFS).
-fn add_tone(x: &mut [Complex64], rate: f64, freq_hz: f64, level_dbfs: f64, phase: f64) {
-    let amp = 10f64.powf(level_dbfs / 20.0);
-    for (i, v) in x.iter_mut().enumerate() {
-        *v += Complex64::from_polar(amp, 2.0 * PI * freq_hz * i as f64 / rate + phase);
-    }
-}
 
 /// A sinusoidally frequency-modulated carrier `a·exp(j(2π·fc·t + β·sin(2π·fm·t)))`.
 fn fm_carrier(n: usize, rate: f64, fc: f64, fm: f64, beta: f64, level_dbfs: f64) -> Vec<Complex64> {
@@ -73,34 +29,6 @@ fn fm_carrier(n: usize, rate: f64, fc: f64, fm: f64, beta: f64, level_dbfs: f64)
             Complex64::from_polar(amp, 2.0 * PI * fc * t + beta * (2.0 * PI * fm * t).sin())
         })
         .collect()
-}
-
-/// White noise confined to `[lo_hz, hi_hz]` (relative to the centre) by zeroing every other bin
-/// of the whole record's DFT; the result has a flat PSD of total power `power` inside the band.
-fn band_limited_noise(
-    rng: &mut Rng,
-    n: usize,
-    rate: f64,
-    lo_hz: f64,
-    hi_hz: f64,
-    power: f64,
-) -> Vec<Complex64> {
-    let mut x = noise64(rng, n, 1.0);
-    let mut planner = FftPlanner::<f64>::new();
-    planner.plan_fft_forward(n).process(&mut x);
-    let mut kept = 0usize;
-    for (k, v) in x.iter_mut().enumerate() {
-        let f = if k <= n / 2 { k as f64 } else { k as f64 - n as f64 } * rate / n as f64;
-        if f < lo_hz || f >= hi_hz {
-            *v = Complex64::new(0.0, 0.0);
-        } else {
-            kept += 1;
-        }
-    }
-    planner.plan_fft_inverse(n).process(&mut x);
-    // Each kept bin has E|X|² = n, so the unnormalised inverse has mean power kept·n.
-    let scale = (power * n as f64 / kept as f64).sqrt() / n as f64;
-    x.iter().map(|v| v * scale).collect()
 }
 
 /// One Welch average over the whole record, as `measure` computes it.

@@ -5,9 +5,9 @@
 
 use bandwarden::source::sigmf::meta_json;
 use bandwarden::source::SampleFormat;
+use bandwarden::testkit::{keyed_band, Keyed};
 use num_complex::Complex32;
 use serde_json::Value;
-use std::f64::consts::PI;
 use std::io::{BufRead, BufReader, Write};
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output, Stdio};
@@ -40,36 +40,9 @@ impl Drop for Scratch {
     }
 }
 
-/// A carrier: offset from the centre (Hz), level (dBFS), and whether it is on at a sample index.
-type Carrier<'a> = (f64, f64, &'a dyn Fn(u64) -> bool);
-
-/// Complex white noise of total power −40 dBFS plus carriers.
-fn samples(n: usize, carriers: &[Carrier], seed: u64) -> Vec<Complex32> {
-    let sigma = (1e-4f64 / 2.0).sqrt();
-    let mut s = seed | 1;
-    let mut uniform = move || {
-        s ^= s << 13;
-        s ^= s >> 7;
-        s ^= s << 17;
-        ((s >> 11) as f64 + 0.5) / (1u64 << 53) as f64
-    };
-    let mut gauss = move || {
-        let (u1, u2) = (uniform(), uniform());
-        (-2.0 * u1.ln()).sqrt() * (2.0 * PI * u2).cos()
-    };
-    (0..n as u64)
-        .map(|i| {
-            let mut v = Complex32::new((sigma * gauss()) as f32, (sigma * gauss()) as f32);
-            for (f, lvl, on) in carriers {
-                if on(i) {
-                    let a = 10f64.powf(lvl / 20.0);
-                    let ph = 2.0 * PI * f * i as f64 / FS;
-                    v += Complex32::new((a * ph.cos()) as f32, (a * ph.sin()) as f32);
-                }
-            }
-            v
-        })
-        .collect()
+/// Complex white noise of total power −40 dBFS plus carriers keyed on and off.
+fn samples(n: usize, carriers: &[Keyed], seed: u64) -> Vec<Complex32> {
+    keyed_band(n, FS, 1e-4, carriers, seed)
 }
 
 fn s(seconds: f64) -> u64 {
@@ -80,8 +53,8 @@ fn s(seconds: f64) -> u64 {
 /// `alpha` keyed 30 % (1 s period), `beta` always on, `gamma` never on.
 fn recording(dir: &Scratch) -> PathBuf {
     let thirty = |i: u64| i % s(1.0) < s(0.3);
-    let always = |_: u64| true;
-    let x = samples(s(6.0) as usize, &[(50e3, -30.0, &thirty), (-40e3, -30.0, &always)], 42);
+    let alpha = Keyed { offset_hz: 50e3, level_dbfs: -30.0, on: &thirty };
+    let x = samples(s(6.0) as usize, &[alpha, Keyed::steady(-40e3, -30.0)], 42);
     let mut bytes = Vec::new();
     SampleFormat::Ci16Le.encode(&x, &mut bytes);
     std::fs::write(dir.path("ridge.sigmf-data"), bytes).unwrap();
@@ -251,8 +224,7 @@ fn log_live_then_signal(signal: &str, extra: &[&str]) -> (std::process::ExitStat
         }
     });
     // 2.5 s of samples: intervals [0,1) and [1,2) complete, [2,3) open. stdin stays open.
-    let always = |_: u64| true;
-    let x = samples(s(2.5) as usize, &[(-40e3, -30.0, &always)], 7);
+    let x = samples(s(2.5) as usize, &[Keyed::steady(-40e3, -30.0)], 7);
     let mut bytes = Vec::new();
     SampleFormat::Cf32Le.encode(&x, &mut bytes);
     // Delivered at the sample rate, in 50 ms pieces, as a receiver would.

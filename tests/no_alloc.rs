@@ -1,8 +1,11 @@
-//! The per-frame path allocates nothing: a counting global allocator watches the STFT and the
-//! engine once they are warm.
+//! The per-frame path allocates nothing: a counting global allocator watches the STFT, the
+//! engine and the occupancy tracker (which takes a row about a hundred times a second) once they
+//! are warm.
 
 use bandwarden::dsp::stft::Stft;
-use bandwarden::dsp::{Engine, EngineConfig, WindowKind};
+use bandwarden::dsp::{Engine, EngineConfig, Spectrum, WindowKind};
+use bandwarden::measure::occupancy::{frames_per_sample, ChannelDef, Event, Occupancy, Timing};
+use bandwarden::testkit::{keyed_band, Keyed};
 use num_complex::Complex32;
 use std::alloc::{GlobalAlloc, Layout, System};
 use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
@@ -59,7 +62,11 @@ fn signal(n: usize) -> Vec<Complex32> {
 /// engine's helpers: any allocation counted is ours.
 fn main() {
     frames_allocate_nothing();
-    println!("no_alloc: the STFT and the one- and two-thread engine allocate nothing per frame");
+    occupancy_rows_allocate_nothing();
+    println!(
+        "no_alloc: the STFT, the one- and two-thread engine and the occupancy tracker allocate \
+         nothing per frame or row"
+    );
 }
 
 fn frames_allocate_nothing() {
@@ -95,4 +102,39 @@ fn frames_allocate_nothing() {
     engine.set_threads(2);
     let n = warm_then_count(&mut engine, &block, &mut start);
     assert_eq!(n, 0, "two-thread engine: {n} allocations over 50 blocks");
+}
+
+/// Rows of a band in which a carrier keys on and off, so that the counted rows open and close
+/// emissions (each measured for its occupied bandwidth) and close intervals.
+fn occupancy_rows_allocate_nothing() {
+    let (rate, center, fft) = (200e3, 100e6, 512);
+    let k = frames_per_sample(rate, fft / 2, None).unwrap();
+    let keyed = |i: u64| i % 40_000 < 12_000;
+    let carriers = [Keyed { offset_hz: 20e3, level_dbfs: -30.0, on: &keyed }];
+    let x = keyed_band(600_000, rate, 1e-4, &carriers, 1);
+    let cfg = EngineConfig {
+        fft_size: fft,
+        window: WindowKind::Hann,
+        overlap: 0.5,
+        frames_per_output: Some(k),
+    };
+    let mut rows: Vec<Spectrum> = Vec::new();
+    let mut engine = Engine::new(cfg, rate, center);
+    engine.push(0, &x, &mut |r| rows.push(r.clone()));
+    let channel = |offset_hz: f64| ChannelDef {
+        low_hz: center + offset_hz - 5e3,
+        high_hz: center + offset_hz + 5e3,
+        threshold_db: 10.0,
+    };
+    let timing = Timing::new(rate, fft, fft / 2, k, 0.5, 0.025).unwrap();
+    let mut occ = Occupancy::new(timing, vec![channel(20e3), channel(-60e3)]);
+    let mut events: Vec<Event> = Vec::with_capacity(1000);
+    let (warm, counted_rows) = rows.split_at(50);
+    warm.iter().for_each(|r| occ.push(r, &mut events));
+    let before = events.len();
+    let n = counted(|| counted_rows.iter().for_each(|r| occ.push(r, &mut events)));
+    let emissions = events[before..].iter().filter(|e| matches!(e, Event::Emission(_))).count();
+    assert!(emissions >= 5, "the counted rows close {emissions} emissions");
+    assert!(events.len() - before > emissions, "and intervals");
+    assert_eq!(n, 0, "occupancy: {n} allocations over {} rows", counted_rows.len());
 }

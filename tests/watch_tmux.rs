@@ -6,7 +6,7 @@
 
 use bandwarden::source::sigmf::meta_json;
 use bandwarden::source::SampleFormat;
-use num_complex::Complex32;
+use bandwarden::testkit::{keyed_band, Keyed};
 use std::path::{Path, PathBuf};
 use std::process::Command;
 use std::time::{Duration, Instant};
@@ -98,19 +98,9 @@ impl Drop for Tmux {
 fn write_recording(dir: &Path) -> PathBuf {
     std::fs::create_dir_all(dir).unwrap();
     let n = (RATE_HZ / 2.0) as usize;
-    let mut s = 0x2545_f491_4f6c_dd1du64;
-    let samples: Vec<Complex32> = (0..n)
-        .map(|i| {
-            let mut noise = || {
-                s ^= s << 13;
-                s ^= s >> 7;
-                s ^= s << 17;
-                ((s >> 11) as f64 / (1u64 << 53) as f64 - 0.5) * 2e-3
-            };
-            let ph = 2.0 * std::f64::consts::PI * TONE_OFFSET_HZ * i as f64 / RATE_HZ;
-            Complex32::new((0.1 * ph.cos() + noise()) as f32, (0.1 * ph.sin() + noise()) as f32)
-        })
-        .collect();
+    // −20 dBFS is an amplitude of 0.1; the noise is −60 dBFS in total.
+    let tone = Keyed::steady(TONE_OFFSET_HZ, -20.0);
+    let samples = keyed_band(n, RATE_HZ, 1e-6, &[tone], 0x2545_f491_4f6c_dd1d);
     let mut bytes = Vec::new();
     SampleFormat::Cf32Le.encode(&samples, &mut bytes);
     let data = dir.join("tone.sigmf-data");

@@ -380,11 +380,8 @@ mod tests {
     #[test]
     fn ragged_blocks_on_one_or_two_threads_match_frame_by_frame_sums() {
         let x = seeded(30_000, 17);
-        let mut s = 99u64;
-        let mut next_len = move || {
-            s = s.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
-            1 + (s >> 33) as usize % 700 // from 1 sample to several frames
-        };
+        let mut rng = crate::testkit::Rng::new(99);
+        let mut next_len = move || 1 + rng.below(700); // from 1 sample to several frames
         for (overlap, k) in [(0.25, Some(1u64)), (0.5, Some(7)), (0.0, None), (0.9, Some(3))] {
             let c = cfg(128, overlap, k);
             let reference = frame_by_frame(&x, &c);

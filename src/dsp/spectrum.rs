@@ -1,7 +1,6 @@
-//! The calibrated spectrum every consumer shares: the TUI, the logger, `measure` and `picture`.
+//! The calibrated spectrum every consumer shares: the TUI, the logger and `measure`.
 
 use super::window::{Window, WindowKind};
-use crate::units::db;
 use std::ops::Deref;
 use std::sync::Arc;
 
@@ -151,16 +150,6 @@ impl Spectrum {
     /// (Heinzel et al. 2002: the power spectrum and the PSD differ by the ENBW).
     pub fn tone_power(&self, i: usize) -> f64 {
         self.psd[i] * self.rbw_hz
-    }
-
-    /// PSD of bin `i` in dBFS/Hz.
-    pub fn density_dbfs_per_hz(&self, i: usize) -> f64 {
-        db(self.psd[i])
-    }
-
-    /// Duration covered, in seconds.
-    pub fn duration_s(&self) -> f64 {
-        (self.end_sample - self.first_sample) as f64 / self.sample_rate_hz
     }
 
     /// Total power in the captured band (the integral of the PSD), in FS².

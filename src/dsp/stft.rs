@@ -94,15 +94,6 @@ impl Stft {
         }
     }
 
-    /// Like [`accumulate_power`](Self::accumulate_power) but also keeps the frame's own power
-    /// (FFT order) in `frame_power`, for waterfall rows and hold traces.
-    pub fn frame_power(&mut self, frame: &[Complex32], frame_power: &mut [f32]) {
-        self.transform(frame);
-        for (p, x) in frame_power.iter_mut().zip(&self.buf) {
-            *p = x.norm_sqr();
-        }
-    }
-
     fn transform(&mut self, frame: &[Complex32]) {
         debug_assert_eq!(frame.len(), self.buf.len());
         self.kernels.window(&mut self.buf, frame, &self.window.coeffs);
@@ -155,14 +146,10 @@ pub(crate) mod tests {
             .collect()
     }
 
-    /// Small deterministic generator so tests need no RNG crate.
+    /// Some reproducible signal (unit-power white noise from the test kit) for checks that hold
+    /// for any input: FFT against DFT, one engine against another.
     pub(crate) fn seeded(n: usize, seed: u64) -> Vec<Complex32> {
-        let mut s = seed;
-        let mut next = || {
-            s = s.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
-            ((s >> 33) as f64 / (1u64 << 31) as f64 - 0.5) as f32
-        };
-        (0..n).map(|_| Complex32::new(next(), next())).collect()
+        crate::testkit::noise(n, 1.0, seed)
     }
 
     #[test]

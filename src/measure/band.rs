@@ -19,41 +19,80 @@ impl Edges {
     }
 }
 
-/// The bins' pieces inside `[lo, hi]`: (piece low edge, piece high edge, power in FS²).
-fn pieces(spec: &Spectrum, lo: f64, hi: f64) -> Vec<(f64, f64, f64)> {
-    let b = spec.bin_hz();
-    let n = spec.fft_size as isize;
-    let first = (spec.bin_of_freq(lo) - 0.5).floor().max(0.0) as isize;
-    let last = ((spec.bin_of_freq(hi) + 0.5).ceil() as isize).min(n - 1);
-    let mut out = Vec::new();
-    for i in first..=last {
-        let c = spec.freq_of_bin(i as f64);
-        let (a, z) = ((c - b / 2.0).max(lo), (c + b / 2.0).min(hi));
-        if z > a {
-            out.push((a, z, spec.psd[i as usize] * (z - a)));
+/// A run of consecutive PSD bins with their frequency geometry: `psd[j]` (FS²/Hz) is the density
+/// of the bin centred on `center_hz + (first + j)·bin_hz`.
+///
+/// Measurements take this rather than a whole [`Spectrum`] so that a consumer holding only some
+/// bins (the occupancy tracker keeps the summed PSD of each emission over its channel) measures
+/// them in place, with no spectrum built around them.
+#[derive(Clone, Copy, Debug)]
+pub struct BinRun<'a> {
+    pub psd: &'a [f64],
+    /// Frequency of the spectrum's centre bin, hertz.
+    pub center_hz: f64,
+    /// Index of `psd[0]` counted from the centre bin (negative below it).
+    pub first: i64,
+    pub bin_hz: f64,
+}
+
+impl<'a> BinRun<'a> {
+    /// Every bin of a spectrum.
+    pub fn whole(spec: &'a Spectrum) -> BinRun<'a> {
+        BinRun::part(spec, 0, &spec.psd)
+    }
+
+    /// `psd` laid over the spectrum's bins `from ..`, which it need not come from.
+    pub fn part(spec: &Spectrum, from: usize, psd: &'a [f64]) -> BinRun<'a> {
+        BinRun {
+            psd,
+            center_hz: spec.center_hz,
+            first: from as i64 - (spec.fft_size / 2) as i64,
+            bin_hz: spec.bin_hz(),
         }
     }
-    out
+
+    /// The run's pieces inside `[lo, hi]`, lowest first: (piece low edge, piece high edge, power
+    /// in FS²). Computed on the fly, so measuring allocates nothing.
+    fn pieces(
+        self,
+        lo: f64,
+        hi: f64,
+    ) -> impl DoubleEndedIterator<Item = (f64, f64, f64)> + Clone + 'a {
+        let b = self.bin_hz;
+        let index = |f: f64| (f - self.center_hz) / b - self.first as f64;
+        let first = (index(lo) - 0.5).floor().max(0.0) as i64;
+        let last = (index(hi) + 0.5).ceil().min(self.psd.len() as f64 - 1.0) as i64;
+        (first..=last).filter_map(move |j| {
+            let c = self.center_hz + (self.first + j) as f64 * b;
+            let (a, z) = ((c - b / 2.0).max(lo), (c + b / 2.0).min(hi));
+            (z > a).then(|| (a, z, self.psd[j as usize] * (z - a)))
+        })
+    }
 }
 
 /// Channel power: the integral of the PSD over `[lo, hi]`, in FS² (10·log10 gives dBFS).
 pub fn band_power(spec: &Spectrum, lo: f64, hi: f64) -> f64 {
-    pieces(spec, lo, hi).iter().map(|p| p.2).sum()
+    BinRun::whole(spec).pieces(lo, hi).map(|p| p.2).sum()
 }
 
 /// Occupied bandwidth per ITU-R SM.328: the band whose lower and upper outside parts each hold
 /// `β/2` of the total power in `[lo, hi]`, with `β = 1 − percent/100`. `None` if the band holds
 /// no power.
 pub fn occupied_bandwidth(spec: &Spectrum, lo: f64, hi: f64, percent: f64) -> Option<Edges> {
-    let ps = pieces(spec, lo, hi);
-    let total: f64 = ps.iter().map(|p| p.2).sum();
-    if total <= 0.0 || ps.is_empty() {
+    occupied_bandwidth_of(BinRun::whole(spec), lo, hi, percent)
+}
+
+/// [`occupied_bandwidth`] of a run of bins; bins of the band outside the run count as empty.
+pub fn occupied_bandwidth_of(run: BinRun, lo: f64, hi: f64, percent: f64) -> Option<Edges> {
+    let ps = run.pieces(lo, hi);
+    let total: f64 = ps.clone().map(|p| p.2).sum();
+    if total <= 0.0 {
         return None;
     }
     let outside = total * (1.0 - percent / 100.0) / 2.0;
-    let edge = |iter: &mut dyn Iterator<Item = &(f64, f64, f64)>, from_low: bool| {
+    let edge = |iter: &mut dyn Iterator<Item = (f64, f64, f64)>, from_low: bool| {
         let mut cum = 0.0;
-        for &(a, z, p) in iter {
+        for (a, z, p) in iter {
             if cum + p >= outside && p > 0.0 {
                 let frac = (outside - cum) / p;
                 return if from_low { a + frac * (z - a) } else { z - frac * (z - a) };
@@ -66,8 +105,8 @@ pub fn occupied_bandwidth(spec: &Spectrum, lo: f64, hi: f64, percent: f64) -> Op
             lo
         }
     };
-    let low_hz = edge(&mut ps.iter(), true);
-    let high_hz = edge(&mut ps.iter().rev(), false);
+    let low_hz = edge(&mut ps.clone(), true);
+    let high_hz = edge(&mut ps.rev(), false);
     Some(Edges { low_hz, high_hz: high_hz.max(low_hz) })
 }
 

@@ -7,6 +7,8 @@ pub mod occupancy;
 pub mod signals;
 pub mod stats;
 
-pub use band::{band_power, occupied_bandwidth, xdb_bandwidth, Edges};
-pub use noise::noise_floor;
+pub use band::{
+    band_power, occupied_bandwidth, occupied_bandwidth_of, xdb_bandwidth, BinRun, Edges,
+};
+pub use noise::{noise_floor, NoiseFloor};
 pub use signals::{find_signals, Detection, Signal};

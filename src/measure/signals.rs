@@ -133,33 +133,14 @@ mod tests {
     use super::*;
     use crate::dsp::{Engine, EngineConfig, WindowKind};
     use crate::measure::noise::noise_floor;
+    use crate::testkit::{keyed_band, Keyed};
+    use crate::units::undb;
     use num_complex::Complex32;
 
+    /// Steady tones `(offset Hz, level dBFS)` in complex white noise of `noise_dbfs` total power.
     fn tone_in_noise(n: usize, rate: f64, tones: &[(f64, f64)], noise_dbfs: f64) -> Vec<Complex32> {
-        let sigma = (10f64.powf(noise_dbfs / 10.0) / 2.0).sqrt();
-        let mut s = 99u64;
-        let mut g = move || {
-            s ^= s << 13;
-            s ^= s >> 7;
-            s ^= s << 17;
-            let u1 = ((s >> 11) as f64 + 0.5) / (1u64 << 53) as f64;
-            s ^= s << 13;
-            s ^= s >> 7;
-            s ^= s << 17;
-            let u2 = (s >> 11) as f64 / (1u64 << 53) as f64;
-            (-2.0 * u1.ln()).sqrt() * (2.0 * std::f64::consts::PI * u2).cos()
-        };
-        (0..n)
-            .map(|i| {
-                let mut v = Complex32::new((sigma * g()) as f32, (sigma * g()) as f32);
-                for &(f, lvl) in tones {
-                    let a = 10f64.powf(lvl / 20.0);
-                    let ph = 2.0 * std::f64::consts::PI * f * i as f64 / rate;
-                    v += Complex32::new((a * ph.cos()) as f32, (a * ph.sin()) as f32);
-                }
-                v
-            })
-            .collect()
+        let tones: Vec<Keyed> = tones.iter().map(|&(f, lvl)| Keyed::steady(f, lvl)).collect();
+        keyed_band(n, rate, undb(noise_dbfs), &tones, 99)
     }
 
     #[test]

@@ -675,19 +675,11 @@ mod tests {
         // noise: the raw bin reads low by Hann's scalloping loss, 1.42 dB (Harris 1978, table
         // 1); the marker's refined reading must be within 0.1 dB of the tone and its frequency.
         use crate::dsp::{Engine, EngineConfig};
-        use num_complex::Complex32;
+        use crate::testkit::{keyed_band, Keyed};
         let (rate, n) = (1.024e6, 1024);
         let f = 100.5 * rate / n as f64;
-        let a = 10f64.powf(-30.0 / 20.0);
-        let mut s = 7u64;
-        let x: Vec<Complex32> = (0..n * 64)
-            .map(|i| {
-                s = s.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
-                let e = ((s >> 40) as f64 / (1u64 << 24) as f64 - 0.5) * 1e-4;
-                let ph = 2.0 * std::f64::consts::PI * f * i as f64 / rate;
-                Complex32::new((a * ph.cos() + e) as f32, (a * ph.sin() - e) as f32)
-            })
-            .collect();
+        let faint = crate::units::undb(-90.0);
+        let x = keyed_band(n * 64, rate, faint, &[Keyed::steady(f, -30.0)], 7);
         let cfg = EngineConfig {
             fft_size: n,
             window: WindowKind::Hann,

@@ -1,12 +1,13 @@
 //! The spectrum traces: the newest row, a running average, and the peak and minimum holds
 //! (per-bin maximum and minimum over the rows since the last reset).
 //!
-//! The average is exponential in linear power (weight `α` per row), started as a plain mean so the
-//! first rows are not biased towards zero. Its χ² degrees of freedom grow with the rows it holds,
+//! The average is the shared [`ExpAverage`] (weight `α` per row, started as a plain mean so the
+//! first rows are not biased towards zero). Its χ² degrees of freedom grow with the rows it holds,
 //! up to `ν·(2 − α)/α` for rows of `ν` each (the equivalent number of averages of an exponential
 //! average of independent estimates, common practice); measurements on it use that figure.
 //! A change of FFT size, window or rate restarts all three, since their bins no longer line up.
 
+use crate::dsp::average::ExpAverage;
 use crate::dsp::{Spectrum, WindowKind};
 
 /// Weight of the newest row in the average: about the last ten rows count.
@@ -32,15 +33,26 @@ impl Geometry {
     }
 }
 
-#[derive(Clone, Debug, Default)]
+#[derive(Clone, Debug)]
 pub struct Traces {
     geometry: Option<Geometry>,
     /// The newest row as received (its PSD is the current trace).
     current: Option<Spectrum>,
-    average: Vec<f64>,
+    average: ExpAverage,
     hold: Vec<f64>,
     min_hold: Vec<f64>,
-    rows: u64,
+}
+
+impl Default for Traces {
+    fn default() -> Traces {
+        Traces {
+            geometry: None,
+            current: None,
+            average: ExpAverage::new(AVERAGE_WEIGHT),
+            hold: Vec::new(),
+            min_hold: Vec::new(),
+        }
+    }
 }
 
 impl Traces {
@@ -50,21 +62,16 @@ impl Traces {
         let restarted = self.geometry != Some(g);
         if restarted {
             self.geometry = Some(g);
-            self.average = spec.psd.clone();
+            self.average.restart();
             self.hold = spec.psd.clone();
             self.min_hold = spec.psd.clone();
-            self.rows = 1;
         } else {
-            self.rows += 1;
-            let w = AVERAGE_WEIGHT.max(1.0 / self.rows as f64);
-            for (a, p) in self.average.iter_mut().zip(&spec.psd) {
-                *a += w * (p - *a);
-            }
             for ((h, m), p) in self.hold.iter_mut().zip(self.min_hold.iter_mut()).zip(&spec.psd) {
                 *h = h.max(*p);
                 *m = m.min(*p);
             }
         }
+        self.average.push(&spec.psd);
         self.current = Some(spec);
         restarted
     }
@@ -86,7 +93,7 @@ impl Traces {
     }
 
     pub fn average_psd(&self) -> &[f64] {
-        &self.average
+        self.average.psd()
     }
 
     pub fn hold_psd(&self) -> &[f64] {
@@ -97,9 +104,10 @@ impl Traces {
     /// measurements.
     pub fn average_spectrum(&self) -> Option<Spectrum> {
         let cur = self.current.as_ref()?;
-        let equivalent = (self.rows as f64).min((2.0 - AVERAGE_WEIGHT) / AVERAGE_WEIGHT);
+        let equivalent = self.average.equivalent_averages();
         let mut s = cur.clone();
-        s.psd.clone_from(&self.average);
+        s.psd.clear();
+        s.psd.extend_from_slice(self.average.psd());
         s.dof = cur.dof * equivalent;
         s.frames = cur.frames * equivalent.round() as u64;
         Some(s)

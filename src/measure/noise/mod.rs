@@ -10,6 +10,10 @@
 //!
 //! On noise alone the estimate is unbiased for any number of averages; a plain median would read
 //! 1.59 dB low on a single periodogram (median of an exponential = ln 2 × mean).
+//!
+//! [`tracker`] follows the floor through a sequence of rows for the occupancy log.
+
+pub mod tracker;
 
 use super::stats::{gamma_quantile_unit_mean, truncated_mean_unit};
 
@@ -17,27 +21,51 @@ use super::stats::{gamma_quantile_unit_mean, truncated_mean_unit};
 const EXCISION_FALSE_ALARM: f64 = 1e-3;
 
 /// Estimates the noise density (same units as `psd`, e.g. FS²/Hz) of a PSD whose bins have `dof`
-/// equivalent degrees of freedom.
+/// equivalent degrees of freedom. Allocates its working space on every call; code that estimates
+/// the floor of every row keeps a [`NoiseFloor`] instead.
 pub fn noise_floor(psd: &[f64], dof: f64) -> f64 {
-    let mut sorted: Vec<f64> = psd.iter().copied().filter(|v| v.is_finite()).collect();
-    if sorted.is_empty() {
-        return 0.0;
-    }
-    sorted.sort_by(|a, b| a.total_cmp(b));
-    noise_floor_sorted(&sorted, dof)
+    NoiseFloor::new().estimate(psd, dof)
 }
 
-/// As [`noise_floor`], for values already sorted ascending.
-pub fn noise_floor_sorted(sorted: &[f64], dof: f64) -> f64 {
+/// FCME with its working space (the sorted bins and their prefix sums) kept between calls, so
+/// that estimating the floor of every row, about a hundred times a second, allocates nothing once
+/// the first row has sized the buffers.
+#[derive(Clone, Debug, Default)]
+pub struct NoiseFloor {
+    sorted: Vec<f64>,
+    prefix: Vec<f64>,
+}
+
+impl NoiseFloor {
+    pub fn new() -> NoiseFloor {
+        NoiseFloor::default()
+    }
+
+    /// As [`noise_floor`], with the same result to the bit.
+    pub fn estimate(&mut self, psd: &[f64], dof: f64) -> f64 {
+        self.sorted.clear();
+        self.sorted.extend(psd.iter().copied().filter(|v| v.is_finite()));
+        if self.sorted.is_empty() {
+            return 0.0;
+        }
+        // Unstable sort: it works in place (a stable sort takes a buffer), and values that
+        // `total_cmp` calls equal are the same bits, so the order is the same.
+        self.sorted.sort_unstable_by(|a, b| a.total_cmp(b));
+        self.prefix.clear();
+        self.prefix.push(0.0);
+        let mut acc = 0.0;
+        for v in &self.sorted {
+            acc += v;
+            self.prefix.push(acc);
+        }
+        fcme(&self.sorted, &self.prefix, dof)
+    }
+}
+
+/// The iteration on values sorted ascending, with `prefix[i]` the sum of the first `i`.
+fn fcme(sorted: &[f64], prefix: &[f64], dof: f64) -> f64 {
     let a = (dof / 2.0).max(0.5);
     let n = sorted.len();
-    let mut prefix = Vec::with_capacity(n + 1);
-    prefix.push(0.0);
-    let mut acc = 0.0;
-    for v in sorted {
-        acc += v;
-        prefix.push(acc);
-    }
     let q25 = sorted[n / 4];
     let mut mu = q25 / gamma_quantile_unit_mean(0.25, a);
     if mu <= 0.0 {
@@ -62,18 +90,12 @@ pub fn noise_floor_sorted(sorted: &[f64], dof: f64) -> f64 {
 mod tests {
     use super::*;
 
+    use crate::testkit::Rng;
+
     /// Exponential variates (single-periodogram noise bins) from a fixed seed.
     fn exp_bins(n: usize, mean: f64, seed: u64) -> Vec<f64> {
-        let mut s = seed;
-        (0..n)
-            .map(|_| {
-                s ^= s << 13;
-                s ^= s >> 7;
-                s ^= s << 17;
-                let u = ((s >> 11) as f64 + 0.5) / (1u64 << 53) as f64;
-                -mean * u.ln()
-            })
-            .collect()
+        let mut rng = Rng::new(seed);
+        (0..n).map(|_| rng.exponential(mean)).collect()
     }
 
     #[test]
@@ -96,5 +118,19 @@ mod tests {
         }
         let est = noise_floor(&bins, 2.0);
         assert!((10.0 * est.log10()).abs() < 0.5, "{est}");
+    }
+
+    #[test]
+    fn reused_scratch_gives_the_one_shot_result_to_the_bit() {
+        // The scratch must carry nothing from one row into the next: rows of other lengths,
+        // levels and degrees of freedom, in turn, each equal to a fresh estimate.
+        let mut scratch = NoiseFloor::new();
+        for (seed, n, mean, dof) in [(1, 4096, 2.0, 2.0), (2, 1000, 0.5, 14.0), (3, 4096, 9.0, 2.0)]
+        {
+            let mut bins = exp_bins(n, mean, seed);
+            bins[7] = f64::NAN;
+            assert_eq!(scratch.estimate(&bins, dof).to_bits(), noise_floor(&bins, dof).to_bits());
+        }
+        assert_eq!(scratch.estimate(&[], 2.0), 0.0);
     }
 }
