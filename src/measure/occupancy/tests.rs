@@ -51,7 +51,7 @@ pub(crate) fn run(
     let mut engine = Engine::new(cfg, FS, CENTER);
     let mut events = Vec::new();
     for (i, chunk) in x.chunks(10_007).enumerate() {
-        engine.push((i * 10_007) as u64, chunk, &mut |row| occ.push(&row, &mut events));
+        engine.push((i * 10_007) as u64, chunk, &mut |row| occ.push(row, &mut events));
     }
     occ.finish(x.len() as u64, &mut events);
     (events, timing)
@@ -290,10 +290,10 @@ fn a_gap_closes_emissions_as_partial_and_is_counted() {
     let mut ev = Vec::new();
     // 0.5 s delivered, 0.1 s lost, then the rest (indices keep counting the lost samples).
     let (cut, resume) = (s(0.5) as usize, s(0.6) as usize);
-    engine.push(0, &x[..cut], &mut |r| occ.push(&r, &mut ev));
+    engine.push(0, &x[..cut], &mut |r| occ.push(r, &mut ev));
     engine.finish(&mut |_| {});
     occ.gap(cut as u64, resume as u64, &mut ev);
-    engine.push(resume as u64, &x[resume..], &mut |r| occ.push(&r, &mut ev));
+    engine.push(resume as u64, &x[resume..], &mut |r| occ.push(r, &mut ev));
     occ.finish(x.len() as u64, &mut ev);
     let em = emissions(&ev, 0);
     assert_eq!(em.len(), 2, "{em:?}");
