@@ -31,23 +31,9 @@ pub fn sanitize_message(text: &str) -> String {
     text.chars().map(|c| if c.is_control() && c != '\n' && c != '\t' { '?' } else { c }).collect()
 }
 
-/// Tells the user what was wrong with the input but did not stop the run.
-pub fn report_input_issues(issues: &crate::source::InputIssues) {
-    if issues.non_finite > 0 {
-        note(&format!("skipped {} samples holding NaN or infinity", issues.non_finite));
-    }
-    if issues.beyond_scale > 0 {
-        note(&format!(
-            "{} float samples lie beyond ±1e6 while full scale is ±1: the input is probably not in the format it was read as; check --format",
-            issues.beyond_scale
-        ));
-    }
-    if issues.trailing_bytes > 0 {
-        note(&format!(
-            "dropped {} bytes at the end that do not make a whole sample (wrong --format, or a cut file?)",
-            issues.trailing_bytes
-        ));
-    }
+/// Prints each of `notes` (see [`note`]).
+pub fn notes(notes: &[String]) {
+    notes.iter().for_each(|n| note(n));
 }
 
 #[cfg(test)]

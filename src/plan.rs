@@ -90,7 +90,7 @@ impl Plan {
 
     /// Reads and validates a plan file.
     pub fn load(path: &str) -> Result<Plan> {
-        let shown = crate::source::sanitize(path);
+        let shown = crate::messages::sanitize(path);
         let bytes = std::fs::read(path)
             .with_context(|| format!("cannot read plan '{shown}'; check the path"))?;
         let text = String::from_utf8(bytes).map_err(|e| {

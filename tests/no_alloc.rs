@@ -63,9 +63,11 @@ fn signal(n: usize) -> Vec<Complex32> {
 fn main() {
     frames_allocate_nothing();
     occupancy_rows_allocate_nothing();
+    log_rows_allocate_nothing(1);
+    log_rows_allocate_nothing(2);
     println!(
-        "no_alloc: the STFT, the one- and two-thread engine and the occupancy tracker allocate \
-         nothing per frame or row"
+        "no_alloc: the STFT, the one- and two-thread engine, the occupancy tracker and the whole \
+         log path allocate nothing per frame or row"
     );
 }
 
@@ -137,4 +139,62 @@ fn occupancy_rows_allocate_nothing() {
     assert!(emissions >= 5, "the counted rows close {emissions} emissions");
     assert!(events.len() - before > emissions, "and intervals");
     assert_eq!(n, 0, "occupancy: {n} allocations over {} rows", counted_rows.len());
+}
+
+/// The whole `log` row path: blocks through the pipeline's run (engine, tracker, consumers: the
+/// progress line and the occupancy log writing to a sink) on `threads` transform threads. A
+/// steady carrier keeps one emission open and the interval is long, so no record is due in the
+/// counted blocks: what is counted is what every row costs.
+fn log_rows_allocate_nothing(threads: usize) {
+    use bandwarden::dsp::DspConfig;
+    use bandwarden::output::log::{LogFormat, LogWriter};
+    use bandwarden::output::occupancy_log::OccupancyLog;
+    use bandwarden::output::progress::Progress;
+    use bandwarden::pipeline::occupancy::{OccupancyRequest, OccupancySetup};
+    use bandwarden::pipeline::{Run, RunSpec};
+    use bandwarden::plan::{parse_channel_flag, Plan};
+    use bandwarden::source::reader::Block;
+    use bandwarden::source::SourceInfo;
+
+    let (rate, center) = (1e6, 100e6);
+    let info = SourceInfo {
+        label: "synthetic".into(),
+        format: None,
+        sample_rate_hz: rate,
+        center_hz: center,
+        start_time: None,
+        total_samples: None,
+        live: false,
+    };
+    let dsp = DspConfig { fft_size: 1024, window: WindowKind::Hann, overlap: 0.5, threads };
+    let channels = ["busy=100.1M:20k", "idle=99.8M:20k"].map(|c| parse_channel_flag(c).unwrap());
+    let plan = Plan::from_parts(None, &channels).unwrap();
+    let req =
+        OccupancyRequest { dwell_s: None, threshold_db: 10.0, interval_s: 600.0, hang_s: 0.025 };
+    let setup = OccupancySetup::new(&info, &dsp, &plan, &req).unwrap();
+    let writer = LogWriter::new(std::io::sink(), LogFormat::JsonLines, true).unwrap();
+    let mut log = OccupancyLog::new(writer, &plan, &setup);
+    let mut progress = Progress::for_file(None, rate);
+    let mut spec = RunSpec::new(info, setup.engine.clone(), threads);
+    spec.tracker = Some(setup.tracker());
+    let mut run = Run::new(spec, vec![&mut progress, &mut log]);
+    let on = |_: u64| true;
+    let carrier = [Keyed { offset_hz: 100e3, level_dbfs: -30.0, on: &on }];
+    let block_len = 10_000;
+    let x = keyed_band(block_len * 150, rate, 1e-4, &carrier, 3);
+    let blocks: Vec<Block> = x
+        .chunks(block_len)
+        .enumerate()
+        .map(|(i, c)| Block::new((i * block_len) as u64, c.to_vec()))
+        .collect();
+    let (warm, rest) = blocks.split_at(100);
+    warm.iter().for_each(|b| {
+        run.feed(b).unwrap();
+    });
+    let n = counted(|| {
+        rest.iter().for_each(|b| {
+            run.feed(b).unwrap();
+        })
+    });
+    assert_eq!(n, 0, "log path on {threads} thread(s): {n} allocations over {} blocks", rest.len());
 }

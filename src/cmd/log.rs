@@ -12,7 +12,7 @@
 //! `--no-drop` makes the reader wait instead (the writer upstream then blocks).
 
 use crate::cli::LogConfig;
-use crate::messages::{note, report_input_issues};
+use crate::messages::{note, notes};
 use crate::output::log::LogWriter;
 use crate::output::occupancy_log::OccupancyLog;
 use crate::output::progress::Progress;
@@ -27,9 +27,9 @@ use anyhow::{Context, Result};
 use std::process::ExitCode;
 
 pub fn run(cfg: LogConfig) -> Result<ExitCode> {
-    let mut notes = Vec::new();
-    let src = source::open(&cfg.input, &mut notes)?;
-    notes.iter().for_each(|n| note(n));
+    let mut opened = Vec::new();
+    let src = source::open(&cfg.input, &mut opened)?;
+    notes(&opened);
     let info = src.info().clone();
     let plan = &cfg.channels.plan;
     let request = OccupancyRequest {
@@ -39,7 +39,7 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
         hang_s: cfg.hang_s,
     };
     let setup = OccupancySetup::new(&info, &cfg.dsp, plan, &request)?;
-    setup.notes(plan).iter().for_each(|n| note(n));
+    notes(&setup.notes(plan));
 
     let out = sink::open(&cfg.out, cfg.append, "log")?;
     let writer = LogWriter::new(out.out, cfg.format, out.empty)
@@ -74,7 +74,7 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
         note(&format!("stopped by {}; the log is complete", signals.signal_name()));
     }
     if let Some(issues) = &outcome.issues {
-        report_input_issues(issues);
+        notes(&issues.notes());
     }
     outcome.require_samples(&info.label)?;
     if outcome.end.dropped_samples > 0 {

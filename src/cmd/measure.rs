@@ -2,7 +2,7 @@
 
 use crate::cli::MeasureConfig;
 use crate::measure::occupancy::{DEFAULT_HANG_S, DEFAULT_INTERVAL_S};
-use crate::messages::{note, report_input_issues};
+use crate::messages::notes;
 use crate::output::report::{build_report, channel_rows, InputCounts, ReportSettings};
 use crate::output::sink;
 use crate::output::whole::WholeInput;
@@ -15,9 +15,9 @@ use std::io::Write;
 use std::process::ExitCode;
 
 pub fn run(cfg: MeasureConfig) -> Result<ExitCode> {
-    let mut notes = Vec::new();
-    let src = source::open(&cfg.input, &mut notes)?;
-    notes.iter().for_each(|n| note(n));
+    let mut opened = Vec::new();
+    let src = source::open(&cfg.input, &mut opened)?;
+    notes(&opened);
     let info = src.info().clone();
     let max_samples = cfg.seconds.map(|s| (s * info.sample_rate_hz).round() as u64);
     let plan = &cfg.channels.plan;
@@ -40,7 +40,7 @@ pub fn run(cfg: MeasureConfig) -> Result<ExitCode> {
     let stats = input.stats.clone();
     let outcome = run_input(input, Run::new(spec, vec![&mut whole]), None)?;
     let issues = outcome.issues.clone().unwrap_or_default();
-    report_input_issues(&issues);
+    notes(&issues.notes());
     let Some(spectrum) = whole.average(cfg.dsp.hop()) else {
         outcome.require_samples(&info.label)?;
         bail!(

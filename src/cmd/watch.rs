@@ -5,7 +5,7 @@
 //! counted on screen rather than queued without bound.
 
 use crate::cli::{ColourChoice, WatchConfig};
-use crate::messages::{note, report_input_issues, sanitize};
+use crate::messages::{note, notes, sanitize};
 use crate::pipeline::input::live_block_len;
 use crate::pipeline::latest::RowFeed;
 use crate::pipeline::{Input, RunSpec};
@@ -32,9 +32,9 @@ pub fn run_default() -> Result<ExitCode> {
 }
 
 pub fn run(cfg: WatchConfig) -> Result<ExitCode> {
-    let mut notes = Vec::new();
-    let src = source::open(&cfg.input, &mut notes)?;
-    notes.iter().for_each(|n| note(n));
+    let mut opened = Vec::new();
+    let src = source::open(&cfg.input, &mut opened)?;
+    notes(&opened);
     let info = src.info().clone();
     let half = info.sample_rate_hz / 2.0;
     cfg.plan.check_span(info.center_hz - half, info.center_hz + half)?;
@@ -106,7 +106,7 @@ fn shut_down(input: Input) {
         return;
     }
     match input.finish() {
-        Ok(issues) => report_input_issues(&issues),
+        Ok(issues) => notes(&issues.notes()),
         Err(e) => note(&format!("{e:#}")),
     }
 }

@@ -7,9 +7,10 @@
 //!   follows slow changes but not each row's noise. They share one exponential average so that
 //!   its start-up and its degrees of freedom are worked out, and tested, once.
 
-use super::spectrum::Spectrum;
+use super::spectrum::{Geometry, Spectrum};
 use super::stft::welch_dof;
 use super::window::Window;
+use std::sync::Arc;
 
 /// A running frame-weighted sum of spectra from one engine.
 #[derive(Clone, Debug, Default)]
@@ -17,7 +18,9 @@ pub struct SpectrumSum {
     /// `Σ psd · frames`.
     weighted: Vec<f64>,
     frames: u64,
-    first: Option<Spectrum>,
+    /// Where the bins of the first spectrum lie, and where it began.
+    geometry: Option<Arc<Geometry>>,
+    first_sample: u64,
     end_sample: u64,
 }
 
@@ -28,11 +31,10 @@ impl SpectrumSum {
 
     /// Adds a spectrum; all must come from the same engine, in order.
     pub fn add(&mut self, s: &Spectrum) {
-        if self.first.is_none() {
+        if self.geometry.is_none() {
             self.weighted = vec![0.0; s.psd.len()];
-            let mut shape = s.clone();
-            shape.psd.clear();
-            self.first = Some(shape);
+            self.geometry = Some(s.geometry.clone());
+            self.first_sample = s.first_sample;
         }
         let w = s.frames as f64;
         for (acc, p) in self.weighted.iter_mut().zip(&s.psd) {
@@ -45,15 +47,16 @@ impl SpectrumSum {
     /// The average over every frame added, with the degrees of freedom of that many frames taken
     /// `hop` samples apart; `None` before the first spectrum.
     pub fn average(&self, hop: usize) -> Option<Spectrum> {
-        let shape = self.first.as_ref()?;
+        let geometry = self.geometry.as_ref()?;
         let n = self.frames.max(1) as f64;
-        let window = Window::new(shape.window, shape.fft_size);
+        let window = Window::new(geometry.window, geometry.fft_size);
         Some(Spectrum {
             psd: self.weighted.iter().map(|p| p / n).collect(),
             frames: self.frames,
             dof: welch_dof(&window, hop, self.frames),
             end_sample: self.end_sample,
-            ..shape.clone()
+            first_sample: self.first_sample,
+            geometry: geometry.clone(),
         })
     }
 }

@@ -1,5 +1,5 @@
 //! Measurements: pure functions over a [`Spectrum`](crate::dsp::Spectrum), shared by `measure`,
-//! `log`, `watch` and pictures, and tested without threads or I/O.
+//! `log` and `watch`, and tested without threads or I/O.
 
 pub mod band;
 pub mod noise;

@@ -47,6 +47,29 @@ pub struct InputIssues {
     pub beyond_scale: u64,
 }
 
+impl InputIssues {
+    /// What the user should hear about these problems, one note each.
+    pub fn notes(&self) -> Vec<String> {
+        let mut notes = Vec::new();
+        if self.non_finite > 0 {
+            notes.push(format!("skipped {} samples holding NaN or infinity", self.non_finite));
+        }
+        if self.beyond_scale > 0 {
+            notes.push(format!(
+                "{} float samples lie beyond ±1e6 while full scale is ±1: the input is probably not in the format it was read as; check --format",
+                self.beyond_scale
+            ));
+        }
+        if self.trailing_bytes > 0 {
+            notes.push(format!(
+                "dropped {} bytes at the end that do not make a whole sample (wrong --format, or a cut file?)",
+                self.trailing_bytes
+            ));
+        }
+        notes
+    }
+}
+
 /// A stream of samples.
 pub trait SampleSource: Send {
     fn info(&self) -> &SourceInfo;

@@ -10,6 +10,7 @@ use super::colour::{Depth, MapKind, Palette, Theme};
 use super::history::{History, Row};
 use super::input::Intent;
 use super::layout::Screen;
+pub use super::state::{ChannelMark, Levels, Mode, SourceSummary, Stats};
 use super::traces::Traces;
 use super::view::{column_max, BinGrid, View, MIN_VIEW_BINS};
 use crate::dsp::{Spectrum, Window, WindowKind};
@@ -32,117 +33,6 @@ pub const ROW_RATES: [f64; 8] = [1.0, 2.0, 5.0, 10.0, 15.0, 20.0, 30.0, 50.0];
 /// Limits of the dynamic range, dB.
 pub const RANGE_MIN_DB: f64 = 20.0;
 pub const RANGE_MAX_DB: f64 = 200.0;
-
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-pub enum Mode {
-    Live,
-    /// The display holds still; rows that arrive are not shown.
-    Frozen,
-    Quit,
-}
-
-/// A named channel shown over the spectrum and in the table.
-#[derive(Clone, Debug, PartialEq)]
-pub struct ChannelMark {
-    /// Shown as is; callers remove control characters first.
-    pub name: String,
-    pub center_hz: f64,
-    pub width_hz: f64,
-}
-
-impl ChannelMark {
-    pub fn contains(&self, freq_hz: f64) -> bool {
-        (freq_hz - self.center_hz).abs() <= 0.5 * self.width_hz
-    }
-}
-
-/// What the status line says about the input.
-#[derive(Clone, Debug, PartialEq)]
-pub struct SourceSummary {
-    /// Free of control characters.
-    pub label: String,
-    pub sample_rate_hz: f64,
-    pub center_hz: f64,
-    pub total_samples: Option<u64>,
-    pub live: bool,
-    /// Playback speed for files (× real time).
-    pub speed: Option<f64>,
-    pub looping: bool,
-}
-
-/// The vertical scale shared by the spectrum and the waterfall colours.
-#[derive(Clone, Copy, Debug, PartialEq)]
-pub struct Levels {
-    /// Top of the scale, dBFS.
-    pub top_dbfs: f64,
-    pub range_db: f64,
-    /// Follow the noise floor and the strongest signal.
-    pub auto: bool,
-    /// Added to every printed level: dBFS → dBm for a calibrated receiver.
-    pub offset_db: Option<f64>,
-}
-
-impl Levels {
-    pub fn bottom_dbfs(&self) -> f64 {
-        self.top_dbfs - self.range_db
-    }
-
-    pub fn unit(&self) -> &'static str {
-        if self.offset_db.is_some() {
-            "dBm"
-        } else {
-            "dBFS"
-        }
-    }
-
-    /// A dBFS level in printed units.
-    pub fn shown(&self, dbfs: f64) -> f64 {
-        dbfs + self.offset_db.unwrap_or(0.0)
-    }
-}
-
-/// Counters for the status line, refreshed once a second so the figures are readable.
-#[derive(Clone, Debug)]
-pub struct Stats {
-    pub fps: f64,
-    pub rows_per_s: f64,
-    /// Rows the DSP threw away because the screen was behind.
-    pub skipped: u64,
-    /// Samples the reader threw away because the DSP was behind.
-    pub dropped: u64,
-    /// Input time of the newest row, seconds.
-    pub position_s: Option<f64>,
-    frames: u32,
-    rows: u32,
-    since: Instant,
-}
-
-impl Stats {
-    fn new(now: Instant) -> Stats {
-        Stats {
-            fps: 0.0,
-            rows_per_s: 0.0,
-            skipped: 0,
-            dropped: 0,
-            position_s: None,
-            frames: 0,
-            rows: 0,
-            since: now,
-        }
-    }
-
-    pub fn count_frame(&mut self, now: Instant) {
-        self.frames += 1;
-        let dt = now.duration_since(self.since).as_secs_f64();
-        if dt >= 1.0 {
-            self.fps = self.frames as f64 / dt;
-            self.rows_per_s = self.rows as f64 / dt;
-            self.frames = 0;
-            self.rows = 0;
-            self.since = now;
-        }
-    }
-}
 
 pub struct App {
     pub mode: Mode,

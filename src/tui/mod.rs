@@ -15,6 +15,7 @@ pub mod history;
 pub mod input;
 pub mod layout;
 pub mod painter;
+pub mod state;
 pub mod term;
 pub mod traces;
 pub mod view;

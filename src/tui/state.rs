@@ -1,0 +1,116 @@
+//! The small pieces of the monitor's state that widgets read: what is being watched, how levels
+//! are shown, the plan's channel marks and the frame and row counters.
+
+use std::time::Instant;
+
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Mode {
+    Live,
+    /// The display holds still; rows that arrive are not shown.
+    Frozen,
+    Quit,
+}
+
+/// A named channel shown over the spectrum and in the table.
+#[derive(Clone, Debug, PartialEq)]
+pub struct ChannelMark {
+    /// Shown as is; callers remove control characters first.
+    pub name: String,
+    pub center_hz: f64,
+    pub width_hz: f64,
+}
+
+impl ChannelMark {
+    pub fn contains(&self, freq_hz: f64) -> bool {
+        (freq_hz - self.center_hz).abs() <= 0.5 * self.width_hz
+    }
+}
+
+/// What the status line says about the input.
+#[derive(Clone, Debug, PartialEq)]
+pub struct SourceSummary {
+    /// Free of control characters.
+    pub label: String,
+    pub sample_rate_hz: f64,
+    pub center_hz: f64,
+    pub total_samples: Option<u64>,
+    pub live: bool,
+    /// Playback speed for files (× real time).
+    pub speed: Option<f64>,
+    pub looping: bool,
+}
+
+/// The vertical scale shared by the spectrum and the waterfall colours.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Levels {
+    /// Top of the scale, dBFS.
+    pub top_dbfs: f64,
+    pub range_db: f64,
+    /// Follow the noise floor and the strongest signal.
+    pub auto: bool,
+    /// Added to every printed level: dBFS → dBm for a calibrated receiver.
+    pub offset_db: Option<f64>,
+}
+
+impl Levels {
+    pub fn bottom_dbfs(&self) -> f64 {
+        self.top_dbfs - self.range_db
+    }
+
+    pub fn unit(&self) -> &'static str {
+        if self.offset_db.is_some() {
+            "dBm"
+        } else {
+            "dBFS"
+        }
+    }
+
+    /// A dBFS level in printed units.
+    pub fn shown(&self, dbfs: f64) -> f64 {
+        dbfs + self.offset_db.unwrap_or(0.0)
+    }
+}
+
+/// Counters for the status line, refreshed once a second so the figures are readable.
+#[derive(Clone, Debug)]
+pub struct Stats {
+    pub fps: f64,
+    pub rows_per_s: f64,
+    /// Rows the DSP threw away because the screen was behind.
+    pub skipped: u64,
+    /// Samples the reader threw away because the DSP was behind.
+    pub dropped: u64,
+    /// Input time of the newest row, seconds.
+    pub position_s: Option<f64>,
+    frames: u32,
+    /// Rows taken since the last refresh of the figures.
+    pub(super) rows: u32,
+    since: Instant,
+}
+
+impl Stats {
+    pub(super) fn new(now: Instant) -> Stats {
+        Stats {
+            fps: 0.0,
+            rows_per_s: 0.0,
+            skipped: 0,
+            dropped: 0,
+            position_s: None,
+            frames: 0,
+            rows: 0,
+            since: now,
+        }
+    }
+
+    pub fn count_frame(&mut self, now: Instant) {
+        self.frames += 1;
+        let dt = now.duration_since(self.since).as_secs_f64();
+        if dt >= 1.0 {
+            self.fps = self.frames as f64 / dt;
+            self.rows_per_s = self.rows as f64 / dt;
+            self.frames = 0;
+            self.rows = 0;
+            self.since = now;
+        }
+    }
+}
