@@ -9,6 +9,7 @@ use crate::cmd;
 use crate::messages::{mark_start, sanitize_message};
 use clap::Parser;
 use std::ffi::OsString;
+use std::io::Write;
 use std::process::ExitCode;
 
 pub fn main_with_args(args: impl IntoIterator<Item = OsString>) -> ExitCode {
@@ -16,7 +17,13 @@ pub fn main_with_args(args: impl IntoIterator<Item = OsString>) -> ExitCode {
     let cli = match Cli::try_parse_from(args) {
         Ok(cli) => cli,
         Err(e) => {
-            let _ = e.print();
+            // clap echoes the offending value: plain text, without control characters.
+            let text = sanitize_message(&e.render().to_string());
+            let _ = if e.use_stderr() {
+                std::io::stderr().write_all(text.as_bytes())
+            } else {
+                std::io::stdout().write_all(text.as_bytes())
+            };
             return ExitCode::from(if e.use_stderr() { 2 } else { 0 });
         }
     };

@@ -10,9 +10,37 @@ use std::time::Instant;
 /// When the process started, for the start-up figure `watch` reports.
 pub static STARTED: OnceLock<Instant> = OnceLock::new();
 
-/// Records the start of the process (the first call wins).
+/// Whether standard output was closed when the process started (`>&-`).
+static STDOUT_CLOSED: OnceLock<bool> = OnceLock::new();
+
+/// Records the start of the process (the first call wins), and whether standard output was
+/// closed (`>&-`) when it started.
 pub fn mark_start() -> Instant {
+    STDOUT_CLOSED.get_or_init(stdout_was_closed);
     *STARTED.get_or_init(Instant::now)
+}
+
+/// The Rust runtime puts `/dev/null` on a standard descriptor that is closed at start-up, so
+/// writes to a closed stdout would vanish without an error. It opens it read-write, where a
+/// shell's `> /dev/null` opens it write-only: Linux shows both in `/proc/self/fdinfo`. Elsewhere
+/// (no `/proc`) stdout is taken to be open.
+fn stdout_was_closed() -> bool {
+    let Ok(target) = std::fs::read_link("/proc/self/fd/1") else { return false };
+    if target != std::path::Path::new("/dev/null") {
+        return false;
+    }
+    let Ok(info) = std::fs::read_to_string("/proc/self/fdinfo/1") else { return false };
+    let flags = info
+        .lines()
+        .find_map(|l| l.strip_prefix("flags:"))
+        .and_then(|f| u32::from_str_radix(f.trim(), 8).ok());
+    // O_ACCMODE = 3, O_RDWR = 2 (Linux, asm-generic/fcntl.h).
+    flags.is_some_and(|f| f & 3 == 2)
+}
+
+/// True when standard output was closed at start-up: whatever is written there is lost.
+pub fn stdout_closed() -> bool {
+    STDOUT_CLOSED.get().copied().unwrap_or(false)
 }
 
 /// Prints a non-fatal note for the user on stderr, with the program's prefix.

@@ -290,6 +290,15 @@ fn sigterm_flushes_the_open_interval_and_emission() {
 }
 
 #[test]
+fn a_closed_ssh_session_flushes_the_log_too() {
+    // SIGHUP: the terminal or SSH session that started the run went away (POSIX: the hangup
+    // signal is sent to the session's processes); the log must still end complete.
+    let (status, text) = log_live_then_signal("-HUP", &["--no-drop"]);
+    assert_eq!(status.code(), Some(0), "{text}");
+    check_stopped_log(&text, "terminated");
+}
+
+#[test]
 fn ctrl_c_flushes_the_open_interval_and_emission() {
     let (status, text) = log_live_then_signal("-INT", &[]);
     assert_eq!(status.code(), Some(0), "{text}");

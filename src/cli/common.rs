@@ -140,6 +140,8 @@ impl Default for ChannelArgs {
 #[derive(Clone, Debug, PartialEq)]
 pub struct ChannelConfig {
     pub plan: Plan,
+    /// The plan file, if one was given (an output must never overwrite it).
+    pub plan_path: Option<String>,
     /// Length of one measurement sample, seconds; `None` for the default.
     pub dwell_s: Option<f64>,
     pub threshold_db: f64,
@@ -150,6 +152,7 @@ impl ChannelArgs {
         check_threshold_db(self.threshold_db)?;
         Ok(ChannelConfig {
             plan: self.plan.validate()?,
+            plan_path: self.plan.plan.clone(),
             dwell_s: self.dwell.map(|d| d.as_secs_f64()),
             threshold_db: self.threshold_db,
         })

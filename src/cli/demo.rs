@@ -13,9 +13,10 @@ pub struct DemoArgs {
     /// Output file, or - for stdout. A name ending .sigmf-meta/.sigmf-data writes a SigMF pair.
     #[arg(short = 'o', long = "out", value_name = "FILE", default_value = "-")]
     pub out: String,
-    /// Sample format to write.
-    #[arg(long, value_name = "FORMAT", default_value = "cf32_le", value_parser = parse_format)]
-    pub format: SampleFormat,
+    /// Sample format to write [default: from the file name (.cu8, .cs8, .cs16, .cf32), ci16_le
+    /// for .wav, else cf32_le].
+    #[arg(long, value_name = "FORMAT", value_parser = parse_format)]
+    pub format: Option<SampleFormat>,
     /// Sample rate in samples/s.
     #[arg(long, value_name = "HZ", default_value = "2.4M", value_parser = parse_positive_hz)]
     pub rate: f64,
@@ -37,10 +38,22 @@ pub struct DemoArgs {
     pub seed: u64,
 }
 
+/// What kind of file `demo` writes, from the name given to `-o`.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum DemoContainer {
+    /// Raw interleaved samples (a file or stdout).
+    Raw,
+    /// A SigMF pair, with the scene's truth as annotations.
+    Sigmf,
+    /// A two-channel WAV file (I left, Q right).
+    Wav,
+}
+
 /// A validated `demo`.
 #[derive(Clone, Debug)]
 pub struct DemoConfig {
     pub out: String,
+    pub container: DemoContainer,
     pub format: SampleFormat,
     pub rate: f64,
     pub center_hz: f64,
@@ -60,9 +73,11 @@ impl DemoArgs {
             }
             None => None,
         };
+        let (container, format) = container_and_format(&self.out, self.format)?;
         Ok(DemoConfig {
             out: self.out,
-            format: self.format,
+            container,
+            format,
             rate: self.rate,
             center_hz: self.center.unwrap_or(DEFAULT_CENTER_HZ),
             total_samples,
@@ -70,6 +85,35 @@ impl DemoArgs {
             start: self.start,
             seed: self.seed,
         })
+    }
+}
+
+/// The container the name asks for and the sample format to write into it; a format that the
+/// name contradicts (`-o x.cu8 --format cf32_le`) is refused rather than written under a
+/// misleading name.
+fn container_and_format(
+    out: &str,
+    format: Option<SampleFormat>,
+) -> Result<(DemoContainer, SampleFormat)> {
+    let lower = out.to_ascii_lowercase();
+    if lower.ends_with(".sigmf-meta") || lower.ends_with(".sigmf-data") {
+        return Ok((DemoContainer::Sigmf, format.unwrap_or(SampleFormat::Cf32Le)));
+    }
+    if lower.ends_with(".wav") {
+        let f = format.unwrap_or(SampleFormat::Ci16Le);
+        if !matches!(f, SampleFormat::Cu8 | SampleFormat::Ci16Le | SampleFormat::Cf32Le) {
+            bail!("a WAV file holds cu8, ci16_le or cf32_le samples, not {f}; choose one of those with --format, or another file name");
+        }
+        return Ok((DemoContainer::Wav, f));
+    }
+    let named = if out == "-" { None } else { SampleFormat::guess_from_extension(out) };
+    match (named, format) {
+        (Some(n), Some(f)) if n != f => bail!(
+            "'{}' names {n} samples but --format is {f}; make them agree (or use a neutral name such as .iq)",
+            crate::messages::sanitize(out)
+        ),
+        (Some(n), _) => Ok((DemoContainer::Raw, n)),
+        (None, f) => Ok((DemoContainer::Raw, f.unwrap_or(SampleFormat::Cf32Le))),
     }
 }
 
@@ -96,6 +140,14 @@ mod tests {
         assert_eq!(d.start.unwrap().unix_timestamp(), 1_934_173_800);
         assert_eq!(d.seed, 9);
         assert!(Cli::try_parse_from(["bandwarden", "demo", "--start", "today"]).is_err());
+        use super::{container_and_format, DemoContainer};
+        use crate::source::SampleFormat;
+        let c = |out: &str, f| container_and_format(out, f);
+        assert_eq!(c("x.cu8", None).unwrap(), (DemoContainer::Raw, SampleFormat::Cu8));
+        assert_eq!(c("x.wav", None).unwrap(), (DemoContainer::Wav, SampleFormat::Ci16Le));
+        assert_eq!(c("-", None).unwrap(), (DemoContainer::Raw, SampleFormat::Cf32Le));
+        assert!(c("x.cu8", Some(SampleFormat::Cf32Le)).unwrap_err().to_string().contains("agree"));
+        assert!(c("x.wav", Some(SampleFormat::Ci8)).is_err());
         let file = Cli::try_parse_from(["bandwarden", "demo", "-o", "x.cf32"]).unwrap();
         let Some(Command::Demo(f)) = file.command else { panic!("not demo") };
         assert!(f.validate().unwrap_err().to_string().contains("--seconds"));

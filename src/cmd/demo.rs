@@ -4,43 +4,49 @@
 //! channel (sample range, frequency edges, channel name), so other tools can check what they find
 //! against what was sent.
 
+use crate::cli::demo::DemoContainer;
 use crate::cli::DemoConfig;
-use crate::messages::note;
+use crate::messages::{note, sanitize};
+use crate::output::samples::{RawSink, SampleSink, WavSink};
+use crate::output::sink;
 use crate::source::demo::{channels, DemoSource, SITE_NAME};
 use crate::source::{sigmf, SampleSource};
 use anyhow::{Context, Result};
 use num_complex::Complex32;
 use serde_json::{json, Value};
-use std::fs::File;
-use std::io::{BufWriter, Write};
+use std::io::BufWriter;
 use std::process::ExitCode;
 
 pub fn run(args: DemoConfig) -> Result<ExitCode> {
     let center = args.center_hz;
     let total = args.total_samples;
-    let lower = args.out.to_ascii_lowercase();
-    let is_sigmf = lower.ends_with(".sigmf-meta") || lower.ends_with(".sigmf-data");
-    if args.start.is_some() && !is_sigmf {
+    if args.start.is_some() && args.container != DemoContainer::Sigmf {
         note("--start is only recorded in SigMF output (a name ending .sigmf-meta)");
     }
-    let mut out: Box<dyn Write> = if args.out == "-" {
-        Box::new(BufWriter::with_capacity(1 << 20, std::io::stdout().lock()))
-    } else {
-        let path = if is_sigmf { sigmf::paths(&args.out).1 } else { args.out.clone() };
-        Box::new(BufWriter::with_capacity(
-            1 << 20,
-            File::create(&path).with_context(|| format!("cannot create '{path}'"))?,
-        ))
+    let mut out: Box<dyn SampleSink> = match args.container {
+        DemoContainer::Wav => Box::new(WavSink::create(&args.out, args.format, args.rate)?),
+        DemoContainer::Raw => {
+            let sink = sink::open(&args.out, false, "samples")?;
+            Box::new(RawSink {
+                out: BufWriter::with_capacity(1 << 20, sink.out),
+                bytes: Vec::new(),
+            })
+        }
+        DemoContainer::Sigmf => {
+            let (meta_path, data_path) = sigmf::paths(&args.out);
+            let meta = annotated_meta(&args, center, total.unwrap_or(0))?;
+            std::fs::write(&meta_path, meta)
+                .with_context(|| format!("cannot write '{}'", sanitize(&meta_path)))?;
+            let sink = sink::open(&data_path, false, "samples")?;
+            Box::new(RawSink {
+                out: BufWriter::with_capacity(1 << 20, sink.out),
+                bytes: Vec::new(),
+            })
+        }
     };
-    if is_sigmf {
-        let meta_path = sigmf::paths(&args.out).0;
-        let meta = annotated_meta(&args, center, total.unwrap_or(0))?;
-        std::fs::write(&meta_path, meta).with_context(|| format!("cannot write '{meta_path}'"))?;
-    }
     let mut src = DemoSource::with_seed(args.rate, center, args.realtime, args.seed)
         .with_start_time(args.start);
     let mut samples = Vec::new();
-    let mut bytes = Vec::new();
     let mut written = 0u64;
     let block = (args.rate / 100.0).clamp(1024.0, 262_144.0) as usize;
     loop {
@@ -50,16 +56,14 @@ pub fn run(args: DemoConfig) -> Result<ExitCode> {
             None => block,
         };
         samples.resize(want, Complex32::default());
-        bytes.clear();
         let n = src.read(&mut samples[..want])?;
-        args.format.encode(&samples[..n], &mut bytes);
-        out.write_all(&bytes)?;
+        out.put(args.format, &samples[..n])?;
         if args.realtime {
             out.flush()?;
         }
         written += n as u64;
     }
-    out.flush()?;
+    out.finish()?;
     Ok(ExitCode::SUCCESS)
 }
 

@@ -24,6 +24,7 @@ use crate::pipeline::{run_input, Input, Run, RunSpec, StopSignals, TimeSource};
 use crate::source::reader::ReaderOptions;
 use crate::source::{self};
 use anyhow::{Context, Result};
+use std::path::PathBuf;
 use std::process::ExitCode;
 
 pub fn run(cfg: LogConfig) -> Result<ExitCode> {
@@ -41,6 +42,12 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
     let setup = OccupancySetup::new(&info, &cfg.dsp, plan, &request)?;
     notes(&setup.notes(plan));
 
+    let mut inputs: Vec<PathBuf> = cfg.channels.plan_path.iter().map(PathBuf::from).collect();
+    if let Some(path) = cfg.input.path.as_deref().filter(|p| *p != "-") {
+        let (meta, data) = crate::source::sigmf::paths(path);
+        inputs.extend([path.into(), meta.into(), data.into()]);
+    }
+    sink::refuse_overwrite(&cfg.out, &inputs.iter().map(PathBuf::as_path).collect::<Vec<_>>())?;
     let out = sink::open(&cfg.out, cfg.append, "log")?;
     let writer = LogWriter::new(out.out, cfg.format, out.empty)
         .with_context(|| format!("cannot write the log to '{}'", cfg.out))?;
@@ -76,7 +83,7 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
     if let Some(issues) = &outcome.issues {
         notes(&issues.notes());
     }
-    outcome.require_samples(&info.label)?;
+    outcome.check(&info.label)?;
     if outcome.end.dropped_samples > 0 {
         note(&format!(
             "{} input samples were dropped because processing fell behind (see the dropped records); a smaller --fft or a lower rate helps",

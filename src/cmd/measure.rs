@@ -41,8 +41,8 @@ pub fn run(cfg: MeasureConfig) -> Result<ExitCode> {
     let outcome = run_input(input, Run::new(spec, vec![&mut whole]), None)?;
     let issues = outcome.issues.clone().unwrap_or_default();
     notes(&issues.notes());
+    outcome.check(&info.label)?;
     let Some(spectrum) = whole.average(cfg.dsp.hop()) else {
-        outcome.require_samples(&info.label)?;
         bail!(
             "the input '{}' holds {} samples, fewer than one FFT frame of {}; use a smaller --fft",
             sanitize(&info.label),
@@ -50,14 +50,6 @@ pub fn run(cfg: MeasureConfig) -> Result<ExitCode> {
             cfg.dsp.fft_size
         );
     };
-    if spectrum.psd.iter().any(|p| !p.is_finite()) {
-        bail!(
-            "the spectrum of '{}' overflowed: {} samples are too large to square (float input should lie within ±1); the input is probably not {}; check --format",
-            sanitize(&info.label),
-            issues.beyond_scale,
-            info.format.map_or("in the format it was read as".to_string(), |f| f.to_string())
-        );
-    }
     let settings = ReportSettings {
         peaks: cfg.peaks,
         bands: cfg.bands.clone(),

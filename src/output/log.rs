@@ -28,8 +28,9 @@
 //!   bandwidth of its noise-corrected average spectrum, ITU-R SM.328; `null` if nothing stood
 //!   above the noise), `samples` (occupied samples), `partial` (cut short by the end of the run or
 //!   by dropped input: it may have gone on).
-//! - `dropped`: `t_start_s, t_end_s, start, end, dropped_samples`: input samples a live source lost
-//!   because processing fell behind. An interval in which not one sample could be measured (all
+//! - `dropped`: `t_start_s, t_end_s, start, end, dropped_samples, cause`: input samples missing
+//!   from the measurement, `cause` `behind` (a live source outran the processing) or
+//!   `not_a_number` (NaN or infinite samples in the input). An interval in which not one sample could be measured (all
 //!   of its input lost) has no `interval` records; the `dropped` record covers it.
 //! - `stop` (last line of an orderly end): `t_end_s, end, reason` (`end_of_input`, `limit`,
 //!   `interrupted`, `terminated`, `input_error`), `iq_samples` (read), `dropped_samples` (total).
@@ -119,11 +120,19 @@ pub fn csv_line(record: &Record) -> String {
     line
 }
 
+/// Quotes a text cell as RFC 4180 asks, after defusing a leading `= + - @` (or tab/CR), which a
+/// spreadsheet would run as a formula: such a cell gets a leading `'` (common practice for CSV
+/// meant to be opened in spreadsheets). Only text cells: numbers are written as numbers.
 fn csv_quote(s: &str) -> String {
+    let s = if s.starts_with(['=', '+', '-', '@', '\t', '\r']) {
+        format!("'{s}")
+    } else {
+        s.to_string()
+    };
     if s.contains([',', '"', '\n', '\r']) {
         format!("\"{}\"", s.replace('"', "\"\""))
     } else {
-        s.to_string()
+        s
     }
 }
 
@@ -197,6 +206,7 @@ mod tests {
                 start: None,
                 end: None,
                 dropped_samples: 240_000,
+                cause: "behind".into(),
             }),
             Record::Stop(StopRecord {
                 t_end_s: 60.0,
@@ -250,10 +260,27 @@ mod tests {
         assert_eq!(header, CSV_COLUMNS);
         let rows: Vec<csv::StringRecord> = reader.records().map(Result::unwrap).collect();
         assert_eq!(rows.len(), 6);
-        assert_eq!(&rows[0][21], "a, \"quoted\" file");
+        let source = CSV_COLUMNS.iter().position(|c| *c == "source").unwrap();
+        assert_eq!(&rows[0][source], "a, \"quoted\" file");
         assert_eq!(&rows[2][0], "interval");
         assert_eq!(&rows[2][9], "30.2");
         assert_eq!(&rows[3][16], "", "a null OBW is an empty cell");
         assert_eq!(&rows[3][18], "true");
+    }
+}
+
+#[cfg(test)]
+mod csv_cells {
+    use super::csv_quote;
+
+    #[test]
+    fn formula_like_text_is_defused_and_plain_text_is_not() {
+        // Cells a spreadsheet would evaluate (common practice: prefix a single quote).
+        assert_eq!(csv_quote("=HYPERLINK(\"x\")"), "\"'=HYPERLINK(\"\"x\"\")\"");
+        assert_eq!(csv_quote("+1"), "'+1");
+        assert_eq!(csv_quote("-gate"), "'-gate");
+        assert_eq!(csv_quote("@site"), "'@site");
+        assert_eq!(csv_quote("north-gate"), "north-gate");
+        assert_eq!(csv_quote("a,b"), "\"a,b\"");
     }
 }

@@ -87,7 +87,8 @@ pub struct EmissionRecord {
     pub partial: bool,
 }
 
-/// Input samples a live source lost because the DSP fell behind.
+/// Input samples missing from the measurement: lost because the DSP fell behind a live source,
+/// or not numbers (the time line keeps them, so later stamps stay exact).
 #[derive(Serialize, Debug, Clone, PartialEq)]
 pub struct DroppedRecord {
     pub t_start_s: f64,
@@ -95,6 +96,8 @@ pub struct DroppedRecord {
     pub start: Option<String>,
     pub end: Option<String>,
     pub dropped_samples: u64,
+    /// `behind` (a live source outran the processing) or `not_a_number` (NaN/infinite samples).
+    pub cause: String,
 }
 
 /// The last line of a run that ended in an orderly way.
@@ -132,6 +135,7 @@ pub const CSV_COLUMNS: &[&str] = &[
     "dropped_samples",
     "partial",
     "reason",
+    "cause",
     "iq_samples",
     "source",
     "sample_rate_hz",

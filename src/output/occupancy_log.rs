@@ -8,7 +8,7 @@ use super::log::{
 use crate::measure::occupancy::{Event, FLOOR_MEMORY_S, FLOOR_SMOOTHING_S, OBW_PERCENT};
 use crate::pipeline::clock::rfc3339_ms;
 use crate::pipeline::occupancy::OccupancySetup;
-use crate::pipeline::{Consumer, RunEnd, RunInfo};
+use crate::pipeline::{Consumer, GapCause, RunEnd, RunInfo};
 use crate::plan::Plan;
 use crate::units::db;
 use std::io::{self, Write};
@@ -117,7 +117,7 @@ impl<W: Write> Consumer for OccupancyLog<W> {
         self.writer.write(&rec)
     }
 
-    fn gap(&mut self, from: u64, to: u64, run: &RunInfo) -> io::Result<()> {
+    fn gap(&mut self, from: u64, to: u64, cause: GapCause, run: &RunInfo) -> io::Result<()> {
         let c = &run.clock;
         self.writer.write(&Record::Dropped(DroppedRecord {
             t_start_s: c.seconds(from),
@@ -125,6 +125,7 @@ impl<W: Write> Consumer for OccupancyLog<W> {
             start: c.stamp(from),
             end: c.stamp(to),
             dropped_samples: to - from,
+            cause: cause.as_str().into(),
         }))
     }
 

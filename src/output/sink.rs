@@ -1,7 +1,16 @@
-//! Where a command's output goes: a file (replaced, or appended to) or standard output.
+//! Where a command's output goes — a file (replaced, or appended to) or standard output — and the
+//! one checked path every command writes through.
+//!
+//! A write error names the output it happened on, and keeps its kind: a broken pipe (the reader
+//! of our output went away, as in `bandwarden … | head`) still reads as one, so `app` ends
+//! quietly with 0; anything else (a full disk, a closed descriptor) becomes one `bandwarden:` line
+//! and exit 1. Standard output that is closed (`>&-`) is refused up front: writes to it would
+//! otherwise vanish without an error.
 
-use anyhow::{Context, Result};
-use std::io::Write;
+use anyhow::{bail, Context, Result};
+use std::io::{self, Read, Seek, SeekFrom, Write};
+use std::os::fd::AsFd;
+use std::path::Path;
 
 /// An opened output and whether it is empty (so a CSV header is still needed there).
 pub struct Sink {
@@ -9,23 +18,138 @@ pub struct Sink {
     pub empty: bool,
 }
 
-/// Opens `path` (`-` for standard output); a file is replaced unless `append`.
+/// Opens `path` (`-` for standard output); a file is replaced unless `append`. `what` names the
+/// output in messages ("log", "report").
 pub fn open(path: &str, append: bool, what: &str) -> Result<Sink> {
     if path == "-" {
-        return Ok(Sink { out: Box::new(std::io::stdout()), empty: true });
+        stdout_is_open(what)?;
+        let out = Named { inner: io::stdout(), name: format!("the {what} on standard output") };
+        return Ok(Sink { out: Box::new(out), empty: true });
     }
-    let file = std::fs::OpenOptions::new()
+    let shown = crate::messages::sanitize(path);
+    let mut file = std::fs::OpenOptions::new()
         .create(true)
+        .read(append)
         .write(true)
         .append(append)
         .truncate(!append)
         .open(path)
         .with_context(|| {
             format!(
-                "cannot open '{}' for the {what}; check the directory exists and is writable",
-                crate::messages::sanitize(path)
+                "cannot open '{shown}' for the {what}; check the directory exists and is writable"
             )
         })?;
-    let empty = file.metadata().map(|m| m.len() == 0).unwrap_or(true);
-    Ok(Sink { out: Box::new(file), empty })
+    let len = file.metadata().map(|m| m.len()).unwrap_or(0);
+    let mut out = Named { inner: file.try_clone()?, name: format!("the {what} '{shown}'") };
+    if append && len > 0 && !ends_with_newline(&mut file, len) {
+        // The last line was cut (a crash, a full disk): start a new one so records are not glued.
+        out.write_all(b"\n").context("cannot finish the cut last line")?;
+    }
+    Ok(Sink { out: Box::new(out), empty: len == 0 })
+}
+
+/// Refuses to write over any of `inputs` (the input recording, the plan): opening the output
+/// would truncate what is about to be read.
+pub fn refuse_overwrite(out: &str, inputs: &[&Path]) -> Result<()> {
+    use std::os::unix::fs::MetadataExt;
+    if out == "-" {
+        return Ok(());
+    }
+    let Ok(o) = std::fs::metadata(out) else { return Ok(()) };
+    for input in inputs {
+        if let Ok(i) = std::fs::metadata(input) {
+            if (i.dev(), i.ino()) == (o.dev(), o.ino()) {
+                bail!(
+                    "the output '{}' is the input '{}': writing it would destroy what is to be read; choose another -o",
+                    crate::messages::sanitize(out),
+                    crate::messages::sanitize(&input.to_string_lossy())
+                );
+            }
+        }
+    }
+    Ok(())
+}
+
+fn ends_with_newline(file: &mut std::fs::File, len: u64) -> bool {
+    let mut last = [0u8];
+    file.seek(SeekFrom::Start(len - 1)).is_ok()
+        && file.read_exact(&mut last).is_ok()
+        && last[0] == b'\n'
+}
+
+/// Fails when standard output is closed, where the standard library would drop writes silently.
+fn stdout_is_open(what: &str) -> Result<()> {
+    if crate::messages::stdout_closed() || io::stdout().as_fd().try_clone_to_owned().is_err() {
+        bail!("standard output is closed, so the {what} would be lost; redirect it to a file (> FILE) instead");
+    }
+    Ok(())
+}
+
+/// A writer whose errors say which output they happened on.
+struct Named<W: Write> {
+    inner: W,
+    name: String,
+}
+
+impl<W: Write> Named<W> {
+    fn explain(&self, e: io::Error) -> io::Error {
+        io::Error::new(e.kind(), format!("cannot write {}: {e}", self.name))
+    }
+}
+
+impl<W: Write> Write for Named<W> {
+    fn write(&mut self, buf: &[u8]) -> io::Result<usize> {
+        self.inner.write(buf).map_err(|e| self.explain(e))
+    }
+
+    fn write_all(&mut self, buf: &[u8]) -> io::Result<()> {
+        self.inner.write_all(buf).map_err(|e| self.explain(e))
+    }
+
+    fn flush(&mut self) -> io::Result<()> {
+        self.inner.flush().map_err(|e| self.explain(e))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn appending_after_a_cut_line_starts_a_new_one() {
+        let dir = std::env::temp_dir().join(format!("bandwarden-sink-{}", std::process::id()));
+        std::fs::create_dir_all(&dir).unwrap();
+        let p = dir.join("cut.jsonl");
+        std::fs::write(&p, "{\"kind\":\"start\"}\n{\"kind\":\"inter").unwrap();
+        let mut s = open(p.to_str().unwrap(), true, "log").unwrap();
+        assert!(!s.empty);
+        s.out.write_all(b"{\"kind\":\"stop\"}\n").unwrap();
+        drop(s);
+        let text = std::fs::read_to_string(&p).unwrap();
+        assert_eq!(text.lines().last().unwrap(), "{\"kind\":\"stop\"}");
+        // A whole last line gets nothing extra.
+        let mut s = open(p.to_str().unwrap(), true, "log").unwrap();
+        s.out.write_all(b"x\n").unwrap();
+        drop(s);
+        assert!(std::fs::read_to_string(&p).unwrap().ends_with("}\nx\n"));
+        assert!(refuse_overwrite(p.to_str().unwrap(), &[&p]).is_err());
+        assert!(refuse_overwrite(p.to_str().unwrap(), &[&dir.join("other")]).is_ok());
+    }
+
+    #[test]
+    fn write_errors_name_the_output_and_keep_their_kind() {
+        struct Full;
+        impl Write for Full {
+            fn write(&mut self, _: &[u8]) -> io::Result<usize> {
+                Err(io::Error::from(io::ErrorKind::BrokenPipe))
+            }
+            fn flush(&mut self) -> io::Result<()> {
+                Ok(())
+            }
+        }
+        let mut n = Named { inner: Full, name: "the log 'x'".into() };
+        let e = n.write_all(b"a").unwrap_err();
+        assert_eq!(e.kind(), io::ErrorKind::BrokenPipe);
+        assert!(e.to_string().contains("the log 'x'"), "{e}");
+    }
 }

@@ -56,6 +56,24 @@ pub enum Flow {
     Retune(EngineConfig),
 }
 
+/// Why samples are missing from the time line.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum GapCause {
+    /// A live source outran the processing and its samples were dropped.
+    Behind,
+    /// The input held samples that are not numbers (NaN or infinity): a hole in the signal.
+    NotANumber,
+}
+
+impl GapCause {
+    pub fn as_str(self) -> &'static str {
+        match self {
+            GapCause::Behind => "behind",
+            GapCause::NotANumber => "not_a_number",
+        }
+    }
+}
+
 /// Where the time of the first sample came from, as the log's `start` record says it.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub enum TimeSource {
@@ -94,7 +112,8 @@ pub struct RunEnd {
     pub reason: StopReason,
     /// One past the last input sample handled (delivered or known lost).
     pub end_sample: u64,
-    /// Input samples lost because processing fell behind a live source.
+    /// Input samples missing from the measurement: lost because processing fell behind a live
+    /// source, or not numbers.
     pub dropped_samples: u64,
 }
 
@@ -126,8 +145,8 @@ pub trait Consumer {
         Ok(())
     }
 
-    /// Samples `[from, to)` were lost.
-    fn gap(&mut self, _from: u64, _to: u64, _run: &RunInfo) -> io::Result<()> {
+    /// Samples `[from, to)` were lost, or were not numbers.
+    fn gap(&mut self, _from: u64, _to: u64, _cause: GapCause, _run: &RunInfo) -> io::Result<()> {
         Ok(())
     }
 

@@ -8,13 +8,15 @@
 
 use super::input::Input;
 use super::stop::{StopReason, StopSignals};
-use super::{Clock, Consumer, Flow, RunEnd, RunInfo, TimeSource};
+use super::{Clock, Consumer, Flow, GapCause, RunEnd, RunInfo, TimeSource};
 use crate::dsp::{Engine, EngineConfig, Spectrum};
+use crate::kernels::Kernels;
 use crate::measure::occupancy::{Event, Occupancy};
 use crate::source::reader::Block;
 use crate::source::{InputIssues, SourceInfo};
 use anyhow::Result;
 use crossbeam_channel::{Receiver, RecvTimeoutError};
+use num_complex::Complex32;
 use std::io;
 use std::time::Duration;
 use time::OffsetDateTime;
@@ -64,6 +66,9 @@ pub struct Run<'a> {
     next_sample: u64,
     dropped: u64,
     stop_asked: bool,
+    /// Why the run cannot go on (a row that is not finite), once found.
+    failure: Option<String>,
+    kernels: Kernels,
 }
 
 impl<'a> Run<'a> {
@@ -88,7 +93,14 @@ impl<'a> Run<'a> {
             next_sample: 0,
             dropped: 0,
             stop_asked: false,
+            failure: None,
+            kernels: Kernels::detect(),
         }
+    }
+
+    /// Why the run had to stop, when the input could not be measured.
+    pub fn failure(&self) -> Option<&str> {
+        self.failure.as_deref()
     }
 
     pub fn info(&self) -> &RunInfo {
@@ -116,23 +128,63 @@ impl<'a> Run<'a> {
         }
         self.begin()?;
         if block.start > self.next_sample {
-            self.gap(self.next_sample, block.start)?;
+            self.gap(self.next_sample, block.start, GapCause::Behind)?;
         }
         for c in self.consumers.iter_mut() {
             c.block(block)?;
         }
-        let k = self.info.engine.frames_per_output;
-        let Run { engine, tracker, events, consumers, stop_asked, .. } = self;
-        let mut failed = None;
-        engine.push(block.start, &block.samples, &mut |row: &Spectrum| {
-            deliver(row, k, consumers, tracker, events, stop_asked, &mut failed);
-        });
-        if let Some(e) = failed {
-            return Err(e);
+        let samples = &block.samples[..];
+        if !self.kernels.any_outside(samples, f32::MAX) {
+            self.push(block.start, samples)?;
+        } else {
+            // Samples that are not numbers are a hole in the signal, not a shorter signal: the
+            // time line keeps them, as a gap, so every later stamp stays exact.
+            let finite = |s: &Complex32| s.re.is_finite() && s.im.is_finite();
+            let mut at = 0;
+            while at < samples.len() {
+                let bad =
+                    samples[at..].iter().position(|s| !finite(s)).map_or(samples.len(), |i| at + i);
+                if bad > at {
+                    self.push(block.start + at as u64, &samples[at..bad])?;
+                }
+                if bad == samples.len() {
+                    break;
+                }
+                let good =
+                    samples[bad..].iter().position(finite).map_or(samples.len(), |i| bad + i);
+                let (from, to) = (block.start + bad as u64, block.start + good as u64);
+                self.next_sample = from;
+                self.gap(from, to, GapCause::NotANumber)?;
+                self.next_sample = to;
+                at = good;
+            }
         }
-        self.next_sample = block.start + block.samples.len() as u64;
+        self.next_sample = block.start + samples.len() as u64;
         self.dispatch_events()?;
+        if self.failure.is_some() {
+            return Ok(Some(StopReason::InputError));
+        }
         Ok(self.stop_asked.then_some(StopReason::Limit))
+    }
+
+    /// Runs samples starting at index `start` through the engine.
+    fn push(&mut self, start: u64, samples: &[Complex32]) -> io::Result<()> {
+        let k = self.info.engine.frames_per_output;
+        let Run { engine, tracker, events, consumers, stop_asked, failure, info, .. } = self;
+        let mut failed = None;
+        engine.push(start, samples, &mut |row: &Spectrum| {
+            let mut ctx = Delivery {
+                consumers,
+                tracker,
+                events,
+                stop_asked,
+                failure,
+                info,
+                failed: &mut failed,
+            };
+            ctx.deliver(row, k);
+        });
+        failed.map_or(Ok(()), Err)
     }
 
     /// Asks every consumer whether to go on; applies a new engine setting. Returns a reason when
@@ -152,7 +204,7 @@ impl<'a> Run<'a> {
     pub fn lost_tail(&mut self, samples_read: u64) -> io::Result<()> {
         self.begin()?;
         if samples_read > self.next_sample {
-            self.gap(self.next_sample, samples_read)?;
+            self.gap(self.next_sample, samples_read, GapCause::Behind)?;
             self.next_sample = samples_read;
         }
         Ok(())
@@ -216,15 +268,24 @@ impl<'a> Run<'a> {
     /// as a partial row (it would be a shorter sample, or straddle a gap).
     fn drain_rows(&mut self) -> io::Result<()> {
         let k = self.info.engine.frames_per_output;
-        let Run { engine, tracker, events, consumers, stop_asked, .. } = self;
+        let Run { engine, tracker, events, consumers, stop_asked, failure, info, .. } = self;
         let mut failed = None;
         engine.finish(&mut |row: &Spectrum| {
-            deliver(row, k, consumers, tracker, events, stop_asked, &mut failed);
+            let mut ctx = Delivery {
+                consumers,
+                tracker,
+                events,
+                stop_asked,
+                failure,
+                info,
+                failed: &mut failed,
+            };
+            ctx.deliver(row, k);
         });
         failed.map_or(Ok(()), Err)
     }
 
-    fn gap(&mut self, from: u64, to: u64) -> io::Result<()> {
+    fn gap(&mut self, from: u64, to: u64, cause: GapCause) -> io::Result<()> {
         self.drain_rows()?;
         if let Some(t) = self.tracker.as_mut() {
             t.gap(from, to, &mut self.events);
@@ -232,7 +293,7 @@ impl<'a> Run<'a> {
         self.dispatch_events()?;
         self.dropped += to - from;
         for c in self.consumers.iter_mut() {
-            c.gap(from, to, &self.info)?;
+            c.gap(from, to, cause, &self.info)?;
         }
         Ok(())
     }
@@ -247,36 +308,55 @@ impl<'a> Run<'a> {
     }
 }
 
-/// Gives one row from the engine to the tracker and the consumers; the first error is kept.
-fn deliver(
-    row: &Spectrum,
-    frames_per_output: Option<u64>,
-    consumers: &mut [&mut dyn Consumer],
-    tracker: &mut Option<Occupancy>,
-    events: &mut Vec<Event>,
-    stop_asked: &mut bool,
-    failed: &mut Option<io::Error>,
-) {
-    if failed.is_some() {
-        return;
-    }
-    let complete = !matches!(frames_per_output, Some(k) if row.frames != k);
-    if complete {
-        if let Some(t) = tracker.as_mut() {
-            t.push(row, events);
+/// What one row from the engine is handed to; the first error is kept.
+struct Delivery<'r, 'a> {
+    consumers: &'r mut [&'a mut dyn Consumer],
+    tracker: &'r mut Option<Occupancy>,
+    events: &'r mut Vec<Event>,
+    stop_asked: &'r mut bool,
+    failure: &'r mut Option<String>,
+    info: &'r RunInfo,
+    failed: &'r mut Option<io::Error>,
+}
+
+impl Delivery<'_, '_> {
+    fn deliver(&mut self, row: &Spectrum, frames_per_output: Option<u64>) {
+        if self.failed.is_some() || self.failure.is_some() {
+            return;
         }
-    }
-    for c in consumers.iter_mut() {
-        let result = if complete { c.row(row) } else { c.partial_row(row).map(|_| Flow::Continue) };
-        match result {
-            Ok(Flow::Stop) => *stop_asked = true,
-            Ok(_) => {}
-            Err(e) => {
-                *failed = Some(e);
-                return;
+        if !row.psd.iter().all(|p| p.is_finite()) {
+            *self.failure = Some(overflow_message(&self.info.source));
+            return;
+        }
+        let complete = !matches!(frames_per_output, Some(k) if row.frames != k);
+        if complete {
+            if let Some(t) = self.tracker.as_mut() {
+                t.push(row, self.events);
+            }
+        }
+        for c in self.consumers.iter_mut() {
+            let result =
+                if complete { c.row(row) } else { c.partial_row(row).map(|_| Flow::Continue) };
+            match result {
+                Ok(Flow::Stop) => *self.stop_asked = true,
+                Ok(_) => {}
+                Err(e) => {
+                    *self.failed = Some(e);
+                    return;
+                }
             }
         }
     }
+}
+
+/// Float input far beyond full scale squares to infinity: no level, no occupancy can be read
+/// from it, and a log of −300 dBFS and 0 % would be silently wrong.
+fn overflow_message(source: &SourceInfo) -> String {
+    format!(
+        "the spectrum of '{}' overflowed: its samples are too large to square (float input should lie within ±1); the input is probably not {}; check --format",
+        crate::messages::sanitize(&source.label),
+        source.format.map_or("in the format it was read as".to_string(), |f| f.to_string())
+    )
 }
 
 fn new_engine(cfg: &EngineConfig, source: &SourceInfo, threads: usize) -> Engine {
@@ -293,11 +373,17 @@ pub struct Outcome {
     pub issues: Option<InputIssues>,
     /// Samples taken from the source.
     pub samples_read: u64,
+    /// Why the input could not be measured, when the run stopped for that reason.
+    pub failure: Option<String>,
 }
 
 impl Outcome {
-    /// An input that held nothing is an error worth a clear word.
-    pub fn require_samples(&self, label: &str) -> Result<()> {
+    /// An input that held nothing, or could not be measured, is an error worth a clear word
+    /// (after the consumers were finished and the input's own notes were printed).
+    pub fn check(&self, label: &str) -> Result<()> {
+        if let Some(f) = &self.failure {
+            anyhow::bail!("{f}");
+        }
         if self.samples_read == 0 && !self.end.reason.is_signal() {
             anyhow::bail!(
                 "the input '{}' holds no samples; check the file, or that the pipe delivers data",
@@ -309,10 +395,18 @@ impl Outcome {
 }
 
 /// Runs `run` over the reader's blocks until the end of the input, a signal or a consumer's stop,
-/// and finishes it. A reader error finishes the run as `input_error`, then is returned.
+/// and finishes it. A reader error finishes the run as `input_error`, then is returned; so is a
+/// consumer's error (a full disk), after the others were given their `finish`.
 pub fn run_input(input: Input, mut run: Run<'_>, signals: Option<&StopSignals>) -> Result<Outcome> {
     let stop = || signals.and_then(StopSignals::reason);
-    let reason = run.pump(&input.blocks, &stop)?;
+    let reason = match run.pump(&input.blocks, &stop) {
+        Ok(reason) => reason,
+        Err(e) => {
+            input.request_stop();
+            let _ = run.finish(StopReason::InputError);
+            return Err(e.into());
+        }
+    };
     if reason.is_signal() {
         input.request_stop();
         let end = run.finish(reason)?;
@@ -320,20 +414,31 @@ pub fn run_input(input: Input, mut run: Run<'_>, signals: Option<&StopSignals>) 
         // A file reader stops at its next block; stdin may sit in a read that no flag
         // interrupts, so it is left behind (the process exits now).
         let issues = if input.info.live { None } else { input.finish().ok() };
-        return Ok(Outcome { end, issues, samples_read });
+        return Ok(Outcome { end, issues, samples_read, failure: None });
     }
     input.request_stop();
     // A consumer's stop leaves the reader running: what it read after that was never wanted.
-    let samples_read =
-        if reason == StopReason::Limit { run.next_sample() } else { input.samples_read() };
+    let samples_read = if matches!(reason, StopReason::Limit | StopReason::InputError) {
+        run.next_sample()
+    } else {
+        input.samples_read()
+    };
     let limit = input.max_samples();
     match input.finish() {
         Ok(issues) => {
-            run.lost_tail(samples_read)?;
-            let reason =
-                if limit.is_some_and(|m| samples_read >= m) { StopReason::Limit } else { reason };
+            let reason = if reason == StopReason::InputError {
+                reason
+            } else {
+                run.lost_tail(samples_read)?;
+                if limit.is_some_and(|m| samples_read >= m) {
+                    StopReason::Limit
+                } else {
+                    reason
+                }
+            };
             let end = run.finish(reason)?;
-            Ok(Outcome { end, issues: Some(issues), samples_read })
+            let failure = run.failure().map(str::to_string);
+            Ok(Outcome { end, issues: Some(issues), samples_read, failure })
         }
         Err(e) => {
             run.finish(StopReason::InputError)?;

@@ -1,6 +1,6 @@
 //! Why a run stopped, and the signals that stop it.
 //!
-//! The first SIGINT or SIGTERM (and SIGHUP where a command asks for it) sets a flag the drive loop
+//! The first SIGINT, SIGTERM or SIGHUP (and SIGQUIT where a command asks for it) sets a flag the drive loop
 //! reads between blocks, so the run ends through its normal path: open intervals and emissions are
 //! written, logs flushed, the terminal restored. What a second signal, or a loop that does not
 //! come back, does is the command's choice ([`Escalation`]): a log exits at once on a second
@@ -9,7 +9,7 @@
 //! `128 + signal` (common practice for shells).
 
 use anyhow::{Context, Result};
-use signal_hook::consts::{SIGHUP, SIGINT, SIGTERM};
+use signal_hook::consts::{SIGHUP, SIGINT, SIGQUIT, SIGTERM};
 use signal_hook::iterator::{Handle, Signals};
 use std::sync::atomic::{AtomicBool, AtomicI32, Ordering};
 use std::sync::Arc;
@@ -24,7 +24,7 @@ pub enum StopReason {
     Limit,
     /// SIGINT.
     Interrupted,
-    /// SIGTERM (or SIGHUP: the session that started us is gone).
+    /// SIGTERM, SIGHUP (the session that started us is gone) or SIGQUIT.
     Terminated,
     InputError,
 }
@@ -64,11 +64,13 @@ pub struct StopSignals {
 }
 
 impl StopSignals {
-    /// Catches SIGINT and SIGTERM, and SIGHUP when `hangup` is set.
-    pub fn install(hangup: bool, escalation: Escalation) -> Result<StopSignals> {
-        let mut list = vec![SIGINT, SIGTERM];
-        if hangup {
-            list.push(SIGHUP);
+    /// Catches SIGINT, SIGTERM and SIGHUP (the SSH session or terminal that started us is gone:
+    /// the run must still end cleanly), and SIGQUIT when `quit` is set (the monitor, which must
+    /// restore the terminal rather than leave it raw with a core dump).
+    pub fn install(quit: bool, escalation: Escalation) -> Result<StopSignals> {
+        let mut list = vec![SIGINT, SIGTERM, SIGHUP];
+        if quit {
+            list.push(SIGQUIT);
         }
         let mut signals = Signals::new(&list).context("cannot install the signal handlers")?;
         let handle = signals.handle();
@@ -119,6 +121,7 @@ impl StopSignals {
             SIGINT => "SIGINT",
             SIGTERM => "SIGTERM",
             SIGHUP => "SIGHUP",
+            SIGQUIT => "SIGQUIT",
             _ => "a signal",
         }
     }

@@ -1,0 +1,189 @@
+//! What a careless user or a hostile file can do to the binary, and what must happen instead:
+//! closed pipes and full disks end with a clear word (or quietly, for a reader that went away),
+//! an output never overwrites the input, text from files and flags never reaches the terminal
+//! with control characters, and float input in the wrong format is refused rather than logged as
+//! meaningless levels.
+
+use bandwarden::source::SampleFormat;
+use num_complex::Complex32;
+use std::io::{BufRead, BufReader};
+use std::path::PathBuf;
+use std::process::{Command, Output, Stdio};
+
+fn bin() -> Command {
+    Command::new(env!("CARGO_BIN_EXE_bandwarden"))
+}
+
+fn tmp(name: &str) -> PathBuf {
+    let dir = std::env::temp_dir().join(format!("bandwarden-hardening-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    dir.join(name)
+}
+
+fn stderr(o: &Output) -> String {
+    String::from_utf8_lossy(&o.stderr).into_owned()
+}
+
+fn no_panic(o: &Output) {
+    let e = stderr(o);
+    assert!(!e.contains("panicked") && !e.contains("RUST_BACKTRACE"), "{e}");
+}
+
+/// ECMA-48: C0 controls (ESC, BEL) and the 8-bit CSI/OSC introducers act on a terminal; only
+/// the line feed may reach it.
+fn assert_no_control_characters(text: &str) {
+    let bad: Vec<char> = text.chars().filter(|c| c.is_control() && *c != '\n').collect();
+    assert!(bad.is_empty(), "control characters {bad:?} in: {text:?}");
+}
+
+fn sh(script: &str) -> Output {
+    Command::new("sh")
+        .args(["-c", script])
+        .env("BW", env!("CARGO_BIN_EXE_bandwarden"))
+        .output()
+        .unwrap()
+}
+
+#[test]
+fn a_reader_that_goes_away_ends_the_report_quietly() {
+    let mut child = bin()
+        .args(["measure", "--seconds", "0.2"])
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    let mut first = String::new();
+    BufReader::new(child.stdout.take().unwrap()).read_line(&mut first).unwrap();
+    assert!(first.starts_with("source"), "{first}");
+    // The pipe is closed now (the reader was dropped), as `| head -1` does.
+    let o = child.wait_with_output().unwrap();
+    assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+    no_panic(&o);
+    let o = sh("\"$BW\" measure --seconds 0.2 | true; exit 0");
+    no_panic(&o);
+}
+
+#[test]
+fn a_full_disk_is_one_line_naming_the_output() {
+    if !std::path::Path::new("/dev/full").exists() {
+        panic!("this test needs /dev/full (Linux)");
+    }
+    for cmd in
+        ["\"$BW\" measure --seconds 0.2 > /dev/full", "\"$BW\" demo --seconds 0.1 > /dev/full"]
+    {
+        let o = sh(cmd);
+        assert_eq!(o.status.code(), Some(1), "{cmd}: {}", stderr(&o));
+        no_panic(&o);
+        let e = stderr(&o);
+        assert_eq!(e.lines().count(), 1, "{e}");
+        assert!(e.starts_with("bandwarden: ") && e.contains("standard output"), "{e}");
+    }
+    let o = sh("\"$BW\" log - --format cu8 --rate 1M --channel a=100k:10k < /dev/zero > /dev/full");
+    assert_eq!(o.status.code(), Some(1), "{}", stderr(&o));
+    assert!(stderr(&o).contains("cannot write the log"), "{}", stderr(&o));
+}
+
+#[test]
+fn a_closed_standard_output_is_refused() {
+    let o = sh("\"$BW\" measure --seconds 0.1 >&-");
+    assert_eq!(o.status.code(), Some(1), "{}", stderr(&o));
+    assert!(stderr(&o).contains("standard output is closed"), "{}", stderr(&o));
+}
+
+#[test]
+fn the_log_never_overwrites_its_input_or_plan() {
+    let input = tmp("in.cf32");
+    let tone: Vec<Complex32> = (0..50_000).map(|i| Complex32::from_polar(0.1, i as f32)).collect();
+    let mut bytes = Vec::new();
+    SampleFormat::Cf32Le.encode(&tone, &mut bytes);
+    std::fs::write(&input, &bytes).unwrap();
+    let plan = tmp("plan.toml");
+    std::fs::write(&plan, "[[channel]]\nname = \"a\"\ncenter = 100000\nwidth = 10000\n").unwrap();
+    let plan_text = std::fs::read(&plan).unwrap();
+    for out in [&input, &plan] {
+        let o = bin()
+            .args(["log"])
+            .arg(&input)
+            .args(["--rate", "1M", "--plan"])
+            .arg(&plan)
+            .arg("-o")
+            .arg(out)
+            .output()
+            .unwrap();
+        assert_eq!(o.status.code(), Some(1), "{}", stderr(&o));
+        assert!(stderr(&o).contains("is the input"), "{}", stderr(&o));
+    }
+    assert_eq!(std::fs::read(&input).unwrap(), bytes, "the input is intact");
+    assert_eq!(std::fs::read(&plan).unwrap(), plan_text, "the plan is intact");
+}
+
+#[test]
+fn text_from_files_and_flags_reaches_the_terminal_clean() {
+    // ESC (a CSI sequence), BEL, and an OSC 52 request that would set the clipboard.
+    let hostile = "\u{1b}[2J\u{7}\u{1b}]52;c;aGk=\u{7}";
+    let plans = [
+        format!("[[channel]]\nname = \"a\"\ncenter = \"{hostile}\"\nwidth = 10000\n"),
+        format!("[[channel]]\nname = \"a\"\ncenter = 100000\nwidth = \"1{hostile}\"\n"),
+        format!("[[channel]]\nname = \"a\"\ncenter = 100000\nwidth = 1000\n\"x{hostile}\" = 1\n"),
+        format!("[[channel]]\nname = \"a{hostile}\"\ncenter = 100000\nwidth = 1000\n"),
+    ];
+    for (i, text) in plans.iter().enumerate() {
+        let plan = tmp(&format!("hostile-{i}.toml"));
+        std::fs::write(&plan, text).unwrap();
+        let o = bin().args(["measure", "--plan"]).arg(&plan).output().unwrap();
+        assert_eq!(o.status.code(), Some(1), "{}", stderr(&o));
+        assert_no_control_characters(&stderr(&o));
+    }
+    // A flag's value echoed by the command-line parser, and a value refused after parsing.
+    for args in [
+        vec!["measure", "--format", hostile],
+        vec!["measure", "--window", hostile],
+        vec!["measure", "--band", hostile],
+        vec!["log", hostile, "--channel", "a=1M:1k", "--rate", "1M", "--format", "cu8"],
+    ] {
+        let o = bin().args(&args).output().unwrap();
+        assert_ne!(o.status.code(), Some(0));
+        assert_no_control_characters(&stderr(&o));
+    }
+    // SigMF metadata: a datatype and a datetime with escapes.
+    for (key, value) in [("core:datatype", hostile), ("core:datetime", hostile)] {
+        let meta = tmp(&format!("hostile-{}.sigmf-meta", key.replace(':', "-")));
+        let datatype = if key == "core:datatype" { value } else { "cf32_le" };
+        let when = if key == "core:datetime" { value } else { "2026-05-01T08:00:00Z" };
+        let json = serde_json::json!({
+            "global": {"core:datatype": datatype, "core:sample_rate": 1e6, "core:version": "1.0.0"},
+            "captures": [{"core:sample_start": 0, "core:datetime": when}],
+            "annotations": []
+        });
+        std::fs::write(&meta, json.to_string()).unwrap();
+        std::fs::write(meta.with_extension("sigmf-data"), [0u8; 8192]).unwrap();
+        let o = bin().arg("measure").arg(&meta).output().unwrap();
+        assert_eq!(o.status.code(), Some(1), "{}", stderr(&o));
+        assert_no_control_characters(&stderr(&o));
+    }
+}
+
+#[test]
+fn float_input_in_the_wrong_format_is_refused_by_the_log_too() {
+    // Big-endian floats read as little-endian: components far beyond full scale, and a PSD that
+    // overflows (IEEE 754: the square of 1e20 exceeds f32 range... and f64 sums of 1e38-size
+    // squares reach infinity).
+    let x: Vec<Complex32> =
+        (0..200_000).map(|i| Complex32::new(3e38 * (i as f32).sin(), 3e38)).collect();
+    let mut bytes = Vec::new();
+    SampleFormat::Cf32Le.encode(&x, &mut bytes);
+    let p = tmp("loud.cf32");
+    std::fs::write(&p, bytes).unwrap();
+    let o = bin()
+        .arg("log")
+        .arg(&p)
+        .args(["--rate", "1M", "--channel", "a=100k:10k"])
+        .output()
+        .unwrap();
+    assert_eq!(o.status.code(), Some(1), "{}", stderr(&o));
+    assert!(stderr(&o).contains("overflowed") && stderr(&o).contains("--format"), "{}", stderr(&o));
+    let log = String::from_utf8(o.stdout).unwrap();
+    let last: serde_json::Value = serde_json::from_str(log.lines().last().unwrap()).unwrap();
+    assert_eq!(last["reason"], "input_error", "the log says why it stopped");
+    assert!(!log.contains("-300"), "no meaningless levels: {log}");
+}
