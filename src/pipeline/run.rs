@@ -169,10 +169,18 @@ impl<'a> Run<'a> {
 
     /// Runs samples starting at index `start` through the engine.
     fn push(&mut self, start: u64, samples: &[Complex32]) -> io::Result<()> {
+        self.drive(|engine, emit| engine.push(start, samples, emit))
+    }
+
+    /// Lets `step` work the engine, handing every row it emits on (see [`Delivery`]).
+    fn drive(
+        &mut self,
+        step: impl FnOnce(&mut Engine, &mut dyn FnMut(&Spectrum)),
+    ) -> io::Result<()> {
         let k = self.info.engine.frames_per_output;
         let Run { engine, tracker, events, consumers, stop_asked, failure, info, .. } = self;
         let mut failed = None;
-        engine.push(start, samples, &mut |row: &Spectrum| {
+        step(engine, &mut |row: &Spectrum| {
             let mut ctx = Delivery {
                 consumers,
                 tracker,
@@ -267,22 +275,7 @@ impl<'a> Run<'a> {
     /// Hands every row still inside the engine on: complete ones as rows, the last, shorter one
     /// as a partial row (it would be a shorter sample, or straddle a gap).
     fn drain_rows(&mut self) -> io::Result<()> {
-        let k = self.info.engine.frames_per_output;
-        let Run { engine, tracker, events, consumers, stop_asked, failure, info, .. } = self;
-        let mut failed = None;
-        engine.finish(&mut |row: &Spectrum| {
-            let mut ctx = Delivery {
-                consumers,
-                tracker,
-                events,
-                stop_asked,
-                failure,
-                info,
-                failed: &mut failed,
-            };
-            ctx.deliver(row, k);
-        });
-        failed.map_or(Ok(()), Err)
+        self.drive(|engine, emit| engine.finish(emit))
     }
 
     fn gap(&mut self, from: u64, to: u64, cause: GapCause) -> io::Result<()> {
