@@ -20,7 +20,8 @@
 //! - `interval` (one per channel per interval): `channel, center_hz, width_hz, t_start_s, t_end_s,
 //!   start, end, occupancy_pct` (occupied samples / samples × 100, ITU-R SM.1880), `mean_dbfs`
 //!   (mean channel power over the samples), `peak_dbfs` (highest channel power of one sample),
-//!   `noise_floor_dbfs_per_hz` (mean tracked noise density), `samples` (measurement samples),
+//!   `noise_floor_dbfs_per_hz` (mean tracked noise density), `samples` (measurement samples;
+//!   0 when all the interval's input was lost, and then the levels and occupancy are `null`),
 //!   `occupied_samples, dropped_samples` (input samples lost in the interval), `partial` (the
 //!   interval was cut short by the end of the run).
 //! - `emission` (when an emission ends): `channel, center_hz, t_start_s, t_end_s, start, end,
@@ -30,8 +31,7 @@
 //!   by dropped input: it may have gone on).
 //! - `dropped`: `t_start_s, t_end_s, start, end, dropped_samples, cause`: input samples missing
 //!   from the measurement, `cause` `behind` (a live source outran the processing) or
-//!   `not_a_number` (NaN or infinite samples in the input). An interval in which not one sample could be measured (all
-//!   of its input lost) has no `interval` records; the `dropped` record covers it.
+//!   `not_a_number` (NaN or infinite samples in the input).
 //! - `stop` (last line of an orderly end): `t_end_s, end, reason` (`end_of_input`, `limit`,
 //!   `interrupted`, `terminated`, `input_error`), `iq_samples` (read), `dropped_samples` (total).
 //!
@@ -177,10 +177,10 @@ mod tests {
                 t_end_s: 60.0,
                 start: Some("2026-05-01T08:00:00.000Z".into()),
                 end: Some("2026-05-01T08:01:00.000Z".into()),
-                occupancy_pct: 30.2,
-                mean_dbfs: -36.4,
-                peak_dbfs: -30.9,
-                noise_floor_dbfs_per_hz: -112.3,
+                occupancy_pct: Some(30.2),
+                mean_dbfs: Some(-36.4),
+                peak_dbfs: Some(-30.9),
+                noise_floor_dbfs_per_hz: Some(-112.3),
                 samples: 6392,
                 occupied_samples: 1931,
                 dropped_samples: 0,

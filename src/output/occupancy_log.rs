@@ -59,6 +59,7 @@ impl<W: Write> OccupancyLog<W> {
         match event {
             Event::Interval(i) => {
                 let l = &self.plan.channels[i.channel];
+                let measured = i.samples > 0;
                 Record::Interval(IntervalRecord {
                     channel: l.name.clone(),
                     center_hz: l.center_hz,
@@ -67,10 +68,11 @@ impl<W: Write> OccupancyLog<W> {
                     t_end_s: c.seconds(i.end_sample),
                     start: c.stamp(i.start_sample),
                     end: c.stamp(i.end_sample),
-                    occupancy_pct: round_to(i.occupancy_pct(), 3),
-                    mean_dbfs: round_to(db(i.mean_power), 2),
-                    peak_dbfs: round_to(db(i.peak_power), 2),
-                    noise_floor_dbfs_per_hz: round_to(db(i.noise_density), 2),
+                    // An interval whose input was all lost has no level and no occupancy.
+                    occupancy_pct: measured.then(|| round_to(i.occupancy_pct(), 3)),
+                    mean_dbfs: measured.then(|| round_to(db(i.mean_power), 2)),
+                    peak_dbfs: measured.then(|| round_to(db(i.peak_power), 2)),
+                    noise_floor_dbfs_per_hz: measured.then(|| round_to(db(i.noise_density), 2)),
                     samples: i.samples,
                     occupied_samples: i.occupied,
                     dropped_samples: i.dropped_samples,
@@ -253,6 +255,42 @@ mod tests {
         assert_eq!(stop["iq_samples"], 600_000);
         assert_eq!(stop["dropped_samples"], 40_000);
         assert_eq!(stop["reason"], "end_of_input");
+    }
+
+    #[test]
+    fn an_interval_whose_input_was_all_lost_still_has_its_records() {
+        let on = |_: u64| true;
+        let x = band(200_000, &[Keyed { offset_hz: 20e3, level_dbfs: -30.0, on: &on }], 3);
+        // Intervals of 0.1 s: input for [0, 0.1) and [0.35, 0.4) only; the run goes on to 0.5 s.
+        let interval = 0.1;
+        let (setup, plan, info) = setup(interval);
+        let per = (FS * interval) as u64;
+        let writer = LogWriter::new(Vec::new(), LogFormat::JsonLines, true).unwrap();
+        let mut log = OccupancyLog::new(writer, &plan, &setup);
+        let mut run = Run::new(spec(&setup, &info, None), vec![&mut log]);
+        run.feed(&Block::new(0, x[..per as usize].to_vec())).unwrap();
+        let resume = (3.5 * per as f64) as usize;
+        run.feed(&Block::new(resume as u64, x[resume..4 * per as usize].to_vec())).unwrap();
+        run.lost_tail(5 * per).unwrap();
+        run.finish(StopReason::EndOfInput).unwrap();
+        drop(run);
+        let recs = lines(log.into_writer());
+        let busy: Vec<&Value> =
+            recs.iter().filter(|r| r["kind"] == "interval" && r["channel"] == "busy").collect();
+        let starts: Vec<f64> = busy.iter().map(|r| r["t_start_s"].as_f64().unwrap()).collect();
+        assert_eq!(starts.len(), 5, "one record per interval: {starts:?}");
+        for (i, r) in busy.iter().enumerate() {
+            assert!((starts[i] - i as f64 * interval).abs() < 1e-9);
+            let lost = r["dropped_samples"].as_u64().unwrap();
+            if i == 1 || i == 2 || i == 4 {
+                assert_eq!(r["samples"], 0, "{r}");
+                assert_eq!(lost, per, "{r}");
+                assert!(r["occupancy_pct"].is_null() && r["mean_dbfs"].is_null(), "{r}");
+            }
+        }
+        assert_eq!(busy[0]["occupancy_pct"], 100.0);
+        let stop = recs.last().unwrap();
+        assert_eq!(stop["iq_samples"], 5 * per);
     }
 
     #[test]

@@ -4,6 +4,8 @@
 //! paced demo) cannot wait without the samples piling up upstream, so when `drop_when_full` is set
 //! a block that finds the queue full is counted in [`ReaderStats::dropped`] and discarded; the next
 //! block's `start` index jumps by the gap, so time stays exact and the DSP knows to re-frame.
+//! Only input that arrives at (about) its real rate is treated so: a pipe that has delivered more
+//! than its sample rate allows (a recording sent through `cat` or `ssh`) waits instead.
 
 use super::{InputIssues, SampleSource};
 use anyhow::Result;
@@ -115,6 +117,7 @@ fn run(
     let mut index = 0u64;
     let started = Instant::now();
     let mut paced_samples = 0u64;
+    let mut first_block: Option<Instant> = None;
     while !stop.load(Ordering::Relaxed) {
         let mut want = opts.block_len;
         if let Some(max) = opts.max_samples {
@@ -144,9 +147,17 @@ fn run(
         let block = Block { start: index, samples, home: Some(home.clone()) };
         index += n as u64;
         stats.samples.fetch_add(n as u64, Ordering::Relaxed);
+        let first = *first_block.get_or_insert_with(Instant::now);
         if opts.drop_when_full {
             match tx.try_send(block) {
                 Ok(()) => {}
+                Err(TrySendError::Full(b)) if ahead_of_real_time(index, rate, first, opts) => {
+                    // A pipe that delivers faster than real time is a recording, not a
+                    // receiver: it can wait (back-pressure), and must lose nothing.
+                    if tx.send(b).is_err() {
+                        break;
+                    }
+                }
                 Err(TrySendError::Full(b)) => {
                     stats.dropped.fetch_add(b.samples.len() as u64, Ordering::Relaxed);
                 }
@@ -157,6 +168,18 @@ fn run(
         }
     }
     Ok(())
+}
+
+/// How far ahead of real time an input may run before it counts as faster than a receiver: a
+/// receiver's own buffering (and the pipe's) lets it burst a little ahead, never by this much.
+pub const REAL_TIME_SLACK_S: f64 = 0.5;
+
+/// True when more samples have arrived since the first block than the sample rate allows (with
+/// [`REAL_TIME_SLACK_S`] of slack plus one block): the input is a recording played into a pipe,
+/// not a live receiver.
+fn ahead_of_real_time(samples: u64, rate: f64, first: Instant, opts: &ReaderOptions) -> bool {
+    let due = rate * (first.elapsed().as_secs_f64() + REAL_TIME_SLACK_S) + opts.block_len as f64;
+    samples as f64 > due
 }
 
 fn sleep_unless_stopped(mut d: Duration, stop: &AtomicBool) {

@@ -50,6 +50,8 @@ pub struct Occupancy {
     channels: Vec<ChannelState>,
     noise: NoiseTracker,
     interval: Option<u64>,
+    /// The first interval not yet reported.
+    next_interval: u64,
     last_row_end: u64,
     gaps: Vec<(u64, u64)>,
     /// The bin geometry of the first row (with no bins): where emission spectra lie.
@@ -73,6 +75,7 @@ impl Occupancy {
             timing,
             channels,
             interval: None,
+            next_interval: 0,
             last_row_end: 0,
             gaps: Vec::new(),
             grid: None,
@@ -96,10 +99,7 @@ impl Occupancy {
         let (row_start, row_end) = self.timing.row_span(row);
         let k = row_start / self.timing.interval;
         if self.interval != Some(k) {
-            if let Some(prev) = self.interval {
-                let end = (prev + 1).saturating_mul(self.timing.interval);
-                self.close_interval(prev, end, false, out);
-            }
+            self.report_before(k, out);
             self.interval = Some(k);
         }
         let density = self.noise.push(row);
@@ -157,12 +157,32 @@ impl Occupancy {
 
     /// Ends the run: the open interval (ending at `input_end`, one past the last input sample)
     /// and any open emission are reported with `partial` set.
+    ///
+    /// Every interval of the input gets its records, also those in which not one sample could
+    /// be measured (all their input lost): `samples` 0, with the loss counted, so a table grouped
+    /// by interval has no missing rows.
     pub fn finish(&mut self, input_end: u64, out: &mut Vec<Event>) {
         self.close_emissions(out);
-        if let Some(k) = self.interval.take() {
-            let end =
-                (k + 1).saturating_mul(self.timing.interval).min(input_end.max(self.last_row_end));
-            self.close_interval(k, end, true, out);
+        let end_of_input = input_end.max(self.last_row_end);
+        if end_of_input == 0 {
+            return;
+        }
+        let last = ((end_of_input - 1) / self.timing.interval).max(self.interval.unwrap_or(0));
+        self.report_before(last, out);
+        let end = (last + 1).saturating_mul(self.timing.interval).min(end_of_input);
+        self.close_interval(last, end, true, out);
+        self.interval = None;
+        self.next_interval = last.saturating_add(1);
+    }
+
+    /// Reports every interval before `k` not reported yet: the open one with its samples, any
+    /// after it (its input all lost) with none.
+    fn report_before(&mut self, k: u64, out: &mut Vec<Event>) {
+        while self.next_interval < k {
+            let j = self.next_interval;
+            let end = (j + 1).saturating_mul(self.timing.interval);
+            self.close_interval(j, end, false, out);
+            self.next_interval += 1;
         }
     }
 
