@@ -29,6 +29,14 @@ pub struct InputArgs {
     /// core:datetime.
     #[arg(long, value_name = "TIME", value_parser = parse_time)]
     pub start: Option<OffsetDateTime>,
+    /// Of a SigMF recording, read only capture segment N (its index in "captures", from 0);
+    /// needed when the segments were recorded at different frequencies.
+    #[arg(long, value_name = "N")]
+    pub segment: Option<usize>,
+    /// Of a multi-channel SigMF recording (core:num_channels above 1), analyse channel C (from
+    /// 0).
+    #[arg(long, value_name = "C")]
+    pub input_channel: Option<u64>,
 }
 
 impl InputArgs {
@@ -41,6 +49,8 @@ impl InputArgs {
             center_hz: self.center,
             start_time: self.start,
             realtime: false,
+            segment: self.segment,
+            input_channel: self.input_channel,
         }
     }
 }

@@ -172,6 +172,7 @@ mod tests {
             start_time: None,
             total_samples: None,
             live: true,
+            segments: Vec::new(),
         };
         let dsp = DspConfig { fft_size: 512, window: WindowKind::Hann, overlap: 0.5, threads: 1 };
         let channels =

@@ -183,6 +183,7 @@ mod tests {
             start_time: None,
             total_samples: None,
             live: false,
+            segments: Vec::new(),
         };
         RunSpec::new(source, settings.engine(1e6), 1)
     }

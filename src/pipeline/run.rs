@@ -77,7 +77,7 @@ impl<'a> Run<'a> {
         let time_source =
             if spec.start_time.is_some() { spec.time_source } else { TimeSource::None };
         let info = RunInfo {
-            clock: Clock { rate: spec.source.sample_rate_hz, start: spec.start_time },
+            clock: Clock::for_source(&spec.source, spec.start_time),
             source: spec.source,
             engine: spec.engine,
             time_source,

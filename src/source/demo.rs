@@ -285,6 +285,7 @@ impl DemoSource {
                 start_time: None,
                 total_samples: None,
                 live: realtime,
+                segments: Vec::new(),
             },
             realtime,
             started: None,

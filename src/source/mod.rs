@@ -33,6 +33,21 @@ pub struct SourceInfo {
     pub total_samples: Option<u64>,
     /// True when samples arrive in real time and are lost if not taken (stdin, paced demo).
     pub live: bool,
+    /// The recording's capture segments in the order delivered (SigMF `captures`); empty for
+    /// sources without segments. The first one starts at sample 0.
+    pub segments: Vec<Segment>,
+}
+
+/// One capture segment of a recording, as delivered.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Segment {
+    /// Index of its first sample in the delivered sample stream.
+    pub sample_start: u64,
+    /// Its centre frequency (SigMF `core:frequency`, or `--center`).
+    pub center_hz: f64,
+    /// Time of its first sample (its `core:datetime`, else carried from a neighbouring
+    /// segment's), when known.
+    pub start_time: Option<OffsetDateTime>,
 }
 
 /// Counts of input problems that do not stop the run but must be reported.
@@ -101,11 +116,18 @@ pub struct InputRequest {
     pub start_time: Option<OffsetDateTime>,
     /// For the demo scene: deliver samples at the sample rate (as a receiver would).
     pub realtime: bool,
+    /// Of a SigMF recording, read only this capture segment (index in `captures`, from 0).
+    pub segment: Option<usize>,
+    /// Of a multi-channel SigMF recording, read this channel (from 0).
+    pub input_channel: Option<u64>,
 }
 
 /// Opens the source the request names. Messages about guesses go to `notes` (printed on stderr
 /// by the caller) so library code never prints.
 pub fn open(req: &InputRequest, notes: &mut Vec<String>) -> Result<Box<dyn SampleSource>> {
+    if !req.path.as_deref().is_some_and(is_sigmf_name) {
+        refuse_sigmf_choices(req)?;
+    }
     let src: Box<dyn SampleSource> = match req.path.as_deref() {
         None => Box::new(
             demo::DemoSource::new(
@@ -130,6 +152,7 @@ pub fn open(req: &InputRequest, notes: &mut Vec<String>) -> Result<Box<dyn Sampl
                 start_time: req.start_time,
                 total_samples: None,
                 live: true,
+                segments: Vec::new(),
             };
             Box::new(raw::RawSource::new(Box::new(std::io::stdin()), format, info))
         }
@@ -144,12 +167,18 @@ fn open_path(
     notes: &mut Vec<String>,
 ) -> Result<Box<dyn SampleSource>> {
     let lower = path.to_ascii_lowercase();
-    if lower.ends_with(".sigmf-meta") || lower.ends_with(".sigmf-data") || lower.ends_with(".sigmf")
-    {
+    if is_sigmf_name(path) {
         return sigmf::open(path, req);
     }
+    if [".sigmf.gz", ".sigmf.xz", ".sigmf.zip", ".sigmf.tar.gz"].iter().any(|e| lower.ends_with(e))
+    {
+        bail!(
+            "'{}' is a compressed SigMF archive; bandwarden reads uncompressed .sigmf archives: decompress it first (e.g. gunzip, unxz, unzip) and open the .sigmf or .sigmf-meta",
+            sanitize(path)
+        );
+    }
     if lower.ends_with(".wav") {
-        return wav::open(path, req);
+        return wav::open(path, req, notes);
     }
     let format = match req.format {
         Some(f) => f,
@@ -171,6 +200,26 @@ fn open_path(
         )
     })?;
     raw::open_file(path, format, rate, req)
+}
+
+fn is_sigmf_name(path: &str) -> bool {
+    let lower = path.to_ascii_lowercase();
+    [".sigmf-meta", ".sigmf-data", ".sigmf"].iter().any(|e| lower.ends_with(e))
+}
+
+/// `--segment` and `--input-channel` mean something for SigMF recordings only.
+fn refuse_sigmf_choices(req: &InputRequest) -> Result<()> {
+    let what = match (req.segment, req.input_channel) {
+        (Some(_), _) => "--segment",
+        (None, Some(_)) => "--input-channel",
+        (None, None) => return Ok(()),
+    };
+    let input = match req.path.as_deref() {
+        None => "the demo scene".to_string(),
+        Some("-") => "standard input".to_string(),
+        Some(p) => format!("'{}'", sanitize(p)),
+    };
+    bail!("{what} applies to SigMF recordings only, and {input} is not one: leave it out")
 }
 
 #[cfg(test)]

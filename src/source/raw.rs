@@ -82,6 +82,7 @@ pub fn open_file(
         start_time: req.start_time,
         total_samples: Some(len / format.bytes_per_sample() as u64),
         live: false,
+        segments: Vec::new(),
     };
     Ok(Box::new(RawSource::new(Box::new(FileStream { file, offset: 0 }), format, info)))
 }
@@ -201,6 +202,7 @@ mod tests {
             start_time: None,
             total_samples: None,
             live: false,
+            segments: Vec::new(),
         }
     }
 
