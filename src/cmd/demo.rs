@@ -5,7 +5,7 @@
 //! against what was sent.
 
 use crate::cli::DemoConfig;
-use crate::messages::note;
+use crate::messages::{note, sanitize};
 use crate::source::demo::{channels, DemoSource, SITE_NAME};
 use crate::source::{sigmf, SampleSource};
 use anyhow::{Context, Result};
@@ -23,20 +23,37 @@ pub fn run(args: DemoConfig) -> Result<ExitCode> {
     if args.start.is_some() && !is_sigmf {
         note("--start is only recorded in SigMF output (a name ending .sigmf-meta)");
     }
+    let data_path = if args.out == "-" {
+        "standard output".to_string()
+    } else if is_sigmf {
+        sigmf::paths(&args.out).1
+    } else {
+        args.out.clone()
+    };
+    let shown = sanitize(&data_path);
     let mut out: Box<dyn Write> = if args.out == "-" {
         Box::new(BufWriter::with_capacity(1 << 20, std::io::stdout().lock()))
     } else {
-        let path = if is_sigmf { sigmf::paths(&args.out).1 } else { args.out.clone() };
         Box::new(BufWriter::with_capacity(
             1 << 20,
-            File::create(&path).with_context(|| format!("cannot create '{path}'"))?,
+            File::create(&data_path).with_context(|| {
+                format!("cannot create '{shown}'; check the directory exists and is writable")
+            })?,
         ))
     };
     if is_sigmf {
         let meta_path = sigmf::paths(&args.out).0;
         let meta = annotated_meta(&args, center, total.unwrap_or(0))?;
-        std::fs::write(&meta_path, meta).with_context(|| format!("cannot write '{meta_path}'"))?;
+        std::fs::write(&meta_path, meta).with_context(|| {
+            format!(
+                "cannot write '{}'; check the directory exists and is writable",
+                sanitize(&meta_path)
+            )
+        })?;
     }
+    let write_failed = || {
+        format!("cannot write the samples to '{shown}'; check the disk has room and the path is writable")
+    };
     let mut src = DemoSource::with_seed(args.rate, center, args.realtime, args.seed)
         .with_start_time(args.start);
     let mut samples = Vec::new();
@@ -53,13 +70,13 @@ pub fn run(args: DemoConfig) -> Result<ExitCode> {
         bytes.clear();
         let n = src.read(&mut samples[..want])?;
         args.format.encode(&samples[..n], &mut bytes);
-        out.write_all(&bytes)?;
+        out.write_all(&bytes).with_context(write_failed)?;
         if args.realtime {
-            out.flush()?;
+            out.flush().with_context(write_failed)?;
         }
         written += n as u64;
     }
-    out.flush()?;
+    out.flush().with_context(write_failed)?;
     Ok(ExitCode::SUCCESS)
 }
 
