@@ -3,13 +3,30 @@
 //! Users think in `433.92M` and `12.5k`, scripts in `1e6`; both must work everywhere a number of
 //! hertz or samples per second is accepted, and the error must say what was wrong.
 
+use crate::messages::sanitize;
 use std::time::Duration;
+
+/// Highest frequency accepted anywhere, in hertz: the top of the radio spectrum (ITU Radio
+/// Regulations No. 1.5: radio waves are below 3 000 GHz). Beyond it a number is a typo.
+pub const MAX_HZ: f64 = 3e12;
+/// Lowest sample rate accepted: one sample per second. Below it times in samples overflow
+/// (a `u64` count of samples of 1e-17 S/s is longer than any `Duration`).
+pub const MIN_RATE_HZ: f64 = 1.0;
+/// Highest sample rate accepted: 100 GS/s, above the fastest digitisers that stream IQ, and low
+/// enough that [`MAX_SECONDS`] of samples still fit in a `u64` (1e8 s × 1e11 S/s = 1e19 < 2^64).
+pub const MAX_RATE_HZ: f64 = 1e11;
+/// Sample rates below this get a note: `--rate 2.4` is more likely meant as `2.4M`.
+pub const LOW_RATE_HZ: f64 = 1e3;
+/// Longest duration accepted for any option (`--seconds`, `--interval`, `--hang`, `--dwell`):
+/// 1e8 s, about three years; it keeps every duration × rate inside a `u64` of samples.
+pub const MAX_SECONDS: f64 = 1e8;
 
 /// Parses a frequency or rate in hertz: `2.4M`, `433.92M`, `12.5k`, `1e6`, `1G`, `-200k`.
 ///
 /// Suffixes are SI multipliers (`k`/`K` = 1e3, `M` = 1e6, `G` = 1e9), optionally followed by `Hz`
 /// or `S/s`. A lower-case `m` is refused because it would be ambiguous (milli or mega).
 pub fn parse_hz(text: &str) -> Result<f64, String> {
+    let shown = sanitize(text);
     let t = text.trim();
     let t = t
         .strip_suffix("Hz")
@@ -20,7 +37,7 @@ pub fn parse_hz(text: &str) -> Result<f64, String> {
         .trim_end();
     if t.is_empty() {
         return Err(format!(
-            "'{text}' is not a frequency: expected a number such as 2.4M, 12.5k or 1e6"
+            "'{shown}' is not a frequency: expected a number such as 2.4M, 12.5k or 1e6"
         ));
     }
     let (num, mult) = match t.chars().last() {
@@ -29,39 +46,101 @@ pub fn parse_hz(text: &str) -> Result<f64, String> {
         Some('G') => (&t[..t.len() - 1], 1e9),
         Some('m') => {
             return Err(format!(
-                "'{text}': lower-case 'm' is ambiguous; write M for mega (e.g. 2.4M)"
+                "'{shown}': lower-case 'm' is ambiguous; write M for mega (e.g. 2.4M)"
             ))
         }
         _ => (t, 1.0),
     };
     let value: f64 = num.trim().parse().map_err(|_| {
-        format!("'{text}' is not a frequency: expected a number such as 2.4M, 12.5k or 1e6")
+        format!("'{shown}' is not a frequency: expected a number such as 2.4M, 12.5k or 1e6")
     })?;
     let hz = value * mult;
     if !hz.is_finite() {
-        return Err(format!("'{text}' is not a finite frequency"));
+        return Err(format!("'{shown}' is not a finite frequency"));
+    }
+    if hz.abs() > MAX_HZ {
+        return Err(format!(
+            "'{shown}' is beyond ±{} (the top of the radio spectrum); check the number and its suffix",
+            format_hz(MAX_HZ)
+        ));
     }
     Ok(hz)
 }
 
 /// Parses a rate that must be strictly positive (sample rates, widths).
 pub fn parse_positive_hz(text: &str) -> Result<f64, String> {
+    let shown = sanitize(text);
     let hz = parse_hz(text)?;
     if hz <= 0.0 {
-        return Err(format!("'{text}' must be greater than zero"));
+        return Err(format!("'{shown}' must be greater than zero"));
     }
     Ok(hz)
 }
 
+/// Checks a sample rate, from a flag or a file: finite and within
+/// [`MIN_RATE_HZ`] ..= [`MAX_RATE_HZ`]. The message says what was wrong; the caller adds where.
+pub fn check_rate(hz: f64) -> Result<(), String> {
+    if !(MIN_RATE_HZ..=MAX_RATE_HZ).contains(&hz) {
+        return Err(format!(
+            "a sample rate of {} is out of range; it must be {} ..= {}",
+            format_hz(hz),
+            format_hz(MIN_RATE_HZ),
+            format_hz(MAX_RATE_HZ)
+        ));
+    }
+    Ok(())
+}
+
+/// A note for a rate that is allowed but probably a slip (`2.4` for `2.4M`).
+pub fn low_rate_note(hz: f64) -> Option<String> {
+    (hz < LOW_RATE_HZ).then(|| {
+        format!(
+            "a sample rate of {} is unusually low; did you mean {}M or {}k? (suffixes: k, M, G)",
+            format_hz(hz),
+            format_num(hz),
+            format_num(hz)
+        )
+    })
+}
+
+/// Parses a sample rate (`--rate`): a frequency checked by [`check_rate`].
+pub fn parse_rate(text: &str) -> Result<f64, String> {
+    let hz = parse_hz(text)?;
+    check_rate(hz)?;
+    Ok(hz)
+}
+
+/// The number of samples in `seconds` at `rate_hz`, rounded, or why it does not fit a `u64`.
+pub fn samples_in(seconds: f64, rate_hz: f64) -> Result<u64, String> {
+    let n = (seconds * rate_hz).round();
+    // 2^64 is exactly representable; every f64 below it converts without loss of range.
+    if !(0.0..18_446_744_073_709_551_616.0).contains(&n) {
+        return Err(format!(
+            "{} s at {} is {} samples, more than can be counted; use a shorter time",
+            format_num(seconds),
+            format_hz(rate_hz),
+            format_num(n)
+        ));
+    }
+    Ok(n as u64)
+}
+
 /// Parses a duration: `10ms`, `2s`, `1.5s`, `15m`, `1h`, `250us`. A bare number is seconds.
 pub fn parse_duration(text: &str) -> Result<Duration, String> {
+    let shown = sanitize(text);
     let t = text.trim();
-    let split = t.find(|c: char| c.is_ascii_alphabetic()).unwrap_or(t.len());
+    // The unit is the trailing run of letters, so `1e-3s` and `2.5e3` keep their exponent.
+    let split = t
+        .char_indices()
+        .rev()
+        .take_while(|(_, c)| c.is_alphabetic())
+        .last()
+        .map_or(t.len(), |(i, _)| i);
     let (num, unit) = t.split_at(split);
     let value: f64 = num
         .trim()
         .parse()
-        .map_err(|_| format!("'{text}' is not a duration: expected e.g. 10ms, 2s, 15m or 1h"))?;
+        .map_err(|_| format!("'{shown}' is not a duration: expected e.g. 10ms, 2s, 15m or 1h"))?;
     let scale = match unit.trim() {
         "" | "s" | "sec" => 1.0,
         "ms" => 1e-3,
@@ -70,21 +149,48 @@ pub fn parse_duration(text: &str) -> Result<Duration, String> {
         "h" => 3600.0,
         other => {
             return Err(format!(
-                "'{text}': unknown time unit '{other}'; use us, ms, s, m (minutes) or h"
+                "'{shown}': unknown time unit '{other}'; use us, ms, s, m (minutes) or h"
             ))
         }
     };
     let secs = value * scale;
     if !secs.is_finite() || secs < 0.0 {
-        return Err(format!("'{text}' must be a non-negative duration"));
+        return Err(format!("'{shown}' must be a non-negative duration"));
+    }
+    if secs > MAX_SECONDS {
+        return Err(format!(
+            "'{shown}' is longer than the longest duration accepted, {} s (about three years)",
+            format_num(MAX_SECONDS)
+        ));
     }
     Ok(Duration::from_secs_f64(secs))
 }
 
-/// Formats a frequency in hertz with a unit chosen for reading: `433.920000 MHz`, `12.500 kHz`.
+/// Formats a number from input for a message: plainly when it is of ordinary size, in
+/// engineering form (`1.0e300`) when plain digits would run on, so no message prints 300 digits.
+pub fn format_num(x: f64) -> String {
+    if is_extreme(x) {
+        format!("{x:.1e}")
+    } else {
+        format!("{x}")
+    }
+}
+
+/// Too large or too small for plain digits (non-finite values print as themselves).
+fn is_extreme(x: f64) -> bool {
+    let a = x.abs();
+    a.is_finite() && (a >= 1e15 || (a > 0.0 && a < 1e-3))
+}
+
+/// Formats a frequency in hertz with a unit chosen for reading: `433.920000 MHz`, `12.500 kHz`;
+/// values far outside any radio use print in engineering form (`1.0e300 Hz`).
 pub fn format_hz(hz: f64) -> String {
     let a = hz.abs();
-    if a >= 1e9 {
+    if is_extreme(hz) || !hz.is_finite() {
+        format!("{} Hz", format_num(hz))
+    } else if a >= 1e12 {
+        format!("{:.6} THz", hz / 1e12)
+    } else if a >= 1e9 {
         format!("{:.6} GHz", hz / 1e9)
     } else if a >= 1e6 {
         format!("{:.6} MHz", hz / 1e6)
@@ -99,7 +205,9 @@ pub fn format_hz(hz: f64) -> String {
 /// unit.
 pub fn format_hz_short(hz: f64, digits: usize) -> String {
     let a = hz.abs();
-    if a >= 1e9 {
+    if is_extreme(hz) || !hz.is_finite() {
+        format_num(hz)
+    } else if a >= 1e9 {
         format!("{:.*}G", digits, hz / 1e9)
     } else if a >= 1e6 {
         format!("{:.*}M", digits, hz / 1e6)
@@ -155,6 +263,36 @@ mod tests {
         assert_eq!(parse_duration("1.5").unwrap(), Duration::from_millis(1500));
         assert!(parse_duration("3 fortnights").unwrap_err().contains("unknown time unit"));
         assert!(parse_duration("-1s").is_err());
+    }
+
+    #[test]
+    fn limits_hold() {
+        // ITU Radio Regulations No. 1.5: radio waves lie below 3 000 GHz.
+        assert_eq!(parse_hz("3000G").unwrap(), 3e12);
+        assert!(parse_hz("3001G").unwrap_err().contains("beyond"));
+        assert!(parse_rate("0.5").unwrap_err().contains("out of range"));
+        assert!(parse_rate("101G").unwrap_err().contains("out of range"));
+        assert_eq!(parse_rate("1").unwrap(), 1.0);
+        assert!(low_rate_note(2.4).unwrap().contains("2.4M"));
+        assert!(low_rate_note(1e3).is_none());
+        assert_eq!(parse_duration("1e-3s").unwrap(), Duration::from_millis(1));
+        assert_eq!(parse_duration("2.5e3").unwrap(), Duration::from_millis(2_500_000));
+        assert!(parse_duration("20000000000000000000").unwrap_err().contains("longest"));
+        assert!(parse_duration("1e16h").unwrap_err().contains("longest"));
+        assert_eq!(samples_in(MAX_SECONDS, MAX_RATE_HZ), Ok(10_000_000_000_000_000_000));
+        assert!(samples_in(1e300, 1.0).is_err());
+        assert!(samples_in(f64::NAN, 1.0).is_err());
+        assert!(samples_in(-1.0, 1.0).is_err());
+    }
+
+    #[test]
+    fn huge_numbers_print_in_engineering_form() {
+        assert_eq!(format_hz(1e300), "1.0e300 Hz");
+        assert_eq!(format_hz(1e-17), "1.0e-17 Hz");
+        assert_eq!(format_hz(3e12), "3.000000 THz");
+        assert_eq!(format_num(1e300), "1.0e300");
+        assert_eq!(format_num(0.5), "0.5");
+        assert_eq!(format_hz_short(-1e300, 1), "-1.0e300");
     }
 
     #[test]

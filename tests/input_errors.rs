@@ -218,3 +218,121 @@ fn broken_pipe_is_a_normal_end() {
     assert!(o.status.success(), "exit {:?}: {}", o.status, stderr(&o));
     assert!(stderr(&o).is_empty(), "{}", stderr(&o));
 }
+
+/// Values far outside any sensible range: each is refused with the option to change, promptly,
+/// and numbers are echoed in engineering form, never as hundreds of digits.
+#[test]
+fn absurd_values_are_refused_with_the_option_to_change() {
+    let p = write_samples("limits.cf32", SampleFormat::Cf32Le, &tone(16_384), &[]);
+    let cases: &[(&[&str], &[&str])] = &[
+        (&["--rate", "1e300"], &["--rate", "beyond"]),
+        (&["--rate", "1e-17"], &["--rate", "1.0e-17 Hz", "out of range"]),
+        (&["--rate", "1M", "--center", "1e300"], &["--center", "beyond"]),
+        (&["--rate", "1M", "--seconds", "1e300"], &["--seconds", "three years"]),
+        (
+            &["--rate", "1M", "--channel", "a=0:10k", "--dwell", "20000000000000000000"],
+            &["--dwell"],
+        ),
+        (&["--rate", "1M", "--peaks", "18446744073709551615"], &["--peaks"]),
+        (&["--rate", "1M", "--xdb", "inf"], &["--xdb"]),
+        (&["--rate", "1M", "--xdb", "301"], &["--xdb", "300"]),
+        (&["--rate", "1M", "--threshold-db", "1e300", "--channel", "a=0:10k"], &["--threshold-db"]),
+        (&["--rate", "1M", "--overlap", "1e300"], &["--overlap"]),
+        (
+            &[
+                "--rate",
+                "2.4M",
+                "--fft",
+                "16",
+                "--overlap",
+                "0.95",
+                "--dwell",
+                "1us",
+                "--channel",
+                "a=0:10k",
+            ],
+            &["--dwell", "1 ms or longer"],
+        ),
+    ];
+    for (extra, needles) in cases {
+        let start = std::time::Instant::now();
+        let o = bin().args(["measure"]).arg(&p).args(*extra).output().unwrap();
+        assert_refused(&o, needles);
+        assert!(stderr(&o).len() < 400, "{extra:?}: {}", stderr(&o));
+        assert!(start.elapsed().as_secs() < 20, "{extra:?} took {:?}", start.elapsed());
+    }
+    let log = |extra: &[&str]| {
+        bin()
+            .args(["log"])
+            .arg(&p)
+            .args(["--rate", "1M", "--channel", "a=0:10k", "-o"])
+            .arg(tmp("limits.jsonl"))
+            .args(extra)
+            .output()
+            .unwrap()
+    };
+    assert_refused(&log(&["--interval", "20000000000000000000"]), &["--interval"]);
+    assert_refused(&log(&["--hang", "1e30"]), &["--hang"]);
+    let o = bin().args(["watch", "--speed", "1e-300"]).output().unwrap();
+    assert_refused(&o, &["--speed", "1.0e-300"]);
+    let o = bin().args(["demo", "--seconds", "1e5", "-o"]).arg(tmp("big.cf32")).output().unwrap();
+    assert_refused(&o, &["1 TiB", "--seconds"]);
+    assert!(!tmp("big.cf32").exists(), "nothing is written before the check");
+}
+
+/// A WAV header's rate goes through the same check as --rate, and --rate overrides it.
+#[test]
+fn a_wav_file_with_rate_zero_names_the_file_and_the_fix() {
+    let wav = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("tests/corpus/wav/regress-rate-0.wav");
+    let o = bin().args(["measure", "--fft", "16"]).arg(&wav).output().unwrap();
+    assert_refused(&o, &["regress-rate-0.wav", "0.0 Hz", "--rate"]);
+    let o = bin().args(["measure", "--fft", "16", "--rate", "48k"]).arg(&wav).output().unwrap();
+    assert!(o.status.success(), "{}", stderr(&o));
+}
+
+/// A rate below 1 kHz is allowed but probably a missing suffix: the note says so.
+#[test]
+fn a_very_low_rate_gets_a_note() {
+    let p = write_samples("low.cf32", SampleFormat::Cf32Le, &tone(4096), &[]);
+    let o = bin().args(["measure", "--fft", "64", "--rate", "2.4"]).arg(&p).output().unwrap();
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert!(stderr(&o).contains("did you mean 2.4M"), "{}", stderr(&o));
+}
+
+/// OS errors name the file and what to check instead of reaching the user bare.
+#[test]
+fn os_errors_name_the_file() {
+    let dir = tmp("a-directory");
+    std::fs::create_dir_all(&dir).unwrap();
+    let o = bin().args(["measure", "--rate", "1M"]).arg(&dir).output().unwrap();
+    assert_refused(&o, &["a-directory", "is a directory"]);
+    let o = bin()
+        .args(["demo", "--seconds", "0.01", "-o"])
+        .arg(dir.join("no/such/x.cf32"))
+        .output()
+        .unwrap();
+    assert_refused(&o, &["no/such/x.cf32", "directory exists"]);
+    if std::path::Path::new("/dev/full").exists() {
+        // Linux's /dev/full fails every write with ENOSPC (null(4)/full(4) manual page).
+        let o = bin().args(["demo", "--seconds", "0.01", "-o", "/dev/full"]).output().unwrap();
+        assert_refused(&o, &["/dev/full", "disk has room"]);
+        let p = write_samples("full.cf32", SampleFormat::Cf32Le, &tone(16_384), &[]);
+        let o = bin()
+            .args([
+                "log",
+                "--rate",
+                "1M",
+                "--channel",
+                "a=0:10k",
+                "--interval",
+                "10ms",
+                "-o",
+                "/dev/full",
+            ])
+            .arg(&p)
+            .output()
+            .unwrap();
+        assert_refused(&o, &["/dev/full", "disk has room"]);
+    }
+}

@@ -165,6 +165,7 @@ fn log_rows_allocate_nothing(threads: usize) {
         start_time: None,
         total_samples: None,
         live: false,
+        segments: Vec::new(),
     };
     let dsp = DspConfig { fft_size: 1024, window: WindowKind::Hann, overlap: 0.5, threads };
     let channels = ["busy=100.1M:20k", "idle=99.8M:20k"].map(|c| parse_channel_flag(c).unwrap());

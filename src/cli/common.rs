@@ -2,10 +2,13 @@
 //! which channels are measured; and the value parsers every flag uses, each written once.
 
 use crate::dsp::{DspConfig, EngineConfig, WindowKind};
+use crate::messages::sanitize;
 use crate::output::report::Band;
 use crate::plan::{check_threshold_db, parse_channel_flag, Channel, Plan, DEFAULT_THRESHOLD_DB};
 use crate::source::{InputRequest, SampleFormat};
-use crate::units::{parse_duration, parse_hz, parse_positive_hz};
+use crate::units::{
+    format_num, parse_duration, parse_hz, parse_positive_hz, parse_rate, MAX_SECONDS,
+};
 use anyhow::Result;
 use clap::Args;
 use std::time::Duration;
@@ -20,7 +23,7 @@ pub struct InputArgs {
     #[arg(long, value_name = "FORMAT", value_parser = parse_format)]
     pub format: Option<SampleFormat>,
     /// Sample rate in samples/s (e.g. 2.4M); overrides the file's own.
-    #[arg(long, value_name = "HZ", value_parser = parse_positive_hz)]
+    #[arg(long, value_name = "HZ", value_parser = parse_rate)]
     pub rate: Option<f64>,
     /// Centre frequency in Hz (e.g. 433.92M) so the axis shows absolute frequency.
     #[arg(long, value_name = "HZ", value_parser = parse_hz)]
@@ -65,7 +68,7 @@ pub struct DspArgs {
     #[arg(long, value_name = "NAME", default_value = "hann", value_parser = parse_window)]
     pub window: WindowKind,
     /// Fraction of each FFT frame shared with the next, 0 ..= 0.95.
-    #[arg(long, value_name = "FRACTION", default_value_t = 0.5)]
+    #[arg(long, value_name = "FRACTION", default_value_t = 0.5, value_parser = parse_number)]
     pub overlap: f64,
     /// Threads for the transforms [default: one per core, at most 8]; 1 leaves the other cores
     /// free.
@@ -136,7 +139,13 @@ pub struct ChannelArgs {
     pub dwell: Option<Duration>,
     /// A channel is occupied in a sample when its power exceeds the noise in its width by this
     /// many dB (ITU-R SM.1880); a plan's threshold_db overrides it per channel.
-    #[arg(long, value_name = "DB", default_value_t = DEFAULT_THRESHOLD_DB, help_heading = "Channels")]
+    #[arg(
+        long,
+        value_name = "DB",
+        default_value_t = DEFAULT_THRESHOLD_DB,
+        value_parser = parse_db,
+        help_heading = "Channels"
+    )]
     pub threshold_db: f64,
 }
 
@@ -171,11 +180,12 @@ impl ChannelArgs {
 
 /// `--band CENTER:WIDTH` in absolute hertz.
 pub fn parse_band(text: &str) -> Result<Band, String> {
+    let shown = sanitize(text);
     let (c, w) = text
         .split_once(':')
-        .ok_or_else(|| format!("band '{text}' must be CENTER:WIDTH, e.g. 433.92M:25k"))?;
+        .ok_or_else(|| format!("band '{shown}' must be CENTER:WIDTH, e.g. 433.92M:25k"))?;
     let center_hz = parse_hz(c)?;
-    let width_hz = parse_positive_hz(w).map_err(|e| format!("band '{text}': width {e}"))?;
+    let width_hz = parse_positive_hz(w).map_err(|e| format!("band '{shown}': width {e}"))?;
     Ok(Band { center_hz, width_hz })
 }
 
@@ -188,17 +198,53 @@ pub fn parse_window(text: &str) -> Result<WindowKind, String> {
 }
 
 pub fn parse_time(text: &str) -> Result<OffsetDateTime, String> {
-    OffsetDateTime::parse(text.trim(), &Rfc3339)
-        .map_err(|e| format!("'{text}' is not an RFC 3339 time such as 2026-05-01T08:00:00Z ({e})"))
+    OffsetDateTime::parse(text.trim(), &Rfc3339).map_err(|e| {
+        format!("'{}' is not an RFC 3339 time such as 2026-05-01T08:00:00Z ({e})", sanitize(text))
+    })
 }
 
-/// `--seconds`: how much input to take, a positive number of seconds.
+/// `--seconds`: how much input to take, a positive number of seconds, at most
+/// [`MAX_SECONDS`] (so that seconds × any accepted rate is a count of samples a `u64` holds).
 pub fn parse_seconds(text: &str) -> Result<f64, String> {
-    let s: f64 = text.trim().parse().map_err(|_| format!("'{text}' is not a number of seconds"))?;
+    let shown = sanitize(text);
+    let s: f64 =
+        text.trim().parse().map_err(|_| format!("'{shown}' is not a number of seconds"))?;
     if !(s > 0.0 && s.is_finite()) {
-        return Err(format!("{s} must be a positive number of seconds"));
+        return Err(format!("'{shown}' must be a positive number of seconds"));
+    }
+    if s > MAX_SECONDS {
+        return Err(format!(
+            "'{shown}' is more than {} s (about three years), the longest run accepted",
+            format_num(MAX_SECONDS)
+        ));
     }
     Ok(s)
+}
+
+/// Largest magnitude of a plain number option (`--overlap`, `--fps`, `--speed`, …): far beyond
+/// any sensible value, so the range checks after parsing print ordinary numbers.
+pub const MAX_NUMBER: f64 = 1e9;
+/// Largest magnitude of a level option in dB (`--threshold-db`, `--xdb`, `--ref-offset`): levels
+/// in this program lie within ±300 dB (`units::db` floors power at 1e-30).
+pub const MAX_DB: f64 = 1000.0;
+
+/// A finite number of ordinary size, for options whose range is checked afterwards.
+pub fn parse_number(text: &str) -> Result<f64, String> {
+    parse_within(text, MAX_NUMBER, "number")
+}
+
+/// A level or level difference in dB, finite and within ±[`MAX_DB`].
+pub fn parse_db(text: &str) -> Result<f64, String> {
+    parse_within(text, MAX_DB, "number of dB")
+}
+
+fn parse_within(text: &str, limit: f64, what: &str) -> Result<f64, String> {
+    let shown = sanitize(text);
+    match text.trim().parse::<f64>() {
+        Ok(x) if x.is_finite() && x.abs() <= limit => Ok(x),
+        Ok(_) => Err(format!("'{shown}' is not a finite {what} within ±{}", format_num(limit))),
+        Err(_) => Err(format!("'{shown}' is not a {what}")),
+    }
 }
 
 #[cfg(test)]
@@ -219,6 +265,17 @@ mod tests {
     fn start_time_is_rfc3339() {
         assert!(parse_time("2026-05-01T08:00:00Z").is_ok());
         assert!(parse_time("yesterday").unwrap_err().contains("RFC 3339"));
+    }
+
+    #[test]
+    fn plain_numbers_are_finite_and_of_ordinary_size() {
+        assert_eq!(parse_number(" 0.75 "), Ok(0.75));
+        assert_eq!(parse_db("-30.5"), Ok(-30.5));
+        for bad in ["1e300", "inf", "nan", "x", "1001"] {
+            assert!(parse_db(bad).is_err(), "{bad}");
+        }
+        assert!(parse_number("1e300").unwrap_err().contains("1000000000"));
+        assert!(parse_seconds("1e300").unwrap_err().contains("three years"));
     }
 
     #[test]

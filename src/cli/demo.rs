@@ -3,7 +3,7 @@
 use super::common::{parse_format, parse_seconds, parse_time};
 use crate::source::demo::{DEFAULT_CENTER_HZ, DEFAULT_SEED};
 use crate::source::SampleFormat;
-use crate::units::{parse_hz, parse_positive_hz};
+use crate::units::{format_num, parse_hz, parse_rate, samples_in};
 use anyhow::{bail, Result};
 use clap::Args;
 use time::OffsetDateTime;
@@ -18,7 +18,7 @@ pub struct DemoArgs {
     #[arg(long, value_name = "FORMAT", value_parser = parse_format)]
     pub format: Option<SampleFormat>,
     /// Sample rate in samples/s.
-    #[arg(long, value_name = "HZ", default_value = "2.4M", value_parser = parse_positive_hz)]
+    #[arg(long, value_name = "HZ", default_value = "2.4M", value_parser = parse_rate)]
     pub rate: f64,
     /// Centre frequency in Hz (written to SigMF metadata).
     #[arg(long, value_name = "HZ", value_parser = parse_hz)]
@@ -48,6 +48,9 @@ pub enum DemoContainer {
     /// A two-channel WAV file (I left, Q right).
     Wav,
 }
+/// Largest demo recording written to a file: 1 TiB. The scene is for trying things out; a bigger
+/// file only fills a disk (an endless stream can still go to standard output).
+pub const MAX_DEMO_FILE_BYTES: u64 = 1 << 40;
 
 /// A validated `demo`.
 #[derive(Clone, Debug)]
@@ -66,14 +69,26 @@ pub struct DemoConfig {
 
 impl DemoArgs {
     pub fn validate(self) -> Result<DemoConfig> {
+        let (container, format) = container_and_format(&self.out, self.format)?;
         let total_samples = match self.seconds {
-            Some(s) => Some((s * self.rate).round() as u64),
+            Some(s) => {
+                let n = samples_in(s, self.rate).map_err(|e| anyhow::anyhow!("--seconds: {e}"))?;
+                let bytes = n.saturating_mul(format.bytes_per_sample() as u64);
+                if self.out != "-" && bytes > MAX_DEMO_FILE_BYTES {
+                    bail!(
+                        "--seconds {} at --rate {} would write {} bytes, more than the 1 TiB a demo file may take; use a shorter --seconds or a lower --rate (or write to stdout with -o -)",
+                        format_num(s),
+                        format_num(self.rate),
+                        format_num(bytes as f64)
+                    );
+                }
+                Some(n)
+            }
             None if self.out != "-" => {
                 bail!("writing to a file needs --seconds (how long a recording to make)")
             }
             None => None,
         };
-        let (container, format) = container_and_format(&self.out, self.format)?;
         Ok(DemoConfig {
             out: self.out,
             container,

@@ -1,15 +1,24 @@
 //! `measure` flags and their validation.
 
-use super::common::{parse_band, parse_seconds, ChannelArgs, ChannelConfig};
+use super::common::{
+    parse_band, parse_db, parse_number, parse_seconds, ChannelArgs, ChannelConfig,
+};
 use super::common::{DspArgs, InputArgs};
 use crate::dsp::DspConfig;
 use crate::output::report::Band;
 use crate::source::InputRequest;
+use crate::units::format_num;
 use anyhow::{bail, Result};
 use clap::Args;
 
 /// Seconds of the demo scene measured when no input and no `--seconds` are given.
 const DEMO_SECONDS: f64 = 2.0;
+/// Most signals `--peaks` may ask for: far more than a table anyone reads, and a JSON list of
+/// more is better served by the spectrum itself.
+pub const MAX_PEAKS: usize = 1000;
+/// Deepest x-dB bandwidth: every level here lies above −300 dB (`units::db` floors power at
+/// 1e-30), so a band's x-dB points cannot lie further below its peak.
+pub const MAX_XDB: f64 = 300.0;
 
 #[derive(Args, Debug)]
 pub struct MeasureArgs {
@@ -30,10 +39,10 @@ pub struct MeasureArgs {
     #[arg(long = "band", value_name = "CENTER:WIDTH", value_parser = parse_band)]
     pub bands: Vec<Band>,
     /// Occupied bandwidth: percentage of a band's power inside it (ITU-R SM.328 β = 100 − this).
-    #[arg(long, value_name = "PERCENT", default_value_t = 99.0)]
+    #[arg(long, value_name = "PERCENT", default_value_t = 99.0, value_parser = parse_number)]
     pub obw_percent: f64,
     /// x for the x-dB bandwidth, in dB below the band's highest PSD.
-    #[arg(long, value_name = "DB", default_value_t = 26.0)]
+    #[arg(long, value_name = "DB", default_value_t = 26.0, value_parser = parse_db)]
     pub xdb: f64,
     /// Print one JSON object instead of the table.
     #[arg(long)]
@@ -62,11 +71,20 @@ impl MeasureArgs {
         if self.obw_percent.is_nan() || self.obw_percent <= 0.0 || self.obw_percent >= 100.0 {
             bail!(
                 "--obw-percent {} is out of range; choose a value between 0 and 100 (99 is usual)",
-                self.obw_percent
+                format_num(self.obw_percent)
             );
         }
-        if self.xdb.is_nan() || self.xdb <= 0.0 {
-            bail!("--xdb {} must be a positive number of dB (26 is usual)", self.xdb);
+        if !(self.xdb > 0.0 && self.xdb <= MAX_XDB) {
+            bail!(
+                "--xdb {} is out of range; choose a positive number of dB up to {MAX_XDB} (26 is usual)",
+                format_num(self.xdb)
+            );
+        }
+        if self.peaks > MAX_PEAKS {
+            bail!(
+                "--peaks {} is more than the {MAX_PEAKS} signals a report lists; choose fewer",
+                self.peaks
+            );
         }
         let dsp = self.dsp.validate()?;
         let channels = self.channels.validate()?;

@@ -1,10 +1,11 @@
 //! `watch` flags and their validation.
 
-use super::common::{DspArgs, InputArgs, PlanArgs};
+use super::common::{parse_db, parse_number, DspArgs, InputArgs, PlanArgs};
 use crate::pipeline::latest::RowSettings;
 use crate::plan::Plan;
 use crate::source::InputRequest;
 use crate::tui::colour::Depth;
+use crate::units::format_num;
 use anyhow::{bail, Result};
 use clap::Args;
 
@@ -18,20 +19,20 @@ pub struct WatchArgs {
     #[command(flatten)]
     pub dsp: DspArgs,
     /// Screen updates per second at most, 1 ..= 60.
-    #[arg(long, value_name = "N", default_value_t = 20.0)]
+    #[arg(long, value_name = "N", default_value_t = 20.0, value_parser = parse_number)]
     pub fps: f64,
     /// Waterfall rows per second of input, 0.1 ..= 200; each row averages the FFT frames of
     /// its time.
-    #[arg(long, value_name = "N", default_value_t = 20.0)]
+    #[arg(long, value_name = "N", default_value_t = 20.0, value_parser = parse_number)]
     pub row_rate: f64,
-    /// Play a file at this multiple of its recorded rate (1 = as recorded).
-    #[arg(long, value_name = "X", default_value_t = 1.0)]
+    /// Play a file at this multiple of its recorded rate (1 = as recorded), 0.001 ..= 1000.
+    #[arg(long, value_name = "X", default_value_t = 1.0, value_parser = parse_number)]
     pub speed: f64,
     /// Start a file again when it ends.
     #[arg(long = "loop")]
     pub loop_input: bool,
     /// Add this many dB to every level shown, turning dBFS into dBm for a calibrated receiver.
-    #[arg(long, value_name = "DB", allow_negative_numbers = true)]
+    #[arg(long, value_name = "DB", allow_negative_numbers = true, value_parser = parse_db)]
     pub ref_offset: Option<f64>,
     #[command(flatten)]
     pub channels: PlanArgs,
@@ -47,6 +48,14 @@ pub struct WatchArgs {
     #[arg(long)]
     pub no_mouse: bool,
 }
+
+/// Slowest and fastest playback of a file: a thousandth of the recorded rate is already a slide
+/// show, and a thousand times it is faster than the screen can show rows anyway.
+pub const MIN_SPEED: f64 = 0.001;
+pub const MAX_SPEED: f64 = 1000.0;
+/// Largest calibration offset: gains between a receiver's full scale and its antenna port lie
+/// well within ±200 dB (common practice), and levels beyond it would leave the scale's range.
+pub const MAX_REF_OFFSET_DB: f64 = 200.0;
 
 /// `--colour`: automatic or forced.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -84,22 +93,22 @@ impl WatchArgs {
     pub fn validate(self) -> Result<WatchConfig> {
         let dsp = self.dsp.validate()?;
         if !(1.0..=60.0).contains(&self.fps) {
-            bail!("--fps {} is out of range; choose 1 ..= 60 (20 is usual)", self.fps);
+            bail!("--fps {} is out of range; choose 1 ..= 60 (20 is usual)", format_num(self.fps));
         }
         if !(0.1..=200.0).contains(&self.row_rate) {
             bail!(
                 "--row-rate {} is out of range; choose 0.1 ..= 200 rows per second",
-                self.row_rate
+                format_num(self.row_rate)
             );
         }
-        if !(self.speed > 0.0 && self.speed.is_finite()) {
+        if !(MIN_SPEED..=MAX_SPEED).contains(&self.speed) {
             bail!(
-                "--speed {} must be a positive number (1 plays at the recorded rate)",
-                self.speed
+                "--speed {} is out of range; choose {MIN_SPEED} ..= {MAX_SPEED} (1 plays at the recorded rate)",
+                format_num(self.speed)
             );
         }
-        if self.ref_offset.is_some_and(|o| !o.is_finite()) {
-            bail!("--ref-offset must be a finite number of dB");
+        if self.ref_offset.is_some_and(|o| o.is_nan() || o.abs() > MAX_REF_OFFSET_DB) {
+            bail!("--ref-offset must be a number of dB within ±{MAX_REF_OFFSET_DB}");
         }
         let plan = self.channels.validate()?;
         let mut input = self.source.request(self.input);

@@ -63,7 +63,10 @@ impl EngineConfig {
             ));
         }
         if !(0.0..=0.95).contains(&self.overlap) || self.overlap.is_nan() {
-            return Err(format!("overlap {} is out of range; choose 0 ..= 0.95", self.overlap));
+            return Err(format!(
+                "--overlap {} is out of range; choose 0 ..= 0.95",
+                crate::units::format_num(self.overlap)
+            ));
         }
         if self.frames_per_output == Some(0) {
             return Err("frames per output must be at least 1".into());

@@ -93,7 +93,11 @@ struct Named<W: Write> {
 
 impl<W: Write> Named<W> {
     fn explain(&self, e: io::Error) -> io::Error {
-        io::Error::new(e.kind(), format!("cannot write {}: {e}", self.name))
+        if e.kind() == io::ErrorKind::BrokenPipe {
+            return e;
+        }
+        let hint = "check the disk has room and the file is writable";
+        io::Error::new(e.kind(), format!("cannot write {}: {e}; {hint}", self.name))
     }
 }
 
@@ -138,18 +142,21 @@ mod tests {
 
     #[test]
     fn write_errors_name_the_output_and_keep_their_kind() {
-        struct Full;
-        impl Write for Full {
+        struct Failing(io::ErrorKind);
+        impl Write for Failing {
             fn write(&mut self, _: &[u8]) -> io::Result<usize> {
-                Err(io::Error::from(io::ErrorKind::BrokenPipe))
+                Err(io::Error::from(self.0))
             }
             fn flush(&mut self) -> io::Result<()> {
                 Ok(())
             }
         }
-        let mut n = Named { inner: Full, name: "the log 'x'".into() };
+        let mut n = Named { inner: Failing(io::ErrorKind::Other), name: "the log 'x'".into() };
         let e = n.write_all(b"a").unwrap_err();
-        assert_eq!(e.kind(), io::ErrorKind::BrokenPipe);
+        assert_eq!(e.kind(), io::ErrorKind::Other);
         assert!(e.to_string().contains("the log 'x'"), "{e}");
+        // A reader that went away is passed on as it is: the caller ends quietly on it.
+        let mut n = Named { inner: Failing(io::ErrorKind::BrokenPipe), name: "x".into() };
+        assert_eq!(n.write_all(b"a").unwrap_err().kind(), io::ErrorKind::BrokenPipe);
     }
 }

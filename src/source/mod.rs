@@ -14,6 +14,7 @@ pub mod wav;
 pub use crate::messages::sanitize;
 pub use format::SampleFormat;
 
+use crate::units;
 use anyhow::{bail, Context, Result};
 use num_complex::Complex32;
 use time::OffsetDateTime;
@@ -124,10 +125,52 @@ pub struct InputRequest {
 
 /// Opens the source the request names. Messages about guesses go to `notes` (printed on stderr
 /// by the caller) so library code never prints.
+///
+/// Every source passes [`check_info`] here, so a rate or centre from a flag, a SigMF file or a WAV
+/// header is checked once, in one place, before anything is sized from it.
 pub fn open(req: &InputRequest, notes: &mut Vec<String>) -> Result<Box<dyn SampleSource>> {
+    if let Some(rate) = req.sample_rate_hz {
+        // Before a source sizes anything from it (the demo scene builds tables per rate).
+        check_rate_of("--rate", rate, "give the rate in samples per second, e.g. --rate 2.4M")?;
+    }
     if !req.path.as_deref().is_some_and(is_sigmf_name) {
         refuse_sigmf_choices(req)?;
     }
+    let src = open_unchecked(req, notes)?;
+    check_info(src.info(), notes)?;
+    Ok(src)
+}
+
+/// Checks what a source says about itself: a sample rate in
+/// [`MIN_RATE_HZ`](crate::units::MIN_RATE_HZ) ..= [`MAX_RATE_HZ`](crate::units::MAX_RATE_HZ)
+/// (a note below [`LOW_RATE_HZ`](crate::units::LOW_RATE_HZ)), a centre frequency within
+/// ±[`MAX_HZ`](crate::units::MAX_HZ). The error names the input and the option that overrides it.
+pub fn check_info(info: &SourceInfo, notes: &mut Vec<String>) -> Result<()> {
+    let label = sanitize(&info.label);
+    check_rate_of(
+        &format!("'{label}'"),
+        info.sample_rate_hz,
+        "give --rate to override the input's own (e.g. --rate 2.4M)",
+    )?;
+    if let Some(note) = units::low_rate_note(info.sample_rate_hz) {
+        notes.push(note);
+    }
+    let c = info.center_hz;
+    if !(c.is_finite() && c.abs() <= units::MAX_HZ) {
+        bail!(
+            "'{label}': a centre frequency of {} is out of range (at most ±{}); give --center to override it",
+            units::format_hz(c),
+            units::format_hz(units::MAX_HZ)
+        );
+    }
+    Ok(())
+}
+
+fn check_rate_of(what: &str, rate: f64, fix: &str) -> Result<()> {
+    units::check_rate(rate).map_err(|e| anyhow::anyhow!("{what}: {e}; {fix}"))
+}
+
+fn open_unchecked(req: &InputRequest, notes: &mut Vec<String>) -> Result<Box<dyn SampleSource>> {
     let src: Box<dyn SampleSource> = match req.path.as_deref() {
         None => Box::new(
             demo::DemoSource::new(
@@ -166,6 +209,9 @@ fn open_path(
     req: &InputRequest,
     notes: &mut Vec<String>,
 ) -> Result<Box<dyn SampleSource>> {
+    if std::fs::metadata(path).is_ok_and(|m| m.is_dir()) {
+        bail!("'{}' is a directory; give a file of samples (or - for stdin)", sanitize(path));
+    }
     let lower = path.to_ascii_lowercase();
     if is_sigmf_name(path) {
         return sigmf::open(path, req);
