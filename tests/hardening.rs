@@ -210,3 +210,47 @@ fn a_recording_piped_faster_than_real_time_loses_nothing() {
     assert_eq!(stop["dropped_samples"], 0, "{}", stderr(&o));
     assert!(!log.contains("\"kind\":\"dropped\""));
 }
+
+#[test]
+fn samples_that_are_not_numbers_keep_their_place_in_time() {
+    // 3 s at 100 kS/s with 0.25 s of NaN starting at 1.0 s, and a whole 10 ms block of NaN at
+    // 2.5 s: the gaps are logged where they are (not_a_number) and every later stamp still
+    // counts them; the run does not take a block of NaN for the end of the input.
+    let rate = 100_000usize;
+    let mut x: Vec<Complex32> =
+        (0..3 * rate).map(|i| Complex32::from_polar(0.1, i as f32 * 0.7)).collect();
+    let nan = Complex32::new(f32::NAN, 0.0);
+    x[rate..rate + rate / 4].iter_mut().for_each(|s| *s = nan);
+    x[5 * rate / 2..5 * rate / 2 + rate / 100].iter_mut().for_each(|s| *s = nan);
+    let mut bytes = Vec::new();
+    SampleFormat::Cf32Le.encode(&x, &mut bytes);
+    let p = tmp("holes.cf32");
+    std::fs::write(&p, bytes).unwrap();
+    let o = bin()
+        .arg("log")
+        .arg(&p)
+        .args(["--rate", "100k", "--fft", "256", "--channel", "a=20k:5k", "--interval", "1s"])
+        .args(["--start", "2026-05-01T08:00:00Z"])
+        .output()
+        .unwrap();
+    assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+    let recs: Vec<serde_json::Value> = String::from_utf8(o.stdout.clone())
+        .unwrap()
+        .lines()
+        .map(|l| serde_json::from_str(l).unwrap())
+        .collect();
+    let holes: Vec<&serde_json::Value> = recs.iter().filter(|r| r["kind"] == "dropped").collect();
+    assert_eq!(holes.len(), 2, "{holes:?}");
+    assert_eq!(holes[0]["cause"], "not_a_number");
+    assert_eq!(holes[0]["t_start_s"], 1.0);
+    assert_eq!(holes[0]["start"], "2026-05-01T08:00:01.000Z");
+    assert_eq!(holes[0]["dropped_samples"], rate as u64 / 4);
+    assert_eq!(holes[1]["t_start_s"], 2.5);
+    assert_eq!(holes[1]["dropped_samples"], rate as u64 / 100);
+    let stop = recs.last().unwrap();
+    assert_eq!(stop["iq_samples"], 3 * rate as u64, "the whole input, holes included");
+    assert_eq!(stop["end"], "2026-05-01T08:00:03.000Z");
+    let last = recs.iter().rfind(|r| r["kind"] == "interval").unwrap();
+    assert_eq!(last["t_start_s"], 2.0);
+    assert!(stderr(&o).contains("NaN or infinity"), "{}", stderr(&o));
+}

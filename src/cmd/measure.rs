@@ -43,6 +43,14 @@ pub fn run(cfg: MeasureConfig) -> Result<ExitCode> {
     notes(&issues.notes());
     outcome.check(&info.label)?;
     let Some(spectrum) = whole.average(cfg.dsp.hop()) else {
+        if issues.non_finite > 0 {
+            bail!(
+                "the input '{}' has no stretch of {} samples free of NaN or infinity to measure; the input is probably not {}; check --format (or use a smaller --fft)",
+                sanitize(&info.label),
+                cfg.dsp.fft_size,
+                info.format.map_or("in the format it was read as".to_string(), |f| f.to_string())
+            );
+        }
         bail!(
             "the input '{}' holds {} samples, fewer than one FFT frame of {}; use a smaller --fft",
             sanitize(&info.label),

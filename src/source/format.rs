@@ -86,7 +86,7 @@ impl SampleFormat {
 
     /// Decodes whole samples from `bytes` (whose length must be a multiple of
     /// [`bytes_per_sample`](Self::bytes_per_sample)) into the start of `out`, which must have
-    /// room for them. Non-finite samples are skipped and samples far beyond full scale counted
+    /// room for them. Non-finite samples and samples far beyond full scale are counted
     /// (see [`screen`]); integer formats cannot produce either.
     pub fn decode(self, bytes: &[u8], out: &mut [Complex32]) -> Screened {
         let bps = self.bytes_per_sample();
@@ -99,14 +99,14 @@ impl SampleFormat {
                 fill_from(out, bytes, bps, |c: &[u8]| {
                     Complex32::new((c[0] as f32 - 127.5) * SCALE, (c[1] as f32 - 127.5) * SCALE)
                 });
-                return Screened { kept: count, beyond_scale: 0 };
+                return Screened { kept: count, ..Screened::default() };
             }
             SampleFormat::Ci8 => {
                 const SCALE: f32 = 1.0 / 128.0;
                 fill_from(out, bytes, bps, |c: &[u8]| {
                     Complex32::new(c[0] as i8 as f32 * SCALE, c[1] as i8 as f32 * SCALE)
                 });
-                return Screened { kept: count, beyond_scale: 0 };
+                return Screened { kept: count, ..Screened::default() };
             }
             SampleFormat::Ci16Le | SampleFormat::Ci16Be => {
                 const SCALE: f32 = 1.0 / 32768.0;
@@ -118,14 +118,14 @@ impl SampleFormat {
                 fill_from(out, bytes, bps, |c: &[u8]| {
                     Complex32::new(get(&c[0..2]) * SCALE, get(&c[2..4]) * SCALE)
                 });
-                return Screened { kept: count, beyond_scale: 0 };
+                return Screened { kept: count, ..Screened::default() };
             }
             SampleFormat::Ci32Le => {
                 const SCALE: f64 = 1.0 / 2147483648.0;
                 let get =
                     |b: &[u8]| (i32::from_le_bytes([b[0], b[1], b[2], b[3]]) as f64 * SCALE) as f32;
                 fill_from(out, bytes, bps, |c: &[u8]| Complex32::new(get(&c[0..4]), get(&c[4..8])));
-                return Screened { kept: count, beyond_scale: 0 };
+                return Screened { kept: count, ..Screened::default() };
             }
             _ if self.is_native() => sample_bytes_mut(out).copy_from_slice(bytes),
             SampleFormat::Cf32Le | SampleFormat::Cf32Be => {
@@ -223,26 +223,26 @@ pub const BEYOND_SCALE: f32 = 1e6;
 /// What screening a block of float samples found.
 #[derive(Clone, Copy, Debug, Default, PartialEq)]
 pub struct Screened {
-    /// Samples kept (at the front of the block).
+    /// Samples in the block (all are kept, in place).
     pub kept: usize,
-    /// Kept samples with a component of magnitude [`BEYOND_SCALE`] or more.
+    /// Samples with a NaN or infinite component. They stay where they are, so that the time
+    /// line (sample indices) stays exact; the pipeline's run treats them as a gap.
+    pub non_finite: u64,
+    /// Finite samples with a component of magnitude [`BEYOND_SCALE`] or more.
     pub beyond_scale: u64,
 }
 
-/// Moves the finite samples of `samples` to its front, in order, and counts those beyond scale.
+/// Counts the samples of `samples` that are not numbers and those beyond scale; changes nothing.
 pub fn screen(samples: &mut [Complex32]) -> Screened {
+    let mut out = Screened { kept: samples.len(), ..Screened::default() };
     if !Kernels::detect().any_outside(samples, BEYOND_SCALE) {
-        return Screened { kept: samples.len(), beyond_scale: 0 };
+        return out;
     }
-    let mut out = Screened::default();
-    for i in 0..samples.len() {
-        let s = samples[i];
-        if s.re.is_finite() && s.im.is_finite() {
-            samples[out.kept] = s;
-            out.kept += 1;
-            if s.re.abs().max(s.im.abs()) >= BEYOND_SCALE {
-                out.beyond_scale += 1;
-            }
+    for s in samples.iter() {
+        if !(s.re.is_finite() && s.im.is_finite()) {
+            out.non_finite += 1;
+        } else if s.re.abs().max(s.im.abs()) >= BEYOND_SCALE {
+            out.beyond_scale += 1;
         }
     }
     out
@@ -314,7 +314,7 @@ mod tests {
     }
 
     #[test]
-    fn non_finite_floats_are_skipped_in_order() {
+    fn non_finite_floats_stay_in_place_and_are_counted() {
         let x = [
             Complex32::new(0.5, 0.5),
             Complex32::new(f32::NAN, 0.0),
@@ -324,7 +324,14 @@ mod tests {
         for fmt in [SampleFormat::Cf32Le, SampleFormat::Cf32Be, SampleFormat::Cf64Le] {
             let mut bytes = Vec::new();
             fmt.encode(&x, &mut bytes);
-            assert_eq!(decoded(fmt, &bytes), vec![x[0], x[3]], "{fmt}");
+            let got = decoded(fmt, &bytes);
+            // Bit for bit: NaN is not equal to itself (IEEE 754), so compare the encodings.
+            let bits = |v: &[Complex32]| {
+                v.iter().map(|c| (c.re.to_bits(), c.im.to_bits())).collect::<Vec<_>>()
+            };
+            assert_eq!(bits(&got), bits(&x), "{fmt}");
+            let mut out = vec![Complex32::default(); 4];
+            assert_eq!(fmt.decode(&bytes, &mut out).non_finite, 2, "{fmt}");
         }
     }
 
@@ -335,10 +342,10 @@ mod tests {
         let bytes = [0x7f, 0x7f, 0x7f, 0x7f, 0, 0, 0, 0, 0, 0, 0x80, 0x3e, 0, 0, 0, 0];
         let mut out = vec![Complex32::default(); 2];
         let got = SampleFormat::Cf32Le.decode(&bytes, &mut out);
-        assert_eq!(got, Screened { kept: 2, beyond_scale: 1 });
+        assert_eq!(got, Screened { kept: 2, non_finite: 0, beyond_scale: 1 });
         assert_eq!(out[1], Complex32::new(0.25, 0.0));
         let mut loud = [Complex32::new(0.0, -2e6), Complex32::new(f32::NAN, 5e6)];
-        assert_eq!(screen(&mut loud), Screened { kept: 1, beyond_scale: 1 });
+        assert_eq!(screen(&mut loud), Screened { kept: 2, non_finite: 1, beyond_scale: 1 });
     }
 
     #[test]

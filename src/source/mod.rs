@@ -54,7 +54,7 @@ pub struct Segment {
 /// Counts of input problems that do not stop the run but must be reported.
 #[derive(Clone, Debug, Default, PartialEq)]
 pub struct InputIssues {
-    /// Samples with a NaN or infinite component, skipped.
+    /// Samples with a NaN or infinite component: a gap in the measurement.
     pub non_finite: u64,
     /// Bytes at the end that did not make a whole sample, dropped.
     pub trailing_bytes: u64,
@@ -68,7 +68,10 @@ impl InputIssues {
     pub fn notes(&self) -> Vec<String> {
         let mut notes = Vec::new();
         if self.non_finite > 0 {
-            notes.push(format!("skipped {} samples holding NaN or infinity", self.non_finite));
+            notes.push(format!(
+                "{} samples hold NaN or infinity; they were left out of the measurement as a gap (time stays exact)",
+                self.non_finite
+            ));
         }
         if self.beyond_scale > 0 {
             notes.push(format!(

@@ -109,12 +109,10 @@ impl SampleSource for WavSource {
         let mut take = |v: f32, out: &mut [Complex32], bad: &mut u64| match pending.take() {
             None => pending = Some(v),
             Some(i) => {
-                if i.is_finite() && v.is_finite() {
-                    out[kept] = Complex32::new(i, v);
-                    kept += 1;
-                } else {
-                    *bad += 1;
-                }
+                // Kept in place, so time stays exact: the run treats it as a gap.
+                *bad += u64::from(!(i.is_finite() && v.is_finite()));
+                out[kept] = Complex32::new(i, v);
+                kept += 1;
             }
         };
         let mut bad = 0;
