@@ -35,6 +35,7 @@ pub fn run(cfg: MeasureConfig) -> Result<ExitCode> {
         spec.engine = setup.engine.clone();
         spec.tracker = Some(setup.tracker());
     }
+    spec.check_work()?;
     let mut whole = WholeInput::new(plan.channels.len());
     let input = Input::start(src, ReaderOptions { max_samples, ..Default::default() });
     let stats = input.stats.clone();

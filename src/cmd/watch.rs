@@ -54,8 +54,9 @@ pub fn run(cfg: WatchConfig) -> Result<ExitCode> {
         loop_input: cfg.loop_input && is_file,
         max_samples: None,
     };
-    let input = Input::start(src, opts);
     let spec = RunSpec::new(info.clone(), cfg.rows.engine(rate), cfg.rows.threads);
+    spec.check_work()?;
+    let input = Input::start(src, opts);
     let feed = RowFeed::spawn(input.blocks.clone(), spec)?;
     let summary = SourceSummary {
         label: sanitize(&info.label),

@@ -67,7 +67,7 @@ impl<W: Write> OccupancyLog<W> {
                     t_start_s: c.seconds(i.start_sample),
                     t_end_s: c.seconds(i.end_sample),
                     start: c.stamp(i.start_sample),
-                    end: c.stamp(i.end_sample),
+                    end: c.stamp_end(i.end_sample),
                     // An interval whose input was all lost has no level and no occupancy.
                     occupancy_pct: measured.then(|| round_to(i.occupancy_pct(), 3)),
                     mean_dbfs: measured.then(|| round_to(db(i.mean_power), 2)),
@@ -87,7 +87,7 @@ impl<W: Write> OccupancyLog<W> {
                     t_start_s: c.seconds(e.start_sample),
                     t_end_s: c.seconds(e.end_sample),
                     start: c.stamp(e.start_sample),
-                    end: c.stamp(e.end_sample),
+                    end: c.stamp_end(e.end_sample),
                     duration_s: (e.end_sample - e.start_sample) as f64 / c.rate,
                     peak_dbfs: round_to(db(e.peak_power), 2),
                     mean_dbfs: round_to(db(e.mean_power), 2),
@@ -125,7 +125,7 @@ impl<W: Write> Consumer for OccupancyLog<W> {
             t_start_s: c.seconds(from),
             t_end_s: c.seconds(to),
             start: c.stamp(from),
-            end: c.stamp(to),
+            end: c.stamp_end(to),
             dropped_samples: to - from,
             cause: cause.as_str().into(),
         }))
@@ -135,7 +135,7 @@ impl<W: Write> Consumer for OccupancyLog<W> {
         let c = &run.clock;
         self.writer.write(&Record::Stop(StopRecord {
             t_end_s: c.seconds(end.end_sample),
-            end: c.stamp(end.end_sample),
+            end: c.stamp_end(end.end_sample),
             reason: end.reason.as_str().into(),
             iq_samples: end.end_sample,
             dropped_samples: end.dropped_samples,

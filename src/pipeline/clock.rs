@@ -63,6 +63,24 @@ impl Clock {
     pub fn stamp(&self, sample: u64) -> Option<String> {
         rfc3339_ms(self.time(sample)?)
     }
+
+    /// The end of a span whose last sample is `end − 1`, timed from the segment that sample
+    /// belongs to: at a segment boundary the end of one segment is not the start of the next
+    /// (their times may be hours apart).
+    pub fn end_time(&self, end: u64) -> Option<OffsetDateTime> {
+        let Some(last) = end.checked_sub(1) else { return self.time(0) };
+        let (at, t0) = match self.marks.iter().rev().find(|(at, _)| *at <= last) {
+            Some(&mark) => mark,
+            None => (0, self.start?),
+        };
+        let ms = ((end - at) as f64 / self.rate * 1e3).round();
+        t0.checked_add(time::Duration::milliseconds(ms as i64))
+    }
+
+    /// [`Clock::end_time`] in RFC 3339 UTC with milliseconds.
+    pub fn stamp_end(&self, end: u64) -> Option<String> {
+        rfc3339_ms(self.end_time(end)?)
+    }
 }
 
 /// `2026-05-01T08:00:00.250Z`; `None` if the time cannot be shown in UTC (its UTC date would
@@ -149,5 +167,18 @@ mod tests {
             Clock::for_source(&far, Some(t("2026-01-01T00:00:00Z"))).stamp(0).unwrap(),
             "2026-01-01T00:00:00.000Z"
         );
+    }
+
+    #[test]
+    fn a_span_ends_in_the_segment_of_its_last_sample() {
+        // Two segments of 1 000 samples at 1 kS/s, the second recorded an hour later (SigMF
+        // captures with their own core:datetime).
+        let t0 = OffsetDateTime::parse("2026-05-01T08:00:00Z", &Rfc3339).unwrap();
+        let t1 = OffsetDateTime::parse("2026-05-01T09:00:00Z", &Rfc3339).unwrap();
+        let c = Clock { rate: 1e3, start: Some(t0), marks: vec![(0, t0), (1000, t1)] };
+        assert_eq!(c.stamp_end(1000).unwrap(), "2026-05-01T08:00:01.000Z");
+        assert_eq!(c.stamp(1000).unwrap(), "2026-05-01T09:00:00.000Z");
+        assert_eq!(c.stamp_end(1500).unwrap(), "2026-05-01T09:00:00.500Z");
+        assert_eq!(c.stamp_end(0).unwrap(), "2026-05-01T08:00:00.000Z");
     }
 }

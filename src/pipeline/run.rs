@@ -39,6 +39,16 @@ pub struct RunSpec {
 }
 
 impl RunSpec {
+    /// Refuses settings whose work per second of input has no sane bound (see
+    /// [`check_frame_rate`](crate::measure::occupancy::timing::check_frame_rate)).
+    pub fn check_work(&self) -> Result<()> {
+        crate::measure::occupancy::timing::check_frame_rate(
+            self.source.sample_rate_hz,
+            self.engine.hop(),
+        )
+        .map_err(anyhow::Error::msg)
+    }
+
     /// A spec without tracker, timed from the source's own start time.
     pub fn new(source: SourceInfo, engine: EngineConfig, threads: usize) -> RunSpec {
         let time_source =

@@ -95,14 +95,10 @@ impl Timing {
     }
 }
 
-/// FFT frames per measurement sample for a requested dwell: the nearest whole number of hops, or
-/// by default the most that fit in [`DEFAULT_MAX_DWELL_S`] (at least one).
-pub fn frames_per_sample(
-    sample_rate_hz: f64,
-    hop: usize,
-    requested_s: Option<f64>,
-) -> Result<u64, String> {
-    let hop_s = hop as f64 / sample_rate_hz;
+/// Refuses settings that ask for more than [`MAX_FRAMES_PER_S`] FFT frames per second of input:
+/// every command checks this before it runs, so a setting cannot make a second of input take
+/// minutes.
+pub fn check_frame_rate(sample_rate_hz: f64, hop: usize) -> Result<(), String> {
     let frames_per_s = sample_rate_hz / hop as f64;
     if frames_per_s.is_nan() || frames_per_s > MAX_FRAMES_PER_S {
         return Err(format!(
@@ -111,6 +107,19 @@ pub fn frames_per_sample(
             format_num(MAX_FRAMES_PER_S)
         ));
     }
+    Ok(())
+}
+
+/// FFT frames per measurement sample for a requested dwell: the nearest whole number of hops, or
+/// by default the most that fit in [`DEFAULT_MAX_DWELL_S`] (at least one).
+pub fn frames_per_sample(
+    sample_rate_hz: f64,
+    hop: usize,
+    requested_s: Option<f64>,
+) -> Result<u64, String> {
+    let hop_s = hop as f64 / sample_rate_hz;
+    check_frame_rate(sample_rate_hz, hop)?;
+    let frames_per_s = sample_rate_hz / hop as f64;
     let k = match requested_s {
         None => ((DEFAULT_MAX_DWELL_S / hop_s + 1e-9).floor()).max(1.0),
         Some(d) => {
