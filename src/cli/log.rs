@@ -3,6 +3,7 @@
 use super::common::{parse_seconds, ChannelArgs, ChannelConfig, DspArgs, InputArgs};
 use crate::dsp::DspConfig;
 use crate::output::log::LogFormat;
+use crate::output::rotation::{parse_rotate, Rotate};
 use crate::source::InputRequest;
 use crate::units::parse_duration;
 use anyhow::{bail, Result};
@@ -37,6 +38,10 @@ pub struct LogArgs {
     /// logging) blocks.
     #[arg(long)]
     pub no_drop: bool,
+    /// Start a new file every UTC day (daily), every hour (hourly) or when the file reaches a
+    /// size (e.g. 100M); the key goes before the extension of -o (site.2026-12-02.jsonl).
+    #[arg(long, value_name = "WHEN", value_parser = parse_rotate)]
+    pub rotate: Option<Rotate>,
     /// Stop after this many seconds of input.
     #[arg(long, value_name = "SECONDS", value_parser = parse_seconds)]
     pub seconds: Option<f64>,
@@ -58,6 +63,7 @@ pub struct LogConfig {
     pub format: LogFormat,
     pub no_drop: bool,
     pub seconds: Option<f64>,
+    pub rotate: Option<Rotate>,
 }
 
 impl LogArgs {
@@ -65,6 +71,9 @@ impl LogArgs {
         let channels = self.channels.validate()?;
         if channels.plan.is_empty() {
             bail!("log needs channels: give --plan FILE.toml or --channel NAME=CENTER:WIDTH");
+        }
+        if self.rotate.is_some() && self.out == "-" {
+            bail!("--rotate writes a series of files: give -o FILE (e.g. -o site.jsonl)");
         }
         if self.interval.is_zero() {
             bail!("--interval must be longer than zero (e.g. 60s)");
@@ -80,6 +89,7 @@ impl LogArgs {
             format: if self.csv { LogFormat::Csv } else { LogFormat::JsonLines },
             no_drop: self.no_drop,
             seconds: self.seconds,
+            rotate: self.rotate,
         })
     }
 }

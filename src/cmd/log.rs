@@ -16,6 +16,7 @@ use crate::messages::{note, notes};
 use crate::output::log::LogWriter;
 use crate::output::occupancy_log::OccupancyLog;
 use crate::output::progress::Progress;
+use crate::output::rotation::{Opener, Rotation};
 use crate::output::sink;
 use crate::pipeline::input::{live_block_len, FILE_BLOCK_LEN};
 use crate::pipeline::occupancy::{OccupancyRequest, OccupancySetup};
@@ -48,9 +49,21 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
         inputs.extend([path.into(), meta.into(), data.into()]);
     }
     sink::refuse_overwrite(&cfg.out, &inputs.iter().map(PathBuf::as_path).collect::<Vec<_>>())?;
-    let out = sink::open(&cfg.out, cfg.append, "log")?;
-    let writer = LogWriter::new(out.out, cfg.format, out.empty)
-        .with_context(|| format!("cannot write the log to '{}'", cfg.out))?;
+    let mut log = match cfg.rotate {
+        None => {
+            let out = sink::open(&cfg.out, cfg.append, "log")?;
+            let writer = LogWriter::new(out.out, cfg.format, out.empty)
+                .with_context(|| format!("cannot write the log to '{}'", cfg.out))?;
+            OccupancyLog::new(writer, plan, &setup)
+        }
+        Some(policy) => {
+            let open: Opener<Box<dyn std::io::Write>> = Box::new(|name: &str| {
+                let s = sink::open(name, true, "log").map_err(std::io::Error::other)?;
+                Ok((s.out, s.empty))
+            });
+            OccupancyLog::rotating(Rotation::new(policy, &cfg.out, cfg.format, open), plan, &setup)
+        }
+    };
     let mut spec = RunSpec::new(info.clone(), setup.engine.clone(), cfg.dsp.threads);
     spec.tracker = Some(setup.tracker());
     if cfg.input.start_time.is_some() {
@@ -72,7 +85,6 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
         (_, t) => t,
     };
     let mut progress = Progress::for_file(total, info.sample_rate_hz);
-    let mut log = OccupancyLog::new(writer, plan, &setup);
     let input = Input::start(src, opts);
     let run = Run::new(spec, vec![&mut progress, &mut log]);
     let outcome = run_input(input, run, Some(&signals))?;

@@ -66,13 +66,15 @@ pub struct LogWriter<W: Write> {
     out: W,
     format: LogFormat,
     line: String,
+    /// Bytes written so far (for rotation by size).
+    written: u64,
 }
 
 impl<W: Write> LogWriter<W> {
     /// Starts a log; a CSV log gets its header row unless `header` is false (appending to a file
     /// that already has one).
     pub fn new(out: W, format: LogFormat, header: bool) -> io::Result<LogWriter<W>> {
-        let mut w = LogWriter { out, format, line: String::new() };
+        let mut w = LogWriter { out, format, line: String::new(), written: 0 };
         if format == LogFormat::Csv && header {
             w.line = CSV_COLUMNS.join(",");
             w.line.push('\n');
@@ -98,7 +100,13 @@ impl<W: Write> LogWriter<W> {
         self.out
     }
 
+    /// Bytes this writer has written.
+    pub fn bytes_written(&self) -> u64 {
+        self.written
+    }
+
     fn emit(&mut self) -> io::Result<()> {
+        self.written += self.line.len() as u64;
         self.out.write_all(self.line.as_bytes())?;
         self.out.flush()
     }

@@ -6,6 +6,7 @@ pub mod log_records;
 pub mod occupancy_log;
 pub mod progress;
 pub mod report;
+pub mod rotation;
 pub mod samples;
 pub mod sink;
 pub mod whole;

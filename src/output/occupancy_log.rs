@@ -5,6 +5,7 @@ use super::log::{
     ChannelRecord, DroppedRecord, EmissionRecord, IntervalRecord, LogWriter, Record, StartRecord,
     StopRecord,
 };
+use super::rotation::Rotation;
 use crate::measure::occupancy::{Event, FLOOR_MEMORY_S, FLOOR_SMOOTHING_S, OBW_PERCENT};
 use crate::pipeline::clock::rfc3339_ms;
 use crate::pipeline::occupancy::OccupancySetup;
@@ -12,21 +13,66 @@ use crate::pipeline::{Consumer, GapCause, RunEnd, RunInfo};
 use crate::plan::Plan;
 use crate::units::db;
 use std::io::{self, Write};
+use time::OffsetDateTime;
 
-/// Writes the log of one run.
+/// Writes the log of one run, into one file or a rotated series ([`super::rotation`]).
 pub struct OccupancyLog<W: Write> {
-    writer: LogWriter<W>,
+    writer: Option<LogWriter<W>>,
+    rotation: Option<Rotation<W>>,
+    /// The `start` and `channel` records, which open every file of a rotated log.
+    headers: Vec<Record>,
     plan: Plan,
     setup: OccupancySetup,
 }
 
 impl<W: Write> OccupancyLog<W> {
     pub fn new(writer: LogWriter<W>, plan: &Plan, setup: &OccupancySetup) -> OccupancyLog<W> {
-        OccupancyLog { writer, plan: plan.clone(), setup: setup.clone() }
+        OccupancyLog {
+            writer: Some(writer),
+            rotation: None,
+            headers: Vec::new(),
+            plan: plan.clone(),
+            setup: setup.clone(),
+        }
     }
 
-    pub fn into_writer(self) -> W {
-        self.writer.into_inner()
+    /// A log whose files are opened by `rotation` as the run goes on.
+    pub fn rotating(rotation: Rotation<W>, plan: &Plan, setup: &OccupancySetup) -> OccupancyLog<W> {
+        OccupancyLog { rotation: Some(rotation), writer: None, ..OccupancyLog::blank(plan, setup) }
+    }
+
+    fn blank(plan: &Plan, setup: &OccupancySetup) -> OccupancyLog<W> {
+        OccupancyLog {
+            writer: None,
+            rotation: None,
+            headers: Vec::new(),
+            plan: plan.clone(),
+            setup: setup.clone(),
+        }
+    }
+
+    /// The writer of the (last) file.
+    pub fn into_writer(self) -> Option<W> {
+        self.writer.map(LogWriter::into_inner)
+    }
+
+    /// Writes a record whose first sample is `sample` (`None`: the closing record, which stays
+    /// in the open file), starting a new file first when the rotation says so.
+    fn emit(&mut self, record: &Record, sample: Option<u64>, run: &RunInfo) -> io::Result<()> {
+        if let (Some(rotation), Some(sample)) = (self.rotation.as_mut(), sample) {
+            let at = run.clock.time(sample).unwrap_or_else(OffsetDateTime::now_utc);
+            let written = self.writer.as_ref().map(LogWriter::bytes_written);
+            if let Some(mut next) = rotation.next_file(at, written)? {
+                for h in &self.headers {
+                    next.write(h)?;
+                }
+                self.writer = Some(next);
+            }
+        }
+        match self.writer.as_mut() {
+            Some(w) => w.write(record),
+            None => Err(io::Error::other("the log has no file open")),
+        }
     }
 
     fn start_record(&self, run: &RunInfo) -> StartRecord {
@@ -102,44 +148,67 @@ impl<W: Write> OccupancyLog<W> {
 
 impl<W: Write> Consumer for OccupancyLog<W> {
     fn start(&mut self, run: &RunInfo) -> io::Result<()> {
-        self.writer.write(&Record::Start(self.start_record(run)))?;
+        self.headers = vec![Record::Start(self.start_record(run))];
         for (c, def) in self.plan.channels.iter().zip(&self.setup.channels) {
-            self.writer.write(&Record::Channel(ChannelRecord {
+            self.headers.push(Record::Channel(ChannelRecord {
                 channel: c.name.clone(),
                 center_hz: c.center_hz,
                 width_hz: c.width_hz,
                 threshold_db: def.threshold_db,
-            }))?;
+            }));
         }
+        if self.rotation.is_some() {
+            // Opening the first file writes the headers.
+            let at = run.clock.time(0).unwrap_or_else(OffsetDateTime::now_utc);
+            let first = self.rotation.as_mut().map(|r| r.next_file(at, None)).transpose()?;
+            self.writer = first.flatten();
+            for h in &self.headers {
+                if let Some(w) = self.writer.as_mut() {
+                    w.write(h)?;
+                }
+            }
+            return Ok(());
+        }
+        let headers = std::mem::take(&mut self.headers);
+        for h in &headers {
+            self.emit(h, None, run)?;
+        }
+        self.headers = headers;
         Ok(())
     }
 
     fn event(&mut self, event: &Event, run: &RunInfo) -> io::Result<()> {
         let rec = self.record(event, run);
-        self.writer.write(&rec)
+        let first = match event {
+            Event::Interval(i) => i.start_sample,
+            Event::Emission(e) => e.start_sample,
+        };
+        self.emit(&rec, Some(first), run)
     }
 
     fn gap(&mut self, from: u64, to: u64, cause: GapCause, run: &RunInfo) -> io::Result<()> {
         let c = &run.clock;
-        self.writer.write(&Record::Dropped(DroppedRecord {
+        let rec = Record::Dropped(DroppedRecord {
             t_start_s: c.seconds(from),
             t_end_s: c.seconds(to),
             start: c.stamp(from),
             end: c.stamp_end(to),
             dropped_samples: to - from,
             cause: cause.as_str().into(),
-        }))
+        });
+        self.emit(&rec, Some(from), run)
     }
 
     fn finish(&mut self, end: &RunEnd, run: &RunInfo) -> io::Result<()> {
         let c = &run.clock;
-        self.writer.write(&Record::Stop(StopRecord {
+        let rec = Record::Stop(StopRecord {
             t_end_s: c.seconds(end.end_sample),
             end: c.stamp_end(end.end_sample),
             reason: end.reason.as_str().into(),
             iq_samples: end.end_sample,
             dropped_samples: end.dropped_samples,
-        }))
+        });
+        self.emit(&rec, None, run)
     }
 }
 
@@ -223,7 +292,7 @@ mod tests {
         run.lost_tail(600_000).unwrap();
         run.finish(StopReason::EndOfInput).unwrap();
         drop(run);
-        let recs = lines(log.into_writer());
+        let recs = lines(log.into_writer().unwrap());
         let kinds: Vec<&str> = recs.iter().map(|r| r["kind"].as_str().unwrap()).collect();
         assert_eq!(&kinds[..3], ["start", "channel", "channel"]);
         assert_eq!(*kinds.last().unwrap(), "stop");
@@ -275,7 +344,7 @@ mod tests {
         run.lost_tail(5 * per).unwrap();
         run.finish(StopReason::EndOfInput).unwrap();
         drop(run);
-        let recs = lines(log.into_writer());
+        let recs = lines(log.into_writer().unwrap());
         let busy: Vec<&Value> =
             recs.iter().filter(|r| r["kind"] == "interval" && r["channel"] == "busy").collect();
         let starts: Vec<f64> = busy.iter().map(|r| r["t_start_s"].as_f64().unwrap()).collect();
@@ -302,7 +371,7 @@ mod tests {
         let mut run = Run::new(spec(&setup, &info, None), vec![&mut log]);
         run.finish(StopReason::Interrupted).unwrap();
         drop(run);
-        let recs = lines(log.into_writer());
+        let recs = lines(log.into_writer().unwrap());
         let kinds: Vec<&str> = recs.iter().map(|r| r["kind"].as_str().unwrap()).collect();
         assert_eq!(kinds, ["start", "channel", "channel", "stop"]);
         assert_eq!(recs[0]["time_source"], "none");
