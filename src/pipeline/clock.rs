@@ -50,7 +50,12 @@ impl Clock {
 
     /// Time of sample `sample`, if known and within the range of dates.
     pub fn time(&self, sample: u64) -> Option<OffsetDateTime> {
-        let (at, t0) = match self.marks.iter().rev().find(|(at, _)| *at <= sample) {
+        self.time_in_segment_of(sample, sample)
+    }
+
+    /// The time of `sample` counted from the start of the segment that holds `anchor`.
+    fn time_in_segment_of(&self, anchor: u64, sample: u64) -> Option<OffsetDateTime> {
+        let (at, t0) = match self.marks.iter().rev().find(|(at, _)| *at <= anchor) {
             Some(&mark) => mark,
             None => (0, self.start?),
         };
@@ -68,13 +73,7 @@ impl Clock {
     /// belongs to: at a segment boundary the end of one segment is not the start of the next
     /// (their times may be hours apart).
     pub fn end_time(&self, end: u64) -> Option<OffsetDateTime> {
-        let Some(last) = end.checked_sub(1) else { return self.time(0) };
-        let (at, t0) = match self.marks.iter().rev().find(|(at, _)| *at <= last) {
-            Some(&mark) => mark,
-            None => (0, self.start?),
-        };
-        let ms = ((end - at) as f64 / self.rate * 1e3).round();
-        t0.checked_add(time::Duration::milliseconds(ms as i64))
+        self.time_in_segment_of(end.saturating_sub(1), end)
     }
 
     /// [`Clock::end_time`] in RFC 3339 UTC with milliseconds.
