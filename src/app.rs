@@ -13,6 +13,22 @@ use std::io::Write;
 use std::process::ExitCode;
 
 pub fn main_with_args(args: impl IntoIterator<Item = OsString>) -> ExitCode {
+    ExitCode::from(exit_code(args))
+}
+
+/// What the binary's `main` does before anything else. It is not started by the standard
+/// library's runtime (see `src/main.rs`), which would put `/dev/null` on a closed standard
+/// output, so that a report written there would vanish with exit 0; and it ignores SIGPIPE as
+/// that runtime does, so a reader that goes away is an error (EPIPE) the program handles, not
+/// a kill.
+pub fn start_process() {
+    mark_start();
+    // SAFETY: the action does nothing, which is async-signal-safe.
+    let _ = unsafe { signal_hook::low_level::register(signal_hook::consts::SIGPIPE, || {}) };
+}
+
+/// Runs the command line and returns the process's exit status (see the module docs).
+pub fn exit_code(args: impl IntoIterator<Item = OsString>) -> u8 {
     mark_start();
     let cli = match Cli::try_parse_from(args) {
         Ok(cli) => cli,
@@ -24,17 +40,18 @@ pub fn main_with_args(args: impl IntoIterator<Item = OsString>) -> ExitCode {
             } else {
                 std::io::stdout().write_all(text.as_bytes())
             };
-            return ExitCode::from(if e.use_stderr() { 2 } else { 0 });
+            return if e.use_stderr() { 2 } else { 0 };
         }
     };
     match run(cli) {
-        Ok(code) => code,
+        // Every command ends with success when it returns Ok.
+        Ok(_) => 0,
         Err(err) => {
             if is_broken_pipe(&err) {
-                return ExitCode::SUCCESS;
+                return 0;
             }
             eprintln!("bandwarden: {}", sanitize_message(&format!("{err:#}")));
-            ExitCode::from(1)
+            1
         }
     }
 }

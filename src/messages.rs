@@ -14,28 +14,23 @@ pub static STARTED: OnceLock<Instant> = OnceLock::new();
 static STDOUT_CLOSED: OnceLock<bool> = OnceLock::new();
 
 /// Records the start of the process (the first call wins), and whether standard output was
-/// closed (`>&-`) when it started.
+/// closed (`>&-`) when it started. A closed descriptor 1 would be taken by the next file the
+/// process opens; it is held on `/dev/null` instead, and remembered, so nothing is written to a
+/// file by mistake and output meant for stdout is refused with a clear word.
 pub fn mark_start() -> Instant {
-    STDOUT_CLOSED.get_or_init(stdout_was_closed);
+    STDOUT_CLOSED.get_or_init(|| {
+        use std::os::fd::{AsFd, AsRawFd, IntoRawFd};
+        let closed = std::io::stdout().as_fd().try_clone_to_owned().is_err();
+        if closed {
+            if let Ok(null) = std::fs::OpenOptions::new().write(true).open("/dev/null") {
+                if null.as_raw_fd() == 1 {
+                    let _ = null.into_raw_fd();
+                }
+            }
+        }
+        closed
+    });
     *STARTED.get_or_init(Instant::now)
-}
-
-/// The Rust runtime puts `/dev/null` on a standard descriptor that is closed at start-up, so
-/// writes to a closed stdout would vanish without an error. It opens it read-write, where a
-/// shell's `> /dev/null` opens it write-only: Linux shows both in `/proc/self/fdinfo`. Elsewhere
-/// (no `/proc`) stdout is taken to be open.
-fn stdout_was_closed() -> bool {
-    let Ok(target) = std::fs::read_link("/proc/self/fd/1") else { return false };
-    if target != std::path::Path::new("/dev/null") {
-        return false;
-    }
-    let Ok(info) = std::fs::read_to_string("/proc/self/fdinfo/1") else { return false };
-    let flags = info
-        .lines()
-        .find_map(|l| l.strip_prefix("flags:"))
-        .and_then(|f| u32::from_str_radix(f.trim(), 8).ok());
-    // O_ACCMODE = 3, O_RDWR = 2 (Linux, asm-generic/fcntl.h).
-    flags.is_some_and(|f| f & 3 == 2)
 }
 
 /// True when standard output was closed at start-up: whatever is written there is lost.
