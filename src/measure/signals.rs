@@ -1,32 +1,76 @@
-//! Finding the signals in a spectrum: runs of bins standing clear of the noise floor.
+//! Finding the signals in a spectrum: runs of bins standing clear of the noise floor, split into
+//! one signal per resolvable peak.
 //!
-//! A run of bins above an *edge* threshold is one signal (small gaps are bridged so one FM
-//! emission with its sidebands is not split); it is reported if its strongest bin clears a
-//! *detection* threshold. Both thresholds come from the χ² statistics of the PSD (see
-//! [`super::stats`]): the detection threshold makes a false detection in a noise-only spectrum
-//! unlikely (1 % per spectrum), and neither is lower than a few dB, so ripple is not a signal.
+//! **Runs.** A run of bins above an *edge* threshold (the 99 % point of the noise-only χ²
+//! distribution, and at least 3 dB) gathers one or more signals; small gaps are bridged so one FM
+//! emission with its sidebands is one run. The spectrum is treated as a circle (bin 0 follows the
+//! last bin, as in the DFT itself), so a tone at either end of the span leaks into the other end
+//! without making a phantom there.
 //!
-//! For each signal we report the level of a sinusoid at its peak (scalloping-corrected with the
-//! window's own response), its SNR against the noise in one RBW, its total power, and its occupied
-//! bandwidth (ITU-R SM.328, 99 %) over the run widened by the window's main lobe.
+//! **Detection.** A peak counts if its bin exceeds the *detection* threshold: an averaged PSD bin of
+//! noise alone with density μ and ν = `spec.dof` degrees of freedom is distributed as `μ·χ²_ν/ν`
+//! (Gamma with shape ν/2, see [`super::stats`]), and the threshold is its `1 − p_fa` quantile, so
+//! each bin of noise crosses it with probability `p_fa` ([`Detection::false_alarm_per_bin`],
+//! 10⁻⁶ by default: about one false signal per 250 spectra of 4096 bins). The threshold falls as
+//! averages pile up: after 2000 averages a tone 3 dB above the noise in one RBW is found.
+//!
+//! **Resolution.** Inside a run, every local maximum above the detection threshold is a candidate;
+//! the strongest is a signal, and each weaker candidate becomes a signal of its own when, against
+//! every signal already kept in the run,
+//! - the lowest bin between them (the valley) is at least [`VALLEY_DB`] below both maxima, and
+//!   deeper than noise alone can dig (the ratio of the 1 − 10⁻⁴ and 10⁻⁴ points of the bin's χ²
+//!   distribution), and
+//! - it stands [`VALLEY_DB`] above the stronger signal's leakage at that distance (the envelope of
+//!   the window's own response), so a side lobe is never a signal.
+//!
+//! The run is then cut at the valleys. Two equal tones resolve once they are further apart than the
+//! window's 6-dB bandwidth (Harris 1978); at three RBW apart they are split by every window we
+//! offer, given enough averages for the valley test.
+//!
+//! **Measurements.** For each signal we report the level of a sinusoid at its peak
+//! (scalloping-corrected with the window's own response) and its SNR against the noise in one RBW,
+//! both *noise-corrected*: the expected noise in the peak bins (floor·RBW) is subtracted first, so a
+//! true 6 dB SNR reads 6 dB and not 7 dB. Total power is integrated over the signal's bins
+//! (widened by the window's main lobe where no neighbour is) less the noise in that band, and the
+//! occupied bandwidth is ITU-R SM.328's 99 % of those bins less the noise floor. A signal wider than [`WIDE_RBW`] RBW reports as its
+//! frequency the middle of its occupied band rather than its highest bin.
 
-use super::band::{band_power, occupied_bandwidth, Edges};
+use super::band::{occupied_bandwidth_of, BinRun, Edges};
 use super::stats::gamma_quantile_unit_mean;
 use crate::dsp::{Spectrum, Window};
 use crate::units::db;
 
+/// How far (dB) a valley must lie below both neighbouring maxima, and a weaker peak above the
+/// stronger one's leakage, for the two to be separate signals.
+///
+/// Chosen from the window response: two equal tones `s` bins apart add (in power, their phases
+/// wandering over the average) to `2·|W(s/2)|²` at the midpoint, so a 6 dB valley means
+/// `|W(s/2)| ≤ 0.35` (−9 dB): each main lobe has fallen past its 6-dB point (half amplitude) before
+/// it reaches the other tone, i.e. the tones are further apart than the window's 6-dB bandwidth,
+/// Harris's (1978) criterion for resolving two equal tones. Any less and a flat top of one wide
+/// signal, or one tone's main lobe, would be split.
+pub const VALLEY_DB: f64 = 6.0;
+
+/// A signal whose occupied bandwidth exceeds this many RBW is *wideband*: its frequency is the
+/// middle of its occupied band (the highest bin of band-limited noise is wherever the noise put it).
+pub const WIDE_RBW: f64 = 4.0;
+
+/// Default false-alarm probability per bin of noise alone.
+pub const DEFAULT_FALSE_ALARM: f64 = 1e-6;
+
 /// One detected signal.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Signal {
-    /// Interpolated frequency of the peak, absolute Hz.
+    /// Frequency, absolute Hz: the interpolated peak of a narrow signal, the middle of the occupied
+    /// band of a wideband one (wider than [`WIDE_RBW`] RBW).
     pub freq_hz: f64,
-    /// Power of a sinusoid at the peak, dBFS (scalloping-corrected).
+    /// Power of a sinusoid at the peak, dBFS (scalloping- and noise-corrected).
     pub level_dbfs: f64,
-    /// `level` over the noise power in one RBW, dB.
+    /// `level` over the noise power in one RBW, dB (noise-corrected).
     pub snr_db: f64,
-    /// Total power of the run of bins, dBFS.
+    /// Integrated power of the signal's bins less the noise in them, dBFS.
     pub power_dbfs: f64,
-    /// 99 % occupied bandwidth of the run.
+    /// 99 % occupied bandwidth of the signal's bins, less the noise floor.
     pub obw: Edges,
     /// Bin of the peak (fftshift order).
     pub peak_bin: usize,
@@ -35,15 +79,18 @@ pub struct Signal {
 /// Settings for [`find_signals`].
 #[derive(Clone, Copy, Debug)]
 pub struct Detection {
-    /// Lowest peak SNR (dB over the noise density at the peak bin) that counts.
+    /// SNR (dB over the noise density at a bin) at which a cursor reading is called clear of the
+    /// noise. The detector's own threshold comes from `false_alarm_per_bin`.
     pub min_snr_db: f64,
     /// Percentage for the occupied bandwidth.
     pub obw_percent: f64,
+    /// Probability that one bin of noise alone crosses the detection threshold.
+    pub false_alarm_per_bin: f64,
 }
 
 impl Default for Detection {
     fn default() -> Self {
-        Detection { min_snr_db: 6.0, obw_percent: 99.0 }
+        Detection { min_snr_db: 6.0, obw_percent: 99.0, false_alarm_per_bin: DEFAULT_FALSE_ALARM }
     }
 }
 
@@ -62,15 +109,27 @@ pub fn find_signals(
     }
     let a = (spec.dof / 2.0).max(0.5);
     let edge = floor * gamma_quantile_unit_mean(0.99, a).max(2.0);
-    let detect = floor
-        * gamma_quantile_unit_mean(1.0 - 0.01 / n as f64, a).max(10f64.powf(det.min_snr_db / 10.0));
+    let p_fa = det.false_alarm_per_bin.clamp(1e-12, 0.5);
+    let detect = floor * gamma_quantile_unit_mean(1.0 - p_fa, a);
+    // Noise alone: a bin this many times below a neighbour happens about once in 10⁸ pairs.
+    let noise_dip = gamma_quantile_unit_mean(1.0 - 1e-4, a) / gamma_quantile_unit_mean(1e-4, a);
+    let split = Split { valley: 10f64.powf(VALLEY_DB / 10.0).max(noise_dip), lobe: VALLEY_DB };
     let gap = (2.0 * spec.enbw_bins).ceil() as usize;
-    let widen = spec.enbw_bins.ceil();
+    let widen = spec.enbw_bins.ceil() as i64;
+    let psd = |i: i64| spec.psd[i.rem_euclid(n as i64) as usize];
+
+    // Start the circular scan where `gap + 1` bins lie below the edge (or at least one does), so
+    // that no run is cut by the start of the scan.
+    let origin = (0..n)
+        .find(|&i| (0..=gap).all(|k| spec.psd[(i + k) % n] <= edge))
+        .or_else(|| (0..n).find(|&i| spec.psd[i] <= edge))
+        .unwrap_or(0) as i64;
+    let stop = origin + n as i64;
 
     let mut found = Vec::new();
-    let mut i = 0;
-    while i < n {
-        if spec.psd[i] <= edge {
+    let mut i = origin;
+    while i < stop {
+        if psd(i) <= edge {
             i += 1;
             continue;
         }
@@ -78,53 +137,116 @@ pub fn find_signals(
         let start = i;
         let mut end = i;
         let mut j = i + 1;
-        while j < n && j <= end + gap + 1 {
-            if spec.psd[j] > edge {
+        while j < stop && j <= end + gap as i64 + 1 {
+            if psd(j) > edge {
                 end = j;
             }
             j += 1;
         }
         i = end + 1;
-        let peak = (start..=end).max_by(|&x, &y| spec.psd[x].total_cmp(&spec.psd[y])).unwrap();
-        if spec.psd[peak] <= detect {
-            continue;
+        let peaks = resolve(&psd, window, start, end, detect, split);
+        for (k, &peak) in peaks.iter().enumerate() {
+            // Cut at the lowest bin between neighbouring peaks (the valley goes to the left one);
+            // widen by the main lobe only at the run's own ends.
+            let valley = |x: i64, y: i64| (x..=y).min_by(|&p, &q| psd(p).total_cmp(&psd(q)));
+            let lo = match k {
+                0 => start - widen,
+                _ => valley(peaks[k - 1], peak).unwrap() + 1,
+            };
+            let hi = match peaks.get(k + 1) {
+                None => end + widen,
+                Some(&next) => valley(peak, next).unwrap(),
+            };
+            let hi = hi.min(lo + n as i64 - 1);
+            found.push(describe(spec, window, floor, (lo, hi), peak, det.obw_percent));
         }
-        found.push(describe(spec, window, floor, start, end, peak, widen, det.obw_percent));
     }
     found.sort_by(|a, b| b.level_dbfs.total_cmp(&a.level_dbfs));
     found.truncate(max);
     found
 }
 
-#[allow(clippy::too_many_arguments)]
+/// Power ratios for splitting a run: `valley` (linear) below both maxima, `lobe` dB above leakage.
+#[derive(Clone, Copy)]
+struct Split {
+    valley: f64,
+    lobe: f64,
+}
+
+/// The resolvable peaks of the run `start..=end` (unwrapped bin indices), in bin order.
+fn resolve(
+    psd: &impl Fn(i64) -> f64,
+    window: &Window,
+    start: i64,
+    end: i64,
+    detect: f64,
+    split: Split,
+) -> Vec<i64> {
+    let mut candidates: Vec<i64> = (start..=end)
+        .filter(|&i| psd(i) > detect && psd(i) >= psd(i - 1) && psd(i) > psd(i + 1))
+        .collect();
+    candidates.sort_by(|&x, &y| psd(y).total_cmp(&psd(x)));
+    let mut kept: Vec<i64> = Vec::new();
+    for c in candidates {
+        let stands = kept.iter().all(|&k| {
+            let (lo, hi) = (c.min(k), c.max(k));
+            let dip = (lo..=hi).map(psd).fold(f64::INFINITY, f64::min);
+            psd(c) >= split.valley * dip
+                && db(psd(c) / psd(k)) >= leakage_db(window, (c - k).abs() as f64) + split.lobe
+        });
+        if stands || kept.is_empty() {
+            kept.push(c);
+        }
+    }
+    kept.sort_unstable();
+    kept
+}
+
+/// The envelope of the window's power response `d` bins from a tone, dB: the highest response
+/// within half a bin of `d`, since the tone may sit anywhere within its bin.
+fn leakage_db(window: &Window, d: f64) -> f64 {
+    let worst = [-0.5, -0.25, 0.0, 0.25, 0.5]
+        .iter()
+        .map(|o| window.response((d + o).max(0.0)))
+        .fold(0.0f64, f64::max);
+    20.0 * worst.max(1e-12).log10()
+}
+
+/// Measures the signal on the unwrapped bins `lo..=hi` with its peak at `peak`.
 fn describe(
     spec: &Spectrum,
     window: &Window,
     floor: f64,
-    start: usize,
-    end: usize,
-    peak: usize,
-    widen: f64,
+    (lo, hi): (i64, i64),
+    peak: i64,
     obw_percent: f64,
 ) -> Signal {
-    let n = spec.fft_size;
-    let (pm, pp) = (
-        if peak > 0 { spec.psd[peak - 1] } else { 0.0 },
-        if peak + 1 < n { spec.psd[peak + 1] } else { 0.0 },
-    );
-    let (delta, gain) = window.tone_offset(pm, spec.psd[peak], pp);
-    let tone = spec.tone_power(peak) / gain.max(1e-12);
-    let lo = spec.freq_of_bin(start as f64 - 0.5 - widen);
-    let hi = spec.freq_of_bin(end as f64 + 0.5 + widen);
+    let n = spec.fft_size as i64;
+    // Shift the whole segment so that its peak lies inside the span.
+    let shift = peak - peak.rem_euclid(n);
+    let (lo, hi, peak) = (lo - shift, hi - shift, peak - shift);
+    let psd = |i: i64| spec.psd[i.rem_euclid(n) as usize];
+    let clean = |i: i64| (psd(i) - floor).max(0.0);
+    let (delta, gain) = window.tone_offset(clean(peak - 1), clean(peak), clean(peak + 1));
+    let tone = (clean(peak) * spec.rbw_hz / gain.max(1e-12)).max(f64::MIN_POSITIVE);
+    let (lo_hz, hi_hz) = (spec.freq_of_bin(lo as f64 - 0.5), spec.freq_of_bin(hi as f64 + 0.5));
+    let raw: f64 = (lo..=hi).map(psd).sum::<f64>() * spec.bin_hz();
+    let power = (raw - floor * (hi_hz - lo_hz)).max(raw * 1e-6);
+    // The occupied bandwidth is that of the signal, not of the noise around it.
+    let bins: Vec<f64> = (lo..=hi).map(clean).collect();
+    let run =
+        BinRun { psd: &bins, center_hz: spec.center_hz, first: lo - n / 2, bin_hz: spec.bin_hz() };
     let centre = spec.freq_of_bin(peak as f64 + delta);
+    let obw = occupied_bandwidth_of(run, lo_hz, hi_hz, obw_percent)
+        .unwrap_or(Edges { low_hz: centre, high_hz: centre });
+    let wide = obw.width_hz() > WIDE_RBW * spec.rbw_hz;
     Signal {
-        freq_hz: centre,
+        freq_hz: if wide { 0.5 * (obw.low_hz + obw.high_hz) } else { centre },
         level_dbfs: db(tone),
         snr_db: db(tone / (floor * spec.rbw_hz)),
-        power_dbfs: db(band_power(spec, lo, hi)),
-        obw: occupied_bandwidth(spec, lo, hi, obw_percent)
-            .unwrap_or(Edges { low_hz: centre, high_hz: centre }),
-        peak_bin: peak,
+        power_dbfs: db(power),
+        obw,
+        peak_bin: peak as usize,
     }
 }
 

@@ -145,4 +145,13 @@ mod tests {
         let expect = 1.0 - t * (-t).exp() / (1.0 - (-t).exp());
         assert!((truncated_mean_unit(1.0, t) - expect).abs() < 1e-12);
     }
+
+    #[test]
+    fn chi2_upper_points_used_for_detection() {
+        // χ²₂/2 is Exp(1): its 1 − 10⁻⁶ point is ln 10⁶ (closed form). χ²₈'s upper 0.1 % point is
+        // 26.12 (standard χ² tables, e.g. scipy.stats.chi2.isf(1e-3, 8); from memory).
+        assert!((gamma_quantile_unit_mean(1.0 - 1e-6, 1.0) - 1e6f64.ln()).abs() < 1e-6);
+        let q = gamma_quantile_unit_mean(1.0 - 1e-3, 4.0) * 8.0;
+        assert!((q - 26.12).abs() < 0.01, "{q}");
+    }
 }
