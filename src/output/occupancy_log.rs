@@ -27,24 +27,22 @@ pub struct OccupancyLog<W: Write> {
 
 impl<W: Write> OccupancyLog<W> {
     pub fn new(writer: LogWriter<W>, plan: &Plan, setup: &OccupancySetup) -> OccupancyLog<W> {
-        OccupancyLog {
-            writer: Some(writer),
-            rotation: None,
-            headers: Vec::new(),
-            plan: plan.clone(),
-            setup: setup.clone(),
-        }
+        OccupancyLog { writer: Some(writer), ..OccupancyLog::unopened(None, plan, setup) }
     }
 
     /// A log whose files are opened by `rotation` as the run goes on.
     pub fn rotating(rotation: Rotation<W>, plan: &Plan, setup: &OccupancySetup) -> OccupancyLog<W> {
-        OccupancyLog { rotation: Some(rotation), writer: None, ..OccupancyLog::blank(plan, setup) }
+        OccupancyLog::unopened(Some(rotation), plan, setup)
     }
 
-    fn blank(plan: &Plan, setup: &OccupancySetup) -> OccupancyLog<W> {
+    fn unopened(
+        rotation: Option<Rotation<W>>,
+        plan: &Plan,
+        setup: &OccupancySetup,
+    ) -> OccupancyLog<W> {
         OccupancyLog {
             writer: None,
-            rotation: None,
+            rotation,
             headers: Vec::new(),
             plan: plan.clone(),
             setup: setup.clone(),
@@ -59,20 +57,28 @@ impl<W: Write> OccupancyLog<W> {
     /// Writes a record whose first sample is `sample` (`None`: the closing record, which stays
     /// in the open file), starting a new file first when the rotation says so.
     fn emit(&mut self, record: &Record, sample: Option<u64>, run: &RunInfo) -> io::Result<()> {
-        if let (Some(rotation), Some(sample)) = (self.rotation.as_mut(), sample) {
-            let at = run.clock.time(sample).unwrap_or_else(OffsetDateTime::now_utc);
-            let written = self.writer.as_ref().map(LogWriter::bytes_written);
-            if let Some(mut next) = rotation.next_file(at, written)? {
-                for h in &self.headers {
-                    next.write(h)?;
-                }
-                self.writer = Some(next);
-            }
+        if let Some(sample) = sample {
+            self.rotate_if_due(sample, run)?;
         }
         match self.writer.as_mut() {
             Some(w) => w.write(record),
             None => Err(io::Error::other("the log has no file open")),
         }
+    }
+
+    /// Opens the next file of a rotated log, headers first, when a record at `sample` is due
+    /// in one (the first call always opens one).
+    fn rotate_if_due(&mut self, sample: u64, run: &RunInfo) -> io::Result<()> {
+        let Some(rotation) = self.rotation.as_mut() else { return Ok(()) };
+        let at = run.clock.time(sample).unwrap_or_else(OffsetDateTime::now_utc);
+        let written = self.writer.as_ref().map(LogWriter::bytes_written);
+        if let Some(mut next) = rotation.next_file(at, written)? {
+            for h in &self.headers {
+                next.write(h)?;
+            }
+            self.writer = Some(next);
+        }
+        Ok(())
     }
 
     fn start_record(&self, run: &RunInfo) -> StartRecord {
@@ -159,21 +165,13 @@ impl<W: Write> Consumer for OccupancyLog<W> {
         }
         if self.rotation.is_some() {
             // Opening the first file writes the headers.
-            let at = run.clock.time(0).unwrap_or_else(OffsetDateTime::now_utc);
-            let first = self.rotation.as_mut().map(|r| r.next_file(at, None)).transpose()?;
-            self.writer = first.flatten();
-            for h in &self.headers {
-                if let Some(w) = self.writer.as_mut() {
-                    w.write(h)?;
-                }
+            return self.rotate_if_due(0, run);
+        }
+        for h in &self.headers {
+            if let Some(w) = self.writer.as_mut() {
+                w.write(h)?;
             }
-            return Ok(());
         }
-        let headers = std::mem::take(&mut self.headers);
-        for h in &headers {
-            self.emit(h, None, run)?;
-        }
-        self.headers = headers;
         Ok(())
     }
 
