@@ -30,7 +30,9 @@ pub struct WavSource {
 }
 
 fn open_reader(path: &str) -> Result<WavReader<BufReader<File>>> {
-    WavReader::open(path).with_context(|| format!("cannot read '{}' as a WAV file", sanitize(path)))
+    WavReader::open(path).with_context(|| {
+        format!("cannot read '{}' as a WAV file; check it is a whole 2-channel WAV file (a cut or foreign header cannot be read)", sanitize(path))
+    })
 }
 
 pub fn open(
