@@ -1,6 +1,7 @@
 //! `watch` flags and their validation.
 
 use super::common::{parse_db, parse_number, DspArgs, InputArgs, PlanArgs};
+use super::sigmf_out::RecordArgs;
 use crate::pipeline::latest::RowSettings;
 use crate::plan::Plan;
 use crate::source::InputRequest;
@@ -47,6 +48,8 @@ pub struct WatchArgs {
     /// Leave the mouse to the terminal (e.g. for selecting text) instead of placing markers.
     #[arg(long)]
     pub no_mouse: bool,
+    #[command(flatten)]
+    pub record: RecordArgs,
 }
 
 /// Slowest and fastest playback of a file: a thousandth of the recorded rate is already a slide
@@ -87,6 +90,8 @@ pub struct WatchConfig {
     pub colour: ColourChoice,
     pub scroll_region: bool,
     pub mouse: bool,
+    /// `--record`: the input teed to this SigMF recording.
+    pub record: Option<String>,
 }
 
 impl WatchArgs {
@@ -124,6 +129,7 @@ impl WatchArgs {
             colour: self.colour,
             scroll_region: !self.no_scroll_region,
             mouse: !self.no_mouse,
+            record: self.record.validate()?,
         })
     }
 }

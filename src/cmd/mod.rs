@@ -4,4 +4,5 @@
 pub mod demo;
 pub mod log;
 pub mod measure;
+pub mod sigmf_out;
 pub mod watch;

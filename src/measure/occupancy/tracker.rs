@@ -7,7 +7,8 @@
 //! measured on that buffer in place.
 
 use super::{
-    read_channel, ChannelDef, EmissionSummary, Event, IntervalSummary, Timing, OBW_PERCENT,
+    read_channel, ChannelDef, EmissionStart, EmissionSummary, Event, IntervalSummary, Timing,
+    OBW_PERCENT,
 };
 use crate::dsp::Spectrum;
 use crate::measure::band::{occupied_bandwidth_of, BinRun};
@@ -115,6 +116,10 @@ impl Occupancy {
             if r.occupied {
                 if ch.open.is_none() {
                     ch.psd_sum.iter_mut().for_each(|s| *s = 0.0);
+                    out.push(Event::Opened(EmissionStart {
+                        channel: index,
+                        start_sample: row_start,
+                    }));
                 }
                 let e = ch.open.get_or_insert(OpenEmission {
                     start: row_start,
@@ -240,13 +245,12 @@ fn summarise(
 ) -> EmissionSummary {
     let n = e.rows.max(1) as f64;
     let floor = e.floor_sum / n;
-    let obw_hz = grid.and_then(|grid| {
+    let obw = grid.and_then(|grid| {
         for s in ch.psd_sum.iter_mut() {
             *s = (*s / n - floor).max(0.0);
         }
         let run = BinRun { psd: &ch.psd_sum, first: grid.first + ch.bins.0 as i64, ..grid };
         occupied_bandwidth_of(run, ch.def.low_hz, ch.def.high_hz, OBW_PERCENT)
-            .map(|edges| edges.width_hz())
     });
     EmissionSummary {
         channel: index,
@@ -255,7 +259,9 @@ fn summarise(
         samples: e.rows,
         mean_power: e.power_sum / n,
         peak_power: e.peak,
-        obw_hz,
+        obw_hz: obw.map(|edges| edges.width_hz()),
+        obw,
+        noise_power: floor * ch.def.width_hz(),
         partial,
     }
 }
