@@ -13,8 +13,8 @@
 //! segment starts where samples are missing: dropped by a live source the DSP could not keep up
 //! with, or dropped by the recorder because the disk could not keep up; also where the input's
 //! own segments start (a SigMF input with several captures). Such a segment says how many samples
-//! are missing before it and why (`bandwarden:lost_before`, `bandwarden:lost_cause`: `behind` or
-//! `recorder_behind`), and the global object totals them.
+//! are missing before it and why (`bandwarden:lost_before`, `bandwarden:lost_cause`: `behind`,
+//! `recorder_behind` or `behind_and_recorder_behind`), and the global object totals them.
 //!
 //! **Never blocking the DSP.** Samples go to a writer thread over a bounded queue (about a second
 //! of samples, at most [`QUEUE_BYTES`]). Live input: when that queue is full the block is left
@@ -173,13 +173,21 @@ impl Recorder {
         } else {
             // The disk is behind: these samples are not recorded, and the next segment says so.
             self.expected = None;
-            self.lost_pending.0 += samples.len() as u64;
-            self.lost_pending.1 = Some("recorder_behind");
+            self.lost(samples.len() as u64, "recorder_behind");
             if let Ok(mut s) = self.status.lock() {
                 s.lost_recorder += samples.len() as u64;
             }
         }
         Ok(())
+    }
+
+    /// Notes `n` samples missing before the next segment; both causes may meet in one gap.
+    fn lost(&mut self, n: u64, cause: &'static str) {
+        self.lost_pending.0 += n;
+        self.lost_pending.1 = match self.lost_pending.1 {
+            Some(c) if c != cause => Some("behind_and_recorder_behind"),
+            _ => Some(cause),
+        };
     }
 
     fn writer_error(&self) -> io::Error {
@@ -254,8 +262,7 @@ impl Consumer for Recorder {
     fn gap(&mut self, from: u64, to: u64, cause: GapCause, _run: &RunInfo) -> io::Result<()> {
         // Samples that are not numbers were in the block and are recorded as they came.
         if cause == GapCause::Behind {
-            self.lost_pending.0 += to - from;
-            self.lost_pending.1 = Some(cause.as_str());
+            self.lost(to - from, cause.as_str());
             if let Ok(mut s) = self.status.lock() {
                 s.lost_behind += to - from;
             }
