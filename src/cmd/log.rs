@@ -77,6 +77,7 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
     let max_samples = cfg.seconds.map(|s| (s * info.sample_rate_hz).round() as u64);
     let block_len = if info.live { live_block_len(info.sample_rate_hz) } else { FILE_BLOCK_LEN };
     let request = SigmfRequest {
+        wait: cfg.no_drop,
         record: cfg.record.as_deref(),
         annotate: cfg.annotate.as_deref(),
         capture: cfg.capture.as_ref(),

@@ -25,6 +25,8 @@ pub struct SigmfOutputs {
 
 /// What the user asked for.
 pub struct SigmfRequest<'a> {
+    /// `--no-drop`: writers wait for the disk, as the reader waits for the processing.
+    pub wait: bool,
     pub record: Option<&'a str>,
     pub annotate: Option<&'a str>,
     pub capture: Option<&'a CaptureConfig>,
@@ -45,7 +47,7 @@ impl SigmfOutputs {
         let refs: Vec<&Path> = inputs.iter().map(PathBuf::as_path).collect();
         let mut out = SigmfOutputs::default();
         if let Some(r) = req.record {
-            out.recorder = Some(recorder(r, input, info, block_len)?);
+            out.recorder = Some(recorder(r, input, info, block_len)?.waiting(req.wait));
         }
         if let Some(a) = req.annotate {
             let dataset = match out.recorder.as_ref() {
@@ -64,7 +66,8 @@ impl SigmfOutputs {
             out.annotations = Some(LogAnnotations::new(writer, plan));
         }
         if let Some(c) = req.capture {
-            out.captures = Some(Captures::new(c.clone(), plan, info.format, block_len, side)?);
+            let captures = Captures::new(c.clone(), plan, info.format, block_len, side)?;
+            out.captures = Some(captures.waiting(req.wait));
         }
         Ok(out)
     }

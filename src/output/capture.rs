@@ -20,7 +20,8 @@
 //! **Never blocking the DSP.** Files are written by their own thread. With live input a capture
 //! whose samples find the writer's queue full is given up (its partial file deleted) and logged
 //! as skipped (`cause: "disk_behind"`): a capture is lost, never an input sample. File input is
-//! never dropped anywhere in bandwarden, so there the DSP waits for the disk instead.
+//! never dropped anywhere in bandwarden, so there the DSP waits for the disk instead; so it does
+//! under `--no-drop`.
 
 use super::annotate::{annotation, note_of};
 use super::capture_writer::{self, Job, Ring, WriterError};
@@ -98,6 +99,8 @@ pub struct Captures {
     post_n: u64,
     max_n: u64,
     live: bool,
+    /// Wait for the disk even with live input (`--no-drop`).
+    wait: bool,
     clock: Option<Clock>,
     center_hz: f64,
     rate: f64,
@@ -142,6 +145,7 @@ impl Captures {
             post_n: 0,
             max_n: 0,
             live: false,
+            wait: false,
             clock: None,
             center_hz: 0.0,
             rate: 1.0,
@@ -152,6 +156,12 @@ impl Captures {
             thread: None,
             counts: CaptureCounts::default(),
         })
+    }
+
+    /// Makes captures wait for the disk with live input too (`--no-drop`).
+    pub fn waiting(mut self, wait: bool) -> Captures {
+        self.wait = wait;
+        self
     }
 
     fn failed(&self) -> Option<String> {
@@ -353,7 +363,7 @@ impl Consumer for Captures {
         self.rate = src.sample_rate_hz;
         self.center_hz = src.center_hz;
         self.label = src.label.clone();
-        self.live = src.live;
+        self.live = src.live && !self.wait;
         self.clock = Some(run.clock.clone());
         let n = |s: f64| (s * self.rate).ceil() as u64;
         (self.pre_n, self.post_n, self.max_n) =

@@ -20,7 +20,7 @@
 //! of samples, at most [`QUEUE_BYTES`]). Live input: when that queue is full the block is left
 //! out of the recording, counted, and the next block starts a new segment, so the loss is
 //! written down, never silent. File input is never dropped anywhere in bandwarden, so there the
-//! DSP waits for the disk. A write error (full disk) ends the run with one clear line.
+//! DSP waits for the disk; so it does under `--no-drop`, where the reader waits too. A write error (full disk) ends the run with one clear line.
 //!
 //! The meta file is rewritten (whole, through a rename) at the start, at each new segment and at
 //! the end, so a recording cut by a crash is still a valid SigMF pair up to its last write.
@@ -83,6 +83,8 @@ pub struct Recorder {
     source_segments: Vec<(u64, f64)>,
     center_hz: f64,
     live: bool,
+    /// Wait for the disk even with live input (`--no-drop`: the reader waits too).
+    wait: bool,
     /// The stream index the next recorded sample must have to continue the segment.
     expected: Option<u64>,
     lost_pending: (u64, Option<&'static str>),
@@ -116,9 +118,17 @@ impl Recorder {
             source_segments: Vec::new(),
             center_hz: 0.0,
             live: false,
+            wait: false,
             expected: None,
             lost_pending: (0, None),
         })
+    }
+
+    /// Makes the recording wait for the disk with live input too, as the reader does under
+    /// `--no-drop` (then nothing is left out, and a slow disk slows the source down).
+    pub fn waiting(mut self, wait: bool) -> Recorder {
+        self.wait = wait;
+        self
     }
 
     /// A handle on the recording's figures, for the command to report after the run.
@@ -203,7 +213,7 @@ impl Consumer for Recorder {
         self.center_hz = src.segments.first().map_or(src.center_hz, |s| s.center_hz);
         self.source_segments =
             src.segments.iter().skip(1).map(|s| (s.sample_start, s.center_hz)).collect();
-        self.live = src.live;
+        self.live = src.live && !self.wait;
         let depth = (QUEUE_BYTES / (self.block_len * 8)).clamp(2, 4096);
         let depth = depth.min((src.sample_rate_hz / self.block_len as f64).ceil() as usize).max(2);
         let (tx, rx) = bounded(depth);
