@@ -156,10 +156,12 @@ impl AnnotationWriter {
             .ok_or_else(|| io::Error::other("the dataset's metadata has no annotation list"))?;
         for note in self.notes.drain(..) {
             match map.span(note.sample_start, note.sample_start + note.sample_count) {
-                Some((start, count)) => list.push(Value::Object(annotation(&note, start, count))),
+                Some((start, count)) => {
+                    list.push(Value::Object(annotation(&note, start, count)));
+                    summary.written += 1;
+                }
                 None => summary.not_in_dataset += 1,
             }
-            summary.written = list.len();
         }
         list.sort_by_key(|a| a["core:sample_start"].as_u64().unwrap_or(0));
         if let Some(g) = meta["global"].as_object_mut() {

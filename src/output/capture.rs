@@ -41,6 +41,9 @@ use std::thread::JoinHandle;
 
 /// Most bytes of samples queued for the capture writer.
 pub const QUEUE_BYTES: usize = 64 << 20;
+/// Sample buffers kept for reuse once written: enough for a writer that keeps up; more are
+/// freed, so a backlog that has cleared does not stay resident.
+const SPARE_BUFFERS: usize = 8;
 /// Bytes counted for each capture's meta file against the disk cap (they are about 1.5 kB).
 const META_BYTES: u64 = 4096;
 
@@ -378,7 +381,7 @@ impl Consumer for Captures {
         self.ring = Ring::new(self.pre_n as usize + 2 * row + self.block_len);
         let depth = (QUEUE_BYTES / (self.block_len * 8)).clamp(4, 1024);
         let (tx, rx) = bounded(depth);
-        let (spare_tx, spare_rx) = bounded(depth + 2);
+        let (spare_tx, spare_rx) = bounded(SPARE_BUFFERS);
         let (format, error) = (self.format, self.error.clone());
         let handle = std::thread::Builder::new()
             .name("capture".into())

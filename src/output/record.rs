@@ -41,6 +41,9 @@ use std::thread::JoinHandle;
 /// Most bytes of samples queued for the writer thread (bounds memory when the disk stalls).
 pub const QUEUE_BYTES: usize = 64 << 20;
 
+/// Sample buffers kept for reuse once written: enough for a writer that keeps up; more are
+/// freed, so a backlog that has cleared does not stay resident.
+const SPARE_BUFFERS: usize = 8;
 /// What a recording came to, readable by the command after the run (also from another thread).
 #[derive(Debug, Default, Clone)]
 pub struct RecordStatus {
@@ -217,7 +220,7 @@ impl Consumer for Recorder {
         let depth = (QUEUE_BYTES / (self.block_len * 8)).clamp(2, 4096);
         let depth = depth.min((src.sample_rate_hz / self.block_len as f64).ceil() as usize).max(2);
         let (tx, rx) = bounded(depth);
-        let (spare_tx, spare_rx) = bounded(depth + 2);
+        let (spare_tx, spare_rx) = bounded(SPARE_BUFFERS);
         let mut global = sigmf_write::global(
             self.format,
             src.sample_rate_hz,
