@@ -3,8 +3,9 @@
 use super::common::{
     parse_band, parse_db, parse_number, parse_seconds, ChannelArgs, ChannelConfig,
 };
-use super::common::{DspArgs, InputArgs};
+use super::common::{DetectArgs, DspArgs, InputArgs};
 use crate::dsp::DspConfig;
+use crate::measure::Detection;
 use crate::output::report::Band;
 use crate::source::InputRequest;
 use crate::units::format_num;
@@ -48,6 +49,8 @@ pub struct MeasureArgs {
     #[arg(long)]
     pub json: bool,
     #[command(flatten)]
+    pub detect: DetectArgs,
+    #[command(flatten)]
     pub channels: ChannelArgs,
 }
 
@@ -63,6 +66,8 @@ pub struct MeasureConfig {
     pub obw_percent: f64,
     pub xdb: f64,
     pub json: bool,
+    /// How signals are told from noise.
+    pub detection: Detection,
     pub channels: ChannelConfig,
 }
 
@@ -87,6 +92,7 @@ impl MeasureArgs {
             );
         }
         let dsp = self.dsp.validate()?;
+        let detection = self.detect.validate(self.obw_percent)?;
         let channels = self.channels.validate()?;
         let demo = self.input.is_none();
         Ok(MeasureConfig {
@@ -98,6 +104,7 @@ impl MeasureArgs {
             obw_percent: self.obw_percent,
             xdb: self.xdb,
             json: self.json,
+            detection,
             channels,
         })
     }

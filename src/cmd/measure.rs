@@ -64,6 +64,7 @@ pub fn run(cfg: MeasureConfig) -> Result<ExitCode> {
         bands: cfg.bands.clone(),
         obw_percent: cfg.obw_percent,
         xdb: cfg.xdb,
+        false_alarm_per_bin: cfg.detection.false_alarm_per_bin,
     };
     let counts = InputCounts {
         samples: whole.samples,

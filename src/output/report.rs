@@ -4,7 +4,8 @@
 //! `source, sample_rate_hz, center_hz, fft_size, window, rbw_hz, enbw_bins, frames, samples,
 //! duration_s, dof, psd_uncertainty_db, total_power_dbfs, noise_floor_dbfs_per_hz, peaks, bands,
 //! input_issues`.
-//! `peaks[]`: `freq_hz, level_dbfs, snr_db, power_dbfs, obw_hz` (strongest first).
+//! `peaks[]`: `freq_hz, level_dbfs, snr_db, power_dbfs, obw_hz`, strongest `power_dbfs` (the
+//! signal's integrated power) first; `level_dbfs` is a sinusoid's power at the peak, in one RBW.
 //! `bands[]`: `center_hz, width_hz, power_dbfs, obw_hz, obw_low_hz, obw_high_hz,
 //! xdb_bandwidth_hz`.
 //! `channels[]` (only with `--channel`/`--plan`): `name, center_hz, width_hz, power_dbfs, obw_hz,
@@ -37,6 +38,8 @@ pub struct ReportSettings {
     pub bands: Vec<Band>,
     pub obw_percent: f64,
     pub xdb: f64,
+    /// Probability per bin that noise alone is listed as a signal.
+    pub false_alarm_per_bin: f64,
 }
 
 /// What the run counted besides the spectrum.
@@ -56,7 +59,11 @@ pub fn build_report(
 ) -> Result<Report> {
     let window = Window::new(spec.window, spec.fft_size);
     let floor = noise_floor(&spec.psd, spec.dof);
-    let det = Detection { obw_percent: settings.obw_percent, ..Detection::default() };
+    let det = Detection {
+        obw_percent: settings.obw_percent,
+        false_alarm_per_bin: settings.false_alarm_per_bin,
+        ..Detection::default()
+    };
     let peaks = find_signals(spec, &window, floor, settings.peaks, det)
         .into_iter()
         .map(|s| PeakRow {
@@ -258,26 +265,34 @@ impl Report {
         } else {
             let _ = writeln!(
                 s,
-                "{:>3}  {:>18}  {:>11}  {:>8}  {:>11}  {:>12}",
+                "{:>3}  {:>18}  {:>11}  {:>13}  {:>8}  {:>12}",
                 "#",
                 "frequency",
-                "level dBFS",
-                "SNR dB",
                 "power dBFS",
+                "peak/RBW dBFS",
+                "SNR dB",
                 format!("OBW {obw_percent}%")
             );
             for (i, p) in self.peaks.iter().enumerate() {
                 let _ = writeln!(
                     s,
-                    "{:>3}  {:>18}  {:>11.2}  {:>8.1}  {:>11.2}  {:>12}",
+                    "{:>3}  {:>18}  {:>11.2}  {:>13.2}  {:>8.1}  {:>12}",
                     i + 1,
                     format_hz(p.freq_hz),
+                    p.power_dbfs,
                     p.level_dbfs,
                     p.snr_db,
-                    p.power_dbfs,
                     format_hz_short(p.obw_hz, 2)
                 );
             }
+            let _ = writeln!(
+                s,
+                "power: over the signal's band; peak/RBW and SNR: a sinusoid at its peak in one RBW"
+            );
+            let _ = writeln!(
+                s,
+                "(all less the noise); strongest power first; a wide signal's frequency is its OBW centre"
+            );
         }
         if !self.bands.is_empty() {
             let _ = writeln!(s);
