@@ -190,7 +190,7 @@ mod tests {
                 peak_dbfs: Some(-30.9),
                 noise_floor_dbfs_per_hz: Some(-112.3),
                 samples: 6392,
-                occupied_samples: 1931,
+                occupied_samples: 1931.0,
                 dropped_samples: 0,
                 partial: false,
             }),

@@ -96,7 +96,9 @@ pub struct IntervalSummary {
     pub end_sample: u64,
     /// Measurement samples (rows) in the interval.
     pub samples: u64,
-    pub occupied: u64,
+    /// Occupied measurement samples; a sample an emission filled only in part counts by the
+    /// share it filled (see [`tracker`]).
+    pub occupied: f64,
     pub mean_power: f64,
     pub peak_power: f64,
     /// Mean of the tracked noise density over the interval.
@@ -109,7 +111,7 @@ pub struct IntervalSummary {
 
 impl IntervalSummary {
     pub fn occupancy_pct(&self) -> f64 {
-        100.0 * self.occupied as f64 / self.samples.max(1) as f64
+        100.0 * self.occupied / self.samples.max(1) as f64
     }
 }
 
