@@ -33,6 +33,9 @@ pub struct MeasureArgs {
     /// Read at most this many seconds of input (the demo scene defaults to 2 s).
     #[arg(long, value_name = "SECONDS", value_parser = parse_seconds)]
     pub seconds: Option<f64>,
+    /// Skip this many seconds of input before measuring (`--seconds` counts from there).
+    #[arg(long, value_name = "SECONDS", value_parser = parse_seconds)]
+    pub skip: Option<f64>,
     /// How many of the strongest signals to list.
     #[arg(long, value_name = "K", default_value_t = 10)]
     pub peaks: usize,
@@ -61,6 +64,8 @@ pub struct MeasureConfig {
     pub dsp: DspConfig,
     /// Seconds of input to take at most.
     pub seconds: Option<f64>,
+    /// Seconds of input to skip first.
+    pub skip: f64,
     pub peaks: usize,
     pub bands: Vec<Band>,
     pub obw_percent: f64,
@@ -99,6 +104,7 @@ impl MeasureArgs {
             input: self.source.request(self.input),
             dsp,
             seconds: self.seconds.or(demo.then_some(DEMO_SECONDS)),
+            skip: self.skip.unwrap_or(0.0),
             peaks: self.peaks,
             bands: self.bands,
             obw_percent: self.obw_percent,

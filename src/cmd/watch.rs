@@ -52,7 +52,7 @@ pub fn run(cfg: WatchConfig) -> Result<ExitCode> {
         drop_when_full: info.live,
         pace: is_file.then_some(cfg.speed),
         loop_input: cfg.loop_input && is_file,
-        max_samples: None,
+        ..Default::default()
     };
     let spec = RunSpec::new(info.clone(), cfg.rows.engine(rate), cfg.rows.threads);
     spec.check_work()?;
