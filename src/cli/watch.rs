@@ -155,6 +155,15 @@ mod tests {
     }
 
     #[test]
+    fn false_alarm_reaches_the_signal_list() {
+        let c = parse(&["--false-alarm", "1e-3"]).validate().unwrap();
+        assert_eq!(c.detection.false_alarm_per_bin, 1e-3);
+        let d = parse(&[]).validate().unwrap().detection;
+        assert_eq!(d.false_alarm_per_bin, crate::measure::signals::DEFAULT_FALSE_ALARM);
+        assert!(error(&["--false-alarm", "0.2"]).contains("--false-alarm"));
+    }
+
+    #[test]
     fn defaults_are_sensible() {
         let w = parse(&[]);
         assert_eq!(w.input, None);
