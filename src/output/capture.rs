@@ -374,11 +374,11 @@ impl Consumer for Captures {
         self.reserve = (self.pre_n + self.max_n + self.post_n)
             * self.format.bytes_per_sample() as u64
             + META_BYTES;
-        // The emission is announced after the row that found it and the block that completed
-        // that row: the ring holds those too.
+        // The emission is announced when the tracker settles the row that found it (two rows
+        // later) and after the block that completed that row: the ring holds those too.
         let e = &run.engine;
         let row = e.frames_per_output.unwrap_or(1) as usize * e.hop() + e.fft_size;
-        self.ring = Ring::new(self.pre_n as usize + 2 * row + self.block_len);
+        self.ring = Ring::new(self.pre_n as usize + 4 * row + self.block_len);
         let depth = (QUEUE_BYTES / (self.block_len * 8)).clamp(4, 1024);
         let (tx, rx) = bounded(depth);
         let (spare_tx, spare_rx) = bounded(SPARE_BUFFERS);

@@ -8,6 +8,7 @@ pub mod capture_writer;
 pub mod log;
 pub mod log_records;
 pub mod occupancy_log;
+pub mod on_air;
 pub mod progress;
 pub mod record;
 pub mod report;
