@@ -184,8 +184,9 @@ fn same(a: &Path, b: &Path) -> bool {
     }
 }
 
-/// The dataset of the input, for annotations without `--record`.
-fn input_dataset(input: &InputRequest, info: &SourceInfo) -> Result<Dataset> {
+/// The dataset of the input, for annotations without `--record` (also for a command that
+/// builds its own [`AnnotationWriter`], such as `census`).
+pub fn input_dataset(input: &InputRequest, info: &SourceInfo) -> Result<Dataset> {
     let need_record = |what: &str| {
         anyhow::anyhow!("--annotate needs a dataset to point at, and {what}: add --record FILE.sigmf-meta (the annotations then point at the recording)")
     };
