@@ -162,6 +162,8 @@ pub struct Theme {
     pub warn: Style,
     pub plan: Style,
     pub header: Style,
+    /// The noise floor's mark on the spectrum.
+    pub floor: Style,
 }
 
 impl Theme {
@@ -180,6 +182,7 @@ impl Theme {
                 warn: plain.add_modifier(Modifier::REVERSED),
                 plan: plain,
                 header: plain.add_modifier(Modifier::BOLD),
+                floor: plain.add_modifier(Modifier::DIM),
             };
         }
         let fg = |n: u8| plain.fg(Color::Indexed(n));
@@ -195,6 +198,7 @@ impl Theme {
             warn: fg(16).bg(Color::Indexed(214)),
             plan: fg(150),
             header: fg(252).add_modifier(Modifier::BOLD),
+            floor: fg(110),
         }
     }
 }

@@ -10,13 +10,16 @@
 //! "Watching live" section has the figures and `scripts/ssh-bytes` measures them.
 
 pub mod app;
+pub mod channels;
 pub mod colour;
 pub mod history;
 pub mod input;
 pub mod layout;
+pub mod navigate;
 pub mod painter;
 pub mod state;
 pub mod term;
+pub mod timeline;
 pub mod traces;
 pub mod view;
 pub mod widgets;
@@ -181,9 +184,6 @@ fn draw(
     let size = term.size()?;
     let area = Rect::new(0, 0, size.width, size.height);
     let screen = Screen::split(area, app.plan_row());
-    if let Some(s) = screen {
-        app.history.ensure_capacity(2 * s.waterfall.height as usize + 4);
-    }
     app.screen = screen;
     app.waterfall_external = opts.scroll_region && screen.is_some();
     let mode = (area, screen, app.help);
@@ -207,6 +207,11 @@ fn draw(
             painter.paint(out, s.waterfall, app.waterfall_epoch, &plot);
             term.backend_mut().write_all(out)?;
         }
+    }
+    // An alarm onset rings the terminal's bell once.
+    if app.bells > 0 {
+        term.backend_mut().write_all(b"\x07")?;
+        app.bells = 0;
     }
     // Draws the rest and flushes everything as one write.
     term.draw(|f| f.render_widget(&*app, f.area()))?;

@@ -8,7 +8,7 @@ use ratatui::text::{Line, Span};
 use ratatui::widgets::{Block, Borders, Clear, Widget};
 
 /// Width of the keys column.
-const KEYS_W: usize = 10;
+const KEYS_W: usize = 13;
 
 pub struct HelpOverlay<'a> {
     pub theme: &'a Theme,

@@ -30,6 +30,8 @@ pub struct SpectrumPlot<'a> {
     pub unit: &'a str,
     pub marker_col: Option<u16>,
     pub ref_marker_col: Option<u16>,
+    /// Noise power in one RBW, printed units: marked by a dotted line where no trace is.
+    pub floor: Option<f64>,
     pub theme: &'a Theme,
 }
 
@@ -113,6 +115,10 @@ impl Widget for &SpectrumPlot<'_> {
             (self.trace_masks(self.min_hold, w, h), self.theme.hold),
         ];
         let grid_rows: Vec<usize> = self.level_labels(h).into_iter().map(|(r, _)| r).collect();
+        let floor_row = self.floor.and_then(|f| self.dot_row(f, h * 4)).map(|d| d / 4);
+        if let Some(r) = floor_row {
+            buf.set_string(area.x + GUTTER - 1, plot.y + r as u16, "◂", self.theme.floor);
+        }
         for y in 0..h {
             for x in 0..w {
                 let i = y * w + x;
@@ -122,6 +128,8 @@ impl Widget for &SpectrumPlot<'_> {
                 if bits != 0 {
                     let ch = char::from_u32(BRAILLE_BASE + bits as u32).unwrap_or(' ');
                     cell.set_char(ch).set_style(style.unwrap_or_default());
+                } else if floor_row == Some(y) {
+                    cell.set_char(if x % 2 == 0 { '·' } else { ' ' }).set_style(self.theme.floor);
                 } else if grid_rows.contains(&y) {
                     cell.set_char('┄').set_style(self.theme.grid);
                 }
@@ -169,6 +177,7 @@ mod tests {
             unit: "dBFS",
             marker_col: None,
             ref_marker_col: None,
+            floor: None,
             theme,
         }
     }
@@ -243,5 +252,16 @@ mod tests {
         // The trace cell keeps its dots but takes the marker's colour.
         assert_eq!(buf[(GUTTER + 3, 2)].symbol(), "⠤");
         assert_eq!(buf[(GUTTER + 3, 2)].style().fg, theme.marker.fg);
+    }
+
+    #[test]
+    fn the_noise_floor_is_marked() {
+        let theme = Theme::new(Depth::Mono);
+        let mut p = plot(&[], &[], &[], &theme);
+        // 4 rows over 80 dB: −70 dB is dot row 14, text row 3.
+        p.floor = Some(-70.0);
+        let mut buf = Buffer::empty(Rect::new(0, 0, GUTTER + 6, 4));
+        (&p).render(buf.area, &mut buf);
+        assert_eq!(crate::tui::widgets::text_lines(&buf)[3], "     ◂· · · ");
     }
 }
