@@ -267,13 +267,16 @@ mod tests {
         // The moving marker is on the floor, 10 columns (of 6.9 kHz) above the tone; at 80
         // columns the reference marker's own reading gives way to the difference.
         assert!(lines[22].contains("▲ 100.174000 MHz"), "{}", lines[22]);
-        assert!(lines[22].contains("Δ +74.000 kHz"), "{}", lines[22]);
+        assert!(lines[22].contains("band 74 kHz: "), "{}", lines[22]);
         // The axis flags both markers.
         assert!(lines[7].contains('▲') && lines[7].contains('△'), "{}", lines[7]);
         // A wider screen has room for the reference marker's reading too.
-        let wide = text_lines(&draw(&a, 120, 30));
+        let wide = text_lines(&draw(&a, 160, 30));
         let marker = wide.iter().find(|l| l.starts_with(" ▲")).unwrap();
-        assert!(marker.contains("△ 100.100000 MHz"), "{marker}");
+        assert!(
+            marker.contains("△ 100.100000 MHz") && marker.contains("Δ +74.000 kHz"),
+            "{marker}"
+        );
     }
 
     #[test]

@@ -199,11 +199,11 @@ pub fn marker_line(app: &App, width: usize) -> Line<'static> {
     }
     if let Some((f2, v2)) = app.ref_marker_hz.and(app.ref_reading) {
         segs.push((
-            2,
+            3,
             Span::styled(format!("△ {}  {:.1} {unit}", format_hz(f2), l.shown(v2)), t.ref_marker),
         ));
         segs.push((
-            1,
+            2,
             Span::styled(
                 format!(
                     "Δ {}{}  {:+.1} dB",
@@ -216,8 +216,10 @@ pub fn marker_line(app: &App, width: usize) -> Line<'static> {
         ));
     }
     if let Some(b) = app.band {
+        // Ahead of the Δ readout on a narrow screen: the band's width is |Δf| anyway.
         let obw = b.obw.map_or("–".to_string(), |e| format_hz_compact(e.width_hz()));
-        let text = format!("band {:.1} {unit} · OBW {obw}", l.shown(b.power_dbfs),);
+        let width = format_hz_compact(b.high_hz - b.low_hz);
+        let text = format!("band {width}: {:.1} {unit}, OBW {obw}", l.shown(b.power_dbfs));
         segs.push((1, Span::styled(text, t.marker)));
     }
     fit(segs, None, width)

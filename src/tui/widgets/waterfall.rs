@@ -120,7 +120,8 @@ impl WaterfallPlot<'_> {
         let before = lower_index.checked_sub(1).and_then(|i| self.history.by_index(i));
         let slot = |t: f64| (t / every).floor();
         let t = |r: &Row| self.times.label_seconds(r);
-        let due = before.map_or(true, |b| slot(t(newest)) > slot(t(b)));
+        // A new slot, or time going back (a looping file starting again), earns a label.
+        let due = before.map_or(true, |b| slot(t(newest)) != slot(t(b)));
         if !due {
             return;
         }
