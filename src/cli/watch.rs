@@ -47,6 +47,10 @@ pub struct WatchArgs {
     /// Leave the mouse to the terminal (e.g. for selecting text) instead of placing markers.
     #[arg(long)]
     pub no_mouse: bool,
+    /// Append a JSON Lines record to FILE at each channel-alarm onset (alarms come from the
+    /// plan's alarm_dbfs or the A key).
+    #[arg(long, value_name = "FILE")]
+    pub alarm_log: Option<String>,
 }
 
 /// Slowest and fastest playback of a file: a thousandth of the recorded rate is already a slide
@@ -87,6 +91,7 @@ pub struct WatchConfig {
     pub colour: ColourChoice,
     pub scroll_region: bool,
     pub mouse: bool,
+    pub alarm_log: Option<String>,
 }
 
 impl WatchArgs {
@@ -124,6 +129,7 @@ impl WatchArgs {
             colour: self.colour,
             scroll_region: !self.no_scroll_region,
             mouse: !self.no_mouse,
+            alarm_log: self.alarm_log,
         })
     }
 }

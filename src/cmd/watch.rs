@@ -8,6 +8,7 @@
 
 use crate::cli::{ColourChoice, WatchConfig};
 use crate::messages::{note, notes, sanitize};
+use crate::output::sink;
 use crate::pipeline::clock::Clock;
 use crate::pipeline::input::live_block_len;
 use crate::pipeline::latest::RowFeed;
@@ -15,6 +16,7 @@ use crate::pipeline::{Input, RunSpec};
 use crate::plan::{Plan, DEFAULT_THRESHOLD_DB};
 use crate::source::reader::ReaderOptions;
 use crate::source::{self};
+use crate::tui::alarms::AlarmLog;
 use crate::tui::app::{App, ChannelMark, SourceSummary};
 use crate::tui::colour::Depth;
 use crate::tui::{self, RunOptions};
@@ -84,7 +86,10 @@ pub fn run(cfg: WatchConfig) -> Result<ExitCode> {
         ColourChoice::Forced(d) => d,
     };
     let marks = marks(&cfg.plan);
-    let app = App::new(summary, cfg.rows, depth, cfg.ref_offset, marks, Instant::now());
+    let mut app = App::new(summary, cfg.rows, depth, cfg.ref_offset, marks, Instant::now());
+    if let Some(path) = &cfg.alarm_log {
+        app.alarm_log = Some(AlarmLog::new(sink::open(path, true, "alarm log")?.out));
+    }
     let run_opts = RunOptions { fps: cfg.fps, scroll_region: cfg.scroll_region, mouse: cfg.mouse };
     let result = tui::run(app, &feed, &input.stats, run_opts);
     input.request_stop();
@@ -100,6 +105,7 @@ fn marks(plan: &Plan) -> Vec<ChannelMark> {
         .iter()
         .map(|c| ChannelMark {
             threshold_db: c.threshold_db.unwrap_or(DEFAULT_THRESHOLD_DB),
+            alarm_dbfs: c.alarm_dbfs,
             ..ChannelMark::new(&sanitize(&c.name), c.center_hz, c.width_hz)
         })
         .collect()

@@ -6,6 +6,7 @@
 //! scale) run on the average trace a few times a second, not on every row: the table must be
 //! readable and the monitor light.
 
+use super::alarms::AlarmLog;
 use super::channels::ChannelActivity;
 use super::colour::{Depth, MapKind, Palette, Theme};
 use super::history::{History, Row, HISTORY_BYTES};
@@ -96,6 +97,8 @@ pub struct App {
     pub notice: Option<(String, Instant)>,
     /// Terminal bells to ring (alarm onsets).
     pub bells: u32,
+    /// Where alarm onsets are recorded (`--alarm-log`).
+    pub alarm_log: Option<AlarmLog>,
     pub stats: Stats,
     /// The input has ended (and is not looping).
     pub ended: bool,
@@ -153,6 +156,7 @@ impl App {
             cursor_spectrum: None,
             notice: None,
             bells: 0,
+            alarm_log: None,
             stats: Stats::new(now),
             ended: false,
             waterfall_epoch: 0,
@@ -182,7 +186,10 @@ impl App {
         self.stats.rows_total += 1;
         self.history.push(Row::from_spectrum(&spec));
         let onsets = self.activity.push(&spec, &self.channels, self.floor_density);
-        self.bells += u32::from(!onsets.is_empty());
+        if !onsets.is_empty() {
+            self.bells += 1;
+            self.log_onsets(&onsets, spec.end_sample);
+        }
         if self.mode == Mode::Frozen {
             return;
         }
@@ -318,6 +325,8 @@ impl App {
             Intent::ToggleUtc => self.toggle_utc(),
             Intent::SortNext => self.next_sort(),
             Intent::ToggleChannels => self.toggle_channels(),
+            Intent::ToggleAlarm => self.toggle_alarm(),
+            Intent::WriteEvidence => self.evidence_key(),
             Intent::MarkerLeft(n) => self.step_marker(-(n as i64)),
             Intent::MarkerRight(n) => self.step_marker(n as i64),
             Intent::MarkerToStrongest => self.marker_to_strongest(),

@@ -47,6 +47,10 @@ pub enum Intent {
     ToggleUtc,
     SortNext,
     ToggleChannels,
+    /// Arm / clear the alarm of the marker's channel.
+    ToggleAlarm,
+    /// Write the traces and the table to files.
+    WriteEvidence,
     /// Marker to the screen cell clicked (column, row).
     PointAt(u16, u16),
     /// Reference marker to the screen cell clicked.
@@ -121,6 +125,11 @@ pub const HELP: &[HelpRow] = &[
         keys: "r  t",
         what: "table by frequency / by power; t: signals / channels",
         bindings: &[(C('r'), I::SortNext), (C('t'), I::ToggleChannels)],
+    },
+    HelpRow {
+        keys: "A  e",
+        what: "alarm on the marker's channel / off; e: write evidence",
+        bindings: &[(C('A'), I::ToggleAlarm), (C('e'), I::WriteEvidence)],
     },
     HelpRow {
         keys: "m  M",
@@ -281,6 +290,8 @@ mod tests {
             I::ToggleUtc,
             I::SortNext,
             I::ToggleChannels,
+            I::ToggleAlarm,
+            I::WriteEvidence,
         ];
         for i in &all {
             match i {
@@ -288,7 +299,8 @@ mod tests {
                 I::Quit | I::ToggleHelp | I::Freeze | I::MarkerLeft(_) | I::MarkerRight(_) => {}
                 I::MarkerToStrongest | I::MarkerToNext | I::SetRefMarker | I::ClearRefMarker => {}
                 I::MarkerToPrev | I::TimeBack(_) | I::TimeForward(_) | I::TimeLive => {}
-                I::ToggleUtc | I::SortNext | I::ToggleChannels => {}
+                I::ToggleUtc | I::SortNext | I::ToggleChannels | I::ToggleAlarm => {}
+                I::WriteEvidence => {}
                 I::ZoomIn | I::ZoomOut | I::PanLeft | I::PanRight | I::FullSpan => {}
                 I::CentreOnMarker | I::FftLarger | I::FftSmaller | I::WindowNext => {}
                 I::WindowPrev | I::RefUp | I::RefDown | I::RangeWider | I::RangeNarrower => {}

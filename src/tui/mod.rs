@@ -9,9 +9,11 @@
 //! the scrolling [`painter`]. The cost that matters over SSH is bytes per second; the README's
 //! "Watching live" section has the figures and `scripts/ssh-bytes` measures them.
 
+pub mod alarms;
 pub mod app;
 pub mod channels;
 pub mod colour;
+pub mod evidence;
 pub mod history;
 pub mod input;
 pub mod layout;
@@ -75,6 +77,13 @@ pub fn run(
     let result = {
         let (mut term, _guard) = term::init(opts.mouse)?;
         event_loop(&mut term, &mut app, dsp, reader, opts, &watch, &mut first_frame)
+    };
+    // A failed alarm log was said on screen; it is an error of the run too.
+    let result = match app.alarm_log.as_mut().and_then(|l| l.failed.take()) {
+        Some(e) if result.is_ok() => {
+            Err(anyhow::anyhow!("the alarm log could not be written: {e}"))
+        }
+        _ => result,
     };
     let process_start = *crate::messages::STARTED.get_or_init(|| started);
     // The terminal is restored now: leave one line on stderr saying what was seen and lost, so

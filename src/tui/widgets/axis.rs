@@ -54,6 +54,8 @@ impl Widget for &FreqAxis<'_> {
 pub struct PlanRow<'a> {
     pub view: View,
     pub channels: &'a [ChannelMark],
+    /// Channels whose alarm is on (same order; shorter means none), highlighted.
+    pub alarmed: &'a [bool],
     pub theme: &'a Theme,
 }
 
@@ -94,6 +96,7 @@ impl Widget for &PlanRow<'_> {
         let spans = self.spans(width);
         for (k, &(c0, c1, i)) in spans.iter().enumerate() {
             let ch = &self.channels[i];
+            let style = if self.alarmed.get(i) == Some(&true) { self.theme.warn } else { style };
             let (lo, hi) = (ch.center_hz - 0.5 * ch.width_hz, ch.center_hz + 0.5 * ch.width_hz);
             let inner = c1.saturating_sub(c0 + 1);
             let number = (i + 1).to_string();
@@ -167,7 +170,12 @@ mod tests {
             ChannelMark::new("GATE", 1_000.0, 1_000.0),
             ChannelMark::new("far-away", 1e6, 10.0),
         ];
-        let row = PlanRow { view: View::new(0.0, 2_000.0), channels: &channels, theme: &theme };
+        let row = PlanRow {
+            view: View::new(0.0, 2_000.0),
+            channels: &channels,
+            alarmed: &[],
+            theme: &theme,
+        };
         let mut buf = Buffer::empty(Rect::new(0, 0, GUTTER + 20, 1));
         (&row).render(buf.area, &mut buf);
         // 100 Hz a column: 500..1500 Hz covers columns 5..=14.
@@ -175,14 +183,20 @@ mod tests {
         // A channel narrower than its name shows its number (2nd in the plan) inside.
         let narrow =
             vec![ChannelMark::new("x", 0.0, 1.0), ChannelMark::new("Beacon", 300.0, 300.0)];
-        let row = PlanRow { view: View::new(0.0, 2_000.0), channels: &narrow, theme: &theme };
+        let row = PlanRow {
+            view: View::new(0.0, 2_000.0),
+            channels: &narrow,
+            alarmed: &[],
+            theme: &theme,
+        };
         let mut buf = Buffer::empty(Rect::new(0, 0, GUTTER + 20, 1));
         (&row).render(buf.area, &mut buf);
         assert_eq!(text_lines(&buf)[0].trim_end(), " plan ┃├2─┤");
         // Narrower still: a mark, and the number beside it where the next channel leaves room.
         let two =
             vec![ChannelMark::new("ops", 300.0, 100.0), ChannelMark::new("yard", 700.0, 100.0)];
-        let row = PlanRow { view: View::new(0.0, 2_000.0), channels: &two, theme: &theme };
+        let row =
+            PlanRow { view: View::new(0.0, 2_000.0), channels: &two, alarmed: &[], theme: &theme };
         let mut buf = Buffer::empty(Rect::new(0, 0, GUTTER + 20, 1));
         (&row).render(buf.area, &mut buf);
         assert_eq!(text_lines(&buf)[0].trim_end(), " plan   ├┤1 ├┤2");

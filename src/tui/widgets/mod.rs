@@ -83,7 +83,15 @@ impl App {
             };
             (&axis).render(s.axis, buf);
             if let Some(p) = s.plan {
-                (&PlanRow { view: v, channels: &self.channels, theme: &self.theme }).render(p, buf);
+                let alarmed: Vec<bool> =
+                    self.activity.channels.iter().map(|c| c.alarm_on).collect();
+                let row = PlanRow {
+                    view: v,
+                    channels: &self.channels,
+                    alarmed: &alarmed,
+                    theme: &self.theme,
+                };
+                (&row).render(p, buf);
             }
         }
     }
