@@ -396,6 +396,19 @@ threshold_db = 6
     }
 
     #[test]
+    fn alarm_levels_parse_and_absurd_ones_name_their_line() {
+        let p = Plan::parse(
+            "[[channel]]\nname = \"a\"\ncenter = \"1M\"\nwidth = \"10k\"\nalarm_dbfs = -60\n",
+            "p.toml",
+        )
+        .unwrap();
+        assert_eq!(p.channels[0].alarm_dbfs, Some(-60.0));
+        let e =
+            err("[[channel]]\nname = \"a\"\ncenter = \"1M\"\nwidth = \"10k\"\nalarm_dbfs = 500\n");
+        assert!(e.contains("line 5") && e.contains("alarm_dbfs 500"), "{e}");
+    }
+
+    #[test]
     fn zero_or_negative_width_names_its_line() {
         let e = err("[[channel]]\nname = \"a\"\ncenter = \"1M\"\nwidth = 0\n");
         assert!(e.contains("line 4") && e.contains("greater than zero"), "{e}");

@@ -592,11 +592,12 @@ pub fn grid_of(s: &Spectrum) -> BinGrid {
 }
 
 #[cfg(test)]
-mod tests {
+pub(crate) mod tests {
     use super::*;
     use crate::dsp::Window;
 
-    fn summary() -> SourceSummary {
+    /// A live 1.024 MS/s source at 100 MHz with no start time.
+    pub(crate) fn summary() -> SourceSummary {
         SourceSummary {
             label: "test".into(),
             sample_rate_hz: 1.024e6,
@@ -609,7 +610,8 @@ mod tests {
         }
     }
 
-    fn settings() -> RowSettings {
+    /// 1024-point Hann rows at 20 rows/s.
+    pub(crate) fn settings() -> RowSettings {
         RowSettings {
             fft_size: 1024,
             window: WindowKind::Hann,

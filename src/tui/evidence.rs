@@ -118,30 +118,14 @@ impl App {
 mod tests {
     use super::*;
     use crate::dsp::{Spectrum, Window, WindowKind};
-    use crate::tui::app::SourceSummary;
+    use crate::tui::app::tests::{settings, summary};
     use crate::tui::colour::Depth;
     use std::time::Instant;
     use time::format_description::well_known::Rfc3339;
 
     #[test]
     fn traces_and_table_are_written_under_the_utc_time() {
-        let source = SourceSummary {
-            label: "bench".into(),
-            sample_rate_hz: 1.024e6,
-            center_hz: 100e6,
-            total_samples: None,
-            live: true,
-            speed: None,
-            looping: false,
-            clock: crate::pipeline::clock::Clock::new(1.024e6, None),
-        };
-        let settings = crate::pipeline::latest::RowSettings {
-            fft_size: 1024,
-            window: WindowKind::Hann,
-            overlap: 0.5,
-            row_rate: 20.0,
-            threads: 1,
-        };
+        let (source, settings) = (summary(), settings());
         let mut a = App::new(source, settings, Depth::Mono, None, Vec::new(), Instant::now());
         let mut power = vec![1.0; 1024];
         power[100] = 1e6;
