@@ -61,7 +61,7 @@ pub fn run(cfg: WatchConfig) -> Result<ExitCode> {
         pace: is_file.then_some(cfg.speed),
         pace_recordings: piped.then_some(cfg.speed),
         loop_input: cfg.loop_input && is_file,
-        max_samples: None,
+        ..Default::default()
     };
     let spec = RunSpec::new(info.clone(), cfg.rows.engine(rate), cfg.rows.threads);
     spec.check_work()?;
@@ -90,6 +90,7 @@ pub fn run(cfg: WatchConfig) -> Result<ExitCode> {
     if let Some(path) = &cfg.alarm_log {
         app.alarm_log = Some(AlarmLog::new(sink::open(path, true, "alarm log")?.out));
     }
+    app.detection = cfg.detection;
     let run_opts = RunOptions { fps: cfg.fps, scroll_region: cfg.scroll_region, mouse: cfg.mouse };
     let result = tui::run(app, &feed, &input.stats, run_opts);
     input.request_stop();

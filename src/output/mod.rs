@@ -4,6 +4,7 @@
 pub mod log;
 pub mod log_records;
 pub mod occupancy_log;
+pub mod on_air;
 pub mod progress;
 pub mod report;
 pub mod rotation;

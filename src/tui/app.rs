@@ -80,6 +80,8 @@ pub struct App {
     pub signals: Vec<Signal>,
     pub sort: SortKey,
     pub table_mode: TableMode,
+    /// How the signal list tells signals from noise (`--false-alarm`).
+    pub detection: Detection,
     /// Noise power in one RBW, dBFS.
     pub floor_dbfs: Option<f64>,
     /// Noise density, FS²/Hz.
@@ -147,6 +149,7 @@ impl App {
             signals: Vec::new(),
             sort: SortKey::Frequency,
             table_mode: TableMode::Signals,
+            detection: Detection::default(),
             floor_dbfs: None,
             floor_density: None,
             band: None,
@@ -238,7 +241,7 @@ impl App {
             _ => Window::new(avg.window, avg.fft_size),
         };
         let floor = noise_floor(&avg.psd, avg.dof);
-        self.signals = find_signals(&avg, &window, floor, MAX_SIGNALS, Detection::default());
+        self.signals = find_signals(&avg, &window, floor, MAX_SIGNALS, self.detection);
         self.sort.apply(&mut self.signals);
         self.window = Some(window);
         let floor_dbfs = db(floor * avg.rbw_hz);
@@ -535,7 +538,7 @@ impl App {
         let raw = (grid.freq(bin), db(p0 * cur.rbw_hz));
         let pm = if bin > 0 { avg[bin - 1] } else { 0.0 };
         let pp = avg.get(bin + 1).copied().unwrap_or(0.0);
-        let clear = self.floor_dbfs.is_some_and(|f| raw.1 >= f + Detection::default().min_snr_db);
+        let clear = self.floor_dbfs.is_some_and(|f| raw.1 >= f + self.detection.min_snr_db);
         let window =
             self.window.as_ref().filter(|w| w.kind == cur.window && w.len() == cur.fft_size);
         match window {
