@@ -53,6 +53,10 @@ pub struct WatchArgs {
     pub no_mouse: bool,
     #[command(flatten)]
     pub record: RecordArgs,
+    /// Append a JSON Lines record to FILE at each channel-alarm onset (alarms come from the
+    /// plan's alarm_dbfs or the A key).
+    #[arg(long, value_name = "FILE")]
+    pub alarm_log: Option<String>,
 }
 
 /// Slowest and fastest playback of a file: a thousandth of the recorded rate is already a slide
@@ -93,6 +97,7 @@ pub struct WatchConfig {
     pub colour: ColourChoice,
     pub scroll_region: bool,
     pub mouse: bool,
+    pub alarm_log: Option<String>,
     /// How signals are told from noise.
     pub detection: Detection,
     /// `--record`: the input teed to this SigMF recording.
@@ -135,6 +140,7 @@ impl WatchArgs {
             colour: self.colour,
             scroll_region: !self.no_scroll_region,
             mouse: !self.no_mouse,
+            alarm_log: self.alarm_log,
             detection,
             record: self.record.validate()?,
         })
