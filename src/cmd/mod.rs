@@ -4,4 +4,6 @@
 pub mod demo;
 pub mod log;
 pub mod measure;
+pub mod report;
+pub mod snapshot;
 pub mod watch;
