@@ -180,10 +180,7 @@ fn tone_burst_and_colour_sit_where_the_labels_say() {
         sums.iter().filter(|s| s.1 >= 0.999 * top_sum).map(|s| s.0 as f64).collect();
     let brightest = ties.iter().sum::<f64>() / ties.len() as f64;
     let expect = x_of(CENTER + TONE_HZ);
-    assert!(
-        (brightest as f64 - expect).abs() <= 1.5,
-        "tone at x {brightest}, axis says {expect:.1}"
-    );
+    assert!((brightest - expect).abs() <= 1.0, "tone at x {brightest}, axis says {expect:.1}");
 
     // The burst lights its column from the y of 1.0 s to the y of 1.5 s.
     let xb = x_of(CENTER + BURST_HZ).round() as usize;

@@ -159,7 +159,7 @@ mod tests {
         assert!((t[0].0 - 1.5).abs() < 1e-9);
         assert_eq!(t[1].1, "06:30:02");
         let long = time_ticks(Some(t0), 3600.0, 6);
-        assert_eq!(long[0].1, "06:40");
+        assert_eq!((long[0].1.as_str(), long[1].1.as_str()), ("06:30", "06:40"));
         let plain = time_ticks(None, 4.0, 8);
         assert_eq!(plain[1], (0.5, "0.5".to_string()));
     }
