@@ -59,14 +59,14 @@ fn occupancy_matches_the_records_summed_independently() {
     // Independent sums: per channel, occupied and measured samples of every interval that was
     // measured, and the emission records.
     let text = std::fs::read_to_string(&log).unwrap();
-    let mut sums: BTreeMap<String, (u64, u64, usize)> = BTreeMap::new();
+    let mut sums: BTreeMap<String, (f64, u64, usize)> = BTreeMap::new();
     for line in text.lines() {
         let v: Value = serde_json::from_str(line).unwrap();
         let name = v["channel"].as_str().unwrap_or_default().to_string();
         match v["kind"].as_str() {
             Some("interval") if !v["occupancy_pct"].is_null() => {
                 let e = sums.entry(name).or_default();
-                e.0 += v["occupied_samples"].as_u64().unwrap();
+                e.0 += v["occupied_samples"].as_f64().unwrap();
                 e.1 += v["samples"].as_u64().unwrap();
             }
             Some("emission") => sums.entry(name).or_default().2 += 1,
@@ -82,7 +82,7 @@ fn occupancy_matches_the_records_summed_independently() {
     assert!(stderr.contains("incomplete"), "{stderr}");
     for (name, (occ, samples, emissions)) in &sums {
         let c = channel(&report, None, name);
-        let expect = 100.0 * *occ as f64 / *samples as f64;
+        let expect = 100.0 * *occ / *samples as f64;
         let got = c["occupancy_pct"].as_f64().unwrap();
         assert!((got - expect).abs() < 1e-3, "{name}: {got} vs {expect}");
         assert_eq!(c["emissions"].as_u64().unwrap() as usize, *emissions, "{name}");

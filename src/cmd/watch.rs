@@ -52,7 +52,7 @@ pub fn run(cfg: WatchConfig) -> Result<ExitCode> {
         drop_when_full: info.live,
         pace: is_file.then_some(cfg.speed),
         loop_input: cfg.loop_input && is_file,
-        max_samples: None,
+        ..Default::default()
     };
     let spec = RunSpec::new(info.clone(), cfg.rows.engine(rate), cfg.rows.threads);
     spec.check_work()?;
@@ -72,7 +72,8 @@ pub fn run(cfg: WatchConfig) -> Result<ExitCode> {
         ColourChoice::Forced(d) => d,
     };
     let marks = marks(&cfg.plan);
-    let app = App::new(summary, cfg.rows, depth, cfg.ref_offset, marks, Instant::now());
+    let mut app = App::new(summary, cfg.rows, depth, cfg.ref_offset, marks, Instant::now());
+    app.detection = cfg.detection;
     let run_opts = RunOptions { fps: cfg.fps, scroll_region: cfg.scroll_region, mouse: cfg.mouse };
     let result = tui::run(app, &feed, &input.stats, run_opts);
     input.request_stop();

@@ -66,7 +66,7 @@ pub struct IntervalRecord {
     pub peak_dbfs: Option<f64>,
     pub noise_floor_dbfs_per_hz: Option<f64>,
     pub samples: u64,
-    pub occupied_samples: u64,
+    pub occupied_samples: f64,
     pub dropped_samples: u64,
     pub partial: bool,
 }

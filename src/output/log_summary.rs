@@ -31,22 +31,23 @@ pub enum HourKey {
     FromStart(i64),
 }
 
-/// Measured and occupied samples.
+/// Measured and occupied samples (occupied ones may be fractional: a sample an emission fills in
+/// part counts by its share, see the log's `occupied_samples`).
 #[derive(Clone, Copy, Debug, Default, PartialEq)]
 pub struct Tally {
     pub samples: u64,
-    pub occupied: u64,
+    pub occupied: f64,
 }
 
 impl Tally {
-    pub fn add(&mut self, samples: u64, occupied: u64) {
+    pub fn add(&mut self, samples: u64, occupied: f64) {
         self.samples += samples;
         self.occupied += occupied;
     }
 
     /// Occupied / measured × 100, or `None` when nothing was measured.
     pub fn pct(&self) -> Option<f64> {
-        (self.samples > 0).then(|| 100.0 * self.occupied as f64 / self.samples as f64)
+        (self.samples > 0).then(|| 100.0 * self.occupied / self.samples as f64)
     }
 }
 
@@ -193,7 +194,8 @@ impl LogSummary {
         match kind {
             "interval" => {
                 let samples = v["samples"].as_u64().unwrap_or(0);
-                let occupied = v["occupied_samples"].as_u64().unwrap_or(0).min(samples);
+                let occupied =
+                    v["occupied_samples"].as_f64().unwrap_or(0.0).clamp(0.0, samples as f64);
                 let dropped = v["dropped_samples"].as_u64().unwrap_or(0);
                 ch.dropped_samples += dropped;
                 let span = (v["t_end_s"].as_f64().unwrap_or(0.0)

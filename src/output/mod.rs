@@ -10,6 +10,7 @@ pub mod log_records;
 pub mod log_summary;
 pub mod marks;
 pub mod occupancy_log;
+pub mod on_air;
 pub mod picture;
 pub mod progress;
 pub mod report;

@@ -126,7 +126,8 @@ impl<W: Write> OccupancyLog<W> {
                     peak_dbfs: measured.then(|| round_to(db(i.peak_power), 2)),
                     noise_floor_dbfs_per_hz: measured.then(|| round_to(db(i.noise_density), 2)),
                     samples: i.samples,
-                    occupied_samples: i.occupied,
+                    // Shares to a thousandth of a sample: finer says nothing.
+                    occupied_samples: (i.occupied * 1000.0).round() / 1000.0,
                     dropped_samples: i.dropped_samples,
                     partial: i.partial,
                 })
