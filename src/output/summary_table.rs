@@ -60,8 +60,8 @@ pub fn to_table(summary: &LogSummary) -> String {
         "mean dBFS",
         "peak dBFS",
         "busiest",
-        "measured h",
-        "lost h",
+        "measured",
+        "lost",
     ]);
     let mut rows: Vec<Vec<String>> = vec![header.iter().map(|s| s.to_string()).collect()];
     for c in ordered(summary) {
