@@ -1,6 +1,7 @@
 //! `watch` flags and their validation.
 
 use super::common::{parse_db, parse_number, DetectArgs, DspArgs, InputArgs, PlanArgs};
+use super::sigmf_out::RecordArgs;
 use crate::measure::Detection;
 use crate::pipeline::latest::RowSettings;
 use crate::plan::Plan;
@@ -50,6 +51,8 @@ pub struct WatchArgs {
     /// Leave the mouse to the terminal (e.g. for selecting text) instead of placing markers.
     #[arg(long)]
     pub no_mouse: bool,
+    #[command(flatten)]
+    pub record: RecordArgs,
 }
 
 /// Slowest and fastest playback of a file: a thousandth of the recorded rate is already a slide
@@ -92,6 +95,8 @@ pub struct WatchConfig {
     pub mouse: bool,
     /// How signals are told from noise.
     pub detection: Detection,
+    /// `--record`: the input teed to this SigMF recording.
+    pub record: Option<String>,
 }
 
 impl WatchArgs {
@@ -131,6 +136,7 @@ impl WatchArgs {
             scroll_region: !self.no_scroll_region,
             mouse: !self.no_mouse,
             detection,
+            record: self.record.validate()?,
         })
     }
 }

@@ -1,10 +1,19 @@
 //! Consumers that write what bandwarden measures: the `measure` report (table and JSON), the
+<<<<<<< HEAD
 //! occupancy log (JSON Lines or CSV), the progress line, pictures (`snapshot`'s waterfall,
 //! `report`'s heat map) and the summary of logs; and where their output goes.
 
 pub mod canvas;
 pub mod heatmap;
 pub mod held_rows;
+=======
+//! occupancy log (JSON Lines or CSV) and the progress line; SigMF written out (the recording of
+//! the input, annotations, triggered captures); and where their output goes.
+
+pub mod annotate;
+pub mod capture;
+pub mod capture_writer;
+>>>>>>> main
 pub mod log;
 pub mod log_records;
 pub mod log_summary;
@@ -13,9 +22,11 @@ pub mod occupancy_log;
 pub mod on_air;
 pub mod picture;
 pub mod progress;
+pub mod record;
 pub mod report;
 pub mod rotation;
 pub mod samples;
+pub mod sigmf_write;
 pub mod sink;
 pub mod snapshot;
 pub mod summary_table;
