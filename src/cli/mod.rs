@@ -10,24 +10,18 @@ pub mod demo;
 pub mod log;
 pub mod measure;
 pub mod package;
-<<<<<<< HEAD
 pub mod report;
-pub mod snapshot;
-=======
 pub mod sigmf_out;
->>>>>>> main
+pub mod snapshot;
 pub mod watch;
 
 pub use common::{ChannelArgs, ChannelConfig, DspArgs, InputArgs, PlanArgs};
 pub use demo::{DemoArgs, DemoConfig};
 pub use log::{LogArgs, LogConfig};
 pub use measure::{MeasureArgs, MeasureConfig};
-<<<<<<< HEAD
 pub use report::{ReportArgs, ReportConfig};
-pub use snapshot::{SnapshotArgs, SnapshotConfig};
-=======
 pub use sigmf_out::{CaptureConfig, EmissionOutArgs, RecordArgs};
->>>>>>> main
+pub use snapshot::{SnapshotArgs, SnapshotConfig};
 pub use watch::{ColourChoice, WatchArgs, WatchConfig};
 
 use clap::{Parser, Subcommand};

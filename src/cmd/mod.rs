@@ -4,10 +4,7 @@
 pub mod demo;
 pub mod log;
 pub mod measure;
-<<<<<<< HEAD
 pub mod report;
-pub mod snapshot;
-=======
 pub mod sigmf_out;
->>>>>>> main
+pub mod snapshot;
 pub mod watch;

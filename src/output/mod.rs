@@ -1,19 +1,14 @@
 //! Consumers that write what bandwarden measures: the `measure` report (table and JSON), the
-<<<<<<< HEAD
 //! occupancy log (JSON Lines or CSV), the progress line, pictures (`snapshot`'s waterfall,
-//! `report`'s heat map) and the summary of logs; and where their output goes.
-
-pub mod canvas;
-pub mod heatmap;
-pub mod held_rows;
-=======
-//! occupancy log (JSON Lines or CSV) and the progress line; SigMF written out (the recording of
-//! the input, annotations, triggered captures); and where their output goes.
+//! `report`'s heat map) and the summary of logs; SigMF written out (the recording of the input,
+//! annotations, triggered captures); and where their output goes.
 
 pub mod annotate;
+pub mod canvas;
 pub mod capture;
 pub mod capture_writer;
->>>>>>> main
+pub mod heatmap;
+pub mod held_rows;
 pub mod log;
 pub mod log_records;
 pub mod log_summary;
