@@ -10,14 +10,18 @@ pub mod demo;
 pub mod log;
 pub mod measure;
 pub mod package;
+pub mod report;
 pub mod sigmf_out;
+pub mod snapshot;
 pub mod watch;
 
 pub use common::{ChannelArgs, ChannelConfig, DspArgs, InputArgs, PlanArgs};
 pub use demo::{DemoArgs, DemoConfig};
 pub use log::{LogArgs, LogConfig};
 pub use measure::{MeasureArgs, MeasureConfig};
+pub use report::{ReportArgs, ReportConfig};
 pub use sigmf_out::{CaptureConfig, EmissionOutArgs, RecordArgs};
+pub use snapshot::{SnapshotArgs, SnapshotConfig};
 pub use watch::{ColourChoice, WatchArgs, WatchConfig};
 
 use clap::{Parser, Subcommand};
@@ -49,6 +53,12 @@ pub enum Command {
     /// Log how busy each channel of a plan is (ITU-R SM.1880 occupancy) and every emission, as
     /// JSON Lines or CSV, for unattended runs.
     Log(LogArgs),
+    /// Draw the whole input (or part of it) as one picture, PNG or SVG: a waterfall with the
+    /// averaged spectrum above it, axes in absolute frequency and time, a colour bar in dBFS.
+    Snapshot(SnapshotArgs),
+    /// Summarise occupancy logs written by `log`: per channel, the whole period and each hour, as
+    /// a table, CSV, JSON or a heat map picture.
+    Report(ReportArgs),
     /// Print a shell completion script (bash, zsh or fish) on stdout.
     Completions(package::CompletionsArgs),
     /// Print the manual page (roff) on stdout, e.g. `bandwarden manual > bandwarden.1`.

@@ -4,5 +4,7 @@
 pub mod demo;
 pub mod log;
 pub mod measure;
+pub mod report;
 pub mod sigmf_out;
+pub mod snapshot;
 pub mod watch;
