@@ -1,8 +1,10 @@
 //! `log` flags and their validation.
 
 use super::common::{parse_seconds, ChannelArgs, ChannelConfig, DspArgs, InputArgs};
+use super::net::PublishArgs;
 use crate::dsp::DspConfig;
 use crate::output::log::LogFormat;
+use crate::output::publish::PublishConfig;
 use crate::output::rotation::{parse_rotate, Rotate};
 use crate::source::InputRequest;
 use crate::units::parse_duration;
@@ -12,7 +14,8 @@ use std::time::Duration;
 
 #[derive(Args, Debug)]
 pub struct LogArgs {
-    /// Input: a file (raw, .sigmf-meta/.sigmf-data, .wav) or - for stdin (live).
+    /// Input: a file (raw, .sigmf-meta/.sigmf-data, .wav), - for stdin (live), tcp://HOST:PORT
+    /// (connect to a receiver serving raw IQ) or tcp-listen://ADDR:PORT (accept one sender).
     #[arg(value_name = "INPUT")]
     pub input: String,
     #[command(flatten)]
@@ -47,6 +50,8 @@ pub struct LogArgs {
     pub seconds: Option<f64>,
     #[command(flatten)]
     pub channels: ChannelArgs,
+    #[command(flatten)]
+    pub publish: PublishArgs,
 }
 
 /// A validated `log`.
@@ -64,6 +69,10 @@ pub struct LogConfig {
     pub no_drop: bool,
     pub seconds: Option<f64>,
     pub rotate: Option<Rotate>,
+    /// The site's name (`--site`), for the start record.
+    pub site: Option<String>,
+    /// Publishing to a broker (`--publish`).
+    pub publish: Option<PublishConfig>,
 }
 
 impl LogArgs {
@@ -78,7 +87,10 @@ impl LogArgs {
         if self.interval.is_zero() {
             bail!("--interval must be longer than zero (e.g. 60s)");
         }
+        let publish = self.publish.validate(&self.out)?;
         Ok(LogConfig {
+            site: self.publish.site.clone(),
+            publish,
             dsp: self.dsp.validate()?,
             input: self.source.request(Some(self.input)),
             channels,

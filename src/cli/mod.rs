@@ -9,6 +9,7 @@ pub mod common;
 pub mod demo;
 pub mod log;
 pub mod measure;
+pub mod net;
 pub mod package;
 pub mod watch;
 
@@ -16,6 +17,7 @@ pub use common::{ChannelArgs, ChannelConfig, DspArgs, InputArgs, PlanArgs};
 pub use demo::{DemoArgs, DemoConfig};
 pub use log::{LogArgs, LogConfig};
 pub use measure::{MeasureArgs, MeasureConfig};
+pub use net::{CollectArgs, CollectConfig};
 pub use watch::{ColourChoice, WatchArgs, WatchConfig};
 
 use clap::{Parser, Subcommand};
@@ -47,6 +49,9 @@ pub enum Command {
     /// Log how busy each channel of a plan is (ITU-R SM.1880 occupancy) and every emission, as
     /// JSON Lines or CSV, for unattended runs.
     Log(LogArgs),
+    /// Gather what sites publish to an MQTT broker (log --publish) into one JSON Lines file per
+    /// site, as if each had logged locally; runs until Ctrl-C or SIGTERM.
+    Collect(CollectArgs),
     /// Print a shell completion script (bash, zsh or fish) on stdout.
     Completions(package::CompletionsArgs),
     /// Print the manual page (roff) on stdout, e.g. `bandwarden manual > bandwarden.1`.

@@ -30,8 +30,9 @@
 //!   above the noise), `samples` (occupied samples), `partial` (cut short by the end of the run or
 //!   by dropped input: it may have gone on).
 //! - `dropped`: `t_start_s, t_end_s, start, end, dropped_samples, cause`: input samples missing
-//!   from the measurement, `cause` `behind` (a live source outran the processing) or
-//!   `not_a_number` (NaN or infinite samples in the input).
+//!   from the measurement, `cause` `behind` (a live source outran the processing),
+//!   `not_a_number` (NaN or infinite samples in the input) or `disconnected` (a network input's
+//!   link was down: the time it was down × the sample rate, see [`crate::source::tcp`]).
 //! - `stop` (last line of an orderly end): `t_end_s, end, reason` (`end_of_input`, `limit`,
 //!   `interrupted`, `terminated`, `input_error`), `iq_samples` (read), `dropped_samples` (total).
 //!
@@ -83,7 +84,7 @@ impl<W: Write> LogWriter<W> {
         Ok(w)
     }
 
-    pub fn write(&mut self, record: &Record) -> io::Result<()> {
+    pub fn write(&mut self, record: &Stamped) -> io::Result<()> {
         self.line = match self.format {
             LogFormat::JsonLines => {
                 let mut s = serde_json::to_string(record).map_err(io::Error::other)?;
@@ -113,7 +114,7 @@ impl<W: Write> LogWriter<W> {
 }
 
 /// One CSV row (with its newline) for a record, quoting fields as RFC 4180 requires.
-pub fn csv_line(record: &Record) -> String {
+pub fn csv_line(record: &Stamped) -> String {
     let value = serde_json::to_value(record).unwrap_or(Value::Null);
     let fields: Vec<String> = CSV_COLUMNS
         .iter()
@@ -148,10 +149,11 @@ fn csv_quote(s: &str) -> String {
 mod tests {
     use super::*;
 
-    fn samples() -> Vec<Record> {
-        vec![
+    fn samples() -> Vec<Stamped> {
+        let records = vec![
             Record::Start(StartRecord {
                 version: "0.1.0".into(),
+                site: Some("wrenhollow-ridge".into()),
                 source: "a, \"quoted\" file".into(),
                 sample_rate_hz: 2.4e6,
                 center_hz: 433.5e6,
@@ -223,7 +225,9 @@ mod tests {
                 iq_samples: 144_000_000,
                 dropped_samples: 240_000,
             }),
-        ]
+        ];
+        let stamp = |(seq, record)| Stamped { record, run: "20260501T080000Z-17".into(), seq };
+        records.into_iter().enumerate().map(|(i, r)| stamp((i as u64, r))).collect()
     }
 
     #[test]

@@ -9,6 +9,7 @@ pub mod format;
 pub mod raw;
 pub mod reader;
 pub mod sigmf;
+pub mod tcp;
 pub mod wav;
 
 pub use crate::messages::sanitize;
@@ -107,12 +108,23 @@ pub trait SampleSource: Send {
     fn rewind(&mut self) -> Result<()> {
         bail!("this input cannot be replayed")
     }
+
+    /// Samples known lost just before those of the last `read` (a network input's outage);
+    /// taking them resets the count. The reader moves the time line on by them.
+    fn take_lost(&mut self) -> u64 {
+        0
+    }
+
+    /// The reader's stop flag, for sources whose `read` may wait long (a network input waiting
+    /// to reconnect): they return 0 soon after it is set.
+    fn watch_stop(&mut self, _stop: std::sync::Arc<std::sync::atomic::AtomicBool>) {}
 }
 
 /// What the user asked for on the command line.
 #[derive(Clone, Debug, Default)]
 pub struct InputRequest {
-    /// `None` for the demo scene, `-` for stdin, otherwise a path.
+    /// `None` for the demo scene, `-` for stdin, `tcp://HOST:PORT` or `tcp-listen://ADDR:PORT`
+    /// for IQ over TCP, otherwise a path.
     pub path: Option<String>,
     pub format: Option<SampleFormat>,
     pub sample_rate_hz: Option<f64>,
@@ -124,6 +136,8 @@ pub struct InputRequest {
     pub segment: Option<usize>,
     /// Of a multi-channel SigMF recording, read this channel (from 0).
     pub input_channel: Option<u64>,
+    /// `tcp-listen://` on an address beyond loopback was asked for explicitly.
+    pub listen_public: bool,
 }
 
 /// Opens the source the request names. Messages about guesses go to `notes` (printed on stderr
@@ -202,7 +216,10 @@ fn open_unchecked(req: &InputRequest, notes: &mut Vec<String>) -> Result<Box<dyn
             };
             Box::new(raw::RawSource::new(Box::new(std::io::stdin()), format, info))
         }
-        Some(path) => open_path(path, req, notes)?,
+        Some(path) => match tcp::parse_endpoint(path) {
+            Some(ep) => Box::new(tcp::open(ep?, req, notes)?),
+            None => open_path(path, req, notes)?,
+        },
     };
     Ok(src)
 }
