@@ -14,12 +14,17 @@ use std::time::{Duration, Instant};
 const BIN: &str = env!("CARGO_BIN_EXE_bandwarden");
 const FS: f64 = 200e3;
 
-/// Sends `n` samples paced at the sample rate in 10 ms chunks, as a receiver would.
-fn send_paced(sock: &mut TcpStream, n: usize, seed: u64) {
+/// `n` samples of a carrier in noise, as cf32_le bytes.
+fn signal(n: usize, seed: u64) -> Vec<u8> {
     let on = |_: u64| true;
     let x = keyed_band(n, FS, 1e-4, &[Keyed { offset_hz: 20e3, level_dbfs: -30.0, on: &on }], seed);
     let mut bytes = Vec::new();
     SampleFormat::Cf32Le.encode(&x, &mut bytes);
+    bytes
+}
+
+/// Sends samples paced at the sample rate in 10 ms chunks, as a receiver would.
+fn send_paced(sock: &mut TcpStream, bytes: &[u8]) {
     let chunk = (FS / 100.0) as usize * 8;
     let start = Instant::now();
     for (i, c) in bytes.chunks(chunk).enumerate() {
@@ -62,8 +67,10 @@ fn an_outage_of_the_link_is_logged_as_its_length_in_samples() {
         .unwrap();
     let first = (0.6 * FS) as usize;
     let second = (0.8 * FS) as usize;
+    // Made before the clock runs: making them takes longer than the resolution checked.
+    let (one, two) = (signal(first, 1), signal(second, 2));
     let (mut a, _) = listener.accept().unwrap();
-    send_paced(&mut a, first, 1);
+    send_paced(&mut a, &one);
     // Half a sample left over when the link goes: it is discarded and counted as lost.
     a.write_all(&[1, 2, 3, 4]).unwrap();
     a.flush().unwrap();
@@ -74,7 +81,7 @@ fn an_outage_of_the_link_is_logged_as_its_length_in_samples() {
     let (mut b, _) = listener.accept().unwrap();
     std::thread::sleep(Duration::from_millis(700).saturating_sub(down.elapsed()));
     let outage = down.elapsed().as_secs_f64();
-    send_paced(&mut b, second, 2);
+    send_paced(&mut b, &two);
     std::thread::sleep(Duration::from_millis(300));
     terminate(&mut child);
 
@@ -139,7 +146,7 @@ fn a_listening_input_takes_one_sender_and_refuses_a_public_address_unless_asked(
         }
     };
     let n = (0.5 * FS) as usize;
-    send_paced(&mut sock, n, 3);
+    send_paced(&mut sock, &signal(n, 3));
     std::thread::sleep(Duration::from_millis(300));
     terminate(&mut child);
     let recs = parse(&log);

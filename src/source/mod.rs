@@ -40,6 +40,22 @@ pub struct SourceInfo {
     pub segments: Vec<Segment>,
 }
 
+impl SourceInfo {
+    /// A stream that arrives in real time (stdin, a socket), described by the request's flags.
+    pub fn live(label: String, format: SampleFormat, rate: f64, req: &InputRequest) -> SourceInfo {
+        SourceInfo {
+            label,
+            format: Some(format),
+            sample_rate_hz: rate,
+            center_hz: req.center_hz.unwrap_or(0.0),
+            start_time: req.start_time,
+            total_samples: None,
+            live: true,
+            segments: Vec::new(),
+        }
+    }
+}
+
 /// One capture segment of a recording, as delivered.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Segment {
@@ -204,16 +220,7 @@ fn open_unchecked(req: &InputRequest, notes: &mut Vec<String>) -> Result<Box<dyn
             let rate = req
                 .sample_rate_hz
                 .context("reading stdin needs --rate (the sample rate, e.g. --rate 2.4M)")?;
-            let info = SourceInfo {
-                label: "stdin".into(),
-                format: Some(format),
-                sample_rate_hz: rate,
-                center_hz: req.center_hz.unwrap_or(0.0),
-                start_time: req.start_time,
-                total_samples: None,
-                live: true,
-                segments: Vec::new(),
-            };
+            let info = SourceInfo::live("stdin".into(), format, rate, req);
             Box::new(raw::RawSource::new(Box::new(std::io::stdin()), format, info))
         }
         Some(path) => match tcp::parse_endpoint(path) {

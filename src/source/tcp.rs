@@ -171,16 +171,7 @@ pub fn open(ep: Endpoint, req: &InputRequest, notes: &mut Vec<String>) -> Result
             (format!("tcp-listen://{}", l.local_addr()?), Some(l))
         }
     };
-    let info = SourceInfo {
-        label,
-        format: Some(format),
-        sample_rate_hz: rate,
-        center_hz: req.center_hz.unwrap_or(0.0),
-        start_time: req.start_time,
-        total_samples: None,
-        live: true,
-        segments: Vec::new(),
-    };
+    let info = SourceInfo::live(label, format, rate, req);
     let mut src = TcpSource {
         endpoint: ep,
         listener,
