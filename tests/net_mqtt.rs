@@ -179,7 +179,9 @@ fn lines(path: &Path) -> Vec<String> {
 fn two_sites_lose_nothing_across_a_cut_link_and_a_broker_restart() {
     let Some(bin) = mosquitto() else {
         if std::env::var("CI").is_ok_and(|v| v == "true") {
-            panic!("mosquitto is not installed: .ci/run installs it with apt-get install -y mosquitto");
+            panic!(
+                "mosquitto is not installed: .ci/run installs it with apt-get install -y mosquitto"
+            );
         }
         eprintln!("note: mosquitto is not installed (apt-get install -y mosquitto); test skipped");
         return;
@@ -218,6 +220,8 @@ fn two_sites_lose_nothing_across_a_cut_link_and_a_broker_restart() {
         let out = c.wait_with_output_ref();
         assert!(out.0.success(), "{name} log failed: {}", out.1);
         assert!(out.1.contains("published"), "{name}: {}", out.1);
+        // The cut and the restart really reached the site.
+        assert!(out.1.contains("link to the broker was lost"), "{name}: {}", out.1);
     }
     let want_a = lines(&local_a);
     let want_b = lines(&local_b);
