@@ -12,6 +12,9 @@
 //! when the time of the first sample is unknown (raw file without `--start`). Levels are dBFS (a
 //! complex sample of magnitude 1 is 0 dBFS), frequencies absolute hertz.
 //!
+//! Every record ends with its id, `run` (the run of `log` that wrote it) and `seq` (from 0), see
+//! [`Stamped`]; the `start` record carries `site` when `--site` names one.
+//!
 //! - `start` (first line): the settings. `version, source, sample_rate_hz, center_hz, fft_size,
 //!   window, overlap, rbw_hz, dwell_s` (one measurement sample), `frames_per_sample, interval_s,
 //!   hang_s, threshold_db` (default threshold), `obw_percent, floor_memory_s, floor_smoothing_s,

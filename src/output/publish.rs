@@ -109,7 +109,10 @@ impl Publisher {
         };
         let thread = std::thread::Builder::new()
             .name("publish".into())
-            .spawn(move || worker.run())
+            .spawn(move || {
+                worker.run();
+                worker.spool.save();
+            })
             .map_err(anyhow::Error::from)?;
         Ok(Publisher { spool, stop, stats, thread: Some(thread) })
     }
@@ -259,14 +262,18 @@ impl Worker {
                 }
             }
             if !said_goodbye {
-                let room = WINDOW.saturating_sub(unsent.len() + in_flight.len());
-                let wait =
-                    if room == 0 || stopping { Duration::ZERO } else { Duration::from_millis(20) };
-                for (pos, line) in self.spool.read_from(cursor, room, wait) {
-                    if !self.send(&client, &line, pos, &mut unsent) {
-                        break;
+                // Refill in batches: each read of the spool opens a file.
+                let busy = unsent.len() + in_flight.len();
+                let room = WINDOW.saturating_sub(busy);
+                if room >= WINDOW / 2 || busy == 0 {
+                    let idle = busy == 0 && !stopping;
+                    let wait = if idle { Duration::from_millis(20) } else { Duration::ZERO };
+                    for (pos, line) in self.spool.read_from(cursor, room, wait) {
+                        if !self.send(&client, &line, pos, &mut unsent) {
+                            break;
+                        }
+                        cursor = pos;
                     }
-                    cursor = pos;
                 }
             }
             match conn.recv_timeout(Duration::from_millis(20)) {

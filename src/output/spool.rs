@@ -17,7 +17,10 @@ use std::fs::{File, OpenOptions};
 use std::io::{BufRead, BufReader, Read, Seek, SeekFrom, Write};
 use std::path::{Path, PathBuf};
 use std::sync::{Condvar, Mutex, MutexGuard};
-use std::time::Duration;
+use std::time::{Duration, Instant};
+
+/// Longest time an acknowledgement waits before the position is written to disk.
+pub const SAVE_EVERY: Duration = Duration::from_millis(200);
 
 /// Size at which a new segment file is started.
 pub const SEGMENT_BYTES: u64 = 1 << 20;
@@ -34,6 +37,9 @@ struct Inner {
     segments: VecDeque<(u64, u64)>,
     writer: Option<File>,
     acked: Pos,
+    /// When `acked` was last written to disk, and whether it has moved since.
+    saved_at: Option<Instant>,
+    dirty: bool,
     refused: u64,
     io_errors: u64,
 }
@@ -80,7 +86,15 @@ impl Spool {
         let spool = Spool {
             dir: dir.to_path_buf(),
             max_bytes,
-            inner: Mutex::new(Inner { segments, writer: None, acked, refused: 0, io_errors: 0 }),
+            inner: Mutex::new(Inner {
+                segments,
+                writer: None,
+                acked,
+                saved_at: None,
+                dirty: false,
+                refused: 0,
+                io_errors: 0,
+            }),
             grew: Condvar::new(),
         };
         Ok(spool)
@@ -174,20 +188,39 @@ impl Spool {
         Pos { segment, offset }
     }
 
-    /// Everything before `upto` was acknowledged: remember it, delete finished segments.
+    /// Everything before `upto` was acknowledged: remember it, delete finished segments. The
+    /// position reaches the disk at most every [`SAVE_EVERY`] (and on [`Spool::save`]): after a
+    /// crash a few records are sent twice, which the collector drops by id.
     pub fn ack(&self, upto: Pos) {
         let mut g = self.lock();
         if upto <= g.acked {
             return;
         }
         g.acked = upto;
+        g.dirty = true;
         while g.segments.len() > 1 && g.segments[0].0 < upto.segment {
             let (n, _) = g.segments.pop_front().expect("checked");
             let _ = std::fs::remove_file(segment_path(&self.dir, n));
         }
-        if write_acked(&self.dir, upto).is_err() {
+        if !matches!(g.saved_at, Some(t) if t.elapsed() < SAVE_EVERY) {
+            self.save_locked(&mut g);
+        }
+    }
+
+    /// Writes the acknowledged position to disk now.
+    pub fn save(&self) {
+        let mut g = self.lock();
+        if g.dirty {
+            self.save_locked(&mut g);
+        }
+    }
+
+    fn save_locked(&self, g: &mut Inner) {
+        if write_acked(&self.dir, g.acked).is_err() {
             g.io_errors += 1;
         }
+        g.saved_at = Some(Instant::now());
+        g.dirty = false;
     }
 
     /// The first position not acknowledged.
@@ -274,6 +307,7 @@ mod tests {
         assert_eq!(first.len(), 100);
         assert_eq!(first[0].1, lines[0]);
         s.ack(first[99].0);
+        s.save();
         drop(s);
         // A new run finds the rest, from the first unacknowledged line, across segments.
         let s = Spool::open(&d, 1 << 30).unwrap();
