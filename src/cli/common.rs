@@ -2,6 +2,8 @@
 //! which channels are measured; and the value parsers every flag uses, each written once.
 
 use crate::dsp::{DspConfig, EngineConfig, WindowKind};
+use crate::measure::signals::DEFAULT_FALSE_ALARM;
+use crate::measure::Detection;
 use crate::messages::sanitize;
 use crate::output::report::Band;
 use crate::plan::{check_threshold_db, parse_channel_flag, Channel, Plan, DEFAULT_THRESHOLD_DB};
@@ -102,6 +104,48 @@ impl DspArgs {
         };
         EngineConfig::validate(&cfg.engine(None)).map_err(anyhow::Error::msg)?;
         Ok(cfg)
+    }
+}
+
+/// Smallest and largest false-alarm probability `--false-alarm` accepts: below 10⁻¹² the χ²
+/// quantile leaves the range where it is computed accurately, above 10⁻² noise alone would fill a
+/// table with signals.
+pub const FALSE_ALARM_RANGE: (f64, f64) = (1e-12, 1e-2);
+
+/// How signals are told from noise (`measure`, `watch`, `census`).
+#[derive(Args, Debug, Clone)]
+pub struct DetectArgs {
+    /// Probability that one bin of noise alone crosses the detection threshold in one averaged
+    /// spectrum (per bin, per row), 1e-12 ..= 1e-2. Smaller finds fewer false signals and misses
+    /// more weak ones; the threshold follows from the χ² statistics of the average, so it falls
+    /// as more frames are averaged.
+    #[arg(
+        long = "false-alarm",
+        value_name = "P",
+        default_value_t = DEFAULT_FALSE_ALARM,
+        value_parser = parse_number,
+        help_heading = "Detection"
+    )]
+    pub false_alarm: f64,
+}
+
+impl Default for DetectArgs {
+    fn default() -> Self {
+        DetectArgs { false_alarm: DEFAULT_FALSE_ALARM }
+    }
+}
+
+impl DetectArgs {
+    /// The detection settings, with the probability checked.
+    pub fn validate(&self, obw_percent: f64) -> Result<Detection> {
+        let (lo, hi) = FALSE_ALARM_RANGE;
+        if !(lo..=hi).contains(&self.false_alarm) {
+            anyhow::bail!(
+                "--false-alarm {} is out of range; choose a probability per bin from {lo:e} to {hi:e} (1e-6 is the default)",
+                format_num(self.false_alarm),
+            );
+        }
+        Ok(Detection { false_alarm_per_bin: self.false_alarm, obw_percent, ..Detection::default() })
     }
 }
 

@@ -3,8 +3,9 @@
 use super::common::{
     parse_band, parse_db, parse_number, parse_seconds, ChannelArgs, ChannelConfig,
 };
-use super::common::{DspArgs, InputArgs};
+use super::common::{DetectArgs, DspArgs, InputArgs};
 use crate::dsp::DspConfig;
+use crate::measure::Detection;
 use crate::output::report::Band;
 use crate::source::InputRequest;
 use crate::units::format_num;
@@ -33,6 +34,9 @@ pub struct MeasureArgs {
     /// Read at most this many seconds of input (the demo scene defaults to 2 s).
     #[arg(long, value_name = "SECONDS", value_parser = parse_seconds)]
     pub seconds: Option<f64>,
+    /// Skip this many seconds of input before measuring (`--seconds` counts from there).
+    #[arg(long, value_name = "SECONDS", value_parser = parse_seconds)]
+    pub skip: Option<f64>,
     /// How many of the strongest signals to list.
     #[arg(long, value_name = "K", default_value_t = 10)]
     pub peaks: usize,
@@ -49,6 +53,8 @@ pub struct MeasureArgs {
     #[arg(long)]
     pub json: bool,
     #[command(flatten)]
+    pub detect: DetectArgs,
+    #[command(flatten)]
     pub channels: ChannelArgs,
 }
 
@@ -59,11 +65,15 @@ pub struct MeasureConfig {
     pub dsp: DspConfig,
     /// Seconds of input to take at most.
     pub seconds: Option<f64>,
+    /// Seconds of input to skip first.
+    pub skip: f64,
     pub peaks: usize,
     pub bands: Vec<Band>,
     pub obw_percent: f64,
     pub xdb: f64,
     pub json: bool,
+    /// How signals are told from noise.
+    pub detection: Detection,
     pub channels: ChannelConfig,
 }
 
@@ -88,17 +98,20 @@ impl MeasureArgs {
             );
         }
         let dsp = self.dsp.validate()?;
+        let detection = self.detect.validate(self.obw_percent)?;
         let channels = self.channels.validate()?;
         let demo = self.input.is_none();
         Ok(MeasureConfig {
             input: self.source.request(self.input),
             dsp,
             seconds: self.seconds.or(demo.then_some(DEMO_SECONDS)),
+            skip: self.skip.unwrap_or(0.0),
             peaks: self.peaks,
             bands: self.bands,
             obw_percent: self.obw_percent,
             xdb: self.xdb,
             json: self.json,
+            detection,
             channels,
         })
     }

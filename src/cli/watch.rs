@@ -1,6 +1,8 @@
 //! `watch` flags and their validation.
 
-use super::common::{parse_db, parse_number, DspArgs, InputArgs, PlanArgs};
+use super::common::{parse_db, parse_number, DetectArgs, DspArgs, InputArgs, PlanArgs};
+use super::sigmf_out::RecordArgs;
+use crate::measure::Detection;
 use crate::pipeline::latest::RowSettings;
 use crate::plan::Plan;
 use crate::source::InputRequest;
@@ -19,6 +21,8 @@ pub struct WatchArgs {
     pub source: InputArgs,
     #[command(flatten)]
     pub dsp: DspArgs,
+    #[command(flatten)]
+    pub detect: DetectArgs,
     /// Screen updates per second at most, 1 ..= 60.
     #[arg(long, value_name = "N", default_value_t = 20.0, value_parser = parse_number)]
     pub fps: f64,
@@ -48,6 +52,8 @@ pub struct WatchArgs {
     /// Leave the mouse to the terminal (e.g. for selecting text) instead of placing markers.
     #[arg(long)]
     pub no_mouse: bool,
+    #[command(flatten)]
+    pub record: RecordArgs,
 }
 
 /// Slowest and fastest playback of a file: a thousandth of the recorded rate is already a slide
@@ -88,11 +94,16 @@ pub struct WatchConfig {
     pub colour: ColourChoice,
     pub scroll_region: bool,
     pub mouse: bool,
+    /// How signals are told from noise.
+    pub detection: Detection,
+    /// `--record`: the input teed to this SigMF recording.
+    pub record: Option<String>,
 }
 
 impl WatchArgs {
     pub fn validate(self) -> Result<WatchConfig> {
         let dsp = self.dsp.validate()?;
+        let detection = self.detect.validate(Detection::default().obw_percent)?;
         if !(1.0..=60.0).contains(&self.fps) {
             bail!("--fps {} is out of range; choose 1 ..= 60 (20 is usual)", format_num(self.fps));
         }
@@ -125,6 +136,8 @@ impl WatchArgs {
             colour: self.colour,
             scroll_region: !self.no_scroll_region,
             mouse: !self.no_mouse,
+            detection,
+            record: self.record.validate()?,
         })
     }
 }
@@ -146,6 +159,15 @@ mod tests {
 
     fn error(args: &[&str]) -> String {
         parse(args).validate().unwrap_err().to_string()
+    }
+
+    #[test]
+    fn false_alarm_reaches_the_signal_list() {
+        let c = parse(&["--false-alarm", "1e-3"]).validate().unwrap();
+        assert_eq!(c.detection.false_alarm_per_bin, 1e-3);
+        let d = parse(&[]).validate().unwrap().detection;
+        assert_eq!(d.false_alarm_per_bin, crate::measure::signals::DEFAULT_FALSE_ALARM);
+        assert!(error(&["--false-alarm", "0.2"]).contains("--false-alarm"));
     }
 
     #[test]

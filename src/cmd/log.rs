@@ -11,6 +11,7 @@
 //! falls behind, whole blocks are dropped, counted and logged (`dropped` records), never hidden.
 //! `--no-drop` makes the reader wait instead (the writer upstream then blocks).
 
+use super::sigmf_out::{SigmfOutputs, SigmfRequest};
 use crate::cli::LogConfig;
 use crate::messages::{note, notes};
 use crate::output::log::LogWriter;
@@ -22,7 +23,7 @@ use crate::output::sink;
 use crate::pipeline::input::{live_block_len, FILE_BLOCK_LEN};
 use crate::pipeline::occupancy::{OccupancyRequest, OccupancySetup};
 use crate::pipeline::stop::Escalation;
-use crate::pipeline::{run_input, Input, Run, RunSpec, StopSignals, TimeSource};
+use crate::pipeline::{run_input, Consumer, Input, Run, RunSpec, StopSignals, TimeSource};
 use crate::source::reader::ReaderOptions;
 use crate::source::{self};
 use anyhow::{Context, Result};
@@ -80,8 +81,18 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
 
     let signals = StopSignals::install(false, Escalation::SecondSignalExits)?;
     let max_samples = cfg.seconds.map(|s| (s * info.sample_rate_hz).round() as u64);
+    let block_len = if info.live { live_block_len(info.sample_rate_hz) } else { FILE_BLOCK_LEN };
+    let request = SigmfRequest {
+        wait: cfg.no_drop,
+        record: cfg.record.as_deref(),
+        annotate: cfg.annotate.as_deref(),
+        capture: cfg.capture.as_ref(),
+    };
+    let side = log.side_records();
+    let mut sigmf_out =
+        SigmfOutputs::new(request, &cfg.input, &info, plan, &inputs, block_len, side)?;
     let opts = ReaderOptions {
-        block_len: if info.live { live_block_len(info.sample_rate_hz) } else { FILE_BLOCK_LEN },
+        block_len,
         drop_when_full: info.live && !cfg.no_drop,
         max_samples,
         ..Default::default()
@@ -92,8 +103,10 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
     };
     let mut progress = Progress::for_file(total, info.sample_rate_hz);
     let input = Input::start(src, opts);
-    let run = Run::new(spec, vec![&mut progress, &mut log]);
-    let outcome = run_input(input, run, Some(&signals));
+    let mut consumers: Vec<&mut dyn Consumer> = vec![&mut progress];
+    consumers.extend(sigmf_out.consumers());
+    consumers.push(&mut log);
+    let outcome = run_input(input, Run::new(spec, consumers), Some(&signals));
     drop(log);
     if let Some(p) = publisher {
         notes(&p.finish().notes());

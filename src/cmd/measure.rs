@@ -1,8 +1,9 @@
 //! `bandwarden measure`: average the whole input into one spectrum and measure it.
 
 use crate::cli::MeasureConfig;
-use crate::measure::occupancy::{DEFAULT_HANG_S, DEFAULT_INTERVAL_S};
+use crate::measure::occupancy::{ChannelDef, DEFAULT_HANG_S, DEFAULT_INTERVAL_S};
 use crate::messages::notes;
+use crate::output::on_air::OnAirBands;
 use crate::output::report::{build_report, channel_rows, InputCounts, ReportSettings};
 use crate::output::sink;
 use crate::output::whole::WholeInput;
@@ -10,6 +11,7 @@ use crate::pipeline::occupancy::{OccupancyRequest, OccupancySetup};
 use crate::pipeline::{run_input, Input, Run, RunSpec};
 use crate::source::reader::ReaderOptions;
 use crate::source::{self, sanitize};
+use crate::units::{format_num, samples_in};
 use anyhow::{bail, Result};
 use std::io::Write;
 use std::process::ExitCode;
@@ -20,26 +22,43 @@ pub fn run(cfg: MeasureConfig) -> Result<ExitCode> {
     notes(&opened);
     let info = src.info().clone();
     let max_samples = cfg.seconds.map(|s| (s * info.sample_rate_hz).round() as u64);
+    let skip_samples = samples_in(cfg.skip, info.sample_rate_hz).map_err(anyhow::Error::msg)?;
     let plan = &cfg.channels.plan;
     let mut spec = RunSpec::new(info.clone(), cfg.dsp.engine(None), cfg.dsp.threads);
-    let mut dwell_s = 0.0;
-    if !plan.is_empty() {
-        let request = OccupancyRequest {
-            dwell_s: cfg.channels.dwell_s,
-            threshold_db: cfg.channels.threshold_db,
-            interval_s: DEFAULT_INTERVAL_S,
-            hang_s: DEFAULT_HANG_S,
-        };
-        let setup = OccupancySetup::new(&info, &cfg.dsp, plan, &request)?.whole_input();
-        dwell_s = setup.dwell_s();
+    let request = OccupancyRequest {
+        dwell_s: cfg.channels.dwell_s,
+        threshold_db: cfg.channels.threshold_db,
+        interval_s: DEFAULT_INTERVAL_S,
+        hang_s: DEFAULT_HANG_S,
+    };
+    // Plan channels and bands are followed row by row (one measurement sample each).
+    let setup = OccupancySetup::new(&info, &cfg.dsp, plan, &request)?.whole_input();
+    let dwell_s = setup.dwell_s();
+    if !plan.is_empty() || !cfg.bands.is_empty() {
         spec.engine = setup.engine.clone();
+    }
+    if !plan.is_empty() {
         spec.tracker = Some(setup.tracker());
     }
+    let bands = cfg.bands.iter().map(|b| ChannelDef {
+        low_hz: b.center_hz - b.width_hz / 2.0,
+        high_hz: b.center_hz + b.width_hz / 2.0,
+        threshold_db: cfg.channels.threshold_db,
+    });
+    let mut on_air = OnAirBands::new(bands.collect(), &setup.timing);
     spec.check_work()?;
     let mut whole = WholeInput::new(plan.channels.len());
-    let input = Input::start(src, ReaderOptions { max_samples, ..Default::default() });
+    let opts = ReaderOptions { max_samples, skip_samples, ..Default::default() };
+    let input = Input::start(src, opts);
     let stats = input.stats.clone();
-    let outcome = run_input(input, Run::new(spec, vec![&mut whole]), None)?;
+    let outcome = run_input(input, Run::new(spec, vec![&mut whole, &mut on_air]), None)?;
+    if outcome.samples_read == 0 && skip_samples > 0 {
+        bail!(
+            "the input '{}' ends before the {} s that --skip passes over; skip less",
+            sanitize(&info.label),
+            format_num(cfg.skip)
+        );
+    }
     let issues = outcome.issues.clone().unwrap_or_default();
     notes(&issues.notes());
     outcome.check(&info.label)?;
@@ -64,6 +83,7 @@ pub fn run(cfg: MeasureConfig) -> Result<ExitCode> {
         bands: cfg.bands.clone(),
         obw_percent: cfg.obw_percent,
         xdb: cfg.xdb,
+        false_alarm_per_bin: cfg.detection.false_alarm_per_bin,
     };
     let counts = InputCounts {
         samples: whole.samples,
@@ -71,6 +91,9 @@ pub fn run(cfg: MeasureConfig) -> Result<ExitCode> {
         dropped: stats.dropped.load(std::sync::atomic::Ordering::Relaxed),
     };
     let mut report = build_report(&settings, &info.label, &spectrum, &counts)?;
+    for (row, f) in report.bands.iter_mut().zip(on_air.figures(cfg.obw_percent, cfg.xdb)) {
+        row.set_on_air(&f);
+    }
     if !plan.is_empty() {
         report.channels = channel_rows(plan, &spectrum, &whole.occupancy, dwell_s, cfg.obw_percent);
     }

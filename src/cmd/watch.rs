@@ -4,11 +4,12 @@
 //! stdin and the demo scene are live, and samples the DSP cannot keep up with are dropped and
 //! counted on screen rather than queued without bound.
 
+use super::sigmf_out::{recorded_note, recorder};
 use crate::cli::{ColourChoice, WatchConfig};
 use crate::messages::{note, notes, sanitize};
 use crate::pipeline::input::live_block_len;
 use crate::pipeline::latest::RowFeed;
-use crate::pipeline::{Input, RunSpec};
+use crate::pipeline::{Consumer, Input, RunSpec};
 use crate::plan::Plan;
 use crate::source::reader::ReaderOptions;
 use crate::source::{self};
@@ -52,12 +53,17 @@ pub fn run(cfg: WatchConfig) -> Result<ExitCode> {
         drop_when_full: info.live,
         pace: is_file.then_some(cfg.speed),
         loop_input: cfg.loop_input && is_file,
-        max_samples: None,
+        ..Default::default()
     };
     let spec = RunSpec::new(info.clone(), cfg.rows.engine(rate), cfg.rows.threads);
     spec.check_work()?;
     let input = Input::start(src, opts);
-    let feed = RowFeed::spawn(input.blocks.clone(), spec)?;
+    let recorder =
+        cfg.record.as_deref().map(|r| recorder(r, &cfg.input, &info, live_block_len(rate)));
+    let recorder = recorder.transpose()?;
+    let status = recorder.as_ref().map(|r| (r.status(), r.meta_path().to_path_buf()));
+    let extra = recorder.into_iter().map(|r| Box::new(r) as Box<dyn Consumer + Send>).collect();
+    let feed = RowFeed::spawn_with(input.blocks.clone(), spec, extra)?;
     let summary = SourceSummary {
         label: sanitize(&info.label),
         sample_rate_hz: rate,
@@ -72,13 +78,17 @@ pub fn run(cfg: WatchConfig) -> Result<ExitCode> {
         ColourChoice::Forced(d) => d,
     };
     let marks = marks(&cfg.plan);
-    let app = App::new(summary, cfg.rows, depth, cfg.ref_offset, marks, Instant::now());
+    let mut app = App::new(summary, cfg.rows, depth, cfg.ref_offset, marks, Instant::now());
+    app.detection = cfg.detection;
     let run_opts = RunOptions { fps: cfg.fps, scroll_region: cfg.scroll_region, mouse: cfg.mouse };
     let result = tui::run(app, &feed, &input.stats, run_opts);
     input.request_stop();
     feed.stop();
     shut_down(input);
     result?;
+    if let Some((status, meta)) = status {
+        recorded_note(&*status.lock().map_err(|_| anyhow::anyhow!("the recorder failed"))?, &meta)?;
+    }
     Ok(ExitCode::SUCCESS)
 }
 

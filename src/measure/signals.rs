@@ -94,7 +94,7 @@ impl Default for Detection {
     }
 }
 
-/// Finds up to `max` signals, strongest first. `floor` is the noise density (FS²/Hz) and `window`
+/// Finds up to `max` signals, strongest (most integrated power) first. `floor` is the noise density (FS²/Hz) and `window`
 /// must be the spectrum's own window at its size.
 pub fn find_signals(
     spec: &Spectrum,
@@ -161,7 +161,11 @@ pub fn find_signals(
             found.push(describe(spec, window, floor, (lo, hi), peak, det.obw_percent));
         }
     }
-    found.sort_by(|a, b| b.level_dbfs.total_cmp(&a.level_dbfs));
+    // Strongest by total power, so a wideband link (low in any one RBW) ranks with a tone of
+    // the same power; the peak level breaks ties.
+    found.sort_by(|a, b| {
+        b.power_dbfs.total_cmp(&a.power_dbfs).then(b.level_dbfs.total_cmp(&a.level_dbfs))
+    });
     found.truncate(max);
     found
 }

@@ -25,7 +25,8 @@
 //!   (mean channel power over the samples), `peak_dbfs` (highest channel power of one sample),
 //!   `noise_floor_dbfs_per_hz` (mean tracked noise density), `samples` (measurement samples;
 //!   0 when all the interval's input was lost, and then the levels and occupancy are `null`),
-//!   `occupied_samples, dropped_samples` (input samples lost in the interval), `partial` (the
+//!   `occupied_samples` (fractional: edge samples count by the share an emission filled),
+//!   `dropped_samples` (input samples lost in the interval), `partial` (the
 //!   interval was cut short by the end of the run).
 //! - `emission` (when an emission ends): `channel, center_hz, t_start_s, t_end_s, start, end,
 //!   duration_s, peak_dbfs, mean_dbfs` (over its occupied samples), `obw_hz` (99 % occupied
@@ -36,6 +37,10 @@
 //!   from the measurement, `cause` `behind` (a live source outran the processing),
 //!   `not_a_number` (NaN or infinite samples in the input) or `disconnected` (a network input's
 //!   link was down: the time it was down × the sample rate, see [`crate::source::tcp`]).
+//! - `capture` (with `--capture`, when a capture is closed or skipped): `channel, status`
+//!   (`saved` or `skipped`), `file` (the capture's `.sigmf-meta`), `cause` (of a skip: `disk_cap`
+//!   or `disk_behind`), `t_start_s, t_end_s, start, end` (the IQ in the file), `iq_samples,
+//!   bytes, truncated` (the emission outlasted `--capture-max-seconds`).
 //! - `stop` (last line of an orderly end): `t_end_s, end, reason` (`end_of_input`, `limit`,
 //!   `interrupted`, `terminated`, `input_error`), `iq_samples` (read), `dropped_samples` (total).
 //!
@@ -46,7 +51,7 @@
 //! {"kind":"start","version":"0.1.0","source":"recordings/wrenhollow-demo.sigmf-data","sample_rate_hz":1000000.0,"center_hz":433500000.0,"fft_size":4096,"window":"hann","overlap":0.5,"rbw_hz":366.211,"dwell_s":0.008192,"frames_per_sample":4,"interval_s":2.0,"hang_s":0.032768,"threshold_db":10.0,"obw_percent":99.0,"floor_memory_s":2.0,"floor_smoothing_s":0.5,"t_start_s":0.0,"start":"2031-04-17T06:30:00.000Z","time_source":"sigmf"}
 //! {"kind":"channel","channel":"telem","center_hz":433637500.0,"width_hz":12500.0,"threshold_db":10.0}
 //! {"kind":"emission","channel":"telem","center_hz":433637500.0,"t_start_s":1.647616,"t_end_s":1.729536,"start":"2031-04-17T06:30:01.648Z","end":"2031-04-17T06:30:01.730Z","duration_s":0.08192,"peak_dbfs":-33.88,"mean_dbfs":-34.1,"obw_hz":7185.5,"samples":10,"partial":false}
-//! {"kind":"interval","channel":"telem","center_hz":433637500.0,"width_hz":12500.0,"t_start_s":0.0,"t_end_s":2.0,"start":"2031-04-17T06:30:00.000Z","end":"2031-04-17T06:30:02.000Z","occupancy_pct":6.531,"mean_dbfs":-45.59,"peak_dbfs":-33.88,"noise_floor_dbfs_per_hz":-94.8,"samples":245,"occupied_samples":16,"dropped_samples":0,"partial":false}
+//! {"kind":"interval","channel":"telem","center_hz":433637500.0,"width_hz":12500.0,"t_start_s":0.0,"t_end_s":2.0,"start":"2031-04-17T06:30:00.000Z","end":"2031-04-17T06:30:02.000Z","occupancy_pct":6.531,"mean_dbfs":-45.59,"peak_dbfs":-33.88,"noise_floor_dbfs_per_hz":-94.8,"samples":245,"occupied_samples":15.964,"dropped_samples":0,"partial":false}
 //! {"kind":"stop","t_end_s":4.0,"end":"2031-04-17T06:30:04.000Z","reason":"end_of_input","iq_samples":4000000,"dropped_samples":0}
 //! ```
 //!
@@ -195,7 +200,7 @@ mod tests {
                 peak_dbfs: Some(-30.9),
                 noise_floor_dbfs_per_hz: Some(-112.3),
                 samples: 6392,
-                occupied_samples: 1931,
+                occupied_samples: 1931.0,
                 dropped_samples: 0,
                 partial: false,
             }),

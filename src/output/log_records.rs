@@ -25,6 +25,7 @@ pub enum Record {
     Interval(IntervalRecord),
     Emission(EmissionRecord),
     Dropped(DroppedRecord),
+    Capture(CaptureRecord),
     Stop(StopRecord),
 }
 
@@ -82,7 +83,7 @@ pub struct IntervalRecord {
     pub peak_dbfs: Option<f64>,
     pub noise_floor_dbfs_per_hz: Option<f64>,
     pub samples: u64,
-    pub occupied_samples: u64,
+    pub occupied_samples: f64,
     pub dropped_samples: u64,
     pub partial: bool,
 }
@@ -115,6 +116,30 @@ pub struct DroppedRecord {
     /// `behind` (a live source outran the processing), `not_a_number` (NaN/infinite samples) or
     /// `disconnected` (a network input's link was down).
     pub cause: String,
+}
+
+/// An emission's IQ saved by `--capture` as a SigMF recording, or skipped.
+#[derive(Serialize, Debug, Clone, PartialEq)]
+pub struct CaptureRecord {
+    pub channel: String,
+    /// `saved` or `skipped`.
+    pub status: String,
+    /// The capture's `.sigmf-meta` (its data is the `.sigmf-data` beside it); `null` if skipped.
+    pub file: Option<String>,
+    /// Why it was skipped: `disk_cap` (`--capture-max-bytes` reached) or `disk_behind` (the disk
+    /// could not keep up with live input).
+    pub cause: Option<String>,
+    /// The span of IQ in the file (a skipped capture: the emission's start, no end).
+    pub t_start_s: f64,
+    pub t_end_s: Option<f64>,
+    pub start: Option<String>,
+    pub end: Option<String>,
+    /// IQ samples in the file.
+    pub iq_samples: u64,
+    /// Bytes of samples in the file.
+    pub bytes: u64,
+    /// The emission was longer than `--capture-max-seconds`: the file holds its first part.
+    pub truncated: bool,
 }
 
 /// The last line of a run that ended in an orderly way.
@@ -172,4 +197,8 @@ pub const CSV_COLUMNS: &[&str] = &[
     "site",
     "run",
     "seq",
+    "status",
+    "file",
+    "bytes",
+    "truncated",
 ];

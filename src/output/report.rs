@@ -4,12 +4,17 @@
 //! `source, sample_rate_hz, center_hz, fft_size, window, rbw_hz, enbw_bins, frames, samples,
 //! duration_s, dof, psd_uncertainty_db, total_power_dbfs, noise_floor_dbfs_per_hz, peaks, bands,
 //! input_issues`.
-//! `peaks[]`: `freq_hz, level_dbfs, snr_db, power_dbfs, obw_hz` (strongest first).
+//! `peaks[]`: `freq_hz, level_dbfs, snr_db, power_dbfs, obw_hz`, strongest `power_dbfs` (the
+//! signal's integrated power) first; `level_dbfs` is a sinusoid's power at the peak, in one RBW.
 //! `bands[]`: `center_hz, width_hz, power_dbfs, obw_hz, obw_low_hz, obw_high_hz,
-//! xdb_bandwidth_hz`.
+//! xdb_bandwidth_hz` over the whole recording, then `on_air_pct` (share of measurement samples in
+//! which the band was on the air) and `on_air_obw_hz, on_air_obw_low_hz, on_air_obw_high_hz,
+//! on_air_xdb_bandwidth_hz` over those samples only, noise taken off (null if never on the air;
+//! see [`super::on_air`]).
 //! `channels[]` (only with `--channel`/`--plan`): `name, center_hz, width_hz, power_dbfs, obw_hz,
 //! occupancy_pct, samples, dwell_s`.
 
+use super::on_air::OnAirFigures;
 use crate::dsp::{Spectrum, Window};
 use crate::measure::stats::gamma_quantile_unit_mean;
 use crate::measure::{
@@ -37,6 +42,8 @@ pub struct ReportSettings {
     pub bands: Vec<Band>,
     pub obw_percent: f64,
     pub xdb: f64,
+    /// Probability per bin that noise alone is listed as a signal.
+    pub false_alarm_per_bin: f64,
 }
 
 /// What the run counted besides the spectrum.
@@ -56,7 +63,11 @@ pub fn build_report(
 ) -> Result<Report> {
     let window = Window::new(spec.window, spec.fft_size);
     let floor = noise_floor(&spec.psd, spec.dof);
-    let det = Detection { obw_percent: settings.obw_percent, ..Detection::default() };
+    let det = Detection {
+        obw_percent: settings.obw_percent,
+        false_alarm_per_bin: settings.false_alarm_per_bin,
+        ..Detection::default()
+    };
     let peaks = find_signals(spec, &window, floor, settings.peaks, det)
         .into_iter()
         .map(|s| PeakRow {
@@ -90,6 +101,11 @@ pub fn build_report(
             obw_low_hz: obw.map_or(b.center_hz, |e| e.low_hz),
             obw_high_hz: obw.map_or(b.center_hz, |e| e.high_hz),
             xdb_bandwidth_hz: xdb.map_or(0.0, |e| e.width_hz()),
+            on_air_pct: 0.0,
+            on_air_obw_hz: None,
+            on_air_obw_low_hz: None,
+            on_air_obw_high_hz: None,
+            on_air_xdb_bandwidth_hz: None,
         });
     }
     let issues = &counts.issues;
@@ -198,6 +214,24 @@ pub struct BandRow {
     pub obw_low_hz: f64,
     pub obw_high_hz: f64,
     pub xdb_bandwidth_hz: f64,
+    /// Share of the measurement samples in which the band was on the air, percent.
+    pub on_air_pct: f64,
+    /// OBW and x-dB bandwidth over those samples only, noise taken off (null: never on the air).
+    pub on_air_obw_hz: Option<f64>,
+    pub on_air_obw_low_hz: Option<f64>,
+    pub on_air_obw_high_hz: Option<f64>,
+    pub on_air_xdb_bandwidth_hz: Option<f64>,
+}
+
+impl BandRow {
+    /// Adds what was measured over the samples in which the band was on the air.
+    pub fn set_on_air(&mut self, f: &OnAirFigures) {
+        self.on_air_pct = f.on_air_pct;
+        self.on_air_obw_hz = f.obw.map(|(lo, hi)| hi - lo);
+        self.on_air_obw_low_hz = f.obw.map(|e| e.0);
+        self.on_air_obw_high_hz = f.obw.map(|e| e.1);
+        self.on_air_xdb_bandwidth_hz = f.xdb_hz;
+    }
 }
 
 /// A plan channel over the whole input: power and OBW of the average spectrum, and occupancy
@@ -258,49 +292,68 @@ impl Report {
         } else {
             let _ = writeln!(
                 s,
-                "{:>3}  {:>18}  {:>11}  {:>8}  {:>11}  {:>12}",
+                "{:>3}  {:>18}  {:>11}  {:>13}  {:>8}  {:>12}",
                 "#",
                 "frequency",
-                "level dBFS",
-                "SNR dB",
                 "power dBFS",
+                "peak/RBW dBFS",
+                "SNR dB",
                 format!("OBW {obw_percent}%")
             );
             for (i, p) in self.peaks.iter().enumerate() {
                 let _ = writeln!(
                     s,
-                    "{:>3}  {:>18}  {:>11.2}  {:>8.1}  {:>11.2}  {:>12}",
+                    "{:>3}  {:>18}  {:>11.2}  {:>13.2}  {:>8.1}  {:>12}",
                     i + 1,
                     format_hz(p.freq_hz),
+                    p.power_dbfs,
                     p.level_dbfs,
                     p.snr_db,
-                    p.power_dbfs,
                     format_hz_short(p.obw_hz, 2)
                 );
             }
+            let _ = writeln!(
+                s,
+                "power: over the signal's band; peak/RBW and SNR: a sinusoid at its peak in one RBW"
+            );
+            let _ = writeln!(
+                s,
+                "(all less the noise); strongest power first; a wide signal's frequency is its OBW centre"
+            );
         }
         if !self.bands.is_empty() {
             let _ = writeln!(s);
             let _ = writeln!(
                 s,
-                "{:>18}  {:>10}  {:>11}  {:>12}  {:>12}",
+                "{:>18}  {:>10}  {:>11}  {:>12}  {:>12}  {:>7}  {:>12}  {:>12}",
                 "band centre",
                 "width",
                 "power dBFS",
                 format!("OBW {obw_percent}%"),
-                format!("{xdb} dB BW")
+                format!("{xdb} dB BW"),
+                "on air",
+                "OBW on air",
+                "BW on air"
             );
+            let or_dash = |v: Option<f64>| v.map_or("-".to_string(), |v| format_hz_short(v, 2));
             for b in &self.bands {
                 let _ = writeln!(
                     s,
-                    "{:>18}  {:>10}  {:>11.2}  {:>12}  {:>12}",
+                    "{:>18}  {:>10}  {:>11.2}  {:>12}  {:>12}  {:>5.1} %  {:>12}  {:>12}",
                     format_hz(b.center_hz),
                     format_hz_short(b.width_hz, 2),
                     b.power_dbfs,
                     format_hz_short(b.obw_hz, 2),
-                    format_hz_short(b.xdb_bandwidth_hz, 2)
+                    format_hz_short(b.xdb_bandwidth_hz, 2),
+                    b.on_air_pct,
+                    or_dash(b.on_air_obw_hz),
+                    or_dash(b.on_air_xdb_bandwidth_hz)
                 );
             }
+            let _ = writeln!(
+                s,
+                "whole recording, then over the samples in which the band was on the air (noise taken off)"
+            );
         }
         if !self.channels.is_empty() {
             let _ = writeln!(s);

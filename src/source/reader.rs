@@ -71,8 +71,11 @@ pub struct ReaderOptions {
     pub pace: Option<f64>,
     /// Start again at the end (files only).
     pub loop_input: bool,
-    /// Stop after this many samples (`--seconds`).
+    /// Stop after this many samples (`--seconds`), counted after `skip_samples`.
     pub max_samples: Option<u64>,
+    /// Read and discard this many samples first (`measure --skip`); the first sample delivered
+    /// has index 0.
+    pub skip_samples: u64,
 }
 
 impl Default for ReaderOptions {
@@ -83,6 +86,7 @@ impl Default for ReaderOptions {
             pace: None,
             loop_input: false,
             max_samples: None,
+            skip_samples: 0,
         }
     }
 }
@@ -124,6 +128,18 @@ fn run(
     let mut first_block: Option<Instant> = None;
     // Samples lost to a disconnection and not yet announced by a delivered block.
     let mut disconnected = 0u64;
+    let mut skipped = 0u64;
+    if opts.skip_samples > 0 {
+        let mut scratch = vec![Complex32::default(); opts.block_len.max(1)];
+        while skipped < opts.skip_samples && !stop.load(Ordering::Relaxed) {
+            let want = scratch.len().min((opts.skip_samples - skipped) as usize);
+            let n = src.read(&mut scratch[..want])?;
+            if n == 0 {
+                break;
+            }
+            skipped += n as u64;
+        }
+    }
     while !stop.load(Ordering::Relaxed) {
         let mut want = opts.block_len;
         if let Some(max) = opts.max_samples {

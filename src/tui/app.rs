@@ -57,6 +57,8 @@ pub struct App {
     pub traces: Traces,
     pub history: History,
     pub signals: Vec<Signal>,
+    /// How the signal list tells signals from noise (`--false-alarm`).
+    pub detection: Detection,
     /// Noise power in one RBW, dBFS.
     pub floor_dbfs: Option<f64>,
     pub stats: Stats,
@@ -103,6 +105,7 @@ impl App {
             traces: Traces::default(),
             history: History::new(256),
             signals: Vec::new(),
+            detection: Detection::default(),
             floor_dbfs: None,
             stats: Stats::new(now),
             ended: false,
@@ -167,7 +170,7 @@ impl App {
             _ => Window::new(avg.window, avg.fft_size),
         };
         let floor = noise_floor(&avg.psd, avg.dof);
-        self.signals = find_signals(&avg, &window, floor, MAX_SIGNALS, Detection::default());
+        self.signals = find_signals(&avg, &window, floor, MAX_SIGNALS, self.detection);
         self.window = Some(window);
         let floor_dbfs = db(floor * avg.rbw_hz);
         self.floor_dbfs = Some(floor_dbfs);
@@ -441,7 +444,7 @@ impl App {
         let raw = (grid.freq(bin), db(p0 * cur.rbw_hz));
         let pm = if bin > 0 { avg[bin - 1] } else { 0.0 };
         let pp = avg.get(bin + 1).copied().unwrap_or(0.0);
-        let clear = self.floor_dbfs.is_some_and(|f| raw.1 >= f + Detection::default().min_snr_db);
+        let clear = self.floor_dbfs.is_some_and(|f| raw.1 >= f + self.detection.min_snr_db);
         let window =
             self.window.as_ref().filter(|w| w.kind == cur.window && w.len() == cur.fft_size);
         match window {

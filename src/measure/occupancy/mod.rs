@@ -11,10 +11,10 @@
 //!   taken `hop` samples apart. Its *dwell* is `frames_per_sample · hop / fs` seconds. The frames
 //!   of a row cover `dwell + (fft_size − hop)` samples; the row is stamped with the middle
 //!   `dwell` of them (`[first + (fft_size − hop)/2, … + dwell)`), where the window gives most
-//!   weight, so consecutive rows tile time without overlap. Time resolution is therefore the
-//!   longer of the dwell and the FFT frame: an emission far above the threshold is seen by a row
-//!   whose window only grazes it, so its start and end can be off by up to half a frame more
-//!   than a dwell.
+//!   weight, so consecutive rows tile time without overlap. The decision (occupied or not) is
+//!   made per measurement sample, but a sample at the edge of an emission counts by the share of
+//!   it the emission filled, and the emission's edges are placed by those shares, to about one
+//!   FFT hop (see [`tracker`]).
 //! - **Channel power** `P`: the integral of the row's PSD over the channel, in FS²
 //!   ([`band_power`]).
 //! - **Noise floor**: a density `D` (FS²/Hz) shared by all channels, estimated over the *whole*
@@ -41,11 +41,12 @@
 //!   is essentially never read as occupied, even for a channel one bin wide
 //!   (see [`noise_false_occupancy`]), while an emission whose power in the channel is 10 dB over
 //!   the noise in the channel is always caught.
-//! - **Occupancy** of a channel in an interval: occupied samples / samples × 100 %.
+//! - **Occupancy** of a channel in an interval: occupied samples / samples × 100 %, where a
+//!   sample at an emission's edge counts by its share (see [`tracker`]).
 //! - **Emission**: a maximal run of occupied samples of one channel, where a run of fewer than
 //!   `hang_samples` quiet samples does not end it (the *hang time*, so a burst that dips for a
-//!   sample is not split). It starts at the start of its first occupied sample and ends at the
-//!   end of its last. Reported: peak and mean channel power over its occupied samples and the
+//!   sample is not split). Its start and end lie inside its edge samples, placed by the shares
+//!   of them it filled (so within about one FFT hop of the truth for a steady emission). Reported: peak and mean channel power over its occupied samples and the
 //!   occupied bandwidth (ITU-R SM.328, β = 1 %) of its averaged spectrum, with the noise floor
 //!   subtracted bin by bin first so that the figure describes the emission, not the receiver's
 //!   noise across the channel.
@@ -70,7 +71,7 @@ pub use timing::{
 };
 pub use tracker::Occupancy;
 
-use super::band::band_power;
+use super::band::{band_power, Edges};
 use crate::dsp::Spectrum;
 use crate::units::undb;
 
@@ -96,7 +97,9 @@ pub struct IntervalSummary {
     pub end_sample: u64,
     /// Measurement samples (rows) in the interval.
     pub samples: u64,
-    pub occupied: u64,
+    /// Occupied measurement samples; a sample an emission filled only in part counts by the
+    /// share it filled (see [`tracker`]).
+    pub occupied: f64,
     pub mean_power: f64,
     pub peak_power: f64,
     /// Mean of the tracked noise density over the interval.
@@ -109,7 +112,7 @@ pub struct IntervalSummary {
 
 impl IntervalSummary {
     pub fn occupancy_pct(&self) -> f64 {
-        100.0 * self.occupied as f64 / self.samples.max(1) as f64
+        100.0 * self.occupied / self.samples.max(1) as f64
     }
 }
 
@@ -126,14 +129,29 @@ pub struct EmissionSummary {
     /// 99 % occupied bandwidth of the noise-corrected average spectrum; `None` if nothing is left
     /// above the noise.
     pub obw_hz: Option<f64>,
+    /// The edges of that occupied band, absolute Hz.
+    pub obw: Option<Edges>,
+    /// Noise power expected in the channel (mean tracked density × channel width), FS², so
+    /// `mean_power / noise_power` is the emission's SNR in the channel.
+    pub noise_power: f64,
     /// Cut short by end of input, a stop or a gap: it may have gone on.
     pub partial: bool,
+}
+
+/// An emission has begun: told as soon as its first occupied sample is read, for consumers
+/// that must act at its start (a triggered capture); its summary follows as
+/// [`Event::Emission`] when it ends.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct EmissionStart {
+    pub channel: usize,
+    pub start_sample: u64,
 }
 
 #[derive(Clone, Debug, PartialEq)]
 pub enum Event {
     Interval(IntervalSummary),
     Emission(EmissionSummary),
+    Opened(EmissionStart),
 }
 
 /// What one row said about one channel.
