@@ -65,6 +65,7 @@ pub fn run(cli: Cli) -> anyhow::Result<ExitCode> {
         Some(Command::Log(args)) => cmd::log::run(args.validate()?),
         Some(Command::Snapshot(args)) => cmd::snapshot::run(args.validate()?),
         Some(Command::Report(args)) => cmd::report::run(args.validate()?),
+        Some(Command::Collect(args)) => cmd::collect::run(args.validate()?),
         Some(Command::Completions(args)) => {
             package::write_completions(args.shell, &mut std::io::stdout().lock())?;
             Ok(ExitCode::SUCCESS)

@@ -9,6 +9,7 @@ pub mod common;
 pub mod demo;
 pub mod log;
 pub mod measure;
+pub mod net;
 pub mod package;
 pub mod report;
 pub mod sigmf_out;
@@ -19,6 +20,7 @@ pub use common::{ChannelArgs, ChannelConfig, DspArgs, InputArgs, PlanArgs};
 pub use demo::{DemoArgs, DemoConfig};
 pub use log::{LogArgs, LogConfig};
 pub use measure::{MeasureArgs, MeasureConfig};
+pub use net::{CollectArgs, CollectConfig};
 pub use report::{ReportArgs, ReportConfig};
 pub use sigmf_out::{CaptureConfig, EmissionOutArgs, RecordArgs};
 pub use snapshot::{SnapshotArgs, SnapshotConfig};
@@ -59,6 +61,9 @@ pub enum Command {
     /// Summarise occupancy logs written by `log`: per channel, the whole period and each hour, as
     /// a table, CSV, JSON or a heat map picture.
     Report(ReportArgs),
+    /// Gather what sites publish to an MQTT broker (log --publish) into one JSON Lines file per
+    /// site, as if each had logged locally; runs until Ctrl-C or SIGTERM.
+    Collect(CollectArgs),
     /// Print a shell completion script (bash, zsh or fish) on stdout.
     Completions(package::CompletionsArgs),
     /// Print the manual page (roff) on stdout, e.g. `bandwarden manual > bandwarden.1`.
