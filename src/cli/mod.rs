@@ -43,6 +43,8 @@ pub struct Cli {
     pub command: Option<Command>,
 }
 
+// Parsed once per process, so the size of the largest variant costs nothing worth a Box.
+#[allow(clippy::large_enum_variant)]
 #[derive(Subcommand, Debug)]
 pub enum Command {
     /// One-shot measurement of a whole input: PSD, noise floor, strongest signals, band power and

@@ -54,15 +54,15 @@ pub fn collect(
                 Ok(Ok(Event::Incoming(Packet::Publish(p)))) => {
                     match broker.split_topic(&p.topic) {
                         Some((site, "status")) => notes(status_note(site, &p.payload)),
-                        Some((site, _)) => {
-                            if collector.take(site, &p.payload)? == Taken::Malformed {
-                                notes(format!(
-                                    "dropped a message on '{}' that is not a record",
-                                    crate::messages::sanitize(&p.topic)
-                                ));
-                            }
+                        Some((site, _))
+                            if collector.take(site, &p.payload)? == Taken::Malformed =>
+                        {
+                            notes(format!(
+                                "dropped a message on '{}' that is not a record",
+                                crate::messages::sanitize(&p.topic)
+                            ));
                         }
-                        None => {}
+                        Some(_) | None => {}
                     }
                     let _ = client.try_ack(&p);
                 }
