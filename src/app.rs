@@ -63,6 +63,7 @@ pub fn run(cli: Cli) -> anyhow::Result<ExitCode> {
         Some(Command::Demo(args)) => cmd::demo::run(args.validate()?),
         Some(Command::Watch(args)) => cmd::watch::run(args.validate()?),
         Some(Command::Log(args)) => cmd::log::run(args.validate()?),
+        Some(Command::Census(args)) => cmd::census::run(args.validate()?),
         Some(Command::Completions(args)) => {
             package::write_completions(args.shell, &mut std::io::stdout().lock())?;
             Ok(ExitCode::SUCCESS)

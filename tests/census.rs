@@ -255,6 +255,9 @@ fn a_busy_band_is_counted_to_its_truth() {
     }
     let spurious: Vec<_> =
         r.emitters.iter().zip(&matched).filter(|(_, m)| !**m).map(|(e, _)| e).collect();
+    for e in &spurious {
+        eprintln!("spurious: {e:?}");
+    }
     if spurious.len() > 1 {
         failures.push(format!("{} spurious emitters: {spurious:?}", spurious.len()));
     }
@@ -272,4 +275,83 @@ fn a_busy_band_is_counted_to_its_truth() {
         .emissions
         .iter()
         .all(|e| e.emitter < r.emitters.len() && e.sample_start + e.sample_count <= N as u64));
+}
+
+#[test]
+fn the_plan_written_from_a_census_is_one_log_takes() {
+    let (x, _) = scene();
+    let r = run_census(&x);
+    let text = bandwarden::output::census::to_plan(&r, "the test scene");
+    let plan = bandwarden::plan::Plan::parse(&text, "census.toml").unwrap();
+    plan.validate().unwrap();
+    assert_eq!(plan.channels.len(), r.emitters.len());
+    for (c, e) in plan.channels.iter().zip(&r.emitters) {
+        assert_eq!(c.name, e.name);
+        assert!((c.center_hz - e.center_hz).abs() <= 0.5);
+        // Rounded up to the raster, never narrower than the emission itself.
+        assert!(c.width_hz >= e.obw_hz, "{c:?} {e:?}");
+    }
+}
+
+const BIN: &str = env!("CARGO_BIN_EXE_bandwarden");
+
+/// The command on the demo recording: one JSON object with every field the issue names, a plan
+/// `log --plan` runs with, and no overwriting the input.
+#[test]
+fn the_command_prints_one_json_object_and_a_plan_log_accepts() {
+    use std::process::Command;
+    let dir = std::env::temp_dir().join(format!("bw-census-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let plan = dir.join("plan.toml");
+    let meta = concat!(env!("CARGO_MANIFEST_DIR"), "/recordings/wrenhollow-demo.sigmf-meta");
+    let out = Command::new(BIN)
+        .args(["census", meta, "--seconds", "1", "--json", "--plan-out"])
+        .arg(&plan)
+        .output()
+        .unwrap();
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let text = String::from_utf8(out.stdout).unwrap();
+    assert_eq!(text.lines().count(), 1);
+    let v: serde_json::Value = serde_json::from_str(&text).unwrap();
+    for key in [
+        "sample_rate_hz",
+        "center_hz",
+        "fft_size",
+        "rbw_hz",
+        "duration_s",
+        "noise_floor_dbfs_per_hz",
+    ] {
+        assert!(v[key].is_number(), "{key} in {v}");
+    }
+    let emitters = v["emitters"].as_array().unwrap();
+    assert!(emitters.len() >= 5, "{v}");
+    for e in emitters {
+        for key in [
+            "center_hz",
+            "obw_hz",
+            "first_s",
+            "last_s",
+            "emissions",
+            "airtime_pct",
+            "peak_dbfs",
+            "power_dbfs",
+        ] {
+            assert!(e[key].is_number(), "{key} in {e}");
+        }
+        assert!(e["name"].is_string());
+    }
+    let log = Command::new(BIN)
+        .args(["log", meta, "--seconds", "0.5", "--plan"])
+        .arg(&plan)
+        .output()
+        .unwrap();
+    assert!(log.status.success(), "{}", String::from_utf8_lossy(&log.stderr));
+    // The plan must not overwrite what is being read.
+    let data = concat!(env!("CARGO_MANIFEST_DIR"), "/recordings/wrenhollow-demo.sigmf-data");
+    let before = std::fs::metadata(data).unwrap().len();
+    let refused = Command::new(BIN).args(["census", meta, "--plan-out", data]).output().unwrap();
+    assert!(!refused.status.success());
+    assert!(String::from_utf8_lossy(&refused.stderr).contains("is the input"));
+    assert_eq!(std::fs::metadata(data).unwrap().len(), before);
+    let _ = std::fs::remove_dir_all(&dir);
 }

@@ -5,6 +5,7 @@
 //! (`2.4M`, `12.5k`, `1e6`), durations accept `10ms`, `2s`, `15m`, `1h`. Nothing below this layer
 //! imports clap or an `*Args` type.
 
+pub mod census;
 pub mod common;
 pub mod demo;
 pub mod log;
@@ -12,6 +13,7 @@ pub mod measure;
 pub mod package;
 pub mod watch;
 
+pub use census::{CensusArgs, CensusConfig};
 pub use common::{ChannelArgs, ChannelConfig, DspArgs, InputArgs, PlanArgs};
 pub use demo::{DemoArgs, DemoConfig};
 pub use log::{LogArgs, LogConfig};
@@ -47,6 +49,9 @@ pub enum Command {
     /// Log how busy each channel of a plan is (ITU-R SM.1880 occupancy) and every emission, as
     /// JSON Lines or CSV, for unattended runs.
     Log(LogArgs),
+    /// Find every emitter in the band without a plan: emissions detected row by row, tracked
+    /// and grouped by frequency; a table, one JSON object, or a channel plan for `log --plan`.
+    Census(CensusArgs),
     /// Print a shell completion script (bash, zsh or fish) on stdout.
     Completions(package::CompletionsArgs),
     /// Print the manual page (roff) on stdout, e.g. `bandwarden manual > bandwarden.1`.

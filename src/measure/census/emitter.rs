@@ -70,6 +70,34 @@ impl EmitterAcc {
         self.high_hz = self.high_hz.max(high_hz);
     }
 
+    /// Whether an emission centred at `centre_hz`, `width_hz` wide, is at this emitter's place:
+    /// centres within 2 RBW plus a quarter of the wider of the two.
+    pub fn is_near(&self, centre_hz: f64, width_hz: f64, rbw_hz: f64) -> bool {
+        (self.centre() - centre_hz).abs() <= 2.0 * rbw_hz + 0.25 * self.width().max(width_hz)
+    }
+
+    /// Takes in another emitter found at the same place (a burst whose first row showed only a
+    /// fragment of it can start an emitter of its own). Rows both summed count twice; they are
+    /// the few rows in which the fragment was open.
+    pub fn absorb(&mut self, o: &EmitterAcc) {
+        for (s, p) in self.sum.iter_mut().zip(&o.sum) {
+            *s += p;
+        }
+        self.floor_sum += o.floor_sum;
+        self.rows += o.rows;
+        self.lo = self.lo.min(o.lo);
+        self.hi = self.hi.max(o.hi);
+        self.low_hz = self.low_hz.min(o.low_hz);
+        self.high_hz = self.high_hz.max(o.high_hz);
+        self.centre_weighted += o.centre_weighted;
+        self.weight += o.weight;
+        self.emissions += o.emissions;
+        self.airtime += o.airtime;
+        self.first = self.first.min(o.first);
+        self.last = self.last.max(o.last);
+        self.detected_rows += o.detected_rows;
+    }
+
     /// Adds row `row` (once per row) with its noise density.
     pub fn add_row(&mut self, row: u64, psd: &[f64], density: f64) {
         if self.last_row.is_some_and(|r| r >= row) {

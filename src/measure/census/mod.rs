@@ -300,14 +300,11 @@ impl Census {
     /// cap is reached.
     fn emitter_for(&mut self, centre: f64, c: Cluster, rbw: f64, bins: usize) -> Option<usize> {
         let width = c.high_hz - c.low_hz;
-        let near = self
-            .emitters
-            .iter()
-            .enumerate()
-            .map(|(i, e)| (i, (e.centre() - centre).abs(), e.width()))
-            .filter(|&(_, d, w)| d <= 2.0 * rbw + 0.25 * w.max(width))
-            .min_by(|a, b| a.1.total_cmp(&b.1));
-        if let Some((i, _, _)) = near {
+        let near =
+            self.emitters.iter().enumerate().filter(|(_, e)| e.is_near(centre, width, rbw)).min_by(
+                |a, b| (a.1.centre() - centre).abs().total_cmp(&(b.1.centre() - centre).abs()),
+            );
+        if let Some((i, _)) = near {
             return Some(i);
         }
         if self.emitters.len() >= self.settings.max_emitters {
@@ -346,11 +343,12 @@ impl Census {
         let mut layout = self.layout.take()?;
         layout.duration_samples = end.max(self.last_span_end);
         let window = self.window.take()?;
+        let home = self.merge_neighbours(layout.rbw_hz);
         let mut ranked: Vec<(usize, EmitterFigures)> = self
             .emitters
             .iter()
             .enumerate()
-            .filter(|(_, e)| e.detected_rows >= MIN_DETECTED_ROWS)
+            .filter(|&(i, e)| home[i] == i && e.detected_rows >= MIN_DETECTED_ROWS)
             .filter_map(|(i, e)| e.figures(&layout, &window).map(|f| (i, f)))
             .collect();
         ranked.sort_by(|a, b| b.1.power_dbfs.total_cmp(&a.1.power_dbfs));
@@ -363,9 +361,9 @@ impl Census {
         let mut emissions: Vec<Emission> = self
             .closed
             .iter()
-            .filter(|c| index[c.emitter] != usize::MAX)
+            .filter(|c| index[home[c.emitter]] != usize::MAX)
             .map(|c| Emission {
-                emitter: index[c.emitter],
+                emitter: index[home[c.emitter]],
                 sample_start: c.start,
                 sample_count: c.end - c.start,
                 low_hz: c.low_hz,
@@ -384,6 +382,33 @@ impl Census {
             emissions,
             emitters_dropped: self.emitters_dropped,
         })
+    }
+}
+
+impl Census {
+    /// Folds emitters that ended up at one place into the one seen in most rows; returns, for
+    /// every emitter, the one it now lives in.
+    fn merge_neighbours(&mut self, rbw: f64) -> Vec<usize> {
+        let mut order: Vec<usize> = (0..self.emitters.len()).collect();
+        order.sort_by_key(|&i| std::cmp::Reverse(self.emitters[i].detected_rows));
+        let mut home: Vec<usize> = (0..self.emitters.len()).collect();
+        let mut kept: Vec<usize> = Vec::new();
+        for i in order {
+            let e = &self.emitters[i];
+            match kept
+                .iter()
+                .copied()
+                .find(|&k| self.emitters[k].is_near(e.centre(), e.width(), rbw))
+            {
+                Some(k) => {
+                    let e = self.emitters[i].clone();
+                    self.emitters[k].absorb(&e);
+                    home[i] = k;
+                }
+                None => kept.push(i),
+            }
+        }
+        home
     }
 }
 
