@@ -12,12 +12,11 @@ use crate::messages::{note, notes};
 use crate::output::census::{to_json, to_plan, to_table, CensusConsumer};
 use crate::output::progress::Progress;
 use crate::output::sink;
-use crate::pipeline::input::{live_block_len, FILE_BLOCK_LEN};
+use crate::pipeline::input::unattended_options;
 use crate::pipeline::occupancy::{OccupancyRequest, OccupancySetup};
 use crate::pipeline::stop::Escalation;
 use crate::pipeline::{run_input, Input, Run, RunSpec, StopSignals};
 use crate::plan::{Plan, DEFAULT_THRESHOLD_DB};
-use crate::source::reader::ReaderOptions;
 use crate::source::{self, sanitize};
 use anyhow::{bail, Result};
 use std::io::Write;
@@ -60,17 +59,7 @@ pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
     spec.check_work()?;
 
     let signals = StopSignals::install(false, Escalation::SecondSignalExits)?;
-    let max_samples = cfg.seconds.map(|s| (s * info.sample_rate_hz).round() as u64);
-    let opts = ReaderOptions {
-        block_len: if info.live { live_block_len(info.sample_rate_hz) } else { FILE_BLOCK_LEN },
-        drop_when_full: info.live,
-        max_samples,
-        ..Default::default()
-    };
-    let total = match (max_samples, info.total_samples) {
-        (Some(m), Some(t)) => Some(m.min(t)),
-        (_, t) => t,
-    };
+    let (opts, total) = unattended_options(&info, cfg.seconds, false);
     let mut progress = Progress::for_file(total, info.sample_rate_hz);
     let input = Input::start(src, opts);
     let run = Run::new(spec, vec![&mut progress, &mut census]);

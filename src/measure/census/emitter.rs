@@ -78,7 +78,7 @@ impl EmitterAcc {
 
     /// Takes in another emitter found at the same place (a burst whose first row showed only a
     /// fragment of it can start an emitter of its own). Rows both summed count twice; they are
-    /// the few rows in which the fragment was open.
+    /// the few rows in which the fragment was open. Emissions and airtime are recounted afterwards.
     pub fn absorb(&mut self, o: &EmitterAcc) {
         for (s, p) in self.sum.iter_mut().zip(&o.sum) {
             *s += p;
@@ -91,10 +91,6 @@ impl EmitterAcc {
         self.high_hz = self.high_hz.max(o.high_hz);
         self.centre_weighted += o.centre_weighted;
         self.weight += o.weight;
-        self.emissions += o.emissions;
-        self.airtime += o.airtime;
-        self.first = self.first.min(o.first);
-        self.last = self.last.max(o.last);
         self.detected_rows += o.detected_rows;
     }
 

@@ -317,12 +317,7 @@ impl Census {
 
     fn close(&mut self, t: &Track, input_end: Option<u64>) {
         let x = t.extent(t.first_row == 0, input_end);
-        let e = &mut self.emitters[t.emitter];
-        e.emissions += 1;
-        e.airtime += x.end - x.start;
-        e.first = e.first.min(x.start);
-        e.last = e.last.max(x.end);
-        e.detected_rows += t.detected as u64;
+        self.emitters[t.emitter].detected_rows += t.detected as u64;
         self.closed.push(Closed {
             emitter: t.emitter,
             start: x.start,
@@ -344,6 +339,7 @@ impl Census {
         layout.duration_samples = end.max(self.last_span_end);
         let window = self.window.take()?;
         let home = self.merge_neighbours(layout.rbw_hz);
+        let closed = self.join_emissions(&home);
         let mut ranked: Vec<(usize, EmitterFigures)> = self
             .emitters
             .iter()
@@ -358,12 +354,11 @@ impl Census {
         }
         let mut emitters: Vec<EmitterFigures> = ranked.into_iter().map(|(_, f)| f).collect();
         name_emitters(&mut emitters);
-        let mut emissions: Vec<Emission> = self
-            .closed
+        let mut emissions: Vec<Emission> = closed
             .iter()
-            .filter(|c| index[home[c.emitter]] != usize::MAX)
+            .filter(|c| index[c.emitter] != usize::MAX)
             .map(|c| Emission {
-                emitter: index[home[c.emitter]],
+                emitter: index[c.emitter],
                 sample_start: c.start,
                 sample_count: c.end - c.start,
                 low_hz: c.low_hz,
@@ -409,6 +404,39 @@ impl Census {
             }
         }
         home
+    }
+
+    /// The emissions with each moved to the emitter it now lives in, and those of one emitter
+    /// that overlap in time joined (a fragment and the emission it belonged to); the emitters'
+    /// counts, airtime and first/last are recounted from them.
+    fn join_emissions(&mut self, home: &[usize]) -> Vec<Closed> {
+        let mut closed = std::mem::take(&mut self.closed);
+        for c in &mut closed {
+            c.emitter = home[c.emitter];
+        }
+        closed.sort_by_key(|c| (c.emitter, c.start));
+        let mut joined: Vec<Closed> = Vec::with_capacity(closed.len());
+        for c in closed {
+            match joined.last_mut().filter(|l| l.emitter == c.emitter && c.start <= l.end) {
+                Some(l) => {
+                    l.end = l.end.max(c.end);
+                    l.low_hz = l.low_hz.min(c.low_hz);
+                    l.high_hz = l.high_hz.max(c.high_hz);
+                }
+                None => joined.push(c),
+            }
+        }
+        for e in &mut self.emitters {
+            (e.emissions, e.airtime, e.first, e.last) = (0, 0, u64::MAX, 0);
+        }
+        for c in &joined {
+            let e = &mut self.emitters[c.emitter];
+            e.emissions += 1;
+            e.airtime += c.end - c.start;
+            e.first = e.first.min(c.start);
+            e.last = e.last.max(c.end);
+        }
+        joined
     }
 }
 
