@@ -12,6 +12,7 @@
 //! center = "433.100M"        # absolute Hz: a number (433100000) or a string with k/M/G
 //! width = "25k"              # Hz, > 0
 //! threshold_db = 8           # optional: occupancy threshold over the noise, dB
+//! alarm_dbfs = -60            # optional: `watch` rings when the channel's power passes this
 //! ```
 //!
 //! Keys other than these four inside a `[[channel]]` table are refused (a misspelt `centre`
@@ -39,6 +40,8 @@ pub struct Channel {
     pub width_hz: f64,
     /// Overrides the run's `--threshold-db` for this channel.
     pub threshold_db: Option<f64>,
+    /// `watch` alarm: channel power above this (dBFS) rings the bell once per onset.
+    pub alarm_dbfs: Option<f64>,
     /// Where the channel was defined, for error messages.
     pub origin: Origin,
 }
@@ -198,6 +201,7 @@ pub fn parse_channel_flag(text: &str) -> Result<Channel, String> {
         center_hz,
         width_hz,
         threshold_db: None,
+        alarm_dbfs: None,
         origin: Origin::Flag { text: shown },
     })
 }
@@ -229,6 +233,7 @@ struct ChannelEntry {
     center: Spanned<HzValue>,
     width: Spanned<HzValue>,
     threshold_db: Option<Spanned<f64>>,
+    alarm_dbfs: Option<Spanned<f64>>,
 }
 
 /// A frequency in a plan: a plain number of hertz or a string with an SI suffix.
@@ -282,11 +287,25 @@ impl ChannelEntry {
                 Some(v)
             }
         };
+        let alarm_dbfs = match self.alarm_dbfs {
+            None => None,
+            Some(a) => {
+                let v = *a.get_ref();
+                if !(-300.0..=100.0).contains(&v) {
+                    bail!(
+                        "plan '{path}' line {}: channel '{name}' alarm_dbfs {v} is out of range; give a channel power in dBFS between -300 and 100",
+                        at(a.span())
+                    );
+                }
+                Some(v)
+            }
+        };
         Ok(Channel {
             name,
             center_hz,
             width_hz,
             threshold_db,
+            alarm_dbfs,
             origin: Origin::Plan { path: path.to_string(), line: table_line },
         })
     }
@@ -374,6 +393,19 @@ threshold_db = 6
         assert_eq!(p.channels[1].center_hz, 433.3e6);
         assert_eq!(p.channels[1].threshold_db, Some(6.0));
         assert_eq!(p.channels[1].origin.to_string(), "plan 'p.toml' line 10");
+    }
+
+    #[test]
+    fn alarm_levels_parse_and_absurd_ones_name_their_line() {
+        let p = Plan::parse(
+            "[[channel]]\nname = \"a\"\ncenter = \"1M\"\nwidth = \"10k\"\nalarm_dbfs = -60\n",
+            "p.toml",
+        )
+        .unwrap();
+        assert_eq!(p.channels[0].alarm_dbfs, Some(-60.0));
+        let e =
+            err("[[channel]]\nname = \"a\"\ncenter = \"1M\"\nwidth = \"10k\"\nalarm_dbfs = 500\n");
+        assert!(e.contains("line 5") && e.contains("alarm_dbfs 500"), "{e}");
     }
 
     #[test]

@@ -1,8 +1,11 @@
 //! End to end, as a user sees it: the real binary runs `watch` in a tmux pane at 80×24 and at
-//! 160×48 on a SigMF recording with a tone at a known frequency. The signal table must show that
-//! frequency; the quit key (or SIGTERM) must end the program with status 0, leave the alternate
-//! screen and mouse reporting, and give the shell back. Skipped (with a message) where tmux is not
-//! installed.
+//! 160×48 on a SigMF recording with a tone at a known frequency, a known start time
+//! (`core:datetime`) and a two-channel plan. The signal table must show that frequency with its
+//! power column; the time must be the recording's UTC time; the channel panel must list the
+//! channels; the history must scroll back and come live again; the quit key (or SIGTERM) must end
+//! the program with status 0, leave the alternate screen and mouse reporting, and give the shell
+//! back. Skipped (with a message) where tmux is not installed; in CI (`CI=true`) a missing tmux
+//! fails.
 
 use bandwarden::source::sigmf::meta_json;
 use bandwarden::source::SampleFormat;
@@ -16,6 +19,9 @@ const CENTER_HZ: f64 = 100e6;
 /// 125 kHz above the centre: bin 512 of a 4096-point FFT at 1 MS/s, so the table reads it
 /// exactly.
 const TONE_OFFSET_HZ: f64 = 125e3;
+/// The recording's `core:datetime`; it is half a second long and loops, so every row is timed
+/// within its first second.
+const START: &str = "2031-04-17T06:30:00Z";
 
 fn tmux_available() -> bool {
     Command::new("tmux").arg("-V").output().is_ok_and(|o| o.status.success())
@@ -105,7 +111,10 @@ fn write_recording(dir: &Path) -> PathBuf {
     SampleFormat::Cf32Le.encode(&samples, &mut bytes);
     let data = dir.join("tone.sigmf-data");
     std::fs::write(&data, bytes).unwrap();
-    let meta = meta_json(SampleFormat::Cf32Le, RATE_HZ, CENTER_HZ, None, "tone for the tmux test");
+    let start =
+        time::OffsetDateTime::parse(START, &time::format_description::well_known::Rfc3339).unwrap();
+    let meta =
+        meta_json(SampleFormat::Cf32Le, RATE_HZ, CENTER_HZ, Some(start), "tone for the tmux test");
     let meta_path = dir.join("tone.sigmf-meta");
     std::fs::write(&meta_path, meta).unwrap();
     meta_path
@@ -121,6 +130,30 @@ fn first_signal_mhz(screen: &str) -> Option<f64> {
     })
 }
 
+/// The recording's UTC time on the source line and in the waterfall's gutter; the channel
+/// panel (`t`) with both channels; the time cursor (`<`) and back to live (`End`).
+fn check_time_channels_and_history(tmux: &Tmux) {
+    let wait = Duration::from_secs(20);
+    let s = tmux.wait_for("UTC time", wait, |s| s.contains("06:30:00 UTC"));
+    // The gutter labels the first line of each minute `HH:MM` (here the only minute).
+    assert!(s.lines().any(|l| l.starts_with("06:30 ")), "{s}");
+    tmux.keys(&["t"]);
+    let s = tmux.wait_for("the channel panel", wait, |s| s.contains("Busy 1m"));
+    let tone = s.lines().find(|l| l.starts_with(" 1 tone")).unwrap_or_else(|| panic!("{s}"));
+    assert!(tone.contains("100.125000 MHz") && tone.contains("now"), "{tone}");
+    // The tone is a steady −20 dBFS carrier: its channel reads it (less than 0.5 dB of noise).
+    let power: f64 = tone.split_whitespace().nth(4).unwrap().parse().unwrap();
+    assert!((power + 20.0).abs() < 0.5, "{tone}");
+    assert!(s.contains(" 2 quiet"), "{s}");
+    tmux.keys(&["t"]);
+    tmux.wait_for("the signal table again", wait, |s| s.contains("Power dBFS"));
+    tmux.keys(&["<"]);
+    tmux.wait_for("the time cursor", wait, |s| s.contains("◀ 06:30:0") && s.contains("back"));
+    assert!(tmux.screen().contains("FROZEN"));
+    tmux.keys(&["End"]);
+    tmux.wait_for("live again", wait, |s| !s.contains("FROZEN") && !s.contains("◀"));
+}
+
 /// How the test ends the monitor.
 #[derive(Clone, Copy, PartialEq)]
 enum End {
@@ -131,6 +164,10 @@ enum End {
 fn run_at(cols: u16, rows: u16, end: End) {
     let t0 = Instant::now();
     if !tmux_available() {
+        assert!(
+            std::env::var("CI").is_err(),
+            "tmux is not installed; .ci/run installs it (apt-get install tmux)"
+        );
         eprintln!("skipping the tmux end-to-end test: tmux is not installed");
         return;
     }
@@ -139,7 +176,8 @@ fn run_at(cols: u16, rows: u16, end: End) {
     let tmux = Tmux::start(&format!("{cols}x{rows}"), cols, rows);
     tmux.wait_for("the shell prompt", Duration::from_secs(10), |s| !s.trim().is_empty());
     let line = format!(
-        "{} watch {} --loop --fft 4096; echo BW-DONE-$?",
+        "{} watch {} --loop --fft 4096 --channel tone=100.125M:10k --channel quiet=100.3M:10k; \
+         echo BW-DONE-$?",
         env!("CARGO_BIN_EXE_bandwarden"),
         rec.display()
     );
@@ -148,8 +186,9 @@ fn run_at(cols: u16, rows: u16, end: End) {
     let screen = tmux.wait_for("the tone in the signal table", Duration::from_secs(60), |s| {
         first_signal_mhz(s).is_some_and(|f| (f - expect_mhz).abs() < 0.5e-3)
     });
-    assert!(screen.contains("Level dBFS"), "{screen}");
+    assert!(screen.contains("Power dBFS") && screen.contains("Peak dBFS"), "{screen}");
     assert_eq!(tmux.pane_flag("alternate_on"), "1", "the monitor runs on the alternate screen");
+    check_time_channels_and_history(&tmux);
     match end {
         End::QuitKey => tmux.keys(&["q"]),
         End::Sigterm => {
@@ -168,7 +207,7 @@ fn run_at(cols: u16, rows: u16, end: End) {
         status_line(s).is_some()
     });
     assert_eq!(status_line(&back).as_deref(), Some("BW-DONE-0"), "exit status:\n{back}");
-    assert!(!back.contains("Level dBFS"), "the monitor is still on screen:\n{back}");
+    assert!(!back.contains("Power dBFS"), "the monitor is still on screen:\n{back}");
     assert_eq!(tmux.pane_flag("alternate_on"), "0", "alternate screen left on");
     assert_eq!(tmux.pane_flag("mouse_any_flag"), "0", "mouse reporting left on");
     assert_eq!(tmux.pane_flag("pane_current_command"), "sh", "the shell has the pane again");

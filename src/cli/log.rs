@@ -1,6 +1,7 @@
 //! `log` flags and their validation.
 
 use super::common::{parse_seconds, ChannelArgs, ChannelConfig, DspArgs, InputArgs};
+use super::sigmf_out::{CaptureConfig, EmissionOutArgs, RecordArgs};
 use crate::dsp::DspConfig;
 use crate::output::log::LogFormat;
 use crate::output::rotation::{parse_rotate, Rotate};
@@ -47,6 +48,10 @@ pub struct LogArgs {
     pub seconds: Option<f64>,
     #[command(flatten)]
     pub channels: ChannelArgs,
+    #[command(flatten)]
+    pub record: RecordArgs,
+    #[command(flatten)]
+    pub emissions: EmissionOutArgs,
 }
 
 /// A validated `log`.
@@ -64,6 +69,11 @@ pub struct LogConfig {
     pub no_drop: bool,
     pub seconds: Option<f64>,
     pub rotate: Option<Rotate>,
+    /// `--record`: the input teed to this SigMF recording.
+    pub record: Option<String>,
+    /// `--annotate`: every emission as an annotation in this SigMF metadata file.
+    pub annotate: Option<String>,
+    pub capture: Option<CaptureConfig>,
 }
 
 impl LogArgs {
@@ -78,6 +88,11 @@ impl LogArgs {
         if self.interval.is_zero() {
             bail!("--interval must be longer than zero (e.g. 60s)");
         }
+        let record = self.record.validate()?;
+        let (annotate, capture) = self.emissions.validate()?;
+        if annotate.is_some() && record.is_none() && self.input == "-" {
+            bail!("--annotate needs a dataset to point at, and standard input leaves none: add --record FILE.sigmf-meta (the annotations then point at the recording)");
+        }
         Ok(LogConfig {
             dsp: self.dsp.validate()?,
             input: self.source.request(Some(self.input)),
@@ -90,6 +105,9 @@ impl LogArgs {
             no_drop: self.no_drop,
             seconds: self.seconds,
             rotate: self.rotate,
+            record,
+            annotate,
+            capture,
         })
     }
 }

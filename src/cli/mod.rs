@@ -11,6 +11,7 @@ pub mod demo;
 pub mod log;
 pub mod measure;
 pub mod package;
+pub mod sigmf_out;
 pub mod watch;
 
 pub use census::{CensusArgs, CensusConfig};
@@ -18,6 +19,7 @@ pub use common::{ChannelArgs, ChannelConfig, DspArgs, InputArgs, PlanArgs};
 pub use demo::{DemoArgs, DemoConfig};
 pub use log::{LogArgs, LogConfig};
 pub use measure::{MeasureArgs, MeasureConfig};
+pub use sigmf_out::{CaptureConfig, EmissionOutArgs, RecordArgs};
 pub use watch::{ColourChoice, WatchArgs, WatchConfig};
 
 use clap::{Parser, Subcommand};

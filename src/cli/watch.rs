@@ -1,6 +1,7 @@
 //! `watch` flags and their validation.
 
 use super::common::{parse_db, parse_number, DetectArgs, DspArgs, InputArgs, PlanArgs};
+use super::sigmf_out::RecordArgs;
 use crate::measure::Detection;
 use crate::pipeline::latest::RowSettings;
 use crate::plan::Plan;
@@ -50,6 +51,12 @@ pub struct WatchArgs {
     /// Leave the mouse to the terminal (e.g. for selecting text) instead of placing markers.
     #[arg(long)]
     pub no_mouse: bool,
+    #[command(flatten)]
+    pub record: RecordArgs,
+    /// Append a JSON Lines record to FILE at each channel-alarm onset (alarms come from the
+    /// plan's alarm_dbfs or the A key).
+    #[arg(long, value_name = "FILE")]
+    pub alarm_log: Option<String>,
 }
 
 /// Slowest and fastest playback of a file: a thousandth of the recorded rate is already a slide
@@ -90,8 +97,11 @@ pub struct WatchConfig {
     pub colour: ColourChoice,
     pub scroll_region: bool,
     pub mouse: bool,
+    pub alarm_log: Option<String>,
     /// How signals are told from noise.
     pub detection: Detection,
+    /// `--record`: the input teed to this SigMF recording.
+    pub record: Option<String>,
 }
 
 impl WatchArgs {
@@ -130,7 +140,9 @@ impl WatchArgs {
             colour: self.colour,
             scroll_region: !self.no_scroll_region,
             mouse: !self.no_mouse,
+            alarm_log: self.alarm_log,
             detection,
+            record: self.record.validate()?,
         })
     }
 }

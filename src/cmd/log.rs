@@ -11,6 +11,7 @@
 //! falls behind, whole blocks are dropped, counted and logged (`dropped` records), never hidden.
 //! `--no-drop` makes the reader wait instead (the writer upstream then blocks).
 
+use super::sigmf_out::{SigmfOutputs, SigmfRequest};
 use crate::cli::LogConfig;
 use crate::messages::{note, notes};
 use crate::output::log::LogWriter;
@@ -21,7 +22,7 @@ use crate::output::sink;
 use crate::pipeline::input::unattended_options;
 use crate::pipeline::occupancy::{OccupancyRequest, OccupancySetup};
 use crate::pipeline::stop::Escalation;
-use crate::pipeline::{run_input, Input, Run, RunSpec, StopSignals, TimeSource};
+use crate::pipeline::{run_input, Consumer, Input, Run, RunSpec, StopSignals, TimeSource};
 use crate::source::{self};
 use anyhow::{Context, Result};
 use std::path::PathBuf;
@@ -73,10 +74,22 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
 
     let signals = StopSignals::install(false, Escalation::SecondSignalExits)?;
     let (opts, total) = unattended_options(&info, cfg.seconds, cfg.no_drop);
+    let request = SigmfRequest {
+        wait: cfg.no_drop,
+        record: cfg.record.as_deref(),
+        annotate: cfg.annotate.as_deref(),
+        capture: cfg.capture.as_ref(),
+    };
+    let side = log.side_records();
+    let mut sigmf_out =
+        SigmfOutputs::new(request, &cfg.input, &info, plan, &inputs, opts.block_len, side)?;
     let mut progress = Progress::for_file(total, info.sample_rate_hz);
     let input = Input::start(src, opts);
-    let run = Run::new(spec, vec![&mut progress, &mut log]);
-    let outcome = run_input(input, run, Some(&signals))?;
+    let mut consumers: Vec<&mut dyn Consumer> = vec![&mut progress];
+    consumers.extend(sigmf_out.consumers());
+    consumers.push(&mut log);
+    let outcome = run_input(input, Run::new(spec, consumers), Some(&signals))?;
+    sigmf_out.report()?;
 
     if outcome.end.reason.is_signal() {
         note(&format!("stopped by {}; the log is complete", signals.signal_name()));

@@ -5,4 +5,5 @@ pub mod census;
 pub mod demo;
 pub mod log;
 pub mod measure;
+pub mod sigmf_out;
 pub mod watch;

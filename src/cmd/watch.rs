@@ -1,17 +1,23 @@
 //! `bandwarden watch`: the live monitor on a file, stdin or the demo scene.
 //!
-//! Files play at their recorded rate (times `--speed`) so the waterfall moves as the band did;
-//! stdin and the demo scene are live, and samples the DSP cannot keep up with are dropped and
-//! counted on screen rather than queued without bound.
+//! Files and stdin play at their recorded rate (times `--speed`) so the waterfall moves as the
+//! band did: a recording piped in faster than real time waits rather than drops. A receiver on
+//! stdin never runs ahead, so pacing costs it nothing; it and the demo scene are live, and
+//! samples the DSP cannot keep up with are dropped and counted on screen rather than queued
+//! without bound.
 
+use super::sigmf_out::{recorded_note, recorder};
 use crate::cli::{ColourChoice, WatchConfig};
 use crate::messages::{note, notes, sanitize};
+use crate::output::sink;
+use crate::pipeline::clock::Clock;
 use crate::pipeline::input::live_block_len;
 use crate::pipeline::latest::RowFeed;
-use crate::pipeline::{Input, RunSpec};
-use crate::plan::Plan;
+use crate::pipeline::{Consumer, Input, RunSpec};
+use crate::plan::{Plan, DEFAULT_THRESHOLD_DB};
 use crate::source::reader::ReaderOptions;
 use crate::source::{self};
+use crate::tui::alarms::AlarmLog;
 use crate::tui::app::{App, ChannelMark, SourceSummary};
 use crate::tui::colour::Depth;
 use crate::tui::{self, RunOptions};
@@ -20,6 +26,7 @@ use std::io::IsTerminal;
 use std::process::ExitCode;
 use std::sync::atomic::Ordering;
 use std::time::{Duration, Instant};
+use time::OffsetDateTime;
 
 /// Plain `bandwarden`: the monitor on the demo scene when there is a terminal to draw on, else
 /// the one-shot report.
@@ -43,6 +50,8 @@ pub fn run(cfg: WatchConfig) -> Result<ExitCode> {
         bail!("watch draws on a terminal and standard output is not one; use `bandwarden measure` for a report");
     }
     let is_file = cfg.input.path.as_deref().is_some_and(|p| p != "-");
+    // A recording piped in plays at its recorded rate too, once it runs ahead of real time.
+    let piped = cfg.input.path.as_deref() == Some("-");
     if cfg.loop_input && !is_file {
         note("--loop only replays files; ignored for this input");
     }
@@ -51,21 +60,32 @@ pub fn run(cfg: WatchConfig) -> Result<ExitCode> {
         block_len: live_block_len(rate),
         drop_when_full: info.live,
         pace: is_file.then_some(cfg.speed),
+        pace_recordings: piped.then_some(cfg.speed),
         loop_input: cfg.loop_input && is_file,
         ..Default::default()
     };
     let spec = RunSpec::new(info.clone(), cfg.rows.engine(rate), cfg.rows.threads);
     spec.check_work()?;
     let input = Input::start(src, opts);
-    let feed = RowFeed::spawn(input.blocks.clone(), spec)?;
+    let recorder =
+        cfg.record.as_deref().map(|r| recorder(r, &cfg.input, &info, live_block_len(rate)));
+    let recorder = recorder.transpose()?;
+    let status = recorder.as_ref().map(|r| (r.status(), r.meta_path().to_path_buf()));
+    let extra = recorder.into_iter().map(|r| Box::new(r) as Box<dyn Consumer + Send>).collect();
+    let feed = RowFeed::spawn_with(input.blocks.clone(), spec, extra)?;
     let summary = SourceSummary {
         label: sanitize(&info.label),
         sample_rate_hz: rate,
         center_hz: info.center_hz,
         total_samples: info.total_samples,
         live: info.live,
-        speed: is_file.then_some(cfg.speed),
+        speed: (is_file || piped).then_some(cfg.speed),
         looping: cfg.loop_input && is_file,
+        // Live input without a start time is timed by the wall clock from now.
+        clock: Clock::for_source(
+            &info,
+            info.start_time.or_else(|| info.live.then(OffsetDateTime::now_utc)),
+        ),
     };
     let depth = match cfg.colour {
         ColourChoice::Auto => Depth::detect(),
@@ -73,6 +93,9 @@ pub fn run(cfg: WatchConfig) -> Result<ExitCode> {
     };
     let marks = marks(&cfg.plan);
     let mut app = App::new(summary, cfg.rows, depth, cfg.ref_offset, marks, Instant::now());
+    if let Some(path) = &cfg.alarm_log {
+        app.alarm_log = Some(AlarmLog::new(sink::open(path, true, "alarm log")?.out));
+    }
     app.detection = cfg.detection;
     let run_opts = RunOptions { fps: cfg.fps, scroll_region: cfg.scroll_region, mouse: cfg.mouse };
     let result = tui::run(app, &feed, &input.stats, run_opts);
@@ -80,6 +103,9 @@ pub fn run(cfg: WatchConfig) -> Result<ExitCode> {
     feed.stop();
     shut_down(input);
     result?;
+    if let Some((status, meta)) = status {
+        recorded_note(&*status.lock().map_err(|_| anyhow::anyhow!("the recorder failed"))?, &meta)?;
+    }
     Ok(ExitCode::SUCCESS)
 }
 
@@ -88,9 +114,9 @@ fn marks(plan: &Plan) -> Vec<ChannelMark> {
     plan.channels
         .iter()
         .map(|c| ChannelMark {
-            name: sanitize(&c.name),
-            center_hz: c.center_hz,
-            width_hz: c.width_hz,
+            threshold_db: c.threshold_db.unwrap_or(DEFAULT_THRESHOLD_DB),
+            alarm_dbfs: c.alarm_dbfs,
+            ..ChannelMark::new(&sanitize(&c.name), c.center_hz, c.width_hz)
         })
         .collect()
 }
@@ -124,9 +150,6 @@ mod tests {
             "t.toml",
         )
         .unwrap();
-        assert_eq!(
-            marks(&plan),
-            vec![ChannelMark { name: "gate".into(), center_hz: 433.2625e6, width_hz: 12.5e3 }]
-        );
+        assert_eq!(marks(&plan), vec![ChannelMark::new("gate", 433.2625e6, 12.5e3)]);
     }
 }

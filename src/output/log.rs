@@ -33,6 +33,10 @@
 //! - `dropped`: `t_start_s, t_end_s, start, end, dropped_samples, cause`: input samples missing
 //!   from the measurement, `cause` `behind` (a live source outran the processing) or
 //!   `not_a_number` (NaN or infinite samples in the input).
+//! - `capture` (with `--capture`, when a capture is closed or skipped): `channel, status`
+//!   (`saved` or `skipped`), `file` (the capture's `.sigmf-meta`), `cause` (of a skip: `disk_cap`
+//!   or `disk_behind`), `t_start_s, t_end_s, start, end` (the IQ in the file), `iq_samples,
+//!   bytes, truncated` (the emission outlasted `--capture-max-seconds`).
 //! - `stop` (last line of an orderly end): `t_end_s, end, reason` (`end_of_input`, `limit`,
 //!   `interrupted`, `terminated`, `input_error`), `iq_samples` (read), `dropped_samples` (total).
 //!

@@ -12,6 +12,7 @@ pub enum Record {
     Interval(IntervalRecord),
     Emission(EmissionRecord),
     Dropped(DroppedRecord),
+    Capture(CaptureRecord),
     Stop(StopRecord),
 }
 
@@ -100,6 +101,30 @@ pub struct DroppedRecord {
     pub cause: String,
 }
 
+/// An emission's IQ saved by `--capture` as a SigMF recording, or skipped.
+#[derive(Serialize, Debug, Clone, PartialEq)]
+pub struct CaptureRecord {
+    pub channel: String,
+    /// `saved` or `skipped`.
+    pub status: String,
+    /// The capture's `.sigmf-meta` (its data is the `.sigmf-data` beside it); `null` if skipped.
+    pub file: Option<String>,
+    /// Why it was skipped: `disk_cap` (`--capture-max-bytes` reached) or `disk_behind` (the disk
+    /// could not keep up with live input).
+    pub cause: Option<String>,
+    /// The span of IQ in the file (a skipped capture: the emission's start, no end).
+    pub t_start_s: f64,
+    pub t_end_s: Option<f64>,
+    pub start: Option<String>,
+    pub end: Option<String>,
+    /// IQ samples in the file.
+    pub iq_samples: u64,
+    /// Bytes of samples in the file.
+    pub bytes: u64,
+    /// The emission was longer than `--capture-max-seconds`: the file holds its first part.
+    pub truncated: bool,
+}
+
 /// The last line of a run that ended in an orderly way.
 #[derive(Serialize, Debug, Clone, PartialEq)]
 pub struct StopRecord {
@@ -152,4 +177,8 @@ pub const CSV_COLUMNS: &[&str] = &[
     "floor_smoothing_s",
     "time_source",
     "version",
+    "status",
+    "file",
+    "bytes",
+    "truncated",
 ];

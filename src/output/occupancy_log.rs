@@ -12,8 +12,14 @@ use crate::pipeline::occupancy::OccupancySetup;
 use crate::pipeline::{Consumer, GapCause, RunEnd, RunInfo};
 use crate::plan::Plan;
 use crate::units::db;
+use std::cell::RefCell;
 use std::io::{self, Write};
+use std::rc::Rc;
 use time::OffsetDateTime;
+
+/// Records that other consumers of the same run add to the log (the `capture` records): written
+/// after the log's own record of the same moment, in the order they came.
+pub type SideRecords = Rc<RefCell<Vec<Record>>>;
 
 /// Writes the log of one run, into one file or a rotated series ([`super::rotation`]).
 pub struct OccupancyLog<W: Write> {
@@ -23,6 +29,7 @@ pub struct OccupancyLog<W: Write> {
     headers: Vec<Record>,
     plan: Plan,
     setup: OccupancySetup,
+    side: SideRecords,
 }
 
 impl<W: Write> OccupancyLog<W> {
@@ -46,7 +53,26 @@ impl<W: Write> OccupancyLog<W> {
             headers: Vec::new(),
             plan: plan.clone(),
             setup: setup.clone(),
+            side: SideRecords::default(),
         }
+    }
+
+    /// The queue other consumers put their records in.
+    pub fn side_records(&self) -> SideRecords {
+        self.side.clone()
+    }
+
+    /// Writes the records other consumers queued.
+    fn write_side(&mut self, run: &RunInfo) -> io::Result<()> {
+        let queued = std::mem::take(&mut *self.side.borrow_mut());
+        for rec in queued {
+            let sample = match &rec {
+                Record::Capture(c) => (c.t_start_s * run.clock.rate).round() as u64,
+                _ => 0,
+            };
+            self.emit(&rec, Some(sample), run)?;
+        }
+        Ok(())
     }
 
     /// The writer of the (last) file.
@@ -106,13 +132,15 @@ impl<W: Write> OccupancyLog<W> {
         }
     }
 
-    fn record(&self, event: &Event, run: &RunInfo) -> Record {
+    /// The record of an event; `None` for the start of an emission (its record comes when it
+    /// ends).
+    fn record(&self, event: &Event, run: &RunInfo) -> Option<Record> {
         let c = &run.clock;
         match event {
             Event::Interval(i) => {
                 let l = &self.plan.channels[i.channel];
                 let measured = i.samples > 0;
-                Record::Interval(IntervalRecord {
+                Some(Record::Interval(IntervalRecord {
                     channel: l.name.clone(),
                     center_hz: l.center_hz,
                     width_hz: l.width_hz,
@@ -130,11 +158,11 @@ impl<W: Write> OccupancyLog<W> {
                     occupied_samples: (i.occupied * 1000.0).round() / 1000.0,
                     dropped_samples: i.dropped_samples,
                     partial: i.partial,
-                })
+                }))
             }
             Event::Emission(e) => {
                 let l = &self.plan.channels[e.channel];
-                Record::Emission(EmissionRecord {
+                Some(Record::Emission(EmissionRecord {
                     channel: l.name.clone(),
                     center_hz: l.center_hz,
                     t_start_s: c.seconds(e.start_sample),
@@ -147,8 +175,9 @@ impl<W: Write> OccupancyLog<W> {
                     obw_hz: e.obw_hz.map(|w| round_to(w, 1)),
                     samples: e.samples,
                     partial: e.partial,
-                })
+                }))
             }
+            Event::Opened(_) => None,
         }
     }
 }
@@ -177,12 +206,14 @@ impl<W: Write> Consumer for OccupancyLog<W> {
     }
 
     fn event(&mut self, event: &Event, run: &RunInfo) -> io::Result<()> {
-        let rec = self.record(event, run);
+        let Some(rec) = self.record(event, run) else { return self.write_side(run) };
         let first = match event {
             Event::Interval(i) => i.start_sample,
             Event::Emission(e) => e.start_sample,
+            Event::Opened(o) => o.start_sample,
         };
-        self.emit(&rec, Some(first), run)
+        self.emit(&rec, Some(first), run)?;
+        self.write_side(run)
     }
 
     fn gap(&mut self, from: u64, to: u64, cause: GapCause, run: &RunInfo) -> io::Result<()> {
@@ -195,10 +226,12 @@ impl<W: Write> Consumer for OccupancyLog<W> {
             dropped_samples: to - from,
             cause: cause.as_str().into(),
         });
-        self.emit(&rec, Some(from), run)
+        self.emit(&rec, Some(from), run)?;
+        self.write_side(run)
     }
 
     fn finish(&mut self, end: &RunEnd, run: &RunInfo) -> io::Result<()> {
+        self.write_side(run)?;
         let c = &run.clock;
         let rec = Record::Stop(StopRecord {
             t_end_s: c.seconds(end.end_sample),

@@ -118,6 +118,17 @@ pub struct RowFeed {
 impl RowFeed {
     /// Starts the run over `blocks`; the queue of rows is closed when the input ends.
     pub fn spawn(blocks: Receiver<Block>, spec: RunSpec) -> io::Result<RowFeed> {
+        RowFeed::spawn_with(blocks, spec, Vec::new())
+    }
+
+    /// [`RowFeed::spawn`] with more consumers on the run's thread (a recording of the input):
+    /// they see every block and gap, and their `finish` is called however the run ends. A
+    /// consumer's error ends the run; it keeps its own account of it for the command.
+    pub fn spawn_with(
+        blocks: Receiver<Block>,
+        spec: RunSpec,
+        mut extra: Vec<Box<dyn Consumer + Send>>,
+    ) -> io::Result<RowFeed> {
         let (row_tx, row_rx) = bounded(ROW_QUEUE);
         let (control_tx, control_rx) = bounded(8);
         let skipped = Arc::new(AtomicU64::new(0));
@@ -131,12 +142,12 @@ impl RowFeed {
         };
         let stop2 = stop.clone();
         let handle = std::thread::Builder::new().name("dsp".into()).spawn(move || {
-            let mut run = Run::new(spec, vec![&mut latest]);
+            let mut consumers: Vec<&mut dyn Consumer> = vec![&mut latest];
+            consumers.extend(extra.iter_mut().map(|c| &mut **c as &mut dyn Consumer));
+            let mut run = Run::new(spec, consumers);
             let halt = || stop2.load(Ordering::Relaxed).then_some(StopReason::Limit);
-            // Offering rows never fails, so neither can the run.
-            if let Ok(StopReason::EndOfInput) = run.pump(&blocks, &halt) {
-                let _ = run.finish(StopReason::EndOfInput);
-            }
+            let reason = run.pump(&blocks, &halt).unwrap_or(StopReason::InputError);
+            let _ = run.finish(reason);
         })?;
         Ok(RowFeed {
             rows: row_rx,

@@ -66,6 +66,9 @@ pub struct ReaderOptions {
     /// Deliver at `speed` × the sample rate (file playback in `watch`); `None` = as fast as the
     /// consumer takes them.
     pub pace: Option<f64>,
+    /// Deliver at this multiple of the sample rate once the input shows itself to be a recording
+    /// (a pipe running ahead of real time, as `cat file |` does); a receiver is never held back.
+    pub pace_recordings: Option<f64>,
     /// Start again at the end (files only).
     pub loop_input: bool,
     /// Stop after this many samples (`--seconds`), counted after `skip_samples`.
@@ -81,6 +84,7 @@ impl Default for ReaderOptions {
             block_len: 65536,
             drop_when_full: false,
             pace: None,
+            pace_recordings: None,
             loop_input: false,
             max_samples: None,
             skip_samples: 0,
@@ -119,9 +123,9 @@ fn run(
     // are freed on return, so a backlog that has cleared does not stay resident.
     let (home, spare) = bounded::<Vec<Complex32>>(SPARE_BLOCKS);
     let mut index = 0u64;
-    let started = Instant::now();
-    let mut paced_samples = 0u64;
+    let mut pacer = opts.pace.map(Pacer::new);
     let mut first_block: Option<Instant> = None;
+    let mut recording = false;
     let mut skipped = 0u64;
     if opts.skip_samples > 0 {
         let mut scratch = vec![Complex32::default(); opts.block_len.max(1)];
@@ -152,22 +156,23 @@ fn run(
             }
             break;
         }
-        if let Some(speed) = opts.pace {
-            paced_samples += n as u64;
-            let due = Duration::from_secs_f64(paced_samples as f64 / (rate * speed));
-            let elapsed = started.elapsed();
-            if due > elapsed {
-                sleep_unless_stopped(due - elapsed, stop);
-            }
+        let first = *first_block.get_or_insert_with(Instant::now);
+        // Seen once ahead of real time, the input is a recording: it may wait, never drop, and
+        // from now on plays at its recorded rate when asked to.
+        if !recording && ahead_of_real_time(index + n as u64, rate, first, opts) {
+            recording = true;
+            pacer = pacer.or(opts.pace_recordings.map(Pacer::new));
+        }
+        if let Some(p) = pacer.as_mut() {
+            p.wait(n as u64, rate, stop);
         }
         let block = Block { start: index, samples, home: Some(home.clone()) };
         index += n as u64;
         stats.samples.fetch_add(n as u64, Ordering::Relaxed);
-        let first = *first_block.get_or_insert_with(Instant::now);
         if opts.drop_when_full {
             match tx.try_send(block) {
                 Ok(()) => {}
-                Err(TrySendError::Full(b)) if ahead_of_real_time(index, rate, first, opts) => {
+                Err(TrySendError::Full(b)) if recording => {
                     // A pipe that delivers faster than real time is a recording, not a
                     // receiver: it can wait (back-pressure), and must lose nothing.
                     if tx.send(b).is_err() {
@@ -196,6 +201,29 @@ pub const REAL_TIME_SLACK_S: f64 = 0.5;
 fn ahead_of_real_time(samples: u64, rate: f64, first: Instant, opts: &ReaderOptions) -> bool {
     let due = rate * (first.elapsed().as_secs_f64() + REAL_TIME_SLACK_S) + opts.block_len as f64;
     samples as f64 > due
+}
+
+/// Holds delivery to `speed` × the sample rate from the moment it was made.
+struct Pacer {
+    origin: Instant,
+    samples: u64,
+    speed: f64,
+}
+
+impl Pacer {
+    fn new(speed: f64) -> Pacer {
+        Pacer { origin: Instant::now(), samples: 0, speed }
+    }
+
+    /// Counts `n` more samples and sleeps until they are due.
+    fn wait(&mut self, n: u64, rate: f64, stop: &AtomicBool) {
+        self.samples += n;
+        let due = Duration::from_secs_f64(self.samples as f64 / (rate * self.speed));
+        let elapsed = self.origin.elapsed();
+        if due > elapsed {
+            sleep_unless_stopped(due - elapsed, stop);
+        }
+    }
 }
 
 fn sleep_unless_stopped(mut d: Duration, stop: &AtomicBool) {
@@ -230,6 +258,40 @@ mod tests {
         assert_eq!(stats.dropped.load(Ordering::SeqCst), 8000);
         assert_eq!(stats.samples.load(Ordering::SeqCst), 10_000);
         assert_eq!(got[1].start, 1000);
+    }
+
+    #[test]
+    fn a_recording_on_a_pipe_is_paced_not_dropped() {
+        // The non-realtime demo source delivers as fast as it is read, as `cat file |` does.
+        // 1.5 s of samples at 100 kS/s: the first half second runs ahead (the slack), the rest
+        // plays at the recorded rate, so the whole takes about a second (the schedule, not a
+        // measurement) and, with a consumer that keeps up, nothing is dropped.
+        let src = Box::new(DemoSource::new(1e5, 0.0, false));
+        let (tx, rx) = bounded(2);
+        let stats = Arc::new(ReaderStats::default());
+        let opts = ReaderOptions {
+            block_len: 1000,
+            drop_when_full: true,
+            pace_recordings: Some(1.0),
+            max_samples: Some(150_000),
+            ..Default::default()
+        };
+        let t0 = Instant::now();
+        let h = spawn(src, opts, tx, Arc::new(AtomicBool::new(false)), stats.clone());
+        let blocks: Vec<(u64, usize)> = rx.iter().map(|b| (b.start, b.samples.len())).collect();
+        h.join().unwrap().unwrap();
+        let took = t0.elapsed().as_secs_f64();
+        // Before the input shows itself a recording (half a second of samples ahead, plus a
+        // block) a full queue may drop, as for a receiver; after that nothing is dropped.
+        let dropped = stats.dropped.load(Ordering::SeqCst);
+        let known = 50_000 + 2 * 1000;
+        assert!(dropped <= known, "dropped {dropped}");
+        let late: Vec<&(u64, usize)> = blocks.iter().filter(|b| b.0 >= known).collect();
+        for w in late.windows(2) {
+            assert_eq!(w[0].0 + w[0].1 as u64, w[1].0, "a gap after the recording was known");
+        }
+        assert_eq!(late.last().map(|b| b.0 + b.1 as u64), Some(150_000));
+        assert!((0.85..3.0).contains(&took), "took {took} s");
     }
 
     #[test]

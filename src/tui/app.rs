@@ -6,15 +6,19 @@
 //! scale) run on the average trace a few times a second, not on every row: the table must be
 //! readable and the monitor light.
 
+use super::alarms::AlarmLog;
+use super::channels::ChannelActivity;
 use super::colour::{Depth, MapKind, Palette, Theme};
-use super::history::{History, Row};
+use super::history::{History, Row, HISTORY_BYTES};
 use super::input::Intent;
 use super::layout::Screen;
 pub use super::state::{ChannelMark, Levels, Mode, SourceSummary, Stats};
+use super::timeline::TimeBase;
 use super::traces::Traces;
 use super::view::{column_max, BinGrid, View, MIN_VIEW_BINS};
+use super::widgets::table::{SortKey, TableMode};
 use crate::dsp::{Spectrum, Window, WindowKind};
-use crate::measure::{find_signals, noise_floor, Detection, Signal};
+use crate::measure::{find_signals, noise_floor, Detection, Edges, Signal};
 use crate::pipeline::latest::RowSettings;
 use crate::units::db;
 use std::time::{Duration, Instant};
@@ -28,8 +32,24 @@ pub const MAX_SIGNALS: usize = 12;
 /// FFT sizes reachable with the keys.
 pub const FFT_KEYS_MIN: usize = 64;
 pub const FFT_KEYS_MAX: usize = 65536;
-/// Row rates reachable with the keys, rows per second.
-pub const ROW_RATES: [f64; 8] = [1.0, 2.0, 5.0, 10.0, 15.0, 20.0, 30.0, 50.0];
+/// Row rates reachable with the keys, rows per second: down to one row in ten seconds, so the
+/// waterfall can cover a quarter of an hour (each row averages every frame of its time).
+pub const ROW_RATES: [f64; 11] = [0.1, 0.2, 0.5, 1.0, 2.0, 5.0, 10.0, 15.0, 20.0, 30.0, 50.0];
+/// How long a notice stays on the marker line.
+pub const NOTICE_FOR: Duration = Duration::from_secs(4);
+/// What `o` and `t` say without a plan.
+pub const NO_PLAN: &str = "no channel plan: start with --plan FILE or --channel NAME=CENTRE:WIDTH";
+
+/// Power and occupied bandwidth of the band between the two markers.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct BandReading {
+    pub low_hz: f64,
+    pub high_hz: f64,
+    /// Integrated power, dBFS ([`crate::measure::band_power`], as `measure --band`).
+    pub power_dbfs: f64,
+    /// 99 % occupied bandwidth (ITU-R SM.328), if the band holds power.
+    pub obw: Option<Edges>,
+}
 /// Limits of the dynamic range, dB.
 pub const RANGE_MIN_DB: f64 = 20.0;
 pub const RANGE_MAX_DB: f64 = 200.0;
@@ -56,11 +76,31 @@ pub struct App {
     pub plan_visible: bool,
     pub traces: Traces,
     pub history: History,
+    /// The signal table, in the order of `sort`.
     pub signals: Vec<Signal>,
+    pub sort: SortKey,
+    pub table_mode: TableMode,
     /// How the signal list tells signals from noise (`--false-alarm`).
     pub detection: Detection,
     /// Noise power in one RBW, dBFS.
     pub floor_dbfs: Option<f64>,
+    /// Noise density, FS²/Hz.
+    pub floor_density: Option<f64>,
+    /// The band between the markers, when both are set.
+    pub band: Option<BandReading>,
+    pub activity: ChannelActivity,
+    pub times: TimeBase,
+    /// The time cursor (absolute history index of its row) while scrolled back; `None` live.
+    pub cursor: Option<u64>,
+    /// The cursor's row as a spectrum, feeding the current trace and the table.
+    pub cursor_spectrum: Option<Spectrum>,
+    /// A short message on the marker line (a key that could not do what it says, a file
+    /// written) and when it goes.
+    pub notice: Option<(String, Instant)>,
+    /// Terminal bells to ring (alarm onsets).
+    pub bells: u32,
+    /// Where alarm onsets are recorded (`--alarm-log`).
+    pub alarm_log: Option<AlarmLog>,
     pub stats: Stats,
     /// The input has ended (and is not looping).
     pub ended: bool,
@@ -70,8 +110,7 @@ pub struct App {
     pub waterfall_external: bool,
     /// Where things were on the last frame, for mouse clicks and marker steps.
     pub screen: Option<Screen>,
-    signal_cursor: usize,
-    window: Option<Window>,
+    pub(super) window: Option<Window>,
     last_measure: Option<Instant>,
 }
 
@@ -85,6 +124,9 @@ impl App {
         now: Instant,
     ) -> App {
         let plan_visible = !channels.is_empty();
+        let wrap = source.looping.then_some(source.total_samples).flatten();
+        let times = TimeBase::new(source.clock.clone(), wrap);
+        let activity = ChannelActivity::new(channels.len());
         App {
             mode: Mode::Live,
             help: false,
@@ -103,16 +145,26 @@ impl App {
             channels,
             plan_visible,
             traces: Traces::default(),
-            history: History::new(256),
+            history: History::new(HISTORY_BYTES),
             signals: Vec::new(),
+            sort: SortKey::Frequency,
+            table_mode: TableMode::Signals,
             detection: Detection::default(),
             floor_dbfs: None,
+            floor_density: None,
+            band: None,
+            activity,
+            times,
+            cursor: None,
+            cursor_spectrum: None,
+            notice: None,
+            bells: 0,
+            alarm_log: None,
             stats: Stats::new(now),
             ended: false,
             waterfall_epoch: 0,
             waterfall_external: false,
             screen: None,
-            signal_cursor: 0,
             window: None,
             last_measure: None,
         }
@@ -129,20 +181,32 @@ impl App {
     }
 
     /// Takes a new row from the DSP.
+    /// Takes a new row from the DSP. Frozen, the row still goes into the history and the
+    /// channel panel (nothing is lost), but not into the traces on show.
     pub fn push_row(&mut self, spec: Spectrum) {
         self.stats.position_s = Some(spec.end_sample as f64 / spec.sample_rate_hz);
+        self.stats.rows += 1;
+        self.stats.rows_total += 1;
+        self.history.push(Row::from_spectrum(&spec));
+        let onsets = self.activity.push(&spec, &self.channels, self.floor_density);
+        if !onsets.is_empty() {
+            self.bells += 1;
+            self.log_onsets(&onsets, spec.end_sample);
+        }
         if self.mode == Mode::Frozen {
             return;
         }
-        self.stats.rows += 1;
         let (lo, hi) = spec.span_hz();
         let span = View::new(lo, hi);
-        let row = Row::from_spectrum(&spec);
         if self.traces.push(spec) {
             self.window = None;
             self.view = Some(self.view.map_or(span, |v| v.inside(span)));
         }
-        self.history.push(row);
+    }
+
+    /// Shows `text` on the marker line for a few seconds.
+    pub fn say(&mut self, text: impl Into<String>) {
+        self.notice = Some((text.into(), Instant::now() + NOTICE_FOR));
     }
 
     /// The captured span, once a row has arrived.
@@ -155,6 +219,9 @@ impl App {
 
     /// Periodic work: measurements when due.
     pub fn tick(&mut self, now: Instant) {
+        if self.notice.as_ref().is_some_and(|(_, until)| now >= *until) {
+            self.notice = None;
+        }
         let due = self.last_measure.map_or(true, |t| now.duration_since(t) >= MEASURE_EVERY);
         if due && self.mode == Mode::Live && self.traces.current().is_some() {
             self.measure();
@@ -162,18 +229,24 @@ impl App {
         }
     }
 
-    /// Noise floor, signal table and (when on) the automatic scale, from the average trace.
+    /// Noise floor, signal table and (when on) the automatic scale, from the average trace (or,
+    /// scrolled back, from the time cursor's row).
     pub fn measure(&mut self) {
-        let Some(avg) = self.traces.average_spectrum() else { return };
+        let Some(avg) = self.cursor_spectrum.clone().or_else(|| self.traces.average_spectrum())
+        else {
+            return;
+        };
         let window = match self.window.take() {
             Some(w) if w.kind == avg.window && w.len() == avg.fft_size => w,
             _ => Window::new(avg.window, avg.fft_size),
         };
         let floor = noise_floor(&avg.psd, avg.dof);
         self.signals = find_signals(&avg, &window, floor, MAX_SIGNALS, self.detection);
+        self.sort.apply(&mut self.signals);
         self.window = Some(window);
         let floor_dbfs = db(floor * avg.rbw_hz);
         self.floor_dbfs = Some(floor_dbfs);
+        self.floor_density = Some(floor);
         if self.levels.auto {
             let peak = self.visible_peak_dbfs(&avg).unwrap_or(floor_dbfs);
             self.auto_scale(floor_dbfs, peak);
@@ -185,6 +258,7 @@ impl App {
     pub fn refresh_readings(&mut self) {
         self.marker_reading = self.marker_hz.and_then(|m| self.reading(m));
         self.ref_reading = self.ref_marker_hz.and_then(|m| self.reading(m));
+        self.band = self.band_reading();
     }
 
     /// Largest level of the average in view, dBFS in one RBW.
@@ -242,20 +316,25 @@ impl App {
             Intent::ToggleHelp => self.help = !self.help,
             Intent::CloseHelp => self.help = false,
             Intent::Freeze => {
-                self.mode = if self.mode == Mode::Frozen { Mode::Live } else { Mode::Frozen }
+                if self.mode == Mode::Frozen {
+                    self.resume();
+                } else {
+                    self.freeze();
+                }
             }
+            Intent::TimeBack(lines) => self.move_cursor(-(lines as i64)),
+            Intent::TimeForward(lines) => self.move_cursor(lines as i64),
+            Intent::TimeLive => self.resume(),
+            Intent::ToggleUtc => self.toggle_utc(),
+            Intent::SortNext => self.next_sort(),
+            Intent::ToggleChannels => self.toggle_channels(),
+            Intent::ToggleAlarm => self.toggle_alarm(),
+            Intent::WriteEvidence => self.evidence_key(),
             Intent::MarkerLeft(n) => self.step_marker(-(n as i64)),
             Intent::MarkerRight(n) => self.step_marker(n as i64),
-            Intent::MarkerToStrongest => {
-                self.signal_cursor = 0;
-                self.marker_to_signal();
-            }
-            Intent::MarkerToNext => {
-                if !self.signals.is_empty() {
-                    self.signal_cursor = (self.signal_cursor + 1) % self.signals.len();
-                }
-                self.marker_to_signal();
-            }
+            Intent::MarkerToStrongest => self.marker_to_strongest(),
+            Intent::MarkerToNext => self.step_signal(1),
+            Intent::MarkerToPrev => self.step_signal(-1),
             Intent::SetRefMarker => self.ref_marker_hz = self.marker_hz,
             Intent::ClearRefMarker => self.ref_marker_hz = None,
             Intent::ZoomIn => self.zoom(0.5),
@@ -296,12 +375,20 @@ impl App {
                 self.palette = Palette::new(self.depth, self.palette.map.next());
                 self.waterfall_epoch += 1;
             }
-            Intent::TogglePlan => self.plan_visible = !self.plan_visible,
+            Intent::TogglePlan => {
+                if self.channels.is_empty() {
+                    self.say(NO_PLAN);
+                } else {
+                    self.plan_visible = !self.plan_visible;
+                }
+            }
             Intent::RowsSlower => self.change_row_rate(false),
             Intent::RowsFaster => self.change_row_rate(true),
             Intent::PointAt(x, y) => {
                 if let Some(col) = self.plot_column_at(x, y) {
                     self.marker_hz = self.snap_to_column(col);
+                } else {
+                    self.click_table(x, y);
                 }
             }
             Intent::PointRefAt(x, y) => {
@@ -312,7 +399,7 @@ impl App {
         }
     }
 
-    fn set_view(&mut self, v: View) {
+    pub(super) fn set_view(&mut self, v: View) {
         if self.view != Some(v) {
             self.view = Some(v);
             self.waterfall_epoch += 1;
@@ -326,7 +413,15 @@ impl App {
         };
         let anchor = self.marker_hz.filter(|m| (v.lo_hz..v.hi_hz).contains(m));
         let min_width = MIN_VIEW_BINS * cur.bin_hz();
-        self.set_view(v.zoom(factor, anchor.unwrap_or(v.centre_hz()), span, min_width));
+        let next = v.zoom(factor, anchor.unwrap_or(v.centre_hz()), span, min_width);
+        if next == v {
+            self.say(if factor < 1.0 {
+                "narrowest view already (16 FFT bins); f makes the bins finer"
+            } else {
+                "whole span already"
+            });
+        }
+        self.set_view(next);
     }
 
     fn pan(&mut self, fraction: f64) {
@@ -354,6 +449,11 @@ impl App {
         let next = next.clamp(FFT_KEYS_MIN, FFT_KEYS_MAX);
         if next != n {
             self.request(RowSettings { fft_size: next, ..self.settings });
+        } else {
+            self.say(format!(
+                "FFT size {n} is the {} the keys reach",
+                if larger { "largest" } else { "smallest" }
+            ));
         }
     }
 
@@ -375,25 +475,19 @@ impl App {
         } else {
             ROW_RATES.iter().rev().copied().find(|&x| x < r - 1e-9)
         };
-        if let Some(row_rate) = next {
-            self.request(RowSettings { row_rate, ..self.settings });
+        match next {
+            Some(row_rate) => self.request(RowSettings { row_rate, ..self.settings }),
+            None => self.say(format!(
+                "{} the {} row rate the keys reach",
+                super::widgets::status::format_rows_per_s(r),
+                if faster { "fastest" } else { "slowest" }
+            )),
         }
     }
 
     fn request(&mut self, s: RowSettings) {
         self.settings = s;
         self.pending_settings = Some(s);
-    }
-
-    fn marker_to_signal(&mut self) {
-        let Some(sig) = self.signals.get(self.signal_cursor) else { return };
-        let f = sig.freq_hz;
-        self.marker_hz = Some(f);
-        if let (Some(v), Some(span)) = (self.view, self.span()) {
-            if !(v.lo_hz..v.hi_hz).contains(&f) {
-                self.set_view(v.centred_on(f, span));
-            }
-        }
     }
 
     fn step_marker(&mut self, by: i64) {
@@ -460,17 +554,21 @@ impl App {
     /// hold, minimum hold.
     pub fn trace_columns(&self, ncols: usize) -> Option<[Vec<f64>; 4]> {
         let cur = self.traces.current()?;
-        let map = grid_of(cur).column_map(&self.view?, ncols);
-        let to_db = |v: Vec<f64>| -> Vec<f64> {
+        let view = self.view?;
+        let map = grid_of(cur).column_map(&view, ncols);
+        let to_db = |v: Vec<f64>, rbw: f64| -> Vec<f64> {
             v.into_iter()
-                .map(|p| if p.is_finite() { db(p * cur.rbw_hz) } else { f64::NEG_INFINITY })
+                .map(|p| if p.is_finite() { db(p * rbw) } else { f64::NEG_INFINITY })
                 .collect()
         };
+        // Scrolled back, the current trace is the time cursor's row.
+        let shown = self.cursor_spectrum.as_ref().unwrap_or(cur);
+        let shown_map = grid_of(shown).column_map(&view, ncols);
         Some([
-            to_db(column_max(&cur.psd, &map)),
-            to_db(column_max(self.traces.average_psd(), &map)),
-            to_db(column_max(self.traces.hold_psd(), &map)),
-            to_db(column_max(self.traces.min_hold_psd(), &map)),
+            to_db(column_max(&shown.psd, &shown_map), shown.rbw_hz),
+            to_db(column_max(self.traces.average_psd(), &map), cur.rbw_hz),
+            to_db(column_max(self.traces.hold_psd(), &map), cur.rbw_hz),
+            to_db(column_max(self.traces.min_hold_psd(), &map), cur.rbw_hz),
         ])
     }
 
@@ -497,11 +595,12 @@ pub fn grid_of(s: &Spectrum) -> BinGrid {
 }
 
 #[cfg(test)]
-mod tests {
+pub(crate) mod tests {
     use super::*;
     use crate::dsp::Window;
 
-    fn summary() -> SourceSummary {
+    /// A live 1.024 MS/s source at 100 MHz with no start time.
+    pub(crate) fn summary() -> SourceSummary {
         SourceSummary {
             label: "test".into(),
             sample_rate_hz: 1.024e6,
@@ -510,10 +609,12 @@ mod tests {
             live: true,
             speed: None,
             looping: false,
+            clock: crate::pipeline::clock::Clock::new(1.024e6, None),
         }
     }
 
-    fn settings() -> RowSettings {
+    /// 1024-point Hann rows at 20 rows/s.
+    pub(crate) fn settings() -> RowSettings {
         RowSettings {
             fft_size: 1024,
             window: WindowKind::Hann,
@@ -670,15 +771,138 @@ mod tests {
     }
 
     #[test]
-    fn frozen_display_ignores_rows() {
+    fn frozen_display_keeps_its_picture_and_the_history_keeps_filling() {
         let mut a = app();
         a.apply(Intent::Freeze);
         let total = a.history.total();
+        let end = a.traces.current().unwrap().end_sample;
         a.push_row(row(5, 1e6));
-        assert_eq!(a.history.total(), total);
+        assert_eq!(a.history.total(), total + 1, "nothing is lost while frozen");
+        assert_eq!(a.traces.current().unwrap().end_sample, end, "the traces hold still");
+        assert_eq!(a.cursor, Some(total - 1));
+        assert_eq!(a.waterfall_plot().unwrap().end, total, "the waterfall holds still");
         a.apply(Intent::Freeze);
         a.push_row(row(5, 1e6));
-        assert_eq!(a.history.total(), total + 1);
+        assert_eq!(a.history.total(), total + 2);
+        assert_eq!(a.waterfall_plot().unwrap().end, u64::MAX, "live: every row");
+    }
+
+    #[test]
+    fn the_time_cursor_walks_back_and_feeds_the_table() {
+        // 20 rows with a tone in bin 100, then 20 with it in bin 300: scrolled back past the
+        // change, the table finds the old tone; live again, the new one.
+        let t = Instant::now();
+        let mut a = App::new(summary(), settings(), Depth::Mono, None, Vec::new(), t);
+        for i in 0..40 {
+            a.push_row(row(if i < 20 { 100 } else { 300 }, 1e6));
+        }
+        let has = |a: &App, f: f64| a.signals.iter().any(|s| (s.freq_hz - f).abs() < 1.0);
+        a.measure();
+        assert!(has(&a, 100.3e6));
+        a.apply(Intent::TimeBack(10));
+        assert_eq!(a.mode, Mode::Frozen);
+        assert_eq!(a.cursor, Some(19));
+        // The cursor's row alone: the old tone only.
+        assert!(has(&a, 100.1e6) && !has(&a, 100.3e6), "{:?}", a.signals);
+        assert_eq!(a.waterfall_plot().unwrap().shown_rows(), 20);
+        // The current trace is the cursor's row: its peak is at the old tone.
+        let cols = a.trace_columns(1024).unwrap();
+        let peak = (0..1024).max_by(|&x, &y| cols[0][x].total_cmp(&cols[0][y])).unwrap();
+        assert_eq!(peak, 612);
+        // Far back stops at the oldest row kept; forward and End come back.
+        a.apply(Intent::TimeBack(100));
+        assert_eq!(a.cursor, Some(0));
+        assert!(a.notice.is_none(), "a move that moves says nothing");
+        a.apply(Intent::TimeBack(1));
+        assert!(a.notice.as_ref().unwrap().0.contains("oldest row"));
+        a.apply(Intent::TimeForward(1));
+        assert_eq!(a.cursor, Some(2));
+        a.apply(Intent::TimeLive);
+        assert_eq!((a.mode, a.cursor), (Mode::Live, None));
+        a.measure();
+        assert!(has(&a, 100.3e6));
+    }
+
+    #[test]
+    fn n_and_p_walk_the_table_in_its_order() {
+        let t = Instant::now();
+        let mut a = App::new(summary(), settings(), Depth::Mono, None, Vec::new(), t);
+        let n = 1024;
+        let mut power = vec![1.0; n];
+        // FFT bins 100, 200, 300 → 100.1, 100.2, 100.3 MHz; the middle one strongest.
+        power[100] = 1e5;
+        power[200] = 1e7;
+        power[300] = 1e6;
+        let w = Window::new(WindowKind::Hann, n);
+        let spec = Spectrum::from_power_sum(&power, 1, 2.0, &w, 1.024e6, 100e6, 0, n as u64);
+        for _ in 0..10 {
+            a.push_row(spec.clone());
+        }
+        a.measure();
+        let f: Vec<f64> = a.signals.iter().map(|s| (s.freq_hz / 1e3).round()).collect();
+        assert_eq!(f, vec![100_100.0, 100_200.0, 100_300.0], "by frequency");
+        let mhz = |a: &App| (a.marker_hz.unwrap() / 1e3).round();
+        a.apply(Intent::MarkerToNext);
+        assert_eq!(mhz(&a), 100_100.0);
+        a.apply(Intent::MarkerToNext);
+        assert_eq!(mhz(&a), 100_200.0);
+        a.measure(); // a new measurement keeps the order, so the walk goes on
+        a.apply(Intent::MarkerToNext);
+        assert_eq!(mhz(&a), 100_300.0);
+        a.apply(Intent::MarkerToNext);
+        assert_eq!(mhz(&a), 100_100.0, "wraps");
+        a.apply(Intent::MarkerToPrev);
+        assert_eq!(mhz(&a), 100_300.0);
+        a.apply(Intent::MarkerToStrongest);
+        assert_eq!(mhz(&a), 100_200.0);
+        a.apply(Intent::SortNext);
+        let f: Vec<f64> = a.signals.iter().map(|s| (s.freq_hz / 1e3).round()).collect();
+        assert_eq!(f, vec![100_200.0, 100_300.0, 100_100.0], "by power");
+        a.apply(Intent::MarkerToNext);
+        assert_eq!(mhz(&a), 100_300.0);
+    }
+
+    #[test]
+    fn keys_at_their_limits_say_so() {
+        let mut a = app();
+        a.apply(Intent::TogglePlan);
+        assert!(a.notice.as_ref().unwrap().0.contains("no channel plan"));
+        a.notice = None;
+        a.apply(Intent::ZoomOut);
+        assert!(a.notice.as_ref().unwrap().0.contains("whole span"));
+        a.settings.fft_size = FFT_KEYS_MAX;
+        a.apply(Intent::FftLarger);
+        assert!(a.notice.as_ref().unwrap().0.contains("65536 is the largest"));
+        a.settings.row_rate = ROW_RATES[0];
+        a.apply(Intent::RowsSlower);
+        assert!(a.notice.as_ref().unwrap().0.contains("slowest"), "{:?}", a.notice);
+        // Notices go after a while.
+        a.tick(Instant::now() + NOTICE_FOR);
+        assert!(a.notice.is_none());
+    }
+
+    #[test]
+    fn the_band_between_the_markers_reads_power_and_obw() {
+        let mut a = app();
+        for _ in 0..10 {
+            a.push_row(row(100, 1e6));
+        }
+        a.measure();
+        a.marker_hz = Some(100.05e6);
+        a.apply(Intent::SetRefMarker);
+        a.marker_hz = Some(100.15e6);
+        a.refresh_readings();
+        let b = a.band.unwrap();
+        assert_eq!((b.low_hz, b.high_hz), (100.05e6, 100.15e6));
+        // The same function `measure --band` uses, on the same trace.
+        let avg = a.traces.average_spectrum().unwrap();
+        let want = db(crate::measure::band_power(&avg, 100.05e6, 100.15e6));
+        assert!((b.power_dbfs - want).abs() < 1e-9);
+        // The tone is one 1 kHz bin holding 1e6 of the band's 1e6 + 99 (ITU-R SM.328: 0.5 %
+        // outside each edge): both edges fall inside that bin, 0.5 % of the band's power in
+        // from each side of it, so the OBW is just under one bin wide.
+        let obw = b.obw.unwrap().width_hz();
+        assert!(obw > 980.0 && obw < 1000.0, "{obw}");
     }
 
     #[test]

@@ -148,7 +148,13 @@ impl Palette {
 
 /// Colours of everything that is not the waterfall. They are palette indices even on a 24-bit
 /// terminal: `38;5;n` is eight bytes shorter than `38;2;r;g;b`, and these few colours need no
-/// more. In monochrome, traces differ by intensity instead.
+/// more. In monochrome, traces differ by intensity and by glyph instead (see the spectrum).
+///
+/// The trace and marker colours are the Okabe–Ito set (Okabe & Ito 2008, "Color Universal
+/// Design"), chosen so that each stays distinct to viewers with any of the common colour-vision
+/// deficiencies (protan, deutan, tritan) and against both ends of the waterfall's maps: sky blue
+/// for the average, orange for the current row, bluish green for the holds, reddish purple for
+/// the marker and yellow for the reference marker, each taken to its nearest xterm-256 entry.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct Theme {
     pub current: Style,
@@ -162,7 +168,20 @@ pub struct Theme {
     pub warn: Style,
     pub plan: Style,
     pub header: Style,
+    /// The noise floor's mark on the spectrum.
+    pub floor: Style,
+    /// No colours: traces are told apart by glyph.
+    pub mono: bool,
 }
+
+/// The Okabe–Ito colours used for traces and markers (sRGB, from the published set).
+pub const OKABE_ITO: [(&str, [u8; 3]); 5] = [
+    ("sky blue", [86, 180, 233]),
+    ("orange", [230, 159, 0]),
+    ("bluish green", [0, 158, 115]),
+    ("reddish purple", [204, 121, 167]),
+    ("yellow", [240, 228, 66]),
+];
 
 impl Theme {
     pub fn new(depth: Depth) -> Theme {
@@ -180,21 +199,29 @@ impl Theme {
                 warn: plain.add_modifier(Modifier::REVERSED),
                 plan: plain,
                 header: plain.add_modifier(Modifier::BOLD),
+                floor: plain.add_modifier(Modifier::DIM),
+                mono: true,
             };
         }
         let fg = |n: u8| plain.fg(Color::Indexed(n));
+        let okabe = |i: usize| {
+            let [r, g, b] = OKABE_ITO[i].1;
+            plain.fg(Color::Indexed(nearest_xterm256(r, g, b)))
+        };
         Theme {
-            current: fg(228),
-            average: fg(81),
-            hold: fg(244),
-            marker: fg(213),
-            ref_marker: fg(177),
+            current: okabe(1),
+            average: okabe(0),
+            hold: okabe(2),
+            marker: okabe(3),
+            ref_marker: okabe(4),
             grid: fg(238),
             label: fg(250),
             title: fg(255).add_modifier(Modifier::BOLD),
             warn: fg(16).bg(Color::Indexed(214)),
-            plan: fg(150),
+            plan: fg(250),
             header: fg(252).add_modifier(Modifier::BOLD),
+            floor: fg(110),
+            mono: false,
         }
     }
 }
@@ -313,5 +340,25 @@ mod tests {
         assert!(matches!(p.colour(31), Color::Indexed(i) if i >= 250 || i == 231));
         assert_eq!(Palette::mono_symbol(0), " ");
         assert_eq!(Palette::mono_symbol((LEVELS - 1) as u8), "█");
+    }
+
+    #[test]
+    fn trace_colours_are_the_okabe_ito_set_and_stay_apart() {
+        let t = Theme::new(Depth::Palette256);
+        let styles = [t.average, t.current, t.hold, t.marker, t.ref_marker];
+        let idx: Vec<u8> = styles
+            .iter()
+            .map(|s| match s.fg {
+                Some(Color::Indexed(i)) => i,
+                other => panic!("{other:?}"),
+            })
+            .collect();
+        // Nearest xterm entries of sky blue (86,180,233), orange (230,159,0), bluish green
+        // (0,158,115), reddish purple (204,121,167), yellow (240,228,66).
+        assert_eq!(idx, vec![74, 178, 35, 175, 221]);
+        for (i, a) in idx.iter().enumerate() {
+            assert!(!idx[i + 1..].contains(a), "two traces share colour {a}");
+        }
+        assert!(Theme::new(Depth::Mono).mono && !t.mono);
     }
 }

@@ -16,6 +16,7 @@ pub enum Intent {
     MarkerRight(u16),
     MarkerToStrongest,
     MarkerToNext,
+    MarkerToPrev,
     SetRefMarker,
     ClearRefMarker,
     ZoomIn,
@@ -38,6 +39,18 @@ pub enum Intent {
     TogglePlan,
     RowsSlower,
     RowsFaster,
+    /// Time cursor back / forward by this many waterfall lines (freezes the display).
+    TimeBack(u16),
+    TimeForward(u16),
+    /// Leave the history and go live.
+    TimeLive,
+    ToggleUtc,
+    SortNext,
+    ToggleChannels,
+    /// Arm / clear the alarm of the marker's channel.
+    ToggleAlarm,
+    /// Write the traces and the table to files.
+    WriteEvidence,
     /// Marker to the screen cell clicked (column, row).
     PointAt(u16, u16),
     /// Reference marker to the screen cell clicked.
@@ -64,12 +77,30 @@ use Key::{Char as C, Code, Shifted};
 
 /// Every key binding, in the order the help overlay lists them.
 pub const HELP: &[HelpRow] = &[
-    HelpRow { keys: "q  Ctrl-C", what: "quit", bindings: &[(C('q'), I::Quit)] },
-    HelpRow { keys: "?", what: "this help (Esc closes it)", bindings: &[(C('?'), I::ToggleHelp)] },
+    HelpRow {
+        keys: "q  ?",
+        what: "quit (also Ctrl-C); ? this help (Esc closes it)",
+        bindings: &[(C('q'), I::Quit), (C('?'), I::ToggleHelp)],
+    },
     HelpRow {
         keys: "space",
-        what: "freeze / resume the display (input keeps running)",
+        what: "freeze / resume (input goes on, history keeps filling)",
         bindings: &[(C(' '), I::Freeze)],
+    },
+    HelpRow {
+        keys: ", . < >",
+        what: "time cursor back / forward a line (< > ten lines)",
+        bindings: &[
+            (C(','), I::TimeBack(1)),
+            (C('.'), I::TimeForward(1)),
+            (C('<'), I::TimeBack(10)),
+            (C('>'), I::TimeForward(10)),
+        ],
+    },
+    HelpRow {
+        keys: "End  u",
+        what: "leave the history, live again; u: UTC / input time",
+        bindings: &[(Code(KeyCode::End), I::TimeLive), (C('u'), I::ToggleUtc)],
     },
     HelpRow {
         keys: "← →",
@@ -82,13 +113,27 @@ pub const HELP: &[HelpRow] = &[
         ],
     },
     HelpRow {
-        keys: "p  n",
-        what: "marker to the strongest / next signal in the table",
-        bindings: &[(C('p'), I::MarkerToStrongest), (C('n'), I::MarkerToNext)],
+        keys: "n  p  b",
+        what: "marker to next / previous table row; b: strongest",
+        bindings: &[
+            (C('n'), I::MarkerToNext),
+            (C('p'), I::MarkerToPrev),
+            (C('b'), I::MarkerToStrongest),
+        ],
+    },
+    HelpRow {
+        keys: "r  t",
+        what: "table by frequency / by power; t: signals / channels",
+        bindings: &[(C('r'), I::SortNext), (C('t'), I::ToggleChannels)],
+    },
+    HelpRow {
+        keys: "A  e",
+        what: "alarm on the marker's channel / off; e: write evidence",
+        bindings: &[(C('A'), I::ToggleAlarm), (C('e'), I::WriteEvidence)],
     },
     HelpRow {
         keys: "m  M",
-        what: "drop / lift the reference marker (Δ readout)",
+        what: "drop / lift the reference marker (Δ and band readout)",
         bindings: &[(C('m'), I::SetRefMarker), (C('M'), I::ClearRefMarker)],
     },
     HelpRow {
@@ -107,43 +152,34 @@ pub const HELP: &[HelpRow] = &[
         bindings: &[(C('0'), I::FullSpan), (C('c'), I::CentreOnMarker)],
     },
     HelpRow {
-        keys: "f  F",
-        what: "FFT size ×2 / ÷2 (finer / coarser RBW)",
-        bindings: &[(C('f'), I::FftLarger), (C('F'), I::FftSmaller)],
-    },
-    HelpRow {
-        keys: "w  W",
-        what: "next / previous window",
-        bindings: &[(C('w'), I::WindowNext), (C('W'), I::WindowPrev)],
-    },
-    HelpRow {
-        keys: "↑ ↓",
-        what: "reference level (top of scale) ±5 dB",
-        bindings: &[(Code(KeyCode::Up), I::RefUp), (Code(KeyCode::Down), I::RefDown)],
-    },
-    HelpRow {
-        keys: "PgUp PgDn",
-        what: "dynamic range ±10 dB",
+        keys: "f F w W",
+        what: "FFT ×2 / ÷2 (finer / coarser RBW); next / previous window",
         bindings: &[
+            (C('f'), I::FftLarger),
+            (C('F'), I::FftSmaller),
+            (C('w'), I::WindowNext),
+            (C('W'), I::WindowPrev),
+        ],
+    },
+    HelpRow {
+        keys: "↑ ↓ PgUp PgDn",
+        what: "reference level ±5 dB; dynamic range ±10 dB",
+        bindings: &[
+            (Code(KeyCode::Up), I::RefUp),
+            (Code(KeyCode::Down), I::RefDown),
             (Code(KeyCode::PageUp), I::RangeWider),
             (Code(KeyCode::PageDown), I::RangeNarrower),
         ],
     },
     HelpRow {
-        keys: "a",
-        what: "automatic scale from the noise floor (on / off)",
-        bindings: &[(C('a'), I::AutoRange)],
+        keys: "a  x",
+        what: "automatic scale on / off; x: restart peak and min hold",
+        bindings: &[(C('a'), I::AutoRange), (C('x'), I::ResetHold)],
     },
     HelpRow {
-        keys: "x",
-        what: "restart the peak- and min-hold traces",
-        bindings: &[(C('x'), I::ResetHold)],
-    },
-    HelpRow { keys: "k", what: "next colour map", bindings: &[(C('k'), I::NextColourMap)] },
-    HelpRow {
-        keys: "o",
-        what: "channel-plan overlay on / off",
-        bindings: &[(C('o'), I::TogglePlan)],
+        keys: "k  o",
+        what: "next colour map; o: channel-plan row on / off",
+        bindings: &[(C('k'), I::NextColourMap), (C('o'), I::TogglePlan)],
     },
     HelpRow {
         keys: "s  S",
@@ -153,7 +189,8 @@ pub const HELP: &[HelpRow] = &[
 ];
 
 /// The mouse line of the help overlay (mouse events are not in the key table).
-pub const MOUSE_HELP: (&str, &str) = ("click", "left: marker there; right: reference marker");
+pub const MOUSE_HELP: (&str, &str) =
+    ("click", "left: marker (table row: its signal); right: ref marker");
 
 /// The intent of a key event, if any. `help_open` makes Esc close the help instead of quitting.
 pub fn intent_for_key(ev: KeyEvent, help_open: bool) -> Option<Intent> {
@@ -224,6 +261,7 @@ mod tests {
             I::MarkerRight(1),
             I::MarkerToStrongest,
             I::MarkerToNext,
+            I::MarkerToPrev,
             I::SetRefMarker,
             I::ClearRefMarker,
             I::ZoomIn,
@@ -246,12 +284,23 @@ mod tests {
             I::TogglePlan,
             I::RowsSlower,
             I::RowsFaster,
+            I::TimeBack(1),
+            I::TimeForward(1),
+            I::TimeLive,
+            I::ToggleUtc,
+            I::SortNext,
+            I::ToggleChannels,
+            I::ToggleAlarm,
+            I::WriteEvidence,
         ];
         for i in &all {
             match i {
                 I::CloseHelp | I::PointAt(..) | I::PointRefAt(..) => unreachable!(),
                 I::Quit | I::ToggleHelp | I::Freeze | I::MarkerLeft(_) | I::MarkerRight(_) => {}
                 I::MarkerToStrongest | I::MarkerToNext | I::SetRefMarker | I::ClearRefMarker => {}
+                I::MarkerToPrev | I::TimeBack(_) | I::TimeForward(_) | I::TimeLive => {}
+                I::ToggleUtc | I::SortNext | I::ToggleChannels | I::ToggleAlarm => {}
+                I::WriteEvidence => {}
                 I::ZoomIn | I::ZoomOut | I::PanLeft | I::PanRight | I::FullSpan => {}
                 I::CentreOnMarker | I::FftLarger | I::FftSmaller | I::WindowNext => {}
                 I::WindowPrev | I::RefUp | I::RefDown | I::RangeWider | I::RangeNarrower => {}

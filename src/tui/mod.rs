@@ -9,14 +9,19 @@
 //! the scrolling [`painter`]. The cost that matters over SSH is bytes per second; the README's
 //! "Watching live" section has the figures and `scripts/ssh-bytes` measures them.
 
+pub mod alarms;
 pub mod app;
+pub mod channels;
 pub mod colour;
+pub mod evidence;
 pub mod history;
 pub mod input;
 pub mod layout;
+pub mod navigate;
 pub mod painter;
 pub mod state;
 pub mod term;
+pub mod timeline;
 pub mod traces;
 pub mod view;
 pub mod widgets;
@@ -72,6 +77,13 @@ pub fn run(
     let result = {
         let (mut term, _guard) = term::init(opts.mouse)?;
         event_loop(&mut term, &mut app, dsp, reader, opts, &watch, &mut first_frame)
+    };
+    // A failed alarm log was said on screen; it is an error of the run too.
+    let result = match app.alarm_log.as_mut().and_then(|l| l.failed.take()) {
+        Some(e) if result.is_ok() => {
+            Err(anyhow::anyhow!("the alarm log could not be written: {e}"))
+        }
+        _ => result,
     };
     let process_start = *crate::messages::STARTED.get_or_init(|| started);
     // The terminal is restored now: leave one line on stderr saying what was seen and lost, so
@@ -181,9 +193,6 @@ fn draw(
     let size = term.size()?;
     let area = Rect::new(0, 0, size.width, size.height);
     let screen = Screen::split(area, app.plan_row());
-    if let Some(s) = screen {
-        app.history.ensure_capacity(2 * s.waterfall.height as usize + 4);
-    }
     app.screen = screen;
     app.waterfall_external = opts.scroll_region && screen.is_some();
     let mode = (area, screen, app.help);
@@ -207,6 +216,11 @@ fn draw(
             painter.paint(out, s.waterfall, app.waterfall_epoch, &plot);
             term.backend_mut().write_all(out)?;
         }
+    }
+    // An alarm onset rings the terminal's bell once.
+    if app.bells > 0 {
+        term.backend_mut().write_all(b"\x07")?;
+        app.bells = 0;
     }
     // Draws the rest and flushes everything as one write.
     term.draw(|f| f.render_widget(&*app, f.area()))?;

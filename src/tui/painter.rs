@@ -183,6 +183,7 @@ mod tests {
     use crate::tui::colour::{Depth, MapKind, Palette, Theme};
     use crate::tui::history::{History, Row};
     use crate::tui::layout::GUTTER;
+    use crate::tui::timeline::TimeBase;
     use crate::tui::view::{BinGrid, View};
 
     /// A tiny terminal: applies our own output (CUP, SGR, DECSTBM, RI) to a grid of cells, so
@@ -302,7 +303,7 @@ mod tests {
     fn row(peak: usize, t: f64) -> Row {
         let mut level_db = vec![-80.0f32; 16];
         level_db[peak] = 0.0;
-        Row { grid: BinGrid { first_hz: 0.0, bin_hz: 1.0, len: 16 }, level_db, time_s: t }
+        Row::new(BinGrid { first_hz: 0.0, bin_hz: 1.0, len: 16 }, &level_db, t)
     }
 
     /// What a cell looks like on screen (colours under a space do not matter for the fg).
@@ -326,7 +327,8 @@ mod tests {
         let area = Rect::new(0, 2, GUTTER + 16, 5);
         let palette = Palette::new(Depth::TrueColour, MapKind::Viridis);
         let theme = Theme::new(Depth::TrueColour);
-        let mut history = History::new(64);
+        let mut history = History::new(1 << 20);
+        let times = TimeBase::relative(1.0);
         let mut screen = Screen::new(area.width as usize, 9);
         let mut painter = Painter::default();
         // Rows arrive one, two or three at a time; after each batch the screen must match.
@@ -344,6 +346,8 @@ mod tests {
                 palette: &palette,
                 theme: &theme,
                 label_every_s: 1.0,
+                times: &times,
+                end: u64::MAX,
                 pairs_only: batch % 2 == 0,
             };
             let mut out = Vec::new();
@@ -360,13 +364,16 @@ mod tests {
         let area = Rect::new(0, 0, GUTTER + 16, 10);
         let palette = Palette::new(Depth::TrueColour, MapKind::Viridis);
         let theme = Theme::new(Depth::TrueColour);
-        let mut history = History::new(64);
+        let mut history = History::new(1 << 20);
         for i in 0..20 {
             history.push(row(i % 16, i as f64 * 0.05));
         }
         let mut painter = Painter::default();
         fn plot<'a>(h: &'a History, p: &'a Palette, t: &'a Theme) -> WaterfallPlot<'a> {
+            static TIMES: std::sync::OnceLock<TimeBase> = std::sync::OnceLock::new();
             WaterfallPlot {
+                times: TIMES.get_or_init(|| TimeBase::relative(1.0)),
+                end: u64::MAX,
                 history: h,
                 view: View::new(-0.5, 15.5),
                 bottom_dbfs: -80.0,

@@ -1,12 +1,14 @@
 //! The small pieces of the monitor's state that widgets read: what is being watched, how levels
 //! are shown, the plan's channel marks and the frame and row counters.
 
+use crate::pipeline::clock::Clock;
 use std::time::Instant;
 
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub enum Mode {
     Live,
-    /// The display holds still; rows that arrive are not shown.
+    /// The display holds still (rows that arrive are kept in the history, not shown); the time
+    /// cursor can then move back through the history.
     Frozen,
     Quit,
 }
@@ -18,9 +20,24 @@ pub struct ChannelMark {
     pub name: String,
     pub center_hz: f64,
     pub width_hz: f64,
+    /// Occupancy threshold over the noise in the channel, dB (the plan's, else 10).
+    pub threshold_db: f64,
+    /// Alarm when the channel's power exceeds this, dBFS.
+    pub alarm_dbfs: Option<f64>,
 }
 
 impl ChannelMark {
+    /// A channel with the default occupancy threshold and no alarm.
+    pub fn new(name: &str, center_hz: f64, width_hz: f64) -> ChannelMark {
+        ChannelMark {
+            name: name.to_string(),
+            center_hz,
+            width_hz,
+            threshold_db: crate::plan::DEFAULT_THRESHOLD_DB,
+            alarm_dbfs: None,
+        }
+    }
+
     pub fn contains(&self, freq_hz: f64) -> bool {
         (freq_hz - self.center_hz).abs() <= 0.5 * self.width_hz
     }
@@ -38,6 +55,8 @@ pub struct SourceSummary {
     /// Playback speed for files (× real time).
     pub speed: Option<f64>,
     pub looping: bool,
+    /// Times of the input's samples (a start time when known).
+    pub clock: Clock,
 }
 
 /// The vertical scale shared by the spectrum and the waterfall colours.
@@ -76,6 +95,8 @@ impl Levels {
 pub struct Stats {
     pub fps: f64,
     pub rows_per_s: f64,
+    /// Rows taken since the start.
+    pub rows_total: u64,
     /// Rows the DSP threw away because the screen was behind.
     pub skipped: u64,
     /// Samples the reader threw away because the DSP was behind.
@@ -93,6 +114,7 @@ impl Stats {
         Stats {
             fps: 0.0,
             rows_per_s: 0.0,
+            rows_total: 0,
             skipped: 0,
             dropped: 0,
             position_s: None,

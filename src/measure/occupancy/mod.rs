@@ -71,7 +71,7 @@ pub use timing::{
 };
 pub use tracker::Occupancy;
 
-use super::band::band_power;
+use super::band::{band_power, Edges};
 use crate::dsp::Spectrum;
 use crate::units::undb;
 
@@ -129,14 +129,29 @@ pub struct EmissionSummary {
     /// 99 % occupied bandwidth of the noise-corrected average spectrum; `None` if nothing is left
     /// above the noise.
     pub obw_hz: Option<f64>,
+    /// The edges of that occupied band, absolute Hz.
+    pub obw: Option<Edges>,
+    /// Noise power expected in the channel (mean tracked density × channel width), FS², so
+    /// `mean_power / noise_power` is the emission's SNR in the channel.
+    pub noise_power: f64,
     /// Cut short by end of input, a stop or a gap: it may have gone on.
     pub partial: bool,
+}
+
+/// An emission has begun: told as soon as its first occupied sample is read, for consumers
+/// that must act at its start (a triggered capture); its summary follows as
+/// [`Event::Emission`] when it ends.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct EmissionStart {
+    pub channel: usize,
+    pub start_sample: u64,
 }
 
 #[derive(Clone, Debug, PartialEq)]
 pub enum Event {
     Interval(IntervalSummary),
     Emission(EmissionSummary),
+    Opened(EmissionStart),
 }
 
 /// What one row said about one channel.

@@ -17,7 +17,8 @@
 //! an emission's occupied bandwidth is measured on that buffer in place.
 
 use super::{
-    read_channel, ChannelDef, EmissionSummary, Event, IntervalSummary, Timing, OBW_PERCENT,
+    read_channel, ChannelDef, EmissionStart, EmissionSummary, Event, IntervalSummary, Timing,
+    OBW_PERCENT,
 };
 use crate::dsp::Spectrum;
 use crate::measure::band::{occupied_bandwidth_of, BinRun};
@@ -259,6 +260,7 @@ impl Occupancy {
                     // the start of the other).
                     let before = if known[DELAY - 1] { ch.last_share } else { 0.0 };
                     let start = note.end.saturating_sub((stride * (share + before)).round() as u64);
+                    out.push(Event::Opened(EmissionStart { channel: index, start_sample: start }));
                     ch.open = Some(OpenEmission {
                         start,
                         last: (note.start, note.end, share),
@@ -390,13 +392,12 @@ fn summarise(
 ) -> EmissionSummary {
     let n = e.rows.max(1) as f64;
     let floor = e.floor_sum / n;
-    let obw_hz = grid.and_then(|grid| {
+    let obw = grid.and_then(|grid| {
         for s in ch.psd_sum.iter_mut() {
             *s = (*s / n - floor).max(0.0);
         }
         let run = BinRun { psd: &ch.psd_sum, first: grid.first + ch.bins.0 as i64, ..grid };
         occupied_bandwidth_of(run, ch.def.low_hz, ch.def.high_hz, OBW_PERCENT)
-            .map(|edges| edges.width_hz())
     });
     // A partial emission went on past what was seen: it ends with its last occupied row.
     let end = if partial { e.last.1.max(e.end()) } else { e.end() };
@@ -407,7 +408,9 @@ fn summarise(
         samples: e.rows,
         mean_power: e.power_sum / n,
         peak_power: e.peak,
-        obw_hz,
+        obw_hz: obw.map(|edges| edges.width_hz()),
+        obw,
+        noise_power: floor * ch.def.width_hz(),
         partial,
     }
 }

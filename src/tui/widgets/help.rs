@@ -2,13 +2,14 @@
 
 use super::super::colour::Theme;
 use super::super::input::{HELP, MOUSE_HELP};
+use super::spectrum::SpectrumPlot;
 use ratatui::buffer::Buffer;
 use ratatui::layout::Rect;
 use ratatui::text::{Line, Span};
 use ratatui::widgets::{Block, Borders, Clear, Widget};
 
 /// Width of the keys column.
-const KEYS_W: usize = 10;
+const KEYS_W: usize = 13;
 
 pub struct HelpOverlay<'a> {
     pub theme: &'a Theme,
@@ -26,13 +27,12 @@ impl HelpOverlay<'_> {
         };
         let mut lines: Vec<Line<'static>> = HELP.iter().map(|r| row(r.keys, r.what)).collect();
         lines.push(row(MOUSE_HELP.0, MOUSE_HELP.1));
-        lines.push(Line::from(vec![
-            Span::styled(format!(" {:<KEYS_W$} ", "traces"), t.header),
-            Span::styled("⣀⣀ average  ", t.average),
-            Span::styled("⣀⣀ current  ", t.current),
-            Span::styled("⣀⣀ peak/min hold  ", t.hold),
-            Span::styled("│ marker", t.marker),
-        ]));
+        let mut legend = vec![Span::styled(format!(" {:<KEYS_W$} ", "traces"), t.header)];
+        for (text, style) in SpectrumPlot::legend_of(t) {
+            legend.push(Span::styled(format!("{text}  "), style));
+        }
+        legend.push(Span::styled("│ marker", t.marker));
+        lines.push(Line::from(legend));
         lines
     }
 }

@@ -2,6 +2,7 @@
 //! cell buffer, and the whole screen as `Widget for &App`.
 
 pub mod axis;
+pub mod channels;
 pub mod help;
 pub mod spectrum;
 pub mod status;
@@ -11,6 +12,7 @@ pub mod waterfall;
 use super::app::App;
 use super::layout::Screen;
 use axis::{FreqAxis, PlanRow};
+use channels::ChannelPanel;
 use help::HelpOverlay;
 use ratatui::buffer::{Buffer, CellDiffOption};
 use ratatui::layout::Rect;
@@ -18,7 +20,7 @@ use ratatui::style::Style;
 use ratatui::widgets::Widget;
 use spectrum::SpectrumPlot;
 use status::{marker_line, put_line, settings_line, source_line};
-use table::SignalTable;
+use table::{SignalTable, TableMode};
 use waterfall::{label_interval, WaterfallPlot, PAIRS_ONLY_FROM_ROWS_PER_S};
 
 impl App {
@@ -33,6 +35,8 @@ impl App {
             palette: &self.palette,
             theme: &self.theme,
             label_every_s: label_interval(rows_per_s),
+            times: &self.times,
+            end: self.cursor.map_or(u64::MAX, |c| c + 1),
             pairs_only: rows_per_s >= PAIRS_ONLY_FROM_ROWS_PER_S,
         })
     }
@@ -58,6 +62,7 @@ impl App {
             unit: l.unit(),
             marker_col: col(self.marker_hz),
             ref_marker_col: col(self.ref_marker_hz),
+            floor: self.floor_dbfs.map(|f| l.shown(f)),
             theme: &self.theme,
         };
         (&plot).render(s.spectrum, buf);
@@ -78,7 +83,15 @@ impl App {
             };
             (&axis).render(s.axis, buf);
             if let Some(p) = s.plan {
-                (&PlanRow { view: v, channels: &self.channels, theme: &self.theme }).render(p, buf);
+                let alarmed: Vec<bool> =
+                    self.activity.channels.iter().map(|c| c.alarm_on).collect();
+                let row = PlanRow {
+                    view: v,
+                    channels: &self.channels,
+                    alarmed: &alarmed,
+                    theme: &self.theme,
+                };
+                (&row).render(p, buf);
             }
         }
     }
@@ -108,14 +121,30 @@ impl Widget for &App {
         put_line(buf, s.status, &source_line(self, width), Style::new());
         self.render_spectrum(&s, buf);
         self.render_waterfall(s.waterfall, buf);
-        let table = SignalTable {
-            signals: &self.signals,
-            channels: &self.channels,
-            levels: self.levels,
-            marker_hz: self.marker_hz,
-            theme: &self.theme,
-        };
-        (&table).render(s.table, buf);
+        match self.table_mode {
+            TableMode::Signals => {
+                let table = SignalTable {
+                    signals: &self.signals,
+                    channels: &self.channels,
+                    levels: self.levels,
+                    sort: self.sort,
+                    marker_hz: self.marker_hz,
+                    theme: &self.theme,
+                };
+                (&table).render(s.table, buf);
+            }
+            TableMode::Channels => {
+                let panel = ChannelPanel {
+                    channels: &self.channels,
+                    activity: &self.activity,
+                    levels: self.levels,
+                    times: &self.times,
+                    marker_hz: self.marker_hz,
+                    theme: &self.theme,
+                };
+                (&panel).render(s.table, buf);
+            }
+        }
         put_line(buf, s.marker, &marker_line(self, width), Style::new());
         put_line(buf, s.footer, &settings_line(self, width), Style::new());
         if self.help {
@@ -136,6 +165,7 @@ pub fn text_lines(buf: &Buffer) -> Vec<String> {
 mod tests {
     use super::*;
     use crate::dsp::{Spectrum, Window, WindowKind};
+    use crate::pipeline::clock::Clock;
     use crate::pipeline::latest::RowSettings;
     use crate::tui::app::{ChannelMark, SourceSummary};
     use crate::tui::colour::Depth;
@@ -153,6 +183,11 @@ mod tests {
         Spectrum::from_power_sum(&power, 1, 2.0, &w, 1.024e6, 100e6, 0, n as u64)
     }
 
+    fn start() -> time::OffsetDateTime {
+        use time::format_description::well_known::Rfc3339;
+        time::OffsetDateTime::parse("2031-04-17T06:30:00Z", &Rfc3339).unwrap()
+    }
+
     fn app(channels: Vec<ChannelMark>) -> App {
         let source = SourceSummary {
             label: "bench\u{1b}[2J.cf32".chars().filter(|c| !c.is_control()).collect(),
@@ -162,6 +197,7 @@ mod tests {
             live: false,
             speed: Some(1.0),
             looping: false,
+            clock: Clock::new(1.024e6, Some(start())),
         };
         let settings = RowSettings {
             fft_size: 1024,
@@ -198,7 +234,7 @@ mod tests {
         // with the help key.
         assert!(lines[18].starts_with(" # Frequency"));
         assert!(lines[19].starts_with(" 1 100.100000 MHz"), "{}", lines[19]);
-        assert!(lines[22].starts_with(" marker: p strongest signal"));
+        assert!(lines[22].starts_with(" marker: b strongest"), "{}", lines[22]);
         assert!(
             lines[23].starts_with(" FFT 1024 hann · RBW 1.5 kHz ·")
                 || lines[23].contains("RBW 1.500 kHz")
@@ -231,23 +267,29 @@ mod tests {
         a.apply(Intent::MarkerRight(10));
         let buf = draw(&a, 80, 24);
         let lines = text_lines(&buf);
-        assert!(lines[0].contains("view 512 kHz of 1.024 MHz"), "{}", lines[0]);
+        assert!(
+            lines[0].contains("view 512 kHz · ") && lines[0].contains("1.024 MS/s"),
+            "{}",
+            lines[0]
+        );
         // The moving marker is on the floor, 10 columns (of 6.9 kHz) above the tone; at 80
         // columns the reference marker's own reading gives way to the difference.
         assert!(lines[22].contains("▲ 100.174000 MHz"), "{}", lines[22]);
-        assert!(lines[22].contains("Δ +74.000 kHz"), "{}", lines[22]);
+        assert!(lines[22].contains("band 74 kHz: "), "{}", lines[22]);
         // The axis flags both markers.
         assert!(lines[7].contains('▲') && lines[7].contains('△'), "{}", lines[7]);
         // A wider screen has room for the reference marker's reading too.
-        let wide = text_lines(&draw(&a, 120, 30));
+        let wide = text_lines(&draw(&a, 160, 30));
         let marker = wide.iter().find(|l| l.starts_with(" ▲")).unwrap();
-        assert!(marker.contains("△ 100.100000 MHz"), "{marker}");
+        assert!(
+            marker.contains("△ 100.100000 MHz") && marker.contains("Δ +74.000 kHz"),
+            "{marker}"
+        );
     }
 
     #[test]
     fn a_plan_adds_its_row_and_names_signals() {
-        let ch =
-            vec![ChannelMark { name: "Gate-North".into(), center_hz: 100.1e6, width_hz: 200e3 }];
+        let ch = vec![ChannelMark::new("Gate-North", 100.1e6, 200e3)];
         let mut a = app(ch);
         let buf = draw(&a, 160, 48);
         let lines = text_lines(&buf);
@@ -267,7 +309,7 @@ mod tests {
 
     #[test]
     fn the_largest_screen_keeps_every_part() {
-        let a = app(vec![ChannelMark { name: "gate".into(), center_hz: 100.1e6, width_hz: 25e3 }]);
+        let a = app(vec![ChannelMark::new("gate", 100.1e6, 25e3)]);
         let buf = draw(&a, 300, 100);
         let lines = text_lines(&buf);
         let s = Screen::split(buf.area, true).unwrap();
@@ -286,7 +328,7 @@ mod tests {
         a.apply(Intent::ToggleHelp);
         let lines = text_lines(&draw(&a, 80, 24));
         assert!(lines.iter().any(|l| l.contains("┌ keys ")));
-        assert!(lines.iter().any(|l| l.contains("FFT size ×2 / ÷2")));
+        assert!(lines.iter().any(|l| l.contains("FFT ×2 / ÷2")));
         let small = text_lines(&draw(&a, 30, 10));
         assert!(small[0].starts_with("bandwarden needs a terminal of"));
     }

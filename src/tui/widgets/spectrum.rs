@@ -16,6 +16,9 @@ use ratatui::widgets::Widget;
 /// braille patterns: dots 1-2-3-7 down the left, 4-5-6-8 down the right).
 const BRAILLE_BASE: u32 = 0x2800;
 const DOT_BITS: [[u8; 4]; 2] = [[0x01, 0x02, 0x04, 0x40], [0x08, 0x10, 0x20, 0x80]];
+/// In monochrome, the peak hold and the minimum hold are drawn with these.
+pub const PEAK_GLYPH: char = '˙';
+pub const MIN_GLYPH: char = '.';
 
 pub struct SpectrumPlot<'a> {
     /// Levels in printed units for each half column (two per plot cell); empty before data.
@@ -30,6 +33,8 @@ pub struct SpectrumPlot<'a> {
     pub unit: &'a str,
     pub marker_col: Option<u16>,
     pub ref_marker_col: Option<u16>,
+    /// Noise power in one RBW, printed units: marked by a dotted line where no trace is.
+    pub floor: Option<f64>,
     pub theme: &'a Theme,
 }
 
@@ -106,27 +111,47 @@ impl Widget for &SpectrumPlot<'_> {
         self.render_gutter(Rect::new(area.x, area.y, GUTTER, area.height), buf);
         let plot = Rect::new(area.x + GUTTER, area.y, area.width - GUTTER, area.height);
         let (w, h) = (plot.width as usize, plot.height as usize);
-        let layers = [
+        let mono = self.theme.mono;
+        let mut layers = vec![
             (self.trace_masks(self.average, w, h), self.theme.average),
             (self.trace_masks(self.current, w, h), self.theme.current),
-            (self.trace_masks(self.hold, w, h), self.theme.hold),
-            (self.trace_masks(self.min_hold, w, h), self.theme.hold),
         ];
+        // Without colours the holds cannot share the braille with the other traces: they get
+        // glyphs of their own where nothing else is drawn.
+        let holds = [
+            (self.trace_masks(self.hold, w, h), PEAK_GLYPH),
+            (self.trace_masks(self.min_hold, w, h), MIN_GLYPH),
+        ];
+        if !mono {
+            for (m, _) in &holds {
+                layers.push((m.clone(), self.theme.hold));
+            }
+        }
         let grid_rows: Vec<usize> = self.level_labels(h).into_iter().map(|(r, _)| r).collect();
+        let floor_row = self.floor.and_then(|f| self.dot_row(f, h * 4)).map(|d| d / 4);
+        if let Some(r) = floor_row {
+            buf.set_string(area.x + GUTTER - 1, plot.y + r as u16, "◂", self.theme.floor);
+        }
         for y in 0..h {
             for x in 0..w {
                 let i = y * w + x;
                 let bits = layers.iter().fold(0u8, |acc, (m, _)| acc | m[i]);
                 let style = layers.iter().find(|(m, _)| m[i] != 0).map(|(_, s)| *s);
                 let cell = &mut buf[(plot.x + x as u16, plot.y + y as u16)];
+                let hold = holds.iter().find(|(m, _)| mono && m[i] != 0).map(|(_, g)| *g);
                 if bits != 0 {
                     let ch = char::from_u32(BRAILLE_BASE + bits as u32).unwrap_or(' ');
                     cell.set_char(ch).set_style(style.unwrap_or_default());
+                } else if let Some(g) = hold {
+                    cell.set_char(g).set_style(self.theme.hold);
+                } else if floor_row == Some(y) {
+                    cell.set_char(if x % 2 == 0 { '·' } else { ' ' }).set_style(self.theme.floor);
                 } else if grid_rows.contains(&y) {
                     cell.set_char('┄').set_style(self.theme.grid);
                 }
             }
         }
+        self.render_legend(plot, buf);
         for (col, style, glyph) in [
             (self.ref_marker_col, self.theme.ref_marker, '┆'),
             (self.marker_col, self.theme.marker, '│'),
@@ -140,6 +165,44 @@ impl Widget for &SpectrumPlot<'_> {
                     cell.set_char(glyph).set_style(Style::reset().patch(style));
                 }
             }
+        }
+    }
+}
+
+impl SpectrumPlot<'_> {
+    /// The legend: each trace's name in its own colour (in monochrome, with its glyph).
+    pub fn legend(&self) -> Vec<(String, Style)> {
+        SpectrumPlot::legend_of(self.theme)
+    }
+
+    /// The legend for a theme.
+    pub fn legend_of(t: &Theme) -> Vec<(String, Style)> {
+        let mut items = vec![
+            (if t.mono { "⣿ average" } else { "⣀ average" }.to_string(), t.average),
+            ("⣀ current".to_string(), t.current),
+        ];
+        if t.mono {
+            items.push((format!("{PEAK_GLYPH} peak {MIN_GLYPH} min hold"), t.hold));
+        } else {
+            items.push(("⣀ peak/min hold".to_string(), t.hold));
+        }
+        items
+    }
+
+    /// Writes the legend in the plot's top row, right-aligned, if it fits beside the traces'
+    /// usual room (plots of 60 columns and more).
+    fn render_legend(&self, plot: Rect, buf: &mut Buffer) {
+        let items = self.legend();
+        let width: usize = items.iter().map(|(s, _)| s.chars().count() + 2).sum();
+        if (plot.width as usize) < 60 || width + 2 > plot.width as usize {
+            return;
+        }
+        let mut x = plot.x + plot.width - width as u16;
+        for (text, style) in items {
+            buf.set_string(x, plot.y, &text, style);
+            x += text.chars().count() as u16;
+            buf.set_string(x, plot.y, "  ", Style::reset());
+            x += 2;
         }
     }
 }
@@ -169,6 +232,7 @@ mod tests {
             unit: "dBFS",
             marker_col: None,
             ref_marker_col: None,
+            floor: None,
             theme,
         }
     }
@@ -243,5 +307,44 @@ mod tests {
         // The trace cell keeps its dots but takes the marker's colour.
         assert_eq!(buf[(GUTTER + 3, 2)].symbol(), "⠤");
         assert_eq!(buf[(GUTTER + 3, 2)].style().fg, theme.marker.fg);
+    }
+
+    #[test]
+    fn the_noise_floor_is_marked() {
+        let theme = Theme::new(Depth::Mono);
+        let mut p = plot(&[], &[], &[], &theme);
+        // 4 rows over 80 dB: −70 dB is dot row 14, text row 3.
+        p.floor = Some(-70.0);
+        let mut buf = Buffer::empty(Rect::new(0, 0, GUTTER + 6, 4));
+        (&p).render(buf.area, &mut buf);
+        assert_eq!(crate::tui::widgets::text_lines(&buf)[3], "     ◂· · · ");
+    }
+
+    #[test]
+    fn in_mono_the_holds_have_glyphs_of_their_own_and_a_legend_names_them() {
+        let theme = Theme::new(Depth::Mono);
+        // Average at −50 dB; peak hold at −10 dB (dot row 2, text row 0); minimum hold at
+        // −75 dB (text row 3).
+        let avg = vec![-50.0; 140];
+        let hold = vec![-10.0; 140];
+        let min = vec![-75.0; 140];
+        let mut p = plot(&[], &avg, &hold, &theme);
+        p.min_hold = &min;
+        let mut buf = Buffer::empty(Rect::new(0, 0, GUTTER + 70, 4));
+        (&p).render(buf.area, &mut buf);
+        let lines = crate::tui::widgets::text_lines(&buf);
+        assert_eq!(buf[(GUTTER, 0)].symbol(), "˙");
+        assert_eq!(buf[(GUTTER, 3)].symbol(), ".");
+        assert_eq!(buf[(GUTTER, 2)].symbol(), "⠤");
+        assert!(lines[0].ends_with("⣿ average  ⣀ current  ˙ peak . min hold  "), "{}", lines[0]);
+        // In colour the holds are braille in their own colour, and the legend says which.
+        let theme = Theme::new(Depth::Palette256);
+        let p = SpectrumPlot { theme: &theme, ..p };
+        let mut buf = Buffer::empty(Rect::new(0, 0, GUTTER + 70, 4));
+        (&p).render(buf.area, &mut buf);
+        assert_eq!(buf[(GUTTER, 3)].symbol(), "⣀");
+        assert_eq!(buf[(GUTTER, 3)].fg, theme.hold.fg.unwrap());
+        let lines = crate::tui::widgets::text_lines(&buf);
+        assert!(lines[0].contains("⣀ average  ⣀ current  ⣀ peak/min hold"), "{}", lines[0]);
     }
 }

@@ -3,6 +3,7 @@
 //! left out rather than cut in half.
 
 use super::super::app::{App, Mode};
+use super::super::colour::Depth;
 use super::super::widgets::waterfall::clock;
 use crate::units::format_hz;
 use ratatui::buffer::Buffer;
@@ -55,14 +56,27 @@ pub fn fit(
     Line::from(spans)
 }
 
-/// Sample rate for people: `2.400 MS/s`.
+/// Sample rate for people, without trailing zeros: `2.4 MS/s`, `1 MS/s`, `48 kS/s`.
 pub fn format_rate(hz: f64) -> String {
-    if hz >= 1e6 {
-        format!("{:.3} MS/s", hz / 1e6)
+    let (v, unit) = if hz >= 1e6 {
+        (format!("{:.3}", hz / 1e6), "MS/s")
     } else if hz >= 1e3 {
-        format!("{:.1} kS/s", hz / 1e3)
+        (format!("{:.1}", hz / 1e3), "kS/s")
     } else {
-        format!("{hz:.0} S/s")
+        (format!("{hz:.0}"), "S/s")
+    };
+    let v = if v.contains('.') { v.trim_end_matches('0').trim_end_matches('.') } else { &v };
+    format!("{v} {unit}")
+}
+
+/// A row rate for people: `20 rows/s`, `1 row/s`, `0.5 rows/s`.
+pub fn format_rows_per_s(r: f64) -> String {
+    if (r - 1.0).abs() < 0.05 {
+        "1 row/s".to_string()
+    } else if r < 1.0 {
+        format!("{r:.1} rows/s")
+    } else {
+        format!("{r:.0} rows/s")
     }
 }
 
@@ -74,14 +88,26 @@ pub fn format_hz_compact(hz: f64) -> String {
     format!("{num} {unit}")
 }
 
-/// Keeps the end of a long label (the file name), marking the cut.
+/// Shortens a long label (a path) to `max` columns keeping what tells inputs apart: the
+/// directories go first (`…/name.sigmf-meta`), then the middle of the name, so its start and
+/// its extension stay.
 fn tail(text: &str, max: usize) -> String {
     let n = text.chars().count();
     if n <= max {
         return text.to_string();
     }
-    let keep: String = text.chars().skip(n - (max - 1)).collect();
-    format!("…{keep}")
+    if let Some((_, name)) = text.rsplit_once('/') {
+        if name.chars().count() + 2 <= max {
+            return format!("…/{name}");
+        }
+        return tail(name, max);
+    }
+    // Keep the extension (from the last dot, when short) and as much of the start as fits.
+    let ext_at = text.rfind('.').filter(|&i| text.len() - i <= max / 2);
+    let ext: String = ext_at.map_or(String::new(), |i| text[i..].to_string());
+    let keep = max.saturating_sub(ext.chars().count() + 1);
+    let head: String = text.chars().take(keep).collect();
+    format!("{head}…{ext}")
 }
 
 /// Source, rate, centre, span, playback state and dropped samples.
@@ -89,29 +115,40 @@ pub fn source_line(app: &App, width: usize) -> Line<'static> {
     let t = &app.theme;
     let s = &app.source;
     let mut segs = vec![
-        (0, Span::styled(tail(&s.label, (width / 4).max(12)), t.title)),
-        (5, Span::styled(format_rate(s.sample_rate_hz), t.label)),
-        (2, Span::styled(format!("centre {}", format_hz_compact(s.center_hz)), t.label)),
+        (0, Span::styled(tail(&s.label, (width / 5).max(12)), t.title)),
+        (2, Span::styled(format_rate(s.sample_rate_hz), t.label)),
+        (3, Span::styled(format!("centre {}", format_hz_compact(s.center_hz)), t.label)),
     ];
     if let (Some(v), Some(span)) = (app.view, app.span()) {
-        let text = if (v.width_hz() - span.width_hz()).abs() < 1e-6 * span.width_hz() {
-            format!("span {}", format_hz_compact(span.width_hz()))
+        // The whole span is implied by the rate; a zoomed view is worth room.
+        let (rank, text) = if (v.width_hz() - span.width_hz()).abs() < 1e-6 * span.width_hz() {
+            (5, format!("span {}", format_hz_compact(span.width_hz())))
         } else {
-            format!(
-                "view {} of {}",
-                format_hz_compact(v.width_hz()),
-                format_hz_compact(span.width_hz())
-            )
+            (1, format!("view {}", format_hz_compact(v.width_hz())))
         };
-        segs.push((3, Span::styled(text, t.label)));
+        segs.push((rank, Span::styled(text, t.label)));
     }
     segs.push((1, state(app)));
+    if let Some(time) = shown_time(app) {
+        segs.push((1, Span::styled(time, t.label)));
+    }
     if s.live {
         let d = app.stats.dropped;
         let (rank, style) = if d > 0 { (1, t.warn) } else { (4, t.label) };
         segs.push((rank, Span::styled(format!("dropped {d} samples"), style)));
     }
     fit(segs, None, width)
+}
+
+/// The time of the row on show: the newest, or the time cursor's when scrolled back.
+fn shown_time(app: &App) -> Option<String> {
+    let newest = app.history.total().checked_sub(1)?;
+    let row = app.history.by_index(app.cursor.unwrap_or(newest))?;
+    let label = app.times.long_label(row.end_sample);
+    Some(match app.cursor {
+        Some(_) => format!("◀ {label}, {} back", clock(app.cursor_age_s())),
+        None => label,
+    })
 }
 
 fn state(app: &App) -> Span<'static> {
@@ -146,8 +183,11 @@ pub fn marker_line(app: &App, width: usize) -> Line<'static> {
     let t = &app.theme;
     let l = app.levels;
     let unit = l.unit();
+    if let Some((text, _)) = &app.notice {
+        return fit(vec![(0, Span::styled(text.clone(), t.warn))], None, width);
+    }
     let Some((f1, v1)) = app.marker_hz.and(app.marker_reading) else {
-        let hint = "marker: p strongest signal · ← → move · click to place · ? all keys";
+        let hint = "marker: b strongest · n p walk the table · ← → move · click · ? keys";
         return fit(vec![(0, Span::styled(hint, t.label))], None, width);
     };
     let mut segs = vec![(
@@ -159,11 +199,11 @@ pub fn marker_line(app: &App, width: usize) -> Line<'static> {
     }
     if let Some((f2, v2)) = app.ref_marker_hz.and(app.ref_reading) {
         segs.push((
-            2,
+            3,
             Span::styled(format!("△ {}  {:.1} {unit}", format_hz(f2), l.shown(v2)), t.ref_marker),
         ));
         segs.push((
-            1,
+            2,
             Span::styled(
                 format!(
                     "Δ {}{}  {:+.1} dB",
@@ -174,6 +214,13 @@ pub fn marker_line(app: &App, width: usize) -> Line<'static> {
                 t.marker,
             ),
         ));
+    }
+    if let Some(b) = app.band {
+        // Ahead of the Δ readout on a narrow screen: the band's width is |Δf| anyway.
+        let obw = b.obw.map_or("–".to_string(), |e| format_hz_compact(e.width_hz()));
+        let width = format_hz_compact(b.high_hz - b.low_hz);
+        let text = format!("band {width}: {:.1} {unit}, OBW {obw}", l.shown(b.power_dbfs));
+        segs.push((1, Span::styled(text, t.marker)));
     }
     fit(segs, None, width)
 }
@@ -190,16 +237,22 @@ pub fn settings_line(app: &App, width: usize) -> Line<'static> {
     if let Some(rbw) = rbw {
         segs.push((1, Span::styled(format!("RBW {}", format_hz(rbw)), t.label)));
     }
+    if let Some(d) = app.floor_density {
+        let text = format!("floor {:.1} {}/Hz", l.shown(crate::units::db(d)), l.unit());
+        segs.push((1, Span::styled(text, t.label)));
+    }
     let scale = format!("ref {:.0} {}", l.shown(l.top_dbfs), l.unit());
     segs.push((2, Span::styled(scale, t.label)));
     let range = format!("range {:.0} dB{}", l.range_db, if l.auto { " auto" } else { "" });
     segs.push((3, Span::styled(range, t.label)));
     let st = &app.stats;
     segs.push((5, Span::styled(format!("{:.0} fps", st.fps), t.label)));
-    segs.push((6, Span::styled(format!("{:.0} rows/s", st.rows_per_s), t.label)));
+    segs.push((6, Span::styled(format_rows_per_s(st.rows_per_s), t.label)));
     let (rank, style) = if st.skipped > 0 { (1, t.warn) } else { (4, t.label) };
     segs.push((rank, Span::styled(format!("skipped {} rows", st.skipped), style)));
-    segs.push((7, Span::styled(app.palette.map.name().to_string(), t.label)));
+    if app.depth != Depth::Mono {
+        segs.push((7, Span::styled(app.palette.map.name().to_string(), t.label)));
+    }
     fit(segs, Some(Span::styled("? keys ", t.header)), width)
 }
 
@@ -235,12 +288,21 @@ mod tests {
 
     #[test]
     fn rates_and_tails() {
-        assert_eq!(format_rate(2.4e6), "2.400 MS/s");
-        assert_eq!(format_rate(48e3), "48.0 kS/s");
+        assert_eq!(format_rate(2.4e6), "2.4 MS/s");
+        assert_eq!(format_rate(1e6), "1 MS/s");
+        assert_eq!(format_rate(48e3), "48 kS/s");
+        assert_eq!(format_rate(2.048e6), "2.048 MS/s");
+        assert_eq!(format_rows_per_s(1.0), "1 row/s");
+        assert_eq!(format_rows_per_s(20.0), "20 rows/s");
+        assert_eq!(format_rows_per_s(0.5), "0.5 rows/s");
         assert_eq!(format_hz_compact(433.5e6), "433.5 MHz");
         assert_eq!(format_hz_compact(150e3), "150 kHz");
         assert_eq!(format_hz_compact(433.920001e6), "433.920001 MHz");
-        assert_eq!(tail("/very/long/path/to/recording.sigmf-meta", 20), "…ecording.sigmf-meta");
+        assert_eq!(tail("/very/long/path/to/rec.sigmf-meta", 20), "…/rec.sigmf-meta");
+        assert_eq!(
+            tail("/data/wrenhollow-ridge-dawn-chorus.sigmf-meta", 24),
+            "wrenhollow-r….sigmf-meta"
+        );
         assert_eq!(tail("short", 20), "short");
     }
 }

@@ -1,5 +1,8 @@
-//! The table of the strongest signals: frequency, level, SNR, occupied bandwidth and the channel
-//! they fall in. On wide screens it runs in several side-by-side blocks so more signals fit.
+//! The table of signals from the shared detector: centre frequency (the middle of the occupied
+//! band for a wideband signal), integrated power, peak level in one RBW, SNR, 99 % occupied
+//! bandwidth and the channel it falls in. Rows keep a stable order (by frequency unless `r`
+//! asks for power) so that `n` and `p` walk them predictably; on wide screens the table runs in
+//! several side-by-side blocks so more signals fit.
 
 use super::super::app::{ChannelMark, Levels};
 use super::super::colour::Theme;
@@ -12,11 +15,82 @@ use ratatui::widgets::Widget;
 /// Width of one block of the table; wider screens hold several.
 pub const BLOCK_WIDTH: u16 = 80;
 
+/// The order of the table's rows.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum SortKey {
+    /// Lowest frequency first: rows stay put while levels change.
+    Frequency,
+    /// Largest integrated power first.
+    Power,
+}
+
+impl SortKey {
+    pub fn next(self) -> SortKey {
+        match self {
+            SortKey::Frequency => SortKey::Power,
+            SortKey::Power => SortKey::Frequency,
+        }
+    }
+
+    pub fn apply(self, signals: &mut [Signal]) {
+        match self {
+            SortKey::Frequency => signals.sort_by(|a, b| a.freq_hz.total_cmp(&b.freq_hz)),
+            SortKey::Power => signals.sort_by(|a, b| b.power_dbfs.total_cmp(&a.power_dbfs)),
+        }
+    }
+}
+
+/// What the table area shows.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum TableMode {
+    Signals,
+    /// The channel panel (with a plan).
+    Channels,
+}
+
+/// Where row `i` of `rows` lies in a table drawn in `area`: (x, y, width).
+fn cell_of(area: Rect, i: usize) -> Option<(u16, u16, u16)> {
+    let blocks = (area.width / BLOCK_WIDTH).max(1);
+    let block_w = area.width / blocks;
+    let per_block = area.height.checked_sub(1)? as usize;
+    if per_block == 0 || i >= per_block * blocks as usize {
+        return None;
+    }
+    let (b, r) = ((i / per_block) as u16, (i % per_block) as u16);
+    Some((area.x + b * block_w, area.y + 1 + r, block_w))
+}
+
+/// The row of a table of `rows` rows in `area` under the screen cell (`x`, `y`), if any.
+pub fn row_at(area: Rect, rows: usize, x: u16, y: u16) -> Option<usize> {
+    (0..rows)
+        .find(|&i| cell_of(area, i).is_some_and(|(bx, by, w)| y == by && x >= bx && x < bx + w))
+}
+
+/// Blocks in use for `rows` rows, and the header drawn over each.
+pub fn render_frame(area: Rect, rows: usize, header: &str, theme: &Theme, buf: &mut Buffer) {
+    let blocks = (area.width / BLOCK_WIDTH).max(1);
+    let block_w = area.width / blocks;
+    let per_block = (area.height.saturating_sub(1) as usize).max(1);
+    let used = rows.div_ceil(per_block).clamp(1, blocks as usize) as u16;
+    for b in 0..used {
+        let x = area.x + b * block_w;
+        buf.set_stringn(x, area.y, header, block_w as usize, theme.header);
+    }
+}
+
+/// Draws `text` as row `i` of a table in `area`, if it fits.
+pub fn put_row(area: Rect, i: usize, text: &str, style: ratatui::style::Style, buf: &mut Buffer) {
+    if let Some((x, y, w)) = cell_of(area, i) {
+        buf.set_stringn(x, y, text, w as usize, style);
+    }
+}
+
 pub struct SignalTable<'a> {
     pub signals: &'a [Signal],
     /// The plan's channels (empty without a plan; the column is then left out).
     pub channels: &'a [ChannelMark],
     pub levels: Levels,
+    pub sort: SortKey,
     /// Frequency of the marker, to flag the row it sits on.
     pub marker_hz: Option<f64>,
     pub theme: &'a Theme,
@@ -24,8 +98,19 @@ pub struct SignalTable<'a> {
 
 impl SignalTable<'_> {
     fn header(&self) -> String {
-        let level = format!("Level {}", self.levels.unit());
-        let mut h = format!(" # {:<16} {:>11} {:>8} {:>12}", "Frequency", level, "SNR", "OBW 99%");
+        let unit = self.levels.unit();
+        let (f, p) = match self.sort {
+            SortKey::Frequency => ("Frequency ↑", format!("Power {unit}")),
+            SortKey::Power => ("Frequency", format!("↓Power {unit}")),
+        };
+        let mut h = format!(
+            " # {:<16} {:>11} {:>9} {:>6} {:>11}",
+            f,
+            p,
+            format!("Peak {unit}"),
+            "SNR dB",
+            "OBW 99%"
+        );
         if !self.channels.is_empty() {
             h.push_str("  Channel");
         }
@@ -34,9 +119,10 @@ impl SignalTable<'_> {
 
     fn row(&self, i: usize, s: &Signal) -> String {
         let mut r = format!(
-            "{:>2} {:<16} {:>11.1} {:>5.1} dB {:>12}",
+            "{:>2} {:<16} {:>11.1} {:>9.1} {:>6.1} {:>11}",
             i + 1,
             format_hz(s.freq_hz),
+            self.levels.shown(s.power_dbfs),
             self.levels.shown(s.level_dbfs),
             s.snr_db,
             format_hz(s.obw.width_hz()),
@@ -61,25 +147,15 @@ impl Widget for &SignalTable<'_> {
         if area.height == 0 || area.width == 0 {
             return;
         }
-        let blocks = (area.width / BLOCK_WIDTH).max(1);
-        let block_w = area.width / blocks;
-        let rows = (area.height - 1) as usize;
-        let header = self.header();
-        let used = self.signals.len().div_ceil(rows.max(1)).clamp(1, blocks as usize) as u16;
-        for b in 0..used {
-            let x = area.x + b * block_w;
-            buf.set_stringn(x, area.y, &header, block_w as usize, self.theme.header);
-        }
+        render_frame(area, self.signals.len(), &self.header(), self.theme, buf);
         if self.signals.is_empty() {
             let msg = "  no signal stands clear of the noise";
             buf.set_stringn(area.x, area.y + 1, msg, area.width as usize, self.theme.label);
             return;
         }
-        for (i, s) in self.signals.iter().enumerate().take(rows * blocks as usize) {
-            let (b, r) = ((i / rows) as u16, (i % rows) as u16);
+        for (i, s) in self.signals.iter().enumerate() {
             let style = if self.under_marker(s) { self.theme.marker } else { self.theme.label };
-            let x = area.x + b * block_w;
-            buf.set_stringn(x, area.y + 1 + r, self.row(i, s), block_w as usize, style);
+            put_row(area, i, &self.row(i, s), style, buf);
         }
     }
 }
@@ -96,7 +172,7 @@ mod tests {
             freq_hz,
             level_dbfs,
             snr_db: level_dbfs + 100.0,
-            power_dbfs: level_dbfs,
+            power_dbfs: level_dbfs + 3.0,
             obw: Edges { low_hz: freq_hz - 6_250.0, high_hz: freq_hz + 6_250.0 },
             peak_bin: 0,
         }
@@ -110,12 +186,12 @@ mod tests {
     fn rows_show_frequency_level_snr_obw_and_channel() {
         let theme = Theme::new(Depth::Palette256);
         let signals = [sig(433.92e6, -23.44), sig(433.5e6, -61.0)];
-        let channels =
-            [ChannelMark { name: "Gate-North".into(), center_hz: 433.92e6, width_hz: 25e3 }];
+        let channels = [ChannelMark::new("Gate-North", 433.92e6, 25e3)];
         let t = SignalTable {
             signals: &signals,
             channels: &channels,
             levels: levels(None),
+            sort: SortKey::Frequency,
             marker_hz: Some(433.921e6),
             theme: &theme,
         };
@@ -124,13 +200,16 @@ mod tests {
         let lines = text_lines(&buf);
         assert_eq!(
             lines[0].trim_end(),
-            " # Frequency         Level dBFS      SNR      OBW 99%  Channel"
+            " # Frequency ↑       Power dBFS Peak dBFS SNR dB     OBW 99%  Channel"
         );
         assert_eq!(
             lines[1].trim_end(),
-            " 1 433.920000 MHz         -23.4  76.6 dB   12.500 kHz  Gate-North"
+            " 1 433.920000 MHz         -20.4     -23.4   76.6  12.500 kHz  Gate-North"
         );
-        assert_eq!(lines[2].trim_end(), " 2 433.500000 MHz         -61.0  39.0 dB   12.500 kHz  –");
+        assert_eq!(
+            lines[2].trim_end(),
+            " 2 433.500000 MHz         -58.0     -61.0   39.0  12.500 kHz  –"
+        );
         // The marker sits on the first signal: its row is in the marker's colour.
         assert_eq!(buf[(3, 1)].fg, theme.marker.fg.unwrap());
         assert_eq!(buf[(3, 2)].fg, theme.label.fg.unwrap());
@@ -144,14 +223,15 @@ mod tests {
             signals: &signals,
             channels: &[],
             levels: levels(Some(-30.0)),
+            sort: SortKey::Frequency,
             marker_hz: None,
             theme: &theme,
         };
         let mut buf = Buffer::empty(Rect::new(0, 0, 80, 2));
         (&t).render(buf.area, &mut buf);
         let lines = text_lines(&buf);
-        assert!(lines[0].contains("Level dBm") && !lines[0].contains("Channel"));
-        assert!(lines[1].contains(" -50.0 "), "{}", lines[1]);
+        assert!(lines[0].contains("Power dBm") && !lines[0].contains("Channel"));
+        assert!(lines[1].contains(" -47.0 ") && lines[1].contains(" -50.0 "), "{}", lines[1]);
     }
 
     #[test]
@@ -162,20 +242,62 @@ mod tests {
             signals: &signals,
             channels: &[],
             levels: levels(None),
+            sort: SortKey::Frequency,
             marker_hz: None,
             theme: &theme,
         };
         let mut buf = Buffer::empty(Rect::new(0, 0, 160, 3));
         (&t).render(buf.area, &mut buf);
         let lines = text_lines(&buf);
-        assert!(lines[0][80..].starts_with(" # Frequency"));
+        let right = |l: &str| l.chars().skip(80).collect::<String>();
+        assert!(right(&lines[0]).starts_with(" # Frequency"));
         assert!(lines[1].starts_with(" 1 100.000000 MHz"));
         assert!(lines[2].starts_with(" 2 100.100000 MHz"));
-        assert!(lines[1][80..].starts_with(" 3 100.200000 MHz"), "{}", &lines[1]);
+        assert!(right(&lines[1]).starts_with(" 3 100.200000 MHz"), "{}", &lines[1]);
         // With fewer signals than rows, the second block (and its header) stays empty.
         let t = SignalTable { signals: &signals[..2], ..t };
         let mut buf = Buffer::empty(Rect::new(0, 0, 160, 3));
         (&t).render(buf.area, &mut buf);
-        assert!(text_lines(&buf)[0][80..].trim().is_empty());
+        assert!(right(&text_lines(&buf)[0]).trim().is_empty());
+    }
+
+    #[test]
+    fn sort_keys_give_a_stable_order_and_clicks_find_rows() {
+        let mut signals = vec![sig(100.2e6, -50.0), sig(100.1e6, -20.0), sig(100.3e6, -30.0)];
+        SortKey::Frequency.apply(&mut signals);
+        let f: Vec<f64> = signals.iter().map(|s| s.freq_hz).collect();
+        assert_eq!(f, vec![100.1e6, 100.2e6, 100.3e6]);
+        SortKey::Power.apply(&mut signals);
+        let p: Vec<f64> = signals.iter().map(|s| s.power_dbfs).collect();
+        assert_eq!(p, vec![-17.0, -27.0, -47.0]);
+        assert_eq!(SortKey::Power.next(), SortKey::Frequency);
+        // Two blocks of two rows at 160×3 (table at y = 10): row 3 is in the second block.
+        let area = Rect::new(0, 10, 160, 3);
+        assert_eq!(row_at(area, 4, 5, 11), Some(0));
+        assert_eq!(row_at(area, 4, 5, 12), Some(1));
+        assert_eq!(row_at(area, 4, 85, 12), Some(3));
+        assert_eq!(row_at(area, 4, 5, 10), None, "the header is no row");
+        assert_eq!(row_at(area, 3, 85, 12), None, "no fourth row");
+    }
+
+    #[test]
+    fn the_power_order_is_marked_in_the_header() {
+        let theme = Theme::new(Depth::Mono);
+        let signals = [sig(100e6, -20.0)];
+        let t = SignalTable {
+            signals: &signals,
+            channels: &[],
+            levels: levels(None),
+            sort: SortKey::Power,
+            marker_hz: None,
+            theme: &theme,
+        };
+        let mut buf = Buffer::empty(Rect::new(0, 0, 80, 2));
+        (&t).render(buf.area, &mut buf);
+        assert!(
+            text_lines(&buf)[0].starts_with(" # Frequency        ↓Power dBFS"),
+            "{:?}",
+            text_lines(&buf)
+        );
     }
 }

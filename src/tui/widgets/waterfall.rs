@@ -10,7 +10,8 @@
 use super::super::colour::{Depth, Palette, Theme};
 use super::super::history::{line_rows, History, Row};
 use super::super::layout::GUTTER;
-use super::super::view::{column_max, View};
+use super::super::timeline::TimeBase;
+use super::super::view::View;
 use ratatui::buffer::{Buffer, Cell};
 use ratatui::layout::Rect;
 use ratatui::style::Color;
@@ -29,6 +30,11 @@ pub struct WaterfallPlot<'a> {
     pub theme: &'a Theme,
     /// Seconds between time labels.
     pub label_every_s: f64,
+    /// How the gutter's labels tell time.
+    pub times: &'a TimeBase,
+    /// Rows shown end before this absolute index (all rows when live; the time cursor's row
+    /// plus one when scrolled back).
+    pub end: u64,
     /// Show a line only once both of its rows are in. At a brisk row rate the wait is one row
     /// (50 ms at 20 rows/s), and it halves the bytes: a half-filled line would be sent twice.
     pub pairs_only: bool,
@@ -56,7 +62,7 @@ pub fn clock(t_s: f64) -> String {
 impl WaterfallPlot<'_> {
     /// Rows on show: all that arrived, less an unpaired newest one when lines wait for pairs.
     pub fn shown_rows(&self) -> u64 {
-        let total = self.history.total();
+        let total = self.end.min(self.history.total());
         if self.pairs_only {
             total & !1
         } else {
@@ -67,7 +73,7 @@ impl WaterfallPlot<'_> {
     /// Colour steps of a row across `ncols` plot columns.
     fn steps(&self, row: &Row, ncols: usize) -> Vec<Option<u8>> {
         let map = row.grid.column_map(&self.view, ncols);
-        column_max(&row.level_db, &map)
+        row.column_levels(&map)
             .into_iter()
             .map(|v| {
                 v.is_finite().then(|| Palette::step(v as f32, self.bottom_dbfs, self.range_db))
@@ -113,11 +119,13 @@ impl WaterfallPlot<'_> {
         let every = self.label_every_s;
         let before = lower_index.checked_sub(1).and_then(|i| self.history.by_index(i));
         let slot = |t: f64| (t / every).floor();
-        let due = before.map_or(true, |b| slot(newest.time_s) > slot(b.time_s));
+        let t = |r: &Row| self.times.label_seconds(r);
+        // A new slot, or time going back (a looping file starting again), earns a label.
+        let due = before.map_or(true, |b| slot(t(newest)) != slot(t(b)));
         if !due {
             return;
         }
-        let text = format!("{:>5} ", clock(slot(newest.time_s) * every));
+        let text = format!("{:>5} ", self.times.gutter_label(slot(t(newest)) * every, every));
         for (cell, ch) in cells.iter_mut().zip(text.chars()) {
             cell.set_char(ch).set_style(self.theme.label);
         }
@@ -144,11 +152,14 @@ mod tests {
     fn row(level: f32, peak: usize, time_s: f64) -> Row {
         let mut level_db = vec![level; 8];
         level_db[peak] = 0.0;
-        Row { grid: BinGrid { first_hz: 0.0, bin_hz: 1.0, len: 8 }, level_db, time_s }
+        Row::new(BinGrid { first_hz: 0.0, bin_hz: 1.0, len: 8 }, &level_db, time_s)
     }
 
     fn plot<'a>(h: &'a History, p: &'a Palette, t: &'a Theme) -> WaterfallPlot<'a> {
+        static TIMES: std::sync::OnceLock<TimeBase> = std::sync::OnceLock::new();
         WaterfallPlot {
+            times: TIMES.get_or_init(|| TimeBase::relative(1.0)),
+            end: u64::MAX,
             history: h,
             view: View::new(-0.5, 7.5),
             bottom_dbfs: -80.0,
@@ -162,7 +173,7 @@ mod tests {
 
     #[test]
     fn half_blocks_put_the_newer_row_on_top() {
-        let mut h = History::new(16);
+        let mut h = History::new(1 << 20);
         h.push(row(-80.0, 2, 0.5)); // older: lower half
         h.push(row(-80.0, 5, 1.2)); // newer: upper half
         let p = Palette::new(Depth::TrueColour, MapKind::Viridis);
@@ -186,7 +197,7 @@ mod tests {
 
     #[test]
     fn a_partial_line_fills_both_halves_and_older_lines_follow() {
-        let mut h = History::new(16);
+        let mut h = History::new(1 << 20);
         for (i, peak) in [1usize, 2, 3].iter().enumerate() {
             h.push(row(-80.0, *peak, 0.3 * i as f64));
         }
@@ -209,7 +220,7 @@ mod tests {
 
     #[test]
     fn mono_uses_a_character_ramp() {
-        let mut h = History::new(4);
+        let mut h = History::new(1 << 20);
         h.push(row(-80.0, 4, 0.0));
         let p = Palette::new(Depth::Mono, MapKind::Viridis);
         let t = Theme::new(Depth::Mono);

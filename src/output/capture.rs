@@ -1,0 +1,473 @@
+//! `--capture DIR`: the IQ of each emission, from `--pre` before its start to `--post` after its
+//! end, saved as a SigMF recording of its own (data in the input's datatype, `cf32_le` for the
+//! demo; metadata with rate, absolute frequency, the time of its first sample, and the emission
+//! as an annotation, as `--annotate` writes it).
+//!
+//! **How it works.** The occupancy tracker announces an emission at its first occupied sample
+//! ([`Event::Opened`]); the capture starts then, with the samples before it taken from a ring of
+//! the newest samples (allocated once: `--pre` plus the delay of one row and one block), and the
+//! samples after it streamed to the file as they arrive. When the emission's summary comes (it
+//! ends after the hang time), `--post` more samples are written and the file is closed.
+//!
+//! **Bounds.** Memory: the ring and a writer queue of at most [`QUEUE_BYTES`]. Length: an emission
+//! longer than `--capture-max-seconds` is cut there (the file holds its first part, its annotation
+//! says `bandwarden:truncated`). Disk: each capture reserves its largest possible size when it
+//! starts; when that would take the run's captures over `--capture-max-bytes`, capturing stops:
+//! that capture and later ones are skipped (we keep the oldest, which show how a problem began,
+//! and delete nothing the log already names). Each skip is a `capture` record with
+//! `status: "skipped"` and a `cause`.
+//!
+//! **Never blocking the DSP.** Files are written by their own thread. With live input a capture
+//! whose samples find the writer's queue full is given up (its partial file deleted) and logged
+//! as skipped (`cause: "disk_behind"`): a capture is lost, never an input sample. File input is
+//! never dropped anywhere in bandwarden, so there the DSP waits for the disk instead; so it does
+//! under `--no-drop`.
+
+use super::annotate::{annotation, note_of};
+use super::capture_writer::{self, Job, Ring, WriterError};
+use super::log::{CaptureRecord, Record};
+use super::occupancy_log::SideRecords;
+use super::sigmf_write::{self, NAMESPACE};
+use crate::measure::occupancy::{EmissionSummary, Event};
+use crate::pipeline::{Clock, Consumer, GapCause, RunEnd, RunInfo};
+use crate::plan::Plan;
+use crate::source::reader::Block;
+use crate::source::SampleFormat;
+use crossbeam_channel::{bounded, Receiver, Sender, TrySendError};
+use num_complex::Complex32;
+use std::io;
+use std::path::PathBuf;
+use std::thread::JoinHandle;
+
+/// Most bytes of samples queued for the capture writer.
+pub const QUEUE_BYTES: usize = 64 << 20;
+/// Sample buffers kept for reuse once written: enough for a writer that keeps up; more are
+/// freed, so a backlog that has cleared does not stay resident.
+const SPARE_BUFFERS: usize = 8;
+/// Bytes counted for each capture's meta file against the disk cap (they are about 1.5 kB).
+const META_BYTES: u64 = 4096;
+
+/// What `--capture` asks for.
+#[derive(Clone, Debug, PartialEq)]
+pub struct CaptureSettings {
+    pub dir: String,
+    pub pre_s: f64,
+    pub post_s: f64,
+    /// Longest emission kept, seconds from its start.
+    pub max_s: f64,
+    /// Most bytes all captures of the run may take.
+    pub max_bytes: u64,
+}
+
+/// Figures of a run's captures, for the command's closing note.
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct CaptureCounts {
+    pub saved: u64,
+    pub skipped_disk_cap: u64,
+    pub skipped_disk_behind: u64,
+    pub bytes: u64,
+}
+
+/// One capture being written.
+struct Active {
+    id: u64,
+    channel: usize,
+    emission_start: u64,
+    /// Stream index of the file's first sample.
+    file_start: u64,
+    /// Next stream sample to write.
+    next: u64,
+    /// Write up to here (exclusive); lowered when the emission's end is known.
+    stop: u64,
+    summary: Option<EmissionSummary>,
+    truncated: bool,
+    meta_path: PathBuf,
+}
+
+/// The capture consumer.
+pub struct Captures {
+    set: CaptureSettings,
+    plan: Plan,
+    format: SampleFormat,
+    block_len: usize,
+    side: SideRecords,
+    ring: Ring,
+    active: Vec<Active>,
+    abandon: Vec<u64>,
+    next_id: u64,
+    /// Bytes of closed captures plus the reservations of open ones.
+    committed: u64,
+    reserve: u64,
+    pre_n: u64,
+    post_n: u64,
+    max_n: u64,
+    live: bool,
+    /// Wait for the disk even with live input (`--no-drop`).
+    wait: bool,
+    clock: Option<Clock>,
+    center_hz: f64,
+    rate: f64,
+    label: String,
+    jobs: Option<Sender<Job>>,
+    spare: Option<Receiver<Vec<Complex32>>>,
+    error: WriterError,
+    thread: Option<JoinHandle<()>>,
+    pub counts: CaptureCounts,
+}
+
+impl Captures {
+    /// Creates the directory (so a bad path fails before the run). `format` is the input's
+    /// datatype (`None`: `cf32_le`); `block_len` the reader's block size; capture records go to
+    /// `side` for the log to write.
+    pub fn new(
+        set: CaptureSettings,
+        plan: &Plan,
+        format: Option<SampleFormat>,
+        block_len: usize,
+        side: SideRecords,
+    ) -> anyhow::Result<Captures> {
+        std::fs::create_dir_all(&set.dir).map_err(|e| {
+            anyhow::anyhow!(
+                "cannot create the capture directory '{}': {e}; check the path and its permissions",
+                crate::messages::sanitize(&set.dir)
+            )
+        })?;
+        Ok(Captures {
+            set,
+            plan: plan.clone(),
+            format: format.unwrap_or(SampleFormat::Cf32Le),
+            block_len: block_len.max(1),
+            side,
+            ring: Ring::new(1),
+            active: Vec::new(),
+            abandon: Vec::new(),
+            next_id: 0,
+            committed: 0,
+            reserve: 0,
+            pre_n: 0,
+            post_n: 0,
+            max_n: 0,
+            live: false,
+            wait: false,
+            clock: None,
+            center_hz: 0.0,
+            rate: 1.0,
+            label: String::new(),
+            jobs: None,
+            spare: None,
+            error: WriterError::default(),
+            thread: None,
+            counts: CaptureCounts::default(),
+        })
+    }
+
+    /// Makes captures wait for the disk with live input too (`--no-drop`).
+    pub fn waiting(mut self, wait: bool) -> Captures {
+        self.wait = wait;
+        self
+    }
+
+    fn failed(&self) -> Option<String> {
+        self.error.lock().ok()?.clone()
+    }
+
+    /// Queues a job; `false` when the queue is full (live input) or the writer is gone.
+    fn send(&self, job: Job) -> bool {
+        let Some(tx) = self.jobs.as_ref() else { return false };
+        if self.live {
+            match tx.try_send(job) {
+                Ok(()) => true,
+                Err(TrySendError::Full(_) | TrySendError::Disconnected(_)) => false,
+            }
+        } else {
+            tx.send(job).is_ok()
+        }
+    }
+
+    fn buffer(&self) -> Vec<Complex32> {
+        let mut b = self.spare.as_ref().and_then(|s| s.try_recv().ok()).unwrap_or_default();
+        b.clear();
+        b
+    }
+
+    fn file_names(&self, channel: usize, start: u64) -> (PathBuf, PathBuf, String) {
+        let clock = self.clock.as_ref();
+        let when = clock
+            .and_then(|c| sigmf_write::datetime(c, start))
+            .map(|t| t.replace([':', '-'], "").replace('.', "_"))
+            .unwrap_or_else(|| format!("s{:.6}", start as f64 / self.rate));
+        let name: String = self.plan.channels[channel]
+            .name
+            .chars()
+            .map(|c| if c.is_ascii_alphanumeric() || c == '-' || c == '_' { c } else { '_' })
+            .collect();
+        let stem = format!("{when}-{name}-{:05}", self.next_id);
+        let dir = PathBuf::from(&self.set.dir);
+        (dir.join(format!("{stem}.sigmf-meta")), dir.join(format!("{stem}.sigmf-data")), stem)
+    }
+
+    /// An emission began at `start`: open its file with the samples held before it.
+    fn open(&mut self, channel: usize, start: u64, run: &RunInfo) {
+        let id = self.next_id;
+        let (meta_path, data_path, _) = self.file_names(channel, start);
+        self.next_id += 1;
+        if self.committed + self.reserve > self.set.max_bytes {
+            self.skip(channel, start, "disk_cap", &run.clock);
+            return;
+        }
+        let file_start = start.saturating_sub(self.pre_n).max(self.ring.first());
+        let mut buf = self.buffer();
+        self.ring.copy_from(file_start, &mut buf);
+        let next = file_start + buf.len() as u64;
+        if !self.send(Job::Open { id, data: data_path }) {
+            self.skip(channel, start, "disk_behind", &run.clock);
+            return;
+        }
+        if !self.send(Job::Samples { id, samples: buf }) {
+            self.abandon.push(id);
+            self.skip(channel, start, "disk_behind", &run.clock);
+            return;
+        }
+        self.committed += self.reserve;
+        self.active.push(Active {
+            id,
+            channel,
+            emission_start: start,
+            file_start,
+            next,
+            stop: start + self.max_n,
+            summary: None,
+            truncated: false,
+            meta_path,
+        });
+    }
+
+    /// Logs a capture that was not saved, and counts it.
+    fn skip(&mut self, channel: usize, start: u64, cause: &str, clock: &Clock) {
+        match cause {
+            "disk_cap" => self.counts.skipped_disk_cap += 1,
+            _ => self.counts.skipped_disk_behind += 1,
+        }
+        self.side.borrow_mut().push(Record::Capture(CaptureRecord {
+            channel: self.plan.channels[channel].name.clone(),
+            status: "skipped".into(),
+            file: None,
+            cause: Some(cause.into()),
+            t_start_s: clock.seconds(start),
+            t_end_s: None,
+            start: clock.stamp(start),
+            end: None,
+            iq_samples: 0,
+            bytes: 0,
+            truncated: false,
+        }));
+    }
+
+    /// Writes what `block` holds for capture `k`; true when the capture is complete.
+    fn feed(&mut self, k: usize, block: &Block) -> bool {
+        let end = block.start + block.samples.len() as u64;
+        let a = &self.active[k];
+        let (from, to) = (a.next.max(block.start), a.stop.min(end));
+        if from < to {
+            let mut buf = self.buffer();
+            buf.extend_from_slice(
+                &block.samples[(from - block.start) as usize..(to - block.start) as usize],
+            );
+            let id = a.id;
+            if !self.send(Job::Samples { id, samples: buf }) {
+                self.abandon.push(id);
+                let a = self.active.swap_remove(k);
+                self.committed -= self.reserve;
+                let clock = self.clock.clone().unwrap_or_else(|| Clock::new(self.rate, None));
+                self.skip_active(&a, &clock);
+                return false;
+            }
+            self.active[k].next = to;
+        }
+        let a = &self.active[k];
+        a.summary.is_some() && a.next >= a.stop
+    }
+
+    fn skip_active(&mut self, a: &Active, clock: &Clock) {
+        self.skip(a.channel, a.emission_start, "disk_behind", clock);
+    }
+
+    /// Closes capture `k`: its meta file names the samples written and the emission.
+    fn close(&mut self, k: usize) {
+        let a = self.active.swap_remove(k);
+        self.committed -= self.reserve;
+        let clock = self.clock.clone().unwrap_or_else(|| Clock::new(self.rate, None));
+        let count = a.next.min(a.stop) - a.file_start;
+        let meta = self.meta(&a, count, &clock);
+        let bytes = count * self.format.bytes_per_sample() as u64;
+        let job = Job::Close { id: a.id, samples: count, meta_path: a.meta_path.clone(), meta };
+        if !self.send(job) {
+            self.abandon.push(a.id);
+            self.skip_active(&a, &clock);
+            return;
+        }
+        self.committed += bytes + META_BYTES;
+        self.counts.saved += 1;
+        self.counts.bytes += bytes;
+        let end = a.file_start + count;
+        self.side.borrow_mut().push(Record::Capture(CaptureRecord {
+            channel: self.plan.channels[a.channel].name.clone(),
+            status: "saved".into(),
+            file: Some(a.meta_path.to_string_lossy().into_owned()),
+            cause: None,
+            t_start_s: clock.seconds(a.file_start),
+            t_end_s: Some(clock.seconds(end)),
+            start: clock.stamp(a.file_start),
+            end: clock.stamp_end(end),
+            iq_samples: count,
+            bytes,
+            truncated: a.truncated,
+        }));
+    }
+
+    fn meta(&self, a: &Active, count: u64, clock: &Clock) -> serde_json::Value {
+        let ch = &self.plan.channels[a.channel];
+        let desc =
+            format!("emission in channel {} captured by bandwarden from {}", ch.name, self.label);
+        let mut g = sigmf_write::global(self.format, self.rate, &desc);
+        g.insert(format!("{NAMESPACE}:source"), self.label.clone().into());
+        let cap = sigmf_write::capture(
+            0,
+            a.file_start,
+            self.center_hz,
+            sigmf_write::datetime(clock, a.file_start),
+        );
+        let mut annotations = Vec::new();
+        if let Some(s) = &a.summary {
+            let note = note_of(s, &self.plan);
+            let start = a.emission_start - a.file_start;
+            let end = (s.end_sample.min(a.file_start + count)).max(a.emission_start) - a.file_start;
+            let mut ann = annotation(&note, start, end - start);
+            ann.insert(format!("{NAMESPACE}:truncated"), a.truncated.into());
+            annotations.push(serde_json::Value::Object(ann));
+        }
+        serde_json::json!({ "global": g, "captures": [cap], "annotations": annotations })
+    }
+
+    fn retry_abandons(&mut self) {
+        while let Some(&id) = self.abandon.last() {
+            let Some(tx) = self.jobs.as_ref() else { return };
+            if tx.try_send(Job::Abandon { id }).is_err() {
+                return;
+            }
+            self.abandon.pop();
+        }
+    }
+}
+
+impl Consumer for Captures {
+    fn start(&mut self, run: &RunInfo) -> io::Result<()> {
+        let src = &run.source;
+        self.rate = src.sample_rate_hz;
+        self.center_hz = src.center_hz;
+        self.label = src.label.clone();
+        self.live = src.live && !self.wait;
+        self.clock = Some(run.clock.clone());
+        let n = |s: f64| (s * self.rate).ceil() as u64;
+        (self.pre_n, self.post_n, self.max_n) =
+            (n(self.set.pre_s), n(self.set.post_s), n(self.set.max_s).max(1));
+        self.reserve = (self.pre_n + self.max_n + self.post_n)
+            * self.format.bytes_per_sample() as u64
+            + META_BYTES;
+        // The emission is announced when the tracker settles the row that found it (two rows
+        // later) and after the block that completed that row: the ring holds those too.
+        let e = &run.engine;
+        let row = e.frames_per_output.unwrap_or(1) as usize * e.hop() + e.fft_size;
+        self.ring = Ring::new(self.pre_n as usize + 4 * row + self.block_len);
+        let depth = (QUEUE_BYTES / (self.block_len * 8)).clamp(4, 1024);
+        let (tx, rx) = bounded(depth);
+        let (spare_tx, spare_rx) = bounded(SPARE_BUFFERS);
+        let (format, error) = (self.format, self.error.clone());
+        let handle = std::thread::Builder::new()
+            .name("capture".into())
+            .spawn(move || capture_writer::run(rx, spare_tx, format, error))?;
+        self.jobs = Some(tx);
+        self.spare = Some(spare_rx);
+        self.thread = Some(handle);
+        Ok(())
+    }
+
+    fn block(&mut self, block: &Block) -> io::Result<()> {
+        if let Some(e) = self.failed() {
+            return Err(io::Error::other(e));
+        }
+        self.retry_abandons();
+        let mut k = 0;
+        while k < self.active.len() {
+            let before = self.active.len();
+            if self.feed(k, block) {
+                self.close(k);
+            } else if self.active.len() == before {
+                k += 1;
+            }
+        }
+        self.ring.push(block.start, &block.samples);
+        Ok(())
+    }
+
+    fn event(&mut self, event: &Event, run: &RunInfo) -> io::Result<()> {
+        match event {
+            Event::Opened(o) => self.open(o.channel, o.start_sample, run),
+            Event::Emission(e) => {
+                let found =
+                    self.active.iter().position(|a| a.channel == e.channel && a.summary.is_none());
+                if let Some(k) = found {
+                    let a = &mut self.active[k];
+                    if e.end_sample > a.emission_start + self.max_n {
+                        a.truncated = true;
+                    } else {
+                        a.stop = e.end_sample + self.post_n;
+                    }
+                    a.summary = Some(e.clone());
+                    if a.next >= a.stop {
+                        self.close(k);
+                    }
+                }
+            }
+            Event::Interval(_) => {}
+        }
+        Ok(())
+    }
+
+    fn gap(&mut self, _from: u64, _to: u64, cause: GapCause, _run: &RunInfo) -> io::Result<()> {
+        if cause == GapCause::Behind {
+            // What follows is not contiguous with what was written: every capture ends here.
+            self.ring.clear();
+            for a in &mut self.active {
+                a.stop = a.stop.min(a.next);
+            }
+            while let Some(k) = self.active.iter().position(|a| a.summary.is_some()) {
+                self.close(k);
+            }
+        }
+        Ok(())
+    }
+
+    fn finish(&mut self, _end: &RunEnd, _run: &RunInfo) -> io::Result<()> {
+        while !self.active.is_empty() {
+            let k = self.active.len() - 1;
+            self.active[k].stop = self.active[k].stop.min(self.active[k].next);
+            self.close(k);
+        }
+        self.live = false; // the end may wait for the disk
+        for id in std::mem::take(&mut self.abandon) {
+            self.send(Job::Abandon { id });
+        }
+        self.jobs = None;
+        if let Some(h) = self.thread.take() {
+            let _ = h.join();
+        }
+        match self.failed() {
+            Some(e) => Err(io::Error::other(e)),
+            None => Ok(()),
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests;

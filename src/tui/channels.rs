@@ -1,0 +1,186 @@
+//! What each channel of the plan is doing, for the channel panel: its power in the newest row,
+//! how busy it was over the last minute and when it was last heard.
+//!
+//! "Busy" is the occupancy of ITU-R SM.1880 exactly as `log` defines it
+//! ([`crate::measure::occupancy`]): a row is occupied when the channel's power (the PSD
+//! integrated over the channel, [`band_power`]) exceeds the noise in the channel (floor density ×
+//! width) by the channel's threshold (the plan's `threshold_db`, else 10 dB); busy % is occupied
+//! rows over rows in the last [`BUSY_WINDOW_S`] seconds of input. The floor density is the
+//! monitor's own estimate from its average trace, refreshed twice a second.
+//!
+//! An alarm threshold (dBFS of channel power, from the plan's `alarm_dbfs` or set with a key) is
+//! watched here too: each crossing from below is one onset, which the monitor rings once.
+
+use super::state::ChannelMark;
+use crate::dsp::Spectrum;
+use crate::measure::band_power;
+use crate::units::{db, undb};
+use std::collections::VecDeque;
+
+/// The window of input over which busy % is counted, seconds.
+pub const BUSY_WINDOW_S: f64 = 60.0;
+
+/// One channel's recent activity.
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct ChannelState {
+    /// Channel power in the newest row, dBFS.
+    pub power_dbfs: Option<f64>,
+    /// Whether the newest row was occupied.
+    pub occupied_now: bool,
+    /// Time (seconds of input) and occupation of each row in the window, oldest first.
+    recent: VecDeque<(f64, bool)>,
+    occupied_in_window: usize,
+    /// End sample of the newest occupied row.
+    pub last_heard: Option<u64>,
+    /// The channel's power is over its alarm threshold now.
+    pub alarm_on: bool,
+}
+
+impl ChannelState {
+    /// Occupancy over the window, percent; `None` before the first row.
+    pub fn busy_pct(&self) -> Option<f64> {
+        (!self.recent.is_empty())
+            .then(|| 100.0 * self.occupied_in_window as f64 / self.recent.len() as f64)
+    }
+
+    /// Seconds of input the window covers so far.
+    pub fn window_s(&self) -> f64 {
+        match (self.recent.front(), self.recent.back()) {
+            (Some(a), Some(b)) => b.0 - a.0,
+            _ => 0.0,
+        }
+    }
+
+    fn push(&mut self, time_s: f64, occupied: bool) {
+        self.recent.push_back((time_s, occupied));
+        self.occupied_in_window += usize::from(occupied);
+        while self.recent.front().is_some_and(|(t, _)| *t <= time_s - BUSY_WINDOW_S) {
+            if let Some((_, o)) = self.recent.pop_front() {
+                self.occupied_in_window -= usize::from(o);
+            }
+        }
+    }
+}
+
+/// Activity of every channel, in plan order.
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct ChannelActivity {
+    pub channels: Vec<ChannelState>,
+}
+
+impl ChannelActivity {
+    pub fn new(n: usize) -> ChannelActivity {
+        ChannelActivity { channels: vec![ChannelState::default(); n] }
+    }
+
+    /// Takes one row. `floor_density` is the noise density (FS²/Hz); without it occupancy is
+    /// not judged yet (power is still shown). Returns the indices of channels whose alarm
+    /// started with this row.
+    pub fn push(
+        &mut self,
+        row: &Spectrum,
+        marks: &[ChannelMark],
+        floor_density: Option<f64>,
+    ) -> Vec<usize> {
+        let time_s = row.end_sample as f64 / row.sample_rate_hz;
+        let mut onsets = Vec::new();
+        for (i, (st, ch)) in self.channels.iter_mut().zip(marks).enumerate() {
+            let (lo, hi) = (ch.center_hz - 0.5 * ch.width_hz, ch.center_hz + 0.5 * ch.width_hz);
+            let p = band_power(row, lo, hi);
+            st.power_dbfs = (p > 0.0).then(|| db(p));
+            if let Some(d) = floor_density {
+                let occupied = p > d * ch.width_hz * undb(ch.threshold_db);
+                st.occupied_now = occupied;
+                st.push(time_s, occupied);
+                if occupied {
+                    st.last_heard = Some(row.end_sample);
+                }
+            }
+            let over = ch.alarm_dbfs.is_some_and(|a| st.power_dbfs.is_some_and(|p| p > a));
+            if over && !st.alarm_on {
+                onsets.push(i);
+            }
+            st.alarm_on = over;
+        }
+        onsets
+    }
+}
+
+/// A row with a known channel power, for the tests of the channel tracking and its panel.
+#[cfg(test)]
+pub mod testing {
+    use crate::dsp::{Spectrum, Window, WindowKind};
+
+    /// 1024 bins of 1 kHz at 1.024 MS/s around 0 Hz, density 1e-9 FS²/Hz everywhere, and
+    /// `extra` added (FS²/Hz) over 10..20 kHz; the row ends at sample `end`.
+    pub fn row(extra: f64, end: u64) -> Spectrum {
+        let w = Window::new(WindowKind::Rect, 1024);
+        let mut s = Spectrum::from_power_sum(&[0.0; 1024], 1, 2.0, &w, 1.024e6, 0.0, 0, end);
+        for (i, p) in s.psd.iter_mut().enumerate() {
+            let f = s.geometry.freq_of_bin(i as f64);
+            *p = 1e-9 + if (10e3..20e3).contains(&f) { extra } else { 0.0 };
+        }
+        s.end_sample = end;
+        s
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::testing::row;
+    use super::*;
+
+    fn mark(alarm: Option<f64>) -> ChannelMark {
+        ChannelMark {
+            name: "yard".into(),
+            center_hz: 15e3 - 500.0,
+            width_hz: 10e3,
+            threshold_db: 10.0,
+            alarm_dbfs: alarm,
+        }
+    }
+
+    #[test]
+    fn power_busy_and_last_heard_follow_a_known_schedule() {
+        // Channel 10..20 kHz (bins centred 10..19 kHz, exactly ten of them inside). Noise in it:
+        // 1e-9 × 10 kHz = 1e-5 FS² (−50 dBFS). A burst adds 1e-6 FS²/Hz: 1e-2 FS² (−20 dBFS),
+        // 30 dB over the noise, so occupied at a 10 dB threshold; without it the channel
+        // holds the noise alone, 0 dB over, so quiet. Schedule: one row a second, busy in rows
+        // 0..15 of every 60 → 25 % over any full minute (SM.1880: occupied / all samples).
+        let m = [mark(None)];
+        let mut a = ChannelActivity::new(1);
+        let rate = 1.024e6;
+        for k in 0..180u64 {
+            let busy = k % 60 < 15;
+            let end = ((k + 1) as f64 * rate) as u64;
+            a.push(&row(if busy { 1e-6 } else { 0.0 }, end), &m, Some(1e-9));
+            let st = &a.channels[0];
+            assert_eq!(st.occupied_now, busy);
+            let want = if busy { -20.0 } else { -50.0 };
+            let got = st.power_dbfs.unwrap();
+            assert!(
+                (got - crate::units::db(undb(want) + if busy { 1e-5 } else { 0.0 })).abs() < 1e-6,
+                "{got}"
+            );
+        }
+        let st = &a.channels[0];
+        assert!((st.busy_pct().unwrap() - 25.0).abs() < 1e-9, "{:?}", st.busy_pct());
+        assert!((st.window_s() - 59.0).abs() < 1e-6);
+        // Last occupied row: k = 134 (120 + 14), ending at 135 s.
+        assert_eq!(st.last_heard, Some((135.0 * rate) as u64));
+    }
+
+    #[test]
+    fn alarms_ring_once_per_onset() {
+        let m = [mark(Some(-30.0))];
+        let mut a = ChannelActivity::new(1);
+        let mut onsets = 0;
+        for (k, busy) in [false, true, true, false, true].into_iter().enumerate() {
+            onsets += a.push(&row(if busy { 1e-6 } else { 0.0 }, k as u64 + 1), &m, None).len();
+        }
+        assert_eq!(onsets, 2);
+        assert!(a.channels[0].alarm_on);
+        // Without a floor, occupancy is not judged.
+        assert_eq!(a.channels[0].busy_pct(), None);
+    }
+}
