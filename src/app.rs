@@ -64,6 +64,9 @@ pub fn run(cli: Cli) -> anyhow::Result<ExitCode> {
         Some(Command::Watch(args)) => cmd::watch::run(args.validate()?),
         Some(Command::Log(args)) => cmd::log::run(args.validate()?),
         Some(Command::Census(args)) => cmd::census::run(args.validate()?),
+        Some(Command::Snapshot(args)) => cmd::snapshot::run(args.validate()?),
+        Some(Command::Report(args)) => cmd::report::run(args.validate()?),
+        Some(Command::Collect(args)) => cmd::collect::run(args.validate()?),
         Some(Command::Completions(args)) => {
             package::write_completions(args.shell, &mut std::io::stdout().lock())?;
             Ok(ExitCode::SUCCESS)

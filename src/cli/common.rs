@@ -42,6 +42,10 @@ pub struct InputArgs {
     /// 0).
     #[arg(long, value_name = "C")]
     pub input_channel: Option<u64>,
+    /// With INPUT tcp-listen://ADDR:PORT on an address beyond loopback (e.g. 0.0.0.0): accept
+    /// samples from other hosts. Without it only loopback addresses may be used.
+    #[arg(long)]
+    pub listen_public: bool,
 }
 
 impl InputArgs {
@@ -56,6 +60,7 @@ impl InputArgs {
             realtime: false,
             segment: self.segment,
             input_channel: self.input_channel,
+            listen_public: self.listen_public,
         }
     }
 }

@@ -1,9 +1,11 @@
 //! `log` flags and their validation.
 
 use super::common::{parse_seconds, ChannelArgs, ChannelConfig, DspArgs, InputArgs};
+use super::net::PublishArgs;
 use super::sigmf_out::{CaptureConfig, EmissionOutArgs, RecordArgs};
 use crate::dsp::DspConfig;
 use crate::output::log::LogFormat;
+use crate::output::publish::PublishConfig;
 use crate::output::rotation::{parse_rotate, Rotate};
 use crate::source::InputRequest;
 use crate::units::parse_duration;
@@ -13,7 +15,8 @@ use std::time::Duration;
 
 #[derive(Args, Debug)]
 pub struct LogArgs {
-    /// Input: a file (raw, .sigmf-meta/.sigmf-data, .wav) or - for stdin (live).
+    /// Input: a file (raw, .sigmf-meta/.sigmf-data, .wav), - for stdin (live), tcp://HOST:PORT
+    /// (connect to a receiver serving raw IQ) or tcp-listen://ADDR:PORT (accept one sender).
     #[arg(value_name = "INPUT")]
     pub input: String,
     #[command(flatten)]
@@ -49,6 +52,8 @@ pub struct LogArgs {
     #[command(flatten)]
     pub channels: ChannelArgs,
     #[command(flatten)]
+    pub publish: PublishArgs,
+    #[command(flatten)]
     pub record: RecordArgs,
     #[command(flatten)]
     pub emissions: EmissionOutArgs,
@@ -69,6 +74,10 @@ pub struct LogConfig {
     pub no_drop: bool,
     pub seconds: Option<f64>,
     pub rotate: Option<Rotate>,
+    /// The site's name (`--site`), for the start record.
+    pub site: Option<String>,
+    /// Publishing to a broker (`--publish`).
+    pub publish: Option<PublishConfig>,
     /// `--record`: the input teed to this SigMF recording.
     pub record: Option<String>,
     /// `--annotate`: every emission as an annotation in this SigMF metadata file.
@@ -88,12 +97,15 @@ impl LogArgs {
         if self.interval.is_zero() {
             bail!("--interval must be longer than zero (e.g. 60s)");
         }
+        let publish = self.publish.validate(&self.out)?;
         let record = self.record.validate()?;
         let (annotate, capture) = self.emissions.validate()?;
         if annotate.is_some() && record.is_none() && self.input == "-" {
             bail!("--annotate needs a dataset to point at, and standard input leaves none: add --record FILE.sigmf-meta (the annotations then point at the recording)");
         }
         Ok(LogConfig {
+            site: self.publish.site.clone(),
+            publish,
             dsp: self.dsp.validate()?,
             input: self.source.request(Some(self.input)),
             channels,

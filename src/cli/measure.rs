@@ -23,7 +23,8 @@ pub const MAX_XDB: f64 = 300.0;
 
 #[derive(Args, Debug)]
 pub struct MeasureArgs {
-    /// Input: a file (raw, .sigmf-meta/.sigmf-data, .wav) or - for stdin. Default: the demo scene.
+    /// Input: a file (raw, .sigmf-meta/.sigmf-data, .wav), - for stdin, tcp://HOST:PORT or
+    /// tcp-listen://ADDR:PORT (raw IQ over TCP). Default: the demo scene.
     #[arg(value_name = "INPUT")]
     pub input: Option<String>,
     #[command(flatten)]

@@ -10,8 +10,11 @@ pub mod common;
 pub mod demo;
 pub mod log;
 pub mod measure;
+pub mod net;
 pub mod package;
+pub mod report;
 pub mod sigmf_out;
+pub mod snapshot;
 pub mod watch;
 
 pub use census::{CensusArgs, CensusConfig};
@@ -19,7 +22,10 @@ pub use common::{ChannelArgs, ChannelConfig, DspArgs, InputArgs, PlanArgs};
 pub use demo::{DemoArgs, DemoConfig};
 pub use log::{LogArgs, LogConfig};
 pub use measure::{MeasureArgs, MeasureConfig};
+pub use net::{CollectArgs, CollectConfig};
+pub use report::{ReportArgs, ReportConfig};
 pub use sigmf_out::{CaptureConfig, EmissionOutArgs, RecordArgs};
+pub use snapshot::{SnapshotArgs, SnapshotConfig};
 pub use watch::{ColourChoice, WatchArgs, WatchConfig};
 
 use clap::{Parser, Subcommand};
@@ -39,6 +45,8 @@ pub struct Cli {
     pub command: Option<Command>,
 }
 
+// Parsed once per process, so the size of the largest variant costs nothing worth a Box.
+#[allow(clippy::large_enum_variant)]
 #[derive(Subcommand, Debug)]
 pub enum Command {
     /// One-shot measurement of a whole input: PSD, noise floor, strongest signals, band power and
@@ -54,6 +62,15 @@ pub enum Command {
     /// Find every emitter in the band without a plan: emissions detected row by row, tracked
     /// and grouped by frequency; a table, one JSON object, or a channel plan for `log --plan`.
     Census(CensusArgs),
+    /// Draw the whole input (or part of it) as one picture, PNG or SVG: a waterfall with the
+    /// averaged spectrum above it, axes in absolute frequency and time, a colour bar in dBFS.
+    Snapshot(SnapshotArgs),
+    /// Summarise occupancy logs written by `log`: per channel, the whole period and each hour, as
+    /// a table, CSV, JSON or a heat map picture.
+    Report(ReportArgs),
+    /// Gather what sites publish to an MQTT broker (log --publish) into one JSON Lines file per
+    /// site, as if each had logged locally; runs until Ctrl-C or SIGTERM.
+    Collect(CollectArgs),
     /// Print a shell completion script (bash, zsh or fish) on stdout.
     Completions(package::CompletionsArgs),
     /// Print the manual page (roff) on stdout, e.g. `bandwarden manual > bandwarden.1`.

@@ -13,7 +13,8 @@ use clap::Args;
 
 #[derive(Args, Debug)]
 pub struct WatchArgs {
-    /// Input: a file (raw, .sigmf-meta/.sigmf-data, .wav) or - for stdin. Default: the demo scene.
+    /// Input: a file (raw, .sigmf-meta/.sigmf-data, .wav), - for stdin, tcp://HOST:PORT or
+    /// tcp-listen://ADDR:PORT (raw IQ over TCP). Default: the demo scene.
     #[arg(value_name = "INPUT")]
     pub input: Option<String>,
     #[command(flatten)]

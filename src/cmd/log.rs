@@ -17,6 +17,7 @@ use crate::messages::{note, notes};
 use crate::output::log::LogWriter;
 use crate::output::occupancy_log::OccupancyLog;
 use crate::output::progress::Progress;
+use crate::output::publish::Publisher;
 use crate::output::rotation::{Opener, Rotation};
 use crate::output::sink;
 use crate::pipeline::input::unattended_options;
@@ -49,7 +50,7 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
         inputs.extend([path.into(), meta.into(), data.into()]);
     }
     sink::refuse_overwrite(&cfg.out, &inputs.iter().map(PathBuf::as_path).collect::<Vec<_>>())?;
-    let mut log = match cfg.rotate {
+    let log = match cfg.rotate {
         None => {
             let out = sink::open(&cfg.out, cfg.append, "log")?;
             let writer = LogWriter::new(out.out, cfg.format, out.empty)
@@ -64,6 +65,11 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
             OccupancyLog::rotating(Rotation::new(policy, &cfg.out, cfg.format, open), plan, &setup)
         }
     };
+    let publisher = cfg.publish.clone().map(Publisher::start).transpose()?;
+    let mut log = log.with_site(cfg.site.clone());
+    if let Some(p) = &publisher {
+        log = log.with_tap(p.tap());
+    }
     let mut spec = RunSpec::new(info.clone(), setup.engine.clone(), cfg.dsp.threads);
     spec.tracker = Some(setup.tracker());
     if cfg.input.start_time.is_some() {
@@ -88,8 +94,12 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
     let mut consumers: Vec<&mut dyn Consumer> = vec![&mut progress];
     consumers.extend(sigmf_out.consumers());
     consumers.push(&mut log);
-    let outcome = run_input(input, Run::new(spec, consumers), Some(&signals))?;
-    sigmf_out.report()?;
+    let outcome = run_input(input, Run::new(spec, consumers), Some(&signals));
+    drop(log);
+    if let Some(p) = publisher {
+        notes(&p.finish().notes());
+    }
+    let outcome = outcome?;
 
     if outcome.end.reason.is_signal() {
         note(&format!("stopped by {}; the log is complete", signals.signal_name()));
@@ -100,7 +110,7 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
     outcome.check(&info.label)?;
     if outcome.end.dropped_samples > 0 {
         note(&format!(
-            "{} input samples were dropped because processing fell behind (see the dropped records); a smaller --fft or a lower rate helps",
+            "{} input samples were dropped (see the dropped records and their cause: behind means processing fell behind, where a smaller --fft or a lower rate helps; disconnected means a network input's link was down)",
             outcome.end.dropped_samples
         ));
     }

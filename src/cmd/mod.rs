@@ -2,8 +2,11 @@
 //! pipeline. No engine loop lives here.
 
 pub mod census;
+pub mod collect;
 pub mod demo;
 pub mod log;
 pub mod measure;
+pub mod report;
 pub mod sigmf_out;
+pub mod snapshot;
 pub mod watch;

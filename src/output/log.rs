@@ -12,6 +12,9 @@
 //! when the time of the first sample is unknown (raw file without `--start`). Levels are dBFS (a
 //! complex sample of magnitude 1 is 0 dBFS), frequencies absolute hertz.
 //!
+//! Every record ends with its id, `run` (the run of `log` that wrote it) and `seq` (from 0), see
+//! [`Stamped`]; the `start` record carries `site` when `--site` names one.
+//!
 //! - `start` (first line): the settings. `version, source, sample_rate_hz, center_hz, fft_size,
 //!   window, overlap, rbw_hz, dwell_s` (one measurement sample), `frames_per_sample, interval_s,
 //!   hang_s, threshold_db` (default threshold), `obw_percent, floor_memory_s, floor_smoothing_s,
@@ -31,8 +34,9 @@
 //!   above the noise), `samples` (occupied samples), `partial` (cut short by the end of the run or
 //!   by dropped input: it may have gone on).
 //! - `dropped`: `t_start_s, t_end_s, start, end, dropped_samples, cause`: input samples missing
-//!   from the measurement, `cause` `behind` (a live source outran the processing) or
-//!   `not_a_number` (NaN or infinite samples in the input).
+//!   from the measurement, `cause` `behind` (a live source outran the processing),
+//!   `not_a_number` (NaN or infinite samples in the input) or `disconnected` (a network input's
+//!   link was down: the time it was down × the sample rate, see [`crate::source::tcp`]).
 //! - `capture` (with `--capture`, when a capture is closed or skipped): `channel, status`
 //!   (`saved` or `skipped`), `file` (the capture's `.sigmf-meta`), `cause` (of a skip: `disk_cap`
 //!   or `disk_behind`), `t_start_s, t_end_s, start, end` (the IQ in the file), `iq_samples,
@@ -88,7 +92,7 @@ impl<W: Write> LogWriter<W> {
         Ok(w)
     }
 
-    pub fn write(&mut self, record: &Record) -> io::Result<()> {
+    pub fn write(&mut self, record: &Stamped) -> io::Result<()> {
         self.line = match self.format {
             LogFormat::JsonLines => {
                 let mut s = serde_json::to_string(record).map_err(io::Error::other)?;
@@ -118,7 +122,7 @@ impl<W: Write> LogWriter<W> {
 }
 
 /// One CSV row (with its newline) for a record, quoting fields as RFC 4180 requires.
-pub fn csv_line(record: &Record) -> String {
+pub fn csv_line(record: &Stamped) -> String {
     let value = serde_json::to_value(record).unwrap_or(Value::Null);
     let fields: Vec<String> = CSV_COLUMNS
         .iter()
@@ -153,10 +157,11 @@ fn csv_quote(s: &str) -> String {
 mod tests {
     use super::*;
 
-    fn samples() -> Vec<Record> {
-        vec![
+    fn samples() -> Vec<Stamped> {
+        let records = vec![
             Record::Start(StartRecord {
                 version: "0.1.0".into(),
+                site: Some("wrenhollow-ridge".into()),
                 source: "a, \"quoted\" file".into(),
                 sample_rate_hz: 2.4e6,
                 center_hz: 433.5e6,
@@ -228,7 +233,9 @@ mod tests {
                 iq_samples: 144_000_000,
                 dropped_samples: 240_000,
             }),
-        ]
+        ];
+        let stamp = |(seq, record)| Stamped { record, run: "20260501T080000Z-17".into(), seq };
+        records.into_iter().enumerate().map(|(i, r)| stamp((i as u64, r))).collect()
     }
 
     #[test]

@@ -3,6 +3,19 @@
 
 use serde::Serialize;
 
+/// A record as written: the record, then its id. `run` names the run of `log` that wrote it
+/// (UTC start time and process id, e.g. `20261202T090000Z-4821`) and `seq` counts its records
+/// from 0, so (site, run, seq) tells every record apart: a consumer of published records drops
+/// the duplicates that at-least-once delivery (MQTT QoS 1) may bring. The `start` and `channel`
+/// records that open each file of a rotated log keep their first `seq`.
+#[derive(Serialize, Debug, Clone, PartialEq)]
+pub struct Stamped {
+    #[serde(flatten)]
+    pub record: Record,
+    pub run: String,
+    pub seq: u64,
+}
+
 /// One line of the log. Serialized flat, with the variant name in `kind`.
 #[derive(Serialize, Debug, Clone, PartialEq)]
 #[serde(tag = "kind", rename_all = "snake_case")]
@@ -20,6 +33,9 @@ pub enum Record {
 #[derive(Serialize, Debug, Clone, PartialEq)]
 pub struct StartRecord {
     pub version: String,
+    /// The monitoring site (`--site`), when named.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub site: Option<String>,
     pub source: String,
     pub sample_rate_hz: f64,
     pub center_hz: f64,
@@ -97,7 +113,8 @@ pub struct DroppedRecord {
     pub start: Option<String>,
     pub end: Option<String>,
     pub dropped_samples: u64,
-    /// `behind` (a live source outran the processing) or `not_a_number` (NaN/infinite samples).
+    /// `behind` (a live source outran the processing), `not_a_number` (NaN/infinite samples) or
+    /// `disconnected` (a network input's link was down).
     pub cause: String,
 }
 
@@ -177,6 +194,9 @@ pub const CSV_COLUMNS: &[&str] = &[
     "floor_smoothing_s",
     "time_source",
     "version",
+    "site",
+    "run",
+    "seq",
     "status",
     "file",
     "bytes",

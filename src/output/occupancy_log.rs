@@ -2,8 +2,8 @@
 //! and gap as it becomes final, then why the run stopped. The record schema is in [`super::log`].
 
 use super::log::{
-    ChannelRecord, DroppedRecord, EmissionRecord, IntervalRecord, LogWriter, Record, StartRecord,
-    StopRecord,
+    ChannelRecord, DroppedRecord, EmissionRecord, IntervalRecord, LogWriter, Record, Stamped,
+    StartRecord, StopRecord,
 };
 use super::rotation::Rotation;
 use crate::measure::occupancy::{Event, FLOOR_MEMORY_S, FLOOR_SMOOTHING_S, OBW_PERCENT};
@@ -17,6 +17,12 @@ use std::io::{self, Write};
 use std::rc::Rc;
 use time::OffsetDateTime;
 
+/// Whatever else takes every record the log writes, in order, once each (a publisher). It is
+/// called after the line is in the local file, which stays the source of truth; it must not
+/// block (the run waits for it).
+pub trait RecordTap {
+    fn record(&mut self, line: &Stamped);
+}
 /// Records that other consumers of the same run add to the log (the `capture` records): written
 /// after the log's own record of the same moment, in the order they came.
 pub type SideRecords = Rc<RefCell<Vec<Record>>>;
@@ -26,10 +32,29 @@ pub struct OccupancyLog<W: Write> {
     writer: Option<LogWriter<W>>,
     rotation: Option<Rotation<W>>,
     /// The `start` and `channel` records, which open every file of a rotated log.
-    headers: Vec<Record>,
+    headers: Vec<Stamped>,
     plan: Plan,
     setup: OccupancySetup,
+    site: Option<String>,
+    run_id: String,
+    next_seq: u64,
+    tap: Option<Box<dyn RecordTap>>,
     side: SideRecords,
+}
+
+/// An id for a run of the log: its UTC start time to the second and the process id.
+pub fn new_run_id() -> String {
+    let now = OffsetDateTime::now_utc();
+    format!(
+        "{:04}{:02}{:02}T{:02}{:02}{:02}Z-{}",
+        now.year(),
+        u8::from(now.month()),
+        now.day(),
+        now.hour(),
+        now.minute(),
+        now.second(),
+        std::process::id()
+    )
 }
 
 impl<W: Write> OccupancyLog<W> {
@@ -53,8 +78,43 @@ impl<W: Write> OccupancyLog<W> {
             headers: Vec::new(),
             plan: plan.clone(),
             setup: setup.clone(),
+            site: None,
+            run_id: new_run_id(),
+            next_seq: 0,
+            tap: None,
             side: SideRecords::default(),
         }
+    }
+
+    /// Names the site in the start record.
+    pub fn with_site(mut self, site: Option<String>) -> Self {
+        self.site = site;
+        self
+    }
+
+    /// Hands every record to `tap` too, after it is written.
+    pub fn with_tap(mut self, tap: Box<dyn RecordTap>) -> Self {
+        self.tap = Some(tap);
+        self
+    }
+
+    /// The record with the next id.
+    fn stamp(&mut self, record: Record) -> Stamped {
+        let seq = self.next_seq;
+        self.next_seq += 1;
+        Stamped { record, run: self.run_id.clone(), seq }
+    }
+
+    /// Writes a line into the open file (`None` when no file is open) and hands it to the tap.
+    fn put(&mut self, line: &Stamped) -> io::Result<()> {
+        match self.writer.as_mut() {
+            Some(w) => w.write(line)?,
+            None => return Err(io::Error::other("the log has no file open")),
+        }
+        if let Some(t) = self.tap.as_mut() {
+            t.record(line);
+        }
+        Ok(())
     }
 
     /// The queue other consumers put their records in.
@@ -70,7 +130,7 @@ impl<W: Write> OccupancyLog<W> {
                 Record::Capture(c) => (c.t_start_s * run.clock.rate).round() as u64,
                 _ => 0,
             };
-            self.emit(&rec, Some(sample), run)?;
+            self.emit(rec, Some(sample), run)?;
         }
         Ok(())
     }
@@ -82,14 +142,12 @@ impl<W: Write> OccupancyLog<W> {
 
     /// Writes a record whose first sample is `sample` (`None`: the closing record, which stays
     /// in the open file), starting a new file first when the rotation says so.
-    fn emit(&mut self, record: &Record, sample: Option<u64>, run: &RunInfo) -> io::Result<()> {
+    fn emit(&mut self, record: Record, sample: Option<u64>, run: &RunInfo) -> io::Result<()> {
         if let Some(sample) = sample {
             self.rotate_if_due(sample, run)?;
         }
-        match self.writer.as_mut() {
-            Some(w) => w.write(record),
-            None => Err(io::Error::other("the log has no file open")),
-        }
+        let line = self.stamp(record);
+        self.put(&line)
     }
 
     /// Opens the next file of a rotated log, headers first, when a record at `sample` is due
@@ -111,6 +169,7 @@ impl<W: Write> OccupancyLog<W> {
         let s = &self.setup;
         StartRecord {
             version: env!("CARGO_PKG_VERSION").to_string(),
+            site: self.site.clone(),
             source: run.source.label.clone(),
             sample_rate_hz: s.sample_rate_hz,
             center_hz: run.source.center_hz,
@@ -184,22 +243,29 @@ impl<W: Write> OccupancyLog<W> {
 
 impl<W: Write> Consumer for OccupancyLog<W> {
     fn start(&mut self, run: &RunInfo) -> io::Result<()> {
-        self.headers = vec![Record::Start(self.start_record(run))];
+        let mut headers = vec![Record::Start(self.start_record(run))];
         for (c, def) in self.plan.channels.iter().zip(&self.setup.channels) {
-            self.headers.push(Record::Channel(ChannelRecord {
+            headers.push(Record::Channel(ChannelRecord {
                 channel: c.name.clone(),
                 center_hz: c.center_hz,
                 width_hz: c.width_hz,
                 threshold_db: def.threshold_db,
             }));
         }
+        self.headers = headers.into_iter().map(|h| self.stamp(h)).collect();
         if self.rotation.is_some() {
             // Opening the first file writes the headers.
-            return self.rotate_if_due(0, run);
+            self.rotate_if_due(0, run)?;
+        } else {
+            for h in &self.headers {
+                if let Some(w) = self.writer.as_mut() {
+                    w.write(h)?;
+                }
+            }
         }
-        for h in &self.headers {
-            if let Some(w) = self.writer.as_mut() {
-                w.write(h)?;
+        if let Some(t) = self.tap.as_mut() {
+            for h in &self.headers {
+                t.record(h);
             }
         }
         Ok(())
@@ -212,7 +278,7 @@ impl<W: Write> Consumer for OccupancyLog<W> {
             Event::Emission(e) => e.start_sample,
             Event::Opened(o) => o.start_sample,
         };
-        self.emit(&rec, Some(first), run)?;
+        self.emit(rec, Some(first), run)?;
         self.write_side(run)
     }
 
@@ -226,7 +292,7 @@ impl<W: Write> Consumer for OccupancyLog<W> {
             dropped_samples: to - from,
             cause: cause.as_str().into(),
         });
-        self.emit(&rec, Some(from), run)?;
+        self.emit(rec, Some(from), run)?;
         self.write_side(run)
     }
 
@@ -240,7 +306,7 @@ impl<W: Write> Consumer for OccupancyLog<W> {
             iq_samples: end.end_sample,
             dropped_samples: end.dropped_samples,
         });
-        self.emit(&rec, None, run)
+        self.emit(rec, None, run)
     }
 }
 

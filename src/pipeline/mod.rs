@@ -63,6 +63,8 @@ pub enum GapCause {
     Behind,
     /// The input held samples that are not numbers (NaN or infinity): a hole in the signal.
     NotANumber,
+    /// A network input's connection was down (the time it was down × the sample rate).
+    Disconnected,
 }
 
 impl GapCause {
@@ -70,6 +72,7 @@ impl GapCause {
         match self {
             GapCause::Behind => "behind",
             GapCause::NotANumber => "not_a_number",
+            GapCause::Disconnected => "disconnected",
         }
     }
 }

@@ -138,7 +138,16 @@ impl<'a> Run<'a> {
         }
         self.begin()?;
         if block.start > self.next_sample {
-            self.gap(self.next_sample, block.start, GapCause::Behind)?;
+            // A disconnection is announced with the block after it; samples dropped while the
+            // DSP was behind come first in the jump (they were read before the link went down).
+            let off_line = block.disconnected.min(block.start - self.next_sample);
+            let behind_end = block.start - off_line;
+            if behind_end > self.next_sample {
+                self.gap(self.next_sample, behind_end, GapCause::Behind)?;
+            }
+            if off_line > 0 {
+                self.gap(behind_end, block.start, GapCause::Disconnected)?;
+            }
         }
         for c in self.consumers.iter_mut() {
             c.block(block)?;

@@ -9,6 +9,7 @@ pub mod format;
 pub mod raw;
 pub mod reader;
 pub mod sigmf;
+pub mod tcp;
 pub mod wav;
 
 pub use crate::messages::sanitize;
@@ -37,6 +38,22 @@ pub struct SourceInfo {
     /// The recording's capture segments in the order delivered (SigMF `captures`); empty for
     /// sources without segments. The first one starts at sample 0.
     pub segments: Vec<Segment>,
+}
+
+impl SourceInfo {
+    /// A stream that arrives in real time (stdin, a socket), described by the request's flags.
+    pub fn live(label: String, format: SampleFormat, rate: f64, req: &InputRequest) -> SourceInfo {
+        SourceInfo {
+            label,
+            format: Some(format),
+            sample_rate_hz: rate,
+            center_hz: req.center_hz.unwrap_or(0.0),
+            start_time: req.start_time,
+            total_samples: None,
+            live: true,
+            segments: Vec::new(),
+        }
+    }
 }
 
 /// One capture segment of a recording, as delivered.
@@ -107,12 +124,23 @@ pub trait SampleSource: Send {
     fn rewind(&mut self) -> Result<()> {
         bail!("this input cannot be replayed")
     }
+
+    /// Samples known lost just before those of the last `read` (a network input's outage);
+    /// taking them resets the count. The reader moves the time line on by them.
+    fn take_lost(&mut self) -> u64 {
+        0
+    }
+
+    /// The reader's stop flag, for sources whose `read` may wait long (a network input waiting
+    /// to reconnect): they return 0 soon after it is set.
+    fn watch_stop(&mut self, _stop: std::sync::Arc<std::sync::atomic::AtomicBool>) {}
 }
 
 /// What the user asked for on the command line.
 #[derive(Clone, Debug, Default)]
 pub struct InputRequest {
-    /// `None` for the demo scene, `-` for stdin, otherwise a path.
+    /// `None` for the demo scene, `-` for stdin, `tcp://HOST:PORT` or `tcp-listen://ADDR:PORT`
+    /// for IQ over TCP, otherwise a path.
     pub path: Option<String>,
     pub format: Option<SampleFormat>,
     pub sample_rate_hz: Option<f64>,
@@ -124,6 +152,8 @@ pub struct InputRequest {
     pub segment: Option<usize>,
     /// Of a multi-channel SigMF recording, read this channel (from 0).
     pub input_channel: Option<u64>,
+    /// `tcp-listen://` on an address beyond loopback was asked for explicitly.
+    pub listen_public: bool,
 }
 
 /// Opens the source the request names. Messages about guesses go to `notes` (printed on stderr
@@ -190,19 +220,13 @@ fn open_unchecked(req: &InputRequest, notes: &mut Vec<String>) -> Result<Box<dyn
             let rate = req
                 .sample_rate_hz
                 .context("reading stdin needs --rate (the sample rate, e.g. --rate 2.4M)")?;
-            let info = SourceInfo {
-                label: "stdin".into(),
-                format: Some(format),
-                sample_rate_hz: rate,
-                center_hz: req.center_hz.unwrap_or(0.0),
-                start_time: req.start_time,
-                total_samples: None,
-                live: true,
-                segments: Vec::new(),
-            };
+            let info = SourceInfo::live("stdin".into(), format, rate, req);
             Box::new(raw::RawSource::new(Box::new(std::io::stdin()), format, info))
         }
-        Some(path) => open_path(path, req, notes)?,
+        Some(path) => match tcp::parse_endpoint(path) {
+            Some(ep) => Box::new(tcp::open(ep?, req, notes)?),
+            None => open_path(path, req, notes)?,
+        },
     };
     Ok(src)
 }

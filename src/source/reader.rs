@@ -25,12 +25,15 @@ use std::time::{Duration, Instant};
 pub struct Block {
     pub start: u64,
     pub samples: Vec<Complex32>,
+    /// Of the samples skipped just before `start`, how many the source lost to a disconnection
+    /// (the rest of a jump was dropped because processing was behind).
+    pub disconnected: u64,
     home: Option<Sender<Vec<Complex32>>>,
 }
 
 impl Block {
     pub fn new(start: u64, samples: Vec<Complex32>) -> Block {
-        Block { start, samples, home: None }
+        Block { start, samples, disconnected: 0, home: None }
     }
 }
 
@@ -104,6 +107,7 @@ pub fn spawn(
     std::thread::Builder::new()
         .name("reader".into())
         .spawn(move || {
+            src.watch_stop(stop.clone());
             let result = run(&mut *src, &opts, &tx, &stop, &stats);
             stats.finished.store(true, Ordering::SeqCst);
             result.map(|_| src.issues())
@@ -126,6 +130,8 @@ fn run(
     let mut pacer = opts.pace.map(Pacer::new);
     let mut first_block: Option<Instant> = None;
     let mut recording = false;
+    // Samples lost to a disconnection and not yet announced by a delivered block.
+    let mut disconnected = 0u64;
     let mut skipped = 0u64;
     if opts.skip_samples > 0 {
         let mut scratch = vec![Complex32::default(); opts.block_len.max(1)];
@@ -150,6 +156,10 @@ fn run(
         samples.resize(want, Complex32::default());
         let n = src.read(&mut samples)?;
         samples.truncate(n);
+        let lost = src.take_lost();
+        index += lost;
+        disconnected += lost;
+        stats.samples.fetch_add(lost, Ordering::Relaxed);
         if n == 0 {
             if opts.loop_input && index > 0 && src.rewind().is_ok() {
                 continue;
@@ -166,18 +176,19 @@ fn run(
         if let Some(p) = pacer.as_mut() {
             p.wait(n as u64, rate, stop);
         }
-        let block = Block { start: index, samples, home: Some(home.clone()) };
+        let block = Block { start: index, samples, disconnected, home: Some(home.clone()) };
         index += n as u64;
         stats.samples.fetch_add(n as u64, Ordering::Relaxed);
         if opts.drop_when_full {
             match tx.try_send(block) {
-                Ok(()) => {}
+                Ok(()) => disconnected = 0,
                 Err(TrySendError::Full(b)) if recording => {
                     // A pipe that delivers faster than real time is a recording, not a
                     // receiver: it can wait (back-pressure), and must lose nothing.
                     if tx.send(b).is_err() {
                         break;
                     }
+                    disconnected = 0;
                 }
                 Err(TrySendError::Full(b)) => {
                     stats.dropped.fetch_add(b.samples.len() as u64, Ordering::Relaxed);
@@ -186,6 +197,8 @@ fn run(
             }
         } else if tx.send(block).is_err() {
             break;
+        } else {
+            disconnected = 0;
         }
     }
     Ok(())
@@ -317,12 +330,12 @@ mod tests {
         let (home, spare) = bounded(1);
         let buf = vec![Complex32::new(0.5, 0.0); 1000];
         let ptr = buf.as_ptr();
-        drop(Block { start: 0, samples: buf, home: Some(home.clone()) });
+        drop(Block { start: 0, samples: buf, disconnected: 0, home: Some(home.clone()) });
         let back = spare.try_recv().expect("the buffer came back");
         assert_eq!((back.as_ptr(), back.len()), (ptr, 1000));
         // With the return queue full the buffer is simply freed.
         home.try_send(Vec::new()).unwrap();
-        drop(Block { start: 0, samples: back, home: Some(home) });
+        drop(Block { start: 0, samples: back, disconnected: 0, home: Some(home) });
         assert!(spare.try_recv().unwrap().is_empty());
     }
 }

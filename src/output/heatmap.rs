@@ -1,0 +1,215 @@
+//! `report --png`: occupancy as a heat map, one row per channel (per site and channel when the
+//! logs come from several sites), one column per UTC hour of the day (or per day when the logs
+//! cover more than [`DAYS_FOR_DAY_COLUMNS`] days; or per hour from the start when they have no
+//! clock times). A cell's colour is its occupancy on the colour map from 0 to 100 %, its number
+//! the occupancy rounded to a whole percent; a cell where nothing was measured is grey and empty,
+//! so a hole never passes for a quiet channel.
+
+use super::canvas::{drawing, render_png, TickedAxis, FAMILY};
+use super::log_summary::{LogSummary, Tally};
+use super::summary_table::ordered;
+use crate::tui::colour::MapKind;
+use anyhow::Result;
+use plotters::coord::Shift;
+use plotters::prelude::*;
+use plotters::style::text_anchor::{HPos, Pos, VPos};
+use std::collections::BTreeMap;
+
+/// Logs spanning more days than this are drawn one column per day.
+pub const DAYS_FOR_DAY_COLUMNS: usize = 7;
+const WIDTH: u32 = 1200;
+const ROW_H: u32 = 30;
+const NO_DATA: RGBColor = RGBColor(200, 200, 200);
+const TEXT: RGBColor = RGBColor(20, 20, 20);
+
+/// What the columns are.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Columns {
+    HourOfDay,
+    HourFromStart,
+    Day,
+}
+
+/// The heat map's cells: column keys, and per row (site / channel) a tally per key.
+pub struct Grid {
+    pub columns: Columns,
+    pub keys: Vec<i64>,
+    pub rows: Vec<(String, BTreeMap<i64, Tally>)>,
+}
+
+/// The cells of `summary`.
+pub fn grid(summary: &LogSummary) -> Grid {
+    let chans = ordered(summary);
+    let several = summary.sites.len() > 1;
+    let days: std::collections::BTreeSet<i64> =
+        chans.iter().flat_map(|c| c.by_day().into_keys()).collect();
+    let columns = if !summary.has_clock() {
+        Columns::HourFromStart
+    } else if days.len() > DAYS_FOR_DAY_COLUMNS {
+        Columns::Day
+    } else {
+        Columns::HourOfDay
+    };
+    let rows: Vec<(String, BTreeMap<i64, Tally>)> = chans
+        .iter()
+        .map(|c| {
+            let name = if several { format!("{} / {}", c.site, c.name) } else { c.name.clone() };
+            let cells = if columns == Columns::Day { c.by_day() } else { c.by_hour_of_day() };
+            (name, cells)
+        })
+        .collect();
+    let keys = match columns {
+        Columns::HourOfDay => (0..24).collect(),
+        Columns::Day => days.into_iter().collect(),
+        Columns::HourFromStart => {
+            let last = rows.iter().flat_map(|r| r.1.keys().copied()).max().unwrap_or(0);
+            (0..=last).collect()
+        }
+    };
+    Grid { columns, keys, rows }
+}
+
+/// Draws the heat map as PNG.
+pub fn draw_heatmap(summary: &LogSummary, map: MapKind, title: &str) -> Result<Vec<u8>> {
+    let g = grid(summary);
+    let height = (170 + ROW_H * g.rows.len() as u32).max(320);
+    render_png(WIDTH, height, |root| draw_on(root, &g, summary, map, title))
+}
+
+fn column_label(columns: Columns, key: i64) -> String {
+    match columns {
+        Columns::HourOfDay | Columns::HourFromStart => format!("{key:02}"),
+        Columns::Day => {
+            let date = time::Date::from_julian_day(2_440_588 + key as i32).map_or_else(
+                |_| key.to_string(),
+                |d| format!("{:02}-{:02}", d.month() as u8, d.day()),
+            );
+            date
+        }
+    }
+}
+
+fn draw_on<DB: DrawingBackend>(
+    root: &DrawingArea<DB, Shift>,
+    g: &Grid,
+    summary: &LogSummary,
+    map: MapKind,
+    title: &str,
+) -> Result<()> {
+    root.fill(&WHITE).map_err(drawing)?;
+    let (top, rest) = root.split_vertically(40);
+    top.draw(&Text::new(title.to_string(), (12, 10), (FAMILY, 19).into_font().color(&TEXT)))
+        .map_err(drawing)?;
+    let rest_h = rest.dim_in_pixel().1;
+    let (main, footer) = rest.split_vertically(rest_h.saturating_sub(30));
+    let (grid_area, bar_area) = main.split_horizontally(WIDTH - 110);
+    let n_rows = g.rows.len().max(1) as f64;
+    let n_cols = g.keys.len().max(1) as f64;
+    let longest = g.rows.iter().map(|r| r.0.chars().count()).max().unwrap_or(4);
+    let left = (longest as u32 * 8 + 20).clamp(60, 400);
+    let x_desc = match g.columns {
+        Columns::HourOfDay => "UTC hour of day (all days summed)",
+        Columns::HourFromStart => "hour from the start of the run (the log has no clock times)",
+        Columns::Day => "UTC day (month-day)",
+    };
+    let xt: Vec<f64> = (0..g.keys.len()).map(|i| i as f64 + 0.5).collect();
+    let yt: Vec<f64> = (0..g.rows.len()).map(|i| i as f64 + 0.5).collect();
+    let mut chart = ChartBuilder::on(&grid_area)
+        .margin(10)
+        .x_label_area_size(44)
+        .y_label_area_size(left)
+        .build_cartesian_2d(
+            TickedAxis { low: 0.0, high: n_cols, ticks: xt },
+            TickedAxis { low: 0.0, high: n_rows, ticks: yt },
+        )
+        .map_err(drawing)?;
+    let col_label = |v: &f64| {
+        g.keys.get(v.floor() as usize).map_or(String::new(), |k| column_label(g.columns, *k))
+    };
+    // Row 0 at the top.
+    let row_label = |v: &f64| {
+        let i = g.rows.len() as i64 - 1 - v.floor() as i64;
+        usize::try_from(i).ok().and_then(|i| g.rows.get(i)).map_or(String::new(), |r| r.0.clone())
+    };
+    chart
+        .configure_mesh()
+        .disable_mesh()
+        .x_desc(x_desc)
+        .x_label_formatter(&col_label)
+        .y_label_formatter(&row_label)
+        .label_style((FAMILY, 13).into_font().color(&TEXT))
+        .axis_desc_style((FAMILY, 13).into_font().color(&TEXT))
+        .draw()
+        .map_err(drawing)?;
+    let (xr, _) = chart.plotting_area().get_pixel_range();
+    let cell_w = (xr.end - xr.start) as f64 / n_cols;
+    for (r, (_, cells)) in g.rows.iter().enumerate() {
+        let y0 = n_rows - 1.0 - r as f64;
+        for (c, key) in g.keys.iter().enumerate() {
+            let rect = [(c as f64, y0), (c as f64 + 1.0, y0 + 1.0)];
+            let pct = cells.get(key).and_then(|t| t.pct());
+            let fill = match pct {
+                Some(p) => {
+                    let [r, g, b] = map.rgb(p / 100.0);
+                    RGBColor(r, g, b)
+                }
+                None => NO_DATA,
+            };
+            chart.draw_series([Rectangle::new(rect, fill.filled())]).map_err(drawing)?;
+            chart.draw_series([Rectangle::new(rect, WHITE.stroke_width(1))]).map_err(drawing)?;
+            if let (Some(p), true) = (pct, cell_w >= 26.0) {
+                let light = luminance(fill) < 110.0;
+                let colour = if light { WHITE } else { BLACK };
+                let style = (FAMILY, 12)
+                    .into_font()
+                    .color(&colour)
+                    .pos(Pos::new(HPos::Center, VPos::Center));
+                let at = (c as f64 + 0.5, y0 + 0.5);
+                chart.draw_series([Text::new(format!("{p:.0}"), at, style)]).map_err(drawing)?;
+            }
+        }
+    }
+    draw_legend(root, &bar_area, map)?;
+    let note = format!(
+        "occupancy = occupied / measured samples (ITU-R SM.1880), in % · grey: not measured · {} file(s){}",
+        summary.files,
+        match (&summary.first, &summary.last) {
+            (Some(a), Some(b)) => format!(" · {a} to {b}"),
+            _ => String::new(),
+        }
+    );
+    footer
+        .draw(&Text::new(note, (12, 6), (FAMILY, 13).into_font().color(&TEXT)))
+        .map_err(drawing)?;
+    Ok(())
+}
+
+fn luminance(c: RGBColor) -> f64 {
+    0.2126 * c.0 as f64 + 0.7152 * c.1 as f64 + 0.0722 * c.2 as f64
+}
+
+fn draw_legend<DB: DrawingBackend>(
+    root: &DrawingArea<DB, Shift>,
+    area: &DrawingArea<DB, Shift>,
+    map: MapKind,
+) -> Result<()> {
+    let ticks: Vec<f64> = (0..=5).map(|k| k as f64 * 20.0).collect();
+    let mut chart = ChartBuilder::on(area)
+        .margin(10)
+        .margin_right(4)
+        .x_label_area_size(44)
+        .right_y_label_area_size(56)
+        .build_cartesian_2d(0.0..1.0, TickedAxis { low: 0.0, high: 100.0, ticks })
+        .map_err(drawing)?;
+    chart
+        .configure_mesh()
+        .disable_mesh()
+        .disable_x_axis()
+        .y_desc("occupancy %")
+        .y_label_formatter(&|v| format!("{v:.0}"))
+        .label_style((FAMILY, 13).into_font().color(&TEXT))
+        .axis_desc_style((FAMILY, 13).into_font().color(&TEXT))
+        .draw()
+        .map_err(drawing)?;
+    super::canvas::draw_gradient(root, chart.plotting_area().get_pixel_range(), map)
+}

@@ -1,0 +1,337 @@
+//! `log --publish`: every record of the occupancy log also goes to an MQTT broker, from a
+//! thread of its own, so the measurement never waits for the network.
+//!
+//! The log hands each record ([`RecordTap`]) to the [`Spool`] on disk, and the publisher thread
+//! sends what the spool holds, in order, QoS 1, keeping up to [`WINDOW`] messages in flight. A
+//! record leaves the spool when the broker acknowledges it; after a lost connection the
+//! publisher reconnects (back-off doubling from 0.5 s to [`MAX_BACKOFF`]) and sends again from the
+//! first unacknowledged record, so the broker may see a record twice (the collector drops the
+//! copy by its id) but never loses one. Topics and payloads: see [`super::mqtt`].
+
+use super::log::Stamped;
+use super::mqtt::{topic_level, Broker};
+use super::occupancy_log::RecordTap;
+use super::spool::{Pos, Spool};
+use anyhow::Result;
+use rumqttc::{Client, Connection, Event, LastWill, Outgoing, Packet, QoS};
+use serde_json::{json, Value};
+use std::collections::{HashMap, VecDeque};
+use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
+use std::sync::Arc;
+use std::thread::JoinHandle;
+use std::time::{Duration, Instant};
+
+/// Messages sent and not yet acknowledged, at most.
+pub const WINDOW: usize = 64;
+/// Longest wait between connection attempts.
+pub const MAX_BACKOFF: Duration = Duration::from_secs(30);
+
+/// What the publisher needs.
+#[derive(Clone, Debug)]
+pub struct PublishConfig {
+    pub broker: Broker,
+    pub site: String,
+    pub spool_dir: std::path::PathBuf,
+    pub spool_bytes: u64,
+    /// At the end of the run, how long to wait for the spool to drain before leaving the rest
+    /// for the next run.
+    pub linger: Duration,
+}
+
+/// Counters the command reports at the end.
+#[derive(Debug, Default)]
+pub struct PublishStats {
+    pub acked: AtomicU64,
+    pub connects: AtomicU64,
+    pub lost_links: AtomicU64,
+}
+
+/// The running publisher: a tap for the log and the thread that empties the spool.
+pub struct Publisher {
+    spool: Arc<Spool>,
+    stop: Arc<AtomicBool>,
+    stats: Arc<PublishStats>,
+    thread: Option<JoinHandle<()>>,
+}
+
+/// What became of publishing, for the closing notes.
+#[derive(Debug)]
+pub struct PublishSummary {
+    pub acked: u64,
+    pub lost_links: u64,
+    /// Bytes still in the spool, sent by the next run.
+    pub pending_bytes: u64,
+    /// Records the spool's bound refused (they are in the local log only).
+    pub refused: u64,
+}
+
+impl PublishSummary {
+    /// What the user should hear at the end of the run.
+    pub fn notes(&self) -> Vec<String> {
+        let mut n = vec![format!(
+            "published {} records (the broker acknowledged each){}",
+            self.acked,
+            if self.lost_links > 0 {
+                format!("; the link to the broker was lost or refused {} times", self.lost_links)
+            } else {
+                String::new()
+            }
+        )];
+        if self.pending_bytes > 0 {
+            n.push(format!(
+                "{} bytes of records wait in the spool for the broker; the next run with the same --spool sends them",
+                self.pending_bytes
+            ));
+        }
+        if self.refused > 0 {
+            n.push(format!(
+                "{} records were not published: the spool was full (--spool-max) or could not be written; they are in the local log",
+                self.refused
+            ));
+        }
+        n
+    }
+}
+
+impl Publisher {
+    /// Opens the spool and starts the thread (which connects in the background: a broker that is
+    /// down at the start is no error, the records wait in the spool).
+    pub fn start(cfg: PublishConfig) -> Result<Publisher> {
+        let spool = Arc::new(Spool::open(&cfg.spool_dir, cfg.spool_bytes)?);
+        let stop = Arc::new(AtomicBool::new(false));
+        let stats = Arc::new(PublishStats::default());
+        let mut worker = Worker {
+            cfg,
+            spool: spool.clone(),
+            stop: stop.clone(),
+            stats: stats.clone(),
+            online: false,
+        };
+        let thread = std::thread::Builder::new()
+            .name("publish".into())
+            .spawn(move || {
+                worker.run();
+                worker.spool.save();
+            })
+            .map_err(anyhow::Error::from)?;
+        Ok(Publisher { spool, stop, stats, thread: Some(thread) })
+    }
+
+    /// The tap to hand to the occupancy log.
+    pub fn tap(&self) -> Box<dyn RecordTap> {
+        Box::new(SpoolTap { spool: self.spool.clone() })
+    }
+
+    /// Waits (up to the linger time) for the spool to drain, says goodbye, and stops.
+    pub fn finish(mut self) -> PublishSummary {
+        self.stop.store(true, Ordering::SeqCst);
+        if let Some(t) = self.thread.take() {
+            let _ = t.join();
+        }
+        PublishSummary {
+            acked: self.stats.acked.load(Ordering::SeqCst),
+            lost_links: self.stats.lost_links.load(Ordering::SeqCst),
+            pending_bytes: self.spool.pending_bytes(),
+            refused: self.spool.refused(),
+        }
+    }
+}
+
+struct SpoolTap {
+    spool: Arc<Spool>,
+}
+
+impl RecordTap for SpoolTap {
+    fn record(&mut self, line: &Stamped) {
+        if let Ok(text) = serde_json::to_string(line) {
+            self.spool.append(&text);
+        }
+    }
+}
+
+/// What a message in flight stands for.
+#[derive(Clone, Copy, Debug)]
+enum Tag {
+    /// A record; acknowledging it acknowledges the spool up to here.
+    Record(Pos),
+    /// A retained copy or a status message.
+    Extra,
+}
+
+struct Worker {
+    cfg: PublishConfig,
+    spool: Arc<Spool>,
+    stop: Arc<AtomicBool>,
+    stats: Arc<PublishStats>,
+    online: bool,
+}
+
+/// How a connection ended.
+enum LinkEnd {
+    Lost,
+    Done,
+}
+
+impl Worker {
+    fn run(&mut self) {
+        let mut backoff = Duration::from_millis(500);
+        let mut deadline: Option<Instant> = None;
+        loop {
+            if self.stop.load(Ordering::SeqCst) {
+                let d = *deadline.get_or_insert_with(|| Instant::now() + self.cfg.linger);
+                if Instant::now() >= d || self.spool.pending_bytes() == 0 && !self.online {
+                    return;
+                }
+            }
+            match self.session(&mut deadline) {
+                LinkEnd::Done => return,
+                LinkEnd::Lost => {
+                    self.stats.lost_links.fetch_add(1, Ordering::Relaxed);
+                    self.sleep(backoff, deadline);
+                    backoff = (backoff * 2).min(MAX_BACKOFF);
+                }
+            }
+            if self.online {
+                backoff = Duration::from_millis(500);
+                self.online = false;
+            }
+        }
+    }
+
+    fn sleep(&self, d: Duration, deadline: Option<Instant>) {
+        let end = Instant::now() + d;
+        while Instant::now() < end {
+            if deadline.is_some_and(|dl| Instant::now() >= dl) {
+                return;
+            }
+            std::thread::sleep(Duration::from_millis(20));
+        }
+    }
+
+    fn status(&self, state: &str, reason: &str) -> Vec<u8> {
+        let v = json!({"kind": "status", "site": self.cfg.site, "state": state, "reason": reason});
+        v.to_string().into_bytes()
+    }
+
+    /// One connection: send from the first unacknowledged record until the link drops or the
+    /// run is over and everything is acknowledged.
+    fn session(&mut self, deadline: &mut Option<Instant>) -> LinkEnd {
+        let b = &self.cfg.broker;
+        let status_topic = b.topic(&self.cfg.site, "status");
+        let Ok(mut opts) = b.options(&format!("bandwarden-{}", self.cfg.site)) else {
+            return LinkEnd::Done;
+        };
+        opts.set_last_will(LastWill::new(
+            &status_topic,
+            self.status("offline", "lost"),
+            QoS::AtLeastOnce,
+            true,
+        ));
+        opts.set_inflight(WINDOW as u16 + 4);
+        let (client, mut conn) = Client::new(opts, WINDOW * 2 + 8);
+        if !wait_connack(&mut conn, &self.stop, *deadline) {
+            return LinkEnd::Lost;
+        }
+        self.online = true;
+        self.stats.connects.fetch_add(1, Ordering::Relaxed);
+        let mut unsent: VecDeque<Tag> = VecDeque::new();
+        let mut in_flight: HashMap<u16, Tag> = HashMap::new();
+        let online = self.status("online", "connected");
+        if client.try_publish(&status_topic, QoS::AtLeastOnce, true, online).is_ok() {
+            unsent.push_back(Tag::Extra);
+        }
+        let mut cursor = self.spool.acked();
+        let mut said_goodbye = false;
+        loop {
+            let stopping = self.stop.load(Ordering::SeqCst);
+            if stopping {
+                let d = *deadline.get_or_insert_with(|| Instant::now() + self.cfg.linger);
+                let drained = self.spool.acked() >= self.spool.end();
+                if drained && !said_goodbye && in_flight.is_empty() && unsent.is_empty() {
+                    let bye = self.status("offline", "stopped");
+                    if client.try_publish(&status_topic, QoS::AtLeastOnce, true, bye).is_ok() {
+                        unsent.push_back(Tag::Extra);
+                    }
+                    said_goodbye = true;
+                } else if said_goodbye && in_flight.is_empty() && unsent.is_empty()
+                    || Instant::now() >= d
+                {
+                    let _ = client.try_disconnect();
+                    let _ = conn.recv_timeout(Duration::from_millis(200));
+                    return LinkEnd::Done;
+                }
+            }
+            if !said_goodbye {
+                // Refill in batches: each read of the spool opens a file.
+                let busy = unsent.len() + in_flight.len();
+                let room = WINDOW.saturating_sub(busy);
+                if room >= WINDOW / 2 || busy == 0 {
+                    let idle = busy == 0 && !stopping;
+                    let wait = if idle { Duration::from_millis(20) } else { Duration::ZERO };
+                    for (pos, line) in self.spool.read_from(cursor, room, wait) {
+                        if !self.send(&client, &line, pos, &mut unsent) {
+                            break;
+                        }
+                        cursor = pos;
+                    }
+                }
+            }
+            match conn.recv_timeout(Duration::from_millis(20)) {
+                Ok(Ok(Event::Outgoing(Outgoing::Publish(pkid)))) => {
+                    if let Some(tag) = unsent.pop_front() {
+                        in_flight.insert(pkid, tag);
+                    }
+                }
+                Ok(Ok(Event::Incoming(Packet::PubAck(ack)))) => {
+                    if let Some(Tag::Record(pos)) = in_flight.remove(&ack.pkid) {
+                        self.spool.ack(pos);
+                        self.stats.acked.fetch_add(1, Ordering::Relaxed);
+                    }
+                }
+                Ok(Ok(_)) | Err(_) => {}
+                Ok(Err(_)) => return LinkEnd::Lost,
+            }
+        }
+    }
+
+    /// Publishes one spooled record on its kind's topic, and an interval's retained copy;
+    /// `false` when the client's queue had no room (the record is sent later).
+    fn send(&self, client: &Client, line: &str, pos: Pos, unsent: &mut VecDeque<Tag>) -> bool {
+        let v: Value = serde_json::from_str(line).unwrap_or(Value::Null);
+        let kind = v["kind"].as_str().unwrap_or("unknown");
+        let b = &self.cfg.broker;
+        let topic = b.topic(&self.cfg.site, kind);
+        if client.try_publish(topic, QoS::AtLeastOnce, false, line.as_bytes().to_vec()).is_err() {
+            return false;
+        }
+        unsent.push_back(Tag::Record(pos));
+        if kind == "interval" {
+            if let Some(ch) = v["channel"].as_str() {
+                let latest = b.topic(&self.cfg.site, &format!("latest/{}", topic_level(ch)));
+                if client
+                    .try_publish(latest, QoS::AtLeastOnce, true, line.as_bytes().to_vec())
+                    .is_ok()
+                {
+                    unsent.push_back(Tag::Extra);
+                }
+            }
+        }
+        true
+    }
+}
+
+/// Waits for the broker's CONNACK; `false` on an error, a refusal, or after 10 s.
+pub fn wait_connack(conn: &mut Connection, stop: &AtomicBool, deadline: Option<Instant>) -> bool {
+    let give_up = Instant::now() + Duration::from_secs(10);
+    while Instant::now() < give_up {
+        if stop.load(Ordering::SeqCst) && deadline.is_some_and(|d| Instant::now() >= d) {
+            return false;
+        }
+        match conn.recv_timeout(Duration::from_millis(100)) {
+            Ok(Ok(Event::Incoming(Packet::ConnAck(_)))) => return true,
+            Ok(Err(_)) => return false,
+            _ => {}
+        }
+    }
+    false
+}

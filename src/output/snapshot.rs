@@ -1,0 +1,195 @@
+//! `snapshot` as a consumer: every row of the run averaged into the picture's rows (bounded
+//! memory, see [`super::held_rows`]), emissions found on the way if asked, and at the end the
+//! title and footer that say what the picture shows and how it was measured.
+//!
+//! `--skip` is applied here: the input is read and transformed from its start (a pipe cannot be
+//! sought), and rows that begin before the skip are left out, so the picture's time axis starts at
+//! the first row after it.
+
+use super::held_rows::{HeldRows, RowAccumulator};
+use super::marks::EmissionFinder;
+use super::picture::{Mark, Timeline};
+use crate::dsp::Spectrum;
+use crate::pipeline::{Consumer, Flow, RunEnd, RunInfo, TimeSource};
+use crate::units::{format_hz, format_num};
+use std::io;
+
+/// What the run is asked to collect.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct SnapshotPlan {
+    /// Rows starting before this sample are left out.
+    pub skip_samples: u64,
+    /// Stored rows at most (twice the picture's height is plenty).
+    pub max_rows: usize,
+    /// Columns at most (the picture's width).
+    pub max_columns: usize,
+    /// Find emissions to outline.
+    pub find_emissions: bool,
+}
+
+/// The consumer.
+pub struct Snapshot {
+    plan: SnapshotPlan,
+    rows: RowAccumulator,
+    finder: Option<EmissionFinder>,
+    info: Option<RunInfo>,
+    end_sample: u64,
+    first_row: Option<u64>,
+    refused: u64,
+}
+
+/// Everything a picture is drawn from.
+pub struct Collected {
+    pub held: HeldRows,
+    pub timeline: Timeline,
+    pub info: RunInfo,
+    /// Emissions, when asked for (levels in dBFS; labels carry `offset_db`).
+    pub marks: Vec<Mark>,
+    /// Rows left out because the engine was retuned mid-run (never in `snapshot` itself).
+    pub refused_rows: u64,
+}
+
+impl Snapshot {
+    pub fn new(plan: SnapshotPlan) -> Snapshot {
+        Snapshot {
+            plan,
+            rows: RowAccumulator::new(plan.max_rows, plan.max_columns),
+            finder: plan.find_emissions.then(EmissionFinder::new),
+            info: None,
+            end_sample: 0,
+            first_row: None,
+            refused: 0,
+        }
+    }
+
+    fn take(&mut self, row: &Spectrum, complete: bool) {
+        if row.first_sample < self.plan.skip_samples {
+            return;
+        }
+        self.first_row.get_or_insert(row.first_sample);
+        if !self.rows.push(row) {
+            self.refused += 1;
+            return;
+        }
+        if complete {
+            if let Some(f) = self.finder.as_mut() {
+                f.push(row);
+            }
+        }
+    }
+
+    /// The rows and times, or `None` when no row was measured. Labels of the marks add
+    /// `offset_db` and name `unit`.
+    pub fn collect(self, offset_db: f64, unit: &str) -> Option<Collected> {
+        let info = self.info?;
+        let held = self.rows.finish()?;
+        let first = self.first_row.unwrap_or(self.plan.skip_samples);
+        let end = self.end_sample.max(held.rows.last().map_or(first, |r| r.end_sample));
+        let timeline = Timeline {
+            rate_hz: info.source.sample_rate_hz,
+            first_sample: first,
+            end_sample: end,
+            start: info.clock.time(first),
+        };
+        let marks = self.finder.map(|f| f.finish(offset_db, unit)).unwrap_or_default();
+        Some(Collected { held, timeline, info, marks, refused_rows: self.refused })
+    }
+}
+
+impl Consumer for Snapshot {
+    fn start(&mut self, run: &RunInfo) -> io::Result<()> {
+        self.info = Some(run.clone());
+        Ok(())
+    }
+
+    fn row(&mut self, row: &Spectrum) -> io::Result<Flow> {
+        self.take(row, true);
+        Ok(Flow::Continue)
+    }
+
+    fn partial_row(&mut self, row: &Spectrum) -> io::Result<()> {
+        self.take(row, false);
+        Ok(())
+    }
+
+    fn finish(&mut self, end: &RunEnd, run: &RunInfo) -> io::Result<()> {
+        self.end_sample = end.end_sample;
+        self.info = Some(run.clone());
+        Ok(())
+    }
+}
+
+impl Collected {
+    /// "Waterfall of LABEL, 2031-04-17 06:30:00 UTC + 4 s" (or from second S when the start time
+    /// is unknown).
+    pub fn title(&self) -> String {
+        let label = crate::messages::sanitize(&self.info.source.label);
+        let dur = format_duration(self.timeline.duration_s());
+        match self.timeline.start {
+            Some(t) => {
+                let t = super::ticks::utc_text(t);
+                format!("Waterfall of {label}, {t} + {dur}")
+            }
+            None => {
+                let from = self.timeline.first_sample as f64 / self.timeline.rate_hz;
+                format!("Waterfall of {label}, {dur} from {} s", format_num(round3(from)))
+            }
+        }
+    }
+
+    /// Two lines: the band and the analysis; the averaging and where the time came from.
+    pub fn footer(&self) -> Vec<String> {
+        let g = &self.held.geometry;
+        let e = &self.info.engine;
+        let frames = e.frames_per_output.unwrap_or(1);
+        let row_s =
+            (frames as f64 * e.hop() as f64 + (e.fft_size - e.hop()) as f64) / g.sample_rate_hz;
+        let stored = self.held.rows_per_stored;
+        let time = match (self.timeline.start, self.info.time_source) {
+            (None, _) => "start time unknown (give --start)",
+            (Some(_), TimeSource::Option) => "time from --start",
+            (Some(_), TimeSource::Recording) => "time from the recording (SigMF core:datetime)",
+            (Some(_), _) => "time from the wall clock",
+        };
+        vec![
+            format!(
+                "source {} · centre {} · span {} · RBW {} · FFT {} · {} window · {} % overlap",
+                crate::messages::sanitize(&self.info.source.label),
+                format_hz(g.center_hz),
+                format_hz(g.sample_rate_hz),
+                format_hz(g.rbw_hz),
+                g.fft_size,
+                g.window,
+                format_num((e.overlap * 100.0).round()),
+            ),
+            format!(
+                "each spectrum averages {frames} FFT frame{} ({}); {} spectra in all, {} per stored row, averaged in power into pixel rows · levels: largest bin per pixel column · {time}",
+                if frames == 1 { "" } else { "s" },
+                format_duration(row_s),
+                self.held.input_rows,
+                stored,
+            ),
+        ]
+    }
+}
+
+fn round3(x: f64) -> f64 {
+    (x * 1e3).round() / 1e3
+}
+
+/// `250 ms`, `4 s`, `12 min 30 s`, `1 h 5 min`.
+pub fn format_duration(s: f64) -> String {
+    if s == 0.0 {
+        "0 s".to_string()
+    } else if s < 1.0 {
+        format!("{} ms", format_num(round3(s * 1e3).round()))
+    } else if s < 120.0 {
+        format!("{} s", format_num((s * 100.0).round() / 100.0))
+    } else if s < 7200.0 {
+        let m = (s / 60.0).floor();
+        format!("{} min {} s", m, (s - 60.0 * m).round())
+    } else {
+        let h = (s / 3600.0).floor();
+        format!("{} h {} min", h, ((s - 3600.0 * h) / 60.0).round())
+    }
+}
