@@ -63,6 +63,7 @@ pub fn run(cli: Cli) -> anyhow::Result<ExitCode> {
         Some(Command::Demo(args)) => cmd::demo::run(args.validate()?),
         Some(Command::Watch(args)) => cmd::watch::run(args.validate()?),
         Some(Command::Log(args)) => cmd::log::run(args.validate()?),
+        Some(Command::Census(args)) => cmd::census::run(args.validate()?),
         Some(Command::Snapshot(args)) => cmd::snapshot::run(args.validate()?),
         Some(Command::Report(args)) => cmd::report::run(args.validate()?),
         Some(Command::Collect(args)) => cmd::collect::run(args.validate()?),

@@ -5,6 +5,7 @@
 //! (`2.4M`, `12.5k`, `1e6`), durations accept `10ms`, `2s`, `15m`, `1h`. Nothing below this layer
 //! imports clap or an `*Args` type.
 
+pub mod census;
 pub mod common;
 pub mod demo;
 pub mod log;
@@ -16,6 +17,7 @@ pub mod sigmf_out;
 pub mod snapshot;
 pub mod watch;
 
+pub use census::{CensusArgs, CensusConfig};
 pub use common::{ChannelArgs, ChannelConfig, DspArgs, InputArgs, PlanArgs};
 pub use demo::{DemoArgs, DemoConfig};
 pub use log::{LogArgs, LogConfig};
@@ -57,6 +59,9 @@ pub enum Command {
     /// Log how busy each channel of a plan is (ITU-R SM.1880 occupancy) and every emission, as
     /// JSON Lines or CSV, for unattended runs.
     Log(LogArgs),
+    /// Find every emitter in the band without a plan: emissions detected row by row, tracked
+    /// and grouped by frequency; a table, one JSON object, or a channel plan for `log --plan`.
+    Census(CensusArgs),
     /// Draw the whole input (or part of it) as one picture, PNG or SVG: a waterfall with the
     /// averaged spectrum above it, axes in absolute frequency and time, a colour bar in dBFS.
     Snapshot(SnapshotArgs),

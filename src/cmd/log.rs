@@ -20,11 +20,10 @@ use crate::output::progress::Progress;
 use crate::output::publish::Publisher;
 use crate::output::rotation::{Opener, Rotation};
 use crate::output::sink;
-use crate::pipeline::input::{live_block_len, FILE_BLOCK_LEN};
+use crate::pipeline::input::unattended_options;
 use crate::pipeline::occupancy::{OccupancyRequest, OccupancySetup};
 use crate::pipeline::stop::Escalation;
 use crate::pipeline::{run_input, Consumer, Input, Run, RunSpec, StopSignals, TimeSource};
-use crate::source::reader::ReaderOptions;
 use crate::source::{self};
 use anyhow::{Context, Result};
 use std::path::PathBuf;
@@ -80,8 +79,7 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
     }
 
     let signals = StopSignals::install(false, Escalation::SecondSignalExits)?;
-    let max_samples = cfg.seconds.map(|s| (s * info.sample_rate_hz).round() as u64);
-    let block_len = if info.live { live_block_len(info.sample_rate_hz) } else { FILE_BLOCK_LEN };
+    let (opts, total) = unattended_options(&info, cfg.seconds, cfg.no_drop);
     let request = SigmfRequest {
         wait: cfg.no_drop,
         record: cfg.record.as_deref(),
@@ -90,17 +88,7 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
     };
     let side = log.side_records();
     let mut sigmf_out =
-        SigmfOutputs::new(request, &cfg.input, &info, plan, &inputs, block_len, side)?;
-    let opts = ReaderOptions {
-        block_len,
-        drop_when_full: info.live && !cfg.no_drop,
-        max_samples,
-        ..Default::default()
-    };
-    let total = match (max_samples, info.total_samples) {
-        (Some(m), Some(t)) => Some(m.min(t)),
-        (_, t) => t,
-    };
+        SigmfOutputs::new(request, &cfg.input, &info, plan, &inputs, opts.block_len, side)?;
     let mut progress = Progress::for_file(total, info.sample_rate_hz);
     let input = Input::start(src, opts);
     let mut consumers: Vec<&mut dyn Consumer> = vec![&mut progress];

@@ -2,6 +2,7 @@
 //! `log` and `watch`, and tested without threads or I/O.
 
 pub mod band;
+pub mod census;
 pub mod noise;
 pub mod occupancy;
 pub mod signals;

@@ -7,6 +7,7 @@ pub mod annotate;
 pub mod canvas;
 pub mod capture;
 pub mod capture_writer;
+pub mod census;
 pub mod collect;
 pub mod heatmap;
 pub mod held_rows;

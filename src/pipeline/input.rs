@@ -27,6 +27,28 @@ pub fn live_block_len(sample_rate_hz: f64) -> usize {
 /// Samples per block for input read as fast as it comes.
 pub const FILE_BLOCK_LEN: usize = 65536;
 
+/// Reader options for an unattended run (`log`, `census`) of at most `seconds` of input: live
+/// input in small blocks, dropping whole blocks when behind unless `no_drop`; files in large
+/// blocks. Also returns how many samples the run will read, if known (for progress).
+pub fn unattended_options(
+    info: &SourceInfo,
+    seconds: Option<f64>,
+    no_drop: bool,
+) -> (ReaderOptions, Option<u64>) {
+    let max_samples = seconds.map(|s| (s * info.sample_rate_hz).round() as u64);
+    let opts = ReaderOptions {
+        block_len: if info.live { live_block_len(info.sample_rate_hz) } else { FILE_BLOCK_LEN },
+        drop_when_full: info.live && !no_drop,
+        max_samples,
+        ..Default::default()
+    };
+    let total = match (max_samples, info.total_samples) {
+        (Some(m), Some(t)) => Some(m.min(t)),
+        (_, t) => t,
+    };
+    (opts, total)
+}
+
 /// A running reader and the receiving end of its queue.
 pub struct Input {
     pub info: SourceInfo,

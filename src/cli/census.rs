@@ -1,0 +1,72 @@
+//! `census` flags and their validation.
+
+use super::common::{parse_seconds, DetectArgs, DspArgs, InputArgs};
+use crate::dsp::DspConfig;
+use crate::measure::occupancy::timing::OBW_PERCENT;
+use crate::measure::Detection;
+use crate::source::InputRequest;
+use crate::units::parse_duration;
+use anyhow::{bail, Result};
+use clap::Args;
+use std::time::Duration;
+
+#[derive(Args, Debug)]
+pub struct CensusArgs {
+    /// Input: a file (raw, .sigmf-meta/.sigmf-data, .wav) or - for stdin (live: runs until the
+    /// end of input, Ctrl-C or SIGTERM, then prints).
+    #[arg(value_name = "INPUT")]
+    pub input: String,
+    #[command(flatten)]
+    pub source: InputArgs,
+    #[command(flatten)]
+    pub dsp: DspArgs,
+    #[command(flatten)]
+    pub detect: DetectArgs,
+    /// Length of one row (an average of FFT frames) in which emissions are detected, e.g. 10ms;
+    /// rounded to whole FFT hops. Default: the most hops that fit in 10 ms.
+    #[arg(long, value_name = "DURATION", value_parser = parse_duration)]
+    pub dwell: Option<Duration>,
+    /// An emission ends after this long without a detection (rounded up to whole rows).
+    #[arg(long, value_name = "DURATION", default_value = "25ms", value_parser = parse_duration)]
+    pub hang: Duration,
+    /// Print one JSON object instead of the table.
+    #[arg(long)]
+    pub json: bool,
+    /// Also write a channel plan (TOML, as `log --plan` reads) with one channel per emitter.
+    #[arg(long, value_name = "FILE.toml")]
+    pub plan_out: Option<String>,
+    /// Stop after this many seconds of input.
+    #[arg(long, value_name = "SECONDS", value_parser = parse_seconds)]
+    pub seconds: Option<f64>,
+}
+
+/// A validated `census`.
+#[derive(Clone, Debug)]
+pub struct CensusConfig {
+    pub input: InputRequest,
+    pub dsp: DspConfig,
+    pub detection: Detection,
+    pub dwell_s: Option<f64>,
+    pub hang_s: f64,
+    pub json: bool,
+    pub plan_out: Option<String>,
+    pub seconds: Option<f64>,
+}
+
+impl CensusArgs {
+    pub fn validate(self) -> Result<CensusConfig> {
+        if self.plan_out.as_deref() == Some("-") {
+            bail!("--plan-out writes a file: give a path (e.g. --plan-out site-plan.toml)");
+        }
+        Ok(CensusConfig {
+            dsp: self.dsp.validate()?,
+            detection: self.detect.validate(OBW_PERCENT)?,
+            input: self.source.request(Some(self.input)),
+            dwell_s: self.dwell.map(|d| d.as_secs_f64()),
+            hang_s: self.hang.as_secs_f64(),
+            json: self.json,
+            plan_out: self.plan_out,
+            seconds: self.seconds,
+        })
+    }
+}

@@ -1,0 +1,104 @@
+//! `bandwarden census`: every emitter in the band, found without a plan.
+//!
+//! The pipeline turns blocks into rows (one measurement sample each, as `log` uses); the census
+//! ([`crate::measure::census`]) detects, tracks and groups emissions row by row. When the input
+//! ends, or on SIGINT/SIGTERM for live input, the inventory is printed (table or JSON) and, with
+//! `--plan-out`, written as a channel plan. A second signal during the wind-down exits at once.
+
+use crate::cli::CensusConfig;
+use crate::measure::census::{Census, CensusSettings};
+use crate::measure::occupancy::DEFAULT_INTERVAL_S;
+use crate::messages::{note, notes};
+use crate::output::census::{to_json, to_plan, to_table, CensusConsumer};
+use crate::output::progress::Progress;
+use crate::output::sink;
+use crate::pipeline::input::unattended_options;
+use crate::pipeline::occupancy::{OccupancyRequest, OccupancySetup};
+use crate::pipeline::stop::Escalation;
+use crate::pipeline::{run_input, Input, Run, RunSpec, StopSignals};
+use crate::plan::{Plan, DEFAULT_THRESHOLD_DB};
+use crate::source::{self, sanitize};
+use anyhow::{bail, Result};
+use std::io::Write;
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+/// Most signals taken from one row, and most emitters kept.
+const MAX_SIGNALS: usize = 64;
+const MAX_EMITTERS: usize = 256;
+
+pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
+    let mut opened = Vec::new();
+    let src = source::open(&cfg.input, &mut opened)?;
+    notes(&opened);
+    let info = src.info().clone();
+    let request = OccupancyRequest {
+        dwell_s: cfg.dwell_s,
+        threshold_db: DEFAULT_THRESHOLD_DB,
+        interval_s: DEFAULT_INTERVAL_S,
+        hang_s: cfg.hang_s,
+    };
+    let setup = OccupancySetup::new(&info, &cfg.dsp, &Plan::default(), &request)?;
+    if let Some(out) = &cfg.plan_out {
+        let mut inputs = Vec::new();
+        if let Some(path) = cfg.input.path.as_deref().filter(|p| *p != "-") {
+            let (meta, data) = source::sigmf::paths(path);
+            inputs.extend([PathBuf::from(path), meta.into(), data.into()]);
+        }
+        sink::refuse_overwrite(out, &inputs.iter().map(PathBuf::as_path).collect::<Vec<_>>())?;
+    }
+    let settings = CensusSettings {
+        detection: cfg.detection,
+        timing: setup.timing.clone(),
+        hang_rows: setup.timing.hang_samples as u32,
+        max_signals: MAX_SIGNALS,
+        max_emitters: MAX_EMITTERS,
+    };
+    let mut census = CensusConsumer::new(Census::new(settings));
+    let spec = RunSpec::new(info.clone(), setup.engine.clone(), cfg.dsp.threads);
+    spec.check_work()?;
+
+    let signals = StopSignals::install(false, Escalation::SecondSignalExits)?;
+    let (opts, total) = unattended_options(&info, cfg.seconds, false);
+    let mut progress = Progress::for_file(total, info.sample_rate_hz);
+    let input = Input::start(src, opts);
+    let run = Run::new(spec, vec![&mut progress, &mut census]);
+    let outcome = run_input(input, run, Some(&signals))?;
+    if outcome.end.reason.is_signal() {
+        note(&format!(
+            "stopped by {}; the census covers the input read so far",
+            signals.signal_name()
+        ));
+    }
+    if let Some(issues) = &outcome.issues {
+        notes(&issues.notes());
+    }
+    outcome.check(&info.label)?;
+    if outcome.end.dropped_samples > 0 {
+        note(&format!(
+            "{} input samples were dropped because processing fell behind; emissions across those gaps were cut",
+            outcome.end.dropped_samples
+        ));
+    }
+    let Some(result) = census.result() else {
+        bail!(
+            "the input '{}' is shorter than one measurement sample ({:.1} ms); nothing to count",
+            sanitize(&info.label),
+            setup.dwell_s() * 1e3
+        );
+    };
+    let text = if cfg.json {
+        format!("{}\n", to_json(result))
+    } else {
+        to_table(result, &sanitize(&info.label))
+    };
+    let mut out = sink::open("-", false, "census")?.out;
+    out.write_all(text.as_bytes())?;
+    out.flush()?;
+    if let Some(path) = &cfg.plan_out {
+        let mut file = sink::open(path, false, "plan")?.out;
+        file.write_all(to_plan(result, &sanitize(&info.label)).as_bytes())?;
+        file.flush()?;
+    }
+    Ok(ExitCode::SUCCESS)
+}

@@ -1,0 +1,157 @@
+//! One emitter: every emission at the same place in frequency, with the PSD of the rows in which
+//! it was on the air summed so that its figures are measured on its own averaged spectrum.
+
+use super::{EmitterFigures, Layout};
+use crate::dsp::Window;
+use crate::measure::band::{occupied_bandwidth_of, BinRun};
+use crate::measure::signals::WIDE_RBW;
+use crate::units::db;
+
+/// What is gathered for one emitter while rows go by.
+#[derive(Clone, Debug)]
+pub struct EmitterAcc {
+    /// PSD summed over the rows in which one of its emissions was open (FS²/Hz · rows).
+    sum: Vec<f64>,
+    /// Noise density summed over the same rows.
+    floor_sum: f64,
+    rows: u64,
+    pub last_row: Option<u64>,
+    /// Footprint (bins) and detected edges (Hz), the union of its emissions'.
+    pub lo: usize,
+    pub hi: usize,
+    pub low_hz: f64,
+    pub high_hz: f64,
+    /// Power-weighted centre of its detections, for grouping.
+    centre_weighted: f64,
+    weight: f64,
+    pub emissions: u64,
+    pub airtime: u64,
+    pub first: u64,
+    pub last: u64,
+    pub detected_rows: u64,
+}
+
+impl EmitterAcc {
+    pub fn new(bins: usize, (lo, hi): (usize, usize)) -> EmitterAcc {
+        EmitterAcc {
+            sum: vec![0.0; bins],
+            floor_sum: 0.0,
+            rows: 0,
+            last_row: None,
+            lo,
+            hi,
+            low_hz: f64::INFINITY,
+            high_hz: f64::NEG_INFINITY,
+            centre_weighted: 0.0,
+            weight: 0.0,
+            emissions: 0,
+            airtime: 0,
+            first: u64::MAX,
+            last: 0,
+            detected_rows: 0,
+        }
+    }
+
+    /// The power-weighted centre of its detections so far, Hz.
+    pub fn centre(&self) -> f64 {
+        self.centre_weighted / self.weight.max(f64::MIN_POSITIVE)
+    }
+
+    /// The width of its detected band so far, Hz.
+    pub fn width(&self) -> f64 {
+        (self.high_hz - self.low_hz).max(0.0)
+    }
+
+    /// Adds a detection of `power` (FS²) centred at `centre_hz`.
+    pub fn detected(&mut self, centre_hz: f64, power: f64, (low_hz, high_hz): (f64, f64)) {
+        self.centre_weighted += centre_hz * power;
+        self.weight += power;
+        self.low_hz = self.low_hz.min(low_hz);
+        self.high_hz = self.high_hz.max(high_hz);
+    }
+
+    /// Whether an emission centred at `centre_hz`, `width_hz` wide, is at this emitter's place:
+    /// centres within 2 RBW plus a quarter of the wider of the two.
+    pub fn is_near(&self, centre_hz: f64, width_hz: f64, rbw_hz: f64) -> bool {
+        (self.centre() - centre_hz).abs() <= 2.0 * rbw_hz + 0.25 * self.width().max(width_hz)
+    }
+
+    /// Takes in another emitter found at the same place (a burst whose first row showed only a
+    /// fragment of it can start an emitter of its own). Rows both summed count twice; they are
+    /// the few rows in which the fragment was open. Emissions and airtime are recounted afterwards.
+    pub fn absorb(&mut self, o: &EmitterAcc) {
+        for (s, p) in self.sum.iter_mut().zip(&o.sum) {
+            *s += p;
+        }
+        self.floor_sum += o.floor_sum;
+        self.rows += o.rows;
+        self.lo = self.lo.min(o.lo);
+        self.hi = self.hi.max(o.hi);
+        self.low_hz = self.low_hz.min(o.low_hz);
+        self.high_hz = self.high_hz.max(o.high_hz);
+        self.centre_weighted += o.centre_weighted;
+        self.weight += o.weight;
+        self.detected_rows += o.detected_rows;
+    }
+
+    /// Adds row `row` (once per row) with its noise density.
+    pub fn add_row(&mut self, row: u64, psd: &[f64], density: f64) {
+        if self.last_row.is_some_and(|r| r >= row) {
+            return;
+        }
+        self.last_row = Some(row);
+        for (s, p) in self.sum.iter_mut().zip(psd) {
+            *s += p;
+        }
+        self.floor_sum += density;
+        self.rows += 1;
+    }
+
+    /// Its figures, or `None` when it was never on the air for a measurable time.
+    pub fn figures(&self, g: &Layout, window: &Window) -> Option<EmitterFigures> {
+        if self.rows == 0 || self.airtime == 0 {
+            return None;
+        }
+        let rows = self.rows as f64;
+        let floor = self.floor_sum / rows;
+        // The mean PSD over the rows summed less the noise: the emitter's own spectrum, diluted
+        // by the quiet parts of its edge and hang rows; `on_air` rows is what it really filled.
+        let on_air = self.airtime as f64 / g.stride as f64;
+        let scale = rows / on_air.max(f64::MIN_POSITIVE);
+        let clean: Vec<f64> =
+            self.sum[self.lo..=self.hi].iter().map(|s| (s / rows - floor) * scale).collect();
+        let power: f64 = clean.iter().sum::<f64>() * g.bin_hz;
+        let positive: Vec<f64> = clean.iter().map(|v| v.max(0.0)).collect();
+        let run = BinRun {
+            psd: &positive,
+            center_hz: g.center_hz,
+            first: self.lo as i64 - (g.fft_size / 2) as i64,
+            bin_hz: g.bin_hz,
+        };
+        let freq = |i: f64| g.center_hz + (i - (g.fft_size / 2) as f64) * g.bin_hz;
+        let (lo_hz, hi_hz) = (freq(self.lo as f64 - 0.5), freq(self.hi as f64 + 0.5));
+        let obw = occupied_bandwidth_of(run, lo_hz, hi_hz, g.obw_percent)?;
+        let p = (0..positive.len()).max_by(|&a, &b| positive[a].total_cmp(&positive[b]))?;
+        let at = |i: Option<usize>| i.and_then(|i| positive.get(i)).copied().unwrap_or(0.0);
+        // A narrow emission's peak is a sinusoid's level, corrected for where it sits in its
+        // bin; a wide one's is its power in the RBW around its highest bin.
+        let gain = if obw.width_hz() > WIDE_RBW * g.rbw_hz {
+            1.0
+        } else {
+            window.tone_offset(at(p.checked_sub(1)), positive[p], at(Some(p + 1))).1
+        };
+        let peak = positive[p] * g.rbw_hz / gain.max(1e-12);
+        Some(EmitterFigures {
+            name: String::new(),
+            center_hz: 0.5 * (obw.low_hz + obw.high_hz),
+            obw_hz: obw.width_hz(),
+            first_s: self.first as f64 / g.sample_rate_hz,
+            last_s: self.last as f64 / g.sample_rate_hz,
+            emissions: self.emissions,
+            airtime_pct: 100.0 * self.airtime as f64 / g.duration_samples.max(1) as f64,
+            airtime_s: self.airtime as f64 / g.sample_rate_hz,
+            peak_dbfs: db(peak),
+            power_dbfs: db(power.max(1e-30)),
+        })
+    }
+}

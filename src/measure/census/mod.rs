@@ -1,0 +1,464 @@
+//! A census of the band without a plan: every emission found row by row, followed across rows,
+//! and grouped into emitters (the same place in frequency), each with its own figures.
+//!
+//! **Detection.** Each row (one measurement sample, an average of a few FFT frames) goes through
+//! the shared detector [`find_signals`] against the tracked noise floor
+//! ([`NoiseTracker`], as the occupancy log uses). Detections whose footprints (their occupied
+//! band widened by one main lobe, 2·ENBW bins, on each side) touch are one emission: the lines of
+//! an FM signal, the two tones of FSK.
+//!
+//! **Tracking.** A detection whose footprint overlaps an open track continues it; a track missed
+//! for more than `hang_rows` rows ends, and becomes an emission. Its edges are placed inside their
+//! rows by the share of the full energy the edge rows reached ([`track`]), so timing is finer
+//! than a row: about one FFT hop.
+//!
+//! **Grouping.** A new emission joins the emitter whose detected centre lies within
+//! `2·RBW + 25 %` of the wider of the two detected widths, else starts a new emitter. An emitter
+//! sums the PSD of every row in which one of its emissions was open; at the end, that sum less
+//! the noise is its own averaged spectrum, on which its centre (the middle of its 99 % occupied
+//! band, ITU-R SM.328), occupied bandwidth, peak in one RBW and power while on the air are
+//! measured. An emitter detected in fewer than [`MIN_DETECTED_ROWS`] rows is dropped as a
+//! likely false alarm of the detector.
+//!
+//! Per row the work is the detector (whose result is bounded by `max_signals`) and a pass over
+//! the open tracks and emitters; buffers are kept, and emitters are capped at `max_emitters`.
+
+pub mod emitter;
+pub mod track;
+
+use crate::dsp::{Spectrum, Window};
+use crate::measure::noise::tracker::NoiseTracker;
+use crate::measure::occupancy::Timing;
+use crate::measure::signals::{find_signals, Detection};
+use crate::units::db;
+use emitter::EmitterAcc;
+use track::Track;
+
+/// Emitters seen in fewer rows than this are dropped as false alarms of the detector (noise
+/// crosses a per-bin threshold of 10⁻⁶ about once in 250 rows of 4096 bins; twice at the same
+/// place is rare).
+pub const MIN_DETECTED_ROWS: u64 = 2;
+
+/// How the census is run.
+#[derive(Clone, Debug)]
+pub struct CensusSettings {
+    pub detection: Detection,
+    /// Timing of the rows (stride, overhang) and of the noise tracker.
+    pub timing: Timing,
+    /// Rows an emission may be missed before it ends.
+    pub hang_rows: u32,
+    /// Most signals taken from one row.
+    pub max_signals: usize,
+    /// Most emitters kept; further ones are counted in [`CensusResult::emitters_dropped`].
+    pub max_emitters: usize,
+}
+
+/// The figures of one emitter.
+#[derive(Clone, Debug, PartialEq)]
+pub struct EmitterFigures {
+    /// Generated from its frequency (unique in one census).
+    pub name: String,
+    /// Middle of its 99 % occupied band, absolute Hz.
+    pub center_hz: f64,
+    pub obw_hz: f64,
+    /// Start of its first emission and end of its last, seconds from the first sample.
+    pub first_s: f64,
+    pub last_s: f64,
+    pub emissions: u64,
+    pub airtime_pct: f64,
+    pub airtime_s: f64,
+    /// Level in one RBW at its peak (a sinusoid's level for a narrow emitter), while on the air.
+    pub peak_dbfs: f64,
+    /// Mean channel power while on the air, noise taken off.
+    pub power_dbfs: f64,
+}
+
+/// One emission, for annotating a recording.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Emission {
+    /// Index into [`CensusResult::emitters`].
+    pub emitter: usize,
+    pub sample_start: u64,
+    pub sample_count: u64,
+    /// Detected band edges, absolute Hz.
+    pub low_hz: f64,
+    pub high_hz: f64,
+}
+
+/// The whole census.
+#[derive(Clone, Debug, PartialEq)]
+pub struct CensusResult {
+    pub sample_rate_hz: f64,
+    pub center_hz: f64,
+    pub fft_size: usize,
+    pub rbw_hz: f64,
+    pub duration_s: f64,
+    pub noise_floor_dbfs_per_hz: f64,
+    /// Strongest (most power while on the air) first.
+    pub emitters: Vec<EmitterFigures>,
+    pub emissions: Vec<Emission>,
+    pub emitters_dropped: u64,
+}
+
+/// The numbers an emitter's figures are measured with.
+#[derive(Clone, Debug)]
+pub struct Layout {
+    pub sample_rate_hz: f64,
+    pub center_hz: f64,
+    pub fft_size: usize,
+    pub bin_hz: f64,
+    pub rbw_hz: f64,
+    pub stride: u64,
+    pub duration_samples: u64,
+    pub obw_percent: f64,
+}
+
+/// A closed emission before the emitters are sorted.
+#[derive(Clone, Debug)]
+struct Closed {
+    emitter: usize,
+    start: u64,
+    end: u64,
+    low_hz: f64,
+    high_hz: f64,
+}
+
+/// Detections of one row merged by footprint: bins, detected edges, power and centre.
+#[derive(Clone, Copy, Debug)]
+struct Cluster {
+    lo: usize,
+    hi: usize,
+    low_hz: f64,
+    high_hz: f64,
+    power: f64,
+    centre_weighted: f64,
+}
+
+/// The census, fed row by row.
+pub struct Census {
+    settings: CensusSettings,
+    noise: NoiseTracker,
+    window: Option<Window>,
+    layout: Option<Layout>,
+    prev: Vec<f64>,
+    row: u64,
+    last_span_end: u64,
+    floor_sum: f64,
+    tracks: Vec<Track>,
+    clusters: Vec<Cluster>,
+    emitters: Vec<EmitterAcc>,
+    closed: Vec<Closed>,
+    emitters_dropped: u64,
+}
+
+impl Census {
+    pub fn new(settings: CensusSettings) -> Census {
+        let noise = NoiseTracker::new(settings.timing.floor_alpha, settings.timing.floor_rows);
+        Census {
+            settings,
+            noise,
+            window: None,
+            layout: None,
+            prev: Vec::new(),
+            row: 0,
+            last_span_end: 0,
+            floor_sum: 0.0,
+            tracks: Vec::new(),
+            clusters: Vec::new(),
+            emitters: Vec::new(),
+            closed: Vec::new(),
+            emitters_dropped: 0,
+        }
+    }
+
+    /// Takes one complete row.
+    pub fn push(&mut self, row: &Spectrum) {
+        if self.window.is_none() {
+            self.window = Some(Window::new(row.window, row.fft_size));
+            self.prev = row.psd.clone();
+            self.layout = Some(Layout {
+                sample_rate_hz: row.sample_rate_hz,
+                center_hz: row.center_hz,
+                fft_size: row.fft_size,
+                bin_hz: row.bin_hz(),
+                rbw_hz: row.rbw_hz,
+                stride: self.settings.timing.stride,
+                duration_samples: 0,
+                obw_percent: self.settings.detection.obw_percent,
+            });
+        }
+        let density = self.noise.push(row);
+        self.floor_sum += density;
+        let span = self.settings.timing.row_span(row);
+        self.last_span_end = span.1;
+        let window = self.window.as_ref().expect("set above");
+        let found =
+            find_signals(row, window, density, self.settings.max_signals, self.settings.detection);
+        self.cluster(row, &found);
+        self.assign(row, span, density);
+        let r = self.row;
+        for t in &mut self.tracks {
+            let e = energy(row, &row.psd, (t.lo, t.hi), density);
+            t.take(r, span, e);
+            self.emitters[t.emitter].add_row(r, &row.psd, density);
+        }
+        let hang = self.settings.hang_rows;
+        let mut i = 0;
+        while i < self.tracks.len() {
+            if self.tracks[i].missed > hang {
+                let t = self.tracks.swap_remove(i);
+                self.close(&t, None);
+            } else {
+                i += 1;
+            }
+        }
+        self.prev.copy_from_slice(&row.psd);
+        self.row += 1;
+    }
+
+    /// Samples were lost: every open emission ends where it was last seen.
+    pub fn gap(&mut self) {
+        for t in std::mem::take(&mut self.tracks) {
+            self.close(&t, None);
+        }
+    }
+
+    /// Merges the row's detections into clusters by footprint.
+    fn cluster(&mut self, row: &Spectrum, found: &[crate::measure::Signal]) {
+        let n = row.fft_size;
+        let guard = (2.0 * row.enbw_bins).ceil();
+        self.clusters.clear();
+        for s in found {
+            let lo = (row.bin_of_freq(s.obw.low_hz) - guard).round().clamp(0.0, (n - 1) as f64);
+            let hi = (row.bin_of_freq(s.obw.high_hz) + guard).round().clamp(lo, (n - 1) as f64);
+            let power = crate::units::undb(s.power_dbfs);
+            self.clusters.push(Cluster {
+                lo: lo as usize,
+                hi: hi as usize,
+                low_hz: s.obw.low_hz,
+                high_hz: s.obw.high_hz,
+                power,
+                centre_weighted: power * s.freq_hz,
+            });
+        }
+        self.clusters.sort_unstable_by_key(|c| c.lo);
+        let mut kept = 0;
+        for i in 0..self.clusters.len() {
+            let c = self.clusters[i];
+            if kept > 0 && c.lo <= self.clusters[kept - 1].hi {
+                let k = &mut self.clusters[kept - 1];
+                k.hi = k.hi.max(c.hi);
+                k.low_hz = k.low_hz.min(c.low_hz);
+                k.high_hz = k.high_hz.max(c.high_hz);
+                k.power += c.power;
+                k.centre_weighted += c.centre_weighted;
+            } else {
+                self.clusters[kept] = c;
+                kept += 1;
+            }
+        }
+        self.clusters.truncate(kept);
+    }
+
+    /// Gives every cluster of the row to an open track, a new track of a known emitter, or a new
+    /// emitter.
+    fn assign(&mut self, row: &Spectrum, span: (u64, u64), density: f64) {
+        for ci in 0..self.clusters.len() {
+            let c = self.clusters[ci];
+            let centre = c.centre_weighted / c.power.max(f64::MIN_POSITIVE);
+            let open = self.tracks.iter().position(|t| t.lo <= c.hi && c.lo <= t.hi);
+            let ti = match open {
+                Some(ti) => ti,
+                None => {
+                    let Some(em) = self.emitter_for(centre, c, row.rbw_hz, row.fft_size) else {
+                        continue;
+                    };
+                    match self.tracks.iter().position(|t| t.emitter == em) {
+                        Some(ti) => ti,
+                        None => {
+                            let mut t = Track::new(em, (c.lo, c.hi), self.row, span);
+                            if self.row > 0 {
+                                t.e_before = energy(row, &self.prev, (c.lo, c.hi), density);
+                                self.emitters[em].add_row(self.row - 1, &self.prev, density);
+                            }
+                            self.tracks.push(t);
+                            self.tracks.len() - 1
+                        }
+                    }
+                }
+            };
+            let t = &mut self.tracks[ti];
+            t.extend((c.lo, c.hi), (c.low_hz, c.high_hz));
+            let e = &mut self.emitters[t.emitter];
+            e.detected(centre, c.power, (c.low_hz, c.high_hz));
+            e.lo = e.lo.min(t.lo);
+            e.hi = e.hi.max(t.hi);
+        }
+    }
+
+    /// The emitter a new emission at `centre` belongs to, made if none is near; `None` once the
+    /// cap is reached.
+    fn emitter_for(&mut self, centre: f64, c: Cluster, rbw: f64, bins: usize) -> Option<usize> {
+        let width = c.high_hz - c.low_hz;
+        let near =
+            self.emitters.iter().enumerate().filter(|(_, e)| e.is_near(centre, width, rbw)).min_by(
+                |a, b| (a.1.centre() - centre).abs().total_cmp(&(b.1.centre() - centre).abs()),
+            );
+        if let Some((i, _)) = near {
+            return Some(i);
+        }
+        if self.emitters.len() >= self.settings.max_emitters {
+            self.emitters_dropped += 1;
+            return None;
+        }
+        self.emitters.push(EmitterAcc::new(bins, (c.lo, c.hi)));
+        Some(self.emitters.len() - 1)
+    }
+
+    fn close(&mut self, t: &Track, input_end: Option<u64>) {
+        let x = t.extent(t.first_row == 0, input_end);
+        self.emitters[t.emitter].detected_rows += t.detected as u64;
+        self.closed.push(Closed {
+            emitter: t.emitter,
+            start: x.start,
+            end: x.end,
+            low_hz: t.low_hz,
+            high_hz: t.high_hz,
+        });
+    }
+
+    /// Ends the census at sample `end` (one past the last sample of the input) and measures every
+    /// emitter. Emissions still open in the last row run to `end`.
+    pub fn finish(mut self, end: u64) -> Option<CensusResult> {
+        let last_row = self.row.checked_sub(1)?;
+        for t in std::mem::take(&mut self.tracks) {
+            let to_end = (t.last_row == last_row).then_some(end.max(self.last_span_end));
+            self.close(&t, to_end);
+        }
+        let mut layout = self.layout.take()?;
+        layout.duration_samples = end.max(self.last_span_end);
+        let window = self.window.take()?;
+        let home = self.merge_neighbours(layout.rbw_hz);
+        let closed = self.join_emissions(&home);
+        let mut ranked: Vec<(usize, EmitterFigures)> = self
+            .emitters
+            .iter()
+            .enumerate()
+            .filter(|&(i, e)| home[i] == i && e.detected_rows >= MIN_DETECTED_ROWS)
+            .filter_map(|(i, e)| e.figures(&layout, &window).map(|f| (i, f)))
+            .collect();
+        ranked.sort_by(|a, b| b.1.power_dbfs.total_cmp(&a.1.power_dbfs));
+        let mut index = vec![usize::MAX; self.emitters.len()];
+        for (k, (i, _)) in ranked.iter().enumerate() {
+            index[*i] = k;
+        }
+        let mut emitters: Vec<EmitterFigures> = ranked.into_iter().map(|(_, f)| f).collect();
+        name_emitters(&mut emitters);
+        let mut emissions: Vec<Emission> = closed
+            .iter()
+            .filter(|c| index[c.emitter] != usize::MAX)
+            .map(|c| Emission {
+                emitter: index[c.emitter],
+                sample_start: c.start,
+                sample_count: c.end - c.start,
+                low_hz: c.low_hz,
+                high_hz: c.high_hz,
+            })
+            .collect();
+        emissions.sort_by_key(|e| e.sample_start);
+        Some(CensusResult {
+            sample_rate_hz: layout.sample_rate_hz,
+            center_hz: layout.center_hz,
+            fft_size: layout.fft_size,
+            rbw_hz: layout.rbw_hz,
+            duration_s: layout.duration_samples as f64 / layout.sample_rate_hz,
+            noise_floor_dbfs_per_hz: db(self.floor_sum / self.row as f64),
+            emitters,
+            emissions,
+            emitters_dropped: self.emitters_dropped,
+        })
+    }
+}
+
+impl Census {
+    /// Folds emitters that ended up at one place into the one seen in most rows; returns, for
+    /// every emitter, the one it now lives in.
+    fn merge_neighbours(&mut self, rbw: f64) -> Vec<usize> {
+        let mut order: Vec<usize> = (0..self.emitters.len()).collect();
+        order.sort_by_key(|&i| std::cmp::Reverse(self.emitters[i].detected_rows));
+        let mut home: Vec<usize> = (0..self.emitters.len()).collect();
+        let mut kept: Vec<usize> = Vec::new();
+        for i in order {
+            let e = &self.emitters[i];
+            match kept
+                .iter()
+                .copied()
+                .find(|&k| self.emitters[k].is_near(e.centre(), e.width(), rbw))
+            {
+                Some(k) => {
+                    let e = self.emitters[i].clone();
+                    self.emitters[k].absorb(&e);
+                    home[i] = k;
+                }
+                None => kept.push(i),
+            }
+        }
+        home
+    }
+
+    /// The emissions with each moved to the emitter it now lives in, and those of one emitter
+    /// that overlap in time joined (a fragment and the emission it belonged to); the emitters'
+    /// counts, airtime and first/last are recounted from them.
+    fn join_emissions(&mut self, home: &[usize]) -> Vec<Closed> {
+        let mut closed = std::mem::take(&mut self.closed);
+        for c in &mut closed {
+            c.emitter = home[c.emitter];
+        }
+        closed.sort_by_key(|c| (c.emitter, c.start));
+        let mut joined: Vec<Closed> = Vec::with_capacity(closed.len());
+        for c in closed {
+            match joined.last_mut().filter(|l| l.emitter == c.emitter && c.start <= l.end) {
+                Some(l) => {
+                    l.end = l.end.max(c.end);
+                    l.low_hz = l.low_hz.min(c.low_hz);
+                    l.high_hz = l.high_hz.max(c.high_hz);
+                }
+                None => joined.push(c),
+            }
+        }
+        for e in &mut self.emitters {
+            (e.emissions, e.airtime, e.first, e.last) = (0, 0, u64::MAX, 0);
+        }
+        for c in &joined {
+            let e = &mut self.emitters[c.emitter];
+            e.emissions += 1;
+            e.airtime += c.end - c.start;
+            e.first = e.first.min(c.start);
+            e.last = e.last.max(c.end);
+        }
+        joined
+    }
+}
+
+/// Band energy of bins `lo..=hi` of `psd` less the noise in them, FS².
+fn energy(row: &Spectrum, psd: &[f64], (lo, hi): (usize, usize), density: f64) -> f64 {
+    let sum: f64 = psd[lo..=hi].iter().sum();
+    (sum - density * (hi + 1 - lo) as f64) * row.bin_hz()
+}
+
+/// Names from frequency: `f` and the centre in kHz to 0.1 kHz (`f433137.5`), with `-2`, `-3`…
+/// where two would read the same.
+fn name_emitters(emitters: &mut [EmitterFigures]) {
+    let mut used: Vec<String> = Vec::with_capacity(emitters.len());
+    for e in emitters.iter_mut() {
+        let base = format!("f{:.1}", e.center_hz / 1e3);
+        let mut name = base.clone();
+        let mut k = 2;
+        while used.contains(&name) {
+            name = format!("{base}-{k}");
+            k += 1;
+        }
+        used.push(name.clone());
+        e.name = name;
+    }
+}

@@ -1,0 +1,231 @@
+//! The census as a pipeline consumer, and its three forms of output: a table, one JSON object,
+//! and a channel plan in the TOML format `log --plan` reads.
+
+use crate::dsp::Spectrum;
+use crate::measure::census::{Census, CensusResult, EmitterFigures};
+use crate::pipeline::{Consumer, Flow, GapCause, RunEnd, RunInfo};
+use serde_json::json;
+use std::fmt::Write as _;
+use std::io;
+
+/// Feeds every complete row to the census and measures it when the run ends.
+pub struct CensusConsumer {
+    census: Option<Census>,
+    result: Option<CensusResult>,
+}
+
+impl CensusConsumer {
+    pub fn new(census: Census) -> CensusConsumer {
+        CensusConsumer { census: Some(census), result: None }
+    }
+
+    /// The census, once the run has finished (`None` if no complete row was seen).
+    pub fn result(&self) -> Option<&CensusResult> {
+        self.result.as_ref()
+    }
+}
+
+impl Consumer for CensusConsumer {
+    fn row(&mut self, row: &Spectrum) -> io::Result<Flow> {
+        if let Some(c) = self.census.as_mut() {
+            c.push(row);
+        }
+        Ok(Flow::Continue)
+    }
+
+    fn gap(&mut self, _from: u64, _to: u64, _cause: GapCause, _run: &RunInfo) -> io::Result<()> {
+        if let Some(c) = self.census.as_mut() {
+            c.gap();
+        }
+        Ok(())
+    }
+
+    fn finish(&mut self, end: &RunEnd, _run: &RunInfo) -> io::Result<()> {
+        if let Some(c) = self.census.take() {
+            self.result = c.finish(end.end_sample);
+        }
+        Ok(())
+    }
+}
+
+/// Rounds to `digits` decimals, for output that reads like the measurement's precision.
+fn round(x: f64, digits: i32) -> f64 {
+    let k = 10f64.powi(digits);
+    (x * k).round() / k
+}
+
+/// The census as exactly one JSON object (strongest emitter first).
+pub fn to_json(r: &CensusResult) -> String {
+    let emitters: Vec<_> = r
+        .emitters
+        .iter()
+        .map(|e| {
+            json!({
+                "name": e.name,
+                "center_hz": round(e.center_hz, 1),
+                "obw_hz": round(e.obw_hz, 1),
+                "first_s": round(e.first_s, 4),
+                "last_s": round(e.last_s, 4),
+                "emissions": e.emissions,
+                "airtime_pct": round(e.airtime_pct, 2),
+                "peak_dbfs": round(e.peak_dbfs, 2),
+                "power_dbfs": round(e.power_dbfs, 2),
+            })
+        })
+        .collect();
+    json!({
+        "sample_rate_hz": r.sample_rate_hz,
+        "center_hz": r.center_hz,
+        "fft_size": r.fft_size,
+        "rbw_hz": round(r.rbw_hz, 3),
+        "duration_s": round(r.duration_s, 4),
+        "noise_floor_dbfs_per_hz": round(r.noise_floor_dbfs_per_hz, 2),
+        "emitters": emitters,
+    })
+    .to_string()
+}
+
+/// The census as a table, strongest first, units in the header.
+pub fn to_table(r: &CensusResult, label: &str) -> String {
+    let mut s = String::new();
+    let _ = writeln!(
+        s,
+        "census of {label}: {:.3} s, {} S/s around {} Hz, FFT {}, RBW {:.1} Hz, noise {:.1} dBFS/Hz",
+        r.duration_s,
+        crate::units::format_num(r.sample_rate_hz),
+        crate::units::format_num(r.center_hz),
+        r.fft_size,
+        r.rbw_hz,
+        r.noise_floor_dbfs_per_hz
+    );
+    if r.emitters.is_empty() {
+        s.push_str("no emitters found\n");
+        return s;
+    }
+    let _ = writeln!(
+        s,
+        "{:<14} {:>15} {:>10} {:>9} {:>9} {:>9} {:>9} {:>10} {:>10}",
+        "name",
+        "centre (MHz)",
+        "OBW (kHz)",
+        "first (s)",
+        "last (s)",
+        "emissions",
+        "airtime %",
+        "peak dBFS",
+        "power dBFS"
+    );
+    for e in &r.emitters {
+        let _ = writeln!(
+            s,
+            "{:<14} {:>15.6} {:>10.3} {:>9.3} {:>9.3} {:>9} {:>9.2} {:>10.2} {:>10.2}",
+            e.name,
+            e.center_hz / 1e6,
+            e.obw_hz / 1e3,
+            e.first_s,
+            e.last_s,
+            e.emissions,
+            e.airtime_pct,
+            e.peak_dbfs,
+            e.power_dbfs
+        );
+    }
+    if r.emitters_dropped > 0 {
+        let _ = writeln!(
+            s,
+            "({} further emissions found no room: too many emitters)",
+            r.emitters_dropped
+        );
+    }
+    s
+}
+
+/// Steps of the channel raster within one decade: 1-2-5 and the land-mobile 6.25/12.5/25 kHz
+/// spacings (common practice), so a 7.7 kHz FM voice emitter gets 10 kHz and a 24.8 kHz link 25.
+const RASTER: [f64; 6] = [1.0, 1.25, 2.0, 2.5, 5.0, 6.25];
+
+/// The smallest raster step (…, 1 kHz, 1.25 kHz, 2 kHz, 2.5 kHz, 5 kHz, 6.25 kHz, 10 kHz, …)
+/// at or above `hz`, at least 100 Hz.
+pub fn raster_up(hz: f64) -> f64 {
+    let mut decade = 100.0;
+    loop {
+        for k in RASTER {
+            if decade * k >= hz {
+                return decade * k;
+            }
+        }
+        decade *= 10.0;
+    }
+}
+
+/// The largest raster step below `hz` (`None` below 100 Hz).
+fn raster_down(hz: f64) -> Option<f64> {
+    let (mut best, mut w) = (None, 100.0);
+    while w < hz {
+        best = Some(w);
+        w = raster_up(w * 1.000_001);
+    }
+    best
+}
+
+/// Channel widths for a plan: each emitter's OBW rounded up to the raster ([`RASTER`]). Where
+/// that would overlap a neighbour, the distance between the two centres is shared in proportion
+/// to their OBWs and the width is the largest raster step inside its share (or the share itself
+/// when no step fits), so the plan's channels never overlap and `log --plan` takes it.
+pub fn plan_widths(emitters: &[EmitterFigures]) -> Vec<f64> {
+    let obw = |i: usize| emitters[i].obw_hz.max(1.0);
+    (0..emitters.len())
+        .map(|i| {
+            let limit = (0..emitters.len())
+                .filter(|&j| j != i)
+                .map(|j| {
+                    let d = (emitters[j].center_hz - emitters[i].center_hz).abs();
+                    2.0 * d * obw(i) / (obw(i) + obw(j))
+                })
+                .fold(f64::INFINITY, f64::min);
+            let want = raster_up(obw(i));
+            if want <= limit {
+                want
+            } else {
+                raster_down(limit).filter(|&w| w >= obw(i)).unwrap_or(limit)
+            }
+        })
+        .collect()
+}
+
+/// A channel plan (the TOML `log --plan` reads): one channel per emitter, named after it.
+pub fn to_plan(r: &CensusResult, source: &str) -> String {
+    let mut s = format!(
+        "# Channel plan from `bandwarden census` of {source}: one channel per emitter found,\n\
+         # centred on its occupied band, its 99 % OBW rounded up to the channel raster.\n"
+    );
+    for (e, w) in r.emitters.iter().zip(plan_widths(&r.emitters)) {
+        let _ = write!(
+            s,
+            "\n[[channel]]\nname = \"{}\"   # {:.2} dBFS on the air, {:.1} % of the time\ncenter = \"{}\"\nwidth = \"{}\"\n",
+            e.name,
+            e.power_dbfs,
+            e.airtime_pct,
+            crate::units::format_num(e.center_hz.round()),
+            crate::units::format_num(w)
+        );
+    }
+    s
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn widths_round_up_to_one_two_five() {
+        assert_eq!(raster_up(7683.0), 10_000.0);
+        assert_eq!(raster_up(911.0), 1000.0);
+        assert_eq!(raster_up(1000.0), 1000.0);
+        assert_eq!(raster_up(24_831.0), 25_000.0);
+        assert_eq!(raster_up(3047.0), 5000.0);
+        assert_eq!(raster_up(11_000.0), 12_500.0);
+        assert_eq!(raster_down(5000.0), Some(2500.0));
+        assert_eq!(raster_down(50.0), None);
+    }
+}
