@@ -163,12 +163,13 @@ impl Collected {
                 format_num((e.overlap * 100.0).round()),
             ),
             format!(
-                "each spectrum averages {frames} FFT frame{} ({}); {} spectra in all, {} per stored row, averaged in power into pixel rows · levels: largest bin per pixel column · {time}",
+                "each spectrum averages {frames} FFT frame{} ({}); {} spectra in all, {} per stored row, averaged in power into pixel rows",
                 if frames == 1 { "" } else { "s" },
                 format_duration(row_s),
                 self.held.input_rows,
                 stored,
             ),
+            format!("levels: largest bin per pixel column · {time}"),
         ]
     }
 }

@@ -330,6 +330,7 @@ impl App {
             Intent::ToggleChannels => self.toggle_channels(),
             Intent::ToggleAlarm => self.toggle_alarm(),
             Intent::WriteEvidence => self.evidence_key(),
+            Intent::WritePicture => self.picture_key(),
             Intent::MarkerLeft(n) => self.step_marker(-(n as i64)),
             Intent::MarkerRight(n) => self.step_marker(n as i64),
             Intent::MarkerToStrongest => self.marker_to_strongest(),

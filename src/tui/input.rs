@@ -51,6 +51,8 @@ pub enum Intent {
     ToggleAlarm,
     /// Write the traces and the table to files.
     WriteEvidence,
+    /// Write a waterfall picture (PNG) of the history.
+    WritePicture,
     /// Marker to the screen cell clicked (column, row).
     PointAt(u16, u16),
     /// Reference marker to the screen cell clicked.
@@ -127,9 +129,13 @@ pub const HELP: &[HelpRow] = &[
         bindings: &[(C('r'), I::SortNext), (C('t'), I::ToggleChannels)],
     },
     HelpRow {
-        keys: "A  e",
-        what: "alarm on the marker's channel / off; e: write evidence",
-        bindings: &[(C('A'), I::ToggleAlarm), (C('e'), I::WriteEvidence)],
+        keys: "A  e  g",
+        what: "alarm on marker's channel; e: evidence; g: picture",
+        bindings: &[
+            (C('A'), I::ToggleAlarm),
+            (C('e'), I::WriteEvidence),
+            (C('g'), I::WritePicture),
+        ],
     },
     HelpRow {
         keys: "m  M",
@@ -292,6 +298,7 @@ mod tests {
             I::ToggleChannels,
             I::ToggleAlarm,
             I::WriteEvidence,
+            I::WritePicture,
         ];
         for i in &all {
             match i {
@@ -300,7 +307,7 @@ mod tests {
                 I::MarkerToStrongest | I::MarkerToNext | I::SetRefMarker | I::ClearRefMarker => {}
                 I::MarkerToPrev | I::TimeBack(_) | I::TimeForward(_) | I::TimeLive => {}
                 I::ToggleUtc | I::SortNext | I::ToggleChannels | I::ToggleAlarm => {}
-                I::WriteEvidence => {}
+                I::WriteEvidence | I::WritePicture => {}
                 I::ZoomIn | I::ZoomOut | I::PanLeft | I::PanRight | I::FullSpan => {}
                 I::CentreOnMarker | I::FftLarger | I::FftSmaller | I::WindowNext => {}
                 I::WindowPrev | I::RefUp | I::RefDown | I::RangeWider | I::RangeNarrower => {}

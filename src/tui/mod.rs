@@ -19,6 +19,7 @@ pub mod input;
 pub mod layout;
 pub mod navigate;
 pub mod painter;
+pub mod picture;
 pub mod state;
 pub mod term;
 pub mod timeline;
