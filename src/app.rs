@@ -50,7 +50,10 @@ pub fn exit_code(args: impl IntoIterator<Item = OsString>) -> u8 {
             if is_broken_pipe(&err) {
                 return 0;
             }
-            eprintln!("bandwarden: {}", sanitize_message(&format!("{err:#}")));
+            crate::messages::line_to_stderr(&format!(
+                "bandwarden: {}",
+                sanitize_message(&format!("{err:#}"))
+            ));
             1
         }
     }

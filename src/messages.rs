@@ -40,7 +40,14 @@ pub fn stdout_closed() -> bool {
 
 /// Prints a non-fatal note for the user on stderr, with the program's prefix.
 pub fn note(text: &str) {
-    eprintln!("bandwarden: {}", sanitize_message(text));
+    line_to_stderr(&format!("bandwarden: {}", sanitize_message(text)));
+}
+
+/// Writes one line to stderr and ignores failure: a stderr closed under us (`2>&1 | head`) must
+/// not turn a note into a panic that skips flushing the log, and there is nowhere else to say it.
+pub fn line_to_stderr(line: &str) {
+    use std::io::Write;
+    let _ = writeln!(std::io::stderr().lock(), "{line}");
 }
 
 /// Removes control characters (including ESC) from text that came from a file, so metadata

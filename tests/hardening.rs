@@ -266,3 +266,37 @@ fn samples_that_are_not_numbers_keep_their_place_in_time() {
     assert_eq!(last["t_start_s"], 2.0);
     assert!(stderr(&o).contains("NaN or infinity"), "{}", stderr(&o));
 }
+
+#[test]
+fn a_closed_standard_error_loses_no_record_and_is_no_panic() {
+    // `2>&1 | head -1` closes stderr under a running log: its notes can no longer be shown, but
+    // the log must still be written whole and the exit status must say the run succeeded (a
+    // panic while printing a note would exit 101 and skip the log's last records).
+    let dir = env!("CARGO_MANIFEST_DIR");
+    let out = tmp("closed-stderr.jsonl");
+    let _ = std::fs::remove_file(&out);
+    let mut child = bin()
+        .args([
+            "log",
+            &format!("{dir}/recordings/wrenhollow-demo.sigmf-meta"),
+            "--plan",
+            &format!("{dir}/recordings/wrenhollow-plan.toml"),
+            "-o",
+            out.to_str().unwrap(),
+        ])
+        .stdout(Stdio::null())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    drop(child.stderr.take());
+    let status = child.wait().unwrap();
+    assert_eq!(status.code(), Some(0));
+    let text = std::fs::read_to_string(&out).unwrap();
+    let last = text.lines().last().unwrap_or_default();
+    assert!(last.contains("\"kind\":\"stop\"") && last.contains("end_of_input"), "{last}");
+    // The same for an error: exit 1, not a panic's 101.
+    let mut child =
+        bin().args(["measure", "/nonexistent.cf32"]).stderr(Stdio::piped()).spawn().unwrap();
+    drop(child.stderr.take());
+    assert_eq!(child.wait().unwrap().code(), Some(1));
+}

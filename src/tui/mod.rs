@@ -89,7 +89,7 @@ pub fn run(
     let process_start = *crate::messages::STARTED.get_or_init(|| started);
     // The terminal is restored now: leave one line on stderr saying what was seen and lost, so
     // that a session (or a script) can tell whether the monitor kept up.
-    eprintln!(
+    crate::messages::line_to_stderr(&format!(
         "bandwarden: watched {:.1} s: {} samples read, {} dropped, {} waterfall rows skipped; \
          first frame {} ms after start",
         started.elapsed().as_secs_f64(),
@@ -99,7 +99,7 @@ pub fn run(
         first_frame.map_or("never drawn".to_string(), |t: Instant| {
             format!("{}", t.duration_since(process_start).as_millis())
         })
-    );
+    ));
     result
 }
 
