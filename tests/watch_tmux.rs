@@ -201,8 +201,13 @@ fn run_at(cols: u16, rows: u16, end: End) {
             assert!(Command::new("kill").args(["-TERM", &pid]).status().unwrap().success());
         }
     }
-    // The echo's output, not the command line that contains it.
-    let status_line = |s: &str| s.lines().find(|l| l.starts_with("BW-DONE-")).map(str::to_owned);
+    // The echo's output, not the command line that contains it (which may wrap so that
+    // `BW-DONE-$?` starts a line): the status is a number.
+    let status_line = |s: &str| {
+        s.lines()
+            .find(|l| l.strip_prefix("BW-DONE-").is_some_and(|n| n.trim().parse::<i32>().is_ok()))
+            .map(str::to_owned)
+    };
     let back = tmux.wait_for("the shell after quitting", Duration::from_secs(20), |s| {
         status_line(s).is_some()
     });
