@@ -320,3 +320,110 @@ fn captures_hold_the_emission() {
         assert!((l + 30.0).abs() < 0.1, "{tone}");
     }
 }
+
+/// `census` writes the same SigMF as `log`, without a plan: a generated carrier keyed twice
+/// (−30 dBFS, 20 kHz above 100 MHz, on 0.5–1.0 s and 2.0–2.5 s) and a steady one (−45 dBFS,
+/// 40 kHz below) in −40 dBFS noise over 200 kHz (the truth is the generator's). The annotations
+/// validate, are labelled with the emitters the census names, and sit where the generator keyed;
+/// each capture of the keyed carrier holds it at its level and frequency as the reference
+/// implementation reads the samples; `--record` of standard input holds every sample.
+#[test]
+fn census_annotates_and_captures_what_it_finds() {
+    let dir = tmp("census");
+    let fs = 200e3;
+    let keyed = |i: u64| {
+        let t = i as f64 / fs;
+        (0.5..1.0).contains(&t) || (2.0..2.5).contains(&t)
+    };
+    let steady = |_: u64| true;
+    let carriers = [
+        bandwarden::testkit::Keyed { offset_hz: 20e3, level_dbfs: -30.0, on: &keyed },
+        bandwarden::testkit::Keyed { offset_hz: -40e3, level_dbfs: -45.0, on: &steady },
+    ];
+    let x = bandwarden::testkit::keyed_band(3 * fs as usize, fs, 1e-4, &carriers, 7);
+    let raw = dir.join("two.cf32");
+    let bytes: Vec<u8> =
+        x.iter().flat_map(|s| [s.re.to_le_bytes(), s.im.to_le_bytes()]).flatten().collect();
+    std::fs::write(&raw, bytes).unwrap();
+    let (found, caps, rec) =
+        (dir.join("found.sigmf-meta"), dir.join("caps"), dir.join("rec.sigmf-meta"));
+    let o = run(
+        &[
+            "census",
+            "-",
+            "--format",
+            "cf32_le",
+            "--rate",
+            "200k",
+            "--center",
+            "100M",
+            "--record",
+            rec.to_str().unwrap(),
+            "--annotate",
+            found.to_str().unwrap(),
+            "--capture",
+            caps.to_str().unwrap(),
+            "--pre",
+            "0.2",
+            "--post",
+            "0.1",
+            "--capture-max-seconds",
+            "2",
+            "--json",
+        ],
+        Some(&raw),
+    );
+    let census: Value = serde_json::from_slice(&o.stdout).unwrap();
+    let emitters = census["emitters"].as_array().unwrap();
+    let burst = emitters
+        .iter()
+        .find(|e| (e["center_hz"].as_f64().unwrap() - 100.02e6).abs() < 500.0)
+        .unwrap_or_else(|| panic!("the keyed carrier is missing: {census}"));
+    let name = burst["name"].as_str().unwrap();
+
+    // The recording of standard input holds every sample (the reference reads them).
+    let read = validate(&[&rec, &found]);
+    assert_eq!(read[0]["samples"], 3 * fs as u64);
+    assert_eq!(read[1]["global"]["core:dataset"], "rec.sigmf-data");
+    let anns = read[1]["annotations"].as_array().unwrap();
+    let mine: Vec<&Value> = anns.iter().filter(|a| a["core:label"] == name).collect();
+    assert_eq!(mine.len(), 2, "{anns:?}");
+    for (a, (t0, t1)) in mine.iter().zip([(0.5, 1.0), (2.0, 2.5)]) {
+        let start = a["core:sample_start"].as_f64().unwrap() / fs;
+        let end = start + a["core:sample_count"].as_f64().unwrap() / fs;
+        // Timing to a few FFT hops (the census places edges inside rows, see its docs).
+        assert!((start - t0).abs() < 0.005 && (end - t1).abs() < 0.005, "{a}");
+        let (lo, hi) = (
+            a["core:freq_lower_edge"].as_f64().unwrap(),
+            a["core:freq_upper_edge"].as_f64().unwrap(),
+        );
+        assert!(lo < 100.02e6 && hi > 100.02e6 && hi - lo < 2e3, "{a}");
+        // Mean power with the noise taken off: the carrier's level, to 0.2 dB.
+        assert!((a["bandwarden:mean_dbfs"].as_f64().unwrap() + 30.0).abs() < 0.2, "{a}");
+        assert!(a["bandwarden:snr_db"].as_f64().unwrap() > 20.0, "{a}");
+    }
+
+    // One capture per burst, from --pre before it; each holds the carrier.
+    let list = census["captures"].as_array().unwrap();
+    let bursts: Vec<&Value> = list
+        .iter()
+        .filter(|c| c["t_start_s"].as_f64().unwrap() > 0.1 && c["status"] == "saved")
+        .collect();
+    assert_eq!(bursts.len(), 2, "{list:?}");
+    for (c, t0) in bursts.iter().zip([0.5, 2.0]) {
+        // At least --pre before the start; the census announces an emission as early as it can
+        // lie (a row before the row that found it), so up to two rows (of 10 ms) more.
+        let pre = t0 - c["t_start_s"].as_f64().unwrap();
+        assert!((0.2..0.2 + 0.021).contains(&pre), "{c}");
+        let meta = PathBuf::from(c["file"].as_str().unwrap());
+        validate(&[&meta]);
+        let o = python(&["tone", meta.to_str().unwrap()]);
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+        let tone: Value = serde_json::from_slice(&o.stdout).unwrap();
+        let (f, l) = (tone["freq_hz"].as_f64().unwrap(), tone["level_dbfs"].as_f64().unwrap());
+        // Frequency to a fraction of a bin, level to 0.1 dB, as for `log` above (the steady
+        // carrier at −45 dBFS lies 60 kHz away, far outside the fit's bin).
+        assert!((f - 100.02e6).abs() < 1.0, "{tone}");
+        assert!((l + 30.0).abs() < 0.1, "{tone}");
+    }
+}

@@ -1,6 +1,7 @@
 //! `census` flags and their validation.
 
 use super::common::{parse_seconds, DetectArgs, DspArgs, InputArgs};
+use super::sigmf_out::{CaptureConfig, EmissionOutArgs, RecordArgs};
 use crate::dsp::DspConfig;
 use crate::measure::occupancy::timing::OBW_PERCENT;
 use crate::measure::Detection;
@@ -38,6 +39,10 @@ pub struct CensusArgs {
     /// Stop after this many seconds of input.
     #[arg(long, value_name = "SECONDS", value_parser = parse_seconds)]
     pub seconds: Option<f64>,
+    #[command(flatten)]
+    pub record: RecordArgs,
+    #[command(flatten)]
+    pub emissions: EmissionOutArgs,
 }
 
 /// A validated `census`.
@@ -51,12 +56,22 @@ pub struct CensusConfig {
     pub json: bool,
     pub plan_out: Option<String>,
     pub seconds: Option<f64>,
+    /// `--record`: the input teed to this SigMF recording.
+    pub record: Option<String>,
+    /// `--annotate`: every emission as an annotation in this SigMF metadata file.
+    pub annotate: Option<String>,
+    pub capture: Option<CaptureConfig>,
 }
 
 impl CensusArgs {
     pub fn validate(self) -> Result<CensusConfig> {
         if self.plan_out.as_deref() == Some("-") {
             bail!("--plan-out writes a file: give a path (e.g. --plan-out site-plan.toml)");
+        }
+        let record = self.record.validate()?;
+        let (annotate, capture) = self.emissions.validate()?;
+        if annotate.is_some() && record.is_none() && self.input == "-" {
+            bail!("--annotate needs a dataset to point at, and standard input leaves none: add --record FILE.sigmf-meta (the annotations then point at the recording)");
         }
         Ok(CensusConfig {
             dsp: self.dsp.validate()?,
@@ -67,6 +82,9 @@ impl CensusArgs {
             json: self.json,
             plan_out: self.plan_out,
             seconds: self.seconds,
+            record,
+            annotate,
+            capture,
         })
     }
 }

@@ -1,4 +1,5 @@
-//! Flags that write SigMF: `--record` (log, watch), `--annotate` and `--capture` (log).
+//! Flags that write SigMF: `--record` (log, census, watch), `--annotate` and `--capture` (log,
+//! census).
 
 use super::common::parse_seconds;
 pub use crate::output::capture::CaptureSettings as CaptureConfig;

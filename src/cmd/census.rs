@@ -4,18 +4,28 @@
 //! ([`crate::measure::census`]) detects, tracks and groups emissions row by row. When the input
 //! ends, or on SIGINT/SIGTERM for live input, the inventory is printed (table or JSON) and, with
 //! `--plan-out`, written as a channel plan. A second signal during the wind-down exits at once.
+//!
+//! The SigMF outputs are those of `log`: `--record` tees the input, `--annotate` writes every
+//! emission (labelled with its emitter's name) when the census ends, `--capture` saves each
+//! emission's IQ as it happens (named from its detected centre, as emitters are named; the JSON
+//! output lists the capture records).
 
+use super::sigmf_out::{annotated_note, SigmfOutputs, SigmfRequest};
 use crate::cli::CensusConfig;
 use crate::measure::census::{Census, CensusSettings};
 use crate::measure::occupancy::DEFAULT_INTERVAL_S;
 use crate::messages::{note, notes};
-use crate::output::census::{to_json, to_plan, to_table, CensusConsumer};
+use crate::output::capture::Triggers;
+use crate::output::census::{to_json_value, to_plan, to_table, CensusConsumer};
+use crate::output::log::Record;
+use crate::output::occupancy_log::SideRecords;
 use crate::output::progress::Progress;
+use crate::output::sigmf_write;
 use crate::output::sink;
 use crate::pipeline::input::unattended_options;
 use crate::pipeline::occupancy::{OccupancyRequest, OccupancySetup};
 use crate::pipeline::stop::Escalation;
-use crate::pipeline::{run_input, Input, Run, RunSpec, StopSignals};
+use crate::pipeline::{run_input, Consumer, Input, Run, RunSpec, StopSignals};
 use crate::plan::{Plan, DEFAULT_THRESHOLD_DB};
 use crate::source::{self, sanitize};
 use anyhow::{bail, Result};
@@ -39,12 +49,12 @@ pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
         hang_s: cfg.hang_s,
     };
     let setup = OccupancySetup::new(&info, &cfg.dsp, &Plan::default(), &request)?;
+    let mut inputs = Vec::new();
+    if let Some(path) = cfg.input.path.as_deref().filter(|p| *p != "-") {
+        let (meta, data) = source::sigmf::paths(path);
+        inputs.extend([PathBuf::from(path), meta.into(), data.into()]);
+    }
     if let Some(out) = &cfg.plan_out {
-        let mut inputs = Vec::new();
-        if let Some(path) = cfg.input.path.as_deref().filter(|p| *p != "-") {
-            let (meta, data) = source::sigmf::paths(path);
-            inputs.extend([PathBuf::from(path), meta.into(), data.into()]);
-        }
         sink::refuse_overwrite(out, &inputs.iter().map(PathBuf::as_path).collect::<Vec<_>>())?;
     }
     let settings = CensusSettings {
@@ -54,16 +64,50 @@ pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
         max_signals: MAX_SIGNALS,
         max_emitters: MAX_EMITTERS,
     };
-    let mut census = CensusConsumer::new(Census::new(settings));
     let spec = RunSpec::new(info.clone(), setup.engine.clone(), cfg.dsp.threads);
     spec.check_work()?;
 
     let signals = StopSignals::install(false, Escalation::SecondSignalExits)?;
     let (opts, total) = unattended_options(&info, cfg.seconds, false);
+    let side = SideRecords::default();
+    let sigmf_request = SigmfRequest {
+        wait: false,
+        record: cfg.record.as_deref(),
+        annotate: None,
+        capture: cfg.capture.as_ref(),
+    };
+    let mut sigmf_out = SigmfOutputs::new(
+        sigmf_request,
+        &cfg.input,
+        &info,
+        &Plan::default(),
+        &inputs,
+        opts.block_len,
+        side.clone(),
+    )?;
+    let mut census = CensusConsumer::new(Census::new(settings));
+    if let Some(path) = &cfg.annotate {
+        census =
+            census.with_annotations(sigmf_out.annotation_writer(path, &cfg.input, &info, &inputs)?);
+    }
+    if let Some(captures) = sigmf_out.captures.take() {
+        let triggers = Triggers::default();
+        census = census.with_triggers(triggers.clone());
+        sigmf_out.captures = Some(captures.with_triggers(triggers));
+    }
     let mut progress = Progress::for_file(total, info.sample_rate_hz);
     let input = Input::start(src, opts);
-    let run = Run::new(spec, vec![&mut progress, &mut census]);
-    let outcome = run_input(input, run, Some(&signals))?;
+    // The recording first (annotations of a recording read its finished metadata); the
+    // captures after the census that triggers them.
+    let mut consumers: Vec<&mut dyn Consumer> = vec![&mut progress];
+    if let Some(r) = sigmf_out.recorder.as_mut() {
+        consumers.push(r);
+    }
+    consumers.push(&mut census);
+    if let Some(c) = sigmf_out.captures.as_mut() {
+        consumers.push(c);
+    }
+    let outcome = run_input(input, Run::new(spec, consumers), Some(&signals))?;
     if outcome.end.reason.is_signal() {
         note(&format!(
             "stopped by {}; the census covers the input read so far",
@@ -80,6 +124,10 @@ pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
             outcome.end.dropped_samples
         ));
     }
+    sigmf_out.report()?;
+    if let (Some(s), Some(path)) = (&census.annotated, &cfg.annotate) {
+        annotated_note(s, &sigmf_write::pair(path).map_err(anyhow::Error::msg)?.0);
+    }
     let Some(result) = census.result() else {
         bail!(
             "the input '{}' is shorter than one measurement sample ({:.1} ms); nothing to count",
@@ -88,7 +136,11 @@ pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
         );
     };
     let text = if cfg.json {
-        format!("{}\n", to_json(result))
+        let mut v = to_json_value(result);
+        if cfg.capture.is_some() {
+            v["captures"] = capture_records(&side);
+        }
+        format!("{v}\n")
     } else {
         to_table(result, &sanitize(&info.label))
     };
@@ -101,4 +153,18 @@ pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
         file.flush()?;
     }
     Ok(ExitCode::SUCCESS)
+}
+
+/// The capture records of the run (one per emission captured or skipped), as the log writes
+/// them.
+fn capture_records(side: &SideRecords) -> serde_json::Value {
+    let list: Vec<serde_json::Value> = side
+        .borrow()
+        .iter()
+        .filter_map(|r| match r {
+            Record::Capture(c) => serde_json::to_value(c).ok(),
+            _ => None,
+        })
+        .collect();
+    serde_json::Value::Array(list)
 }

@@ -4,7 +4,7 @@
 
 use crate::cli::CaptureConfig;
 use crate::messages::{note, sanitize};
-use crate::output::annotate::{AnnotationWriter, Dataset, LogAnnotations};
+use crate::output::annotate::{AnnotateSummary, AnnotationWriter, Dataset, LogAnnotations};
 use crate::output::capture::Captures;
 use crate::output::occupancy_log::SideRecords;
 use crate::output::record::{RecordStatus, Recorder};
@@ -44,25 +44,12 @@ impl SigmfOutputs {
         block_len: usize,
         side: SideRecords,
     ) -> Result<SigmfOutputs> {
-        let refs: Vec<&Path> = inputs.iter().map(PathBuf::as_path).collect();
         let mut out = SigmfOutputs::default();
         if let Some(r) = req.record {
             out.recorder = Some(recorder(r, input, info, block_len)?.waiting(req.wait));
         }
         if let Some(a) = req.annotate {
-            let dataset = match out.recorder.as_ref() {
-                Some(rec) => {
-                    let meta = rec.meta_path().to_path_buf();
-                    Dataset::Recording { data: meta.with_extension("sigmf-data"), meta }
-                }
-                None => input_dataset(input, info)?,
-            };
-            let (meta, _) = sigmf_write::pair(a).map_err(anyhow::Error::msg)?;
-            let is_own_meta = matches!(&dataset, Dataset::Sigmf { meta: m, .. } | Dataset::Recording { meta: m, .. } if same(m, &meta));
-            if !is_own_meta {
-                sink::refuse_overwrite(&meta.to_string_lossy(), &refs)?;
-            }
-            let writer = AnnotationWriter::new(a, dataset)?;
+            let writer = out.annotation_writer(a, input, info, inputs)?;
             out.annotations = Some(LogAnnotations::new(writer, plan));
         }
         if let Some(c) = req.capture {
@@ -70,6 +57,32 @@ impl SigmfOutputs {
             out.captures = Some(captures.waiting(req.wait));
         }
         Ok(out)
+    }
+
+    /// The writer for `--annotate path`: its annotations point at the recording when there is
+    /// one, else at the input's dataset; it never writes over an input other than the metadata
+    /// of the dataset it annotates (which the user named).
+    pub fn annotation_writer(
+        &self,
+        path: &str,
+        input: &InputRequest,
+        info: &SourceInfo,
+        inputs: &[PathBuf],
+    ) -> Result<AnnotationWriter> {
+        let refs: Vec<&Path> = inputs.iter().map(PathBuf::as_path).collect();
+        let dataset = match self.recorder.as_ref() {
+            Some(rec) => {
+                let meta = rec.meta_path().to_path_buf();
+                Dataset::Recording { data: meta.with_extension("sigmf-data"), meta }
+            }
+            None => input_dataset(input, info)?,
+        };
+        let (meta, _) = sigmf_write::pair(path).map_err(anyhow::Error::msg)?;
+        let is_own_meta = matches!(&dataset, Dataset::Sigmf { meta: m, .. } | Dataset::Recording { meta: m, .. } if same(m, &meta));
+        if !is_own_meta {
+            sink::refuse_overwrite(&meta.to_string_lossy(), &refs)?;
+        }
+        AnnotationWriter::new(path, dataset)
     }
 
     /// The consumers, in the order they must run: the recording first (the annotations of a
@@ -97,25 +110,7 @@ impl SigmfOutputs {
         }
         if let Some(a) = &self.annotations {
             if let Some(s) = &a.summary {
-                let mut text = format!(
-                    "wrote {} annotations to '{}'",
-                    s.written,
-                    sanitize(&a.path().to_string_lossy())
-                );
-                if s.left_out > 0 {
-                    text.push_str(&format!(
-                        "; {} more emissions were left out (at most {} a file)",
-                        s.left_out,
-                        crate::output::annotate::MAX_ANNOTATIONS
-                    ));
-                }
-                if s.not_in_dataset > 0 {
-                    text.push_str(&format!(
-                        "; {} emissions lie where the recording lost its samples",
-                        s.not_in_dataset
-                    ));
-                }
-                note(&text);
+                annotated_note(s, a.path());
             }
         }
         if let Some(c) = &self.captures {
@@ -127,6 +122,21 @@ impl SigmfOutputs {
         }
         Ok(())
     }
+}
+
+/// What an annotation file came to.
+pub fn annotated_note(s: &AnnotateSummary, path: &Path) {
+    let mut text =
+        format!("wrote {} annotations to '{}'", s.written, sanitize(&path.to_string_lossy()));
+    if s.left_out > 0 {
+        text.push_str(&format!(
+            "; {} more emissions were left out (at most {} a file)",
+            s.left_out,
+            crate::output::annotate::MAX_ANNOTATIONS
+        ));
+    }
+    clause(&mut text, s.not_in_dataset, "emissions lie where the recording lost its samples");
+    note(&text);
 }
 
 /// The recorder for `--record path`, which must not write over the input.

@@ -23,20 +23,22 @@
 //! never dropped anywhere in bandwarden, so there the DSP waits for the disk instead; so it does
 //! under `--no-drop`.
 
-use super::annotate::{annotation, note_of};
+use super::annotate::{annotation, note_of, EmissionNote};
 use super::capture_writer::{self, Job, Ring, WriterError};
 use super::log::{CaptureRecord, Record};
 use super::occupancy_log::SideRecords;
 use super::sigmf_write::{self, NAMESPACE};
-use crate::measure::occupancy::{EmissionSummary, Event};
+use crate::measure::occupancy::Event;
 use crate::pipeline::{Clock, Consumer, GapCause, RunEnd, RunInfo};
 use crate::plan::Plan;
 use crate::source::reader::Block;
 use crate::source::SampleFormat;
 use crossbeam_channel::{bounded, Receiver, Sender, TrySendError};
 use num_complex::Complex32;
+use std::cell::RefCell;
 use std::io;
 use std::path::PathBuf;
+use std::rc::Rc;
 use std::thread::JoinHandle;
 
 /// Most bytes of samples queued for the capture writer.
@@ -68,10 +70,26 @@ pub struct CaptureCounts {
     pub bytes: u64,
 }
 
+/// When to capture, for a command whose emissions are not the occupancy tracker's (the census):
+/// it pushes these, the capture consumer (after it in the run) takes them at its next call.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Trigger {
+    /// An emission began at stream sample `start`; `key` names it until it ends.
+    Begin { key: u64, label: String, start: u64 },
+    /// The emission `key` ended: `note` says where and how strong it was.
+    End { key: u64, note: EmissionNote },
+}
+
+/// The queue of [`Trigger`]s shared between the finder of emissions and the captures.
+pub type Triggers = Rc<RefCell<Vec<Trigger>>>;
+
 /// One capture being written.
 struct Active {
     id: u64,
-    channel: usize,
+    /// The plan's channel index (log) or the finder's key ([`Trigger`]).
+    key: u64,
+    /// The channel's or emitter's name.
+    label: String,
     emission_start: u64,
     /// Stream index of the file's first sample.
     file_start: u64,
@@ -79,7 +97,8 @@ struct Active {
     next: u64,
     /// Write up to here (exclusive); lowered when the emission's end is known.
     stop: u64,
-    summary: Option<EmissionSummary>,
+    /// The emission, once it has ended.
+    note: Option<EmissionNote>,
     truncated: bool,
     meta_path: PathBuf,
 }
@@ -110,6 +129,7 @@ pub struct Captures {
     label: String,
     jobs: Option<Sender<Job>>,
     spare: Option<Receiver<Vec<Complex32>>>,
+    triggers: Option<Triggers>,
     error: WriterError,
     thread: Option<JoinHandle<()>>,
     pub counts: CaptureCounts,
@@ -155,6 +175,7 @@ impl Captures {
             label: String::new(),
             jobs: None,
             spare: None,
+            triggers: None,
             error: WriterError::default(),
             thread: None,
             counts: CaptureCounts::default(),
@@ -165,6 +186,24 @@ impl Captures {
     pub fn waiting(mut self, wait: bool) -> Captures {
         self.wait = wait;
         self
+    }
+
+    /// Takes its emissions from `triggers` rather than from the occupancy tracker's events.
+    pub fn with_triggers(mut self, triggers: Triggers) -> Captures {
+        self.triggers = Some(triggers);
+        self
+    }
+
+    /// Acts on the triggers queued since the last call.
+    fn take_triggers(&mut self) {
+        let Some(q) = self.triggers.clone() else { return };
+        let list = std::mem::take(&mut *q.borrow_mut());
+        for t in list {
+            match t {
+                Trigger::Begin { key, label, start } => self.begin(key, label, start),
+                Trigger::End { key, note } => self.end(key, note),
+            }
+        }
     }
 
     fn failed(&self) -> Option<String> {
@@ -190,14 +229,13 @@ impl Captures {
         b
     }
 
-    fn file_names(&self, channel: usize, start: u64) -> (PathBuf, PathBuf, String) {
+    fn file_names(&self, label: &str, start: u64) -> (PathBuf, PathBuf, String) {
         let clock = self.clock.as_ref();
         let when = clock
             .and_then(|c| sigmf_write::datetime(c, start))
             .map(|t| t.replace([':', '-'], "").replace('.', "_"))
             .unwrap_or_else(|| format!("s{:.6}", start as f64 / self.rate));
-        let name: String = self.plan.channels[channel]
-            .name
+        let name: String = label
             .chars()
             .map(|c| if c.is_ascii_alphanumeric() || c == '-' || c == '_' { c } else { '_' })
             .collect();
@@ -206,13 +244,17 @@ impl Captures {
         (dir.join(format!("{stem}.sigmf-meta")), dir.join(format!("{stem}.sigmf-data")), stem)
     }
 
+    fn clock(&self) -> Clock {
+        self.clock.clone().unwrap_or_else(|| Clock::new(self.rate, None))
+    }
+
     /// An emission began at `start`: open its file with the samples held before it.
-    fn open(&mut self, channel: usize, start: u64, run: &RunInfo) {
+    fn begin(&mut self, key: u64, label: String, start: u64) {
         let id = self.next_id;
-        let (meta_path, data_path, _) = self.file_names(channel, start);
+        let (meta_path, data_path, _) = self.file_names(&label, start);
         self.next_id += 1;
         if self.committed + self.reserve > self.set.max_bytes {
-            self.skip(channel, start, "disk_cap", &run.clock);
+            self.skip(&label, start, "disk_cap");
             return;
         }
         let file_start = start.saturating_sub(self.pre_n).max(self.ring.first());
@@ -220,36 +262,57 @@ impl Captures {
         self.ring.copy_from(file_start, &mut buf);
         let next = file_start + buf.len() as u64;
         if !self.send(Job::Open { id, data: data_path }) {
-            self.skip(channel, start, "disk_behind", &run.clock);
+            self.skip(&label, start, "disk_behind");
             return;
         }
         if !self.send(Job::Samples { id, samples: buf }) {
             self.abandon.push(id);
-            self.skip(channel, start, "disk_behind", &run.clock);
+            self.skip(&label, start, "disk_behind");
             return;
         }
         self.committed += self.reserve;
         self.active.push(Active {
             id,
-            channel,
+            key,
+            label,
             emission_start: start,
             file_start,
             next,
             stop: start + self.max_n,
-            summary: None,
+            note: None,
             truncated: false,
             meta_path,
         });
     }
 
+    /// The emission `key` ended: the capture runs `--post` past its end, or stops at
+    /// `--capture-max-seconds` from its start.
+    fn end(&mut self, key: u64, note: EmissionNote) {
+        let Some(k) = self.active.iter().position(|a| a.key == key && a.note.is_none()) else {
+            return;
+        };
+        let end_sample = note.sample_start + note.sample_count;
+        let a = &mut self.active[k];
+        if end_sample > a.emission_start + self.max_n {
+            a.truncated = true;
+        } else {
+            a.stop = end_sample + self.post_n;
+        }
+        a.note = Some(note);
+        if a.next >= a.stop {
+            self.close(k);
+        }
+    }
+
     /// Logs a capture that was not saved, and counts it.
-    fn skip(&mut self, channel: usize, start: u64, cause: &str, clock: &Clock) {
+    fn skip(&mut self, label: &str, start: u64, cause: &str) {
+        let clock = self.clock();
         match cause {
             "disk_cap" => self.counts.skipped_disk_cap += 1,
             _ => self.counts.skipped_disk_behind += 1,
         }
         self.side.borrow_mut().push(Record::Capture(CaptureRecord {
-            channel: self.plan.channels[channel].name.clone(),
+            channel: label.to_string(),
             status: "skipped".into(),
             file: None,
             cause: Some(cause.into()),
@@ -278,32 +341,27 @@ impl Captures {
                 self.abandon.push(id);
                 let a = self.active.swap_remove(k);
                 self.committed -= self.reserve;
-                let clock = self.clock.clone().unwrap_or_else(|| Clock::new(self.rate, None));
-                self.skip_active(&a, &clock);
+                self.skip(&a.label, a.emission_start, "disk_behind");
                 return false;
             }
             self.active[k].next = to;
         }
         let a = &self.active[k];
-        a.summary.is_some() && a.next >= a.stop
-    }
-
-    fn skip_active(&mut self, a: &Active, clock: &Clock) {
-        self.skip(a.channel, a.emission_start, "disk_behind", clock);
+        a.note.is_some() && a.next >= a.stop
     }
 
     /// Closes capture `k`: its meta file names the samples written and the emission.
     fn close(&mut self, k: usize) {
         let a = self.active.swap_remove(k);
         self.committed -= self.reserve;
-        let clock = self.clock.clone().unwrap_or_else(|| Clock::new(self.rate, None));
+        let clock = self.clock();
         let count = a.next.min(a.stop) - a.file_start;
         let meta = self.meta(&a, count, &clock);
         let bytes = count * self.format.bytes_per_sample() as u64;
         let job = Job::Close { id: a.id, samples: count, meta_path: a.meta_path.clone(), meta };
         if !self.send(job) {
             self.abandon.push(a.id);
-            self.skip_active(&a, &clock);
+            self.skip(&a.label, a.emission_start, "disk_behind");
             return;
         }
         self.committed += bytes + META_BYTES;
@@ -311,7 +369,7 @@ impl Captures {
         self.counts.bytes += bytes;
         let end = a.file_start + count;
         self.side.borrow_mut().push(Record::Capture(CaptureRecord {
-            channel: self.plan.channels[a.channel].name.clone(),
+            channel: a.label.clone(),
             status: "saved".into(),
             file: Some(a.meta_path.to_string_lossy().into_owned()),
             cause: None,
@@ -326,9 +384,7 @@ impl Captures {
     }
 
     fn meta(&self, a: &Active, count: u64, clock: &Clock) -> serde_json::Value {
-        let ch = &self.plan.channels[a.channel];
-        let desc =
-            format!("emission in channel {} captured by bandwarden from {}", ch.name, self.label);
+        let desc = format!("emission {} captured by bandwarden from {}", a.label, self.label);
         let mut g = sigmf_write::global(self.format, self.rate, &desc);
         g.insert(format!("{NAMESPACE}:source"), self.label.clone().into());
         let cap = sigmf_write::capture(
@@ -338,11 +394,11 @@ impl Captures {
             sigmf_write::datetime(clock, a.file_start),
         );
         let mut annotations = Vec::new();
-        if let Some(s) = &a.summary {
-            let note = note_of(s, &self.plan);
+        if let Some(note) = &a.note {
             let start = a.emission_start - a.file_start;
-            let end = (s.end_sample.min(a.file_start + count)).max(a.emission_start) - a.file_start;
-            let mut ann = annotation(&note, start, end - start);
+            let end_sample = note.sample_start + note.sample_count;
+            let end = (end_sample.min(a.file_start + count)).max(a.emission_start) - a.file_start;
+            let mut ann = annotation(note, start, end - start);
             ann.insert(format!("{NAMESPACE}:truncated"), a.truncated.into());
             annotations.push(serde_json::Value::Object(ann));
         }
@@ -396,6 +452,7 @@ impl Consumer for Captures {
         if let Some(e) = self.failed() {
             return Err(io::Error::other(e));
         }
+        self.take_triggers();
         self.retry_abandons();
         let mut k = 0;
         while k < self.active.len() {
@@ -411,37 +468,37 @@ impl Consumer for Captures {
     }
 
     fn event(&mut self, event: &Event, run: &RunInfo) -> io::Result<()> {
+        self.clock = Some(run.clock.clone());
         match event {
-            Event::Opened(o) => self.open(o.channel, o.start_sample, run),
-            Event::Emission(e) => {
-                let found =
-                    self.active.iter().position(|a| a.channel == e.channel && a.summary.is_none());
-                if let Some(k) = found {
-                    let a = &mut self.active[k];
-                    if e.end_sample > a.emission_start + self.max_n {
-                        a.truncated = true;
-                    } else {
-                        a.stop = e.end_sample + self.post_n;
-                    }
-                    a.summary = Some(e.clone());
-                    if a.next >= a.stop {
-                        self.close(k);
-                    }
-                }
+            Event::Opened(o) => {
+                let label = self.plan.channels[o.channel].name.clone();
+                self.begin(o.channel as u64, label, o.start_sample);
             }
+            Event::Emission(e) => self.end(e.channel as u64, note_of(e, &self.plan)),
             Event::Interval(_) => {}
         }
         Ok(())
     }
 
+    fn row(&mut self, _row: &crate::dsp::Spectrum) -> io::Result<crate::pipeline::Flow> {
+        self.take_triggers();
+        Ok(crate::pipeline::Flow::Continue)
+    }
+
+    fn partial_row(&mut self, _row: &crate::dsp::Spectrum) -> io::Result<()> {
+        self.take_triggers();
+        Ok(())
+    }
+
     fn gap(&mut self, _from: u64, _to: u64, cause: GapCause, _run: &RunInfo) -> io::Result<()> {
+        self.take_triggers();
         if cause == GapCause::Behind {
             // What follows is not contiguous with what was written: every capture ends here.
             self.ring.clear();
             for a in &mut self.active {
                 a.stop = a.stop.min(a.next);
             }
-            while let Some(k) = self.active.iter().position(|a| a.summary.is_some()) {
+            while let Some(k) = self.active.iter().position(|a| a.note.is_some()) {
                 self.close(k);
             }
         }
@@ -449,6 +506,7 @@ impl Consumer for Captures {
     }
 
     fn finish(&mut self, _end: &RunEnd, _run: &RunInfo) -> io::Result<()> {
+        self.take_triggers();
         while !self.active.is_empty() {
             let k = self.active.len() - 1;
             self.active[k].stop = self.active[k].stop.min(self.active[k].next);

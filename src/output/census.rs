@@ -1,27 +1,108 @@
 //! The census as a pipeline consumer, and its three forms of output: a table, one JSON object,
 //! and a channel plan in the TOML format `log --plan` reads.
 
+use super::annotate::{comment, AnnotateSummary, AnnotationWriter, EmissionNote};
+use super::capture::{Trigger, Triggers};
 use crate::dsp::Spectrum;
-use crate::measure::census::{Census, CensusResult, EmitterFigures};
+use crate::measure::census::{
+    frequency_name, Census, CensusEvent, CensusResult, Emission, EmitterFigures,
+};
 use crate::pipeline::{Consumer, Flow, GapCause, RunEnd, RunInfo};
 use serde_json::json;
+use std::collections::HashMap;
 use std::fmt::Write as _;
 use std::io;
 
-/// Feeds every complete row to the census and measures it when the run ends.
+/// Feeds every complete row to the census and measures it when the run ends; with
+/// [`CensusConsumer::with_annotations`] writes every emission as a SigMF annotation, with
+/// [`CensusConsumer::with_triggers`] tells the captures when emissions begin and end.
 pub struct CensusConsumer {
     census: Option<Census>,
     result: Option<CensusResult>,
+    annotations: Option<AnnotationWriter>,
+    /// What the annotation file came to, once written.
+    pub annotated: Option<AnnotateSummary>,
+    triggers: Option<Triggers>,
+    /// Names of the emissions open now, by track (their detected centre when they began).
+    open: HashMap<u64, String>,
 }
 
 impl CensusConsumer {
     pub fn new(census: Census) -> CensusConsumer {
-        CensusConsumer { census: Some(census), result: None }
+        CensusConsumer {
+            census: Some(census),
+            result: None,
+            annotations: None,
+            annotated: None,
+            triggers: None,
+            open: HashMap::new(),
+        }
+    }
+
+    /// Writes each emission, labelled with its emitter's name, when the run ends.
+    pub fn with_annotations(mut self, writer: AnnotationWriter) -> CensusConsumer {
+        self.annotations = Some(writer);
+        self
+    }
+
+    /// Pushes a [`Trigger`] as each emission begins and ends (named from its detected centre, as
+    /// emitters are; the final names are given only when the census ends).
+    pub fn with_triggers(mut self, triggers: Triggers) -> CensusConsumer {
+        self.census = self.census.take().map(Census::with_events);
+        self.triggers = Some(triggers);
+        self
     }
 
     /// The census, once the run has finished (`None` if no complete row was seen).
     pub fn result(&self) -> Option<&CensusResult> {
         self.result.as_ref()
+    }
+
+    /// The census's events since the last call, as triggers.
+    fn pass_events(&mut self) {
+        let (Some(c), Some(q)) = (self.census.as_mut(), self.triggers.as_ref()) else { return };
+        let mut q = q.borrow_mut();
+        for ev in c.take_events() {
+            match ev {
+                CensusEvent::Opened { id, start_sample, center_hz } => {
+                    let label = frequency_name(center_hz);
+                    self.open.insert(id, label.clone());
+                    q.push(Trigger::Begin { key: id, label, start: start_sample });
+                }
+                CensusEvent::Closed { id, emission } => {
+                    let centre = (emission.low_hz + emission.high_hz) / 2.0;
+                    let label = self.open.remove(&id).unwrap_or_else(|| frequency_name(centre));
+                    q.push(Trigger::End { key: id, note: emission_note(&emission, label, None) });
+                }
+            }
+        }
+    }
+}
+
+/// A census emission as an annotation: its detected band, levels and OBW; `emitter_center_hz`
+/// is its emitter's centre when known.
+pub fn emission_note(e: &Emission, label: String, emitter_center_hz: Option<f64>) -> EmissionNote {
+    let f = &e.figures;
+    let (mean, peak, snr) = (f.mean_dbfs(), f.peak_dbfs(), f.snr_db());
+    let obw = Some(e.high_hz - e.low_hz).filter(|w| w.is_finite() && *w > 0.0);
+    EmissionNote {
+        sample_start: e.sample_start,
+        sample_count: e.sample_count,
+        freq_lower_edge_hz: e.low_hz,
+        freq_upper_edge_hz: e.high_hz,
+        label,
+        comment: comment(
+            Some(mean).filter(|m| m.is_finite()),
+            Some(peak).filter(|p| p.is_finite()),
+            snr,
+            obw,
+        ),
+        mean_dbfs: Some(mean),
+        peak_dbfs: Some(peak),
+        snr_db: snr,
+        obw_hz: obw,
+        channel_center_hz: emitter_center_hz,
+        partial: f.partial,
     }
 }
 
@@ -30,6 +111,7 @@ impl Consumer for CensusConsumer {
         if let Some(c) = self.census.as_mut() {
             c.push(row);
         }
+        self.pass_events();
         Ok(Flow::Continue)
     }
 
@@ -37,12 +119,26 @@ impl Consumer for CensusConsumer {
         if let Some(c) = self.census.as_mut() {
             c.gap();
         }
+        self.pass_events();
         Ok(())
     }
 
-    fn finish(&mut self, end: &RunEnd, _run: &RunInfo) -> io::Result<()> {
+    fn finish(&mut self, end: &RunEnd, run: &RunInfo) -> io::Result<()> {
+        if let Some(c) = self.census.as_mut() {
+            c.end_tracks(end.end_sample);
+        }
+        self.pass_events();
         if let Some(c) = self.census.take() {
             self.result = c.finish(end.end_sample);
+        }
+        if let Some(mut w) = self.annotations.take() {
+            if let Some(r) = &self.result {
+                for e in &r.emissions {
+                    let emitter = &r.emitters[e.emitter];
+                    w.push(emission_note(e, emitter.name.clone(), Some(emitter.center_hz)));
+                }
+            }
+            self.annotated = Some(w.finish(run)?);
         }
         Ok(())
     }
@@ -56,6 +152,11 @@ fn round(x: f64, digits: i32) -> f64 {
 
 /// The census as exactly one JSON object (strongest emitter first).
 pub fn to_json(r: &CensusResult) -> String {
+    to_json_value(r).to_string()
+}
+
+/// The census as a JSON value, for a command to add to.
+pub fn to_json_value(r: &CensusResult) -> serde_json::Value {
     let emitters: Vec<_> = r
         .emitters
         .iter()
@@ -82,7 +183,6 @@ pub fn to_json(r: &CensusResult) -> String {
         "noise_floor_dbfs_per_hz": round(r.noise_floor_dbfs_per_hz, 2),
         "emitters": emitters,
     })
-    .to_string()
 }
 
 /// The census as a table, strongest first, units in the header.

@@ -83,6 +83,46 @@ pub struct Emission {
     /// Detected band edges, absolute Hz.
     pub low_hz: f64,
     pub high_hz: f64,
+    pub figures: EmissionFigures,
+}
+
+/// Levels of one emission, from the band energy of its rows (noise taken off).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct EmissionFigures {
+    /// Mean power while on the air (rows wholly inside it), FS².
+    pub mean: f64,
+    /// Highest power of one row, FS².
+    pub peak: f64,
+    /// Noise power in its occupied band (at least one RBW wide), FS².
+    pub noise: f64,
+    /// Cut by lost samples, or by the start or end of the input.
+    pub partial: bool,
+}
+
+impl EmissionFigures {
+    pub fn mean_dbfs(&self) -> f64 {
+        db(self.mean)
+    }
+
+    pub fn peak_dbfs(&self) -> f64 {
+        db(self.peak)
+    }
+
+    /// Mean power over the noise in the same band; `None` without a noise figure.
+    pub fn snr_db(&self) -> Option<f64> {
+        (self.noise > 0.0 && self.mean > 0.0).then(|| db(self.mean / self.noise))
+    }
+}
+
+/// What the census saw happen, in the order it saw it (when asked for, see
+/// [`Census::with_events`]): for consumers that act while the input runs, such as captures.
+#[derive(Clone, Debug, PartialEq)]
+pub enum CensusEvent {
+    /// A new emission was detected. `start_sample` is the earliest its start can be placed (one
+    /// row before the row that found it), `center_hz` its detected centre so far.
+    Opened { id: u64, start_sample: u64, center_hz: f64 },
+    /// The emission ended (after the hang time, a gap, or the end of the input).
+    Closed { id: u64, emission: Emission },
 }
 
 /// The whole census.
@@ -121,6 +161,7 @@ struct Closed {
     end: u64,
     low_hz: f64,
     high_hz: f64,
+    figures: EmissionFigures,
 }
 
 /// Detections of one row merged by footprint: bins, detected edges, power and centre.
@@ -149,6 +190,11 @@ pub struct Census {
     emitters: Vec<EmitterAcc>,
     closed: Vec<Closed>,
     emitters_dropped: u64,
+    /// Events kept for [`Census::take_events`], when asked for.
+    events: Option<Vec<CensusEvent>>,
+    next_track: u64,
+    /// Noise density of the latest row, FS²/Hz.
+    density: f64,
 }
 
 impl Census {
@@ -168,7 +214,22 @@ impl Census {
             emitters: Vec::new(),
             closed: Vec::new(),
             emitters_dropped: 0,
+            events: None,
+            next_track: 0,
+            density: 0.0,
         }
+    }
+
+    /// Keeps a [`CensusEvent`] for every emission that opens or closes; the caller drains them
+    /// with [`Census::take_events`] after each row (they are not bounded otherwise).
+    pub fn with_events(mut self) -> Census {
+        self.events = Some(Vec::new());
+        self
+    }
+
+    /// The events since the last call, oldest first.
+    pub fn take_events(&mut self) -> impl Iterator<Item = CensusEvent> + '_ {
+        self.events.iter_mut().flat_map(|v| v.drain(..))
     }
 
     /// Takes one complete row.
@@ -188,6 +249,7 @@ impl Census {
             });
         }
         let density = self.noise.push(row);
+        self.density = density;
         self.floor_sum += density;
         let span = self.settings.timing.row_span(row);
         self.last_span_end = span.1;
@@ -207,7 +269,7 @@ impl Census {
         while i < self.tracks.len() {
             if self.tracks[i].missed > hang {
                 let t = self.tracks.swap_remove(i);
-                self.close(&t, None);
+                self.close(&t, None, false);
             } else {
                 i += 1;
             }
@@ -219,7 +281,7 @@ impl Census {
     /// Samples were lost: every open emission ends where it was last seen.
     pub fn gap(&mut self) {
         for t in std::mem::take(&mut self.tracks) {
-            self.close(&t, None);
+            self.close(&t, None, true);
         }
     }
 
@@ -277,6 +339,17 @@ impl Census {
                         Some(ti) => ti,
                         None => {
                             let mut t = Track::new(em, (c.lo, c.hi), self.row, span);
+                            t.id = self.next_track;
+                            self.next_track += 1;
+                            if let Some(ev) = self.events.as_mut() {
+                                // The extent can reach back one row length before this row.
+                                let start_sample = span.0.saturating_sub(span.1 - span.0);
+                                ev.push(CensusEvent::Opened {
+                                    id: t.id,
+                                    start_sample,
+                                    center_hz: centre,
+                                });
+                            }
                             if self.row > 0 {
                                 t.e_before = energy(row, &self.prev, (c.lo, c.hi), density);
                                 self.emitters[em].add_row(self.row - 1, &self.prev, density);
@@ -315,26 +388,54 @@ impl Census {
         Some(self.emitters.len() - 1)
     }
 
-    fn close(&mut self, t: &Track, input_end: Option<u64>) {
+    /// Ends track `t`; `cut` when lost samples or the end of the input ended it.
+    fn close(&mut self, t: &Track, input_end: Option<u64>, cut: bool) {
         let x = t.extent(t.first_row == 0, input_end);
         self.emitters[t.emitter].detected_rows += t.detected as u64;
-        self.closed.push(Closed {
+        let rbw = self.layout.as_ref().map_or(0.0, |l| l.rbw_hz);
+        let figures = EmissionFigures {
+            mean: t.full_energy(),
+            peak: t.e_peak,
+            noise: self.density * (t.high_hz - t.low_hz).max(rbw),
+            partial: cut || t.first_row == 0 || input_end.is_some(),
+        };
+        let closed = Closed {
             emitter: t.emitter,
             start: x.start,
             end: x.end,
             low_hz: t.low_hz,
             high_hz: t.high_hz,
-        });
+            figures,
+        };
+        if let Some(ev) = self.events.as_mut() {
+            let emission = Emission {
+                emitter: t.emitter,
+                sample_start: x.start,
+                sample_count: x.end - x.start,
+                low_hz: t.low_hz,
+                high_hz: t.high_hz,
+                figures,
+            };
+            ev.push(CensusEvent::Closed { id: t.id, emission });
+        }
+        self.closed.push(closed);
+    }
+
+    /// Closes every open emission at the end of the input, `end` (one past its last sample):
+    /// those still seen in the last row run to `end`. [`Census::finish`] does this too; call it
+    /// first to take the events of these closes.
+    pub fn end_tracks(&mut self, end: u64) {
+        let Some(last_row) = self.row.checked_sub(1) else { return };
+        for t in std::mem::take(&mut self.tracks) {
+            let to_end = (t.last_row == last_row).then_some(end.max(self.last_span_end));
+            self.close(&t, to_end, false);
+        }
     }
 
     /// Ends the census at sample `end` (one past the last sample of the input) and measures every
     /// emitter. Emissions still open in the last row run to `end`.
     pub fn finish(mut self, end: u64) -> Option<CensusResult> {
-        let last_row = self.row.checked_sub(1)?;
-        for t in std::mem::take(&mut self.tracks) {
-            let to_end = (t.last_row == last_row).then_some(end.max(self.last_span_end));
-            self.close(&t, to_end);
-        }
+        self.end_tracks(end);
         let mut layout = self.layout.take()?;
         layout.duration_samples = end.max(self.last_span_end);
         let window = self.window.take()?;
@@ -363,6 +464,7 @@ impl Census {
                 sample_count: c.end - c.start,
                 low_hz: c.low_hz,
                 high_hz: c.high_hz,
+                figures: c.figures,
             })
             .collect();
         emissions.sort_by_key(|e| e.sample_start);
@@ -419,6 +521,7 @@ impl Census {
         for c in closed {
             match joined.last_mut().filter(|l| l.emitter == c.emitter && c.start <= l.end) {
                 Some(l) => {
+                    l.figures = joined_figures(l, &c);
                     l.end = l.end.max(c.end);
                     l.low_hz = l.low_hz.min(c.low_hz);
                     l.high_hz = l.high_hz.max(c.high_hz);
@@ -440,10 +543,30 @@ impl Census {
     }
 }
 
+/// The figures of two overlapping pieces of one emission joined: mean and noise weighted by
+/// length, the higher peak.
+fn joined_figures(a: &Closed, b: &Closed) -> EmissionFigures {
+    let (la, lb) = ((a.end - a.start).max(1) as f64, (b.end - b.start).max(1) as f64);
+    let (fa, fb) = (a.figures, b.figures);
+    let w = |x: f64, y: f64| (x * la + y * lb) / (la + lb);
+    EmissionFigures {
+        mean: w(fa.mean, fb.mean),
+        peak: fa.peak.max(fb.peak),
+        noise: w(fa.noise, fb.noise),
+        partial: fa.partial || fb.partial,
+    }
+}
+
 /// Band energy of bins `lo..=hi` of `psd` less the noise in them, FS².
 fn energy(row: &Spectrum, psd: &[f64], (lo, hi): (usize, usize), density: f64) -> f64 {
     let sum: f64 = psd[lo..=hi].iter().sum();
     (sum - density * (hi + 1 - lo) as f64) * row.bin_hz()
+}
+
+/// The name of an emitter at `center_hz` before `-2`, `-3`… are added: `f` and the centre in
+/// kHz to 0.1 kHz (`f433137.5`). Also the name of an emission while the input runs.
+pub fn frequency_name(center_hz: f64) -> String {
+    format!("f{:.1}", center_hz / 1e3)
 }
 
 /// Names from frequency: `f` and the centre in kHz to 0.1 kHz (`f433137.5`), with `-2`, `-3`…
@@ -451,7 +574,7 @@ fn energy(row: &Spectrum, psd: &[f64], (lo, hi): (usize, usize), density: f64) -
 fn name_emitters(emitters: &mut [EmitterFigures]) {
     let mut used: Vec<String> = Vec::with_capacity(emitters.len());
     for e in emitters.iter_mut() {
-        let base = format!("f{:.1}", e.center_hz / 1e3);
+        let base = frequency_name(e.center_hz);
         let mut name = base.clone();
         let mut k = 2;
         while used.contains(&name) {

@@ -11,6 +11,8 @@
 /// main lobe), first and last detected row, and the energies that time its edges.
 #[derive(Clone, Debug)]
 pub struct Track {
+    /// Unique in one census, in the order tracks began.
+    pub id: u64,
     pub emitter: usize,
     pub lo: usize,
     pub hi: usize,
@@ -27,6 +29,8 @@ pub struct Track {
     pub e_last: f64,
     /// Energy of the first quiet row after the last detection, once seen.
     pub e_after: Option<f64>,
+    /// Highest band energy of a detected row.
+    pub e_peak: f64,
     interior_sum: f64,
     interior_rows: u32,
     /// Rows since the last detection.
@@ -49,6 +53,7 @@ impl Track {
     /// the same bins in the row before (0 if there is none).
     pub fn new(emitter: usize, (lo, hi): (usize, usize), row: u64, span: (u64, u64)) -> Track {
         Track {
+            id: 0,
             emitter,
             lo,
             hi,
@@ -62,6 +67,7 @@ impl Track {
             e_first: 0.0,
             e_last: 0.0,
             e_after: None,
+            e_peak: 0.0,
             interior_sum: 0.0,
             interior_rows: 0,
             missed: 0,
@@ -101,21 +107,28 @@ impl Track {
             self.last_span = span;
         }
         self.e_last = e;
+        self.e_peak = self.e_peak.max(e);
         self.e_after = None;
         self.missed = 0;
         self.detected += 1;
         self.seen = false;
     }
 
+    /// The band energy of a row wholly inside the emission (the mean of the interior rows, or
+    /// the stronger edge row of a short one): its power while on the air, noise taken off.
+    pub fn full_energy(&self) -> f64 {
+        if self.interior_rows > 0 {
+            self.interior_sum / self.interior_rows as f64
+        } else {
+            self.e_first.max(self.e_last)
+        }
+    }
+
     /// The emission's extent: each edge row counts by its share of the full energy, and so does
     /// the quiet row beyond it. `input_start`/`input_end` stretch an emission that was on the air
     /// in the first or last row of the input to the input's own ends.
     pub fn extent(&self, input_start: bool, input_end: Option<u64>) -> Extent {
-        let full = if self.interior_rows > 0 {
-            self.interior_sum / self.interior_rows as f64
-        } else {
-            self.e_first.max(self.e_last)
-        };
+        let full = self.full_energy();
         let share = |e: f64| if full > 0.0 { (e / full).clamp(0.0, 1.0) } else { 0.0 };
         let stride = (self.first_span.1 - self.first_span.0) as f64;
         let start = if input_start {
