@@ -55,7 +55,11 @@ pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
         inputs.extend([PathBuf::from(path), meta.into(), data.into()]);
     }
     if let Some(out) = &cfg.plan_out {
-        sink::refuse_overwrite(out, &inputs.iter().map(PathBuf::as_path).collect::<Vec<_>>())?;
+        sink::refuse_overwrite(
+            out,
+            "--plan-out",
+            &inputs.iter().map(PathBuf::as_path).collect::<Vec<_>>(),
+        )?;
     }
     let settings = CensusSettings {
         detection: cfg.detection,

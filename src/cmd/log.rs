@@ -49,7 +49,11 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
         let (meta, data) = crate::source::sigmf::paths(path);
         inputs.extend([path.into(), meta.into(), data.into()]);
     }
-    sink::refuse_overwrite(&cfg.out, &inputs.iter().map(PathBuf::as_path).collect::<Vec<_>>())?;
+    sink::refuse_overwrite(
+        &cfg.out,
+        "-o",
+        &inputs.iter().map(PathBuf::as_path).collect::<Vec<_>>(),
+    )?;
     let log = match cfg.rotate {
         None => {
             let out = sink::open(&cfg.out, cfg.append, "log")?;

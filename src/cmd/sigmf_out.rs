@@ -80,7 +80,7 @@ impl SigmfOutputs {
         let (meta, _) = sigmf_write::pair(path).map_err(anyhow::Error::msg)?;
         let is_own_meta = matches!(&dataset, Dataset::Sigmf { meta: m, .. } | Dataset::Recording { meta: m, .. } if same(m, &meta));
         if !is_own_meta {
-            sink::refuse_overwrite(&meta.to_string_lossy(), &refs)?;
+            sink::refuse_overwrite(&meta.to_string_lossy(), "--annotate", &refs)?;
         }
         AnnotationWriter::new(path, dataset)
     }
@@ -156,7 +156,7 @@ pub fn recorder(
     };
     let refs: Vec<&Path> = inputs.iter().map(PathBuf::as_path).collect();
     for p in [&meta, &data] {
-        sink::refuse_overwrite(&p.to_string_lossy(), &refs)?;
+        sink::refuse_overwrite(&p.to_string_lossy(), "--record", &refs)?;
     }
     Recorder::create(path, info.format, block_len)
 }

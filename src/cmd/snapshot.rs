@@ -38,7 +38,11 @@ pub fn run(cfg: SnapshotConfig) -> Result<ExitCode> {
         let (meta, data) = crate::source::sigmf::paths(path);
         inputs.extend([path.into(), meta.into(), data.into()]);
     }
-    sink::refuse_overwrite(&cfg.out, &inputs.iter().map(PathBuf::as_path).collect::<Vec<_>>())?;
+    sink::refuse_overwrite(
+        &cfg.out,
+        "-o",
+        &inputs.iter().map(PathBuf::as_path).collect::<Vec<_>>(),
+    )?;
 
     let skip = (cfg.skip_s * rate).round() as u64;
     let max_samples = cfg.seconds.map(|s| skip + (s * rate).round() as u64);

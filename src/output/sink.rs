@@ -50,7 +50,8 @@ pub fn open(path: &str, append: bool, what: &str) -> Result<Sink> {
 
 /// Refuses to write over any of `inputs` (the input recording, the plan): opening the output
 /// would truncate what is about to be read.
-pub fn refuse_overwrite(out: &str, inputs: &[&Path]) -> Result<()> {
+/// Refuses to write `out` (given with `flag`) when it is one of the files the run reads.
+pub fn refuse_overwrite(out: &str, flag: &str, inputs: &[&Path]) -> Result<()> {
     use std::os::unix::fs::MetadataExt;
     if out == "-" {
         return Ok(());
@@ -60,7 +61,7 @@ pub fn refuse_overwrite(out: &str, inputs: &[&Path]) -> Result<()> {
         if let Ok(i) = std::fs::metadata(input) {
             if (i.dev(), i.ino()) == (o.dev(), o.ino()) {
                 bail!(
-                    "the output '{}' is the input '{}': writing it would destroy what is to be read; choose another -o",
+                    "the output '{}' is the input '{}': writing it would destroy what is to be read; give {flag} another file",
                     crate::messages::sanitize(out),
                     crate::messages::sanitize(&input.to_string_lossy())
                 );
@@ -136,8 +137,8 @@ mod tests {
         s.out.write_all(b"x\n").unwrap();
         drop(s);
         assert!(std::fs::read_to_string(&p).unwrap().ends_with("}\nx\n"));
-        assert!(refuse_overwrite(p.to_str().unwrap(), &[&p]).is_err());
-        assert!(refuse_overwrite(p.to_str().unwrap(), &[&dir.join("other")]).is_ok());
+        assert!(refuse_overwrite(p.to_str().unwrap(), "-o", &[&p]).is_err());
+        assert!(refuse_overwrite(p.to_str().unwrap(), "-o", &[&dir.join("other")]).is_ok());
     }
 
     #[test]
