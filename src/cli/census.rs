@@ -1,7 +1,7 @@
 //! `census` flags and their validation.
 
 use super::common::{parse_seconds, DetectArgs, DspArgs, InputArgs};
-use super::sigmf_out::{CaptureConfig, EmissionOutArgs, RecordArgs};
+use super::sigmf_out::{EmissionOutArgs, RecordArgs, SigmfOut};
 use crate::dsp::DspConfig;
 use crate::measure::occupancy::timing::OBW_PERCENT;
 use crate::measure::Detection;
@@ -56,11 +56,8 @@ pub struct CensusConfig {
     pub json: bool,
     pub plan_out: Option<String>,
     pub seconds: Option<f64>,
-    /// `--record`: the input teed to this SigMF recording.
-    pub record: Option<String>,
-    /// `--annotate`: every emission as an annotation in this SigMF metadata file.
-    pub annotate: Option<String>,
-    pub capture: Option<CaptureConfig>,
+    /// `--record`, `--annotate`, `--capture`.
+    pub sigmf: SigmfOut,
 }
 
 impl CensusArgs {
@@ -68,11 +65,7 @@ impl CensusArgs {
         if self.plan_out.as_deref() == Some("-") {
             bail!("--plan-out writes a file: give a path (e.g. --plan-out site-plan.toml)");
         }
-        let record = self.record.validate()?;
-        let (annotate, capture) = self.emissions.validate()?;
-        if annotate.is_some() && record.is_none() && self.input == "-" {
-            bail!("--annotate needs a dataset to point at, and standard input leaves none: add --record FILE.sigmf-meta (the annotations then point at the recording)");
-        }
+        let sigmf = SigmfOut::validate(self.record, self.emissions, &self.input)?;
         Ok(CensusConfig {
             dsp: self.dsp.validate()?,
             detection: self.detect.validate(OBW_PERCENT)?,
@@ -82,9 +75,7 @@ impl CensusArgs {
             json: self.json,
             plan_out: self.plan_out,
             seconds: self.seconds,
-            record,
-            annotate,
-            capture,
+            sigmf,
         })
     }
 }

@@ -2,7 +2,7 @@
 
 use super::common::{parse_seconds, ChannelArgs, ChannelConfig, DspArgs, InputArgs};
 use super::net::PublishArgs;
-use super::sigmf_out::{CaptureConfig, EmissionOutArgs, RecordArgs};
+use super::sigmf_out::{EmissionOutArgs, RecordArgs, SigmfOut};
 use crate::dsp::DspConfig;
 use crate::output::log::LogFormat;
 use crate::output::publish::PublishConfig;
@@ -78,11 +78,8 @@ pub struct LogConfig {
     pub site: Option<String>,
     /// Publishing to a broker (`--publish`).
     pub publish: Option<PublishConfig>,
-    /// `--record`: the input teed to this SigMF recording.
-    pub record: Option<String>,
-    /// `--annotate`: every emission as an annotation in this SigMF metadata file.
-    pub annotate: Option<String>,
-    pub capture: Option<CaptureConfig>,
+    /// `--record`, `--annotate`, `--capture`.
+    pub sigmf: SigmfOut,
 }
 
 impl LogArgs {
@@ -98,11 +95,7 @@ impl LogArgs {
             bail!("--interval must be longer than zero (e.g. 60s)");
         }
         let publish = self.publish.validate(&self.out)?;
-        let record = self.record.validate()?;
-        let (annotate, capture) = self.emissions.validate()?;
-        if annotate.is_some() && record.is_none() && self.input == "-" {
-            bail!("--annotate needs a dataset to point at, and standard input leaves none: add --record FILE.sigmf-meta (the annotations then point at the recording)");
-        }
+        let sigmf = SigmfOut::validate(self.record, self.emissions, &self.input)?;
         Ok(LogConfig {
             site: self.publish.site.clone(),
             publish,
@@ -117,9 +110,7 @@ impl LogArgs {
             no_drop: self.no_drop,
             seconds: self.seconds,
             rotate: self.rotate,
-            record,
-            annotate,
-            capture,
+            sigmf,
         })
     }
 }

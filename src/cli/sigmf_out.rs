@@ -51,6 +51,33 @@ pub struct EmissionOutArgs {
     pub capture_max_bytes: u64,
 }
 
+/// The SigMF outputs of a command that finds emissions (`log`, `census`), validated.
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct SigmfOut {
+    /// `--record`: the input teed to this SigMF recording.
+    pub record: Option<String>,
+    /// `--annotate`: every emission as an annotation in this SigMF metadata file.
+    pub annotate: Option<String>,
+    pub capture: Option<CaptureConfig>,
+}
+
+impl SigmfOut {
+    /// Validates the flags of a command that reads `input`: annotations of standard input
+    /// need a recording to point at.
+    pub fn validate(
+        record: RecordArgs,
+        emissions: EmissionOutArgs,
+        input: &str,
+    ) -> Result<SigmfOut> {
+        let record = record.validate()?;
+        let (annotate, capture) = emissions.validate()?;
+        if annotate.is_some() && record.is_none() && input == "-" {
+            bail!("--annotate needs a dataset to point at, and standard input leaves none: add --record FILE.sigmf-meta (the annotations then point at the recording)");
+        }
+        Ok(SigmfOut { record, annotate, capture })
+    }
+}
+
 /// Longest pre- or post-trigger time: the pre-trigger ring is held in memory.
 pub const MAX_PRE_POST_S: f64 = 60.0;
 

@@ -74,12 +74,8 @@ pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
     let signals = StopSignals::install(false, Escalation::SecondSignalExits)?;
     let (opts, total) = unattended_options(&info, cfg.seconds, false);
     let side = SideRecords::default();
-    let sigmf_request = SigmfRequest {
-        wait: false,
-        record: cfg.record.as_deref(),
-        annotate: None,
-        capture: cfg.capture.as_ref(),
-    };
+    // The census writes its own annotations (labelled with the emitters' names).
+    let sigmf_request = SigmfRequest { annotate: None, ..SigmfRequest::of(&cfg.sigmf, false) };
     let mut sigmf_out = SigmfOutputs::new(
         sigmf_request,
         &cfg.input,
@@ -90,7 +86,7 @@ pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
         side.clone(),
     )?;
     let mut census = CensusConsumer::new(Census::new(settings));
-    if let Some(path) = &cfg.annotate {
+    if let Some(path) = &cfg.sigmf.annotate {
         census =
             census.with_annotations(sigmf_out.annotation_writer(path, &cfg.input, &info, &inputs)?);
     }
@@ -129,7 +125,7 @@ pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
         ));
     }
     sigmf_out.report()?;
-    if let (Some(s), Some(path)) = (&census.annotated, &cfg.annotate) {
+    if let (Some(s), Some(path)) = (&census.annotated, &cfg.sigmf.annotate) {
         annotated_note(s, &sigmf_write::pair(path).map_err(anyhow::Error::msg)?.0);
     }
     let Some(result) = census.result() else {
@@ -141,7 +137,7 @@ pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
     };
     let text = if cfg.json {
         let mut v = to_json_value(result);
-        if cfg.capture.is_some() {
+        if cfg.sigmf.capture.is_some() {
             v["captures"] = capture_records(&side);
         }
         format!("{v}\n")

@@ -84,12 +84,7 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
 
     let signals = StopSignals::install(false, Escalation::SecondSignalExits)?;
     let (opts, total) = unattended_options(&info, cfg.seconds, cfg.no_drop);
-    let request = SigmfRequest {
-        wait: cfg.no_drop,
-        record: cfg.record.as_deref(),
-        annotate: cfg.annotate.as_deref(),
-        capture: cfg.capture.as_ref(),
-    };
+    let request = SigmfRequest::of(&cfg.sigmf, cfg.no_drop);
     let side = log.side_records();
     let mut sigmf_out =
         SigmfOutputs::new(request, &cfg.input, &info, plan, &inputs, opts.block_len, side)?;

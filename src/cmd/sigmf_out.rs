@@ -2,6 +2,7 @@
 //! that take them: which dataset annotations point at, the checks before the run, the consumers
 //! in the order they must run, and the closing notes.
 
+use crate::cli::sigmf_out::SigmfOut;
 use crate::cli::CaptureConfig;
 use crate::messages::{note, sanitize};
 use crate::output::annotate::{AnnotateSummary, AnnotationWriter, Dataset, LogAnnotations};
@@ -30,6 +31,18 @@ pub struct SigmfRequest<'a> {
     pub record: Option<&'a str>,
     pub annotate: Option<&'a str>,
     pub capture: Option<&'a CaptureConfig>,
+}
+
+impl<'a> SigmfRequest<'a> {
+    /// The outputs a command's flags ask for.
+    pub fn of(out: &'a SigmfOut, wait: bool) -> SigmfRequest<'a> {
+        SigmfRequest {
+            wait,
+            record: out.record.as_deref(),
+            annotate: out.annotate.as_deref(),
+            capture: out.capture.as_ref(),
+        }
+    }
 }
 
 impl SigmfOutputs {
