@@ -49,11 +49,7 @@ pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
         hang_s: cfg.hang_s,
     };
     let setup = OccupancySetup::new(&info, &cfg.dsp, &Plan::default(), &request)?;
-    let mut inputs = Vec::new();
-    if let Some(path) = cfg.input.path.as_deref().filter(|p| *p != "-") {
-        let (meta, data) = source::sigmf::paths(path);
-        inputs.extend([PathBuf::from(path), meta.into(), data.into()]);
-    }
+    let inputs = cfg.input.files();
     if let Some(out) = &cfg.plan_out {
         sink::refuse_overwrite(
             out,

@@ -45,10 +45,7 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
     notes(&setup.notes(plan));
 
     let mut inputs: Vec<PathBuf> = cfg.channels.plan_path.iter().map(PathBuf::from).collect();
-    if let Some(path) = cfg.input.path.as_deref().filter(|p| *p != "-") {
-        let (meta, data) = crate::source::sigmf::paths(path);
-        inputs.extend([path.into(), meta.into(), data.into()]);
-    }
+    inputs.extend(cfg.input.files());
     sink::refuse_overwrite(
         &cfg.out,
         "-o",

@@ -160,13 +160,7 @@ pub fn recorder(
     block_len: usize,
 ) -> Result<Recorder> {
     let (meta, data) = sigmf_write::pair(path).map_err(anyhow::Error::msg)?;
-    let inputs: Vec<PathBuf> = match input.path.as_deref().filter(|p| *p != "-") {
-        Some(p) => {
-            let (m, d) = sigmf::paths(p);
-            vec![p.into(), m.into(), d.into()]
-        }
-        None => Vec::new(),
-    };
+    let inputs = input.files();
     let refs: Vec<&Path> = inputs.iter().map(PathBuf::as_path).collect();
     for p in [&meta, &data] {
         sink::refuse_overwrite(&p.to_string_lossy(), "--record", &refs)?;

@@ -34,10 +34,7 @@ pub fn run(cfg: SnapshotConfig) -> Result<ExitCode> {
         cfg.plan.check_span(lo, hi)?;
     }
     let mut inputs: Vec<PathBuf> = cfg.plan_path.iter().map(PathBuf::from).collect();
-    if let Some(path) = cfg.input.path.as_deref().filter(|p| *p != "-") {
-        let (meta, data) = crate::source::sigmf::paths(path);
-        inputs.extend([path.into(), meta.into(), data.into()]);
-    }
+    inputs.extend(cfg.input.files());
     sink::refuse_overwrite(
         &cfg.out,
         "-o",

@@ -156,6 +156,20 @@ pub struct InputRequest {
     pub listen_public: bool,
 }
 
+impl InputRequest {
+    /// The files the run reads (none for the demo, stdin and network input): the path and, for
+    /// a SigMF name, the recording's metadata and data, so outputs never write over them.
+    pub fn files(&self) -> Vec<std::path::PathBuf> {
+        match self.path.as_deref() {
+            Some(p) if p != "-" && !p.starts_with("tcp://") && !p.starts_with("tcp-listen://") => {
+                let (meta, data) = sigmf::paths(p);
+                vec![p.into(), meta.into(), data.into()]
+            }
+            _ => Vec::new(),
+        }
+    }
+}
+
 /// Opens the source the request names. Messages about guesses go to `notes` (printed on stderr
 /// by the caller) so library code never prints.
 ///
