@@ -49,9 +49,16 @@ impl Broker {
     fn start(bin: PathBuf, dir: &Path) -> Broker {
         let port = free_port();
         let conf = dir.join("mosquitto.conf");
+        // Started as root, Mosquitto drops to its own user (`mosquitto` in the distribution's
+        // package) before it saves its state: that user must be able to write the folder, or the
+        // restart loses the collector's session and with it the records queued for it.
+        let store = dir.join("store");
+        std::fs::create_dir_all(&store).unwrap();
+        std::fs::set_permissions(&store, std::os::unix::fs::PermissionsExt::from_mode(0o777))
+            .unwrap();
         let text = format!(
             "listener {port} 127.0.0.1\nallow_anonymous true\npersistence true\npersistence_location {}/\nmax_queued_messages 0\nautosave_interval 1\n",
-            dir.display()
+            store.display()
         );
         std::fs::write(&conf, text).unwrap();
         let mut b = Broker { bin, conf, port, child: None };
