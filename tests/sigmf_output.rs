@@ -58,6 +58,14 @@ fn run(args: &[&str], stdin: Option<&Path>) -> Output {
     o
 }
 
+/// Writes `seconds` of the demo scene at 1 MS/s in `format` to `out` (extra flags in `more`).
+fn demo(out: &Path, seconds: &str, format: &str, more: &[&str]) {
+    let mut args = vec!["demo", "--rate", "1M", "--seconds", seconds, "--format", format];
+    args.extend(more);
+    args.extend(["-o", out.to_str().unwrap()]);
+    run(&args, None);
+}
+
 fn records(log: &Path) -> Vec<Value> {
     std::fs::read_to_string(log)
         .unwrap()
@@ -78,20 +86,7 @@ fn a_recording_of_standard_input_measures_like_the_original() {
     let dir = tmp("record");
     let orig = dir.join("scene.cu8");
     let rec = dir.join("rec.sigmf-meta");
-    run(
-        &[
-            "demo",
-            "--rate",
-            "1M",
-            "--seconds",
-            "2",
-            "--format",
-            "cu8",
-            "-o",
-            orig.to_str().unwrap(),
-        ],
-        None,
-    );
+    demo(&orig, "2", "cu8", &[]);
     let log = dir.join("log.jsonl");
     let args = [
         "log",
@@ -144,22 +139,7 @@ fn a_recording_of_standard_input_measures_like_the_original() {
 fn annotations_name_the_emissions_the_log_found() {
     let dir = tmp("annotate");
     let scene = dir.join("scene.sigmf-meta");
-    run(
-        &[
-            "demo",
-            "--rate",
-            "1M",
-            "--seconds",
-            "3",
-            "--format",
-            "ci16_le",
-            "--start",
-            "2026-05-01T08:00:00Z",
-            "-o",
-            scene.to_str().unwrap(),
-        ],
-        None,
-    );
+    demo(&scene, "3", "ci16_le", &["--start", "2026-05-01T08:00:00Z"]);
     let truth = validate(&[&scene])[0]["annotations"].as_array().unwrap().len();
     let found = dir.join("found.sigmf-meta");
     let log = dir.join("log.jsonl");
@@ -214,20 +194,7 @@ fn annotations_name_the_emissions_the_log_found() {
 fn annotations_of_standard_input_point_at_the_recording() {
     let dir = tmp("stdin-annotate");
     let orig = dir.join("scene.cf32");
-    run(
-        &[
-            "demo",
-            "--rate",
-            "1M",
-            "--seconds",
-            "2",
-            "--format",
-            "cf32_le",
-            "-o",
-            orig.to_str().unwrap(),
-        ],
-        None,
-    );
+    demo(&orig, "2", "cf32_le", &[]);
     let base = [
         "log",
         "-",
