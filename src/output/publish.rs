@@ -240,7 +240,10 @@ impl Worker {
         if client.try_publish(&status_topic, QoS::AtLeastOnce, true, online).is_ok() {
             unsent.push_back(Tag::Extra);
         }
-        let mut cursor = self.spool.acked();
+        // Records read from the spool and not yet handed to the client, and the position after
+        // the last one read.
+        let mut ahead: VecDeque<(Pos, String)> = VecDeque::new();
+        let mut read_to = self.spool.acked();
         let mut said_goodbye = false;
         loop {
             let stopping = self.stop.load(Ordering::SeqCst);
@@ -262,17 +265,26 @@ impl Worker {
                 }
             }
             if !said_goodbye {
-                // Refill in batches: each read of the spool opens a file.
+                // The spool is read in batches (each read opens a file), but a record is handed
+                // on as soon as the window has room: a publisher that waited for half its window
+                // to be acknowledged before sending more sent nothing while the broker held back
+                // its small PUBACKs (Nagle's algorithm, RFC 896, on a broker socket without
+                // TCP_NODELAY) until our side acknowledged at the TCP level (delayed ACK): a
+                // stall of up to the 20 ms turn, many times a second.
                 let busy = unsent.len() + in_flight.len();
-                let room = WINDOW.saturating_sub(busy);
-                if room >= WINDOW / 2 || busy == 0 {
+                if ahead.is_empty() {
                     let idle = busy == 0 && !stopping;
                     let wait = if idle { Duration::from_millis(20) } else { Duration::ZERO };
-                    for (pos, line) in self.spool.read_from(cursor, room, wait) {
-                        if !self.send(&client, &line, pos, &mut unsent) {
-                            break;
-                        }
-                        cursor = pos;
+                    ahead.extend(self.spool.read_from(read_to, WINDOW, wait));
+                    if let Some((pos, _)) = ahead.back() {
+                        read_to = *pos;
+                    }
+                }
+                while unsent.len() + in_flight.len() < WINDOW {
+                    let Some((pos, line)) = ahead.pop_front() else { break };
+                    if !self.send(&client, &line, pos, &mut unsent) {
+                        ahead.push_front((pos, line));
+                        break;
                     }
                 }
             }
