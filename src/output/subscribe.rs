@@ -6,8 +6,8 @@
 
 use super::collect::{Collector, Taken};
 use super::mqtt::Broker;
-use super::publish::wait_connack;
-use anyhow::Result;
+use super::publish::{wait_connack, Login};
+use anyhow::{bail, Result};
 use rumqttc::{Client, Connection, Event, Outgoing, Packet, Publish, QoS};
 use serde_json::Value;
 use std::collections::VecDeque;
@@ -32,7 +32,11 @@ pub fn collect(
         opts.set_clean_session(false);
         opts.set_manual_acks(true);
         let (client, mut conn) = Client::new(opts, 64);
-        if !wait_connack(&mut conn, &never, None) {
+        let login = wait_connack(&mut conn, &never, None);
+        if let Login::Refused(why) = login {
+            bail!("the broker {}:{} refused the collector: {why}", broker.host, broker.port);
+        }
+        if login == Login::NoAnswer {
             notes(format!(
                 "cannot reach the broker {}:{}; trying again in {:.1} s",
                 broker.host,
