@@ -25,7 +25,7 @@ use crate::pipeline::occupancy::{OccupancyRequest, OccupancySetup};
 use crate::pipeline::stop::Escalation;
 use crate::pipeline::{run_input, Consumer, Input, Run, RunSpec, StopSignals, TimeSource};
 use crate::source::{self};
-use anyhow::{Context, Result};
+use anyhow::{bail, Context, Result};
 use std::path::PathBuf;
 use std::process::ExitCode;
 
@@ -92,8 +92,11 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
     consumers.push(&mut log);
     let outcome = run_input(input, Run::new(spec, consumers), Some(&signals));
     drop(log);
+    let mut refused_login = None;
     if let Some(p) = publisher {
-        notes(&p.finish().notes());
+        let summary = p.finish();
+        notes(&summary.notes());
+        refused_login = summary.refused_login;
     }
     let outcome = outcome?;
 
@@ -109,6 +112,10 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
             "{} input samples were dropped (see the dropped records and their cause: behind means processing fell behind, where a smaller --fft or a lower rate helps; disconnected means a network input's link was down)",
             outcome.end.dropped_samples
         ));
+    }
+    if let Some(why) = refused_login {
+        // A setting to fix, not an outage: the run fails though the local log is complete.
+        bail!("the broker would not take this site's records: {why}; the local log is complete and the records wait in the spool for the next run");
     }
     Ok(ExitCode::SUCCESS)
 }

@@ -6,7 +6,8 @@
 //! (site, `run`, `seq`) was written already is dropped. Records of a run arrive in order (one
 //! client's messages are delivered in the order sent, MQTT 3.1.1 §4.6), so per run it is enough
 //! to remember the highest `seq` written and the holes below it: a `seq` at or below the highest
-//! that is no hole is a copy. A hole is a record that never came (the site's spool was full, or a
+//! that is no hole is a copy. (Mosquitto 2.0 keeps that order only while the subscriber
+//! acknowledges what it gets: see [`super::subscribe`].) A hole is a record that never came (the site's spool was full, or a
 //! broker lost it in a crash); it is reported, and filled if the record comes late.
 //! The files are read back at start, so a collector that restarts writes nothing twice.
 

@@ -13,7 +13,7 @@ use super::mqtt::{topic_level, Broker};
 use super::occupancy_log::RecordTap;
 use super::spool::{Pos, Spool};
 use anyhow::Result;
-use rumqttc::{Client, Connection, Event, LastWill, Outgoing, Packet, QoS};
+use rumqttc::{Client, Connection, ConnectionError, Event, LastWill, Outgoing, Packet, QoS};
 use serde_json::{json, Value};
 use std::collections::{HashMap, VecDeque};
 use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
@@ -44,6 +44,8 @@ pub struct PublishStats {
     pub acked: AtomicU64,
     pub connects: AtomicU64,
     pub lost_links: AtomicU64,
+    /// Why the broker refused the last login, if it did (cleared by a login it accepts).
+    pub refused_login: std::sync::Mutex<Option<String>>,
 }
 
 /// The running publisher: a tap for the log and the thread that empties the spool.
@@ -63,6 +65,8 @@ pub struct PublishSummary {
     pub pending_bytes: u64,
     /// Records the spool's bound refused (they are in the local log only).
     pub refused: u64,
+    /// The broker refused the last login: a setting to fix, why.
+    pub refused_login: Option<String>,
 }
 
 impl PublishSummary {
@@ -106,6 +110,7 @@ impl Publisher {
             stop: stop.clone(),
             stats: stats.clone(),
             online: false,
+            refused: None,
         };
         let thread = std::thread::Builder::new()
             .name("publish".into())
@@ -133,6 +138,7 @@ impl Publisher {
             lost_links: self.stats.lost_links.load(Ordering::SeqCst),
             pending_bytes: self.spool.pending_bytes(),
             refused: self.spool.refused(),
+            refused_login: self.stats.refused_login.lock().map(|r| r.clone()).unwrap_or(None),
         }
     }
 }
@@ -164,6 +170,8 @@ struct Worker {
     stop: Arc<AtomicBool>,
     stats: Arc<PublishStats>,
     online: bool,
+    /// The last reason the broker gave for refusing us, once said.
+    refused: Option<String>,
 }
 
 /// How a connection ended.
@@ -208,6 +216,12 @@ impl Worker {
         }
     }
 
+    fn set_refused_login(&self, why: Option<String>) {
+        if let Ok(mut r) = self.stats.refused_login.lock() {
+            *r = why;
+        }
+    }
+
     fn status(&self, state: &str, reason: &str) -> Vec<u8> {
         let v = json!({"kind": "status", "site": self.cfg.site, "state": state, "reason": reason});
         v.to_string().into_bytes()
@@ -229,8 +243,25 @@ impl Worker {
         ));
         opts.set_inflight(WINDOW as u16 + 4);
         let (client, mut conn) = Client::new(opts, WINDOW * 2 + 8);
-        if !wait_connack(&mut conn, &self.stop, *deadline) {
-            return LinkEnd::Lost;
+        match wait_connack(&mut conn, &self.stop, *deadline) {
+            Login::Accepted => {
+                self.refused = None;
+                self.set_refused_login(None);
+            }
+            Login::NoAnswer => return LinkEnd::Lost,
+            Login::Refused(why) => {
+                // Said once per reason: the log goes on, the records wait in the spool, and the
+                // attempts go on with the back-off in case the broker's settings are mended.
+                if self.refused.as_deref() != Some(why.as_str()) {
+                    crate::messages::note(&format!(
+                        "the broker {}:{} would not take this site's records: {why}; they wait in the spool",
+                        b.host, b.port
+                    ));
+                    self.refused = Some(why.clone());
+                }
+                self.set_refused_login(Some(why));
+                return LinkEnd::Lost;
+            }
         }
         self.online = true;
         self.stats.connects.fetch_add(1, Ordering::Relaxed);
@@ -240,7 +271,10 @@ impl Worker {
         if client.try_publish(&status_topic, QoS::AtLeastOnce, true, online).is_ok() {
             unsent.push_back(Tag::Extra);
         }
-        let mut cursor = self.spool.acked();
+        // Records read from the spool and not yet handed to the client, and the position after
+        // the last one read.
+        let mut ahead: VecDeque<(Pos, String)> = VecDeque::new();
+        let mut read_to = self.spool.acked();
         let mut said_goodbye = false;
         loop {
             let stopping = self.stop.load(Ordering::SeqCst);
@@ -262,17 +296,26 @@ impl Worker {
                 }
             }
             if !said_goodbye {
-                // Refill in batches: each read of the spool opens a file.
+                // The spool is read in batches (each read opens a file), but a record is handed
+                // on as soon as the window has room: a publisher that waited for half its window
+                // to be acknowledged before sending more sent nothing while the broker held back
+                // its small PUBACKs (Nagle's algorithm, RFC 896, on a broker socket without
+                // TCP_NODELAY) until our side acknowledged at the TCP level (delayed ACK): a
+                // stall of up to the 20 ms turn, many times a second.
                 let busy = unsent.len() + in_flight.len();
-                let room = WINDOW.saturating_sub(busy);
-                if room >= WINDOW / 2 || busy == 0 {
+                if ahead.is_empty() {
                     let idle = busy == 0 && !stopping;
                     let wait = if idle { Duration::from_millis(20) } else { Duration::ZERO };
-                    for (pos, line) in self.spool.read_from(cursor, room, wait) {
-                        if !self.send(&client, &line, pos, &mut unsent) {
-                            break;
-                        }
-                        cursor = pos;
+                    ahead.extend(self.spool.read_from(read_to, WINDOW, wait));
+                    if let Some((pos, _)) = ahead.back() {
+                        read_to = *pos;
+                    }
+                }
+                while unsent.len() + in_flight.len() < WINDOW {
+                    let Some((pos, line)) = ahead.pop_front() else { break };
+                    if !self.send(&client, &line, pos, &mut unsent) {
+                        ahead.push_front((pos, line));
+                        break;
                     }
                 }
             }
@@ -320,18 +363,45 @@ impl Worker {
     }
 }
 
-/// Waits for the broker's CONNACK; `false` on an error, a refusal, or after 10 s.
-pub fn wait_connack(conn: &mut Connection, stop: &AtomicBool, deadline: Option<Instant>) -> bool {
+/// How an attempt to log in to the broker ended.
+#[derive(Debug, PartialEq)]
+pub enum Login {
+    Accepted,
+    /// The broker answered and said no (credentials, authorisation) or its certificate failed
+    /// the TLS check: trying again will not help until someone changes a setting. The reason
+    /// is for the user.
+    Refused(String),
+    /// No answer (broker down, network cut, timeout): an outage, tried again later.
+    NoAnswer,
+}
+
+/// Waits for the broker's CONNACK, for up to 10 s.
+pub fn wait_connack(conn: &mut Connection, stop: &AtomicBool, deadline: Option<Instant>) -> Login {
     let give_up = Instant::now() + Duration::from_secs(10);
     while Instant::now() < give_up {
         if stop.load(Ordering::SeqCst) && deadline.is_some_and(|d| Instant::now() >= d) {
-            return false;
+            return Login::NoAnswer;
         }
         match conn.recv_timeout(Duration::from_millis(100)) {
-            Ok(Ok(Event::Incoming(Packet::ConnAck(_)))) => return true,
-            Ok(Err(_)) => return false,
+            Ok(Ok(Event::Incoming(Packet::ConnAck(_)))) => return Login::Accepted,
+            Ok(Err(e)) => return refusal(&e).map_or(Login::NoAnswer, Login::Refused),
             _ => {}
         }
     }
-    false
+    Login::NoAnswer
+}
+
+/// What the user must fix, if the failure `e` is one no retry will cure.
+fn refusal(e: &ConnectionError) -> Option<String> {
+    use rumqttc::ConnectReturnCode as Code;
+    match e {
+        ConnectionError::ConnectionRefused(Code::BadUserNamePassword | Code::NotAuthorized) => Some(
+            "it refused the user name or password (check --mqtt-user and --mqtt-password-file or BANDWARDEN_MQTT_PASSWORD, and the broker's password file)".into(),
+        ),
+        ConnectionError::ConnectionRefused(code) => Some(format!("it refused the connection ({code:?})")),
+        ConnectionError::Tls(t) => Some(format!(
+            "the TLS handshake failed: {t} (check --mqtt-ca: the authority that signed the broker's certificate, whose names must include the host in the address)"
+        )),
+        _ => None,
+    }
 }

@@ -6,10 +6,11 @@
 
 use super::collect::{Collector, Taken};
 use super::mqtt::Broker;
-use super::publish::wait_connack;
-use anyhow::Result;
-use rumqttc::{Client, Event, Packet, QoS};
+use super::publish::{wait_connack, Login};
+use anyhow::{bail, Result};
+use rumqttc::{Client, Connection, Event, Outgoing, Packet, Publish, QoS};
 use serde_json::Value;
+use std::collections::VecDeque;
 use std::sync::atomic::AtomicBool;
 use std::time::{Duration, Instant};
 
@@ -31,7 +32,11 @@ pub fn collect(
         opts.set_clean_session(false);
         opts.set_manual_acks(true);
         let (client, mut conn) = Client::new(opts, 64);
-        if !wait_connack(&mut conn, &never, None) {
+        let login = wait_connack(&mut conn, &never, None);
+        if let Login::Refused(why) = login {
+            bail!("the broker {}:{} refused the collector: {why}", broker.host, broker.port);
+        }
+        if login == Login::NoAnswer {
             notes(format!(
                 "cannot reach the broker {}:{}; trying again in {:.1} s",
                 broker.host,
@@ -44,12 +49,13 @@ pub fn collect(
         }
         backoff = Duration::from_millis(500);
         client.try_subscribe(broker.collect_filter(), QoS::AtLeastOnce)?;
+        let mut acks = Acks::default();
         loop {
             if stopped() {
-                let _ = client.try_disconnect();
-                let _ = conn.recv_timeout(Duration::from_millis(200));
+                acks.flush_then_disconnect(&client, &mut conn);
                 return Ok(());
             }
+            acks.hand_over(&client);
             match conn.recv_timeout(Duration::from_millis(100)) {
                 Ok(Ok(Event::Incoming(Packet::Publish(p)))) => {
                     match broker.split_topic(&p.topic) {
@@ -64,8 +70,9 @@ pub fn collect(
                         }
                         Some(_) | None => {}
                     }
-                    let _ = client.try_ack(&p);
+                    acks.waiting.push_back(p);
                 }
+                Ok(Ok(Event::Outgoing(Outgoing::PubAck(_)))) => acks.sent += 1,
                 Ok(Ok(_)) | Err(_) => {}
                 Ok(Err(e)) => {
                     notes(format!("lost the broker ({e}); reconnecting"));
@@ -75,6 +82,54 @@ pub fn collect(
         }
     }
     Ok(())
+}
+
+/// Acknowledgements on their way to the broker. The client's request queue is bounded and the
+/// event loop takes from it only between incoming packets, so under a burst it fills: an
+/// acknowledgement that does not fit waits here and is handed over on a later turn, in order.
+/// One dropped instead would leave the broker's copy unacknowledged for the rest of the
+/// connection, holding one of its few in-flight slots for this client (Mosquitto allows 20 by
+/// default, `max_inflight_messages`); enough of those and delivery stalls.
+#[derive(Default)]
+struct Acks {
+    waiting: VecDeque<Publish>,
+    /// Handed to the client, and written to the socket (its `Outgoing::PubAck` events).
+    handed: u64,
+    sent: u64,
+}
+
+impl Acks {
+    fn hand_over(&mut self, client: &Client) {
+        while let Some(p) = self.waiting.front() {
+            if client.try_ack(p).is_err() {
+                break;
+            }
+            self.waiting.pop_front();
+            self.handed += 1;
+        }
+    }
+
+    /// At the end: lets the event loop send what was acknowledged (for up to 2 s), then says
+    /// goodbye. What is still unsent then comes again on the next connection and is dropped as
+    /// a copy.
+    fn flush_then_disconnect(&mut self, client: &Client, conn: &mut Connection) {
+        let give_up = Instant::now() + Duration::from_secs(2);
+        while (!self.waiting.is_empty() || self.sent < self.handed) && Instant::now() < give_up {
+            self.hand_over(client);
+            match conn.recv_timeout(Duration::from_millis(50)) {
+                Ok(Ok(Event::Outgoing(Outgoing::PubAck(_)))) => self.sent += 1,
+                Ok(Err(_)) => return,
+                _ => {}
+            }
+        }
+        let _ = client.try_disconnect();
+        while Instant::now() < give_up + Duration::from_millis(200) {
+            match conn.recv_timeout(Duration::from_millis(50)) {
+                Ok(Ok(Event::Outgoing(Outgoing::Disconnect))) | Ok(Err(_)) => return,
+                _ => {}
+            }
+        }
+    }
 }
 
 fn status_note(site: &str, payload: &[u8]) -> String {
