@@ -47,10 +47,6 @@ struct Broker {
 
 impl Broker {
     fn start(bin: PathBuf, dir: &Path) -> Broker {
-        // Started as root (as CI runs), Mosquitto drops to its own user: it must be able to
-        // write its persistence file here, or a restart silently forgets the collector's session.
-        use std::os::unix::fs::PermissionsExt;
-        std::fs::set_permissions(dir, std::fs::Permissions::from_mode(0o777)).unwrap();
         let port = free_port();
         let conf = dir.join("mosquitto.conf");
         // Started as root, Mosquitto drops to its own user (`mosquitto` in the distribution's
@@ -88,7 +84,7 @@ impl Broker {
             signal(&c, "TERM");
             let _ = c.wait();
         }
-        let db = self.conf.with_file_name("mosquitto.db");
+        let db = self.conf.with_file_name("store").join("mosquitto.db");
         assert!(
             db.exists(),
             "the broker saved no persistent state in {}: a restart would lose the collector's queue",
