@@ -11,11 +11,12 @@
 //!
 //! **Bounds.** Memory: the ring and a writer queue of at most [`QUEUE_BYTES`]. Length: an emission
 //! longer than `--capture-max-seconds` is cut there (the file holds its first part, its annotation
-//! says `bandwarden:truncated`). Disk: each capture reserves its largest possible size when it
-//! starts; when that would take the run's captures over `--capture-max-bytes`, capturing stops:
-//! that capture and later ones are skipped (we keep the oldest, which show how a problem began,
-//! and delete nothing the log already names). Each skip is a `capture` record with
-//! `status: "skipped"` and a `cause`.
+//! says `bandwarden:truncated`). Disk: the bytes each capture writes are counted as they are
+//! sent (with [`META_BYTES`] for its meta file); where the next samples would take the run's
+//! captures past `--capture-max-bytes`, every open capture is cut there (saved, `truncated`,
+//! `cause: "disk_cap"`) and capturing stops: later emissions are skipped (we keep the oldest,
+//! which show how a problem began, and delete nothing the log already names). Each skip is a
+//! `capture` record with `status: "skipped"` and a `cause`.
 //!
 //! **Never blocking the DSP.** Files are written by their own thread. With live input a capture
 //! whose samples find the writer's queue full is given up (its partial file deleted) and logged
@@ -100,6 +101,8 @@ struct Active {
     /// The emission, once it has ended.
     note: Option<EmissionNote>,
     truncated: bool,
+    /// Cut where `--capture-max-bytes` was reached.
+    cut_by_cap: bool,
     meta_path: PathBuf,
 }
 
@@ -114,9 +117,8 @@ pub struct Captures {
     active: Vec<Active>,
     abandon: Vec<u64>,
     next_id: u64,
-    /// Bytes of closed captures plus the reservations of open ones.
+    /// Bytes the run's captures hold: samples sent to their files, and [`META_BYTES`] each.
     committed: u64,
-    reserve: u64,
     pre_n: u64,
     post_n: u64,
     max_n: u64,
@@ -163,7 +165,6 @@ impl Captures {
             abandon: Vec::new(),
             next_id: 0,
             committed: 0,
-            reserve: 0,
             pre_n: 0,
             post_n: 0,
             max_n: 0,
@@ -253,13 +254,14 @@ impl Captures {
         let id = self.next_id;
         let (meta_path, data_path, _) = self.file_names(&label, start);
         self.next_id += 1;
-        if self.committed + self.reserve > self.set.max_bytes {
-            self.skip(&label, start, "disk_cap");
-            return;
-        }
         let file_start = start.saturating_sub(self.pre_n).max(self.ring.first());
         let mut buf = self.buffer();
         self.ring.copy_from(file_start, &mut buf);
+        let pre_bytes = buf.len() as u64 * self.format.bytes_per_sample() as u64;
+        if self.committed + META_BYTES + pre_bytes > self.set.max_bytes {
+            self.skip(&label, start, "disk_cap");
+            return;
+        }
         let next = file_start + buf.len() as u64;
         if !self.send(Job::Open { id, data: data_path }) {
             self.skip(&label, start, "disk_behind");
@@ -270,7 +272,7 @@ impl Captures {
             self.skip(&label, start, "disk_behind");
             return;
         }
-        self.committed += self.reserve;
+        self.committed += META_BYTES + pre_bytes;
         self.active.push(Active {
             id,
             key,
@@ -281,6 +283,7 @@ impl Captures {
             stop: start + self.max_n,
             note: None,
             truncated: false,
+            cut_by_cap: false,
             meta_path,
         });
     }
@@ -295,7 +298,7 @@ impl Captures {
         let a = &mut self.active[k];
         if end_sample > a.emission_start + self.max_n {
             a.truncated = true;
-        } else {
+        } else if !a.cut_by_cap {
             a.stop = end_sample + self.post_n;
         }
         a.note = Some(note);
@@ -329,8 +332,16 @@ impl Captures {
     /// Writes what `block` holds for capture `k`; true when the capture is complete.
     fn feed(&mut self, k: usize, block: &Block) -> bool {
         let end = block.start + block.samples.len() as u64;
+        let bps = self.format.bytes_per_sample() as u64;
+        let a = &mut self.active[k];
+        let (from, mut to) = (a.next.max(block.start), a.stop.min(end));
+        let room = (self.set.max_bytes.saturating_sub(self.committed)) / bps;
+        if from < to && to - from > room {
+            // The disk cap: this capture ends here, and no other starts.
+            to = from + room;
+            (a.stop, a.truncated, a.cut_by_cap) = (to, true, true);
+        }
         let a = &self.active[k];
-        let (from, to) = (a.next.max(block.start), a.stop.min(end));
         if from < to {
             let mut buf = self.buffer();
             buf.extend_from_slice(
@@ -340,10 +351,11 @@ impl Captures {
             if !self.send(Job::Samples { id, samples: buf }) {
                 self.abandon.push(id);
                 let a = self.active.swap_remove(k);
-                self.committed -= self.reserve;
+                self.committed -= META_BYTES + (a.next - a.file_start) * bps;
                 self.skip(&a.label, a.emission_start, "disk_behind");
                 return false;
             }
+            self.committed += (to - from) * bps;
             self.active[k].next = to;
         }
         let a = &self.active[k];
@@ -353,18 +365,20 @@ impl Captures {
     /// Closes capture `k`: its meta file names the samples written and the emission.
     fn close(&mut self, k: usize) {
         let a = self.active.swap_remove(k);
-        self.committed -= self.reserve;
         let clock = self.clock();
         let count = a.next.min(a.stop) - a.file_start;
         let meta = self.meta(&a, count, &clock);
-        let bytes = count * self.format.bytes_per_sample() as u64;
+        let bps = self.format.bytes_per_sample() as u64;
+        let bytes = count * bps;
+        // Samples sent past an end that came later are cut off the file by the writer.
+        self.committed -= (a.next - a.file_start - count) * bps;
         let job = Job::Close { id: a.id, samples: count, meta_path: a.meta_path.clone(), meta };
         if !self.send(job) {
             self.abandon.push(a.id);
+            self.committed -= META_BYTES + bytes;
             self.skip(&a.label, a.emission_start, "disk_behind");
             return;
         }
-        self.committed += bytes + META_BYTES;
         self.counts.saved += 1;
         self.counts.bytes += bytes;
         let end = a.file_start + count;
@@ -372,7 +386,7 @@ impl Captures {
             channel: a.label.clone(),
             status: "saved".into(),
             file: Some(a.meta_path.to_string_lossy().into_owned()),
-            cause: None,
+            cause: a.cut_by_cap.then(|| "disk_cap".into()),
             t_start_s: clock.seconds(a.file_start),
             t_end_s: Some(clock.seconds(end)),
             start: clock.stamp(a.file_start),
@@ -427,9 +441,6 @@ impl Consumer for Captures {
         let n = |s: f64| (s * self.rate).ceil() as u64;
         (self.pre_n, self.post_n, self.max_n) =
             (n(self.set.pre_s), n(self.set.post_s), n(self.set.max_s).max(1));
-        self.reserve = (self.pre_n + self.max_n + self.post_n)
-            * self.format.bytes_per_sample() as u64
-            + META_BYTES;
         // The emission is announced when the tracker settles the row that found it (two rows
         // later) and after the block that completed that row: the ring holds those too.
         let e = &run.engine;

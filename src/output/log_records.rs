@@ -127,7 +127,8 @@ pub struct CaptureRecord {
     /// The capture's `.sigmf-meta` (its data is the `.sigmf-data` beside it); `null` if skipped.
     pub file: Option<String>,
     /// Why it was skipped: `disk_cap` (`--capture-max-bytes` reached) or `disk_behind` (the disk
-    /// could not keep up with live input).
+    /// could not keep up with live input); for a saved capture, `disk_cap` when the cap cut it
+    /// short (it is then `truncated`).
     pub cause: Option<String>,
     /// The span of IQ in the file (a skipped capture: the emission's start, no end).
     pub t_start_s: f64,

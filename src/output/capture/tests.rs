@@ -131,22 +131,42 @@ fn each_burst_is_saved_with_the_seconds_around_it() {
 }
 
 #[test]
-fn the_disk_cap_stops_capturing_and_says_so() {
+fn the_disk_cap_cuts_the_capture_that_reaches_it_and_skips_the_rest() {
     let n = 2 * FS as usize;
     let x = band(n, &[Keyed { offset_hz: 20e3, level_dbfs: -30.0, on: &on }], 12);
-    // Each capture reserves (pre + max + post) samples, (0.1 + 30 + 0.05) s × 200 kS/s × 8 bytes
-    // = 48.24 MB (plus 4 kB of meta); after the first file (0.65 s: 1.04 MB) is saved, a second
-    // reservation would take the total to 49.3 MB, over a cap of 49 MB.
-    let (caps, records) = captures_of(&x, settings("cap", 49_000_000));
-    assert_eq!(caps.counts.saved, 1, "{records:?}");
-    assert_eq!(caps.counts.skipped_disk_cap, 1);
+    // The first capture is 0.65 s (0.1 s before the burst, 0.5 s of it, 0.05 s after) × 200 kS/s
+    // × 8 bytes = 1.04 MB; a cap of 1.3 MB leaves the second (0.4 s, 640 kB) about 250 kB.
+    let cap = 1_300_000;
+    let (caps, records) = captures_of(&x, settings("cap", cap));
+    let saved: Vec<&CaptureRecord> = records
+        .iter()
+        .filter_map(|r| match r {
+            Record::Capture(c) => Some(c),
+            _ => None,
+        })
+        .collect();
+    assert_eq!(caps.counts.saved, 2, "{records:?}");
+    assert!(!saved[0].truncated && saved[0].cause.is_none(), "{:?}", saved[0]);
+    let cut = saved[1];
+    assert!(cut.truncated && cut.cause.as_deref() == Some("disk_cap"), "{cut:?}");
+    // Everything written, meta files counted as META_BYTES each, stays within the cap, and the
+    // cut file holds what was left of it.
+    let total = saved[0].bytes + cut.bytes + 2 * META_BYTES;
+    assert!(total <= cap && total > cap - 8, "{total}");
+    let data =
+        std::fs::read(PathBuf::from(cut.file.as_ref().unwrap()).with_extension("sigmf-data"));
+    assert_eq!(data.unwrap().len() as u64, cut.bytes);
+
+    // A cap below the first capture's pre-trigger samples (0.1 s: 160 kB) skips both.
+    let (caps, records) = captures_of(&x, settings("cap-small", 100_000));
+    assert_eq!((caps.counts.saved, caps.counts.skipped_disk_cap), (0, 2), "{records:?}");
     let skipped = records.iter().find_map(|r| match r {
         Record::Capture(c) if c.status == "skipped" => Some(c),
         _ => None,
     });
     let s = skipped.expect("a skipped record");
     assert_eq!(s.cause.as_deref(), Some("disk_cap"));
-    assert!((s.t_start_s - 1.25).abs() < 0.013);
+    assert!((s.t_start_s - 0.25).abs() < 0.013);
 }
 
 #[test]
