@@ -49,6 +49,17 @@ fn captures_of(x: &[Complex32], set: CaptureSettings) -> (Captures, Vec<Record>)
     (caps, records)
 }
 
+/// The `capture` records among `records`.
+fn capture_records(records: &[Record]) -> Vec<&CaptureRecord> {
+    records
+        .iter()
+        .filter_map(|r| match r {
+            Record::Capture(c) => Some(c),
+            _ => None,
+        })
+        .collect()
+}
+
 fn settings(name: &str, max_bytes: u64) -> CaptureSettings {
     let dir =
         std::env::temp_dir().join(format!("bandwarden-capture-{}-{name}", std::process::id()));
@@ -89,13 +100,7 @@ fn each_burst_is_saved_with_the_seconds_around_it() {
     let x = band(n, &[Keyed { offset_hz: 20e3, level_dbfs: -30.0, on: &on }], 11);
     let (caps, records) = captures_of(&x, settings("bursts", 1 << 30));
     assert_eq!(caps.counts.saved, 2, "{records:?}");
-    let saved: Vec<&CaptureRecord> = records
-        .iter()
-        .filter_map(|r| match r {
-            Record::Capture(c) => Some(c),
-            _ => None,
-        })
-        .collect();
+    let saved = capture_records(&records);
     assert_eq!(saved.len(), 2);
     for (c, (t0, t1)) in saved.iter().zip([(0.25, 0.75), (1.25, 1.5)]) {
         assert_eq!(c.status, "saved");
@@ -138,13 +143,7 @@ fn the_disk_cap_cuts_the_capture_that_reaches_it_and_skips_the_rest() {
     // × 8 bytes = 1.04 MB; a cap of 1.3 MB leaves the second (0.4 s, 640 kB) about 250 kB.
     let cap = 1_300_000;
     let (caps, records) = captures_of(&x, settings("cap", cap));
-    let saved: Vec<&CaptureRecord> = records
-        .iter()
-        .filter_map(|r| match r {
-            Record::Capture(c) => Some(c),
-            _ => None,
-        })
-        .collect();
+    let saved = capture_records(&records);
     assert_eq!(caps.counts.saved, 2, "{records:?}");
     assert!(!saved[0].truncated && saved[0].cause.is_none(), "{:?}", saved[0]);
     let cut = saved[1];
