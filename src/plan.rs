@@ -206,7 +206,7 @@ pub fn parse_channel_flag(text: &str) -> Result<Channel, String> {
     })
 }
 
-/// Highest accepted threshold, dB (see [`MAX_THRESHOLD_DB`]); a run's default threshold is checked
+/// Highest accepted threshold, dB (see `MAX_THRESHOLD_DB`); a run's default threshold is checked
 /// against it too.
 pub fn check_threshold_db(threshold_db: f64) -> Result<()> {
     if !(threshold_db > 0.0 && threshold_db <= MAX_THRESHOLD_DB) {

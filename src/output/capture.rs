@@ -12,7 +12,7 @@
 //! **Bounds.** Memory: the ring and a writer queue of at most [`QUEUE_BYTES`]. Length: an emission
 //! longer than `--capture-max-seconds` is cut there (the file holds its first part, its annotation
 //! says `bandwarden:truncated`). Disk: the bytes each capture writes are counted as they are
-//! sent (with [`META_BYTES`] for its meta file); where the next samples would take the run's
+//! sent (with `META_BYTES` for its meta file); where the next samples would take the run's
 //! captures past `--capture-max-bytes`, every open capture is cut there (saved, `truncated`,
 //! `cause: "disk_cap"`) and capturing stops: later emissions are skipped (we keep the oldest,
 //! which show how a problem began, and delete nothing the log already names). Each skip is a

@@ -268,7 +268,7 @@ fn raster_down(hz: f64) -> Option<f64> {
     best
 }
 
-/// Channel widths for a plan: each emitter's OBW rounded up to the raster ([`RASTER`]). Where
+/// Channel widths for a plan: each emitter's OBW rounded up to the raster (`RASTER`). Where
 /// that would overlap a neighbour, the distance between the two centres is shared in proportion
 /// to their OBWs and the width is the largest raster step inside its share (or the share itself
 /// when no step fits), so the plan's channels never overlap and `log --plan` takes it.
