@@ -184,21 +184,27 @@ fn site(name: &str, dir: &Path, relay: u16, seconds: u32, seed: u32) -> (Child, 
     (demo, logger, log)
 }
 
-fn lines(path: &Path) -> Vec<String> {
-    std::fs::read_to_string(path).unwrap_or_default().lines().map(String::from).collect()
-}
-
-#[test]
-fn two_sites_lose_nothing_across_a_cut_link_and_a_broker_restart() {
-    let Some(bin) = mosquitto() else {
+/// Mosquitto, or `None` where the test may be skipped (a note says so); in CI its absence fails.
+fn mosquitto_or_skip() -> Option<PathBuf> {
+    let bin = mosquitto();
+    if bin.is_none() {
         if std::env::var("CI").is_ok_and(|v| v == "true") {
             panic!(
                 "mosquitto is not installed: .ci/run installs it with apt-get install -y mosquitto"
             );
         }
         eprintln!("note: mosquitto is not installed (apt-get install -y mosquitto); test skipped");
-        return;
-    };
+    }
+    bin
+}
+
+fn lines(path: &Path) -> Vec<String> {
+    std::fs::read_to_string(path).unwrap_or_default().lines().map(String::from).collect()
+}
+
+#[test]
+fn two_sites_lose_nothing_across_a_cut_link_and_a_broker_restart() {
+    let Some(bin) = mosquitto_or_skip() else { return };
     let dir = std::env::temp_dir().join(format!("bw-net-mqtt-{}", std::process::id()));
     let _ = std::fs::remove_dir_all(&dir);
     std::fs::create_dir_all(&dir).unwrap();
@@ -268,15 +274,7 @@ fn two_sites_lose_nothing_across_a_cut_link_and_a_broker_restart() {
 /// order, and at last stops delivering (seen with Mosquitto 2.0).
 #[test]
 fn a_burst_from_two_sites_arrives_whole_and_in_order() {
-    let Some(bin) = mosquitto() else {
-        if std::env::var("CI").is_ok_and(|v| v == "true") {
-            panic!(
-                "mosquitto is not installed: .ci/run installs it with apt-get install -y mosquitto"
-            );
-        }
-        eprintln!("note: mosquitto is not installed (apt-get install -y mosquitto); test skipped");
-        return;
-    };
+    let Some(bin) = mosquitto_or_skip() else { return };
     let dir = std::env::temp_dir().join(format!("bw-net-burst-{}", std::process::id()));
     let _ = std::fs::remove_dir_all(&dir);
     std::fs::create_dir_all(&dir).unwrap();

@@ -79,6 +79,19 @@ fn assert_holds_carrier(meta: &Path) {
     assert!((l + 30.0).abs() < 0.1, "{tone}");
 }
 
+/// On from 0.5 s to 1.0 s and from 2.0 s to 2.5 s: the keying of the generated test carriers.
+fn keyed_twice(i: u64, fs: f64) -> bool {
+    let t = i as f64 / fs;
+    (0.5..1.0).contains(&t) || (2.0..2.5).contains(&t)
+}
+
+/// Writes samples as raw cf32_le.
+fn write_cf32(path: &Path, x: &[num_complex::Complex32]) {
+    let bytes: Vec<u8> =
+        x.iter().flat_map(|s| [s.re.to_le_bytes(), s.im.to_le_bytes()]).flatten().collect();
+    std::fs::write(path, bytes).unwrap();
+}
+
 fn records(log: &Path) -> Vec<Value> {
     std::fs::read_to_string(log)
         .unwrap()
@@ -248,16 +261,11 @@ fn annotations_of_standard_input_point_at_the_recording() {
 fn captures_hold_the_emission() {
     let dir = tmp("capture");
     let fs = 200e3;
-    let on = |i: u64| {
-        let t = i as f64 / fs;
-        (0.5..1.0).contains(&t) || (2.0..2.5).contains(&t)
-    };
+    let on = |i: u64| keyed_twice(i, fs);
     let carrier = bandwarden::testkit::Keyed { offset_hz: 20e3, level_dbfs: -30.0, on: &on };
     let x = bandwarden::testkit::keyed_band(3 * fs as usize, fs, 1e-4, &[carrier], 5);
     let raw = dir.join("burst.cf32");
-    let bytes: Vec<u8> =
-        x.iter().flat_map(|s| [s.re.to_le_bytes(), s.im.to_le_bytes()]).flatten().collect();
-    std::fs::write(&raw, bytes).unwrap();
+    write_cf32(&raw, &x);
     let caps = dir.join("caps");
     let log = dir.join("log.jsonl");
     run(
@@ -304,10 +312,7 @@ fn captures_hold_the_emission() {
 fn census_annotates_and_captures_what_it_finds() {
     let dir = tmp("census");
     let fs = 200e3;
-    let keyed = |i: u64| {
-        let t = i as f64 / fs;
-        (0.5..1.0).contains(&t) || (2.0..2.5).contains(&t)
-    };
+    let keyed = |i: u64| keyed_twice(i, fs);
     let steady = |_: u64| true;
     let carriers = [
         bandwarden::testkit::Keyed { offset_hz: 20e3, level_dbfs: -30.0, on: &keyed },
@@ -315,9 +320,7 @@ fn census_annotates_and_captures_what_it_finds() {
     ];
     let x = bandwarden::testkit::keyed_band(3 * fs as usize, fs, 1e-4, &carriers, 7);
     let raw = dir.join("two.cf32");
-    let bytes: Vec<u8> =
-        x.iter().flat_map(|s| [s.re.to_le_bytes(), s.im.to_le_bytes()]).flatten().collect();
-    std::fs::write(&raw, bytes).unwrap();
+    write_cf32(&raw, &x);
     let (found, caps, rec) =
         (dir.join("found.sigmf-meta"), dir.join("caps"), dir.join("rec.sigmf-meta"));
     let o = run(

@@ -30,7 +30,6 @@ use crate::plan::{Plan, DEFAULT_THRESHOLD_DB};
 use crate::source::{self, sanitize};
 use anyhow::{bail, Result};
 use std::io::Write;
-use std::path::PathBuf;
 use std::process::ExitCode;
 
 /// Most signals taken from one row, and most emitters kept.
@@ -51,11 +50,7 @@ pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
     let setup = OccupancySetup::new(&info, &cfg.dsp, &Plan::default(), &request)?;
     let inputs = cfg.input.files();
     if let Some(out) = &cfg.plan_out {
-        sink::refuse_overwrite(
-            out,
-            "--plan-out",
-            &inputs.iter().map(PathBuf::as_path).collect::<Vec<_>>(),
-        )?;
+        sink::refuse_overwrite(out, "--plan-out", &inputs)?;
     }
     let settings = CensusSettings {
         detection: cfg.detection,

@@ -46,11 +46,7 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
 
     let mut inputs: Vec<PathBuf> = cfg.channels.plan_path.iter().map(PathBuf::from).collect();
     inputs.extend(cfg.input.files());
-    sink::refuse_overwrite(
-        &cfg.out,
-        "-o",
-        &inputs.iter().map(PathBuf::as_path).collect::<Vec<_>>(),
-    )?;
+    sink::refuse_overwrite(&cfg.out, "-o", &inputs)?;
     let log = match cfg.rotate {
         None => {
             let out = sink::open(&cfg.out, cfg.append, "log")?;

@@ -82,7 +82,6 @@ impl SigmfOutputs {
         info: &SourceInfo,
         inputs: &[PathBuf],
     ) -> Result<AnnotationWriter> {
-        let refs: Vec<&Path> = inputs.iter().map(PathBuf::as_path).collect();
         let dataset = match self.recorder.as_ref() {
             Some(rec) => {
                 let meta = rec.meta_path().to_path_buf();
@@ -93,7 +92,7 @@ impl SigmfOutputs {
         let (meta, _) = sigmf_write::pair(path).map_err(anyhow::Error::msg)?;
         let is_own_meta = matches!(&dataset, Dataset::Sigmf { meta: m, .. } | Dataset::Recording { meta: m, .. } if same(m, &meta));
         if !is_own_meta {
-            sink::refuse_overwrite(&meta.to_string_lossy(), "--annotate", &refs)?;
+            sink::refuse_overwrite(&meta.to_string_lossy(), "--annotate", inputs)?;
         }
         AnnotationWriter::new(path, dataset)
     }
@@ -161,9 +160,8 @@ pub fn recorder(
 ) -> Result<Recorder> {
     let (meta, data) = sigmf_write::pair(path).map_err(anyhow::Error::msg)?;
     let inputs = input.files();
-    let refs: Vec<&Path> = inputs.iter().map(PathBuf::as_path).collect();
     for p in [&meta, &data] {
-        sink::refuse_overwrite(&p.to_string_lossy(), "--record", &refs)?;
+        sink::refuse_overwrite(&p.to_string_lossy(), "--record", &inputs)?;
     }
     Recorder::create(path, info.format, block_len)
 }

@@ -35,11 +35,7 @@ pub fn run(cfg: SnapshotConfig) -> Result<ExitCode> {
     }
     let mut inputs: Vec<PathBuf> = cfg.plan_path.iter().map(PathBuf::from).collect();
     inputs.extend(cfg.input.files());
-    sink::refuse_overwrite(
-        &cfg.out,
-        "-o",
-        &inputs.iter().map(PathBuf::as_path).collect::<Vec<_>>(),
-    )?;
+    sink::refuse_overwrite(&cfg.out, "-o", &inputs)?;
 
     let skip = (cfg.skip_s * rate).round() as u64;
     let max_samples = cfg.seconds.map(|s| skip + (s * rate).round() as u64);

@@ -10,7 +10,7 @@
 use anyhow::{bail, Context, Result};
 use std::io::{self, Read, Seek, SeekFrom, Write};
 use std::os::fd::AsFd;
-use std::path::Path;
+use std::path::PathBuf;
 
 /// An opened output and whether it is empty (so a CSV header is still needed there).
 pub struct Sink {
@@ -51,7 +51,7 @@ pub fn open(path: &str, append: bool, what: &str) -> Result<Sink> {
 /// Refuses to write over any of `inputs` (the input recording, the plan): opening the output
 /// would truncate what is about to be read.
 /// Refuses to write `out` (given with `flag`) when it is one of the files the run reads.
-pub fn refuse_overwrite(out: &str, flag: &str, inputs: &[&Path]) -> Result<()> {
+pub fn refuse_overwrite(out: &str, flag: &str, inputs: &[PathBuf]) -> Result<()> {
     use std::os::unix::fs::MetadataExt;
     if out == "-" {
         return Ok(());
@@ -137,8 +137,8 @@ mod tests {
         s.out.write_all(b"x\n").unwrap();
         drop(s);
         assert!(std::fs::read_to_string(&p).unwrap().ends_with("}\nx\n"));
-        assert!(refuse_overwrite(p.to_str().unwrap(), "-o", &[&p]).is_err());
-        assert!(refuse_overwrite(p.to_str().unwrap(), "-o", &[&dir.join("other")]).is_ok());
+        assert!(refuse_overwrite(p.to_str().unwrap(), "-o", std::slice::from_ref(&p)).is_err());
+        assert!(refuse_overwrite(p.to_str().unwrap(), "-o", &[dir.join("other")]).is_ok());
     }
 
     #[test]
