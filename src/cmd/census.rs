@@ -16,8 +16,7 @@ use crate::measure::census::{Census, CensusSettings};
 use crate::measure::occupancy::DEFAULT_INTERVAL_S;
 use crate::messages::{note, notes};
 use crate::output::capture::Triggers;
-use crate::output::census::{to_json_value, to_plan, to_table, CensusConsumer};
-use crate::output::log::Record;
+use crate::output::census::{capture_list, to_json_value, to_plan, to_table, CensusConsumer};
 use crate::output::occupancy_log::SideRecords;
 use crate::output::progress::Progress;
 use crate::output::sigmf_write;
@@ -129,7 +128,7 @@ pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
     let text = if cfg.json {
         let mut v = to_json_value(result);
         if cfg.sigmf.capture.is_some() {
-            v["captures"] = capture_records(&side);
+            v["captures"] = capture_list(&side);
         }
         format!("{v}\n")
     } else {
@@ -144,18 +143,4 @@ pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
         file.flush()?;
     }
     Ok(ExitCode::SUCCESS)
-}
-
-/// The capture records of the run (one per emission captured or skipped), as the log writes
-/// them.
-fn capture_records(side: &SideRecords) -> serde_json::Value {
-    let list: Vec<serde_json::Value> = side
-        .borrow()
-        .iter()
-        .filter_map(|r| match r {
-            Record::Capture(c) => serde_json::to_value(c).ok(),
-            _ => None,
-        })
-        .collect();
-    serde_json::Value::Array(list)
 }

@@ -3,6 +3,8 @@
 
 use super::annotate::{comment, AnnotateSummary, AnnotationWriter, EmissionNote};
 use super::capture::{Trigger, Triggers};
+use super::log::Record;
+use super::occupancy_log::SideRecords;
 use crate::dsp::Spectrum;
 use crate::measure::census::{
     frequency_name, Census, CensusEvent, CensusResult, Emission, EmitterFigures,
@@ -142,6 +144,20 @@ impl Consumer for CensusConsumer {
         }
         Ok(())
     }
+}
+
+/// The capture records of a run (one per emission captured or skipped) as a JSON list, as the
+/// log writes them, for `census --json`.
+pub fn capture_list(side: &SideRecords) -> serde_json::Value {
+    let list: Vec<serde_json::Value> = side
+        .borrow()
+        .iter()
+        .filter_map(|r| match r {
+            Record::Capture(c) => serde_json::to_value(c).ok(),
+            _ => None,
+        })
+        .collect();
+    serde_json::Value::Array(list)
 }
 
 /// Rounds to `digits` decimals, for output that reads like the measurement's precision.
