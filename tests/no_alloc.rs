@@ -147,8 +147,8 @@ fn occupancy_rows_allocate_nothing() {
 /// counted blocks: what is counted is what every row costs.
 fn log_rows_allocate_nothing(threads: usize) {
     use bandwarden::dsp::DspConfig;
+    use bandwarden::output::log::occupancy::OccupancyLog;
     use bandwarden::output::log::{LogFormat, LogWriter};
-    use bandwarden::output::occupancy_log::OccupancyLog;
     use bandwarden::output::progress::Progress;
     use bandwarden::pipeline::occupancy::{OccupancyRequest, OccupancySetup};
     use bandwarden::pipeline::{Run, RunSpec};

@@ -4,9 +4,9 @@ use super::common::{parse_seconds, ChannelArgs, ChannelConfig, DspArgs, InputArg
 use super::net::PublishArgs;
 use super::sigmf_out::{EmissionOutArgs, RecordArgs, SigmfOut};
 use crate::dsp::DspConfig;
+use crate::net::publish::PublishConfig;
+use crate::output::log::rotation::{parse_rotate, Rotate};
 use crate::output::log::LogFormat;
-use crate::output::publish::PublishConfig;
-use crate::output::rotation::{parse_rotate, Rotate};
 use crate::source::InputRequest;
 use crate::units::parse_duration;
 use anyhow::{bail, Result};

@@ -1,9 +1,9 @@
 //! Flags of the monitoring network: publishing the log (`log --publish`) and collecting it
 //! (`collect`), and how both reach the broker (credentials, TLS).
 
-use crate::output::mqtt::{check_site, parse_url, read_password, Broker, TlsFiles, PASSWORD_ENV};
-use crate::output::publish::PublishConfig;
-use crate::output::rotation::{parse_rotate, Rotate};
+use crate::net::mqtt::{check_site, parse_url, read_password, Broker, TlsFiles, PASSWORD_ENV};
+use crate::net::publish::PublishConfig;
+use crate::output::log::rotation::{parse_rotate, Rotate};
 use crate::units::parse_duration;
 use anyhow::{bail, Result};
 use clap::Args;
@@ -163,7 +163,7 @@ impl CollectArgs {
         let client_id = self.client_id.unwrap_or_else(|| {
             format!(
                 "bandwarden-collect-{}",
-                crate::output::mqtt::topic_level(&broker.prefix).replace('/', "_")
+                crate::net::mqtt::topic_level(&broker.prefix).replace('/', "_")
             )
         });
         if client_id.is_empty() || client_id.len() > 23 * 8 {

@@ -1,7 +1,7 @@
 //! `report` flags and their validation.
 
 use super::snapshot::parse_colour_map;
-use crate::tui::colour::MapKind;
+use crate::output::picture::colour::MapKind;
 use anyhow::{bail, Result};
 use clap::Args;
 

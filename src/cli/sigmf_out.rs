@@ -2,8 +2,8 @@
 //! census).
 
 use super::common::parse_seconds;
-pub use crate::output::capture::CaptureSettings as CaptureConfig;
-use crate::output::rotation::{parse_rotate, Rotate};
+use crate::output::log::rotation::{parse_rotate, Rotate};
+pub use crate::output::sigmf::capture::CaptureSettings as CaptureConfig;
 use anyhow::{bail, Result};
 use clap::Args;
 
@@ -19,7 +19,7 @@ pub struct RecordArgs {
 impl RecordArgs {
     pub fn validate(self) -> Result<Option<String>> {
         if let Some(r) = &self.record {
-            crate::output::sigmf_write::pair(r).map_err(anyhow::Error::msg)?;
+            crate::output::sigmf::write::pair(r).map_err(anyhow::Error::msg)?;
         }
         Ok(self.record)
     }
@@ -84,7 +84,7 @@ pub const MAX_PRE_POST_S: f64 = 60.0;
 impl EmissionOutArgs {
     pub fn validate(self) -> Result<(Option<String>, Option<CaptureConfig>)> {
         if let Some(a) = &self.annotate {
-            crate::output::sigmf_write::pair(a).map_err(anyhow::Error::msg)?;
+            crate::output::sigmf::write::pair(a).map_err(anyhow::Error::msg)?;
         }
         for (flag, v) in [("--pre", self.pre), ("--post", self.post)] {
             if v > MAX_PRE_POST_S {

@@ -3,10 +3,10 @@
 use super::common::{parse_db, parse_seconds, DspArgs, InputArgs, PlanArgs};
 use super::watch::MAX_REF_OFFSET_DB;
 use crate::dsp::DspConfig;
-use crate::output::canvas::{PictureFormat, MAX_SIDE, MIN_SIDE};
+use crate::output::picture::canvas::{PictureFormat, MAX_SIDE, MIN_SIDE};
+use crate::output::picture::colour::MapKind;
 use crate::plan::Plan;
 use crate::source::InputRequest;
-use crate::tui::colour::MapKind;
 use anyhow::{bail, Result};
 use clap::Args;
 

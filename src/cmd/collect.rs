@@ -1,10 +1,10 @@
 //! `bandwarden collect`: gather what the sites of a monitoring network publish into one JSON
-//! Lines file per site ([`crate::output::collect`]), until Ctrl-C or SIGTERM.
+//! Lines file per site ([`crate::net::collect`]), until Ctrl-C or SIGTERM.
 
 use crate::cli::CollectConfig;
 use crate::messages::note;
-use crate::output::collect::Collector;
-use crate::output::subscribe::collect;
+use crate::net::collect::Collector;
+use crate::net::subscribe::collect;
 use crate::pipeline::stop::Escalation;
 use crate::pipeline::StopSignals;
 use anyhow::Result;

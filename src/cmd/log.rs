@@ -14,11 +14,11 @@
 use super::sigmf_out::{SigmfOutputs, SigmfRequest};
 use crate::cli::LogConfig;
 use crate::messages::{note, notes};
+use crate::net::publish::Publisher;
+use crate::output::log::occupancy::OccupancyLog;
+use crate::output::log::rotation::{Opener, Rotation};
 use crate::output::log::LogWriter;
-use crate::output::occupancy_log::OccupancyLog;
 use crate::output::progress::Progress;
-use crate::output::publish::Publisher;
-use crate::output::rotation::{Opener, Rotation};
 use crate::output::sink;
 use crate::pipeline::input::unattended_options;
 use crate::pipeline::occupancy::{OccupancyRequest, OccupancySetup};

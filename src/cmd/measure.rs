@@ -3,10 +3,10 @@
 use crate::cli::MeasureConfig;
 use crate::measure::occupancy::{ChannelDef, DEFAULT_HANG_S, DEFAULT_INTERVAL_S};
 use crate::messages::notes;
-use crate::output::on_air::OnAirBands;
+use crate::output::report::on_air::OnAirBands;
+use crate::output::report::whole::WholeInput;
 use crate::output::report::{build_report, channel_rows, InputCounts, ReportSettings};
 use crate::output::sink;
-use crate::output::whole::WholeInput;
 use crate::pipeline::occupancy::{OccupancyRequest, OccupancySetup};
 use crate::pipeline::{run_input, Input, Run, RunSpec};
 use crate::source::reader::ReaderOptions;

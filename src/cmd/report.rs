@@ -1,13 +1,13 @@
-//! `bandwarden report`: summarise occupancy logs (see [`crate::output::log_summary`] for how they
+//! `bandwarden report`: summarise occupancy logs (see [`crate::output::summary`] for how they
 //! are read and summed) as a table, CSV or JSON on standard output, and optionally a heat map.
 
 use crate::cli::report::ReportFormat;
 use crate::cli::ReportConfig;
 use crate::messages::{note, notes, sanitize};
-use crate::output::heatmap::{draw_heatmap, grid, Columns};
-use crate::output::log_summary::{LogSummary, Seen};
+use crate::output::picture::heatmap::{draw_heatmap, grid, Columns};
 use crate::output::sink;
-use crate::output::summary_table::{to_csv, to_json, to_table};
+use crate::output::summary::table::{to_csv, to_json, to_table};
+use crate::output::summary::{LogSummary, Seen};
 use anyhow::{bail, Context, Result};
 use std::io::{BufReader, Write};
 use std::process::ExitCode;

@@ -5,11 +5,12 @@
 use crate::cli::sigmf_out::SigmfOut;
 use crate::cli::CaptureConfig;
 use crate::messages::{note, sanitize};
-use crate::output::annotate::{AnnotateSummary, AnnotationWriter, Dataset, LogAnnotations};
-use crate::output::capture::Captures;
-use crate::output::occupancy_log::SideRecords;
-use crate::output::record::{RecordStatus, Recorder};
-use crate::output::{sigmf_write, sink};
+use crate::output::log::occupancy::SideRecords;
+use crate::output::sigmf::annotate::{AnnotateSummary, AnnotationWriter, Dataset, LogAnnotations};
+use crate::output::sigmf::capture::Captures;
+use crate::output::sigmf::record::{RecordStatus, Recorder};
+use crate::output::sigmf::write as sigmf_write;
+use crate::output::sink;
 use crate::pipeline::Consumer;
 use crate::plan::Plan;
 use crate::source::{sigmf, InputRequest, SourceInfo};
@@ -144,7 +145,7 @@ pub fn annotated_note(s: &AnnotateSummary, path: &Path) {
         text.push_str(&format!(
             "; {} more emissions were left out (at most {} a file)",
             s.left_out,
-            crate::output::annotate::MAX_ANNOTATIONS
+            crate::output::sigmf::annotate::MAX_ANNOTATIONS
         ));
     }
     clause(&mut text, s.not_in_dataset, "emissions lie where the recording lost its samples");

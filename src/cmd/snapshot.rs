@@ -7,10 +7,12 @@
 
 use crate::cli::SnapshotConfig;
 use crate::messages::{note, notes};
-use crate::output::picture::{draw_waterfall, ChannelBand, PictureSettings, WaterfallView};
+use crate::output::picture::snapshot::{Snapshot, SnapshotPlan};
+use crate::output::picture::waterfall::{
+    draw_waterfall, ChannelBand, PictureSettings, WaterfallView,
+};
 use crate::output::progress::Progress;
 use crate::output::sink;
-use crate::output::snapshot::{Snapshot, SnapshotPlan};
 use crate::pipeline::stop::Escalation;
 use crate::pipeline::{run_input, Input, Run, RunSpec, StopSignals, TimeSource};
 use crate::source::reader::ReaderOptions;
@@ -113,7 +115,7 @@ pub fn run(cfg: SnapshotConfig) -> Result<ExitCode> {
         sanitize(&cfg.out),
         cfg.width,
         cfg.height,
-        crate::output::snapshot::format_duration(got.timeline.duration_s())
+        crate::output::picture::snapshot::format_duration(got.timeline.duration_s())
     ));
     Ok(ExitCode::SUCCESS)
 }

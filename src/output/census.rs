@@ -1,14 +1,14 @@
 //! The census as a pipeline consumer, and its three forms of output: a table, one JSON object,
 //! and a channel plan in the TOML format `log --plan` reads.
 
-use super::annotate::{comment, AnnotateSummary, AnnotationWriter, EmissionNote};
-use super::capture::{Trigger, Triggers};
-use super::log::Record;
-use super::occupancy_log::SideRecords;
 use crate::dsp::Spectrum;
 use crate::measure::census::{
     frequency_name, Census, CensusEvent, CensusResult, Emission, EmitterFigures,
 };
+use crate::output::log::occupancy::SideRecords;
+use crate::output::log::Record;
+use crate::output::sigmf::annotate::{comment, AnnotateSummary, AnnotationWriter, EmissionNote};
+use crate::output::sigmf::capture::{Trigger, Triggers};
 use crate::pipeline::{Consumer, Flow, GapCause, RunEnd, RunInfo};
 use serde_json::json;
 use std::collections::HashMap;

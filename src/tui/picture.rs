@@ -1,5 +1,5 @@
 //! Picture (`g`): the history the monitor holds drawn as a PNG waterfall, with the same drawing
-//! code as `bandwarden snapshot` ([`crate::output::picture::draw_waterfall`]), written to the
+//! code as `bandwarden snapshot` ([`crate::output::picture::waterfall::draw_waterfall`]), written to the
 //! current directory as `bandwarden-YYYYMMDDTHHMMSSZ.png` (the UTC time of writing).
 //!
 //! The picture covers the newest stretch of history that shares one frequency grid (a change of
@@ -10,9 +10,9 @@
 
 use super::app::App;
 use super::history::Row;
-use crate::output::canvas::PictureFormat;
-use crate::output::held_rows::HeldRow;
-use crate::output::picture::{
+use crate::output::picture::canvas::PictureFormat;
+use crate::output::picture::held_rows::HeldRow;
+use crate::output::picture::waterfall::{
     draw_waterfall, ChannelBand, PictureSettings, Timeline, WaterfallView,
 };
 use crate::output::sink;

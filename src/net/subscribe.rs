@@ -4,9 +4,9 @@
 //! ([`Collector::take`]), so a collector that dies in between gets it again, never loses it.
 //! The link is re-established with a back-off doubling from 0.5 s to 30 s.
 
-use super::collect::{Collector, Taken};
-use super::mqtt::Broker;
-use super::publish::{wait_connack, Login};
+use crate::net::collect::{Collector, Taken};
+use crate::net::mqtt::Broker;
+use crate::net::publish::{wait_connack, Login};
 use anyhow::{bail, Result};
 use rumqttc::{Client, Connection, Event, Outgoing, Packet, Publish, QoS};
 use serde_json::Value;

@@ -5,10 +5,10 @@
 //! the occupancy rounded to a whole percent; a cell where nothing was measured is grey and empty,
 //! so a hole never passes for a quiet channel.
 
-use super::canvas::{drawing, render_png, TickedAxis, FAMILY};
-use super::log_summary::{LogSummary, Tally};
-use super::summary_table::ordered;
-use crate::tui::colour::MapKind;
+use crate::output::picture::canvas::{drawing, render_png, TickedAxis, FAMILY};
+use crate::output::picture::colour::MapKind;
+use crate::output::summary::table::ordered;
+use crate::output::summary::{LogSummary, Tally};
 use anyhow::Result;
 use plotters::coord::Shift;
 use plotters::prelude::*;
@@ -211,5 +211,9 @@ fn draw_legend<DB: DrawingBackend>(
         .axis_desc_style((FAMILY, 13).into_font().color(&TEXT))
         .draw()
         .map_err(drawing)?;
-    super::canvas::draw_gradient(root, chart.plotting_area().get_pixel_range(), map)
+    crate::output::picture::canvas::draw_gradient(
+        root,
+        chart.plotting_area().get_pixel_range(),
+        map,
+    )
 }

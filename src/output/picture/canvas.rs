@@ -14,7 +14,7 @@ use plotters::style::FontStyle;
 use std::sync::Once;
 
 /// The face every picture's text is set in (Bitstream Vera licence, see `assets/fonts`).
-const FONT: &[u8] = include_bytes!("../../assets/fonts/DejaVuSans.ttf");
+const FONT: &[u8] = include_bytes!("../../../assets/fonts/DejaVuSans.ttf");
 /// The family name the drawing code asks for.
 pub const FAMILY: &str = "sans-serif";
 
@@ -106,7 +106,7 @@ pub fn drawing<E: std::fmt::Display>(e: E) -> anyhow::Error {
     anyhow!("cannot draw the picture: {e}")
 }
 
-/// A linear axis `low..high` whose ticks are the given values: the ticks of [`super::ticks`],
+/// A linear axis `low..high` whose ticks are the given values: the ticks of [`crate::output::picture::ticks`],
 /// chosen for the reader (round clock times, round frequencies), not the library's own. Values
 /// map to pixels as the library's own linear axes do.
 #[derive(Clone, Debug)]
@@ -149,7 +149,7 @@ impl plotters::coord::ranged1d::Ranged for TickedAxis {
 pub fn draw_gradient<DB: DrawingBackend>(
     root: &DrawingArea<DB, plotters::coord::Shift>,
     (x, y): (std::ops::Range<i32>, std::ops::Range<i32>),
-    map: crate::tui::colour::MapKind,
+    map: crate::output::picture::colour::MapKind,
 ) -> Result<()> {
     let (w, h) = ((x.end - x.start).max(1) as usize, (y.end - y.start).max(1) as usize);
     let mut rgb = vec![0u8; w * h * 3];

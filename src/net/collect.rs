@@ -7,7 +7,7 @@
 //! client's messages are delivered in the order sent, MQTT 3.1.1 §4.6), so per run it is enough
 //! to remember the highest `seq` written and the holes below it: a `seq` at or below the highest
 //! that is no hole is a copy. (Mosquitto 2.0 keeps that order only while the subscriber
-//! acknowledges what it gets: see [`super::subscribe`].) A hole is a record that never came (the site's spool was full, or a
+//! acknowledges what it gets: see [`crate::net::subscribe`].) A hole is a record that never came (the site's spool was full, or a
 //! broker lost it in a crash); it is reported, and filled if the record comes late.
 //! The files are read back at start, so a collector that restarts writes nothing twice.
 
@@ -127,7 +127,7 @@ impl Collector {
     /// Writes a record of `site` unless it is a copy; returns after the line is flushed (only
     /// then may the broker be told it arrived).
     pub fn take(&mut self, site: &str, payload: &[u8]) -> Result<Taken> {
-        let (Ok(line), Ok(())) = (std::str::from_utf8(payload), super::mqtt::check_site(site))
+        let (Ok(line), Ok(())) = (std::str::from_utf8(payload), crate::net::mqtt::check_site(site))
         else {
             self.malformed += 1;
             return Ok(Taken::Malformed);

@@ -19,8 +19,8 @@
 //! [`AnnotationWriter`] takes a plain [`EmissionNote`], so any command that finds emissions
 //! feeds it; [`LogAnnotations`] is the occupancy log's consumer that does.
 
-use super::sigmf_write::{self, NAMESPACE};
 use crate::measure::occupancy::Event;
+use crate::output::sigmf::write::{self as sigmf_write, NAMESPACE};
 use crate::pipeline::{Consumer, RunEnd, RunInfo};
 use crate::plan::Plan;
 use crate::source::SampleFormat;

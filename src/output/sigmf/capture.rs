@@ -24,12 +24,12 @@
 //! never dropped anywhere in bandwarden, so there the DSP waits for the disk instead; so it does
 //! under `--no-drop`.
 
-use super::annotate::{annotation, note_of, EmissionNote};
-use super::capture_writer::{self, Job, Ring, WriterError};
-use super::log::{CaptureRecord, Record};
-use super::occupancy_log::SideRecords;
-use super::sigmf_write::{self, NAMESPACE};
 use crate::measure::occupancy::Event;
+use crate::output::log::occupancy::SideRecords;
+use crate::output::log::{CaptureRecord, Record};
+use crate::output::sigmf::annotate::{annotation, note_of, EmissionNote};
+use crate::output::sigmf::capture_writer::{self, Job, Ring, WriterError};
+use crate::output::sigmf::write::{self as sigmf_write, NAMESPACE};
 use crate::pipeline::{Clock, Consumer, GapCause, RunEnd, RunInfo};
 use crate::plan::Plan;
 use crate::source::reader::Block;

@@ -25,7 +25,7 @@
 //! The meta file is rewritten (whole, through a rename) at the start, at each new segment and at
 //! the end, so a recording cut by a crash is still a valid SigMF pair up to its last write.
 
-use super::sigmf_write::{self, NAMESPACE};
+use crate::output::sigmf::write::{self as sigmf_write, NAMESPACE};
 use crate::pipeline::{Clock, Consumer, GapCause, RunEnd, RunInfo};
 use crate::source::reader::Block;
 use crate::source::SampleFormat;

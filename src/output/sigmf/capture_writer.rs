@@ -2,7 +2,7 @@
 //! pre-trigger part comes from, and the thread that writes capture files so the DSP never waits
 //! for a disk.
 
-use super::sigmf_write;
+use crate::output::sigmf::write as sigmf_write;
 use crate::source::SampleFormat;
 use crossbeam_channel::{Receiver, Sender};
 use num_complex::Complex32;

@@ -59,7 +59,11 @@
 //! record fills the columns it has and leaves the others empty, so one file holds every kind and
 //! the `kind` column tells them apart.
 
-pub use super::log_records::*;
+pub mod occupancy;
+pub mod records;
+pub mod rotation;
+
+pub use crate::output::log::records::*;
 use serde_json::Value;
 use std::io::{self, Write};
 

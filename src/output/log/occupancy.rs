@@ -1,12 +1,12 @@
 //! The occupancy log as a pipeline consumer: the run's settings, then every interval, emission
-//! and gap as it becomes final, then why the run stopped. The record schema is in [`super::log`].
+//! and gap as it becomes final, then why the run stopped. The record schema is in [`crate::output::log`].
 
-use super::log::{
+use crate::measure::occupancy::{Event, FLOOR_MEMORY_S, FLOOR_SMOOTHING_S, OBW_PERCENT};
+use crate::output::log::rotation::Rotation;
+use crate::output::log::{
     ChannelRecord, DroppedRecord, EmissionRecord, IntervalRecord, LogWriter, Record, Stamped,
     StartRecord, StopRecord,
 };
-use super::rotation::Rotation;
-use crate::measure::occupancy::{Event, FLOOR_MEMORY_S, FLOOR_SMOOTHING_S, OBW_PERCENT};
 use crate::pipeline::clock::rfc3339_ms;
 use crate::pipeline::occupancy::OccupancySetup;
 use crate::pipeline::{Consumer, GapCause, RunEnd, RunInfo};
@@ -27,7 +27,7 @@ pub trait RecordTap {
 /// after the log's own record of the same moment, in the order they came.
 pub type SideRecords = Rc<RefCell<Vec<Record>>>;
 
-/// Writes the log of one run, into one file or a rotated series ([`super::rotation`]).
+/// Writes the log of one run, into one file or a rotated series ([`crate::output::log::rotation`]).
 pub struct OccupancyLog<W: Write> {
     writer: Option<LogWriter<W>>,
     rotation: Option<Rotation<W>>,

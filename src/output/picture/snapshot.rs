@@ -1,15 +1,15 @@
 //! `snapshot` as a consumer: every row of the run averaged into the picture's rows (bounded
-//! memory, see [`super::held_rows`]), emissions found on the way if asked, and at the end the
+//! memory, see [`crate::output::picture::held_rows`]), emissions found on the way if asked, and at the end the
 //! title and footer that say what the picture shows and how it was measured.
 //!
 //! `--skip` is applied here: the input is read and transformed from its start (a pipe cannot be
 //! sought), and rows that begin before the skip are left out, so the picture's time axis starts at
 //! the first row after it.
 
-use super::held_rows::{HeldRows, RowAccumulator};
-use super::marks::EmissionFinder;
-use super::picture::{Mark, Timeline};
 use crate::dsp::Spectrum;
+use crate::output::picture::held_rows::{HeldRows, RowAccumulator};
+use crate::output::picture::marks::EmissionFinder;
+use crate::output::picture::waterfall::{Mark, Timeline};
 use crate::pipeline::{Consumer, Flow, RunEnd, RunInfo, TimeSource};
 use crate::units::{format_hz, format_num};
 use std::io;
@@ -127,7 +127,7 @@ impl Collected {
         let dur = format_duration(self.timeline.duration_s());
         match self.timeline.start {
             Some(t) => {
-                let t = super::ticks::utc_text(t);
+                let t = crate::output::picture::ticks::utc_text(t);
                 format!("Waterfall of {label}, {t} + {dur}")
             }
             None => {

@@ -14,7 +14,7 @@
 //! `site.2026-12-02T06-48-59.001.jsonl` (by size: the time of the file's first record, numbered
 //! within the second).
 
-use super::log::{LogFormat, LogWriter};
+use crate::output::log::{LogFormat, LogWriter};
 use std::io::{self, Write};
 use time::macros::format_description;
 use time::{OffsetDateTime, UtcOffset};

@@ -6,12 +6,12 @@
 //! record leaves the spool when the broker acknowledges it; after a lost connection the
 //! publisher reconnects (back-off doubling from 0.5 s to [`MAX_BACKOFF`]) and sends again from the
 //! first unacknowledged record, so the broker may see a record twice (the collector drops the
-//! copy by its id) but never loses one. Topics and payloads: see [`super::mqtt`].
+//! copy by its id) but never loses one. Topics and payloads: see [`crate::net::mqtt`].
 
-use super::log::Stamped;
-use super::mqtt::{topic_level, Broker};
-use super::occupancy_log::RecordTap;
-use super::spool::{Pos, Spool};
+use crate::net::mqtt::{topic_level, Broker};
+use crate::net::spool::{Pos, Spool};
+use crate::output::log::occupancy::RecordTap;
+use crate::output::log::Stamped;
 use anyhow::Result;
 use rumqttc::{Client, Connection, ConnectionError, Event, LastWill, Outgoing, Packet, QoS};
 use serde_json::{json, Value};

@@ -21,10 +21,12 @@
 //! overlap; a pixel row where no sample was measured (input lost) is drawn as a grey checker, so a
 //! hole never passes for a quiet band.
 
-use super::canvas::{drawing, PictureFormat, TickedAxis, FAMILY};
-use super::held_rows::{HeldRow, HeldRows};
-use super::ticks::{freq_ticks, freq_unit, round_step, ticks_within, time_ticks, FreqUnit};
-use crate::tui::colour::MapKind;
+use crate::output::picture::canvas::{drawing, PictureFormat, TickedAxis, FAMILY};
+use crate::output::picture::colour::MapKind;
+use crate::output::picture::held_rows::{HeldRow, HeldRows};
+use crate::output::picture::ticks::{
+    freq_ticks, freq_unit, round_step, ticks_within, time_ticks, FreqUnit,
+};
 use crate::units::{db, undb};
 use anyhow::Result;
 use plotters::coord::Shift;
@@ -132,12 +134,12 @@ pub fn draw_waterfall(
     let scale = settings.scale.unwrap_or_else(|| auto_scale(view, settings.ref_offset_db));
     let (w, h) = (settings.width, settings.height);
     match format {
-        PictureFormat::Png => {
-            super::canvas::render_png(w, h, |root| draw_on(root, view, timeline, settings, scale))
-        }
-        PictureFormat::Svg => {
-            super::canvas::render_svg(w, h, |root| draw_on(root, view, timeline, settings, scale))
-        }
+        PictureFormat::Png => crate::output::picture::canvas::render_png(w, h, |root| {
+            draw_on(root, view, timeline, settings, scale)
+        }),
+        PictureFormat::Svg => crate::output::picture::canvas::render_svg(w, h, |root| {
+            draw_on(root, view, timeline, settings, scale)
+        }),
     }
 }
 
@@ -475,5 +477,9 @@ fn draw_bar<DB: DrawingBackend>(
         .axis_desc_style(label_font())
         .draw()
         .map_err(drawing)?;
-    super::canvas::draw_gradient(root, chart.plotting_area().get_pixel_range(), map)
+    crate::output::picture::canvas::draw_gradient(
+        root,
+        chart.plotting_area().get_pixel_range(),
+        map,
+    )
 }

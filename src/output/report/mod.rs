@@ -10,16 +10,19 @@
 //! xdb_bandwidth_hz` over the whole recording, then `on_air_pct` (share of measurement samples in
 //! which the band was on the air) and `on_air_obw_hz, on_air_obw_low_hz, on_air_obw_high_hz,
 //! on_air_xdb_bandwidth_hz` over those samples only, noise taken off (null if never on the air;
-//! see [`super::on_air`]).
+//! see [`crate::output::report::on_air`]).
 //! `channels[]` (only with `--channel`/`--plan`): `name, center_hz, width_hz, power_dbfs, obw_hz,
 //! occupancy_pct, samples, dwell_s`.
 
-use super::on_air::OnAirFigures;
+pub mod on_air;
+pub mod whole;
+
 use crate::dsp::{Spectrum, Window};
 use crate::measure::stats::gamma_quantile_unit_mean;
 use crate::measure::{
     band_power, find_signals, noise_floor, occupied_bandwidth, xdb_bandwidth, Detection,
 };
+use crate::output::report::on_air::OnAirFigures;
 use crate::plan::Plan;
 use crate::source::InputIssues;
 use crate::units::{db, format_hz, format_hz_short};

@@ -1,5 +1,5 @@
 //! Serialize-only record types of the occupancy log; the schema is documented in
-//! [`super::log`].
+//! [`crate::output::log`].
 
 use serde::Serialize;
 

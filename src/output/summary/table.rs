@@ -4,8 +4,8 @@
 //! from several sites stands on neighbouring rows, side by side. Hours are UTC hours of the day
 //! (0–23, summed over days) when the log has clock times, else hours from the start of the run.
 
-use super::log_summary::{percentile, ChannelSum, LogSummary};
-use super::snapshot::format_duration;
+use crate::output::picture::snapshot::format_duration;
+use crate::output::summary::{percentile, ChannelSum, LogSummary};
 use serde_json::{json, Value};
 use std::fmt::Write as _;
 

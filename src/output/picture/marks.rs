@@ -9,11 +9,11 @@
 //! what it is). At most [`MAX_MARKS`] boxes are kept, the strongest, so memory stays bounded for
 //! any length of input and a picture stays readable.
 
-use super::picture::Mark;
-use super::ticks::freq_unit;
 use crate::dsp::{Spectrum, Window};
 use crate::measure::noise::NoiseFloor;
 use crate::measure::signals::{find_signals, Detection};
+use crate::output::picture::ticks::freq_unit;
+use crate::output::picture::waterfall::Mark;
 
 /// Rows a box stays open without a detection.
 pub const HANG_ROWS: u64 = 2;

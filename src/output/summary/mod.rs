@@ -1,4 +1,4 @@
-//! Reading occupancy logs written by `log` (JSON Lines, see [`super::log`]) and summing them per
+//! Reading occupancy logs written by `log` (JSON Lines, see [`crate::output::log`]) and summing them per
 //! channel: over the whole period, per UTC hour, and the emissions.
 //!
 //! **Exact, sample-weighted occupancy.** A channel's occupancy over any stretch is its occupied
@@ -18,6 +18,8 @@
 //! **Damaged files.** A line that is not a JSON object (a power cut mid-write leaves a partial
 //! last line) is skipped with a note naming the file and line; lines of kinds this version does
 //! not know are ignored.
+
+pub mod table;
 
 use std::collections::{BTreeMap, HashSet};
 use std::io::BufRead;
