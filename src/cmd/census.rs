@@ -16,9 +16,7 @@ use crate::measure::census::{Census, CensusSettings};
 use crate::measure::occupancy::DEFAULT_INTERVAL_S;
 use crate::messages::{note, notes};
 use crate::output::census::{capture_list, to_json_value, to_plan, to_table, CensusConsumer};
-use crate::output::log::occupancy::SideRecords;
 use crate::output::progress::Progress;
-use crate::output::sigmf::capture::Triggers;
 use crate::output::sigmf::write as sigmf_write;
 use crate::output::sink;
 use crate::pipeline::input::unattended_options;
@@ -63,7 +61,6 @@ pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
 
     let signals = StopSignals::install(false, Escalation::SecondSignalExits)?;
     let (opts, total) = unattended_options(&info, cfg.seconds, false);
-    let side = SideRecords::default();
     // The census writes its own annotations (labelled with the emitters' names).
     let sigmf_request = SigmfRequest { annotate: None, ..SigmfRequest::of(&cfg.sigmf, false) };
     let mut sigmf_out = SigmfOutputs::new(
@@ -73,22 +70,18 @@ pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
         &Plan::default(),
         &inputs,
         opts.block_len,
-        side.clone(),
     )?;
     let mut census = CensusConsumer::new(Census::new(settings));
     if let Some(path) = &cfg.sigmf.annotate {
         census =
             census.with_annotations(sigmf_out.annotation_writer(path, &cfg.input, &info, &inputs)?);
     }
-    if let Some(captures) = sigmf_out.captures.take() {
-        let triggers = Triggers::default();
-        census = census.with_triggers(triggers.clone());
-        sigmf_out.captures = Some(captures.with_triggers(triggers));
+    if sigmf_out.captures.is_some() {
+        census = census.with_triggers();
     }
     let mut progress = Progress::for_file(total, info.sample_rate_hz);
     let input = Input::start(src, opts);
-    // The recording first (annotations of a recording read its finished metadata); the
-    // captures after the census that triggers them.
+    // The recording first (annotations of a recording read its finished metadata).
     let mut consumers: Vec<&mut dyn Consumer> = vec![&mut progress];
     if let Some(r) = sigmf_out.recorder.as_mut() {
         consumers.push(r);
@@ -128,7 +121,7 @@ pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
     let text = if cfg.json {
         let mut v = to_json_value(result);
         if cfg.sigmf.capture.is_some() {
-            v["captures"] = capture_list(&side);
+            v["captures"] = capture_list(&census.captures);
         }
         format!("{v}\n")
     } else {

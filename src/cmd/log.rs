@@ -78,9 +78,8 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
     let signals = StopSignals::install(false, Escalation::SecondSignalExits)?;
     let (opts, total) = unattended_options(&info, cfg.seconds, cfg.no_drop);
     let request = SigmfRequest::of(&cfg.sigmf, cfg.no_drop);
-    let side = log.side_records();
     let mut sigmf_out =
-        SigmfOutputs::new(request, &cfg.input, &info, plan, &inputs, opts.block_len, side)?;
+        SigmfOutputs::new(request, &cfg.input, &info, plan, &inputs, opts.block_len)?;
     let mut progress = Progress::for_file(total, info.sample_rate_hz);
     let input = Input::start(src, opts);
     let mut consumers: Vec<&mut dyn Consumer> = vec![&mut progress];

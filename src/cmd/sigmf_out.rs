@@ -5,7 +5,6 @@
 use crate::cli::sigmf_out::SigmfOut;
 use crate::cli::CaptureConfig;
 use crate::messages::{note, sanitize};
-use crate::output::log::occupancy::SideRecords;
 use crate::output::sigmf::annotate::{AnnotateSummary, AnnotationWriter, Dataset, LogAnnotations};
 use crate::output::sigmf::capture::Captures;
 use crate::output::sigmf::record::{RecordStatus, Recorder};
@@ -56,7 +55,6 @@ impl SigmfOutputs {
         plan: &Plan,
         inputs: &[PathBuf],
         block_len: usize,
-        side: SideRecords,
     ) -> Result<SigmfOutputs> {
         let mut out = SigmfOutputs::default();
         if let Some(r) = req.record {
@@ -67,7 +65,7 @@ impl SigmfOutputs {
             out.annotations = Some(LogAnnotations::new(writer, plan));
         }
         if let Some(c) = req.capture {
-            let captures = Captures::new(c.clone(), plan, info.format, block_len, side)?;
+            let captures = Captures::new(c.clone(), plan, info.format, block_len)?;
             out.captures = Some(captures.waiting(req.wait));
         }
         Ok(out)

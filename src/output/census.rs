@@ -5,11 +5,10 @@ use crate::dsp::Spectrum;
 use crate::measure::census::{
     frequency_name, Census, CensusEvent, CensusResult, Emission, EmitterFigures,
 };
-use crate::output::log::occupancy::SideRecords;
-use crate::output::log::Record;
+use crate::output::log::CaptureRecord;
 use crate::output::sigmf::annotate::{comment, AnnotateSummary, AnnotationWriter, EmissionNote};
-use crate::output::sigmf::capture::{Trigger, Triggers};
-use crate::pipeline::{Consumer, Flow, GapCause, RunEnd, RunInfo};
+use crate::output::sigmf::capture::Trigger;
+use crate::pipeline::{Consumer, Flow, GapCause, Letter, Post, RunEnd, RunInfo};
 use serde_json::json;
 use std::collections::HashMap;
 use std::fmt::Write as _;
@@ -17,14 +16,18 @@ use std::io;
 
 /// Feeds every complete row to the census and measures it when the run ends; with
 /// [`CensusConsumer::with_annotations`] writes every emission as a SigMF annotation, with
-/// [`CensusConsumer::with_triggers`] tells the captures when emissions begin and end.
+/// [`CensusConsumer::with_triggers`] tells the captures when emissions begin and end (a
+/// [`Trigger`] letter each), and keeps the capture records that come back for `--json`.
 pub struct CensusConsumer {
     census: Option<Census>,
     result: Option<CensusResult>,
     annotations: Option<AnnotationWriter>,
     /// What the annotation file came to, once written.
     pub annotated: Option<AnnotateSummary>,
-    triggers: Option<Triggers>,
+    /// Where triggers go, when captures want them.
+    triggers: Option<Post>,
+    /// The capture records of the run, in the order they came.
+    pub captures: Vec<CaptureRecord>,
     /// Names of the emissions open now, by track (their detected centre when they began).
     open: HashMap<u64, String>,
 }
@@ -37,6 +40,7 @@ impl CensusConsumer {
             annotations: None,
             annotated: None,
             triggers: None,
+            captures: Vec::new(),
             open: HashMap::new(),
         }
     }
@@ -47,11 +51,11 @@ impl CensusConsumer {
         self
     }
 
-    /// Pushes a [`Trigger`] as each emission begins and ends (named from its detected centre, as
+    /// Sends a [`Trigger`] as each emission begins and ends (named from its detected centre, as
     /// emitters are; the final names are given only when the census ends).
-    pub fn with_triggers(mut self, triggers: Triggers) -> CensusConsumer {
+    pub fn with_triggers(mut self) -> CensusConsumer {
         self.census = self.census.take().map(Census::with_events);
-        self.triggers = Some(triggers);
+        self.triggers = Some(Post::default());
         self
     }
 
@@ -63,18 +67,17 @@ impl CensusConsumer {
     /// The census's events since the last call, as triggers.
     fn pass_events(&mut self) {
         let (Some(c), Some(q)) = (self.census.as_mut(), self.triggers.as_ref()) else { return };
-        let mut q = q.borrow_mut();
         for ev in c.take_events() {
             match ev {
                 CensusEvent::Opened { id, start_sample, center_hz } => {
                     let label = frequency_name(center_hz);
                     self.open.insert(id, label.clone());
-                    q.push(Trigger::Begin { key: id, label, start: start_sample });
+                    q.send(Trigger::Begin { key: id, label, start: start_sample });
                 }
                 CensusEvent::Closed { id, emission } => {
                     let centre = (emission.low_hz + emission.high_hz) / 2.0;
                     let label = self.open.remove(&id).unwrap_or_else(|| frequency_name(centre));
-                    q.push(Trigger::End { key: id, note: emission_note(&emission, label, None) });
+                    q.send(Trigger::End { key: id, note: emission_note(&emission, label, None) });
                 }
             }
         }
@@ -109,6 +112,19 @@ pub fn emission_note(e: &Emission, label: String, emitter_center_hz: Option<f64>
 }
 
 impl Consumer for CensusConsumer {
+    fn connect(&mut self, post: &Post) {
+        if let Some(t) = self.triggers.as_mut() {
+            *t = post.clone();
+        }
+    }
+
+    fn mail(&mut self, letter: &Letter, _run: &RunInfo) -> io::Result<()> {
+        if let Some(c) = letter.read::<CaptureRecord>() {
+            self.captures.push(c.clone());
+        }
+        Ok(())
+    }
+
     fn row(&mut self, row: &Spectrum) -> io::Result<Flow> {
         if let Some(c) = self.census.as_mut() {
             c.push(row);
@@ -125,11 +141,16 @@ impl Consumer for CensusConsumer {
         Ok(())
     }
 
-    fn finish(&mut self, end: &RunEnd, run: &RunInfo) -> io::Result<()> {
+    /// Ends the emissions still open, so the captures they started are closed with them.
+    fn ending(&mut self, end: &RunEnd, _run: &RunInfo) -> io::Result<()> {
         if let Some(c) = self.census.as_mut() {
             c.end_tracks(end.end_sample);
         }
         self.pass_events();
+        Ok(())
+    }
+
+    fn finish(&mut self, end: &RunEnd, run: &RunInfo) -> io::Result<()> {
         if let Some(c) = self.census.take() {
             self.result = c.finish(end.end_sample);
         }
@@ -148,15 +169,9 @@ impl Consumer for CensusConsumer {
 
 /// The capture records of a run (one per emission captured or skipped) as a JSON list, as the
 /// log writes them, for `census --json`.
-pub fn capture_list(side: &SideRecords) -> serde_json::Value {
-    let list: Vec<serde_json::Value> = side
-        .borrow()
-        .iter()
-        .filter_map(|r| match r {
-            Record::Capture(c) => serde_json::to_value(c).ok(),
-            _ => None,
-        })
-        .collect();
+pub fn capture_list(captures: &[CaptureRecord]) -> serde_json::Value {
+    let list: Vec<serde_json::Value> =
+        captures.iter().filter_map(|c| serde_json::to_value(c).ok()).collect();
     serde_json::Value::Array(list)
 }
 

@@ -32,11 +32,13 @@ pub mod clock;
 pub mod input;
 pub mod latest;
 pub mod occupancy;
+pub mod outbox;
 pub mod run;
 pub mod stop;
 
 pub use clock::Clock;
 pub use input::Input;
+pub use outbox::{Letter, Post};
 pub use run::{run_input, Run, RunSpec};
 pub use stop::{StopReason, StopSignals};
 
@@ -122,7 +124,17 @@ pub struct RunEnd {
 
 /// Whatever takes part in a run. Every method has a default that does nothing, so a consumer
 /// implements only what it uses. An `Err` ends the run: the pipeline passes the first error on.
+///
+/// The end of a run comes in three stages, with the mail of each delivered to everyone before
+/// the next begins, so that a chain such as finder → capture → log works whatever the order of
+/// the consumer list: [`Consumer::ending`] (end what you follow and say so), [`Consumer::settle`]
+/// (close your own work and post your last records), [`Consumer::finish`] (write your last
+/// output).
 pub trait Consumer {
+    /// Once, when the run is built: where to send letters to the other consumers
+    /// ([`outbox`]).
+    fn connect(&mut self, _post: &Post) {}
+
     /// Once, before the first block (see the module's rules).
     fn start(&mut self, _run: &RunInfo) -> io::Result<()> {
         Ok(())
@@ -153,12 +165,30 @@ pub trait Consumer {
         Ok(())
     }
 
+    /// A letter another consumer (or this one) sent; every consumer gets every letter and reads
+    /// the kinds it knows ([`Letter::read`]).
+    fn mail(&mut self, _letter: &Letter, _run: &RunInfo) -> io::Result<()> {
+        Ok(())
+    }
+
     /// Asked between blocks and while waiting for one (at least every 100 ms).
     fn poll(&mut self) -> Flow {
         Flow::Continue
     }
 
-    /// Once, at the end of every run that started, whatever the reason.
+    /// First stage of the end: no more samples will come. End what you follow (emissions) and
+    /// send what that means to the others.
+    fn ending(&mut self, _end: &RunEnd, _run: &RunInfo) -> io::Result<()> {
+        Ok(())
+    }
+
+    /// Second stage: close your own work (files being written) and send your last letters.
+    fn settle(&mut self, _end: &RunEnd, _run: &RunInfo) -> io::Result<()> {
+        Ok(())
+    }
+
+    /// Last stage, once at the end of every run that started, whatever the reason: write your
+    /// last output.
     fn finish(&mut self, _end: &RunEnd, _run: &RunInfo) -> io::Result<()> {
         Ok(())
     }

@@ -7,6 +7,7 @@
 //! error ends the run as `input_error`) and finishes every consumer.
 
 use super::input::Input;
+use super::outbox::Outbox;
 use super::stop::{StopReason, StopSignals};
 use super::{Clock, Consumer, Flow, GapCause, RunEnd, RunInfo, TimeSource};
 use crate::dsp::{Engine, EngineConfig, Spectrum};
@@ -72,6 +73,7 @@ pub struct Run<'a> {
     tracker: Option<Occupancy>,
     events: Vec<Event>,
     consumers: Vec<&'a mut dyn Consumer>,
+    outbox: Outbox,
     started: bool,
     next_sample: u64,
     dropped: u64,
@@ -92,6 +94,11 @@ impl<'a> Run<'a> {
             engine: spec.engine,
             time_source,
         };
+        let outbox = Outbox::default();
+        let mut consumers = consumers;
+        for c in consumers.iter_mut() {
+            c.connect(&outbox.post());
+        }
         Run {
             info,
             engine,
@@ -99,6 +106,7 @@ impl<'a> Run<'a> {
             tracker: spec.tracker,
             events: Vec::new(),
             consumers,
+            outbox,
             started: false,
             next_sample: 0,
             dropped: 0,
@@ -180,6 +188,7 @@ impl<'a> Run<'a> {
         }
         self.next_sample = block.start + samples.len() as u64;
         self.dispatch_events()?;
+        self.deliver_mail()?;
         if self.failure.is_some() {
             return Ok(Some(StopReason::InputError));
         }
@@ -246,7 +255,16 @@ impl<'a> Run<'a> {
             t.finish(self.next_sample, &mut self.events);
         }
         self.dispatch_events()?;
+        self.deliver_mail()?;
         let end = RunEnd { reason, end_sample: self.next_sample, dropped_samples: self.dropped };
+        for c in self.consumers.iter_mut() {
+            c.ending(&end, &self.info)?;
+        }
+        self.deliver_mail()?;
+        for c in self.consumers.iter_mut() {
+            c.settle(&end, &self.info)?;
+        }
+        self.deliver_mail()?;
         for c in self.consumers.iter_mut() {
             c.finish(&end, &self.info)?;
         }
@@ -306,6 +324,17 @@ impl<'a> Run<'a> {
         self.dropped += to - from;
         for c in self.consumers.iter_mut() {
             c.gap(from, to, cause, &self.info)?;
+        }
+        self.deliver_mail()
+    }
+
+    /// Hands every letter sent so far to every consumer, and the letters those send in turn,
+    /// until none is left (see [`super::outbox`]).
+    fn deliver_mail(&mut self) -> io::Result<()> {
+        while let Some(letter) = self.outbox.next_letter() {
+            for c in self.consumers.iter_mut() {
+                c.mail(&letter, &self.info)?;
+            }
         }
         Ok(())
     }
@@ -458,3 +487,6 @@ pub fn run_input(input: Input, mut run: Run<'_>, signals: Option<&StopSignals>) 
         }
     }
 }
+
+#[cfg(test)]
+mod tests;

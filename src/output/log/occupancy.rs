@@ -4,17 +4,15 @@
 use crate::measure::occupancy::{Event, FLOOR_MEMORY_S, FLOOR_SMOOTHING_S, OBW_PERCENT};
 use crate::output::log::rotation::Rotation;
 use crate::output::log::{
-    ChannelRecord, DroppedRecord, EmissionRecord, IntervalRecord, LogWriter, Record, Stamped,
-    StartRecord, StopRecord,
+    CaptureRecord, ChannelRecord, DroppedRecord, EmissionRecord, IntervalRecord, LogWriter, Record,
+    Stamped, StartRecord, StopRecord,
 };
 use crate::pipeline::clock::rfc3339_ms;
 use crate::pipeline::occupancy::OccupancySetup;
-use crate::pipeline::{Consumer, GapCause, RunEnd, RunInfo};
+use crate::pipeline::{Consumer, GapCause, Letter, RunEnd, RunInfo};
 use crate::plan::Plan;
 use crate::units::db;
-use std::cell::RefCell;
 use std::io::{self, Write};
-use std::rc::Rc;
 use time::OffsetDateTime;
 
 /// Whatever else takes every record the log writes, in order, once each (a publisher). It is
@@ -23,9 +21,6 @@ use time::OffsetDateTime;
 pub trait RecordTap {
     fn record(&mut self, line: &Stamped);
 }
-/// Records that other consumers of the same run add to the log (the `capture` records): written
-/// after the log's own record of the same moment, in the order they came.
-pub type SideRecords = Rc<RefCell<Vec<Record>>>;
 
 /// Writes the log of one run, into one file or a rotated series ([`crate::output::log::rotation`]).
 pub struct OccupancyLog<W: Write> {
@@ -39,7 +34,6 @@ pub struct OccupancyLog<W: Write> {
     run_id: String,
     next_seq: u64,
     tap: Option<Box<dyn RecordTap>>,
-    side: SideRecords,
 }
 
 /// An id for a run of the log: its UTC start time to the second and the process id.
@@ -82,7 +76,6 @@ impl<W: Write> OccupancyLog<W> {
             run_id: new_run_id(),
             next_seq: 0,
             tap: None,
-            side: SideRecords::default(),
         }
     }
 
@@ -113,24 +106,6 @@ impl<W: Write> OccupancyLog<W> {
         }
         if let Some(t) = self.tap.as_mut() {
             t.record(line);
-        }
-        Ok(())
-    }
-
-    /// The queue other consumers put their records in.
-    pub fn side_records(&self) -> SideRecords {
-        self.side.clone()
-    }
-
-    /// Writes the records other consumers queued.
-    fn write_side(&mut self, run: &RunInfo) -> io::Result<()> {
-        let queued = std::mem::take(&mut *self.side.borrow_mut());
-        for rec in queued {
-            let sample = match &rec {
-                Record::Capture(c) => (c.t_start_s * run.clock.rate).round() as u64,
-                _ => 0,
-            };
-            self.emit(rec, Some(sample), run)?;
         }
         Ok(())
     }
@@ -272,14 +247,21 @@ impl<W: Write> Consumer for OccupancyLog<W> {
     }
 
     fn event(&mut self, event: &Event, run: &RunInfo) -> io::Result<()> {
-        let Some(rec) = self.record(event, run) else { return self.write_side(run) };
+        let Some(rec) = self.record(event, run) else { return Ok(()) };
         let first = match event {
             Event::Interval(i) => i.start_sample,
             Event::Emission(e) => e.start_sample,
             Event::Opened(o) => o.start_sample,
         };
-        self.emit(rec, Some(first), run)?;
-        self.write_side(run)
+        self.emit(rec, Some(first), run)
+    }
+
+    /// The records other consumers send for the log (a capture saved or skipped): written after
+    /// the log's own records of the same step, in the order they came.
+    fn mail(&mut self, letter: &Letter, run: &RunInfo) -> io::Result<()> {
+        let Some(c) = letter.read::<CaptureRecord>() else { return Ok(()) };
+        let sample = (c.t_start_s * run.clock.rate).round() as u64;
+        self.emit(Record::Capture(c.clone()), Some(sample), run)
     }
 
     fn gap(&mut self, from: u64, to: u64, cause: GapCause, run: &RunInfo) -> io::Result<()> {
@@ -292,12 +274,10 @@ impl<W: Write> Consumer for OccupancyLog<W> {
             dropped_samples: to - from,
             cause: cause.as_str().into(),
         });
-        self.emit(rec, Some(from), run)?;
-        self.write_side(run)
+        self.emit(rec, Some(from), run)
     }
 
     fn finish(&mut self, end: &RunEnd, run: &RunInfo) -> io::Result<()> {
-        self.write_side(run)?;
         let c = &run.clock;
         let rec = Record::Stop(StopRecord {
             t_end_s: c.seconds(end.end_sample),

@@ -25,21 +25,18 @@
 //! under `--no-drop`.
 
 use crate::measure::occupancy::Event;
-use crate::output::log::occupancy::SideRecords;
-use crate::output::log::{CaptureRecord, Record};
+use crate::output::log::CaptureRecord;
 use crate::output::sigmf::annotate::{annotation, note_of, EmissionNote};
 use crate::output::sigmf::capture_writer::{self, Job, Ring, WriterError};
 use crate::output::sigmf::write::{self as sigmf_write, NAMESPACE};
-use crate::pipeline::{Clock, Consumer, GapCause, RunEnd, RunInfo};
+use crate::pipeline::{Clock, Consumer, GapCause, Letter, Post, RunEnd, RunInfo};
 use crate::plan::Plan;
 use crate::source::reader::Block;
 use crate::source::SampleFormat;
 use crossbeam_channel::{bounded, Receiver, Sender, TrySendError};
 use num_complex::Complex32;
-use std::cell::RefCell;
 use std::io;
 use std::path::PathBuf;
-use std::rc::Rc;
 use std::thread::JoinHandle;
 
 /// Most bytes of samples queued for the capture writer.
@@ -72,7 +69,7 @@ pub struct CaptureCounts {
 }
 
 /// When to capture, for a command whose emissions are not the occupancy tracker's (the census):
-/// it pushes these, the capture consumer (after it in the run) takes them at its next call.
+/// its finder sends these through the run's post ([`crate::pipeline::outbox`]).
 #[derive(Clone, Debug, PartialEq)]
 pub enum Trigger {
     /// An emission began at stream sample `start`; `key` names it until it ends.
@@ -80,9 +77,6 @@ pub enum Trigger {
     /// The emission `key` ended: `note` says where and how strong it was.
     End { key: u64, note: EmissionNote },
 }
-
-/// The queue of [`Trigger`]s shared between the finder of emissions and the captures.
-pub type Triggers = Rc<RefCell<Vec<Trigger>>>;
 
 /// One capture being written.
 struct Active {
@@ -112,7 +106,8 @@ pub struct Captures {
     plan: Plan,
     format: SampleFormat,
     block_len: usize,
-    side: SideRecords,
+    /// Where the capture records go (the log takes them).
+    post: Post,
     ring: Ring,
     active: Vec<Active>,
     abandon: Vec<u64>,
@@ -131,7 +126,6 @@ pub struct Captures {
     label: String,
     jobs: Option<Sender<Job>>,
     spare: Option<Receiver<Vec<Complex32>>>,
-    triggers: Option<Triggers>,
     error: WriterError,
     thread: Option<JoinHandle<()>>,
     pub counts: CaptureCounts,
@@ -139,14 +133,14 @@ pub struct Captures {
 
 impl Captures {
     /// Creates the directory (so a bad path fails before the run). `format` is the input's
-    /// datatype (`None`: `cf32_le`); `block_len` the reader's block size; capture records go to
-    /// `side` for the log to write.
+    /// datatype (`None`: `cf32_le`); `block_len` the reader's block size. Each capture saved or
+    /// skipped is sent as a [`CaptureRecord`] through the run's post, for the log. Emissions
+    /// come from the occupancy tracker's events or from [`Trigger`] letters.
     pub fn new(
         set: CaptureSettings,
         plan: &Plan,
         format: Option<SampleFormat>,
         block_len: usize,
-        side: SideRecords,
     ) -> anyhow::Result<Captures> {
         std::fs::create_dir_all(&set.dir).map_err(|e| {
             anyhow::anyhow!(
@@ -159,7 +153,7 @@ impl Captures {
             plan: plan.clone(),
             format: format.unwrap_or(SampleFormat::Cf32Le),
             block_len: block_len.max(1),
-            side,
+            post: Post::default(),
             ring: Ring::new(1),
             active: Vec::new(),
             abandon: Vec::new(),
@@ -176,7 +170,6 @@ impl Captures {
             label: String::new(),
             jobs: None,
             spare: None,
-            triggers: None,
             error: WriterError::default(),
             thread: None,
             counts: CaptureCounts::default(),
@@ -187,24 +180,6 @@ impl Captures {
     pub fn waiting(mut self, wait: bool) -> Captures {
         self.wait = wait;
         self
-    }
-
-    /// Takes its emissions from `triggers` rather than from the occupancy tracker's events.
-    pub fn with_triggers(mut self, triggers: Triggers) -> Captures {
-        self.triggers = Some(triggers);
-        self
-    }
-
-    /// Acts on the triggers queued since the last call.
-    fn take_triggers(&mut self) {
-        let Some(q) = self.triggers.clone() else { return };
-        let list = std::mem::take(&mut *q.borrow_mut());
-        for t in list {
-            match t {
-                Trigger::Begin { key, label, start } => self.begin(key, label, start),
-                Trigger::End { key, note } => self.end(key, note),
-            }
-        }
     }
 
     fn failed(&self) -> Option<String> {
@@ -314,7 +289,7 @@ impl Captures {
             "disk_cap" => self.counts.skipped_disk_cap += 1,
             _ => self.counts.skipped_disk_behind += 1,
         }
-        self.side.borrow_mut().push(Record::Capture(CaptureRecord {
+        self.post.send(CaptureRecord {
             channel: label.to_string(),
             status: "skipped".into(),
             file: None,
@@ -326,7 +301,7 @@ impl Captures {
             iq_samples: 0,
             bytes: 0,
             truncated: false,
-        }));
+        });
     }
 
     /// Writes what `block` holds for capture `k`; true when the capture is complete.
@@ -382,7 +357,7 @@ impl Captures {
         self.counts.saved += 1;
         self.counts.bytes += bytes;
         let end = a.file_start + count;
-        self.side.borrow_mut().push(Record::Capture(CaptureRecord {
+        self.post.send(CaptureRecord {
             channel: a.label.clone(),
             status: "saved".into(),
             file: Some(a.meta_path.to_string_lossy().into_owned()),
@@ -394,7 +369,7 @@ impl Captures {
             iq_samples: count,
             bytes,
             truncated: a.truncated,
-        }));
+        });
     }
 
     fn meta(&self, a: &Active, count: u64, clock: &Clock) -> serde_json::Value {
@@ -431,6 +406,10 @@ impl Captures {
 }
 
 impl Consumer for Captures {
+    fn connect(&mut self, post: &Post) {
+        self.post = post.clone();
+    }
+
     fn start(&mut self, run: &RunInfo) -> io::Result<()> {
         let src = &run.source;
         self.rate = src.sample_rate_hz;
@@ -463,7 +442,6 @@ impl Consumer for Captures {
         if let Some(e) = self.failed() {
             return Err(io::Error::other(e));
         }
-        self.take_triggers();
         self.retry_abandons();
         let mut k = 0;
         while k < self.active.len() {
@@ -491,18 +469,18 @@ impl Consumer for Captures {
         Ok(())
     }
 
-    fn row(&mut self, _row: &crate::dsp::Spectrum) -> io::Result<crate::pipeline::Flow> {
-        self.take_triggers();
-        Ok(crate::pipeline::Flow::Continue)
-    }
-
-    fn partial_row(&mut self, _row: &crate::dsp::Spectrum) -> io::Result<()> {
-        self.take_triggers();
+    /// A finder's emissions ([`Trigger`]), when the run's emissions are not the tracker's.
+    fn mail(&mut self, letter: &Letter, run: &RunInfo) -> io::Result<()> {
+        let Some(t) = letter.read::<Trigger>() else { return Ok(()) };
+        self.clock = Some(run.clock.clone());
+        match t.clone() {
+            Trigger::Begin { key, label, start } => self.begin(key, label, start),
+            Trigger::End { key, note } => self.end(key, note),
+        }
         Ok(())
     }
 
     fn gap(&mut self, _from: u64, _to: u64, cause: GapCause, _run: &RunInfo) -> io::Result<()> {
-        self.take_triggers();
         if cause == GapCause::Behind {
             // What follows is not contiguous with what was written: every capture ends here.
             self.ring.clear();
@@ -516,8 +494,9 @@ impl Consumer for Captures {
         Ok(())
     }
 
-    fn finish(&mut self, _end: &RunEnd, _run: &RunInfo) -> io::Result<()> {
-        self.take_triggers();
+    /// Closes every capture still open (the finders ended their emissions a stage earlier)
+    /// and waits for the writer, so the log gets the last capture records before it stops.
+    fn settle(&mut self, _end: &RunEnd, _run: &RunInfo) -> io::Result<()> {
         while !self.active.is_empty() {
             let k = self.active.len() - 1;
             self.active[k].stop = self.active[k].stop.min(self.active[k].next);

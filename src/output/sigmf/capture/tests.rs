@@ -1,7 +1,7 @@
 use super::*;
 use crate::dsp::{DspConfig, WindowKind};
 use crate::measure::occupancy::tests::{band, Keyed, CENTER, FS};
-use crate::output::log::CSV_COLUMNS;
+use crate::output::log::{Record, CSV_COLUMNS};
 use crate::pipeline::occupancy::{OccupancyRequest, OccupancySetup};
 use crate::pipeline::{Run, RunSpec, StopReason};
 use crate::plan::parse_channel_flag;
@@ -35,18 +35,31 @@ fn captures_of(x: &[Complex32], set: CaptureSettings) -> (Captures, Vec<Record>)
         hang_s: 0.025,
     };
     let setup = OccupancySetup::new(&info, &dsp, &plan, &req).unwrap();
-    let side = SideRecords::default();
-    let mut caps = Captures::new(set, &plan, info.format, 10_000, side.clone()).unwrap();
+    let mut caps = Captures::new(set, &plan, info.format, 10_000).unwrap();
+    let mut mail = Mailbag::default();
     let mut spec = RunSpec::new(info, setup.engine.clone(), 1);
     spec.tracker = Some(setup.tracker());
-    let mut run = Run::new(spec, vec![&mut caps]);
+    // The records' reader listed first: the post reaches it wherever it stands.
+    let mut run = Run::new(spec, vec![&mut mail, &mut caps]);
     for (k, chunk) in x.chunks(10_000).enumerate() {
         run.feed(&Block::new(k as u64 * 10_000, chunk.to_vec())).unwrap();
     }
     run.finish(StopReason::EndOfInput).unwrap();
     drop(run);
-    let records = side.borrow().clone();
-    (caps, records)
+    (caps, mail.0)
+}
+
+/// Keeps the capture records the captures send, as the log would write them.
+#[derive(Default)]
+struct Mailbag(Vec<Record>);
+
+impl Consumer for Mailbag {
+    fn mail(&mut self, letter: &Letter, _run: &RunInfo) -> io::Result<()> {
+        if let Some(c) = letter.read::<CaptureRecord>() {
+            self.0.push(Record::Capture(c.clone()));
+        }
+        Ok(())
+    }
 }
 
 /// The `capture` records among `records`.
