@@ -12,10 +12,6 @@ use std::ffi::OsString;
 use std::io::Write;
 use std::process::ExitCode;
 
-pub fn main_with_args(args: impl IntoIterator<Item = OsString>) -> ExitCode {
-    ExitCode::from(exit_code(args))
-}
-
 /// What the binary's `main` does before anything else. It is not started by the standard
 /// library's runtime (see `src/main.rs`), which would put `/dev/null` on a closed standard
 /// output, so that a report written there would vanish with exit 0; and it ignores SIGPIPE as

@@ -4,6 +4,7 @@
 use super::common::parse_seconds;
 use crate::output::log::rotation::{parse_rotate, Rotate};
 pub use crate::output::sigmf::capture::CaptureSettings as CaptureConfig;
+pub use crate::output::sigmf::outputs::SigmfOut;
 use anyhow::{bail, Result};
 use clap::Args;
 
@@ -49,16 +50,6 @@ pub struct EmissionOutArgs {
     /// fit, capturing stops (each skipped capture is logged).
     #[arg(long, value_name = "BYTES", default_value = "1G", value_parser = parse_bytes)]
     pub capture_max_bytes: u64,
-}
-
-/// The SigMF outputs of a command that finds emissions (`log`, `census`), validated.
-#[derive(Clone, Debug, Default, PartialEq)]
-pub struct SigmfOut {
-    /// `--record`: the input teed to this SigMF recording.
-    pub record: Option<String>,
-    /// `--annotate`: every emission as an annotation in this SigMF metadata file.
-    pub annotate: Option<String>,
-    pub capture: Option<CaptureConfig>,
 }
 
 impl SigmfOut {

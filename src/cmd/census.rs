@@ -10,21 +10,21 @@
 //! emission's IQ as it happens (named from its detected centre, as emitters are named; the JSON
 //! output lists the capture records).
 
-use super::sigmf_out::{annotated_note, SigmfOutputs, SigmfRequest};
 use crate::cli::CensusConfig;
 use crate::measure::census::{Census, CensusSettings};
 use crate::measure::occupancy::DEFAULT_INTERVAL_S;
-use crate::messages::{note, notes};
+use crate::messages::note;
 use crate::output::census::{capture_list, to_json_value, to_plan, to_table, CensusConsumer};
 use crate::output::progress::Progress;
+use crate::output::sigmf::outputs::{annotated_note, SigmfOutputs, SigmfRequest};
 use crate::output::sigmf::write as sigmf_write;
 use crate::output::sink;
 use crate::pipeline::input::unattended_options;
 use crate::pipeline::occupancy::{OccupancyRequest, OccupancySetup};
 use crate::pipeline::stop::Escalation;
-use crate::pipeline::{run_input, Consumer, Input, Run, RunSpec, StopSignals};
+use crate::pipeline::{open_input, run_to_end, Consumer, Run, RunSpec, StopSignals};
 use crate::plan::{Plan, DEFAULT_THRESHOLD_DB};
-use crate::source::{self, sanitize};
+use crate::source::sanitize;
 use anyhow::{bail, Result};
 use std::io::Write;
 use std::process::ExitCode;
@@ -34,9 +34,7 @@ const MAX_SIGNALS: usize = 64;
 const MAX_EMITTERS: usize = 256;
 
 pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
-    let mut opened = Vec::new();
-    let src = source::open(&cfg.input, &mut opened)?;
-    notes(&opened);
+    let src = open_input(&cfg.input)?;
     let info = src.info().clone();
     let request = OccupancyRequest {
         dwell_s: cfg.dwell_s,
@@ -80,8 +78,6 @@ pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
         census = census.with_triggers();
     }
     let mut progress = Progress::for_file(total, info.sample_rate_hz);
-    let input = Input::start(src, opts);
-    // The recording first (annotations of a recording read its finished metadata).
     let mut consumers: Vec<&mut dyn Consumer> = vec![&mut progress];
     if let Some(r) = sigmf_out.recorder.as_mut() {
         consumers.push(r);
@@ -90,17 +86,14 @@ pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
     if let Some(c) = sigmf_out.captures.as_mut() {
         consumers.push(c);
     }
-    let outcome = run_input(input, Run::new(spec, consumers), Some(&signals))?;
+    let outcome = run_to_end(src, opts, Run::new(spec, consumers), Some(&signals))?;
     if outcome.end.reason.is_signal() {
         note(&format!(
             "stopped by {}; the census covers the input read so far",
             signals.signal_name()
         ));
     }
-    if let Some(issues) = &outcome.issues {
-        notes(&issues.notes());
-    }
-    outcome.check(&info.label)?;
+    outcome.conclude(&info.label)?;
     if outcome.end.dropped_samples > 0 {
         note(&format!(
             "{} input samples were dropped because processing fell behind; emissions across those gaps were cut",

@@ -11,7 +11,6 @@
 //! falls behind, whole blocks are dropped, counted and logged (`dropped` records), never hidden.
 //! `--no-drop` makes the reader wait instead (the writer upstream then blocks).
 
-use super::sigmf_out::{SigmfOutputs, SigmfRequest};
 use crate::cli::LogConfig;
 use crate::messages::{note, notes};
 use crate::net::publish::Publisher;
@@ -19,20 +18,19 @@ use crate::output::log::occupancy::OccupancyLog;
 use crate::output::log::rotation::{Opener, Rotation};
 use crate::output::log::LogWriter;
 use crate::output::progress::Progress;
+use crate::output::sigmf::outputs::{SigmfOutputs, SigmfRequest};
 use crate::output::sink;
 use crate::pipeline::input::unattended_options;
 use crate::pipeline::occupancy::{OccupancyRequest, OccupancySetup};
 use crate::pipeline::stop::Escalation;
-use crate::pipeline::{run_input, Consumer, Input, Run, RunSpec, StopSignals, TimeSource};
-use crate::source::{self};
+use crate::pipeline::{open_input, run_to_end, Consumer, Run, RunSpec, StopSignals, TimeSource};
+
 use anyhow::{bail, Context, Result};
 use std::path::PathBuf;
 use std::process::ExitCode;
 
 pub fn run(cfg: LogConfig) -> Result<ExitCode> {
-    let mut opened = Vec::new();
-    let src = source::open(&cfg.input, &mut opened)?;
-    notes(&opened);
+    let src = open_input(&cfg.input)?;
     let info = src.info().clone();
     let plan = &cfg.channels.plan;
     let request = OccupancyRequest {
@@ -81,11 +79,10 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
     let mut sigmf_out =
         SigmfOutputs::new(request, &cfg.input, &info, plan, &inputs, opts.block_len)?;
     let mut progress = Progress::for_file(total, info.sample_rate_hz);
-    let input = Input::start(src, opts);
     let mut consumers: Vec<&mut dyn Consumer> = vec![&mut progress];
     consumers.extend(sigmf_out.consumers());
     consumers.push(&mut log);
-    let outcome = run_input(input, Run::new(spec, consumers), Some(&signals));
+    let outcome = run_to_end(src, opts, Run::new(spec, consumers), Some(&signals));
     drop(log);
     let mut refused_login = None;
     if let Some(p) = publisher {
@@ -98,10 +95,7 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
     if outcome.end.reason.is_signal() {
         note(&format!("stopped by {}; the log is complete", signals.signal_name()));
     }
-    if let Some(issues) = &outcome.issues {
-        notes(&issues.notes());
-    }
-    outcome.check(&info.label)?;
+    outcome.conclude(&info.label)?;
     if outcome.end.dropped_samples > 0 {
         note(&format!(
             "{} input samples were dropped (see the dropped records and their cause: behind means processing fell behind, where a smaller --fft or a lower rate helps; disconnected means a network input's link was down)",

@@ -2,24 +2,21 @@
 
 use crate::cli::MeasureConfig;
 use crate::measure::occupancy::{ChannelDef, DEFAULT_HANG_S, DEFAULT_INTERVAL_S};
-use crate::messages::notes;
 use crate::output::report::on_air::OnAirBands;
 use crate::output::report::whole::WholeInput;
 use crate::output::report::{build_report, channel_rows, InputCounts, ReportSettings};
 use crate::output::sink;
 use crate::pipeline::occupancy::{OccupancyRequest, OccupancySetup};
-use crate::pipeline::{run_input, Input, Run, RunSpec};
+use crate::pipeline::{open_input, run_to_end, Run, RunSpec};
 use crate::source::reader::ReaderOptions;
-use crate::source::{self, sanitize};
+use crate::source::sanitize;
 use crate::units::{format_num, samples_in};
 use anyhow::{bail, Result};
 use std::io::Write;
 use std::process::ExitCode;
 
 pub fn run(cfg: MeasureConfig) -> Result<ExitCode> {
-    let mut opened = Vec::new();
-    let src = source::open(&cfg.input, &mut opened)?;
-    notes(&opened);
+    let src = open_input(&cfg.input)?;
     let info = src.info().clone();
     let max_samples = cfg.seconds.map(|s| (s * info.sample_rate_hz).round() as u64);
     let skip_samples = samples_in(cfg.skip, info.sample_rate_hz).map_err(anyhow::Error::msg)?;
@@ -49,9 +46,7 @@ pub fn run(cfg: MeasureConfig) -> Result<ExitCode> {
     spec.check_work()?;
     let mut whole = WholeInput::new(plan.channels.len());
     let opts = ReaderOptions { max_samples, skip_samples, ..Default::default() };
-    let input = Input::start(src, opts);
-    let stats = input.stats.clone();
-    let outcome = run_input(input, Run::new(spec, vec![&mut whole, &mut on_air]), None)?;
+    let outcome = run_to_end(src, opts, Run::new(spec, vec![&mut whole, &mut on_air]), None)?;
     if outcome.samples_read == 0 && skip_samples > 0 {
         bail!(
             "the input '{}' ends before the {} s that --skip passes over; skip less",
@@ -60,8 +55,7 @@ pub fn run(cfg: MeasureConfig) -> Result<ExitCode> {
         );
     }
     let issues = outcome.issues.clone().unwrap_or_default();
-    notes(&issues.notes());
-    outcome.check(&info.label)?;
+    outcome.conclude(&info.label)?;
     let Some(spectrum) = whole.average(cfg.dsp.hop()) else {
         if issues.non_finite > 0 {
             bail!(
@@ -85,11 +79,7 @@ pub fn run(cfg: MeasureConfig) -> Result<ExitCode> {
         xdb: cfg.xdb,
         false_alarm_per_bin: cfg.detection.false_alarm_per_bin,
     };
-    let counts = InputCounts {
-        samples: whole.samples,
-        issues,
-        dropped: stats.dropped.load(std::sync::atomic::Ordering::Relaxed),
-    };
+    let counts = InputCounts { samples: whole.samples, issues, dropped: outcome.reader_dropped };
     let mut report = build_report(&settings, &info.label, &spectrum, &counts)?;
     for (row, f) in report.bands.iter_mut().zip(on_air.figures(cfg.obw_percent, cfg.xdb)) {
         row.set_on_air(&f);

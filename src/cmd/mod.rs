@@ -7,6 +7,5 @@ pub mod demo;
 pub mod log;
 pub mod measure;
 pub mod report;
-pub mod sigmf_out;
 pub mod snapshot;
 pub mod watch;

@@ -6,7 +6,7 @@
 //! with the input.
 
 use crate::cli::SnapshotConfig;
-use crate::messages::{note, notes};
+use crate::messages::note;
 use crate::output::picture::snapshot::{Snapshot, SnapshotPlan};
 use crate::output::picture::waterfall::{
     draw_waterfall, ChannelBand, PictureSettings, WaterfallView,
@@ -14,9 +14,9 @@ use crate::output::picture::waterfall::{
 use crate::output::progress::Progress;
 use crate::output::sink;
 use crate::pipeline::stop::Escalation;
-use crate::pipeline::{run_input, Input, Run, RunSpec, StopSignals, TimeSource};
+use crate::pipeline::{open_input, run_to_end, Run, RunSpec, StopSignals, TimeSource};
 use crate::source::reader::ReaderOptions;
-use crate::source::{self, sanitize};
+use crate::source::sanitize;
 use anyhow::{bail, Result};
 use std::io::Write;
 use std::path::PathBuf;
@@ -26,9 +26,7 @@ use std::process::ExitCode;
 const ROW_S_UNKNOWN: f64 = 0.05;
 
 pub fn run(cfg: SnapshotConfig) -> Result<ExitCode> {
-    let mut opened = Vec::new();
-    let src = source::open(&cfg.input, &mut opened)?;
-    notes(&opened);
+    let src = open_input(&cfg.input)?;
     let info = src.info().clone();
     let rate = info.sample_rate_hz;
     if !cfg.plan.is_empty() {
@@ -67,13 +65,9 @@ pub fn run(cfg: SnapshotConfig) -> Result<ExitCode> {
     let mut progress = Progress::for_file(total, rate);
     let signals = StopSignals::install(false, Escalation::SecondSignalExits)?;
     let opts = ReaderOptions { max_samples, ..Default::default() };
-    let input = Input::start(src, opts);
     let outcome =
-        run_input(input, Run::new(spec, vec![&mut progress, &mut snapshot]), Some(&signals))?;
-    if let Some(issues) = &outcome.issues {
-        notes(&issues.notes());
-    }
-    outcome.check(&info.label)?;
+        run_to_end(src, opts, Run::new(spec, vec![&mut progress, &mut snapshot]), Some(&signals))?;
+    outcome.conclude(&info.label)?;
     let offset = cfg.ref_offset.unwrap_or(0.0);
     let unit = if cfg.ref_offset.is_some() { "dBm" } else { "dBFS" };
     let Some(got) = snapshot.collect(offset, unit) else {

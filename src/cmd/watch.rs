@@ -6,17 +6,17 @@
 //! samples the DSP cannot keep up with are dropped and counted on screen rather than queued
 //! without bound.
 
-use super::sigmf_out::{recorded_note, recorder};
 use crate::cli::{ColourChoice, WatchConfig};
-use crate::messages::{note, notes, sanitize};
+use crate::messages::{note, sanitize};
+use crate::output::sigmf::outputs::{recorded_note, recorder};
 use crate::output::sink;
 use crate::pipeline::clock::Clock;
 use crate::pipeline::input::live_block_len;
 use crate::pipeline::latest::RowFeed;
-use crate::pipeline::{Consumer, Input, RunSpec};
+use crate::pipeline::{open_input, Consumer, Input, RunSpec};
 use crate::plan::{Plan, DEFAULT_THRESHOLD_DB};
 use crate::source::reader::ReaderOptions;
-use crate::source::{self};
+
 use crate::tui::alarms::AlarmLog;
 use crate::tui::app::{App, ChannelMark, SourceSummary};
 use crate::tui::colour::Depth;
@@ -24,8 +24,7 @@ use crate::tui::{self, RunOptions};
 use anyhow::{bail, Result};
 use std::io::IsTerminal;
 use std::process::ExitCode;
-use std::sync::atomic::Ordering;
-use std::time::{Duration, Instant};
+use std::time::Instant;
 use time::OffsetDateTime;
 
 /// Plain `bandwarden`: the monitor on the demo scene when there is a terminal to draw on, else
@@ -39,9 +38,7 @@ pub fn run_default() -> Result<ExitCode> {
 }
 
 pub fn run(cfg: WatchConfig) -> Result<ExitCode> {
-    let mut opened = Vec::new();
-    let src = source::open(&cfg.input, &mut opened)?;
-    notes(&opened);
+    let src = open_input(&cfg.input)?;
     let info = src.info().clone();
     let half = info.sample_rate_hz / 2.0;
     cfg.plan.check_span(info.center_hz - half, info.center_hz + half)?;
@@ -67,12 +64,13 @@ pub fn run(cfg: WatchConfig) -> Result<ExitCode> {
     let spec = RunSpec::new(info.clone(), cfg.rows.engine(rate), cfg.rows.threads);
     spec.check_work()?;
     let input = Input::start(src, opts);
+    let reader_stats = input.stats.clone();
     let recorder =
         cfg.record.as_deref().map(|r| recorder(r, &cfg.input, &info, live_block_len(rate)));
     let recorder = recorder.transpose()?;
     let status = recorder.as_ref().map(|r| (r.status(), r.meta_path().to_path_buf()));
     let extra = recorder.into_iter().map(|r| Box::new(r) as Box<dyn Consumer + Send>).collect();
-    let feed = RowFeed::spawn_with(input.blocks.clone(), spec, extra)?;
+    let feed = RowFeed::spawn_with(input, spec, extra)?;
     let summary = SourceSummary {
         label: sanitize(&info.label),
         sample_rate_hz: rate,
@@ -98,11 +96,13 @@ pub fn run(cfg: WatchConfig) -> Result<ExitCode> {
     }
     app.detection = cfg.detection;
     let run_opts = RunOptions { fps: cfg.fps, scroll_region: cfg.scroll_region, mouse: cfg.mouse };
-    let result = tui::run(app, &feed, &input.stats, run_opts);
-    input.request_stop();
-    feed.stop();
-    shut_down(input);
+    let result = tui::run(app, &feed, &reader_stats, run_opts);
+    // The run ends as every command's does; what the input came to is said after the screen
+    // is restored.
+    let outcome = feed.stop();
     result?;
+    let outcome = outcome?;
+    outcome.conclude(&info.label)?;
     if let Some((status, meta)) = status {
         recorded_note(&*status.lock().map_err(|_| anyhow::anyhow!("the recorder failed"))?, &meta)?;
     }
@@ -119,24 +119,6 @@ fn marks(plan: &Plan) -> Vec<ChannelMark> {
             ..ChannelMark::new(&sanitize(&c.name), c.center_hz, c.width_hz)
         })
         .collect()
-}
-
-/// Waits briefly for the reader and reports what it found wrong with the input. A reader stuck
-/// in a read of a silent stdin is left behind; the process exits anyway.
-fn shut_down(input: Input) {
-    let t0 = Instant::now();
-    while !input.stats.finished.load(Ordering::SeqCst) && t0.elapsed() < Duration::from_millis(500)
-    {
-        while input.blocks.try_recv().is_ok() {}
-        std::thread::sleep(Duration::from_millis(10));
-    }
-    if !input.stats.finished.load(Ordering::SeqCst) {
-        return;
-    }
-    match input.finish() {
-        Ok(issues) => notes(&issues.notes()),
-        Err(e) => note(&format!("{e:#}")),
-    }
 }
 
 #[cfg(test)]

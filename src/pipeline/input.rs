@@ -70,6 +70,14 @@ impl Input {
         Input { info, blocks: rx, stats, stop, max_samples, handle: Some(handle) }
     }
 
+    /// Blocks that something other than a reader thread sends (tests of what runs on them).
+    #[cfg(test)]
+    pub(crate) fn from_blocks(info: SourceInfo, blocks: Receiver<Block>) -> Input {
+        let stats = Arc::new(ReaderStats::default());
+        let stop = Arc::new(AtomicBool::new(false));
+        Input { info, blocks, stats, stop, max_samples: None, handle: None }
+    }
+
     /// The most samples the reader was asked to take (`--seconds`), if limited.
     pub fn max_samples(&self) -> Option<u64> {
         self.max_samples
@@ -90,7 +98,7 @@ impl Input {
         self.request_stop();
         // Drain so a reader blocked on a full queue can see the stop flag.
         while self.blocks.try_recv().is_ok() {}
-        let handle = self.handle.take().expect("finish is called once");
+        let Some(handle) = self.handle.take() else { return Ok(InputIssues::default()) };
         drop(self.blocks);
         handle.join().map_err(|_| anyhow!("the reader thread panicked"))?
     }

@@ -6,11 +6,11 @@
 //! `skipped`, so the screen always gets the newest. New settings (FFT size, window, row rate)
 //! arrive on a control channel and rebuild the engine between blocks.
 
-use super::run::{Run, RunSpec};
+use super::input::Input;
+use super::run::{run_input_until, Outcome, Run, RunSpec};
 use super::stop::StopReason;
 use super::{Consumer, Flow};
 use crate::dsp::{DspConfig, EngineConfig, Spectrum, WindowKind};
-use crate::source::reader::Block;
 use crossbeam_channel::{bounded, Receiver, Sender, TrySendError};
 use std::io;
 use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
@@ -112,20 +112,21 @@ pub struct RowFeed {
     /// Rows thrown away because the screen was behind.
     pub skipped: Arc<AtomicU64>,
     stop: Arc<AtomicBool>,
-    handle: Option<JoinHandle<()>>,
+    handle: Option<JoinHandle<anyhow::Result<Outcome>>>,
 }
 
 impl RowFeed {
-    /// Starts the run over `blocks`; the queue of rows is closed when the input ends.
-    pub fn spawn(blocks: Receiver<Block>, spec: RunSpec) -> io::Result<RowFeed> {
-        RowFeed::spawn_with(blocks, spec, Vec::new())
+    /// Starts the run over `input`; the queue of rows is closed when the input ends.
+    pub fn spawn(input: Input, spec: RunSpec) -> io::Result<RowFeed> {
+        RowFeed::spawn_with(input, spec, Vec::new())
     }
 
     /// [`RowFeed::spawn`] with more consumers on the run's thread (a recording of the input):
-    /// they see every block and gap, and their `finish` is called however the run ends. A
-    /// consumer's error ends the run; it keeps its own account of it for the command.
+    /// they see every block and gap, and the run ends as every command's does
+    /// ([`run_input_until`]: the lost tail, the sample limit, every consumer's end), its
+    /// [`Outcome`] handed back by [`RowFeed::stop`].
     pub fn spawn_with(
-        blocks: Receiver<Block>,
+        input: Input,
         spec: RunSpec,
         mut extra: Vec<Box<dyn Consumer + Send>>,
     ) -> io::Result<RowFeed> {
@@ -144,10 +145,9 @@ impl RowFeed {
         let handle = std::thread::Builder::new().name("dsp".into()).spawn(move || {
             let mut consumers: Vec<&mut dyn Consumer> = vec![&mut latest];
             consumers.extend(extra.iter_mut().map(|c| &mut **c as &mut dyn Consumer));
-            let mut run = Run::new(spec, consumers);
-            let halt = || stop2.load(Ordering::Relaxed).then_some(StopReason::Limit);
-            let reason = run.pump(&blocks, &halt).unwrap_or(StopReason::InputError);
-            let _ = run.finish(reason);
+            let run = Run::new(spec, consumers);
+            let closed = || stop2.load(Ordering::Relaxed).then_some(StopReason::Closed);
+            run_input_until(input, run, &closed)
         })?;
         Ok(RowFeed {
             rows: row_rx,
@@ -164,18 +164,19 @@ impl RowFeed {
         let _ = self.control.send(settings.engine(self.sample_rate_hz));
     }
 
-    /// Stops the thread and waits for it.
-    pub fn stop(mut self) {
+    /// Stops the run (the operator closed the monitor: [`StopReason::Closed`]) and waits for
+    /// it; what the run came to, or why it failed.
+    pub fn stop(mut self) -> anyhow::Result<Outcome> {
         self.stop.store(true, Ordering::SeqCst);
-        if let Some(h) = self.handle.take() {
-            let _ = h.join();
-        }
+        let handle = self.handle.take().expect("stop is called once");
+        handle.join().map_err(|_| anyhow::anyhow!("the processing thread panicked"))?
     }
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::source::reader::Block;
     use crate::source::SourceInfo;
     use num_complex::Complex32;
     use std::time::Duration;
@@ -212,7 +213,9 @@ mod tests {
         let (tx, rx) = bounded(64);
         // 1 row per 100 frames of 128 hop → 12800 samples a row; 20 rows in this input.
         let s = RowSettings { row_rate: 1e6 / 128.0 / 100.0, ..settings(0.0) };
-        let feed = RowFeed::spawn(rx, spec(&s)).unwrap();
+        let spec = spec(&s);
+        let input = Input::from_blocks(spec.source.clone(), rx);
+        let feed = RowFeed::spawn(input, spec).unwrap();
         // 2010 frames of 256 at a hop of 128: 20 full rows and a partial one of 10 frames.
         let n = 2009 * 128 + 256;
         let block = Block::new(0, vec![Complex32::new(0.1, 0.0); n]);
@@ -234,13 +237,15 @@ mod tests {
         assert_eq!(skipped as usize + got.len(), 21);
         assert!(got.windows(2).all(|w| w[0].first_sample < w[1].first_sample));
         assert_eq!(got.last().unwrap().end_sample, n as u64);
-        feed.stop();
+        let outcome = feed.stop().unwrap();
+        assert_eq!(outcome.end.reason, StopReason::EndOfInput);
     }
 
     #[test]
     fn settings_change_the_fft_size() {
         let (tx, rx) = bounded(4);
-        let feed = RowFeed::spawn(rx, spec(&settings(1000.0))).unwrap();
+        let spec = spec(&settings(1000.0));
+        let feed = RowFeed::spawn(Input::from_blocks(spec.source.clone(), rx), spec).unwrap();
         let mut s = settings(1000.0);
         s.fft_size = 512;
         feed.apply(&s);
@@ -249,6 +254,6 @@ mod tests {
         let r = feed.rows.recv_timeout(Duration::from_secs(5)).unwrap();
         assert_eq!(r.fft_size, 512);
         drop(tx);
-        feed.stop();
+        feed.stop().unwrap();
     }
 }

@@ -11,8 +11,10 @@
 //! Everything that every command needs once lives here: starting the reader ([`input`]), driving
 //! blocks through the engine with gap and drop accounting and the end-of-input rules ([`run`]),
 //! why a run stopped and the signals that stop it ([`stop`]), sample-exact time ([`clock`]), and
-//! the newest-wins hand-over to a screen ([`latest`]). A command builds its consumers and calls
-//! [`run::run_input`]; adding a sink is one new type implementing [`Consumer`].
+//! the newest-wins hand-over to a screen ([`latest`]), letters between consumers ([`outbox`]),
+//! and the set-up every command shares ([`session`]). A command opens its input with
+//! [`open_input`], builds its consumers and calls [`run_to_end`]; adding a sink is one new type
+//! implementing [`Consumer`].
 //!
 //! # Rules
 //! - A **row** holds `frames_per_output` FFT frames. Only complete rows reach
@@ -34,12 +36,14 @@ pub mod latest;
 pub mod occupancy;
 pub mod outbox;
 pub mod run;
+pub mod session;
 pub mod stop;
 
 pub use clock::Clock;
 pub use input::Input;
 pub use outbox::{Letter, Post};
-pub use run::{run_input, Run, RunSpec};
+pub use run::{run_input, Outcome, Run, RunSpec};
+pub use session::{open_input, run_to_end};
 pub use stop::{StopReason, StopSignals};
 
 use crate::dsp::{EngineConfig, Spectrum};

@@ -414,6 +414,8 @@ pub struct Outcome {
     pub issues: Option<InputIssues>,
     /// Samples taken from the source.
     pub samples_read: u64,
+    /// Samples the reader discarded because processing was behind a live source.
+    pub reader_dropped: u64,
     /// Why the input could not be measured, when the run stopped for that reason.
     pub failure: Option<String>,
 }
@@ -438,9 +440,18 @@ impl Outcome {
 /// Runs `run` over the reader's blocks until the end of the input, a signal or a consumer's stop,
 /// and finishes it. A reader error finishes the run as `input_error`, then is returned; so is a
 /// consumer's error (a full disk), after the others were given their `finish`.
-pub fn run_input(input: Input, mut run: Run<'_>, signals: Option<&StopSignals>) -> Result<Outcome> {
-    let stop = || signals.and_then(StopSignals::reason);
-    let reason = match run.pump(&input.blocks, &stop) {
+pub fn run_input(input: Input, run: Run<'_>, signals: Option<&StopSignals>) -> Result<Outcome> {
+    run_input_until(input, run, &|| signals.and_then(StopSignals::reason))
+}
+
+/// [`run_input`] stopped by whatever `stop` says (the live monitor's thread: the operator
+/// closed it).
+pub fn run_input_until(
+    input: Input,
+    mut run: Run<'_>,
+    stop: &dyn Fn() -> Option<StopReason>,
+) -> Result<Outcome> {
+    let reason = match run.pump(&input.blocks, stop) {
         Ok(reason) => reason,
         Err(e) => {
             input.request_stop();
@@ -452,10 +463,11 @@ pub fn run_input(input: Input, mut run: Run<'_>, signals: Option<&StopSignals>) 
         input.request_stop();
         let end = run.finish(reason)?;
         let samples_read = input.samples_read();
+        let reader_dropped = input.stats.dropped.load(std::sync::atomic::Ordering::SeqCst);
         // A file reader stops at its next block; stdin may sit in a read that no flag
         // interrupts, so it is left behind (the process exits now).
         let issues = if input.info.live { None } else { input.finish().ok() };
-        return Ok(Outcome { end, issues, samples_read, failure: None });
+        return Ok(Outcome { end, issues, samples_read, reader_dropped, failure: None });
     }
     input.request_stop();
     // A consumer's stop leaves the reader running: what it read after that was never wanted.
@@ -465,6 +477,7 @@ pub fn run_input(input: Input, mut run: Run<'_>, signals: Option<&StopSignals>) 
         input.samples_read()
     };
     let limit = input.max_samples();
+    let reader_dropped = input.stats.dropped.load(std::sync::atomic::Ordering::SeqCst);
     match input.finish() {
         Ok(issues) => {
             let reason = if reason == StopReason::InputError {
@@ -479,7 +492,7 @@ pub fn run_input(input: Input, mut run: Run<'_>, signals: Option<&StopSignals>) 
             };
             let end = run.finish(reason)?;
             let failure = run.failure().map(str::to_string);
-            Ok(Outcome { end, issues: Some(issues), samples_read, failure })
+            Ok(Outcome { end, issues: Some(issues), samples_read, reader_dropped, failure })
         }
         Err(e) => {
             run.finish(StopReason::InputError)?;

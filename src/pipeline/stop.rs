@@ -26,6 +26,8 @@ pub enum StopReason {
     Interrupted,
     /// SIGTERM, SIGHUP (the session that started us is gone) or SIGQUIT.
     Terminated,
+    /// The operator closed the live monitor.
+    Closed,
     InputError,
 }
 
@@ -36,13 +38,15 @@ impl StopReason {
             StopReason::Limit => "limit",
             StopReason::Interrupted => "interrupted",
             StopReason::Terminated => "terminated",
+            StopReason::Closed => "closed",
             StopReason::InputError => "input_error",
         }
     }
 
-    /// True when a signal ended the run.
+    /// True when the run was stopped from outside, by a signal or by the operator closing the
+    /// monitor, rather than by its input or its own limits.
     pub fn is_signal(self) -> bool {
-        matches!(self, StopReason::Interrupted | StopReason::Terminated)
+        matches!(self, StopReason::Interrupted | StopReason::Terminated | StopReason::Closed)
     }
 }
 

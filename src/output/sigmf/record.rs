@@ -283,7 +283,9 @@ impl Consumer for Recorder {
         Ok(())
     }
 
-    fn finish(&mut self, _end: &RunEnd, _run: &RunInfo) -> io::Result<()> {
+    /// Closes the recording in the second stage of the end, so that annotations pointing at it
+    /// (written in the last stage) read its finished metadata whatever the order of the list.
+    fn settle(&mut self, _end: &RunEnd, _run: &RunInfo) -> io::Result<()> {
         let Some(tx) = self.tx.take() else { return Ok(()) };
         let (behind, recorder) =
             self.status.lock().map(|s| (s.lost_behind, s.lost_recorder)).unwrap_or_default();

@@ -152,7 +152,7 @@ fn a_disk_that_falls_behind_is_written_down_as_a_gap() {
     drop(real);
     rec.block(&Block::new(30_000, x[30_000..].to_vec())).unwrap();
     let end = RunEnd { reason: StopReason::EndOfInput, end_sample: 40_000, dropped_samples: 0 };
-    rec.finish(&end, &run_info).unwrap();
+    rec.settle(&end, &run_info).unwrap();
     let (meta, data) = read(&path);
     let caps = meta["captures"].as_array().unwrap();
     let last = caps.last().unwrap();

@@ -1,11 +1,11 @@
 //! Wiring of the SigMF outputs (`--record`, `--annotate`, `--capture`) shared by the commands
 //! that take them: which dataset annotations point at, the checks before the run, the consumers
-//! in the order they must run, and the closing notes.
+//! (in any order: the run's stages of the end close the recording before annotations read it),
+//! and the closing notes.
 
-use crate::cli::sigmf_out::SigmfOut;
-use crate::cli::CaptureConfig;
 use crate::messages::{note, sanitize};
 use crate::output::sigmf::annotate::{AnnotateSummary, AnnotationWriter, Dataset, LogAnnotations};
+use crate::output::sigmf::capture::CaptureSettings;
 use crate::output::sigmf::capture::Captures;
 use crate::output::sigmf::record::{RecordStatus, Recorder};
 use crate::output::sigmf::write as sigmf_write;
@@ -15,6 +15,16 @@ use crate::plan::Plan;
 use crate::source::{sigmf, InputRequest, SourceInfo};
 use anyhow::{bail, Context, Result};
 use std::path::{Path, PathBuf};
+
+/// The SigMF outputs of a command that finds emissions (`log`, `census`), validated.
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct SigmfOut {
+    /// `--record`: the input teed to this SigMF recording.
+    pub record: Option<String>,
+    /// `--annotate`: every emission as an annotation in this SigMF metadata file.
+    pub annotate: Option<String>,
+    pub capture: Option<CaptureSettings>,
+}
 
 /// The SigMF outputs of one run.
 #[derive(Default)]
@@ -30,7 +40,7 @@ pub struct SigmfRequest<'a> {
     pub wait: bool,
     pub record: Option<&'a str>,
     pub annotate: Option<&'a str>,
-    pub capture: Option<&'a CaptureConfig>,
+    pub capture: Option<&'a CaptureSettings>,
 }
 
 impl<'a> SigmfRequest<'a> {
