@@ -9,7 +9,8 @@
 //! samples after it streamed to the file as they arrive. When the emission's summary comes (it
 //! ends after the hang time), `--post` more samples are written and the file is closed.
 //!
-//! **Bounds.** Memory: the ring and a writer queue of at most [`QUEUE_BYTES`]. Length: an emission
+//! **Bounds.** Memory: the ring and a writer queue of at most
+//! [`QUEUE_BYTES`](crate::output::sigmf::writer_thread::QUEUE_BYTES). Length: an emission
 //! longer than `--capture-max-seconds` is cut there (the file holds its first part, its annotation
 //! says `bandwarden:truncated`). Disk: the bytes each capture writes are counted as they are
 //! sent (with `META_BYTES` for its meta file); where the next samples would take the run's
@@ -29,21 +30,15 @@ use crate::output::log::CaptureRecord;
 use crate::output::sigmf::annotate::{annotation, note_of, EmissionNote};
 use crate::output::sigmf::capture_writer::{self, Job, Ring, WriterError};
 use crate::output::sigmf::write::{self as sigmf_write, NAMESPACE};
+use crate::output::sigmf::writer_thread::WriterThread;
 use crate::pipeline::{Clock, Consumer, GapCause, Letter, Post, RunEnd, RunInfo};
 use crate::plan::Plan;
 use crate::source::reader::Block;
 use crate::source::SampleFormat;
-use crossbeam_channel::{bounded, Receiver, Sender, TrySendError};
 use num_complex::Complex32;
 use std::io;
 use std::path::PathBuf;
-use std::thread::JoinHandle;
 
-/// Most bytes of samples queued for the capture writer.
-pub const QUEUE_BYTES: usize = 64 << 20;
-/// Sample buffers kept for reuse once written: enough for a writer that keeps up; more are
-/// freed, so a backlog that has cleared does not stay resident.
-const SPARE_BUFFERS: usize = 8;
 /// Bytes counted for each capture's meta file against the disk cap (they are about 1.5 kB).
 const META_BYTES: u64 = 4096;
 
@@ -124,10 +119,8 @@ pub struct Captures {
     center_hz: f64,
     rate: f64,
     label: String,
-    jobs: Option<Sender<Job>>,
-    spare: Option<Receiver<Vec<Complex32>>>,
+    writer: Option<WriterThread<Job, ()>>,
     error: WriterError,
-    thread: Option<JoinHandle<()>>,
     pub counts: CaptureCounts,
 }
 
@@ -168,10 +161,8 @@ impl Captures {
             center_hz: 0.0,
             rate: 1.0,
             label: String::new(),
-            jobs: None,
-            spare: None,
+            writer: None,
             error: WriterError::default(),
-            thread: None,
             counts: CaptureCounts::default(),
         })
     }
@@ -188,21 +179,16 @@ impl Captures {
 
     /// Queues a job; `false` when the queue is full (live input) or the writer is gone.
     fn send(&self, job: Job) -> bool {
-        let Some(tx) = self.jobs.as_ref() else { return false };
+        let Some(w) = self.writer.as_ref() else { return false };
         if self.live {
-            match tx.try_send(job) {
-                Ok(()) => true,
-                Err(TrySendError::Full(_) | TrySendError::Disconnected(_)) => false,
-            }
+            w.offer(job).is_ok()
         } else {
-            tx.send(job).is_ok()
+            w.send(job).is_ok()
         }
     }
 
     fn buffer(&self) -> Vec<Complex32> {
-        let mut b = self.spare.as_ref().and_then(|s| s.try_recv().ok()).unwrap_or_default();
-        b.clear();
-        b
+        self.writer.as_ref().map(WriterThread::buffer).unwrap_or_default()
     }
 
     fn file_names(&self, label: &str, start: u64) -> (PathBuf, PathBuf, String) {
@@ -396,8 +382,8 @@ impl Captures {
 
     fn retry_abandons(&mut self) {
         while let Some(&id) = self.abandon.last() {
-            let Some(tx) = self.jobs.as_ref() else { return };
-            if tx.try_send(Job::Abandon { id }).is_err() {
+            let Some(w) = self.writer.as_ref() else { return };
+            if w.offer(Job::Abandon { id }).is_err() {
                 return;
             }
             self.abandon.pop();
@@ -425,16 +411,11 @@ impl Consumer for Captures {
         let e = &run.engine;
         let row = e.frames_per_output.unwrap_or(1) as usize * e.hop() + e.fft_size;
         self.ring = Ring::new(self.pre_n as usize + 4 * row + self.block_len);
-        let depth = (QUEUE_BYTES / (self.block_len * 8)).clamp(4, 1024);
-        let (tx, rx) = bounded(depth);
-        let (spare_tx, spare_rx) = bounded(SPARE_BUFFERS);
+        let depth = WriterThread::<Job, ()>::depth_for(self.block_len).clamp(4, 1024);
         let (format, error) = (self.format, self.error.clone());
-        let handle = std::thread::Builder::new()
-            .name("capture".into())
-            .spawn(move || capture_writer::run(rx, spare_tx, format, error))?;
-        self.jobs = Some(tx);
-        self.spare = Some(spare_rx);
-        self.thread = Some(handle);
+        self.writer = Some(WriterThread::spawn("capture", depth, move |(rx, spare)| {
+            capture_writer::run(rx, spare, format, error)
+        })?);
         Ok(())
     }
 
@@ -506,9 +487,8 @@ impl Consumer for Captures {
         for id in std::mem::take(&mut self.abandon) {
             self.send(Job::Abandon { id });
         }
-        self.jobs = None;
-        if let Some(h) = self.thread.take() {
-            let _ = h.join();
+        if let Some(w) = self.writer.as_mut() {
+            w.close();
         }
         match self.failed() {
             Some(e) => Err(io::Error::other(e)),

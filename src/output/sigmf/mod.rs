@@ -9,3 +9,4 @@ pub mod capture_writer;
 pub mod outputs;
 pub mod record;
 pub mod write;
+pub mod writer_thread;

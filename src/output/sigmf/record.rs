@@ -17,7 +17,8 @@
 //! `recorder_behind` or `behind_and_recorder_behind`), and the global object totals them.
 //!
 //! **Never blocking the DSP.** Samples go to a writer thread over a bounded queue (about a second
-//! of samples, at most [`QUEUE_BYTES`]). Live input: when that queue is full the block is left
+//! of samples, at most
+//! [`QUEUE_BYTES`](crate::output::sigmf::writer_thread::QUEUE_BYTES)). Live input: when that queue is full the block is left
 //! out of the recording, counted, and the next block starts a new segment, so the loss is
 //! written down, never silent. File input is never dropped anywhere in bandwarden, so there the
 //! DSP waits for the disk; so it does under `--no-drop`, where the reader waits too. A write error (full disk) ends the run with one clear line.
@@ -26,24 +27,18 @@
 //! the end, so a recording cut by a crash is still a valid SigMF pair up to its last write.
 
 use crate::output::sigmf::write::{self as sigmf_write, NAMESPACE};
+use crate::output::sigmf::writer_thread::WriterThread;
 use crate::pipeline::{Clock, Consumer, GapCause, RunEnd, RunInfo};
 use crate::source::reader::Block;
 use crate::source::SampleFormat;
-use crossbeam_channel::{bounded, Receiver, Sender, TrySendError};
+use crossbeam_channel::{Receiver, Sender, TrySendError};
 use num_complex::Complex32;
 use serde_json::{Map, Value};
 use std::fs::File;
 use std::io::{self, BufWriter, Write};
 use std::path::PathBuf;
 use std::sync::{Arc, Mutex};
-use std::thread::JoinHandle;
 
-/// Most bytes of samples queued for the writer thread (bounds memory when the disk stalls).
-pub const QUEUE_BYTES: usize = 64 << 20;
-
-/// Sample buffers kept for reuse once written: enough for a writer that keeps up; more are
-/// freed, so a backlog that has cleared does not stay resident.
-const SPARE_BUFFERS: usize = 8;
 /// What a recording came to, readable by the command after the run (also from another thread).
 #[derive(Debug, Default, Clone)]
 pub struct RecordStatus {
@@ -77,9 +72,7 @@ pub struct Recorder {
     data: Option<File>,
     format: SampleFormat,
     block_len: usize,
-    tx: Option<Sender<Msg>>,
-    spare: Option<Receiver<Vec<Complex32>>>,
-    thread: Option<JoinHandle<io::Result<()>>>,
+    writer: Option<WriterThread<Msg, io::Result<()>>>,
     status: Arc<Mutex<RecordStatus>>,
     clock: Option<Clock>,
     /// Where the input's own segments start (after the first), with their centres.
@@ -113,9 +106,7 @@ impl Recorder {
             data: Some(data),
             format: format.unwrap_or(SampleFormat::Cf32Le),
             block_len: block_len.max(1),
-            tx: None,
-            spare: None,
-            thread: None,
+            writer: None,
             status: Arc::default(),
             clock: None,
             source_segments: Vec::new(),
@@ -149,9 +140,7 @@ impl Recorder {
 
     /// Sends one run of consecutive samples, starting a segment when needed.
     fn send(&mut self, start: u64, samples: &[Complex32]) -> io::Result<()> {
-        let (Some(tx), Some(spare)) = (self.tx.as_ref(), self.spare.as_ref()) else {
-            return Ok(());
-        };
+        let Some(w) = self.writer.as_ref() else { return Ok(()) };
         let boundary = self.source_segments.iter().find(|&&(at, _)| at == start);
         if let Some(&(_, c)) = boundary {
             self.center_hz = c;
@@ -166,18 +155,17 @@ impl Recorder {
                 lost_cause: self.lost_pending.1,
             }
         });
-        let mut buf = spare.try_recv().unwrap_or_default();
-        buf.clear();
+        let mut buf = w.buffer();
         buf.extend_from_slice(samples);
         let msg = Msg::Samples { samples: buf, segment };
         let sent = if self.live {
-            match tx.try_send(msg) {
+            match w.offer(msg) {
                 Ok(()) => true,
                 Err(TrySendError::Full(_)) => false,
                 Err(TrySendError::Disconnected(_)) => return Err(self.writer_error()),
             }
         } else {
-            tx.send(msg).map_err(|_| self.writer_error())?;
+            w.send(msg).map_err(|_| self.writer_error())?;
             true
         };
         if sent {
@@ -217,10 +205,8 @@ impl Consumer for Recorder {
         self.source_segments =
             src.segments.iter().skip(1).map(|s| (s.sample_start, s.center_hz)).collect();
         self.live = src.live && !self.wait;
-        let depth = (QUEUE_BYTES / (self.block_len * 8)).clamp(2, 4096);
+        let depth = WriterThread::<Msg, io::Result<()>>::depth_for(self.block_len).clamp(2, 4096);
         let depth = depth.min((src.sample_rate_hz / self.block_len as f64).ceil() as usize).max(2);
-        let (tx, rx) = bounded(depth);
-        let (spare_tx, spare_rx) = bounded(SPARE_BUFFERS);
         let mut global = sigmf_write::global(
             self.format,
             src.sample_rate_hz,
@@ -238,16 +224,13 @@ impl Consumer for Recorder {
             status: self.status.clone(),
         };
         let status = self.status.clone();
-        let handle = std::thread::Builder::new().name("recorder".into()).spawn(move || {
-            let result = writer.run(rx, spare_tx);
+        self.writer = Some(WriterThread::spawn("recorder", depth, move |(rx, spare)| {
+            let result = writer.run(rx, spare);
             if let (Err(e), Ok(mut s)) = (&result, status.lock()) {
                 s.error.get_or_insert_with(|| format!("the recording stopped: {e}"));
             }
             result
-        })?;
-        self.tx = Some(tx);
-        self.spare = Some(spare_rx);
-        self.thread = Some(handle);
+        })?);
         Ok(())
     }
 
@@ -286,7 +269,7 @@ impl Consumer for Recorder {
     /// Closes the recording in the second stage of the end, so that annotations pointing at it
     /// (written in the last stage) read its finished metadata whatever the order of the list.
     fn settle(&mut self, _end: &RunEnd, _run: &RunInfo) -> io::Result<()> {
-        let Some(tx) = self.tx.take() else { return Ok(()) };
+        let Some(mut w) = self.writer.take() else { return Ok(()) };
         let (behind, recorder) =
             self.status.lock().map(|s| (s.lost_behind, s.lost_recorder)).unwrap_or_default();
         let end = Msg::End {
@@ -295,13 +278,8 @@ impl Consumer for Recorder {
             lost_recorder: recorder,
         };
         // At the end the DSP may wait for the disk: nothing is left to fall behind.
-        let _ = tx.send(end);
-        drop(tx);
-        match self.thread.take().map(JoinHandle::join) {
-            Some(Ok(r)) => r,
-            Some(Err(_)) => Err(io::Error::other("the recorder thread failed")),
-            None => Ok(()),
-        }
+        let _ = w.send(end);
+        w.close().unwrap_or_else(|| Err(io::Error::other("the recorder thread failed")))
     }
 }
 

@@ -140,12 +140,12 @@ fn a_disk_that_falls_behind_is_written_down_as_a_gap() {
     let run_info = run.info().clone();
     drop(run);
     // Stand in for a stalled disk: a queue of one that nobody empties.
-    let (stalled_tx, stalled_rx) = bounded(1);
-    let real = rec.tx.replace(stalled_tx).unwrap();
+    let (stalled_tx, stalled_rx) = crossbeam_channel::bounded(1);
+    let real = rec.writer.as_mut().unwrap().swap_jobs(stalled_tx).unwrap();
     rec.block(&Block::new(10_000, x[10_000..20_000].to_vec())).unwrap(); // queued
     rec.block(&Block::new(20_000, x[20_000..30_000].to_vec())).unwrap(); // queue full: left out
                                                                          // The disk recovers: what was queued reaches the writer, and recording goes on.
-    rec.tx = Some(real.clone());
+    rec.writer.as_mut().unwrap().swap_jobs(real.clone());
     for m in stalled_rx.try_iter() {
         real.send(m).unwrap();
     }
