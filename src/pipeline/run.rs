@@ -8,7 +8,7 @@
 
 use super::input::Input;
 use super::stop::{StopReason, StopSignals};
-use super::{Clock, Consumer, Flow, GapCause, RunEnd, RunInfo, TimeSource};
+use super::{Clock, Consumer, Flow, GapCause, Lost, RunEnd, RunInfo, TimeSource};
 use crate::dsp::{Engine, EngineConfig, Spectrum};
 use crate::kernels::Kernels;
 use crate::measure::occupancy::{Event, Occupancy};
@@ -74,7 +74,7 @@ pub struct Run<'a> {
     consumers: Vec<&'a mut dyn Consumer>,
     started: bool,
     next_sample: u64,
-    dropped: u64,
+    lost: Lost,
     stop_asked: bool,
     /// Why the run cannot go on (a row that is not finite), once found.
     failure: Option<String>,
@@ -101,7 +101,7 @@ impl<'a> Run<'a> {
             consumers,
             started: false,
             next_sample: 0,
-            dropped: 0,
+            lost: Lost::default(),
             stop_asked: false,
             failure: None,
             kernels: Kernels::detect(),
@@ -120,6 +120,11 @@ impl<'a> Run<'a> {
     /// One past the last input sample handled (delivered or known lost).
     pub fn next_sample(&self) -> u64 {
         self.next_sample
+    }
+
+    /// Input samples missing from the measurement so far, by cause.
+    pub fn lost(&self) -> Lost {
+        self.lost
     }
 
     /// Processes one block; a jump in `block.start` is a gap of lost samples. Returns a reason
@@ -246,7 +251,8 @@ impl<'a> Run<'a> {
             t.finish(self.next_sample, &mut self.events);
         }
         self.dispatch_events()?;
-        let end = RunEnd { reason, end_sample: self.next_sample, dropped_samples: self.dropped };
+        let end =
+            RunEnd { reason, end_sample: self.next_sample, dropped_samples: self.lost.total() };
         for c in self.consumers.iter_mut() {
             c.finish(&end, &self.info)?;
         }
@@ -303,7 +309,7 @@ impl<'a> Run<'a> {
             t.gap(from, to, &mut self.events);
         }
         self.dispatch_events()?;
-        self.dropped += to - from;
+        self.lost.add(cause, to - from);
         for c in self.consumers.iter_mut() {
             c.gap(from, to, cause, &self.info)?;
         }
@@ -387,6 +393,8 @@ pub struct Outcome {
     pub samples_read: u64,
     /// Why the input could not be measured, when the run stopped for that reason.
     pub failure: Option<String>,
+    /// Input samples missing from the measurement, by cause (their sum is `end.dropped_samples`).
+    pub lost: Lost,
 }
 
 impl Outcome {
@@ -426,7 +434,7 @@ pub fn run_input(input: Input, mut run: Run<'_>, signals: Option<&StopSignals>) 
         // A file reader stops at its next block; stdin may sit in a read that no flag
         // interrupts, so it is left behind (the process exits now).
         let issues = if input.info.live { None } else { input.finish().ok() };
-        return Ok(Outcome { end, issues, samples_read, failure: None });
+        return Ok(Outcome { end, issues, samples_read, failure: None, lost: run.lost() });
     }
     input.request_stop();
     // A consumer's stop leaves the reader running: what it read after that was never wanted.
@@ -450,7 +458,7 @@ pub fn run_input(input: Input, mut run: Run<'_>, signals: Option<&StopSignals>) 
             };
             let end = run.finish(reason)?;
             let failure = run.failure().map(str::to_string);
-            Ok(Outcome { end, issues: Some(issues), samples_read, failure })
+            Ok(Outcome { end, issues: Some(issues), samples_read, failure, lost: run.lost() })
         }
         Err(e) => {
             run.finish(StopReason::InputError)?;
