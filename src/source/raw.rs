@@ -159,7 +159,11 @@ impl RawSource {
     /// gaps and nonsense levels.
     fn wrong_format(&mut self, why: &str) -> Result<()> {
         self.finished = true;
-        bail!("'{}' does not look like {}: {why}", sanitize(&self.info.label), self.format)
+        bail!(
+            "'{}' does not look like {} (check --format): {why}",
+            sanitize(&self.info.label),
+            self.format
+        )
     }
 
     /// End of input with `partial` bytes of an incomplete sample left over.
