@@ -338,3 +338,65 @@ fn os_errors_name_the_file() {
         assert_refused(&o, &["/dev/full", "disk has room"]);
     }
 }
+
+/// Every confusion that `source::plausible` catches, piped into `log -` as a receiver's stream
+/// would come: the run must stop on its own with `input_error`, exit 1 and the `--format` advice,
+/// having written a few records, not one per bad sample. The guard only keeps a hang from
+/// blocking the suite; it asserts nothing about speed.
+#[test]
+fn wrong_format_streams_into_log_stop_with_input_error_and_a_small_log() {
+    use SampleFormat::*;
+    let pairs = [
+        (Cu8, Cf32Le),
+        (Cu8, Cf32Be),
+        (Cu8, Cf64Le),
+        (Ci16Le, Cf32Le),
+        (Cf32Le, Cf32Be),
+        (Cf64Le, Cf32Le),
+        (Cu8, Ci8),
+        (Ci8, Cu8),
+        (Cu8, Ci16Le),
+        (Cu8, Ci16Be),
+        (Ci16Le, Cu8),
+    ];
+    // Noise at a receiver's usual level (−30 dBFS), from the shared test kit.
+    let x = bandwarden::testkit::noise(400_000, 1e-3, 21);
+    for (written, read) in pairs {
+        let mut bytes = Vec::new();
+        written.encode(&x, &mut bytes);
+        let out = tmp(&format!("wrong-{written}-as-{read}.jsonl"));
+        let _ = std::fs::remove_file(&out);
+        let mut child = bin()
+            .args(["log", "-", "--format", read.name(), "--rate", "200k", "--center", "100M"])
+            .args(["--channel", "a=100.02M:10k", "-o"])
+            .arg(&out)
+            .stdin(Stdio::piped())
+            .stdout(Stdio::null())
+            .stderr(Stdio::piped())
+            .spawn()
+            .unwrap();
+        let mut stdin = child.stdin.take().unwrap();
+        // The run may stop before taking it all: a closed pipe is expected.
+        let feeder = std::thread::spawn(move || {
+            let _ = stdin.write_all(&bytes);
+        });
+        let t0 = std::time::Instant::now();
+        while child.try_wait().unwrap().is_none() {
+            if t0.elapsed() > std::time::Duration::from_secs(60) {
+                let _ = child.kill();
+                panic!("{written} read as {read}: log did not stop on its own");
+            }
+            std::thread::sleep(std::time::Duration::from_millis(20));
+        }
+        let o = child.wait_with_output().unwrap();
+        feeder.join().unwrap();
+        let case = format!("{written} read as {read}");
+        assert_refused(&o, &[&format!("probably not {read}"), "--format"]);
+        assert_eq!(o.status.code(), Some(1), "{case}");
+        let log = std::fs::read_to_string(&out).unwrap();
+        assert!(log.len() < 16 * 1024, "{case}: {} bytes of log", log.len());
+        let last: serde_json::Value = serde_json::from_str(log.lines().last().unwrap()).unwrap();
+        assert_eq!(last["kind"], "stop", "{case}");
+        assert_eq!(last["reason"], "input_error", "{case}");
+    }
+}

@@ -94,11 +94,8 @@ pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
         ));
     }
     outcome.conclude(&info.label)?;
-    if outcome.end.dropped_samples > 0 {
-        note(&format!(
-            "{} input samples were dropped because processing fell behind; emissions across those gaps were cut",
-            outcome.end.dropped_samples
-        ));
+    if let Some(lost) = outcome.lost.note() {
+        note(&format!("{lost}; emissions across those gaps were cut"));
     }
     sigmf_out.report()?;
     if let (Some(s), Some(path)) = (&census.annotated, &cfg.sigmf.annotate) {

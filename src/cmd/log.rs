@@ -96,11 +96,8 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
         note(&format!("stopped by {}; the log is complete", signals.signal_name()));
     }
     outcome.conclude(&info.label)?;
-    if outcome.end.dropped_samples > 0 {
-        note(&format!(
-            "{} input samples were dropped (see the dropped records and their cause: behind means processing fell behind, where a smaller --fft or a lower rate helps; disconnected means a network input's link was down)",
-            outcome.end.dropped_samples
-        ));
+    if let Some(lost) = outcome.lost.note() {
+        note(&format!("{lost} (see the dropped records)"));
     }
     if let Some(why) = refused_login {
         // A setting to fix, not an outage: the run fails though the local log is complete.

@@ -81,6 +81,62 @@ impl GapCause {
             GapCause::Disconnected => "disconnected",
         }
     }
+
+    /// What the cause means and what helps, for the closing note.
+    pub fn meaning(self) -> &'static str {
+        match self {
+            GapCause::Behind => {
+                "processing fell behind the input; a smaller --fft or a lower rate helps, --no-drop makes the reader wait instead"
+            }
+            GapCause::NotANumber => {
+                "the input held NaN or infinite samples, left out as gaps; a fault upstream, or the input is not in the format it was read as: check --format"
+            }
+            GapCause::Disconnected => "a network input's link was down",
+        }
+    }
+}
+
+/// Input samples missing from the measurement, by cause.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub struct Lost {
+    pub behind: u64,
+    pub not_a_number: u64,
+    pub disconnected: u64,
+}
+
+impl Lost {
+    pub fn add(&mut self, cause: GapCause, samples: u64) {
+        match cause {
+            GapCause::Behind => self.behind += samples,
+            GapCause::NotANumber => self.not_a_number += samples,
+            GapCause::Disconnected => self.disconnected += samples,
+        }
+    }
+
+    pub fn total(&self) -> u64 {
+        self.behind + self.not_a_number + self.disconnected
+    }
+
+    /// The closing note of a run that lost samples: how many, of each cause that happened, and
+    /// what each means (`None` when nothing was lost).
+    pub fn note(&self) -> Option<String> {
+        let parts: Vec<String> = [
+            (self.behind, GapCause::Behind),
+            (self.not_a_number, GapCause::NotANumber),
+            (self.disconnected, GapCause::Disconnected),
+        ]
+        .into_iter()
+        .filter(|(n, _)| *n > 0)
+        .map(|(n, cause)| format!("{n} {} ({})", cause.as_str(), cause.meaning()))
+        .collect();
+        (!parts.is_empty()).then(|| {
+            format!(
+                "{} input samples were missing from the measurement: {}",
+                self.total(),
+                parts.join("; ")
+            )
+        })
+    }
 }
 
 /// Where the time of the first sample came from, as the log's `start` record says it.

@@ -9,7 +9,7 @@
 use super::input::Input;
 use super::outbox::Outbox;
 use super::stop::{StopReason, StopSignals};
-use super::{Clock, Consumer, Flow, GapCause, RunEnd, RunInfo, TimeSource};
+use super::{Clock, Consumer, Flow, GapCause, Lost, RunEnd, RunInfo, TimeSource};
 use crate::dsp::{Engine, EngineConfig, Spectrum};
 use crate::kernels::Kernels;
 use crate::measure::occupancy::{Event, Occupancy};
@@ -76,7 +76,7 @@ pub struct Run<'a> {
     outbox: Outbox,
     started: bool,
     next_sample: u64,
-    dropped: u64,
+    lost: Lost,
     stop_asked: bool,
     /// Why the run cannot go on (a row that is not finite), once found.
     failure: Option<String>,
@@ -109,7 +109,7 @@ impl<'a> Run<'a> {
             outbox,
             started: false,
             next_sample: 0,
-            dropped: 0,
+            lost: Lost::default(),
             stop_asked: false,
             failure: None,
             kernels: Kernels::detect(),
@@ -128,6 +128,11 @@ impl<'a> Run<'a> {
     /// One past the last input sample handled (delivered or known lost).
     pub fn next_sample(&self) -> u64 {
         self.next_sample
+    }
+
+    /// Input samples missing from the measurement so far, by cause.
+    pub fn lost(&self) -> Lost {
+        self.lost
     }
 
     /// Processes one block; a jump in `block.start` is a gap of lost samples. Returns a reason
@@ -256,7 +261,8 @@ impl<'a> Run<'a> {
         }
         self.dispatch_events()?;
         self.deliver_mail()?;
-        let end = RunEnd { reason, end_sample: self.next_sample, dropped_samples: self.dropped };
+        let end =
+            RunEnd { reason, end_sample: self.next_sample, dropped_samples: self.lost.total() };
         for c in self.consumers.iter_mut() {
             c.ending(&end, &self.info)?;
         }
@@ -321,7 +327,7 @@ impl<'a> Run<'a> {
             t.gap(from, to, &mut self.events);
         }
         self.dispatch_events()?;
-        self.dropped += to - from;
+        self.lost.add(cause, to - from);
         for c in self.consumers.iter_mut() {
             c.gap(from, to, cause, &self.info)?;
         }
@@ -418,6 +424,8 @@ pub struct Outcome {
     pub reader_dropped: u64,
     /// Why the input could not be measured, when the run stopped for that reason.
     pub failure: Option<String>,
+    /// Input samples missing from the measurement, by cause (their sum is `end.dropped_samples`).
+    pub lost: Lost,
 }
 
 impl Outcome {
@@ -467,7 +475,14 @@ pub fn run_input_until(
         // A file reader stops at its next block; stdin may sit in a read that no flag
         // interrupts, so it is left behind (the process exits now).
         let issues = if input.info.live { None } else { input.finish().ok() };
-        return Ok(Outcome { end, issues, samples_read, reader_dropped, failure: None });
+        return Ok(Outcome {
+            end,
+            issues,
+            samples_read,
+            reader_dropped,
+            failure: None,
+            lost: run.lost(),
+        });
     }
     input.request_stop();
     // A consumer's stop leaves the reader running: what it read after that was never wanted.
@@ -492,7 +507,14 @@ pub fn run_input_until(
             };
             let end = run.finish(reason)?;
             let failure = run.failure().map(str::to_string);
-            Ok(Outcome { end, issues: Some(issues), samples_read, reader_dropped, failure })
+            Ok(Outcome {
+                end,
+                issues: Some(issues),
+                samples_read,
+                reader_dropped,
+                failure,
+                lost: run.lost(),
+            })
         }
         Err(e) => {
             run.finish(StopReason::InputError)?;

@@ -6,6 +6,7 @@
 
 pub mod demo;
 pub mod format;
+pub mod plausible;
 pub mod raw;
 pub mod reader;
 pub mod sigmf;

@@ -1,7 +1,8 @@
 //! Raw interleaved IQ from a file or a pipe.
 
+use super::plausible::FormatCheck;
 use super::{format, sanitize, InputIssues, InputRequest, SampleFormat, SampleSource, SourceInfo};
-use anyhow::{Context, Result};
+use anyhow::{bail, Context, Result};
 use num_complex::Complex32;
 use std::fs::File;
 use std::io::{ErrorKind, Read, Seek, SeekFrom};
@@ -49,11 +50,14 @@ pub struct RawSource {
     carry: usize,
     issues: InputIssues,
     finished: bool,
+    /// Whether the bytes look like `format` at all (see [`super::plausible`]).
+    check: FormatCheck,
 }
 
 impl RawSource {
     pub fn new(stream: Box<dyn ByteStream>, format: SampleFormat, info: SourceInfo) -> RawSource {
         RawSource {
+            check: FormatCheck::new(format, info.sample_rate_hz),
             stream,
             format,
             info,
@@ -112,6 +116,9 @@ impl RawSource {
             let buf = if native { format::sample_bytes_mut(out) } else { &mut self.bytes[..want] };
             let n = read_some(&mut *self.stream, &mut buf[have..], &self.info.label)?;
             if n == 0 {
+                if let Some(why) = self.check.at_end() {
+                    self.wrong_format(&why)?;
+                }
                 return Ok(self.end(have));
             }
             have += n;
@@ -134,6 +141,9 @@ impl RawSource {
             self.carry = rest.len();
             self.issues.non_finite += screened.non_finite;
             self.issues.beyond_scale += screened.beyond_scale;
+            if let Some(why) = self.check.look(&out[..whole], &screened) {
+                self.wrong_format(&why)?;
+            }
             if kept > 0 {
                 return Ok(kept);
             }
@@ -143,6 +153,17 @@ impl RawSource {
             }
             have = self.carry;
         }
+    }
+
+    /// Stops the input: bytes that are evidently in another format would fill the log with
+    /// gaps and nonsense levels.
+    fn wrong_format(&mut self, why: &str) -> Result<()> {
+        self.finished = true;
+        bail!(
+            "'{}' does not look like {} (check --format): {why}",
+            sanitize(&self.info.label),
+            self.format
+        )
     }
 
     /// End of input with `partial` bytes of an incomplete sample left over.

@@ -12,7 +12,7 @@ use anyhow::Result;
 use crossbeam_channel::{bounded, Sender, TrySendError};
 use num_complex::Complex32;
 use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
-use std::sync::Arc;
+use std::sync::{Arc, Mutex};
 use std::thread::JoinHandle;
 use std::time::{Duration, Instant};
 
@@ -58,6 +58,16 @@ pub struct ReaderStats {
     pub dropped: AtomicU64,
     /// Set when the source reached its end.
     pub finished: AtomicBool,
+    /// Why the reader stopped, when the input failed (a wrong format, a read error): for a screen
+    /// that would otherwise go on waiting for samples.
+    pub problem: Mutex<Option<String>>,
+}
+
+impl ReaderStats {
+    /// Why the reader stopped, if the input failed.
+    pub fn problem(&self) -> Option<String> {
+        self.problem.lock().ok().and_then(|p| p.clone())
+    }
 }
 
 #[derive(Clone, Debug)]
@@ -109,6 +119,9 @@ pub fn spawn(
         .spawn(move || {
             src.watch_stop(stop.clone());
             let result = run(&mut *src, &opts, &tx, &stop, &stats);
+            if let (Err(e), Ok(mut p)) = (&result, stats.problem.lock()) {
+                *p = Some(format!("{e:#}"));
+            }
             stats.finished.store(true, Ordering::SeqCst);
             result.map(|_| src.issues())
         })

@@ -138,6 +138,11 @@ fn event_loop(
         next = (next + frame).max(now);
         take_rows(app, dsp);
         app.stats.dropped = reader.dropped.load(Ordering::Relaxed);
+        if let Some(p) = reader.problem() {
+            // The input failed (a wrong --format): say so where notices go, for as long as the
+            // screen stays up, instead of waiting for samples that will never come.
+            app.notice = Some((format!("input stopped: {p}"), now + Duration::from_secs(86_400)));
+        }
         app.stats.skipped = dsp.skipped.load(Ordering::Relaxed);
         app.tick(now);
         if let Some(s) = app.take_pending_settings() {

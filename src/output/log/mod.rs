@@ -33,10 +33,16 @@
 //!   bandwidth of its noise-corrected average spectrum, ITU-R SM.328; `null` if nothing stood
 //!   above the noise), `samples` (occupied samples), `partial` (cut short by the end of the run or
 //!   by dropped input: it may have gone on).
-//! - `dropped`: `t_start_s, t_end_s, start, end, dropped_samples, cause`: input samples missing
-//!   from the measurement, `cause` `behind` (a live source outran the processing),
+//! - `dropped`: `t_start_s, t_end_s, start, end, dropped_samples, gaps, cause`: input samples
+//!   missing from the measurement, `cause` `behind` (a live source outran the processing),
 //!   `not_a_number` (NaN or infinite samples in the input) or `disconnected` (a network input's
-//!   link was down: the time it was down × the sample rate, see [`crate::source::tcp`]).
+//!   link was down: the time it was down × the sample rate, see [`crate::source::tcp`]). Gaps of
+//!   one cause that begin within a second (of input) of the first are one record
+//!   ([`occupancy::GAP_MERGE_S`]): `gaps` says how many, `dropped_samples` sums their samples
+//!   (with more than one gap, measured samples lie between them, so it is less than the span
+//!   `t_start_s`..`t_end_s`). A log therefore holds at most one `dropped` record per cause per
+//!   second of input, whatever the input. Records follow the gaps by up to that second, so a
+//!   `dropped` record may come after an `interval` record that counts its samples.
 //! - `capture` (with `--capture`, when a capture is closed or skipped): `channel, status`
 //!   (`saved` or `skipped`), `file` (the capture's `.sigmf-meta`), `cause` (of a skip: `disk_cap`
 //!   or `disk_behind`), `t_start_s, t_end_s, start, end` (the IQ in the file), `iq_samples,
@@ -228,6 +234,7 @@ mod tests {
                 start: None,
                 end: None,
                 dropped_samples: 240_000,
+                gaps: 1,
                 cause: "behind".into(),
             }),
             Record::Stop(StopRecord {

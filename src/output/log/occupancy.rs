@@ -11,6 +11,7 @@ use crate::pipeline::clock::rfc3339_ms;
 use crate::pipeline::occupancy::OccupancySetup;
 use crate::pipeline::{Consumer, GapCause, Letter, RunEnd, RunInfo};
 use crate::plan::Plan;
+use crate::source::reader::Block;
 use crate::units::db;
 use std::io::{self, Write};
 use time::OffsetDateTime;
@@ -34,6 +35,27 @@ pub struct OccupancyLog<W: Write> {
     run_id: String,
     next_seq: u64,
     tap: Option<Box<dyn RecordTap>>,
+    /// Gaps not yet written, at most one per cause (see [`GAP_MERGE_S`]).
+    pending_gaps: Vec<PendingGap>,
+    /// The run, as told at its start, for writing gathered gaps between its calls.
+    run_info: Option<RunInfo>,
+}
+
+/// Gaps of one cause that begin within this many seconds of input of the first one are written
+/// as one `dropped` record (their lost samples summed, their number in `gaps`). A NaN now and then
+/// in a float input, or a network link going up and down, would otherwise write a line per hole:
+/// this way a log holds at most one `dropped` record per cause per second of input, whatever
+/// the input, and a record is written at most about a second (of input) after its gap began.
+pub const GAP_MERGE_S: f64 = 1.0;
+
+/// Gaps of one cause gathered for one `dropped` record.
+#[derive(Clone, Copy, Debug)]
+struct PendingGap {
+    cause: GapCause,
+    from: u64,
+    to: u64,
+    lost: u64,
+    gaps: u64,
 }
 
 /// An id for a run of the log: its UTC start time to the second and the process id.
@@ -76,6 +98,8 @@ impl<W: Write> OccupancyLog<W> {
             run_id: new_run_id(),
             next_seq: 0,
             tap: None,
+            pending_gaps: Vec::new(),
+            run_info: None,
         }
     }
 
@@ -218,6 +242,7 @@ impl<W: Write> OccupancyLog<W> {
 
 impl<W: Write> Consumer for OccupancyLog<W> {
     fn start(&mut self, run: &RunInfo) -> io::Result<()> {
+        self.run_info = Some(run.clone());
         let mut headers = vec![Record::Start(self.start_record(run))];
         for (c, def) in self.plan.channels.iter().zip(&self.setup.channels) {
             headers.push(Record::Channel(ChannelRecord {
@@ -264,20 +289,35 @@ impl<W: Write> Consumer for OccupancyLog<W> {
         self.emit(Record::Capture(c.clone()), Some(sample), run)
     }
 
+    fn block(&mut self, block: &Block) -> io::Result<()> {
+        if self.pending_gaps.is_empty() {
+            return Ok(());
+        }
+        // The run's settings as they were at its start: what a record's time needs.
+        let Some(run) = self.run_info.take() else { return Ok(()) };
+        let result = self.write_gaps(Some(block.start), &run);
+        self.run_info = Some(run);
+        result
+    }
+
     fn gap(&mut self, from: u64, to: u64, cause: GapCause, run: &RunInfo) -> io::Result<()> {
-        let c = &run.clock;
-        let rec = Record::Dropped(DroppedRecord {
-            t_start_s: c.seconds(from),
-            t_end_s: c.seconds(to),
-            start: c.stamp(from),
-            end: c.stamp_end(to),
-            dropped_samples: to - from,
-            cause: cause.as_str().into(),
-        });
-        self.emit(rec, Some(from), run)
+        let window = merge_window(run);
+        match self.pending_gaps.iter_mut().find(|g| g.cause == cause) {
+            Some(g) if from < g.from.saturating_add(window) => {
+                g.to = to;
+                g.lost += to - from;
+                g.gaps += 1;
+            }
+            _ => {
+                self.write_gaps(Some(from), run)?;
+                self.pending_gaps.push(PendingGap { cause, from, to, lost: to - from, gaps: 1 });
+            }
+        }
+        Ok(())
     }
 
     fn finish(&mut self, end: &RunEnd, run: &RunInfo) -> io::Result<()> {
+        self.write_gaps(None, run)?;
         let c = &run.clock;
         let rec = Record::Stop(StopRecord {
             t_end_s: c.seconds(end.end_sample),
@@ -288,6 +328,35 @@ impl<W: Write> Consumer for OccupancyLog<W> {
         });
         self.emit(rec, None, run)
     }
+}
+
+impl<W: Write> OccupancyLog<W> {
+    /// Writes the gathered gaps whose merge window has passed at sample `now` (all of them when
+    /// `now` is `None`: the run ends).
+    fn write_gaps(&mut self, now: Option<u64>, run: &RunInfo) -> io::Result<()> {
+        let window = merge_window(run);
+        let due = |g: &PendingGap| now.map_or(true, |t| t >= g.from.saturating_add(window));
+        while let Some(k) = self.pending_gaps.iter().position(due) {
+            let g = self.pending_gaps.remove(k);
+            let c = &run.clock;
+            let rec = Record::Dropped(DroppedRecord {
+                t_start_s: c.seconds(g.from),
+                t_end_s: c.seconds(g.to),
+                start: c.stamp(g.from),
+                end: c.stamp_end(g.to),
+                dropped_samples: g.lost,
+                gaps: g.gaps,
+                cause: g.cause.as_str().into(),
+            });
+            self.emit(rec, Some(g.from), run)?;
+        }
+        Ok(())
+    }
+}
+
+/// [`GAP_MERGE_S`] in samples of the run's input.
+fn merge_window(run: &RunInfo) -> u64 {
+    ((GAP_MERGE_S * run.clock.rate).round() as u64).max(1)
 }
 
 fn round_to(x: f64, decimals: i32) -> f64 {
@@ -403,6 +472,44 @@ mod tests {
         assert_eq!(stop["iq_samples"], 600_000);
         assert_eq!(stop["dropped_samples"], 40_000);
         assert_eq!(stop["reason"], "end_of_input");
+    }
+
+    #[test]
+    fn scattered_nan_samples_make_one_dropped_record_per_second_with_the_count_summed() {
+        let on = |_: u64| true;
+        let n = 3 * FS as usize + 1000;
+        let mut x = band(n, &[Keyed { offset_hz: 20e3, level_dbfs: -30.0, on: &on }], 4);
+        // A NaN every 97 samples: thousands of one-sample holes.
+        let mut holes = 0u64;
+        for i in (50..n).step_by(97) {
+            x[i].re = f32::NAN;
+            holes += 1;
+        }
+        let (setup, plan, info) = setup(1.0);
+        let writer = LogWriter::new(Vec::new(), LogFormat::JsonLines, true).unwrap();
+        let mut log = OccupancyLog::new(writer, &plan, &setup);
+        let mut run = Run::new(spec(&setup, &info, None), vec![&mut log]);
+        for start in (0..n).step_by(10_000) {
+            let end = (start + 10_000).min(n);
+            run.feed(&Block::new(start as u64, x[start..end].to_vec())).unwrap();
+        }
+        let end = run.finish(StopReason::EndOfInput).unwrap();
+        drop(run);
+        let recs = lines(log.into_writer().unwrap());
+        let dropped: Vec<&Value> = recs.iter().filter(|r| r["kind"] == "dropped").collect();
+        // The holes span a little over 3 s of input: one record per second, the last one at
+        // the end of the run.
+        assert_eq!(dropped.len(), 4, "{dropped:?}");
+        let lost: u64 = dropped.iter().map(|r| r["dropped_samples"].as_u64().unwrap()).sum();
+        let gaps: u64 = dropped.iter().map(|r| r["gaps"].as_u64().unwrap()).sum();
+        assert_eq!((lost, gaps), (holes, holes));
+        assert_eq!(end.dropped_samples, holes);
+        for r in &dropped {
+            assert_eq!(r["cause"], "not_a_number");
+            let span = r["t_end_s"].as_f64().unwrap() - r["t_start_s"].as_f64().unwrap();
+            assert!(span <= GAP_MERGE_S + 1.0 / FS, "{r}");
+        }
+        assert_eq!(recs.last().unwrap()["kind"], "stop", "gathered gaps come before the stop");
     }
 
     #[test]

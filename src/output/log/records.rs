@@ -113,6 +113,10 @@ pub struct DroppedRecord {
     pub start: Option<String>,
     pub end: Option<String>,
     pub dropped_samples: u64,
+    /// How many gaps of this cause the record gathers (those beginning within
+    /// [`GAP_MERGE_S`](crate::output::log::occupancy::GAP_MERGE_S) of the first): with more than
+    /// one, measured samples lie between them, and `dropped_samples` is less than the span.
+    pub gaps: u64,
     /// `behind` (a live source outran the processing), `not_a_number` (NaN/infinite samples) or
     /// `disconnected` (a network input's link was down).
     pub cause: String,
@@ -202,4 +206,5 @@ pub const CSV_COLUMNS: &[&str] = &[
     "file",
     "bytes",
     "truncated",
+    "gaps",
 ];
