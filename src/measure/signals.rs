@@ -116,7 +116,7 @@ pub fn find_signals(
     let split = Split { valley: 10f64.powf(VALLEY_DB / 10.0).max(noise_dip), lobe: VALLEY_DB };
     let gap = (2.0 * spec.enbw_bins).ceil() as usize;
     let widen = spec.enbw_bins.ceil() as i64;
-    let psd = |i: i64| spec.psd[i.rem_euclid(n as i64) as usize];
+    let psd = |i: i64| spec.psd[wrap(i, n)];
 
     // Start the circular scan where `gap + 1` bins lie below the edge (or at least one does), so
     // that no run is cut by the start of the scan.
@@ -129,9 +129,9 @@ pub fn find_signals(
     let mut found = Vec::new();
     let mut i = origin;
     while i < stop {
-        if psd(i) <= edge {
-            i += 1;
-            continue;
+        i = next_above(&spec.psd, i, stop, edge);
+        if i == stop {
+            break;
         }
         // Extend the run, bridging gaps of up to `gap` bins.
         let start = i;
@@ -168,6 +168,36 @@ pub fn find_signals(
     });
     found.truncate(max);
     found
+}
+
+/// The bin of an unwrapped index `i` on the circle of `n` bins. Scans stay within one turn either
+/// side of the span, where a comparison or two replace the division of `rem_euclid`.
+fn wrap(i: i64, n: usize) -> usize {
+    let m = n as i64;
+    if (0..m).contains(&i) {
+        i as usize
+    } else if (m..2 * m).contains(&i) {
+        (i - m) as usize
+    } else {
+        i.rem_euclid(m) as usize
+    }
+}
+
+/// The first unwrapped index in `from..stop` whose bin is above `edge` (or is not a number), or
+/// `stop`: a plain scan of at most two slices of `psd`, since most bins of most rows are noise
+/// below the edge.
+fn next_above(psd: &[f64], from: i64, stop: i64, edge: f64) -> i64 {
+    let n = psd.len() as i64;
+    let mut i = from;
+    while i < stop {
+        let at = wrap(i, psd.len());
+        let len = (stop - i).min(n - at as i64) as usize;
+        match psd[at..at + len].iter().position(|&p| p > edge || p.is_nan()) {
+            Some(k) => return i + k as i64,
+            None => i += len as i64,
+        }
+    }
+    stop
 }
 
 /// Power ratios for splitting a run: `valley` (linear) below both maxima, `lobe` dB above leakage.
@@ -229,7 +259,7 @@ fn describe(
     // Shift the whole segment so that its peak lies inside the span.
     let shift = peak - peak.rem_euclid(n);
     let (lo, hi, peak) = (lo - shift, hi - shift, peak - shift);
-    let psd = |i: i64| spec.psd[i.rem_euclid(n) as usize];
+    let psd = |i: i64| spec.psd[wrap(i, spec.fft_size)];
     let clean = |i: i64| (psd(i) - floor).max(0.0);
     let (delta, gain) = window.tone_offset(clean(peak - 1), clean(peak), clean(peak + 1));
     let tone = (clean(peak) * spec.rbw_hz / gain.max(1e-12)).max(f64::MIN_POSITIVE);
