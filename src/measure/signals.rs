@@ -120,8 +120,7 @@ pub fn find_signals(
 
     // Start the circular scan where `gap + 1` bins lie below the edge (or at least one does), so
     // that no run is cut by the start of the scan.
-    let origin = (0..n)
-        .find(|&i| (0..=gap).all(|k| spec.psd[(i + k) % n] <= edge))
+    let origin = quiet_start(&spec.psd, gap, edge)
         .or_else(|| (0..n).find(|&i| spec.psd[i] <= edge))
         .unwrap_or(0) as i64;
     let stop = origin + n as i64;
@@ -168,6 +167,24 @@ pub fn find_signals(
     });
     found.truncate(max);
     found
+}
+
+/// The first bin `i` such that bins `i ..= i + gap` (around the circle) all lie at or below
+/// `edge`: one pass counting the quiet bins in a row, instead of `gap + 1` looks at every start.
+fn quiet_start(psd: &[f64], gap: usize, edge: f64) -> Option<usize> {
+    let n = psd.len();
+    let mut quiet = 0;
+    for j in 0..n + gap {
+        if psd[wrap(j as i64, n)] <= edge {
+            quiet += 1;
+            if quiet > gap {
+                return Some(j - gap);
+            }
+        } else {
+            quiet = 0;
+        }
+    }
+    None
 }
 
 /// The bin of an unwrapped index `i` on the circle of `n` bins. Scans stay within one turn either
@@ -220,20 +237,43 @@ fn resolve(
         .filter(|&i| psd(i) > detect && psd(i) >= psd(i - 1) && psd(i) > psd(i + 1))
         .collect();
     candidates.sort_by(|&x, &y| psd(y).total_cmp(&psd(x)));
+    let len = (end - start + 1) as usize;
     let mut kept: Vec<i64> = Vec::new();
+    // For the m-th kept peak, `dips[m·len + j]` is the lowest bin between it and bin `start + j`
+    // (both included): each candidate then reads its valley to every kept peak at once, where a
+    // scan per pair cost a wide noise-like run (hundreds of candidates) most of the row's time.
+    let mut dips: Vec<f64> = Vec::new();
     for c in candidates {
-        let stands = kept.iter().all(|&k| {
-            let (lo, hi) = (c.min(k), c.max(k));
-            let dip = (lo..=hi).map(psd).fold(f64::INFINITY, f64::min);
+        let stands = kept.iter().enumerate().all(|(m, &k)| {
+            let dip = dips[m * len + (c - start) as usize];
             psd(c) >= split.valley * dip
                 && db(psd(c) / psd(k)) >= leakage_db(window, (c - k).abs() as f64) + split.lobe
         });
         if stands || kept.is_empty() {
             kept.push(c);
+            lowest_towards(psd, start, end, c, &mut dips);
         }
     }
     kept.sort_unstable();
     kept
+}
+
+/// Appends, for every bin `j` of the run `start..=end`, the lowest bin between `peak` and `j`
+/// (both included). A minimum involves no rounding, so this is the scan of each range, exactly.
+fn lowest_towards(psd: &impl Fn(i64) -> f64, start: i64, end: i64, peak: i64, out: &mut Vec<f64>) {
+    let base = out.len();
+    out.resize(base + (end - start + 1) as usize, 0.0);
+    let row = &mut out[base..];
+    let mut low = f64::INFINITY;
+    for j in (start..=peak).rev() {
+        low = low.min(psd(j));
+        row[(j - start) as usize] = low;
+    }
+    low = f64::INFINITY;
+    for j in peak..=end {
+        low = low.min(psd(j));
+        row[(j - start) as usize] = low;
+    }
 }
 
 /// The envelope of the window's power response `d` bins from a tone, dB: the highest response

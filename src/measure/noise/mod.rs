@@ -16,6 +16,7 @@
 pub mod tracker;
 
 use super::stats::{gamma_quantile_unit_mean, truncated_mean_unit};
+use crate::kernels::Kernels;
 
 /// Probability that a noise-only bin is excised as "signal".
 const EXCISION_FALSE_ALARM: f64 = 1e-3;
@@ -32,11 +33,18 @@ pub fn noise_floor(psd: &[f64], dof: f64) -> f64 {
 /// first row has sized the buffer.
 ///
 /// Nothing is sorted: the start needs one order statistic (found by selection, O(n)), and each
-/// round needs only the count and the sum of the bins below the threshold, one pass that the
-/// compiler vectorises. A full sort of a 4096-bin row cost more than the row's transforms.
-#[derive(Clone, Debug, Default)]
+/// round needs only the count and the sum of the bins below the threshold, one vectorised pass
+/// ([`Kernels::sum_below`]). A full sort of a 4096-bin row cost more than the row's transforms.
+#[derive(Clone, Debug)]
 pub struct NoiseFloor {
     values: Vec<f64>,
+    kernels: Kernels,
+}
+
+impl Default for NoiseFloor {
+    fn default() -> Self {
+        NoiseFloor { values: Vec::new(), kernels: Kernels::detect() }
+    }
 }
 
 impl NoiseFloor {
@@ -51,12 +59,12 @@ impl NoiseFloor {
         if self.values.is_empty() {
             return 0.0;
         }
-        fcme(&mut self.values, dof)
+        fcme(&mut self.values, dof, self.kernels)
     }
 }
 
 /// The iteration over the finite bins `values` (reordered by the selection of the start).
-fn fcme(values: &mut [f64], dof: f64) -> f64 {
+fn fcme(values: &mut [f64], dof: f64, kernels: Kernels) -> f64 {
     let a = (dof / 2.0).max(0.5);
     let n = values.len();
     let q25 = *values.select_nth_unstable_by(n / 4, |x, y| x.total_cmp(y)).1;
@@ -67,7 +75,7 @@ fn fcme(values: &mut [f64], dof: f64) -> f64 {
     let tau = gamma_quantile_unit_mean(1.0 - EXCISION_FALSE_ALARM, a);
     let correction = truncated_mean_unit(a, tau);
     for _ in 0..50 {
-        let (count, sum) = match sum_below(values, tau * mu) {
+        let (count, sum) = match kernels.sum_below(values, tau * mu) {
             // Nothing below the threshold: the lowest bin alone stands for the noise.
             (0, _) => (1, values.iter().copied().fold(f64::INFINITY, f64::min)),
             kept => kept,
@@ -80,30 +88,6 @@ fn fcme(values: &mut [f64], dof: f64) -> f64 {
         }
     }
     mu
-}
-
-/// How many of `values` lie below `t`, and their sum. Eight running sums, one per lane, so the
-/// loop needs no reassociation to vectorise; the order of the additions is fixed by the input,
-/// so the result is too.
-fn sum_below(values: &[f64], t: f64) -> (usize, f64) {
-    const LANES: usize = 8;
-    let mut sums = [0.0f64; LANES];
-    let mut counts = [0u64; LANES];
-    let chunks = values.chunks_exact(LANES);
-    let rest = chunks.remainder();
-    for chunk in chunks {
-        for l in 0..LANES {
-            let keep = chunk[l] < t;
-            sums[l] += if keep { chunk[l] } else { 0.0 };
-            counts[l] += u64::from(keep);
-        }
-    }
-    for (l, &v) in rest.iter().enumerate() {
-        let keep = v < t;
-        sums[l] += if keep { v } else { 0.0 };
-        counts[l] += u64::from(keep);
-    }
-    (counts.iter().sum::<u64>() as usize, sums.iter().sum())
 }
 
 #[cfg(test)]
