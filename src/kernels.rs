@@ -1,5 +1,5 @@
-//! The per-sample loops around the FFT, compiled twice on x86-64: once for the baseline
-//! instruction set and once for AVX2, picked at run time (as rustfft picks its own AVX code).
+//! The per-sample loops around the FFT, and the per-bin pass of the noise floor that runs on
+//! every row, compiled twice on x86-64: once for the baseline instruction set and once for AVX2, picked at run time (as rustfft picks its own AVX code).
 //! The loops are plain Rust that the compiler vectorises. On the development machine the AVX2
 //! copy windows 4096 samples in 1.32 µs instead of 1.62 µs and sums their power in 1.01 µs
 //! instead of 1.22 µs; the range scan of float input gains nothing measurable but costs nothing
@@ -59,6 +59,16 @@ impl Kernels {
         any_outside(x, bound)
     }
 
+    /// How many of `values` lie below `t`, and their sum (the rounds of the FCME noise floor).
+    pub fn sum_below(self, values: &[f64], t: f64) -> (usize, f64) {
+        #[cfg(target_arch = "x86_64")]
+        if self.avx2 {
+            // SAFETY: as above.
+            return unsafe { avx2::sum_below(values, t) };
+        }
+        sum_below(values, t)
+    }
+
     /// `out[i] += x[i]` in f64.
     pub fn add_wide(self, out: &mut [f64], x: &[f32]) {
         #[cfg(target_arch = "x86_64")]
@@ -96,6 +106,32 @@ fn any_outside(x: &[Complex32], bound: f32) -> bool {
     })
 }
 
+/// Eight running sums and counts, one per lane, so the loop needs no reassociation to vectorise
+/// (the counts are floats, exact far beyond any row, so that they vectorise with the sums); the
+/// order of the additions is fixed by the input, so the result is too.
+#[inline(always)]
+fn sum_below(values: &[f64], t: f64) -> (usize, f64) {
+    const LANES: usize = 8;
+    let mut sums = [0.0f64; LANES];
+    let mut counts = [0.0f64; LANES];
+    let mut add = |l: usize, v: f64| {
+        let keep = v < t;
+        sums[l] += if keep { v } else { 0.0 };
+        counts[l] += if keep { 1.0 } else { 0.0 };
+    };
+    let chunks = values.chunks_exact(LANES);
+    let rest = chunks.remainder();
+    for chunk in chunks {
+        for (l, &v) in chunk.iter().enumerate() {
+            add(l, v);
+        }
+    }
+    for (l, &v) in rest.iter().enumerate() {
+        add(l, v);
+    }
+    (counts.iter().sum::<f64>() as usize, sums.iter().sum())
+}
+
 #[inline(always)]
 fn add_wide(out: &mut [f64], x: &[f32]) {
     for (a, p) in out.iter_mut().zip(x) {
@@ -120,6 +156,11 @@ mod avx2 {
     #[target_feature(enable = "avx2")]
     pub unsafe fn any_outside(x: &[Complex32], bound: f32) -> bool {
         super::any_outside(x, bound)
+    }
+
+    #[target_feature(enable = "avx2")]
+    pub unsafe fn sum_below(values: &[f64], t: f64) -> (usize, f64) {
+        super::sum_below(values, t)
     }
 
     #[target_feature(enable = "avx2")]
@@ -153,6 +194,16 @@ mod tests {
             fast.add_wide(&mut s, &p);
             base.add_wide(&mut t, &q);
             assert_eq!(s, t, "wide n={n}");
+            // Every value below the middle one: the count and the sum of those, by hand.
+            let values: Vec<f64> = x.iter().map(|c| f64::from(c.re).abs()).collect();
+            let t = values[n / 2];
+            let below = values.iter().filter(|v| **v < t);
+            let (fast_sum, base_sum) = (fast.sum_below(&values, t), base.sum_below(&values, t));
+            assert_eq!(fast_sum.0, base_sum.0, "count below n={n}");
+            assert_eq!(fast_sum.1.to_bits(), base_sum.1.to_bits(), "sum below n={n}");
+            assert_eq!(fast_sum.0, below.clone().count());
+            let plain: f64 = below.sum();
+            assert!((fast_sum.1 - plain).abs() <= 1e-12 * plain.max(1.0), "n={n}");
             let mut y = x.clone();
             let outside = |y: &[Complex32], b| (fast.any_outside(y, b), base.any_outside(y, b));
             assert_eq!(outside(&y, 1e6), (false, false));

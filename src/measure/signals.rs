@@ -116,12 +116,11 @@ pub fn find_signals(
     let split = Split { valley: 10f64.powf(VALLEY_DB / 10.0).max(noise_dip), lobe: VALLEY_DB };
     let gap = (2.0 * spec.enbw_bins).ceil() as usize;
     let widen = spec.enbw_bins.ceil() as i64;
-    let psd = |i: i64| spec.psd[i.rem_euclid(n as i64) as usize];
+    let psd = |i: i64| spec.psd[wrap(i, n)];
 
     // Start the circular scan where `gap + 1` bins lie below the edge (or at least one does), so
     // that no run is cut by the start of the scan.
-    let origin = (0..n)
-        .find(|&i| (0..=gap).all(|k| spec.psd[(i + k) % n] <= edge))
+    let origin = quiet_start(&spec.psd, gap, edge)
         .or_else(|| (0..n).find(|&i| spec.psd[i] <= edge))
         .unwrap_or(0) as i64;
     let stop = origin + n as i64;
@@ -129,9 +128,9 @@ pub fn find_signals(
     let mut found = Vec::new();
     let mut i = origin;
     while i < stop {
-        if psd(i) <= edge {
-            i += 1;
-            continue;
+        i = next_above(&spec.psd, i, stop, edge);
+        if i == stop {
+            break;
         }
         // Extend the run, bridging gaps of up to `gap` bins.
         let start = i;
@@ -170,6 +169,54 @@ pub fn find_signals(
     found
 }
 
+/// The first bin `i` such that bins `i ..= i + gap` (around the circle) all lie at or below
+/// `edge`: one pass counting the quiet bins in a row, instead of `gap + 1` looks at every start.
+fn quiet_start(psd: &[f64], gap: usize, edge: f64) -> Option<usize> {
+    let n = psd.len();
+    let mut quiet = 0;
+    for j in 0..n + gap {
+        if psd[wrap(j as i64, n)] <= edge {
+            quiet += 1;
+            if quiet > gap {
+                return Some(j - gap);
+            }
+        } else {
+            quiet = 0;
+        }
+    }
+    None
+}
+
+/// The bin of an unwrapped index `i` on the circle of `n` bins. Scans stay within one turn either
+/// side of the span, where a comparison or two replace the division of `rem_euclid`.
+fn wrap(i: i64, n: usize) -> usize {
+    let m = n as i64;
+    if (0..m).contains(&i) {
+        i as usize
+    } else if (m..2 * m).contains(&i) {
+        (i - m) as usize
+    } else {
+        i.rem_euclid(m) as usize
+    }
+}
+
+/// The first unwrapped index in `from..stop` whose bin is above `edge` (or is not a number), or
+/// `stop`: a plain scan of at most two slices of `psd`, since most bins of most rows are noise
+/// below the edge.
+fn next_above(psd: &[f64], from: i64, stop: i64, edge: f64) -> i64 {
+    let n = psd.len() as i64;
+    let mut i = from;
+    while i < stop {
+        let at = wrap(i, psd.len());
+        let len = (stop - i).min(n - at as i64) as usize;
+        match psd[at..at + len].iter().position(|&p| p > edge || p.is_nan()) {
+            Some(k) => return i + k as i64,
+            None => i += len as i64,
+        }
+    }
+    stop
+}
+
 /// Power ratios for splitting a run: `valley` (linear) below both maxima, `lobe` dB above leakage.
 #[derive(Clone, Copy)]
 struct Split {
@@ -190,20 +237,43 @@ fn resolve(
         .filter(|&i| psd(i) > detect && psd(i) >= psd(i - 1) && psd(i) > psd(i + 1))
         .collect();
     candidates.sort_by(|&x, &y| psd(y).total_cmp(&psd(x)));
+    let len = (end - start + 1) as usize;
     let mut kept: Vec<i64> = Vec::new();
+    // For the m-th kept peak, `dips[m·len + j]` is the lowest bin between it and bin `start + j`
+    // (both included): each candidate then reads its valley to every kept peak at once, where a
+    // scan per pair cost a wide noise-like run (hundreds of candidates) most of the row's time.
+    let mut dips: Vec<f64> = Vec::new();
     for c in candidates {
-        let stands = kept.iter().all(|&k| {
-            let (lo, hi) = (c.min(k), c.max(k));
-            let dip = (lo..=hi).map(psd).fold(f64::INFINITY, f64::min);
+        let stands = kept.iter().enumerate().all(|(m, &k)| {
+            let dip = dips[m * len + (c - start) as usize];
             psd(c) >= split.valley * dip
                 && db(psd(c) / psd(k)) >= leakage_db(window, (c - k).abs() as f64) + split.lobe
         });
         if stands || kept.is_empty() {
             kept.push(c);
+            lowest_towards(psd, start, end, c, &mut dips);
         }
     }
     kept.sort_unstable();
     kept
+}
+
+/// Appends, for every bin `j` of the run `start..=end`, the lowest bin between `peak` and `j`
+/// (both included). A minimum involves no rounding, so this is the scan of each range, exactly.
+fn lowest_towards(psd: &impl Fn(i64) -> f64, start: i64, end: i64, peak: i64, out: &mut Vec<f64>) {
+    let base = out.len();
+    out.resize(base + (end - start + 1) as usize, 0.0);
+    let row = &mut out[base..];
+    let mut low = f64::INFINITY;
+    for j in (start..=peak).rev() {
+        low = low.min(psd(j));
+        row[(j - start) as usize] = low;
+    }
+    low = f64::INFINITY;
+    for j in peak..=end {
+        low = low.min(psd(j));
+        row[(j - start) as usize] = low;
+    }
 }
 
 /// The envelope of the window's power response `d` bins from a tone, dB: the highest response
@@ -229,7 +299,7 @@ fn describe(
     // Shift the whole segment so that its peak lies inside the span.
     let shift = peak - peak.rem_euclid(n);
     let (lo, hi, peak) = (lo - shift, hi - shift, peak - shift);
-    let psd = |i: i64| spec.psd[i.rem_euclid(n) as usize];
+    let psd = |i: i64| spec.psd[wrap(i, spec.fft_size)];
     let clean = |i: i64| (psd(i) - floor).max(0.0);
     let (delta, gain) = window.tone_offset(clean(peak - 1), clean(peak), clean(peak + 1));
     let tone = (clean(peak) * spec.rbw_hz / gain.max(1e-12)).max(f64::MIN_POSITIVE);

@@ -4,6 +4,8 @@
 //! `μ · χ²_ν / ν`, i.e. Gamma(shape a = ν/2, scale μ/a). Noise-floor corrections and detection
 //! thresholds come from this distribution rather than from rules of thumb.
 
+use std::cell::Cell;
+
 /// ln Γ(x) for x > 0 (Lanczos approximation, g = 7, nine coefficients; accurate to ~1e-15).
 pub fn ln_gamma(x: f64) -> f64 {
     const G: f64 = 7.0;
@@ -79,7 +81,55 @@ pub fn gamma_p(a: f64, x: f64) -> f64 {
 }
 
 /// Quantile `q` of a Gamma distribution with shape `a` and mean 1 (scale 1/a), by bisection.
+///
+/// A bisection costs a few hundred [`gamma_p`] evaluations, and the per-row measurements (the
+/// noise floor, the detector) ask for the same few quantiles row after row, so the last
+/// answers are remembered per thread: a remembered answer is the computed one, to the bit.
 pub fn gamma_quantile_unit_mean(q: f64, a: f64) -> f64 {
+    remembered(&QUANTILES, (q, a), || bisect_quantile(q, a))
+}
+
+/// Answers remembered by [`remembered`]: a few `(key, value)` pairs, the newest first.
+type Memory = Cell<[Option<((u64, u64), f64)>; MEMORY]>;
+
+/// Distinct arguments remembered per function: a command asks for at most a handful.
+const MEMORY: usize = 8;
+
+thread_local! {
+    static QUANTILES: Memory = const { Cell::new([None; MEMORY]) };
+    static TRUNCATED: Memory = const { Cell::new([None; MEMORY]) };
+}
+
+/// `compute()` for the arguments `(x, y)`, taken from `memory` when they were seen lately.
+/// The key is the arguments' bits, so only the very same arguments share an answer; the memory
+/// is a fixed array (no allocation), the newest answer in front.
+fn remembered(
+    memory: &'static std::thread::LocalKey<Memory>,
+    (x, y): (f64, f64),
+    compute: impl FnOnce() -> f64,
+) -> f64 {
+    let key = (x.to_bits(), y.to_bits());
+    memory.with(|cell| {
+        let mut seen = cell.get();
+        let value = match seen.iter().position(|e| matches!(e, Some((k, _)) if *k == key)) {
+            Some(i) => {
+                let value = seen[i].expect("found").1;
+                seen[..=i].rotate_right(1);
+                value
+            }
+            None => {
+                let value = compute();
+                seen.rotate_right(1);
+                seen[0] = Some((key, value));
+                value
+            }
+        };
+        cell.set(seen);
+        value
+    })
+}
+
+fn bisect_quantile(q: f64, a: f64) -> f64 {
     let (mut lo, mut hi) = (0.0f64, 1.0f64);
     while gamma_p(a, a * hi) < q {
         hi *= 2.0;
@@ -89,17 +139,30 @@ pub fn gamma_quantile_unit_mean(q: f64, a: f64) -> f64 {
     }
     for _ in 0..100 {
         let mid = 0.5 * (lo + hi);
+        let before = (lo, hi);
         if gamma_p(a, a * mid) < q {
             lo = mid;
         } else {
             hi = mid;
+        }
+        // Once the bounds are neighbouring floats a step changes nothing, and every later step
+        // would repeat it: stop (some sixty steps in, where the loop used to run all hundred;
+        // the answer is the same to the bit). The noise tracker asks for new quantiles on each
+        // of its first rows, while its average grows.
+        if (lo, hi) == before {
+            break;
         }
     }
     0.5 * (lo + hi)
 }
 
 /// Mean of a unit-mean Gamma(a) variable given that it is below `t`: `P(a+1, a·t) / P(a, a·t)`.
+/// Remembered like [`gamma_quantile_unit_mean`].
 pub fn truncated_mean_unit(a: f64, t: f64) -> f64 {
+    remembered(&TRUNCATED, (a, t), || truncated_mean(a, t))
+}
+
+fn truncated_mean(a: f64, t: f64) -> f64 {
     let p = gamma_p(a, a * t);
     if p <= 0.0 {
         return t * 0.5;
@@ -128,6 +191,23 @@ mod tests {
         // P(2, x) = 1 − (1 + x) e^{−x}.
         for x in [0.3f64, 2.0, 7.5] {
             assert!((gamma_p(2.0, x) - (1.0 - (1.0 + x) * (-x).exp())).abs() < 1e-13);
+        }
+    }
+
+    #[test]
+    fn remembered_answers_are_the_computed_ones() {
+        // More distinct arguments than the memory holds, asked twice over in turn: every answer,
+        // fresh or remembered, equals a bisection done now, to the bit.
+        let args: Vec<(f64, f64)> =
+            (0..2 * MEMORY).map(|i| (0.1 + 0.05 * i as f64, 1.0 + i as f64)).collect();
+        for _ in 0..2 {
+            for &(q, a) in args.iter().chain(args.iter().rev()) {
+                assert_eq!(
+                    gamma_quantile_unit_mean(q, a).to_bits(),
+                    bisect_quantile(q, a).to_bits()
+                );
+                assert_eq!(truncated_mean_unit(a, q).to_bits(), truncated_mean(a, q).to_bits());
+            }
         }
     }
 

@@ -415,6 +415,10 @@ pub fn waterfall_pixels(
     let off = settings.ref_offset_db.unwrap_or(0.0);
     let span = timeline.end_sample.saturating_sub(timeline.first_sample) as f64;
     let mut power = vec![0.0f64; cols];
+    // Each row's levels as linear power, converted once however many pixel rows it spans, and
+    // let go once the pixel rows have passed it (`powf` per level and pixel row used to be
+    // most of the picture's cost).
+    let mut linear: Vec<Option<Vec<f64>>> = vec![None; view.rows.len()];
     let mut next = 0usize;
     for j in 0..h {
         let a = timeline.first_sample as f64 + span * j as f64 / h as f64;
@@ -422,16 +426,20 @@ pub fn waterfall_pixels(
         power.iter_mut().for_each(|p| *p = 0.0);
         let mut weight = 0.0;
         while next < view.rows.len() && (view.rows[next].end_sample as f64) <= a {
+            linear[next] = None;
             next += 1;
         }
-        for r in view.rows[next..].iter().take_while(|r| (r.first_sample as f64) < b) {
+        let ahead = view.rows[next..].iter().take_while(|r| (r.first_sample as f64) < b);
+        for (r, lin) in ahead.zip(&mut linear[next..]) {
             let overlap = (r.end_sample as f64).min(b) - (r.first_sample as f64).max(a);
             if overlap <= 0.0 || r.level_db.len() != cols {
                 continue;
             }
             weight += overlap;
-            for (p, &l) in power.iter_mut().zip(&r.level_db) {
-                *p += undb(l as f64) * overlap;
+            let lin =
+                lin.get_or_insert_with(|| r.level_db.iter().map(|&l| undb(l as f64)).collect());
+            for (p, &x) in power.iter_mut().zip(lin.iter()) {
+                *p += x * overlap;
             }
         }
         let line = &mut rgb[j * w * 3..(j + 1) * w * 3];
