@@ -17,8 +17,7 @@ use crate::pipeline::{Consumer, Input, RunSpec};
 use crate::plan::{Plan, DEFAULT_THRESHOLD_DB};
 use crate::source::reader::ReaderOptions;
 use crate::source::{self};
-use crate::tui::alarms::AlarmLog;
-use crate::tui::app::{App, ChannelMark, SourceSummary};
+use crate::tui::app::{AlarmLog, App, ChannelMark, SourceSummary};
 use crate::tui::colour::Depth;
 use crate::tui::{self, RunOptions};
 use anyhow::{bail, Result};
@@ -92,11 +91,11 @@ pub fn run(cfg: WatchConfig) -> Result<ExitCode> {
         ColourChoice::Forced(d) => d,
     };
     let marks = marks(&cfg.plan);
-    let mut app = App::new(summary, cfg.rows, depth, cfg.ref_offset, marks, Instant::now());
+    let mut app = App::new(summary, cfg.rows, depth, cfg.ref_offset, marks, Instant::now())
+        .with_detection(cfg.detection);
     if let Some(path) = &cfg.alarm_log {
-        app.alarm_log = Some(AlarmLog::new(sink::open(path, true, "alarm log")?.out));
+        app = app.with_alarm_log(AlarmLog::new(sink::open(path, true, "alarm log")?.out));
     }
-    app.detection = cfg.detection;
     let run_opts = RunOptions { fps: cfg.fps, scroll_region: cfg.scroll_region, mouse: cfg.mouse };
     let result = tui::run(app, &feed, &input.stats, run_opts);
     input.request_stop();

@@ -3,9 +3,9 @@
 //! (ITU-R SM.1880 occupancy, as `log` counts it) and when it was last heard. A channel over its
 //! alarm threshold is highlighted.
 
-use super::super::app::{ChannelMark, Levels};
 use super::super::channels::{ChannelActivity, BUSY_WINDOW_S};
 use super::super::colour::Theme;
+use super::super::state::{ChannelMark, Levels};
 use super::super::timeline::TimeBase;
 use super::table::{put_row, render_frame};
 use crate::units::format_hz;

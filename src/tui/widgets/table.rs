@@ -4,8 +4,8 @@
 //! asks for power) so that `n` and `p` walk them predictably; on wide screens the table runs in
 //! several side-by-side blocks so more signals fit.
 
-use super::super::app::{ChannelMark, Levels};
 use super::super::colour::Theme;
+use super::super::state::{ChannelMark, Levels, SortKey};
 use crate::measure::Signal;
 use crate::units::format_hz;
 use ratatui::buffer::Buffer;
@@ -14,39 +14,6 @@ use ratatui::widgets::Widget;
 
 /// Width of one block of the table; wider screens hold several.
 pub const BLOCK_WIDTH: u16 = 80;
-
-/// The order of the table's rows.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-pub enum SortKey {
-    /// Lowest frequency first: rows stay put while levels change.
-    Frequency,
-    /// Largest integrated power first.
-    Power,
-}
-
-impl SortKey {
-    pub fn next(self) -> SortKey {
-        match self {
-            SortKey::Frequency => SortKey::Power,
-            SortKey::Power => SortKey::Frequency,
-        }
-    }
-
-    pub fn apply(self, signals: &mut [Signal]) {
-        match self {
-            SortKey::Frequency => signals.sort_by(|a, b| a.freq_hz.total_cmp(&b.freq_hz)),
-            SortKey::Power => signals.sort_by(|a, b| b.power_dbfs.total_cmp(&a.power_dbfs)),
-        }
-    }
-}
-
-/// What the table area shows.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-pub enum TableMode {
-    Signals,
-    /// The channel panel (with a plan).
-    Channels,
-}
 
 /// Where row `i` of `rows` lies in a table drawn in `area`: (x, y, width).
 fn cell_of(area: Rect, i: usize) -> Option<(u16, u16, u16)> {

@@ -8,8 +8,8 @@
 //! bins, as the screen shows them). The colour scale is the screen's (reference level and range),
 //! so the picture looks like what the operator saw.
 
-use super::app::App;
-use super::history::Row;
+use super::super::history::Row;
+use super::App;
 use crate::output::canvas::PictureFormat;
 use crate::output::held_rows::HeldRow;
 use crate::output::picture::{
@@ -65,13 +65,14 @@ impl App {
         let settings = PictureSettings {
             width: WIDTH,
             height: HEIGHT,
-            map: self.palette.map,
+            map: self.look.palette.map,
             scale: (scale.0.is_finite() && scale.1.is_finite()).then_some(scale),
             ref_offset_db: offset,
             title: format!("Waterfall of {} (monitor history)", self.source.label),
             footer: self.picture_footer(held.len(), &timeline),
             channels: self
-                .channels
+                .plan
+                .marks
                 .iter()
                 .map(|c| ChannelBand {
                     name: c.name.clone(),
