@@ -180,8 +180,9 @@ pub enum TableMode {
 pub struct BandReading {
     pub low_hz: f64,
     pub high_hz: f64,
-    /// Integrated power, dBFS ([`crate::measure::band_power`], as `measure --band`).
-    pub power_dbfs: f64,
+    /// Integrated power less the noise in the band, dBFS; `None` when nothing stands above
+    /// the noise.
+    pub power_dbfs: Option<f64>,
     /// 99 % occupied bandwidth (ITU-R SM.328), if the band holds power.
     pub obw: Option<Edges>,
 }

@@ -1,5 +1,5 @@
-//! Evidence (`e`): the traces on show and the signal table written to two files in the current
-//! directory, named with the UTC time of writing so that successive presses never overwrite:
+//! Evidence (`e`): the traces on show and the signal table written to two files in the folder of
+//! `--evidence-dir` (default: the working directory), named with the UTC time of writing so that successive presses never overwrite:
 //!
 //! - `bandwarden-20310417T063002Z.csv`: one line per FFT bin, `freq_hz,current_dbfs,
 //!   average_dbfs,peak_hold_dbfs,min_hold_dbfs` (levels in dBFS of power in one RBW, as the
@@ -106,10 +106,12 @@ impl App {
         Ok((csv, json))
     }
 
-    /// `e`: writes the evidence into the current directory and says where (or what failed).
+    /// `e`: writes the evidence into the files folder and says where (or what failed).
     pub(super) fn evidence_key(&mut self) {
-        let msg = match self.write_evidence(".", OffsetDateTime::now_utc()) {
-            Ok((csv, json)) => format!("wrote {} and {}", &csv[2..], &json[2..]),
+        let msg = match self.write_evidence(&self.files_dir, OffsetDateTime::now_utc()) {
+            Ok((csv, json)) => {
+                format!("wrote {} and {}", self.shown_path(&csv), self.shown_path(&json))
+            }
             Err(e) => format!("evidence not written: {e:#}"),
         };
         self.say(crate::messages::sanitize(&msg));

@@ -55,6 +55,10 @@ pub const NO_PLAN: &str = "no channel plan: start with --plan FILE or --channel 
 /// Limits of the dynamic range, dB.
 pub const RANGE_MIN_DB: f64 = 20.0;
 pub const RANGE_MAX_DB: f64 = 200.0;
+/// Limits of the reference level (the top of the scale), dBFS: a full-scale tone is 0 dBFS, and
+/// the noise of the largest FFT in one RBW lies well above the bottom a 200 dB range leaves.
+pub const REF_MIN_DBFS: f64 = -200.0;
+pub const REF_MAX_DBFS: f64 = 30.0;
 
 /// The live monitor's state. Fields are grouped by what they are about and private: the event
 /// loop talks to it through intents and a few methods, the widgets through plain views.
@@ -81,6 +85,8 @@ pub struct App {
     /// The input has ended (and is not looping).
     ended: bool,
     frame: FrameInfo,
+    /// Where `e` and `g` write (`--evidence-dir`).
+    files_dir: String,
 }
 
 impl App {
@@ -115,6 +121,7 @@ impl App {
             stats: Stats::new(now),
             ended: false,
             frame: FrameInfo::default(),
+            files_dir: ".".into(),
         }
     }
 
@@ -122,6 +129,18 @@ impl App {
     pub fn with_alarm_log(mut self, log: AlarmLog) -> App {
         self.plan.alarm_log = Some(log);
         self
+    }
+
+    /// Writes the files of `e` and `g` into `dir` (`--evidence-dir`).
+    pub fn with_files_dir(mut self, dir: &str) -> App {
+        self.files_dir = dir.to_string();
+        self
+    }
+
+    /// A file written into the files folder as the user knows it: its name alone in the
+    /// working directory, else the path.
+    fn shown_path(&self, path: &str) -> String {
+        path.strip_prefix("./").unwrap_or(path).to_string()
     }
 
     /// Tells signals from noise as `detection` says (`--false-alarm`).
@@ -279,6 +298,7 @@ impl App {
         self.table.signals =
             find_signals(&avg, &window, floor, MAX_SIGNALS, self.measured.detection);
         self.table.sort.apply(&mut self.table.signals);
+        self.keep_marked_row_in_view();
         self.measured.window = Some(window);
         let floor_dbfs = db(floor * avg.rbw_hz);
         self.measured.floor_dbfs = Some(floor_dbfs);
@@ -373,8 +393,8 @@ impl App {
             Intent::MarkerLeft(n) => self.step_marker(-(n as i64)),
             Intent::MarkerRight(n) => self.step_marker(n as i64),
             Intent::MarkerToStrongest => self.marker_to_strongest(),
-            Intent::MarkerToNext => self.step_signal(1),
-            Intent::MarkerToPrev => self.step_signal(-1),
+            Intent::MarkerToNext => self.step_row(1),
+            Intent::MarkerToPrev => self.step_row(-1),
             Intent::SetRefMarker => self.markers.reference = self.markers.at,
             Intent::ClearRefMarker => self.markers.reference = None,
             Intent::ZoomIn => self.zoom(0.5),
@@ -470,23 +490,33 @@ impl App {
         }
     }
 
+    /// ↑ ↓ PgUp PgDn: moves the reference level by `top` dB or the range by `range` dB, within
+    /// their limits (saying so at a limit), and turns the automatic scale off.
     fn manual_scale(&mut self, top: f64, range: f64) {
-        self.levels.auto = false;
-        self.levels.top_dbfs += top;
-        self.levels.range_db = (self.levels.range_db + range).clamp(RANGE_MIN_DB, RANGE_MAX_DB);
+        let l = &mut self.levels;
+        l.auto = false;
+        let want_top = l.top_dbfs + top;
+        let want_range = l.range_db + range;
+        l.top_dbfs = want_top.clamp(REF_MIN_DBFS, REF_MAX_DBFS);
+        l.range_db = want_range.clamp(RANGE_MIN_DB, RANGE_MAX_DB);
+        let (top_now, range_now) = (l.top_dbfs, l.range_db);
         self.frame.epoch += 1;
+        if want_top != top_now {
+            let end = if top > 0.0 { "highest" } else { "lowest" };
+            let shown = self.levels.shown(top_now);
+            self.say(format!("reference level {shown:.0} {} is the {end}", self.levels.unit()));
+        } else if want_range != range_now {
+            let end = if range > 0.0 { "widest" } else { "narrowest" };
+            self.say(format!("range {range_now:.0} dB is the {end}"));
+        }
     }
 
     fn change_fft(&mut self, larger: bool) {
+        // Exactly twice or half, as the help says, whatever the size (`--fft 3000` → 6000).
         let n = self.settings.fft_size;
-        let next = if larger {
-            (n + 1).next_power_of_two()
-        } else if n.is_power_of_two() {
-            n / 2
-        } else {
-            n.next_power_of_two() / 2
-        };
-        let next = next.clamp(FFT_KEYS_MIN, FFT_KEYS_MAX);
+        let next = if larger { n * 2 } else { n / 2 };
+        let next = next.clamp(FFT_KEYS_MIN.min(n), FFT_KEYS_MAX.max(n));
+        let next = if (FFT_KEYS_MIN..=FFT_KEYS_MAX).contains(&next) { next } else { n };
         if next != n {
             self.request(RowSettings { fft_size: next, ..self.settings });
         } else {
@@ -935,15 +965,69 @@ pub(crate) mod tests {
         a.refresh_readings();
         let b = a.markers.band.unwrap();
         assert_eq!((b.low_hz, b.high_hz), (100.05e6, 100.15e6));
-        // The same function `measure --band` uses, on the same trace.
+        // The same function `measure --band` uses, on the same trace, less the noise in the
+        // band (floor density × width) as the signal table takes it off.
         let avg = a.traces.average_spectrum().unwrap();
-        let want = db(crate::measure::band_power(&avg, 100.05e6, 100.15e6));
-        assert!((b.power_dbfs - want).abs() < 1e-9);
-        // The tone is one 1 kHz bin holding 1e6 of the band's 1e6 + 99 (ITU-R SM.328: 0.5 %
-        // outside each edge): both edges fall inside that bin, 0.5 % of the band's power in
-        // from each side of it, so the OBW is just under one bin wide.
+        let floor = a.measured.floor_density.unwrap();
+        let total = crate::measure::band_power(&avg, 100.05e6, 100.15e6);
+        let want = db(total - floor * 0.1e6);
+        assert!((b.power_dbfs.unwrap() - want).abs() < 1e-9);
+        // With the floor taken off bin by bin, the band holds the tone's bin alone (ITU-R
+        // SM.328: 0.5 % outside each edge): both edges fall inside that bin, 0.5 % of its power
+        // in from each side, so the OBW is just under one bin wide.
         let obw = b.obw.unwrap().width_hz();
         assert!(obw > 980.0 && obw < 1000.0, "{obw}");
+        // A band of noise alone reads as such, not as a level.
+        a.markers.reference = Some(100.3e6);
+        a.markers.at = Some(100.4e6);
+        a.refresh_readings();
+        assert_eq!(a.markers.band.unwrap().power_dbfs, None);
+    }
+
+    #[test]
+    fn the_reference_level_has_limits_and_fft_keys_double_exactly() {
+        let mut a = app();
+        for _ in 0..60 {
+            a.apply(Intent::RefUp);
+        }
+        assert_eq!(a.levels.top_dbfs, REF_MAX_DBFS);
+        assert!(a.alerts.notice.as_ref().unwrap().0.contains("is the highest"));
+        for _ in 0..100 {
+            a.apply(Intent::RefDown);
+        }
+        assert_eq!(a.levels.top_dbfs, REF_MIN_DBFS);
+        // An FFT size that is no power of two doubles and halves exactly.
+        a.settings.fft_size = 3000;
+        a.apply(Intent::FftLarger);
+        assert_eq!(a.take_pending_settings().unwrap().fft_size, 6000);
+        a.apply(Intent::FftSmaller);
+        a.apply(Intent::FftSmaller);
+        assert_eq!(a.take_pending_settings().unwrap().fft_size, 1500);
+    }
+
+    #[test]
+    fn r_in_the_channel_panel_says_why_and_n_walks_the_channels() {
+        let t = Instant::now();
+        let channels: Vec<ChannelMark> = (0..7)
+            .map(|i| ChannelMark::new(&format!("ch{i}"), 100e6 + i as f64 * 50e3, 12.5e3))
+            .collect();
+        let mut a = App::new(summary(), settings(), Depth::Mono, None, channels, t);
+        a.push_row(row(100, 1e6));
+        // The table area of an 80×24 screen with a plan row: three rows under the header.
+        let screen = Screen::split(ratatui::layout::Rect::new(0, 0, 80, 24), true);
+        a.set_screen(screen, false);
+        a.apply(Intent::ToggleChannels);
+        a.apply(Intent::SortNext);
+        assert!(a.alerts.notice.as_ref().unwrap().0.contains("channels keep the plan's order"));
+        // n walks every channel, and the table scrolls so the marked one is on show.
+        for i in 0..7 {
+            a.apply(Intent::MarkerToNext);
+            assert_eq!(a.markers.at, Some(100e6 + i as f64 * 50e3));
+            let first = a.table.first_row;
+            assert!((first..first + 3).contains(&i), "row {i} hidden from {first}");
+        }
+        a.apply(Intent::MarkerToNext);
+        assert_eq!(a.table.first_row, 0, "wrapped to the first");
     }
 
     #[test]

@@ -52,11 +52,18 @@ pub(super) struct TableState {
     pub(super) signals: Vec<Signal>,
     pub(super) sort: SortKey,
     pub(super) mode: TableMode,
+    /// The first row on show when the rows do not all fit.
+    pub(super) first_row: usize,
 }
 
 impl Default for TableState {
     fn default() -> TableState {
-        TableState { signals: Vec::new(), sort: SortKey::Frequency, mode: TableMode::Signals }
+        TableState {
+            signals: Vec::new(),
+            sort: SortKey::Frequency,
+            mode: TableMode::Signals,
+            first_row: 0,
+        }
     }
 }
 

@@ -1,6 +1,6 @@
 //! Picture (`g`): the history the monitor holds drawn as a PNG waterfall, with the same drawing
 //! code as `bandwarden snapshot` ([`crate::output::picture::draw_waterfall`]), written to the
-//! current directory as `bandwarden-YYYYMMDDTHHMMSSZ.png` (the UTC time of writing).
+//! folder of `--evidence-dir` (default: the working directory) as `bandwarden-YYYYMMDDTHHMMSSZ.png` (the UTC time of writing).
 //!
 //! The picture covers the newest stretch of history that shares one frequency grid (a change of
 //! FFT size or a retune starts a new stretch), at most the history's cap. Rows are drawn at the
@@ -121,10 +121,10 @@ impl App {
         ]
     }
 
-    /// `g`: writes the picture into the current directory and says where (or what failed).
+    /// `g`: writes the picture into the files folder and says where (or what failed).
     pub(super) fn picture_key(&mut self) {
-        let msg = match self.write_picture(".", OffsetDateTime::now_utc()) {
-            Ok(path) => format!("wrote {}", path.trim_start_matches("./")),
+        let msg = match self.write_picture(&self.files_dir, OffsetDateTime::now_utc()) {
+            Ok(path) => format!("wrote {}", self.shown_path(&path)),
             Err(e) => format!("picture not written: {e:#}"),
         };
         self.say(crate::messages::sanitize(&msg));

@@ -6,7 +6,7 @@ use super::super::layout::Screen;
 use super::super::state::{Mode, TableMode};
 use super::super::widgets::channels::ChannelPanel;
 use super::super::widgets::status::{MarkerView, PlayState, SettingsView, SourceView, StatusView};
-use super::super::widgets::table::SignalTable;
+use super::super::widgets::table::{capacity, first_shown, SignalTable};
 use super::super::widgets::waterfall::{label_interval, WaterfallPlot, PAIRS_ONLY_FROM_ROWS_PER_S};
 use super::super::widgets::{ScreenView, SpectrumView, TableView};
 use super::App;
@@ -27,7 +27,7 @@ impl App {
             alarmed: self.plan.activity.channels.iter().map(|c| c.alarm_on).collect(),
             waterfall: if self.frame.external { None } else { self.waterfall_plot() },
             painted_waterfall: self.frame.external,
-            table: self.table_view(),
+            table: self.table_view(layout.map_or(usize::MAX, |s| capacity(s.table))),
             help: self.help,
             theme: self.look.theme,
         }
@@ -139,10 +139,17 @@ impl App {
         }
     }
 
-    fn table_view(&self) -> TableView<'_> {
+    /// The table for an area of `cap` rows, scrolled as far as the marker's row asked.
+    fn table_view(&self, cap: usize) -> TableView<'_> {
+        let rows = match self.table.mode {
+            TableMode::Signals => self.table.signals.len(),
+            TableMode::Channels => self.plan.marks.len(),
+        };
+        let first = first_shown(rows, cap, self.table.first_row, None);
         match self.table.mode {
             TableMode::Signals => TableView::Signals(SignalTable {
                 signals: &self.table.signals,
+                first,
                 channels: &self.plan.marks,
                 levels: self.levels,
                 sort: self.table.sort,
@@ -151,6 +158,7 @@ impl App {
             }),
             TableMode::Channels => TableView::Channels(ChannelPanel {
                 channels: &self.plan.marks,
+                first,
                 activity: &self.plan.activity,
                 levels: self.levels,
                 times: &self.times,

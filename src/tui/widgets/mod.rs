@@ -160,9 +160,9 @@ mod tests {
     use crate::pipeline::clock::Clock;
     use crate::pipeline::latest::RowSettings;
     use crate::tui::app::App;
-    use crate::tui::state::{ChannelMark, SourceSummary};
     use crate::tui::colour::Depth;
     use crate::tui::input::Intent;
+    use crate::tui::state::{ChannelMark, SourceSummary};
     use ratatui::backend::TestBackend;
     use ratatui::Terminal;
     use std::time::Instant;

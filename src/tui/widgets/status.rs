@@ -20,10 +20,11 @@ const SEP_WIDTH: usize = 3;
 const FIRST_SAVING: usize = SEP_WIDTH - 1;
 
 /// Joins segments with separators in the order given, leaving out those that do not fit in
-/// `width`: the segments with the lowest `rank` go in first. `right` is kept at the right edge,
-/// two columns clear, when there is room for it.
+/// `width`: the segments with the lowest `rank` go in first. A segment of rank 0 (the one the
+/// line is for, such as a message) is never left out: too long, it is [`shorten`]ed. `right` is
+/// kept at the right edge, two columns clear, when there is room for it.
 pub fn fit(
-    segments: Vec<(u8, Span<'static>)>,
+    mut segments: Vec<(u8, Span<'static>)>,
     right: Option<Span<'static>>,
     width: usize,
 ) -> Line<'static> {
@@ -35,6 +36,12 @@ pub fn fit(
     let mut used = 0;
     for i in order {
         // Each segment is counted with a separator; the first shown has a single space instead.
+        let extra = segments[i].1.width() + SEP_WIDTH;
+        let left = (room + FIRST_SAVING).saturating_sub(used + SEP_WIDTH);
+        if used + extra > room + FIRST_SAVING && segments[i].0 == 0 && left > 0 {
+            let seg = &mut segments[i].1;
+            *seg = Span::styled(shorten(&seg.content, left), seg.style);
+        }
         let extra = segments[i].1.width() + SEP_WIDTH;
         if used + extra <= room + FIRST_SAVING {
             keep[i] = true;
@@ -132,6 +139,28 @@ pub struct StatusView {
     pub source: SourceView,
     pub marker: MarkerView,
     pub settings: SettingsView,
+}
+
+/// Shortens a message to `max` columns keeping what tells the user most: its head (what
+/// happened) and its end (the cause, after the last `: `), with `…` for what was left out:
+/// `evidence not written: could not cre…: Permission denied (os error 13)`.
+pub fn shorten(text: &str, max: usize) -> String {
+    let n = text.chars().count();
+    if n <= max {
+        return text.to_string();
+    }
+    if max <= 1 {
+        return "…".chars().take(max).collect();
+    }
+    let cause = text.rfind(": ").map(|i| &text[i + 2..]).unwrap_or("");
+    // The cause, when it leaves at least a third of the line to the head; else an even split.
+    let tail_n = match cause.chars().count() {
+        c if c > 0 && c + max / 3 < max => c,
+        _ => (max - 1) / 2,
+    };
+    let head: String = text.chars().take(max - 1 - tail_n).collect();
+    let tail: String = text.chars().skip(n - tail_n).collect();
+    format!("{head}…{tail}")
 }
 
 /// Shortens a long label (a path) to `max` columns keeping what tells inputs apart: the
@@ -241,36 +270,67 @@ impl MarkerView {
             // Ahead of the Δ readout on a narrow screen: the band's width is |Δf| anyway.
             let obw = b.obw.map_or("–".to_string(), |e| format_hz_compact(e.width_hz()));
             let width = format_hz_compact(b.high_hz - b.low_hz);
-            let text = format!("band {width}: {:.1} {unit}, OBW {obw}", l.shown(b.power_dbfs));
+            let power = b
+                .power_dbfs
+                .map_or("noise only".to_string(), |p| format!("{:.1} {unit}", l.shown(p)));
+            let text = format!("band {width}: {power}, OBW {obw}");
             segs.push((1, Span::styled(text, t.marker)));
         }
         fit(segs, None, width)
     }
 }
 
+/// Below this width the settings line takes its compact form.
+const COMPACT_BELOW: usize = 120;
+
 impl SettingsView {
+    /// The line: in full on a wide screen; below [`COMPACT_BELOW`] columns in a compact form
+    /// that keeps what the keys change (FFT and window, scale and `auto`, row rate, colour map)
+    /// and gives up the noise floor and the frame rate first.
     pub fn line(&self, width: usize) -> Line<'static> {
         let t = &self.theme;
         let l = self.levels;
+        let compact = width < COMPACT_BELOW;
+        let auto = if l.auto { " auto" } else { "" };
+        let rate = if compact {
+            format_rows_per_s(self.row_rate)
+        } else {
+            // The rate asked for, and the rate measured when the input cannot give it.
+            let got = self.rows_per_s;
+            let short = got > 0.0 && got < 0.8 * self.row_rate;
+            let got = if short { format!(" (got {got:.1})") } else { String::new() };
+            format!("{}{got}", format_rows_per_s(self.row_rate))
+        };
         let mut segs =
             vec![(0, Span::styled(format!("FFT {} {}", self.fft_size, self.window), t.label))];
         if let Some(rbw) = self.rbw_hz {
-            segs.push((1, Span::styled(format!("RBW {}", format_hz(rbw)), t.label)));
+            let text = if compact { format_hz_compact(rbw) } else { format_hz(rbw) };
+            segs.push((if compact { 4 } else { 1 }, Span::styled(format!("RBW {text}"), t.label)));
         }
         if let Some(d) = self.floor_dbfs_per_hz {
             let text = format!("floor {:.1} {}/Hz", l.shown(d), l.unit());
-            segs.push((1, Span::styled(text, t.label)));
+            segs.push((if compact { 6 } else { 1 }, Span::styled(text, t.label)));
         }
-        let scale = format!("ref {:.0} {}", l.shown(l.top_dbfs), l.unit());
-        segs.push((2, Span::styled(scale, t.label)));
-        let range = format!("range {:.0} dB{}", l.range_db, if l.auto { " auto" } else { "" });
-        segs.push((3, Span::styled(range, t.label)));
-        segs.push((5, Span::styled(format!("{:.0} fps", self.fps), t.label)));
-        segs.push((6, Span::styled(format_rows_per_s(self.rows_per_s), t.label)));
-        let (rank, style) = if self.skipped > 0 { (1, t.warn) } else { (4, t.label) };
-        segs.push((rank, Span::styled(format!("skipped {} rows", self.skipped), style)));
+        if compact {
+            let scale =
+                format!("{:.0} {}/{:.0} dB{auto}", l.shown(l.top_dbfs), l.unit(), l.range_db);
+            segs.push((1, Span::styled(scale, t.label)));
+        } else {
+            let scale = format!("ref {:.0} {}", l.shown(l.top_dbfs), l.unit());
+            segs.push((2, Span::styled(scale, t.label)));
+            let range = format!("range {:.0} dB{auto}", l.range_db);
+            segs.push((3, Span::styled(range, t.label)));
+            segs.push((5, Span::styled(format!("{:.0} fps", self.fps), t.label)));
+        }
+        segs.push((2, Span::styled(rate, t.label)));
+        // Compact, the skip count shows only once there is one.
+        if self.skipped > 0 || !compact {
+            let (rank, style) = if self.skipped > 0 { (1, t.warn) } else { (7, t.label) };
+            let unit = if compact { "" } else { " rows" };
+            segs.push((rank, Span::styled(format!("skipped {}{unit}", self.skipped), style)));
+        }
         if let Some(map) = self.map {
-            segs.push((7, Span::styled(map.to_string(), t.label)));
+            segs.push((3, Span::styled(map.to_string(), t.label)));
         }
         fit(segs, Some(Span::styled("? keys ", t.header)), width)
     }
@@ -332,5 +392,50 @@ mod tests {
             "wrenhollow-r….sigmf-meta"
         );
         assert_eq!(tail("short", 20), "short");
+    }
+
+    #[test]
+    fn a_long_message_keeps_its_head_and_its_cause() {
+        let msg = "evidence not written: could not create /srv/very/long/folder/of/the/station/bandwarden-20310417T063002Z.csv: Permission denied (os error 13)";
+        let s = shorten(msg, 78);
+        assert_eq!(s.chars().count(), 78);
+        assert!(s.starts_with("evidence not written: could not create /srv/"), "{s}");
+        assert!(s.ends_with("…Permission denied (os error 13)"), "{s}");
+        // On the marker line the notice is never blanked, whatever the width.
+        for width in [40, 80, 120] {
+            let line = fit(vec![(0, Span::raw(msg))], None, width);
+            let text = text(&line);
+            assert!(text.starts_with(" evidence not"), "{width}: {text}");
+            assert!(text.chars().count() <= width, "{width}: {text}");
+        }
+        // No cause: an even cut keeps both ends.
+        assert_eq!(shorten("abcdefghij", 7), "abc…hij");
+    }
+
+    #[test]
+    fn the_settings_line_keeps_what_the_keys_change_at_80_columns() {
+        let view = SettingsView {
+            fft_size: 4096,
+            window: "hann".into(),
+            rbw_hz: Some(366.2),
+            floor_dbfs_per_hz: Some(-94.8),
+            levels: Levels { top_dbfs: -25.0, range_db: 55.0, auto: false, offset_db: None },
+            row_rate: 0.5,
+            fps: 30.0,
+            rows_per_s: 0.5,
+            skipped: 0,
+            map: Some("viridis"),
+            theme: Theme::new(crate::tui::colour::Depth::Palette256),
+        };
+        let narrow = text(&view.line(80));
+        assert_eq!(
+            narrow.trim_end(),
+            " FFT 4096 hann · RBW 366.2 Hz · -25 dBFS/55 dB · 0.5 rows/s · viridis    ? keys"
+        );
+        let wide = text(&view.line(160));
+        assert!(
+            wide.contains("ref -25 dBFS · range 55 dB · ") && wide.contains("floor -94.8"),
+            "{wide}"
+        );
     }
 }
