@@ -29,6 +29,7 @@ impl App {
             painted_waterfall: self.frame.external,
             table: self.table_view(layout.map_or(usize::MAX, |s| capacity(s.table))),
             help: self.help,
+            files_dir: &self.files_dir,
             theme: self.look.theme,
         }
     }

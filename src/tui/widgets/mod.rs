@@ -63,6 +63,8 @@ pub struct ScreenView<'a> {
     pub painted_waterfall: bool,
     pub table: TableView<'a>,
     pub help: bool,
+    /// Where `e` and `g` write, for the help.
+    pub files_dir: &'a str,
     pub theme: Theme,
 }
 
@@ -140,7 +142,7 @@ impl Widget for &ScreenView<'_> {
         self.status.marker.render(s.marker, buf);
         self.status.settings.render(s.footer, buf);
         if self.help {
-            (&HelpOverlay { theme: &self.theme }).render(area, buf);
+            (&HelpOverlay { theme: &self.theme, files_dir: self.files_dir }).render(area, buf);
         }
     }
 }
