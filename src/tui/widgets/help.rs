@@ -30,7 +30,10 @@ impl HelpOverlay<'_> {
         };
         let mut lines: Vec<Line<'static>> = HELP.iter().map(|r| row(r.keys, r.what)).collect();
         lines.push(row(MOUSE_HELP.0, MOUSE_HELP.1));
-        let dir = crate::messages::sanitize(self.files_dir);
+        let dir = match self.files_dir {
+            "." => "the working directory".to_string(),
+            d => crate::messages::sanitize(d),
+        };
         lines.push(row("files", &format!("e and g write into {dir} (--evidence-dir)")));
         let mut legend = vec![Span::styled(format!(" {:<KEYS_W$} ", "traces"), t.header)];
         for (text, style) in SpectrumPlot::legend_of(t) {
