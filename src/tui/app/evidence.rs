@@ -1,5 +1,6 @@
-//! Evidence (`e`): the traces on show and the signal table written to two files in the folder of
-//! `--evidence-dir` (default: the working directory), named with the UTC time of writing so that successive presses never overwrite:
+//! Evidence (`e`): the traces on show and the signal table written to two files in the folder
+//! of `--evidence-dir` (default: the working directory), named with the UTC time of writing so
+//! that successive presses never overwrite:
 //!
 //! - `bandwarden-20310417T063002Z.csv`: one line per FFT bin, `freq_hz,current_dbfs,
 //!   average_dbfs,peak_hold_dbfs,min_hold_dbfs` (levels in dBFS of power in one RBW, as the
