@@ -218,6 +218,55 @@ pub fn format_hz_short(hz: f64, digits: usize) -> String {
     }
 }
 
+/// A frequency without trailing zeros: `433.5 MHz`, `150 kHz`; as exact as [`format_hz`].
+pub fn format_hz_compact(hz: f64) -> String {
+    let full = format_hz(hz);
+    let Some((num, unit)) = full.split_once(' ') else { return full };
+    format!("{} {unit}", trim_zeros(num))
+}
+
+/// A sample rate for people, without trailing zeros: `2.4 MS/s`, `1 MS/s`, `48 kS/s`.
+pub fn format_rate(hz: f64) -> String {
+    let (v, unit) = if hz >= 1e6 {
+        (format!("{:.3}", hz / 1e6), "MS/s")
+    } else if hz >= 1e3 {
+        (format!("{:.1}", hz / 1e3), "kS/s")
+    } else {
+        (format!("{hz:.0}"), "S/s")
+    };
+    format!("{} {unit}", trim_zeros(&v))
+}
+
+/// `12.500` → `12.5`, `1.000` → `1`; digits without a point stay as they are.
+fn trim_zeros(num: &str) -> &str {
+    if num.contains('.') {
+        num.trim_end_matches('0').trim_end_matches('.')
+    } else {
+        num
+    }
+}
+
+/// A row rate for people: `20 rows/s`, `1 row/s`, `0.5 rows/s`.
+pub fn format_rows_per_s(r: f64) -> String {
+    if (r - 1.0).abs() < 0.05 {
+        "1 row/s".to_string()
+    } else if r < 1.0 {
+        format!("{r:.1} rows/s")
+    } else {
+        format!("{r:.0} rows/s")
+    }
+}
+
+/// Seconds as a short clock: `mm:ss` below an hour, `HhMM` above (five columns up to 10 h).
+pub fn format_clock(t_s: f64) -> String {
+    let s = t_s.max(0.0).floor() as u64;
+    if s < 3600 {
+        format!("{:02}:{:02}", s / 60, s % 60)
+    } else {
+        format!("{}h{:02}", s / 3600, (s % 3600) / 60)
+    }
+}
+
 /// Ten times the base-10 logarithm, with a floor so that zero power prints as a very low level
 /// rather than `-inf` (which is not valid JSON).
 pub fn db(power: f64) -> f64 {
@@ -307,5 +356,21 @@ mod tests {
         assert!((db(0.1) + 10.0).abs() < 1e-12);
         assert!((undb(-3.0) - 0.501187).abs() < 1e-6);
         assert!(db(0.0).is_finite());
+    }
+
+    #[test]
+    fn compact_formats_for_the_screen() {
+        assert_eq!(format_rate(2.4e6), "2.4 MS/s");
+        assert_eq!(format_rate(1e6), "1 MS/s");
+        assert_eq!(format_rate(48e3), "48 kS/s");
+        assert_eq!(format_rate(2.048e6), "2.048 MS/s");
+        assert_eq!(format_rows_per_s(1.0), "1 row/s");
+        assert_eq!(format_rows_per_s(20.0), "20 rows/s");
+        assert_eq!(format_rows_per_s(0.5), "0.5 rows/s");
+        assert_eq!(format_hz_compact(433.5e6), "433.5 MHz");
+        assert_eq!(format_hz_compact(150e3), "150 kHz");
+        assert_eq!(format_hz_compact(433.920001e6), "433.920001 MHz");
+        assert_eq!(format_clock(65.9), "01:05");
+        assert_eq!(format_clock(3725.0), "1h02");
     }
 }

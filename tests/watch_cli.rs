@@ -34,6 +34,18 @@ fn plans_are_checked_before_the_screen() {
 }
 
 #[test]
+fn the_evidence_folder_is_checked_before_the_screen() {
+    refused(
+        &watch(&["--evidence-dir", "/nonexistent/evidence"]),
+        &["--evidence-dir /nonexistent/evidence", "no such folder"],
+    );
+    let file = std::env::temp_dir().join(format!("bw-not-a-folder-{}", std::process::id()));
+    std::fs::write(&file, b"x").unwrap();
+    refused(&watch(&["--evidence-dir", file.to_str().unwrap()]), &["is not a folder"]);
+    let _ = std::fs::remove_file(&file);
+}
+
+#[test]
 fn bad_inputs_are_reported_before_the_screen() {
     refused(&watch(&["/nonexistent/capture.sigmf-meta"]), &["capture.sigmf-meta"]);
     refused(&watch(&["-"]), &["stdin needs --format"]);

@@ -6,6 +6,12 @@
 //! the program with status 0, leave the alternate screen and mouse reporting, and give the shell
 //! back. Skipped (with a message) where tmux is not installed; in CI (`CI=true`) a missing tmux
 //! fails.
+//!
+//! At 80×24 and 120×40 the Wrenhollow Ridge recording with its seven-channel plan checks that
+//! a small screen stays usable: every channel is reachable in the channel panel (it scrolls,
+//! saying how many more there are), a key that does nothing here says why, the keys that change
+//! the scale, the row rate and the colours show their effect on the settings line, and a long
+//! error message keeps its head and its cause.
 
 use bandwarden::source::sigmf::meta_json;
 use bandwarden::source::SampleFormat;
@@ -152,6 +158,92 @@ fn check_time_channels_and_history(tmux: &Tmux) {
     assert!(tmux.screen().contains("FROZEN"));
     tmux.keys(&["End"]);
     tmux.wait_for("live again", wait, |s| !s.contains("FROZEN") && !s.contains("◀"));
+}
+
+/// The repository's demo recording and plan (the Wrenhollow Ridge scene).
+fn demo_files() -> (String, String) {
+    let root = env!("CARGO_MANIFEST_DIR");
+    (
+        format!("{root}/recordings/wrenhollow-demo.sigmf-meta"),
+        format!("{root}/recordings/wrenhollow-plan.toml"),
+    )
+}
+
+/// The last two lines of the screen: the marker line and the settings line.
+fn bottom(screen: &str) -> (String, String) {
+    let lines: Vec<&str> = screen.lines().collect();
+    let n = lines.len();
+    (lines[n - 2].to_string(), lines[n - 1].to_string())
+}
+
+fn small_screen_at(cols: u16, rows: u16) {
+    if !tmux_available() {
+        assert!(std::env::var("CI").is_err(), "tmux is not installed");
+        eprintln!("skipping the tmux end-to-end test: tmux is not installed");
+        return;
+    }
+    let wait = Duration::from_secs(20);
+    let dir = std::env::temp_dir().join(format!("bw-e2e-ev-{}-{cols}x{rows}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let (rec, plan) = demo_files();
+    let tmux = Tmux::start(&format!("small-{cols}x{rows}"), cols, rows);
+    tmux.wait_for("the shell prompt", Duration::from_secs(10), |s| !s.trim().is_empty());
+    let line = format!(
+        "{} watch {rec} --plan {plan} --loop --evidence-dir {}; echo BW-DONE-$?",
+        env!("CARGO_BIN_EXE_bandwarden"),
+        dir.display()
+    );
+    tmux.keys(&[&line, "Enter"]);
+    tmux.wait_for("the signal table", Duration::from_secs(60), |s| s.contains("Power dBFS"));
+    // The channel panel: seven channels, fewer rows; n walks them all into view.
+    tmux.keys(&["t"]);
+    let s = tmux.wait_for("the channel panel", wait, |s| s.contains("Busy 1m"));
+    assert!(s.contains("more"), "no hint of the hidden channels:\n{s}");
+    let names = ["ops", "yard", "gate", "ferry", "beacon", "telem", "backhaul"];
+    for (i, name) in names.iter().enumerate() {
+        tmux.keys(&["n"]);
+        let row = format!("{:>2} {name}", i + 1);
+        tmux.wait_for(&format!("channel {name} on screen"), wait, |s| {
+            s.lines().any(|l| l.starts_with(&row)) && bottom(s).0.contains(name)
+        });
+    }
+    // `r` does nothing here, and says why.
+    tmux.keys(&["r"]);
+    tmux.wait_for("why r does nothing", wait, |s| {
+        bottom(s).0.contains("r orders the signal table") && bottom(s).0.contains("plan's order")
+    });
+    // The keys that change the picture show it on the settings line, compact at 80 columns.
+    let settings = bottom(&tmux.screen()).1;
+    assert!(settings.contains("20 rows/s") && settings.contains(" auto"), "{settings}");
+    tmux.keys(&["s"]);
+    tmux.wait_for("the slower row rate", wait, |s| bottom(s).1.contains("15 rows/s"));
+    tmux.keys(&["k"]);
+    tmux.wait_for("the next colour map", wait, |s| !bottom(s).1.contains("viridis"));
+    tmux.keys(&["PageDown"]);
+    tmux.wait_for("the manual range", wait, |s| {
+        let l = bottom(s).1;
+        !l.contains(" auto") && l.contains("dB")
+    });
+    // A failed write says what and why, however long the path: the folder is gone.
+    std::fs::remove_dir_all(&dir).unwrap();
+    tmux.keys(&["e"]);
+    let s =
+        tmux.wait_for("the evidence error", wait, |s| bottom(s).0.contains("evidence not written"));
+    let msg = bottom(&s).0;
+    assert!(msg.trim_end().ends_with("No such file or directory (os error 2)"), "{msg}");
+    tmux.keys(&["q"]);
+    let back = tmux.wait_for("the shell after quitting", wait, |s| s.contains("BW-DONE-0"));
+    assert!(!back.contains("Busy 1m"), "{back}");
+}
+
+#[test]
+fn every_channel_and_message_is_readable_at_80x24() {
+    small_screen_at(80, 24);
+}
+
+#[test]
+fn every_channel_and_message_is_readable_at_120x40() {
+    small_screen_at(120, 40);
 }
 
 /// How the test ends the monitor.

@@ -58,6 +58,10 @@ pub struct WatchArgs {
     /// plan's alarm_dbfs or the A key).
     #[arg(long, value_name = "FILE")]
     pub alarm_log: Option<String>,
+    /// Folder for the files the e (evidence) and g (picture) keys write; it must exist and be
+    /// writable (checked at start).
+    #[arg(long, value_name = "DIR", default_value = ".")]
+    pub evidence_dir: String,
 }
 
 /// Slowest and fastest playback of a file: a thousandth of the recorded rate is already a slide
@@ -99,6 +103,8 @@ pub struct WatchConfig {
     pub scroll_region: bool,
     pub mouse: bool,
     pub alarm_log: Option<String>,
+    /// Where `e` and `g` write their files.
+    pub evidence_dir: String,
     /// How signals are told from noise.
     pub detection: Detection,
     /// `--record`: the input teed to this SigMF recording.
@@ -142,6 +148,7 @@ impl WatchArgs {
             scroll_region: !self.no_scroll_region,
             mouse: !self.no_mouse,
             alarm_log: self.alarm_log,
+            evidence_dir: self.evidence_dir,
             detection,
             record: self.record.validate()?,
         })

@@ -16,9 +16,7 @@ use crate::pipeline::latest::RowFeed;
 use crate::pipeline::{open_input, Consumer, Input, RunSpec};
 use crate::plan::{Plan, DEFAULT_THRESHOLD_DB};
 use crate::source::reader::ReaderOptions;
-
-use crate::tui::alarms::AlarmLog;
-use crate::tui::app::{App, ChannelMark, SourceSummary};
+use crate::tui::app::{AlarmLog, App, ChannelMark, SourceSummary};
 use crate::tui::colour::Depth;
 use crate::tui::{self, RunOptions};
 use anyhow::{bail, Result};
@@ -42,6 +40,7 @@ pub fn run(cfg: WatchConfig) -> Result<ExitCode> {
     let info = src.info().clone();
     let half = info.sample_rate_hz / 2.0;
     cfg.plan.check_span(info.center_hz - half, info.center_hz + half)?;
+    check_evidence_dir(&cfg.evidence_dir)?;
     // Checked after the input and the plan, so their mistakes are reported first.
     if !std::io::stdout().is_terminal() {
         bail!("watch draws on a terminal and standard output is not one; use `bandwarden measure` for a report");
@@ -90,11 +89,12 @@ pub fn run(cfg: WatchConfig) -> Result<ExitCode> {
         ColourChoice::Forced(d) => d,
     };
     let marks = marks(&cfg.plan);
-    let mut app = App::new(summary, cfg.rows, depth, cfg.ref_offset, marks, Instant::now());
+    let mut app = App::new(summary, cfg.rows, depth, cfg.ref_offset, marks, Instant::now())
+        .with_detection(cfg.detection)
+        .with_files_dir(&cfg.evidence_dir);
     if let Some(path) = &cfg.alarm_log {
-        app.alarm_log = Some(AlarmLog::new(sink::open(path, true, "alarm log")?.out));
+        app = app.with_alarm_log(AlarmLog::new(sink::open(path, true, "alarm log")?.out));
     }
-    app.detection = cfg.detection;
     let run_opts = RunOptions { fps: cfg.fps, scroll_region: cfg.scroll_region, mouse: cfg.mouse };
     let result = tui::run(app, &feed, &reader_stats, run_opts);
     // The run ends as every command's does; what the input came to is said after the screen
@@ -107,6 +107,30 @@ pub fn run(cfg: WatchConfig) -> Result<ExitCode> {
         recorded_note(&*status.lock().map_err(|_| anyhow::anyhow!("the recorder failed"))?, &meta)?;
     }
     Ok(ExitCode::SUCCESS)
+}
+
+/// Checks at start that the folder for the `e` and `g` files exists and takes files, so the
+/// keys do not fail later in front of the user.
+fn check_evidence_dir(dir: &str) -> Result<()> {
+    let shown = sanitize(dir);
+    match std::fs::metadata(dir) {
+        Err(e) if e.kind() == std::io::ErrorKind::NotFound => {
+            bail!("--evidence-dir {shown}: no such folder; create it or name another")
+        }
+        Err(e) => bail!("--evidence-dir {shown}: {e}"),
+        Ok(m) if !m.is_dir() => bail!("--evidence-dir {shown} is not a folder"),
+        Ok(_) => {}
+    }
+    let probe = std::path::Path::new(dir).join(format!(".bandwarden-probe-{}", std::process::id()));
+    match std::fs::File::create(&probe) {
+        Ok(_) => {
+            let _ = std::fs::remove_file(&probe);
+            Ok(())
+        }
+        Err(e) => bail!(
+            "--evidence-dir {shown}: cannot write there ({e}); name a folder you can write to"
+        ),
+    }
 }
 
 /// The plan's channels as the monitor marks them.

@@ -1,20 +1,21 @@
 //! What each channel of the plan is doing, for the channel panel: its power in the newest row,
 //! how busy it was over the last minute and when it was last heard.
 //!
-//! "Busy" is the occupancy of ITU-R SM.1880 exactly as `log` defines it
-//! ([`crate::measure::occupancy`]): a row is occupied when the channel's power (the PSD
-//! integrated over the channel, [`band_power`]) exceeds the noise in the channel (floor density ×
-//! width) by the channel's threshold (the plan's `threshold_db`, else 10 dB); busy % is occupied
-//! rows over rows in the last [`BUSY_WINDOW_S`] seconds of input. The floor density is the
-//! monitor's own estimate from its average trace, refreshed twice a second.
+//! "Busy" is the occupancy of ITU-R SM.1880 as `log` decides it, with the same function
+//! ([`crate::measure::occupancy::read_channel`]): a row is occupied when the channel's power (the
+//! PSD integrated over the channel) exceeds the noise in the channel (floor density × width) by
+//! the channel's threshold (the plan's `threshold_db`, else 10 dB); busy % is occupied rows over
+//! rows in the last [`BUSY_WINDOW_S`] seconds of input. The floor density is the monitor's own
+//! estimate from its average trace, refreshed twice a second (`log` tracks its own floor with
+//! [`crate::measure::noise::tracker`], so the two can differ by a fraction of a dB).
 //!
 //! An alarm threshold (dBFS of channel power, from the plan's `alarm_dbfs` or set with a key) is
 //! watched here too: each crossing from below is one onset, which the monitor rings once.
 
 use super::state::ChannelMark;
 use crate::dsp::Spectrum;
-use crate::measure::band_power;
-use crate::units::{db, undb};
+use crate::measure::occupancy::{read_channel, ChannelDef};
+use crate::units::db;
 use std::collections::VecDeque;
 
 /// The window of input over which busy % is counted, seconds.
@@ -85,11 +86,17 @@ impl ChannelActivity {
         let time_s = row.end_sample as f64 / row.sample_rate_hz;
         let mut onsets = Vec::new();
         for (i, (st, ch)) in self.channels.iter_mut().zip(marks).enumerate() {
-            let (lo, hi) = (ch.center_hz - 0.5 * ch.width_hz, ch.center_hz + 0.5 * ch.width_hz);
-            let p = band_power(row, lo, hi);
+            let def = ChannelDef {
+                low_hz: ch.center_hz - 0.5 * ch.width_hz,
+                high_hz: ch.center_hz + 0.5 * ch.width_hz,
+                threshold_db: ch.threshold_db,
+            };
+            // Without a floor the power is still read; occupancy waits for one.
+            let reading = read_channel(row, &def, floor_density.unwrap_or(f64::INFINITY));
+            let p = reading.power;
             st.power_dbfs = (p > 0.0).then(|| db(p));
-            if let Some(d) = floor_density {
-                let occupied = p > d * ch.width_hz * undb(ch.threshold_db);
+            if floor_density.is_some() {
+                let occupied = reading.occupied;
                 st.occupied_now = occupied;
                 st.push(time_s, occupied);
                 if occupied {
@@ -159,7 +166,9 @@ mod tests {
             let want = if busy { -20.0 } else { -50.0 };
             let got = st.power_dbfs.unwrap();
             assert!(
-                (got - crate::units::db(undb(want) + if busy { 1e-5 } else { 0.0 })).abs() < 1e-6,
+                (got - crate::units::db(crate::units::undb(want) + if busy { 1e-5 } else { 0.0 }))
+                    .abs()
+                    < 1e-6,
                 "{got}"
             );
         }

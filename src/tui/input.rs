@@ -125,12 +125,12 @@ pub const HELP: &[HelpRow] = &[
     },
     HelpRow {
         keys: "r  t",
-        what: "table by frequency / by power; t: signals / channels",
+        what: "signals by frequency / by power; t: signals / channels",
         bindings: &[(C('r'), I::SortNext), (C('t'), I::ToggleChannels)],
     },
     HelpRow {
         keys: "A  e  g",
-        what: "alarm on marker's channel; e: evidence; g: picture",
+        what: "alarm on the marker's channel; e: evidence; g: picture",
         bindings: &[
             (C('A'), I::ToggleAlarm),
             (C('e'), I::WriteEvidence),

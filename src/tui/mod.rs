@@ -9,17 +9,13 @@
 //! the scrolling [`painter`]. The cost that matters over SSH is bytes per second; the README's
 //! "Watching live" section has the figures and `scripts/ssh-bytes` measures them.
 
-pub mod alarms;
 pub mod app;
 pub mod channels;
 pub mod colour;
-pub mod evidence;
 pub mod history;
 pub mod input;
 pub mod layout;
-pub mod navigate;
 pub mod painter;
-pub mod picture;
 pub mod state;
 pub mod term;
 pub mod timeline;
@@ -27,7 +23,7 @@ pub mod traces;
 pub mod view;
 pub mod widgets;
 
-use app::{App, Mode};
+use app::App;
 use crossbeam_channel::TryRecvError;
 use crossterm::event::{self, Event};
 use layout::Screen;
@@ -80,7 +76,7 @@ pub fn run(
         event_loop(&mut term, &mut app, dsp, reader, opts, &watch, &mut first_frame)
     };
     // A failed alarm log was said on screen; it is an error of the run too.
-    let result = match app.alarm_log.as_mut().and_then(|l| l.failed.take()) {
+    let result = match app.alarm_log_error() {
         Some(e) if result.is_ok() => {
             Err(anyhow::anyhow!("the alarm log could not be written: {e}"))
         }
@@ -120,10 +116,7 @@ fn event_loop(
     loop {
         // Input until the next frame is due.
         loop {
-            if stop.reason().is_some() {
-                app.mode = Mode::Quit;
-            }
-            if app.mode == Mode::Quit {
+            if stop.reason().is_some() || app.quitting() {
                 return Ok(());
             }
             let now = Instant::now();
@@ -137,13 +130,12 @@ fn event_loop(
         let now = Instant::now();
         next = (next + frame).max(now);
         take_rows(app, dsp);
-        app.stats.dropped = reader.dropped.load(Ordering::Relaxed);
+        app.set_losses(reader.dropped.load(Ordering::Relaxed), dsp.skipped.load(Ordering::Relaxed));
         if let Some(p) = reader.problem() {
             // The input failed (a wrong --format): say so where notices go, for as long as the
             // screen stays up, instead of waiting for samples that will never come.
-            app.notice = Some((format!("input stopped: {p}"), now + Duration::from_secs(86_400)));
+            app.hold_notice(format!("input stopped: {p}"));
         }
-        app.stats.skipped = dsp.skipped.load(Ordering::Relaxed);
         app.tick(now);
         if let Some(s) = app.take_pending_settings() {
             dsp.apply(&s);
@@ -153,13 +145,13 @@ fn event_loop(
         if first_frame.is_none() && app.has_rows() {
             *first_frame = Some(Instant::now());
         }
-        app.stats.count_frame(now);
+        app.count_frame(now);
     }
 }
 
 fn handle_event(app: &mut App, ev: Event) {
     let intent = match ev {
-        Event::Key(k) => input::intent_for_key(k, app.help),
+        Event::Key(k) => input::intent_for_key(k, app.help_open()),
         Event::Mouse(m) => input::intent_for_mouse(m),
         _ => None,
     };
@@ -175,7 +167,7 @@ fn take_rows(app: &mut App, dsp: &RowFeed) {
             Ok(row) => app.push_row(row),
             Err(TryRecvError::Empty) => return,
             Err(TryRecvError::Disconnected) => {
-                app.ended = true;
+                app.input_ended();
                 return;
             }
         }
@@ -199,9 +191,8 @@ fn draw(
     let size = term.size()?;
     let area = Rect::new(0, 0, size.width, size.height);
     let screen = Screen::split(area, app.plan_row());
-    app.screen = screen;
-    app.waterfall_external = opts.scroll_region && screen.is_some();
-    let mode = (area, screen, app.help);
+    app.set_screen(screen, opts.scroll_region && screen.is_some());
+    let mode = (area, screen, app.help_open());
     if *drawn_mode != Some(mode) {
         // The layout moved or the help opened or closed: start from a blank screen, have the
         // painter draw every line and the cell diff send every cell (its idea of the screen
@@ -216,19 +207,18 @@ fn draw(
     }
     // The waterfall goes first, so the help overlay lands on top of it; while the help is open
     // the waterfall holds still (drawn once), which costs nothing over the wire.
-    if let (true, Some(s), Some(plot)) = (app.waterfall_external, screen, app.waterfall_plot()) {
-        if !app.help || !painter.is_valid() {
+    if let (true, Some(s), Some(plot)) = (app.waterfall_painted(), screen, app.waterfall_plot()) {
+        if !app.help_open() || !painter.is_valid() {
             out.clear();
-            painter.paint(out, s.waterfall, app.waterfall_epoch, &plot);
+            painter.paint(out, s.waterfall, app.waterfall_epoch(), &plot);
             term.backend_mut().write_all(out)?;
         }
     }
     // An alarm onset rings the terminal's bell once.
-    if app.bells > 0 {
+    if app.take_bells() > 0 {
         term.backend_mut().write_all(b"\x07")?;
-        app.bells = 0;
     }
     // Draws the rest and flushes everything as one write.
-    term.draw(|f| f.render_widget(&*app, f.area()))?;
+    term.draw(|f| f.render_widget(&app.screen_view(f.area()), f.area()))?;
     Ok(())
 }

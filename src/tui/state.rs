@@ -1,7 +1,12 @@
 //! The small pieces of the monitor's state that widgets read: what is being watched, how levels
-//! are shown, the plan's channel marks and the frame and row counters.
+//! are shown, the plan's channel marks, the table's order and mode, the band between the
+//! markers, where alarms are written and the frame and row counters. Plain data, so every layer
+//! of the monitor (the app, its widgets, the painter) can share them without importing each
+//! other.
 
+use crate::measure::{Edges, Signal};
 use crate::pipeline::clock::Clock;
+use std::io::Write;
 use std::time::Instant;
 
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -133,6 +138,75 @@ impl Stats {
             self.frames = 0;
             self.rows = 0;
             self.since = now;
+        }
+    }
+}
+
+/// The order of the signal table's rows.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum SortKey {
+    /// Lowest frequency first: rows stay put while levels change.
+    Frequency,
+    /// Largest integrated power first.
+    Power,
+}
+
+impl SortKey {
+    pub fn next(self) -> SortKey {
+        match self {
+            SortKey::Frequency => SortKey::Power,
+            SortKey::Power => SortKey::Frequency,
+        }
+    }
+
+    pub fn apply(self, signals: &mut [Signal]) {
+        match self {
+            SortKey::Frequency => signals.sort_by(|a, b| a.freq_hz.total_cmp(&b.freq_hz)),
+            SortKey::Power => signals.sort_by(|a, b| b.power_dbfs.total_cmp(&a.power_dbfs)),
+        }
+    }
+}
+
+/// What the table area shows.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum TableMode {
+    Signals,
+    /// The channel panel (with a plan).
+    Channels,
+}
+
+/// Power and occupied bandwidth of the band between the two markers.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct BandReading {
+    pub low_hz: f64,
+    pub high_hz: f64,
+    /// Integrated power less the noise in the band, dBFS; `None` when nothing stands above
+    /// the noise.
+    pub power_dbfs: Option<f64>,
+    /// 99 % occupied bandwidth (ITU-R SM.328), if the band holds power.
+    pub obw: Option<Edges>,
+}
+
+/// Where alarm records go (`--alarm-log`), and the first error writing them.
+pub struct AlarmLog {
+    out: Box<dyn Write>,
+    /// The write that failed, if any; no more records are attempted after it.
+    pub failed: Option<String>,
+}
+
+impl AlarmLog {
+    pub fn new(out: Box<dyn Write>) -> AlarmLog {
+        AlarmLog { out, failed: None }
+    }
+
+    /// Writes one record and flushes it.
+    pub fn record(&mut self, v: &serde_json::Value) {
+        if self.failed.is_some() {
+            return;
+        }
+        let r = writeln!(self.out, "{v}").and_then(|_| self.out.flush());
+        if let Err(e) = r {
+            self.failed = Some(format!("{e:#}"));
         }
     }
 }

@@ -7,8 +7,8 @@
 //! within the loop.
 
 use super::history::Row;
-use super::widgets::waterfall::clock as relative_clock;
 use crate::pipeline::clock::Clock;
+use crate::units::format_clock as relative_clock;
 use time::{OffsetDateTime, UtcOffset};
 
 /// What time labels show.

@@ -1,8 +1,8 @@
 //! The frequency axis under the spectrum, and the channel-plan row under it.
 
-use super::super::app::ChannelMark;
 use super::super::colour::Theme;
 use super::super::layout::GUTTER;
+use super::super::state::ChannelMark;
 use super::super::view::{freq_ticks, View};
 use ratatui::buffer::Buffer;
 use ratatui::layout::Rect;

@@ -3,9 +3,9 @@
 //! (ITU-R SM.1880 occupancy, as `log` counts it) and when it was last heard. A channel over its
 //! alarm threshold is highlighted.
 
-use super::super::app::{ChannelMark, Levels};
 use super::super::channels::{ChannelActivity, BUSY_WINDOW_S};
 use super::super::colour::Theme;
+use super::super::state::{ChannelMark, Levels};
 use super::super::timeline::TimeBase;
 use super::table::{put_row, render_frame};
 use crate::units::format_hz;
@@ -15,6 +15,8 @@ use ratatui::widgets::Widget;
 
 pub struct ChannelPanel<'a> {
     pub channels: &'a [ChannelMark],
+    /// The first row on show.
+    pub first: usize,
     pub activity: &'a ChannelActivity,
     pub levels: Levels,
     pub times: &'a TimeBase,
@@ -67,8 +69,8 @@ impl Widget for &ChannelPanel<'_> {
         if area.height == 0 || area.width == 0 {
             return;
         }
-        render_frame(area, self.channels.len(), &self.header(), self.theme, buf);
-        for (i, ch) in self.channels.iter().enumerate() {
+        render_frame(area, self.channels.len(), self.first, &self.header(), self.theme, buf);
+        for (i, ch) in self.channels.iter().enumerate().skip(self.first) {
             let alarm = self.activity.channels.get(i).is_some_and(|s| s.alarm_on);
             let marked = self.marker_hz.is_some_and(|m| ch.contains(m));
             let style = if alarm {
@@ -78,7 +80,7 @@ impl Widget for &ChannelPanel<'_> {
             } else {
                 self.theme.label
             };
-            put_row(area, i, &self.row(i, ch), style, buf);
+            put_row(area, i - self.first, &self.row(i, ch), style, buf);
         }
     }
 }
@@ -110,6 +112,7 @@ mod tests {
         let times = TimeBase::new(Clock::new(1.024e6, Some(start)), None);
         let panel = ChannelPanel {
             channels: &channels,
+            first: 0,
             activity: &act,
             levels: Levels { top_dbfs: 0.0, range_db: 80.0, auto: true, offset_db: None },
             times: &times,

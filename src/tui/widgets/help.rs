@@ -1,4 +1,5 @@
-//! The help overlay: every key from the binding table, the mouse, and what the traces are.
+//! The help overlay: every key from the binding table, the mouse, where `e` and `g` write
+//! (`--evidence-dir`), and what the traces are.
 
 use super::super::colour::Theme;
 use super::super::input::{HELP, MOUSE_HELP};
@@ -13,6 +14,8 @@ const KEYS_W: usize = 13;
 
 pub struct HelpOverlay<'a> {
     pub theme: &'a Theme,
+    /// The folder `e` and `g` write into.
+    pub files_dir: &'a str,
 }
 
 impl HelpOverlay<'_> {
@@ -27,6 +30,11 @@ impl HelpOverlay<'_> {
         };
         let mut lines: Vec<Line<'static>> = HELP.iter().map(|r| row(r.keys, r.what)).collect();
         lines.push(row(MOUSE_HELP.0, MOUSE_HELP.1));
+        let dir = match self.files_dir {
+            "." => "the working directory".to_string(),
+            d => crate::messages::sanitize(d),
+        };
+        lines.push(row("files", &format!("e and g write into {dir} (--evidence-dir)")));
         let mut legend = vec![Span::styled(format!(" {:<KEYS_W$} ", "traces"), t.header)];
         for (text, style) in SpectrumPlot::legend_of(t) {
             legend.push(Span::styled(format!("{text}  "), style));
@@ -68,13 +76,14 @@ mod tests {
     fn every_key_row_is_on_screen_at_80x24() {
         let theme = Theme::new(Depth::Palette256);
         let mut buf = Buffer::empty(Rect::new(0, 0, 80, 24));
-        (&HelpOverlay { theme: &theme }).render(buf.area, &mut buf);
+        (&HelpOverlay { theme: &theme, files_dir: "/srv/evidence" }).render(buf.area, &mut buf);
         let screen = text_lines(&buf).join("\n");
         for row in HELP {
             let expect = format!(" {:<KEYS_W$} {}", row.keys, row.what);
             assert!(screen.contains(&expect), "missing: {expect}\n{screen}");
         }
         assert!(screen.contains(MOUSE_HELP.1));
+        assert!(screen.contains("e and g write into /srv/evidence (--evidence-dir)"), "{screen}");
         assert!(screen.contains("┌ keys "));
         assert!(screen.contains("Esc or ? closes"));
     }

@@ -1,5 +1,6 @@
 //! The monitor's widgets, each a pure `Widget for &T` over plain data so it is tested against a
-//! cell buffer, and the whole screen as `Widget for &App`.
+//! cell buffer, and the whole screen as `Widget for &ScreenView`, a plain value the monitor
+//! builds each frame. Nothing here reads the monitor's state itself.
 
 pub mod axis;
 pub mod channels;
@@ -9,8 +10,10 @@ pub mod status;
 pub mod table;
 pub mod waterfall;
 
-use super::app::App;
+use super::colour::Theme;
 use super::layout::Screen;
+use super::state::{ChannelMark, Levels};
+use super::view::View;
 use axis::{FreqAxis, PlanRow};
 use channels::ChannelPanel;
 use help::HelpOverlay;
@@ -19,39 +22,59 @@ use ratatui::layout::Rect;
 use ratatui::style::Style;
 use ratatui::widgets::Widget;
 use spectrum::SpectrumPlot;
-use status::{marker_line, put_line, settings_line, source_line};
-use table::{SignalTable, TableMode};
-use waterfall::{label_interval, WaterfallPlot, PAIRS_ONLY_FROM_ROWS_PER_S};
+use status::StatusView;
+use table::SignalTable;
+use waterfall::WaterfallPlot;
 
-impl App {
-    /// The waterfall as the painter and the widget see it.
-    pub fn waterfall_plot(&self) -> Option<WaterfallPlot<'_>> {
-        let rows_per_s = self.effective_row_rate();
-        Some(WaterfallPlot {
-            history: &self.history,
-            view: self.view?,
-            bottom_dbfs: self.levels.bottom_dbfs(),
-            range_db: self.levels.range_db,
-            palette: &self.palette,
-            theme: &self.theme,
-            label_every_s: label_interval(rows_per_s),
-            times: &self.times,
-            end: self.cursor.map_or(u64::MAX, |c| c + 1),
-            pairs_only: rows_per_s >= PAIRS_ONLY_FROM_ROWS_PER_S,
-        })
-    }
+/// The spectrum's traces for one plot width (two values a column), in printed units, with the
+/// marks drawn over them.
+#[derive(Clone, Debug, PartialEq)]
+pub struct SpectrumView {
+    /// Current, average, peak hold and minimum hold; empty before data.
+    pub traces: [Vec<f64>; 4],
+    pub levels: Levels,
+    pub marker_col: Option<u16>,
+    pub ref_marker_col: Option<u16>,
+    /// Noise power in one RBW, dBFS.
+    pub floor_dbfs: Option<f64>,
+    /// Said in the plot while there is nothing to draw.
+    pub message: Option<&'static str>,
+}
 
+/// What the table area shows.
+pub enum TableView<'a> {
+    Signals(SignalTable<'a>),
+    Channels(ChannelPanel<'a>),
+}
+
+/// Everything one frame draws, as plain values.
+pub struct ScreenView<'a> {
+    /// Where each part goes; `None` on a screen too small to draw on.
+    pub layout: Option<Screen>,
+    pub status: StatusView,
+    pub spectrum: SpectrumView,
+    /// The frequency window on show (for the axis and the plan row), once a row arrived.
+    pub view: Option<View>,
+    pub channels: &'a [ChannelMark],
+    /// Channels whose alarm is on, in plan order.
+    pub alarmed: Vec<bool>,
+    /// The waterfall, unless the scrolling painter draws it (its cells are then left alone).
+    pub waterfall: Option<WaterfallPlot<'a>>,
+    pub painted_waterfall: bool,
+    pub table: TableView<'a>,
+    pub help: bool,
+    /// Where `e` and `g` write, for the help.
+    pub files_dir: &'a str,
+    pub theme: Theme,
+}
+
+impl ScreenView<'_> {
     fn render_spectrum(&self, s: &Screen, buf: &mut Buffer) {
-        let w = s.spectrum_plot.width as usize;
-        let view = self.view;
-        let col =
-            |f: Option<f64>| view.zip(f).and_then(|(v, f)| v.column_of(f, w)).map(|c| c as u16);
-        let l = self.levels;
-        let shown = |v: Vec<f64>| -> Vec<f64> { v.into_iter().map(|x| l.shown(x)).collect() };
-        let [cur, avg, hold, min_hold] = match self.trace_columns(2 * w) {
-            Some([c, a, h, m]) => [shown(c), shown(a), shown(h), shown(m)],
-            None => [Vec::new(), Vec::new(), Vec::new(), Vec::new()],
-        };
+        let sp = &self.spectrum;
+        let l = sp.levels;
+        let shown = |v: &[f64]| -> Vec<f64> { v.iter().map(|x| l.shown(*x)).collect() };
+        let [cur, avg, hold, min_hold] = &sp.traces;
+        let (cur, avg, hold, min_hold) = (shown(cur), shown(avg), shown(hold), shown(min_hold));
         let plot = SpectrumPlot {
             current: &cur,
             average: &avg,
@@ -60,95 +83,66 @@ impl App {
             top: l.shown(l.top_dbfs),
             range_db: l.range_db,
             unit: l.unit(),
-            marker_col: col(self.marker_hz),
-            ref_marker_col: col(self.ref_marker_hz),
-            floor: self.floor_dbfs.map(|f| l.shown(f)),
+            marker_col: sp.marker_col,
+            ref_marker_col: sp.ref_marker_col,
+            floor: sp.floor_dbfs.map(|f| l.shown(f)),
             theme: &self.theme,
         };
         (&plot).render(s.spectrum, buf);
-        if cur.is_empty() {
-            let msg = if self.ended {
-                "the input ended before one row"
-            } else {
-                "waiting for samples…"
-            };
+        if let Some(msg) = sp.message {
             buf.set_string(s.spectrum_plot.x + 2, s.spectrum_plot.y + 1, msg, self.theme.label);
         }
-        if let Some(v) = view {
-            let axis = FreqAxis {
+        let Some(v) = self.view else { return };
+        let axis = FreqAxis {
+            view: v,
+            marker_col: sp.marker_col,
+            ref_marker_col: sp.ref_marker_col,
+            theme: &self.theme,
+        };
+        (&axis).render(s.axis, buf);
+        if let Some(p) = s.plan {
+            let row = PlanRow {
                 view: v,
-                marker_col: col(self.marker_hz),
-                ref_marker_col: col(self.ref_marker_hz),
+                channels: self.channels,
+                alarmed: &self.alarmed,
                 theme: &self.theme,
             };
-            (&axis).render(s.axis, buf);
-            if let Some(p) = s.plan {
-                let alarmed: Vec<bool> =
-                    self.activity.channels.iter().map(|c| c.alarm_on).collect();
-                let row = PlanRow {
-                    view: v,
-                    channels: &self.channels,
-                    alarmed: &alarmed,
-                    theme: &self.theme,
-                };
-                (&row).render(p, buf);
-            }
+            (&row).render(p, buf);
         }
     }
 
     fn render_waterfall(&self, area: Rect, buf: &mut Buffer) {
-        if self.waterfall_external {
+        if self.painted_waterfall {
             // Drawn by the scrolling painter; the cell diff must leave these cells alone.
             for y in area.top()..area.bottom() {
                 for x in area.left()..area.right() {
                     buf[(x, y)].set_diff_option(CellDiffOption::Skip);
                 }
             }
-        } else if let Some(w) = self.waterfall_plot() {
-            (&w).render(area, buf);
+        } else if let Some(w) = &self.waterfall {
+            w.render(area, buf);
         }
     }
 }
 
-impl Widget for &App {
+impl Widget for &ScreenView<'_> {
     fn render(self, area: Rect, buf: &mut Buffer) {
-        let Some(s) = Screen::split(area, self.plan_row()) else {
+        let Some(s) = self.layout else {
             let msg = "bandwarden needs a terminal of at least 40×14";
             buf.set_stringn(area.x, area.y, msg, area.width as usize, Style::new());
             return;
         };
-        let width = area.width as usize;
-        put_line(buf, s.status, &source_line(self, width), Style::new());
+        self.status.source.render(s.status, buf);
         self.render_spectrum(&s, buf);
         self.render_waterfall(s.waterfall, buf);
-        match self.table_mode {
-            TableMode::Signals => {
-                let table = SignalTable {
-                    signals: &self.signals,
-                    channels: &self.channels,
-                    levels: self.levels,
-                    sort: self.sort,
-                    marker_hz: self.marker_hz,
-                    theme: &self.theme,
-                };
-                (&table).render(s.table, buf);
-            }
-            TableMode::Channels => {
-                let panel = ChannelPanel {
-                    channels: &self.channels,
-                    activity: &self.activity,
-                    levels: self.levels,
-                    times: &self.times,
-                    marker_hz: self.marker_hz,
-                    theme: &self.theme,
-                };
-                (&panel).render(s.table, buf);
-            }
+        match &self.table {
+            TableView::Signals(t) => t.render(s.table, buf),
+            TableView::Channels(p) => p.render(s.table, buf),
         }
-        put_line(buf, s.marker, &marker_line(self, width), Style::new());
-        put_line(buf, s.footer, &settings_line(self, width), Style::new());
+        self.status.marker.render(s.marker, buf);
+        self.status.settings.render(s.footer, buf);
         if self.help {
-            (&HelpOverlay { theme: &self.theme }).render(area, buf);
+            (&HelpOverlay { theme: &self.theme, files_dir: self.files_dir }).render(area, buf);
         }
     }
 }
@@ -167,9 +161,10 @@ mod tests {
     use crate::dsp::{Spectrum, Window, WindowKind};
     use crate::pipeline::clock::Clock;
     use crate::pipeline::latest::RowSettings;
-    use crate::tui::app::{ChannelMark, SourceSummary};
+    use crate::tui::app::App;
     use crate::tui::colour::Depth;
     use crate::tui::input::Intent;
+    use crate::tui::state::{ChannelMark, SourceSummary};
     use ratatui::backend::TestBackend;
     use ratatui::Terminal;
     use std::time::Instant;
@@ -216,7 +211,7 @@ mod tests {
 
     fn draw(app: &App, w: u16, h: u16) -> Buffer {
         let mut term = Terminal::new(TestBackend::new(w, h)).unwrap();
-        term.draw(|f| f.render_widget(app, f.area())).unwrap();
+        term.draw(|f| f.render_widget(&app.screen_view(f.area()), f.area())).unwrap();
         term.backend().buffer().clone()
     }
 
@@ -244,18 +239,18 @@ mod tests {
         // the floor's colour elsewhere.
         let s = Screen::split(buf.area, false).unwrap();
         let plot = s.waterfall_plot();
-        let col = a.view.unwrap().column_of(100.1e6, plot.width as usize).unwrap() as u16;
+        let col = a.view().unwrap().column_of(100.1e6, plot.width as usize).unwrap() as u16;
         let top = plot.y;
-        let cur = a.traces.current().unwrap();
+        let cur = a.traces().current().unwrap();
         let step = |i: usize| {
             let level = crate::units::db(cur.psd[i] * cur.rbw_hz) as f32;
-            crate::tui::colour::Palette::step(level, a.levels.bottom_dbfs(), a.levels.range_db)
+            crate::tui::colour::Palette::step(level, a.levels().bottom_dbfs(), a.levels().range_db)
         };
         // Bin 612 holds the tone (FFT bin 100 after the shift); bin 0 is floor.
         let (tone, floor) = (step(612), step(0));
         assert!(tone >= 25 && floor <= 8, "tone step {tone}, floor step {floor}");
-        assert_eq!(buf[(plot.x + col, top)].bg, a.palette.colour(tone));
-        assert_eq!(buf[(plot.x + 2, top)].bg, a.palette.colour(floor));
+        assert_eq!(buf[(plot.x + col, top)].bg, a.palette().colour(tone));
+        assert_eq!(buf[(plot.x + 2, top)].bg, a.palette().colour(floor));
     }
 
     #[test]
@@ -336,7 +331,8 @@ mod tests {
     #[test]
     fn the_painted_waterfall_is_left_to_the_painter() {
         let mut a = app(Vec::new());
-        a.waterfall_external = true;
+        let s0 = Screen::split(Rect::new(0, 0, 80, 24), false);
+        a.set_screen(s0, true);
         let buf = draw(&a, 80, 24);
         let s = Screen::split(buf.area, false).unwrap();
         let w = s.waterfall;
@@ -349,7 +345,7 @@ mod tests {
         // around it stays with the painter.
         a.apply(Intent::ToggleHelp);
         let mut b = Buffer::empty(Rect::new(0, 0, 80, 24));
-        (&a).render(b.area, &mut b);
+        (&a.screen_view(b.area)).render(b.area, &mut b);
         let (x, y) = (w.x, w.y + 2);
         assert_eq!(b[(x, y)].diff_option, CellDiffOption::Skip);
         let popup_edge = (w.left()..w.right()).find(|&x| b[(x, y)].symbol() == "│").unwrap();

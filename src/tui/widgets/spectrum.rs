@@ -1,5 +1,8 @@
 //! The spectrum plot: current, average and hold traces in braille dots (2×4 per cell), with the
-//! level scale in the gutter and the markers as vertical lines.
+//! level scale in the gutter and the markers as vertical lines. A plot of
+//! [`LEGEND_FROM_ROWS`] rows and more gives its top row to the legend, so the legend never
+//! covers a trace and no marker line runs through it; a smaller one leaves the legend to the
+//! help overlay.
 //!
 //! Where traces share a cell the average's colour wins (it moves least, so cells change colour
 //! least often), then the current trace, then the hold.
@@ -19,6 +22,10 @@ const DOT_BITS: [[u8; 4]; 2] = [[0x01, 0x02, 0x04, 0x40], [0x08, 0x10, 0x20, 0x8
 /// In monochrome, the peak hold and the minimum hold are drawn with these.
 pub const PEAK_GLYPH: char = '˙';
 pub const MIN_GLYPH: char = '.';
+/// Height from which the spectrum has a legend row of its own.
+pub const LEGEND_FROM_ROWS: u16 = 8;
+/// Plot width from which the legend fits beside the unit.
+const LEGEND_FROM_COLS: u16 = 60;
 
 pub struct SpectrumPlot<'a> {
     /// Levels in printed units for each half column (two per plot cell); empty before data.
@@ -108,6 +115,13 @@ impl Widget for &SpectrumPlot<'_> {
         if area.width <= GUTTER || area.height == 0 {
             return;
         }
+        let legend = area.height >= LEGEND_FROM_ROWS && area.width - GUTTER >= LEGEND_FROM_COLS;
+        let area = if legend {
+            self.render_legend(Rect::new(area.x + GUTTER, area.y, area.width - GUTTER, 1), buf);
+            Rect::new(area.x, area.y + 1, area.width, area.height - 1)
+        } else {
+            area
+        };
         self.render_gutter(Rect::new(area.x, area.y, GUTTER, area.height), buf);
         let plot = Rect::new(area.x + GUTTER, area.y, area.width - GUTTER, area.height);
         let (w, h) = (plot.width as usize, plot.height as usize);
@@ -151,7 +165,6 @@ impl Widget for &SpectrumPlot<'_> {
                 }
             }
         }
-        self.render_legend(plot, buf);
         for (col, style, glyph) in [
             (self.ref_marker_col, self.theme.ref_marker, '┆'),
             (self.marker_col, self.theme.marker, '│'),
@@ -189,19 +202,18 @@ impl SpectrumPlot<'_> {
         items
     }
 
-    /// Writes the legend in the plot's top row, right-aligned, if it fits beside the traces'
-    /// usual room (plots of 60 columns and more).
-    fn render_legend(&self, plot: Rect, buf: &mut Buffer) {
+    /// Writes the legend right-aligned in its own row, if it fits.
+    fn render_legend(&self, row: Rect, buf: &mut Buffer) {
         let items = self.legend();
         let width: usize = items.iter().map(|(s, _)| s.chars().count() + 2).sum();
-        if (plot.width as usize) < 60 || width + 2 > plot.width as usize {
+        if width + 2 > row.width as usize {
             return;
         }
-        let mut x = plot.x + plot.width - width as u16;
+        let mut x = row.x + row.width - width as u16;
         for (text, style) in items {
-            buf.set_string(x, plot.y, &text, style);
+            buf.set_string(x, row.y, &text, style);
             x += text.chars().count() as u16;
-            buf.set_string(x, plot.y, "  ", Style::reset());
+            buf.set_string(x, row.y, "  ", Style::reset());
             x += 2;
         }
     }
@@ -336,7 +348,17 @@ mod tests {
         assert_eq!(buf[(GUTTER, 0)].symbol(), "˙");
         assert_eq!(buf[(GUTTER, 3)].symbol(), ".");
         assert_eq!(buf[(GUTTER, 2)].symbol(), "⠤");
+        assert!(!lines[0].contains("average"), "no legend row in four rows: {}", lines[0]);
+        // From eight rows the legend has the top row to itself; the marker stays below it.
+        let mut tall = SpectrumPlot { marker_col: Some(60), ..p };
+        tall.hold = &[];
+        let mut buf = Buffer::empty(Rect::new(0, 0, GUTTER + 70, 8));
+        (&tall).render(buf.area, &mut buf);
+        let lines = crate::tui::widgets::text_lines(&buf);
         assert!(lines[0].ends_with("⣿ average  ⣀ current  ˙ peak . min hold  "), "{}", lines[0]);
+        assert!(lines[0].starts_with("      "), "{}", lines[0]);
+        assert!(lines[1].starts_with("dBFS │"), "{}", lines[1]);
+        assert_eq!(buf[(GUTTER + 60, 1)].symbol(), "│");
         // In colour the holds are braille in their own colour, and the legend says which.
         let theme = Theme::new(Depth::Palette256);
         let p = SpectrumPlot { theme: &theme, ..p };
@@ -344,6 +366,8 @@ mod tests {
         (&p).render(buf.area, &mut buf);
         assert_eq!(buf[(GUTTER, 3)].symbol(), "⣀");
         assert_eq!(buf[(GUTTER, 3)].fg, theme.hold.fg.unwrap());
+        let mut buf = Buffer::empty(Rect::new(0, 0, GUTTER + 70, 8));
+        (&p).render(buf.area, &mut buf);
         let lines = crate::tui::widgets::text_lines(&buf);
         assert!(lines[0].contains("⣀ average  ⣀ current  ⣀ peak/min hold"), "{}", lines[0]);
     }

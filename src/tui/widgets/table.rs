@@ -2,10 +2,12 @@
 //! band for a wideband signal), integrated power, peak level in one RBW, SNR, 99 % occupied
 //! bandwidth and the channel it falls in. Rows keep a stable order (by frequency unless `r`
 //! asks for power) so that `n` and `p` walk them predictably; on wide screens the table runs in
-//! several side-by-side blocks so more signals fit.
+//! several side-by-side blocks so more signals fit. When the rows still do not all fit, the
+//! table shows a window of them from `first` and says how many more there are (`+3 more`); the
+//! monitor moves that window to keep the marker's row in view.
 
-use super::super::app::{ChannelMark, Levels};
 use super::super::colour::Theme;
+use super::super::state::{ChannelMark, Levels, SortKey};
 use crate::measure::Signal;
 use crate::units::format_hz;
 use ratatui::buffer::Buffer;
@@ -14,39 +16,6 @@ use ratatui::widgets::Widget;
 
 /// Width of one block of the table; wider screens hold several.
 pub const BLOCK_WIDTH: u16 = 80;
-
-/// The order of the table's rows.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-pub enum SortKey {
-    /// Lowest frequency first: rows stay put while levels change.
-    Frequency,
-    /// Largest integrated power first.
-    Power,
-}
-
-impl SortKey {
-    pub fn next(self) -> SortKey {
-        match self {
-            SortKey::Frequency => SortKey::Power,
-            SortKey::Power => SortKey::Frequency,
-        }
-    }
-
-    pub fn apply(self, signals: &mut [Signal]) {
-        match self {
-            SortKey::Frequency => signals.sort_by(|a, b| a.freq_hz.total_cmp(&b.freq_hz)),
-            SortKey::Power => signals.sort_by(|a, b| b.power_dbfs.total_cmp(&a.power_dbfs)),
-        }
-    }
-}
-
-/// What the table area shows.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-pub enum TableMode {
-    Signals,
-    /// The channel panel (with a plan).
-    Channels,
-}
 
 /// Where row `i` of `rows` lies in a table drawn in `area`: (x, y, width).
 fn cell_of(area: Rect, i: usize) -> Option<(u16, u16, u16)> {
@@ -60,21 +29,66 @@ fn cell_of(area: Rect, i: usize) -> Option<(u16, u16, u16)> {
     Some((area.x + b * block_w, area.y + 1 + r, block_w))
 }
 
-/// The row of a table of `rows` rows in `area` under the screen cell (`x`, `y`), if any.
-pub fn row_at(area: Rect, rows: usize, x: u16, y: u16) -> Option<usize> {
-    (0..rows)
-        .find(|&i| cell_of(area, i).is_some_and(|(bx, by, w)| y == by && x >= bx && x < bx + w))
+/// Rows a table in `area` shows at once.
+pub fn capacity(area: Rect) -> usize {
+    let blocks = (area.width / BLOCK_WIDTH).max(1) as usize;
+    area.height.saturating_sub(1) as usize * blocks
 }
 
-/// Blocks in use for `rows` rows, and the header drawn over each.
-pub fn render_frame(area: Rect, rows: usize, header: &str, theme: &Theme, buf: &mut Buffer) {
+/// The first row to show of `rows` so that the window starting near `first` is full and holds
+/// row `keep` (when given).
+pub fn first_shown(rows: usize, cap: usize, first: usize, keep: Option<usize>) -> usize {
+    let mut first = first;
+    if let Some(k) = keep.filter(|&k| k < rows) {
+        if k < first {
+            first = k;
+        } else if cap > 0 && k >= first + cap {
+            first = k + 1 - cap;
+        }
+    }
+    first.min(rows.saturating_sub(cap))
+}
+
+/// The row of a table of `rows` rows shown from `first` in `area` under the screen cell
+/// (`x`, `y`), if any.
+pub fn row_at(area: Rect, rows: usize, first: usize, x: u16, y: u16) -> Option<usize> {
+    (first..rows).find(|&i| {
+        cell_of(area, i - first).is_some_and(|(bx, by, w)| y == by && x >= bx && x < bx + w)
+    })
+}
+
+/// The header drawn over each block in use for `rows` rows shown from `first`, and, when they
+/// do not all fit, how many more there are and which way (`↓ +3 more`, `↑ +2 more`).
+pub fn render_frame(
+    area: Rect,
+    rows: usize,
+    first: usize,
+    header: &str,
+    theme: &Theme,
+    buf: &mut Buffer,
+) {
     let blocks = (area.width / BLOCK_WIDTH).max(1);
     let block_w = area.width / blocks;
     let per_block = (area.height.saturating_sub(1) as usize).max(1);
-    let used = rows.div_ceil(per_block).clamp(1, blocks as usize) as u16;
+    let shown = rows.saturating_sub(first).min(capacity(area));
+    let used = shown.div_ceil(per_block).clamp(1, blocks as usize) as u16;
     for b in 0..used {
         let x = area.x + b * block_w;
         buf.set_stringn(x, area.y, header, block_w as usize, theme.header);
+    }
+    let (above, below) = (first, rows.saturating_sub(first + shown));
+    if above + below == 0 {
+        return;
+    }
+    let arrow = match (above > 0, below > 0) {
+        (true, true) => "↕",
+        (true, false) => "↑",
+        _ => "↓",
+    };
+    let hint = format!(" {arrow} +{} more ", above + below);
+    let w = hint.chars().count() as u16;
+    if w <= area.width {
+        buf.set_string(area.x + area.width - w, area.y, hint, theme.warn);
     }
 }
 
@@ -87,6 +101,8 @@ pub fn put_row(area: Rect, i: usize, text: &str, style: ratatui::style::Style, b
 
 pub struct SignalTable<'a> {
     pub signals: &'a [Signal],
+    /// The first row on show.
+    pub first: usize,
     /// The plan's channels (empty without a plan; the column is then left out).
     pub channels: &'a [ChannelMark],
     pub levels: Levels,
@@ -147,15 +163,15 @@ impl Widget for &SignalTable<'_> {
         if area.height == 0 || area.width == 0 {
             return;
         }
-        render_frame(area, self.signals.len(), &self.header(), self.theme, buf);
+        render_frame(area, self.signals.len(), self.first, &self.header(), self.theme, buf);
         if self.signals.is_empty() {
             let msg = "  no signal stands clear of the noise";
             buf.set_stringn(area.x, area.y + 1, msg, area.width as usize, self.theme.label);
             return;
         }
-        for (i, s) in self.signals.iter().enumerate() {
+        for (i, s) in self.signals.iter().enumerate().skip(self.first) {
             let style = if self.under_marker(s) { self.theme.marker } else { self.theme.label };
-            put_row(area, i, &self.row(i, s), style, buf);
+            put_row(area, i - self.first, &self.row(i, s), style, buf);
         }
     }
 }
@@ -178,6 +194,19 @@ mod tests {
         }
     }
 
+    /// A table of `signals` from the first row, by frequency, without a plan or a marker.
+    fn plain<'a>(signals: &'a [Signal], theme: &'a Theme) -> SignalTable<'a> {
+        SignalTable {
+            signals,
+            first: 0,
+            channels: &[],
+            levels: levels(None),
+            sort: SortKey::Frequency,
+            marker_hz: None,
+            theme,
+        }
+    }
+
     fn levels(offset_db: Option<f64>) -> Levels {
         Levels { top_dbfs: 0.0, range_db: 80.0, auto: true, offset_db }
     }
@@ -189,6 +218,7 @@ mod tests {
         let channels = [ChannelMark::new("Gate-North", 433.92e6, 25e3)];
         let t = SignalTable {
             signals: &signals,
+            first: 0,
             channels: &channels,
             levels: levels(None),
             sort: SortKey::Frequency,
@@ -219,14 +249,7 @@ mod tests {
     fn a_reference_offset_prints_dbm_and_no_plan_no_channel_column() {
         let theme = Theme::new(Depth::Mono);
         let signals = [sig(100e6, -20.0)];
-        let t = SignalTable {
-            signals: &signals,
-            channels: &[],
-            levels: levels(Some(-30.0)),
-            sort: SortKey::Frequency,
-            marker_hz: None,
-            theme: &theme,
-        };
+        let t = SignalTable { levels: levels(Some(-30.0)), ..plain(&signals, &theme) };
         let mut buf = Buffer::empty(Rect::new(0, 0, 80, 2));
         (&t).render(buf.area, &mut buf);
         let lines = text_lines(&buf);
@@ -238,14 +261,7 @@ mod tests {
     fn wide_screens_use_side_by_side_blocks() {
         let theme = Theme::new(Depth::Mono);
         let signals: Vec<Signal> = (0..4).map(|i| sig(100e6 + i as f64 * 1e5, -20.0)).collect();
-        let t = SignalTable {
-            signals: &signals,
-            channels: &[],
-            levels: levels(None),
-            sort: SortKey::Frequency,
-            marker_hz: None,
-            theme: &theme,
-        };
+        let t = plain(&signals, &theme);
         let mut buf = Buffer::empty(Rect::new(0, 0, 160, 3));
         (&t).render(buf.area, &mut buf);
         let lines = text_lines(&buf);
@@ -273,25 +289,20 @@ mod tests {
         assert_eq!(SortKey::Power.next(), SortKey::Frequency);
         // Two blocks of two rows at 160×3 (table at y = 10): row 3 is in the second block.
         let area = Rect::new(0, 10, 160, 3);
-        assert_eq!(row_at(area, 4, 5, 11), Some(0));
-        assert_eq!(row_at(area, 4, 5, 12), Some(1));
-        assert_eq!(row_at(area, 4, 85, 12), Some(3));
-        assert_eq!(row_at(area, 4, 5, 10), None, "the header is no row");
-        assert_eq!(row_at(area, 3, 85, 12), None, "no fourth row");
+        assert_eq!(row_at(area, 4, 0, 5, 11), Some(0));
+        assert_eq!(row_at(area, 4, 0, 5, 12), Some(1));
+        assert_eq!(row_at(area, 4, 0, 85, 12), Some(3));
+        assert_eq!(row_at(area, 4, 0, 5, 10), None, "the header is no row");
+        assert_eq!(row_at(area, 3, 0, 85, 12), None, "no fourth row");
+        // Scrolled down by two, the first cell holds row 2.
+        assert_eq!(row_at(area, 7, 2, 5, 11), Some(2));
     }
 
     #[test]
     fn the_power_order_is_marked_in_the_header() {
         let theme = Theme::new(Depth::Mono);
         let signals = [sig(100e6, -20.0)];
-        let t = SignalTable {
-            signals: &signals,
-            channels: &[],
-            levels: levels(None),
-            sort: SortKey::Power,
-            marker_hz: None,
-            theme: &theme,
-        };
+        let t = SignalTable { sort: SortKey::Power, ..plain(&signals, &theme) };
         let mut buf = Buffer::empty(Rect::new(0, 0, 80, 2));
         (&t).render(buf.area, &mut buf);
         assert!(
@@ -299,5 +310,31 @@ mod tests {
             "{:?}",
             text_lines(&buf)
         );
+    }
+
+    #[test]
+    fn rows_that_do_not_fit_scroll_and_say_how_many_more() {
+        let theme = Theme::new(Depth::Mono);
+        let signals: Vec<Signal> = (0..7).map(|i| sig(100e6 + i as f64 * 1e5, -20.0)).collect();
+        // Three rows under the header at 80 columns: 7 signals, 4 hidden below.
+        let t = plain(&signals, &theme);
+        let mut buf = Buffer::empty(Rect::new(0, 0, 80, 4));
+        (&t).render(buf.area, &mut buf);
+        let lines = text_lines(&buf);
+        assert!(lines[0].ends_with(" ↓ +4 more "), "{}", lines[0]);
+        assert!(lines[3].starts_with(" 3 100.200000 MHz"));
+        // From row 3 on: rows 4..6 shown, three above and one below.
+        let t = SignalTable { first: 3, ..t };
+        let mut buf = Buffer::empty(Rect::new(0, 0, 80, 4));
+        (&t).render(buf.area, &mut buf);
+        let lines = text_lines(&buf);
+        assert!(lines[0].ends_with(" ↕ +4 more "), "{}", lines[0]);
+        assert!(lines[1].starts_with(" 4 100.300000 MHz"), "{}", lines[1]);
+        // The window follows the row to keep and is always full.
+        assert_eq!(first_shown(7, 3, 0, Some(5)), 3);
+        assert_eq!(first_shown(7, 3, 4, Some(1)), 1);
+        assert_eq!(first_shown(7, 3, 6, None), 4);
+        assert_eq!(first_shown(2, 3, 1, None), 0);
+        assert_eq!(capacity(Rect::new(0, 0, 160, 4)), 6);
     }
 }

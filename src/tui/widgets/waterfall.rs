@@ -49,16 +49,6 @@ pub fn label_interval(rows_per_s: f64) -> f64 {
     LABEL_STEPS_S.iter().copied().find(|s| s * lines_per_s >= 6.0).unwrap_or(7200.0)
 }
 
-/// `mm:ss` below an hour, `HhMM` above, to fit the gutter.
-pub fn clock(t_s: f64) -> String {
-    let s = t_s.max(0.0).floor() as u64;
-    if s < 3600 {
-        format!("{:02}:{:02}", s / 60, s % 60)
-    } else {
-        format!("{}h{:02}", s / 3600, (s % 3600) / 60)
-    }
-}
-
 impl WaterfallPlot<'_> {
     /// Rows on show: all that arrived, less an unpaired newest one when lines wait for pairs.
     pub fn shown_rows(&self) -> u64 {
@@ -231,9 +221,7 @@ mod tests {
     }
 
     #[test]
-    fn labels_and_clock() {
-        assert_eq!(clock(65.9), "01:05");
-        assert_eq!(clock(3725.0), "1h02");
+    fn label_intervals() {
         // 20 rows/s is 10 lines/s: one label a second is every 10 lines.
         assert_eq!(label_interval(20.0), 1.0);
         assert_eq!(label_interval(2.0), 10.0);

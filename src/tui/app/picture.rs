@@ -1,15 +1,17 @@
 //! Picture (`g`): the history the monitor holds drawn as a PNG waterfall, with the same drawing
 //! code as `bandwarden snapshot` ([`crate::output::picture::waterfall::draw_waterfall`]), written to the
-//! current directory as `bandwarden-YYYYMMDDTHHMMSSZ.png` (the UTC time of writing).
+//! folder of `--evidence-dir` (default: the working directory) as `bandwarden-YYYYMMDDTHHMMSSZ.png` (the UTC time of writing).
 //!
 //! The picture covers the newest stretch of history that shares one frequency grid (a change of
 //! FFT size or a retune starts a new stretch), at most the history's cap. Rows are drawn at the
 //! levels the screen keeps (a hundredth of a dB; above 8192 bins the largest of neighbouring
-//! bins, as the screen shows them). The colour scale is the screen's (reference level and range),
-//! so the picture looks like what the operator saw.
+//! bins, as the screen shows them). The colour scale is the screen's (reference level and range)
+//! and the frequencies are the screen's (the zoomed view, in whole bins), so the picture looks
+//! like what the operator saw.
 
-use super::app::App;
-use super::history::Row;
+use super::super::history::Row;
+use super::super::view::BinGrid;
+use super::App;
 use crate::output::picture::canvas::PictureFormat;
 use crate::output::picture::held_rows::HeldRow;
 use crate::output::picture::waterfall::{
@@ -33,15 +35,19 @@ impl App {
             bail!("no rows in the history yet");
         };
         let grid = first.grid;
-        let held = held_rows(&rows);
-        let low_hz = grid.first_hz - 0.5 * grid.bin_hz;
-        let high_hz = low_hz + grid.len as f64 * grid.bin_hz;
+        let bins = self.shown_bins(grid);
+        let mut held = held_rows(&rows);
+        for h in &mut held {
+            h.level_db = h.level_db[bins.clone()].to_vec();
+        }
+        let low_hz = grid.freq(bins.start) - 0.5 * grid.bin_hz;
+        let high_hz = low_hz + bins.len() as f64 * grid.bin_hz;
         // The traces are drawn only when they are on the same grid as the rows.
         let cur = self.traces.current();
         let same_grid = cur.is_some_and(|c| c.fft_size == grid.len);
         let trace_db = |psd: &[f64]| -> Option<Vec<f32>> {
             let rbw = cur?.rbw_hz;
-            same_grid.then(|| psd.iter().map(|&p| db(p * rbw) as f32).collect())
+            same_grid.then(|| psd[bins.clone()].iter().map(|&p| db(p * rbw) as f32).collect())
         };
         let average = trace_db(self.traces.average_psd());
         let peak = trace_db(self.traces.hold_psd());
@@ -65,19 +71,22 @@ impl App {
         let settings = PictureSettings {
             width: WIDTH,
             height: HEIGHT,
-            map: self.palette.map,
+            map: self.look.palette.map,
             scale: (scale.0.is_finite() && scale.1.is_finite()).then_some(scale),
             ref_offset_db: offset,
             title: format!("Waterfall of {} (monitor history)", self.source.label),
             footer: self.picture_footer(held.len(), &timeline),
             channels: self
-                .channels
+                .plan
+                .marks
                 .iter()
                 .map(|c| ChannelBand {
                     name: c.name.clone(),
                     low_hz: c.center_hz - 0.5 * c.width_hz,
                     high_hz: c.center_hz + 0.5 * c.width_hz,
                 })
+                // As on the plan row: only the channels in view.
+                .filter(|c| c.high_hz > low_hz && c.low_hz < high_hz)
                 .collect(),
             marks: Vec::new(),
         };
@@ -87,6 +96,16 @@ impl App {
         out.write_all(&bytes)?;
         out.flush()?;
         Ok(path)
+    }
+
+    /// The bins of `grid` on screen: those of the zoomed view (all of them before a view).
+    fn shown_bins(&self, grid: BinGrid) -> std::ops::Range<usize> {
+        let bins = self.view.map_or(0..grid.len, |v| grid.bins_in(v.lo_hz, v.hi_hz));
+        if bins.is_empty() {
+            0..grid.len
+        } else {
+            bins
+        }
     }
 
     /// The held rows of the newest stretch on one grid, oldest first.
@@ -120,10 +139,10 @@ impl App {
         ]
     }
 
-    /// `g`: writes the picture into the current directory and says where (or what failed).
+    /// `g`: writes the picture into the files folder and says where (or what failed).
     pub(super) fn picture_key(&mut self) {
-        let msg = match self.write_picture(".", OffsetDateTime::now_utc()) {
-            Ok(path) => format!("wrote {}", path.trim_start_matches("./")),
+        let msg = match self.write_picture(&self.files_dir, OffsetDateTime::now_utc()) {
+            Ok(path) => format!("wrote {}", self.shown_path(&path)),
             Err(e) => format!("picture not written: {e:#}"),
         };
         self.say(crate::messages::sanitize(&msg));
@@ -192,6 +211,22 @@ mod tests {
         let height = u32::from_be_bytes(bytes[20..24].try_into().unwrap());
         assert_eq!((width, height), (WIDTH, HEIGHT));
         std::fs::remove_dir_all(&dir).ok();
+    }
+
+    #[test]
+    fn the_picture_covers_the_zoomed_view() {
+        let mut a = App::new(summary(), settings(), Depth::Mono, None, Vec::new(), Instant::now());
+        let w = Window::new(WindowKind::Hann, 1024);
+        a.push_row(Spectrum::from_power_sum(&[1.0; 1024], 1, 2.0, &w, 1.024e6, 100e6, 0, 1024));
+        let grid = a.history.rows_oldest_first().next().unwrap().grid;
+        assert_eq!(a.shown_bins(grid), 0..1024, "the whole span");
+        a.markers.at = Some(100.2e6);
+        a.apply(crate::tui::input::Intent::ZoomIn);
+        let v = a.view.unwrap();
+        let bins = a.shown_bins(grid);
+        // 1 kHz bins: half the span is 512 of them, each centred inside the view.
+        assert_eq!(bins.len(), 512);
+        assert!(grid.freq(bins.start) >= v.lo_hz && grid.freq(bins.end - 1) < v.hi_hz);
     }
 
     #[test]

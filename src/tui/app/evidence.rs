@@ -1,5 +1,6 @@
-//! Evidence (`e`): the traces on show and the signal table written to two files in the current
-//! directory, named with the UTC time of writing so that successive presses never overwrite:
+//! Evidence (`e`): the traces on show and the signal table written to two files in the folder
+//! of `--evidence-dir` (default: the working directory), named with the UTC time of writing so
+//! that successive presses never overwrite:
 //!
 //! - `bandwarden-20310417T063002Z.csv`: one line per FFT bin, `freq_hz,current_dbfs,
 //!   average_dbfs,peak_hold_dbfs,min_hold_dbfs` (levels in dBFS of power in one RBW, as the
@@ -11,7 +12,7 @@
 //! Both go through [`crate::output::sink`], so a full disk or a missing directory is a clear
 //! message on the marker line, never a lost screen.
 
-use super::app::App;
+use super::App;
 use crate::output::sink;
 use crate::pipeline::clock::rfc3339_ms;
 use crate::units::db;
@@ -39,7 +40,7 @@ impl App {
         let stem = format!("{dir}/{}", file_stem(now));
         let (csv, json) = (format!("{stem}.csv"), format!("{stem}.json"));
         let cur = self.traces.current().ok_or_else(|| anyhow::anyhow!("no spectrum yet"))?;
-        let shown = self.cursor_spectrum.as_ref().unwrap_or(cur);
+        let shown = self.cursor.spectrum.as_ref().unwrap_or(cur);
         let mut out = sink::open(&csv, false, "evidence")?.out;
         writeln!(out, "freq_hz,current_dbfs,average_dbfs,peak_hold_dbfs,min_hold_dbfs")?;
         let level = |p: f64, rbw: f64| db(p * rbw);
@@ -58,9 +59,11 @@ impl App {
             )?;
         }
         out.flush()?;
-        let row_end = self.cursor.and_then(|c| self.history.by_index(c)).map(|r| r.end_sample);
+        let row_end =
+            self.cursor.index.and_then(|c| self.history.by_index(c)).map(|r| r.end_sample);
         let end = row_end.unwrap_or(shown.end_sample);
         let signals: Vec<serde_json::Value> = self
+            .table
             .signals
             .iter()
             .map(|s| {
@@ -72,7 +75,7 @@ impl App {
                     "obw_hz": s.obw.width_hz(),
                     "obw_low_hz": s.obw.low_hz,
                     "obw_high_hz": s.obw.high_hz,
-                    "channel": self.channel_at(s.freq_hz).map(|c| c.name.clone()),
+                    "channel": self.plan.channel_at(s.freq_hz).map(|c| c.name.clone()),
                 })
             })
             .collect();
@@ -87,10 +90,10 @@ impl App {
             "rbw_hz": cur.rbw_hz,
             "row_time": self.times.utc_at(end).and_then(rfc3339_ms),
             "row_input_s": self.times.clock.seconds(end),
-            "scrolled_back": self.cursor.is_some(),
-            "noise_floor_dbfs_per_hz": self.floor_density.map(db),
+            "scrolled_back": self.cursor.index.is_some(),
+            "noise_floor_dbfs_per_hz": self.measured.floor_density.map(db),
             "ref_offset_db": self.levels.offset_db,
-            "band": self.band.map(|b| serde_json::json!({
+            "band": self.markers.band.map(|b| serde_json::json!({
                 "low_hz": b.low_hz, "high_hz": b.high_hz, "power_dbfs": b.power_dbfs,
                 "obw_hz": b.obw.map(|e| e.width_hz()),
             })),
@@ -104,10 +107,12 @@ impl App {
         Ok((csv, json))
     }
 
-    /// `e`: writes the evidence into the current directory and says where (or what failed).
+    /// `e`: writes the evidence into the files folder and says where (or what failed).
     pub(super) fn evidence_key(&mut self) {
-        let msg = match self.write_evidence(".", OffsetDateTime::now_utc()) {
-            Ok((csv, json)) => format!("wrote {} and {}", &csv[2..], &json[2..]),
+        let msg = match self.write_evidence(&self.files_dir, OffsetDateTime::now_utc()) {
+            Ok((csv, json)) => {
+                format!("wrote {} and {}", self.shown_path(&csv), self.shown_path(&json))
+            }
             Err(e) => format!("evidence not written: {e:#}"),
         };
         self.say(crate::messages::sanitize(&msg));
@@ -152,9 +157,9 @@ mod tests {
         let v: serde_json::Value =
             serde_json::from_str(&std::fs::read_to_string(&json).unwrap()).unwrap();
         assert_eq!(v["written"], "2031-04-17T06:30:02.500Z");
-        assert_eq!(v["signals"].as_array().unwrap().len(), a.signals.len());
-        assert_eq!(v["signals"][0]["freq_hz"], a.signals[0].freq_hz);
-        assert_eq!(v["signals"][0]["power_dbfs"], a.signals[0].power_dbfs);
+        assert_eq!(v["signals"].as_array().unwrap().len(), a.table.signals.len());
+        assert_eq!(v["signals"][0]["freq_hz"], a.table.signals[0].freq_hz);
+        assert_eq!(v["signals"][0]["power_dbfs"], a.table.signals[0].power_dbfs);
         let _ = std::fs::remove_dir_all(&dir);
         // A directory that does not exist is an error with the path, not a panic.
         let err = a.write_evidence("/nonexistent-bw-dir", now).unwrap_err();

@@ -4,23 +4,35 @@
 //! Levels are kept in dBFS of power in one RBW (so a tone reads its own level); a reference
 //! offset only changes what is printed. Measurements (noise floor, signal table, automatic
 //! scale) run on the average trace a few times a second, not on every row: the table must be
-//! readable and the monitor light.
+//! readable and the monitor light. They run on this, the UI thread, because they measure the
+//! monitor's own average trace (or the time cursor's row), which the DSP thread never sees; the
+//! rows the feed sends are single rows, not that average.
+//!
+//! Every `impl App` lives in this module: here the rows, the clock and the intents; in
+//! [`navigate`] moving about; in [`evidence`] and [`picture`] the files `e` and `g` write; in
+//! [`views`] the plain values the widgets draw.
 
-use super::alarms::AlarmLog;
-use super::channels::ChannelActivity;
-use super::colour::{Depth, MapKind, Palette, Theme};
+mod evidence;
+mod navigate;
+mod parts;
+mod picture;
+mod views;
+
+use super::colour::Depth;
 use super::history::{History, Row, HISTORY_BYTES};
 use super::input::Intent;
 use super::layout::Screen;
-pub use super::state::{ChannelMark, Levels, Mode, SourceSummary, Stats};
+pub use super::state::{
+    AlarmLog, BandReading, ChannelMark, Levels, Mode, SortKey, SourceSummary, Stats, TableMode,
+};
 use super::timeline::TimeBase;
 use super::traces::Traces;
 use super::view::{column_max, BinGrid, View, MIN_VIEW_BINS};
-use super::widgets::table::{SortKey, TableMode};
 use crate::dsp::{Spectrum, Window, WindowKind};
-use crate::measure::{find_signals, noise_floor, Detection, Edges, Signal};
+use crate::measure::{find_signals, noise_floor, Detection};
 use crate::pipeline::latest::RowSettings;
-use crate::units::db;
+use crate::units::{db, format_rows_per_s};
+use parts::{Alerts, FrameInfo, Look, Markers, Measured, PlanState, TableState, TimeCursor};
 use std::time::{Duration, Instant};
 
 /// How often the table, the noise floor, the marker readings and the automatic scale are
@@ -40,78 +52,41 @@ pub const NOTICE_FOR: Duration = Duration::from_secs(4);
 /// What `o` and `t` say without a plan.
 pub const NO_PLAN: &str = "no channel plan: start with --plan FILE or --channel NAME=CENTRE:WIDTH";
 
-/// Power and occupied bandwidth of the band between the two markers.
-#[derive(Clone, Copy, Debug, PartialEq)]
-pub struct BandReading {
-    pub low_hz: f64,
-    pub high_hz: f64,
-    /// Integrated power, dBFS ([`crate::measure::band_power`], as `measure --band`).
-    pub power_dbfs: f64,
-    /// 99 % occupied bandwidth (ITU-R SM.328), if the band holds power.
-    pub obw: Option<Edges>,
-}
 /// Limits of the dynamic range, dB.
 pub const RANGE_MIN_DB: f64 = 20.0;
 pub const RANGE_MAX_DB: f64 = 200.0;
+/// Limits of the reference level (the top of the scale), dBFS: a full-scale tone is 0 dBFS, and
+/// the noise of the largest FFT in one RBW lies well above the bottom a 200 dB range leaves.
+pub const REF_MIN_DBFS: f64 = -200.0;
+pub const REF_MAX_DBFS: f64 = 30.0;
 
+/// The live monitor's state. Fields are grouped by what they are about and private: the event
+/// loop talks to it through intents and a few methods, the widgets through plain views.
 pub struct App {
-    pub mode: Mode,
-    pub help: bool,
-    pub source: SourceSummary,
-    /// What the DSP was last asked for.
-    pub settings: RowSettings,
+    mode: Mode,
+    help: bool,
+    source: SourceSummary,
+    /// What the DSP was last asked for, and a request not yet taken by the feed.
+    settings: RowSettings,
     pending_settings: Option<RowSettings>,
-    pub view: Option<View>,
-    pub levels: Levels,
-    pub marker_hz: Option<f64>,
-    pub ref_marker_hz: Option<f64>,
-    /// What the markers read (frequency, dBFS), refreshed with the measurements and whenever a
-    /// marker moves.
-    pub marker_reading: Option<(f64, f64)>,
-    pub ref_reading: Option<(f64, f64)>,
-    pub depth: Depth,
-    pub palette: Palette,
-    pub theme: Theme,
-    pub channels: Vec<ChannelMark>,
-    pub plan_visible: bool,
-    pub traces: Traces,
-    pub history: History,
-    /// The signal table, in the order of `sort`.
-    pub signals: Vec<Signal>,
-    pub sort: SortKey,
-    pub table_mode: TableMode,
-    /// How the signal list tells signals from noise (`--false-alarm`).
-    pub detection: Detection,
-    /// Noise power in one RBW, dBFS.
-    pub floor_dbfs: Option<f64>,
-    /// Noise density, FS²/Hz.
-    pub floor_density: Option<f64>,
-    /// The band between the markers, when both are set.
-    pub band: Option<BandReading>,
-    pub activity: ChannelActivity,
-    pub times: TimeBase,
-    /// The time cursor (absolute history index of its row) while scrolled back; `None` live.
-    pub cursor: Option<u64>,
-    /// The cursor's row as a spectrum, feeding the current trace and the table.
-    pub cursor_spectrum: Option<Spectrum>,
-    /// A short message on the marker line (a key that could not do what it says, a file
-    /// written) and when it goes.
-    pub notice: Option<(String, Instant)>,
-    /// Terminal bells to ring (alarm onsets).
-    pub bells: u32,
-    /// Where alarm onsets are recorded (`--alarm-log`).
-    pub alarm_log: Option<AlarmLog>,
-    pub stats: Stats,
+    view: Option<View>,
+    levels: Levels,
+    markers: Markers,
+    look: Look,
+    plan: PlanState,
+    traces: Traces,
+    history: History,
+    table: TableState,
+    measured: Measured,
+    times: TimeBase,
+    cursor: TimeCursor,
+    alerts: Alerts,
+    stats: Stats,
     /// The input has ended (and is not looping).
-    pub ended: bool,
-    /// Bumped whenever every waterfall line must be drawn again (zoom, scale, colours).
-    pub waterfall_epoch: u64,
-    /// The waterfall is drawn by the scrolling painter, not through the cell buffer.
-    pub waterfall_external: bool,
-    /// Where things were on the last frame, for mouse clicks and marker steps.
-    pub screen: Option<Screen>,
-    pub(super) window: Option<Window>,
-    last_measure: Option<Instant>,
+    ended: bool,
+    frame: FrameInfo,
+    /// Where `e` and `g` write (`--evidence-dir`).
+    files_dir: String,
 }
 
 impl App {
@@ -123,10 +98,8 @@ impl App {
         channels: Vec<ChannelMark>,
         now: Instant,
     ) -> App {
-        let plan_visible = !channels.is_empty();
         let wrap = source.looping.then_some(source.total_samples).flatten();
         let times = TimeBase::new(source.clock.clone(), wrap);
-        let activity = ChannelActivity::new(channels.len());
         App {
             mode: Mode::Live,
             help: false,
@@ -135,39 +108,118 @@ impl App {
             pending_settings: None,
             view: None,
             levels: Levels { top_dbfs: 0.0, range_db: 100.0, auto: true, offset_db },
-            marker_hz: None,
-            ref_marker_hz: None,
-            marker_reading: None,
-            ref_reading: None,
-            depth,
-            palette: Palette::new(depth, MapKind::Viridis),
-            theme: Theme::new(depth),
-            channels,
-            plan_visible,
+            markers: Markers::default(),
+            look: Look::new(depth),
+            plan: PlanState::new(channels),
             traces: Traces::default(),
             history: History::new(HISTORY_BYTES),
-            signals: Vec::new(),
-            sort: SortKey::Frequency,
-            table_mode: TableMode::Signals,
-            detection: Detection::default(),
-            floor_dbfs: None,
-            floor_density: None,
-            band: None,
-            activity,
+            table: TableState::default(),
+            measured: Measured::default(),
             times,
-            cursor: None,
-            cursor_spectrum: None,
-            notice: None,
-            bells: 0,
-            alarm_log: None,
+            cursor: TimeCursor::default(),
+            alerts: Alerts::default(),
             stats: Stats::new(now),
             ended: false,
-            waterfall_epoch: 0,
-            waterfall_external: false,
-            screen: None,
-            window: None,
-            last_measure: None,
+            frame: FrameInfo::default(),
+            files_dir: ".".into(),
         }
+    }
+
+    /// Records alarm onsets to `log` (`--alarm-log`).
+    pub fn with_alarm_log(mut self, log: AlarmLog) -> App {
+        self.plan.alarm_log = Some(log);
+        self
+    }
+
+    /// Writes the files of `e` and `g` into `dir` (`--evidence-dir`).
+    pub fn with_files_dir(mut self, dir: &str) -> App {
+        self.files_dir = dir.to_string();
+        self
+    }
+
+    /// A file written into the files folder as the user knows it: its name alone in the
+    /// working directory, else the path.
+    fn shown_path(&self, path: &str) -> String {
+        path.strip_prefix("./").unwrap_or(path).to_string()
+    }
+
+    /// Tells signals from noise as `detection` says (`--false-alarm`).
+    pub fn with_detection(mut self, detection: Detection) -> App {
+        self.measured.detection = detection;
+        self
+    }
+
+    /// The frequency window on show, once a row has arrived.
+    pub fn view(&self) -> Option<View> {
+        self.view
+    }
+
+    /// The vertical scale.
+    pub fn levels(&self) -> Levels {
+        self.levels
+    }
+
+    /// The spectrum traces.
+    pub fn traces(&self) -> &Traces {
+        &self.traces
+    }
+
+    /// The waterfall's colours.
+    pub fn palette(&self) -> &super::colour::Palette {
+        &self.look.palette
+    }
+
+    /// Whether the user (or a signal) asked to quit.
+    pub fn quitting(&self) -> bool {
+        self.mode == Mode::Quit
+    }
+
+    /// Whether the help overlay is open (Esc then closes it rather than quitting).
+    pub fn help_open(&self) -> bool {
+        self.help
+    }
+
+    /// The input ended (the feed closed its queue).
+    pub fn input_ended(&mut self) {
+        self.ended = true;
+    }
+
+    /// The loss counters for the status lines: samples the reader dropped, rows the feed skipped.
+    pub fn set_losses(&mut self, dropped: u64, skipped: u64) {
+        self.stats.dropped = dropped;
+        self.stats.skipped = skipped;
+    }
+
+    /// Counts a drawn frame (for the frame rate on the settings line).
+    pub fn count_frame(&mut self, now: Instant) {
+        self.stats.count_frame(now);
+    }
+
+    /// Where the parts of the screen are this frame, and whether the painter draws the
+    /// waterfall.
+    pub fn set_screen(&mut self, screen: Option<Screen>, painted_waterfall: bool) {
+        self.frame.screen = screen;
+        self.frame.external = painted_waterfall;
+    }
+
+    /// Bumped whenever every waterfall line must be drawn again.
+    pub fn waterfall_epoch(&self) -> u64 {
+        self.frame.epoch
+    }
+
+    /// Whether the painter draws the waterfall (its cells are then left alone).
+    pub fn waterfall_painted(&self) -> bool {
+        self.frame.external
+    }
+
+    /// Terminal bells to ring now (alarm onsets); counted down to zero.
+    pub fn take_bells(&mut self) -> u32 {
+        std::mem::take(&mut self.alerts.bells)
+    }
+
+    /// The error that stopped the alarm log, if one did.
+    pub fn alarm_log_error(&mut self) -> Option<String> {
+        self.plan.alarm_log.as_mut().and_then(|l| l.failed.take())
     }
 
     /// Settings the DSP thread should switch to, once.
@@ -188,10 +240,12 @@ impl App {
         self.stats.rows += 1;
         self.stats.rows_total += 1;
         self.history.push(Row::from_spectrum(&spec));
-        let onsets = self.activity.push(&spec, &self.channels, self.floor_density);
+        let onsets = self.plan.activity.push(&spec, &self.plan.marks, self.measured.floor_density);
         if !onsets.is_empty() {
-            self.bells += 1;
-            self.log_onsets(&onsets, spec.end_sample);
+            self.alerts.bells += 1;
+            if let Some(e) = self.plan.log_onsets(&onsets, spec.end_sample, &self.times) {
+                self.say(format!("alarm log: {e}; no more records are written"));
+            }
         }
         if self.mode == Mode::Frozen {
             return;
@@ -199,14 +253,19 @@ impl App {
         let (lo, hi) = spec.span_hz();
         let span = View::new(lo, hi);
         if self.traces.push(spec) {
-            self.window = None;
+            self.measured.window = None;
             self.view = Some(self.view.map_or(span, |v| v.inside(span)));
         }
     }
 
+    /// A notice that stays while the screen is up (the input failed: nothing else will come).
+    pub fn hold_notice(&mut self, text: impl Into<String>) {
+        self.alerts.notice = Some((text.into(), Instant::now() + Duration::from_secs(86_400)));
+    }
+
     /// Shows `text` on the marker line for a few seconds.
     pub fn say(&mut self, text: impl Into<String>) {
-        self.notice = Some((text.into(), Instant::now() + NOTICE_FOR));
+        self.alerts.notice = Some((text.into(), Instant::now() + NOTICE_FOR));
     }
 
     /// The captured span, once a row has arrived.
@@ -219,34 +278,36 @@ impl App {
 
     /// Periodic work: measurements when due.
     pub fn tick(&mut self, now: Instant) {
-        if self.notice.as_ref().is_some_and(|(_, until)| now >= *until) {
-            self.notice = None;
+        if self.alerts.notice.as_ref().is_some_and(|(_, until)| now >= *until) {
+            self.alerts.notice = None;
         }
-        let due = self.last_measure.map_or(true, |t| now.duration_since(t) >= MEASURE_EVERY);
+        let due = self.measured.last.map_or(true, |t| now.duration_since(t) >= MEASURE_EVERY);
         if due && self.mode == Mode::Live && self.traces.current().is_some() {
             self.measure();
-            self.last_measure = Some(now);
+            self.measured.last = Some(now);
         }
     }
 
     /// Noise floor, signal table and (when on) the automatic scale, from the average trace (or,
     /// scrolled back, from the time cursor's row).
     pub fn measure(&mut self) {
-        let Some(avg) = self.cursor_spectrum.clone().or_else(|| self.traces.average_spectrum())
+        let Some(avg) = self.cursor.spectrum.clone().or_else(|| self.traces.average_spectrum())
         else {
             return;
         };
-        let window = match self.window.take() {
+        let window = match self.measured.window.take() {
             Some(w) if w.kind == avg.window && w.len() == avg.fft_size => w,
             _ => Window::new(avg.window, avg.fft_size),
         };
         let floor = noise_floor(&avg.psd, avg.dof);
-        self.signals = find_signals(&avg, &window, floor, MAX_SIGNALS, self.detection);
-        self.sort.apply(&mut self.signals);
-        self.window = Some(window);
+        self.table.signals =
+            find_signals(&avg, &window, floor, MAX_SIGNALS, self.measured.detection);
+        self.table.sort.apply(&mut self.table.signals);
+        self.keep_marked_row_in_view();
+        self.measured.window = Some(window);
         let floor_dbfs = db(floor * avg.rbw_hz);
-        self.floor_dbfs = Some(floor_dbfs);
-        self.floor_density = Some(floor);
+        self.measured.floor_dbfs = Some(floor_dbfs);
+        self.measured.floor_density = Some(floor);
         if self.levels.auto {
             let peak = self.visible_peak_dbfs(&avg).unwrap_or(floor_dbfs);
             self.auto_scale(floor_dbfs, peak);
@@ -256,9 +317,9 @@ impl App {
 
     /// Reads both markers again.
     pub fn refresh_readings(&mut self) {
-        self.marker_reading = self.marker_hz.and_then(|m| self.reading(m));
-        self.ref_reading = self.ref_marker_hz.and_then(|m| self.reading(m));
-        self.band = self.band_reading();
+        self.markers.reading = self.markers.at.and_then(|m| self.reading(m));
+        self.markers.ref_reading = self.markers.reference.and_then(|m| self.reading(m));
+        self.markers.band = self.band_reading();
     }
 
     /// Largest level of the average in view, dBFS in one RBW.
@@ -292,20 +353,20 @@ impl App {
         if (top, range) != (l.top_dbfs, l.range_db) {
             l.top_dbfs = top;
             l.range_db = range;
-            self.waterfall_epoch += 1;
+            self.frame.epoch += 1;
         }
     }
 
     /// Width of the plot in columns (from the last frame; a guess before the first).
     pub fn plot_width(&self) -> usize {
-        self.screen.map_or(74, |s| s.spectrum_plot.width as usize).max(1)
+        self.frame.screen.map_or(74, |s| s.spectrum_plot.width as usize).max(1)
     }
 
     /// Applies an intent.
     pub fn apply(&mut self, intent: Intent) {
-        let markers = (self.marker_hz, self.ref_marker_hz);
+        let markers = (self.markers.at, self.markers.reference);
         self.apply_inner(intent);
-        if (self.marker_hz, self.ref_marker_hz) != markers {
+        if (self.markers.at, self.markers.reference) != markers {
             self.refresh_readings();
         }
     }
@@ -328,16 +389,19 @@ impl App {
             Intent::ToggleUtc => self.toggle_utc(),
             Intent::SortNext => self.next_sort(),
             Intent::ToggleChannels => self.toggle_channels(),
-            Intent::ToggleAlarm => self.toggle_alarm(),
+            Intent::ToggleAlarm => {
+                let msg = self.plan.toggle_alarm(self.markers.at, self.measured.floor_density);
+                self.say(msg);
+            }
             Intent::WriteEvidence => self.evidence_key(),
             Intent::WritePicture => self.picture_key(),
             Intent::MarkerLeft(n) => self.step_marker(-(n as i64)),
             Intent::MarkerRight(n) => self.step_marker(n as i64),
             Intent::MarkerToStrongest => self.marker_to_strongest(),
-            Intent::MarkerToNext => self.step_signal(1),
-            Intent::MarkerToPrev => self.step_signal(-1),
-            Intent::SetRefMarker => self.ref_marker_hz = self.marker_hz,
-            Intent::ClearRefMarker => self.ref_marker_hz = None,
+            Intent::MarkerToNext => self.step_row(1),
+            Intent::MarkerToPrev => self.step_row(-1),
+            Intent::SetRefMarker => self.markers.reference = self.markers.at,
+            Intent::ClearRefMarker => self.markers.reference = None,
             Intent::ZoomIn => self.zoom(0.5),
             Intent::ZoomOut => self.zoom(2.0),
             Intent::PanLeft => self.pan(-0.25),
@@ -348,7 +412,7 @@ impl App {
                 }
             }
             Intent::CentreOnMarker => {
-                if let (Some(v), Some(span), Some(m)) = (self.view, self.span(), self.marker_hz) {
+                if let (Some(v), Some(span), Some(m)) = (self.view, self.span(), self.markers.at) {
                     self.set_view(v.centred_on(m, span));
                 }
             }
@@ -373,28 +437,28 @@ impl App {
             }
             Intent::ResetHold => self.traces.reset_hold(),
             Intent::NextColourMap => {
-                self.palette = Palette::new(self.depth, self.palette.map.next());
-                self.waterfall_epoch += 1;
+                self.look.next_map();
+                self.frame.epoch += 1;
             }
             Intent::TogglePlan => {
-                if self.channels.is_empty() {
+                if self.plan.marks.is_empty() {
                     self.say(NO_PLAN);
                 } else {
-                    self.plan_visible = !self.plan_visible;
+                    self.plan.visible = !self.plan.visible;
                 }
             }
             Intent::RowsSlower => self.change_row_rate(false),
             Intent::RowsFaster => self.change_row_rate(true),
             Intent::PointAt(x, y) => {
                 if let Some(col) = self.plot_column_at(x, y) {
-                    self.marker_hz = self.snap_to_column(col);
+                    self.markers.at = self.snap_to_column(col);
                 } else {
                     self.click_table(x, y);
                 }
             }
             Intent::PointRefAt(x, y) => {
                 if let Some(col) = self.plot_column_at(x, y) {
-                    self.ref_marker_hz = self.snap_to_column(col);
+                    self.markers.reference = self.snap_to_column(col);
                 }
             }
         }
@@ -403,7 +467,7 @@ impl App {
     pub(super) fn set_view(&mut self, v: View) {
         if self.view != Some(v) {
             self.view = Some(v);
-            self.waterfall_epoch += 1;
+            self.frame.epoch += 1;
         }
     }
 
@@ -412,7 +476,7 @@ impl App {
         else {
             return;
         };
-        let anchor = self.marker_hz.filter(|m| (v.lo_hz..v.hi_hz).contains(m));
+        let anchor = self.markers.at.filter(|m| (v.lo_hz..v.hi_hz).contains(m));
         let min_width = MIN_VIEW_BINS * cur.bin_hz();
         let next = v.zoom(factor, anchor.unwrap_or(v.centre_hz()), span, min_width);
         if next == v {
@@ -431,23 +495,33 @@ impl App {
         }
     }
 
+    /// ↑ ↓ PgUp PgDn: moves the reference level by `top` dB or the range by `range` dB, within
+    /// their limits (saying so at a limit), and turns the automatic scale off.
     fn manual_scale(&mut self, top: f64, range: f64) {
-        self.levels.auto = false;
-        self.levels.top_dbfs += top;
-        self.levels.range_db = (self.levels.range_db + range).clamp(RANGE_MIN_DB, RANGE_MAX_DB);
-        self.waterfall_epoch += 1;
+        let l = &mut self.levels;
+        l.auto = false;
+        let want_top = l.top_dbfs + top;
+        let want_range = l.range_db + range;
+        l.top_dbfs = want_top.clamp(REF_MIN_DBFS, REF_MAX_DBFS);
+        l.range_db = want_range.clamp(RANGE_MIN_DB, RANGE_MAX_DB);
+        let (top_now, range_now) = (l.top_dbfs, l.range_db);
+        self.frame.epoch += 1;
+        if want_top != top_now {
+            let end = if top > 0.0 { "highest" } else { "lowest" };
+            let shown = self.levels.shown(top_now);
+            self.say(format!("reference level {shown:.0} {} is the {end}", self.levels.unit()));
+        } else if want_range != range_now {
+            let end = if range > 0.0 { "widest" } else { "narrowest" };
+            self.say(format!("range {range_now:.0} dB is the {end}"));
+        }
     }
 
     fn change_fft(&mut self, larger: bool) {
+        // Exactly twice or half, as the help says, whatever the size (`--fft 3000` → 6000).
         let n = self.settings.fft_size;
-        let next = if larger {
-            (n + 1).next_power_of_two()
-        } else if n.is_power_of_two() {
-            n / 2
-        } else {
-            n.next_power_of_two() / 2
-        };
-        let next = next.clamp(FFT_KEYS_MIN, FFT_KEYS_MAX);
+        let next = if larger { n * 2 } else { n / 2 };
+        let next = next.clamp(FFT_KEYS_MIN.min(n), FFT_KEYS_MAX.max(n));
+        let next = if (FFT_KEYS_MIN..=FFT_KEYS_MAX).contains(&next) { next } else { n };
         if next != n {
             self.request(RowSettings { fft_size: next, ..self.settings });
         } else {
@@ -480,7 +554,7 @@ impl App {
             Some(row_rate) => self.request(RowSettings { row_rate, ..self.settings }),
             None => self.say(format!(
                 "{} the {} row rate the keys reach",
-                super::widgets::status::format_rows_per_s(r),
+                format_rows_per_s(r),
                 if faster { "fastest" } else { "slowest" }
             )),
         }
@@ -495,8 +569,8 @@ impl App {
         let Some(v) = self.view else { return };
         let w = self.plot_width();
         let col =
-            self.marker_hz.and_then(|m| v.column_of(m, w)).map_or(w as i64 / 2, |c| c as i64 + by);
-        self.marker_hz = self.snap_to_column(col.clamp(0, w as i64 - 1) as usize);
+            self.markers.at.and_then(|m| v.column_of(m, w)).map_or(w as i64 / 2, |c| c as i64 + by);
+        self.markers.at = self.snap_to_column(col.clamp(0, w as i64 - 1) as usize);
     }
 
     /// The frequency of the strongest bin of the average trace within column `col`, so the
@@ -515,7 +589,7 @@ impl App {
 
     /// The plot column under a screen cell, in the spectrum or the waterfall.
     fn plot_column_at(&self, x: u16, y: u16) -> Option<usize> {
-        let s = self.screen?;
+        let s = self.frame.screen?;
         let inside = |r: ratatui::layout::Rect| {
             x >= r.x && x < r.x + r.width && y >= r.y && y < r.y + r.height
         };
@@ -539,9 +613,15 @@ impl App {
         let raw = (grid.freq(bin), db(p0 * cur.rbw_hz));
         let pm = if bin > 0 { avg[bin - 1] } else { 0.0 };
         let pp = avg.get(bin + 1).copied().unwrap_or(0.0);
-        let clear = self.floor_dbfs.is_some_and(|f| raw.1 >= f + self.detection.min_snr_db);
-        let window =
-            self.window.as_ref().filter(|w| w.kind == cur.window && w.len() == cur.fft_size);
+        let clear = self
+            .measured
+            .floor_dbfs
+            .is_some_and(|f| raw.1 >= f + self.measured.detection.min_snr_db);
+        let window = self
+            .measured
+            .window
+            .as_ref()
+            .filter(|w| w.kind == cur.window && w.len() == cur.fft_size);
         match window {
             Some(w) if clear && p0 >= pm && p0 >= pp => {
                 let (delta, gain) = w.tone_offset(pm, p0, pp);
@@ -563,7 +643,7 @@ impl App {
                 .collect()
         };
         // Scrolled back, the current trace is the time cursor's row.
-        let shown = self.cursor_spectrum.as_ref().unwrap_or(cur);
+        let shown = self.cursor.spectrum.as_ref().unwrap_or(cur);
         let shown_map = grid_of(shown).column_map(&view, ncols);
         Some([
             to_db(column_max(&shown.psd, &shown_map), shown.rbw_hz),
@@ -575,18 +655,13 @@ impl App {
 
     /// Whether the channel-plan row is on screen.
     pub fn plan_row(&self) -> bool {
-        self.plan_visible && !self.channels.is_empty()
+        self.plan.visible && !self.plan.marks.is_empty()
     }
 
     /// Rows per second the DSP delivers (the request, limited by the frames the input has).
     pub fn effective_row_rate(&self) -> f64 {
         let cfg = self.settings.engine(self.source.sample_rate_hz);
         self.source.sample_rate_hz / cfg.hop() as f64 / cfg.frames_per_output.unwrap_or(1) as f64
-    }
-
-    /// The channel a frequency falls in, if a plan is loaded.
-    pub fn channel_at(&self, freq_hz: f64) -> Option<&ChannelMark> {
-        self.channels.iter().find(|c| c.contains(freq_hz))
     }
 }
 
@@ -626,7 +701,7 @@ pub(crate) mod tests {
     }
 
     /// A row with a flat floor of `floor` (FS²/Hz, before scaling) and a tone in FFT bin `k`.
-    fn row(k: usize, tone: f64) -> Spectrum {
+    pub(crate) fn row(k: usize, tone: f64) -> Spectrum {
         let n = 1024;
         let mut power = vec![1.0; n];
         power[k] = tone;
@@ -655,9 +730,9 @@ pub(crate) mod tests {
         // 1 kHz bins, 74 columns of 13.8 kHz. FFT bin 100 is shifted to 612: 100.1 MHz.
         let tone = 100e6 + 100e3;
         let col = a.view.unwrap().column_of(tone, 74).unwrap();
-        a.marker_hz = Some(a.view.unwrap().column_centre(col - 1, 74));
+        a.markers.at = Some(a.view.unwrap().column_centre(col - 1, 74));
         a.apply(Intent::MarkerRight(1));
-        assert_eq!(a.marker_hz, Some(tone));
+        assert_eq!(a.markers.at, Some(tone));
         let (f, level) = a.reading(tone).unwrap();
         assert_eq!(f, tone);
         let cur = a.traces.current().unwrap();
@@ -700,13 +775,13 @@ pub(crate) mod tests {
     #[test]
     fn zoom_centres_on_the_marker_and_full_span_returns() {
         let mut a = app();
-        a.marker_hz = Some(100.2e6);
-        let e0 = a.waterfall_epoch;
+        a.markers.at = Some(100.2e6);
+        let e0 = a.frame.epoch;
         a.apply(Intent::ZoomIn);
         let v = a.view.unwrap();
         assert!((v.width_hz() - 0.512e6).abs() < 1e-3);
         assert!(v.lo_hz < 100.2e6 && v.hi_hz > 100.2e6);
-        assert!(a.waterfall_epoch > e0, "zoom redraws the waterfall");
+        assert!(a.frame.epoch > e0, "zoom redraws the waterfall");
         a.apply(Intent::FullSpan);
         assert_eq!(a.view, a.span());
     }
@@ -736,25 +811,25 @@ pub(crate) mod tests {
             a.push_row(row(100, 1e6));
         }
         a.measure();
-        assert_eq!(a.signals.len(), 1);
-        assert!((a.signals[0].freq_hz - 100.1e6).abs() < 1.0);
+        assert_eq!(a.table.signals.len(), 1);
+        assert!((a.table.signals[0].freq_hz - 100.1e6).abs() < 1.0);
         let cur = a.traces.current().unwrap();
         // The floor is flat: 1.0 per bin before scaling, i.e. cur.psd away from the tone.
         let floor = db(cur.psd[0] * cur.rbw_hz);
-        assert!((a.floor_dbfs.unwrap() - floor).abs() < 0.01);
+        assert!((a.measured.floor_dbfs.unwrap() - floor).abs() < 0.01);
         let l = a.levels;
         assert!(l.bottom_dbfs() <= floor - 10.0 && l.bottom_dbfs() > floor - 15.0);
         assert!(l.top_dbfs >= floor + 60.0 + 5.0, "top {} floor {floor}", l.top_dbfs);
         // Small changes do not move the scale (nor redraw the waterfall), repeatedly.
-        let (before, epoch) = (a.levels, a.waterfall_epoch);
+        let (before, epoch) = (a.levels, a.frame.epoch);
         for _ in 0..3 {
             a.auto_scale(floor + 2.0, floor + 61.0);
             a.measure();
         }
-        assert_eq!((a.levels, a.waterfall_epoch), (before, epoch));
+        assert_eq!((a.levels, a.frame.epoch), (before, epoch));
         // A signal that needs more room moves the top.
         a.auto_scale(floor, floor + 75.0);
-        assert!(a.levels.top_dbfs >= floor + 80.0 && a.waterfall_epoch == epoch + 1);
+        assert!(a.levels.top_dbfs >= floor + 80.0 && a.frame.epoch == epoch + 1);
     }
 
     #[test]
@@ -780,7 +855,7 @@ pub(crate) mod tests {
         a.push_row(row(5, 1e6));
         assert_eq!(a.history.total(), total + 1, "nothing is lost while frozen");
         assert_eq!(a.traces.current().unwrap().end_sample, end, "the traces hold still");
-        assert_eq!(a.cursor, Some(total - 1));
+        assert_eq!(a.cursor.index, Some(total - 1));
         assert_eq!(a.waterfall_plot().unwrap().end, total, "the waterfall holds still");
         a.apply(Intent::Freeze);
         a.push_row(row(5, 1e6));
@@ -797,14 +872,14 @@ pub(crate) mod tests {
         for i in 0..40 {
             a.push_row(row(if i < 20 { 100 } else { 300 }, 1e6));
         }
-        let has = |a: &App, f: f64| a.signals.iter().any(|s| (s.freq_hz - f).abs() < 1.0);
+        let has = |a: &App, f: f64| a.table.signals.iter().any(|s| (s.freq_hz - f).abs() < 1.0);
         a.measure();
         assert!(has(&a, 100.3e6));
         a.apply(Intent::TimeBack(10));
         assert_eq!(a.mode, Mode::Frozen);
-        assert_eq!(a.cursor, Some(19));
+        assert_eq!(a.cursor.index, Some(19));
         // The cursor's row alone: the old tone only.
-        assert!(has(&a, 100.1e6) && !has(&a, 100.3e6), "{:?}", a.signals);
+        assert!(has(&a, 100.1e6) && !has(&a, 100.3e6), "{:?}", a.table.signals);
         assert_eq!(a.waterfall_plot().unwrap().shown_rows(), 20);
         // The current trace is the cursor's row: its peak is at the old tone.
         let cols = a.trace_columns(1024).unwrap();
@@ -812,14 +887,14 @@ pub(crate) mod tests {
         assert_eq!(peak, 612);
         // Far back stops at the oldest row kept; forward and End come back.
         a.apply(Intent::TimeBack(100));
-        assert_eq!(a.cursor, Some(0));
-        assert!(a.notice.is_none(), "a move that moves says nothing");
+        assert_eq!(a.cursor.index, Some(0));
+        assert!(a.alerts.notice.is_none(), "a move that moves says nothing");
         a.apply(Intent::TimeBack(1));
-        assert!(a.notice.as_ref().unwrap().0.contains("oldest row"));
+        assert!(a.alerts.notice.as_ref().unwrap().0.contains("oldest row"));
         a.apply(Intent::TimeForward(1));
-        assert_eq!(a.cursor, Some(2));
+        assert_eq!(a.cursor.index, Some(2));
         a.apply(Intent::TimeLive);
-        assert_eq!((a.mode, a.cursor), (Mode::Live, None));
+        assert_eq!((a.mode, a.cursor.index), (Mode::Live, None));
         a.measure();
         assert!(has(&a, 100.3e6));
     }
@@ -840,9 +915,9 @@ pub(crate) mod tests {
             a.push_row(spec.clone());
         }
         a.measure();
-        let f: Vec<f64> = a.signals.iter().map(|s| (s.freq_hz / 1e3).round()).collect();
+        let f: Vec<f64> = a.table.signals.iter().map(|s| (s.freq_hz / 1e3).round()).collect();
         assert_eq!(f, vec![100_100.0, 100_200.0, 100_300.0], "by frequency");
-        let mhz = |a: &App| (a.marker_hz.unwrap() / 1e3).round();
+        let mhz = |a: &App| (a.markers.at.unwrap() / 1e3).round();
         a.apply(Intent::MarkerToNext);
         assert_eq!(mhz(&a), 100_100.0);
         a.apply(Intent::MarkerToNext);
@@ -857,7 +932,7 @@ pub(crate) mod tests {
         a.apply(Intent::MarkerToStrongest);
         assert_eq!(mhz(&a), 100_200.0);
         a.apply(Intent::SortNext);
-        let f: Vec<f64> = a.signals.iter().map(|s| (s.freq_hz / 1e3).round()).collect();
+        let f: Vec<f64> = a.table.signals.iter().map(|s| (s.freq_hz / 1e3).round()).collect();
         assert_eq!(f, vec![100_200.0, 100_300.0, 100_100.0], "by power");
         a.apply(Intent::MarkerToNext);
         assert_eq!(mhz(&a), 100_300.0);
@@ -867,19 +942,19 @@ pub(crate) mod tests {
     fn keys_at_their_limits_say_so() {
         let mut a = app();
         a.apply(Intent::TogglePlan);
-        assert!(a.notice.as_ref().unwrap().0.contains("no channel plan"));
-        a.notice = None;
+        assert!(a.alerts.notice.as_ref().unwrap().0.contains("no channel plan"));
+        a.alerts.notice = None;
         a.apply(Intent::ZoomOut);
-        assert!(a.notice.as_ref().unwrap().0.contains("whole span"));
+        assert!(a.alerts.notice.as_ref().unwrap().0.contains("whole span"));
         a.settings.fft_size = FFT_KEYS_MAX;
         a.apply(Intent::FftLarger);
-        assert!(a.notice.as_ref().unwrap().0.contains("65536 is the largest"));
+        assert!(a.alerts.notice.as_ref().unwrap().0.contains("65536 is the largest"));
         a.settings.row_rate = ROW_RATES[0];
         a.apply(Intent::RowsSlower);
-        assert!(a.notice.as_ref().unwrap().0.contains("slowest"), "{:?}", a.notice);
+        assert!(a.alerts.notice.as_ref().unwrap().0.contains("slowest"), "{:?}", a.alerts.notice);
         // Notices go after a while.
         a.tick(Instant::now() + NOTICE_FOR);
-        assert!(a.notice.is_none());
+        assert!(a.alerts.notice.is_none());
     }
 
     #[test]
@@ -889,21 +964,75 @@ pub(crate) mod tests {
             a.push_row(row(100, 1e6));
         }
         a.measure();
-        a.marker_hz = Some(100.05e6);
+        a.markers.at = Some(100.05e6);
         a.apply(Intent::SetRefMarker);
-        a.marker_hz = Some(100.15e6);
+        a.markers.at = Some(100.15e6);
         a.refresh_readings();
-        let b = a.band.unwrap();
+        let b = a.markers.band.unwrap();
         assert_eq!((b.low_hz, b.high_hz), (100.05e6, 100.15e6));
-        // The same function `measure --band` uses, on the same trace.
+        // The same function `measure --band` uses, on the same trace, less the noise in the
+        // band (floor density × width) as the signal table takes it off.
         let avg = a.traces.average_spectrum().unwrap();
-        let want = db(crate::measure::band_power(&avg, 100.05e6, 100.15e6));
-        assert!((b.power_dbfs - want).abs() < 1e-9);
-        // The tone is one 1 kHz bin holding 1e6 of the band's 1e6 + 99 (ITU-R SM.328: 0.5 %
-        // outside each edge): both edges fall inside that bin, 0.5 % of the band's power in
-        // from each side of it, so the OBW is just under one bin wide.
+        let floor = a.measured.floor_density.unwrap();
+        let total = crate::measure::band_power(&avg, 100.05e6, 100.15e6);
+        let want = db(total - floor * 0.1e6);
+        assert!((b.power_dbfs.unwrap() - want).abs() < 1e-9);
+        // With the floor taken off bin by bin, the band holds the tone's bin alone (ITU-R
+        // SM.328: 0.5 % outside each edge): both edges fall inside that bin, 0.5 % of its power
+        // in from each side, so the OBW is just under one bin wide.
         let obw = b.obw.unwrap().width_hz();
         assert!(obw > 980.0 && obw < 1000.0, "{obw}");
+        // A band of noise alone reads as such, not as a level.
+        a.markers.reference = Some(100.3e6);
+        a.markers.at = Some(100.4e6);
+        a.refresh_readings();
+        assert_eq!(a.markers.band.unwrap().power_dbfs, None);
+    }
+
+    #[test]
+    fn the_reference_level_has_limits_and_fft_keys_double_exactly() {
+        let mut a = app();
+        for _ in 0..60 {
+            a.apply(Intent::RefUp);
+        }
+        assert_eq!(a.levels.top_dbfs, REF_MAX_DBFS);
+        assert!(a.alerts.notice.as_ref().unwrap().0.contains("is the highest"));
+        for _ in 0..100 {
+            a.apply(Intent::RefDown);
+        }
+        assert_eq!(a.levels.top_dbfs, REF_MIN_DBFS);
+        // An FFT size that is no power of two doubles and halves exactly.
+        a.settings.fft_size = 3000;
+        a.apply(Intent::FftLarger);
+        assert_eq!(a.take_pending_settings().unwrap().fft_size, 6000);
+        a.apply(Intent::FftSmaller);
+        a.apply(Intent::FftSmaller);
+        assert_eq!(a.take_pending_settings().unwrap().fft_size, 1500);
+    }
+
+    #[test]
+    fn r_in_the_channel_panel_says_why_and_n_walks_the_channels() {
+        let t = Instant::now();
+        let channels: Vec<ChannelMark> = (0..7)
+            .map(|i| ChannelMark::new(&format!("ch{i}"), 100e6 + i as f64 * 50e3, 12.5e3))
+            .collect();
+        let mut a = App::new(summary(), settings(), Depth::Mono, None, channels, t);
+        a.push_row(row(100, 1e6));
+        // The table area of an 80×24 screen with a plan row: three rows under the header.
+        let screen = Screen::split(ratatui::layout::Rect::new(0, 0, 80, 24), true);
+        a.set_screen(screen, false);
+        a.apply(Intent::ToggleChannels);
+        a.apply(Intent::SortNext);
+        assert!(a.alerts.notice.as_ref().unwrap().0.contains("channels keep the plan's order"));
+        // n walks every channel, and the table scrolls so the marked one is on show.
+        for i in 0..7 {
+            a.apply(Intent::MarkerToNext);
+            assert_eq!(a.markers.at, Some(100e6 + i as f64 * 50e3));
+            let first = a.table.first_row;
+            assert!((first..first + 3).contains(&i), "row {i} hidden from {first}");
+        }
+        a.apply(Intent::MarkerToNext);
+        assert_eq!(a.table.first_row, 0, "wrapped to the first");
     }
 
     #[test]
