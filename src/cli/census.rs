@@ -39,6 +39,10 @@ pub struct CensusArgs {
     /// Stop after this many seconds of input.
     #[arg(long, value_name = "SECONDS", value_parser = parse_seconds)]
     pub seconds: Option<f64>,
+    /// Live input: make the source (and --record/--capture) wait when processing or the disk
+    /// falls behind, instead of dropping blocks.
+    #[arg(long)]
+    pub no_drop: bool,
     #[command(flatten)]
     pub record: RecordArgs,
     #[command(flatten)]
@@ -56,6 +60,7 @@ pub struct CensusConfig {
     pub json: bool,
     pub plan_out: Option<String>,
     pub seconds: Option<f64>,
+    pub no_drop: bool,
     /// `--record`, `--annotate`, `--capture`.
     pub sigmf: SigmfOut,
 }
@@ -75,6 +80,7 @@ impl CensusArgs {
             json: self.json,
             plan_out: self.plan_out,
             seconds: self.seconds,
+            no_drop: self.no_drop,
             sigmf,
         })
     }

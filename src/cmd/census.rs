@@ -58,9 +58,10 @@ pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
     spec.check_work()?;
 
     let signals = StopSignals::install(false, Escalation::SecondSignalExits)?;
-    let (opts, total) = unattended_options(&info, cfg.seconds, false);
+    let (opts, total) = unattended_options(&info, cfg.seconds, cfg.no_drop);
     // The census writes its own annotations (labelled with the emitters' names).
-    let sigmf_request = SigmfRequest { annotate: None, ..SigmfRequest::of(&cfg.sigmf, false) };
+    let sigmf_request =
+        SigmfRequest { annotate: None, ..SigmfRequest::of(&cfg.sigmf, cfg.no_drop) };
     let mut sigmf_out = SigmfOutputs::new(
         sigmf_request,
         &cfg.input,
