@@ -1,6 +1,6 @@
 //! `census` flags and their validation.
 
-use super::common::{parse_seconds, DetectArgs, DspArgs, InputArgs};
+use super::common::{parse_progress, parse_seconds, DetectArgs, DspArgs, InputArgs};
 use super::sigmf_out::{EmissionOutArgs, RecordArgs, SigmfOut};
 use crate::dsp::DspConfig;
 use crate::measure::occupancy::timing::OBW_PERCENT;
@@ -39,6 +39,10 @@ pub struct CensusArgs {
     /// Stop after this many seconds of input.
     #[arg(long, value_name = "SECONDS", value_parser = parse_seconds)]
     pub seconds: Option<f64>,
+    /// A status line on stderr every PERIOD (e.g. 1m; off for none): input read, intervals and
+    /// occupancy, drops. Default: every minute for live input when stderr is a terminal.
+    #[arg(long, value_name = "PERIOD", value_parser = parse_progress)]
+    pub progress: Option<f64>,
     #[command(flatten)]
     pub record: RecordArgs,
     #[command(flatten)]
@@ -58,6 +62,8 @@ pub struct CensusConfig {
     pub seconds: Option<f64>,
     /// `--record`, `--annotate`, `--capture`.
     pub sigmf: SigmfOut,
+    /// `--progress`: seconds between status lines, 0 for none, `None` for the default.
+    pub progress: Option<f64>,
 }
 
 impl CensusArgs {
@@ -76,6 +82,7 @@ impl CensusArgs {
             plan_out: self.plan_out,
             seconds: self.seconds,
             sigmf,
+            progress: self.progress,
         })
     }
 }

@@ -17,7 +17,7 @@ use crate::measure::occupancy::DEFAULT_INTERVAL_S;
 use crate::messages::{note, notes};
 use crate::output::census::{capture_list, to_json_value, to_plan, to_table, CensusConsumer};
 use crate::output::log::occupancy::SideRecords;
-use crate::output::progress::Progress;
+use crate::output::progress::{Progress, StatusLine};
 use crate::output::sigmf::capture::Triggers;
 use crate::output::sigmf::write as sigmf_write;
 use crate::output::sink;
@@ -85,11 +85,13 @@ pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
         census = census.with_triggers(triggers.clone());
         sigmf_out.captures = Some(captures.with_triggers(triggers));
     }
+    let mut status = StatusLine::new(cfg.progress, info.live, Vec::new(), info.sample_rate_hz);
+    let total = total.filter(|_| !status.enabled());
     let mut progress = Progress::for_file(total, info.sample_rate_hz);
     let input = Input::start(src, opts);
     // The recording first (annotations of a recording read its finished metadata); the
     // captures after the census that triggers them.
-    let mut consumers: Vec<&mut dyn Consumer> = vec![&mut progress];
+    let mut consumers: Vec<&mut dyn Consumer> = vec![&mut progress, &mut status];
     if let Some(r) = sigmf_out.recorder.as_mut() {
         consumers.push(r);
     }
