@@ -64,7 +64,7 @@ fn coverage_text(out: &mut String, summary: &LogSummary, c: &SiteCoverage) {
             format_duration(b - a),
             zone.format(a),
             zone.format(b),
-            opt(c.pct(), 1),
+            opt(c.pct(), 2),
         ),
         None => format!("{} (the log has no clock times)", format_duration(c.measured_s())),
     };
