@@ -557,3 +557,37 @@ fn rotated_logs_lose_and_repeat_nothing() {
         assert_eq!(joined, whole, "{policy}");
     }
 }
+
+/// `--progress 1s` prints a status line every second even when stderr is a file, also while no
+/// input arrives: a silent run shows it is alive, and that its input stalled.
+#[test]
+fn progress_lines_show_a_silent_run_is_alive() {
+    let dir = Scratch::new("progress");
+    let err_path = dir.0.join("stderr.txt");
+    let mut child = Command::new(BIN)
+        .args(["log", "-", "--format", "cf32_le", "--rate", "250k", "--center", "145M"])
+        .args(["--fft", "512", "--channel", "beta=144.96M:12.5k", "--interval", "1s"])
+        .args(["--progress", "1s", "-o", dir.0.join("log.jsonl").to_str().unwrap()])
+        .stdin(Stdio::piped())
+        .stdout(Stdio::null())
+        .stderr(Stdio::from(std::fs::File::create(&err_path).unwrap()))
+        .spawn()
+        .unwrap();
+    let mut stdin = child.stdin.take().unwrap();
+    let x = samples(s(0.5) as usize, &[Keyed::steady(-40e3, -30.0)], 7);
+    let mut bytes = Vec::new();
+    SampleFormat::Cf32Le.encode(&x, &mut bytes);
+    stdin.write_all(&bytes).unwrap();
+    stdin.flush().unwrap();
+    std::thread::sleep(Duration::from_millis(2600));
+    let kill = Command::new("kill").args(["-INT", &child.id().to_string()]).status().unwrap();
+    assert!(kill.success());
+    assert!(child.wait().unwrap().success());
+    drop(stdin);
+    let err = std::fs::read_to_string(&err_path).unwrap();
+    let lines: Vec<&str> = err.lines().filter(|l| l.contains(" running ")).collect();
+    assert!(lines.len() >= 2, "{err}");
+    assert!(lines.iter().all(|l| l.contains("dropped 0.0 s")), "{err}");
+    let last = lines.last().unwrap();
+    assert!(last.contains("0.5 s of input, none new since the last line"), "{err}");
+}

@@ -1,6 +1,6 @@
 //! `census` flags and their validation.
 
-use super::common::{parse_seconds, DetectArgs, DspArgs, InputArgs};
+use super::common::{parse_progress, parse_seconds, DetectArgs, DspArgs, InputArgs};
 use super::sigmf_out::{EmissionOutArgs, RecordArgs, SigmfOut};
 use crate::dsp::DspConfig;
 use crate::measure::occupancy::timing::OBW_PERCENT;
@@ -43,6 +43,10 @@ pub struct CensusArgs {
     /// falls behind, instead of dropping blocks.
     #[arg(long)]
     pub no_drop: bool,
+    /// A status line on stderr every PERIOD (e.g. 1m; off for none): input read, intervals and
+    /// occupancy, drops. Default: every minute for live input when stderr is a terminal.
+    #[arg(long, value_name = "PERIOD", value_parser = parse_progress)]
+    pub progress: Option<f64>,
     #[command(flatten)]
     pub record: RecordArgs,
     #[command(flatten)]
@@ -63,6 +67,8 @@ pub struct CensusConfig {
     pub no_drop: bool,
     /// `--record`, `--annotate`, `--capture`.
     pub sigmf: SigmfOut,
+    /// `--progress`: seconds between status lines, 0 for none, `None` for the default.
+    pub progress: Option<f64>,
 }
 
 impl CensusArgs {
@@ -82,6 +88,7 @@ impl CensusArgs {
             seconds: self.seconds,
             no_drop: self.no_drop,
             sigmf,
+            progress: self.progress,
         })
     }
 }

@@ -252,6 +252,22 @@ pub fn parse_time(text: &str) -> Result<OffsetDateTime, String> {
     })
 }
 
+/// `--progress PERIOD` (`log`, `census`): a status line every PERIOD (`1m`, `30s`), or `off`.
+/// Returns seconds, 0 for off.
+pub fn parse_progress(text: &str) -> Result<f64, String> {
+    if text.trim().eq_ignore_ascii_case("off") {
+        return Ok(0.0);
+    }
+    let d = parse_duration(text)?;
+    if d < std::time::Duration::from_secs(1) {
+        return Err(format!(
+            "--progress '{}': give a period of a second or more (e.g. 1m), or off",
+            sanitize(text)
+        ));
+    }
+    Ok(d.as_secs_f64())
+}
+
 /// `--seconds`: how much input to take, a positive number of seconds, at most
 /// [`MAX_SECONDS`] (so that seconds × any accepted rate is a count of samples a `u64` holds).
 pub fn parse_seconds(text: &str) -> Result<f64, String> {

@@ -1,6 +1,8 @@
 //! `log` flags and their validation.
 
-use super::common::{parse_seconds, ChannelArgs, ChannelConfig, DspArgs, InputArgs};
+use super::common::{
+    parse_progress, parse_seconds, ChannelArgs, ChannelConfig, DspArgs, InputArgs,
+};
 use super::net::PublishArgs;
 use super::sigmf_out::{EmissionOutArgs, RecordArgs, SigmfOut};
 use crate::dsp::DspConfig;
@@ -49,6 +51,10 @@ pub struct LogArgs {
     /// Stop after this many seconds of input.
     #[arg(long, value_name = "SECONDS", value_parser = parse_seconds)]
     pub seconds: Option<f64>,
+    /// A status line on stderr every PERIOD (e.g. 1m; off for none): input read, intervals and
+    /// occupancy, drops. Default: every minute for live input when stderr is a terminal.
+    #[arg(long, value_name = "PERIOD", value_parser = parse_progress)]
+    pub progress: Option<f64>,
     #[command(flatten)]
     pub channels: ChannelArgs,
     #[command(flatten)]
@@ -80,6 +86,8 @@ pub struct LogConfig {
     pub publish: Option<PublishConfig>,
     /// `--record`, `--annotate`, `--capture`.
     pub sigmf: SigmfOut,
+    /// `--progress`: seconds between status lines, 0 for none, `None` for the default.
+    pub progress: Option<f64>,
 }
 
 impl LogArgs {
@@ -111,6 +119,7 @@ impl LogArgs {
             seconds: self.seconds,
             rotate: self.rotate,
             sigmf,
+            progress: self.progress,
         })
     }
 }

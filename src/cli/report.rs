@@ -2,15 +2,31 @@
 
 use super::snapshot::parse_colour_map;
 use crate::output::picture::colour::MapKind;
+use crate::output::summary::site::SiteRules;
+use crate::output::summary::zone::{parse_instant, parse_zone, Zone};
+use crate::output::summary::Settings;
 use anyhow::{bail, Result};
 use clap::Args;
 
 #[derive(Args, Debug)]
 pub struct ReportArgs {
-    /// Occupancy logs written by `bandwarden log` (JSON Lines): rotated, appended and several
-    /// sites' files alike.
-    #[arg(value_name = "LOG.jsonl", required = true)]
+    /// Occupancy logs written by `bandwarden log` (JSON Lines or --csv): rotated, appended,
+    /// daily and several sites' files alike.
+    #[arg(value_name = "LOG", required = true)]
     pub logs: Vec<String>,
+    /// Only this site (repeatable); NAME=SITE,SITE reports those sites merged as one, NAME.
+    #[arg(long, value_name = "NAME[=SITE,…]")]
+    pub site: Vec<String>,
+    /// Only what starts at or after this time: 2026-12-03, 2026-12-03T22:00 (in --tz) or RFC 3339.
+    #[arg(long, value_name = "TIME")]
+    pub from: Option<String>,
+    /// Only what starts before this time (same forms as --from).
+    #[arg(long, value_name = "TIME")]
+    pub to: Option<String>,
+    /// Zone of the times, hours and heat map: UTC (default) or a fixed offset such as +01:00
+    /// (no daylight-saving rules).
+    #[arg(long, value_name = "ZONE", default_value = "UTC")]
+    pub tz: String,
     /// CSV (one row per channel, the hours as columns) instead of the table.
     #[arg(long, conflicts_with = "json")]
     pub csv: bool,
@@ -44,6 +60,8 @@ pub struct ReportConfig {
     pub png: Option<String>,
     pub map: MapKind,
     pub title: Option<String>,
+    /// Zone, window and sites.
+    pub settings: Settings,
 }
 
 impl ReportArgs {
@@ -59,6 +77,15 @@ impl ReportArgs {
                 );
             }
         }
+        let zone: Zone = parse_zone(&self.tz)?;
+        let from = self.from.as_deref().map(|t| parse_instant(t, zone, "--from")).transpose()?;
+        let to = self.to.as_deref().map(|t| parse_instant(t, zone, "--to")).transpose()?;
+        if let (Some(f), Some(t)) = (from, to) {
+            if t <= f {
+                bail!("--to must come after --from");
+            }
+        }
+        let settings = Settings { zone, from, to, sites: SiteRules::parse(&self.site)? };
         let format = if self.csv {
             ReportFormat::Csv
         } else if self.json {
@@ -72,6 +99,7 @@ impl ReportArgs {
             png: self.png,
             map: self.colour_map,
             title: self.title,
+            settings,
         })
     }
 }
@@ -102,5 +130,29 @@ mod tests {
         assert!(parse(&["a.jsonl", "--csv", "--json"]).is_err());
         assert!(parse(&["a.jsonl", "--png", "h.svg"]).is_err());
         assert!(parse(&["a.jsonl", "--png", "a.jsonl"]).is_err());
+    }
+
+    #[test]
+    fn window_zone_and_sites() {
+        let c = parse(&[
+            "a.jsonl",
+            "--tz",
+            "+01:00",
+            "--from",
+            "2026-12-03T23:00",
+            "--to",
+            "2026-12-04T07:00",
+            "--site",
+            "ridge=ridge,mast",
+        ])
+        .unwrap();
+        assert_eq!(c.settings.zone.offset_s, 3600);
+        // 2026-12-03T22:00Z is 20 790 days and 22 h after the epoch.
+        assert_eq!(c.settings.from, Some(20_790.0 * 86_400.0 + 22.0 * 3600.0));
+        assert_eq!(c.settings.to, Some(20_791.0 * 86_400.0 + 6.0 * 3600.0));
+        assert_eq!(c.settings.sites.map("mast").as_deref(), Some("ridge"));
+        assert!(parse(&["a.jsonl", "--from", "2026-12-04", "--to", "2026-12-03"]).is_err());
+        assert!(parse(&["a.jsonl", "--tz", "Mars/Olympus"]).is_err());
+        assert!(parse(&["a.jsonl", "--from", "yesterday"]).is_err());
     }
 }

@@ -15,7 +15,7 @@ use crate::measure::census::{Census, CensusSettings};
 use crate::measure::occupancy::DEFAULT_INTERVAL_S;
 use crate::messages::note;
 use crate::output::census::{capture_list, to_json_value, to_plan, to_table, CensusConsumer};
-use crate::output::progress::Progress;
+use crate::output::progress::{Progress, StatusLine};
 use crate::output::sigmf::outputs::{annotated_note, SigmfOutputs, SigmfRequest};
 use crate::output::sigmf::write as sigmf_write;
 use crate::output::sink;
@@ -78,8 +78,10 @@ pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
     if sigmf_out.captures.is_some() {
         census = census.with_triggers();
     }
+    let mut status = StatusLine::new(cfg.progress, info.live, Vec::new(), info.sample_rate_hz);
+    let total = total.filter(|_| !status.enabled());
     let mut progress = Progress::for_file(total, info.sample_rate_hz);
-    let mut consumers: Vec<&mut dyn Consumer> = vec![&mut progress];
+    let mut consumers: Vec<&mut dyn Consumer> = vec![&mut progress, &mut status];
     if let Some(r) = sigmf_out.recorder.as_mut() {
         consumers.push(r);
     }

@@ -17,7 +17,7 @@ use crate::net::publish::Publisher;
 use crate::output::log::occupancy::OccupancyLog;
 use crate::output::log::rotation::{Opener, Rotation};
 use crate::output::log::LogWriter;
-use crate::output::progress::Progress;
+use crate::output::progress::{Progress, StatusLine};
 use crate::output::sigmf::outputs::{SigmfOutputs, SigmfRequest};
 use crate::output::sink;
 use crate::pipeline::input::unattended_options;
@@ -78,8 +78,11 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
     let request = SigmfRequest::of(&cfg.sigmf, cfg.no_drop);
     let mut sigmf_out =
         SigmfOutputs::new(request, &cfg.input, &info, plan, &inputs, opts.block_len)?;
+    let names = plan.channels.iter().map(|c| c.name.clone()).collect();
+    let mut status = StatusLine::new(cfg.progress, info.live, names, info.sample_rate_hz);
+    let total = total.filter(|_| !status.enabled());
     let mut progress = Progress::for_file(total, info.sample_rate_hz);
-    let mut consumers: Vec<&mut dyn Consumer> = vec![&mut progress];
+    let mut consumers: Vec<&mut dyn Consumer> = vec![&mut progress, &mut status];
     consumers.extend(sigmf_out.consumers());
     consumers.push(&mut log);
     let outcome = run_to_end(src, opts, Run::new(spec, consumers), Some(&signals));

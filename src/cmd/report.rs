@@ -4,28 +4,43 @@
 use crate::cli::report::ReportFormat;
 use crate::cli::ReportConfig;
 use crate::messages::{note, notes, sanitize};
-use crate::output::picture::heatmap::{draw_heatmap, grid, Columns};
+use crate::output::picture::heatmap::{draw_heatmap, heatmap_title};
 use crate::output::sink;
-use crate::output::summary::table::{to_csv, to_json, to_table};
-use crate::output::summary::{LogSummary, Seen};
+use crate::output::summary::export::{to_csv, to_json};
+use crate::output::summary::table::to_table;
+use crate::output::summary::LogSummary;
 use anyhow::{bail, Context, Result};
 use std::io::{BufReader, Write};
 use std::process::ExitCode;
 
 pub fn run(cfg: ReportConfig) -> Result<ExitCode> {
-    let mut summary = LogSummary::default();
-    let mut seen = Seen::default();
+    let mut summary = LogSummary::new(cfg.settings.clone());
     for path in &cfg.logs {
         let shown = sanitize(path);
         let file = std::fs::File::open(path)
             .with_context(|| format!("cannot open the log '{shown}'; check the path"))?;
         summary
-            .read(path, BufReader::new(file), &mut seen)
+            .read(path, BufReader::new(file))
             .with_context(|| format!("cannot read the log '{shown}'"))?;
+    }
+    let missing = cfg.settings.sites.missing(&summary.sites_seen);
+    if !missing.is_empty() {
+        bail!(
+            "--site: no log holds the site(s) {}; the logs hold: {}",
+            missing.join(", "),
+            summary.sites_seen.join(", ")
+        );
+    }
+    if summary.unplaced > 0 {
+        summary.notes.push(format!(
+            "{} records without clock times were left out: --from/--to place only records with times",
+            summary.unplaced
+        ));
     }
     if summary.channels.is_empty() {
         bail!(
-            "no interval or emission records in {}; report reads the JSON Lines written by `bandwarden log` (not its --csv form)",
+            "no interval or emission records{} in {}; report reads the logs written by `bandwarden log` (JSON Lines or --csv)",
+            if cfg.settings.from.is_some() || cfg.settings.to.is_some() { " within --from/--to" } else { "" },
             cfg.logs.iter().map(|l| format!("'{}'", sanitize(l))).collect::<Vec<_>>().join(", ")
         );
     }
@@ -41,17 +56,7 @@ pub fn run(cfg: ReportConfig) -> Result<ExitCode> {
     out.write_all(text.as_bytes())?;
     out.flush()?;
     if let Some(png) = &cfg.png {
-        let what = match grid(&summary).columns {
-            Columns::HourOfDay => "by UTC hour of day",
-            Columns::HourFromStart => "by hour from the start of the run",
-            Columns::Day => "by UTC day",
-        };
-        let sites = if summary.sites.len() > 1 {
-            format!(", sites {}", summary.sites.join(", "))
-        } else {
-            summary.sites.first().map_or(String::new(), |s| format!(", {s}"))
-        };
-        let title = cfg.title.clone().unwrap_or_else(|| format!("Channel occupancy {what}{sites}"));
+        let title = cfg.title.clone().unwrap_or_else(|| heatmap_title(&summary));
         let bytes = draw_heatmap(&summary, cfg.map, &title)?;
         let mut f = sink::open(png, false, "heat map")?.out;
         f.write_all(&bytes)?;

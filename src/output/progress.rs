@@ -1,9 +1,10 @@
-//! A one-line progress display on stderr for long file runs: position, speed and time left.
-//!
-//! Shown only when stderr is a terminal, so logs of unattended runs are not filled with carriage
-//! returns. The text is built by a pure function and tested; drawing is a thin shell around it.
+//! Progress on stderr. For long file runs, a bar redrawn in place (position, speed, time left),
+//! shown only when stderr is a terminal, so logs of unattended runs are not filled with carriage
+//! returns. For live runs, or when asked (`--progress PERIOD`), [`StatusLine`]: a whole line
+//! every period. The texts are built by pure functions and tested; drawing is a thin shell.
 
-use crate::pipeline::{Consumer, RunEnd, RunInfo};
+use crate::measure::occupancy::Event;
+use crate::pipeline::{Consumer, Flow, GapCause, RunEnd, RunInfo};
 use crate::source::reader::Block;
 use std::io::{self, IsTerminal, Write};
 use std::time::{Duration, Instant};
@@ -106,9 +107,188 @@ fn format_clock(seconds: f64) -> String {
     }
 }
 
+/// Status lines every this long by default, for live input on a terminal.
+pub const STATUS_DEFAULT_S: f64 = 60.0;
+
+/// `log --progress` / `census --progress`: one whole line on stderr every period, saying how much
+/// input was read, how many occupancy intervals were written and what they held, and what was
+/// dropped, so a quiet channel is not mistaken for a dead run (and a stalled input shows as
+/// such). Unlike the bar, these are whole lines, fit for a service's journal.
+pub struct StatusLine {
+    period: Option<Duration>,
+    next: Instant,
+    started: Instant,
+    sample_rate_hz: f64,
+    read: u64,
+    read_at_last: u64,
+    intervals: u64,
+    /// Per channel: name, and (samples, occupied) since the last line.
+    channels: Vec<(String, u64, f64)>,
+    dropped: u64,
+}
+
+impl StatusLine {
+    /// `every_s`: `Some(0)` never, `Some(p)` every `p` seconds whatever stderr is, `None` every
+    /// [`STATUS_DEFAULT_S`] when the input is live and stderr a terminal. `channels`: the plan's
+    /// names, in the tracker's order (none for `census`).
+    pub fn new(
+        every_s: Option<f64>,
+        live: bool,
+        channels: Vec<String>,
+        sample_rate_hz: f64,
+    ) -> StatusLine {
+        let every = match every_s {
+            Some(p) if p > 0.0 => Some(p),
+            Some(_) => None,
+            None => (live && std::io::stderr().is_terminal()).then_some(STATUS_DEFAULT_S),
+        };
+        let period = every.map(Duration::from_secs_f64);
+        let now = Instant::now();
+        StatusLine {
+            period,
+            next: now + period.unwrap_or_default(),
+            started: now,
+            sample_rate_hz,
+            read: 0,
+            read_at_last: 0,
+            intervals: 0,
+            channels: channels.into_iter().map(|n| (n, 0, 0.0)).collect(),
+            dropped: 0,
+        }
+    }
+
+    /// Whether lines are printed (the file bar then stays off, so the two do not mix).
+    pub fn enabled(&self) -> bool {
+        self.period.is_some()
+    }
+
+    fn line(&mut self) -> String {
+        let busiest = self
+            .channels
+            .iter()
+            .filter(|c| c.1 > 0)
+            .map(|c| (c.0.as_str(), 100.0 * c.2 / c.1 as f64))
+            .max_by(|a, b| a.1.total_cmp(&b.1));
+        let text = status_line(&Status {
+            clock: time::OffsetDateTime::now_utc(),
+            running_s: self.started.elapsed().as_secs_f64(),
+            input_s: self.read as f64 / self.sample_rate_hz,
+            new_input: self.read > self.read_at_last,
+            intervals: self.intervals,
+            busiest,
+            channels: self.channels.len(),
+            dropped_s: self.dropped as f64 / self.sample_rate_hz,
+        });
+        self.read_at_last = self.read;
+        for c in &mut self.channels {
+            (c.1, c.2) = (0, 0.0);
+        }
+        text
+    }
+}
+
+impl Consumer for StatusLine {
+    fn block(&mut self, block: &Block) -> io::Result<()> {
+        self.read = self.read.max(block.start + block.samples.len() as u64);
+        Ok(())
+    }
+
+    fn event(&mut self, event: &Event, _run: &RunInfo) -> io::Result<()> {
+        if let Event::Interval(s) = event {
+            self.intervals += 1;
+            if let Some(c) = self.channels.get_mut(s.channel) {
+                c.1 += s.samples;
+                c.2 += s.occupied;
+            }
+        }
+        Ok(())
+    }
+
+    fn gap(&mut self, from: u64, to: u64, _cause: GapCause, _run: &RunInfo) -> io::Result<()> {
+        self.dropped += to.saturating_sub(from);
+        Ok(())
+    }
+
+    /// Asked at least every 100 ms, also while no input arrives: a stalled input still gets
+    /// its line.
+    fn poll(&mut self) -> Flow {
+        if let Some(p) = self.period {
+            if Instant::now() >= self.next {
+                self.next += p;
+                crate::messages::note(&self.line());
+            }
+        }
+        Flow::Continue
+    }
+}
+
+/// What one status line says.
+pub struct Status<'a> {
+    pub clock: time::OffsetDateTime,
+    pub running_s: f64,
+    pub input_s: f64,
+    /// Whether input arrived since the last line.
+    pub new_input: bool,
+    pub intervals: u64,
+    /// The channel with the highest occupancy in the intervals since the last line.
+    pub busiest: Option<(&'a str, f64)>,
+    pub channels: usize,
+    pub dropped_s: f64,
+}
+
+/// `12:00:00Z running 10 min 0 s: 600.0 s of input, 70 intervals (busiest since the last
+/// line: ops 64.8 % of 7 channels), dropped 0.0 s`.
+pub fn status_line(s: &Status) -> String {
+    let clock = format!("{:02}:{:02}:{:02}Z", s.clock.hour(), s.clock.minute(), s.clock.second());
+    let input = if s.new_input {
+        format!("{:.1} s of input", s.input_s)
+    } else {
+        format!("{:.1} s of input, none new since the last line", s.input_s)
+    };
+    let occupancy = match (s.channels, s.busiest) {
+        (0, _) => String::new(),
+        (n, Some((name, pct))) => {
+            format!(
+                ", {} intervals (busiest since the last line: {name} {pct:.1} % of {n} channels)",
+                s.intervals
+            )
+        }
+        (_, None) => format!(", {} intervals (none completed since the last line)", s.intervals),
+    };
+    format!(
+        "{clock} running {}: {input}{occupancy}, dropped {:.1} s",
+        format_clock(s.running_s),
+        s.dropped_s
+    )
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn a_status_line_says_input_intervals_occupancy_and_drops() {
+        let clock = time::macros::datetime!(2026-12-03 22:10:00 UTC);
+        let mut s = Status {
+            clock,
+            running_s: 600.0,
+            input_s: 600.0,
+            new_input: true,
+            intervals: 70,
+            busiest: Some(("ops", 64.81)),
+            channels: 7,
+            dropped_s: 0.0,
+        };
+        assert_eq!(
+            status_line(&s),
+            "22:10:00Z running 10:00: 600.0 s of input, 70 intervals (busiest since the last line: ops 64.8 % of 7 channels), dropped 0.0 s"
+        );
+        (s.new_input, s.busiest, s.channels) = (false, None, 0);
+        assert_eq!(
+            status_line(&s),
+            "22:10:00Z running 10:00: 600.0 s of input, none new since the last line, dropped 0.0 s"
+        );
+    }
 
     #[test]
     fn the_line_shows_position_rate_and_eta() {

@@ -1,14 +1,17 @@
 //! `report --png`: occupancy as a heat map, one row per channel (per site and channel when the
-//! logs come from several sites), one column per UTC hour of the day (or per day when the logs
-//! cover more than [`DAYS_FOR_DAY_COLUMNS`] days; or per hour from the start when they have no
-//! clock times). A cell's colour is its occupancy on the colour map from 0 to 100 %, its number
-//! the occupancy rounded to a whole percent; a cell where nothing was measured is grey and empty,
-//! so a hole never passes for a quiet channel.
+//! logs come from several sites), one column per hour of the day in the report's zone (`--tz`),
+//! in the order of [`LogSummary::hour_axis`] so a night reads left to right, or one per day when
+//! the logs cover more than [`DAYS_FOR_DAY_COLUMNS`] days, or per hour from the start when they
+//! have no clock times. A cell's colour is its occupancy on the colour map from 0 to 100 %, its
+//! number the occupancy rounded to a whole percent; a cell where nothing was measured is grey
+//! and empty, so a hole never passes for a quiet channel; a *thin* cell (measured for less than
+//! [`THIN_SHARE`] of its length, seconds of an hour) is hatched grey with its colour only in a
+//! band across its middle, so it does not read like a full hour.
 
 use crate::output::picture::canvas::{drawing, render_png, TickedAxis, FAMILY};
 use crate::output::picture::colour::MapKind;
 use crate::output::summary::table::ordered;
-use crate::output::summary::{LogSummary, Tally};
+use crate::output::summary::{is_thin, LogSummary, Tally, THIN_SHARE};
 use anyhow::Result;
 use plotters::coord::Shift;
 use plotters::prelude::*;
@@ -59,14 +62,37 @@ pub fn grid(summary: &LogSummary) -> Grid {
         })
         .collect();
     let keys = match columns {
-        Columns::HourOfDay => (0..24).collect(),
+        Columns::HourOfDay | Columns::HourFromStart => summary.hour_axis(),
         Columns::Day => days.into_iter().collect(),
-        Columns::HourFromStart => {
-            let last = rows.iter().flat_map(|r| r.1.keys().copied()).max().unwrap_or(0);
-            (0..=last).collect()
-        }
     };
     Grid { columns, keys, rows }
+}
+
+/// What the picture shows, for its title.
+pub fn heatmap_title(summary: &LogSummary) -> String {
+    let zone = summary.settings.zone.label();
+    let what = match grid(summary).columns {
+        Columns::HourOfDay => format!("by hour of day ({zone})"),
+        Columns::HourFromStart => "by hour from the start of the run".to_string(),
+        Columns::Day => format!("by day ({zone})"),
+    };
+    let sites = if summary.sites.len() > 1 {
+        format!(", sites {}", summary.sites.join(", "))
+    } else {
+        summary.sites.first().map_or(String::new(), |s| format!(", {s}"))
+    };
+    format!("Channel occupancy {what}{sites}")
+}
+
+impl Columns {
+    /// The length of one cell, seconds.
+    fn cell_s(self) -> f64 {
+        if self == Columns::Day {
+            86_400.0
+        } else {
+            3_600.0
+        }
+    }
 }
 
 /// Draws the heat map as PNG.
@@ -107,10 +133,13 @@ fn draw_on<DB: DrawingBackend>(
     let n_cols = g.keys.len().max(1) as f64;
     let longest = g.rows.iter().map(|r| r.0.chars().count()).max().unwrap_or(4);
     let left = (longest as u32 * 8 + 20).clamp(60, 400);
+    let zone = summary.settings.zone;
     let x_desc = match g.columns {
-        Columns::HourOfDay => "UTC hour of day (all days summed)",
-        Columns::HourFromStart => "hour from the start of the run (the log has no clock times)",
-        Columns::Day => "UTC day (month-day)",
+        Columns::HourOfDay => format!("hour of day, {} (all days summed)", zone.label()),
+        Columns::HourFromStart => {
+            "hour from the start of the run (the log has no clock times)".to_string()
+        }
+        Columns::Day => format!("day, {} (month-day)", zone.label()),
     };
     let xt: Vec<f64> = (0..g.keys.len()).map(|i| i as f64 + 0.5).collect();
     let yt: Vec<f64> = (0..g.rows.len()).map(|i| i as f64 + 0.5).collect();
@@ -147,7 +176,9 @@ fn draw_on<DB: DrawingBackend>(
         let y0 = n_rows - 1.0 - r as f64;
         for (c, key) in g.keys.iter().enumerate() {
             let rect = [(c as f64, y0), (c as f64 + 1.0, y0 + 1.0)];
-            let pct = cells.get(key).and_then(|t| t.pct());
+            let tally = cells.get(key);
+            let pct = tally.and_then(|t| t.pct());
+            let thin = tally.is_some_and(|t| is_thin(t.seconds, g.columns.cell_s()));
             let fill = match pct {
                 Some(p) => {
                     let [r, g, b] = map.rgb(p / 100.0);
@@ -155,7 +186,14 @@ fn draw_on<DB: DrawingBackend>(
                 }
                 None => NO_DATA,
             };
-            chart.draw_series([Rectangle::new(rect, fill.filled())]).map_err(drawing)?;
+            if thin && pct.is_some() {
+                chart.draw_series([Rectangle::new(rect, NO_DATA.filled())]).map_err(drawing)?;
+                chart.draw_series(hatch(c as f64, y0)).map_err(drawing)?;
+                let band = [(c as f64, y0 + 0.3), (c as f64 + 1.0, y0 + 0.7)];
+                chart.draw_series([Rectangle::new(band, fill.filled())]).map_err(drawing)?;
+            } else {
+                chart.draw_series([Rectangle::new(rect, fill.filled())]).map_err(drawing)?;
+            }
             chart.draw_series([Rectangle::new(rect, WHITE.stroke_width(1))]).map_err(drawing)?;
             if let (Some(p), true) = (pct, cell_w >= 26.0) {
                 let light = luminance(fill) < 110.0;
@@ -165,16 +203,18 @@ fn draw_on<DB: DrawingBackend>(
                     .color(&colour)
                     .pos(Pos::new(HPos::Center, VPos::Center));
                 let at = (c as f64 + 0.5, y0 + 0.5);
-                chart.draw_series([Text::new(format!("{p:.0}"), at, style)]).map_err(drawing)?;
+                let label = if thin { format!("{p:.0}*") } else { format!("{p:.0}") };
+                chart.draw_series([Text::new(label, at, style)]).map_err(drawing)?;
             }
         }
     }
     draw_legend(root, &bar_area, map)?;
     let note = format!(
-        "occupancy = occupied / measured samples (ITU-R SM.1880), in % · grey: not measured · {} file(s){}",
+        "channel occupancy = occupied / measured samples (ITU-R SM.1880), % · grey: not measured · hatched, *: under {:.0} % of the cell measured · {} file(s){}",
+        THIN_SHARE * 100.0,
         summary.files,
-        match (&summary.first, &summary.last) {
-            (Some(a), Some(b)) => format!(" · {a} to {b}"),
+        match (summary.first, summary.last) {
+            (Some(a), Some(b)) => format!(" · {} to {} {}", zone.format(a), zone.format(b), zone.label()),
             _ => String::new(),
         }
     );
@@ -182,6 +222,19 @@ fn draw_on<DB: DrawingBackend>(
         .draw(&Text::new(note, (12, 6), (FAMILY, 13).into_font().color(&TEXT)))
         .map_err(drawing)?;
     Ok(())
+}
+
+/// Diagonal strokes across the cell whose lower left corner is (`x`, `y`).
+fn hatch(x: f64, y: f64) -> Vec<PathElement<(f64, f64)>> {
+    const STROKES: usize = 4;
+    (1..2 * STROKES)
+        .map(|k| {
+            let d = k as f64 / STROKES as f64; // where the stroke meets the cell's edges
+            let from = if d <= 1.0 { (x, y + d) } else { (x + d - 1.0, y + 1.0) };
+            let to = if d <= 1.0 { (x + d, y) } else { (x + 1.0, y + d - 1.0) };
+            PathElement::new(vec![from, to], RGBColor(150, 150, 150).stroke_width(1))
+        })
+        .collect()
 }
 
 fn luminance(c: RGBColor) -> f64 {

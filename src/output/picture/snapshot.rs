@@ -187,10 +187,26 @@ pub fn format_duration(s: f64) -> String {
     } else if s < 120.0 {
         format!("{} s", format_num((s * 100.0).round() / 100.0))
     } else if s < 7200.0 {
-        let m = (s / 60.0).floor();
-        format!("{} min {} s", m, (s - 60.0 * m).round())
+        // Rounded before it is split, so 119.6 s is 2 min 0 s, never 1 min 60 s.
+        let whole = s.round() as u64;
+        format!("{} min {} s", whole / 60, whole % 60)
     } else {
-        let h = (s / 3600.0).floor();
-        format!("{} h {} min", h, ((s - 3600.0 * h) / 60.0).round())
+        let minutes = (s / 60.0).round() as u64;
+        format!("{} h {} min", minutes / 60, minutes % 60)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::format_duration;
+
+    /// Rounding never shows 60 in the smaller unit.
+    #[test]
+    fn durations_round_before_they_split() {
+        assert_eq!(format_duration(28_798.0), "8 h 0 min");
+        assert_eq!(format_duration(21_584.0), "6 h 0 min");
+        assert_eq!(format_duration(179.6), "3 min 0 s");
+        assert_eq!(format_duration(5392.0), "89 min 52 s");
+        assert_eq!(format_duration(27.048), "27.05 s");
     }
 }

@@ -1,50 +1,77 @@
-//! Reading occupancy logs written by `log` (JSON Lines, see [`crate::output::log`]) and summing them per
-//! channel: over the whole period, per UTC hour, and the emissions.
+//! Reading occupancy logs written by `log` (JSON Lines or CSV, see [`crate::output::log`]) and
+//! summing them per site and channel: over the whole period, per hour, the emissions, the noise
+//! floor, and the runs that measured it (the observation time and its gaps, [`coverage`]).
+//!
+//! The words are those of ITU-R SM.1880 and Report ITU-R SM.2256: **channel occupancy** is the
+//! share of measured time a channel was occupied; **observation time** the time the channel was
+//! actually measured; the **busy hour** the hour of the day with the highest occupancy.
 //!
 //! **Exact, sample-weighted occupancy.** A channel's occupancy over any stretch is its occupied
 //! measurement samples over its measured samples (ITU-R SM.1880), summed from the interval
 //! records' `occupied_samples` and `samples`, never an average of percentages. An interval counts
 //! in the hour in which it starts (intervals of the default 60 s started on a whole minute never
-//! straddle an hour). Intervals whose input was lost (`samples` 0, `occupancy_pct` null) and the
-//! `dropped_samples` of the others are counted as *not measured*, never as idle.
+//! straddle an hour), and in the window `--from`/`--to` when it starts inside it. Intervals whose
+//! input was lost (`samples` 0, `occupancy_pct` null) and the `dropped_samples` of the others are
+//! counted as *not measured*, never as idle.
 //!
-//! **Many files.** Rotated files and files written with `--append` are read alike: each `start`
-//! record begins a run; a record already seen (the same run's `start` repeated at the top of each
-//! rotated file, the same file given twice) is counted once, keyed by its `id` when it carries one
-//! (published records) or else by its run, kind, channel and start. Records are grouped by *site*:
-//! the `site` of the run's `start` record when present, else the file's name without its rotation
-//! key and extension (`north.2026-12-02.jsonl` → `north`).
+//! **Many files.** Rotated files, files written with `--append` and the files of a daily loop are
+//! read alike: each `start` record begins a run; a record already seen (the start record repeated
+//! at the top of each rotated file, the same file given twice, a published copy) is counted once,
+//! keyed by its `run` and `seq`, or its `id`. Records are grouped by *site* ([`site`]).
 //!
-//! **Damaged files.** A line that is not a JSON object (a power cut mid-write leaves a partial
-//! last line) is skipped with a note naming the file and line; lines of kinds this version does
-//! not know are ignored.
+//! **Damaged files.** A line that is not a record is skipped with a note ([`input`]); lines of
+//! kinds this version does not know are ignored.
 
+pub mod coverage;
+pub mod export;
+pub mod input;
+pub mod site;
 pub mod table;
+pub mod zone;
 
+use coverage::{DropSpan, RunSum};
+use serde_json::Value;
+use site::SiteRules;
 use std::collections::{BTreeMap, HashSet};
 use std::io::BufRead;
+use zone::{epoch_of, Zone};
 
-/// When an interval happened, to the hour.
+/// What the report covers and how it tells time.
+#[derive(Clone, Debug, Default)]
+pub struct Settings {
+    /// The zone of hours and times shown (`--tz`).
+    pub zone: Zone,
+    /// The window (`--from`, `--to`), seconds since the epoch; records outside it are left out.
+    pub from: Option<f64>,
+    pub to: Option<f64>,
+    /// `--site`.
+    pub sites: SiteRules,
+}
+
+/// An hour cell's key.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord, Hash)]
 pub enum HourKey {
-    /// Hours since 1970-01-01T00:00Z (UTC).
-    Utc(i64),
+    /// Hours since 1970-01-01T00:00 in the report's zone.
+    Clock(i64),
     /// Hours from the start of the run, when the log has no clock times.
     FromStart(i64),
 }
 
 /// Measured and occupied samples (occupied ones may be fractional: a sample an emission fills in
-/// part counts by its share, see the log's `occupied_samples`).
+/// part counts by its share, see the log's `occupied_samples`), and the seconds they cover.
 #[derive(Clone, Copy, Debug, Default, PartialEq)]
 pub struct Tally {
     pub samples: u64,
     pub occupied: f64,
+    /// Seconds of input measured.
+    pub seconds: f64,
 }
 
 impl Tally {
-    pub fn add(&mut self, samples: u64, occupied: f64) {
-        self.samples += samples;
-        self.occupied += occupied;
+    pub fn add(&mut self, other: &Tally) {
+        self.samples += other.samples;
+        self.occupied += other.occupied;
+        self.seconds += other.seconds;
     }
 
     /// Occupied / measured × 100, or `None` when nothing was measured.
@@ -52,6 +79,18 @@ impl Tally {
         (self.samples > 0).then(|| 100.0 * self.occupied / self.samples as f64)
     }
 }
+
+/// One emission, for the longest and the last heard.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Heard {
+    pub duration_s: f64,
+    /// Start and end, seconds since the epoch (when the log has clock times).
+    pub start: Option<f64>,
+    pub end: Option<f64>,
+}
+
+/// How many of the longest emissions each channel keeps.
+pub const LONGEST: usize = 3;
 
 /// One channel at one site, summed over every file.
 #[derive(Clone, Debug, Default)]
@@ -62,8 +101,7 @@ pub struct ChannelSum {
     pub width_hz: Option<f64>,
     pub total: Tally,
     pub dropped_samples: u64,
-    /// Seconds of input measured, and lost (dropped samples, intervals without samples).
-    pub measured_s: f64,
+    /// Seconds of input lost (dropped samples, intervals without samples).
     pub lost_s: f64,
     pub hours: BTreeMap<HourKey, Tally>,
     /// Σ samples × linear mean power of each interval (for the sample-weighted mean).
@@ -72,218 +110,226 @@ pub struct ChannelSum {
     pub peak_dbfs: Option<f64>,
     /// Durations of the emissions, seconds.
     pub durations_s: Vec<f64>,
+    /// The longest emissions, longest first.
+    pub longest: Vec<Heard>,
+    /// The emission that ended last.
+    pub last_heard: Option<Heard>,
+    /// Noise floor of each interval (dBFS/Hz) with its time (epoch, or run seconds).
+    pub noise: Vec<(f64, f64)>,
 }
 
 /// Everything read from the logs.
 #[derive(Clone, Debug, Default)]
 pub struct LogSummary {
+    pub settings: Settings,
     /// Keyed by (site, channel).
     pub channels: BTreeMap<(String, String), ChannelSum>,
+    /// Sites reported, in the order first seen.
     pub sites: Vec<String>,
-    /// Earliest and latest UTC times seen (RFC 3339), when the log has them.
-    pub first: Option<String>,
-    pub last: Option<String>,
+    /// Sites the logs name, before `--site`.
+    pub sites_seen: Vec<String>,
+    /// The runs, keyed by (site, run).
+    pub runs: BTreeMap<(String, String), RunSum>,
+    /// Earliest start and latest end of a counted interval, seconds since the epoch.
+    pub first: Option<f64>,
+    pub last: Option<f64>,
     pub files: usize,
     pub records: u64,
     pub duplicates: u64,
+    /// Records left out by `--from`/`--to` because they carry no clock time.
+    pub unplaced: u64,
     pub notes: Vec<String>,
+    seen: HashSet<String>,
 }
 
 /// The state of one file's reading: the run it is in.
 struct Reading {
-    site: String,
+    /// The site the run counts under (`None`: left out by `--site`).
+    site: Option<String>,
     run: String,
+    /// Epoch of the run's time 0, when it has a clock.
+    origin: Option<f64>,
     /// The run's sample rate, to turn dropped samples into time.
     rate_hz: f64,
 }
 
 impl LogSummary {
+    pub fn new(settings: Settings) -> LogSummary {
+        LogSummary { settings, ..Default::default() }
+    }
+
     /// Reads one log from `reader`; `name` is its path, for notes and the default site.
-    pub fn read(
-        &mut self,
-        name: &str,
-        reader: impl BufRead,
-        seen: &mut Seen,
-    ) -> std::io::Result<()> {
+    pub fn read(&mut self, name: &str, reader: impl BufRead) -> std::io::Result<()> {
         self.files += 1;
-        let shown = crate::messages::sanitize(name);
-        let mut state = Reading { site: site_of_file(name), run: String::new(), rate_hz: 0.0 };
-        let mut bad: Option<(u64, usize)> = None;
-        let mut bad_lines = 0u64;
-        let mut reader = reader;
-        let mut line = Vec::new();
-        let mut number = 0u64;
-        loop {
-            line.clear();
-            if reader.read_until(b'\n', &mut line)? == 0 {
-                break;
-            }
-            number += 1;
-            if let Some((n, len)) = bad.take() {
-                bad_lines += 1;
-                if bad_lines <= 3 {
-                    self.notes.push(format!(
-                        "{shown}: line {n} ({len} bytes) is not a log record; skipped"
-                    ));
-                }
-            }
-            let text = String::from_utf8_lossy(&line);
-            let text = text.trim();
-            if text.is_empty() {
-                continue;
-            }
-            match serde_json::from_str::<serde_json::Value>(text) {
-                Ok(v) if v.is_object() => self.record(&v, &mut state, seen),
-                _ => bad = Some((number, line.len())),
-            }
-        }
-        if bad_lines > 3 {
-            self.notes.push(format!(
-                "{shown}: {} more lines were not log records; skipped",
-                bad_lines - 3
-            ));
-        }
-        if let Some((n, len)) = bad {
-            let note = format!(
-                "{shown}: the last line ({n}, {len} bytes) is incomplete (cut off while written?); skipped"
-            );
-            if !self.notes.contains(&note) {
-                self.notes.push(note);
+        let file_site = site::site_of_file(name);
+        let mut st = Reading {
+            site: self.site_named(&file_site),
+            run: format!("file {name}"),
+            origin: None,
+            rate_hz: 0.0,
+        };
+        let mut notes = Vec::new();
+        input::read_records(name, reader, &mut notes, |v| self.record(v, &mut st, &file_site))?;
+        for n in notes {
+            if !self.notes.contains(&n) {
+                self.notes.push(n);
             }
         }
         Ok(())
     }
 
-    fn record(&mut self, v: &serde_json::Value, st: &mut Reading, seen: &mut Seen) {
+    /// Records `raw` as seen and returns the site it counts under.
+    fn site_named(&mut self, raw: &str) -> Option<String> {
+        if !self.sites_seen.iter().any(|s| s == raw) {
+            self.sites_seen.push(raw.to_string());
+        }
+        self.settings.sites.map(raw)
+    }
+
+    fn record(&mut self, v: &Value, st: &mut Reading, file_site: &str) {
         let kind = v["kind"].as_str().unwrap_or("");
         if kind == "start" {
-            if let Some(site) = v["site"].as_str() {
-                st.site = crate::messages::sanitize(site);
-            }
-            st.run = without_id(v);
+            let raw = v["site"].as_str().map_or(file_site.to_string(), crate::messages::sanitize);
+            st.site = self.site_named(&raw);
+            st.run = v["run"].as_str().map_or_else(|| without_id(v), str::to_string);
             st.rate_hz = v["sample_rate_hz"].as_f64().unwrap_or(0.0);
-            if !self.sites.contains(&st.site) {
-                self.sites.push(st.site.clone());
+            st.origin = v["start"].as_str().and_then(epoch_of).map(|e| e - num(v, "t_start_s"));
+        }
+        let Some(site) = st.site.clone() else { return };
+        if !self.is_new(v, kind, st, &site) {
+            // The start and channel records open every rotated file: repeats by design.
+            if !matches!(kind, "start" | "channel") {
+                self.duplicates += 1;
             }
             return;
         }
-        let channel = v["channel"].as_str().map(crate::messages::sanitize);
-        let key = match v.get("id").filter(|i| !i.is_null()) {
-            Some(id) => format!("id {id}"),
-            None => format!(
-                "{}\u{1}{}\u{1}{kind}\u{1}{}\u{1}{}",
-                st.site,
-                st.run,
-                channel.as_deref().unwrap_or(""),
-                v["t_start_s"]
+        if !self.sites.contains(&site) {
+            self.sites.push(site.clone());
+        }
+        let run = self.runs.entry((site.clone(), st.run.clone())).or_insert_with(|| RunSum {
+            site: site.clone(),
+            origin: st.origin,
+            t_start_s: f64::MAX,
+            ..Default::default()
+        });
+        run.reach(num(v, "t_start_s"), v["t_end_s"].as_f64());
+        match kind {
+            "stop" => run.stop = v["reason"].as_str().map(str::to_string),
+            "dropped" => run.drops.push(DropSpan {
+                t_start_s: num(v, "t_start_s"),
+                t_end_s: num(v, "t_end_s"),
+                cause: v["cause"].as_str().unwrap_or("unknown").to_string(),
+            }),
+            "interval" | "emission" => self.channel_record(v, kind, st, site),
+            _ => {}
+        }
+    }
+
+    /// False for a record already counted.
+    fn is_new(&mut self, v: &Value, kind: &str, st: &Reading, site: &str) -> bool {
+        let key = match (v["run"].as_str(), v["seq"].as_u64(), v.get("id").filter(|i| !i.is_null()))
+        {
+            (Some(run), Some(seq), _) => format!("{site}\u{1}{run}\u{1}{seq}"),
+            (_, _, Some(id)) => format!("id {id}"),
+            _ => format!(
+                "{site}\u{1}{}\u{1}{kind}\u{1}{}\u{1}{}",
+                st.run, v["channel"], v["t_start_s"]
             ),
         };
-        if matches!(kind, "interval" | "emission") && !seen.0.insert(key) {
-            self.duplicates += 1;
+        self.seen.insert(key)
+    }
+
+    /// The time of a record's instant: its own RFC 3339 field, else the run's clock.
+    fn when(v: &Value, field: &str, t_field: &str, st: &Reading) -> Option<f64> {
+        v[field].as_str().and_then(epoch_of).or_else(|| Some(st.origin? + v[t_field].as_f64()?))
+    }
+
+    /// Whether an instant lies in the window; an instant without a clock lies in no window.
+    fn in_window(&mut self, at: Option<f64>) -> bool {
+        let s = &self.settings;
+        if s.from.is_none() && s.to.is_none() {
+            return true;
+        }
+        let inside =
+            at.is_some_and(|t| s.from.map_or(true, |f| t >= f) && s.to.map_or(true, |e| t < e));
+        if at.is_none() {
+            self.unplaced += 1;
+        }
+        inside
+    }
+
+    fn channel_record(&mut self, v: &Value, kind: &str, st: &Reading, site: String) {
+        let Some(name) = v["channel"].as_str().map(crate::messages::sanitize) else { return };
+        let start = Self::when(v, "start", "t_start_s", st);
+        if !self.in_window(start) {
             return;
         }
-        let Some(name) = channel else { return };
-        if !self.sites.contains(&st.site) {
-            self.sites.push(st.site.clone());
-        }
         self.records += 1;
-        let ch = self
-            .channels
-            .entry((st.site.clone(), name.clone()))
-            .or_insert_with(|| ChannelSum { site: st.site.clone(), name, ..Default::default() });
+        let zone = self.settings.zone;
+        let ch = self.channels.entry((site.clone(), name.clone())).or_insert_with(|| ChannelSum {
+            site,
+            name,
+            ..Default::default()
+        });
         ch.center_hz = v["center_hz"].as_f64().or(ch.center_hz);
         ch.width_hz = v["width_hz"].as_f64().or(ch.width_hz);
-        match kind {
-            "interval" => {
-                let samples = v["samples"].as_u64().unwrap_or(0);
-                let occupied =
-                    v["occupied_samples"].as_f64().unwrap_or(0.0).clamp(0.0, samples as f64);
-                let dropped = v["dropped_samples"].as_u64().unwrap_or(0);
-                ch.dropped_samples += dropped;
-                let span = (v["t_end_s"].as_f64().unwrap_or(0.0)
-                    - v["t_start_s"].as_f64().unwrap_or(0.0))
-                .max(0.0);
-                if samples == 0 || v["occupancy_pct"].is_null() {
-                    ch.lost_s += span;
-                    return;
-                }
-                let lost =
-                    if st.rate_hz > 0.0 { (dropped as f64 / st.rate_hz).min(span) } else { 0.0 };
-                ch.lost_s += lost;
-                ch.measured_s += span - lost;
-                ch.total.add(samples, occupied);
-                let start = v["start"].as_str();
-                let hour = match start.and_then(epoch_hours) {
-                    Some(h) => HourKey::Utc(h),
-                    None => HourKey::FromStart(
-                        (v["t_start_s"].as_f64().unwrap_or(0.0) / 3600.0).floor() as i64,
-                    ),
-                };
-                ch.hours.entry(hour).or_default().add(samples, occupied);
-                if let Some(m) = v["mean_dbfs"].as_f64() {
-                    ch.power_weighted += samples as f64 * 10f64.powf(m / 10.0);
-                    ch.power_samples += samples;
-                }
-                if let Some(p) = v["peak_dbfs"].as_f64() {
-                    ch.peak_dbfs = Some(ch.peak_dbfs.map_or(p, |q| q.max(p)));
-                }
-                for t in [start, v["end"].as_str()].into_iter().flatten() {
-                    if self.first.as_deref().map_or(true, |s| s > t) {
-                        self.first = Some(t.to_string());
-                    }
-                    if self.last.as_deref().map_or(true, |s| s < t) {
-                        self.last = Some(t.to_string());
-                    }
-                }
-            }
-            "emission" => {
-                if let Some(d) = v["duration_s"].as_f64() {
-                    ch.durations_s.push(d);
-                }
-            }
-            _ => {}
+        if kind == "emission" {
+            let heard = Heard {
+                duration_s: num(v, "duration_s"),
+                start,
+                end: Self::when(v, "end", "t_end_s", st),
+            };
+            ch.heard(heard);
+            return;
+        }
+        let samples = v["samples"].as_u64().unwrap_or(0);
+        let dropped = v["dropped_samples"].as_u64().unwrap_or(0);
+        ch.dropped_samples += dropped;
+        let span = (num(v, "t_end_s") - num(v, "t_start_s")).max(0.0);
+        if samples == 0 || v["occupancy_pct"].is_null() {
+            ch.lost_s += span;
+            return;
+        }
+        let lost = if st.rate_hz > 0.0 { (dropped as f64 / st.rate_hz).min(span) } else { 0.0 };
+        ch.lost_s += lost;
+        let occupied = v["occupied_samples"].as_f64().unwrap_or(0.0).clamp(0.0, samples as f64);
+        let tally = Tally { samples, occupied, seconds: span - lost };
+        ch.total.add(&tally);
+        let hour = match start {
+            Some(t) => HourKey::Clock(zone.hour_of(t)),
+            None => HourKey::FromStart((num(v, "t_start_s") / 3600.0).floor() as i64),
+        };
+        ch.hours.entry(hour).or_default().add(&tally);
+        if let Some(m) = v["mean_dbfs"].as_f64() {
+            ch.power_weighted += samples as f64 * 10f64.powf(m / 10.0);
+            ch.power_samples += samples;
+        }
+        if let Some(p) = v["peak_dbfs"].as_f64() {
+            ch.peak_dbfs = Some(ch.peak_dbfs.map_or(p, |q| q.max(p)));
+        }
+        if let Some(n) = v["noise_floor_dbfs_per_hz"].as_f64() {
+            ch.noise.push((start.unwrap_or(num(v, "t_start_s")), n));
+        }
+        if let Some(t) = start {
+            let end = t + span;
+            self.first = Some(self.first.map_or(t, |f| f.min(t)));
+            self.last = Some(self.last.map_or(end, |l| l.max(end)));
         }
     }
 }
 
-/// Records already counted, across files.
-#[derive(Default)]
-pub struct Seen(HashSet<String>);
+fn num(v: &Value, field: &str) -> f64 {
+    v[field].as_f64().unwrap_or(0.0)
+}
 
 /// The start record without the `id` a publisher adds: the same run read from a file and from a
 /// published copy is one run.
-fn without_id(v: &serde_json::Value) -> String {
+fn without_id(v: &Value) -> String {
     let mut v = v.clone();
     if let Some(o) = v.as_object_mut() {
         o.remove("id");
     }
     v.to_string()
-}
-
-/// Hours since the epoch of an RFC 3339 time.
-fn epoch_hours(stamp: &str) -> Option<i64> {
-    let t =
-        time::OffsetDateTime::parse(stamp, &time::format_description::well_known::Rfc3339).ok()?;
-    Some(t.unix_timestamp().div_euclid(3600))
-}
-
-/// A file's site when its runs do not name one: the name without directories, rotation key
-/// (`.2026-12-02`, `.2026-12-02T06`, …) and extension.
-pub fn site_of_file(path: &str) -> String {
-    let name = std::path::Path::new(path)
-        .file_name()
-        .map(|n| n.to_string_lossy().into_owned())
-        .unwrap_or_else(|| path.to_string());
-    let mut parts: Vec<&str> = name.split('.').collect();
-    if parts.len() > 1 {
-        parts.pop();
-    }
-    while parts.len() > 1
-        && parts.last().is_some_and(|p| p.starts_with(|c: char| c.is_ascii_digit()))
-    {
-        parts.pop();
-    }
-    crate::messages::sanitize(&parts.join("."))
 }
 
 /// The `p`-th percentile of `values` by nearest rank (the smallest value with at least `p` % of
@@ -298,68 +344,128 @@ pub fn percentile(values: &[f64], p: f64) -> Option<f64> {
     Some(v[rank.min(v.len()) - 1])
 }
 
+/// A cell of the hour-of-day (or day) grid measured for less than this share of its length is
+/// *thin*: shown as such, and never the busy hour.
+pub const THIN_SHARE: f64 = 0.1;
+
+/// Noise floor over the period: first interval, median, last interval (dBFS/Hz).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct NoiseTrend {
+    pub start: f64,
+    pub median: f64,
+    pub end: f64,
+}
+
 impl ChannelSum {
+    fn heard(&mut self, h: Heard) {
+        self.durations_s.push(h.duration_s);
+        let at = self.longest.partition_point(|l| l.duration_s >= h.duration_s);
+        if at < LONGEST {
+            self.longest.insert(at, h);
+            self.longest.truncate(LONGEST);
+        }
+        let later = |a: &Heard, b: &Heard| a.end.or(a.start) > b.end.or(b.start);
+        if self.last_heard.as_ref().map_or(true, |l| later(&h, l)) {
+            self.last_heard = Some(h);
+        }
+    }
+
     /// Sample-weighted mean of the intervals' mean power, dBFS.
     pub fn mean_dbfs(&self) -> Option<f64> {
         (self.power_samples > 0)
             .then(|| 10.0 * (self.power_weighted / self.power_samples as f64).log10())
     }
 
-    /// Occupancy per hour of the day (UTC), 0..24, summed over days; or, without clock times, per
-    /// hour from the start of the run.
+    /// The noise floor's trend, in time order.
+    pub fn noise_trend(&self) -> Option<NoiseTrend> {
+        let mut v = self.noise.clone();
+        v.sort_by(|a, b| a.0.total_cmp(&b.0));
+        let values: Vec<f64> = v.iter().map(|p| p.1).collect();
+        Some(NoiseTrend {
+            start: *values.first()?,
+            median: percentile(&values, 50.0)?,
+            end: *values.last()?,
+        })
+    }
+
+    /// Occupancy per hour of the day (in the report's zone), 0..24, summed over days; or, without
+    /// clock times, per hour from the start of the run.
     pub fn by_hour_of_day(&self) -> BTreeMap<i64, Tally> {
         let mut out: BTreeMap<i64, Tally> = BTreeMap::new();
         for (k, t) in &self.hours {
             let h = match k {
-                HourKey::Utc(h) => h.rem_euclid(24),
+                HourKey::Clock(h) => h.rem_euclid(24),
                 HourKey::FromStart(h) => *h,
             };
-            out.entry(h).or_default().add(t.samples, t.occupied);
+            out.entry(h).or_default().add(t);
         }
         out
     }
 
-    /// Occupancy per UTC day (days since the epoch).
+    /// Occupancy per day (days since the epoch, in the report's zone).
     pub fn by_day(&self) -> BTreeMap<i64, Tally> {
         let mut out: BTreeMap<i64, Tally> = BTreeMap::new();
         for (k, t) in &self.hours {
-            if let HourKey::Utc(h) = k {
-                out.entry(h.div_euclid(24)).or_default().add(t.samples, t.occupied);
+            if let HourKey::Clock(h) = k {
+                out.entry(h.div_euclid(24)).or_default().add(t);
             }
         }
         out
     }
 
-    /// The hour (of `by_hour_of_day`) with the highest occupancy, and that occupancy.
-    pub fn busiest_hour(&self) -> Option<(i64, f64)> {
-        self.by_hour_of_day().into_iter().filter_map(|(h, t)| Some((h, t.pct()?))).fold(
-            None,
-            |best: Option<(i64, f64)>, (h, p)| match best {
-                Some((_, q)) if q >= p => best,
-                _ => Some((h, p)),
-            },
-        )
+    /// The busy hour (of `by_hour_of_day`) and its occupancy: only when one hour, measured for
+    /// at least [`THIN_SHARE`] of an hour, is busier than every other such hour (to the 0.1 %
+    /// the table shows).
+    pub fn busy_hour(&self) -> Option<(i64, f64)> {
+        let mut hours: Vec<(i64, f64)> = self
+            .by_hour_of_day()
+            .into_iter()
+            .filter(|(_, t)| !is_thin(t.seconds, 3600.0))
+            .filter_map(|(h, t)| Some((h, t.pct()?)))
+            .collect();
+        hours.sort_by(|a, b| b.1.total_cmp(&a.1));
+        match hours.as_slice() {
+            [first, second, ..] if first.1 - second.1 >= 0.05 => Some(*first),
+            _ => None,
+        }
     }
 }
 
+/// Whether a cell of `length_s` measured for `seconds` is thin.
+pub fn is_thin(seconds: f64, length_s: f64) -> bool {
+    seconds < THIN_SHARE * length_s
+}
+
 impl LogSummary {
-    /// Whether every counted interval had a clock time (hours are then UTC hours of the day).
+    /// Whether every counted interval had a clock time (hours are then hours of the day).
     pub fn has_clock(&self) -> bool {
-        self.channels.values().all(|c| c.hours.keys().all(|k| matches!(k, HourKey::Utc(_))))
+        self.channels.values().all(|c| c.hours.keys().all(|k| matches!(k, HourKey::Clock(_))))
+    }
+
+    /// The hours of the day in the order shown (see [`zone::hour_order`]); without clock times,
+    /// every hour from the start of the run.
+    pub fn hour_axis(&self) -> Vec<i64> {
+        let mut measured = [false; 24];
+        let mut last = 0;
+        for c in self.channels.values() {
+            for (h, t) in c.by_hour_of_day() {
+                if t.samples > 0 {
+                    measured[h.rem_euclid(24) as usize] = true;
+                    last = last.max(h);
+                }
+            }
+        }
+        if self.has_clock() {
+            zone::hour_order(&measured)
+        } else {
+            (0..=last).collect()
+        }
     }
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    #[test]
-    fn sites_come_from_file_names_without_rotation_keys() {
-        assert_eq!(site_of_file("/var/log/north.2026-12-02.jsonl"), "north");
-        assert_eq!(site_of_file("north.2026-12-02T06-48-59.001.jsonl"), "north");
-        assert_eq!(site_of_file("ridge.jsonl"), "ridge");
-        assert_eq!(site_of_file("ridge"), "ridge");
-    }
 
     /// Nearest-rank percentiles of 1..=10: the median is 5, the 90th 9, the 100th 10.
     #[test]
@@ -369,5 +475,34 @@ mod tests {
         assert_eq!(percentile(&v, 90.0), Some(9.0));
         assert_eq!(percentile(&v, 100.0), Some(10.0));
         assert_eq!(percentile(&[], 50.0), None);
+    }
+
+    fn hour(pct: f64, seconds: f64) -> Tally {
+        Tally { samples: 1000, occupied: pct * 10.0, seconds }
+    }
+
+    /// The busy hour must be busier than the others, and measured for more than a few seconds.
+    #[test]
+    fn a_busy_hour_only_when_one_hour_is_busier() {
+        let mut c = ChannelSum::default();
+        c.hours.insert(HourKey::Clock(22), hour(10.0, 3600.0));
+        assert_eq!(c.busy_hour(), None, "one hour is not busier than another");
+        c.hours.insert(HourKey::Clock(23), hour(10.0, 3600.0));
+        assert_eq!(c.busy_hour(), None, "a tie");
+        c.hours.insert(HourKey::Clock(24), hour(90.0, 12.0));
+        assert_eq!(c.busy_hour(), None, "12 s of data is a thin hour");
+        c.hours.insert(HourKey::Clock(25), hour(20.0, 1800.0));
+        assert_eq!(c.busy_hour(), Some((1, 20.0)));
+    }
+
+    #[test]
+    fn longest_and_last_heard() {
+        let mut c = ChannelSum::default();
+        for (d, t) in [(1.0, 10.0), (5.0, 20.0), (2.0, 30.0), (4.0, 5.0)] {
+            c.heard(Heard { duration_s: d, start: Some(t), end: Some(t + d) });
+        }
+        let longest: Vec<f64> = c.longest.iter().map(|h| h.duration_s).collect();
+        assert_eq!(longest, [5.0, 4.0, 2.0]);
+        assert_eq!(c.last_heard.unwrap().start, Some(30.0));
     }
 }

@@ -1,13 +1,18 @@
-//! `report`'s words: the summary of occupancy logs as a text table, CSV or one JSON object.
+//! `report`'s text: the morning report an operator reads. First each site's observation time
+//! (measured over the period, the runs and how each stopped, the gaps and why), then one row per
+//! channel, what each channel was last heard doing, and the occupancy by hour of the day in the
+//! report's zone, a night in order.
 //!
-//! Rows are keyed by site and channel and sorted by channel, then site, so one channel watched
-//! from several sites stands on neighbouring rows, side by side. Hours are UTC hours of the day
-//! (0–23, summed over days) when the log has clock times, else hours from the start of the run.
+//! Rows are keyed by site and channel and sorted by frequency, then channel, then site, so one
+//! channel watched from several sites stands on neighbouring rows, side by side.
 
 use crate::output::picture::snapshot::format_duration;
-use crate::output::summary::{percentile, ChannelSum, LogSummary};
-use serde_json::{json, Value};
+use crate::output::summary::coverage::{site_coverage, stop_words, GapCause, SiteCoverage};
+use crate::output::summary::{is_thin, percentile, ChannelSum, LogSummary};
 use std::fmt::Write as _;
+
+/// Runs and gaps listed per site in the text; `--json` lists them all.
+const LISTED: usize = 12;
 
 /// The channels in the order every output lists them.
 pub fn ordered(summary: &LogSummary) -> Vec<&ChannelSum> {
@@ -20,32 +25,99 @@ pub fn ordered(summary: &LogSummary) -> Vec<&ChannelSum> {
     v
 }
 
-fn hour_word(summary: &LogSummary) -> &'static str {
-    if summary.has_clock() {
-        "UTC hour of day"
-    } else {
-        "hour from the start of the run"
-    }
-}
-
 fn opt(x: Option<f64>, decimals: usize) -> String {
     x.map_or_else(|| "-".to_string(), |v| format!("{v:.decimals$}"))
 }
 
-/// The text table.
+/// The text report.
 pub fn to_table(summary: &LogSummary) -> String {
-    let sites = summary.sites.len() > 1;
+    let zone = summary.settings.zone;
     let mut out = String::new();
-    let period = match (&summary.first, &summary.last) {
-        (Some(a), Some(b)) => format!("{a} to {b}"),
-        _ => "times unknown (the log has no clock times)".to_string(),
-    };
-    let _ = writeln!(out, "Occupancy from {} file(s): {period}", summary.files);
     let _ = writeln!(
         out,
-        "occupancy: occupied / measured samples (ITU-R SM.1880); durations in s (nearest rank); busiest: {}\n",
-        hour_word(summary)
+        "Channel occupancy from {} file(s); times {}; terms of ITU-R SM.1880 and Report ITU-R SM.2256",
+        summary.files,
+        if summary.has_clock() { zone.label() } else { "from the start of each run (the log has no clock times)".into() }
     );
+    for site in &summary.sites {
+        coverage_text(&mut out, summary, &site_coverage(summary, site));
+    }
+    let _ = writeln!(out);
+    channel_rows(&mut out, summary);
+    let _ = writeln!(out);
+    heard_text(&mut out, summary);
+    let _ = writeln!(out);
+    hours_text(&mut out, summary);
+    for n in &summary.notes {
+        let _ = writeln!(out, "note: {n}");
+    }
+    out
+}
+
+fn coverage_text(out: &mut String, summary: &LogSummary, c: &SiteCoverage) {
+    let zone = summary.settings.zone;
+    let _ = writeln!(out, "\nSite {}", c.site);
+    let period = match c.period {
+        Some((a, b)) => format!(
+            "{} of {} ({} to {}), {} %",
+            format_duration(c.measured_s()),
+            format_duration(b - a),
+            zone.format(a),
+            zone.format(b),
+            opt(c.pct(), 2),
+        ),
+        None => format!("{} (the log has no clock times)", format_duration(c.measured_s())),
+    };
+    let _ = writeln!(
+        out,
+        "  observation time: {period}; lost to dropped input {}",
+        format_duration(c.lost_s)
+    );
+    let _ = writeln!(out, "  runs ({}):", c.runs.len());
+    for r in c.runs.iter().take(LISTED) {
+        let when = match (r.from, r.to) {
+            (Some(a), Some(b)) => format!("{} to {}", zone.format(a), zone.format(b)),
+            _ => "time unknown".to_string(),
+        };
+        let _ = writeln!(
+            out,
+            "    {when}  {:>12}  {}",
+            format_duration(r.length_s),
+            stop_words(r.stop.as_deref())
+        );
+    }
+    more(out, c.runs.len());
+    if c.gaps.is_empty() {
+        return;
+    }
+    let _ = writeln!(out, "  not measured ({}):", c.gaps.len());
+    for g in c.gaps.iter().take(LISTED) {
+        let why = match &g.cause {
+            GapCause::NoRun { first: true, .. } => "no run yet".to_string(),
+            GapCause::NoRun { after, .. } => {
+                format!("no run; the run before: {}", stop_words(after.as_deref()))
+            }
+            GapCause::Dropped(cause) => format!("input dropped inside a run: {cause}"),
+        };
+        let _ = writeln!(
+            out,
+            "    {} to {}  {:>12}  {why}",
+            zone.format(g.from),
+            zone.format(g.to),
+            format_duration(g.to - g.from)
+        );
+    }
+    more(out, c.gaps.len());
+}
+
+fn more(out: &mut String, n: usize) {
+    if n > LISTED {
+        let _ = writeln!(out, "    … and {} more (--json lists them all)", n - LISTED);
+    }
+}
+
+fn channel_rows(out: &mut String, summary: &LogSummary) {
+    let sites = summary.sites.len() > 1;
     let mut header = vec![];
     if sites {
         header.push("site");
@@ -59,8 +131,8 @@ pub fn to_table(summary: &LogSummary) -> String {
         "max s",
         "mean dBFS",
         "peak dBFS",
-        "busiest",
-        "measured",
+        "busy hour",
+        "observed",
         "lost",
     ]);
     let mut rows: Vec<Vec<String>> = vec![header.iter().map(|s| s.to_string()).collect()];
@@ -69,8 +141,7 @@ pub fn to_table(summary: &LogSummary) -> String {
         if sites {
             r.push(c.site.clone());
         }
-        let busiest =
-            c.busiest_hour().map_or("-".to_string(), |(h, p)| format!("{h:02}h {p:.1} %"));
+        let busy = c.busy_hour().map_or("-".to_string(), |(h, p)| format!("{h:02}h {p:.1} %"));
         r.extend([
             c.name.clone(),
             opt(c.total.pct(), 2),
@@ -80,22 +151,31 @@ pub fn to_table(summary: &LogSummary) -> String {
             opt(percentile(&c.durations_s, 100.0), 3),
             opt(c.mean_dbfs(), 1),
             opt(c.peak_dbfs, 1),
-            busiest,
-            format_duration(c.measured_s),
+            busy,
+            format_duration(c.total.seconds),
             format_duration(c.lost_s),
         ]);
         rows.push(r);
     }
+    let text_columns = if sites { 2 } else { 1 };
+    aligned(out, &rows, text_columns);
+    let _ = writeln!(
+        out,
+        "occupancy: occupied / measured samples; durations of emissions (nearest rank); busy hour: the hour of day with the highest occupancy, when one is higher than the rest (hours measured under 6 min left out)"
+    );
+}
+
+/// Writes `rows` in columns, the first `text_columns` left-aligned, the rest right-aligned.
+fn aligned(out: &mut String, rows: &[Vec<String>], text_columns: usize) {
     let widths: Vec<usize> = (0..rows[0].len())
         .map(|i| rows.iter().map(|r| r[i].chars().count()).max().unwrap_or(0))
         .collect();
-    for r in &rows {
+    for r in rows {
         let cells: Vec<String> = r
             .iter()
             .enumerate()
             .map(|(i, c)| {
-                let first_text = i == 0 || (sites && i == 1);
-                if first_text {
+                if i < text_columns {
                     format!("{c:<w$}", w = widths[i])
                 } else {
                     format!("{c:>w$}", w = widths[i])
@@ -104,130 +184,65 @@ pub fn to_table(summary: &LogSummary) -> String {
             .collect();
         let _ = writeln!(out, "{}", cells.join("  ").trim_end());
     }
-    for n in &summary.notes {
-        let _ = writeln!(out, "note: {n}");
-    }
-    out
 }
 
-/// The CSV: one row per channel, the hours as columns `h00`…`h23` (or from the start).
-pub fn to_csv(summary: &LogSummary) -> String {
-    let hours = hour_columns(summary);
-    let mut out = String::from(
-        "site,channel,center_hz,width_hz,occupancy_pct,samples,occupied_samples,dropped_samples,emissions,duration_median_s,duration_p90_s,duration_max_s,mean_dbfs,peak_dbfs,busiest_hour,busiest_hour_occupancy_pct",
+fn heard_text(out: &mut String, summary: &LogSummary) {
+    let zone = summary.settings.zone;
+    let sites = summary.sites.len() > 1;
+    let when = |t: Option<f64>| t.map_or("time unknown".to_string(), |t| zone.format(t));
+    let _ = writeln!(
+        out,
+        "Last heard, longest emissions, noise floor (dBFS/Hz: first interval / median / last):"
     );
-    for h in &hours {
-        let _ = write!(out, ",h{h:02}");
-    }
-    out.push('\n');
-    let field = |x: Option<f64>| x.map_or(String::new(), |v| format!("{v}"));
     for c in ordered(summary) {
-        let by_hour = c.by_hour_of_day();
-        let busiest = c.busiest_hour();
-        let _ = write!(
-            out,
-            "{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}",
-            csv_text(&c.site),
-            csv_text(&c.name),
-            field(c.center_hz),
-            field(c.width_hz),
-            field(c.total.pct().map(round4)),
-            c.total.samples,
-            c.total.occupied,
-            c.dropped_samples,
-            c.durations_s.len(),
-            field(percentile(&c.durations_s, 50.0)),
-            field(percentile(&c.durations_s, 90.0)),
-            field(percentile(&c.durations_s, 100.0)),
-            field(c.mean_dbfs().map(round2)),
-            field(c.peak_dbfs),
-            busiest.map_or(String::new(), |b| b.0.to_string()),
-            field(busiest.map(|b| round4(b.1))),
-        );
-        for h in &hours {
-            let _ = write!(out, ",{}", field(by_hour.get(h).and_then(|t| t.pct()).map(round4)));
+        let name = if sites { format!("{} / {}", c.site, c.name) } else { c.name.clone() };
+        let last = c.last_heard.map_or("never heard".to_string(), |h| {
+            format!("last heard {}", when(h.end.or(h.start)))
+        });
+        let longest: Vec<String> = c
+            .longest
+            .iter()
+            .map(|h| format!("{} at {}", format_duration(h.duration_s), when(h.start)))
+            .collect();
+        let noise = c.noise_trend().map_or("-".to_string(), |n| {
+            format!("{:.1} / {:.1} / {:.1}", n.start, n.median, n.end)
+        });
+        let _ = writeln!(out, "  {name}: {last}");
+        if !longest.is_empty() {
+            let _ = writeln!(out, "    longest: {}", longest.join(", "));
         }
-        out.push('\n');
-    }
-    out
-}
-
-/// The hour columns: 0..24 of the day with clock times, else every hour from the start seen.
-fn hour_columns(summary: &LogSummary) -> Vec<i64> {
-    if summary.has_clock() {
-        return (0..24).collect();
-    }
-    let last =
-        summary.channels.values().flat_map(|c| c.by_hour_of_day().into_keys()).max().unwrap_or(0);
-    (0..=last).collect()
-}
-
-fn csv_text(s: &str) -> String {
-    if s.contains([',', '"', '\n']) {
-        format!("\"{}\"", s.replace('"', "\"\""))
-    } else {
-        s.to_string()
+        let _ = writeln!(out, "    noise floor: {noise}");
     }
 }
 
-fn round2(x: f64) -> f64 {
-    (x * 100.0).round() / 100.0
-}
-
-fn round4(x: f64) -> f64 {
-    (x * 1e4).round() / 1e4
-}
-
-/// One JSON object: `period`, `sites`, `channels[]` (each with `name, occupancy_pct, emissions,
-/// hours[]` and the rest), `notes`.
-pub fn to_json(summary: &LogSummary) -> Value {
-    let clock = summary.has_clock();
-    let channels: Vec<Value> = ordered(summary)
+/// Occupancy per hour of the day, the hours measured at any channel only, in the axis order.
+fn hours_text(out: &mut String, summary: &LogSummary) {
+    let sites = summary.sites.len() > 1;
+    let chans = ordered(summary);
+    let per: Vec<_> = chans.iter().map(|c| c.by_hour_of_day()).collect();
+    let hours: Vec<i64> = summary
+        .hour_axis()
         .into_iter()
-        .map(|c| {
-            let hours: Vec<Value> = c
-                .by_hour_of_day()
-                .into_iter()
-                .map(|(h, t)| {
-                    json!({
-                        "hour": h,
-                        "occupancy_pct": t.pct().map(round4),
-                        "samples": t.samples,
-                        "occupied_samples": t.occupied,
-                    })
-                })
-                .collect();
-            json!({
-                "site": c.site,
-                "name": c.name,
-                "center_hz": c.center_hz,
-                "width_hz": c.width_hz,
-                "occupancy_pct": c.total.pct().map(round4),
-                "samples": c.total.samples,
-                "occupied_samples": c.total.occupied,
-                "dropped_samples": c.dropped_samples,
-                "measured_s": c.measured_s,
-                "lost_s": c.lost_s,
-                "emissions": c.durations_s.len(),
-                "emission_duration_s": {
-                    "median": percentile(&c.durations_s, 50.0),
-                    "p90": percentile(&c.durations_s, 90.0),
-                    "max": percentile(&c.durations_s, 100.0),
-                },
-                "mean_dbfs": c.mean_dbfs().map(round2),
-                "peak_dbfs": c.peak_dbfs,
-                "busiest_hour": c.busiest_hour().map(|(h, p)| json!({"hour": h, "occupancy_pct": round4(p)})),
-                "hours": hours,
-            })
-        })
+        .filter(|h| per.iter().any(|p| p.get(h).is_some_and(|t| t.samples > 0)))
         .collect();
-    json!({
-        "period": {"start": summary.first, "end": summary.last},
-        "hours_are": if clock { "utc_hour_of_day" } else { "hours_from_run_start" },
-        "files": summary.files,
-        "sites": summary.sites,
-        "duplicates_skipped": summary.duplicates,
-        "channels": channels,
-        "notes": summary.notes,
-    })
+    let what = if summary.has_clock() {
+        format!("hour of day, {}, all days summed", summary.settings.zone.label())
+    } else {
+        "hour from the start of the run".to_string()
+    };
+    let _ = writeln!(out, "Occupancy % by {what} (* thin: under 6 min measured; - not measured):");
+    let mut rows = vec![std::iter::once("channel".to_string())
+        .chain(hours.iter().map(|h| format!("{h:02}")))
+        .collect::<Vec<_>>()];
+    for (c, p) in chans.iter().zip(&per) {
+        let name = if sites { format!("{} / {}", c.site, c.name) } else { c.name.clone() };
+        let cells =
+            hours.iter().map(|h| match p.get(h).and_then(|t| Some((t.pct()?, t.seconds))) {
+                Some((pct, s)) if is_thin(s, 3600.0) => format!("{pct:.1}*"),
+                Some((pct, _)) => format!("{pct:.1}"),
+                None => "-".to_string(),
+            });
+        rows.push(std::iter::once(name).chain(cells).collect());
+    }
+    aligned(out, &rows, 1);
 }
