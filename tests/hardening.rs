@@ -4,24 +4,18 @@
 //! with control characters, and float input in the wrong format is refused rather than logged as
 //! meaningless levels.
 
+mod common;
+
 use bandwarden::source::SampleFormat;
 use num_complex::Complex32;
 use std::io::{BufRead, BufReader};
 use std::path::PathBuf;
 use std::process::{Command, Output, Stdio};
 
-fn bin() -> Command {
-    Command::new(env!("CARGO_BIN_EXE_bandwarden"))
-}
+use common::{bin, stderr};
 
 fn tmp(name: &str) -> PathBuf {
-    let dir = std::env::temp_dir().join(format!("bandwarden-hardening-{}", std::process::id()));
-    std::fs::create_dir_all(&dir).unwrap();
-    dir.join(name)
-}
-
-fn stderr(o: &Output) -> String {
-    String::from_utf8_lossy(&o.stderr).into_owned()
+    common::scratch("hardening", name)
 }
 
 fn no_panic(o: &Output) {

@@ -2,20 +2,18 @@
 //! names the cause and the fix, a non-zero exit (or a warning and exit 0 where the data is still
 //! usable), and never a panic.
 
+mod common;
+
 use bandwarden::source::SampleFormat;
 use num_complex::Complex32;
 use std::io::Write;
 use std::path::PathBuf;
-use std::process::{Command, Output, Stdio};
+use std::process::{Output, Stdio};
 
-fn bin() -> Command {
-    Command::new(env!("CARGO_BIN_EXE_bandwarden"))
-}
+use common::bin;
 
 fn tmp(name: &str) -> PathBuf {
-    let dir = std::env::temp_dir().join(format!("bandwarden-errors-{}", std::process::id()));
-    std::fs::create_dir_all(&dir).unwrap();
-    dir.join(name)
+    common::scratch("errors", name)
 }
 
 fn tone(n: usize) -> Vec<Complex32> {

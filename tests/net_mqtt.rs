@@ -7,6 +7,8 @@
 //! Mosquitto comes from the distribution's packages (`.ci/run` installs it). Without it the test
 //! fails in CI (`CI=true`) and is skipped with a note elsewhere.
 
+mod common;
+
 use std::io::{Read, Write};
 use std::net::{Shutdown, TcpListener, TcpStream};
 use std::path::{Path, PathBuf};
@@ -24,9 +26,7 @@ fn mosquitto() -> Option<PathBuf> {
         .find(|p| p.exists())
 }
 
-fn free_port() -> u16 {
-    TcpListener::bind("127.0.0.1:0").unwrap().local_addr().unwrap().port()
-}
+use common::{free_port, lines};
 
 fn wait_for_port(port: u16) {
     let deadline = Instant::now() + Duration::from_secs(10);
@@ -196,10 +196,6 @@ fn mosquitto_or_skip() -> Option<PathBuf> {
         eprintln!("note: mosquitto is not installed (apt-get install -y mosquitto); test skipped");
     }
     bin
-}
-
-fn lines(path: &Path) -> Vec<String> {
-    std::fs::read_to_string(path).unwrap_or_default().lines().map(String::from).collect()
 }
 
 #[test]

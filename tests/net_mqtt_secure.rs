@@ -8,8 +8,10 @@
 //! installs it). Without them the tests fail in CI (`CI=true`) and are skipped with a note
 //! elsewhere.
 
+mod common;
+
 use std::io::Read;
-use std::net::{TcpListener, TcpStream};
+use std::net::TcpStream;
 use std::path::{Path, PathBuf};
 use std::process::{Child, Command, Output, Stdio};
 use std::time::{Duration, Instant};
@@ -48,9 +50,7 @@ fn scratch(name: &str) -> PathBuf {
     dir
 }
 
-fn free_port() -> u16 {
-    TcpListener::bind("127.0.0.1:0").unwrap().local_addr().unwrap().port()
-}
+use common::{free_port, lines};
 
 /// A broker with `extra` configuration lines on a free loopback port; killed on drop.
 struct Broker {
@@ -120,10 +120,6 @@ fn log(
         .stderr(Stdio::piped())
         .output()
         .unwrap()
-}
-
-fn lines(path: &Path) -> Vec<String> {
-    std::fs::read_to_string(path).unwrap_or_default().lines().map(String::from).collect()
 }
 
 /// Runs a collector until it has as many lines for `site` as the site's local log (at most

@@ -157,16 +157,7 @@ fn log_rows_allocate_nothing(threads: usize) {
     use bandwarden::source::SourceInfo;
 
     let (rate, center) = (1e6, 100e6);
-    let info = SourceInfo {
-        label: "synthetic".into(),
-        format: None,
-        sample_rate_hz: rate,
-        center_hz: center,
-        start_time: None,
-        total_samples: None,
-        live: false,
-        segments: Vec::new(),
-    };
+    let info = SourceInfo::synthetic(rate, center);
     let dsp = DspConfig { fft_size: 1024, window: WindowKind::Hann, overlap: 0.5, threads };
     let channels = ["busy=100.1M:20k", "idle=99.8M:20k"].map(|c| parse_channel_flag(c).unwrap());
     let plan = Plan::from_parts(None, &channels).unwrap();

@@ -8,6 +8,8 @@
 //! same layout), fitted as straight lines (the axis mapping documented in `output::picture`),
 //! never from the drawing code's variables; the colours come from the PNG.
 
+mod common;
+
 use bandwarden::testkit::{keyed_band, Keyed};
 use bandwarden::units::undb;
 use std::path::{Path, PathBuf};
@@ -26,7 +28,7 @@ const BURST_ON_S: (f64, f64) = (1.0, 1.5);
 const SECONDS: f64 = 3.0;
 
 fn bin() -> &'static str {
-    env!("CARGO_BIN_EXE_bandwarden")
+    common::BIN
 }
 
 fn scratch(name: &str) -> PathBuf {

@@ -187,16 +187,7 @@ mod tests {
     }
 
     fn spec(settings: &RowSettings) -> RunSpec {
-        let source = SourceInfo {
-            label: "test".into(),
-            format: None,
-            sample_rate_hz: 1e6,
-            center_hz: 0.0,
-            start_time: None,
-            total_samples: None,
-            live: false,
-            segments: Vec::new(),
-        };
+        let source = SourceInfo::synthetic(1e6, 0.0);
         RunSpec::new(source, settings.engine(1e6), 1)
     }
 

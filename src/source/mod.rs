@@ -42,6 +42,21 @@ pub struct SourceInfo {
 }
 
 impl SourceInfo {
+    /// A file of synthetic samples: no format, time, length or segments (tests, benches).
+    #[doc(hidden)]
+    pub fn synthetic(rate_hz: f64, center_hz: f64) -> SourceInfo {
+        SourceInfo {
+            label: "synthetic".into(),
+            format: None,
+            sample_rate_hz: rate_hz,
+            center_hz,
+            start_time: None,
+            total_samples: None,
+            live: false,
+            segments: Vec::new(),
+        }
+    }
+
     /// A stream that arrives in real time (stdin, a socket), described by the request's flags.
     pub fn live(label: String, format: SampleFormat, rate: f64, req: &InputRequest) -> SourceInfo {
         SourceInfo {

@@ -380,16 +380,7 @@ mod tests {
     use time::OffsetDateTime;
 
     fn setup(interval_s: f64) -> (OccupancySetup, Plan, SourceInfo) {
-        let info = SourceInfo {
-            label: "synthetic".into(),
-            format: None,
-            sample_rate_hz: FS,
-            center_hz: CENTER,
-            start_time: None,
-            total_samples: None,
-            live: true,
-            segments: Vec::new(),
-        };
+        let info = SourceInfo { live: true, ..SourceInfo::synthetic(FS, CENTER) };
         let dsp = DspConfig { fft_size: 512, window: WindowKind::Hann, overlap: 0.5, threads: 1 };
         let channels =
             ["busy=100.02M:10k", "idle=99.95M:10k"].map(|c| parse_channel_flag(c).unwrap());

@@ -11,16 +11,7 @@ use std::rc::Rc;
 const N: usize = 64;
 
 fn spec() -> RunSpec {
-    let source = SourceInfo {
-        label: "test".into(),
-        format: None,
-        sample_rate_hz: 1000.0,
-        center_hz: 0.0,
-        start_time: None,
-        total_samples: None,
-        live: false,
-        segments: Vec::new(),
-    };
+    let source = SourceInfo::synthetic(1000.0, 0.0);
     // Rows of 4 frames of 64 samples, hop 64 (no overlap): 256 samples a row.
     let engine = EngineConfig {
         fft_size: N,

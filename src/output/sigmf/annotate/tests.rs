@@ -6,16 +6,8 @@ use crate::plan::parse_channel_flag;
 use crate::source::SourceInfo;
 
 fn run_info() -> RunInfo {
-    let source = SourceInfo {
-        label: "synthetic".into(),
-        format: Some(SampleFormat::Cf32Le),
-        sample_rate_hz: FS,
-        center_hz: CENTER,
-        start_time: None,
-        total_samples: None,
-        live: false,
-        segments: Vec::new(),
-    };
+    let source =
+        SourceInfo { format: Some(SampleFormat::Cf32Le), ..SourceInfo::synthetic(FS, CENTER) };
     let engine = EngineConfig {
         fft_size: 512,
         window: WindowKind::Hann,

@@ -16,16 +16,8 @@ fn on(i: u64) -> bool {
 }
 
 fn captures_of(x: &[Complex32], set: CaptureSettings) -> (Captures, Vec<Record>) {
-    let info = SourceInfo {
-        label: "synthetic".into(),
-        format: Some(SampleFormat::Cf32Le),
-        sample_rate_hz: FS,
-        center_hz: CENTER,
-        start_time: None,
-        total_samples: None,
-        live: false,
-        segments: Vec::new(),
-    };
+    let info =
+        SourceInfo { format: Some(SampleFormat::Cf32Le), ..SourceInfo::synthetic(FS, CENTER) };
     let dsp = DspConfig { fft_size: 512, window: WindowKind::Hann, overlap: 0.5, threads: 1 };
     let plan = Plan::from_parts(None, &[parse_channel_flag("gate=100.02M:10k").unwrap()]).unwrap();
     let req = OccupancyRequest {
