@@ -80,6 +80,9 @@ pub fn parse_positive_hz(text: &str) -> Result<f64, String> {
 /// Checks a sample rate, from a flag or a file: finite and within
 /// [`MIN_RATE_HZ`] ..= [`MAX_RATE_HZ`]. The message says what was wrong; the caller adds where.
 pub fn check_rate(hz: f64) -> Result<(), String> {
+    if hz < 0.0 {
+        return Err(format!("a sample rate must be positive, and {} is negative", format_hz(hz)));
+    }
     if !(MIN_RATE_HZ..=MAX_RATE_HZ).contains(&hz) {
         return Err(format!(
             "a sample rate of {} is out of range; it must be {} ..= {}",
