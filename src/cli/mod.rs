@@ -157,6 +157,60 @@ mod tests {
         assert_eq!(default_measure().validate().unwrap().seconds, Some(2.0));
     }
 
+    /// The flags `bandwarden COMMAND --help` lists under each heading, in order.
+    fn flags_by_heading(command: &str) -> Vec<(String, Vec<String>)> {
+        let mut cli = Cli::command();
+        let help = cli.find_subcommand_mut(command).unwrap().render_help().to_string();
+        let mut sections: Vec<(String, Vec<String>)> = Vec::new();
+        for line in help.lines() {
+            if let Some(heading) = line.strip_suffix(':').filter(|_| !line.starts_with(' ')) {
+                sections.push((heading.to_string(), Vec::new()));
+            } else if let (Some(flag), Some(last)) =
+                (line.split_whitespace().find(|w| w.starts_with("--")), sections.last_mut())
+            {
+                // A flag's own line is indented a little; its wrapped help text far more.
+                let indent = line.len() - line.trim_start().len();
+                if indent <= 6 && line.trim_start().starts_with('-') {
+                    last.1.push(flag.trim_end_matches(',').to_string());
+                }
+            }
+        }
+        sections
+    }
+
+    #[test]
+    fn sigmf_flags_have_a_heading_of_their_own() {
+        let emission = ["--annotate", "--capture", "--pre", "--post", "--capture-max-seconds"];
+        for command in ["log", "census", "watch"] {
+            let sections = flags_by_heading(command);
+            let sigmf = sections.iter().find(|(h, _)| h == sigmf_out::SIGMF_HEADING);
+            let Some((_, flags)) = sigmf else { panic!("{command}: no SigMF heading") };
+            let mut expected = vec!["--record"];
+            if command != "watch" {
+                expected.extend(emission);
+                expected.push("--capture-max-bytes");
+            }
+            assert_eq!(flags, &expected, "{command}");
+            // Not under the broker's heading, nor anywhere else.
+            for (heading, flags) in &sections {
+                if heading != sigmf_out::SIGMF_HEADING {
+                    assert!(!flags.iter().any(|f| f == "--record"), "{command}: {heading}");
+                }
+            }
+        }
+        let watch = flags_by_heading("watch");
+        assert!(watch.iter().any(|(h, f)| h == "Options" && f.contains(&"--alarm-log".into())));
+    }
+
+    #[test]
+    fn the_channel_syntax_is_spelt_one_way() {
+        for command in ["log", "measure", "watch", "snapshot"] {
+            let mut cli = Cli::command();
+            let help = cli.find_subcommand_mut(command).unwrap().render_long_help().to_string();
+            assert!(!help.contains("CENTRE"), "{command}: {help}");
+        }
+    }
+
     /// Why `bandwarden ARGS` is refused: clap's error, or the command's validation error.
     fn refusal(args: &[&str]) -> String {
         let argv = std::iter::once("bandwarden").chain(args.iter().copied());

@@ -8,8 +8,12 @@ pub use crate::output::sigmf::outputs::SigmfOut;
 use anyhow::{bail, Result};
 use clap::Args;
 
+/// The heading `--help` lists the SigMF flags under.
+pub const SIGMF_HEADING: &str = "SigMF output";
+
 /// `--record`, for every command that runs on live input.
 #[derive(Args, Debug, Clone, Default)]
+#[command(next_help_heading = SIGMF_HEADING)]
 pub struct RecordArgs {
     /// Also record the input, as it is read, to this SigMF recording (FILE.sigmf-meta beside
     /// FILE.sigmf-data; replaced if it exists), in the input's datatype (cf32_le for the demo).
@@ -28,6 +32,7 @@ impl RecordArgs {
 
 /// `--annotate` and `--capture`, for the commands that find emissions.
 #[derive(Args, Debug, Clone, Default)]
+#[command(next_help_heading = SIGMF_HEADING)]
 pub struct EmissionOutArgs {
     /// Write every emission as a SigMF annotation to this new metadata file, pointing at the
     /// input's dataset (or at --record's); name the input's own .sigmf-meta to add them there.

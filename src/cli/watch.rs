@@ -52,12 +52,13 @@ pub struct WatchArgs {
     /// Leave the mouse to the terminal (e.g. for selecting text) instead of placing markers.
     #[arg(long)]
     pub no_mouse: bool,
-    #[command(flatten)]
-    pub record: RecordArgs,
     /// Append a JSON Lines record to FILE at each channel-alarm onset (alarms come from the
     /// plan's alarm_dbfs or the A key).
     #[arg(long, value_name = "FILE")]
     pub alarm_log: Option<String>,
+    // Last: its heading (SigMF output) holds for the flags that follow it.
+    #[command(flatten)]
+    pub record: RecordArgs,
 }
 
 /// Slowest and fastest playback of a file: a thousandth of the recorded rate is already a slide
