@@ -116,7 +116,15 @@ impl Plan {
     pub fn parse(text: &str, path: &str) -> Result<Plan> {
         let file: PlanFile = toml::from_str(text).map_err(|e| {
             let line = e.span().map_or(1, |s| line_of(text, s.start));
-            anyhow::anyhow!("plan '{path}' line {line}: {}", one_line(e.message()))
+            match unclosed_quote(text).filter(|u| u.line <= line) {
+                Some(u) => anyhow::anyhow!(
+                    "plan '{path}' line {}: a quoted value is not closed; add the closing {} ({})",
+                    u.line,
+                    u.quote,
+                    text.lines().nth(u.line - 1).unwrap_or("").trim()
+                ),
+                None => anyhow::anyhow!("plan '{path}' line {line}: {}", one_line(e.message())),
+            }
         })?;
         let headers = table_header_lines(text);
         let mut channels = Vec::with_capacity(file.channel.len());
@@ -348,6 +356,72 @@ fn table_header_lines(text: &str) -> Vec<usize> {
         .collect()
 }
 
+/// A string of a TOML file that is opened and never closed.
+#[derive(Debug, PartialEq)]
+struct Unclosed {
+    /// 1-based line of the opening quote.
+    line: usize,
+    /// The quote that closes it: `"`, `'`, `"""` or `'''`.
+    quote: &'static str,
+}
+
+/// The first string in `text` left open, if any. toml's own message for it ("invalid basic
+/// string", at the end of the line or of the file) names neither the cause nor the fix. The
+/// scan follows TOML 1.0's four kinds of string (toml.io, "String"): basic and literal ones end
+/// on their line, multi-line ones may end on a later line; `#` outside a string starts a comment.
+fn unclosed_quote(text: &str) -> Option<Unclosed> {
+    // An open multi-line string: its quote and the line it began on.
+    let mut open: Option<(&'static str, usize)> = None;
+    for (i, line) in text.lines().enumerate() {
+        let mut rest = line;
+        loop {
+            if let Some((quote, _)) = open {
+                match rest.find(quote) {
+                    Some(end) => {
+                        rest = &rest[end + quote.len()..];
+                        open = None;
+                    }
+                    None => break,
+                }
+            }
+            let Some(start) = rest.find(['"', '\'', '#']) else { break };
+            let after = &rest[start..];
+            if after.starts_with('#') {
+                break;
+            }
+            if let Some(quote) = ["\"\"\"", "'''"].into_iter().find(|q| after.starts_with(q)) {
+                open = Some((quote, i + 1));
+                rest = &after[quote.len()..];
+                continue;
+            }
+            let (quote, body) = after.split_at(1);
+            match closing(body, quote == "\"") {
+                Some(end) => rest = &body[end + 1..],
+                None => {
+                    let quote = if quote == "\"" { "\"" } else { "'" };
+                    return Some(Unclosed { line: i + 1, quote });
+                }
+            }
+        }
+    }
+    open.map(|(quote, line)| Unclosed { line, quote })
+}
+
+/// Byte offset in `body` of the quote that ends a one-line string (`"` for a basic string, where
+/// `\` escapes the next character; `'` for a literal one).
+fn closing(body: &str, basic: bool) -> Option<usize> {
+    let mut escaped = false;
+    for (i, c) in body.char_indices() {
+        match c {
+            '\\' if basic && !escaped => escaped = true,
+            '"' if basic && !escaped => return Some(i),
+            '\'' if !basic => return Some(i),
+            _ => escaped = false,
+        }
+    }
+    None
+}
+
 /// toml's messages may span lines; ours are one line.
 fn one_line(msg: &str) -> String {
     msg.split_whitespace().collect::<Vec<_>>().join(" ")
@@ -414,6 +488,39 @@ threshold_db = 6
         assert!(e.contains("line 4") && e.contains("greater than zero"), "{e}");
         let e = err("[[channel]]\nname = \"a\"\ncenter = \"1M\"\nwidth = \"-5k\"\n");
         assert!(e.contains("line 4") && e.contains("greater than zero"), "{e}");
+    }
+
+    #[test]
+    fn an_unclosed_quote_names_its_line_and_the_fix() {
+        // The plan of the first table with its centre's closing quote left off.
+        let e =
+            err("# site\n[[channel]]\nname = \"north-gate\"\ncenter = \"433.1M\nwidth = \"25k\"\n");
+        assert!(e.starts_with("plan 'p.toml' line 4: a quoted value is not closed"), "{e}");
+        assert!(e.contains("add the closing \" (center = \"433.1M)"), "{e}");
+        // A literal string, and a multi-line one that runs to the end of the file (toml points
+        // at the end; the opening line is the one to mend).
+        let e = err("[[channel]]\nname = 'a\ncenter = 1e6\nwidth = 1e3\n");
+        assert!(e.contains("line 2: a quoted value is not closed; add the closing '"), "{e}");
+        let e = err("[[channel]]\nname = \"\"\"a\ncenter = 1e6\nwidth = 1e3\n");
+        assert!(e.contains("line 2: a quoted value is not closed; add the closing \"\"\""), "{e}");
+    }
+
+    #[test]
+    fn closed_quotes_escapes_and_comments_are_not_taken_for_open_ones() {
+        // TOML 1.0 (toml.io, "String"): \" does not end a basic string, a literal string has no
+        // escapes, quotes inside a comment or inside the other kind of string are plain text.
+        let text = concat!(
+            "a = \"say \\\"hi\\\"\" # it's \"quoted\n",
+            "b = 'C:\\dir\\' # \"\n",
+            "c = \"it's\"\n",
+            "d = '''two\nlines ' \" '''\n",
+            "e = \"\"\"x\"\"\" f = 1\n",
+        );
+        assert_eq!(unclosed_quote(text), None);
+        assert_eq!(unclosed_quote("x = 1\ny = \"a\\\"\n"), Some(Unclosed { line: 2, quote: "\"" }));
+        // Another mistake before the open quote keeps toml's own message and line.
+        let e = err("[[channel]]\nname = = 1\ncenter = \"1M\n");
+        assert!(e.contains("line 2") && !e.contains("quoted value"), "{e}");
     }
 
     #[test]

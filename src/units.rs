@@ -80,6 +80,9 @@ pub fn parse_positive_hz(text: &str) -> Result<f64, String> {
 /// Checks a sample rate, from a flag or a file: finite and within
 /// [`MIN_RATE_HZ`] ..= [`MAX_RATE_HZ`]. The message says what was wrong; the caller adds where.
 pub fn check_rate(hz: f64) -> Result<(), String> {
+    if hz < 0.0 {
+        return Err(format!("a sample rate must be positive, and {} is negative", format_hz(hz)));
+    }
     if !(MIN_RATE_HZ..=MAX_RATE_HZ).contains(&hz) {
         return Err(format!(
             "a sample rate of {} is out of range; it must be {} ..= {}",
@@ -267,6 +270,24 @@ pub fn format_clock(t_s: f64) -> String {
     }
 }
 
+/// `x` rounded to `digits` significant figures (`2_398_123.0` to 3 is `2_400_000.0`); zero and
+/// non-finite values are returned as they are.
+pub fn round_significant(x: f64, digits: i32) -> f64 {
+    if x == 0.0 || !x.is_finite() {
+        return x;
+    }
+    // Whole powers of ten are exact, their reciprocals are not: divide by one when rounding to
+    // tens or more, so 2.4e6 stays 2.4e6.
+    let decimals = digits - 1 - x.abs().log10().floor() as i32;
+    if decimals >= 0 {
+        let scale = 10f64.powi(decimals);
+        (x * scale).round() / scale
+    } else {
+        let step = 10f64.powi(-decimals);
+        (x / step).round() * step
+    }
+}
+
 /// Ten times the base-10 logarithm, with a floor so that zero power prints as a very low level
 /// rather than `-inf` (which is not valid JSON).
 pub fn db(power: f64) -> f64 {
@@ -281,6 +302,16 @@ pub fn undb(level_db: f64) -> f64 {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn significant_figures() {
+        // Arithmetic (common practice): 3 significant figures of 2 398 123 are 2.40e6.
+        assert_eq!(round_significant(2_398_123.0, 3), 2.4e6);
+        assert_eq!(round_significant(999_600.0, 3), 1e6);
+        assert_eq!(round_significant(0.012_345, 2), 0.012);
+        assert_eq!(round_significant(-433_999_878.0, 6), -434_000_000.0);
+        assert_eq!(round_significant(0.0, 3), 0.0);
+    }
 
     #[test]
     fn frequencies_with_suffixes() {

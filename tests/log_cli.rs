@@ -591,3 +591,44 @@ fn progress_lines_show_a_silent_run_is_alive() {
     let last = lines.last().unwrap();
     assert!(last.contains("0.5 s of input, none new since the last line"), "{err}");
 }
+
+/// `demo --realtime` at 1 MS/s (a paced source, as a receiver would deliver) piped into `log -`
+/// told `--rate stated`, for `seconds` of samples at the stated rate; returns stderr.
+fn paced_demo_into_log(stated: &str, seconds: &str) -> String {
+    let mut demo = Command::new(BIN)
+        .args(["demo", "--realtime", "--rate", "1M", "--format", "cu8", "--seconds", "8"])
+        .stdout(Stdio::piped())
+        .stderr(Stdio::null())
+        .spawn()
+        .unwrap();
+    let log = Command::new(BIN)
+        .args(["log", "-", "--format", "cu8", "--rate", stated, "--center", "433.5M"])
+        .args(["--channel", "a=433.5M:25k", "--interval", "1s", "--threads", "1"])
+        .args(["--seconds", seconds, "-o", "-"])
+        .stdin(demo.stdout.take().unwrap())
+        .stdout(Stdio::null())
+        .stderr(Stdio::piped())
+        .output()
+        .unwrap();
+    // The demo ends by itself (8 s) or on the closed pipe.
+    let _ = demo.kill();
+    let _ = demo.wait();
+    assert!(log.status.success(), "{}", String::from_utf8_lossy(&log.stderr));
+    String::from_utf8(log.stderr).unwrap()
+}
+
+#[test]
+fn live_input_arriving_at_half_its_stated_rate_is_noted() {
+    // 1 MS/s arriving with --rate 2M: --seconds 2.5 at the stated rate is 5 s of arrival, past
+    // the settling time and the timing window (1 s + 3 s). The same pipe with the right rate
+    // (5 s of it) gets no note. Both run at once to halve the wall time.
+    let right = std::thread::spawn(|| paced_demo_into_log("1M", "5"));
+    let wrong = paced_demo_into_log("2M", "2.5");
+    assert!(
+        wrong.contains("stdin delivers 1.00 MS/s, 0.50 × the 2.00 MS/s --rate gives"),
+        "{wrong}"
+    );
+    assert!(wrong.contains("(--rate 1M?)"), "{wrong}");
+    let right = right.join().unwrap();
+    assert!(!right.contains("delivers"), "{right}");
+}

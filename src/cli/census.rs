@@ -25,10 +25,10 @@ pub struct CensusArgs {
     pub detect: DetectArgs,
     /// Length of one row (an average of FFT frames) in which emissions are detected, e.g. 10ms;
     /// rounded to whole FFT hops. Default: the most hops that fit in 10 ms.
-    #[arg(long, value_name = "DURATION", value_parser = parse_duration)]
+    #[arg(long, value_name = "DURATION", allow_hyphen_values = true, value_parser = parse_duration)]
     pub dwell: Option<Duration>,
     /// An emission ends after this long without a detection (rounded up to whole rows).
-    #[arg(long, value_name = "DURATION", default_value = "25ms", value_parser = parse_duration)]
+    #[arg(long, value_name = "DURATION", default_value = "25ms", allow_hyphen_values = true, value_parser = parse_duration)]
     pub hang: Duration,
     /// Print one JSON object instead of the table.
     #[arg(long)]
@@ -37,7 +37,7 @@ pub struct CensusArgs {
     #[arg(long, value_name = "FILE.toml")]
     pub plan_out: Option<String>,
     /// Stop after this many seconds of input.
-    #[arg(long, value_name = "SECONDS", value_parser = parse_seconds)]
+    #[arg(long, value_name = "SECONDS", allow_negative_numbers = true, value_parser = parse_seconds)]
     pub seconds: Option<f64>,
     /// Live input: make the source (and --record/--capture) wait when processing or the disk
     /// falls behind, instead of dropping blocks.

@@ -25,10 +25,10 @@ pub struct InputArgs {
     #[arg(long, value_name = "FORMAT", value_parser = parse_format)]
     pub format: Option<SampleFormat>,
     /// Sample rate in samples/s (e.g. 2.4M); overrides the file's own.
-    #[arg(long, value_name = "HZ", value_parser = parse_rate)]
+    #[arg(long, value_name = "HZ", allow_hyphen_values = true, value_parser = parse_rate)]
     pub rate: Option<f64>,
     /// Centre frequency in Hz (e.g. 433.92M) so the axis shows absolute frequency.
-    #[arg(long, value_name = "HZ", value_parser = parse_hz)]
+    #[arg(long, value_name = "HZ", allow_hyphen_values = true, value_parser = parse_hz)]
     pub center: Option<f64>,
     /// Time of the first sample, RFC 3339 (e.g. 2026-05-01T08:00:00Z); overrides SigMF
     /// core:datetime.
@@ -36,11 +36,11 @@ pub struct InputArgs {
     pub start: Option<OffsetDateTime>,
     /// Of a SigMF recording, read only capture segment N (its index in "captures", from 0);
     /// needed when the segments were recorded at different frequencies.
-    #[arg(long, value_name = "N")]
+    #[arg(long, value_name = "N", allow_negative_numbers = true, value_parser = parse_count::<usize>)]
     pub segment: Option<usize>,
     /// Of a multi-channel SigMF recording (core:num_channels above 1), analyse channel C (from
     /// 0).
-    #[arg(long, value_name = "C")]
+    #[arg(long, value_name = "C", allow_negative_numbers = true, value_parser = parse_count::<u64>)]
     pub input_channel: Option<u64>,
     /// With INPUT tcp-listen://ADDR:PORT on an address beyond loopback (e.g. 0.0.0.0): accept
     /// samples from other hosts. Without it only loopback addresses may be used.
@@ -69,17 +69,17 @@ impl InputArgs {
 #[derive(Args, Debug, Clone)]
 pub struct DspArgs {
     /// FFT size in samples, 16 ..= 1048576 (any length; powers of two are fastest).
-    #[arg(long = "fft", value_name = "N", default_value_t = 4096)]
+    #[arg(long = "fft", value_name = "N", default_value_t = 4096, allow_negative_numbers = true, value_parser = parse_count::<usize>)]
     pub fft_size: usize,
     /// Window: rect, hann, hamming, blackman, blackman-harris, flattop, kaiser:BETA.
     #[arg(long, value_name = "NAME", default_value = "hann", value_parser = parse_window)]
     pub window: WindowKind,
     /// Fraction of each FFT frame shared with the next, 0 ..= 0.95.
-    #[arg(long, value_name = "FRACTION", default_value_t = 0.5, value_parser = parse_number)]
+    #[arg(long, value_name = "FRACTION", default_value_t = 0.5, allow_negative_numbers = true, value_parser = parse_number)]
     pub overlap: f64,
     /// Threads for the transforms [default: one per core, at most 8]; 1 leaves the other cores
     /// free.
-    #[arg(long, value_name = "N", value_parser = clap::value_parser!(u16).range(1..=256))]
+    #[arg(long, value_name = "N", allow_negative_numbers = true, value_parser = clap::value_parser!(u16).range(1..=256))]
     pub threads: Option<u16>,
 }
 
@@ -123,6 +123,7 @@ pub struct DetectArgs {
         long = "false-alarm",
         value_name = "P",
         default_value_t = DEFAULT_FALSE_ALARM,
+        allow_hyphen_values = true,
         value_parser = parse_number,
         help_heading = "Detection"
     )]
@@ -184,7 +185,7 @@ pub struct ChannelArgs {
     pub plan: PlanArgs,
     /// Length of one measurement sample (one averaged row of FFT frames), e.g. 10ms; rounded to
     /// a whole number of FFT hops. Default: the most hops that fit in 10 ms.
-    #[arg(long, value_name = "DURATION", value_parser = parse_duration, help_heading = "Channels")]
+    #[arg(long, value_name = "DURATION", allow_hyphen_values = true, value_parser = parse_duration, help_heading = "Channels")]
     pub dwell: Option<Duration>,
     /// A channel is occupied in a sample when its power exceeds the noise in its width by this
     /// many dB (ITU-R SM.1880); a plan's threshold_db overrides it per channel.
@@ -192,6 +193,7 @@ pub struct ChannelArgs {
         long,
         value_name = "DB",
         default_value_t = DEFAULT_THRESHOLD_DB,
+        allow_negative_numbers = true,
         value_parser = parse_db,
         help_heading = "Channels"
     )]
@@ -296,6 +298,18 @@ pub const MAX_DB: f64 = 1000.0;
 /// A finite number of ordinary size, for options whose range is checked afterwards.
 pub fn parse_number(text: &str) -> Result<f64, String> {
     parse_within(text, MAX_NUMBER, "number")
+}
+
+/// A whole number for a count or an index (`--fft`, `--segment`, `--seed`…). Flags taking one
+/// accept values that start with `-` (clap's `allow_hyphen_values`), so that a negative value
+/// is named as such here instead of being taken for an unknown flag.
+pub fn parse_count<T: std::str::FromStr>(text: &str) -> Result<T, String> {
+    let shown = sanitize(text);
+    let t = text.trim();
+    if t.strip_prefix('-').is_some_and(|rest| rest.parse::<f64>().is_ok()) {
+        return Err(format!("'{shown}' is negative; give a whole number, 0 or more"));
+    }
+    t.parse().map_err(|_| format!("'{shown}' is not a whole number"))
 }
 
 /// A level or level difference in dB, finite and within ±[`MAX_DB`].

@@ -1,6 +1,6 @@
 //! `demo` flags and their validation.
 
-use super::common::{parse_format, parse_seconds, parse_time};
+use super::common::{parse_count, parse_format, parse_seconds, parse_time};
 use crate::source::demo::{DEFAULT_CENTER_HZ, DEFAULT_SEED};
 use crate::source::SampleFormat;
 use crate::units::{format_num, parse_hz, parse_rate, samples_in};
@@ -18,13 +18,13 @@ pub struct DemoArgs {
     #[arg(long, value_name = "FORMAT", value_parser = parse_format)]
     pub format: Option<SampleFormat>,
     /// Sample rate in samples/s.
-    #[arg(long, value_name = "HZ", default_value = "2.4M", value_parser = parse_rate)]
+    #[arg(long, value_name = "HZ", default_value = "2.4M", allow_hyphen_values = true, value_parser = parse_rate)]
     pub rate: f64,
     /// Centre frequency in Hz (written to SigMF metadata).
-    #[arg(long, value_name = "HZ", value_parser = parse_hz)]
+    #[arg(long, value_name = "HZ", allow_hyphen_values = true, value_parser = parse_hz)]
     pub center: Option<f64>,
     /// Seconds of signal to write; without it, stdout gets an endless stream.
-    #[arg(long, value_name = "SECONDS", value_parser = parse_seconds)]
+    #[arg(long, value_name = "SECONDS", allow_negative_numbers = true, value_parser = parse_seconds)]
     pub seconds: Option<f64>,
     /// Write at the sample rate, as a receiver would, instead of as fast as possible.
     #[arg(long)]
@@ -34,7 +34,7 @@ pub struct DemoArgs {
     #[arg(long, value_name = "TIME", value_parser = parse_time)]
     pub start: Option<OffsetDateTime>,
     /// Seed of the scene's noise and phases (keying and levels do not depend on it).
-    #[arg(long, value_name = "N", default_value_t = DEFAULT_SEED)]
+    #[arg(long, value_name = "N", default_value_t = DEFAULT_SEED, allow_negative_numbers = true, value_parser = parse_count::<u64>)]
     pub seed: u64,
 }
 

@@ -26,10 +26,10 @@ pub struct LogArgs {
     #[command(flatten)]
     pub dsp: DspArgs,
     /// Length of each occupancy record (interval), e.g. 10s, 15m, 1h.
-    #[arg(long, value_name = "DURATION", default_value = "60s", value_parser = parse_duration)]
+    #[arg(long, value_name = "DURATION", default_value = "60s", allow_hyphen_values = true, value_parser = parse_duration)]
     pub interval: Duration,
     /// An emission ends after this long below threshold (rounded up to whole samples).
-    #[arg(long, value_name = "DURATION", default_value = "25ms", value_parser = parse_duration)]
+    #[arg(long, value_name = "DURATION", default_value = "25ms", allow_hyphen_values = true, value_parser = parse_duration)]
     pub hang: Duration,
     /// Write the log here (default stdout, -); a file is replaced unless --append.
     #[arg(short = 'o', long = "out", value_name = "FILE", default_value = "-")]
@@ -46,10 +46,10 @@ pub struct LogArgs {
     pub no_drop: bool,
     /// Start a new file every UTC day (daily), every hour (hourly) or when the file reaches a
     /// size (e.g. 100M); the key goes before the extension of -o (site.2026-12-02.jsonl).
-    #[arg(long, value_name = "WHEN", value_parser = parse_rotate)]
+    #[arg(long, value_name = "WHEN", allow_hyphen_values = true, value_parser = parse_rotate)]
     pub rotate: Option<Rotate>,
     /// Stop after this many seconds of input.
-    #[arg(long, value_name = "SECONDS", value_parser = parse_seconds)]
+    #[arg(long, value_name = "SECONDS", allow_negative_numbers = true, value_parser = parse_seconds)]
     pub seconds: Option<f64>,
     /// A status line on stderr every PERIOD (e.g. 1m; off for none): input read, intervals and
     /// occupancy, drops. Default: every minute for live input when stderr is a terminal.

@@ -1,7 +1,7 @@
 //! `measure` flags and their validation.
 
 use super::common::{
-    parse_band, parse_db, parse_number, parse_seconds, ChannelArgs, ChannelConfig,
+    parse_band, parse_count, parse_db, parse_number, parse_seconds, ChannelArgs, ChannelConfig,
 };
 use super::common::{DetectArgs, DspArgs, InputArgs};
 use crate::dsp::DspConfig;
@@ -32,22 +32,22 @@ pub struct MeasureArgs {
     #[command(flatten)]
     pub dsp: DspArgs,
     /// Read at most this many seconds of input (the demo scene defaults to 2 s).
-    #[arg(long, value_name = "SECONDS", value_parser = parse_seconds)]
+    #[arg(long, value_name = "SECONDS", allow_negative_numbers = true, value_parser = parse_seconds)]
     pub seconds: Option<f64>,
     /// Skip this many seconds of input before measuring (`--seconds` counts from there).
-    #[arg(long, value_name = "SECONDS", value_parser = parse_seconds)]
+    #[arg(long, value_name = "SECONDS", allow_negative_numbers = true, value_parser = parse_seconds)]
     pub skip: Option<f64>,
     /// How many of the strongest signals to list.
-    #[arg(long, value_name = "K", default_value_t = 10)]
+    #[arg(long, value_name = "K", default_value_t = 10, allow_negative_numbers = true, value_parser = parse_count::<usize>)]
     pub peaks: usize,
     /// A band to measure, CENTER:WIDTH in Hz (absolute, e.g. 433.92M:25k); repeatable.
     #[arg(long = "band", value_name = "CENTER:WIDTH", value_parser = parse_band)]
     pub bands: Vec<Band>,
     /// Occupied bandwidth: percentage of a band's power inside it (ITU-R SM.328 β = 100 − this).
-    #[arg(long, value_name = "PERCENT", default_value_t = 99.0, value_parser = parse_number)]
+    #[arg(long, value_name = "PERCENT", default_value_t = 99.0, allow_negative_numbers = true, value_parser = parse_number)]
     pub obw_percent: f64,
     /// x for the x-dB bandwidth, in dB below the band's highest PSD.
-    #[arg(long, value_name = "DB", default_value_t = 26.0, value_parser = parse_db)]
+    #[arg(long, value_name = "DB", default_value_t = 26.0, allow_negative_numbers = true, value_parser = parse_db)]
     pub xdb: f64,
     /// Print one JSON object instead of the table.
     #[arg(long)]

@@ -156,4 +156,126 @@ mod tests {
         assert!(Cli::try_parse_from(["bandwarden", "measure", "--threads", "0"]).is_err());
         assert_eq!(default_measure().validate().unwrap().seconds, Some(2.0));
     }
+
+    /// The flags `bandwarden COMMAND --help` lists under each heading, in order.
+    fn flags_by_heading(command: &str) -> Vec<(String, Vec<String>)> {
+        let mut cli = Cli::command();
+        let help = cli.find_subcommand_mut(command).unwrap().render_help().to_string();
+        let mut sections: Vec<(String, Vec<String>)> = Vec::new();
+        for line in help.lines() {
+            if let Some(heading) = line.strip_suffix(':').filter(|_| !line.starts_with(' ')) {
+                sections.push((heading.to_string(), Vec::new()));
+            } else if let (Some(flag), Some(last)) =
+                (line.split_whitespace().find(|w| w.starts_with("--")), sections.last_mut())
+            {
+                // A flag's own line is indented a little; its wrapped help text far more.
+                let indent = line.len() - line.trim_start().len();
+                if indent <= 6 && line.trim_start().starts_with('-') {
+                    last.1.push(flag.trim_end_matches(',').to_string());
+                }
+            }
+        }
+        sections
+    }
+
+    #[test]
+    fn sigmf_flags_have_a_heading_of_their_own() {
+        let emission = ["--annotate", "--capture", "--pre", "--post", "--capture-max-seconds"];
+        for command in ["log", "census", "watch"] {
+            let sections = flags_by_heading(command);
+            let sigmf = sections.iter().find(|(h, _)| h == sigmf_out::SIGMF_HEADING);
+            let Some((_, flags)) = sigmf else { panic!("{command}: no SigMF heading") };
+            let mut expected = vec!["--record"];
+            if command != "watch" {
+                expected.extend(emission);
+                expected.push("--capture-max-bytes");
+            }
+            assert_eq!(flags, &expected, "{command}");
+            // Not under the broker's heading, nor anywhere else.
+            for (heading, flags) in &sections {
+                if heading != sigmf_out::SIGMF_HEADING {
+                    assert!(!flags.iter().any(|f| f == "--record"), "{command}: {heading}");
+                }
+            }
+        }
+        let watch = flags_by_heading("watch");
+        assert!(watch.iter().any(|(h, f)| h == "Options" && f.contains(&"--alarm-log".into())));
+    }
+
+    #[test]
+    fn the_channel_syntax_is_spelt_one_way() {
+        for command in ["log", "measure", "watch", "snapshot"] {
+            let mut cli = Cli::command();
+            let help = cli.find_subcommand_mut(command).unwrap().render_long_help().to_string();
+            assert!(!help.contains("CENTRE"), "{command}: {help}");
+        }
+    }
+
+    /// Why `bandwarden ARGS` is refused: clap's error, or the command's validation error.
+    fn refusal(args: &[&str]) -> String {
+        let argv = std::iter::once("bandwarden").chain(args.iter().copied());
+        let cli = match Cli::try_parse_from(argv) {
+            Ok(cli) => cli,
+            Err(e) => return e.to_string(),
+        };
+        let refused = match cli.command {
+            Some(Command::Measure(a)) => a.validate().err(),
+            Some(Command::Log(a)) => a.validate().err(),
+            Some(Command::Watch(a)) => a.validate().err(),
+            Some(Command::Census(a)) => a.validate().err(),
+            Some(Command::Demo(a)) => a.validate().err(),
+            Some(Command::Snapshot(a)) => a.validate().err(),
+            _ => panic!("no case for {args:?}"),
+        };
+        format!("{:#}", refused.unwrap_or_else(|| panic!("{args:?} was accepted")))
+    }
+
+    #[test]
+    fn negative_values_are_called_negative_not_unknown_flags() {
+        let ch = "a=1M:1k";
+        let cases: &[(&[&str], &str)] = &[
+            (&["log", "f", "--interval", "-5s"], "'-5s' must be a non-negative duration"),
+            (&["log", "f", "--hang", "-5ms"], "'-5ms' must be a non-negative duration"),
+            (&["log", "f", "--dwell", "-5ms"], "'-5ms' must be a non-negative duration"),
+            (&["log", "f", "--publish-linger", "-5s"], "'-5s' must be a non-negative duration"),
+            (&["census", "f", "--dwell", "-1s"], "'-1s' must be a non-negative duration"),
+            (&["census", "f", "--hang", "-1s"], "'-1s' must be a non-negative duration"),
+            (&["log", "f", "--seconds", "-5"], "'-5' must be a positive number of seconds"),
+            (&["log", "f", "--pre", "-1"], "'-1' must be a positive number of seconds"),
+            (&["log", "f", "--post", "-1"], "'-1' must be a positive number of seconds"),
+            (&["log", "f", "--capture-max-seconds", "-1"], "'-1' must be a positive number"),
+            (&["census", "f", "--seconds", "-1"], "'-1' must be a positive number of seconds"),
+            (&["measure", "--skip", "-1"], "'-1' must be a positive number of seconds"),
+            (&["snapshot", "f", "--seconds", "-2"], "'-2' must be a positive number of seconds"),
+            (&["demo", "--seconds", "-2"], "'-2' must be a positive number of seconds"),
+            (&["log", "f", "--rotate", "-5M"], "'-5M' is not a rotation"),
+            (&["log", "f", "--spool-max", "-5M"], "'-5M' is not a size"),
+            (&["log", "f", "--capture-max-bytes", "-1G"], "'-1G' is not a size"),
+            (&["measure", "--rate", "-2.4M"], "must be positive, and -2.400000 MHz is negative"),
+            (&["demo", "--rate", "-1M"], "must be positive, and -1.000000 MHz is negative"),
+            (&["measure", "--fft", "-5"], "'-5' is negative"),
+            (&["measure", "--peaks", "-3"], "'-3' is negative"),
+            (&["measure", "--segment", "-1"], "'-1' is negative"),
+            (&["measure", "--input-channel", "-1"], "'-1' is negative"),
+            (&["demo", "--seed", "-1"], "'-1' is negative"),
+            (&["snapshot", "f", "--width", "-5"], "'-5' is negative"),
+            (&["snapshot", "f", "--height", "-5"], "'-5' is negative"),
+            (&["measure", "--threads", "-2"], "-2 is not in 1..=256"),
+            (&["measure", "--overlap", "-0.5"], "--overlap -0.5 is out of range"),
+            (&["measure", "--obw-percent", "-5"], "--obw-percent -5 is out of range"),
+            (&["measure", "--xdb", "-5"], "--xdb -5 is out of range"),
+            (&["measure", "--false-alarm", "-1e-6"], "--false-alarm -1.0e-6 is out of range"),
+            (&["log", "f", "--channel", ch, "--threshold-db", "-5"], "-5 is out of range"),
+            (&["watch", "--fps", "-5"], "--fps -5 is out of range"),
+            (&["watch", "--row-rate", "-1"], "--row-rate -1 is out of range"),
+            (&["watch", "--speed", "-2"], "--speed -2 is out of range"),
+        ];
+        for (args, expected) in cases {
+            let why = refusal(args);
+            assert!(why.contains(expected), "{args:?}: {why}");
+            assert!(!why.contains("unexpected argument"), "{args:?}: {why}");
+        }
+        // A negative centre frequency is a value, not a flag (its meaning is checked later).
+        assert!(Cli::try_parse_from(["bandwarden", "measure", "--center", "-5M"]).is_ok());
+    }
 }

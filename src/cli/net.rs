@@ -76,11 +76,11 @@ pub struct PublishArgs {
     #[arg(long, value_name = "DIR")]
     pub spool: Option<PathBuf>,
     /// Most the spool may hold (e.g. 256M); beyond it records stay in the local log only.
-    #[arg(long, value_name = "SIZE", default_value = "256M", value_parser = parse_spool_size)]
+    #[arg(long, value_name = "SIZE", default_value = "256M", allow_hyphen_values = true, value_parser = parse_spool_size)]
     pub spool_max: u64,
     /// At the end, how long to wait for the broker to take what is still spooled (the rest is
     /// sent by the next run on the same spool).
-    #[arg(long, value_name = "DURATION", default_value = "10s", value_parser = parse_duration)]
+    #[arg(long, value_name = "DURATION", default_value = "10s", allow_hyphen_values = true, value_parser = parse_duration)]
     pub publish_linger: Duration,
     #[command(flatten)]
     pub broker: BrokerArgs,

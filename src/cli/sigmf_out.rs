@@ -8,8 +8,12 @@ pub use crate::output::sigmf::outputs::SigmfOut;
 use anyhow::{bail, Result};
 use clap::Args;
 
+/// The heading `--help` lists the SigMF flags under.
+pub const SIGMF_HEADING: &str = "SigMF output";
+
 /// `--record`, for every command that runs on live input.
 #[derive(Args, Debug, Clone, Default)]
+#[command(next_help_heading = SIGMF_HEADING)]
 pub struct RecordArgs {
     /// Also record the input, as it is read, to this SigMF recording (FILE.sigmf-meta beside
     /// FILE.sigmf-data; replaced if it exists), in the input's datatype (cf32_le for the demo).
@@ -28,6 +32,7 @@ impl RecordArgs {
 
 /// `--annotate` and `--capture`, for the commands that find emissions.
 #[derive(Args, Debug, Clone, Default)]
+#[command(next_help_heading = SIGMF_HEADING)]
 pub struct EmissionOutArgs {
     /// Write every emission as a SigMF annotation to this new metadata file, pointing at the
     /// input's dataset (or at --record's); name the input's own .sigmf-meta to add them there.
@@ -37,18 +42,18 @@ pub struct EmissionOutArgs {
     #[arg(long, value_name = "DIR")]
     pub capture: Option<String>,
     /// Seconds of IQ kept before each emission's start in a capture.
-    #[arg(long, value_name = "SECONDS", default_value = "0.5", value_parser = parse_seconds)]
+    #[arg(long, value_name = "SECONDS", default_value = "0.5", allow_negative_numbers = true, value_parser = parse_seconds)]
     pub pre: f64,
     /// Seconds of IQ kept after each emission's end in a capture.
-    #[arg(long, value_name = "SECONDS", default_value = "0.5", value_parser = parse_seconds)]
+    #[arg(long, value_name = "SECONDS", default_value = "0.5", allow_negative_numbers = true, value_parser = parse_seconds)]
     pub post: f64,
     /// Longest emission a capture holds, in seconds (from its start; a longer one is cut there
     /// and marked truncated).
-    #[arg(long, value_name = "SECONDS", default_value = "30", value_parser = parse_seconds)]
+    #[arg(long, value_name = "SECONDS", default_value = "30", allow_negative_numbers = true, value_parser = parse_seconds)]
     pub capture_max_seconds: f64,
     /// Most bytes all captures of the run may take (e.g. 500M, 2G); when the next one might not
     /// fit, capturing stops (each skipped capture is logged).
-    #[arg(long, value_name = "BYTES", default_value = "1G", value_parser = parse_bytes)]
+    #[arg(long, value_name = "BYTES", default_value = "1G", allow_hyphen_values = true, value_parser = parse_bytes)]
     pub capture_max_bytes: u64,
 }
 

@@ -1,6 +1,6 @@
 //! `snapshot` flags and their validation.
 
-use super::common::{parse_db, parse_seconds, DspArgs, InputArgs, PlanArgs};
+use super::common::{parse_count, parse_db, parse_seconds, DspArgs, InputArgs, PlanArgs};
 use super::watch::MAX_REF_OFFSET_DB;
 use crate::dsp::DspConfig;
 use crate::output::picture::canvas::{PictureFormat, MAX_SIDE, MIN_SIDE};
@@ -23,10 +23,10 @@ pub struct SnapshotArgs {
     #[command(flatten)]
     pub dsp: DspArgs,
     /// Leave out this many seconds at the start of the input.
-    #[arg(long, value_name = "SECONDS", value_parser = parse_seconds)]
+    #[arg(long, value_name = "SECONDS", allow_negative_numbers = true, value_parser = parse_seconds)]
     pub skip: Option<f64>,
     /// Show at most this many seconds (after --skip); default: to the end of the input.
-    #[arg(long, value_name = "SECONDS", value_parser = parse_seconds)]
+    #[arg(long, value_name = "SECONDS", allow_negative_numbers = true, value_parser = parse_seconds)]
     pub seconds: Option<f64>,
     #[command(flatten)]
     pub channels: PlanArgs,
@@ -34,10 +34,10 @@ pub struct SnapshotArgs {
     #[arg(long)]
     pub outline: bool,
     /// Picture width in pixels.
-    #[arg(long, value_name = "PX", default_value_t = 1400)]
+    #[arg(long, value_name = "PX", default_value_t = 1400, allow_negative_numbers = true, value_parser = parse_count::<u32>)]
     pub width: u32,
     /// Picture height in pixels.
-    #[arg(long, value_name = "PX", default_value_t = 900)]
+    #[arg(long, value_name = "PX", default_value_t = 900, allow_negative_numbers = true, value_parser = parse_count::<u32>)]
     pub height: u32,
     /// Colour map of the waterfall: viridis, magma, inferno or grey (the live monitor's maps).
     #[arg(long, value_name = "NAME", default_value = "viridis", value_parser = parse_colour_map)]

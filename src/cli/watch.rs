@@ -24,14 +24,14 @@ pub struct WatchArgs {
     #[command(flatten)]
     pub detect: DetectArgs,
     /// Screen updates per second at most, 1 ..= 60.
-    #[arg(long, value_name = "N", default_value_t = 20.0, value_parser = parse_number)]
+    #[arg(long, value_name = "N", default_value_t = 20.0, allow_negative_numbers = true, value_parser = parse_number)]
     pub fps: f64,
     /// Waterfall rows per second of input, 0.1 ..= 200; each row averages the FFT frames of
     /// its time.
-    #[arg(long, value_name = "N", default_value_t = 20.0, value_parser = parse_number)]
+    #[arg(long, value_name = "N", default_value_t = 20.0, allow_negative_numbers = true, value_parser = parse_number)]
     pub row_rate: f64,
     /// Play a file at this multiple of its recorded rate (1 = as recorded), 0.001 ..= 1000.
-    #[arg(long, value_name = "X", default_value_t = 1.0, value_parser = parse_number)]
+    #[arg(long, value_name = "X", default_value_t = 1.0, allow_negative_numbers = true, value_parser = parse_number)]
     pub speed: f64,
     /// Start a file again when it ends.
     #[arg(long = "loop")]
@@ -52,8 +52,6 @@ pub struct WatchArgs {
     /// Leave the mouse to the terminal (e.g. for selecting text) instead of placing markers.
     #[arg(long)]
     pub no_mouse: bool,
-    #[command(flatten)]
-    pub record: RecordArgs,
     /// Append a JSON Lines record to FILE at each channel-alarm onset (alarms come from the
     /// plan's alarm_dbfs or the A key).
     #[arg(long, value_name = "FILE")]
@@ -62,6 +60,9 @@ pub struct WatchArgs {
     /// writable (checked at start).
     #[arg(long, value_name = "DIR", default_value = ".")]
     pub evidence_dir: String,
+    // Last: its heading (SigMF output) holds for the flags that follow it.
+    #[command(flatten)]
+    pub record: RecordArgs,
 }
 
 /// Slowest and fastest playback of a file: a thousandth of the recorded rate is already a slide

@@ -6,6 +6,10 @@
 //! block's `start` index jumps by the gap, so time stays exact and the DSP knows to re-frame.
 //! Only input that arrives at (about) its real rate is treated so: a pipe that has delivered more
 //! than its sample rate allows (a recording sent through `cat` or `ssh`) waits instead.
+//!
+//! Live input is also timed against its stated rate ([`RateCheck`]): a pipe that delivers half
+//! the samples per second `--rate` claims is a wrong `--rate` (every frequency and time shown is
+//! then off by that factor), and [`ReaderStats::rate_note`] says so for the command to show.
 
 use super::{InputIssues, SampleSource};
 use anyhow::Result;
@@ -61,12 +65,21 @@ pub struct ReaderStats {
     /// Why the reader stopped, when the input failed (a wrong format, a read error): for a screen
     /// that would otherwise go on waiting for samples.
     pub problem: Mutex<Option<String>>,
+    /// Set once when live input was seen to arrive at a rate other than its stated one
+    /// ([`RateCheck`]): for the command to print and a screen to show.
+    pub rate_note: Mutex<Option<String>>,
 }
 
 impl ReaderStats {
     /// Why the reader stopped, if the input failed.
     pub fn problem(&self) -> Option<String> {
         self.problem.lock().ok().and_then(|p| p.clone())
+    }
+
+    /// What the reader found about the rate live input arrives at, if it is not the stated one;
+    /// taken, so whoever shows it shows it once.
+    pub fn take_rate_note(&self) -> Option<String> {
+        self.rate_note.lock().ok().and_then(|mut n| n.take())
     }
 }
 
@@ -143,6 +156,8 @@ fn run(
     let mut pacer = opts.pace.map(Pacer::new);
     let mut first_block: Option<Instant> = None;
     let mut recording = false;
+    let live = src.info().live;
+    let mut rate_check: Option<RateCheck> = None;
     // Samples lost to a disconnection and not yet announced by a delivered block.
     let mut disconnected = 0u64;
     let mut skipped = 0u64;
@@ -179,42 +194,174 @@ fn run(
             }
             break;
         }
-        let first = *first_block.get_or_insert_with(Instant::now);
+        let arrived = Instant::now();
+        let first = *first_block.get_or_insert(arrived);
+        if live {
+            let check = rate_check.get_or_insert_with(|| RateCheck::new(rate, arrived));
+            if lost > 0 {
+                check.disturbed(arrived);
+            } else if let Some(measured) = check.arrived(n as u64, arrived) {
+                if let (Some(text), Ok(mut slot)) =
+                    (rate_message(&src.info().label, measured, rate), stats.rate_note.lock())
+                {
+                    *slot = Some(text);
+                }
+            }
+        }
         // Seen once ahead of real time, the input is a recording: it may wait, never drop, and
         // from now on plays at its recorded rate when asked to.
         if !recording && ahead_of_real_time(index + n as u64, rate, first, opts) {
             recording = true;
             pacer = pacer.or(opts.pace_recordings.map(Pacer::new));
         }
-        if let Some(p) = pacer.as_mut() {
-            p.wait(n as u64, rate, stop);
-        }
+        let mut held = pacer.as_mut().is_some_and(|p| p.wait(n as u64, rate, stop));
         let block = Block { start: index, samples, disconnected, home: Some(home.clone()) };
         index += n as u64;
         stats.samples.fetch_add(n as u64, Ordering::Relaxed);
-        if opts.drop_when_full {
-            match tx.try_send(block) {
-                Ok(()) => disconnected = 0,
-                Err(TrySendError::Full(b)) if recording => {
-                    // A pipe that delivers faster than real time is a recording, not a
-                    // receiver: it can wait (back-pressure), and must lose nothing.
-                    if tx.send(b).is_err() {
-                        break;
-                    }
-                    disconnected = 0;
-                }
-                Err(TrySendError::Full(b)) => {
-                    stats.dropped.fetch_add(b.samples.len() as u64, Ordering::Relaxed);
-                }
-                Err(TrySendError::Disconnected(_)) => break,
+        match tx.try_send(block) {
+            Ok(()) => disconnected = 0,
+            Err(TrySendError::Full(b)) if opts.drop_when_full && !recording => {
+                stats.dropped.fetch_add(b.samples.len() as u64, Ordering::Relaxed);
             }
-        } else if tx.send(block).is_err() {
-            break;
-        } else {
-            disconnected = 0;
+            Err(TrySendError::Full(b)) => {
+                // File input, or a pipe that delivers faster than real time (a recording, not
+                // a receiver): it can wait (back-pressure), and must lose nothing.
+                held = true;
+                if tx.send(b).is_err() {
+                    break;
+                }
+                disconnected = 0;
+            }
+            Err(TrySendError::Disconnected(_)) => break,
+        }
+        if held {
+            if let Some(check) = rate_check.as_mut() {
+                check.disturbed(Instant::now());
+            }
         }
     }
     Ok(())
+}
+
+/// Live input is timed only after it has run this long: a receiver's start-up burst and what
+/// the pipe or socket buffered are read in that time.
+pub const RATE_SETTLE_S: f64 = 1.0;
+/// Live input's arrival rate is measured over this long.
+pub const RATE_WINDOW_S: f64 = 3.0;
+/// Arrival rates within this fraction of the stated rate pass: a window of 3 s read in blocks of
+/// about 10 ms is exact to about 1 %, and the rest is room for the reader being scheduled late
+/// at either end of the window (0.3 s in all) on a busy machine. Rates that differ by less
+/// (2.4M given for 2.56 MS/s) are not seen.
+pub const RATE_TOLERANCE: f64 = 0.10;
+
+/// Times live input against its stated sample rate.
+///
+/// The rule: once the input has run [`RATE_SETTLE_S`], count the samples that arrive over the
+/// next [`RATE_WINDOW_S`]; when their rate differs from the stated one by more than
+/// [`RATE_TOLERANCE`], say so, once (one window decides, either way). A window in which the
+/// reader itself held the input back (it waited on a full queue, or the pacer held a recording
+/// to its rate) or lost samples to a disconnection says nothing about the source: it is dropped,
+/// and timing starts again after another settling time (the backlog is read in it). So input
+/// whose pace the processing sets (a recording piped in faster than the DSP can take it) is
+/// never judged; a recording the processing keeps up with arrives faster than the stated rate,
+/// and the message names that as a possible cause.
+struct RateCheck {
+    rate: f64,
+    /// Samples read so far (lost ones not counted).
+    arrived: u64,
+    /// No window starts before this.
+    settled_at: Instant,
+    /// When the current window began and how many samples had arrived by then.
+    window: Option<(Instant, u64)>,
+    done: bool,
+}
+
+impl RateCheck {
+    fn new(rate: f64, now: Instant) -> RateCheck {
+        RateCheck { rate, arrived: 0, settled_at: settled(now), window: None, done: false }
+    }
+
+    /// The reader held the input back or lost samples at `now`: what arrives next is a backlog
+    /// or a gap, not the source's pace.
+    fn disturbed(&mut self, now: Instant) {
+        if !self.done {
+            self.window = None;
+            self.settled_at = settled(now);
+        }
+    }
+
+    /// Counts `n` samples that arrived at `now`; returns their measured rate when a window is
+    /// complete (once).
+    fn arrived(&mut self, n: u64, now: Instant) -> Option<f64> {
+        if self.done || self.rate <= 0.0 {
+            return None;
+        }
+        self.arrived += n;
+        if now < self.settled_at {
+            return None;
+        }
+        let Some((t0, a0)) = self.window else {
+            self.window = Some((now, self.arrived));
+            return None;
+        };
+        let span = now.duration_since(t0).as_secs_f64();
+        if span < RATE_WINDOW_S {
+            return None;
+        }
+        self.done = true;
+        Some((self.arrived - a0) as f64 / span)
+    }
+}
+
+/// When input that started (or was last held back) at `now` may be timed.
+fn settled(now: Instant) -> Instant {
+    now + Duration::from_secs_f64(RATE_SETTLE_S)
+}
+
+/// What to tell the user when `label` delivers `measured` samples per second and `--rate` says
+/// `stated` (`None` within [`RATE_TOLERANCE`]).
+pub fn rate_message(label: &str, measured: f64, stated: f64) -> Option<String> {
+    let ratio = measured / stated;
+    if (ratio - 1.0).abs() <= RATE_TOLERANCE {
+        return None;
+    }
+    let label = crate::messages::sanitize(label);
+    let got = format_rate(measured);
+    let said = format_rate(stated);
+    let flag = rate_flag(measured);
+    let window = RATE_WINDOW_S;
+    Some(if ratio < 1.0 {
+        format!(
+            "{label} delivers {got}, {ratio:.2} × the {said} --rate gives (timed over {window} s in which bandwarden never held it back): with a wrong --rate every frequency, width and time shown is off by that factor; give the receiver's real rate (--rate {flag}?). A receiver that loses samples, or a slow link, also delivers less than its rate"
+        )
+    } else {
+        format!(
+            "{label} delivers {got}, {ratio:.2} × the {said} --rate gives (timed over {window} s while the processing kept up): if it is a receiver, --rate is wrong and every frequency, width and time shown is off by that factor (--rate {flag}?); a recording played into the pipe also arrives faster than real time, and is measured correctly"
+        )
+    })
+}
+
+/// `2.40 MS/s`, `250.00 kS/s`.
+fn format_rate(sps: f64) -> String {
+    let (value, prefix) = si(sps);
+    format!("{value:.2} {prefix}S/s")
+}
+
+/// A measured rate as a `--rate` value to three significant figures (`2.4M`, `250k`).
+fn rate_flag(sps: f64) -> String {
+    let (value, prefix) = si(crate::units::round_significant(sps, 3));
+    format!("{value}{prefix}")
+}
+
+/// A rate in the unit it reads best in: mega, kilo or none.
+fn si(sps: f64) -> (f64, &'static str) {
+    if sps >= 1e6 {
+        (sps / 1e6, "M")
+    } else if sps >= 1e3 {
+        (sps / 1e3, "k")
+    } else {
+        (sps, "")
+    }
 }
 
 /// How far ahead of real time an input may run before it counts as faster than a receiver: a
@@ -241,14 +388,16 @@ impl Pacer {
         Pacer { origin: Instant::now(), samples: 0, speed }
     }
 
-    /// Counts `n` more samples and sleeps until they are due.
-    fn wait(&mut self, n: u64, rate: f64, stop: &AtomicBool) {
+    /// Counts `n` more samples and sleeps until they are due; true when it slept.
+    fn wait(&mut self, n: u64, rate: f64, stop: &AtomicBool) -> bool {
         self.samples += n;
         let due = Duration::from_secs_f64(self.samples as f64 / (rate * self.speed));
         let elapsed = self.origin.elapsed();
-        if due > elapsed {
+        let early = due > elapsed;
+        if early {
             sleep_unless_stopped(due - elapsed, stop);
         }
+        early
     }
 }
 
@@ -318,6 +467,70 @@ mod tests {
         }
         assert_eq!(late.last().map(|b| b.0 + b.1 as u64), Some(150_000));
         assert!((0.85..3.0).contains(&took), "took {took} s");
+    }
+
+    /// Feeds `check` blocks of `block` samples every `every` seconds of simulated time for
+    /// `seconds`, calling `hold` on each block index to ask whether the reader waited after it.
+    fn time_blocks(
+        check: &mut RateCheck,
+        t0: Instant,
+        block: u64,
+        every: f64,
+        seconds: f64,
+        hold: impl Fn(usize) -> bool,
+    ) -> Option<f64> {
+        let mut verdict = None;
+        for i in 0..(seconds / every) as usize {
+            let now = t0 + Duration::from_secs_f64(i as f64 * every);
+            verdict = verdict.or(check.arrived(block, now));
+            if hold(i) {
+                check.disturbed(now);
+            }
+        }
+        verdict
+    }
+
+    #[test]
+    fn arrival_is_timed_after_settling_over_one_window() {
+        // 2.4 MS/s arriving in 24 000-sample blocks every 10 ms, with 4.8 MS/s stated.
+        let t0 = Instant::now();
+        let mut check = RateCheck::new(4.8e6, t0);
+        let got = time_blocks(&mut check, t0, 24_000, 0.01, 6.0, |_| false).unwrap();
+        assert!((got - 2.4e6).abs() < 1.0, "{got}");
+        // Decided once: later blocks say nothing more.
+        assert_eq!(check.arrived(24_000, t0 + Duration::from_secs(7)), None);
+        let note = rate_message("stdin", got, 4.8e6).unwrap();
+        assert!(note.contains("stdin delivers 2.40 MS/s, 0.50 × the 4.80 MS/s"), "{note}");
+        assert!(note.contains("--rate 2.4M?"), "{note}");
+        // Not before settling plus a window have passed.
+        let mut early = RateCheck::new(4.8e6, t0);
+        let span = RATE_SETTLE_S + RATE_WINDOW_S - 0.1;
+        assert_eq!(time_blocks(&mut early, t0, 24_000, 0.01, span, |_| false), None);
+    }
+
+    #[test]
+    fn a_reader_that_held_the_input_back_does_not_judge_it() {
+        // A recording the processing paces: the reader waits after every tenth block, so no
+        // window is ever free of it and nothing is said however fast the blocks come.
+        let t0 = Instant::now();
+        let mut check = RateCheck::new(1e6, t0);
+        assert_eq!(time_blocks(&mut check, t0, 100_000, 0.01, 20.0, |i| i % 10 == 9), None);
+        // One wait, then steady arrival: timed again after settling.
+        let mut once = RateCheck::new(1e6, t0);
+        let got = time_blocks(&mut once, t0, 10_000, 0.01, 8.0, |i| i == 150).unwrap();
+        assert!((got - 1e6).abs() < 1.0, "{got}");
+        assert_eq!(rate_message("stdin", got, 1e6), None);
+    }
+
+    #[test]
+    fn rates_within_the_tolerance_pass() {
+        assert_eq!(rate_message("stdin", 2.4e6 * 0.91, 2.4e6), None);
+        assert_eq!(rate_message("stdin", 2.4e6 * 1.09, 2.4e6), None);
+        let fast = rate_message("tcp://rx:1234", 2.4e6, 1e6).unwrap();
+        assert!(fast.contains("2.40 × the 1.00 MS/s --rate gives"), "{fast}");
+        assert!(fast.contains("a recording played into the pipe"), "{fast}");
+        let slow = rate_message("stdin", 2.048e6, 2.4e6).unwrap();
+        assert!(slow.contains("--rate 2.05M?"), "{slow}");
     }
 
     #[test]

@@ -131,6 +131,9 @@ fn event_loop(
         next = (next + frame).max(now);
         take_rows(app, dsp);
         app.set_losses(reader.dropped.load(Ordering::Relaxed), dsp.skipped.load(Ordering::Relaxed));
+        if let Some(n) = reader.take_rate_note() {
+            app.say_for(n, Duration::from_secs(60));
+        }
         if let Some(p) = reader.problem() {
             // The input failed (a wrong --format): say so where notices go, for as long as the
             // screen stays up, instead of waiting for samples that will never come.

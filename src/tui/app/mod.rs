@@ -260,7 +260,12 @@ impl App {
 
     /// A notice that stays while the screen is up (the input failed: nothing else will come).
     pub fn hold_notice(&mut self, text: impl Into<String>) {
-        self.alerts.notice = Some((text.into(), Instant::now() + Duration::from_secs(86_400)));
+        self.say_for(text, Duration::from_secs(86_400));
+    }
+
+    /// Shows `text` on the marker line for `how_long`.
+    pub fn say_for(&mut self, text: impl Into<String>, how_long: Duration) {
+        self.alerts.notice = Some((text.into(), Instant::now() + how_long));
     }
 
     /// Shows `text` on the marker line for a few seconds.
