@@ -624,10 +624,9 @@ fn live_input_arriving_at_half_its_stated_rate_is_noted() {
     // (5 s of it) gets no note. Both run at once to halve the wall time.
     let right = std::thread::spawn(|| paced_demo_into_log("1M", "5"));
     let wrong = paced_demo_into_log("2M", "2.5");
-    assert!(
-        wrong.contains("stdin delivers 1.00 MS/s, 0.50 × the 2.00 MS/s --rate gives"),
-        "{wrong}"
-    );
+    // The delivered rate is measured (1 MS/s within a hair: "1.00 MS/s" or "999.98 kS/s").
+    assert!(wrong.contains("stdin delivers "), "{wrong}");
+    assert!(wrong.contains(", 0.50 × the 2.00 MS/s --rate gives"), "{wrong}");
     assert!(wrong.contains("(--rate 1M?)"), "{wrong}");
     let right = right.join().unwrap();
     assert!(!right.contains("delivers"), "{right}");
