@@ -22,7 +22,7 @@
 //! On the command line, `--channel NAME=CENTER:WIDTH` adds a channel (repeatable); it combines
 //! with `--plan`.
 
-use crate::units::{format_hz, parse_hz};
+use crate::units::{format_hz, format_hz_within, parse_hz};
 use anyhow::{bail, Context, Result};
 use serde::Deserialize;
 use std::fmt;
@@ -172,6 +172,12 @@ impl Plan {
 
     /// Checks every channel lies inside the captured span `[low_hz, high_hz]`.
     pub fn check_span(&self, low_hz: f64, high_hz: f64) -> Result<()> {
+        self.check_span_within(low_hz, high_hz, 1.0)
+    }
+
+    /// As [`Plan::check_span`] for a span whose edges are known to `resolution_hz` (the edges of
+    /// an FFT's bins: the message shows no digit finer than a bin).
+    pub fn check_span_within(&self, low_hz: f64, high_hz: f64, resolution_hz: f64) -> Result<()> {
         for c in &self.channels {
             if c.low_hz() < low_hz - 1e-3 || c.high_hz() > high_hz + 1e-3 {
                 bail!(
@@ -180,8 +186,8 @@ impl Plan {
                     c.name,
                     format_hz(c.low_hz()),
                     format_hz(c.high_hz()),
-                    format_hz(low_hz),
-                    format_hz(high_hz)
+                    format_hz_within(low_hz, resolution_hz),
+                    format_hz_within(high_hz, resolution_hz)
                 );
             }
         }
@@ -585,6 +591,12 @@ threshold_db = 6
         p.check_span(432e6, 434e6).unwrap();
         let e = p.check_span(433.2e6, 434e6).unwrap_err().to_string();
         assert!(e.contains("line 5") && e.contains("north-gate") && e.contains("outside"), "{e}");
+        // The edges of 4096 bins of 1 MS/s around 433.6 MHz lie half a bin (122 Hz) below the
+        // round numbers (arithmetic): shown to the 100 Hz a 244 Hz bin supports.
+        let bin = 1e6 / 4096.0;
+        let lo = 433.6e6 - 0.5e6 - bin / 2.0;
+        let e = p.check_span_within(lo, lo + 1e6, bin).unwrap_err().to_string();
+        assert!(e.contains("captured span 433.0999 MHz .. 434.0999 MHz;"), "{e}");
     }
 
     #[test]

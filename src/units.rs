@@ -204,6 +204,33 @@ pub fn format_hz(hz: f64) -> String {
     }
 }
 
+/// As [`format_hz`], with no digit finer than `resolution_hz` can tell: the last digit shown
+/// steps by the largest power of ten not above it (a span edge of 4096 bins of 244 Hz prints
+/// `432.9999 MHz`, not `432.999878 MHz`; with 1 Hz or finer, as [`format_hz`]).
+pub fn format_hz_within(hz: f64, resolution_hz: f64) -> String {
+    let a = hz.abs();
+    if is_extreme(hz)
+        || !hz.is_finite()
+        || resolution_hz.is_nan()
+        || resolution_hz <= 1.0
+        || a < 1e3
+    {
+        return format_hz(hz);
+    }
+    let step_digits = resolution_hz.log10().floor() as i32;
+    let (scale, unit_digits, unit) = if a >= 1e12 {
+        (1e12, 12, "THz")
+    } else if a >= 1e9 {
+        (1e9, 9, "GHz")
+    } else if a >= 1e6 {
+        (1e6, 6, "MHz")
+    } else {
+        (1e3, 3, "kHz")
+    };
+    let decimals = (unit_digits - step_digits).clamp(0, 6) as usize;
+    format!("{:.*} {unit}", decimals, hz / scale)
+}
+
 /// Formats a frequency compactly for axis labels and tables, with `digits` decimals in the chosen
 /// unit.
 pub fn format_hz_short(hz: f64, digits: usize) -> String {
@@ -311,6 +338,20 @@ mod tests {
         assert_eq!(round_significant(0.012_345, 2), 0.012);
         assert_eq!(round_significant(-433_999_878.0, 6), -434_000_000.0);
         assert_eq!(round_significant(0.0, 3), 0.0);
+    }
+
+    #[test]
+    fn no_digit_finer_than_the_resolution() {
+        // 1 MS/s in 4096 bins (244.14 Hz each): the first bin's lower edge lies half a bin below
+        // centre − rate/2 (arithmetic).
+        let bin = 1e6 / 4096.0;
+        let edge = 433.5e6 - 0.5e6 - bin / 2.0;
+        assert_eq!(format_hz(edge), "432.999878 MHz");
+        assert_eq!(format_hz_within(edge, bin), "432.9999 MHz");
+        assert_eq!(format_hz_within(edge + 1e6, bin), "433.9999 MHz");
+        assert_eq!(format_hz_within(433.92e6, 12_500.0), "433.92 MHz");
+        assert_eq!(format_hz_within(145e3, 30.0), "145.00 kHz");
+        assert_eq!(format_hz_within(433.92e6, 0.5), format_hz(433.92e6));
     }
 
     #[test]

@@ -287,7 +287,8 @@ fn the_plan_written_from_a_census_is_one_log_takes() {
     assert_eq!(plan.channels.len(), r.emitters.len());
     for (c, e) in plan.channels.iter().zip(&r.emitters) {
         assert_eq!(c.name, e.name);
-        assert!((c.center_hz - e.center_hz).abs() <= 0.5);
+        // On the raster when within 5 % of the width, else on whole hertz.
+        assert!((c.center_hz - e.center_hz).abs() <= 0.5 + 0.05 * c.width_hz, "{c:?} {e:?}");
         // Rounded up to the raster, never narrower than the emission itself.
         assert!(c.width_hz >= e.obw_hz, "{c:?} {e:?}");
     }

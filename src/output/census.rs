@@ -301,8 +301,9 @@ fn raster_down(hz: f64) -> Option<f64> {
 
 /// Channel widths for a plan: each emitter's OBW rounded up to the raster (`RASTER`). Where
 /// that would overlap a neighbour, the distance between the two centres is shared in proportion
-/// to their OBWs and the width is the largest raster step inside its share (or the share itself
-/// when no step fits), so the plan's channels never overlap and `log --plan` takes it.
+/// to their OBWs and the width is the largest raster step inside its share (or the share itself,
+/// in whole hertz, when no step fits), so that with centres on whole hertz the plan's channels
+/// never overlap and `log --plan` takes it. A width of 0 means no room is left.
 pub fn plan_widths(emitters: &[EmitterFigures]) -> Vec<f64> {
     let obw = |i: usize| emitters[i].obw_hz.max(1.0);
     (0..emitters.len())
@@ -318,10 +319,54 @@ pub fn plan_widths(emitters: &[EmitterFigures]) -> Vec<f64> {
             if want <= limit {
                 want
             } else {
-                raster_down(limit).filter(|&w| w >= obw(i)).unwrap_or(limit)
+                // Two shares of one distance add up to twice it; whole hertz (rounded down)
+                // keep the sum within it whatever the floating point does.
+                raster_down(limit).filter(|&w| w >= obw(i)).unwrap_or(limit.floor())
             }
         })
         .collect()
+}
+
+/// `center_hz` moved onto the coarsest raster (a step of [`RASTER`] times a power of ten, from
+/// 100 Hz to half the channel's `width_hz`) whose nearest point lies within 5 % of the width;
+/// else on whole hertz. An estimated centre is a few tens of hertz off the assigned one (433
+/// 187 495 Hz for a channel at 433.1875 MHz); channels are assigned on such a raster (common
+/// practice), and a shift of 5 % of the width keeps the emission inside its channel.
+fn raster_centre(center_hz: f64, width_hz: f64) -> f64 {
+    let mut step = raster_down(width_hz / 2.0 * 1.000_001);
+    while let Some(s) = step {
+        let snapped = (center_hz / s).round() * s;
+        if (snapped - center_hz).abs() <= 0.05 * width_hz {
+            return snapped;
+        }
+        step = raster_down(s);
+    }
+    center_hz.round()
+}
+
+/// An emitter on the air less than this share of the time (percent)…
+pub const SPUR_AIRTIME_PCT: f64 = 1.0;
+/// …and this many dB or more below the strongest emitter's power is a spur, not a channel: a
+/// plan written for `log` is for the users of the band, and a weak mark seen for a moment
+/// (an intermodulation product, a harmonic of a burst, a receiver's own spur) would fill it.
+pub const SPUR_BELOW_DB: f64 = 20.0;
+
+/// The emitters a plan gets a channel for, with their centres on whole hertz (as the plan
+/// writes them): spurs ([`SPUR_AIRTIME_PCT`], [`SPUR_BELOW_DB`]) are left out, and so is an
+/// emitter whose centre another, stronger one already has. Returns them and how many were left
+/// out.
+fn plan_emitters(emitters: &[EmitterFigures]) -> (Vec<EmitterFigures>, usize) {
+    let strongest = emitters.iter().map(|e| e.power_dbfs).fold(f64::NEG_INFINITY, f64::max);
+    let mut kept: Vec<EmitterFigures> = Vec::with_capacity(emitters.len());
+    for e in emitters {
+        let spur = e.airtime_pct < SPUR_AIRTIME_PCT && e.power_dbfs <= strongest - SPUR_BELOW_DB;
+        let center_hz = raster_centre(e.center_hz, raster_up(e.obw_hz.max(1.0)));
+        if !spur && !kept.iter().any(|k| k.center_hz == center_hz) {
+            kept.push(EmitterFigures { center_hz, ..e.clone() });
+        }
+    }
+    let left_out = emitters.len() - kept.len();
+    (kept, left_out)
 }
 
 /// A channel plan (the TOML `log --plan` reads): one channel per emitter, named after it.
@@ -330,14 +375,24 @@ pub fn to_plan(r: &CensusResult, source: &str) -> String {
         "# Channel plan from `bandwarden census` of {source}: one channel per emitter found,\n\
          # centred on its occupied band, its 99 % OBW rounded up to the channel raster.\n"
     );
-    for (e, w) in r.emitters.iter().zip(plan_widths(&r.emitters)) {
+    let (emitters, left_out) = plan_emitters(&r.emitters);
+    let widths = plan_widths(&emitters);
+    let channels: Vec<_> = emitters.iter().zip(widths).filter(|(_, w)| *w >= 1.0).collect();
+    let left_out = left_out + emitters.len() - channels.len();
+    if left_out > 0 {
+        let _ = writeln!(
+            s,
+            "# Left out: {left_out} emitter(s) on the air under {SPUR_AIRTIME_PCT} % of the time and {SPUR_BELOW_DB} dB or more below the strongest, or with no room beside a stronger one."
+        );
+    }
+    for (e, w) in channels {
         let _ = write!(
             s,
             "\n[[channel]]\nname = \"{}\"   # {:.2} dBFS on the air, {:.1} % of the time\ncenter = \"{}\"\nwidth = \"{}\"\n",
             e.name,
             e.power_dbfs,
             e.airtime_pct,
-            crate::units::format_num(e.center_hz.round()),
+            crate::units::format_num(e.center_hz),
             crate::units::format_num(w)
         );
     }
@@ -347,6 +402,116 @@ pub fn to_plan(r: &CensusResult, source: &str) -> String {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    use crate::measure::census::EmitterFigures;
+    use crate::plan::Plan;
+    use crate::testkit::Rng;
+
+    fn emitter(name: String, center_hz: f64, obw_hz: f64) -> EmitterFigures {
+        EmitterFigures {
+            name,
+            center_hz,
+            obw_hz,
+            first_s: 0.0,
+            last_s: 1.0,
+            emissions: 1,
+            airtime_pct: 50.0,
+            airtime_s: 0.5,
+            peak_dbfs: -40.0,
+            power_dbfs: -40.0,
+        }
+    }
+
+    fn census_of(emitters: Vec<EmitterFigures>) -> CensusResult {
+        CensusResult {
+            sample_rate_hz: 2.4e6,
+            center_hz: 433.5e6,
+            fft_size: 4096,
+            rbw_hz: 878.9,
+            duration_s: 10.0,
+            noise_floor_dbfs_per_hz: -120.0,
+            emitters,
+            emissions: Vec::new(),
+            emitters_dropped: 0,
+        }
+    }
+
+    #[test]
+    fn every_plan_written_loads_whatever_the_emitters() {
+        // Random emitter sets, crowded on purpose (centres anywhere in 2.4 MHz, some only a few
+        // hertz apart, widths from 50 Hz to 200 kHz, centres off the hertz): the plan must
+        // parse and validate as `log --plan` does, and its channels must lie where the census
+        // put them (each centre within 5 % of its width of its emitter's, or half a hertz).
+        let mut rng = Rng::new(0x5eed_c0de);
+        for case in 0..500 {
+            let n = 1 + rng.below(12);
+            let mut emitters = Vec::new();
+            for k in 0..n {
+                let center = if k > 0 && rng.below(4) == 0 {
+                    emitters.last().map_or(433.5e6, |e: &EmitterFigures| e.center_hz)
+                        + rng.uniform() * 20.0
+                } else {
+                    432.3e6 + rng.uniform() * 2.4e6
+                };
+                let obw = 50.0 * (4000f64).powf(rng.uniform());
+                emitters.push(emitter(format!("e{k}"), center, obw));
+            }
+            let r = census_of(emitters);
+            let text = to_plan(&r, "test");
+            let plan = Plan::parse(&text, "census.toml")
+                .and_then(|p| p.validate().map(|_| p))
+                .unwrap_or_else(|e| panic!("case {case}: {e:#}\n{text}"));
+            for c in &plan.channels {
+                let e = r.emitters.iter().find(|e| e.name == c.name).unwrap();
+                let shift = 0.5 + 0.05 * raster_up(e.obw_hz);
+                assert!((c.center_hz - e.center_hz).abs() <= shift, "case {case}: {c:?} {e:?}");
+            }
+            // Only an emitter crowded by another may go without a channel: both moved onto one
+            // raster point (each moves by at most 5 % of its width), or too close for a whole
+            // hertz of share. None of these is a spur (all are on the air half the time).
+            for e in &r.emitters {
+                let crowded = r.emitters.iter().any(|o| {
+                    let moves = 0.05 * (raster_up(o.obw_hz) + raster_up(e.obw_hz));
+                    o.name != e.name
+                        && (o.center_hz - e.center_hz).abs() < 2.0 + moves + o.obw_hz / e.obw_hz
+                });
+                let written = plan.channels.iter().any(|c| c.name == e.name);
+                assert!(written || crowded, "case {case}: {e:?} left out\n{text}");
+            }
+        }
+    }
+
+    #[test]
+    fn centres_move_onto_the_raster_their_width_allows() {
+        // The demo scene's channels (src/source/demo): 12.5 kHz land-mobile raster.
+        assert_eq!(raster_centre(433_187_495.0, 5_000.0), 433_187_500.0);
+        assert_eq!(raster_centre(433_825_026.0, 250_000.0), 433_825_000.0);
+        // Too far from any raster point for a narrow channel: whole hertz.
+        assert_eq!(raster_centre(433_574_956.4, 100.0), 433_574_956.0);
+        assert_eq!(raster_centre(433_574_956.0, 1_000.0), 433_575_000.0);
+    }
+
+    #[test]
+    fn weak_rare_spurs_get_no_channel() {
+        let strong = emitter("strong".into(), 433.1e6, 10e3);
+        let spur = |name: &str, airtime_pct: f64, power_dbfs: f64| EmitterFigures {
+            airtime_pct,
+            power_dbfs,
+            ..emitter(name.into(), 433.3e6 + power_dbfs * -1e3, 2e3)
+        };
+        let r = census_of(vec![
+            strong,
+            // Under 1 % of the time and 20 dB or more below the strongest (-40 dBFS): left out.
+            spur("spur", 0.5, -70.0),
+            // Rare but strong, or weak but often on the air: channels.
+            spur("rare-strong", 0.5, -45.0),
+            spur("weak-busy", 30.0, -75.0),
+        ]);
+        let plan = Plan::parse(&to_plan(&r, "t"), "t.toml").unwrap();
+        let names: Vec<&str> = plan.channels.iter().map(|c| c.name.as_str()).collect();
+        assert_eq!(names, ["strong", "rare-strong", "weak-busy"]);
+        assert!(to_plan(&r, "t").contains("# Left out: 1 emitter(s)"));
+    }
 
     #[test]
     fn widths_round_up_to_one_two_five() {

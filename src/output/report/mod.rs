@@ -25,7 +25,7 @@ use crate::measure::{
 use crate::output::report::on_air::OnAirFigures;
 use crate::plan::Plan;
 use crate::source::InputIssues;
-use crate::units::{db, format_hz, format_hz_short};
+use crate::units::{db, format_hz, format_hz_short, format_hz_within};
 use anyhow::{bail, Result};
 use serde::Serialize;
 use std::fmt::Write as _;
@@ -90,8 +90,8 @@ pub fn build_report(
                 "band {} wide at {} reaches outside the captured span {} .. {}; check --band and --center",
                 format_hz(b.width_hz),
                 format_hz(b.center_hz),
-                format_hz(span_lo),
-                format_hz(span_hi)
+                format_hz_within(span_lo, spec.bin_hz()),
+                format_hz_within(span_hi, spec.bin_hz())
             );
         }
         let obw = occupied_bandwidth(spec, lo, hi, settings.obw_percent);
