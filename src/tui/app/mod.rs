@@ -50,7 +50,7 @@ pub const ROW_RATES: [f64; 11] = [0.1, 0.2, 0.5, 1.0, 2.0, 5.0, 10.0, 15.0, 20.0
 /// How long a notice stays on the marker line.
 pub const NOTICE_FOR: Duration = Duration::from_secs(4);
 /// What `o` and `t` say without a plan.
-pub const NO_PLAN: &str = "no channel plan: start with --plan FILE or --channel NAME=CENTRE:WIDTH";
+pub const NO_PLAN: &str = "no channel plan: start with --plan FILE or --channel NAME=CENTER:WIDTH";
 
 /// Limits of the dynamic range, dB.
 pub const RANGE_MIN_DB: f64 = 20.0;
