@@ -157,9 +157,78 @@ def write(folder):
     manifest["recordings"]["archive"] = {"path": path, "segments": segments_of(meta, tones)}
     os.remove(os.path.join(folder, "archive.sigmf-data"))  # only the archive holds the samples
 
+    manifest["datatypes"] = write_datatypes(folder, rng)
+
     with open(os.path.join(folder, "manifest.json"), "w") as f:
         json.dump(manifest, f, indent=1)
     print(os.path.join(folder, "manifest.json"))
+
+
+# Every SigMF datatype: numpy dtype of one number, and whether it is unsigned.
+DATATYPES = {}
+for kind, np_kind in (("f", "f"), ("i", "i"), ("u", "u")):
+    for bits in ((32, 64) if kind == "f" else (8, 16, 32)):
+        for endian in (("",) if bits == 8 else ("_le", "_be")):
+            order = "<" if endian in ("", "_le") else ">"
+            for cr in "cr":
+                DATATYPES[f"{cr}{kind}{bits}{endian}"] = f"{order}{np_kind}{bits // 8}"
+
+
+def to_numbers(x, dtype):
+    """Float samples at full scale +-1 written as `dtype` numbers (integers rounded, clipped)."""
+    dt = np.dtype(dtype)
+    if dt.kind == "f":
+        return x.astype(dt)
+    bits = dt.itemsize * 8
+    if dt.kind == "i":
+        scaled = np.round(x * 2.0 ** (bits - 1))
+        return np.clip(scaled, -(2 ** (bits - 1)), 2 ** (bits - 1) - 1).astype(dt)
+    mid = (2.0**bits - 1) / 2
+    return np.clip(np.round(x * mid + mid), 0, 2**bits - 1).astype(dt)
+
+
+def write_datatypes(folder, rng):
+    """One recording per datatype holding one tone, written and read back by the reference.
+
+    A complex recording holds a complex tone; a real one a cosine, which bandwarden shows as
+    its positive half (a line of half the amplitude, Euler: cos = (e^{jw} + e^{-jw}) / 2)."""
+    out = {}
+    t = np.arange(N) / RATE
+    for name, dtype in DATATYPES.items():
+        offset_hz = 11_111.1 if name[0] == "c" else 31_234.5
+        amp = 10 ** (-12 / 20)
+        phase = rng.uniform(0, 2 * np.pi)
+        if name[0] == "c":
+            x = amp * np.exp(2j * np.pi * offset_hz * t + 1j * phase)
+            parts = [to_numbers(x.real, dtype), to_numbers(x.imag, dtype)]
+            # np.stack returns native byte order: cast back to the datatype's.
+            numbers = np.stack(parts, axis=1).astype(dtype)
+        else:
+            x = amp * np.cos(2 * np.pi * offset_hz * t + phase)
+            numbers = to_numbers(x, dtype)
+        data_path = os.path.join(folder, "dt-" + name + ".sigmf-data")
+        with open(data_path, "wb") as f:
+            f.write(numbers.tobytes())
+        meta = SigMFFile(
+            global_info={
+                "core:datatype": name,
+                "core:sample_rate": RATE,
+                "core:description": "bandwarden reference datatype " + name,
+            }
+        )
+        meta.add_capture(0, metadata={"core:frequency": 1e6})
+        meta.set_data_file(data_path)
+        meta.validate()
+        meta_path = os.path.join(folder, "dt-" + name + ".sigmf-meta")
+        meta.tofile(meta_path, overwrite=True)
+        # The level as the reference reads the samples back: the least-squares amplitude of the
+        # tone in its own scaling (autoscale maps integers onto +-1).
+        back = np.asarray(fromfile(meta_path).read_samples(), dtype=np.complex128).reshape(-1)
+        a = np.mean(back * np.exp(-2j * np.pi * offset_hz * t))
+        # For a cosine, mean(cos * e^{-jwt}) is A/2: the positive line's amplitude.
+        level = 20 * np.log10(abs(a))
+        out[name] = {"path": meta_path, "tone_hz": 1e6 + offset_hz, "tone_dbfs": float(level)}
+    return out
 
 
 def validate(path):

@@ -20,8 +20,8 @@ use time::OffsetDateTime;
 /// Where samples come from and how to read them.
 #[derive(Args, Debug, Clone, Default)]
 pub struct InputArgs {
-    /// Sample format (SigMF names): cu8, ci8, ci16_le, ci16_be, ci32_le, cf32_le, cf32_be,
-    /// cf64_le. Overrides a SigMF file; guessed from .cu8/.cs8/.cs16/.cf32 when absent.
+    /// Sample format, any SigMF datatype (cu8, ci8, ci16_le, cf32_le, …, real ri16_le, rf32_le, …;
+    /// big-endian _be too). Overrides a SigMF file; guessed from .cu8/.cs8/.cs16/.cf32 when absent.
     #[arg(long, value_name = "FORMAT", value_parser = parse_format)]
     pub format: Option<SampleFormat>,
     /// Sample rate in samples/s (e.g. 2.4M); overrides the file's own.

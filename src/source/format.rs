@@ -8,7 +8,11 @@
 //! - `ci8`: `x / 128`;
 //! - `ci16_*`: `x / 32768` (so −32768 is exactly −1.0; we chose the power of two so a full-scale
 //!   converter code maps to 1.0 with no rounding);
-//! - `ci32_le`: `x / 2³¹`.
+//! - `ci32_*`: `x / 2³¹`;
+//! - `cu16_*`, `cu32_*`: like `cu8`, `(x − m) / m` with `m = (2ⁿ − 1) / 2` the midpoint.
+//!
+//! Real-valued datatypes (`r…`) use the same scales; their samples are `x + 0j` here, and the
+//! source turns the stream into complex samples at half the rate ([`super::real`]).
 //!
 //! Float formats are taken as they are. Non-finite float samples (NaN, ±Inf) are counted and
 //! skipped, never passed to the FFT, where one NaN would poison a whole frame.
@@ -25,45 +29,155 @@ pub enum SampleFormat {
     Ci16Le,
     Ci16Be,
     Ci32Le,
+    Ci32Be,
+    Cu16Le,
+    Cu16Be,
+    Cu32Le,
+    Cu32Be,
     Cf32Le,
     Cf32Be,
     Cf64Le,
+    Cf64Be,
+    Ru8,
+    Ri8,
+    Ri16Le,
+    Ri16Be,
+    Ri32Le,
+    Ri32Be,
+    Ru16Le,
+    Ru16Be,
+    Ru32Le,
+    Ru32Be,
+    Rf32Le,
+    Rf32Be,
+    Rf64Le,
+    Rf64Be,
+}
+
+/// How the numbers of a format are written: every SigMF datatype is one of these.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Number {
+    Float,
+    Signed,
+    Unsigned,
+}
+
+/// The layout of one sample: complex (I then Q) or real, the kind and width of each number, and
+/// its byte order (8-bit numbers have none).
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct Layout {
+    pub complex: bool,
+    pub number: Number,
+    pub bits: u32,
+    pub big_endian: bool,
 }
 
 impl SampleFormat {
-    pub const ALL: [SampleFormat; 8] = [
+    /// Every SigMF datatype (SigMF specification, `core:datatype`: complex or real, float,
+    /// signed or unsigned integer, 8 to 64 bits, little or big endian).
+    pub const ALL: [SampleFormat; 28] = [
         SampleFormat::Cu8,
         SampleFormat::Ci8,
         SampleFormat::Ci16Le,
         SampleFormat::Ci16Be,
         SampleFormat::Ci32Le,
+        SampleFormat::Ci32Be,
+        SampleFormat::Cu16Le,
+        SampleFormat::Cu16Be,
+        SampleFormat::Cu32Le,
+        SampleFormat::Cu32Be,
         SampleFormat::Cf32Le,
         SampleFormat::Cf32Be,
         SampleFormat::Cf64Le,
+        SampleFormat::Cf64Be,
+        SampleFormat::Ru8,
+        SampleFormat::Ri8,
+        SampleFormat::Ri16Le,
+        SampleFormat::Ri16Be,
+        SampleFormat::Ri32Le,
+        SampleFormat::Ri32Be,
+        SampleFormat::Ru16Le,
+        SampleFormat::Ru16Be,
+        SampleFormat::Ru32Le,
+        SampleFormat::Ru32Be,
+        SampleFormat::Rf32Le,
+        SampleFormat::Rf32Be,
+        SampleFormat::Rf64Le,
+        SampleFormat::Rf64Be,
     ];
 
     /// The SigMF datatype name.
     pub fn name(self) -> &'static str {
+        use SampleFormat as F;
         match self {
-            SampleFormat::Cu8 => "cu8",
-            SampleFormat::Ci8 => "ci8",
-            SampleFormat::Ci16Le => "ci16_le",
-            SampleFormat::Ci16Be => "ci16_be",
-            SampleFormat::Ci32Le => "ci32_le",
-            SampleFormat::Cf32Le => "cf32_le",
-            SampleFormat::Cf32Be => "cf32_be",
-            SampleFormat::Cf64Le => "cf64_le",
+            F::Cu8 => "cu8",
+            F::Ci8 => "ci8",
+            F::Ci16Le => "ci16_le",
+            F::Ci16Be => "ci16_be",
+            F::Ci32Le => "ci32_le",
+            F::Ci32Be => "ci32_be",
+            F::Cu16Le => "cu16_le",
+            F::Cu16Be => "cu16_be",
+            F::Cu32Le => "cu32_le",
+            F::Cu32Be => "cu32_be",
+            F::Cf32Le => "cf32_le",
+            F::Cf32Be => "cf32_be",
+            F::Cf64Le => "cf64_le",
+            F::Cf64Be => "cf64_be",
+            F::Ru8 => "ru8",
+            F::Ri8 => "ri8",
+            F::Ri16Le => "ri16_le",
+            F::Ri16Be => "ri16_be",
+            F::Ri32Le => "ri32_le",
+            F::Ri32Be => "ri32_be",
+            F::Ru16Le => "ru16_le",
+            F::Ru16Be => "ru16_be",
+            F::Ru32Le => "ru32_le",
+            F::Ru32Be => "ru32_be",
+            F::Rf32Le => "rf32_le",
+            F::Rf32Be => "rf32_be",
+            F::Rf64Le => "rf64_le",
+            F::Rf64Be => "rf64_be",
         }
     }
 
-    /// Bytes in one complex sample (I and Q).
-    pub fn bytes_per_sample(self) -> usize {
-        match self {
-            SampleFormat::Cu8 | SampleFormat::Ci8 => 2,
-            SampleFormat::Ci16Le | SampleFormat::Ci16Be => 4,
-            SampleFormat::Ci32Le | SampleFormat::Cf32Le | SampleFormat::Cf32Be => 8,
-            SampleFormat::Cf64Le => 16,
+    /// The layout spelled by the name: `c`/`r`, `f`/`i`/`u`, the width, `_le`/`_be`.
+    pub fn layout(self) -> Layout {
+        let name = self.name().as_bytes();
+        let number = match name[1] {
+            b'f' => Number::Float,
+            b'i' => Number::Signed,
+            _ => Number::Unsigned,
+        };
+        let digits = name[2..].iter().take_while(|c| c.is_ascii_digit());
+        let bits = digits.fold(0, |acc, c| acc * 10 + u32::from(c - b'0'));
+        Layout { complex: name[0] == b'c', number, bits, big_endian: self.name().ends_with("_be") }
+    }
+
+    /// True for the real-valued `r*` datatypes.
+    pub fn is_real(self) -> bool {
+        !self.layout().complex
+    }
+
+    /// True for the float datatypes.
+    pub fn is_float(self) -> bool {
+        self.layout().number == Number::Float
+    }
+
+    /// The complex datatype with the same numbers (itself when complex): what a real input
+    /// becomes once turned into complex samples.
+    pub fn complex_twin(self) -> SampleFormat {
+        if !self.is_real() {
+            return self;
         }
+        let twin = format!("c{}", &self.name()[1..]);
+        twin.parse().unwrap_or(SampleFormat::Cf32Le)
+    }
+
+    /// Bytes in one sample (I and Q for a complex format, one number for a real one).
+    pub fn bytes_per_sample(self) -> usize {
+        let l = self.layout();
+        (l.bits as usize / 8) * if l.complex { 2 } else { 1 }
     }
 
     /// The format implied by a common file extension, used only when `--format` is absent.
@@ -140,14 +254,7 @@ impl SampleFormat {
                 };
                 fill_from(out, bytes, bps, |c: &[u8]| Complex32::new(get(&c[0..4]), get(&c[4..8])));
             }
-            SampleFormat::Cf64Le => {
-                let get = |b: &[u8]| {
-                    f64::from_le_bytes([b[0], b[1], b[2], b[3], b[4], b[5], b[6], b[7]]) as f32
-                };
-                fill_from(out, bytes, bps, |c: &[u8]| {
-                    Complex32::new(get(&c[0..8]), get(&c[8..16]))
-                });
-            }
+            _ => return decode_generic(self.layout(), bytes, out),
         }
         screen(out)
     }
@@ -187,8 +294,121 @@ impl SampleFormat {
             }
             SampleFormat::Cf32Le => values.for_each(|v| out.extend_from_slice(&v.to_le_bytes())),
             SampleFormat::Cf32Be => values.for_each(|v| out.extend_from_slice(&v.to_be_bytes())),
-            SampleFormat::Cf64Le => {
-                values.for_each(|v| out.extend_from_slice(&(v as f64).to_le_bytes()))
+            _ => encode_generic(self.layout(), samples, out),
+        }
+    }
+}
+
+/// Decodes any layout through a reader per number: the formats without a fast path above. A
+/// real sample becomes `x + 0j`; the source turns real streams into complex ones
+/// ([`super::real`]).
+fn decode_generic(layout: Layout, bytes: &[u8], out: &mut [Complex32]) -> Screened {
+    let read = number_reader(layout);
+    let w = layout.bits as usize / 8;
+    if layout.complex {
+        fill_from(out, bytes, 2 * w, |c: &[u8]| Complex32::new(read(&c[..w]), read(&c[w..])));
+    } else {
+        fill_from(out, bytes, w, |c: &[u8]| Complex32::new(read(c), 0.0));
+    }
+    let count = bytes.len() / (w * if layout.complex { 2 } else { 1 });
+    if layout.number == Number::Float {
+        screen(&mut out[..count])
+    } else {
+        Screened { kept: count, ..Screened::default() }
+    }
+}
+
+/// The first `N` bytes of `b` (which always holds one whole number).
+fn take<const N: usize>(b: &[u8]) -> [u8; N] {
+    let mut a = [0u8; N];
+    a.copy_from_slice(&b[..N]);
+    a
+}
+
+/// Midpoint of an unsigned `bits`-bit number, which maps to zero (as cu8's 127.5, module doc).
+fn unsigned_mid(bits: u32) -> f64 {
+    ((1u64 << bits) - 1) as f64 / 2.0
+}
+
+/// Reads one number of `layout` at full scale (module doc).
+fn number_reader(l: Layout) -> fn(&[u8]) -> f32 {
+    match (l.number, l.bits, l.big_endian) {
+        (Number::Float, 32, false) => |b| f32::from_le_bytes(take(b)),
+        (Number::Float, 32, true) => |b| f32::from_be_bytes(take(b)),
+        (Number::Float, _, false) => |b| f64::from_le_bytes(take(b)) as f32,
+        (Number::Float, _, true) => |b| f64::from_be_bytes(take(b)) as f32,
+        (Number::Signed, 8, _) => |b| b[0] as i8 as f32 / 128.0,
+        (Number::Signed, 16, false) => |b| i16::from_le_bytes(take(b)) as f32 / 32768.0,
+        (Number::Signed, 16, true) => |b| i16::from_be_bytes(take(b)) as f32 / 32768.0,
+        (Number::Signed, _, false) => {
+            |b| (i32::from_le_bytes(take(b)) as f64 / 2147483648.0) as f32
+        }
+        (Number::Signed, _, true) => |b| (i32::from_be_bytes(take(b)) as f64 / 2147483648.0) as f32,
+        (Number::Unsigned, 8, _) => |b| ((b[0] as f64 - 127.5) / 127.5) as f32,
+        (Number::Unsigned, 16, false) => |b| {
+            let m = unsigned_mid(16);
+            ((u16::from_le_bytes(take(b)) as f64 - m) / m) as f32
+        },
+        (Number::Unsigned, 16, true) => |b| {
+            let m = unsigned_mid(16);
+            ((u16::from_be_bytes(take(b)) as f64 - m) / m) as f32
+        },
+        (Number::Unsigned, _, false) => |b| {
+            let m = unsigned_mid(32);
+            ((u32::from_le_bytes(take(b)) as f64 - m) / m) as f32
+        },
+        (Number::Unsigned, _, true) => |b| {
+            let m = unsigned_mid(32);
+            ((u32::from_be_bytes(take(b)) as f64 - m) / m) as f32
+        },
+    }
+}
+
+/// Encodes through a writer per number; a real format keeps the real part.
+fn encode_generic(layout: Layout, samples: &[Complex32], out: &mut Vec<u8>) {
+    let per = if layout.complex { 2 } else { 1 };
+    for s in samples {
+        for &v in [s.re, s.im][..per].iter() {
+            write_number(layout, v, out);
+        }
+    }
+}
+
+/// Writes one number of `layout`; integers are rounded half away from zero and clipped.
+fn write_number(l: Layout, v: f32, out: &mut Vec<u8>) {
+    let v = v as f64;
+    let be = l.big_endian;
+    let round = |x: f64| x + 0.5f64.copysign(x);
+    match (l.number, l.bits) {
+        (Number::Float, 32) => {
+            let x = v as f32;
+            out.extend_from_slice(&if be { x.to_be_bytes() } else { x.to_le_bytes() })
+        }
+        (Number::Float, _) => {
+            out.extend_from_slice(&if be { v.to_be_bytes() } else { v.to_le_bytes() })
+        }
+        (Number::Signed, 8) => out.push(round(v * 128.0).clamp(-128.0, 127.0) as i8 as u8),
+        (Number::Signed, 16) => {
+            let x = round(v * 32768.0).clamp(-32768.0, 32767.0) as i16;
+            out.extend_from_slice(&if be { x.to_be_bytes() } else { x.to_le_bytes() })
+        }
+        (Number::Signed, _) => {
+            let x = round(v * 2147483648.0).clamp(i32::MIN as f64, i32::MAX as f64) as i32;
+            out.extend_from_slice(&if be { x.to_be_bytes() } else { x.to_le_bytes() })
+        }
+        (Number::Unsigned, bits) => {
+            let m = unsigned_mid(bits);
+            let x = (v * m + m + 0.5).floor().clamp(0.0, 2.0 * m) as u64;
+            match bits {
+                8 => out.push(x as u8),
+                16 => {
+                    let x = x as u16;
+                    out.extend_from_slice(&if be { x.to_be_bytes() } else { x.to_le_bytes() })
+                }
+                _ => {
+                    let x = x as u32;
+                    out.extend_from_slice(&if be { x.to_be_bytes() } else { x.to_le_bytes() })
+                }
             }
         }
     }
@@ -301,16 +521,49 @@ mod tests {
             assert_eq!(bytes.len(), samples.len() * fmt.bytes_per_sample(), "{fmt}");
             let back = decoded(fmt, &bytes);
             assert_eq!(back.len(), samples.len(), "{fmt}");
-            // One quantisation step of the coarsest format (8 bits) is 1/128.
-            let tol = match fmt {
-                SampleFormat::Cu8 | SampleFormat::Ci8 => 1.0 / 127.0,
-                SampleFormat::Ci16Le | SampleFormat::Ci16Be => 1.0 / 32000.0,
+            // One quantisation step of the format: 8 bits 1/128, 16 bits 1/32768.
+            let tol = match fmt.layout().bits {
+                8 => 1.0 / 127.0,
+                16 => 1.0 / 32000.0,
                 _ => 1e-6,
             };
             for (a, b) in samples.iter().zip(&back) {
+                // A real format keeps the real part only.
+                let a = if fmt.is_real() { Complex32::new(a.re, 0.0) } else { *a };
                 assert!((a - b).norm() < tol, "{fmt}: {a} vs {b}");
             }
         }
+    }
+
+    #[test]
+    fn layouts_follow_the_sigmf_names() {
+        // SigMF specification, core:datatype: "c"/"r", then "f"/"i"/"u", the width in bits,
+        // and "_le"/"_be" for more than 8 bits.
+        assert_eq!(SampleFormat::ALL.len(), 28);
+        let l = SampleFormat::Cu16Be.layout();
+        assert_eq!(
+            l,
+            Layout { complex: true, number: Number::Unsigned, bits: 16, big_endian: true }
+        );
+        let l = SampleFormat::Rf64Le.layout();
+        assert_eq!(
+            l,
+            Layout { complex: false, number: Number::Float, bits: 64, big_endian: false }
+        );
+        assert_eq!(SampleFormat::Ri16Be.bytes_per_sample(), 2);
+        assert_eq!(SampleFormat::Cf64Be.bytes_per_sample(), 16);
+        assert_eq!(SampleFormat::Ri16Be.complex_twin(), SampleFormat::Ci16Be);
+        // Big endian: the most significant byte first.
+        assert_eq!(
+            decoded(SampleFormat::Ci32Be, &[0x40, 0, 0, 0, 0xC0, 0, 0, 0])[0],
+            Complex32::new(0.5, -0.5)
+        );
+        // Unsigned: the midpoint (2ⁿ − 1)/2 is zero, 0 and 2ⁿ − 1 are ∓1.
+        assert_eq!(
+            decoded(SampleFormat::Cu16Le, &[0, 0, 0xff, 0xff])[0],
+            Complex32::new(-1.0, 1.0)
+        );
+        assert_eq!(decoded(SampleFormat::Ru8, &[255])[0], Complex32::new(1.0, 0.0));
     }
 
     #[test]

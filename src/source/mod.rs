@@ -9,6 +9,7 @@ pub mod format;
 pub mod plausible;
 pub mod raw;
 pub mod reader;
+pub mod real;
 pub mod sigmf;
 pub mod tcp;
 pub mod wav;
@@ -245,7 +246,7 @@ fn open_unchecked(req: &InputRequest, notes: &mut Vec<String>) -> Result<Box<dyn
         ),
         Some("-") => {
             let format = req.format.context(
-                "reading stdin needs --format (one of cu8, ci8, ci16_le, ci16_be, ci32_le, cf32_le, cf32_be, cf64_le)",
+                "reading stdin needs --format (a SigMF datatype such as cu8, ci8, ci16_le or cf32_le)",
             )?;
             let rate = req
                 .sample_rate_hz
@@ -258,6 +259,9 @@ fn open_unchecked(req: &InputRequest, notes: &mut Vec<String>) -> Result<Box<dyn
             None => open_path(path, req, notes)?,
         },
     };
+    if src.info().format.is_some_and(|f| f.is_real()) {
+        return Ok(Box::new(real::HalfRate::new(src)));
+    }
     Ok(src)
 }
 
@@ -291,7 +295,7 @@ fn open_path(
                 f
             }
             None => bail!(
-                "cannot tell the sample format of '{}': give --format (one of cu8, ci8, ci16_le, ci16_be, ci32_le, cf32_le, cf32_be, cf64_le)",
+                "cannot tell the sample format of '{}': give --format (a SigMF datatype such as cu8, ci8, ci16_le or cf32_le)",
                 sanitize(path)
             ),
         },

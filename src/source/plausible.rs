@@ -145,7 +145,7 @@ impl FormatCheck {
 }
 
 fn is_float(f: SampleFormat) -> bool {
-    matches!(f, SampleFormat::Cf32Le | SampleFormat::Cf32Be | SampleFormat::Cf64Le)
+    f.is_float()
 }
 
 /// The usual mistakes that put values at the rails of `f`.

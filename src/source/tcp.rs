@@ -146,7 +146,7 @@ pub struct TcpSource {
 /// address beyond loopback only with `--listen-public`, and then a note says so).
 pub fn open(ep: Endpoint, req: &InputRequest, notes: &mut Vec<String>) -> Result<TcpSource> {
     let format = req.format.context(
-        "IQ over TCP needs --format (one of cu8, ci8, ci16_le, ci16_be, ci32_le, cf32_le, cf32_be, cf64_le)",
+        "IQ over TCP needs --format (a SigMF datatype such as cu8, ci8, ci16_le or cf32_le)",
     )?;
     let rate = req
         .sample_rate_hz

@@ -90,7 +90,7 @@ pub fn parse_meta(text: &str, name: &str) -> Result<Meta> {
         )
     })?;
     let datatype: SampleFormat = dt.parse().map_err(|e: String| {
-        anyhow!("'{name}': core:datatype '{}' is not supported ({e}); bandwarden reads complex data only", sanitize(dt))
+        anyhow!("'{name}': core:datatype '{}' is not a SigMF datatype ({e})", sanitize(dt))
     })?;
     let sample_rate_hz = match global.get("core:sample_rate") {
         None | Some(Value::Null) => None,

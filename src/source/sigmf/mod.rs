@@ -184,8 +184,8 @@ mod tests {
         let e = parse_meta(r#"{"global":{}}"#, "x").unwrap_err().to_string();
         assert!(e.contains("core:datatype is missing"), "{e}");
         let e =
-            parse_meta(r#"{"global":{"core:datatype":"rf32_le"}}"#, "x").unwrap_err().to_string();
-        assert!(e.contains("not supported"), "{e}");
+            parse_meta(r#"{"global":{"core:datatype":"rf16_le"}}"#, "x").unwrap_err().to_string();
+        assert!(e.contains("not a SigMF datatype"), "{e}");
         let e = parse_meta(r#"{"global":{"core:datatype":"cu8","core:sample_rate":-1}}"#, "x")
             .unwrap_err()
             .to_string();
