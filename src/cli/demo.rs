@@ -110,6 +110,9 @@ fn container_and_format(
     out: &str,
     format: Option<SampleFormat>,
 ) -> Result<(DemoContainer, SampleFormat)> {
+    if let Some(f) = format.filter(|f| f.is_real()) {
+        bail!("the demo scene is complex IQ and cannot be written as real-valued {f}; choose a complex format such as {}", f.complex_twin());
+    }
     let lower = out.to_ascii_lowercase();
     if lower.ends_with(".sigmf-meta") || lower.ends_with(".sigmf-data") {
         return Ok((DemoContainer::Sigmf, format.unwrap_or(SampleFormat::Cf32Le)));
