@@ -46,6 +46,10 @@ pub struct InputArgs {
     /// samples from other hosts. Without it only loopback addresses may be used.
     #[arg(long)]
     pub listen_public: bool,
+    /// With INPUT vita49://ADDR:PORT: read the VITA 49 stream with this ID (decimal or 0x hex);
+    /// without it the first stream seen is read.
+    #[arg(long, value_name = "ID", value_parser = crate::source::vita49::parse_stream_id)]
+    pub stream_id: Option<u32>,
 }
 
 impl InputArgs {
@@ -61,6 +65,7 @@ impl InputArgs {
             segment: self.segment,
             input_channel: self.input_channel,
             listen_public: self.listen_public,
+            stream_id: self.stream_id,
         }
     }
 }

@@ -71,6 +71,8 @@ pub enum GapCause {
     NotANumber,
     /// A network input's connection was down (the time it was down × the sample rate).
     Disconnected,
+    /// A packet input's packets never arrived (VITA 49: from packet counts and time stamps).
+    PacketLost,
 }
 
 impl GapCause {
@@ -79,6 +81,7 @@ impl GapCause {
             GapCause::Behind => "behind",
             GapCause::NotANumber => "not_a_number",
             GapCause::Disconnected => "disconnected",
+            GapCause::PacketLost => "packet_lost",
         }
     }
 
@@ -92,6 +95,7 @@ impl GapCause {
                 "the input held NaN or infinite samples, left out as gaps; a fault upstream, or the input is not in the format it was read as: check --format"
             }
             GapCause::Disconnected => "a network input's link was down",
+            GapCause::PacketLost => "packets of a network stream never arrived",
         }
     }
 }
@@ -102,6 +106,7 @@ pub struct Lost {
     pub behind: u64,
     pub not_a_number: u64,
     pub disconnected: u64,
+    pub packet_lost: u64,
 }
 
 impl Lost {
@@ -110,11 +115,12 @@ impl Lost {
             GapCause::Behind => self.behind += samples,
             GapCause::NotANumber => self.not_a_number += samples,
             GapCause::Disconnected => self.disconnected += samples,
+            GapCause::PacketLost => self.packet_lost += samples,
         }
     }
 
     pub fn total(&self) -> u64 {
-        self.behind + self.not_a_number + self.disconnected
+        self.behind + self.not_a_number + self.disconnected + self.packet_lost
     }
 
     /// The closing note of a run that lost samples: how many, of each cause that happened, and
@@ -124,6 +130,7 @@ impl Lost {
             (self.behind, GapCause::Behind),
             (self.not_a_number, GapCause::NotANumber),
             (self.disconnected, GapCause::Disconnected),
+            (self.packet_lost, GapCause::PacketLost),
         ]
         .into_iter()
         .filter(|(n, _)| *n > 0)

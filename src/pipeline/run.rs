@@ -14,7 +14,7 @@ use crate::dsp::{Engine, EngineConfig, Spectrum};
 use crate::kernels::Kernels;
 use crate::measure::occupancy::{Event, Occupancy};
 use crate::source::reader::Block;
-use crate::source::{InputIssues, SourceInfo};
+use crate::source::{InputIssues, LinkLoss, SourceInfo};
 use anyhow::Result;
 use crossbeam_channel::{Receiver, RecvTimeoutError};
 use num_complex::Complex32;
@@ -159,7 +159,11 @@ impl<'a> Run<'a> {
                 self.gap(self.next_sample, behind_end, GapCause::Behind)?;
             }
             if off_line > 0 {
-                self.gap(behind_end, block.start, GapCause::Disconnected)?;
+                let cause = match block.lost_cause {
+                    LinkLoss::Disconnected => GapCause::Disconnected,
+                    LinkLoss::PacketLost => GapCause::PacketLost,
+                };
+                self.gap(behind_end, block.start, cause)?;
             }
         }
         for c in self.consumers.iter_mut() {

@@ -12,6 +12,7 @@ pub mod reader;
 pub mod real;
 pub mod sigmf;
 pub mod tcp;
+pub mod vita49;
 pub mod wav;
 
 pub use crate::messages::sanitize;
@@ -148,9 +149,24 @@ pub trait SampleSource: Send {
         0
     }
 
+    /// What the samples of [`take_lost`](Self::take_lost) were lost to.
+    fn lost_cause(&self) -> LinkLoss {
+        LinkLoss::Disconnected
+    }
+
     /// The reader's stop flag, for sources whose `read` may wait long (a network input waiting
     /// to reconnect): they return 0 soon after it is set.
     fn watch_stop(&mut self, _stop: std::sync::Arc<std::sync::atomic::AtomicBool>) {}
+}
+
+/// How a network input lost samples.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub enum LinkLoss {
+    /// The link was down (TCP).
+    #[default]
+    Disconnected,
+    /// Packets never arrived (VITA 49 over UDP): counted from packet counts and time stamps.
+    PacketLost,
 }
 
 /// What the user asked for on the command line.
@@ -171,6 +187,8 @@ pub struct InputRequest {
     pub input_channel: Option<u64>,
     /// `tcp-listen://` on an address beyond loopback was asked for explicitly.
     pub listen_public: bool,
+    /// Of a VITA 49 input, the stream to read (`None`: the first seen).
+    pub stream_id: Option<u32>,
 }
 
 impl InputRequest {
@@ -178,7 +196,12 @@ impl InputRequest {
     /// a SigMF name, the recording's metadata and data, so outputs never write over them.
     pub fn files(&self) -> Vec<std::path::PathBuf> {
         match self.path.as_deref() {
-            Some(p) if p != "-" && !p.starts_with("tcp://") && !p.starts_with("tcp-listen://") => {
+            Some(p)
+                if p != "-"
+                    && !p.starts_with("tcp://")
+                    && !p.starts_with("tcp-listen://")
+                    && !p.starts_with("vita49://") =>
+            {
                 let (meta, data) = sigmf::paths(p);
                 vec![p.into(), meta.into(), data.into()]
             }
@@ -254,9 +277,10 @@ fn open_unchecked(req: &InputRequest, notes: &mut Vec<String>) -> Result<Box<dyn
             let info = SourceInfo::live("stdin".into(), format, rate, req);
             Box::new(raw::RawSource::new(Box::new(std::io::stdin()), format, info))
         }
-        Some(path) => match tcp::parse_endpoint(path) {
-            Some(ep) => Box::new(tcp::open(ep?, req, notes)?),
-            None => open_path(path, req, notes)?,
+        Some(path) => match (tcp::parse_endpoint(path), vita49::parse_endpoint(path)) {
+            (Some(ep), _) => Box::new(tcp::open(ep?, req, notes)?),
+            (None, Some(addr)) => Box::new(vita49::open(addr?, req, notes)?),
+            (None, None) => open_path(path, req, notes)?,
         },
     };
     if src.info().format.is_some_and(|f| f.is_real()) {

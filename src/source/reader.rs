@@ -32,12 +32,26 @@ pub struct Block {
     /// Of the samples skipped just before `start`, how many the source lost to a disconnection
     /// (the rest of a jump was dropped because processing was behind).
     pub disconnected: u64,
+    /// What those samples were lost to.
+    pub lost_cause: super::LinkLoss,
     home: Option<Sender<Vec<Complex32>>>,
 }
 
 impl Block {
+    #[cfg(test)]
+    fn homed(mut self, home: Sender<Vec<Complex32>>) -> Block {
+        self.home = Some(home);
+        self
+    }
+
     pub fn new(start: u64, samples: Vec<Complex32>) -> Block {
-        Block { start, samples, disconnected: 0, home: None }
+        Block {
+            start,
+            samples,
+            disconnected: 0,
+            lost_cause: super::LinkLoss::Disconnected,
+            home: None,
+        }
     }
 }
 
@@ -215,7 +229,13 @@ fn run(
             pacer = pacer.or(opts.pace_recordings.map(Pacer::new));
         }
         let mut held = pacer.as_mut().is_some_and(|p| p.wait(n as u64, rate, stop));
-        let block = Block { start: index, samples, disconnected, home: Some(home.clone()) };
+        let block = Block {
+            start: index,
+            samples,
+            disconnected,
+            lost_cause: src.lost_cause(),
+            home: Some(home.clone()),
+        };
         index += n as u64;
         stats.samples.fetch_add(n as u64, Ordering::Relaxed);
         match tx.try_send(block) {
@@ -556,12 +576,12 @@ mod tests {
         let (home, spare) = bounded(1);
         let buf = vec![Complex32::new(0.5, 0.0); 1000];
         let ptr = buf.as_ptr();
-        drop(Block { start: 0, samples: buf, disconnected: 0, home: Some(home.clone()) });
+        drop(Block::new(0, buf).homed(home.clone()));
         let back = spare.try_recv().expect("the buffer came back");
         assert_eq!((back.as_ptr(), back.len()), (ptr, 1000));
         // With the return queue full the buffer is simply freed.
         home.try_send(Vec::new()).unwrap();
-        drop(Block { start: 0, samples: back, disconnected: 0, home: Some(home) });
+        drop(Block::new(0, back).homed(home));
         assert!(spare.try_recv().unwrap().is_empty());
     }
 }

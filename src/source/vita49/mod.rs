@@ -1,0 +1,500 @@
+//! `vita49://ADDR:PORT`: IQ in VITA 49 (ANSI/VITA-49.0 / 49.2, "VRT") packets over UDP, one
+//! packet per datagram.
+//!
+//! **Binding.** The port is bound on ADDR, loopback only unless `--listen-public` (as for
+//! `tcp-listen://`). The socket's receive buffer is asked to hold about a second of samples
+//! at the stream's rate (the kernel may cap it), so a short stall of the DSP does not lose
+//! datagrams in the kernel.
+//!
+//! **Streams.** `--stream-id ID` (decimal or 0x hex) picks one stream; without it the first
+//! stream seen is taken and named in a note. Packets of other streams are counted, not read.
+//!
+//! **Context.** Before the first sample the source waits (up to [`CONTEXT_WAIT`]) for a context
+//! packet of the stream, which gives the sample rate, the RF reference frequency (the centre)
+//! and the payload format; `--rate`, `--center` and `--format` override them, and with all three
+//! given no context is needed. The payload format maps onto a SigMF datatype: complex
+//! Cartesian, signed fixed point of 8/16/32 bits or IEEE single/double, items packed in their
+//! own width, big-endian (VITA 49's byte order); other formats are refused with the reason.
+//! Reference level and gain are kept for the start note. A context packet that changes the
+//! rate or the centre mid-stream is noted; the stream is not re-tuned (panoramas are not built
+//! yet).
+//!
+//! **Time and loss.** Each data packet's place on the time line comes from its time stamps:
+//! TSF sample count (with a UTC/GPS/other integer second: seconds × rate + count), real time
+//! (seconds + picoseconds × 10⁻¹² × rate, rounded) or a free-running count (taken as a sample
+//! count); with no fractional stamp, from the 4-bit packet count × the samples per packet. The
+//! first packet is sample 0 and, with a UTC integer stamp, gives the time of the first sample.
+//! Samples between the expected and the stamped place are lost (`take_lost`, cause
+//! `packet_lost`), so 16 or more packets lost in a row are still counted exactly when stamps
+//! are present. Packets that arrive out of order within [`REORDER_WINDOW`] packets are put back
+//! in order; a packet for a place already delivered (a duplicate or one too late) is dropped and
+//! counted. Malformed datagrams are counted, noted once, and never taken as samples.
+
+pub mod packet;
+
+use super::{sanitize, InputIssues, InputRequest, SampleFormat, SampleSource, SourceInfo};
+use anyhow::{bail, Context as _, Result};
+use num_complex::Complex32;
+use packet::{Header, Packet, PayloadFormat, Tsf, Tsi};
+use std::collections::BTreeMap;
+use std::net::{SocketAddr, UdpSocket};
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::Arc;
+use std::time::{Duration, Instant};
+use time::OffsetDateTime;
+
+/// How long to wait for the first context packet when a flag does not give what it holds.
+pub const CONTEXT_WAIT: Duration = Duration::from_secs(10);
+/// Packets held back to put reordered ones in place.
+pub const REORDER_WINDOW: usize = 32;
+/// A held-back packet is released after this long without the one before it.
+const HOLD_LIMIT: Duration = Duration::from_millis(200);
+/// How often a blocked receive looks at the stop flag.
+const TICK: Duration = Duration::from_millis(100);
+/// Largest UDP datagram.
+const MAX_DATAGRAM: usize = 65_536;
+
+/// Reads `vita49://ADDR:PORT`; `None` for any other input name.
+pub fn parse_endpoint(input: &str) -> Option<Result<SocketAddr>> {
+    let rest = input.strip_prefix("vita49://")?;
+    Some(rest.parse::<SocketAddr>().with_context(|| {
+        format!(
+            "'{}': give a numeric address and port to bind, e.g. vita49://127.0.0.1:4991",
+            sanitize(input)
+        )
+    }))
+}
+
+/// Reads `--stream-id`: decimal or `0x` hexadecimal, 32 bits.
+pub fn parse_stream_id(text: &str) -> Result<u32, String> {
+    let t = text.trim();
+    let parsed = match t.strip_prefix("0x").or_else(|| t.strip_prefix("0X")) {
+        Some(hex) => u32::from_str_radix(hex, 16),
+        None => t.parse::<u32>(),
+    };
+    parsed.map_err(|_| format!("'{}' is not a 32-bit stream ID (e.g. 7 or 0x1a2b)", sanitize(text)))
+}
+
+/// What the stream's context said, and what the flags override.
+#[derive(Clone, Debug, Default)]
+struct Tuning {
+    rate: Option<f64>,
+    center: Option<f64>,
+    format: Option<SampleFormat>,
+    reference_level_dbm: Option<f64>,
+    gain_db: Option<(f64, f64)>,
+}
+
+/// The SigMF datatype of a VITA 49 payload format, or why it cannot be read.
+pub fn datatype_of(f: &PayloadFormat) -> Result<SampleFormat, String> {
+    if f.real_complex != 1 {
+        let kind =
+            ["real", "complex Cartesian", "complex polar", "reserved"][f.real_complex as usize & 3];
+        return Err(format!("{kind} samples (bandwarden reads complex Cartesian)"));
+    }
+    if f.packing_bits != f.item_bits {
+        return Err(format!(
+            "{}-bit items packed in {}-bit fields (bandwarden reads items packed in their own width)",
+            f.item_bits, f.packing_bits
+        ));
+    }
+    match (f.item_format, f.item_bits) {
+        (0, 8) => Ok(SampleFormat::Ci8),
+        (0, 16) => Ok(SampleFormat::Ci16Be),
+        (0, 32) => Ok(SampleFormat::Ci32Be),
+        (0x0e, 32) => Ok(SampleFormat::Cf32Be),
+        (0x0f, 64) => Ok(SampleFormat::Cf64Be),
+        (fmt, bits) => Err(format!(
+            "item format {fmt:#x} of {bits} bits (bandwarden reads signed fixed point of 8, 16 or 32 bits and IEEE single or double)"
+        )),
+    }
+}
+
+/// A data packet waiting for its turn.
+struct Held {
+    samples: Vec<Complex32>,
+    since: Instant,
+}
+
+pub struct Vita49Source {
+    socket: UdpSocket,
+    info: SourceInfo,
+    format: SampleFormat,
+    stream: Option<u32>,
+    datagram: Vec<u8>,
+    /// First packet's stamp: (integer seconds, fractional), the origin of the time line.
+    origin: Option<(u32, u64)>,
+    /// Next sample index to deliver.
+    next: u64,
+    /// Packet count and length of the last packet placed (for streams without stamps).
+    last_count: Option<(u8, u64)>,
+    held: BTreeMap<u64, Held>,
+    /// Samples of the packet being delivered, from `offset` on.
+    current: Vec<Complex32>,
+    offset: usize,
+    lost: u64,
+    issues: InputIssues,
+    stop: Option<Arc<AtomicBool>>,
+    tuning: Tuning,
+    /// Counts for the notes.
+    pub counts: Counts,
+}
+
+/// What the source counted besides samples.
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct Counts {
+    pub malformed: u64,
+    pub other_streams: u64,
+    pub duplicates: u64,
+    pub reordered: u64,
+    pub retunes: u64,
+}
+
+/// Opens the socket and waits for what the stream must say about itself (module doc).
+pub fn open(addr: SocketAddr, req: &InputRequest, notes: &mut Vec<String>) -> Result<Vita49Source> {
+    if !addr.ip().is_loopback() && !req.listen_public {
+        bail!(
+            "vita49://{addr} would take packets from other hosts; add --listen-public to allow that, or bind a loopback address such as 127.0.0.1"
+        );
+    }
+    let socket = UdpSocket::bind(addr).with_context(|| format!("cannot bind UDP {addr}"))?;
+    socket.set_read_timeout(Some(TICK))?;
+    let mut src = Vita49Source {
+        socket,
+        info: SourceInfo::live(format!("vita49://{addr}"), SampleFormat::Ci16Be, 1.0, req),
+        format: req.format.unwrap_or(SampleFormat::Ci16Be),
+        stream: req.stream_id,
+        datagram: vec![0; MAX_DATAGRAM],
+        origin: None,
+        next: 0,
+        last_count: None,
+        held: BTreeMap::new(),
+        current: Vec::new(),
+        offset: 0,
+        lost: 0,
+        issues: InputIssues::default(),
+        stop: None,
+        tuning: Tuning {
+            rate: req.sample_rate_hz,
+            center: req.center_hz,
+            format: req.format,
+            ..Tuning::default()
+        },
+        counts: Counts::default(),
+    };
+    src.await_context(notes)?;
+    Ok(src)
+}
+
+impl Vita49Source {
+    /// Reads datagrams until the rate, centre and format are known (module doc); data packets
+    /// that arrive first are kept and delivered once they can be read.
+    fn await_context(&mut self, notes: &mut Vec<String>) -> Result<()> {
+        let started = Instant::now();
+        let mut early: Vec<Vec<u8>> = Vec::new();
+        while self.tuning.rate.is_none()
+            || self.tuning.center.is_none()
+            || self.tuning.format.is_none()
+        {
+            if started.elapsed() > CONTEXT_WAIT {
+                let missing: Vec<&str> = [
+                    (self.tuning.rate.is_none(), "--rate"),
+                    (self.tuning.center.is_none(), "--center"),
+                    (self.tuning.format.is_none(), "--format"),
+                ]
+                .iter()
+                .filter(|(m, _)| *m)
+                .map(|(_, f)| *f)
+                .collect();
+                bail!(
+                    "{}: no VITA 49 context packet{} arrived within {} s to give the sample rate, centre frequency and payload format; check that the sender sends context, or give {}",
+                    self.info.label,
+                    self.stream.map(|s| format!(" of stream {s:#x}")).unwrap_or_default(),
+                    CONTEXT_WAIT.as_secs(),
+                    missing.join(", ")
+                );
+            }
+            let Some(n) = self.receive()? else { continue };
+            let bytes = self.datagram[..n].to_vec();
+            match packet::parse(&bytes) {
+                Err(e) => self.malformed(&e.0, notes),
+                Ok(Packet::Context { header, context }) => {
+                    if self.take_stream(&header, notes) {
+                        self.apply_context(&context, notes)?;
+                    }
+                }
+                Ok(Packet::Data { header, .. }) => {
+                    if self.take_stream(&header, notes) && early.len() < 4 * REORDER_WINDOW {
+                        early.push(bytes);
+                    }
+                }
+                Ok(Packet::Other { .. }) => {}
+            }
+        }
+        let t = &self.tuning;
+        self.format = t.format.unwrap_or(SampleFormat::Ci16Be);
+        self.info.sample_rate_hz = t.rate.unwrap_or(1.0);
+        self.info.center_hz = t.center.unwrap_or(0.0);
+        self.info.format = Some(self.format);
+        if let Some(level) = t.reference_level_dbm {
+            let gain =
+                t.gain_db.map(|(a, b)| format!(", gain {a:.2} + {b:.2} dB")).unwrap_or_default();
+            notes.push(format!(
+                "{}: the stream's context gives a reference level of {level:.2} dBm{gain}; levels are still shown in dBFS",
+                self.info.label
+            ));
+        }
+        for bytes in early {
+            if let Ok(Packet::Data { header, payload }) = packet::parse(&bytes) {
+                self.place(&header, payload);
+            }
+        }
+        Ok(())
+    }
+
+    /// One datagram into `self.datagram`; `None` after a quiet tick.
+    fn receive(&mut self) -> Result<Option<usize>> {
+        match self.socket.recv(&mut self.datagram) {
+            Ok(n) => Ok(Some(n)),
+            Err(e)
+                if matches!(
+                    e.kind(),
+                    std::io::ErrorKind::WouldBlock
+                        | std::io::ErrorKind::TimedOut
+                        | std::io::ErrorKind::Interrupted
+                ) =>
+            {
+                Ok(None)
+            }
+            Err(e) => Err(e).with_context(|| format!("receiving from {}", self.info.label)),
+        }
+    }
+
+    fn malformed(&mut self, why: &str, notes: &mut Vec<String>) {
+        self.counts.malformed += 1;
+        if self.counts.malformed == 1 {
+            notes.push(format!(
+                "{}: a datagram is not a VITA 49 packet ({why}); such datagrams are counted and skipped",
+                self.info.label
+            ));
+        }
+    }
+
+    /// True when the packet belongs to the chosen stream (the first seen when none was asked).
+    fn take_stream(&mut self, header: &Header, notes: &mut Vec<String>) -> bool {
+        let id = header.stream_id.unwrap_or(0);
+        match self.stream {
+            Some(s) if s == id => true,
+            Some(_) => {
+                self.counts.other_streams += 1;
+                false
+            }
+            None => {
+                self.stream = Some(id);
+                notes.push(format!(
+                    "{}: reading stream {id:#x}, the first seen (--stream-id picks another)",
+                    self.info.label
+                ));
+                true
+            }
+        }
+    }
+
+    /// Takes the context fields the flags did not give.
+    fn apply_context(&mut self, c: &packet::Context, notes: &mut Vec<String>) -> Result<()> {
+        let t = &mut self.tuning;
+        if t.rate.is_none() {
+            t.rate = c.sample_rate_hz;
+        }
+        if t.center.is_none() {
+            t.center = c.rf_reference_hz.map(|f| f + c.rf_offset_hz.unwrap_or(0.0));
+        }
+        if t.format.is_none() {
+            if let Some(pf) = &c.payload_format {
+                match datatype_of(pf) {
+                    Ok(f) => t.format = Some(f),
+                    Err(why) => bail!(
+                        "{}: the stream's payload format is {why}; it cannot be read",
+                        self.info.label
+                    ),
+                }
+            }
+        }
+        t.reference_level_dbm = c.reference_level_dbm.or(t.reference_level_dbm);
+        t.gain_db = c.gain_db.or(t.gain_db);
+        let _ = notes;
+        Ok(())
+    }
+
+    /// Notes a context change after the start (module doc: not re-tuned).
+    fn later_context(&mut self, c: &packet::Context) {
+        let moved = c.rf_reference_hz.is_some_and(|f| (f - self.info.center_hz).abs() > 0.5)
+            || c.sample_rate_hz.is_some_and(|r| (r - self.info.sample_rate_hz).abs() > 0.5);
+        if moved {
+            self.counts.retunes += 1;
+        }
+    }
+
+    /// Where a data packet's first sample lies on the time line (module doc), or `None` for a
+    /// packet from before the origin.
+    fn index_of(&mut self, h: &Header, samples: u64) -> Option<u64> {
+        let rate = self.info.sample_rate_hz;
+        let int = h.integer_ts.unwrap_or(0);
+        let frac = h.fractional_ts.unwrap_or(0);
+        let Some((int0, frac0)) = self.origin else {
+            self.origin = Some((int, frac));
+            if h.tsi == Tsi::Utc {
+                let t = OffsetDateTime::from_unix_timestamp(i64::from(int)).ok();
+                let sub = match h.tsf {
+                    Tsf::RealTime => frac as f64 * 1e-12,
+                    Tsf::SampleCount => frac as f64 / rate,
+                    _ => 0.0,
+                };
+                self.info.start_time =
+                    t.and_then(|t| t.checked_add(time::Duration::seconds_f64(sub)));
+            }
+            self.last_count = Some((h.count, samples));
+            return Some(0);
+        };
+        let seconds = i64::from(int) - i64::from(int0);
+        let index = match (h.tsf, h.tsi) {
+            (Tsf::SampleCount, Tsi::None) | (Tsf::FreeRunning, _) => frac as i64 - frac0 as i64,
+            (Tsf::SampleCount, _) => {
+                (seconds as f64 * rate).round() as i64 + frac as i64 - frac0 as i64
+            }
+            (Tsf::RealTime, _) => {
+                let ps = frac as i64 - frac0 as i64;
+                ((seconds as f64 + ps as f64 * 1e-12) * rate).round() as i64
+            }
+            (Tsf::None, Tsi::None) => {
+                // Packet count only: the packets missed since the last one placed.
+                let (count, len) = self.last_count.unwrap_or((h.count, samples));
+                let step = u64::from(h.count.wrapping_sub(count).wrapping_sub(1) & 0xf);
+                self.last_count = Some((h.count, samples));
+                return Some(self.end_of_placed() + step * len);
+            }
+            (Tsf::None, _) => (seconds as f64 * rate).round() as i64,
+        };
+        self.last_count = Some((h.count, samples));
+        u64::try_from(index).ok()
+    }
+
+    /// The index just after the last packet delivered or held.
+    fn end_of_placed(&self) -> u64 {
+        self.held
+            .iter()
+            .next_back()
+            .map(|(k, v)| k + v.samples.len() as u64)
+            .unwrap_or(self.next + (self.current.len() - self.offset) as u64)
+    }
+
+    /// Decodes a data packet and holds it at its place.
+    fn place(&mut self, h: &Header, payload: &[u8]) {
+        let bps = self.format.bytes_per_sample();
+        let whole = payload.len() / bps;
+        if whole == 0 {
+            return;
+        }
+        let mut samples = vec![Complex32::default(); whole];
+        let screened = self.format.decode(&payload[..whole * bps], &mut samples);
+        self.issues.non_finite += screened.non_finite;
+        self.issues.beyond_scale += screened.beyond_scale;
+        let Some(at) = self.index_of(h, whole as u64) else {
+            self.counts.duplicates += 1;
+            return;
+        };
+        let delivered_to = self.next + (self.current.len() - self.offset) as u64;
+        if at < delivered_to || self.held.contains_key(&at) {
+            self.counts.duplicates += 1;
+            return;
+        }
+        if self.held.keys().next_back().is_some_and(|&last| at < last) {
+            self.counts.reordered += 1;
+        }
+        self.held.insert(at, Held { samples, since: Instant::now() });
+    }
+
+    /// Moves the next held packet to `current` when it is due: it is next in line, the window
+    /// is full, or it has waited [`HOLD_LIMIT`]. Samples skipped on the way are lost.
+    fn release(&mut self, ended: bool) -> bool {
+        let Some((&at, held)) = self.held.iter().next() else { return false };
+        let due = at == self.next
+            || ended
+            || self.held.len() > REORDER_WINDOW
+            || held.since.elapsed() > HOLD_LIMIT;
+        if !due {
+            return false;
+        }
+        let Some(held) = self.held.remove(&at) else { return false };
+        self.lost += at.saturating_sub(self.next);
+        self.next = at;
+        self.current = held.samples;
+        self.offset = 0;
+        true
+    }
+
+    fn stopped(&self) -> bool {
+        self.stop.as_ref().is_some_and(|s| s.load(Ordering::Relaxed))
+    }
+}
+
+impl SampleSource for Vita49Source {
+    fn info(&self) -> &SourceInfo {
+        &self.info
+    }
+
+    fn read(&mut self, out: &mut [Complex32]) -> Result<usize> {
+        let mut notes = Vec::new();
+        loop {
+            if self.offset < self.current.len() {
+                let n = out.len().min(self.current.len() - self.offset);
+                out[..n].copy_from_slice(&self.current[self.offset..self.offset + n]);
+                self.offset += n;
+                self.next += n as u64;
+                return Ok(n);
+            }
+            if self.release(false) {
+                continue;
+            }
+            if self.stopped() {
+                // Deliver what is held, then end.
+                if self.release(true) {
+                    continue;
+                }
+                return Ok(0);
+            }
+            let Some(n) = self.receive()? else { continue };
+            let bytes = self.datagram[..n].to_vec();
+            match packet::parse(&bytes) {
+                Err(e) => self.malformed(&e.0, &mut notes),
+                Ok(Packet::Data { header, payload }) => {
+                    if self.take_stream(&header, &mut notes) {
+                        self.place(&header, payload);
+                    }
+                }
+                Ok(Packet::Context { header, context }) => {
+                    if self.take_stream(&header, &mut notes) {
+                        self.later_context(&context);
+                    }
+                }
+                Ok(Packet::Other { .. }) => {}
+            }
+        }
+    }
+
+    fn issues(&self) -> InputIssues {
+        self.issues.clone()
+    }
+
+    fn take_lost(&mut self) -> u64 {
+        std::mem::take(&mut self.lost)
+    }
+
+    fn lost_cause(&self) -> super::LinkLoss {
+        super::LinkLoss::PacketLost
+    }
+
+    fn watch_stop(&mut self, stop: Arc<AtomicBool>) {
+        self.stop = Some(stop);
+    }
+}

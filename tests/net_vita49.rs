@@ -1,0 +1,147 @@
+//! VITA 49 over UDP as a monitoring receiver sends it: a context packet (RF reference, sample
+//! rate, reference level, payload format) and signal data packets of 16-bit complex samples
+//! with UTC + sample-count time stamps. The packets are assembled here from the standard's
+//! layout (ANSI/VITA-49.0 §6.1 header, §7.1 context fields; radix points at bit 20 for
+//! frequencies, bit 7 for levels). The truth is this test's own schedule: which packets it
+//! left out, repeated, swapped or spoiled.
+
+mod common;
+
+use bandwarden::source::SampleFormat;
+use bandwarden::testkit::{keyed_band, Keyed};
+use serde_json::Value;
+use std::net::UdpSocket;
+use std::process::{Command, Stdio};
+use std::time::{Duration, Instant};
+
+const FS: f64 = 200e3;
+const PER_PACKET: usize = 1000;
+const PACKETS: usize = 200;
+const STREAM: u32 = 0x5157;
+
+fn words(w: &[u32]) -> Vec<u8> {
+    w.iter().flat_map(|x| x.to_be_bytes()).collect()
+}
+
+fn radix20(hz: f64) -> [u32; 2] {
+    let v = (hz * (1u64 << 20) as f64) as i64 as u64;
+    [(v >> 32) as u32, v as u32]
+}
+
+/// A context packet: CIF0 bits 27 (RF reference), 24 (reference level), 21 (sample rate),
+/// 15 (payload format: complex Cartesian, signed fixed point, 16-bit items in 16-bit fields).
+fn context(count: u32) -> Vec<u8> {
+    let cif0 = (1 << 27) | (1 << 24) | (1 << 21) | (1 << 15);
+    let mut w = vec![0u32, STREAM, cif0];
+    w.extend(radix20(145.5e6));
+    w.push((-20.0f64 * 128.0) as i16 as u16 as u32);
+    w.extend(radix20(FS));
+    let pf: u64 = (1 << 61) | (15 << 38) | (15 << 32);
+    w.extend([(pf >> 32) as u32, pf as u32]);
+    w[0] = (4 << 28) | ((count & 0xf) << 16) | w.len() as u32;
+    words(&w)
+}
+
+/// Data packet `k`: type 1 with a trailer, TSI UTC, TSF sample count.
+fn data(k: usize, samples: &[u8]) -> Vec<u8> {
+    let first = (k * PER_PACKET) as u64;
+    let secs = 1_800_000_000 + (first / FS as u64) as u32;
+    let frac = first % FS as u64;
+    let mut w = vec![0u32, STREAM, secs, (frac >> 32) as u32, frac as u32];
+    let payload = &samples[k * PER_PACKET * 4..(k + 1) * PER_PACKET * 4];
+    let words_len = w.len() + payload.len() / 4 + 1;
+    w[0] = (1 << 28)
+        | (1 << 26)
+        | (1 << 22)
+        | (1 << 20)
+        | (((k as u32) & 0xf) << 16)
+        | words_len as u32;
+    let mut b = words(&w);
+    b.extend_from_slice(payload);
+    b.extend_from_slice(&0u32.to_be_bytes());
+    b
+}
+
+#[test]
+fn lost_reordered_and_repeated_packets_are_counted_exactly() {
+    let out = common::scratch("vita49", "site.jsonl");
+    let port = UdpSocket::bind("127.0.0.1:0").unwrap().local_addr().unwrap().port();
+    let addr = format!("vita49://127.0.0.1:{port}");
+    let mut child = Command::new(env!("CARGO_BIN_EXE_bandwarden"))
+        .args(["log", &addr, "--channel", "a=145.52M:10k", "--interval", "1s"])
+        .args(["--fft", "512", "--threads", "1", "-o", out.to_str().unwrap()])
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    let on = |_: u64| true;
+    let x = keyed_band(
+        PACKETS * PER_PACKET,
+        FS,
+        1e-4,
+        &[Keyed { offset_hz: 20e3, level_dbfs: -30.0, on: &on }],
+        3,
+    );
+    let mut samples = Vec::new();
+    SampleFormat::Ci16Be.encode(&x, &mut samples);
+    let tx = UdpSocket::bind("127.0.0.1:0").unwrap();
+    let to = format!("127.0.0.1:{port}");
+    // Context until bandwarden has surely bound its port.
+    for i in 0..10 {
+        let _ = tx.send_to(&context(i), &to);
+        std::thread::sleep(Duration::from_millis(100));
+    }
+    let lost: Vec<usize> = std::iter::once(50).chain(100..120).collect();
+    let mut order: Vec<usize> = (0..PACKETS).filter(|k| !lost.contains(k)).collect();
+    let at = order.iter().position(|&k| k == 150).unwrap();
+    order.swap(at, at + 1);
+    let start = Instant::now();
+    for (i, &k) in order.iter().enumerate() {
+        tx.send_to(&data(k, &samples), &to).unwrap();
+        if k == 160 {
+            tx.send_to(&data(k, &samples), &to).unwrap(); // a duplicate
+            tx.send_to(&[0xde, 0xad, 0xbe], &to).unwrap(); // not a packet
+        }
+        let due = Duration::from_secs_f64((i + 1) as f64 * PER_PACKET as f64 / FS);
+        if let Some(wait) = due.checked_sub(start.elapsed()) {
+            std::thread::sleep(wait);
+        }
+    }
+    std::thread::sleep(Duration::from_millis(600));
+    Command::new("kill").args(["-TERM", &child.id().to_string()]).status().unwrap();
+    let status = child.wait().unwrap();
+    assert!(status.success(), "log exits 0 after SIGTERM: {status:?}");
+
+    let recs: Vec<Value> = std::fs::read_to_string(&out)
+        .unwrap()
+        .lines()
+        .map(|l| serde_json::from_str(l).unwrap())
+        .collect();
+    let dropped: Vec<&Value> = recs.iter().filter(|r| r["kind"] == "dropped").collect();
+    let by_cause = |c: &str| -> u64 {
+        dropped
+            .iter()
+            .filter(|r| r["cause"] == c)
+            .map(|r| r["dropped_samples"].as_u64().unwrap())
+            .sum()
+    };
+    // 21 packets never sent: one alone, then 20 in a row (more than the 4-bit count's 16).
+    assert_eq!(by_cause("packet_lost"), (lost.len() * PER_PACKET) as u64, "{dropped:?}");
+    assert_eq!(by_cause("behind"), 0, "{dropped:?}");
+    let first_gap = dropped.iter().find(|r| r["cause"] == "packet_lost").unwrap();
+    assert_eq!(first_gap["t_start_s"].as_f64().unwrap(), (50 * PER_PACKET) as f64 / FS);
+    let stop = recs.last().unwrap();
+    assert_eq!(stop["kind"], "stop");
+    assert_eq!(stop["iq_samples"].as_u64().unwrap(), (PACKETS * PER_PACKET) as u64);
+    // The centre came from the context: the channel at 145.52 MHz holds the carrier.
+    let start_rec = &recs[0];
+    assert_eq!(start_rec["center_hz"].as_f64().unwrap(), 145.5e6, "{start_rec}");
+}
+
+#[test]
+fn a_public_address_needs_listen_public_and_a_silent_port_says_what_it_waited_for() {
+    let o = common::run(&["measure", "vita49://0.0.0.0:0"]);
+    let err = common::stderr(&o);
+    assert!(!o.status.success() && err.contains("--listen-public"), "{err}");
+    let o = common::run(&["measure", "vita49://127.0.0.1:notaport"]);
+    assert!(!o.status.success() && common::stderr(&o).contains("vita49://127.0.0.1:4991"));
+}
