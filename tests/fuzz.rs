@@ -628,3 +628,18 @@ fn command_lines_through_the_binary() {
     eprintln!("{runs} mutated command lines run in {} tries", budget.done - 1);
     assert!(runs > 0, "no mutated command line got past validation");
 }
+
+#[test]
+fn vita49_datagrams() {
+    // Any datagram is a packet or a reason, never a panic; a packet's payload lies within it.
+    fuzz("vita49", 5000, |b| {
+        let whole = &b[..b.len() / 4 * 4];
+        for bytes in [b, whole] {
+            if let Ok(bandwarden::source::vita49::packet::Packet::Data { payload, .. }) =
+                bandwarden::source::vita49::packet::parse(bytes)
+            {
+                assert!(payload.len() <= bytes.len());
+            }
+        }
+    });
+}
