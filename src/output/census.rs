@@ -3,7 +3,7 @@
 
 use crate::dsp::Spectrum;
 use crate::measure::census::{
-    frequency_name, Census, CensusEvent, CensusResult, Emission, EmitterFigures,
+    frequency_name, Attributed, Census, CensusEvent, CensusResult, Emission, EmitterFigures,
 };
 use crate::output::log::CaptureRecord;
 use crate::output::sigmf::annotate::{comment, AnnotateSummary, AnnotationWriter, EmissionNote};
@@ -202,6 +202,7 @@ pub fn to_json_value(r: &CensusResult) -> serde_json::Value {
                 "airtime_pct": round(e.airtime_pct, 2),
                 "peak_dbfs": round(e.peak_dbfs, 2),
                 "power_dbfs": round(e.power_dbfs, 2),
+                "attributed": attributed_json(&e.attributed),
             })
         })
         .collect();
@@ -214,6 +215,32 @@ pub fn to_json_value(r: &CensusResult) -> serde_json::Value {
         "noise_floor_dbfs_per_hz": round(r.noise_floor_dbfs_per_hz, 2),
         "emitters": emitters,
     })
+}
+
+/// What was attributed to an emitter, for `--json`: counts always, energies (dBc, relative to
+/// the emitter's own energy on the air) where there was something.
+fn attributed_json(a: &Attributed) -> serde_json::Value {
+    json!({
+        "transients": a.transients,
+        "transient_energy_dbc": a.transient_energy_dbc().map(|v| round(v, 1)),
+        "skirts": a.skirts,
+        "skirt_energy_dbc": a.skirt_energy_dbc().map(|v| round(v, 1)),
+    })
+}
+
+/// One line for the table's notes on what was attributed to emitter `e`, if anything.
+fn attributed_note(e: &EmitterFigures) -> Option<String> {
+    let a = &e.attributed;
+    let mut parts = Vec::new();
+    if a.transients > 0 {
+        let energy = a.transient_energy_dbc().map_or(String::new(), |v| format!(", {v:.1} dBc"));
+        parts.push(format!("{} keying transient(s){energy}", a.transients));
+    }
+    if a.skirts > 0 {
+        let energy = a.skirt_energy_dbc().map_or(String::new(), |v| format!(", {v:.1} dBc"));
+        parts.push(format!("{} out-of-band skirt(s) or line(s){energy}", a.skirts));
+    }
+    (!parts.is_empty()).then(|| format!("  {}: {}", e.name, parts.join("; ")))
 }
 
 /// The census as a table, strongest first, units in the header.
@@ -260,6 +287,13 @@ pub fn to_table(r: &CensusResult, label: &str) -> String {
             e.peak_dbfs,
             e.power_dbfs
         );
+    }
+    let notes: Vec<String> = r.emitters.iter().filter_map(attributed_note).collect();
+    if !notes.is_empty() {
+        let _ = writeln!(s, "attributed to the emitter that made them, not listed:");
+        for n in notes {
+            let _ = writeln!(s, "{n}");
+        }
     }
     if r.emitters_dropped > 0 {
         let _ = writeln!(
@@ -419,6 +453,7 @@ mod tests {
             airtime_s: 0.5,
             peak_dbfs: -40.0,
             power_dbfs: -40.0,
+            attributed: Default::default(),
         }
     }
 

@@ -107,8 +107,10 @@ impl EmitterAcc {
         self.rows += 1;
     }
 
-    /// Its figures, or `None` when it was never on the air for a measurable time.
-    pub fn figures(&self, g: &Layout, window: &Window) -> Option<EmitterFigures> {
+    /// Its figures, or `None` when it was never on the air for a measurable time. The centre is
+    /// the middle of the 99 % occupied band, or with `xdb_centre` that of the x-dB band
+    /// ([`XDB_CENTRE_DB`]).
+    pub fn figures(&self, g: &Layout, window: &Window, xdb_centre: bool) -> Option<EmitterFigures> {
         if self.rows == 0 || self.airtime == 0 {
             return None;
         }
@@ -141,9 +143,15 @@ impl EmitterAcc {
             window.tone_offset(at(p.checked_sub(1)), positive[p], at(Some(p + 1))).1
         };
         let peak = positive[p] * g.rbw_hz / gain.max(1e-12);
+        let center_hz = if xdb_centre {
+            let (a, b) = xdb_span(&positive, p);
+            freq(self.lo as f64 + 0.5 * (a + b) as f64)
+        } else {
+            0.5 * (obw.low_hz + obw.high_hz)
+        };
         Some(EmitterFigures {
             name: String::new(),
-            center_hz: 0.5 * (obw.low_hz + obw.high_hz),
+            center_hz,
             obw_hz: obw.width_hz(),
             first_s: self.first as f64 / g.sample_rate_hz,
             last_s: self.last as f64 / g.sample_rate_hz,
@@ -152,6 +160,23 @@ impl EmitterAcc {
             airtime_s: self.airtime as f64 / g.sample_rate_hz,
             peak_dbfs: db(peak),
             power_dbfs: db(power.max(1e-30)),
+            attributed: Default::default(),
         })
     }
+}
+
+/// The x of the x-dB band (ITU-R SM.328) that centres an emitter with skirts: the skirt rule
+/// ([`super::attribute::SKIRT_BELOW_DB`]) takes only pieces at least this far under the
+/// emitter's peak, so the band within it of the peak is the emitter's body (a pulse's main
+/// lobe, an OFDM block, the tones of FSK). Its middle is the centre whatever the skirts do: a
+/// line spectrum's side lobes that wrap around the span, or a skirt seen on one side only,
+/// move the middle of the 99 % band by kilohertz.
+pub const XDB_CENTRE_DB: f64 = super::attribute::SKIRT_BELOW_DB;
+
+/// The first and last bins of `psd` within [`XDB_CENTRE_DB`] of its peak at `p`.
+fn xdb_span(psd: &[f64], p: usize) -> (usize, usize) {
+    let thr = psd[p] * crate::units::undb(-XDB_CENTRE_DB);
+    let a = psd.iter().position(|&v| v >= thr).unwrap_or(p);
+    let b = psd.iter().rposition(|&v| v >= thr).unwrap_or(p);
+    (a, b)
 }

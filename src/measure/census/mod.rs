@@ -23,6 +23,7 @@
 //! Per row the work is the detector (whose result is bounded by `max_signals`) and a pass over
 //! the open tracks and emitters; buffers are kept, and emitters are capped at `max_emitters`.
 
+pub mod attribute;
 pub mod emitter;
 pub mod track;
 
@@ -30,7 +31,8 @@ use crate::dsp::{Spectrum, Window};
 use crate::measure::noise::tracker::NoiseTracker;
 use crate::measure::occupancy::Timing;
 use crate::measure::signals::{find_signals, Detection};
-use crate::units::db;
+use crate::units::{db, undb};
+use attribute::{Fate, Piece, Scale, Span};
 use emitter::EmitterAcc;
 use track::Track;
 
@@ -71,6 +73,39 @@ pub struct EmitterFigures {
     pub peak_dbfs: f64,
     /// Mean channel power while on the air, noise taken off.
     pub power_dbfs: f64,
+    /// What was found around it and attributed to it rather than listed ([`attribute`]).
+    pub attributed: Attributed,
+}
+
+/// The weak emissions attributed to an emitter: its keying transients and its out-of-band
+/// skirts or spectral lines (ITU-R SM.329 / SM.1541: its spurious and out-of-band domains).
+#[derive(Clone, Copy, Debug, Default, PartialEq)]
+pub struct Attributed {
+    /// Transient emissions that followed its key-ups and key-downs.
+    pub transients: u64,
+    /// Their energy over the emitter's own energy on the air (a ratio; 0 without transients).
+    pub transient_share: f64,
+    /// Emitters that were its skirts or side lobes, now measured as part of it.
+    pub skirts: u64,
+    /// Their energy over the emitter's own energy on the air, skirts included (a ratio).
+    pub skirt_share: f64,
+}
+
+impl Attributed {
+    /// Whether anything was attributed.
+    pub fn any(&self) -> bool {
+        self.transients > 0 || self.skirts > 0
+    }
+
+    /// The transients' energy relative to the emitter's, dBc (`None` without transients).
+    pub fn transient_energy_dbc(&self) -> Option<f64> {
+        (self.transients > 0 && self.transient_share > 0.0).then(|| db(self.transient_share))
+    }
+
+    /// The skirts' energy relative to the emitter's, dBc (`None` without skirts).
+    pub fn skirt_energy_dbc(&self) -> Option<f64> {
+        (self.skirts > 0 && self.skirt_share > 0.0).then(|| db(self.skirt_share))
+    }
 }
 
 /// One emission, for annotating a recording.
@@ -441,13 +476,14 @@ impl Census {
         let window = self.window.take()?;
         let home = self.merge_neighbours(layout.rbw_hz);
         let closed = self.join_emissions(&home);
-        let mut ranked: Vec<(usize, EmitterFigures)> = self
+        let measured: Vec<(usize, EmitterFigures)> = self
             .emitters
             .iter()
             .enumerate()
             .filter(|&(i, e)| home[i] == i && e.detected_rows >= MIN_DETECTED_ROWS)
-            .filter_map(|(i, e)| e.figures(&layout, &window).map(|f| (i, f)))
+            .filter_map(|(i, e)| e.figures(&layout, &window, false).map(|f| (i, f)))
             .collect();
+        let mut ranked = self.attribute(measured, &closed, &layout, &window);
         ranked.sort_by(|a, b| b.1.power_dbfs.total_cmp(&a.1.power_dbfs));
         let mut index = vec![usize::MAX; self.emitters.len()];
         for (k, (i, _)) in ranked.iter().enumerate() {
@@ -483,6 +519,80 @@ impl Census {
 }
 
 impl Census {
+    /// Attributes keying transients and out-of-band skirts to the emitters that made them
+    /// ([`attribute`]): returns the emitters that remain, a skirted one measured again over its
+    /// band widened by its skirts and centred on its x-dB band (a pulse train's line spectrum or
+    /// a lopsided skirt moves the middle of its 99 % band).
+    fn attribute(
+        &mut self,
+        measured: Vec<(usize, EmitterFigures)>,
+        closed: &[Closed],
+        layout: &Layout,
+        window: &Window,
+    ) -> Vec<(usize, EmitterFigures)> {
+        let mut at = vec![usize::MAX; self.emitters.len()];
+        for (k, (i, _)) in measured.iter().enumerate() {
+            at[*i] = k;
+        }
+        let mut pieces: Vec<Piece> = measured
+            .iter()
+            .map(|(_, f)| Piece {
+                center_hz: f.center_hz,
+                obw_hz: f.obw_hz,
+                power: undb(f.power_dbfs),
+                peak: undb(f.peak_dbfs),
+                emissions: Vec::new(),
+            })
+            .collect();
+        for c in closed.iter().filter(|c| at[c.emitter] != usize::MAX) {
+            let span = Span { start: c.start, end: c.end };
+            pieces[at[c.emitter]].emissions.push(span);
+        }
+        let scale =
+            Scale::new(layout.stride, layout.fft_size, layout.duration_samples, layout.rbw_hz);
+        let fate = attribute::attribute(&pieces, scale);
+        let mut found = vec![(Attributed::default(), 0.0, 0.0); measured.len()];
+        for (k, f) in fate.iter().enumerate() {
+            match f {
+                Fate::Own => {}
+                Fate::Skirt { root } => {
+                    let (lo, hi) =
+                        (self.emitters[measured[k].0].lo, self.emitters[measured[k].0].hi);
+                    let r = &mut self.emitters[measured[*root].0];
+                    (r.lo, r.hi) = (r.lo.min(lo), r.hi.max(hi));
+                    found[*root].0.skirts += 1;
+                    found[*root].2 +=
+                        pieces[k].emissions.iter().map(|x| pieces[k].energy(x)).sum::<f64>();
+                }
+                Fate::Transient { parents } => {
+                    for (&p, x) in parents.iter().zip(&pieces[k].emissions) {
+                        found[p].0.transients += 1;
+                        found[p].1 += pieces[k].energy(x);
+                    }
+                }
+            }
+        }
+        let mut kept = Vec::with_capacity(measured.len());
+        for (k, (i, f)) in measured.into_iter().enumerate() {
+            if fate[k] != Fate::Own {
+                continue;
+            }
+            let (mut attributed, transient_e, skirt_e) = found[k];
+            let f = if attributed.skirts > 0 {
+                self.emitters[i].figures(layout, window, true).unwrap_or(f)
+            } else {
+                f
+            };
+            let own = undb(f.power_dbfs) * self.emitters[i].airtime as f64;
+            if own > 0.0 {
+                attributed.transient_share = transient_e / own;
+                attributed.skirt_share = skirt_e / own;
+            }
+            kept.push((i, EmitterFigures { attributed, ..f }));
+        }
+        kept
+    }
+
     /// Folds emitters that ended up at one place into the one seen in most rows; returns, for
     /// every emitter, the one it now lives in.
     fn merge_neighbours(&mut self, rbw: f64) -> Vec<usize> {
