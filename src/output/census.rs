@@ -517,6 +517,85 @@ mod tests {
     }
 
     #[test]
+    fn every_plan_written_after_attribution_loads() {
+        // Random emitter sets as above, now with levels from -10 to -90 dBFS and emissions
+        // drawn from a few shared keying schedules (so that weak ones are co-timed with strong
+        // ones and adjacent to them often): the attribution must leave only emitters whose
+        // attributed pieces point at a listed emitter far enough above them, and the plan of
+        // what is listed must load.
+        use crate::measure::census::attribute::{attribute, Fate, Piece, Scale, Span};
+        use crate::units::undb;
+        let mut rng = Rng::new(0xa77_1b07e);
+        let scale = Scale::new(8192, 4096, 10_000_000, 366.0);
+        let mut attributed = [0usize; 2];
+        for case in 0..300 {
+            let schedules: Vec<Vec<Span>> = (0..3)
+                .map(|_| {
+                    let (on, period) =
+                        (1 + rng.below(400_000) as u64, 500_000 + rng.below(2_000_000) as u64);
+                    let start = rng.below(500_000) as u64;
+                    (0..)
+                        .map(|k| start + k * period)
+                        .take_while(|&a| a + on < 10_000_000)
+                        .map(|a| Span { start: a, end: a + on })
+                        .collect()
+                })
+                .collect();
+            let n = 1 + rng.below(12);
+            let mut emitters = Vec::new();
+            let mut pieces = Vec::new();
+            for k in 0..n {
+                let center = 433.3e6 + rng.uniform() * 0.4e6;
+                let obw = 50.0 * (4000f64).powf(rng.uniform());
+                let dbfs = -10.0 - 80.0 * rng.uniform();
+                emitters.push(EmitterFigures {
+                    power_dbfs: dbfs,
+                    peak_dbfs: dbfs - 10.0 * rng.uniform(),
+                    ..emitter(format!("e{k}"), center, obw)
+                });
+                let e = &emitters[k];
+                pieces.push(Piece {
+                    center_hz: center,
+                    obw_hz: obw,
+                    power: undb(e.power_dbfs),
+                    peak: undb(e.peak_dbfs),
+                    emissions: schedules[rng.below(3)].clone(),
+                });
+            }
+            let fate = attribute(&pieces, scale);
+            for (i, f) in fate.iter().enumerate() {
+                let above = |r: usize, db: f64| {
+                    fate[r] == Fate::Own && emitters[r].power_dbfs >= emitters[i].power_dbfs + db
+                };
+                match f {
+                    Fate::Own => {}
+                    Fate::Skirt { root } => {
+                        attributed[0] += 1;
+                        assert!(above(*root, 10.0), "case {case}: {fate:?}")
+                    }
+                    Fate::Transient { parents } => {
+                        attributed[1] += 1;
+                        assert!(parents.iter().all(|&p| above(p, 20.0)), "case {case}: {fate:?}")
+                    }
+                }
+            }
+            let listed: Vec<EmitterFigures> = emitters
+                .into_iter()
+                .zip(&fate)
+                .filter(|(_, f)| **f == Fate::Own)
+                .map(|(e, _)| e)
+                .collect();
+            assert!(!listed.is_empty(), "case {case}: the strongest is always listed");
+            let text = to_plan(&census_of(listed), "test");
+            Plan::parse(&text, "census.toml")
+                .and_then(|p| p.validate().map(|_| p))
+                .unwrap_or_else(|e| panic!("case {case}: {e:#}\n{text}"));
+        }
+        // The sets are crowded enough that both rules fire.
+        assert!(attributed[0] > 0 && attributed[1] > 0, "{attributed:?}");
+    }
+
+    #[test]
     fn centres_move_onto_the_raster_their_width_allows() {
         // The demo scene's channels (src/source/demo): 12.5 kHz land-mobile raster.
         assert_eq!(raster_centre(433_187_495.0, 5_000.0), 433_187_500.0);
