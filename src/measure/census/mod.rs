@@ -20,6 +20,24 @@
 //! measured. An emitter detected in fewer than [`MIN_DETECTED_ROWS`] rows is dropped as a
 //! likely false alarm of the detector.
 //!
+//! **Attribution.** One emitter, one row: what an emitter radiates outside its necessary band
+//! (ITU-R SM.329 / SM.1541: its out-of-band and spurious domains) is detected too, as weak
+//! emitters of its own, and is attributed to it instead of being listed ([`attribute`]):
+//! - *keying transients*: an emitter 20 dB or more under a stronger one, each of whose
+//!   emissions is short and starts or ends within a frame and a row of a key-up or key-down of
+//!   the stronger one, is that one's transients ("key clicks");
+//! - *skirts and lines*: an emitter 10 dB or more under a stronger one (in power and in its
+//!   peak), on the air only while that one is, next to it or to a skirt it already has, and no
+//!   higher than that neighbour (the spectrum falls away from it), is its out-of-band skirt
+//!   (unfiltered OFDM, PSK, FSK) or a side lobe of its line spectrum (a pulse train).
+//!
+//! Each emitter reports what it took ([`Attributed`]: counts and energy relative to its own),
+//! so nothing is hidden. An emitter with skirts is measured again over its band widened by
+//! them (its 99 % OBW then holds its out-of-band power, as SM.328 counts it) and centred on the
+//! middle of its 10 dB band, its body, so that a pulse train is centred on its pulses' carrier
+//! rather than on a lopsided set of lines. Two emitters that key at the same instants stay two
+//! unless one is far under the other.
+//!
 //! Per row the work is the detector (whose result is bounded by `max_signals`) and a pass over
 //! the open tracks and emitters; buffers are kept, and emitters are capped at `max_emitters`.
 
