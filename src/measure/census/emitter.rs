@@ -15,6 +15,10 @@ pub struct EmitterAcc {
     /// Noise density summed over the same rows.
     floor_sum: f64,
     rows: u64,
+    /// The rows summed, as runs `[first, last]`, in order: an emitter that took in another
+    /// ([`EmitterAcc::absorb`]) summed some rows twice, and its dilution is counted over the
+    /// rows it covered, once each.
+    runs: Vec<(u64, u64)>,
     pub last_row: Option<u64>,
     /// Footprint (bins) and detected edges (Hz), the union of its emissions'.
     pub lo: usize,
@@ -37,6 +41,7 @@ impl EmitterAcc {
             sum: vec![0.0; bins],
             floor_sum: 0.0,
             rows: 0,
+            runs: Vec::new(),
             last_row: None,
             lo,
             hi,
@@ -77,14 +82,25 @@ impl EmitterAcc {
     }
 
     /// Takes in another emitter found at the same place (a burst whose first row showed only a
-    /// fragment of it can start an emitter of its own). Rows both summed count twice; they are
-    /// the few rows in which the fragment was open. Emissions and airtime are recounted afterwards.
+    /// fragment of it can start an emitter of its own, a wide one split by a dip can run as
+    /// two). Rows both summed count twice in the mean spectrum, which stays a mean; the rows
+    /// covered are counted once. Emissions and airtime are recounted afterwards.
     pub fn absorb(&mut self, o: &EmitterAcc) {
         for (s, p) in self.sum.iter_mut().zip(&o.sum) {
             *s += p;
         }
         self.floor_sum += o.floor_sum;
         self.rows += o.rows;
+        self.runs.extend_from_slice(&o.runs);
+        self.runs.sort_unstable();
+        let mut merged: Vec<(u64, u64)> = Vec::with_capacity(self.runs.len());
+        for &(a, b) in &self.runs {
+            match merged.last_mut() {
+                Some(m) if a <= m.1 + 1 => m.1 = m.1.max(b),
+                _ => merged.push((a, b)),
+            }
+        }
+        self.runs = merged;
         self.lo = self.lo.min(o.lo);
         self.hi = self.hi.max(o.hi);
         self.low_hz = self.low_hz.min(o.low_hz);
@@ -105,6 +121,15 @@ impl EmitterAcc {
         }
         self.floor_sum += density;
         self.rows += 1;
+        match self.runs.last_mut() {
+            Some(r) if r.1 + 1 == row => r.1 = row,
+            _ => self.runs.push((row, row)),
+        }
+    }
+
+    /// How many rows were summed, each counted once.
+    fn rows_covered(&self) -> u64 {
+        self.runs.iter().map(|(a, b)| b - a + 1).sum()
     }
 
     /// Its figures, or `None` when it was never on the air for a measurable time. The centre is
@@ -117,9 +142,10 @@ impl EmitterAcc {
         let rows = self.rows as f64;
         let floor = self.floor_sum / rows;
         // The mean PSD over the rows summed less the noise: the emitter's own spectrum, diluted
-        // by the quiet parts of its edge and hang rows; `on_air` rows is what it really filled.
+        // by the quiet parts of its edge and hang rows; of the rows it covered, `on_air` rows is
+        // what it really filled.
         let on_air = self.airtime as f64 / g.stride as f64;
-        let scale = rows / on_air.max(f64::MIN_POSITIVE);
+        let scale = self.rows_covered() as f64 / on_air.max(f64::MIN_POSITIVE);
         let clean: Vec<f64> =
             self.sum[self.lo..=self.hi].iter().map(|s| (s / rows - floor) * scale).collect();
         let power: f64 = clean.iter().sum::<f64>() * g.bin_hz;
