@@ -3,7 +3,7 @@
 
 use crate::dsp::Spectrum;
 use crate::measure::census::{
-    frequency_name, Census, CensusEvent, CensusResult, Emission, EmitterFigures,
+    frequency_name, Attributed, Census, CensusEvent, CensusResult, Emission, EmitterFigures,
 };
 use crate::output::log::CaptureRecord;
 use crate::output::sigmf::annotate::{comment, AnnotateSummary, AnnotationWriter, EmissionNote};
@@ -202,6 +202,7 @@ pub fn to_json_value(r: &CensusResult) -> serde_json::Value {
                 "airtime_pct": round(e.airtime_pct, 2),
                 "peak_dbfs": round(e.peak_dbfs, 2),
                 "power_dbfs": round(e.power_dbfs, 2),
+                "attributed": attributed_json(&e.attributed),
             })
         })
         .collect();
@@ -214,6 +215,32 @@ pub fn to_json_value(r: &CensusResult) -> serde_json::Value {
         "noise_floor_dbfs_per_hz": round(r.noise_floor_dbfs_per_hz, 2),
         "emitters": emitters,
     })
+}
+
+/// What was attributed to an emitter, for `--json`: counts always, energies (dBc, relative to
+/// the emitter's own energy on the air) where there was something.
+fn attributed_json(a: &Attributed) -> serde_json::Value {
+    json!({
+        "transients": a.transients,
+        "transient_energy_dbc": a.transient_energy_dbc().map(|v| round(v, 1)),
+        "skirts": a.skirts,
+        "skirt_energy_dbc": a.skirt_energy_dbc().map(|v| round(v, 1)),
+    })
+}
+
+/// One line for the table's notes on what was attributed to emitter `e`, if anything.
+fn attributed_note(e: &EmitterFigures) -> Option<String> {
+    let a = &e.attributed;
+    let mut parts = Vec::new();
+    if a.transients > 0 {
+        let energy = a.transient_energy_dbc().map_or(String::new(), |v| format!(", {v:.1} dBc"));
+        parts.push(format!("{} keying transient(s){energy}", a.transients));
+    }
+    if a.skirts > 0 {
+        let energy = a.skirt_energy_dbc().map_or(String::new(), |v| format!(", {v:.1} dBc"));
+        parts.push(format!("{} out-of-band skirt(s) or line(s){energy}", a.skirts));
+    }
+    (!parts.is_empty()).then(|| format!("  {}: {}", e.name, parts.join("; ")))
 }
 
 /// The census as a table, strongest first, units in the header.
@@ -260,6 +287,13 @@ pub fn to_table(r: &CensusResult, label: &str) -> String {
             e.peak_dbfs,
             e.power_dbfs
         );
+    }
+    let notes: Vec<String> = r.emitters.iter().filter_map(attributed_note).collect();
+    if !notes.is_empty() {
+        let _ = writeln!(s, "attributed to the emitter that made them, not listed:");
+        for n in notes {
+            let _ = writeln!(s, "{n}");
+        }
     }
     if r.emitters_dropped > 0 {
         let _ = writeln!(
@@ -419,6 +453,7 @@ mod tests {
             airtime_s: 0.5,
             peak_dbfs: -40.0,
             power_dbfs: -40.0,
+            attributed: Default::default(),
         }
     }
 
@@ -479,6 +514,85 @@ mod tests {
                 assert!(written || crowded, "case {case}: {e:?} left out\n{text}");
             }
         }
+    }
+
+    #[test]
+    fn every_plan_written_after_attribution_loads() {
+        // Random emitter sets as above, now with levels from -10 to -90 dBFS and emissions
+        // drawn from a few shared keying schedules (so that weak ones are co-timed with strong
+        // ones and adjacent to them often): the attribution must leave only emitters whose
+        // attributed pieces point at a listed emitter far enough above them, and the plan of
+        // what is listed must load.
+        use crate::measure::census::attribute::{attribute, Fate, Piece, Scale, Span};
+        use crate::units::undb;
+        let mut rng = Rng::new(0xa77_1b07e);
+        let scale = Scale::new(8192, 4096, 10_000_000, 366.0);
+        let mut attributed = [0usize; 2];
+        for case in 0..300 {
+            let schedules: Vec<Vec<Span>> = (0..3)
+                .map(|_| {
+                    let (on, period) =
+                        (1 + rng.below(400_000) as u64, 500_000 + rng.below(2_000_000) as u64);
+                    let start = rng.below(500_000) as u64;
+                    (0..)
+                        .map(|k| start + k * period)
+                        .take_while(|&a| a + on < 10_000_000)
+                        .map(|a| Span { start: a, end: a + on })
+                        .collect()
+                })
+                .collect();
+            let n = 1 + rng.below(12);
+            let mut emitters = Vec::new();
+            let mut pieces = Vec::new();
+            for k in 0..n {
+                let center = 433.3e6 + rng.uniform() * 0.4e6;
+                let obw = 50.0 * (4000f64).powf(rng.uniform());
+                let dbfs = -10.0 - 80.0 * rng.uniform();
+                emitters.push(EmitterFigures {
+                    power_dbfs: dbfs,
+                    peak_dbfs: dbfs - 10.0 * rng.uniform(),
+                    ..emitter(format!("e{k}"), center, obw)
+                });
+                let e = &emitters[k];
+                pieces.push(Piece {
+                    center_hz: center,
+                    obw_hz: obw,
+                    power: undb(e.power_dbfs),
+                    peak: undb(e.peak_dbfs),
+                    emissions: schedules[rng.below(3)].clone(),
+                });
+            }
+            let fate = attribute(&pieces, scale);
+            for (i, f) in fate.iter().enumerate() {
+                let above = |r: usize, db: f64| {
+                    fate[r] == Fate::Own && emitters[r].power_dbfs >= emitters[i].power_dbfs + db
+                };
+                match f {
+                    Fate::Own => {}
+                    Fate::Skirt { root } => {
+                        attributed[0] += 1;
+                        assert!(above(*root, 10.0), "case {case}: {fate:?}")
+                    }
+                    Fate::Transient { parents } => {
+                        attributed[1] += 1;
+                        assert!(parents.iter().all(|&p| above(p, 20.0)), "case {case}: {fate:?}")
+                    }
+                }
+            }
+            let listed: Vec<EmitterFigures> = emitters
+                .into_iter()
+                .zip(&fate)
+                .filter(|(_, f)| **f == Fate::Own)
+                .map(|(e, _)| e)
+                .collect();
+            assert!(!listed.is_empty(), "case {case}: the strongest is always listed");
+            let text = to_plan(&census_of(listed), "test");
+            Plan::parse(&text, "census.toml")
+                .and_then(|p| p.validate().map(|_| p))
+                .unwrap_or_else(|e| panic!("case {case}: {e:#}\n{text}"));
+        }
+        // The sets are crowded enough that both rules fire.
+        assert!(attributed[0] > 0 && attributed[1] > 0, "{attributed:?}");
     }
 
     #[test]

@@ -15,6 +15,10 @@ pub struct EmitterAcc {
     /// Noise density summed over the same rows.
     floor_sum: f64,
     rows: u64,
+    /// The rows summed, as runs `[first, last]`, in order: an emitter that took in another
+    /// ([`EmitterAcc::absorb`]) summed some rows twice, and its dilution is counted over the
+    /// rows it covered, once each.
+    runs: Vec<(u64, u64)>,
     pub last_row: Option<u64>,
     /// Footprint (bins) and detected edges (Hz), the union of its emissions'.
     pub lo: usize,
@@ -37,6 +41,7 @@ impl EmitterAcc {
             sum: vec![0.0; bins],
             floor_sum: 0.0,
             rows: 0,
+            runs: Vec::new(),
             last_row: None,
             lo,
             hi,
@@ -77,14 +82,25 @@ impl EmitterAcc {
     }
 
     /// Takes in another emitter found at the same place (a burst whose first row showed only a
-    /// fragment of it can start an emitter of its own). Rows both summed count twice; they are
-    /// the few rows in which the fragment was open. Emissions and airtime are recounted afterwards.
+    /// fragment of it can start an emitter of its own, a wide one split by a dip can run as
+    /// two). Rows both summed count twice in the mean spectrum, which stays a mean; the rows
+    /// covered are counted once. Emissions and airtime are recounted afterwards.
     pub fn absorb(&mut self, o: &EmitterAcc) {
         for (s, p) in self.sum.iter_mut().zip(&o.sum) {
             *s += p;
         }
         self.floor_sum += o.floor_sum;
         self.rows += o.rows;
+        self.runs.extend_from_slice(&o.runs);
+        self.runs.sort_unstable();
+        let mut merged: Vec<(u64, u64)> = Vec::with_capacity(self.runs.len());
+        for &(a, b) in &self.runs {
+            match merged.last_mut() {
+                Some(m) if a <= m.1 + 1 => m.1 = m.1.max(b),
+                _ => merged.push((a, b)),
+            }
+        }
+        self.runs = merged;
         self.lo = self.lo.min(o.lo);
         self.hi = self.hi.max(o.hi);
         self.low_hz = self.low_hz.min(o.low_hz);
@@ -105,19 +121,31 @@ impl EmitterAcc {
         }
         self.floor_sum += density;
         self.rows += 1;
+        match self.runs.last_mut() {
+            Some(r) if r.1 + 1 == row => r.1 = row,
+            _ => self.runs.push((row, row)),
+        }
     }
 
-    /// Its figures, or `None` when it was never on the air for a measurable time.
-    pub fn figures(&self, g: &Layout, window: &Window) -> Option<EmitterFigures> {
+    /// How many rows were summed, each counted once.
+    fn rows_covered(&self) -> u64 {
+        self.runs.iter().map(|(a, b)| b - a + 1).sum()
+    }
+
+    /// Its figures, or `None` when it was never on the air for a measurable time. The centre is
+    /// the middle of the 99 % occupied band, or with `xdb_centre` that of the x-dB band
+    /// ([`XDB_CENTRE_DB`]).
+    pub fn figures(&self, g: &Layout, window: &Window, xdb_centre: bool) -> Option<EmitterFigures> {
         if self.rows == 0 || self.airtime == 0 {
             return None;
         }
         let rows = self.rows as f64;
         let floor = self.floor_sum / rows;
         // The mean PSD over the rows summed less the noise: the emitter's own spectrum, diluted
-        // by the quiet parts of its edge and hang rows; `on_air` rows is what it really filled.
+        // by the quiet parts of its edge and hang rows; of the rows it covered, `on_air` rows is
+        // what it really filled.
         let on_air = self.airtime as f64 / g.stride as f64;
-        let scale = rows / on_air.max(f64::MIN_POSITIVE);
+        let scale = self.rows_covered() as f64 / on_air.max(f64::MIN_POSITIVE);
         let clean: Vec<f64> =
             self.sum[self.lo..=self.hi].iter().map(|s| (s / rows - floor) * scale).collect();
         let power: f64 = clean.iter().sum::<f64>() * g.bin_hz;
@@ -141,9 +169,15 @@ impl EmitterAcc {
             window.tone_offset(at(p.checked_sub(1)), positive[p], at(Some(p + 1))).1
         };
         let peak = positive[p] * g.rbw_hz / gain.max(1e-12);
+        let center_hz = if xdb_centre {
+            let (a, b) = xdb_span(&positive, p);
+            freq(self.lo as f64 + 0.5 * (a + b) as f64)
+        } else {
+            0.5 * (obw.low_hz + obw.high_hz)
+        };
         Some(EmitterFigures {
             name: String::new(),
-            center_hz: 0.5 * (obw.low_hz + obw.high_hz),
+            center_hz,
             obw_hz: obw.width_hz(),
             first_s: self.first as f64 / g.sample_rate_hz,
             last_s: self.last as f64 / g.sample_rate_hz,
@@ -152,6 +186,23 @@ impl EmitterAcc {
             airtime_s: self.airtime as f64 / g.sample_rate_hz,
             peak_dbfs: db(peak),
             power_dbfs: db(power.max(1e-30)),
+            attributed: Default::default(),
         })
     }
+}
+
+/// The x of the x-dB band (ITU-R SM.328) that centres an emitter with skirts: the skirt rule
+/// ([`super::attribute::SKIRT_BELOW_DB`]) takes only pieces at least this far under the
+/// emitter's peak, so the band within it of the peak is the emitter's body (a pulse's main
+/// lobe, an OFDM block, the tones of FSK). Its middle is the centre whatever the skirts do: a
+/// line spectrum's side lobes that wrap around the span, or a skirt seen on one side only,
+/// move the middle of the 99 % band by kilohertz.
+pub const XDB_CENTRE_DB: f64 = super::attribute::SKIRT_BELOW_DB;
+
+/// The first and last bins of `psd` within [`XDB_CENTRE_DB`] of its peak at `p`.
+fn xdb_span(psd: &[f64], p: usize) -> (usize, usize) {
+    let thr = psd[p] * crate::units::undb(-XDB_CENTRE_DB);
+    let a = psd.iter().position(|&v| v >= thr).unwrap_or(p);
+    let b = psd.iter().rposition(|&v| v >= thr).unwrap_or(p);
+    (a, b)
 }

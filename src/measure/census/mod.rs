@@ -20,9 +20,28 @@
 //! measured. An emitter detected in fewer than [`MIN_DETECTED_ROWS`] rows is dropped as a
 //! likely false alarm of the detector.
 //!
+//! **Attribution.** One emitter, one row: what an emitter radiates outside its necessary band
+//! (ITU-R SM.329 / SM.1541: its out-of-band and spurious domains) is detected too, as weak
+//! emitters of its own, and is attributed to it instead of being listed ([`attribute`]):
+//! - *keying transients*: an emitter 20 dB or more under a stronger one, each of whose
+//!   emissions is short and starts or ends within a frame and a row of a key-up or key-down of
+//!   the stronger one, is that one's transients ("key clicks");
+//! - *skirts and lines*: an emitter 10 dB or more under a stronger one (in power and in its
+//!   peak), on the air only while that one is, next to it or to a skirt it already has, and no
+//!   higher than that neighbour (the spectrum falls away from it), is its out-of-band skirt
+//!   (unfiltered OFDM, PSK, FSK) or a side lobe of its line spectrum (a pulse train).
+//!
+//! Each emitter reports what it took ([`Attributed`]: counts and energy relative to its own),
+//! so nothing is hidden. An emitter with skirts is measured again over its band widened by
+//! them (its 99 % OBW then holds its out-of-band power, as SM.328 counts it) and centred on the
+//! middle of its 10 dB band, its body, so that a pulse train is centred on its pulses' carrier
+//! rather than on a lopsided set of lines. Two emitters that key at the same instants stay two
+//! unless one is far under the other.
+//!
 //! Per row the work is the detector (whose result is bounded by `max_signals`) and a pass over
 //! the open tracks and emitters; buffers are kept, and emitters are capped at `max_emitters`.
 
+pub mod attribute;
 pub mod emitter;
 pub mod track;
 
@@ -30,7 +49,8 @@ use crate::dsp::{Spectrum, Window};
 use crate::measure::noise::tracker::NoiseTracker;
 use crate::measure::occupancy::Timing;
 use crate::measure::signals::{find_signals, Detection};
-use crate::units::db;
+use crate::units::{db, undb};
+use attribute::{Fate, Piece, Scale, Span};
 use emitter::EmitterAcc;
 use track::Track;
 
@@ -71,6 +91,39 @@ pub struct EmitterFigures {
     pub peak_dbfs: f64,
     /// Mean channel power while on the air, noise taken off.
     pub power_dbfs: f64,
+    /// What was found around it and attributed to it rather than listed ([`attribute`]).
+    pub attributed: Attributed,
+}
+
+/// The weak emissions attributed to an emitter: its keying transients and its out-of-band
+/// skirts or spectral lines (ITU-R SM.329 / SM.1541: its spurious and out-of-band domains).
+#[derive(Clone, Copy, Debug, Default, PartialEq)]
+pub struct Attributed {
+    /// Transient emissions that followed its key-ups and key-downs.
+    pub transients: u64,
+    /// Their energy over the emitter's own energy on the air (a ratio; 0 without transients).
+    pub transient_share: f64,
+    /// Emitters that were its skirts or side lobes, now measured as part of it.
+    pub skirts: u64,
+    /// Their energy over the emitter's own energy on the air, skirts included (a ratio).
+    pub skirt_share: f64,
+}
+
+impl Attributed {
+    /// Whether anything was attributed.
+    pub fn any(&self) -> bool {
+        self.transients > 0 || self.skirts > 0
+    }
+
+    /// The transients' energy relative to the emitter's, dBc (`None` without transients).
+    pub fn transient_energy_dbc(&self) -> Option<f64> {
+        (self.transients > 0 && self.transient_share > 0.0).then(|| db(self.transient_share))
+    }
+
+    /// The skirts' energy relative to the emitter's, dBc (`None` without skirts).
+    pub fn skirt_energy_dbc(&self) -> Option<f64> {
+        (self.skirts > 0 && self.skirt_share > 0.0).then(|| db(self.skirt_share))
+    }
 }
 
 /// One emission, for annotating a recording.
@@ -441,13 +494,14 @@ impl Census {
         let window = self.window.take()?;
         let home = self.merge_neighbours(layout.rbw_hz);
         let closed = self.join_emissions(&home);
-        let mut ranked: Vec<(usize, EmitterFigures)> = self
+        let measured: Vec<(usize, EmitterFigures)> = self
             .emitters
             .iter()
             .enumerate()
             .filter(|&(i, e)| home[i] == i && e.detected_rows >= MIN_DETECTED_ROWS)
-            .filter_map(|(i, e)| e.figures(&layout, &window).map(|f| (i, f)))
+            .filter_map(|(i, e)| e.figures(&layout, &window, false).map(|f| (i, f)))
             .collect();
+        let mut ranked = self.attribute(measured, &closed, &layout, &window);
         ranked.sort_by(|a, b| b.1.power_dbfs.total_cmp(&a.1.power_dbfs));
         let mut index = vec![usize::MAX; self.emitters.len()];
         for (k, (i, _)) in ranked.iter().enumerate() {
@@ -483,6 +537,80 @@ impl Census {
 }
 
 impl Census {
+    /// Attributes keying transients and out-of-band skirts to the emitters that made them
+    /// ([`attribute`]): returns the emitters that remain, a skirted one measured again over its
+    /// band widened by its skirts and centred on its x-dB band (a pulse train's line spectrum or
+    /// a lopsided skirt moves the middle of its 99 % band).
+    fn attribute(
+        &mut self,
+        measured: Vec<(usize, EmitterFigures)>,
+        closed: &[Closed],
+        layout: &Layout,
+        window: &Window,
+    ) -> Vec<(usize, EmitterFigures)> {
+        let mut at = vec![usize::MAX; self.emitters.len()];
+        for (k, (i, _)) in measured.iter().enumerate() {
+            at[*i] = k;
+        }
+        let mut pieces: Vec<Piece> = measured
+            .iter()
+            .map(|(_, f)| Piece {
+                center_hz: f.center_hz,
+                obw_hz: f.obw_hz,
+                power: undb(f.power_dbfs),
+                peak: undb(f.peak_dbfs),
+                emissions: Vec::new(),
+            })
+            .collect();
+        for c in closed.iter().filter(|c| at[c.emitter] != usize::MAX) {
+            let span = Span { start: c.start, end: c.end };
+            pieces[at[c.emitter]].emissions.push(span);
+        }
+        let scale =
+            Scale::new(layout.stride, layout.fft_size, layout.duration_samples, layout.rbw_hz);
+        let fate = attribute::attribute(&pieces, scale);
+        let mut found = vec![(Attributed::default(), 0.0, 0.0); measured.len()];
+        for (k, f) in fate.iter().enumerate() {
+            match f {
+                Fate::Own => {}
+                Fate::Skirt { root } => {
+                    let (lo, hi) =
+                        (self.emitters[measured[k].0].lo, self.emitters[measured[k].0].hi);
+                    let r = &mut self.emitters[measured[*root].0];
+                    (r.lo, r.hi) = (r.lo.min(lo), r.hi.max(hi));
+                    found[*root].0.skirts += 1;
+                    found[*root].2 +=
+                        pieces[k].emissions.iter().map(|x| pieces[k].energy(x)).sum::<f64>();
+                }
+                Fate::Transient { parents } => {
+                    for (&p, x) in parents.iter().zip(&pieces[k].emissions) {
+                        found[p].0.transients += 1;
+                        found[p].1 += pieces[k].energy(x);
+                    }
+                }
+            }
+        }
+        let mut kept = Vec::with_capacity(measured.len());
+        for (k, (i, f)) in measured.into_iter().enumerate() {
+            if fate[k] != Fate::Own {
+                continue;
+            }
+            let (mut attributed, transient_e, skirt_e) = found[k];
+            let f = if attributed.skirts > 0 {
+                self.emitters[i].figures(layout, window, true).unwrap_or(f)
+            } else {
+                f
+            };
+            let own = undb(f.power_dbfs) * self.emitters[i].airtime as f64;
+            if own > 0.0 {
+                attributed.transient_share = transient_e / own;
+                attributed.skirt_share = skirt_e / own;
+            }
+            kept.push((i, EmitterFigures { attributed, ..f }));
+        }
+        kept
+    }
+
     /// Folds emitters that ended up at one place into the one seen in most rows; returns, for
     /// every emitter, the one it now lives in.
     fn merge_neighbours(&mut self, rbw: f64) -> Vec<usize> {
