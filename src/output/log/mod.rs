@@ -65,6 +65,7 @@
 //! record fills the columns it has and leaves the others empty, so one file holds every kind and
 //! the `kind` column tells them apart.
 
+pub mod alarms;
 pub mod occupancy;
 pub mod records;
 pub mod rotation;
@@ -213,6 +214,7 @@ mod tests {
                 occupied_samples: 1931.0,
                 dropped_samples: 0,
                 partial: false,
+                channel_floor_dbfs_per_hz: Some(-112.1),
             }),
             Record::Emission(EmissionRecord {
                 channel: "north-gate".into(),
