@@ -27,7 +27,8 @@
 //!   0 when all the interval's input was lost, and then the levels and occupancy are `null`),
 //!   `occupied_samples` (fractional: edge samples count by the share an emission filled),
 //!   `dropped_samples` (input samples lost in the interval), `partial` (the
-//!   interval was cut short by the end of the run).
+//!   interval was cut short by the end of the run), `channel_floor_dbfs_per_hz` (the channel's
+//!   own floor: its mean power density over the samples no emission touched; `null` if none).
 //! - `emission` (when an emission ends): `channel, center_hz, t_start_s, t_end_s, start, end,
 //!   duration_s, peak_dbfs, mean_dbfs` (over its occupied samples), `obw_hz` (99 % occupied
 //!   bandwidth of its noise-corrected average spectrum, ITU-R SM.328; `null` if nothing stood
@@ -47,6 +48,12 @@
 //!   (`saved` or `skipped`), `file` (the capture's `.sigmf-meta`), `cause` (of a skip: `disk_cap`
 //!   or `disk_behind`), `t_start_s, t_end_s, start, end` (the IQ in the file), `iq_samples,
 //!   bytes, truncated` (the emission outlasted `--capture-max-seconds`).
+//! - `alarm` and `clear` (with `--alarms`, see [`alarms`] and [`crate::measure::change`]):
+//!   `channel` (or `band`), `what` (`floor_up`, `floor_down`, `busier`, `quieter`,
+//!   `new_signal`), `t_start_s, t_end_s, start, end` (the interval that decided it), `since_s,
+//!   since` (the change's start by the test's estimate), `statistic, threshold, baseline,
+//!   present, unit` (`dBFS/Hz` or `%`), `method` (`cusum` or `ewma`). Written right after that
+//!   interval's record; in CSV, rows of their own kind.
 //! - `stop` (last line of an orderly end): `t_end_s, end, reason` (`end_of_input`, `limit`,
 //!   `interrupted`, `terminated`, `input_error`), `iq_samples` (read), `dropped_samples` (total).
 //!
