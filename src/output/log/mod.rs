@@ -246,6 +246,22 @@ mod tests {
                 gaps: 1,
                 cause: "behind".into(),
             }),
+            Record::Alarm(AlarmRecord {
+                channel: "north-gate".into(),
+                what: "floor_up".into(),
+                t_start_s: 60.0,
+                t_end_s: 120.0,
+                start: None,
+                end: None,
+                since_s: 0.0,
+                since: None,
+                statistic: 11.5,
+                threshold: 5.0,
+                baseline: -112.3,
+                present: -106.2,
+                unit: "dBFS/Hz".into(),
+                method: "cusum".into(),
+            }),
             Record::Stop(StopRecord {
                 t_end_s: 60.0,
                 end: None,
@@ -269,7 +285,7 @@ mod tests {
             .lines()
             .map(|l| serde_json::from_str::<Value>(l).unwrap()["kind"].as_str().unwrap().into())
             .collect();
-        assert_eq!(kinds, ["start", "channel", "interval", "emission", "dropped", "stop"]);
+        assert_eq!(kinds, ["start", "channel", "interval", "emission", "dropped", "alarm", "stop"]);
         assert!(text
             .lines()
             .nth(2)
@@ -299,7 +315,7 @@ mod tests {
         let header: Vec<String> = reader.headers().unwrap().iter().map(String::from).collect();
         assert_eq!(header, CSV_COLUMNS);
         let rows: Vec<csv::StringRecord> = reader.records().map(Result::unwrap).collect();
-        assert_eq!(rows.len(), 6);
+        assert_eq!(rows.len(), 7);
         let source = CSV_COLUMNS.iter().position(|c| *c == "source").unwrap();
         assert_eq!(&rows[0][source], "a, \"quoted\" file");
         assert_eq!(&rows[2][0], "interval");
