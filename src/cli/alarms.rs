@@ -29,26 +29,50 @@ pub struct AlarmArgs {
     #[arg(long, value_name = "TEST", value_enum, default_value = "cusum", requires = "alarms")]
     pub alarm_method: AlarmMethod,
     /// CUSUM reference value k, in σ (default 0.5; with h 5: false alarm every ≈465 intervals).
-    #[arg(long, value_name = "SIGMA", default_value_t = 0.5, allow_negative_numbers = true)]
+    #[arg(
+        long,
+        value_name = "SIGMA",
+        default_value_t = 0.5,
+        allow_negative_numbers = true,
+        requires = "alarms"
+    )]
     pub cusum_k: f64,
     /// CUSUM decision interval h, in σ (5: ARL0 ≈ 465, ≈10 intervals to a 1σ shift; 4: 168, 8.4).
-    #[arg(long, value_name = "SIGMA", default_value_t = 5.0, allow_negative_numbers = true)]
+    #[arg(
+        long,
+        value_name = "SIGMA",
+        default_value_t = 5.0,
+        allow_negative_numbers = true,
+        requires = "alarms"
+    )]
     pub cusum_h: f64,
     /// EWMA weight λ of the newest interval (0 < λ ≤ 1).
-    #[arg(long, value_name = "LAMBDA", default_value_t = 0.1, allow_negative_numbers = true)]
+    #[arg(
+        long,
+        value_name = "LAMBDA",
+        default_value_t = 0.1,
+        allow_negative_numbers = true,
+        requires = "alarms"
+    )]
     pub ewma_lambda: f64,
     /// EWMA limit L, in σ of the statistic (λ 0.1, L 2.814: ARL0 500, 10.3 at 1σ).
-    #[arg(long, value_name = "L", default_value_t = 2.814, allow_negative_numbers = true)]
+    #[arg(
+        long,
+        value_name = "L",
+        default_value_t = 2.814,
+        allow_negative_numbers = true,
+        requires = "alarms"
+    )]
     pub ewma_limit: f64,
     /// Intervals a channel must be seen (per hour of week, else over all hours) before its
     /// alarms are armed.
-    #[arg(long, value_name = "N", default_value_t = crate::measure::change::alarm::DEFAULT_WARMUP)]
+    #[arg(long, value_name = "N", default_value_t = crate::measure::change::alarm::DEFAULT_WARMUP, requires = "alarms")]
     pub alarm_warmup: u64,
     /// Smallest spread of the floor a residual is divided by, dB.
-    #[arg(long, value_name = "DB", default_value_t = DEFAULT_MIN_FLOOR_SPREAD_DB, allow_negative_numbers = true)]
+    #[arg(long, value_name = "DB", default_value_t = DEFAULT_MIN_FLOOR_SPREAD_DB, allow_negative_numbers = true, requires = "alarms")]
     pub alarm_floor_spread: f64,
     /// Smallest spread of occupancy a residual is divided by, on the asin(√p) scale (radians).
-    #[arg(long, value_name = "RAD", default_value_t = DEFAULT_MIN_OCCUPANCY_SPREAD, allow_negative_numbers = true)]
+    #[arg(long, value_name = "RAD", default_value_t = DEFAULT_MIN_OCCUPANCY_SPREAD, allow_negative_numbers = true, requires = "alarms")]
     pub alarm_occupancy_spread: f64,
 }
 
@@ -122,5 +146,7 @@ mod tests {
         assert!(alarms(&["--alarms", "--alarm-warmup", "1"]).is_err());
         let no_alarms = Cli::try_parse_from(["bandwarden", "log", "f", "--baseline", "b.json"]);
         assert!(no_alarms.is_err(), "--baseline needs --alarms");
+        let no_alarms = Cli::try_parse_from(["bandwarden", "log", "f", "--cusum-h", "4"]);
+        assert!(no_alarms.is_err(), "a test parameter without --alarms would be ignored");
     }
 }
