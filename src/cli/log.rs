@@ -1,11 +1,13 @@
 //! `log` flags and their validation.
 
+use super::alarms::{AlarmArgs, AlarmConfig};
 use super::common::{
     parse_progress, parse_seconds, ChannelArgs, ChannelConfig, DspArgs, InputArgs,
 };
 use super::net::PublishArgs;
 use super::sigmf_out::{EmissionOutArgs, RecordArgs, SigmfOut};
 use crate::dsp::DspConfig;
+use crate::measure::change::baseline::BAND;
 use crate::net::publish::PublishConfig;
 use crate::output::log::rotation::{parse_rotate, Rotate};
 use crate::output::log::LogFormat;
@@ -63,6 +65,8 @@ pub struct LogArgs {
     pub record: RecordArgs,
     #[command(flatten)]
     pub emissions: EmissionOutArgs,
+    #[command(flatten)]
+    pub alarms: AlarmArgs,
 }
 
 /// A validated `log`.
@@ -88,6 +92,8 @@ pub struct LogConfig {
     pub sigmf: SigmfOut,
     /// `--progress`: seconds between status lines, 0 for none, `None` for the default.
     pub progress: Option<f64>,
+    /// `--alarms` and its settings.
+    pub alarms: Option<AlarmConfig>,
 }
 
 impl LogArgs {
@@ -101,6 +107,10 @@ impl LogArgs {
         }
         if self.interval.is_zero() {
             bail!("--interval must be longer than zero (e.g. 60s)");
+        }
+        let alarms = self.alarms.validate()?;
+        if alarms.is_some() && channels.plan.channels.iter().any(|c| c.name == BAND) {
+            bail!("--alarms names the band-wide floor '{BAND}': rename the plan channel called '{BAND}'");
         }
         let publish = self.publish.validate(&self.out)?;
         let sigmf = SigmfOut::validate(self.record, self.emissions, &self.input)?;
@@ -120,6 +130,7 @@ impl LogArgs {
             rotate: self.rotate,
             sigmf,
             progress: self.progress,
+            alarms,
         })
     }
 }

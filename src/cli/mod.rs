@@ -5,6 +5,7 @@
 //! (`2.4M`, `12.5k`, `1e6`), durations accept `10ms`, `2s`, `15m`, `1h`. Nothing below this layer
 //! imports clap or an `*Args` type.
 
+pub mod alarms;
 pub mod census;
 pub mod common;
 pub mod demo;

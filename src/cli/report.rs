@@ -42,6 +42,10 @@ pub struct ReportArgs {
     /// Title of the heat map (default: what it shows and the period).
     #[arg(long, value_name = "TEXT")]
     pub title: Option<String>,
+    /// Also write each channel's usual occupancy and noise floor by hour of week, learnt from
+    /// the logs' intervals, to this JSON file: the baseline `log --alarms --baseline FILE` reads.
+    #[arg(long, value_name = "FILE.json")]
+    pub save_baseline: Option<String>,
 }
 
 /// What `report` writes on standard output.
@@ -62,6 +66,8 @@ pub struct ReportConfig {
     pub title: Option<String>,
     /// Zone, window and sites.
     pub settings: Settings,
+    /// `--save-baseline`.
+    pub save_baseline: Option<String>,
 }
 
 impl ReportArgs {
@@ -74,6 +80,14 @@ impl ReportArgs {
                 bail!(
                     "--png '{}' is one of the logs being read; choose another name",
                     crate::messages::sanitize(p)
+                );
+            }
+        }
+        if let Some(b) = &self.save_baseline {
+            if self.logs.contains(b) || self.png.as_ref() == Some(b) {
+                bail!(
+                    "--save-baseline '{}' is one of the files being read or written; choose another name",
+                    crate::messages::sanitize(b)
                 );
             }
         }
@@ -100,6 +114,7 @@ impl ReportArgs {
             map: self.colour_map,
             title: self.title,
             settings,
+            save_baseline: self.save_baseline,
         })
     }
 }

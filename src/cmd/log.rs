@@ -11,9 +11,11 @@
 //! falls behind, whole blocks are dropped, counted and logged (`dropped` records), never hidden.
 //! `--no-drop` makes the reader wait instead (the writer upstream then blocks).
 
+use crate::cli::alarms::AlarmConfig;
 use crate::cli::LogConfig;
 use crate::messages::{note, notes};
 use crate::net::publish::Publisher;
+use crate::output::log::alarms::{load_baseline, AlarmLog};
 use crate::output::log::occupancy::OccupancyLog;
 use crate::output::log::rotation::{Opener, Rotation};
 use crate::output::log::LogWriter;
@@ -25,6 +27,7 @@ use crate::pipeline::occupancy::{OccupancyRequest, OccupancySetup};
 use crate::pipeline::stop::Escalation;
 use crate::pipeline::{open_input, run_to_end, Consumer, Run, RunSpec, StopSignals, TimeSource};
 
+use crate::plan::Plan;
 use anyhow::{bail, Context, Result};
 use std::path::PathBuf;
 use std::process::ExitCode;
@@ -62,6 +65,9 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
     };
     let publisher = cfg.publish.clone().map(Publisher::start).transpose()?;
     let mut log = log.with_site(cfg.site.clone());
+    if let Some(a) = &cfg.alarms {
+        log = log.with_alarms(alarm_log(a, plan, cfg.site.as_deref(), cfg.interval_s)?);
+    }
     if let Some(p) = &publisher {
         log = log.with_tap(p.tap());
     }
@@ -107,4 +113,27 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
         bail!("the broker would not take this site's records: {why}; the local log is complete and the records wait in the spool for the next run");
     }
     Ok(ExitCode::SUCCESS)
+}
+
+/// The change watch of `--alarms`, seeded from `--baseline` if given; says when it is armed.
+fn alarm_log(
+    a: &AlarmConfig,
+    plan: &Plan,
+    site: Option<&str>,
+    interval_s: f64,
+) -> Result<AlarmLog> {
+    let seed = a.baseline.as_deref().map(|path| load_baseline(path, site)).transpose()?;
+    let warm = a.settings.warmup;
+    let unseeded = seed.as_ref().map(|s| AlarmLog::unseeded(plan, s));
+    let learning = match &unseeded {
+        None => "every channel".to_string(),
+        Some(u) if u.is_empty() => "no channel: all armed from the baseline".to_string(),
+        Some(u) => format!("{} (the others are armed from the baseline)", u.join(", ")),
+    };
+    let secs = crate::units::format_num(warm as f64 * interval_s);
+    let method = a.settings.method.name();
+    note(&format!(
+        "alarms ({method}): {warm} intervals ({secs} s) of learning before alarms are armed, for {learning}"
+    ));
+    Ok(AlarmLog::new(a.settings, plan, seed.as_ref()))
 }

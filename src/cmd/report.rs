@@ -3,6 +3,7 @@
 
 use crate::cli::report::ReportFormat;
 use crate::cli::ReportConfig;
+use crate::measure::change::baseline::BaselineFile;
 use crate::messages::{note, notes, sanitize};
 use crate::output::picture::heatmap::{draw_heatmap, heatmap_title};
 use crate::output::sink;
@@ -15,6 +16,9 @@ use std::process::ExitCode;
 
 pub fn run(cfg: ReportConfig) -> Result<ExitCode> {
     let mut summary = LogSummary::new(cfg.settings.clone());
+    if cfg.save_baseline.is_some() {
+        summary.baseline = Some(BaselineFile::default());
+    }
     for path in &cfg.logs {
         let shown = sanitize(path);
         let file = std::fs::File::open(path)
@@ -62,6 +66,14 @@ pub fn run(cfg: ReportConfig) -> Result<ExitCode> {
         f.write_all(&bytes)?;
         f.flush()?;
         note(&format!("wrote {}", sanitize(png)));
+    }
+    if let (Some(path), Some(baseline)) = (&cfg.save_baseline, &summary.baseline) {
+        let text = serde_json::to_string_pretty(baseline)?;
+        let mut f = sink::open(path, false, "baseline")?.out;
+        f.write_all(text.as_bytes())?;
+        f.write_all(b"\n")?;
+        f.flush()?;
+        note(&format!("wrote the baseline {}", sanitize(path)));
     }
     Ok(ExitCode::SUCCESS)
 }

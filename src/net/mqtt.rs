@@ -2,7 +2,7 @@
 //! or `mqtts://…` for TLS), credentials, TLS settings, and the topic layout.
 //!
 //! Topics (MQTT 3.1.1, OASIS standard):
-//! - `PREFIX/SITE/KIND` (`start`, `channel`, `interval`, `emission`, `dropped`, `stop`): every
+//! - `PREFIX/SITE/KIND` (`start`, `channel`, `interval`, `emission`, `dropped`, `capture`, `alarm`, `clear`, `stop`): every
 //!   record of the site's log, QoS 1, as the same JSON line the local file holds.
 //! - `PREFIX/SITE/latest/CHANNEL`: the last interval of each channel, retained, so a dashboard
 //!   that connects sees the band's state at once.

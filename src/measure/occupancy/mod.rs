@@ -104,6 +104,11 @@ pub struct IntervalSummary {
     pub peak_power: f64,
     /// Mean of the tracked noise density over the interval.
     pub noise_density: f64,
+    /// Samples of the interval that no emission touched (not occupied, no share of one), and
+    /// the channel's mean power over them: the channel's own floor, which shows interference
+    /// that stays under the threshold where the shared density cannot.
+    pub quiet_samples: u64,
+    pub quiet_power: f64,
     /// Input samples lost in this interval (a live source fell behind).
     pub dropped_samples: u64,
     /// The interval was cut short (end of input, stop).

@@ -38,6 +38,9 @@ struct IntervalAcc {
     power_sum: f64,
     peak: f64,
     floor_sum: f64,
+    /// Rows no emission touched, and the sum of the channel's power over them.
+    quiet_rows: u64,
+    quiet_power_sum: f64,
 }
 
 #[derive(Clone, Copy, Debug)]
@@ -252,6 +255,10 @@ impl Occupancy {
             acc.power_sum += here.power;
             acc.peak = acc.peak.max(here.power);
             acc.floor_sum += note.density;
+            if !here.occupied && share == 0.0 {
+                acc.quiet_rows += 1;
+                acc.quiet_power_sum += here.power;
+            }
             if here.occupied {
                 if ch.open.is_none() {
                     ch.psd_sum.iter_mut().for_each(|s| *s = 0.0);
@@ -337,6 +344,8 @@ impl Occupancy {
                 mean_power: acc.power_sum / n,
                 peak_power: acc.peak,
                 noise_density: acc.floor_sum / n,
+                quiet_samples: acc.quiet_rows,
+                quiet_power: acc.quiet_power_sum / acc.quiet_rows.max(1) as f64,
                 dropped_samples: dropped,
                 partial,
             }));

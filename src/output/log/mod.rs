@@ -27,7 +27,8 @@
 //!   0 when all the interval's input was lost, and then the levels and occupancy are `null`),
 //!   `occupied_samples` (fractional: edge samples count by the share an emission filled),
 //!   `dropped_samples` (input samples lost in the interval), `partial` (the
-//!   interval was cut short by the end of the run).
+//!   interval was cut short by the end of the run), `channel_floor_dbfs_per_hz` (the channel's
+//!   own floor: its mean power density over the samples no emission touched; `null` if none).
 //! - `emission` (when an emission ends): `channel, center_hz, t_start_s, t_end_s, start, end,
 //!   duration_s, peak_dbfs, mean_dbfs` (over its occupied samples), `obw_hz` (99 % occupied
 //!   bandwidth of its noise-corrected average spectrum, ITU-R SM.328; `null` if nothing stood
@@ -47,6 +48,12 @@
 //!   (`saved` or `skipped`), `file` (the capture's `.sigmf-meta`), `cause` (of a skip: `disk_cap`
 //!   or `disk_behind`), `t_start_s, t_end_s, start, end` (the IQ in the file), `iq_samples,
 //!   bytes, truncated` (the emission outlasted `--capture-max-seconds`).
+//! - `alarm` and `clear` (with `--alarms`, see [`alarms`] and [`crate::measure::change`]):
+//!   `channel` (or `band`), `what` (`floor_up`, `floor_down`, `busier`, `quieter`,
+//!   `new_signal`), `t_start_s, t_end_s, start, end` (the interval that decided it), `since_s,
+//!   since` (the change's start by the test's estimate), `statistic, threshold, baseline,
+//!   present, unit` (`dBFS/Hz` or `%`), `method` (`cusum` or `ewma`). Written right after that
+//!   interval's record; in CSV, rows of their own kind.
 //! - `stop` (last line of an orderly end): `t_end_s, end, reason` (`end_of_input`, `limit`,
 //!   `interrupted`, `terminated`, `input_error`), `iq_samples` (read), `dropped_samples` (total).
 //!
@@ -65,6 +72,7 @@
 //! record fills the columns it has and leaves the others empty, so one file holds every kind and
 //! the `kind` column tells them apart.
 
+pub mod alarms;
 pub mod occupancy;
 pub mod records;
 pub mod rotation;
@@ -213,6 +221,7 @@ mod tests {
                 occupied_samples: 1931.0,
                 dropped_samples: 0,
                 partial: false,
+                channel_floor_dbfs_per_hz: Some(-112.1),
             }),
             Record::Emission(EmissionRecord {
                 channel: "north-gate".into(),
@@ -237,6 +246,22 @@ mod tests {
                 gaps: 1,
                 cause: "behind".into(),
             }),
+            Record::Alarm(AlarmRecord {
+                channel: "north-gate".into(),
+                what: "floor_up".into(),
+                t_start_s: 60.0,
+                t_end_s: 120.0,
+                start: None,
+                end: None,
+                since_s: 0.0,
+                since: None,
+                statistic: 11.5,
+                threshold: 5.0,
+                baseline: -112.3,
+                present: -106.2,
+                unit: "dBFS/Hz".into(),
+                method: "cusum".into(),
+            }),
             Record::Stop(StopRecord {
                 t_end_s: 60.0,
                 end: None,
@@ -260,7 +285,7 @@ mod tests {
             .lines()
             .map(|l| serde_json::from_str::<Value>(l).unwrap()["kind"].as_str().unwrap().into())
             .collect();
-        assert_eq!(kinds, ["start", "channel", "interval", "emission", "dropped", "stop"]);
+        assert_eq!(kinds, ["start", "channel", "interval", "emission", "dropped", "alarm", "stop"]);
         assert!(text
             .lines()
             .nth(2)
@@ -290,7 +315,7 @@ mod tests {
         let header: Vec<String> = reader.headers().unwrap().iter().map(String::from).collect();
         assert_eq!(header, CSV_COLUMNS);
         let rows: Vec<csv::StringRecord> = reader.records().map(Result::unwrap).collect();
-        assert_eq!(rows.len(), 6);
+        assert_eq!(rows.len(), 7);
         let source = CSV_COLUMNS.iter().position(|c| *c == "source").unwrap();
         assert_eq!(&rows[0][source], "a, \"quoted\" file");
         assert_eq!(&rows[2][0], "interval");

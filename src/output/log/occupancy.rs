@@ -2,6 +2,7 @@
 //! and gap as it becomes final, then why the run stopped. The record schema is in [`crate::output::log`].
 
 use crate::measure::occupancy::{Event, FLOOR_MEMORY_S, FLOOR_SMOOTHING_S, OBW_PERCENT};
+use crate::output::log::alarms::AlarmLog;
 use crate::output::log::rotation::Rotation;
 use crate::output::log::{
     CaptureRecord, ChannelRecord, DroppedRecord, EmissionRecord, IntervalRecord, LogWriter, Record,
@@ -39,6 +40,8 @@ pub struct OccupancyLog<W: Write> {
     pending_gaps: Vec<PendingGap>,
     /// The run, as told at its start, for writing gathered gaps between its calls.
     run_info: Option<RunInfo>,
+    /// Change alarms (`--alarms`): fed every interval record.
+    alarms: Option<AlarmLog>,
 }
 
 /// Gaps of one cause that begin within this many seconds of input of the first one are written
@@ -100,12 +103,19 @@ impl<W: Write> OccupancyLog<W> {
             tap: None,
             pending_gaps: Vec::new(),
             run_info: None,
+            alarms: None,
         }
     }
 
     /// Names the site in the start record.
     pub fn with_site(mut self, site: Option<String>) -> Self {
         self.site = site;
+        self
+    }
+
+    /// Follows every interval with the change alarms of `alarms`, whose records go into the log.
+    pub fn with_alarms(mut self, alarms: AlarmLog) -> Self {
+        self.alarms = Some(alarms);
         self
     }
 
@@ -216,6 +226,8 @@ impl<W: Write> OccupancyLog<W> {
                     occupied_samples: (i.occupied * 1000.0).round() / 1000.0,
                     dropped_samples: i.dropped_samples,
                     partial: i.partial,
+                    channel_floor_dbfs_per_hz: (i.quiet_samples > 0)
+                        .then(|| round_to(db(i.quiet_power / l.width_hz), 2)),
                 }))
             }
             Event::Emission(e) => {
@@ -278,7 +290,15 @@ impl<W: Write> Consumer for OccupancyLog<W> {
             Event::Emission(e) => e.start_sample,
             Event::Opened(o) => o.start_sample,
         };
-        self.emit(rec, Some(first), run)
+        let changes = match (&rec, self.alarms.as_mut()) {
+            (Record::Interval(r), Some(a)) => a.interval(first, r, &run.clock),
+            _ => Vec::new(),
+        };
+        self.emit(rec, Some(first), run)?;
+        for change in changes {
+            self.emit(change, Some(first), run)?;
+        }
+        Ok(())
     }
 
     /// The records other consumers send for the log (a capture saved or skipped): written after

@@ -26,6 +26,8 @@ pub enum Record {
     Emission(EmissionRecord),
     Dropped(DroppedRecord),
     Capture(CaptureRecord),
+    Alarm(AlarmRecord),
+    Clear(AlarmRecord),
     Stop(StopRecord),
 }
 
@@ -86,6 +88,9 @@ pub struct IntervalRecord {
     pub occupied_samples: f64,
     pub dropped_samples: u64,
     pub partial: bool,
+    /// The channel's own floor: its mean power density over the samples no emission touched;
+    /// `null` when every sample was occupied or none measured.
+    pub channel_floor_dbfs_per_hz: Option<f64>,
 }
 
 #[derive(Serialize, Debug, Clone, PartialEq)]
@@ -145,6 +150,35 @@ pub struct CaptureRecord {
     pub bytes: u64,
     /// The emission was longer than `--capture-max-seconds`: the file holds its first part.
     pub truncated: bool,
+}
+
+/// A change alarm raised (`kind` `alarm`) or ended (`clear`) by `log --alarms`, see
+/// [`crate::measure::change`].
+#[derive(Serialize, Debug, Clone, PartialEq)]
+pub struct AlarmRecord {
+    /// A plan channel, or `band` for the floor shared by the whole span.
+    pub channel: String,
+    /// `floor_up`, `floor_down`, `busier`, `quieter` or `new_signal`.
+    pub what: String,
+    /// The interval that raised (or cleared) it.
+    pub t_start_s: f64,
+    pub t_end_s: f64,
+    pub start: Option<String>,
+    pub end: Option<String>,
+    /// The start of the interval with which the change began, by the test's estimate (the same
+    /// in the `clear` record).
+    pub since_s: f64,
+    pub since: Option<String>,
+    /// The test's statistic and the threshold it crossed (a clear: its return statistic).
+    pub statistic: f64,
+    pub threshold: f64,
+    /// The usual value (hour-of-week baseline) and the interval's, in `unit`.
+    pub baseline: f64,
+    pub present: f64,
+    /// `dBFS/Hz` (floor) or `%` (occupancy).
+    pub unit: String,
+    /// `cusum` or `ewma`.
+    pub method: String,
 }
 
 /// The last line of a run that ended in an orderly way.
@@ -207,4 +241,14 @@ pub const CSV_COLUMNS: &[&str] = &[
     "bytes",
     "truncated",
     "gaps",
+    "channel_floor_dbfs_per_hz",
+    "what",
+    "since_s",
+    "since",
+    "statistic",
+    "threshold",
+    "baseline",
+    "present",
+    "unit",
+    "method",
 ];

@@ -199,6 +199,7 @@ pub fn to_json(summary: &LogSummary) -> Value {
         "duplicates_skipped": summary.duplicates,
         "coverage": coverage,
         "channels": channels,
+        "alarms": super::alarms::alarms_json(summary),
         "notes": summary.notes,
     })
 }

@@ -24,6 +24,10 @@ const TEXT_COLUMNS: &[&str] = &[
     "run",
     "status",
     "file",
+    "what",
+    "since",
+    "unit",
+    "method",
 ];
 
 /// Skipped lines of one file, reported as at most three notes and a count.

@@ -22,6 +22,7 @@
 //! **Damaged files.** A line that is not a record is skipped with a note ([`input`]); lines of
 //! kinds this version does not know are ignored.
 
+pub mod alarms;
 pub mod coverage;
 pub mod export;
 pub mod input;
@@ -29,6 +30,7 @@ pub mod site;
 pub mod table;
 pub mod zone;
 
+use crate::measure::change::baseline::BaselineFile;
 use coverage::{DropSpan, RunSum};
 use serde_json::Value;
 use site::SiteRules;
@@ -140,6 +142,14 @@ pub struct LogSummary {
     pub unplaced: u64,
     pub notes: Vec<String>,
     seen: HashSet<String>,
+    /// The `alarm` and `clear` records, in the order read.
+    pub alarms: Vec<alarms::AlarmRow>,
+    /// A baseline learnt from the intervals (`--save-baseline`), when asked for.
+    pub baseline: Option<BaselineFile>,
+    /// Intervals whose shared floor the baseline has learnt: (site, run, start).
+    band_seen: HashSet<(String, String, String)>,
+    /// (site, channel) with an alarm up, whose intervals the baseline does not learn.
+    alarms_open: HashSet<(String, String)>,
 }
 
 /// The state of one file's reading: the run it is in.
@@ -221,6 +231,7 @@ impl LogSummary {
                 cause: v["cause"].as_str().unwrap_or("unknown").to_string(),
             }),
             "interval" | "emission" => self.channel_record(v, kind, st, site),
+            "alarm" | "clear" => self.alarm_record(v, kind, &site),
             _ => {}
         }
     }
@@ -300,6 +311,9 @@ impl LogSummary {
             None => HourKey::FromStart((num(v, "t_start_s") / 3600.0).floor() as i64),
         };
         ch.hours.entry(hour).or_default().add(&tally);
+        let (site, name) = (ch.site.clone(), ch.name.clone());
+        self.learn_interval(v, &site, &name, start);
+        let ch = self.channels.get_mut(&(site, name)).expect("entered above");
         if let Some(m) = v["mean_dbfs"].as_f64() {
             ch.power_weighted += samples as f64 * 10f64.powf(m / 10.0);
             ch.power_samples += samples;

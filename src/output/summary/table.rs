@@ -48,6 +48,7 @@ pub fn to_table(summary: &LogSummary) -> String {
     heard_text(&mut out, summary);
     let _ = writeln!(out);
     hours_text(&mut out, summary);
+    super::alarms::alarms_text(&mut out, summary);
     for n in &summary.notes {
         let _ = writeln!(out, "note: {n}");
     }
