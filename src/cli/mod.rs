@@ -6,6 +6,7 @@
 //! imports clap or an `*Args` type.
 
 pub mod census;
+pub mod change;
 pub mod common;
 pub mod demo;
 pub mod log;
