@@ -27,9 +27,10 @@ pub struct ChangeArgs {
     /// How far a moved emitter is looked for, in OBWs (plus 10 RBW).
     #[arg(long, value_name = "OBWS", default_value_t = 5.0, value_parser = parse_number)]
     pub move_within: f64,
-    /// A new emission on the air all the time (90 % or more) standing less than this many dB
-    /// above the old floor, where no emitter was, is read as a raised floor.
-    #[arg(long, value_name = "DB", default_value_t = 10.0, value_parser = parse_number)]
+    /// A new emission on the air all the time (90 % or more) whose density (power over OBW)
+    /// stands less than this many dB above the old floor, where no emitter was, is read as a
+    /// raised floor (7 dB: rises of the floor up to 7.8 dB); above it, as a new emitter.
+    #[arg(long, value_name = "DB", default_value_t = 7.0, value_parser = parse_number)]
     pub floor_like_below: f64,
 }
 

@@ -71,7 +71,7 @@ impl Default for Thresholds {
             floor_db: 3.0,
             move_share: 0.25,
             move_within: 5.0,
-            floor_rise_max_db: 10.0,
+            floor_rise_max_db: 7.0,
         }
     }
 }
