@@ -130,3 +130,55 @@ fn a_file_that_is_not_a_baseline_is_refused_clearly() {
         assert!(!err.contains("panicked"), "{err}");
     }
 }
+
+/// `report --baseline-log`: the same planted pair, logged through a plan the census wrote from
+/// the before scene. The channels are those of the before scene, so: the stronger emitter shows
+/// a power change near +6 dB (within 1 dB), the one keyed three times as often a busier
+/// channel, the gone and the moved one a channel gone quiet; the steady and bursty emitters
+/// nothing.
+#[test]
+fn report_compares_each_channel_with_baseline_logs() {
+    let truth: Value =
+        serde_json::from_str(&std::fs::read_to_string(format!("{DIR}/truth.json")).unwrap())
+            .unwrap();
+    let plan = tmp("plan.toml");
+    let _ = std::fs::remove_file(&plan);
+    census_json(&[&format!("{DIR}/before.sigmf-meta"), "--plan-out", plan.to_str().unwrap()]);
+    let mut logs = Vec::new();
+    for scene in ["before", "after"] {
+        let log = tmp(&format!("{scene}.jsonl"));
+        let _ = std::fs::remove_file(&log);
+        let out = bin()
+            .args(["log", &format!("{DIR}/{scene}.sigmf-meta"), "--plan"])
+            .args([plan.to_str().unwrap(), "--interval", "1s", "-o", log.to_str().unwrap()])
+            .output()
+            .unwrap();
+        assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+        logs.push(log.to_str().unwrap().to_string());
+    }
+    let out =
+        bin().args(["report", &logs[1], "--baseline-log", &logs[0], "--json"]).output().unwrap();
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let v: Value = serde_json::from_slice(&out.stdout).unwrap();
+    let changes = v["changes"].as_array().expect("changes[]");
+    let at = |kind: &str| {
+        let t = truth["changes"].as_array().unwrap().iter().find(|t| t["kind"] == kind).unwrap();
+        let f = if kind == "moved" { num(t, "before_center_hz") } else { num(t, "center_hz") };
+        changes
+            .iter()
+            .filter(|c| (num(c, "center_hz") - f).abs() < 3e3)
+            .map(|c| c["kind"].as_str().unwrap().to_string())
+            .collect::<Vec<_>>()
+    };
+    let power = changes.iter().find(|c| c["kind"] == "power").expect("a power change");
+    println!("report power delta {}", power["delta_db"]);
+    assert!((num(power, "delta_db") - 6.0).abs() <= 1.0, "{power}");
+    assert!(at("power").contains(&"power".to_string()));
+    assert!(at("airtime").contains(&"occupancy".to_string()), "{changes:#?}");
+    assert!(at("gone").contains(&"occupancy".to_string()), "{changes:#?}");
+    assert!(at("moved").contains(&"occupancy".to_string()), "{changes:#?}");
+    for u in truth["unchanged"].as_array().unwrap() {
+        let near = changes.iter().find(|c| (num(c, "center_hz") - num(u, "center_hz")).abs() < 3e3);
+        assert!(near.is_none(), "unchanged {u} reported: {near:?}");
+    }
+}

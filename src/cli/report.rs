@@ -1,6 +1,8 @@
 //! `report` flags and their validation.
 
+use super::change::ChangeArgs;
 use super::snapshot::parse_colour_map;
+use crate::measure::change::Thresholds;
 use crate::output::picture::colour::MapKind;
 use crate::output::summary::site::SiteRules;
 use crate::output::summary::zone::{parse_instant, parse_zone, Zone};
@@ -42,6 +44,13 @@ pub struct ReportArgs {
     /// Title of the heat map (default: what it shows and the period).
     #[arg(long, value_name = "TEXT")]
     pub title: Option<String>,
+    /// Compare every channel with the same channel (site and name) in these earlier logs
+    /// (repeatable; summed the same way, without --from/--to): occupancy, emissions, power
+    /// while occupied and noise floor. Uses --level-change, --airtime-z and --airtime-factor.
+    #[arg(long, value_name = "LOG")]
+    pub baseline_log: Vec<String>,
+    #[command(flatten)]
+    pub change: ChangeArgs,
 }
 
 /// What `report` writes on standard output.
@@ -62,6 +71,9 @@ pub struct ReportConfig {
     pub title: Option<String>,
     /// Zone, window and sites.
     pub settings: Settings,
+    /// `--baseline-log` files and the thresholds of the comparison.
+    pub baseline_logs: Vec<String>,
+    pub thresholds: Thresholds,
 }
 
 impl ReportArgs {
@@ -77,6 +89,10 @@ impl ReportArgs {
                 );
             }
         }
+        if !self.baseline_log.is_empty() && self.csv {
+            bail!("--baseline-log lists its changes in the table or --json; drop --csv");
+        }
+        let thresholds = self.change.validate()?;
         let zone: Zone = parse_zone(&self.tz)?;
         let from = self.from.as_deref().map(|t| parse_instant(t, zone, "--from")).transpose()?;
         let to = self.to.as_deref().map(|t| parse_instant(t, zone, "--to")).transpose()?;
@@ -100,6 +116,8 @@ impl ReportArgs {
             map: self.colour_map,
             title: self.title,
             settings,
+            baseline_logs: self.baseline_log,
+            thresholds,
         })
     }
 }

@@ -22,6 +22,7 @@
 //! **Damaged files.** A line that is not a record is skipped with a note ([`input`]); lines of
 //! kinds this version does not know are ignored.
 
+pub mod change;
 pub mod coverage;
 pub mod export;
 pub mod input;
