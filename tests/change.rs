@@ -182,3 +182,36 @@ fn report_compares_each_channel_with_baseline_logs() {
         assert!(near.is_none(), "unchanged {u} reported: {near:?}");
     }
 }
+
+/// A floor raised over the whole span alone (the before scene plus seeded noise of three times
+/// its density, +6.02 dB in all) is one `floor` change of the span, and no emitter reads weaker:
+/// the census's power is noise-corrected. (ci8 rounding adds 1/12 LSB² per component, about
+/// 0.2 dB of noise at this level in both scenes alike.)
+#[test]
+fn a_floor_raised_everywhere_changes_no_emitter() {
+    let raw = std::fs::read(format!("{DIR}/before.sigmf-data")).unwrap();
+    let mut rng = bandwarden::testkit::Rng::new(0xf1008);
+    // Noise density of the scene: -86 dBFS/Hz at 200 kS/s; ci8 full scale is 128 (x/128).
+    let sigma = (3.0 * 10f64.powf(-8.6) * 200e3 / 2.0).sqrt() * 128.0;
+    let raised: Vec<u8> = raw
+        .iter()
+        .map(|&b| ((b as i8) as f64 + sigma * rng.gauss()).round().clamp(-128.0, 127.0) as i8 as u8)
+        .collect();
+    let data = tmp("raised.sigmf-data");
+    std::fs::write(&data, raised).unwrap();
+    std::fs::copy(format!("{DIR}/before.sigmf-meta"), tmp("raised.sigmf-meta")).unwrap();
+    let base = tmp("raised-base.json");
+    std::fs::write(&base, census_json(&[&format!("{DIR}/before.sigmf-meta")]).to_string()).unwrap();
+    let v = census_json(&[
+        tmp("raised.sigmf-meta").to_str().unwrap(),
+        "--baseline",
+        base.to_str().unwrap(),
+    ]);
+    let changes = v["changes"].as_array().unwrap();
+    assert_eq!(changes.len(), 1, "{changes:#?}");
+    let c = &changes[0];
+    assert_eq!(c["kind"], "floor");
+    println!("span floor delta {}", c["delta_db"]);
+    assert!((num(c, "delta_db") - 6.02).abs() <= 1.0, "{c}");
+    assert!(num(c, "end_hz") - num(c, "start_hz") > 190e3, "the whole span: {c}");
+}

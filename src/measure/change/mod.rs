@@ -274,3 +274,6 @@ fn density(e: &BaselineEmitter) -> f64 {
 fn over(x: f64, floor_dbfs_per_hz: f64) -> f64 {
     db(x) - floor_dbfs_per_hz
 }
+
+#[cfg(test)]
+mod tests;
