@@ -1,8 +1,10 @@
 //! `census` flags and their validation.
 
+use super::change::ChangeArgs;
 use super::common::{parse_progress, parse_seconds, DetectArgs, DspArgs, InputArgs};
 use super::sigmf_out::{EmissionOutArgs, RecordArgs, SigmfOut};
 use crate::dsp::DspConfig;
+use crate::measure::change::Thresholds;
 use crate::measure::occupancy::timing::OBW_PERCENT;
 use crate::measure::Detection;
 use crate::source::InputRequest;
@@ -51,6 +53,16 @@ pub struct CensusArgs {
     pub record: RecordArgs,
     #[command(flatten)]
     pub emissions: EmissionOutArgs,
+    /// Compare with an earlier inventory: the --json output of a census, or a file written by
+    /// --save-baseline. Adds a section of changes (in --json, `changes`).
+    #[arg(long, value_name = "FILE.json")]
+    pub baseline: Option<String>,
+    /// Save this census as a baseline; if FILE exists (a baseline of the same span), this run
+    /// is merged into it.
+    #[arg(long, value_name = "FILE.json")]
+    pub save_baseline: Option<String>,
+    #[command(flatten)]
+    pub change: ChangeArgs,
 }
 
 /// A validated `census`.
@@ -69,6 +81,9 @@ pub struct CensusConfig {
     pub sigmf: SigmfOut,
     /// `--progress`: seconds between status lines, 0 for none, `None` for the default.
     pub progress: Option<f64>,
+    pub baseline: Option<String>,
+    pub save_baseline: Option<String>,
+    pub thresholds: Thresholds,
 }
 
 impl CensusArgs {
@@ -76,6 +91,13 @@ impl CensusArgs {
         if self.plan_out.as_deref() == Some("-") {
             bail!("--plan-out writes a file: give a path (e.g. --plan-out site-plan.toml)");
         }
+        if self.save_baseline.as_deref() == Some("-") {
+            bail!("--save-baseline writes a file: give a path (e.g. --save-baseline ridge-baseline.json)");
+        }
+        if self.baseline.is_some() && self.baseline == self.save_baseline {
+            bail!("--baseline and --save-baseline name the same file: compare with one and save into another");
+        }
+        let thresholds = self.change.validate()?;
         let sigmf = SigmfOut::validate(self.record, self.emissions, &self.input)?;
         Ok(CensusConfig {
             dsp: self.dsp.validate()?,
@@ -89,6 +111,9 @@ impl CensusArgs {
             no_drop: self.no_drop,
             sigmf,
             progress: self.progress,
+            baseline: self.baseline,
+            save_baseline: self.save_baseline,
+            thresholds,
         })
     }
 }

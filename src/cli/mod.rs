@@ -7,6 +7,7 @@
 
 pub mod alarms;
 pub mod census;
+pub mod change;
 pub mod common;
 pub mod demo;
 pub mod log;

@@ -1,6 +1,8 @@
 //! `report` flags and their validation.
 
+use super::change::ChangeArgs;
 use super::snapshot::parse_colour_map;
+use crate::measure::change::Thresholds;
 use crate::output::picture::colour::MapKind;
 use crate::output::summary::site::SiteRules;
 use crate::output::summary::zone::{parse_instant, parse_zone, Zone};
@@ -46,6 +48,13 @@ pub struct ReportArgs {
     /// the logs' intervals, to this JSON file: the baseline `log --alarms --baseline FILE` reads.
     #[arg(long, value_name = "FILE.json")]
     pub save_baseline: Option<String>,
+    /// Compare every channel with the same channel (site and name) in these earlier logs
+    /// (repeatable; summed the same way, without --from/--to): occupancy, emissions, power
+    /// while occupied and noise floor. Uses --level-change, --airtime-z and --airtime-factor.
+    #[arg(long, value_name = "LOG")]
+    pub baseline_log: Vec<String>,
+    #[command(flatten)]
+    pub change: ChangeArgs,
 }
 
 /// What `report` writes on standard output.
@@ -68,6 +77,9 @@ pub struct ReportConfig {
     pub settings: Settings,
     /// `--save-baseline`.
     pub save_baseline: Option<String>,
+    /// `--baseline-log` files and the thresholds of the comparison.
+    pub baseline_logs: Vec<String>,
+    pub thresholds: Thresholds,
 }
 
 impl ReportArgs {
@@ -91,6 +103,10 @@ impl ReportArgs {
                 );
             }
         }
+        if !self.baseline_log.is_empty() && self.csv {
+            bail!("--baseline-log lists its changes in the table or --json; drop --csv");
+        }
+        let thresholds = self.change.validate()?;
         let zone: Zone = parse_zone(&self.tz)?;
         let from = self.from.as_deref().map(|t| parse_instant(t, zone, "--from")).transpose()?;
         let to = self.to.as_deref().map(|t| parse_instant(t, zone, "--to")).transpose()?;
@@ -115,6 +131,8 @@ impl ReportArgs {
             title: self.title,
             settings,
             save_baseline: self.save_baseline,
+            baseline_logs: self.baseline_log,
+            thresholds,
         })
     }
 }

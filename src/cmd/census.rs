@@ -15,6 +15,7 @@ use crate::measure::census::{Census, CensusSettings};
 use crate::measure::occupancy::DEFAULT_INTERVAL_S;
 use crate::messages::note;
 use crate::output::census::{capture_list, to_json_value, to_plan, to_table, CensusConsumer};
+use crate::output::change::BaselineStep;
 use crate::output::progress::{Progress, StatusLine};
 use crate::output::sigmf::outputs::{annotated_note, SigmfOutputs, SigmfRequest};
 use crate::output::sigmf::write as sigmf_write;
@@ -54,6 +55,11 @@ pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
         max_signals: MAX_SIGNALS,
         max_emitters: MAX_EMITTERS,
     };
+    if let Some(out) = &cfg.save_baseline {
+        sink::refuse_overwrite(out, "--save-baseline", &inputs)?;
+    }
+    let baseline =
+        BaselineStep::open(cfg.baseline.as_deref(), cfg.save_baseline.as_deref(), cfg.thresholds)?;
     let spec = RunSpec::new(info.clone(), setup.engine.clone(), cfg.dsp.threads);
     spec.check_work()?;
 
@@ -111,15 +117,15 @@ pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
             setup.dwell_s() * 1e3
         );
     };
-    let text = if cfg.json {
-        let mut v = to_json_value(result);
+    let mut v = to_json_value(result);
+    let mut text = if cfg.json { String::new() } else { to_table(result, &sanitize(&info.label)) };
+    let saved = baseline.apply(&mut v, &mut text, cfg.json)?;
+    if cfg.json {
         if cfg.sigmf.capture.is_some() {
             v["captures"] = capture_list(&census.captures);
         }
-        format!("{v}\n")
-    } else {
-        to_table(result, &sanitize(&info.label))
-    };
+        text = format!("{v}\n");
+    }
     let mut out = sink::open("-", false, "census")?.out;
     out.write_all(text.as_bytes())?;
     out.flush()?;
@@ -127,6 +133,9 @@ pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
         let mut file = sink::open(path, false, "plan")?.out;
         file.write_all(to_plan(result, &sanitize(&info.label)).as_bytes())?;
         file.flush()?;
+    }
+    if let Some(n) = saved {
+        note(&n);
     }
     Ok(ExitCode::SUCCESS)
 }

@@ -7,19 +7,21 @@ use crate::measure::change::baseline::BaselineFile;
 use crate::messages::{note, notes, sanitize};
 use crate::output::picture::heatmap::{draw_heatmap, heatmap_title};
 use crate::output::sink;
+use crate::output::summary::change::{changes_json, changes_table, compare_logs};
 use crate::output::summary::export::{to_csv, to_json};
 use crate::output::summary::table::to_table;
-use crate::output::summary::LogSummary;
+use crate::output::summary::{LogSummary, Settings};
 use anyhow::{bail, Context, Result};
 use std::io::{BufReader, Write};
 use std::process::ExitCode;
 
-pub fn run(cfg: ReportConfig) -> Result<ExitCode> {
-    let mut summary = LogSummary::new(cfg.settings.clone());
-    if cfg.save_baseline.is_some() {
+/// The logs at `paths` summed; `learn`: also learn the hour-of-week baseline of `--save-baseline`.
+fn read_logs(paths: &[String], settings: Settings, learn: bool) -> Result<LogSummary> {
+    let mut summary = LogSummary::new(settings);
+    if learn {
         summary.baseline = Some(BaselineFile::default());
     }
-    for path in &cfg.logs {
+    for path in paths {
         let shown = sanitize(path);
         let file = std::fs::File::open(path)
             .with_context(|| format!("cannot open the log '{shown}'; check the path"))?;
@@ -27,6 +29,11 @@ pub fn run(cfg: ReportConfig) -> Result<ExitCode> {
             .read(path, BufReader::new(file))
             .with_context(|| format!("cannot read the log '{shown}'"))?;
     }
+    Ok(summary)
+}
+
+pub fn run(cfg: ReportConfig) -> Result<ExitCode> {
+    let mut summary = read_logs(&cfg.logs, cfg.settings.clone(), cfg.save_baseline.is_some())?;
     let missing = cfg.settings.sites.missing(&summary.sites_seen);
     if !missing.is_empty() {
         bail!(
@@ -48,10 +55,29 @@ pub fn run(cfg: ReportConfig) -> Result<ExitCode> {
             cfg.logs.iter().map(|l| format!("'{}'", sanitize(l))).collect::<Vec<_>>().join(", ")
         );
     }
-    let text = match cfg.format {
-        ReportFormat::Table => to_table(&summary),
-        ReportFormat::Csv => to_csv(&summary),
-        ReportFormat::Json => format!("{}\n", to_json(&summary)),
+    let changes = if cfg.baseline_logs.is_empty() {
+        None
+    } else {
+        let settings = Settings { from: None, to: None, ..cfg.settings.clone() };
+        let base = read_logs(&cfg.baseline_logs, settings, false)?;
+        if base.channels.is_empty() {
+            bail!("--baseline-log: no interval or emission records in the baseline logs");
+        }
+        Some(compare_logs(&base, &summary, &cfg.thresholds))
+    };
+    let text = match (cfg.format, &changes) {
+        (ReportFormat::Table, None) => to_table(&summary),
+        (ReportFormat::Table, Some(c)) => {
+            to_table(&summary) + &changes_table(c, &cfg.baseline_logs)
+        }
+        (ReportFormat::Csv, _) => to_csv(&summary),
+        (ReportFormat::Json, c) => {
+            let mut v = to_json(&summary);
+            if let Some(c) = c {
+                v["changes"] = changes_json(c);
+            }
+            format!("{v}\n")
+        }
     };
     if cfg.format != ReportFormat::Table {
         notes(&summary.notes);

@@ -2,6 +2,7 @@
 //! and a channel plan in the TOML format `log --plan` reads.
 
 use crate::dsp::Spectrum;
+use crate::measure::census::floor::FloorProfile;
 use crate::measure::census::{
     frequency_name, Attributed, Census, CensusEvent, CensusResult, Emission, EmitterFigures,
 };
@@ -213,6 +214,7 @@ pub fn to_json_value(r: &CensusResult) -> serde_json::Value {
         "rbw_hz": round(r.rbw_hz, 3),
         "duration_s": round(r.duration_s, 4),
         "noise_floor_dbfs_per_hz": round(r.noise_floor_dbfs_per_hz, 2),
+        "floor": floor_json(&r.floor),
         "emitters": emitters,
     })
 }
@@ -241,6 +243,23 @@ fn attributed_note(e: &EmitterFigures) -> Option<String> {
         parts.push(format!("{} out-of-band skirt(s) or line(s){energy}", a.skirts));
     }
     (!parts.is_empty()).then(|| format!("  {}: {}", e.name, parts.join("; ")))
+}
+
+/// The floor per part of the span: its edges (Hz, to 0.1 Hz) and density (dBFS/Hz, to 0.01 dB;
+/// null where emitters cover the part).
+fn floor_json(f: &FloorProfile) -> serde_json::Value {
+    let parts: Vec<_> = f
+        .parts
+        .iter()
+        .map(|p| {
+            json!({
+                "start_hz": round(p.start_hz, 1),
+                "end_hz": round(p.end_hz, 1),
+                "dbfs_per_hz": p.dbfs_per_hz.map(|v| round(v, 2)),
+            })
+        })
+        .collect();
+    json!({ "span_dbfs_per_hz": f.span_dbfs_per_hz.map(|v| round(v, 2)), "parts": parts })
 }
 
 /// The census as a table, strongest first, units in the header.
@@ -465,6 +484,7 @@ mod tests {
             rbw_hz: 878.9,
             duration_s: 10.0,
             noise_floor_dbfs_per_hz: -120.0,
+            floor: Default::default(),
             emitters,
             emissions: Vec::new(),
             emitters_dropped: 0,

@@ -43,6 +43,7 @@
 
 pub mod attribute;
 pub mod emitter;
+pub mod floor;
 pub mod track;
 
 use crate::dsp::{Spectrum, Window};
@@ -52,6 +53,7 @@ use crate::measure::signals::{find_signals, Detection};
 use crate::units::{db, undb};
 use attribute::{Fate, Piece, Scale, Span};
 use emitter::EmitterAcc;
+use floor::{floor_profile, FloorInput, FloorProfile};
 use track::Track;
 
 /// Emitters seen in fewer rows than this are dropped as false alarms of the detector (noise
@@ -187,6 +189,8 @@ pub struct CensusResult {
     pub rbw_hz: f64,
     pub duration_s: f64,
     pub noise_floor_dbfs_per_hz: f64,
+    /// The floor per part of the span, outside the emitters ([`floor`]).
+    pub floor: FloorProfile,
     /// Strongest (most power while on the air) first.
     pub emitters: Vec<EmitterFigures>,
     pub emissions: Vec<Emission>,
@@ -238,6 +242,9 @@ pub struct Census {
     row: u64,
     last_span_end: u64,
     floor_sum: f64,
+    /// Every row's PSD summed, and their degrees of freedom, for the floor per part.
+    psd_sum: Vec<f64>,
+    dof_sum: f64,
     tracks: Vec<Track>,
     clusters: Vec<Cluster>,
     emitters: Vec<EmitterAcc>,
@@ -262,6 +269,8 @@ impl Census {
             row: 0,
             last_span_end: 0,
             floor_sum: 0.0,
+            psd_sum: Vec::new(),
+            dof_sum: 0.0,
             tracks: Vec::new(),
             clusters: Vec::new(),
             emitters: Vec::new(),
@@ -290,6 +299,7 @@ impl Census {
         if self.window.is_none() {
             self.window = Some(Window::new(row.window, row.fft_size));
             self.prev = row.psd.clone();
+            self.psd_sum = vec![0.0; row.psd.len()];
             self.layout = Some(Layout {
                 sample_rate_hz: row.sample_rate_hz,
                 center_hz: row.center_hz,
@@ -304,6 +314,8 @@ impl Census {
         let density = self.noise.push(row);
         self.density = density;
         self.floor_sum += density;
+        self.psd_sum.iter_mut().zip(&row.psd).for_each(|(s, p)| *s += p);
+        self.dof_sum += row.dof;
         let span = self.settings.timing.row_span(row);
         self.last_span_end = span.1;
         let window = self.window.as_ref().expect("set above");
@@ -492,6 +504,7 @@ impl Census {
         let mut layout = self.layout.take()?;
         layout.duration_samples = end.max(self.last_span_end);
         let window = self.window.take()?;
+        let floor = self.floor_profile(&layout);
         let home = self.merge_neighbours(layout.rbw_hz);
         let closed = self.join_emissions(&home);
         let measured: Vec<(usize, EmitterFigures)> = self
@@ -529,6 +542,7 @@ impl Census {
             rbw_hz: layout.rbw_hz,
             duration_s: layout.duration_samples as f64 / layout.sample_rate_hz,
             noise_floor_dbfs_per_hz: db(self.floor_sum / self.row as f64),
+            floor,
             emitters,
             emissions,
             emitters_dropped: self.emitters_dropped,
@@ -609,6 +623,24 @@ impl Census {
             kept.push((i, EmitterFigures { attributed, ..f }));
         }
         kept
+    }
+
+    /// The floor per part of the span, outside every emitter's footprint (those later dropped
+    /// as false alarms too: a bin that may hold a weak emission is left out).
+    fn floor_profile(&self, layout: &Layout) -> FloorProfile {
+        let rows = self.row.max(1) as f64;
+        let mean: Vec<f64> = self.psd_sum.iter().map(|s| s / rows).collect();
+        let mut busy = vec![false; mean.len()];
+        for e in &self.emitters {
+            busy[e.lo..=e.hi.min(mean.len().saturating_sub(1))].iter_mut().for_each(|b| *b = true);
+        }
+        floor_profile(&FloorInput {
+            mean_psd: &mean,
+            busy: &busy,
+            center_hz: layout.center_hz,
+            bin_hz: layout.bin_hz,
+            dof: self.dof_sum,
+        })
     }
 
     /// Folds emitters that ended up at one place into the one seen in most rows; returns, for

@@ -23,6 +23,7 @@
 //! kinds this version does not know are ignored.
 
 pub mod alarms;
+pub mod change;
 pub mod coverage;
 pub mod export;
 pub mod input;
