@@ -39,6 +39,10 @@ FS = 100_000.0
 N = 16_000
 SNRS = [10, 20, 30]
 SETS = {"seen": 20261204, "unseen": 77031}
+# Another set and directory for a one-off check, e.g. CLASS_SCENES="fresh:5150" CLASS_SCENES_OUT=/tmp/x
+if os.environ.get("CLASS_SCENES"):
+    SETS = {k: int(v) for k, v in (p.split(":") for p in os.environ["CLASS_SCENES"].split(","))}
+    OUT = os.environ.get("CLASS_SCENES_OUT", OUT)
 # Mean power of every emission (dBFS). QAM and OFDM peaks stay well inside full scale.
 LEVEL_DBFS = -16.0
 SCALE = 32768.0
@@ -182,7 +186,7 @@ def obw99(x):
 def draw_kinds(rng, set_name):
     """Parameters for each kind in one set (different draws per set)."""
     u = lambda a, b: float(rng.uniform(a, b))
-    unseen = set_name == "unseen"
+    unseen = set_name != "seen"
     alpha = (lambda: u(0.25, 0.45)) if unseen else (lambda: 0.35)
     kinds = []
     kinds.append(("cw", "cw", {}, lambda r: np.ones(N, dtype=complex)))

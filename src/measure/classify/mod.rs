@@ -172,8 +172,8 @@ pub struct Trace {
     pub cp: Option<(f64, f64)>,
     /// Prominence of the |x|² symbol-rate line, when found.
     pub envelope_line: Option<f64>,
-    /// FSK separation and dwell, when found.
-    pub fsk: Option<(f64, f64)>,
+    /// FSK separation, dwell and sharpness, when found.
+    pub fsk: Option<(f64, f64, f64)>,
 }
 
 /// Fewest baseband samples (at 4 × OBW) worth analysing.
@@ -334,41 +334,41 @@ fn constant_envelope(
             ClassParams::default(),
         );
     }
-    if let Some(f) = fsk::analyse(&bb.x, bb.rate_hz, bb.obw_hz) {
-        trace.fsk = Some((f.separation, f.dwell));
-        if f.dwell < fsk::MIN_DWELL {
+    let fsk = fsk::analyse(&bb.x, bb.rate_hz, bb.obw_hz);
+    trace.fsk = fsk.as_ref().map(|f| (f.separation, f.dwell, f.sharpness));
+    if let Some(f) = fsk.filter(|f| f.sharpness >= fsk::ANALOG_SHARPNESS) {
+        if f.dwell < fsk::MIN_DWELL || f.sharpness < fsk::MIN_SHARPNESS {
             return unknown(format!(
-                "frequency clusters on {} tones at {:.0} Bd, but dwells there only {:.0} % of the time (FSK {:.0} % or more)",
+                "frequency clusters on {} tones at {:.0} Bd, but dwells there only {:.0} % of the time (FSK {:.0} % or more) or moves between them gradually (sharpness {:.2}; FSK {} or more)",
                 f.tones,
                 f.symbol_rate_hz,
                 100.0 * f.dwell,
-                100.0 * fsk::MIN_DWELL
+                100.0 * fsk::MIN_DWELL,
+                f.sharpness,
+                fsk::MIN_SHARPNESS
             ));
         }
-        {
-            if f.symbols < MIN_FSK_SYMBOLS {
-                return unknown(format!(
-                    "looks like FSK; needs {MIN_FSK_SYMBOLS} symbols ({}) to count its tones; had {}",
-                    seconds(MIN_FSK_SYMBOLS as f64 / f.symbol_rate_hz),
-                    seconds(bb.seconds)
-                ));
-            }
-            let conf = ce.min(margin(f.separation, fsk::MIN_SEPARATION, 2.0)).min(margin(
-                f.dwell,
-                fsk::MIN_DWELL,
-                0.1,
+        if f.symbols < MIN_FSK_SYMBOLS {
+            return unknown(format!(
+                "looks like FSK; needs {MIN_FSK_SYMBOLS} symbols ({}) to count its tones; had {}",
+                seconds(MIN_FSK_SYMBOLS as f64 / f.symbol_rate_hz),
+                seconds(bb.seconds)
             ));
-            return found(
-                Class::Fsk,
-                conf,
-                ClassParams {
-                    symbol_rate_hz: Some(f.symbol_rate_hz),
-                    tones: Some(f.tones),
-                    shift_hz: Some(f.shift_hz),
-                    ..ClassParams::default()
-                },
-            );
         }
+        let conf = ce
+            .min(margin(f.separation, fsk::MIN_SEPARATION, 2.0))
+            .min(margin(f.dwell, fsk::MIN_DWELL, 0.1))
+            .min(margin(f.sharpness, fsk::MIN_SHARPNESS, 0.05));
+        return found(
+            Class::Fsk,
+            conf,
+            ClassParams {
+                symbol_rate_hz: Some(f.symbol_rate_hz),
+                tones: Some(f.tones),
+                shift_hz: Some(f.shift_hz),
+                ..ClassParams::default()
+            },
+        );
     }
     match analog::fm_deviation(&bb.x, bb.rate_hz, bb.obw_hz) {
         Some(dev) => found(
