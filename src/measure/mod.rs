@@ -4,6 +4,7 @@
 pub mod band;
 pub mod census;
 pub mod change;
+pub mod classify;
 pub mod noise;
 pub mod occupancy;
 pub mod signals;

@@ -1,0 +1,176 @@
+//! Frequency-shift keying: the instantaneous frequency of FSK dwells on M equally spaced tones
+//! and jumps between them at the symbol instants. The jumps make a spectral line at the symbol
+//! rate in |d f/dt| (its phase marks them); averaged over the middle half of each symbol the
+//! frequency clusters tightly around the tones, while an analog FM message spreads continuously.
+
+use super::features::{instantaneous_frequency, lowpass_real, moving_average};
+use super::rate::LINE_PROMINENCE;
+use super::spectrum::{dft_at, find_line, quantile};
+use num_complex::Complex64;
+use std::f64::consts::PI;
+
+/// What the FSK analysis found.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Fsk {
+    pub symbol_rate_hz: f64,
+    pub tones: u32,
+    /// Spacing of adjacent tones, Hz.
+    pub shift_hz: f64,
+    /// Smallest spacing of adjacent tone clusters over their pooled standard deviation.
+    pub separation: f64,
+    /// Share of all samples whose (smoothed) frequency lies within a quarter shift of a tone.
+    pub dwell: f64,
+    /// Symbols in the record.
+    pub symbols: usize,
+    /// How abruptly the frequency moves between tones: over the transitions between symbols on
+    /// different tones, the mean share of the change that happens within a third of a symbol
+    /// around the boundary (median). FSK jumps (near 1, less the channel filter's smoothing); an analog
+    /// FM tone at half the apparent symbol rate moves as a cosine and gets only
+    /// cos(π/3) − cos(2π/3) over 2 = 0.5.
+    pub sharpness: f64,
+}
+
+/// Adjacent clusters must lie at least this many pooled standard deviations apart: a
+/// continuous (analog FM) spread split into clusters gives about 2.7 for a Gaussian and 4.1 for
+/// the arcsine law of a single modulating tone; FSK at 10 dB SNR gives 8 or more.
+pub const MIN_SEPARATION: f64 = 5.0;
+/// FSK keeps most of its time on the tones (a single-tone FM spends 59 % of it within a
+/// quarter spacing of its 2-means centres; 4-FSK at 10 dB SNR about 69 %).
+pub const MIN_DWELL: f64 = 0.65;
+
+/// Sharpness from which the transitions are taken as keyed jumps, and below which the frequency
+/// is taken to move like an analog message (not FSK); in between, `unknown`. Between the 0.5 of
+/// an FM tone (above) and the 0.8 to 1.1 that unshaped FSK with modulation index 0.8 to 2 reads
+/// after the channel filter at 10 to 30 dB SNR in the scenes of tests/classify.rs.
+pub const MIN_SHARPNESS: f64 = 0.7;
+pub const ANALOG_SHARPNESS: f64 = 0.65;
+
+/// Candidate FSK parameters of a baseband emission, or None when no symbol-rate line shows in
+/// the frequency's derivative or the frequency does not cluster on equally spaced tones.
+pub fn analyse(x: &[Complex64], rate_hz: f64, obw_hz: f64) -> Option<Fsk> {
+    let f = instantaneous_frequency(x, rate_hz);
+    if f.len() < 64 {
+        return None;
+    }
+    let smooth = lowpass_real(&f, rate_hz, 0.5 * obw_hz);
+    let d: Vec<f64> = smooth.windows(2).map(|w| (w[1] - w[0]).abs()).collect();
+    let line = find_line(&d, rate_hz, 0.05 * obw_hz, 0.7 * obw_hz)?;
+    if line.prominence < LINE_PROMINENCE {
+        return None;
+    }
+    let symbol_rate = line.freq_hz;
+    let sps = rate_hz / symbol_rate;
+    // d[n] sits at sample time n + 1 of x, f[n] at n + ½: transitions at d-index τ + k·sps.
+    let tau = (-dft_at(&d, rate_hz, symbol_rate).arg() / (2.0 * PI)).rem_euclid(1.0) * sps;
+    let centre_first = tau + 0.5 + sps / 2.0;
+    let avg = moving_average(&f, ((sps / 2.0).round() as usize).max(1));
+    let mut values = Vec::new();
+    let mut centres_at = Vec::new();
+    let mut t = centre_first % sps;
+    while t < (avg.len() - 1) as f64 {
+        let i = t.floor() as usize;
+        let u = t - i as f64;
+        values.push(avg[i] * (1.0 - u) + avg[i + 1] * u);
+        centres_at.push(t);
+        t += sps;
+    }
+    let mut best: Option<(usize, Vec<f64>, f64)> = None;
+    for m in [2usize, 4, 8] {
+        if values.len() < 8 * m {
+            break;
+        }
+        let (centres, pooled, shares) = kmeans_1d(&values, m);
+        let gaps: Vec<f64> = centres.windows(2).map(|w| w[1] - w[0]).collect();
+        let min_gap = gaps.iter().copied().fold(f64::INFINITY, f64::min);
+        let max_gap = gaps.iter().copied().fold(0.0, f64::max);
+        let sep = if pooled > 0.0 { min_gap / pooled } else { f64::INFINITY };
+        let even = max_gap <= 1.5 * min_gap;
+        let populated = shares.iter().all(|&s| s >= 0.25 / m as f64);
+        if sep >= MIN_SEPARATION && even && populated {
+            best = Some((m, centres, sep));
+        }
+    }
+    let (m, centres, separation) = best?;
+    let shift = (centres[m - 1] - centres[0]) / (m - 1) as f64;
+    let near =
+        smooth.iter().filter(|&&v| centres.iter().any(|c| (v - c).abs() <= shift / 4.0)).count();
+    let sharpness = sharpness(&f, &centres_at, &values, sps, shift);
+    Some(Fsk {
+        sharpness,
+        symbol_rate_hz: symbol_rate,
+        tones: m as u32,
+        shift_hz: shift,
+        separation,
+        dwell: near as f64 / smooth.len() as f64,
+        symbols: values.len(),
+    })
+}
+
+/// See [`Fsk::sharpness`]: for neighbouring symbol centres whose values differ by half a shift
+/// or more, (f(m + T/6) − f(m − T/6)) / (v[k+1] − v[k]) at their midpoint m, on the raw
+/// instantaneous frequency (only the channel filter, 2.4 symbol rates wide or more for FSK,
+/// smooths the jump); the median over the transitions, so the clicks of noise do not count.
+fn sharpness(f: &[f64], centres: &[f64], values: &[f64], sps: f64, shift: f64) -> f64 {
+    let at = |t: f64| -> Option<f64> {
+        if t < 0.0 || t >= (f.len() - 1) as f64 {
+            return None;
+        }
+        let i = t.floor() as usize;
+        let u = t - i as f64;
+        Some(f[i] * (1.0 - u) + f[i + 1] * u)
+    };
+    let mut ratios = Vec::new();
+    for k in 0..centres.len().saturating_sub(1) {
+        let step = values[k + 1] - values[k];
+        if step.abs() < shift / 2.0 {
+            continue;
+        }
+        let m = 0.5 * (centres[k] + centres[k + 1]);
+        if let (Some(a), Some(b)) = (at(m - sps / 6.0), at(m + sps / 6.0)) {
+            ratios.push((b - a) / step);
+        }
+    }
+    quantile(&ratios, 0.5)
+}
+
+/// Lloyd's k-means in one dimension, started at the quantiles: sorted centres, pooled
+/// within-cluster standard deviation and each cluster's share of the values.
+fn kmeans_1d(v: &[f64], k: usize) -> (Vec<f64>, f64, Vec<f64>) {
+    let mut sorted = v.to_vec();
+    sorted.sort_by(f64::total_cmp);
+    let mut centres: Vec<f64> = (0..k)
+        .map(|i| sorted[((i as f64 + 0.5) / k as f64 * sorted.len() as f64) as usize])
+        .collect();
+    let mut assign = vec![0usize; v.len()];
+    for _ in 0..30 {
+        for (a, &x) in assign.iter_mut().zip(v) {
+            *a = (0..k)
+                .min_by(|&i, &j| (x - centres[i]).abs().total_cmp(&(x - centres[j]).abs()))
+                .unwrap_or(0);
+        }
+        let mut sum = vec![0.0; k];
+        let mut count = vec![0usize; k];
+        for (&a, &x) in assign.iter().zip(v) {
+            sum[a] += x;
+            count[a] += 1;
+        }
+        for i in 0..k {
+            if count[i] > 0 {
+                centres[i] = sum[i] / count[i] as f64;
+            }
+        }
+    }
+    let ss: f64 = assign.iter().zip(v).map(|(&a, &x)| (x - centres[a]).powi(2)).sum();
+    let mut shares = vec![0.0; k];
+    for &a in &assign {
+        shares[a] += 1.0 / v.len() as f64;
+    }
+    let mut order: Vec<usize> = (0..k).collect();
+    order.sort_by(|&i, &j| centres[i].total_cmp(&centres[j]));
+    let pooled = (ss / v.len() as f64).sqrt();
+    (
+        order.iter().map(|&i| centres[i]).collect(),
+        pooled,
+        order.iter().map(|&i| shares[i]).collect(),
+    )
+}

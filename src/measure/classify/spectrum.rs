@@ -1,0 +1,125 @@
+//! The few FFT helpers the classifier shares: a complex transform in place, the power spectrum of
+//! a real sequence, and the search for a spectral line with sub-bin interpolation.
+
+use num_complex::Complex64;
+use rustfft::FftPlanner;
+
+/// `a > b`, false when either is NaN: the guard for values that must be positive (or exceed
+/// a limit) before they divide or scale anything.
+pub(super) fn above(a: f64, b: f64) -> bool {
+    a > b
+}
+
+/// Forward (or inverse, unnormalised) FFT of `x` in place, any length (rustfft plans primes too).
+pub(super) fn fft(x: &mut [Complex64], inverse: bool) {
+    if x.is_empty() {
+        return;
+    }
+    let mut planner = FftPlanner::<f64>::new();
+    let plan =
+        if inverse { planner.plan_fft_inverse(x.len()) } else { planner.plan_fft_forward(x.len()) };
+    plan.process(x);
+}
+
+/// Signed frequency of bin `k` of an `n`-point FFT at `rate_hz`.
+pub(super) fn bin_hz(k: usize, n: usize, rate_hz: f64) -> f64 {
+    let k = if k >= n.div_ceil(2) { k as f64 - n as f64 } else { k as f64 };
+    k * rate_hz / n as f64
+}
+
+/// A spectral line found in a sequence.
+#[derive(Clone, Copy, Debug)]
+pub(super) struct Line {
+    /// Its frequency, Hz (interpolated between bins).
+    pub freq_hz: f64,
+    /// Peak power over the median power of the searched bins around it (64 bins of the
+    /// unpadded spectrum each side, the peak's main lobe left out): how far it stands out. For a
+    /// sequence with no line the bins are about exponential, and the largest of K bins over the
+    /// median is near ln K / ln 2 (about 10 for K = 1000).
+    pub prominence: f64,
+}
+
+/// The strongest line of the real sequence `x` (its mean removed) between `lo_hz` and `hi_hz`,
+/// at sample rate `rate_hz`. Zero-padded four times and interpolated with a parabola through
+/// the top three magnitudes, so the frequency is good to a small fraction of 1 / duration.
+pub(super) fn find_line(x: &[f64], rate_hz: f64, lo_hz: f64, hi_hz: f64) -> Option<Line> {
+    let z: Vec<Complex64> = x.iter().map(|&v| Complex64::new(v, 0.0)).collect();
+    find_line_complex(&z, rate_hz, lo_hz, hi_hz)
+}
+
+/// As [`find_line`] for a complex sequence (signed frequencies; the range may be negative).
+pub(super) fn find_line_complex(
+    x: &[Complex64],
+    rate_hz: f64,
+    lo_hz: f64,
+    hi_hz: f64,
+) -> Option<Line> {
+    let n = x.len();
+    if n < 8 || !above(hi_hz, lo_hz) || !above(rate_hz, 0.0) {
+        return None;
+    }
+    let mean = x.iter().sum::<Complex64>() / n as f64;
+    let m = (4 * n).next_power_of_two();
+    let mut buf = vec![Complex64::new(0.0, 0.0); m];
+    for (b, v) in buf.iter_mut().zip(x) {
+        *b = v - mean;
+    }
+    fft(&mut buf, false);
+    let bins: Vec<usize> = (0..m)
+        .filter(|&k| {
+            let f = bin_hz(k, m, rate_hz);
+            f >= lo_hz && f <= hi_hz
+        })
+        .collect();
+    if bins.len() < 3 {
+        return None;
+    }
+    let power = |k: usize| buf[k].norm_sqr();
+    let &peak = bins.iter().max_by(|&&a, &&b| power(a).total_cmp(&power(b)))?;
+    // Background: the median of the searched bins near the peak (its own main lobe left out),
+    // so a sloping continuous spectrum does not pass for a line.
+    let pos = bins.iter().position(|&k| k == peak).unwrap_or(0);
+    let (reach, lobe) = (256usize, 12usize);
+    let mut local: Vec<f64> = bins[pos.saturating_sub(reach)..(pos + reach + 1).min(bins.len())]
+        .iter()
+        .filter(|&&k| k.abs_diff(peak) > lobe)
+        .map(|&k| power(k))
+        .collect();
+    if local.len() < 8 {
+        local = bins.iter().map(|&k| power(k)).collect();
+    }
+    local.sort_by(f64::total_cmp);
+    let median = local[local.len() / 2];
+    let prominence = if median > 0.0 { power(peak) / median } else { f64::INFINITY };
+    let (a, b, c) = (buf[(peak + m - 1) % m].norm(), buf[peak].norm(), buf[(peak + 1) % m].norm());
+    let den = a - 2.0 * b + c;
+    let delta = if den.abs() > 0.0 { (0.5 * (a - c) / den).clamp(-0.5, 0.5) } else { 0.0 };
+    let freq_hz = bin_hz(peak, m, rate_hz) + delta * rate_hz / m as f64;
+    Some(Line { freq_hz, prominence })
+}
+
+/// The DFT of `x` at one frequency (Hz), normalised by the length: the mean of
+/// x[n]·e^(−j2πfn/rate).
+pub(super) fn dft_at(x: &[f64], rate_hz: f64, freq_hz: f64) -> Complex64 {
+    if x.is_empty() {
+        return Complex64::new(0.0, 0.0);
+    }
+    let w = -2.0 * std::f64::consts::PI * freq_hz / rate_hz;
+    let sum: Complex64 =
+        x.iter().enumerate().map(|(n, &v)| v * Complex64::from_polar(1.0, w * n as f64)).sum();
+    sum / x.len() as f64
+}
+
+/// The `q`-quantile (0..1) of `v` (sorted copy, nearest rank); 0 for an empty slice.
+pub(super) fn quantile(v: &[f64], q: f64) -> f64 {
+    if v.is_empty() {
+        return 0.0;
+    }
+    let mut s: Vec<f64> = v.iter().copied().filter(|x| x.is_finite()).collect();
+    if s.is_empty() {
+        return 0.0;
+    }
+    s.sort_by(f64::total_cmp);
+    let i = ((s.len() - 1) as f64 * q.clamp(0.0, 1.0)).round() as usize;
+    s[i]
+}
