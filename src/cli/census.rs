@@ -55,11 +55,11 @@ pub struct CensusArgs {
     pub emissions: EmissionOutArgs,
     /// Compare with an earlier inventory: the --json output of a census, or a file written by
     /// --save-baseline. Adds a section of changes (in --json, `changes`).
-    #[arg(long, value_name = "FILE.json")]
+    #[arg(long, value_name = "FILE.json", help_heading = super::change::CHANGE_HEADING)]
     pub baseline: Option<String>,
     /// Save this census as a baseline; if FILE exists (a baseline of the same span), this run
     /// is merged into it.
-    #[arg(long, value_name = "FILE.json")]
+    #[arg(long, value_name = "FILE.json", help_heading = super::change::CHANGE_HEADING)]
     pub save_baseline: Option<String>,
     #[command(flatten)]
     pub change: ChangeArgs,

@@ -5,8 +5,12 @@ use crate::measure::change::Thresholds;
 use anyhow::{bail, Result};
 use clap::Args;
 
+/// The help heading of the comparison's flags.
+pub const CHANGE_HEADING: &str = "Changes against a baseline";
+
 /// When a difference from the baseline is a change. Defaults: see each flag.
 #[derive(Args, Debug, Clone)]
+#[command(next_help_heading = CHANGE_HEADING)]
 pub struct ChangeArgs {
     /// A level (power, floor) that moved by at least this many dB has changed.
     #[arg(long, value_name = "DB", default_value_t = 3.0, value_parser = parse_number)]
