@@ -3,6 +3,7 @@
 
 pub mod band;
 pub mod census;
+pub mod classify;
 pub mod noise;
 pub mod occupancy;
 pub mod signals;

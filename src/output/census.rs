@@ -108,6 +108,7 @@ pub fn emission_note(e: &Emission, label: String, emitter_center_hz: Option<f64>
         obw_hz: obw,
         channel_center_hz: emitter_center_hz,
         partial: f.partial,
+        class: None,
     }
 }
 

@@ -220,7 +220,7 @@ impl<W: Write> OccupancyLog<W> {
             }
             Event::Emission(e) => {
                 let l = &self.plan.channels[e.channel];
-                Some(Record::Emission(EmissionRecord {
+                let mut r = EmissionRecord {
                     channel: l.name.clone(),
                     center_hz: l.center_hz,
                     t_start_s: c.seconds(e.start_sample),
@@ -233,7 +233,13 @@ impl<W: Write> OccupancyLog<W> {
                     obw_hz: e.obw_hz.map(|w| round_to(w, 1)),
                     samples: e.samples,
                     partial: e.partial,
-                }))
+                    class: None,
+                    class_confidence: None,
+                    class_params: None,
+                    designator: None,
+                };
+                r.set_class(e.class.as_deref());
+                Some(Record::Emission(r))
             }
             Event::Opened(_) => None,
         }
@@ -463,6 +469,43 @@ mod tests {
         assert_eq!(stop["iq_samples"], 600_000);
         assert_eq!(stop["dropped_samples"], 40_000);
         assert_eq!(stop["reason"], "end_of_input");
+    }
+
+    /// What every classified record holds, whatever the classifier answers: a class of the
+    /// set, a confidence in 0..1, an object of parameters, and a designator that begins with
+    /// the bandwidth code of the OBW next to it (ITU RR Appendix 1).
+    pub(crate) fn assert_class_fields(r: &Value, obw_key: &str) {
+        use crate::measure::classify::bandwidth_code;
+        const CLASSES: [&str; 10] =
+            ["cw", "am", "fm", "fsk", "psk", "qam", "ofdm", "pulsed", "noise", "unknown"];
+        assert!(CLASSES.contains(&r["class"].as_str().unwrap_or("-")), "{r}");
+        let c = r["class_confidence"].as_f64().unwrap_or(-1.0);
+        assert!((0.0..=1.0).contains(&c), "{r}");
+        assert!(r["class_params"].is_object(), "{r}");
+        let code = bandwidth_code(r[obw_key].as_f64().unwrap());
+        let d = r["designator"].as_str().unwrap();
+        assert!(d.starts_with(&code) && d.len() > code.len(), "{d} for {code}: {r}");
+    }
+
+    #[test]
+    fn emission_records_carry_their_class_and_designator() {
+        let on = |i: u64| (100_000..400_000).contains(&i);
+        let x = band(600_000, &[Keyed { offset_hz: 20e3, level_dbfs: -30.0, on: &on }], 3);
+        let (setup, plan, info) = setup(1.0);
+        let writer = LogWriter::new(Vec::new(), LogFormat::JsonLines, true).unwrap();
+        let mut log = OccupancyLog::new(writer, &plan, &setup);
+        let mut spec = spec(&setup, &info, None);
+        spec.classify = true;
+        let mut run = Run::new(spec, vec![&mut log]);
+        for start in (0..600_000).step_by(10_000) {
+            run.feed(&Block::new(start as u64, x[start..start + 10_000].to_vec())).unwrap();
+        }
+        run.finish(StopReason::EndOfInput).unwrap();
+        drop(run);
+        let recs = lines(log.into_writer().unwrap());
+        let em: Vec<&Value> = recs.iter().filter(|r| r["kind"] == "emission").collect();
+        assert_eq!(em.len(), 1, "{em:?}");
+        assert_class_fields(em[0], "obw_hz");
     }
 
     #[test]
