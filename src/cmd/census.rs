@@ -14,7 +14,9 @@ use crate::cli::CensusConfig;
 use crate::measure::census::{Census, CensusSettings};
 use crate::measure::occupancy::DEFAULT_INTERVAL_S;
 use crate::messages::note;
-use crate::output::census::{capture_list, to_json_value, to_plan, to_table, CensusConsumer};
+use crate::output::census::{
+    add_kinds, capture_list, to_json_value, to_plan, to_table_with_kinds, CensusConsumer,
+};
 use crate::output::progress::{Progress, StatusLine};
 use crate::output::sigmf::outputs::{annotated_note, SigmfOutputs, SigmfRequest};
 use crate::output::sigmf::write as sigmf_write;
@@ -70,7 +72,8 @@ pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
         &inputs,
         opts.block_len,
     )?;
-    let mut census = CensusConsumer::new(Census::new(settings));
+    let mut census =
+        CensusConsumer::new(Census::new(settings)).with_kinds(info.sample_rate_hz, info.center_hz);
     if let Some(path) = &cfg.sigmf.annotate {
         census =
             census.with_annotations(sigmf_out.annotation_writer(path, &cfg.input, &info, &inputs)?);
@@ -113,12 +116,13 @@ pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
     };
     let text = if cfg.json {
         let mut v = to_json_value(result);
+        add_kinds(&mut v, &census.emitter_kinds);
         if cfg.sigmf.capture.is_some() {
             v["captures"] = capture_list(&census.captures);
         }
         format!("{v}\n")
     } else {
-        to_table(result, &sanitize(&info.label))
+        to_table_with_kinds(result, &sanitize(&info.label), &census.emitter_kinds)
     };
     let mut out = sink::open("-", false, "census")?.out;
     out.write_all(text.as_bytes())?;

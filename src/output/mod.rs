@@ -8,6 +8,7 @@
 //! - [`progress`], [`samples`] (IQ written to files and pipes) and [`sink`] (where output goes).
 
 pub mod census;
+pub mod class_fields;
 pub mod log;
 pub mod picture;
 pub mod progress;

@@ -49,6 +49,13 @@ impl Kinds {
         Kinds::with_history(IqHistory::for_rate(rate_hz, HISTORY_SECONDS), rate_hz, center_hz)
     }
 
+    /// A history of only what one classification takes ([`Kinds::take_max`]), for
+    /// [`Kinds::classify_newest`] at the end of the input.
+    pub fn newest_only(rate_hz: f64, center_hz: f64) -> Kinds {
+        let k = Kinds::with_history(IqHistory::new(1), rate_hz, center_hz);
+        Kinds::with_history(IqHistory::new(k.take_max()), rate_hz, center_hz)
+    }
+
     pub fn with_history(history: IqHistory, rate_hz: f64, center_hz: f64) -> Kinds {
         Kinds { history, rate_hz, center_hz, buf: Vec::new() }
     }
@@ -76,8 +83,22 @@ impl Kinds {
     /// Classifies the emission `span` from what the history holds of it (nothing held: the
     /// classifier says it had too little).
     pub fn classify(&mut self, span: &Span) -> Classification {
+        let range = self.cut(span);
+        self.classify_range(range, span)
+    }
+
+    /// Classifies what is on the air at `center_hz` (`obw_hz` wide) in the newest samples held
+    /// (at most [`Kinds::take_max`]): for a listing made once the input is over.
+    pub fn classify_newest(&mut self, center_hz: f64, obw_hz: f64) -> Classification {
+        let (start, end) = (self.history.first(), self.history.end());
+        let span = Span { start, end, center_hz, obw_hz, noise_psd: None };
+        let range = self.history.cut(start, end, self.take_max(), Part::Last);
+        self.classify_range(range, &span)
+    }
+
+    fn classify_range(&mut self, range: Option<(u64, u64)>, span: &Span) -> Classification {
         self.buf.clear();
-        if let Some((a, b)) = self.cut(span) {
+        if let Some((a, b)) = range {
             self.history.copy_range(a, b, &mut self.buf);
         }
         classify(&EmissionIq {
@@ -86,29 +107,6 @@ impl Kinds {
             offset_hz: span.center_hz - self.center_hz,
             obw_hz: span.obw_hz,
             noise_psd: span.noise_psd,
-        })
-    }
-
-    /// Classifies what is on the air at `center_hz` (`obw_hz` wide) in the newest samples held
-    /// (at most [`Kinds::take_max`]): for a listing made once the input is over.
-    pub fn classify_newest(&mut self, center_hz: f64, obw_hz: f64) -> Classification {
-        let span = Span {
-            start: self.history.first(),
-            end: self.history.end(),
-            center_hz,
-            obw_hz,
-            noise_psd: None,
-        };
-        self.buf.clear();
-        if let Some((a, b)) = self.history.cut(span.start, span.end, self.take_max(), Part::Last) {
-            self.history.copy_range(a, b, &mut self.buf);
-        }
-        classify(&EmissionIq {
-            samples: &self.buf,
-            rate_hz: self.rate_hz,
-            offset_hz: center_hz - self.center_hz,
-            obw_hz,
-            noise_psd: None,
         })
     }
 }

@@ -33,7 +33,7 @@
 //!   bandwidth of its noise-corrected average spectrum, ITU-R SM.328; `null` if nothing stood
 //!   above the noise), `samples` (occupied samples), `partial` (cut short by the end of the run or
 //!   by dropped input: it may have gone on), and its kind from its own samples (see
-//!   [`crate::pipeline::kinds`]; `null` without an OBW): `class` (`cw`, `am`, `fm`, `fsk`, `psk`,
+//!   [`crate::pipeline::kinds`]; absent without an OBW): `class` (`cw`, `am`, `fm`, `fsk`, `psk`,
 //!   `qam`, `ofdm`, `pulsed`, `noise` or `unknown`), `class_confidence` (0..1), `class_params`
 //!   (an object of the parameters that apply: `symbol_rate_hz`, `tones`, `shift_hz`,
 //!   `psk_order`, `deviation_hz`, `mod_depth`, `subcarrier_spacing_hz`, `pulse_width_s`,
@@ -235,15 +235,17 @@ mod tests {
                 obw_hz: None,
                 samples: 32,
                 partial: true,
-                class: Some("fsk".into()),
-                class_confidence: Some(0.8),
-                class_params: Some(crate::measure::classify::ClassParams {
-                    symbol_rate_hz: Some(1200.0),
-                    tones: Some(2),
-                    shift_hz: Some(1000.0),
-                    ..Default::default()
+                classified: Some(crate::output::class_fields::ClassFields {
+                    class: "fsk".into(),
+                    class_confidence: 0.8,
+                    class_params: crate::measure::classify::ClassParams {
+                        symbol_rate_hz: Some(1200.0),
+                        tones: Some(2),
+                        shift_hz: Some(1000.0),
+                        ..Default::default()
+                    },
+                    designator: "2K20F".into(),
                 }),
-                designator: Some("2K20F".into()),
             }),
             Record::Dropped(DroppedRecord {
                 t_start_s: 2.0,

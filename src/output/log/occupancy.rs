@@ -2,6 +2,7 @@
 //! and gap as it becomes final, then why the run stopped. The record schema is in [`crate::output::log`].
 
 use crate::measure::occupancy::{Event, FLOOR_MEMORY_S, FLOOR_SMOOTHING_S, OBW_PERCENT};
+use crate::output::class_fields::ClassFields;
 use crate::output::log::rotation::Rotation;
 use crate::output::log::{
     CaptureRecord, ChannelRecord, DroppedRecord, EmissionRecord, IntervalRecord, LogWriter, Record,
@@ -220,7 +221,7 @@ impl<W: Write> OccupancyLog<W> {
             }
             Event::Emission(e) => {
                 let l = &self.plan.channels[e.channel];
-                let mut r = EmissionRecord {
+                Some(Record::Emission(EmissionRecord {
                     channel: l.name.clone(),
                     center_hz: l.center_hz,
                     t_start_s: c.seconds(e.start_sample),
@@ -233,13 +234,8 @@ impl<W: Write> OccupancyLog<W> {
                     obw_hz: e.obw_hz.map(|w| round_to(w, 1)),
                     samples: e.samples,
                     partial: e.partial,
-                    class: None,
-                    class_confidence: None,
-                    class_params: None,
-                    designator: None,
-                };
-                r.set_class(e.class.as_deref());
-                Some(Record::Emission(r))
+                    classified: e.class.as_deref().map(ClassFields::of),
+                }))
             }
             Event::Opened(_) => None,
         }

@@ -1,7 +1,7 @@
 //! Serialize-only record types of the occupancy log; the schema is documented in
 //! [`crate::output::log`].
 
-use crate::measure::classify::{ClassParams, Classification};
+use crate::output::class_fields::ClassFields;
 use serde::Serialize;
 
 /// A record as written: the record, then its id. `run` names the run of `log` that wrote it
@@ -103,25 +103,10 @@ pub struct EmissionRecord {
     pub obw_hz: Option<f64>,
     pub samples: u64,
     pub partial: bool,
-    /// Its kind (`cw`, `am`, `fm`, `fsk`, `psk`, `qam`, `ofdm`, `pulsed`, `noise`, `unknown`),
-    /// from its own samples ([`crate::measure::classify`]); `null` when no OBW was measured.
-    pub class: Option<String>,
-    /// 0..1.
-    pub class_confidence: Option<f64>,
-    /// The parameters that apply to the class (`symbol_rate_hz`, `shift_hz`, …).
-    pub class_params: Option<ClassParams>,
-    /// ITU RR Appendix 1 emission designator: the OBW's bandwidth code and the class's symbol.
-    pub designator: Option<String>,
-}
-
-impl EmissionRecord {
-    /// Sets the four class fields from a classification.
-    pub fn set_class(&mut self, c: Option<&Classification>) {
-        self.class = c.map(|c| c.class.as_str().to_string());
-        self.class_confidence = c.map(|c| (c.confidence * 1000.0).round() / 1000.0);
-        self.class_params = c.map(|c| c.params.clone());
-        self.designator = c.map(|c| c.designator.clone());
-    }
+    /// Its kind from its own samples ([`crate::pipeline::kinds`]): `class`,
+    /// `class_confidence`, `class_params`, `designator`; absent when no OBW was measured.
+    #[serde(flatten)]
+    pub classified: Option<ClassFields>,
 }
 
 /// Input samples missing from the measurement: lost because the DSP fell behind a live source,

@@ -22,6 +22,7 @@
 
 use crate::measure::classify::Classification;
 use crate::measure::occupancy::Event;
+use crate::output::class_fields::ClassFields;
 use crate::output::sigmf::write::{self as sigmf_write, NAMESPACE};
 use crate::pipeline::{Consumer, RunEnd, RunInfo};
 use crate::plan::Plan;
@@ -330,15 +331,11 @@ pub fn annotation(n: &EmissionNote, start: u64, count: u64) -> Map<String, Value
     }
     a.insert(format!("{NAMESPACE}:partial"), n.partial.into());
     if let Some(c) = &n.class {
-        a.insert(format!("{NAMESPACE}:class"), c.class.as_str().into());
-        let confidence = (c.confidence * 1000.0).round() / 1000.0;
-        if confidence.is_finite() {
-            a.insert(format!("{NAMESPACE}:class_confidence"), confidence.into());
+        if let Ok(Value::Object(fields)) = serde_json::to_value(ClassFields::of(c)) {
+            for (k, v) in fields {
+                a.insert(format!("{NAMESPACE}:{k}"), v);
+            }
         }
-        if let Ok(params) = serde_json::to_value(&c.params) {
-            a.insert(format!("{NAMESPACE}:class_params"), params);
-        }
-        a.insert(format!("{NAMESPACE}:designator"), c.designator.clone().into());
     }
     a
 }
