@@ -9,10 +9,14 @@
 
 use super::history::{IqHistory, Part, HISTORY_SECONDS};
 use super::{Consumer, RunInfo};
-use crate::measure::classify::{classify, Classification, EmissionIq};
+use crate::measure::classify::{classify, Class, Classification, EmissionIq};
 use crate::source::reader::Block;
 use num_complex::Complex32;
 use std::io;
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::{Arc, Mutex, PoisonError};
+use std::thread::JoinHandle;
+use std::time::{Duration, Instant};
 
 /// Longest stretch of one emission classified, seconds.
 pub const TAKE_S: f64 = 0.5;
@@ -123,9 +127,167 @@ impl Consumer for Kinds {
     }
 }
 
+/// Seconds of the newest input the live monitor classifies a signal from.
+pub const LIVE_TAKE_S: f64 = 0.1;
+/// Most samples of it (0.1 s up to 20 MS/s).
+pub const LIVE_TAKE_MAX: usize = 1 << 21;
+/// Share of one core the live classifier may use: after each classification it rests three
+/// times as long as it worked.
+const LIVE_REST: u32 = 3;
+/// How often each listed signal is classified again, at most.
+const LIVE_CYCLE: Duration = Duration::from_secs(1);
+
+/// What the live worker and the run's thread share.
+struct LiveShared {
+    history: Mutex<IqHistory>,
+    /// Signals to classify: centre and OBW, Hz.
+    want: Mutex<Vec<(f64, f64)>>,
+    /// Their kinds as last found: centre, OBW, class.
+    got: Mutex<Vec<(f64, f64, Class)>>,
+    stop: AtomicBool,
+    rate_hz: f64,
+    center_hz: f64,
+}
+
+/// The run's side of the live classifier: keeps the newest samples of every block (a copy
+/// under a lock the worker holds only while it copies out one signal's samples).
+pub struct LiveTap(Arc<LiveShared>);
+
+impl Consumer for LiveTap {
+    fn block(&mut self, block: &Block) -> io::Result<()> {
+        lock(&self.0.history).push(block.start, &block.samples);
+        Ok(())
+    }
+}
+
+/// The screen's side: says which signals are listed and reads their kinds. Classification
+/// runs on a thread of its own, each listed signal about once a second from the newest
+/// [`LIVE_TAKE_S`] of input, and rests three times as long as it works, so it takes at most a
+/// quarter of one core whatever the rate (more signals are refreshed less often).
+pub struct LiveKinds {
+    shared: Arc<LiveShared>,
+    thread: Option<JoinHandle<()>>,
+}
+
+/// The two sides of a live classifier for a stream at `rate_hz` centred on `center_hz`.
+pub fn live(rate_hz: f64, center_hz: f64) -> io::Result<(LiveTap, LiveKinds)> {
+    let take = ((LIVE_TAKE_S * rate_hz).ceil() as usize).clamp(1, LIVE_TAKE_MAX);
+    let shared = Arc::new(LiveShared {
+        history: Mutex::new(IqHistory::new(take)),
+        want: Mutex::new(Vec::new()),
+        got: Mutex::new(Vec::new()),
+        stop: AtomicBool::new(false),
+        rate_hz,
+        center_hz,
+    });
+    let worker = shared.clone();
+    let thread = std::thread::Builder::new()
+        .name("kinds".into())
+        .spawn(move || live_worker(&worker, take))?;
+    Ok((LiveTap(shared.clone()), LiveKinds { shared, thread: Some(thread) }))
+}
+
+impl LiveKinds {
+    /// The signals listed now (centre and OBW, Hz).
+    pub fn want(&self, signals: impl Iterator<Item = (f64, f64)>) {
+        let mut w = lock(&self.shared.want);
+        w.clear();
+        w.extend(signals);
+    }
+
+    /// The kinds found so far: centre, OBW and class of each signal classified.
+    pub fn latest(&self) -> Vec<(f64, f64, Class)> {
+        lock(&self.shared.got).clone()
+    }
+}
+
+impl Drop for LiveKinds {
+    fn drop(&mut self) {
+        self.shared.stop.store(true, Ordering::Relaxed);
+        if let Some(t) = self.thread.take() {
+            let _ = t.join();
+        }
+    }
+}
+
+fn lock<T>(m: &Mutex<T>) -> std::sync::MutexGuard<'_, T> {
+    m.lock().unwrap_or_else(PoisonError::into_inner)
+}
+
+fn live_worker(s: &LiveShared, take: usize) {
+    let mut buf = Vec::with_capacity(take);
+    let stopped = || s.stop.load(Ordering::Relaxed);
+    while !stopped() {
+        let cycle = Instant::now();
+        let want = lock(&s.want).clone();
+        for &(center_hz, obw_hz) in &want {
+            if stopped() {
+                return;
+            }
+            let worked = Instant::now();
+            buf.clear();
+            {
+                let h = lock(&s.history);
+                if let Some((a, b)) = h.cut(h.first(), h.end(), take, Part::Last) {
+                    h.copy_range(a, b, &mut buf);
+                }
+            }
+            let c = classify(&EmissionIq {
+                samples: &buf,
+                rate_hz: s.rate_hz,
+                offset_hz: center_hz - s.center_hz,
+                obw_hz,
+                noise_psd: None,
+            });
+            {
+                let mut got = lock(&s.got);
+                got.retain(|g| (g.0 - center_hz).abs() > 0.5 * obw_hz.max(g.1));
+                got.push((center_hz, obw_hz, c.class));
+            }
+            rest(worked.elapsed() * LIVE_REST, &stopped);
+        }
+        lock(&s.got).retain(|g| want.iter().any(|w| (g.0 - w.0).abs() <= 0.5 * w.1.max(g.1)));
+        rest(LIVE_CYCLE.saturating_sub(cycle.elapsed()), &stopped);
+    }
+}
+
+/// Sleeps `d`, waking every 50 ms to see whether to stop.
+fn rest(d: Duration, stopped: &dyn Fn() -> bool) {
+    let until = Instant::now() + d;
+    while !stopped() {
+        let now = Instant::now();
+        if now >= until {
+            return;
+        }
+        std::thread::sleep((until - now).min(Duration::from_millis(50)));
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn the_live_worker_classifies_each_listed_signal_and_forgets_the_others() {
+        let (mut tap, kinds) = live(1e6, 100e6).unwrap();
+        let x = crate::testkit::noise(20_000, 1e-4, 5);
+        tap.block(&Block::new(0, x)).unwrap();
+        kinds.want([(100.1e6, 10e3), (99.8e6, 20e3)].into_iter());
+        let found = |k: &LiveKinds| k.latest().len();
+        let t0 = Instant::now();
+        while found(&kinds) < 2 && t0.elapsed() < Duration::from_secs(10) {
+            std::thread::sleep(Duration::from_millis(10));
+        }
+        let got = kinds.latest();
+        assert_eq!(got.len(), 2, "{got:?}");
+        assert!(got.iter().any(|g| g.0 == 100.1e6) && got.iter().any(|g| g.0 == 99.8e6));
+        kinds.want([(99.8e6, 20e3)].into_iter());
+        let t0 = Instant::now();
+        while found(&kinds) > 1 && t0.elapsed() < Duration::from_secs(10) {
+            std::thread::sleep(Duration::from_millis(10));
+        }
+        assert_eq!(kinds.latest().iter().map(|g| g.0).collect::<Vec<_>>(), [99.8e6]);
+    }
 
     #[test]
     fn an_emission_is_cut_from_its_start_or_its_newest_part() {
