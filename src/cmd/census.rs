@@ -14,7 +14,9 @@ use crate::cli::CensusConfig;
 use crate::measure::census::{Census, CensusSettings};
 use crate::measure::occupancy::DEFAULT_INTERVAL_S;
 use crate::messages::note;
-use crate::output::census::{capture_list, to_json_value, to_plan, to_table, CensusConsumer};
+use crate::output::census::{
+    add_kinds, capture_list, to_json_value, to_plan, to_table_with_kinds, CensusConsumer,
+};
 use crate::output::change::BaselineStep;
 use crate::output::progress::{Progress, StatusLine};
 use crate::output::sigmf::outputs::{annotated_note, SigmfOutputs, SigmfRequest};
@@ -76,7 +78,8 @@ pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
         &inputs,
         opts.block_len,
     )?;
-    let mut census = CensusConsumer::new(Census::new(settings));
+    let mut census =
+        CensusConsumer::new(Census::new(settings)).with_kinds(info.sample_rate_hz, info.center_hz);
     if let Some(path) = &cfg.sigmf.annotate {
         census =
             census.with_annotations(sigmf_out.annotation_writer(path, &cfg.input, &info, &inputs)?);
@@ -118,13 +121,19 @@ pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
         );
     };
     let mut v = to_json_value(result);
-    let mut text = if cfg.json { String::new() } else { to_table(result, &sanitize(&info.label)) };
+    // The kinds go in before the comparison, which reads today's census from this JSON.
+    add_kinds(&mut v, &census.emitter_kinds);
+    let mut text = if cfg.json {
+        String::new()
+    } else {
+        to_table_with_kinds(result, &sanitize(&info.label), &census.emitter_kinds)
+    };
     let saved = baseline.apply(&mut v, &mut text, cfg.json)?;
     if cfg.json {
         if cfg.sigmf.capture.is_some() {
             v["captures"] = capture_list(&census.captures);
         }
-        text = format!("{v}\n");
+        text = format!("{v}\n")
     }
     let mut out = sink::open("-", false, "census")?.out;
     out.write_all(text.as_bytes())?;

@@ -73,6 +73,8 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
     }
     let mut spec = RunSpec::new(info.clone(), setup.engine.clone(), cfg.dsp.threads);
     spec.tracker = Some(setup.tracker());
+    // Each emission's kind, from its samples when it ends (bounded: see pipeline::kinds).
+    spec.classify = true;
     if cfg.input.start_time.is_some() {
         spec.time_source = TimeSource::Option;
     } else if spec.start_time.is_none() && !info.live {

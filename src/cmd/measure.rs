@@ -2,10 +2,12 @@
 
 use crate::cli::MeasureConfig;
 use crate::measure::occupancy::{ChannelDef, DEFAULT_HANG_S, DEFAULT_INTERVAL_S};
+use crate::output::class_fields::ClassFields;
 use crate::output::report::on_air::OnAirBands;
 use crate::output::report::whole::WholeInput;
 use crate::output::report::{build_report, channel_rows, InputCounts, ReportSettings};
 use crate::output::sink;
+use crate::pipeline::kinds::Kinds;
 use crate::pipeline::occupancy::{OccupancyRequest, OccupancySetup};
 use crate::pipeline::{open_input, run_to_end, Run, RunSpec};
 use crate::source::reader::ReaderOptions;
@@ -45,8 +47,11 @@ pub fn run(cfg: MeasureConfig) -> Result<ExitCode> {
     let mut on_air = OnAirBands::new(bands.collect(), &setup.timing);
     spec.check_work()?;
     let mut whole = WholeInput::new(plan.channels.len());
+    // The peaks' kinds come from the last samples of the input (they are found at its end).
+    let mut kinds = Kinds::newest_only(info.sample_rate_hz, info.center_hz);
     let opts = ReaderOptions { max_samples, skip_samples, ..Default::default() };
-    let outcome = run_to_end(src, opts, Run::new(spec, vec![&mut whole, &mut on_air]), None)?;
+    let outcome =
+        run_to_end(src, opts, Run::new(spec, vec![&mut whole, &mut on_air, &mut kinds]), None)?;
     if outcome.samples_read == 0 && skip_samples > 0 {
         bail!(
             "the input '{}' ends before the {} s that --skip passes over; skip less",
@@ -81,6 +86,9 @@ pub fn run(cfg: MeasureConfig) -> Result<ExitCode> {
     };
     let counts = InputCounts { samples: whole.samples, issues, dropped: outcome.reader_dropped };
     let mut report = build_report(&settings, &info.label, &spectrum, &counts)?;
+    for p in &mut report.peaks {
+        p.classified = Some(ClassFields::of(&kinds.classify_newest(p.freq_hz, p.obw_hz)));
+    }
     for (row, f) in report.bands.iter_mut().zip(on_air.figures(cfg.obw_percent, cfg.xdb)) {
         row.set_on_air(&f);
     }

@@ -12,6 +12,7 @@ use crate::output::sigmf::outputs::{recorded_note, recorder};
 use crate::output::sink;
 use crate::pipeline::clock::Clock;
 use crate::pipeline::input::live_block_len;
+use crate::pipeline::kinds::live;
 use crate::pipeline::latest::RowFeed;
 use crate::pipeline::{open_input, Consumer, Input, RunSpec};
 use crate::plan::{Plan, DEFAULT_THRESHOLD_DB};
@@ -68,7 +69,11 @@ pub fn run(cfg: WatchConfig) -> Result<ExitCode> {
         cfg.record.as_deref().map(|r| recorder(r, &cfg.input, &info, live_block_len(rate)));
     let recorder = recorder.transpose()?;
     let status = recorder.as_ref().map(|r| (r.status(), r.meta_path().to_path_buf()));
-    let extra = recorder.into_iter().map(|r| Box::new(r) as Box<dyn Consumer + Send>).collect();
+    let mut extra: Vec<Box<dyn Consumer + Send>> =
+        recorder.into_iter().map(|r| Box::new(r) as Box<dyn Consumer + Send>).collect();
+    // Each listed signal's kind, classified on a thread of its own (pipeline::kinds).
+    let (tap, kinds) = live(rate, info.center_hz)?;
+    extra.push(Box::new(tap));
     let feed = RowFeed::spawn_with(input, spec, extra)?;
     let summary = SourceSummary {
         label: sanitize(&info.label),
@@ -91,7 +96,8 @@ pub fn run(cfg: WatchConfig) -> Result<ExitCode> {
     let marks = marks(&cfg.plan);
     let mut app = App::new(summary, cfg.rows, depth, cfg.ref_offset, marks, Instant::now())
         .with_detection(cfg.detection)
-        .with_files_dir(&cfg.evidence_dir);
+        .with_files_dir(&cfg.evidence_dir)
+        .with_kinds(kinds);
     if let Some(path) = &cfg.alarm_log {
         app = app.with_alarm_log(AlarmLog::new(sink::open(path, true, "alarm log")?.out));
     }

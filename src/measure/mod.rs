@@ -9,6 +9,7 @@ pub mod noise;
 pub mod occupancy;
 pub mod signals;
 pub mod stats;
+pub mod vote;
 
 pub use band::{
     band_power, occupied_bandwidth, occupied_bandwidth_of, xdb_bandwidth, BinRun, Edges,

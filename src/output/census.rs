@@ -6,10 +6,14 @@ use crate::measure::census::floor::FloorProfile;
 use crate::measure::census::{
     frequency_name, Attributed, Census, CensusEvent, CensusResult, Emission, EmitterFigures,
 };
+use crate::measure::classify::{Class, Classification};
+use crate::measure::vote::{EmitterKind, Vote};
 use crate::output::log::CaptureRecord;
 use crate::output::sigmf::annotate::{comment, AnnotateSummary, AnnotationWriter, EmissionNote};
 use crate::output::sigmf::capture::Trigger;
+use crate::pipeline::kinds::{Kinds, Span};
 use crate::pipeline::{Consumer, Flow, GapCause, Letter, Post, RunEnd, RunInfo};
+use crate::source::reader::Block;
 use serde_json::json;
 use std::collections::HashMap;
 use std::fmt::Write as _;
@@ -31,6 +35,23 @@ pub struct CensusConsumer {
     pub captures: Vec<CaptureRecord>,
     /// Names of the emissions open now, by track (their detected centre when they began).
     open: HashMap<u64, String>,
+    /// The samples emissions are classified from, when asked for.
+    kinds: Option<Kinds>,
+    /// Every emission classified as it ended.
+    classified: Vec<Classified>,
+    /// RBW of the rows, for the noise density of an emission's band.
+    rbw_hz: f64,
+    /// Each emitter's kind (in the order of the result's emitters), once the run has finished.
+    pub emitter_kinds: Vec<EmitterKind>,
+}
+
+/// An emission classified when it ended, before the census grouped it into an emitter.
+#[derive(Clone, Debug)]
+struct Classified {
+    start: u64,
+    end: u64,
+    center_hz: f64,
+    class: Box<Classification>,
 }
 
 impl CensusConsumer {
@@ -43,7 +64,20 @@ impl CensusConsumer {
             triggers: None,
             captures: Vec::new(),
             open: HashMap::new(),
+            kinds: None,
+            classified: Vec::new(),
+            rbw_hz: 0.0,
+            emitter_kinds: Vec::new(),
         }
+    }
+
+    /// Classifies every emission as it ends, from the newest samples of the input (see
+    /// [`crate::pipeline::kinds`]), and each emitter by the vote of its emissions
+    /// ([`crate::measure::vote`]).
+    pub fn with_kinds(mut self, rate_hz: f64, center_hz: f64) -> CensusConsumer {
+        self.census = self.census.take().map(Census::with_events);
+        self.kinds = Some(Kinds::new(rate_hz, center_hz));
+        self
     }
 
     /// Writes each emission, labelled with its emitter's name, when the run ends.
@@ -65,10 +99,15 @@ impl CensusConsumer {
         self.result.as_ref()
     }
 
-    /// The census's events since the last call, as triggers.
+    /// The census's events since the last call, as triggers, and the emissions that ended
+    /// classified.
     fn pass_events(&mut self) {
-        let (Some(c), Some(q)) = (self.census.as_mut(), self.triggers.as_ref()) else { return };
+        let Some(c) = self.census.as_mut() else { return };
         for ev in c.take_events() {
+            if let (CensusEvent::Closed { emission, .. }, Some(k)) = (&ev, self.kinds.as_mut()) {
+                self.classified.push(classify_emission(k, emission, self.rbw_hz));
+            }
+            let Some(q) = self.triggers.as_ref() else { continue };
             match ev {
                 CensusEvent::Opened { id, start_sample, center_hz } => {
                     let label = frequency_name(center_hz);
@@ -83,6 +122,76 @@ impl CensusConsumer {
             }
         }
     }
+
+    /// Gives each emission of the result the classification of the one it grew from, and each
+    /// emitter the vote of its emissions.
+    fn settle_kinds(&mut self) -> Vec<Option<Box<Classification>>> {
+        let Some(r) = self.result.as_ref().filter(|_| self.kinds.is_some()) else {
+            return Vec::new();
+        };
+        let of_emission = match_classified(&r.emissions, &self.classified);
+        let mut votes = vec![Vote::default(); r.emitters.len()];
+        for (c, e) in self.classified.iter().zip(&of_emission) {
+            if let Some(e) = e {
+                votes[r.emissions[*e].emitter].add(&c.class, (c.end - c.start) as f64);
+            }
+        }
+        self.emitter_kinds =
+            votes.iter().zip(&r.emitters).map(|(v, e)| v.result(e.obw_hz)).collect();
+        // An emission joined from pieces takes the class of its longest piece.
+        let mut per_emission: Vec<Option<(u64, &Classified)>> = vec![None; r.emissions.len()];
+        for (c, e) in self.classified.iter().zip(&of_emission) {
+            if let Some(e) = *e {
+                let len = c.end - c.start;
+                if per_emission[e].map_or(true, |(l, _)| len > l) {
+                    per_emission[e] = Some((len, c));
+                }
+            }
+        }
+        per_emission.into_iter().map(|p| p.map(|(_, c)| c.class.clone())).collect()
+    }
+}
+
+/// Classifies a census emission from the samples held: its detected band's centre and width,
+/// and the noise density its figures were measured against.
+fn classify_emission(k: &mut Kinds, e: &Emission, rbw_hz: f64) -> Classified {
+    let width = e.high_hz - e.low_hz;
+    let noise_psd = Some(e.figures.noise / width.max(rbw_hz)).filter(|d| d.is_finite() && *d > 0.0);
+    let span = Span {
+        start: e.sample_start,
+        end: e.sample_start + e.sample_count,
+        center_hz: 0.5 * (e.low_hz + e.high_hz),
+        obw_hz: width,
+        noise_psd,
+    };
+    Classified {
+        start: span.start,
+        end: span.end,
+        center_hz: span.center_hz,
+        class: Box::new(k.classify(&span)),
+    }
+}
+
+/// For each classified emission, the emission of the result it is part of: the one it overlaps
+/// longest in time whose band holds its centre (`None`: the census left it out, or its pieces
+/// were attributed elsewhere).
+fn match_classified(emissions: &[Emission], classified: &[Classified]) -> Vec<Option<usize>> {
+    classified
+        .iter()
+        .map(|c| {
+            emissions
+                .iter()
+                .enumerate()
+                .filter(|(_, e)| e.low_hz <= c.center_hz && c.center_hz <= e.high_hz)
+                .map(|(i, e)| {
+                    let end = e.sample_start + e.sample_count;
+                    (i, end.min(c.end).saturating_sub(e.sample_start.max(c.start)))
+                })
+                .filter(|&(_, overlap)| overlap > 0)
+                .max_by_key(|&(_, overlap)| overlap)
+                .map(|(i, _)| i)
+        })
+        .collect()
 }
 
 /// A census emission as an annotation: its detected band, levels and OBW; `emitter_center_hz`
@@ -109,6 +218,7 @@ pub fn emission_note(e: &Emission, label: String, emitter_center_hz: Option<f64>
         obw_hz: obw,
         channel_center_hz: emitter_center_hz,
         partial: f.partial,
+        class: None,
     }
 }
 
@@ -126,7 +236,15 @@ impl Consumer for CensusConsumer {
         Ok(())
     }
 
+    fn block(&mut self, block: &Block) -> io::Result<()> {
+        if let Some(k) = self.kinds.as_mut() {
+            k.push(block.start, &block.samples);
+        }
+        Ok(())
+    }
+
     fn row(&mut self, row: &Spectrum) -> io::Result<Flow> {
+        self.rbw_hz = row.rbw_hz;
         if let Some(c) = self.census.as_mut() {
             c.push(row);
         }
@@ -155,11 +273,14 @@ impl Consumer for CensusConsumer {
         if let Some(c) = self.census.take() {
             self.result = c.finish(end.end_sample);
         }
+        let emission_kinds = self.settle_kinds();
         if let Some(mut w) = self.annotations.take() {
             if let Some(r) = &self.result {
-                for e in &r.emissions {
+                for (i, e) in r.emissions.iter().enumerate() {
                     let emitter = &r.emitters[e.emitter];
-                    w.push(emission_note(e, emitter.name.clone(), Some(emitter.center_hz)));
+                    let mut note = emission_note(e, emitter.name.clone(), Some(emitter.center_hz));
+                    note.class = emission_kinds.get(i).cloned().flatten();
+                    w.push(note);
                 }
             }
             self.annotated = Some(w.finish(run)?);
@@ -262,8 +383,41 @@ fn floor_json(f: &FloorProfile) -> serde_json::Value {
     json!({ "span_dbfs_per_hz": f.span_dbfs_per_hz.map(|v| round(v, 2)), "parts": parts })
 }
 
+/// Adds each emitter's kind to the census's JSON (`class`, `class_confidence`, `class_params`
+/// with the parameters that apply, `designator`); `kinds` are in the order of its emitters.
+pub fn add_kinds(v: &mut serde_json::Value, kinds: &[EmitterKind]) {
+    let Some(list) = v.get_mut("emitters").and_then(|e| e.as_array_mut()) else { return };
+    for (e, k) in list.iter_mut().zip(kinds) {
+        let Some(obj) = e.as_object_mut() else { continue };
+        obj.insert("class".into(), k.class.as_str().into());
+        obj.insert("class_confidence".into(), round(k.confidence, 3).into());
+        obj.insert("class_params".into(), serde_json::to_value(&k.params).unwrap_or_default());
+        obj.insert("designator".into(), k.designator.clone().into());
+    }
+}
+
+/// The kind column's word: the class's name, `?` for unknown.
+pub fn kind_word(class: Class) -> &'static str {
+    match class {
+        Class::Unknown => "?",
+        c => c.as_str(),
+    }
+}
+
 /// The census as a table, strongest first, units in the header.
 pub fn to_table(r: &CensusResult, label: &str) -> String {
+    to_table_with_kinds(r, label, &[])
+}
+
+/// [`to_table`] with each emitter's kind and designator in two last columns (none when `kinds`
+/// is empty). The rows are wider than 80 columns already; a narrow terminal wraps them, and
+/// these columns come last so that the figures stay in place.
+pub fn to_table_with_kinds(r: &CensusResult, label: &str, kinds: &[EmitterKind]) -> String {
+    let kind_cells = |i: usize| {
+        kinds
+            .get(i)
+            .map_or(String::new(), |k| format!(" {:<6} {:<10}", kind_word(k.class), k.designator))
+    };
     let mut s = String::new();
     let _ = writeln!(
         s,
@@ -281,7 +435,7 @@ pub fn to_table(r: &CensusResult, label: &str) -> String {
     }
     let _ = writeln!(
         s,
-        "{:<14} {:>15} {:>10} {:>9} {:>9} {:>9} {:>9} {:>10} {:>10}",
+        "{:<14} {:>15} {:>10} {:>9} {:>9} {:>9} {:>9} {:>10} {:>10}{}",
         "name",
         "centre (MHz)",
         "OBW (kHz)",
@@ -290,12 +444,17 @@ pub fn to_table(r: &CensusResult, label: &str) -> String {
         "emissions",
         "airtime %",
         "peak dBFS",
-        "power dBFS"
+        "power dBFS",
+        if kinds.is_empty() {
+            String::new()
+        } else {
+            format!(" {:<6} {:<10}", "kind", "designator")
+        }
     );
-    for e in &r.emitters {
+    for (i, e) in r.emitters.iter().enumerate() {
         let _ = writeln!(
             s,
-            "{:<14} {:>15.6} {:>10.3} {:>9.3} {:>9.3} {:>9} {:>9.2} {:>10.2} {:>10.2}",
+            "{:<14} {:>15.6} {:>10.3} {:>9.3} {:>9.3} {:>9} {:>9.2} {:>10.2} {:>10.2}{}",
             e.name,
             e.center_hz / 1e6,
             e.obw_hz / 1e3,
@@ -304,7 +463,8 @@ pub fn to_table(r: &CensusResult, label: &str) -> String {
             e.emissions,
             e.airtime_pct,
             e.peak_dbfs,
-            e.power_dbfs
+            e.power_dbfs,
+            kind_cells(i)
         );
     }
     let notes: Vec<String> = r.emitters.iter().filter_map(attributed_note).collect();

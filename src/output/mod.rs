@@ -9,6 +9,7 @@
 
 pub mod census;
 pub mod change;
+pub mod class_fields;
 pub mod log;
 pub mod picture;
 pub mod progress;

@@ -31,7 +31,9 @@
 //!   start, the wall clock at the first block's arrival less that block's length.
 
 pub mod clock;
+pub mod history;
 pub mod input;
+pub mod kinds;
 pub mod latest;
 pub mod occupancy;
 pub mod outbox;

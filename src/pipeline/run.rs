@@ -7,6 +7,7 @@
 //! error ends the run as `input_error`) and finishes every consumer.
 
 use super::input::Input;
+use super::kinds::{Kinds, Span};
 use super::outbox::Outbox;
 use super::stop::{StopReason, StopSignals};
 use super::{Clock, Consumer, Flow, GapCause, Lost, RunEnd, RunInfo, TimeSource};
@@ -37,6 +38,10 @@ pub struct RunSpec {
     /// the wall clock at the first block.
     pub start_time: Option<OffsetDateTime>,
     pub time_source: TimeSource,
+    /// Classify each emission of the tracker when it ends, from the run's own IQ history
+    /// ([`Kinds`]): its [`EmissionSummary::class`](crate::measure::occupancy::EmissionSummary)
+    /// is then set for every consumer.
+    pub classify: bool,
 }
 
 impl RunSpec {
@@ -61,6 +66,7 @@ impl RunSpec {
             engine,
             threads,
             tracker: None,
+            classify: false,
         }
     }
 }
@@ -71,6 +77,8 @@ pub struct Run<'a> {
     engine: Engine,
     threads: usize,
     tracker: Option<Occupancy>,
+    /// The samples the tracker's emissions are classified from (with `RunSpec::classify`).
+    kinds: Option<Kinds>,
     events: Vec<Event>,
     consumers: Vec<&'a mut dyn Consumer>,
     outbox: Outbox,
@@ -94,6 +102,8 @@ impl<'a> Run<'a> {
             engine: spec.engine,
             time_source,
         };
+        let kinds = (spec.classify && spec.tracker.is_some())
+            .then(|| Kinds::new(info.source.sample_rate_hz, info.source.center_hz));
         let outbox = Outbox::default();
         let mut consumers = consumers;
         for c in consumers.iter_mut() {
@@ -104,6 +114,7 @@ impl<'a> Run<'a> {
             engine,
             threads: spec.threads,
             tracker: spec.tracker,
+            kinds,
             events: Vec::new(),
             consumers,
             outbox,
@@ -168,6 +179,9 @@ impl<'a> Run<'a> {
         }
         for c in self.consumers.iter_mut() {
             c.block(block)?;
+        }
+        if let Some(k) = self.kinds.as_mut() {
+            k.push(block.start, &block.samples);
         }
         let samples = &block.samples[..];
         if !self.kernels.any_outside(samples, f32::MAX) {
@@ -350,7 +364,19 @@ impl<'a> Run<'a> {
     }
 
     fn dispatch_events(&mut self) -> io::Result<()> {
-        for event in self.events.drain(..) {
+        let noise_psd = self.tracker.as_ref().map(Occupancy::noise_density).filter(|d| *d > 0.0);
+        for mut event in self.events.drain(..) {
+            if let (Event::Emission(e), Some(k)) = (&mut event, self.kinds.as_mut()) {
+                e.class = e.obw.map(|edges| {
+                    Box::new(k.classify(&Span {
+                        start: e.start_sample,
+                        end: e.end_sample,
+                        center_hz: 0.5 * (edges.low_hz + edges.high_hz),
+                        obw_hz: edges.width_hz(),
+                        noise_psd,
+                    }))
+                });
+            }
             for c in self.consumers.iter_mut() {
                 c.event(&event, &self.info)?;
             }

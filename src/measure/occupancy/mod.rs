@@ -72,6 +72,7 @@ pub use timing::{
 pub use tracker::Occupancy;
 
 use super::band::{band_power, Edges};
+use super::classify::Classification;
 use crate::dsp::Spectrum;
 use crate::units::undb;
 
@@ -141,6 +142,9 @@ pub struct EmissionSummary {
     pub noise_power: f64,
     /// Cut short by end of input, a stop or a gap: it may have gone on.
     pub partial: bool,
+    /// Its kind, when the run classifies emissions (the tracker leaves it `None`; the run fills
+    /// it in from the emission's samples before any consumer sees it).
+    pub class: Option<Box<Classification>>,
 }
 
 /// An emission has begun: told as soon as its first occupied sample is read, for consumers

@@ -421,5 +421,6 @@ fn summarise(
         obw,
         noise_power: floor * ch.def.width_hz(),
         partial,
+        class: None,
     }
 }

@@ -33,7 +33,13 @@
 //!   duration_s, peak_dbfs, mean_dbfs` (over its occupied samples), `obw_hz` (99 % occupied
 //!   bandwidth of its noise-corrected average spectrum, ITU-R SM.328; `null` if nothing stood
 //!   above the noise), `samples` (occupied samples), `partial` (cut short by the end of the run or
-//!   by dropped input: it may have gone on).
+//!   by dropped input: it may have gone on), and its kind from its own samples (see
+//!   [`crate::pipeline::kinds`]; absent without an OBW): `class` (`cw`, `am`, `fm`, `fsk`, `psk`,
+//!   `qam`, `ofdm`, `pulsed`, `noise` or `unknown`), `class_confidence` (0..1), `class_params`
+//!   (an object of the parameters that apply: `symbol_rate_hz`, `tones`, `shift_hz`,
+//!   `psk_order`, `deviation_hz`, `mod_depth`, `subcarrier_spacing_hz`, `pulse_width_s`,
+//!   `pri_s`; in CSV one cell of JSON text) and `designator` (ITU RR Appendix 1: the OBW's
+//!   bandwidth code and the class's first symbol, `16K0F`).
 //! - `dropped`: `t_start_s, t_end_s, start, end, dropped_samples, gaps, cause`: input samples
 //!   missing from the measurement, `cause` `behind` (a live source outran the processing),
 //!   `not_a_number` (NaN or infinite samples in the input) or `disconnected` (a network input's
@@ -147,6 +153,8 @@ pub fn csv_line(record: &Stamped) -> String {
         .map(|col| match value.get(*col) {
             None | Some(Value::Null) => String::new(),
             Some(Value::String(s)) => csv_quote(s),
+            // An object (`class_params`) is one cell of JSON text.
+            Some(v @ (Value::Object(_) | Value::Array(_))) => csv_quote(&v.to_string()),
             Some(other) => other.to_string(),
         })
         .collect();
@@ -236,6 +244,17 @@ mod tests {
                 obw_hz: None,
                 samples: 32,
                 partial: true,
+                classified: Some(crate::output::class_fields::ClassFields {
+                    class: "fsk".into(),
+                    class_confidence: 0.8,
+                    class_params: crate::measure::classify::ClassParams {
+                        symbol_rate_hz: Some(1200.0),
+                        tones: Some(2),
+                        shift_hz: Some(1000.0),
+                        ..Default::default()
+                    },
+                    designator: "2K20F".into(),
+                }),
             }),
             Record::Dropped(DroppedRecord {
                 t_start_s: 2.0,
@@ -322,6 +341,11 @@ mod tests {
         assert_eq!(&rows[2][9], "30.2");
         assert_eq!(&rows[3][16], "", "a null OBW is an empty cell");
         assert_eq!(&rows[3][18], "true");
+        // The class parameters are one cell holding a JSON object.
+        let params = CSV_COLUMNS.iter().position(|c| *c == "class_params").unwrap();
+        let cell: Value = serde_json::from_str(&rows[3][params]).unwrap();
+        assert_eq!(cell["tones"], 2);
+        assert!(cell.get("psk_order").is_none(), "parameters that do not apply are left out");
     }
 }
 

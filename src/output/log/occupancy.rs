@@ -2,6 +2,7 @@
 //! and gap as it becomes final, then why the run stopped. The record schema is in [`crate::output::log`].
 
 use crate::measure::occupancy::{Event, FLOOR_MEMORY_S, FLOOR_SMOOTHING_S, OBW_PERCENT};
+use crate::output::class_fields::ClassFields;
 use crate::output::log::alarms::AlarmLog;
 use crate::output::log::rotation::Rotation;
 use crate::output::log::{
@@ -245,6 +246,7 @@ impl<W: Write> OccupancyLog<W> {
                     obw_hz: e.obw_hz.map(|w| round_to(w, 1)),
                     samples: e.samples,
                     partial: e.partial,
+                    classified: e.class.as_deref().map(ClassFields::of),
                 }))
             }
             Event::Opened(_) => None,
@@ -483,6 +485,43 @@ mod tests {
         assert_eq!(stop["iq_samples"], 600_000);
         assert_eq!(stop["dropped_samples"], 40_000);
         assert_eq!(stop["reason"], "end_of_input");
+    }
+
+    /// What every classified record holds, whatever the classifier answers: a class of the
+    /// set, a confidence in 0..1, an object of parameters, and a designator that begins with
+    /// the bandwidth code of the OBW next to it (ITU RR Appendix 1).
+    pub(crate) fn assert_class_fields(r: &Value, obw_key: &str) {
+        use crate::measure::classify::bandwidth_code;
+        const CLASSES: [&str; 10] =
+            ["cw", "am", "fm", "fsk", "psk", "qam", "ofdm", "pulsed", "noise", "unknown"];
+        assert!(CLASSES.contains(&r["class"].as_str().unwrap_or("-")), "{r}");
+        let c = r["class_confidence"].as_f64().unwrap_or(-1.0);
+        assert!((0.0..=1.0).contains(&c), "{r}");
+        assert!(r["class_params"].is_object(), "{r}");
+        let code = bandwidth_code(r[obw_key].as_f64().unwrap());
+        let d = r["designator"].as_str().unwrap();
+        assert!(d.starts_with(&code) && d.len() > code.len(), "{d} for {code}: {r}");
+    }
+
+    #[test]
+    fn emission_records_carry_their_class_and_designator() {
+        let on = |i: u64| (100_000..400_000).contains(&i);
+        let x = band(600_000, &[Keyed { offset_hz: 20e3, level_dbfs: -30.0, on: &on }], 3);
+        let (setup, plan, info) = setup(1.0);
+        let writer = LogWriter::new(Vec::new(), LogFormat::JsonLines, true).unwrap();
+        let mut log = OccupancyLog::new(writer, &plan, &setup);
+        let mut spec = spec(&setup, &info, None);
+        spec.classify = true;
+        let mut run = Run::new(spec, vec![&mut log]);
+        for start in (0..600_000).step_by(10_000) {
+            run.feed(&Block::new(start as u64, x[start..start + 10_000].to_vec())).unwrap();
+        }
+        run.finish(StopReason::EndOfInput).unwrap();
+        drop(run);
+        let recs = lines(log.into_writer().unwrap());
+        let em: Vec<&Value> = recs.iter().filter(|r| r["kind"] == "emission").collect();
+        assert_eq!(em.len(), 1, "{em:?}");
+        assert_class_fields(em[0], "obw_hz");
     }
 
     #[test]

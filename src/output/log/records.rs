@@ -1,6 +1,7 @@
 //! Serialize-only record types of the occupancy log; the schema is documented in
 //! [`crate::output::log`].
 
+use crate::output::class_fields::ClassFields;
 use serde::Serialize;
 
 /// A record as written: the record, then its id. `run` names the run of `log` that wrote it
@@ -107,6 +108,10 @@ pub struct EmissionRecord {
     pub obw_hz: Option<f64>,
     pub samples: u64,
     pub partial: bool,
+    /// Its kind from its own samples ([`crate::pipeline::kinds`]): `class`,
+    /// `class_confidence`, `class_params`, `designator`; absent when no OBW was measured.
+    #[serde(flatten)]
+    pub classified: Option<ClassFields>,
 }
 
 /// Input samples missing from the measurement: lost because the DSP fell behind a live source,
@@ -251,4 +256,8 @@ pub const CSV_COLUMNS: &[&str] = &[
     "present",
     "unit",
     "method",
+    "class",
+    "class_confidence",
+    "class_params",
+    "designator",
 ];

@@ -5,7 +5,9 @@
 //! duration_s, dof, psd_uncertainty_db, total_power_dbfs, noise_floor_dbfs_per_hz, peaks, bands,
 //! input_issues`.
 //! `peaks[]`: `freq_hz, level_dbfs, snr_db, power_dbfs, obw_hz`, strongest `power_dbfs` (the
-//! signal's integrated power) first; `level_dbfs` is a sinusoid's power at the peak, in one RBW.
+//! signal's integrated power) first; `level_dbfs` is a sinusoid's power at the peak, in one RBW;
+//! then its kind, classified from the last samples of the input (at most 0.5 s, see
+//! [`crate::pipeline::kinds`]): `class, class_confidence, class_params, designator`.
 //! `bands[]`: `center_hz, width_hz, power_dbfs, obw_hz, obw_low_hz, obw_high_hz,
 //! xdb_bandwidth_hz` over the whole recording, then `on_air_pct` (share of measurement samples in
 //! which the band was on the air) and `on_air_obw_hz, on_air_obw_low_hz, on_air_obw_high_hz,
@@ -22,6 +24,7 @@ use crate::measure::stats::gamma_quantile_unit_mean;
 use crate::measure::{
     band_power, find_signals, noise_floor, occupied_bandwidth, xdb_bandwidth, Detection,
 };
+use crate::output::class_fields::ClassFields;
 use crate::output::report::on_air::OnAirFigures;
 use crate::plan::Plan;
 use crate::source::InputIssues;
@@ -79,6 +82,7 @@ pub fn build_report(
             snr_db: s.snr_db,
             power_dbfs: s.power_dbfs,
             obw_hz: s.obw.width_hz(),
+            classified: None,
         })
         .collect();
     let (span_lo, span_hi) = spec.span_hz();
@@ -206,6 +210,10 @@ pub struct PeakRow {
     pub snr_db: f64,
     pub power_dbfs: f64,
     pub obw_hz: f64,
+    /// Its kind, from the newest samples of the input (`class`, `class_confidence`,
+    /// `class_params`, `designator`; see [`crate::pipeline::kinds`]).
+    #[serde(flatten)]
+    pub classified: Option<ClassFields>,
 }
 
 #[derive(Serialize, Debug, Clone)]

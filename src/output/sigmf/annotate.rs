@@ -9,8 +9,9 @@
 //! `core:freq_upper_edge` (its 99 % occupied band, ITU-R SM.328, or the channel's edges when no
 //! band could be measured), `core:label` (the channel), `core:comment` (levels, SNR and OBW in
 //! words), and our fields under the `bandwarden` namespace: `mean_dbfs`, `peak_dbfs`, `snr_db`,
-//! `obw_hz`, `channel_center_hz`, `partial`. The input's own metadata is rewritten only when it
-//! is the file named.
+//! `obw_hz`, `channel_center_hz`, `partial`, and, when the emission was classified, `class`,
+//! `class_confidence`, `class_params` and `designator` (also named in `core:comment`). The
+//! input's own metadata is rewritten only when it is the file named.
 //!
 //! The annotations are held in memory until the end of the run (SigMF wants them sorted by
 //! `core:sample_start`, and emissions end in another order than they start); at most
@@ -19,7 +20,9 @@
 //! [`AnnotationWriter`] takes a plain [`EmissionNote`], so any command that finds emissions
 //! feeds it; [`LogAnnotations`] is the occupancy log's consumer that does.
 
+use crate::measure::classify::Classification;
 use crate::measure::occupancy::Event;
+use crate::output::class_fields::ClassFields;
 use crate::output::sigmf::write::{self as sigmf_write, NAMESPACE};
 use crate::pipeline::{Consumer, RunEnd, RunInfo};
 use crate::plan::Plan;
@@ -51,6 +54,9 @@ pub struct EmissionNote {
     pub channel_center_hz: Option<f64>,
     /// Cut short by a gap or the end of the run.
     pub partial: bool,
+    /// Its kind, when classified: `bandwarden:class` (with `class_confidence`, `class_params`
+    /// and `designator`), and the designator in `core:comment`.
+    pub class: Option<Box<Classification>>,
 }
 
 /// `mean −42.1 dBFS, peak −40.0 dBFS, SNR 23.4 dB, OBW 12.3 kHz`, from what is known.
@@ -304,7 +310,12 @@ pub fn annotation(n: &EmissionNote, start: u64, count: u64) -> Map<String, Value
     a.insert("core:freq_lower_edge".into(), n.freq_lower_edge_hz.into());
     a.insert("core:freq_upper_edge".into(), n.freq_upper_edge_hz.into());
     a.insert("core:label".into(), n.label.clone().into());
-    a.insert("core:comment".into(), n.comment.clone().into());
+    let comment = match &n.class {
+        Some(c) if n.comment.is_empty() => format!("designator {}", c.designator),
+        Some(c) => format!("{}, designator {}", n.comment, c.designator),
+        None => n.comment.clone(),
+    };
+    a.insert("core:comment".into(), comment.into());
     a.insert("core:generator".into(), format!("bandwarden {}", env!("CARGO_PKG_VERSION")).into());
     let ours = [
         ("mean_dbfs", n.mean_dbfs),
@@ -319,6 +330,13 @@ pub fn annotation(n: &EmissionNote, start: u64, count: u64) -> Map<String, Value
         }
     }
     a.insert(format!("{NAMESPACE}:partial"), n.partial.into());
+    if let Some(c) = &n.class {
+        if let Ok(Value::Object(fields)) = serde_json::to_value(ClassFields::of(c)) {
+            for (k, v) in fields {
+                a.insert(format!("{NAMESPACE}:{k}"), v);
+            }
+        }
+    }
     a
 }
 
@@ -364,6 +382,7 @@ pub fn note_of(e: &crate::measure::occupancy::EmissionSummary, plan: &Plan) -> E
         obw_hz: e.obw_hz,
         channel_center_hz: Some(ch.center_hz),
         partial: e.partial,
+        class: e.class.clone(),
     }
 }
 

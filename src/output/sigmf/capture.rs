@@ -28,9 +28,10 @@
 use crate::measure::occupancy::Event;
 use crate::output::log::CaptureRecord;
 use crate::output::sigmf::annotate::{annotation, note_of, EmissionNote};
-use crate::output::sigmf::capture_writer::{self, Job, Ring, WriterError};
+use crate::output::sigmf::capture_writer::{self, Job, WriterError};
 use crate::output::sigmf::write::{self as sigmf_write, NAMESPACE};
 use crate::output::sigmf::writer_thread::WriterThread;
+use crate::pipeline::history::IqHistory;
 use crate::pipeline::{Clock, Consumer, GapCause, Letter, Post, RunEnd, RunInfo};
 use crate::plan::Plan;
 use crate::source::reader::Block;
@@ -103,7 +104,7 @@ pub struct Captures {
     block_len: usize,
     /// Where the capture records go (the log takes them).
     post: Post,
-    ring: Ring,
+    ring: IqHistory,
     active: Vec<Active>,
     abandon: Vec<u64>,
     next_id: u64,
@@ -147,7 +148,7 @@ impl Captures {
             format: format.unwrap_or(SampleFormat::Cf32Le),
             block_len: block_len.max(1),
             post: Post::default(),
-            ring: Ring::new(1),
+            ring: IqHistory::new(1),
             active: Vec::new(),
             abandon: Vec::new(),
             next_id: 0,
@@ -215,7 +216,7 @@ impl Captures {
         let id = self.next_id;
         let (meta_path, data_path, _) = self.file_names(&label, start);
         self.next_id += 1;
-        let file_start = start.saturating_sub(self.pre_n).max(self.ring.first());
+        let file_start = start.saturating_sub(self.pre_n).max(self.ring.contiguous_start());
         let mut buf = self.buffer();
         self.ring.copy_from(file_start, &mut buf);
         let pre_bytes = buf.len() as u64 * self.format.bytes_per_sample() as u64;
@@ -410,7 +411,7 @@ impl Consumer for Captures {
         // later) and after the block that completed that row: the ring holds those too.
         let e = &run.engine;
         let row = e.frames_per_output.unwrap_or(1) as usize * e.hop() + e.fft_size;
-        self.ring = Ring::new(self.pre_n as usize + 4 * row + self.block_len);
+        self.ring = IqHistory::new(self.pre_n as usize + 4 * row + self.block_len);
         let depth = WriterThread::<Job, ()>::depth_for(self.block_len).clamp(4, 1024);
         let (format, error) = (self.format, self.error.clone());
         self.writer = Some(WriterThread::spawn("capture", depth, move |(rx, spare)| {

@@ -28,7 +28,12 @@ const TEXT_COLUMNS: &[&str] = &[
     "since",
     "unit",
     "method",
+    "class",
+    "designator",
 ];
+
+/// Columns holding JSON text (an object in the record).
+const JSON_COLUMNS: &[&str] = &["class_params"];
 
 /// Skipped lines of one file, reported as at most three notes and a count.
 struct Skipped<'a> {
@@ -133,6 +138,8 @@ fn csv_record(columns: &[String], fields: &[String]) -> Option<Value> {
     for (col, field) in columns.iter().zip(fields) {
         let value = if field.is_empty() {
             Value::Null
+        } else if JSON_COLUMNS.contains(&col.as_str()) {
+            serde_json::from_str(field).unwrap_or_else(|_| Value::String(field.clone()))
         } else if TEXT_COLUMNS.contains(&col.as_str()) || !CSV_COLUMNS.contains(&col.as_str()) {
             Value::String(field.clone())
         } else if let Ok(b) = field.parse::<bool>() {

@@ -29,7 +29,9 @@ use super::timeline::TimeBase;
 use super::traces::Traces;
 use super::view::{column_max, BinGrid, View, MIN_VIEW_BINS};
 use crate::dsp::{Spectrum, Window, WindowKind};
+use crate::measure::classify::Class;
 use crate::measure::{find_signals, noise_floor, Detection};
+use crate::pipeline::kinds::LiveKinds;
 use crate::pipeline::latest::RowSettings;
 use crate::units::{db, format_rows_per_s};
 use parts::{Alerts, FrameInfo, Look, Markers, Measured, PlanState, TableState, TimeCursor};
@@ -87,6 +89,9 @@ pub struct App {
     frame: FrameInfo,
     /// Where `e` and `g` write (`--evidence-dir`).
     files_dir: String,
+    /// The live classifier of the listed signals, and the kinds it found (centre, OBW, class).
+    kinds: Option<LiveKinds>,
+    kind_list: Vec<(f64, f64, Class)>,
 }
 
 impl App {
@@ -122,6 +127,8 @@ impl App {
             ended: false,
             frame: FrameInfo::default(),
             files_dir: ".".into(),
+            kinds: None,
+            kind_list: Vec::new(),
         }
     }
 
@@ -132,6 +139,12 @@ impl App {
     }
 
     /// Writes the files of `e` and `g` into `dir` (`--evidence-dir`).
+    /// Shows each listed signal's kind, found by `kinds` off the screen's thread.
+    pub fn with_kinds(mut self, kinds: LiveKinds) -> App {
+        self.kinds = Some(kinds);
+        self
+    }
+
     pub fn with_files_dir(mut self, dir: &str) -> App {
         self.files_dir = dir.to_string();
         self
@@ -308,6 +321,10 @@ impl App {
         self.table.signals =
             find_signals(&avg, &window, floor, MAX_SIGNALS, self.measured.detection);
         self.table.sort.apply(&mut self.table.signals);
+        if let Some(k) = &self.kinds {
+            k.want(self.table.signals.iter().map(|s| (s.freq_hz, s.obw.width_hz())));
+            self.kind_list = k.latest();
+        }
         self.keep_marked_row_in_view();
         self.measured.window = Some(window);
         let floor_dbfs = db(floor * avg.rbw_hz);

@@ -156,6 +156,7 @@ impl App {
                 sort: self.table.sort,
                 marker_hz: self.markers.at,
                 theme: &self.look.theme,
+                kinds: self.kinds.as_ref().map(|_| self.kind_list.as_slice()),
             }),
             TableMode::Channels => TableView::Channels(ChannelPanel {
                 channels: &self.plan.marks,

@@ -8,6 +8,7 @@
 
 use super::super::colour::Theme;
 use super::super::state::{ChannelMark, Levels, SortKey};
+use crate::measure::classify::Class;
 use crate::measure::Signal;
 use crate::units::format_hz;
 use ratatui::buffer::Buffer;
@@ -110,6 +111,8 @@ pub struct SignalTable<'a> {
     /// Frequency of the marker, to flag the row it sits on.
     pub marker_hz: Option<f64>,
     pub theme: &'a Theme,
+    /// Kinds found by the live classifier (centre, OBW, class); `None`: no kind column.
+    pub kinds: Option<&'a [(f64, f64, Class)]>,
 }
 
 impl SignalTable<'_> {
@@ -127,6 +130,9 @@ impl SignalTable<'_> {
             "SNR dB",
             "OBW 99%"
         );
+        if self.kinds.is_some() {
+            h.push_str(&format!(" {:<6}", "Kind"));
+        }
         if !self.channels.is_empty() {
             h.push_str("  Channel");
         }
@@ -143,6 +149,9 @@ impl SignalTable<'_> {
             s.snr_db,
             format_hz(s.obw.width_hz()),
         );
+        if let Some(kinds) = self.kinds {
+            r.push_str(&format!(" {:<6}", kind_of(kinds, s)));
+        }
         if !self.channels.is_empty() {
             let name =
                 self.channels.iter().find(|c| c.contains(s.freq_hz)).map_or("–", |c| &c.name);
@@ -156,6 +165,16 @@ impl SignalTable<'_> {
     fn under_marker(&self, s: &Signal) -> bool {
         self.marker_hz.is_some_and(|m| m >= s.obw.low_hz && m <= s.obw.high_hz)
     }
+}
+
+/// The kind of signal `s`: that of the classified signal whose centre lies within its band
+/// (`?` for unknown, blank while none was classified yet).
+fn kind_of(kinds: &[(f64, f64, Class)], s: &Signal) -> &'static str {
+    kinds
+        .iter()
+        .filter(|k| k.0 >= s.obw.low_hz && k.0 <= s.obw.high_hz)
+        .min_by(|a, b| (a.0 - s.freq_hz).abs().total_cmp(&(b.0 - s.freq_hz).abs()))
+        .map_or("", |k| if k.2 == Class::Unknown { "?" } else { k.2.as_str() })
 }
 
 impl Widget for &SignalTable<'_> {
@@ -204,6 +223,7 @@ mod tests {
             sort: SortKey::Frequency,
             marker_hz: None,
             theme,
+            kinds: None,
         }
     }
 
@@ -224,6 +244,7 @@ mod tests {
             sort: SortKey::Frequency,
             marker_hz: Some(433.921e6),
             theme: &theme,
+            kinds: None,
         };
         let mut buf = Buffer::empty(Rect::new(0, 0, 80, 4));
         (&t).render(buf.area, &mut buf);
@@ -243,6 +264,24 @@ mod tests {
         // The marker sits on the first signal: its row is in the marker's colour.
         assert_eq!(buf[(3, 1)].fg, theme.marker.fg.unwrap());
         assert_eq!(buf[(3, 2)].fg, theme.label.fg.unwrap());
+    }
+
+    #[test]
+    fn a_kind_column_names_each_classified_signal_within_80_columns() {
+        let theme = Theme::new(Depth::Mono);
+        let signals = [sig(433.92e6, -23.44), sig(433.5e6, -61.0), sig(433.6e6, -50.0)];
+        let channels = [ChannelMark::new("Gate-North", 433.92e6, 25e3)];
+        // A kind found 1 kHz off the first signal's centre (inside its band), an unknown one for
+        // the third, none yet for the second.
+        let kinds = [(433.921e6, 12e3, Class::Fsk), (433.6e6, 12e3, Class::Unknown)];
+        let t = SignalTable { channels: &channels, kinds: Some(&kinds), ..plain(&signals, &theme) };
+        let mut buf = Buffer::empty(Rect::new(0, 0, 80, 4));
+        (&t).render(buf.area, &mut buf);
+        let lines = text_lines(&buf);
+        assert!(lines[0].trim_end().ends_with("OBW 99% Kind    Channel"), "{}", lines[0]);
+        assert!(lines[1].trim_end().ends_with("12.500 kHz fsk     Gate-North"), "{}", lines[1]);
+        assert!(lines[2].trim_end().ends_with("12.500 kHz         –"), "{}", lines[2]);
+        assert!(lines[3].trim_end().ends_with("12.500 kHz ?       –"), "{}", lines[3]);
     }
 
     #[test]

@@ -93,6 +93,43 @@ fn an_emission_becomes_an_annotation_over_the_raw_dataset() {
     assert!((-30.3..=-29.9).contains(&mean), "{a}");
     assert!((a["bandwarden:snr_db"].as_f64().unwrap() - 23.0).abs() < 1.0, "{a}");
     assert!(a["core:comment"].as_str().unwrap().contains("SNR"), "{a}");
+    assert!(a.get("bandwarden:class").is_none(), "not classified, no class: {a}");
+}
+
+#[test]
+fn a_classified_emission_names_its_class_and_designator() {
+    let class = crate::measure::classify::Classification {
+        class: crate::measure::classify::Class::Fsk,
+        confidence: 0.75,
+        params: crate::measure::classify::ClassParams {
+            symbol_rate_hz: Some(1200.0),
+            ..Default::default()
+        },
+        designator: "2K20F".into(),
+        note: None,
+    };
+    let note = EmissionNote {
+        sample_start: 10,
+        sample_count: 20,
+        freq_lower_edge_hz: 1e6,
+        freq_upper_edge_hz: 1.0022e6,
+        label: "gate".into(),
+        comment: comment(Some(-30.0), None, None, Some(2.2e3)),
+        mean_dbfs: Some(-30.0),
+        peak_dbfs: None,
+        snr_db: None,
+        obw_hz: Some(2.2e3),
+        channel_center_hz: None,
+        partial: false,
+        class: Some(Box::new(class)),
+    };
+    let a = Value::Object(annotation(&note, 10, 20));
+    assert_eq!(a["bandwarden:class"], "fsk");
+    assert_eq!(a["bandwarden:class_confidence"], 0.75);
+    assert_eq!(a["bandwarden:class_params"]["symbol_rate_hz"], 1200.0);
+    assert_eq!(a["bandwarden:designator"], "2K20F");
+    let c = a["core:comment"].as_str().unwrap();
+    assert!(c.starts_with("mean -30.0 dBFS") && c.ends_with("designator 2K20F"), "{c}");
 }
 
 #[test]

@@ -1,0 +1,307 @@
+//! The kind of an emission (its modulation family, [`crate::measure::classify`]), from its own
+//! samples: an [`IqHistory`] of the stream, cut where the emission lay and handed to the
+//! classifier with its centre, occupied bandwidth and the noise density.
+//!
+//! **Cost.** One classification per emission, when it ends (never per row), on at most
+//! [`TAKE_S`] seconds or [`TAKE_MAX`] samples of it, whichever is fewer: its first samples while
+//! they are still held, else (an emission longer than the history) its newest. The history's
+//! memory is bounded by [`HISTORY_MAX_BYTES`](super::history::HISTORY_MAX_BYTES).
+
+use super::history::{IqHistory, Part, HISTORY_SECONDS};
+use super::{Consumer, RunInfo};
+use crate::measure::classify::{classify, Class, Classification, EmissionIq};
+use crate::source::reader::Block;
+use num_complex::Complex32;
+use std::io;
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::{Arc, Mutex, PoisonError};
+use std::thread::JoinHandle;
+use std::time::{Duration, Instant};
+
+/// Longest stretch of one emission classified, seconds.
+pub const TAKE_S: f64 = 0.5;
+/// Most samples of one emission classified.
+pub const TAKE_MAX: usize = 1 << 20;
+
+/// Where an emission lay, in the stream and in frequency.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Span {
+    /// Stream samples `[start, end)`.
+    pub start: u64,
+    pub end: u64,
+    /// Centre of its occupied band, absolute Hz.
+    pub center_hz: f64,
+    /// Its 99 % occupied bandwidth, Hz.
+    pub obw_hz: f64,
+    /// Noise density, FS²/Hz (= |x|² per Hz), when known.
+    pub noise_psd: Option<f64>,
+}
+
+/// Classifies emissions from the newest samples of the stream. As a consumer it keeps the
+/// samples of every block; a command then asks for the spans it found.
+pub struct Kinds {
+    history: IqHistory,
+    rate_hz: f64,
+    center_hz: f64,
+    buf: Vec<Complex32>,
+}
+
+impl Kinds {
+    /// A history of [`HISTORY_SECONDS`] (within the byte cap) of a stream at `rate_hz` centred
+    /// on `center_hz`.
+    pub fn new(rate_hz: f64, center_hz: f64) -> Kinds {
+        Kinds::with_history(IqHistory::for_rate(rate_hz, HISTORY_SECONDS), rate_hz, center_hz)
+    }
+
+    /// A history of only what one classification takes ([`Kinds::take_max`]), for
+    /// [`Kinds::classify_newest`] at the end of the input.
+    pub fn newest_only(rate_hz: f64, center_hz: f64) -> Kinds {
+        let k = Kinds::with_history(IqHistory::new(1), rate_hz, center_hz);
+        Kinds::with_history(IqHistory::new(k.take_max()), rate_hz, center_hz)
+    }
+
+    pub fn with_history(history: IqHistory, rate_hz: f64, center_hz: f64) -> Kinds {
+        Kinds { history, rate_hz, center_hz, buf: Vec::new() }
+    }
+
+    pub fn push(&mut self, start: u64, samples: &[Complex32]) {
+        self.history.push(start, samples);
+    }
+
+    pub fn history(&self) -> &IqHistory {
+        &self.history
+    }
+
+    /// Most samples taken of one emission.
+    pub fn take_max(&self) -> usize {
+        ((TAKE_S * self.rate_hz).ceil() as usize).clamp(1, TAKE_MAX)
+    }
+
+    /// The samples of `span` handed to the classifier: its first [`Kinds::take_max`] while its
+    /// start is held, else its newest.
+    pub fn cut(&self, span: &Span) -> Option<(u64, u64)> {
+        let part = if span.start >= self.history.first() { Part::First } else { Part::Last };
+        self.history.cut(span.start, span.end, self.take_max(), part)
+    }
+
+    /// Classifies the emission `span` from what the history holds of it (nothing held: the
+    /// classifier says it had too little).
+    pub fn classify(&mut self, span: &Span) -> Classification {
+        let range = self.cut(span);
+        self.classify_range(range, span)
+    }
+
+    /// Classifies what is on the air at `center_hz` (`obw_hz` wide) in the newest samples held
+    /// (at most [`Kinds::take_max`]): for a listing made once the input is over.
+    pub fn classify_newest(&mut self, center_hz: f64, obw_hz: f64) -> Classification {
+        let (start, end) = (self.history.first(), self.history.end());
+        let span = Span { start, end, center_hz, obw_hz, noise_psd: None };
+        let range = self.history.cut(start, end, self.take_max(), Part::Last);
+        self.classify_range(range, &span)
+    }
+
+    fn classify_range(&mut self, range: Option<(u64, u64)>, span: &Span) -> Classification {
+        self.buf.clear();
+        if let Some((a, b)) = range {
+            self.history.copy_range(a, b, &mut self.buf);
+        }
+        classify(&EmissionIq {
+            samples: &self.buf,
+            rate_hz: self.rate_hz,
+            offset_hz: span.center_hz - self.center_hz,
+            obw_hz: span.obw_hz,
+            noise_psd: span.noise_psd,
+        })
+    }
+}
+
+impl Consumer for Kinds {
+    fn start(&mut self, run: &RunInfo) -> io::Result<()> {
+        (self.rate_hz, self.center_hz) = (run.source.sample_rate_hz, run.source.center_hz);
+        Ok(())
+    }
+
+    fn block(&mut self, block: &Block) -> io::Result<()> {
+        self.push(block.start, &block.samples);
+        Ok(())
+    }
+}
+
+/// Seconds of the newest input the live monitor classifies a signal from.
+pub const LIVE_TAKE_S: f64 = 0.1;
+/// Most samples of it (0.1 s up to 20 MS/s).
+pub const LIVE_TAKE_MAX: usize = 1 << 21;
+/// Share of one core the live classifier may use: after each classification it rests three
+/// times as long as it worked.
+const LIVE_REST: u32 = 3;
+/// How often each listed signal is classified again, at most.
+const LIVE_CYCLE: Duration = Duration::from_secs(1);
+
+/// What the live worker and the run's thread share.
+struct LiveShared {
+    history: Mutex<IqHistory>,
+    /// Signals to classify: centre and OBW, Hz.
+    want: Mutex<Vec<(f64, f64)>>,
+    /// Their kinds as last found: centre, OBW, class.
+    got: Mutex<Vec<(f64, f64, Class)>>,
+    stop: AtomicBool,
+    rate_hz: f64,
+    center_hz: f64,
+}
+
+/// The run's side of the live classifier: keeps the newest samples of every block (a copy
+/// under a lock the worker holds only while it copies out one signal's samples).
+pub struct LiveTap(Arc<LiveShared>);
+
+impl Consumer for LiveTap {
+    fn block(&mut self, block: &Block) -> io::Result<()> {
+        lock(&self.0.history).push(block.start, &block.samples);
+        Ok(())
+    }
+}
+
+/// The screen's side: says which signals are listed and reads their kinds. Classification
+/// runs on a thread of its own, each listed signal about once a second from the newest
+/// [`LIVE_TAKE_S`] of input, and rests three times as long as it works, so it takes at most a
+/// quarter of one core whatever the rate (more signals are refreshed less often).
+pub struct LiveKinds {
+    shared: Arc<LiveShared>,
+    thread: Option<JoinHandle<()>>,
+}
+
+/// The two sides of a live classifier for a stream at `rate_hz` centred on `center_hz`.
+pub fn live(rate_hz: f64, center_hz: f64) -> io::Result<(LiveTap, LiveKinds)> {
+    let take = ((LIVE_TAKE_S * rate_hz).ceil() as usize).clamp(1, LIVE_TAKE_MAX);
+    let shared = Arc::new(LiveShared {
+        history: Mutex::new(IqHistory::new(take)),
+        want: Mutex::new(Vec::new()),
+        got: Mutex::new(Vec::new()),
+        stop: AtomicBool::new(false),
+        rate_hz,
+        center_hz,
+    });
+    let worker = shared.clone();
+    let thread = std::thread::Builder::new()
+        .name("kinds".into())
+        .spawn(move || live_worker(&worker, take))?;
+    Ok((LiveTap(shared.clone()), LiveKinds { shared, thread: Some(thread) }))
+}
+
+impl LiveKinds {
+    /// The signals listed now (centre and OBW, Hz).
+    pub fn want(&self, signals: impl Iterator<Item = (f64, f64)>) {
+        let mut w = lock(&self.shared.want);
+        w.clear();
+        w.extend(signals);
+    }
+
+    /// The kinds found so far: centre, OBW and class of each signal classified.
+    pub fn latest(&self) -> Vec<(f64, f64, Class)> {
+        lock(&self.shared.got).clone()
+    }
+}
+
+impl Drop for LiveKinds {
+    fn drop(&mut self) {
+        self.shared.stop.store(true, Ordering::Relaxed);
+        if let Some(t) = self.thread.take() {
+            let _ = t.join();
+        }
+    }
+}
+
+fn lock<T>(m: &Mutex<T>) -> std::sync::MutexGuard<'_, T> {
+    m.lock().unwrap_or_else(PoisonError::into_inner)
+}
+
+fn live_worker(s: &LiveShared, take: usize) {
+    let mut buf = Vec::with_capacity(take);
+    let stopped = || s.stop.load(Ordering::Relaxed);
+    while !stopped() {
+        let cycle = Instant::now();
+        let want = lock(&s.want).clone();
+        for &(center_hz, obw_hz) in &want {
+            if stopped() {
+                return;
+            }
+            let worked = Instant::now();
+            buf.clear();
+            {
+                let h = lock(&s.history);
+                if let Some((a, b)) = h.cut(h.first(), h.end(), take, Part::Last) {
+                    h.copy_range(a, b, &mut buf);
+                }
+            }
+            let c = classify(&EmissionIq {
+                samples: &buf,
+                rate_hz: s.rate_hz,
+                offset_hz: center_hz - s.center_hz,
+                obw_hz,
+                noise_psd: None,
+            });
+            {
+                let mut got = lock(&s.got);
+                got.retain(|g| (g.0 - center_hz).abs() > 0.5 * obw_hz.max(g.1));
+                got.push((center_hz, obw_hz, c.class));
+            }
+            rest(worked.elapsed() * LIVE_REST, &stopped);
+        }
+        lock(&s.got).retain(|g| want.iter().any(|w| (g.0 - w.0).abs() <= 0.5 * w.1.max(g.1)));
+        rest(LIVE_CYCLE.saturating_sub(cycle.elapsed()), &stopped);
+    }
+}
+
+/// Sleeps `d`, waking every 50 ms to see whether to stop.
+fn rest(d: Duration, stopped: &dyn Fn() -> bool) {
+    let until = Instant::now() + d;
+    while !stopped() {
+        let now = Instant::now();
+        if now >= until {
+            return;
+        }
+        std::thread::sleep((until - now).min(Duration::from_millis(50)));
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn the_live_worker_classifies_each_listed_signal_and_forgets_the_others() {
+        let (mut tap, kinds) = live(1e6, 100e6).unwrap();
+        let x = crate::testkit::noise(20_000, 1e-4, 5);
+        tap.block(&Block::new(0, x)).unwrap();
+        kinds.want([(100.1e6, 10e3), (99.8e6, 20e3)].into_iter());
+        let found = |k: &LiveKinds| k.latest().len();
+        let t0 = Instant::now();
+        while found(&kinds) < 2 && t0.elapsed() < Duration::from_secs(10) {
+            std::thread::sleep(Duration::from_millis(10));
+        }
+        let got = kinds.latest();
+        assert_eq!(got.len(), 2, "{got:?}");
+        assert!(got.iter().any(|g| g.0 == 100.1e6) && got.iter().any(|g| g.0 == 99.8e6));
+        kinds.want([(99.8e6, 20e3)].into_iter());
+        let t0 = Instant::now();
+        while found(&kinds) > 1 && t0.elapsed() < Duration::from_secs(10) {
+            std::thread::sleep(Duration::from_millis(10));
+        }
+        assert_eq!(kinds.latest().iter().map(|g| g.0).collect::<Vec<_>>(), [99.8e6]);
+    }
+
+    #[test]
+    fn an_emission_is_cut_from_its_start_or_its_newest_part() {
+        // 1000 S/s: TAKE_S (0.5 s) is 500 samples.
+        let mut k = Kinds::with_history(IqHistory::new(2000), 1000.0, 0.0);
+        assert_eq!(k.take_max(), 500);
+        let samples: Vec<Complex32> = (0..3000).map(|i| Complex32::new(i as f32, 0.0)).collect();
+        k.push(0, &samples);
+        let span = |start, end| Span { start, end, center_hz: 0.0, obw_hz: 1.0, noise_psd: None };
+        // Held: 1000..3000. A short emission whole; a long one from its start.
+        assert_eq!(k.cut(&span(1200, 1400)), Some((1200, 1400)));
+        assert_eq!(k.cut(&span(1200, 2900)), Some((1200, 1700)));
+        // Its start is gone: its newest samples.
+        assert_eq!(k.cut(&span(500, 2900)), Some((2400, 2900)));
+        assert_eq!(k.cut(&span(0, 900)), None);
+    }
+}
