@@ -370,6 +370,9 @@ fn constant_envelope(
             },
         );
     }
+    if let Some(d) = constant_envelope_psk(bb, ce) {
+        return d;
+    }
     match analog::fm_deviation(&bb.x, bb.rate_hz, bb.obw_hz) {
         Some(dev) => found(
             Class::Fm,
@@ -378,6 +381,52 @@ fn constant_envelope(
         ),
         None => unknown("constant envelope, but too short to follow its frequency"),
     }
+}
+
+/// Share of the power of `x` raised to the `m`-th power (at unit magnitude) in its strongest line.
+fn power_carrier(x: &[num_complex::Complex64], m: i32) -> f64 {
+    let y: Vec<num_complex::Complex64> = x
+        .iter()
+        .map(|v| {
+            let a = v.norm();
+            if a > 0.0 {
+                (v / a).powi(m)
+            } else {
+                num_complex::Complex64::new(0.0, 0.0)
+            }
+        })
+        .collect();
+    features::carrier_fraction(&y, 0.0)
+}
+
+/// Least share of x^M's power in one line for M-PSK, and most in the line of x^(M/2).
+pub const PSK_LINE: f64 = 0.5;
+pub const PSK_LOWER_LINE: f64 = 0.2;
+
+/// Unfiltered PSK keeps a constant envelope. Raising it to the M-th power wipes M-ary phase
+/// steps off and leaves a line (the M-th power method of carrier recovery, common practice),
+/// while the (M/2)-th power leaves none. Angle modulation gives no such pair: FM of index β
+/// raised to the M-th power keeps J0(Mβ)² of its power in the carrier (the Bessel expansion of
+/// e^{jMβ sin}), which is never above one half where J0(Mβ/2)² is below a fifth; continuous-phase
+/// FSK's lines split in two at least.
+fn constant_envelope_psk(bb: &baseband::Baseband, ce: f64) -> Option<Decision> {
+    let mut lower = power_carrier(&bb.x, 1);
+    for m in [2u32, 4, 8] {
+        let line = power_carrier(&bb.x, m as i32);
+        if line >= PSK_LINE && lower < PSK_LOWER_LINE {
+            let symbol_rate = rate::transition_rate(&bb.x, bb.rate_hz, bb.obw_hz);
+            let conf =
+                ce.min(margin(line, PSK_LINE, 0.1)).min(margin(PSK_LOWER_LINE - lower, 0.0, 0.05));
+            let params = ClassParams {
+                psk_order: Some(m),
+                symbol_rate_hz: symbol_rate,
+                ..ClassParams::default()
+            };
+            return Some(found(Class::Psk, conf, params));
+        }
+        lower = line;
+    }
+    None
 }
 
 fn varying_envelope(

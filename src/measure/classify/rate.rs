@@ -26,6 +26,33 @@ pub fn envelope_line(x: &[Complex64], rate_hz: f64, obw_hz: f64) -> Option<Line>
     find_line(&p, rate_hz, 0.4 * obw_hz, 1.05 * obw_hz).filter(|l| l.prominence >= LINE_PROMINENCE)
 }
 
+/// Symbol rate of a constant-envelope (unfiltered) PSK: the energy of the sample-to-sample
+/// change |x[n] − x[n−1]|² spikes at each symbol boundary where the phase steps, a train on the
+/// symbol clock whose spectrum has lines at multiples of the rate (common practice for
+/// rectangular-pulse PSK); the strongest may be a harmonic, so the lowest sub-multiple of it
+/// that is a line, with a line at twice it too, is the rate.
+pub fn transition_rate(x: &[Complex64], rate_hz: f64, obw_hz: f64) -> Option<f64> {
+    let d: Vec<f64> = x.windows(2).map(|w| (w[1] - w[0]).norm_sqr()).collect();
+    let lo = obw_hz / 40.0;
+    let hi = (1.05 * obw_hz).min(0.45 * rate_hz);
+    let strongest = find_line(&d, rate_hz, lo, hi).filter(|l| l.prominence >= LINE_PROMINENCE)?;
+    for k in (2..=8).rev() {
+        let f = strongest.freq_hz / k as f64;
+        if f < lo {
+            continue;
+        }
+        let line_at = |f: f64| {
+            find_line(&d, rate_hz, 0.97 * f, 1.03 * f)
+                .filter(|l| l.prominence >= LINE_PROMINENCE / 2.0)
+        };
+        // A rate has its second harmonic too; a chance peak below the lines has not.
+        if let (Some(l), Some(_)) = (line_at(f), line_at(2.0 * f)) {
+            return Some(l.freq_hz);
+        }
+    }
+    Some(strongest.freq_hz)
+}
+
 /// Power response of a root-raised-cosine filter (unit gain in the pass band) at `f` Hz.
 fn rrc_power(f: f64, symbol_rate: f64, alpha: f64) -> f64 {
     let a = f.abs();

@@ -74,3 +74,38 @@ fn class_names_round_trip() {
     let p = ClassParams { tones: Some(2), ..ClassParams::default() };
     assert_eq!(serde_json::to_string(&p).unwrap(), "{\"tones\":2}");
 }
+
+/// Unfiltered PSK at 20 dB SNR: constant envelope, abrupt phase steps of 2π/M (its definition).
+fn unfiltered_psk(m: u32, n: usize, sps: usize, seed: u64) -> Vec<Complex32> {
+    let mut rng = Rng::new(seed);
+    let mut x = noise(n, 0.01, seed + 1);
+    let mut phase = 0.0;
+    for (i, v) in x.iter_mut().enumerate() {
+        if i % sps == 0 {
+            phase = 2.0 * std::f64::consts::PI * rng.below(m as usize) as f64 / m as f64;
+        }
+        *v += Complex32::from_polar(1.0, phase as f32);
+    }
+    x
+}
+
+#[test]
+fn unfiltered_psk_is_psk_of_its_order_and_fm_stays_fm() {
+    for (m, seed) in [(2, 11), (4, 12), (8, 13)] {
+        // 5 kBd at 100 kS/s; the 99 % band of rectangular PSK is about 20 symbol rates wide.
+        let x = unfiltered_psk(m, 20_000, 20, seed);
+        let c = run(&x, 100e3, 0.0, 90e3, None);
+        assert_eq!((c.class, c.params.psk_order), (Class::Psk, Some(m)), "{m}-PSK: {c:?}");
+        let rate = c.params.symbol_rate_hz.unwrap_or(0.0);
+        assert!((rate - 5e3).abs() < 50.0, "{m}-PSK symbol rate {rate} Hz, sent 5000");
+    }
+    // Tone FM, β 2.5 (1 kHz tone, 2.5 kHz deviation): not a PSK.
+    let mut x = noise(20_000, 0.01, 5);
+    for (i, v) in x.iter_mut().enumerate() {
+        let t = i as f64 / 100e3;
+        let phi = 2.5 * (2.0 * std::f64::consts::PI * 1e3 * t).sin();
+        *v += Complex32::from_polar(1.0, phi as f32);
+    }
+    let c = run(&x, 100e3, 0.0, 8e3, None);
+    assert_eq!(c.class, Class::Fm, "{c:?}");
+}
