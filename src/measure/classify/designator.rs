@@ -28,6 +28,9 @@ use super::Class;
 
 /// The bandwidth part of a designator for `hz`.
 pub fn bandwidth_code(hz: f64) -> String {
+    // The bandwidth as the outputs print it (to 0.1 Hz from 1 Hz up), so the code always
+    // agrees with the `obw_hz` beside it: 7924.96 Hz is printed 7925.0 and coded 7K93.
+    let hz = if hz >= 1.0 { (hz * 10.0).round() / 10.0 } else { hz };
     if !(hz.is_finite() && hz > 0.0) || hz < 0.0005 {
         return "H000".into();
     }

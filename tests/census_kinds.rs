@@ -1,0 +1,73 @@
+//! The census names each emitter's kind: the single-emitter scenes of
+//! scripts/make-census-scenes.py (numpy/scipy, seeded; tests/reference/census/truth.json) were
+//! built as the classes below, so the class each was built as is the truth here. MSK bursts are
+//! left out: MSK is continuous-phase FSK of index ½, which the classifier reads as FM (README,
+//! limits).
+
+use serde_json::Value;
+use std::path::Path;
+use std::process::Command;
+
+fn census(file: &str, rate: f64) -> Value {
+    let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/reference/census");
+    let o = Command::new(env!("CARGO_BIN_EXE_bandwarden"))
+        .arg("census")
+        .arg(dir.join(file))
+        .args(["--format", "ci8", "--rate", &rate.to_string(), "--json"])
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{file}: {}", String::from_utf8_lossy(&o.stderr));
+    serde_json::from_slice(&o.stdout).unwrap()
+}
+
+#[test]
+fn each_single_emitter_scene_is_named_the_class_it_was_built_as() {
+    let truth: Value = serde_json::from_slice(
+        &std::fs::read(
+            Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/reference/census/truth.json"),
+        )
+        .unwrap(),
+    )
+    .unwrap();
+    // (scene, class, designator's first symbol by ITU RR App. 1 for that class)
+    let built = [
+        ("ofdm.ci8", "ofdm", 'D'),
+        ("pulse-train.ci8", "pulsed", 'P'),
+        ("fsk4.ci8", "fsk", 'F'),
+        ("keyed-fm.ci8", "fm", 'F'),
+        ("qpsk-bursts.ci8", "psk", 'G'),
+        ("qam16.ci8", "qam", 'D'),
+        ("am.ci8", "am", 'A'),
+        ("cw.ci8", "cw", 'N'),
+        ("keyed-cw.ci8", "cw", 'N'),
+        ("wide-bursts.ci8", "noise", 'X'),
+        ("bpsk.ci8", "psk", 'G'),
+    ];
+    for (file, class, symbol) in built {
+        let scene = truth["scenes"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|s| s["file"] == file)
+            .unwrap_or_else(|| panic!("{file} not in truth.json"));
+        let v = census(file, scene["rate_hz"].as_f64().unwrap());
+        let e = &v["emitters"][0];
+        assert_eq!(e["class"], class, "{file}: {e}");
+        let d = e["designator"].as_str().unwrap();
+        let code = bandwarden::measure::classify::bandwidth_code(e["obw_hz"].as_f64().unwrap());
+        assert!(d.starts_with(&code), "{file}: designator {d}, bandwidth code {code}");
+        assert_eq!(d[code.len()..].chars().next(), Some(symbol), "{file}: {d}");
+    }
+    // Parameters against the scenes' construction (truth.json "what").
+    let fsk = &census("fsk4.ci8", 250e3)["emitters"][0]["class_params"];
+    assert_eq!(fsk["tones"], 4);
+    assert!((fsk["symbol_rate_hz"].as_f64().unwrap() - 2400.0).abs() < 24.0, "{fsk}");
+    assert!((fsk["shift_hz"].as_f64().unwrap() - 2400.0).abs() < 120.0, "{fsk}");
+    let bpsk = &census("bpsk.ci8", 250e3)["emitters"][0]["class_params"];
+    assert_eq!(bpsk["psk_order"], 2);
+    assert!((bpsk["symbol_rate_hz"].as_f64().unwrap() - 5000.0).abs() < 50.0, "{bpsk}");
+    let ofdm = &census("ofdm.ci8", 250e3)["emitters"][0]["class_params"];
+    assert!((ofdm["subcarrier_spacing_hz"].as_f64().unwrap() - 1000.0).abs() < 10.0, "{ofdm}");
+    let pulses = &census("pulse-train.ci8", 500e3)["emitters"][0]["class_params"];
+    assert!((pulses["pri_s"].as_f64().unwrap() - 2e-3).abs() < 2e-5, "{pulses}");
+}
