@@ -21,7 +21,7 @@ use std::time::{Duration, Instant};
 /// Longest stretch of one emission classified, seconds.
 pub const TAKE_S: f64 = 0.5;
 /// Most samples of one emission classified.
-pub const TAKE_MAX: usize = 1 << 20;
+pub const TAKE_MAX: usize = 1 << 18;
 
 /// Where an emission lay, in the stream and in frequency.
 #[derive(Clone, Copy, Debug, PartialEq)]
