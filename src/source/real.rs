@@ -11,7 +11,9 @@
 //! 3. keep every other sample.
 //!
 //! The result has rate fs/2 and covers 0 … fs/2 of the real signal: its centre frequency is the
-//! recording's frequency plus fs/4. The filter is a windowed sinc of [`TAPS`] taps with a
+//! recording's frequency plus fs/4. The source keeps naming the real datatype (messages about
+//! the input name what was read); recordings of it are written in its complex twin.
+//! The filter is a windowed sinc of [`TAPS`] taps with a
 //! 4-term Blackman–Harris window (Harris 1978: −92 dB side lobes), so the band within about
 //! 2.5 % of fs of 0 Hz or of fs/2 is in the filter's transition: a signal there is attenuated and
 //! its mirror not fully removed. The filter's delay is taken off, so a sample's time stamp is
@@ -76,7 +78,6 @@ impl HalfRate {
         let fs = info.sample_rate_hz;
         info.sample_rate_hz = fs / 2.0;
         info.center_hz += fs / 4.0;
-        info.format = info.format.map(|f| f.complex_twin());
         info.total_samples = info.total_samples.map(|n| n.div_ceil(2));
         for s in &mut info.segments {
             s.sample_start = s.sample_start.div_ceil(2);

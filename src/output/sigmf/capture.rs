@@ -145,7 +145,7 @@ impl Captures {
         Ok(Captures {
             set,
             plan: plan.clone(),
-            format: format.unwrap_or(SampleFormat::Cf32Le),
+            format: format.map(SampleFormat::complex_twin).unwrap_or(SampleFormat::Cf32Le),
             block_len: block_len.max(1),
             post: Post::default(),
             ring: IqHistory::new(1),

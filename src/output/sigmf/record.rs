@@ -104,7 +104,7 @@ impl Recorder {
         Ok(Recorder {
             meta_path,
             data: Some(data),
-            format: format.unwrap_or(SampleFormat::Cf32Le),
+            format: format.map(SampleFormat::complex_twin).unwrap_or(SampleFormat::Cf32Le),
             block_len: block_len.max(1),
             writer: None,
             status: Arc::default(),
