@@ -356,6 +356,9 @@ fn wrong_format_streams_into_log_stop_with_input_error_and_a_small_log() {
         (Cu8, Ci16Le),
         (Cu8, Ci16Be),
         (Ci16Le, Cu8),
+        (Ci16Le, Ci16Be),
+        (Ci16Be, Ci16Le),
+        (Ci32Le, Ci32Be),
     ];
     // Noise at a receiver's usual level (−30 dBFS), from the shared test kit.
     let x = bandwarden::testkit::noise(400_000, 1e-3, 21);

@@ -133,6 +133,7 @@ impl RawSource {
                 self.bytes[..rest.len()].copy_from_slice(&bytes[rest.clone()]);
                 format::screen(&mut out[..whole])
             } else {
+                self.check.look_bytes(&self.bytes[..whole * bps]);
                 let screened = self.format.decode(&self.bytes[..whole * bps], out);
                 self.bytes.copy_within(rest.clone(), 0);
                 screened
