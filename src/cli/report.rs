@@ -25,8 +25,8 @@ pub struct ReportArgs {
     /// Only what starts before this time (same forms as --from).
     #[arg(long, value_name = "TIME")]
     pub to: Option<String>,
-    /// Zone of the times, hours and heat map: UTC (default) or a fixed offset such as +01:00
-    /// (no daylight-saving rules).
+    /// Zone of the times, hours and heat map: UTC (default), a fixed offset such as +01:00, or
+    /// an IANA zone name such as Europe/Berlin (with its daylight-saving rules).
     #[arg(long, value_name = "ZONE", default_value = "UTC")]
     pub tz: String,
     /// CSV (one row per channel, the hours as columns) instead of the table.
@@ -108,8 +108,8 @@ impl ReportArgs {
         }
         let thresholds = self.change.validate()?;
         let zone: Zone = parse_zone(&self.tz)?;
-        let from = self.from.as_deref().map(|t| parse_instant(t, zone, "--from")).transpose()?;
-        let to = self.to.as_deref().map(|t| parse_instant(t, zone, "--to")).transpose()?;
+        let from = self.from.as_deref().map(|t| parse_instant(t, &zone, "--from")).transpose()?;
+        let to = self.to.as_deref().map(|t| parse_instant(t, &zone, "--to")).transpose()?;
         if let (Some(f), Some(t)) = (from, to) {
             if t <= f {
                 bail!("--to must come after --from");
@@ -186,6 +186,10 @@ mod tests {
         assert_eq!(c.settings.sites.map("mast").as_deref(), Some("ridge"));
         assert!(parse(&["a.jsonl", "--from", "2026-12-04", "--to", "2026-12-03"]).is_err());
         assert!(parse(&["a.jsonl", "--tz", "Mars/Olympus"]).is_err());
+        assert_eq!(
+            parse(&["a.jsonl", "--tz", "Europe/Berlin"]).unwrap().settings.zone.label(),
+            "Europe/Berlin"
+        );
         assert!(parse(&["a.jsonl", "--from", "yesterday"]).is_err());
     }
 }

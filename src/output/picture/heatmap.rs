@@ -133,7 +133,7 @@ fn draw_on<DB: DrawingBackend>(
     let n_cols = g.keys.len().max(1) as f64;
     let longest = g.rows.iter().map(|r| r.0.chars().count()).max().unwrap_or(4);
     let left = (longest as u32 * 8 + 20).clamp(60, 400);
-    let zone = summary.settings.zone;
+    let zone = &summary.settings.zone;
     let x_desc = match g.columns {
         Columns::HourOfDay => format!("hour of day, {} (all days summed)", zone.label()),
         Columns::HourFromStart => {

@@ -39,7 +39,7 @@ fn hz(x: Option<f64>) -> Option<f64> {
 /// The CSV: one row per channel, the hours as columns `h22`, `h23`, `h00`… in the order of the
 /// axis (a night in order), or from the start of the run without clock times.
 pub fn to_csv(summary: &LogSummary) -> String {
-    let zone = summary.settings.zone;
+    let zone = &summary.settings.zone;
     let hours = summary.hour_axis();
     let mut out = String::from(
         "site,channel,center_hz,width_hz,occupancy_pct,samples,occupied_samples,dropped_samples,observed_s,lost_s,emissions,duration_median_s,duration_p90_s,duration_max_s,mean_dbfs,peak_dbfs,busy_hour,busy_hour_occupancy_pct,last_heard,noise_floor_start,noise_floor_median,noise_floor_end",
@@ -103,7 +103,7 @@ fn csv_text(s: &str) -> String {
 /// gaps), `channels[]` (each with `site, name, occupancy_pct, emissions, hours[]` and the rest),
 /// `notes`.
 pub fn to_json(summary: &LogSummary) -> Value {
-    let zone = summary.settings.zone;
+    let zone = &summary.settings.zone;
     let at = |t: Option<f64>| t.and_then(|t| zone.rfc3339(t));
     let axis = summary.hour_axis();
     let channels: Vec<Value> = ordered(summary)

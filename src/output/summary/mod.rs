@@ -277,7 +277,7 @@ impl LogSummary {
             return;
         }
         self.records += 1;
-        let zone = self.settings.zone;
+        let zone = &self.settings.zone;
         let ch = self.channels.entry((site.clone(), name.clone())).or_insert_with(|| ChannelSum {
             site,
             name,

@@ -31,7 +31,7 @@ fn opt(x: Option<f64>, decimals: usize) -> String {
 
 /// The text report.
 pub fn to_table(summary: &LogSummary) -> String {
-    let zone = summary.settings.zone;
+    let zone = &summary.settings.zone;
     let mut out = String::new();
     let _ = writeln!(
         out,
@@ -56,7 +56,7 @@ pub fn to_table(summary: &LogSummary) -> String {
 }
 
 fn coverage_text(out: &mut String, summary: &LogSummary, c: &SiteCoverage) {
-    let zone = summary.settings.zone;
+    let zone = &summary.settings.zone;
     let _ = writeln!(out, "\nSite {}", c.site);
     let period = match c.period {
         Some((a, b)) => format!(
@@ -188,7 +188,7 @@ fn aligned(out: &mut String, rows: &[Vec<String>], text_columns: usize) {
 }
 
 fn heard_text(out: &mut String, summary: &LogSummary) {
-    let zone = summary.settings.zone;
+    let zone = &summary.settings.zone;
     let sites = summary.sites.len() > 1;
     let when = |t: Option<f64>| t.map_or("time unknown".to_string(), |t| zone.format(t));
     let _ = writeln!(
