@@ -297,6 +297,18 @@ pub fn format_clock(t_s: f64) -> String {
     }
 }
 
+/// `x` rounded to `decimals` places, for output that reads like the measurement's precision
+/// (never `-0`).
+pub fn round_dp(x: f64, decimals: i32) -> f64 {
+    let k = 10f64.powi(decimals);
+    let r = (x * k).round() / k;
+    if r == 0.0 {
+        0.0
+    } else {
+        r
+    }
+}
+
 /// `x` rounded to `digits` significant figures (`2_398_123.0` to 3 is `2_400_000.0`); zero and
 /// non-finite values are returned as they are.
 pub fn round_significant(x: f64, digits: i32) -> f64 {

@@ -327,3 +327,73 @@ fn tone_is_found_and_quit_restores_the_terminal_at_160x48() {
 fn sigterm_also_restores_the_terminal() {
     run_at(100, 30, End::Sigterm);
 }
+
+/// Channel alarms in the demo scene (src/source/demo.rs is its truth): the steady beacon
+/// (−32 dBFS) stays over a −50 dBFS threshold, so it is one alarm from the start until the monitor
+/// closes; in the telemetry channel the noise (about −54 dBFS) stays under −45 dBFS and the bursts
+/// (−34 dBFS, 40 and 80 ms, gaps over 1 s) each open an alarm that ends after the 300 ms
+/// hold-off. Every opening has its end record.
+#[test]
+fn channel_alarms_open_once_and_end_after_the_hold_off() {
+    if !tmux_available() {
+        assert!(std::env::var("CI").is_err(), "tmux is not installed");
+        eprintln!("skipping the tmux end-to-end test: tmux is not installed");
+        return;
+    }
+    let dir = std::env::temp_dir().join(format!("bw-e2e-alarms-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let plan = dir.join("plan.toml");
+    std::fs::write(
+        &plan,
+        "[[channel]]\nname = \"beacon\"\ncenter = \"433.575M\"\nwidth = \"5k\"\nalarm_dbfs = -50\n\n\
+         [[channel]]\nname = \"telem\"\ncenter = \"433.6375M\"\nwidth = \"12.5k\"\nalarm_dbfs = -45\n",
+    )
+    .unwrap();
+    let log = dir.join("alarms.jsonl");
+    let _ = std::fs::remove_file(&log);
+    let (rec, _) = demo_files();
+    let tmux = Tmux::start("alarms", 120, 40);
+    tmux.wait_for("the shell prompt", Duration::from_secs(10), |s| !s.trim().is_empty());
+    let line = format!(
+        "{} watch {rec} --loop --plan {} --alarm-log {} --alarm-hold 300ms; echo BW-DONE-$?",
+        env!("CARGO_BIN_EXE_bandwarden"),
+        plan.display(),
+        log.display()
+    );
+    tmux.keys(&[&line, "Enter"]);
+    tmux.wait_for("the signal table", Duration::from_secs(60), |s| s.contains("Power dBFS"));
+    // Wait for two telemetry alarms to end, then quit.
+    let t0 = Instant::now();
+    while std::fs::read_to_string(&log).unwrap_or_default().matches("\"telem\"").count() < 4 {
+        assert!(t0.elapsed() < Duration::from_secs(30), "too few telemetry alarms");
+        std::thread::sleep(Duration::from_millis(200));
+    }
+    tmux.keys(&["q"]);
+    tmux.wait_for("the shell after quitting", Duration::from_secs(20), |s| s.contains("BW-DONE-0"));
+    let text = std::fs::read_to_string(&log).unwrap();
+    let recs: Vec<serde_json::Value> =
+        text.lines().map(|l| serde_json::from_str(l).unwrap()).collect();
+    let of = |name: &str| -> Vec<&serde_json::Value> {
+        recs.iter().filter(|r| r["channel"] == name).collect()
+    };
+    let beacon = of("beacon");
+    assert_eq!(beacon.len(), 2, "{text}");
+    assert_eq!(
+        (beacon[0]["kind"].as_str(), beacon[1]["kind"].as_str()),
+        (Some("alarm"), Some("alarm_end"))
+    );
+    assert_eq!(beacon[1]["ended"], "closed", "{text}");
+    let telem = of("telem");
+    for pair in telem.chunks(2) {
+        assert_eq!(pair[0]["kind"], "alarm", "{text}");
+        if let Some(end) = pair.get(1) {
+            assert_eq!(end["kind"], "alarm_end", "{text}");
+            // A burst of at most 80 ms: its first and last rows over lie well within 0.3 s.
+            assert!(end["duration_s"].as_f64().unwrap() < 0.3, "{text}");
+            let peak = end["peak_power_dbfs"].as_f64().unwrap();
+            assert!(peak > -45.0 && peak < -25.0, "{text}");
+        }
+    }
+    assert!(telem.iter().filter(|r| r["ended"] == "quiet").count() >= 2, "{text}");
+    let _ = std::fs::remove_dir_all(&dir);
+}

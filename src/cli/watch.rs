@@ -52,10 +52,14 @@ pub struct WatchArgs {
     /// Leave the mouse to the terminal (e.g. for selecting text) instead of placing markers.
     #[arg(long)]
     pub no_mouse: bool,
-    /// Append a JSON Lines record to FILE at each channel-alarm onset (alarms come from the
-    /// plan's alarm_dbfs or the A key).
+    /// Append a JSON Lines record to FILE when a channel alarm opens and when it ends (alarms
+    /// come from the plan's alarm_dbfs or the A key).
     #[arg(long, value_name = "FILE")]
     pub alarm_log: Option<String>,
+    /// How long a channel's power must stay under its alarm threshold before the alarm ends
+    /// (key-ups closer together than this are one alarm).
+    #[arg(long, value_name = "DURATION", default_value = "5s", allow_hyphen_values = true, value_parser = crate::units::parse_duration)]
+    pub alarm_hold: std::time::Duration,
     /// Folder for the files the e (evidence) and g (picture) keys write; it must exist and be
     /// writable (checked at start).
     #[arg(long, value_name = "DIR", default_value = ".")]
@@ -104,6 +108,8 @@ pub struct WatchConfig {
     pub scroll_region: bool,
     pub mouse: bool,
     pub alarm_log: Option<String>,
+    /// The channel-alarm hold-off, seconds.
+    pub alarm_hold_s: f64,
     /// Where `e` and `g` write their files.
     pub evidence_dir: String,
     /// How signals are told from noise.
@@ -149,6 +155,7 @@ impl WatchArgs {
             scroll_region: !self.no_scroll_region,
             mouse: !self.no_mouse,
             alarm_log: self.alarm_log,
+            alarm_hold_s: self.alarm_hold.as_secs_f64(),
             evidence_dir: self.evidence_dir,
             detection,
             record: self.record.validate()?,

@@ -97,7 +97,8 @@ pub fn run(cfg: WatchConfig) -> Result<ExitCode> {
     let mut app = App::new(summary, cfg.rows, depth, cfg.ref_offset, marks, Instant::now())
         .with_detection(cfg.detection)
         .with_files_dir(&cfg.evidence_dir)
-        .with_kinds(kinds);
+        .with_kinds(kinds)
+        .with_alarm_hold(cfg.alarm_hold_s);
     if let Some(path) = &cfg.alarm_log {
         app = app.with_alarm_log(AlarmLog::new(sink::open(path, true, "alarm log")?.out));
     }

@@ -14,6 +14,7 @@ use crate::output::sigmf::capture::Trigger;
 use crate::pipeline::kinds::{Kinds, Span};
 use crate::pipeline::{Consumer, Flow, GapCause, Letter, Post, RunEnd, RunInfo};
 use crate::source::reader::Block;
+use crate::units::round_dp as round;
 use serde_json::json;
 use std::collections::HashMap;
 use std::fmt::Write as _;
@@ -322,12 +323,6 @@ pub fn capture_list(captures: &[CaptureRecord]) -> serde_json::Value {
     let list: Vec<serde_json::Value> =
         captures.iter().filter_map(|c| serde_json::to_value(c).ok()).collect();
     serde_json::Value::Array(list)
-}
-
-/// Rounds to `digits` decimals, for output that reads like the measurement's precision.
-fn round(x: f64, digits: i32) -> f64 {
-    let k = 10f64.powi(digits);
-    (x * k).round() / k
 }
 
 /// The census as exactly one JSON object (strongest emitter first).

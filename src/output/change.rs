@@ -4,6 +4,7 @@
 use crate::measure::change::merge::merge;
 use crate::measure::change::{compare, Change, Comparison, Inventory, Kind, Thresholds};
 use crate::messages::sanitize;
+use crate::units::round_dp as round;
 use anyhow::{anyhow, Context, Result};
 use serde_json::{json, Value};
 use std::fmt::Write as _;
@@ -63,16 +64,6 @@ pub fn save_baseline(path: &str, run: &Inventory) -> Result<u32> {
     };
     write().with_context(|| format!("cannot write the baseline '{shown}'"))?;
     Ok(merged.runs)
-}
-
-fn round(x: f64, digits: i32) -> f64 {
-    let k = 10f64.powi(digits);
-    let r = (x * k).round() / k;
-    if r == 0.0 {
-        0.0
-    } else {
-        r
-    }
 }
 
 /// Numbers of a before/after object rounded to what they mean (Hz to 0.1, levels and shares to

@@ -10,7 +10,11 @@
 //! [`crate::measure::noise::tracker`], so the two can differ by a fraction of a dB).
 //!
 //! An alarm threshold (dBFS of channel power, from the plan's `alarm_dbfs` or set with a key) is
-//! watched here too: each crossing from below is one onset, which the monitor rings once.
+//! watched here too. An alarm opens when the power passes the threshold from below (the onset,
+//! which the monitor rings once) and ends when the power has stayed at or under it for the
+//! hold-off ([`DEFAULT_ALARM_HOLD_S`] of input unless set): a voice channel's key-ups a few
+//! seconds apart are one alarm, not one per transmission (the hang time of a squelch, common
+//! practice). Its end is reported with how long it lasted and its highest power.
 
 use super::state::ChannelMark;
 use crate::dsp::Spectrum;
@@ -20,6 +24,29 @@ use std::collections::VecDeque;
 
 /// The window of input over which busy % is counted, seconds.
 pub const BUSY_WINDOW_S: f64 = 60.0;
+
+/// How long a channel's power must stay at or under its alarm threshold before the alarm ends,
+/// seconds of input.
+pub const DEFAULT_ALARM_HOLD_S: f64 = 5.0;
+
+/// A channel alarm opening or ending with a row.
+#[derive(Clone, Debug, PartialEq)]
+pub enum AlarmEvent {
+    /// The power passed the threshold from below, with no alarm open.
+    Onset { channel: usize },
+    /// The power stayed at or under the threshold for the hold-off (or the threshold was
+    /// cleared): the alarm lasted from `start_s` to `end_s` (seconds of input, the end being
+    /// the last row over the threshold) and peaked at `peak_dbfs`.
+    End { channel: usize, start_s: f64, end_s: f64, peak_dbfs: f64 },
+}
+
+/// An open alarm: when it started, when the power was last over the threshold, its peak.
+#[derive(Clone, Debug, PartialEq)]
+struct OpenAlarm {
+    start_s: f64,
+    last_over_s: f64,
+    peak_dbfs: f64,
+}
 
 /// One channel's recent activity.
 #[derive(Clone, Debug, Default, PartialEq)]
@@ -33,8 +60,10 @@ pub struct ChannelState {
     occupied_in_window: usize,
     /// End sample of the newest occupied row.
     pub last_heard: Option<u64>,
-    /// The channel's power is over its alarm threshold now.
+    /// An alarm is open on the channel (its power is over the threshold, or was within the
+    /// hold-off).
     pub alarm_on: bool,
+    open_alarm: Option<OpenAlarm>,
 }
 
 impl ChannelState {
@@ -64,27 +93,57 @@ impl ChannelState {
 }
 
 /// Activity of every channel, in plan order.
-#[derive(Clone, Debug, Default, PartialEq)]
+#[derive(Clone, Debug, PartialEq)]
 pub struct ChannelActivity {
     pub channels: Vec<ChannelState>,
+    /// The alarm hold-off, seconds of input.
+    pub hold_s: f64,
+}
+
+impl Default for ChannelActivity {
+    fn default() -> ChannelActivity {
+        ChannelActivity::new(0)
+    }
 }
 
 impl ChannelActivity {
     pub fn new(n: usize) -> ChannelActivity {
-        ChannelActivity { channels: vec![ChannelState::default(); n] }
+        ChannelActivity { channels: vec![ChannelState::default(); n], hold_s: DEFAULT_ALARM_HOLD_S }
+    }
+
+    /// Ends every open alarm now (the monitor closing, or a threshold cleared), at the last row
+    /// over its threshold.
+    pub fn end_alarms(&mut self, only: Option<usize>) -> Vec<AlarmEvent> {
+        let mut ended = Vec::new();
+        for (i, st) in self.channels.iter_mut().enumerate() {
+            if only.is_some_and(|o| o != i) {
+                continue;
+            }
+            if let Some(a) = st.open_alarm.take() {
+                st.alarm_on = false;
+                ended.push(AlarmEvent::End {
+                    channel: i,
+                    start_s: a.start_s,
+                    end_s: a.last_over_s,
+                    peak_dbfs: a.peak_dbfs,
+                });
+            }
+        }
+        ended
     }
 
     /// Takes one row. `floor_density` is the noise density (FS²/Hz); without it occupancy is
-    /// not judged yet (power is still shown). Returns the indices of channels whose alarm
-    /// started with this row.
+    /// not judged yet (power is still shown). Returns the alarms that opened or ended with
+    /// this row.
     pub fn push(
         &mut self,
         row: &Spectrum,
         marks: &[ChannelMark],
         floor_density: Option<f64>,
-    ) -> Vec<usize> {
+    ) -> Vec<AlarmEvent> {
         let time_s = row.end_sample as f64 / row.sample_rate_hz;
-        let mut onsets = Vec::new();
+        let hold_s = self.hold_s;
+        let mut events = Vec::new();
         for (i, (st, ch)) in self.channels.iter_mut().zip(marks).enumerate() {
             let def = ChannelDef {
                 low_hz: ch.center_hz - 0.5 * ch.width_hz,
@@ -104,12 +163,31 @@ impl ChannelActivity {
                 }
             }
             let over = ch.alarm_dbfs.is_some_and(|a| st.power_dbfs.is_some_and(|p| p > a));
-            if over && !st.alarm_on {
-                onsets.push(i);
+            let power = st.power_dbfs.unwrap_or(f64::NEG_INFINITY);
+            match (&mut st.open_alarm, over) {
+                (Some(a), true) => {
+                    a.last_over_s = time_s;
+                    a.peak_dbfs = a.peak_dbfs.max(power);
+                }
+                (Some(a), false) if time_s - a.last_over_s >= hold_s => {
+                    let a = st.open_alarm.take().expect("matched Some");
+                    events.push(AlarmEvent::End {
+                        channel: i,
+                        start_s: a.start_s,
+                        end_s: a.last_over_s,
+                        peak_dbfs: a.peak_dbfs,
+                    });
+                }
+                (None, true) => {
+                    st.open_alarm =
+                        Some(OpenAlarm { start_s: time_s, last_over_s: time_s, peak_dbfs: power });
+                    events.push(AlarmEvent::Onset { channel: i });
+                }
+                _ => {}
             }
-            st.alarm_on = over;
+            st.alarm_on = st.open_alarm.is_some();
         }
-        onsets
+        events
     }
 }
 
@@ -180,15 +258,39 @@ mod tests {
     }
 
     #[test]
-    fn alarms_ring_once_per_onset() {
+    fn an_alarm_holds_over_short_gaps_and_ends_after_the_hold_off() {
+        // Rows one second apart (row k ends at k + 1 s); a 5 s hold-off. Over the threshold in
+        // rows 1-2, under in 3-4 (2 s: within the hold), over in 5, then under: the last row
+        // over ends at 6 s, so the alarm ends with row 10, the first to end 5 s after it. A
+        // burst in row 20 opens a new alarm.
         let m = [mark(Some(-30.0))];
         let mut a = ChannelActivity::new(1);
-        let mut onsets = 0;
-        for (k, busy) in [false, true, true, false, true].into_iter().enumerate() {
-            onsets += a.push(&row(if busy { 1e-6 } else { 0.0 }, k as u64 + 1), &m, None).len();
+        let rate = 1.024e6;
+        let mut events = Vec::new();
+        for k in 0..25u64 {
+            let busy = matches!(k, 1 | 2 | 5 | 20);
+            let end = ((k + 1) as f64 * rate) as u64;
+            for e in a.push(&row(if busy { 1e-6 } else { 0.0 }, end), &m, None) {
+                events.push((k, e));
+            }
         }
-        assert_eq!(onsets, 2);
+        assert_eq!(events.len(), 3, "{events:?}");
+        assert_eq!(events[0], (1, AlarmEvent::Onset { channel: 0 }));
+        let (k, AlarmEvent::End { start_s, end_s, peak_dbfs, .. }) = &events[1] else {
+            panic!("{events:?}");
+        };
+        // The last row over ends at 6 s; the alarm ends with the row ending 5 s later (11 s).
+        assert_eq!(*k, 10);
+        assert!((start_s - 2.0).abs() < 1e-9 && (end_s - 6.0).abs() < 1e-9, "{start_s} {end_s}");
+        assert!((peak_dbfs - db(1e-2 + 1e-5)).abs() < 1e-9);
+        assert_eq!(events[2], (20, AlarmEvent::Onset { channel: 0 }));
         assert!(a.channels[0].alarm_on);
+        // Closing ends it where it was last over.
+        let ended = a.end_alarms(None);
+        assert!(
+            matches!(ended[..], [AlarmEvent::End { end_s, .. }] if (end_s - 21.0).abs() < 1e-9)
+        );
+        assert!(!a.channels[0].alarm_on);
         // Without a floor, occupancy is not judged.
         assert_eq!(a.channels[0].busy_pct(), None);
     }

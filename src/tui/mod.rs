@@ -75,6 +75,8 @@ pub fn run(
         let (mut term, _guard) = term::init(opts.mouse)?;
         event_loop(&mut term, &mut app, dsp, reader, opts, &watch, &mut first_frame)
     };
+    // Open alarms end with the monitor, each with its record.
+    app.close_alarms();
     // A failed alarm log was said on screen; it is an error of the run too.
     let result = match app.alarm_log_error() {
         Some(e) if result.is_ok() => {

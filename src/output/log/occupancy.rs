@@ -15,6 +15,7 @@ use crate::pipeline::{Consumer, GapCause, Letter, RunEnd, RunInfo};
 use crate::plan::Plan;
 use crate::source::reader::Block;
 use crate::units::db;
+use crate::units::round_dp as round_to;
 use std::io::{self, Write};
 use time::OffsetDateTime;
 
@@ -379,11 +380,6 @@ impl<W: Write> OccupancyLog<W> {
 /// [`GAP_MERGE_S`] in samples of the run's input.
 fn merge_window(run: &RunInfo) -> u64 {
     ((GAP_MERGE_S * run.clock.rate).round() as u64).max(1)
-}
-
-fn round_to(x: f64, decimals: i32) -> f64 {
-    let f = 10f64.powi(decimals);
-    (x * f).round() / f
 }
 
 #[cfg(test)]

@@ -9,16 +9,7 @@ use crate::output::summary::{is_thin, percentile, ChannelSum, Heard, LogSummary}
 use serde_json::{json, Value};
 use std::fmt::Write as _;
 
-/// `x` rounded to `decimals` places.
-pub fn round(x: f64, decimals: i32) -> f64 {
-    let k = 10f64.powi(decimals);
-    let r = (x * k).round() / k;
-    if r == 0.0 {
-        0.0 // no "-0"
-    } else {
-        r
-    }
-}
+pub use crate::units::round_dp as round;
 
 fn pct(x: Option<f64>) -> Option<f64> {
     x.map(|v| round(v, 3))

@@ -18,6 +18,7 @@ mod parts;
 mod picture;
 mod views;
 
+use super::channels::AlarmEvent;
 use super::colour::Depth;
 use super::history::{History, Row, HISTORY_BYTES};
 use super::input::Intent;
@@ -231,6 +232,33 @@ impl App {
     }
 
     /// The error that stopped the alarm log, if one did.
+    /// The channel-alarm hold-off, seconds of input.
+    pub fn with_alarm_hold(mut self, hold_s: f64) -> App {
+        self.plan.activity.hold_s = hold_s;
+        self
+    }
+
+    /// Ends every open channel alarm as the monitor closes, with its record.
+    pub fn close_alarms(&mut self) {
+        let ended = self.plan.activity.end_alarms(None);
+        self.log_alarms(&ended, self.last_row_end(), "closed");
+    }
+
+    /// Records alarm events; says once on screen when the alarm log fails.
+    fn log_alarms(&mut self, events: &[AlarmEvent], end: u64, why_ended: &str) {
+        if events.is_empty() {
+            return;
+        }
+        if let Some(e) = self.plan.log_alarms(events, end, &self.times, why_ended) {
+            self.say(format!("alarm log: {e}; no more records are written"));
+        }
+    }
+
+    /// The end sample of the newest row taken (0 before the first).
+    fn last_row_end(&self) -> u64 {
+        self.stats.position_s.map_or(0, |s| (s * self.times.clock.rate).round() as u64)
+    }
+
     pub fn alarm_log_error(&mut self) -> Option<String> {
         self.plan.alarm_log.as_mut().and_then(|l| l.failed.take())
     }
@@ -253,13 +281,11 @@ impl App {
         self.stats.rows += 1;
         self.stats.rows_total += 1;
         self.history.push(Row::from_spectrum(&spec));
-        let onsets = self.plan.activity.push(&spec, &self.plan.marks, self.measured.floor_density);
-        if !onsets.is_empty() {
+        let events = self.plan.activity.push(&spec, &self.plan.marks, self.measured.floor_density);
+        if events.iter().any(|e| matches!(e, AlarmEvent::Onset { .. })) {
             self.alerts.bells += 1;
-            if let Some(e) = self.plan.log_onsets(&onsets, spec.end_sample, &self.times) {
-                self.say(format!("alarm log: {e}; no more records are written"));
-            }
         }
+        self.log_alarms(&events, spec.end_sample, "quiet");
         if self.mode == Mode::Frozen {
             return;
         }
@@ -412,7 +438,20 @@ impl App {
             Intent::SortNext => self.next_sort(),
             Intent::ToggleChannels => self.toggle_channels(),
             Intent::ToggleAlarm => {
+                let before: Vec<bool> =
+                    self.plan.marks.iter().map(|m| m.alarm_dbfs.is_some()).collect();
                 let msg = self.plan.toggle_alarm(self.markers.at, self.measured.floor_density);
+                // A threshold cleared ends its channel's open alarm.
+                let cleared = self
+                    .plan
+                    .marks
+                    .iter()
+                    .zip(before)
+                    .position(|(m, b)| b && m.alarm_dbfs.is_none());
+                if let Some(i) = cleared {
+                    let ended = self.plan.activity.end_alarms(Some(i));
+                    self.log_alarms(&ended, self.last_row_end(), "cleared");
+                }
                 self.say(msg);
             }
             Intent::WriteEvidence => self.evidence_key(),

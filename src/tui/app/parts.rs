@@ -2,7 +2,7 @@
 //! fields are visible to the `app` module only; widgets read plain views built from them
 //! (`app::views`).
 
-use super::super::channels::ChannelActivity;
+use super::super::channels::{AlarmEvent, ChannelActivity};
 use super::super::colour::{Depth, MapKind, Palette, Theme};
 use super::super::layout::Screen;
 use super::super::state::{AlarmLog, BandReading, ChannelMark, SortKey, TableMode};
@@ -147,21 +147,27 @@ impl PlanState {
         self.marks.iter().find(|c| c.contains(freq_hz))
     }
 
-    /// Records the alarm onsets of channels `onsets` at the row ending before sample `end`;
-    /// returns the error of the log, once, when a write fails.
-    pub(super) fn log_onsets(
+    /// Records the alarm onsets and ends of `events`, at the row ending before sample `end`
+    /// (`why_ended`: `quiet` when the hold-off passed, `cleared`, `closed`); returns the error of
+    /// the log, once, when a write fails.
+    pub(super) fn log_alarms(
         &mut self,
-        onsets: &[usize],
+        events: &[AlarmEvent],
         end: u64,
         times: &super::super::timeline::TimeBase,
+        why_ended: &str,
     ) -> Option<String> {
         let log = self.alarm_log.as_mut()?;
         let was_failed = log.failed.is_some();
-        for &i in onsets {
+        let hold_s = self.activity.hold_s;
+        for e in events {
+            let i = match e {
+                AlarmEvent::Onset { channel } | AlarmEvent::End { channel, .. } => *channel,
+            };
             let (Some(ch), Some(st)) = (self.marks.get(i), self.activity.channels.get(i)) else {
                 continue;
             };
-            let v = serde_json::json!({
+            let mut v = serde_json::json!({
                 "kind": "alarm",
                 "time": times.utc_at(end).and_then(rfc3339_ms),
                 "input_s": times.clock.seconds(end),
@@ -171,6 +177,26 @@ impl PlanState {
                 "power_dbfs": st.power_dbfs,
                 "threshold_dbfs": ch.alarm_dbfs,
             });
+            if let AlarmEvent::End { start_s, end_s, peak_dbfs, .. } = e {
+                let at = |s: f64| {
+                    let sample = (s * times.clock.rate).round() as u64;
+                    times.utc_at(sample).and_then(rfc3339_ms)
+                };
+                v = serde_json::json!({
+                    "kind": "alarm_end",
+                    "time": times.utc_at(end).and_then(rfc3339_ms),
+                    "input_s": times.clock.seconds(end),
+                    "channel": ch.name,
+                    "center_hz": ch.center_hz,
+                    "width_hz": ch.width_hz,
+                    "started": at(*start_s),
+                    "last_over": at(*end_s),
+                    "duration_s": crate::units::round_dp(end_s - start_s, 3),
+                    "peak_power_dbfs": crate::units::round_dp(*peak_dbfs, 2),
+                    "hold_s": hold_s,
+                    "ended": why_ended,
+                });
+            }
             log.record(&v);
         }
         (!was_failed).then(|| log.failed.clone()).flatten()
@@ -259,7 +285,7 @@ mod tests {
     }
 
     #[test]
-    fn an_armed_channel_rings_once_per_onset_and_logs_it() {
+    fn an_armed_channel_rings_once_per_alarm_and_logs_its_onset_and_end() {
         let log = Shared::default();
         let mut a = app(log.clone());
         // Noise 1e-9 FS²/Hz: in the 10 kHz channel 1e-5 FS² (−50 dBFS); the threshold 10 dB
@@ -269,21 +295,33 @@ mod tests {
         a.apply(Intent::ToggleAlarm);
         assert!((a.plan.marks[0].alarm_dbfs.unwrap() + 40.0).abs() < 1e-9);
         let rate = 1.024e6;
-        for (k, busy) in [false, true, true, false, true].into_iter().enumerate() {
+        // Rows of 1 s: over in rows 1, 2 and 4 (a 1 s gap, within the 5 s hold-off: one alarm),
+        // quiet until row 9 (5 s after the last row over, which ends at 5 s), over again in 12.
+        for k in 0..14u64 {
+            let busy = matches!(k, 1 | 2 | 4 | 12);
             a.push_row(row(if busy { 1e-6 } else { 0.0 }, ((k + 1) as f64 * rate) as u64));
         }
-        assert_eq!(a.alerts.bells, 2, "two onsets, one bell each");
+        assert_eq!(a.alerts.bells, 2, "two alarms, one bell each");
+        // The second alarm is still open when the monitor closes.
+        a.close_alarms();
         let text = String::from_utf8(log.0.lock().unwrap().clone()).unwrap();
         let recs: Vec<serde_json::Value> =
             text.lines().map(|l| serde_json::from_str(l).unwrap()).collect();
-        assert_eq!(recs.len(), 2);
-        assert_eq!(recs[0]["kind"], "alarm");
+        let kinds: Vec<&str> = recs.iter().map(|r| r["kind"].as_str().unwrap()).collect();
+        assert_eq!(kinds, ["alarm", "alarm_end", "alarm", "alarm_end"], "{text}");
         assert_eq!(recs[0]["channel"], "yard");
         assert_eq!(recs[0]["time"], "2031-04-17T06:30:02.000Z");
-        assert_eq!(recs[1]["input_s"], 5.0);
         let p = recs[0]["power_dbfs"].as_f64().unwrap();
         assert!((p - db(1e-2 + 1e-5)).abs() < 1e-9, "{p}");
-        // A again clears it.
+        // First alarm: from the row ending at 2 s to the last row over, ending at 5 s; it ends
+        // with the row ending at 10 s.
+        assert_eq!(recs[1]["input_s"], 10.0);
+        assert_eq!(recs[1]["duration_s"], 3.0);
+        assert_eq!(recs[1]["started"], "2031-04-17T06:30:02.000Z");
+        assert_eq!(recs[1]["ended"], "quiet");
+        assert_eq!(recs[2]["input_s"], 13.0);
+        assert_eq!(recs[3]["ended"], "closed");
+        // A again clears the threshold.
         a.apply(Intent::ToggleAlarm);
         assert_eq!(a.plan.marks[0].alarm_dbfs, None);
     }
