@@ -225,6 +225,8 @@ impl EmissionFinder {
                 high_hz: o.high_hz,
                 first_sample: o.first,
                 end_sample: o.end,
+                peak_hz: o.peak_freq_hz,
+                level: format!("{:.0} {unit}", o.peak_dbfs + offset_db),
                 label: {
                     let u = freq_unit(o.peak_freq_hz);
                     let f = o.peak_freq_hz / u.hz;

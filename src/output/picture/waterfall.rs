@@ -50,7 +50,60 @@ pub struct Mark {
     pub high_hz: f64,
     pub first_sample: u64,
     pub end_sample: u64,
+    /// Frequency of its strongest bin.
+    pub peak_hz: f64,
+    /// Its level as shown (`-36 dBFS`).
+    pub level: String,
+    /// Frequency and level (`433.1375 MHz -36 dBFS`): the label outside any plan channel.
     pub label: String,
+}
+
+impl Mark {
+    /// The label to draw: the plan channel's name when the emission's peak lies in one
+    /// (`ops -36 dBFS`), else frequency and level.
+    pub fn label_in(&self, channels: &[ChannelBand]) -> String {
+        if self.label.is_empty() {
+            return String::new();
+        }
+        match channels.iter().find(|c| (c.low_hz..=c.high_hz).contains(&self.peak_hz)) {
+            Some(c) => format!("{} {}", c.name, self.level),
+            None => self.label.clone(),
+        }
+    }
+}
+
+/// Where a mark's label goes: the first of these places, tried in order, that stays inside the
+/// plot and overlaps no other box and no label placed before it (labels are placed strongest
+/// emission first). `bx` is the box in pixels (left, top, right, bottom), `w` the label's width;
+/// a label is 13 px high. Returns the label's bounds.
+fn place_label(
+    bx: (i32, i32, i32, i32),
+    w: i32,
+    plot: (i32, i32, i32, i32),
+    others: &[(i32, i32, i32, i32)],
+    placed: &[(i32, i32, i32, i32)],
+) -> Option<(i32, i32, i32, i32)> {
+    const H: i32 = 13;
+    let (l, t, r, b) = bx;
+    let candidates = [
+        (r + 2, t),         // right of the box, level with its top
+        (l - 4 - w, t),     // left of it
+        (l, b + 2),         // under it
+        (l, t - H - 2),     // over it
+        (r + 2, b - H),     // right, level with its bottom
+        (l - 4 - w, b - H), // left, level with its bottom
+    ];
+    let overlaps = |a: &(i32, i32, i32, i32), o: &(i32, i32, i32, i32)| {
+        !(a.2 < o.0 || o.2 < a.0 || a.3 < o.1 || o.3 < a.1)
+    };
+    candidates.into_iter().map(|(x, y)| (x, y, x + w + 2, y + H)).find(|c| {
+        c.0 >= plot.0
+            && c.2 <= plot.2
+            && c.1 >= plot.1
+            && c.3 <= plot.3
+            && !others.iter().any(|o| overlaps(c, o))
+            && !placed.iter().any(|p| overlaps(c, p))
+    })
 }
 
 /// The rows to draw and where they lie.
@@ -113,10 +166,12 @@ pub struct PictureSettings {
 /// Pixels of the fixed parts of the layout.
 const TITLE_H: u32 = 34;
 const FOOTER_LINE_H: u32 = 17;
-const LEFT_LABELS: u32 = 86;
+const LEFT_LABELS: u32 = 80;
 const BOTTOM_LABELS: u32 = 46;
 const BAR_W: u32 = 104;
 const MARGIN: u32 = 12;
+/// Room left of the level and time axes, so their rotated titles are not cut at the edge.
+const AXIS_TITLE_MARGIN: u32 = 6;
 /// Width of one character of a mark's label (11 px text), pixels, for keeping labels apart.
 const MARK_CHAR_W: f64 = 6.2;
 const TEXT: RGBColor = RGBColor(20, 20, 20);
@@ -235,6 +290,7 @@ fn draw_spectrum<DB: DrawingBackend>(
     let mut chart = ChartBuilder::on(area)
         .margin_top(8)
         .margin_bottom(10)
+        .margin_left(AXIS_TITLE_MARGIN)
         .margin_right(MARGIN)
         .y_label_area_size(LEFT_LABELS)
         .build_cartesian_2d(
@@ -316,6 +372,7 @@ fn draw_image<DB: DrawingBackend>(
     let yk: Vec<f64> = tticks.iter().map(|t| -t.0).collect();
     let mut chart = ChartBuilder::on(area)
         .margin_top(6)
+        .margin_left(AXIS_TITLE_MARGIN)
         .margin_right(MARGIN)
         .y_label_area_size(LEFT_LABELS)
         .x_label_area_size(BOTTOM_LABELS)
@@ -360,34 +417,43 @@ fn draw_image<DB: DrawingBackend>(
                 .map_err(drawing)?;
         }
     }
-    // Labels that would overlap one already placed (strongest first) are left out; the outline
-    // stays.
-    let mut placed: Vec<(i32, i32, i32, i32)> = Vec::new();
+    // Every box first, then the labels where they overlap no box and no other label (strongest
+    // first, see `place_label`); a label with no free place is left out, its box stays.
+    let boxes: Vec<(i32, i32, i32, i32)> = settings
+        .marks
+        .iter()
+        .map(|m| {
+            let (l, t0) = chart.backend_coord(&(m.low_hz, t(m.first_sample)));
+            let (r, b) = chart.backend_coord(&(m.high_hz, t(m.end_sample)));
+            (l.min(r), t0.min(b), l.max(r), t0.max(b))
+        })
+        .collect();
     for m in &settings.marks {
         let rect = [(m.low_hz, t(m.first_sample)), (m.high_hz, t(m.end_sample))];
         chart.draw_series([Rectangle::new(rect, WHITE.stroke_width(1))]).map_err(drawing)?;
-        if m.label.is_empty() {
+    }
+    let plot = (xr.start, yr.start, xr.end, yr.end);
+    let mut placed: Vec<(i32, i32, i32, i32)> = Vec::new();
+    for (k, m) in settings.marks.iter().enumerate() {
+        let label = m.label_in(&settings.channels);
+        if label.is_empty() {
             continue;
         }
-        // Right of the box, or inside its top left corner when the right has no room.
-        let text_w = (m.label.chars().count() as f64 * MARK_CHAR_W).ceil() as i32;
-        let (right, y) = chart.backend_coord(&(m.high_hz, t(m.first_sample)));
-        let (left, _) = chart.backend_coord(&(m.low_hz, t(m.first_sample)));
-        let x = if right + 4 + text_w <= xr.end { right } else { left };
-        let bounds = (x + 2, y, x + 4 + text_w, y + 13);
-        let free = |r: &(i32, i32, i32, i32)| {
-            bounds.2 < r.0 || r.2 < bounds.0 || bounds.3 < r.1 || r.3 < bounds.1
+        let text_w = (label.chars().count() as f64 * MARK_CHAR_W).ceil() as i32;
+        // A box more than three labels wide is background to a label, not a neighbour: a wide
+        // link would otherwise leave the narrow emissions beside it unlabelled.
+        let others: Vec<_> = boxes
+            .iter()
+            .enumerate()
+            .filter(|(j, b)| *j != k && b.2 - b.0 <= 3 * text_w)
+            .map(|(_, b)| *b)
+            .collect();
+        let Some(at) = place_label(boxes[k], text_w, plot, &others, &placed) else {
+            continue;
         };
-        if bounds.2 > xr.end || !placed.iter().all(free) {
-            continue;
-        }
-        placed.push(bounds);
+        placed.push(at);
         let style = (FAMILY, 11).into_font().color(&WHITE);
-        let at =
-            if x == right { (m.high_hz, t(m.first_sample)) } else { (m.low_hz, t(m.first_sample)) };
-        chart
-            .draw_series([EmptyElement::at(at) + Text::new(m.label.clone(), (3, 1), style)])
-            .map_err(drawing)?;
+        root.draw(&Text::new(label, (at.0 + 2, at.1 + 1), style)).map_err(drawing)?;
     }
     Ok(())
 }
@@ -490,4 +556,53 @@ fn draw_bar<DB: DrawingBackend>(
         chart.plotting_area().get_pixel_range(),
         map,
     )
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn overlaps(a: (i32, i32, i32, i32), b: (i32, i32, i32, i32)) -> bool {
+        !(a.2 < b.0 || b.2 < a.0 || a.3 < b.1 || b.3 < a.1)
+    }
+
+    #[test]
+    fn a_label_avoids_its_neighbours_boxes_and_the_plot_edge() {
+        let plot = (0, 0, 1000, 600);
+        // A box with a neighbour just to its right: the label goes to the left.
+        let bx = (400, 100, 410, 200);
+        let neighbour = (415, 50, 425, 300);
+        let at = place_label(bx, 90, plot, &[neighbour], &[]).unwrap();
+        assert!(!overlaps(at, neighbour) && !overlaps(at, bx), "{at:?}");
+        assert!(at.2 <= bx.0, "{at:?}");
+        // Hemmed in on both sides (the right neighbour ending above the box's bottom): under it.
+        let right = (415, 50, 425, 190);
+        let left = (300, 50, 395, 300);
+        let at = place_label(bx, 90, plot, &[right, left], &[]).unwrap();
+        assert!(at.1 > bx.3, "{at:?}");
+        // At the right edge of the plot with no room: never outside it.
+        let edge = (990, 100, 998, 200);
+        let at = place_label(edge, 90, plot, &[], &[]).unwrap();
+        assert!(at.2 <= plot.2 && at.0 >= plot.0, "{at:?}");
+        // Boxed in on every side: no label.
+        let all = [(300, 0, 399, 600), (411, 0, 600, 600), (400, 0, 410, 99), (400, 201, 410, 600)];
+        assert_eq!(place_label(bx, 90, plot, &all, &[]), None);
+    }
+
+    #[test]
+    fn a_mark_in_a_plan_channel_is_named_after_it() {
+        let m = Mark {
+            low_hz: 433.13e6,
+            high_hz: 433.145e6,
+            first_sample: 0,
+            end_sample: 10,
+            peak_hz: 433.1375e6,
+            level: "-36 dBFS".into(),
+            label: "433.1375 MHz -36 dBFS".into(),
+        };
+        let ops = ChannelBand { name: "ops".into(), low_hz: 433.13125e6, high_hz: 433.14375e6 };
+        assert_eq!(m.label_in(std::slice::from_ref(&ops)), "ops -36 dBFS");
+        let other = ChannelBand { name: "yard".into(), low_hz: 433.18e6, high_hz: 433.19e6 };
+        assert_eq!(m.label_in(&[other]), "433.1375 MHz -36 dBFS");
+    }
 }
