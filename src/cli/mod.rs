@@ -252,6 +252,8 @@ mod tests {
             (&["demo", "--seconds", "-2"], "'-2' must be a positive number of seconds"),
             (&["log", "f", "--rotate", "-5M"], "'-5M' is not a rotation"),
             (&["log", "f", "--spool-max", "-5M"], "'-5M' is not a size"),
+            (&["log", "f", "--spool-max-bytes", "-5M"], "'-5M' is not a size"),
+            (&["log", "f", "--spool-max-age", "-1d"], "'-1d' must be a non-negative duration"),
             (&["log", "f", "--capture-max-bytes", "-1G"], "'-1G' is not a size"),
             (&["measure", "--rate", "-2.4M"], "must be positive, and -2.400000 MHz is negative"),
             (&["demo", "--rate", "-1M"], "must be positive, and -1.000000 MHz is negative"),
