@@ -126,7 +126,7 @@ impl PublishArgs {
             (None, "-") => bail!("--publish with the log on stdout needs --spool DIR (where unacknowledged records wait)"),
             (None, file) => PathBuf::from(format!("{file}.spool")),
         };
-        if self.spool_max_bytes < 64 * 1024 {
+        if self.spool_max_bytes < 64_000 {
             bail!("--spool-max-bytes must be at least 64k");
         }
         if self.spool_max_age < Duration::from_secs(1) {

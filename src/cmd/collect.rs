@@ -29,7 +29,7 @@ pub fn run(cfg: CollectConfig) -> Result<ExitCode> {
     ));
     for (site, run, from, to) in collector.holes() {
         note(&format!(
-            "site {site}, run {run}: records {from}..{} never arrived though asked for {} times (the site's local log has them)",
+            "site {site}, run {run}: records {from}..{} never arrived; {} requests to the site went unanswered (its local log has them)",
             to - 1,
             collector.asks(&site, &run)
         ));

@@ -363,7 +363,7 @@ impl Collector {
     pub fn due_requests(&mut self, now: Instant) -> Vec<(String, ResendRequest)> {
         let mut out = Vec::new();
         for (site, f) in &mut self.sites {
-            if f.heard.is_none_or(|t| now.duration_since(t) >= f.silent_after()) {
+            if !f.heard.is_some_and(|t| now.duration_since(t) < f.silent_after()) {
                 continue;
             }
             for (run, state) in &mut f.runs {

@@ -48,7 +48,7 @@ pub struct ResendRequest {
 impl ResendRequest {
     /// Whether `seq` is asked for.
     pub fn wants(&self, seq: u64) -> bool {
-        seq >= self.from && self.to.is_none_or(|to| seq <= to)
+        seq >= self.from && self.to.map_or(true, |to| seq <= to)
     }
 
     pub fn to_json(&self) -> Vec<u8> {
@@ -58,7 +58,7 @@ impl ResendRequest {
     /// The request in a message, if it is one (a malformed one is ignored by the site).
     pub fn parse(payload: &[u8]) -> Option<ResendRequest> {
         let r: ResendRequest = serde_json::from_slice(payload).ok()?;
-        (r.to.is_none_or(|to| to >= r.from) && !r.run.is_empty()).then_some(r)
+        (r.to.map_or(true, |to| to >= r.from) && !r.run.is_empty()).then_some(r)
     }
 }
 

@@ -2,8 +2,12 @@
 //! tests of the monitoring network. Mosquitto comes from the distribution's packages (`.ci/run`
 //! installs it); without it a test fails in CI (`CI=true`) and is skipped with a note elsewhere.
 
+use std::io::{Read, Write};
+use std::net::{Shutdown, TcpListener, TcpStream};
 use std::path::{Path, PathBuf};
 use std::process::{Child, Command, Stdio};
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::{Arc, Mutex};
 use std::time::{Duration, Instant};
 
 /// Where the distribution puts Mosquitto.
@@ -31,7 +35,7 @@ pub fn mosquitto_or_skip() -> Option<PathBuf> {
 /// Waits (up to 10 s) until something listens on `port`.
 pub fn wait_for_port(port: u16) {
     let deadline = Instant::now() + Duration::from_secs(10);
-    while std::net::TcpStream::connect(("127.0.0.1", port)).is_err() {
+    while TcpStream::connect(("127.0.0.1", port)).is_err() {
         assert!(Instant::now() < deadline, "nothing listens on port {port}");
         std::thread::sleep(Duration::from_millis(50));
     }
@@ -88,6 +92,104 @@ impl Drop for ForgetfulBroker {
         if let Some(mut c) = self.child.take() {
             let _ = c.kill();
             let _ = c.wait();
+        }
+    }
+}
+
+/// A TCP relay between clients and the broker whose link can be cut: open connections are
+/// shut and new ones refused until it is mended.
+pub struct Relay {
+    pub port: u16,
+    cut: Arc<AtomicBool>,
+    open: Arc<Mutex<Vec<TcpStream>>>,
+}
+
+impl Relay {
+    pub fn start(target: u16) -> Relay {
+        let listener = TcpListener::bind("127.0.0.1:0").unwrap();
+        let port = listener.local_addr().unwrap().port();
+        let cut = Arc::new(AtomicBool::new(false));
+        let open: Arc<Mutex<Vec<TcpStream>>> = Arc::default();
+        let (cut2, open2) = (cut.clone(), open.clone());
+        std::thread::spawn(move || {
+            for conn in listener.incoming() {
+                let Ok(a) = conn else { continue };
+                if cut2.load(Ordering::SeqCst) {
+                    continue;
+                }
+                let Ok(b) = TcpStream::connect(("127.0.0.1", target)) else { continue };
+                let mut list = open2.lock().unwrap();
+                list.push(a.try_clone().unwrap());
+                list.push(b.try_clone().unwrap());
+                pipe(a.try_clone().unwrap(), b.try_clone().unwrap());
+                pipe(b, a);
+            }
+        });
+        Relay { port, cut, open }
+    }
+
+    pub fn cut(&self) {
+        self.cut.store(true, Ordering::SeqCst);
+        for s in self.open.lock().unwrap().drain(..) {
+            let _ = s.shutdown(Shutdown::Both);
+        }
+    }
+
+    pub fn mend(&self) {
+        self.cut.store(false, Ordering::SeqCst);
+    }
+}
+
+fn pipe(mut from: TcpStream, mut to: TcpStream) {
+    std::thread::spawn(move || {
+        let mut buf = [0u8; 16384];
+        while let Ok(n) = from.read(&mut buf) {
+            if n == 0 || to.write_all(&buf[..n]).is_err() {
+                break;
+            }
+        }
+        let _ = to.shutdown(Shutdown::Both);
+    });
+}
+
+/// A site: the paced demo scene piped into `log --publish` (with `extra` flags).
+pub fn site(
+    name: &str,
+    dir: &Path,
+    port: u16,
+    (seconds, seed): (u32, u32),
+    extra: &[&str],
+) -> (Child, Child, PathBuf) {
+    let log = dir.join(format!("{name}.jsonl"));
+    let mut demo = Command::new(super::BIN)
+        .args(["demo", "-o", "-", "--rate", "1M", "--format", "cf32_le", "--realtime"])
+        .args(["--seconds", &seconds.to_string(), "--seed", &seed.to_string()])
+        .stdout(Stdio::piped())
+        .spawn()
+        .unwrap();
+    let plan = concat!(env!("CARGO_MANIFEST_DIR"), "/recordings/wrenhollow-plan.toml");
+    let logger = Command::new(super::BIN)
+        .args(["log", "-", "--format", "cf32_le", "--rate", "1M", "--center", "433.5M"])
+        .args(["--plan", plan, "--interval", "1s", "--threads", "1", "--site", name])
+        .args(["--publish", &format!("mqtt://127.0.0.1:{port}/wrenhollow/net")])
+        .args(["--publish-linger", "30s", "-o", log.to_str().unwrap()])
+        .args(extra)
+        .stdin(demo.stdout.take().unwrap())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    (demo, logger, log)
+}
+
+/// A child that is killed if the test ends early (a failed assertion), so that no collector
+/// outlives its test holding the test's output open.
+pub struct Reaped(pub Child);
+
+impl Drop for Reaped {
+    fn drop(&mut self) {
+        if let Ok(None) = self.0.try_wait() {
+            let _ = self.0.kill();
+            let _ = self.0.wait();
         }
     }
 }
