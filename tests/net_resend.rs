@@ -101,6 +101,18 @@ fn every_record_arrives_once_though_the_broker_forgets_everything() {
         w_sorted.sort();
         assert_eq!(g_sorted, w_sorted, "{name}: collected vs local log\n{err}\n{notes}");
     }
+    // `report` over the collected file (resent lines stored late) is `report` over the site's
+    // own log.
+    for name in names {
+        let report = |path: &PathBuf| {
+            let o = Command::new(BIN).args(["report", "--json"]).arg(path).output().unwrap();
+            assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+            o.stdout
+        };
+        let file = format!("{name}.jsonl");
+        let same = report(&out.join(&file)) == report(&dir.join(&file));
+        assert!(same, "{name}: report over the collected file differs from the local log's");
+    }
     // The broker really forgot: the collector lost it, and records were asked for again.
     assert!(err.contains("lost the broker") || err.contains("cannot reach"), "{err}");
     assert!(!err.contains("never arrived"), "{err}");
