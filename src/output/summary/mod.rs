@@ -588,20 +588,13 @@ mod tests {
                 r#"{{"kind":"stop","t_end_s":3.0,"reason":"end_of_input","iq_samples":3000000,"dropped_samples":0,"run":"{run}","seq":{seq}}}"#
             )
         };
-        let r1 = [
-            start("r1", "2026-12-04T20:00:00Z"),
-            interval("r1", 1, 10.0),
-            interval("r1", 2, 20.0),
-            interval("r1", 3, 30.0),
-            stop("r1", 4),
-        ];
-        let r2 = [
-            start("r2", "2026-12-04T21:00:00Z"),
-            interval("r2", 1, 50.0),
-            interval("r2", 2, 60.0),
-            interval("r2", 3, 70.0),
-            stop("r2", 4),
-        ];
+        // A run: its start, three intervals of these occupancies, its stop.
+        let run = |name: &str, at: &str, pcts: [f64; 3]| -> Vec<String> {
+            let intervals = (1..).zip(pcts).map(|(seq, pct)| interval(name, seq, pct));
+            std::iter::once(start(name, at)).chain(intervals).chain([stop(name, 4)]).collect()
+        };
+        let r1 = run("r1", "2026-12-04T20:00:00Z", [10.0, 20.0, 30.0]);
+        let r2 = run("r2", "2026-12-04T21:00:00Z", [50.0, 60.0, 70.0]);
         let in_order: Vec<&String> = r1.iter().chain(&r2).collect();
         let as_stored: Vec<&String> = [&r1[0], &r1[1], &r2[1], &r2[2], &r2[0], &r1[2], &r2[3]]
             .into_iter()
