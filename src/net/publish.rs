@@ -35,6 +35,8 @@ use std::time::{Duration, Instant};
 pub const WINDOW: usize = 64;
 /// Longest wait between connection attempts.
 pub const MAX_BACKOFF: Duration = Duration::from_secs(30);
+/// How often the records evicted from the spool are said (joined in ranges of `seq`).
+pub const EVICTIONS_SAID_EVERY: Duration = Duration::from_secs(10);
 /// At the end of a run, how long the publisher listens for resend requests after everything
 /// was acknowledged and the last request was answered (within `--publish-linger`).
 pub const ANSWER_GRACE: Duration = Duration::from_secs(2);
@@ -150,11 +152,13 @@ impl Publisher {
             online: false,
             refused: None,
             answers: Answers::default(),
+            evictions_said: std::cell::Cell::new(Instant::now()),
         };
         let thread = std::thread::Builder::new()
             .name("publish".into())
             .spawn(move || {
                 worker.run();
+                worker.note_evictions(true);
                 worker.spool.save();
             })
             .map_err(anyhow::Error::from)?;
@@ -217,6 +221,8 @@ struct Worker {
     refused: Option<String>,
     /// Records the collector asked for again, waiting for room in the window.
     answers: Answers,
+    /// When evictions were last said.
+    evictions_said: std::cell::Cell<Instant>,
 }
 
 /// How a connection ended.
@@ -258,7 +264,7 @@ impl Worker {
                 return;
             }
             // The broker is away: this is when the spool fills and evicts.
-            self.note_evictions();
+            self.note_evictions(false);
             std::thread::sleep(Duration::from_millis(20));
         }
     }
@@ -330,7 +336,7 @@ impl Worker {
         // Since when, at the end, everything is acknowledged and no request is waiting.
         let mut calm_since: Option<Instant> = None;
         loop {
-            self.note_evictions();
+            self.note_evictions(false);
             let stopping = self.stop.load(Ordering::SeqCst);
             if stopping {
                 let d = *deadline.get_or_insert_with(|| Instant::now() + self.cfg.linger);
@@ -417,8 +423,13 @@ impl Worker {
         }
     }
 
-    /// Says which records left the spool unsent (the spool's evictions since last asked).
-    fn note_evictions(&self) {
+    /// Says which records left the spool unsent, at most every [`EVICTIONS_SAID_EVERY`] (the
+    /// spool joins consecutive `seq` in one range meanwhile) unless `now_please`.
+    fn note_evictions(&self, now_please: bool) {
+        if !now_please && self.evictions_said.get().elapsed() < EVICTIONS_SAID_EVERY {
+            return;
+        }
+        self.evictions_said.set(Instant::now());
         for e in self.spool.take_evictions() {
             crate::messages::note(&format!("site {}: {}", self.cfg.site, e.note()));
         }
