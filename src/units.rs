@@ -150,9 +150,10 @@ pub fn parse_duration(text: &str) -> Result<Duration, String> {
         "us" | "µs" => 1e-6,
         "m" | "min" => 60.0,
         "h" => 3600.0,
+        "d" => 86_400.0,
         other => {
             return Err(format!(
-                "'{shown}': unknown time unit '{other}'; use us, ms, s, m (minutes) or h"
+                "'{shown}': unknown time unit '{other}'; use us, ms, s, m (minutes), h or d"
             ))
         }
     };
@@ -393,6 +394,7 @@ mod tests {
         assert_eq!(parse_duration("2s").unwrap(), Duration::from_secs(2));
         assert_eq!(parse_duration("15m").unwrap(), Duration::from_secs(900));
         assert_eq!(parse_duration("1h").unwrap(), Duration::from_secs(3600));
+        assert_eq!(parse_duration("7d").unwrap(), Duration::from_secs(7 * 86_400));
         assert_eq!(parse_duration("1.5").unwrap(), Duration::from_millis(1500));
         assert!(parse_duration("3 fortnights").unwrap_err().contains("unknown time unit"));
         assert!(parse_duration("-1s").is_err());

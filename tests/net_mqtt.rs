@@ -9,32 +9,15 @@
 
 mod common;
 
-use std::io::{Read, Write};
-use std::net::{Shutdown, TcpListener, TcpStream};
+use std::io::Read;
 use std::path::{Path, PathBuf};
 use std::process::{Child, Command, Stdio};
-use std::sync::atomic::{AtomicBool, Ordering};
-use std::sync::{Arc, Mutex};
 use std::time::{Duration, Instant};
 
 const BIN: &str = env!("CARGO_BIN_EXE_bandwarden");
 
-fn mosquitto() -> Option<PathBuf> {
-    ["/usr/sbin/mosquitto", "/usr/bin/mosquitto", "/usr/local/sbin/mosquitto"]
-        .iter()
-        .map(PathBuf::from)
-        .find(|p| p.exists())
-}
-
+use common::mqtt::{mosquitto_or_skip, signal, site, wait_for_port, Relay};
 use common::{free_port, lines};
-
-fn wait_for_port(port: u16) {
-    let deadline = Instant::now() + Duration::from_secs(10);
-    while TcpStream::connect(("127.0.0.1", port)).is_err() {
-        assert!(Instant::now() < deadline, "nothing listens on port {port}");
-        std::thread::sleep(Duration::from_millis(50));
-    }
-}
 
 /// A broker of our own: persistence on (so a restart keeps the collector's queue) and no cap on
 /// queued messages (Mosquitto's default of 1000 would drop records while the collector is away).
@@ -102,102 +85,6 @@ impl Drop for Broker {
     }
 }
 
-fn signal(child: &Child, sig: &str) {
-    Command::new("kill").args([&format!("-{sig}"), &child.id().to_string()]).status().unwrap();
-}
-
-/// A TCP relay between the sites and the broker whose link can be cut: open connections are
-/// shut and new ones refused until it is mended.
-struct Relay {
-    port: u16,
-    cut: Arc<AtomicBool>,
-    open: Arc<Mutex<Vec<TcpStream>>>,
-}
-
-impl Relay {
-    fn start(target: u16) -> Relay {
-        let listener = TcpListener::bind("127.0.0.1:0").unwrap();
-        let port = listener.local_addr().unwrap().port();
-        let cut = Arc::new(AtomicBool::new(false));
-        let open: Arc<Mutex<Vec<TcpStream>>> = Arc::default();
-        let (cut2, open2) = (cut.clone(), open.clone());
-        std::thread::spawn(move || {
-            for conn in listener.incoming() {
-                let Ok(a) = conn else { continue };
-                if cut2.load(Ordering::SeqCst) {
-                    continue;
-                }
-                let Ok(b) = TcpStream::connect(("127.0.0.1", target)) else { continue };
-                let mut list = open2.lock().unwrap();
-                list.push(a.try_clone().unwrap());
-                list.push(b.try_clone().unwrap());
-                pipe(a.try_clone().unwrap(), b.try_clone().unwrap());
-                pipe(b, a);
-            }
-        });
-        Relay { port, cut, open }
-    }
-
-    fn cut(&self) {
-        self.cut.store(true, Ordering::SeqCst);
-        for s in self.open.lock().unwrap().drain(..) {
-            let _ = s.shutdown(Shutdown::Both);
-        }
-    }
-
-    fn mend(&self) {
-        self.cut.store(false, Ordering::SeqCst);
-    }
-}
-
-fn pipe(mut from: TcpStream, mut to: TcpStream) {
-    std::thread::spawn(move || {
-        let mut buf = [0u8; 16384];
-        while let Ok(n) = from.read(&mut buf) {
-            if n == 0 || to.write_all(&buf[..n]).is_err() {
-                break;
-            }
-        }
-        let _ = to.shutdown(Shutdown::Both);
-    });
-}
-
-/// A site: the paced demo scene piped into `log --publish`.
-fn site(name: &str, dir: &Path, relay: u16, seconds: u32, seed: u32) -> (Child, Child, PathBuf) {
-    let log = dir.join(format!("{name}.jsonl"));
-    let mut demo = Command::new(BIN)
-        .args(["demo", "-o", "-", "--rate", "1M", "--format", "cf32_le", "--realtime"])
-        .args(["--seconds", &seconds.to_string(), "--seed", &seed.to_string()])
-        .stdout(Stdio::piped())
-        .spawn()
-        .unwrap();
-    let plan = concat!(env!("CARGO_MANIFEST_DIR"), "/recordings/wrenhollow-plan.toml");
-    let logger = Command::new(BIN)
-        .args(["log", "-", "--format", "cf32_le", "--rate", "1M", "--center", "433.5M"])
-        .args(["--plan", plan, "--interval", "1s", "--threads", "1", "--site", name])
-        .args(["--publish", &format!("mqtt://127.0.0.1:{relay}/wrenhollow/net")])
-        .args(["--publish-linger", "30s", "-o", log.to_str().unwrap()])
-        .stdin(demo.stdout.take().unwrap())
-        .stderr(Stdio::piped())
-        .spawn()
-        .unwrap();
-    (demo, logger, log)
-}
-
-/// Mosquitto, or `None` where the test may be skipped (a note says so); in CI its absence fails.
-fn mosquitto_or_skip() -> Option<PathBuf> {
-    let bin = mosquitto();
-    if bin.is_none() {
-        if std::env::var("CI").is_ok_and(|v| v == "true") {
-            panic!(
-                "mosquitto is not installed: .ci/run installs it with apt-get install -y mosquitto"
-            );
-        }
-        eprintln!("note: mosquitto is not installed (apt-get install -y mosquitto); test skipped");
-    }
-    bin
-}
-
 #[test]
 fn two_sites_lose_nothing_across_a_cut_link_and_a_broker_restart() {
     let Some(bin) = mosquitto_or_skip() else { return };
@@ -215,8 +102,8 @@ fn two_sites_lose_nothing_across_a_cut_link_and_a_broker_restart() {
         .unwrap();
     std::thread::sleep(Duration::from_millis(500));
     let seconds = 10;
-    let (mut demo_a, mut log_a, local_a) = site("ridge-north", &dir, relay.port, seconds, 1);
-    let (mut demo_b, mut log_b, local_b) = site("ridge-south", &dir, relay.port, seconds, 2);
+    let (mut demo_a, mut log_a, local_a) = site("ridge-north", &dir, relay.port, (seconds, 1), &[]);
+    let (mut demo_b, mut log_b, local_b) = site("ridge-south", &dir, relay.port, (seconds, 2), &[]);
 
     // The sites' link goes down for 2 s, then the broker restarts.
     std::thread::sleep(Duration::from_secs(3));

@@ -112,7 +112,7 @@ impl LogArgs {
         if alarms.is_some() && channels.plan.channels.iter().any(|c| c.name == BAND) {
             bail!("--alarms names the band-wide floor '{BAND}': rename the plan channel called '{BAND}'");
         }
-        let publish = self.publish.validate(&self.out)?;
+        let publish = self.publish.validate(&self.out, self.csv, self.rotate.is_some())?;
         let sigmf = SigmfOut::validate(self.record, self.emissions, &self.input)?;
         Ok(LogConfig {
             site: self.publish.site.clone(),

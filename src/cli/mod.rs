@@ -252,6 +252,8 @@ mod tests {
             (&["demo", "--seconds", "-2"], "'-2' must be a positive number of seconds"),
             (&["log", "f", "--rotate", "-5M"], "'-5M' is not a rotation"),
             (&["log", "f", "--spool-max", "-5M"], "'-5M' is not a size"),
+            (&["log", "f", "--spool-max-bytes", "-5M"], "'-5M' is not a size"),
+            (&["log", "f", "--spool-max-age", "-1d"], "'-1d' must be a non-negative duration"),
             (&["log", "f", "--capture-max-bytes", "-1G"], "'-1G' is not a size"),
             (&["measure", "--rate", "-2.4M"], "must be positive, and -2.400000 MHz is negative"),
             (&["demo", "--rate", "-1M"], "must be positive, and -1.000000 MHz is negative"),
@@ -279,5 +281,37 @@ mod tests {
         }
         // A negative centre frequency is a value, not a flag (its meaning is checked later).
         assert!(Cli::try_parse_from(["bandwarden", "measure", "--center", "-5M"]).is_ok());
+    }
+
+    #[test]
+    fn spool_bounds_are_checked_and_the_old_flag_name_still_works() {
+        let publish = ["log", "f", "--channel", "a=1M:1k", "--site", "ridge"];
+        let with = |extra: &[&'static str]| -> Vec<&'static str> {
+            let mut v = publish.to_vec();
+            v.extend_from_slice(&["--publish", "mqtt://127.0.0.1/wrenhollow"]);
+            if !extra.contains(&"-o") {
+                v.extend_from_slice(&["-o", "ridge.jsonl"]);
+            }
+            v.extend_from_slice(extra);
+            v
+        };
+        let too_small = refusal(&with(&["--spool-max-bytes", "63k"]));
+        assert!(too_small.contains("--spool-max-bytes must be at least 64k"), "{too_small}");
+        let too_young = refusal(&with(&["--spool-max-age", "500ms"]));
+        assert!(too_young.contains("--spool-max-age must be at least 1s"), "{too_young}");
+        let parsed = |extra: &[&'static str]| {
+            let argv = std::iter::once("bandwarden").chain(with(extra));
+            match Cli::try_parse_from(argv).unwrap().command {
+                Some(Command::Log(a)) => a.validate().unwrap().publish.unwrap(),
+                _ => unreachable!("a log command"),
+            }
+        };
+        let p = parsed(&["--spool-max", "64k", "--spool-max-age", "2d", "-o", "ridge.jsonl"]);
+        assert_eq!((p.spool.max_bytes, p.spool.max_age.as_secs()), (64_000, 2 * 86_400));
+        assert_eq!(p.local_log.map(|l| l.path), Some("ridge.jsonl".into()));
+        // Defaults: 256M and 7 days; a CSV log cannot answer resend requests.
+        let p = parsed(&["--csv", "-o", "ridge.csv"]);
+        assert_eq!((p.spool.max_bytes, p.spool.max_age.as_secs()), (256_000_000, 7 * 86_400));
+        assert!(p.local_log.is_none());
     }
 }

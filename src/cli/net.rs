@@ -1,8 +1,10 @@
 //! Flags of the monitoring network: publishing the log (`log --publish`) and collecting it
 //! (`collect`), and how both reach the broker (credentials, TLS).
 
+use crate::net::lookup::LocalLog;
 use crate::net::mqtt::{check_site, parse_url, read_password, Broker, TlsFiles, PASSWORD_ENV};
 use crate::net::publish::PublishConfig;
+use crate::net::spool::SpoolLimits;
 use crate::output::log::rotation::{parse_rotate, Rotate};
 use crate::units::parse_duration;
 use anyhow::{bail, Result};
@@ -75,9 +77,15 @@ pub struct PublishArgs {
     /// .spool added].
     #[arg(long, value_name = "DIR")]
     pub spool: Option<PathBuf>,
-    /// Most the spool may hold (e.g. 256M); beyond it records stay in the local log only.
-    #[arg(long, value_name = "SIZE", default_value = "256M", allow_hyphen_values = true, value_parser = parse_spool_size)]
-    pub spool_max: u64,
+    /// Most the spool may hold on disk (e.g. 256M); when full, its oldest records leave it
+    /// (said on stderr): they stay in the local log and are resent from it when the collector
+    /// asks.
+    #[arg(long, visible_alias = "spool-max", value_name = "SIZE", default_value = "256M", allow_hyphen_values = true, value_parser = parse_spool_size)]
+    pub spool_max_bytes: u64,
+    /// Records older than this leave the spool unsent (said on stderr; e.g. 7d, 12h): they stay
+    /// in the local log and are resent from it when the collector asks.
+    #[arg(long, value_name = "DURATION", default_value = "7d", allow_hyphen_values = true, value_parser = parse_duration)]
+    pub spool_max_age: Duration,
     /// At the end, how long to wait for the broker to take what is still spooled (the rest is
     /// sent by the next run on the same spool).
     #[arg(long, value_name = "DURATION", default_value = "10s", allow_hyphen_values = true, value_parser = parse_duration)]
@@ -97,8 +105,9 @@ fn parse_spool_size(text: &str) -> Result<u64, String> {
 }
 
 impl PublishArgs {
-    /// `None` without --publish; `out` is the log's -o.
-    pub fn validate(&self, out: &str) -> Result<Option<PublishConfig>> {
+    /// `None` without --publish; `out` is the log's -o, `csv` and `rotated` its shape (a JSON
+    /// Lines log in a file is where resend requests find what the spool no longer has).
+    pub fn validate(&self, out: &str, csv: bool, rotated: bool) -> Result<Option<PublishConfig>> {
         if let Some(site) = &self.site {
             check_site(site)?;
         }
@@ -117,14 +126,21 @@ impl PublishArgs {
             (None, "-") => bail!("--publish with the log on stdout needs --spool DIR (where unacknowledged records wait)"),
             (None, file) => PathBuf::from(format!("{file}.spool")),
         };
-        if self.spool_max < 64 * 1024 {
-            bail!("--spool-max must be at least 64k");
+        if self.spool_max_bytes < 64_000 {
+            bail!("--spool-max-bytes must be at least 64k");
         }
+        if self.spool_max_age < Duration::from_secs(1) {
+            bail!("--spool-max-age must be at least 1s (e.g. 7d, 12h)");
+        }
+        // The local log answers the collector's resend requests; a CSV log or stdout cannot.
+        let local_log =
+            (out != "-" && !csv).then(|| LocalLog { path: PathBuf::from(out), rotated });
         Ok(Some(PublishConfig {
             broker: self.broker.broker(url)?,
             site,
             spool_dir,
-            spool_bytes: self.spool_max,
+            spool: SpoolLimits { max_bytes: self.spool_max_bytes, max_age: self.spool_max_age },
+            local_log,
             linger: self.publish_linger,
         }))
     }

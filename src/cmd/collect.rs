@@ -29,9 +29,13 @@ pub fn run(cfg: CollectConfig) -> Result<ExitCode> {
     ));
     for (site, run, from, to) in collector.holes() {
         note(&format!(
-            "site {site}, run {run}: records {from}..{} never arrived (the site's local log has them)",
-            to - 1
+            "site {site}, run {run}: records {from}..{} never arrived; {} requests to the site went unanswered (its local log has them)",
+            to - 1,
+            collector.asks(&site, &run)
         ));
+    }
+    for silent in collector.silent_sites(std::time::Instant::now()) {
+        note(&silent.note());
     }
     result?;
     Ok(ExitCode::SUCCESS)

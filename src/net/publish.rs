@@ -7,9 +7,19 @@
 //! publisher reconnects (back-off doubling from 0.5 s to [`MAX_BACKOFF`]) and sends again from the
 //! first unacknowledged record, so the broker may see a record twice (the collector drops the
 //! copy by its id) but never loses one. Topics and payloads: see [`crate::net::mqtt`].
+//!
+//! A broker's acknowledgement is not the end of the road: a broker that forgets (restarted
+//! without persistence) loses what it had taken. So the publisher also listens on
+//! `PREFIX/SITE/ask/resend` and answers the collector's requests from the spool or the local
+//! log ([`crate::net::answer`]), and at the end of a run it stays [`ANSWER_GRACE`] after the
+//! last record was acknowledged, so that a collector that finds holes when the `stop` record
+//! arrives can still ask.
 
+use crate::net::answer::Answers;
+use crate::net::lookup::LocalLog;
 use crate::net::mqtt::{topic_level, Broker};
-use crate::net::spool::{Pos, Spool};
+use crate::net::resend::REQUEST_LEVELS;
+use crate::net::spool::{Pos, Spool, SpoolLimits};
 use crate::output::log::occupancy::RecordTap;
 use crate::output::log::Stamped;
 use anyhow::Result;
@@ -25,6 +35,11 @@ use std::time::{Duration, Instant};
 pub const WINDOW: usize = 64;
 /// Longest wait between connection attempts.
 pub const MAX_BACKOFF: Duration = Duration::from_secs(30);
+/// How often the records evicted from the spool are said (joined in ranges of `seq`).
+pub const EVICTIONS_SAID_EVERY: Duration = Duration::from_secs(10);
+/// At the end of a run, how long the publisher listens for resend requests after everything
+/// was acknowledged and the last request was answered (within `--publish-linger`).
+pub const ANSWER_GRACE: Duration = Duration::from_secs(2);
 
 /// What the publisher needs.
 #[derive(Clone, Debug)]
@@ -32,7 +47,10 @@ pub struct PublishConfig {
     pub broker: Broker,
     pub site: String,
     pub spool_dir: std::path::PathBuf,
-    pub spool_bytes: u64,
+    pub spool: SpoolLimits,
+    /// The local log, where records the spool no longer has are found for a resend (`None`:
+    /// on stdout or CSV, so only the spool can answer).
+    pub local_log: Option<LocalLog>,
     /// At the end of the run, how long to wait for the spool to drain before leaving the rest
     /// for the next run.
     pub linger: Duration,
@@ -44,6 +62,10 @@ pub struct PublishStats {
     pub acked: AtomicU64,
     pub connects: AtomicU64,
     pub lost_links: AtomicU64,
+    /// Resend requests taken, records resent for them, and of those read from the local log.
+    pub requests: AtomicU64,
+    pub resent: AtomicU64,
+    pub resent_from_log: AtomicU64,
     /// Why the broker refused the last login, if it did (cleared by a login it accepts).
     pub refused_login: std::sync::Mutex<Option<String>>,
 }
@@ -63,8 +85,14 @@ pub struct PublishSummary {
     pub lost_links: u64,
     /// Bytes still in the spool, sent by the next run.
     pub pending_bytes: u64,
-    /// Records the spool's bound refused (they are in the local log only).
+    /// Records the spool could not take (they are in the local log only).
     pub refused: u64,
+    /// Records evicted from the spool (bytes or age) before the broker had them.
+    pub evicted: u64,
+    /// Resend requests answered and the records sent again for them (from the local log).
+    pub requests: u64,
+    pub resent: u64,
+    pub resent_from_log: u64,
     /// The broker refused the last login: a setting to fix, why.
     pub refused_login: Option<String>,
 }
@@ -89,8 +117,20 @@ impl PublishSummary {
         }
         if self.refused > 0 {
             n.push(format!(
-                "{} records were not published: the spool was full (--spool-max) or could not be written; they are in the local log",
+                "{} records were not spooled: larger than --spool-max-bytes, or the spool could not be written; they are in the local log",
                 self.refused
+            ));
+        }
+        if self.evicted > 0 {
+            n.push(format!(
+                "{} records left the spool (--spool-max-bytes, --spool-max-age) before the broker had them; they are in the local log and are resent from it when the collector asks",
+                self.evicted
+            ));
+        }
+        if self.requests > 0 {
+            n.push(format!(
+                "the collector asked {} times for records it had not received: {} sent again ({} read from the local log)",
+                self.requests, self.resent, self.resent_from_log
             ));
         }
         n
@@ -101,7 +141,7 @@ impl Publisher {
     /// Opens the spool and starts the thread (which connects in the background: a broker that is
     /// down at the start is no error, the records wait in the spool).
     pub fn start(cfg: PublishConfig) -> Result<Publisher> {
-        let spool = Arc::new(Spool::open(&cfg.spool_dir, cfg.spool_bytes)?);
+        let spool = Arc::new(Spool::open(&cfg.spool_dir, cfg.spool)?);
         let stop = Arc::new(AtomicBool::new(false));
         let stats = Arc::new(PublishStats::default());
         let mut worker = Worker {
@@ -111,11 +151,14 @@ impl Publisher {
             stats: stats.clone(),
             online: false,
             refused: None,
+            answers: Answers::default(),
+            evictions_said: std::cell::Cell::new(Instant::now()),
         };
         let thread = std::thread::Builder::new()
             .name("publish".into())
             .spawn(move || {
                 worker.run();
+                worker.note_evictions(true);
                 worker.spool.save();
             })
             .map_err(anyhow::Error::from)?;
@@ -138,6 +181,10 @@ impl Publisher {
             lost_links: self.stats.lost_links.load(Ordering::SeqCst),
             pending_bytes: self.spool.pending_bytes(),
             refused: self.spool.refused(),
+            evicted: self.spool.evicted(),
+            requests: self.stats.requests.load(Ordering::SeqCst),
+            resent: self.stats.resent.load(Ordering::SeqCst),
+            resent_from_log: self.stats.resent_from_log.load(Ordering::SeqCst),
             refused_login: self.stats.refused_login.lock().map(|r| r.clone()).unwrap_or(None),
         }
     }
@@ -172,6 +219,10 @@ struct Worker {
     online: bool,
     /// The last reason the broker gave for refusing us, once said.
     refused: Option<String>,
+    /// Records the collector asked for again, waiting for room in the window.
+    answers: Answers,
+    /// When evictions were last said.
+    evictions_said: std::cell::Cell<Instant>,
 }
 
 /// How a connection ended.
@@ -212,6 +263,8 @@ impl Worker {
             if deadline.is_some_and(|dl| Instant::now() >= dl) {
                 return;
             }
+            // The broker is away: this is when the spool fills and evicts.
+            self.note_evictions(false);
             std::thread::sleep(Duration::from_millis(20));
         }
     }
@@ -271,17 +324,30 @@ impl Worker {
         if client.try_publish(&status_topic, QoS::AtLeastOnce, true, online).is_ok() {
             unsent.push_back(Tag::Extra);
         }
+        let request_topic = b.topic(&self.cfg.site, REQUEST_LEVELS);
+        if client.try_subscribe(&request_topic, QoS::AtLeastOnce).is_err() {
+            return LinkEnd::Lost;
+        }
         // Records read from the spool and not yet handed to the client, and the position after
         // the last one read.
         let mut ahead: VecDeque<(Pos, String)> = VecDeque::new();
         let mut read_to = self.spool.acked();
         let mut said_goodbye = false;
+        // Since when, at the end, everything is acknowledged and no request is waiting.
+        let mut calm_since: Option<Instant> = None;
         loop {
+            self.note_evictions(false);
             let stopping = self.stop.load(Ordering::SeqCst);
             if stopping {
                 let d = *deadline.get_or_insert_with(|| Instant::now() + self.cfg.linger);
                 let drained = self.spool.acked() >= self.spool.end();
-                if drained && !said_goodbye && in_flight.is_empty() && unsent.is_empty() {
+                let idle =
+                    drained && in_flight.is_empty() && unsent.is_empty() && self.answers.is_empty();
+                if !idle {
+                    calm_since = None;
+                }
+                let calm = calm_since.get_or_insert_with(Instant::now).elapsed() >= ANSWER_GRACE;
+                if idle && calm && !said_goodbye {
                     let bye = self.status("offline", "stopped");
                     if client.try_publish(&status_topic, QoS::AtLeastOnce, true, bye).is_ok() {
                         unsent.push_back(Tag::Extra);
@@ -301,7 +367,15 @@ impl Worker {
                 // to be acknowledged before sending more sent nothing while the broker held back
                 // its small PUBACKs (Nagle's algorithm, RFC 896, on a broker socket without
                 // TCP_NODELAY) until our side acknowledged at the TCP level (delayed ACK): a
-                // stall of up to the 20 ms turn, many times a second.
+                // stall of up to the 20 ms turn, many times a second. Records the collector
+                // asked for again go first.
+                while unsent.len() + in_flight.len() < WINDOW {
+                    let Some(line) = self.answers.pop() else { break };
+                    if !self.send(&client, &line, None, &mut unsent) {
+                        self.answers.unpop(line);
+                        break;
+                    }
+                }
                 let busy = unsent.len() + in_flight.len();
                 if ahead.is_empty() {
                     let idle = busy == 0 && !stopping;
@@ -313,7 +387,7 @@ impl Worker {
                 }
                 while unsent.len() + in_flight.len() < WINDOW {
                     let Some((pos, line)) = ahead.pop_front() else { break };
-                    if !self.send(&client, &line, pos, &mut unsent) {
+                    if !self.send(&client, &line, Some(pos), &mut unsent) {
                         ahead.push_front((pos, line));
                         break;
                     }
@@ -323,6 +397,18 @@ impl Worker {
                 Ok(Ok(Event::Outgoing(Outgoing::Publish(pkid)))) => {
                     if let Some(tag) = unsent.pop_front() {
                         in_flight.insert(pkid, tag);
+                    }
+                }
+                Ok(Ok(Event::Incoming(Packet::Publish(p)))) if p.topic == request_topic => {
+                    let log = self.cfg.local_log.as_ref();
+                    let before = (self.answers.resent, self.answers.from_log);
+                    if self.answers.take(&p.payload, &self.spool, log) {
+                        calm_since = None;
+                        let s = &self.stats;
+                        s.requests.fetch_add(1, Ordering::Relaxed);
+                        s.resent.fetch_add(self.answers.resent - before.0, Ordering::Relaxed);
+                        let from_log = self.answers.from_log - before.1;
+                        s.resent_from_log.fetch_add(from_log, Ordering::Relaxed);
                     }
                 }
                 Ok(Ok(Event::Incoming(Packet::PubAck(ack)))) => {
@@ -337,9 +423,29 @@ impl Worker {
         }
     }
 
-    /// Publishes one spooled record on its kind's topic, and an interval's retained copy;
-    /// `false` when the client's queue had no room (the record is sent later).
-    fn send(&self, client: &Client, line: &str, pos: Pos, unsent: &mut VecDeque<Tag>) -> bool {
+    /// Says which records left the spool unsent, at most every [`EVICTIONS_SAID_EVERY`] (the
+    /// spool joins consecutive `seq` in one range meanwhile) unless `now_please`.
+    fn note_evictions(&self, now_please: bool) {
+        if !now_please && self.evictions_said.get().elapsed() < EVICTIONS_SAID_EVERY {
+            return;
+        }
+        self.evictions_said.set(Instant::now());
+        for e in self.spool.take_evictions() {
+            crate::messages::note(&format!("site {}: {}", self.cfg.site, e.note()));
+        }
+    }
+
+    /// Publishes one record on its kind's topic: a spooled one (`pos`, acknowledged in the
+    /// spool when the broker has it) with an interval's retained copy, or one sent again for
+    /// the collector (`None`, no retained copy: it is old). `false` when the client's queue
+    /// had no room (the record is sent later).
+    fn send(
+        &self,
+        client: &Client,
+        line: &str,
+        pos: Option<Pos>,
+        unsent: &mut VecDeque<Tag>,
+    ) -> bool {
         let v: Value = serde_json::from_str(line).unwrap_or(Value::Null);
         let kind = v["kind"].as_str().unwrap_or("unknown");
         let b = &self.cfg.broker;
@@ -347,8 +453,8 @@ impl Worker {
         if client.try_publish(topic, QoS::AtLeastOnce, false, line.as_bytes().to_vec()).is_err() {
             return false;
         }
-        unsent.push_back(Tag::Record(pos));
-        if kind == "interval" {
+        unsent.push_back(pos.map_or(Tag::Extra, Tag::Record));
+        if kind == "interval" && pos.is_some() {
             if let Some(ch) = v["channel"].as_str() {
                 let latest = b.topic(&self.cfg.site, &format!("latest/{}", topic_level(ch)));
                 if client

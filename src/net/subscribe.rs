@@ -2,11 +2,14 @@
 //! publish while the collector is away), QoS 1 subscription to `PREFIX/+/+`, and manual
 //! acknowledgement: a record is acknowledged only after it is written and flushed
 //! ([`Collector::take`]), so a collector that dies in between gets it again, never loses it.
-//! The link is re-established with a back-off doubling from 0.5 s to 30 s.
+//! The link is re-established with a back-off doubling from 0.5 s to 30 s. While connected it
+//! also sends the collector's resend requests ([`Collector::due_requests`]) on
+//! `PREFIX/SITE/ask/resend` and says when a site falls silent or is heard again.
 
 use crate::net::collect::{Collector, Taken};
 use crate::net::mqtt::Broker;
 use crate::net::publish::{wait_connack, Login};
+use crate::net::resend::REQUEST_LEVELS;
 use anyhow::{bail, Result};
 use rumqttc::{Client, Connection, Event, Outgoing, Packet, Publish, QoS};
 use serde_json::Value;
@@ -50,16 +53,24 @@ pub fn collect(
         backoff = Duration::from_millis(500);
         client.try_subscribe(broker.collect_filter(), QoS::AtLeastOnce)?;
         let mut acks = Acks::default();
+        let mut looked = Instant::now();
         loop {
             if stopped() {
                 acks.flush_then_disconnect(&client, &mut conn);
                 return Ok(());
             }
             acks.hand_over(&client);
+            if looked.elapsed() >= LOOK_EVERY {
+                looked = Instant::now();
+                ask_and_watch(broker, &client, collector, looked, notes);
+            }
             match conn.recv_timeout(Duration::from_millis(100)) {
                 Ok(Ok(Event::Incoming(Packet::Publish(p)))) => {
                     match broker.split_topic(&p.topic) {
-                        Some((site, "status")) => notes(status_note(site, &p.payload)),
+                        Some((site, "status")) => {
+                            notes(status_note(site, &p.payload));
+                            collector.status(site, &p.payload, Instant::now())?;
+                        }
                         Some((site, _))
                             if collector.take(site, &p.payload)? == Taken::Malformed =>
                         {
@@ -82,6 +93,27 @@ pub fn collect(
         }
     }
     Ok(())
+}
+
+/// How often requests and silences are looked at.
+const LOOK_EVERY: Duration = Duration::from_millis(200);
+
+/// Sends the resend requests that are due (a request the client has no room for is lost and
+/// asked again after the back-off), and says which sites fell silent or came back.
+fn ask_and_watch(
+    broker: &Broker,
+    client: &Client,
+    collector: &mut Collector,
+    now: Instant,
+    notes: Notes<'_>,
+) {
+    for (site, req) in collector.due_requests(now) {
+        let topic = broker.topic(&site, REQUEST_LEVELS);
+        let _ = client.try_publish(topic, QoS::AtLeastOnce, false, req.to_json());
+    }
+    for n in collector.silence_notes(now) {
+        notes(n);
+    }
 }
 
 /// Acknowledgements on their way to the broker. The client's request queue is bounded and the

@@ -50,3 +50,5 @@ pub fn lines(path: &Path) -> Vec<String> {
 pub fn free_port() -> u16 {
     std::net::TcpListener::bind("127.0.0.1:0").unwrap().local_addr().unwrap().port()
 }
+
+pub mod mqtt;

@@ -149,11 +149,19 @@ pub struct LogSummary {
     pub baseline: Option<BaselineFile>,
     /// Intervals whose shared floor the baseline has learnt: (site, run, start).
     band_seen: HashSet<(String, String, String)>,
+    /// The state of each run whose start record was read, by `run`: a record of an earlier run
+    /// that comes after a later run's start (resent by a site at the collector's request, see
+    /// `net::resend`) is counted in its own run, with its own clock.
+    started: BTreeMap<String, Reading>,
+    /// Records of runs whose start record has not been read yet, by `run`: counted when it
+    /// comes (with its clock), or at the end of the file without one.
+    waiting: BTreeMap<String, Vec<Value>>,
     /// (site, channel) with an alarm up, whose intervals the baseline does not learn.
     alarms_open: HashSet<(String, String)>,
 }
 
 /// The state of one file's reading: the run it is in.
+#[derive(Clone, Debug)]
 struct Reading {
     /// The site the run counts under (`None`: left out by `--site`).
     site: Option<String>,
@@ -181,6 +189,7 @@ impl LogSummary {
         };
         let mut notes = Vec::new();
         input::read_records(name, reader, &mut notes, |v| self.record(v, &mut st, &file_site))?;
+        self.count_waiting(&st);
         for n in notes {
             if !self.notes.contains(&n) {
                 self.notes.push(n);
@@ -205,7 +214,40 @@ impl LogSummary {
             st.run = v["run"].as_str().map_or_else(|| without_id(v), str::to_string);
             st.rate_hz = v["sample_rate_hz"].as_f64().unwrap_or(0.0);
             st.origin = v["start"].as_str().and_then(epoch_of).map(|e| e - num(v, "t_start_s"));
+            self.started.insert(st.run.clone(), st.clone());
+            self.record_in_run(v, kind, st);
+            for early in self.waiting.remove(&st.run).unwrap_or_default() {
+                let kind = early["kind"].as_str().unwrap_or("").to_string();
+                self.record_in_run(&early, &kind, st);
+            }
+            return;
+        } else if let Some(run) = v["run"].as_str().filter(|r| *r != st.run) {
+            // A record of another run than the one being read (lines a collector stored when
+            // they were resent, after later ones): read it in its own run, or keep it until its
+            // run's start record comes.
+            match self.started.get(run).cloned() {
+                Some(mut other) => self.record_in_run(v, kind, &mut other),
+                None => self.waiting.entry(run.to_string()).or_default().push(v.clone()),
+            }
+            return;
         }
+        self.record_in_run(v, kind, st)
+    }
+
+    /// At the end of a file: the records whose run's start never came count under the file's
+    /// site, without a clock.
+    fn count_waiting(&mut self, st: &Reading) {
+        for (run, records) in std::mem::take(&mut self.waiting) {
+            let mut own = Reading { run, origin: None, ..st.clone() };
+            for v in records {
+                let kind = v["kind"].as_str().unwrap_or("").to_string();
+                self.record_in_run(&v, &kind, &mut own);
+            }
+        }
+    }
+
+    /// Counts a record in the run `st`.
+    fn record_in_run(&mut self, v: &Value, kind: &str, st: &mut Reading) {
         let Some(site) = st.site.clone() else { return };
         if !self.is_new(v, kind, st, &site) {
             // The start and channel records open every rotated file: repeats by design.
@@ -223,6 +265,8 @@ impl LogSummary {
             t_start_s: f64::MAX,
             ..Default::default()
         });
+        // Records read before their run's start record had no clock.
+        run.origin = run.origin.or(st.origin);
         run.reach(num(v, "t_start_s"), v["t_end_s"].as_f64());
         match kind {
             "stop" => run.stop = v["reason"].as_str().map(str::to_string),
@@ -519,5 +563,52 @@ mod tests {
         let longest: Vec<f64> = c.longest.iter().map(|h| h.duration_s).collect();
         assert_eq!(longest, [5.0, 4.0, 2.0]);
         assert_eq!(c.last_heard.unwrap().start, Some(30.0));
+    }
+
+    /// Two runs of one site as a collector may store them after resending lost records: lines
+    /// of the first run after the second's start, and the second's start after its intervals.
+    /// The summary must be that of the log as the site wrote it (in order).
+    #[test]
+    fn records_stored_out_of_order_count_in_their_own_run() {
+        let start = |run: &str, at: &str| {
+            format!(
+                r#"{{"kind":"start","site":"ridge","run":"{run}","seq":0,"sample_rate_hz":1e6,"start":"{at}","t_start_s":0.0,"interval_s":1.0}}"#
+            )
+        };
+        let interval = |run: &str, seq: u64, pct: f64| {
+            let t = (seq - 1) as f64;
+            format!(
+                r#"{{"kind":"interval","channel":"gate","center_hz":433.5e6,"width_hz":25e3,"t_start_s":{t},"t_end_s":{},"duration_s":1.0,"samples":100,"occupied_samples":{},"occupancy_pct":{pct},"mean_dbfs":-60.0,"dropped_samples":0,"run":"{run}","seq":{seq}}}"#,
+                t + 1.0,
+                pct as u64
+            )
+        };
+        let stop = |run: &str, seq: u64| {
+            format!(
+                r#"{{"kind":"stop","t_end_s":3.0,"reason":"end_of_input","iq_samples":3000000,"dropped_samples":0,"run":"{run}","seq":{seq}}}"#
+            )
+        };
+        // A run: its start, three intervals of these occupancies, its stop.
+        let run = |name: &str, at: &str, pcts: [f64; 3]| -> Vec<String> {
+            let intervals = (1..).zip(pcts).map(|(seq, pct)| interval(name, seq, pct));
+            std::iter::once(start(name, at)).chain(intervals).chain([stop(name, 4)]).collect()
+        };
+        let r1 = run("r1", "2026-12-04T20:00:00Z", [10.0, 20.0, 30.0]);
+        let r2 = run("r2", "2026-12-04T21:00:00Z", [50.0, 60.0, 70.0]);
+        let in_order: Vec<&String> = r1.iter().chain(&r2).collect();
+        let as_stored: Vec<&String> = [&r1[0], &r1[1], &r2[1], &r2[2], &r2[0], &r1[2], &r2[3]]
+            .into_iter()
+            .chain([&r1[3], &r2[4], &r1[4]])
+            .collect();
+        let summary = |lines: &[&String]| {
+            let text: String = lines.iter().map(|l| format!("{l}\n")).collect();
+            let mut s = LogSummary::new(Settings::default());
+            s.read("ridge.jsonl", text.as_bytes()).unwrap();
+            export::to_json(&s)
+        };
+        let want = summary(&in_order);
+        let stops = want.to_string().matches(r#""stop":"end_of_input""#).count();
+        assert_eq!(stops, 2, "two runs, each stopped: {want:#}");
+        assert_eq!(summary(&as_stored), want);
     }
 }
