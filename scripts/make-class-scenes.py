@@ -163,6 +163,23 @@ def pulses(rng, width_s, pri_s, edge_s):
     return env + 0j
 
 
+def gmsk(rng, rate_hz, bt):
+    """GMSK: MSK whose rectangular frequency pulses pass a Gaussian filter of bandwidth-time
+    product `bt` (3 dB bandwidth bt * rate; sigma = sqrt(ln 2) / (2 pi bt) symbols, common
+    practice), so the phase still moves by +-pi/2 per bit: shift rate / 2."""
+    sym = rng.integers(0, 2, n_symbols(rate_hz)) * 2 - 1
+    t0 = rng.uniform(0, FS / rate_hz)
+    sps = FS / rate_hz
+    pad = int(4 * sps)
+    idx = np.floor((np.arange(-pad, N + pad) + t0) * rate_hz / FS).astype(int) % len(sym)
+    f = sym[idx] * rate_hz / 4.0
+    tt = np.arange(-2 * int(sps), 2 * int(sps) + 1) / sps
+    sigma = np.sqrt(np.log(2)) / (2 * np.pi * bt)
+    h = np.exp(-tt ** 2 / (2 * sigma ** 2))
+    f = np.convolve(f, h / h.sum(), mode="same")[pad:pad + N]
+    return np.exp(2j * np.pi * np.cumsum(f) / FS)
+
+
 def keyed(x, on_from, on_to):
     """x keyed on (hard, as cheap transmitters key) for the share [on_from, on_to) of the
     record and off elsewhere: a burst taken with some silence either side."""
@@ -254,8 +271,8 @@ def draw_kinds(rng, set_name):
 def draw_more_kinds(rng):
     """Kinds added later, drawn from a generator of their own (seed + 1) so the scenes above
     stay as they were: MSK (continuous-phase 2-FSK of index 1/2, shift = rate / 2), AM by
-    several tones (depth = the peak depth) and unfiltered QPSK keyed on for part of the
-    record (its symbol rate must come from the burst, not from its edges)."""
+    several tones (depth = the peak depth), unfiltered QPSK keyed on for part of the
+    record (its symbol rate must come from the burst, not from its edges) and GMSK."""
     u = lambda a, b: float(rng.uniform(a, b))
     kinds = []
     rate = u(2000, 6000)
@@ -269,6 +286,10 @@ def draw_more_kinds(rng):
     kinds.append(("psk4-burst", "psk", {"symbol_rate_hz": rate, "psk_order": 4,
                                         "keyed_share": [start, start + 0.7]},
                   lambda r, a=rate, b=start: keyed(unfiltered_psk(r, 4, a), b, b + 0.7)))
+    rate, bt = u(2000, 6000), u(0.3, 0.5)
+    kinds.append(("gmsk", "fsk", {"symbol_rate_hz": rate, "tones": 2, "shift_hz": rate / 2,
+                                  "bt": bt},
+                  lambda r, a=rate, b=bt: gmsk(r, a, b)))
     return kinds
 
 

@@ -10,7 +10,7 @@ use crate::cli::alarms::AlarmConfig;
 use crate::cli::{ColourChoice, WatchConfig};
 use crate::messages::{note, sanitize};
 use crate::output::log::alarms::load_baseline;
-use crate::output::log::changes::WatchChanges;
+use crate::output::log::changes::{open_change_log, WatchChanges};
 use crate::output::sigmf::outputs::{recorded_note, recorder};
 use crate::output::sink;
 use crate::pipeline::clock::Clock;
@@ -132,17 +132,7 @@ pub fn run(cfg: WatchConfig) -> Result<ExitCode> {
 /// `--baseline`, its records appended to `--alarm-log` (a file: the screen is on stdout).
 fn change_watch(cfg: &WatchConfig, a: &AlarmConfig, info: &SourceInfo) -> Result<WatchChanges> {
     let seed = a.baseline.as_deref().map(|p| load_baseline(p, None)).transpose()?;
-    let out = match cfg.alarm_log.as_deref() {
-        Some("-") => bail!("--alarm-log - would write into the screen; name a file"),
-        Some(path) => {
-            let file = std::fs::OpenOptions::new().create(true).append(true).open(path);
-            let file = file.map_err(|e| {
-                anyhow::anyhow!("cannot open '{}' for the alarm log ({e}); check the directory exists and is writable", sanitize(path))
-            })?;
-            Some(Box::new(file) as Box<dyn std::io::Write + Send>)
-        }
-        None => None,
-    };
+    let out = open_change_log(cfg.alarm_log.as_deref())?;
     WatchChanges::new(info, &cfg.rows, &cfg.plan, a.settings, seed.as_ref(), cfg.interval_s, out)
 }
 

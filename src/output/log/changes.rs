@@ -109,6 +109,22 @@ impl WatchChanges {
     }
 }
 
+/// The alarm log for the change records (`--alarm-log`), opened to append; the screen is on
+/// standard output, so `-` is refused.
+pub fn open_change_log(path: Option<&str>) -> Result<Option<Box<dyn Write + Send>>> {
+    let Some(path) = path else { return Ok(None) };
+    if path == "-" {
+        bail!("--alarm-log - would write into the screen; name a file");
+    }
+    let file = std::fs::OpenOptions::new().create(true).append(true).open(path).map_err(|e| {
+        anyhow::anyhow!(
+            "cannot open '{}' for the alarm log ({e}); check the directory exists and is writable",
+            crate::messages::sanitize(path)
+        )
+    })?;
+    Ok(Some(Box::new(file)))
+}
+
 /// How long a channel stays occupied after its power falls (as `log`'s default `--hang`).
 const HANG_S: f64 = 0.025;
 
