@@ -4,9 +4,6 @@ use super::features::{instantaneous_frequency, lowpass_real};
 use super::spectrum::{above, quantile};
 use num_complex::Complex64;
 
-/// Upper 0.1 % point of the standard normal distribution (Abramowitz & Stegun table 26.5).
-const Z_999: f64 = 3.090;
-
 /// AM depth as the *peak* depth of the envelope: the largest excursion of the envelope from the
 /// carrier level over the carrier level, max(Amax − A, A − Amin) / A, A the mean envelope (the
 /// carrier, the message having zero mean). For a symmetric message such as one tone this is
@@ -14,15 +11,15 @@ const Z_999: f64 = 3.090;
 /// the depth of its peaks, not that of a tone of the same power, which would read about half as
 /// much for five tones.
 ///
-/// Noise widens the envelope (its in-phase part, half of `noise_power`, adds to it at useful
-/// SNR), so two estimates are made, each biased upwards only, and the smaller is kept:
-/// - from the moments with the noise taken off exactly (the variance and fourth central moment
-///   of a sum of independent terms): the message's RMS times the crest factor √(3 / (3 − κ))
-///   of equal tones in phase with the same kurtosis κ (one tone: κ = 1.5, crest √2; common
-///   practice), exact for one tone and high when many tones never all peak together;
-/// - from the 0.1 % and 99.9 % points of the envelope, the noise's own 0.1 % excursion (Z_999 σ)
-///   taken off in quadrature: good for messages whose peaks are rare (a tone's envelope dwells
-///   at its peaks, where the noise adds almost in full, so it reads high for a tone).
+/// Two estimates are made and the smaller kept:
+/// - from the moments with the noise (its in-phase part, half of `noise_power`, which is what
+///   moves the envelope at useful SNR) taken off exactly (the variance and fourth central
+///   moment of a sum of independent terms): the message's RMS times the crest factor
+///   √(3 / (3 − κ)) of equal tones in phase with the same kurtosis κ (one tone: κ = 1.5, crest
+///   √2; common practice). Exact for one tone, a little high (about 10 % for five tones) when
+///   many tones never all peak together, and far too high for a noise-like message (κ near 3);
+/// - the 0.1 % and 99.9 % points of the envelope as measured: the noise only widens them, so
+///   they bound the depth from above, close to it at high SNR, and hold the first in check.
 pub fn am_depth(x: &[Complex64], noise_power: f64) -> Option<f64> {
     let a: Vec<f64> = x.iter().map(|v| v.norm()).collect();
     if a.len() < 16 {
@@ -41,10 +38,11 @@ pub fn am_depth(x: &[Complex64], noise_power: f64) -> Option<f64> {
         return Some(0.0);
     }
     // E(s + w)⁴ = E s⁴ + 6 E s² σ² + 3 σ⁴ for zero-mean s and Gaussian w of variance σ².
-    let kurtosis = ((c4 - 6.0 * vn * var - 3.0 * vn * vn) / (var * var)).clamp(1.0, 2.9);
+    // At least a tone's kurtosis (crest √2): where the noise holds most of the variance the
+    // estimate scatters, and an AM message (voice, tones) is no flatter than one tone.
+    let kurtosis = ((c4 - 6.0 * vn * var - 3.0 * vn * vn) / (var * var)).clamp(1.5, 2.9);
     let by_moments = (3.0 / (3.0 - kurtosis)).sqrt() * var.sqrt() / mean;
-    let widen = (Z_999 * Z_999 * vn).max(0.0);
-    let excursion = |q: f64| ((q - mean).powi(2) - widen).max(0.0).sqrt();
+    let excursion = |q: f64| (q - mean).abs();
     let by_extremes = excursion(quantile(&a, 0.999)).max(excursion(quantile(&a, 0.001))) / mean;
     Some(by_moments.min(by_extremes))
 }
