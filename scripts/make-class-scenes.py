@@ -163,6 +163,48 @@ def pulses(rng, width_s, pri_s, edge_s):
     return env + 0j
 
 
+def gmsk(rng, rate_hz, bt):
+    """GMSK: MSK whose rectangular frequency pulses pass a Gaussian filter of bandwidth-time
+    product `bt` (3 dB bandwidth bt * rate; sigma = sqrt(ln 2) / (2 pi bt) symbols, common
+    practice), so the phase still moves by +-pi/2 per bit: shift rate / 2."""
+    sym = rng.integers(0, 2, n_symbols(rate_hz)) * 2 - 1
+    t0 = rng.uniform(0, FS / rate_hz)
+    sps = FS / rate_hz
+    pad = int(4 * sps)
+    idx = np.floor((np.arange(-pad, N + pad) + t0) * rate_hz / FS).astype(int) % len(sym)
+    f = sym[idx] * rate_hz / 4.0
+    tt = np.arange(-2 * int(sps), 2 * int(sps) + 1) / sps
+    sigma = np.sqrt(np.log(2)) / (2 * np.pi * bt)
+    h = np.exp(-tt ** 2 / (2 * sigma ** 2))
+    f = np.convolve(f, h / h.sum(), mode="same")[pad:pad + N]
+    return np.exp(2j * np.pi * np.cumsum(f) / FS)
+
+
+def keyed(x, on_from, on_to):
+    """x keyed on (hard, as cheap transmitters key) for the share [on_from, on_to) of the
+    record and off elsewhere: a burst taken with some silence either side."""
+    g = np.zeros(N)
+    g[int(on_from * N):int(on_to * N)] = 1.0
+    return x * g
+
+
+def unfiltered_psk(rng, order, rate_hz):
+    """PSK with rectangular (unshaped) symbols at `rate_hz` (any, not a fraction of FS)."""
+    k = rng.integers(0, order, n_symbols(rate_hz))
+    sym = np.exp(1j * (2 * np.pi * k / order + (np.pi / 4 if order == 4 else 0.0)))
+    t0 = rng.uniform(0, FS / rate_hz)
+    idx = np.floor((np.arange(N) + t0) * rate_hz / FS).astype(int)
+    return sym[idx]
+
+
+def am_tones(rng, depth, tones_hz):
+    """Full-carrier AM by a sum of tones of random phases, scaled so that its *peak* is
+    `depth`: the envelope's largest excursion from the carrier is depth times the carrier."""
+    t = np.arange(N) / FS
+    m = sum(np.sin(2 * np.pi * f * t + rng.uniform(0, 2 * np.pi)) for f in tones_hz)
+    return 1.0 + depth * m / np.max(np.abs(m)) + 0j
+
+
 def band_noise(rng, bw_hz):
     sos = scipy.signal.butter(8, bw_hz / 2, fs=FS, output="sos")
     w = rng.standard_normal(N + 4000) + 1j * rng.standard_normal(N + 4000)
@@ -226,21 +268,58 @@ def draw_kinds(rng, set_name):
     return kinds
 
 
+def draw_more_kinds(rng):
+    """Kinds added later, drawn from a generator of their own (seed + 1) so the scenes above
+    stay as they were: MSK (continuous-phase 2-FSK of index 1/2, shift = rate / 2), AM by
+    several tones (depth = the peak depth), unfiltered QPSK keyed on for part of the
+    record (its symbol rate must come from the burst, not from its edges) and GMSK."""
+    u = lambda a, b: float(rng.uniform(a, b))
+    kinds = []
+    rate = u(2000, 6000)
+    kinds.append(("msk", "fsk", {"symbol_rate_hz": rate, "tones": 2, "shift_hz": rate / 2},
+                  lambda r, a=rate: cpfsk(r, 2, a, a / 2)))
+    depth = u(0.4, 0.95)
+    tones = sorted(u(300, 2700) for _ in range(int(rng.integers(2, 6))))
+    kinds.append(("am-tones", "am", {"mod_depth": depth, "tones_hz": tones},
+                  lambda r, d=depth, t=tones: am_tones(r, d, t)))
+    rate, start = u(2000, 3500), u(0.05, 0.2)
+    kinds.append(("psk4-burst", "psk", {"symbol_rate_hz": rate, "psk_order": 4,
+                                        "keyed_share": [start, start + 0.7]},
+                  lambda r, a=rate, b=start: keyed(unfiltered_psk(r, 4, a), b, b + 0.7)))
+    rate, bt = u(2000, 6000), u(0.3, 0.5)
+    kinds.append(("gmsk", "fsk", {"symbol_rate_hz": rate, "tones": 2, "shift_hz": rate / 2,
+                                  "bt": bt},
+                  lambda r, a=rate, b=bt: gmsk(r, a, b)))
+    return kinds
+
+
 def main():
     os.makedirs(OUT, exist_ok=True)
     scenes = []
     for set_name, seed in SETS.items():
         rng = np.random.default_rng(seed)
-        for kind, cls, params, make in draw_kinds(rng, set_name):
+        scenes += write_set(rng, set_name, draw_kinds(rng, set_name))
+        more = np.random.default_rng(seed + 1)
+        scenes += write_set(more, set_name, draw_more_kinds(more))
+    finish(scenes)
+
+
+def write_set(rng, set_name, kinds):
+    """Writes every kind at every SNR; returns their truth entries."""
+    scenes = []
+    if True:
+        for kind, cls, params, make in kinds:
             for snr in SNRS:
                 s = make(rng)
-                s = s * np.sqrt(10 ** (LEVEL_DBFS / 10) / np.mean(np.abs(s) ** 2))
+                # Power while keyed on, for the keyed kinds; else over the record (pulses too).
+                on = np.abs(s) > 0 if "keyed_share" in params else np.ones(N, dtype=bool)
+                s = s * np.sqrt(10 ** (LEVEL_DBFS / 10) / np.mean(np.abs(s[on]) ** 2))
                 obw, centre = obw99(s)
                 margin = FS / 2 - obw / 2 - 3000
                 offset = float(rng.uniform(-margin, margin)) if margin > 0 else 0.0
                 t = np.arange(N) / FS
                 s = s * np.exp(2j * np.pi * offset * t)
-                power = float(np.mean(np.abs(s) ** 2))
+                power = float(np.mean(np.abs(s[on]) ** 2))
                 noise_psd = power / (obw * 10 ** (snr / 10))
                 sigma = np.sqrt(noise_psd * FS / 2)
                 x = s + sigma * (rng.standard_normal(N) + 1j * rng.standard_normal(N))
@@ -254,12 +333,16 @@ def main():
                     "rate_hz": FS, "samples": N, "offset_hz": offset + centre, "obw_hz": obw,
                     "noise_psd": noise_psd, "signal_power": power, "params": params,
                 })
+    return scenes
+
+
+def finish(scenes):
     with open(os.path.join(OUT, "truth.json"), "w") as f:
         json.dump({"format": "ci16_le", "scale": SCALE, "scenes": scenes}, f, indent=1)
     with open(os.path.join(OUT, "VERSIONS.txt"), "w") as f:
         f.write(f"python {platform.python_version()}\nnumpy {np.__version__}\n"
                 f"scipy {scipy.__version__}\ncommand: python3 scripts/make-class-scenes.py\n"
-                f"seeds: {SETS}\n")
+                f"seeds: {SETS} (and each + 1 for the kinds added later)\n")
     print(f"wrote {len(scenes)} scenes to {OUT}", file=sys.stderr)
 
 

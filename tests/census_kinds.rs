@@ -1,8 +1,8 @@
 //! The census names each emitter's kind: the single-emitter scenes of
 //! scripts/make-census-scenes.py (numpy/scipy, seeded; tests/reference/census/truth.json) were
-//! built as the classes below, so the class each was built as is the truth here. MSK bursts are
-//! left out: MSK is continuous-phase FSK of index ½, which the classifier reads as FM (README,
-//! limits).
+//! built as the classes below, so the class each was built as is the truth here. MSK is
+//! continuous-phase FSK of index ½ (ITU RR App. 1 first symbol F, class fsk), so its shift is
+//! half its bit rate.
 
 use serde_json::Value;
 use std::path::Path;
@@ -42,6 +42,7 @@ fn each_single_emitter_scene_is_named_the_class_it_was_built_as() {
         ("keyed-cw.ci8", "cw", 'N'),
         ("wide-bursts.ci8", "noise", 'X'),
         ("bpsk.ci8", "psk", 'G'),
+        ("msk-bursts.ci8", "fsk", 'F'),
     ];
     for (file, class, symbol) in built {
         let scene = truth["scenes"]
@@ -68,6 +69,18 @@ fn each_single_emitter_scene_is_named_the_class_it_was_built_as() {
     assert!((bpsk["symbol_rate_hz"].as_f64().unwrap() - 5000.0).abs() < 50.0, "{bpsk}");
     let ofdm = &census("ofdm.ci8", 250e3)["emitters"][0]["class_params"];
     assert!((ofdm["subcarrier_spacing_hz"].as_f64().unwrap() - 1000.0).abs() < 10.0, "{ofdm}");
+    // The bursts are read from the keyed-on stretch, not from their edges (10 kBd, not 15).
+    let qpsk = &census("qpsk-bursts.ci8", 250e3)["emitters"][0]["class_params"];
+    assert_eq!(qpsk["psk_order"], 4);
+    assert!((qpsk["symbol_rate_hz"].as_f64().unwrap() - 10e3).abs() < 100.0, "{qpsk}");
+    // MSK at 4800 bit/s: two tones 2400 Hz apart (truth.json "what").
+    let msk = &census("msk-bursts.ci8", 250e3)["emitters"][0]["class_params"];
+    assert_eq!(msk["tones"], 2);
+    assert!((msk["symbol_rate_hz"].as_f64().unwrap() - 4800.0).abs() < 48.0, "{msk}");
+    assert!((msk["shift_hz"].as_f64().unwrap() - 2400.0).abs() < 120.0, "{msk}");
+    // Voice-band AM scaled to a peak depth of 0.8: the depth read is the peak depth.
+    let am = &census("am.ci8", 250e3)["emitters"][0]["class_params"];
+    assert!((am["mod_depth"].as_f64().unwrap() - 0.8).abs() < 0.15, "{am}");
     let pulses = &census("pulse-train.ci8", 500e3)["emitters"][0]["class_params"];
     assert!((pulses["pri_s"].as_f64().unwrap() - 2e-3).abs() < 2e-5, "{pulses}");
 }

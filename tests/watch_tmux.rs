@@ -397,3 +397,58 @@ fn channel_alarms_open_once_and_end_after_the_hold_off() {
     assert!(telem.iter().filter(|r| r["ended"] == "quiet").count() >= 2, "{text}");
     let _ = std::fs::remove_dir_all(&dir);
 }
+
+/// `watch --alarms` on the planted scene of `tests/reference/alarms/` (written by
+/// `scripts/make-alarm-scenes.py`, seeded numpy; truth.json: a +6 dB floor step on `hut` from
+/// 70 s): at 80×24 the top line must show the change alarm as it is raised, and the alarm log
+/// must hold the same `alarm` record `log --alarms` writes.
+#[test]
+fn change_alarms_show_on_the_top_line_and_in_the_alarm_log_at_80x24() {
+    if !tmux_available() {
+        assert!(std::env::var("CI").is_err(), "tmux is not installed");
+        eprintln!("skipping the tmux end-to-end test: tmux is not installed");
+        return;
+    }
+    let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/reference/alarms");
+    let truth: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("truth.json")).unwrap()).unwrap();
+    let step = &truth["steps"][0];
+    assert_eq!((step["channel"].as_str(), step["what"].as_str()), (Some("hut"), Some("floor_up")));
+    let log = std::env::temp_dir().join(format!("bw-e2e-changes-{}.jsonl", std::process::id()));
+    let _ = std::fs::remove_file(&log);
+    let tmux = Tmux::start("changes", 80, 24);
+    tmux.wait_for("the shell prompt", Duration::from_secs(10), |s| !s.trim().is_empty());
+    // Ten times the recorded rate: the step comes 7 s after the start.
+    let line = format!(
+        "{} watch {} --format ci8 --rate 8k --center 433.5M --start {} --plan {} --fft 256 \
+         --speed 10 --alarms --interval 1s --alarm-log {}; echo BW-DONE-$?",
+        env!("CARGO_BIN_EXE_bandwarden"),
+        dir.join("hilltop.ci8").display(),
+        truth["start"].as_str().unwrap(),
+        dir.join("plan.toml").display(),
+        log.display()
+    );
+    tmux.keys(&[&line, "Enter"]);
+    let s = tmux.wait_for("the floor alarm on the top line", Duration::from_secs(60), |s| {
+        s.lines().next().is_some_and(|l| l.contains("▲ hut floor_up since 06:01:"))
+    });
+    let top = s.lines().next().unwrap();
+    assert!(top.chars().count() <= 80, "{top}");
+    tmux.keys(&["q"]);
+    tmux.wait_for("the shell after quitting", Duration::from_secs(20), |s| s.contains("BW-DONE-0"));
+    let records: Vec<serde_json::Value> = std::fs::read_to_string(&log)
+        .unwrap()
+        .lines()
+        .map(|l| serde_json::from_str(l).unwrap())
+        .collect();
+    let alarm = records
+        .iter()
+        .find(|r| r["kind"] == "alarm" && r["channel"] == "hut" && r["what"] == "floor_up")
+        .unwrap_or_else(|| panic!("no floor_up alarm for hut in {records:?}"));
+    // Raised within a minute of the step (issue 23's goal), dated from it.
+    let from = step["start_s"].as_f64().unwrap();
+    let at = alarm["t_end_s"].as_f64().unwrap();
+    assert!(at >= from && at - from <= 60.0, "{alarm}");
+    assert!(alarm["since"].as_str().unwrap().starts_with("2031-04-17T06:01:"), "{alarm}");
+    let _ = std::fs::remove_file(&log);
+}

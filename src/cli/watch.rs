@@ -1,5 +1,6 @@
 //! `watch` flags and their validation.
 
+use super::alarms::{AlarmArgs, AlarmConfig};
 use super::common::{parse_db, parse_number, DetectArgs, DspArgs, InputArgs, PlanArgs};
 use super::sigmf_out::RecordArgs;
 use crate::measure::Detection;
@@ -7,7 +8,7 @@ use crate::pipeline::latest::RowSettings;
 use crate::plan::Plan;
 use crate::source::InputRequest;
 use crate::tui::colour::Depth;
-use crate::units::format_num;
+use crate::units::{format_num, parse_duration};
 use anyhow::{bail, Result};
 use clap::Args;
 
@@ -53,13 +54,20 @@ pub struct WatchArgs {
     #[arg(long)]
     pub no_mouse: bool,
     /// Append a JSON Lines record to FILE when a channel alarm opens and when it ends (alarms
-    /// come from the plan's alarm_dbfs or the A key).
+    /// come from the plan's alarm_dbfs or the A key), and with --alarms each change alarm and
+    /// clear.
     #[arg(long, value_name = "FILE")]
     pub alarm_log: Option<String>,
     /// How long a channel's power must stay under its alarm threshold before the alarm ends
     /// (key-ups closer together than this are one alarm).
-    #[arg(long, value_name = "DURATION", default_value = "5s", allow_hyphen_values = true, value_parser = crate::units::parse_duration)]
+    #[arg(long, value_name = "DURATION", default_value = "5s", allow_hyphen_values = true, value_parser = parse_duration)]
     pub alarm_hold: std::time::Duration,
+    #[command(flatten)]
+    pub alarms: AlarmArgs,
+    /// With --alarms: the length of the intervals whose floor and occupancy are tested, as
+    /// `log --interval` (e.g. 1s, 60s).
+    #[arg(long, value_name = "DURATION", default_value = "60s", allow_hyphen_values = true, value_parser = parse_duration, requires = "alarms", help_heading = "Change alarms")]
+    pub interval: std::time::Duration,
     /// Folder for the files the e (evidence) and g (picture) keys write; it must exist and be
     /// writable (checked at start).
     #[arg(long, value_name = "DIR", default_value = ".")]
@@ -110,6 +118,9 @@ pub struct WatchConfig {
     pub alarm_log: Option<String>,
     /// The channel-alarm hold-off, seconds.
     pub alarm_hold_s: f64,
+    /// `--alarms`: the change test and its baseline, on intervals of `interval_s`.
+    pub alarms: Option<AlarmConfig>,
+    pub interval_s: f64,
     /// Where `e` and `g` write their files.
     pub evidence_dir: String,
     /// How signals are told from noise.
@@ -141,6 +152,13 @@ impl WatchArgs {
             bail!("--ref-offset must be a number of dB within ±{MAX_REF_OFFSET_DB}");
         }
         let plan = self.channels.validate()?;
+        let alarms = self.alarms.validate()?;
+        if alarms.is_some() && plan.channels.is_empty() {
+            bail!("--alarms follows the channels of a plan; give --plan FILE or --channel");
+        }
+        if self.interval.is_zero() {
+            bail!("--interval must be longer than zero (e.g. 60s)");
+        }
         let mut input = self.source.request(self.input);
         input.realtime = input.path.is_none();
         Ok(WatchConfig {
@@ -156,6 +174,8 @@ impl WatchArgs {
             mouse: !self.no_mouse,
             alarm_log: self.alarm_log,
             alarm_hold_s: self.alarm_hold.as_secs_f64(),
+            alarms,
+            interval_s: self.interval.as_secs_f64(),
             evidence_dir: self.evidence_dir,
             detection,
             record: self.record.validate()?,
@@ -180,6 +200,17 @@ mod tests {
 
     fn error(args: &[&str]) -> String {
         parse(args).validate().unwrap_err().to_string()
+    }
+
+    #[test]
+    fn change_alarms_need_a_plan_and_take_log_s_flags() {
+        let plan = ["--channel", "mast=433.5M:12.5k", "--alarms", "--interval", "1s"];
+        let c = parse(&plan).validate().unwrap();
+        assert_eq!(c.interval_s, 1.0);
+        assert_eq!(c.alarms.unwrap().settings.method, crate::measure::change::DEFAULT_CUSUM);
+        assert!(error(&["--alarms"]).contains("--plan"));
+        let no_alarms = Cli::try_parse_from(["bandwarden", "watch", "--interval", "1s"]);
+        assert!(no_alarms.is_err(), "--interval needs --alarms");
     }
 
     #[test]

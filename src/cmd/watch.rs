@@ -6,8 +6,11 @@
 //! samples the DSP cannot keep up with are dropped and counted on screen rather than queued
 //! without bound.
 
+use crate::cli::alarms::AlarmConfig;
 use crate::cli::{ColourChoice, WatchConfig};
 use crate::messages::{note, sanitize};
+use crate::output::log::alarms::load_baseline;
+use crate::output::log::changes::{open_change_log, WatchChanges};
 use crate::output::sigmf::outputs::{recorded_note, recorder};
 use crate::output::sink;
 use crate::pipeline::clock::Clock;
@@ -17,6 +20,7 @@ use crate::pipeline::latest::RowFeed;
 use crate::pipeline::{open_input, Consumer, Input, RunSpec};
 use crate::plan::{Plan, DEFAULT_THRESHOLD_DB};
 use crate::source::reader::ReaderOptions;
+use crate::source::SourceInfo;
 use crate::tui::app::{AlarmLog, App, ChannelMark, SourceSummary};
 use crate::tui::colour::Depth;
 use crate::tui::{self, RunOptions};
@@ -61,8 +65,9 @@ pub fn run(cfg: WatchConfig) -> Result<ExitCode> {
         loop_input: cfg.loop_input && is_file,
         ..Default::default()
     };
-    let spec = RunSpec::new(info.clone(), cfg.rows.engine(rate), cfg.rows.threads);
+    let mut spec = RunSpec::new(info.clone(), cfg.rows.engine(rate), cfg.rows.threads);
     spec.check_work()?;
+    let changes = cfg.alarms.as_ref().map(|a| change_watch(&cfg, a, &info)).transpose()?;
     let input = Input::start(src, opts);
     let reader_stats = input.stats.clone();
     let recorder =
@@ -74,6 +79,11 @@ pub fn run(cfg: WatchConfig) -> Result<ExitCode> {
     // Each listed signal's kind, classified on a thread of its own (pipeline::kinds).
     let (tap, kinds) = live(rate, info.center_hz)?;
     extra.push(Box::new(tap));
+    let board = changes.map(|c| {
+        spec.tracker = Some(c.tracker);
+        extra.push(Box::new(c.consumer));
+        c.board
+    });
     let feed = RowFeed::spawn_with(input, spec, extra)?;
     let summary = SourceSummary {
         label: sanitize(&info.label),
@@ -102,6 +112,9 @@ pub fn run(cfg: WatchConfig) -> Result<ExitCode> {
     if let Some(path) = &cfg.alarm_log {
         app = app.with_alarm_log(AlarmLog::new(sink::open(path, true, "alarm log")?.out));
     }
+    if let Some(board) = board {
+        app = app.with_changes(board);
+    }
     let run_opts = RunOptions { fps: cfg.fps, scroll_region: cfg.scroll_region, mouse: cfg.mouse };
     let result = tui::run(app, &feed, &reader_stats, run_opts);
     // The run ends as every command's does; what the input came to is said after the screen
@@ -114,6 +127,14 @@ pub fn run(cfg: WatchConfig) -> Result<ExitCode> {
         recorded_note(&*status.lock().map_err(|_| anyhow::anyhow!("the recorder failed"))?, &meta)?;
     }
     Ok(ExitCode::SUCCESS)
+}
+
+/// `--alarms`: the change watch of every plan channel on the monitor's rows, seeded from
+/// `--baseline`, its records appended to `--alarm-log` (a file: the screen is on stdout).
+fn change_watch(cfg: &WatchConfig, a: &AlarmConfig, info: &SourceInfo) -> Result<WatchChanges> {
+    let seed = a.baseline.as_deref().map(|p| load_baseline(p, None)).transpose()?;
+    let out = open_change_log(cfg.alarm_log.as_deref())?;
+    WatchChanges::new(info, &cfg.rows, &cfg.plan, a.settings, seed.as_ref(), cfg.interval_s, out)
 }
 
 /// Checks at start that the folder for the `e` and `g` files exists and takes files, so the

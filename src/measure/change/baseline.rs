@@ -6,7 +6,8 @@
 //! ```text
 //! {"format":"bandwarden-baseline","version":1,
 //!  "sites":{"wrenhollow-ridge":{"channels":{
-//!    "north-gate":{"all":{"occupancy":{"samples":1440,"mean":0.31,"spread":0.06},
+//!    "north-gate":{"all":{"occupancy":{"samples":1440,"mean":0.31,"spread":0.06,
+//!                                      "lag1":0.12,"pairs":1439},
 //!                         "floor_dbfs_per_hz":{"samples":1440,"mean":-112.4,"spread":0.3}},
 //!                  "hours":{"0":{…},"1":{…},…}},
 //!    "band":{"all":{"floor_dbfs_per_hz":{…}},"hours":{…}}}}}}
@@ -22,7 +23,10 @@
 //!     `channel_floor_dbfs_per_hz`); `band`'s is the shared floor (`noise_floor_dbfs_per_hz`);
 //!   - `occupancy`: the interval's occupied share `p` (0–1) on the arcsine-square-root scale,
 //!     `asin(√p)` in radians, on which a proportion's spread hardly depends on its level
-//!     (Fisher's variance-stabilising transform); the usual occupancy is `100·sin²(mean)` %.
+//!     (Fisher's variance-stabilising transform); the usual occupancy is `100·sin²(mean)` %;
+//!   - `lag1` and `pairs`: the lag-1 autocorrelation of the quantity over consecutive
+//!     intervals (bursts longer than an interval make neighbours alike) and the pairs it was
+//!     measured on; absent in older files (read as 0).
 //!
 //! A file that is not one of these (another JSON, a log, a census) is refused with a message
 //! that says what it is missing.
@@ -45,30 +49,63 @@ pub fn hour_of_week(epoch_s: f64) -> u16 {
     hours.rem_euclid(HOURS_PER_WEEK as i64) as u16
 }
 
-/// Running mean and spread of one quantity.
-#[derive(Clone, Copy, Debug, Default, PartialEq, Serialize, Deserialize)]
+/// Running mean, spread and lag-1 autocorrelation of one quantity.
+#[derive(Clone, Copy, Debug, Default, Serialize, Deserialize)]
 pub struct Moments {
     pub samples: u64,
     pub mean: f64,
     /// Sample standard deviation (n − 1); 0 below two samples.
     pub spread: f64,
+    /// Lag-1 autocorrelation of the values in the order they were learnt (consecutive
+    /// intervals), over `pairs` neighbouring pairs; 0 when unknown (files written before it).
+    #[serde(default)]
+    pub lag1: f64,
+    #[serde(default)]
+    pub pairs: u64,
+    /// The value learnt last, the partner of the next one (not kept in files).
+    #[serde(skip)]
+    last: Option<f64>,
+}
+
+impl PartialEq for Moments {
+    /// Equal in what they say (the last value seen is bookkeeping, not part of it).
+    fn eq(&self, o: &Moments) -> bool {
+        (self.samples, self.mean, self.spread, self.lag1, self.pairs)
+            == (o.samples, o.mean, o.spread, o.lag1, o.pairs)
+    }
 }
 
 impl Moments {
-    /// Adds one value (Welford, Technometrics 4(3), 1962: stable in one pass).
+    /// Adds one value (Welford, Technometrics 4(3), 1962: stable in one pass), and its product
+    /// with the previous value about the running mean for the lag-1 autocorrelation (the
+    /// co-moment is kept as `lag1 · spread² · pairs`, exact from one push to the next).
     pub fn push(&mut self, x: f64) {
         let n = self.samples as f64;
         let m2 = self.spread * self.spread * (n - 1.0).max(0.0);
         let mean = self.mean + (x - self.mean) / (n + 1.0);
         let m2 = m2 + (x - self.mean) * (x - mean);
+        let lag = self.last.map(|prev| {
+            let sum = self.lag1 * self.spread * self.spread * self.pairs as f64;
+            sum + (x - self.mean) * (prev - self.mean)
+        });
         self.samples += 1;
         self.mean = mean;
         self.spread = if self.samples > 1 { (m2 / n).sqrt() } else { 0.0 };
+        if let Some(sum) = lag {
+            self.pairs += 1;
+            let var = self.spread * self.spread;
+            self.lag1 =
+                if var > 0.0 { (sum / self.pairs as f64 / var).clamp(-1.0, 1.0) } else { 0.0 };
+        }
+        self.last = Some(x);
     }
 
     fn check(&self, at: &str) -> Result<(), String> {
         if !self.mean.is_finite() || !self.spread.is_finite() || self.spread < 0.0 {
             return Err(format!("{at}: mean and spread must be finite numbers, spread ≥ 0"));
+        }
+        if !(-1.0..=1.0).contains(&self.lag1) {
+            return Err(format!("{at}: lag1 is an autocorrelation, between −1 and 1"));
         }
         Ok(())
     }
@@ -244,6 +281,27 @@ mod tests {
         let var = xs.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / 499.0;
         assert_eq!(m.samples, 500);
         assert!((m.mean - mean).abs() < 1e-9 && (m.spread - var.sqrt()).abs() < 1e-9);
+    }
+
+    #[test]
+    fn the_running_lag_one_autocorrelation_is_that_of_the_series() {
+        // An AR(1) series x[t] = φ x[t−1] + e[t] has lag-1 autocorrelation φ (Box & Jenkins,
+        // Time Series Analysis, 1970, chapter 3); the running estimate against the two-pass one.
+        let mut rng = Rng::new(8);
+        let mut xs = vec![0.0f64];
+        for _ in 0..20_000 {
+            let last = *xs.last().unwrap();
+            xs.push(0.6 * last + rng.gauss());
+        }
+        let mut m = Moments::default();
+        xs.iter().for_each(|&x| m.push(x));
+        let n = xs.len() as f64;
+        let mean = xs.iter().sum::<f64>() / n;
+        let var = xs.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (n - 1.0);
+        let c1 = xs.windows(2).map(|w| (w[0] - mean) * (w[1] - mean)).sum::<f64>() / (n - 1.0);
+        assert!((m.lag1 - c1 / var).abs() < 0.01, "{} {}", m.lag1, c1 / var);
+        assert!((m.lag1 - 0.6).abs() < 0.03, "{}", m.lag1);
+        assert_eq!(m.pairs, 20_000);
     }
 
     #[test]

@@ -4,34 +4,47 @@ use super::features::{instantaneous_frequency, lowpass_real};
 use super::spectrum::{above, quantile};
 use num_complex::Complex64;
 
-/// Normalised power variance E|s|⁴/(E|s|²)² − 1 of s = 1 + m cos θ (θ uniform):
-/// (1 + 3m² + 3m⁴/8) / (1 + m²/2)² − 1.
-fn tone_am_power_variance(m: f64) -> f64 {
-    let m2 = m * m;
-    (1.0 + 3.0 * m2 + 0.375 * m2 * m2) / (1.0 + 0.5 * m2).powi(2) - 1.0
-}
-
-/// AM depth: the depth m of a sinusoidal message that gives the measured (noise-corrected)
-/// power variance. For a tone this is the depth (Amax − Amin)/(Amax + Amin); for another message
-/// it is the depth of the tone with the same envelope variance. Monotonic for m up to 1.5, the
-/// range searched.
-pub fn am_depth(power_variance: f64) -> f64 {
-    let (mut lo, mut hi) = (0.0, 1.5);
-    if !above(power_variance, 0.0) {
-        return 0.0;
+/// AM depth as the *peak* depth of the envelope: the largest excursion of the envelope from the
+/// carrier level over the carrier level, max(Amax − A, A − Amin) / A, A the mean envelope (the
+/// carrier, the message having zero mean). For a symmetric message such as one tone this is
+/// the textbook (Amax − Amin) / (Amax + Amin); for a voice-like message of several tones it is
+/// the depth of its peaks, not that of a tone of the same power, which would read about half as
+/// much for five tones.
+///
+/// Two estimates are made and the smaller kept:
+/// - from the moments with the noise (its in-phase part, half of `noise_power`, which is what
+///   moves the envelope at useful SNR) taken off exactly (the variance and fourth central
+///   moment of a sum of independent terms): the message's RMS times the crest factor
+///   √(3 / (3 − κ)) of equal tones in phase with the same kurtosis κ (one tone: κ = 1.5, crest
+///   √2; common practice). Exact for one tone, a little high (about 10 % for five tones) when
+///   many tones never all peak together, and far too high for a noise-like message (κ near 3);
+/// - the 0.1 % and 99.9 % points of the envelope as measured: the noise only widens them, so
+///   they bound the depth from above, close to it at high SNR, and hold the first in check.
+pub fn am_depth(x: &[Complex64], noise_power: f64) -> Option<f64> {
+    let a: Vec<f64> = x.iter().map(|v| v.norm()).collect();
+    if a.len() < 16 {
+        return None;
     }
-    if power_variance >= tone_am_power_variance(hi) {
-        return hi;
+    let n = a.len() as f64;
+    let mean = a.iter().sum::<f64>() / n;
+    if !above(mean, 0.0) {
+        return None;
     }
-    for _ in 0..60 {
-        let mid = 0.5 * (lo + hi);
-        if tone_am_power_variance(mid) < power_variance {
-            lo = mid;
-        } else {
-            hi = mid;
-        }
+    let vn = 0.5 * noise_power.max(0.0);
+    let c2 = a.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / n;
+    let c4 = a.iter().map(|v| (v - mean).powi(4)).sum::<f64>() / n;
+    let var = c2 - vn;
+    if !above(var, 0.0) {
+        return Some(0.0);
     }
-    0.5 * (lo + hi)
+    // E(s + w)⁴ = E s⁴ + 6 E s² σ² + 3 σ⁴ for zero-mean s and Gaussian w of variance σ².
+    // At least a tone's kurtosis (crest √2): where the noise holds most of the variance the
+    // estimate scatters, and an AM message (voice, tones) is no flatter than one tone.
+    let kurtosis = ((c4 - 6.0 * vn * var - 3.0 * vn * vn) / (var * var)).clamp(1.5, 2.9);
+    let by_moments = (3.0 / (3.0 - kurtosis)).sqrt() * var.sqrt() / mean;
+    let excursion = |q: f64| (q - mean).abs();
+    let by_extremes = excursion(quantile(&a, 0.999)).max(excursion(quantile(&a, 0.001))) / mean;
+    Some(by_moments.min(by_extremes))
 }
 
 /// Peak deviation of an FM emission, Hz: the instantaneous frequency low-passed to half the OBW
@@ -52,12 +65,32 @@ pub fn fm_deviation(x: &[Complex64], rate_hz: f64, obw_hz: f64) -> Option<f64> {
 mod tests {
     use super::*;
 
+    fn envelope(m: impl Fn(f64) -> f64) -> Vec<Complex64> {
+        (0..20_000).map(|i| Complex64::new(1.0 + m(i as f64 / 20_000.0), 0.0)).collect()
+    }
+
     #[test]
-    fn am_depth_inverts_the_tone_formula() {
-        for m in [0.1, 0.3, 0.5, 0.9, 1.2] {
-            assert!((am_depth(tone_am_power_variance(m)) - m).abs() < 1e-9, "{m}");
+    fn am_depth_is_the_peak_depth_for_one_tone_and_for_several() {
+        use std::f64::consts::TAU;
+        for d in [0.3, 0.6, 0.9] {
+            // One tone: (Amax − Amin) / (Amax + Amin) = d (common practice).
+            let tone = envelope(|t| d * (TAU * 137.0 * t).cos());
+            let got = am_depth(&tone, 0.0).unwrap();
+            assert!((got - d).abs() < 0.01, "tone {d}: {got}");
+            // Five tones scaled so their peak is d (as scripts/make-census-scenes.py builds
+            // voice-band AM): a tone of the same power would read about d / 2.
+            let sum = |t: f64| {
+                [31.0, 73.0, 119.0, 187.0, 265.0]
+                    .iter()
+                    .zip([0.3, 2.0, 4.1, 1.0, 5.5])
+                    .map(|(f, p)| (TAU * f * t + p).sin())
+                    .sum::<f64>()
+            };
+            let peak = (0..20_000).map(|i| sum(i as f64 / 20_000.0).abs()).fold(0.0, f64::max);
+            let five = envelope(|t| d * sum(t) / peak);
+            let got = am_depth(&five, 0.0).unwrap();
+            assert!((got - d).abs() < 0.05, "five tones {d}: {got}");
         }
-        assert_eq!(am_depth(f64::NAN), 0.0);
-        assert_eq!(am_depth(-1.0), 0.0);
+        assert_eq!(am_depth(&[], 0.0), None);
     }
 }

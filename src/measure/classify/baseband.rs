@@ -42,6 +42,29 @@ pub(super) struct Baseband {
     pub seconds: f64,
 }
 
+impl Baseband {
+    /// Keeps only the samples `[a, b)` of `x` (`a < b ≤ x.len()`). The channel filter's response
+    /// is carried over to the shorter FFT grid by frequency, and the duration scaled, so the
+    /// noise bookkeeping of later filters still holds.
+    pub fn keep(&mut self, a: usize, b: usize) {
+        let old_n = self.x.len();
+        if a >= b || b > old_n {
+            return;
+        }
+        self.x = self.x[a..b].to_vec();
+        let n = self.x.len();
+        let old = std::mem::take(&mut self.response);
+        self.response = (0..n)
+            .map(|k| {
+                let f = bin_hz(k, n, self.rate_hz);
+                let j = (f / self.rate_hz * old_n as f64).round() as i64;
+                old.get(j.rem_euclid(old_n as i64) as usize).copied().unwrap_or(0.0)
+            })
+            .collect();
+        self.seconds *= n as f64 / old_n as f64;
+    }
+}
+
 /// Why the input could not be channelised.
 pub(super) fn channelise(input: &EmissionIq) -> Result<Baseband, String> {
     let rate = input.rate_hz;

@@ -30,6 +30,7 @@ pub mod cumulants;
 mod designator;
 mod features;
 mod fsk;
+mod keyed;
 mod ofdm;
 mod pulse;
 mod rate;
@@ -195,6 +196,11 @@ pub const CARRIER_ONLY: f64 = 0.9;
 /// Share of power in the carrier line above which an amplitude-varying emission is AM (tone AM
 /// of depth 1 keeps 2/3 there; suppressed-carrier emissions keep next to nothing).
 pub const AM_CARRIER: f64 = 0.5;
+/// Normalised power variance from which a carrier holding over [`CARRIER_ONLY`] of the power
+/// is AM rather than CW: tone AM of depth m gives about 2m² (0.045 at m = 0.15); an
+/// unmodulated carrier reads 0.003 or less at 20 dB SNR and below 0 at 10 dB (the noise
+/// correction), angle modulations 0.02 or less in the scenes of tests/classify.rs.
+pub const AM_MIN_VARIANCE: f64 = 0.04;
 
 /// Classify one emission. Never panics (empty, NaN, tiny input → Unknown with a note).
 /// Cost bounded: it uses at most [`MAX_INPUT_SAMPLES`] input samples and
@@ -261,7 +267,7 @@ fn seconds(s: f64) -> String {
 }
 
 fn decide(input: &EmissionIq, trace: &mut Trace) -> Decision {
-    let bb = match baseband::channelise(input) {
+    let mut bb = match baseband::channelise(input) {
         Ok(bb) => bb,
         Err(e) => return unknown(format!("cannot analyse: {e}")),
     };
@@ -276,8 +282,7 @@ fn decide(input: &EmissionIq, trace: &mut Trace) -> Decision {
             seconds(bb.seconds)
         ));
     }
-    let x = &bb.x;
-    let total = x.iter().map(|v| v.norm_sqr()).sum::<f64>() / x.len() as f64;
+    let total = bb.x.iter().map(|v| v.norm_sqr()).sum::<f64>() / bb.x.len() as f64;
     if !above(total, 0.0) {
         return unknown("all samples are zero");
     }
@@ -291,9 +296,8 @@ fn decide(input: &EmissionIq, trace: &mut Trace) -> Decision {
             trace.snr_db
         ));
     }
-    trace.envelope = features::envelope_features(x, bb.rate_hz);
 
-    if let Some(p) = pulse::find(x, bb.rate_hz, noise) {
+    if let Some(p) = pulse::find(&bb.x, bb.rate_hz, noise) {
         let conf = if p.pri_s.is_some() { 0.9 } else { 0.6 };
         return found(
             Class::Pulsed,
@@ -305,6 +309,23 @@ fn decide(input: &EmissionIq, trace: &mut Trace) -> Decision {
             },
         );
     }
+    // Not a pulse train: a keyed emission is analysed over its longest keyed-on stretch only.
+    if let Some((a, b)) = keyed::on_stretch(&bb.x, noise) {
+        let had = bb.seconds;
+        bb.keep(a, b);
+        trace.baseband_samples = bb.x.len();
+        if bb.x.len() < MIN_BASEBAND {
+            return unknown(format!(
+                "keyed: on for {} at a stretch in {}; needs {} ({MIN_BASEBAND} samples at 4 × OBW)",
+                seconds(bb.seconds),
+                seconds(had),
+                seconds(MIN_BASEBAND as f64 / bb.rate_hz)
+            ));
+        }
+    }
+    let bb = bb;
+    let x = &bb.x;
+    trace.envelope = features::envelope_features(x, bb.rate_hz);
 
     let rho = cumulants::power_variance(x, noise).unwrap_or(f64::NAN);
     let carrier = features::carrier_fraction(x, noise);
@@ -313,12 +334,35 @@ fn decide(input: &EmissionIq, trace: &mut Trace) -> Decision {
     if !rho.is_finite() {
         return unknown("the envelope statistics could not be computed");
     }
-    if rho < CONSTANT_ENVELOPE {
+    let mut d = if rho < CONSTANT_ENVELOPE {
         constant_envelope(&bb, rho, carrier, trace)
     } else {
         varying_envelope(&bb, rho, carrier, trace)
+    };
+    if d.class == Class::Am {
+        if let Some(depth) = wide_am_depth(input) {
+            d.params.mod_depth = Some(depth);
+        }
     }
+    d
 }
+
+/// The 99 % OBW of full-carrier AM can be narrower than its sidebands (the carrier holds most of
+/// the power: a voice-like message peaking at depth 0.5 puts 2 % or less in its sidebands), so
+/// a channel filter at the OBW strips the message's upper tones and reads the depth low. Its
+/// depth is measured on a band [`AM_WIDEN`] times as wide (the moment estimate takes the
+/// wider band's noise off).
+fn wide_am_depth(input: &EmissionIq) -> Option<f64> {
+    let wide = EmissionIq { obw_hz: input.obw_hz * AM_WIDEN, ..*input };
+    let mut bb = baseband::channelise(&wide).ok()?;
+    if let Some((a, b)) = keyed::on_stretch(&bb.x, bb.noise_power) {
+        bb.keep(a, b);
+    }
+    analog::am_depth(&bb.x, bb.noise_power)
+}
+
+/// How much wider than its OBW an AM emission's depth is measured.
+pub const AM_WIDEN: f64 = 2.5;
 
 fn constant_envelope(
     bb: &baseband::Baseband,
@@ -327,6 +371,11 @@ fn constant_envelope(
     trace: &mut Trace,
 ) -> Decision {
     let ce = margin(-rho, -CONSTANT_ENVELOPE, 0.04);
+    if carrier > CARRIER_ONLY && rho >= AM_MIN_VARIANCE {
+        // A strong carrier whose envelope still varies: AM of small RMS depth (a voice-like
+        // message of several tones peaking at depth 0.5 has an RMS depth near 0.17).
+        return amplitude_modulated(bb, carrier, margin(rho, AM_MIN_VARIANCE, 0.01));
+    }
     if carrier > CARRIER_ONLY {
         return found(
             Class::Cw,
@@ -336,8 +385,19 @@ fn constant_envelope(
     }
     let fsk = fsk::analyse(&bb.x, bb.rate_hz, bb.obw_hz);
     trace.fsk = fsk.as_ref().map(|f| (f.separation, f.dwell, f.sharpness));
-    if let Some(f) = fsk.filter(|f| f.sharpness >= fsk::ANALOG_SHARPNESS) {
-        if f.dwell < fsk::MIN_DWELL || f.sharpness < fsk::MIN_SHARPNESS {
+    // Random data on low-index continuous-phase FSK (MSK, GMSK): smooth transitions, but
+    // neighbouring symbols repeat as data do, where an analog tone alternates.
+    let smooth_keyed = |f: &fsk::Fsk| {
+        f.sharpness < fsk::MIN_SHARPNESS
+            && f.dwell >= fsk::MIN_DWELL
+            && f.repeats >= fsk::MIN_REPEATS_TIMES_M / f.tones as f64
+            && f.repeats <= 1.0 - fsk::MIN_REPEATS_TIMES_M / f.tones as f64
+    };
+    if let Some(mut f) = fsk.filter(|f| f.sharpness >= fsk::ANALOG_SHARPNESS || smooth_keyed(f)) {
+        let smooth = smooth_keyed(&f);
+        if smooth && f.symbol_shift_hz.is_finite() {
+            f.shift_hz = f.symbol_shift_hz;
+        } else if f.dwell < fsk::MIN_DWELL || f.sharpness < fsk::MIN_SHARPNESS {
             return unknown(format!(
                 "frequency clusters on {} tones at {:.0} Bd, but dwells there only {:.0} % of the time (FSK {:.0} % or more) or moves between them gradually (sharpness {:.2}; FSK {} or more)",
                 f.tones,
@@ -355,10 +415,15 @@ fn constant_envelope(
                 seconds(bb.seconds)
             ));
         }
+        let keyed = if smooth {
+            margin(f.repeats * f.tones as f64, fsk::MIN_REPEATS_TIMES_M, 0.2)
+        } else {
+            margin(f.sharpness, fsk::MIN_SHARPNESS, 0.05)
+        };
         let conf = ce
             .min(margin(f.separation, fsk::MIN_SEPARATION, 2.0))
             .min(margin(f.dwell, fsk::MIN_DWELL, 0.1))
-            .min(margin(f.sharpness, fsk::MIN_SHARPNESS, 0.05));
+            .min(keyed);
         return found(
             Class::Fsk,
             conf,
@@ -372,6 +437,18 @@ fn constant_envelope(
     }
     if let Some(d) = constant_envelope_psk(bb, ce) {
         return d;
+    }
+    if let Some((bit_rate, line)) = fsk::msk_lines(&bb.x, bb.rate_hz, bb.obw_hz) {
+        return found(
+            Class::Fsk,
+            ce.min(margin(line, fsk::MSK_LINE, 0.05)),
+            ClassParams {
+                symbol_rate_hz: Some(bit_rate),
+                tones: Some(2),
+                shift_hz: Some(bit_rate / 2.0),
+                ..ClassParams::default()
+            },
+        );
     }
     match analog::fm_deviation(&bb.x, bb.rate_hz, bb.obw_hz) {
         Some(dev) => found(
@@ -402,6 +479,8 @@ fn power_carrier(x: &[num_complex::Complex64], m: i32) -> f64 {
 /// Least share of x^M's power in one line for M-PSK, and most in the line of x^(M/2).
 pub const PSK_LINE: f64 = 0.5;
 pub const PSK_LOWER_LINE: f64 = 0.2;
+/// The least share of x^M's line the noise may bring the test down to.
+pub const PSK_LINE_FLOOR: f64 = 0.15;
 
 /// Unfiltered PSK keeps a constant envelope. Raising it to the M-th power wipes M-ary phase
 /// steps off and leaves a line (the M-th power method of carrier recovery, common practice),
@@ -409,14 +488,25 @@ pub const PSK_LOWER_LINE: f64 = 0.2;
 /// raised to the M-th power keeps J0(Mβ)² of its power in the carrier (the Bessel expansion of
 /// e^{jMβ sin}), which is never above one half where J0(Mβ/2)² is below a fifth; continuous-phase
 /// FSK's lines split in two at least.
+///
+/// Noise spreads the phase by about σ² = N / 2S rad² (N, S the noise and signal power), which
+/// keeps only e^(−M² σ²) of the M-th power's line (the characteristic function of a Gaussian
+/// phase); the least share asked for is scaled by it, down to [`PSK_LINE_FLOOR`] (below that
+/// the order is not judged).
 fn constant_envelope_psk(bb: &baseband::Baseband, ce: f64) -> Option<Decision> {
+    let total = bb.x.iter().map(|v| v.norm_sqr()).sum::<f64>() / bb.x.len().max(1) as f64;
+    let phase_var = 0.5 * bb.noise_power / (total - bb.noise_power).max(f64::MIN_POSITIVE);
     let mut lower = power_carrier(&bb.x, 1);
     for m in [2u32, 4, 8] {
         let line = power_carrier(&bb.x, m as i32);
-        if line >= PSK_LINE && lower < PSK_LOWER_LINE {
+        let least = PSK_LINE * (-((m * m) as f64) * phase_var).exp();
+        if least < PSK_LINE_FLOOR {
+            break;
+        }
+        if line >= least && lower < PSK_LOWER_LINE {
             let symbol_rate = rate::transition_rate(&bb.x, bb.rate_hz, bb.obw_hz);
             let conf =
-                ce.min(margin(line, PSK_LINE, 0.1)).min(margin(PSK_LOWER_LINE - lower, 0.0, 0.05));
+                ce.min(margin(line, least, 0.1)).min(margin(PSK_LOWER_LINE - lower, 0.0, 0.05));
             let params = ClassParams {
                 psk_order: Some(m),
                 symbol_rate_hz: symbol_rate,
@@ -436,12 +526,7 @@ fn varying_envelope(
     trace: &mut Trace,
 ) -> Decision {
     if carrier > AM_CARRIER {
-        let depth = analog::am_depth(rho);
-        return found(
-            Class::Am,
-            margin(carrier, AM_CARRIER, 0.1).min(margin(rho, CONSTANT_ENVELOPE, 0.04)),
-            ClassParams { mod_depth: Some(depth), ..ClassParams::default() },
-        );
+        return amplitude_modulated(bb, carrier, margin(rho, CONSTANT_ENVELOPE, 0.04));
     }
     let cp = ofdm::cp_peak(&bb.x, bb.rate_hz, bb.obw_hz, bb.noise_power);
     trace.cp = cp.map(|c| (c.strength, c.prominence));
@@ -472,6 +557,17 @@ fn varying_envelope(
     unknown(format!(
         "amplitude varies (power variance {rho:.2}) but with no carrier, symbol-rate line or cyclic prefix"
     ))
+}
+
+/// AM: a carrier line holding most of the power and an envelope that varies (`varies`: how
+/// sure of that, 0..1).
+fn amplitude_modulated(bb: &baseband::Baseband, carrier: f64, varies: f64) -> Decision {
+    let depth = analog::am_depth(&bb.x, bb.noise_power);
+    found(
+        Class::Am,
+        margin(carrier, AM_CARRIER, 0.1).min(varies),
+        ClassParams { mod_depth: depth, ..ClassParams::default() },
+    )
 }
 
 /// Swami & Sadler 2000 table: (|C20|, |C40|, C42) at one sample per symbol.

@@ -28,26 +28,46 @@ pub fn envelope_line(x: &[Complex64], rate_hz: f64, obw_hz: f64) -> Option<Line>
 
 /// Symbol rate of a constant-envelope (unfiltered) PSK: the energy of the sample-to-sample
 /// change |x[n] − x[n−1]|² spikes at each symbol boundary where the phase steps, a train on the
-/// symbol clock whose spectrum has lines at multiples of the rate (common practice for
-/// rectangular-pulse PSK); the strongest may be a harmonic, so the lowest sub-multiple of it
-/// that is a line, with a line at twice it too, is the rate.
+/// symbol clock whose spectrum has a comb of lines at every multiple of the rate (common
+/// practice for rectangular-pulse PSK), often of nearly equal strength, so the strongest may
+/// be a harmonic. The rate is the lowest sub-multiple of the strongest line (down to an
+/// eighth) with lines at once and twice it, each line judged against the floor of the whole
+/// searched range in a window of two bins: a local floor between the teeth of a comb can be
+/// low enough to make a gap look like a line (a rate read 1.5 times too high).
 pub fn transition_rate(x: &[Complex64], rate_hz: f64, obw_hz: f64) -> Option<f64> {
     let d: Vec<f64> = x.windows(2).map(|w| (w[1] - w[0]).norm_sqr()).collect();
     let lo = obw_hz / 40.0;
     let hi = (1.05 * obw_hz).min(0.45 * rate_hz);
     let strongest = find_line(&d, rate_hz, lo, hi).filter(|l| l.prominence >= LINE_PROMINENCE)?;
+    let n = d.len();
+    let mean = d.iter().sum::<f64>() / n.max(1) as f64;
+    let len = (4 * n).next_power_of_two();
+    let mut spec = vec![Complex64::new(0.0, 0.0); len];
+    for (s, v) in spec.iter_mut().zip(&d) {
+        s.re = v - mean;
+    }
+    fft(&mut spec, false);
+    let power: Vec<f64> = spec.iter().map(|v| v.norm_sqr()).collect();
+    let bin = |f: f64| (f / rate_hz * len as f64).round() as usize;
+    let in_range: Vec<f64> = (bin(lo)..=bin(hi).min(len / 2)).map(|k| power[k]).collect();
+    let floor = super::spectrum::quantile(&in_range, 0.5);
+    // Two unpadded bins each side of f (the padded grid is 4 × finer, or more).
+    let reach = (2.0 * len as f64 / n as f64).ceil() as usize;
+    let line_at = |f: f64| {
+        let k = bin(f);
+        let top = (k.saturating_sub(reach)..=(k + reach).min(len / 2))
+            .map(|i| power[i])
+            .fold(0.0, f64::max);
+        above(floor, 0.0) && top >= LINE_PROMINENCE / 2.0 * floor
+    };
     for k in (2..=8).rev() {
         let f = strongest.freq_hz / k as f64;
         if f < lo {
             continue;
         }
-        let line_at = |f: f64| {
-            find_line(&d, rate_hz, 0.97 * f, 1.03 * f)
-                .filter(|l| l.prominence >= LINE_PROMINENCE / 2.0)
-        };
-        // A rate has its second harmonic too; a chance peak below the lines has not.
-        if let (Some(l), Some(_)) = (line_at(f), line_at(2.0 * f)) {
-            return Some(l.freq_hz);
+        if line_at(f) && line_at(2.0 * f) {
+            let fine = find_line(&d, rate_hz, 0.97 * f, 1.03 * f);
+            return Some(fine.map_or(f, |l| l.freq_hz));
         }
     }
     Some(strongest.freq_hz)

@@ -79,6 +79,7 @@
 //! the `kind` column tells them apart.
 
 pub mod alarms;
+pub mod changes;
 pub mod occupancy;
 pub mod records;
 pub mod rotation;

@@ -1,7 +1,9 @@
 //! The occupancy log as a pipeline consumer: the run's settings, then every interval, emission
 //! and gap as it becomes final, then why the run stopped. The record schema is in [`crate::output::log`].
 
-use crate::measure::occupancy::{Event, FLOOR_MEMORY_S, FLOOR_SMOOTHING_S, OBW_PERCENT};
+use crate::measure::occupancy::{
+    Event, IntervalSummary, FLOOR_MEMORY_S, FLOOR_SMOOTHING_S, OBW_PERCENT,
+};
 use crate::output::class_fields::ClassFields;
 use crate::output::log::alarms::AlarmLog;
 use crate::output::log::rotation::Rotation;
@@ -18,6 +20,36 @@ use crate::units::db;
 use crate::units::round_dp as round_to;
 use std::io::{self, Write};
 use time::OffsetDateTime;
+
+/// The log's record of one interval of the plan channel `l`.
+pub fn interval_record(
+    i: &IntervalSummary,
+    l: &crate::plan::Channel,
+    c: &crate::pipeline::clock::Clock,
+) -> IntervalRecord {
+    let measured = i.samples > 0;
+    IntervalRecord {
+        channel: l.name.clone(),
+        center_hz: l.center_hz,
+        width_hz: l.width_hz,
+        t_start_s: c.seconds(i.start_sample),
+        t_end_s: c.seconds(i.end_sample),
+        start: c.stamp(i.start_sample),
+        end: c.stamp_end(i.end_sample),
+        // An interval whose input was all lost has no level and no occupancy.
+        occupancy_pct: measured.then(|| round_to(i.occupancy_pct(), 3)),
+        mean_dbfs: measured.then(|| round_to(db(i.mean_power), 2)),
+        peak_dbfs: measured.then(|| round_to(db(i.peak_power), 2)),
+        noise_floor_dbfs_per_hz: measured.then(|| round_to(db(i.noise_density), 2)),
+        samples: i.samples,
+        // Shares to a thousandth of a sample: finer says nothing.
+        occupied_samples: (i.occupied * 1000.0).round() / 1000.0,
+        dropped_samples: i.dropped_samples,
+        partial: i.partial,
+        channel_floor_dbfs_per_hz: (i.quiet_samples > 0)
+            .then(|| round_to(db(i.quiet_power / l.width_hz), 2)),
+    }
+}
 
 /// Whatever else takes every record the log writes, in order, once each (a publisher). It is
 /// called after the line is in the local file, which stays the source of truth; it must not
@@ -208,29 +240,7 @@ impl<W: Write> OccupancyLog<W> {
         let c = &run.clock;
         match event {
             Event::Interval(i) => {
-                let l = &self.plan.channels[i.channel];
-                let measured = i.samples > 0;
-                Some(Record::Interval(IntervalRecord {
-                    channel: l.name.clone(),
-                    center_hz: l.center_hz,
-                    width_hz: l.width_hz,
-                    t_start_s: c.seconds(i.start_sample),
-                    t_end_s: c.seconds(i.end_sample),
-                    start: c.stamp(i.start_sample),
-                    end: c.stamp_end(i.end_sample),
-                    // An interval whose input was all lost has no level and no occupancy.
-                    occupancy_pct: measured.then(|| round_to(i.occupancy_pct(), 3)),
-                    mean_dbfs: measured.then(|| round_to(db(i.mean_power), 2)),
-                    peak_dbfs: measured.then(|| round_to(db(i.peak_power), 2)),
-                    noise_floor_dbfs_per_hz: measured.then(|| round_to(db(i.noise_density), 2)),
-                    samples: i.samples,
-                    // Shares to a thousandth of a sample: finer says nothing.
-                    occupied_samples: (i.occupied * 1000.0).round() / 1000.0,
-                    dropped_samples: i.dropped_samples,
-                    partial: i.partial,
-                    channel_floor_dbfs_per_hz: (i.quiet_samples > 0)
-                        .then(|| round_to(db(i.quiet_power / l.width_hz), 2)),
-                }))
+                Some(Record::Interval(interval_record(i, &self.plan.channels[i.channel], c)))
             }
             Event::Emission(e) => {
                 let l = &self.plan.channels[e.channel];

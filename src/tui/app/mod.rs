@@ -32,6 +32,7 @@ use super::view::{column_max, BinGrid, View, MIN_VIEW_BINS};
 use crate::dsp::{Spectrum, Window, WindowKind};
 use crate::measure::classify::Class;
 use crate::measure::{find_signals, noise_floor, Detection};
+use crate::output::log::changes::ChangeBoard;
 use crate::pipeline::kinds::LiveKinds;
 use crate::pipeline::latest::RowSettings;
 use crate::units::{db, format_rows_per_s};
@@ -93,6 +94,8 @@ pub struct App {
     /// The live classifier of the listed signals, and the kinds it found (centre, OBW, class).
     kinds: Option<LiveKinds>,
     kind_list: Vec<(f64, f64, Class)>,
+    /// The change alarms up (`--alarms`), raised and cleared on the run's thread.
+    changes: Option<ChangeBoard>,
 }
 
 impl App {
@@ -130,7 +133,14 @@ impl App {
             files_dir: ".".into(),
             kinds: None,
             kind_list: Vec::new(),
+            changes: None,
         }
+    }
+
+    /// Shows the change alarms up on `board` (`--alarms`) on the top line.
+    pub fn with_changes(mut self, board: ChangeBoard) -> App {
+        self.changes = Some(board);
+        self
     }
 
     /// Records alarm onsets to `log` (`--alarm-log`).

@@ -72,6 +72,7 @@ impl App {
             state,
             time: self.shown_time(),
             dropped: s.live.then_some(self.stats.dropped),
+            changes: self.changes.as_ref().map(|b| change_summary(&b.open())),
             theme: self.look.theme,
         }
     }
@@ -186,6 +187,18 @@ impl App {
             pairs_only: rows_per_s >= PAIRS_ONLY_FROM_ROWS_PER_S,
         })
     }
+}
+
+/// The change alarms up, for the top line: none, the one, or the newest and how many more
+/// (`▲ mast busier since 06:01:30Z +1`). Times keep the clock part of a UTC stamp.
+pub(super) fn change_summary(open: &[crate::output::log::changes::OpenChange]) -> String {
+    let Some(newest) = open.last() else { return "change alarms: none".into() };
+    let since = newest.since.split_once('T').map_or(newest.since.as_str(), |(_, t)| t);
+    let more = match open.len() {
+        1 => String::new(),
+        n => format!(" +{}", n - 1),
+    };
+    format!("▲ {} {} since {since}{more}", newest.channel, newest.what)
 }
 
 #[cfg(test)]

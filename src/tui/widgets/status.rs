@@ -98,6 +98,8 @@ pub struct SourceView {
     pub time: Option<(String, Option<f64>)>,
     /// Samples dropped (live input only).
     pub dropped: Option<u64>,
+    /// The change alarms up, in words (`watch --alarms` only).
+    pub changes: Option<String>,
     pub theme: Theme,
 }
 
@@ -213,6 +215,11 @@ impl SourceView {
         if let Some(d) = self.dropped {
             let (rank, style) = if d > 0 { (1, t.warn) } else { (4, t.label) };
             segs.push((rank, Span::styled(format!("dropped {d} samples"), style)));
+        }
+        if let Some(c) = &self.changes {
+            // An alarm up is never left out (shortened if it must be); none is worth little room.
+            let (rank, style) = if c.starts_with('▲') { (0, t.warn) } else { (6, t.label) };
+            segs.push((rank, Span::styled(c.clone(), style)));
         }
         fit(segs, None, width)
     }
