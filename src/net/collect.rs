@@ -11,6 +11,7 @@
 //! broker lost it in a crash); it is reported, and filled if the record comes late.
 //! The files are read back at start, so a collector that restarts writes nothing twice.
 
+use crate::net::metrics::collect::CollectGauges;
 use anyhow::{bail, Context, Result};
 use serde_json::Value;
 use std::collections::HashMap;
@@ -76,6 +77,8 @@ pub struct Collector {
     pub written: u64,
     pub duplicates: u64,
     pub malformed: u64,
+    /// `collect --metrics`: told what became of every message.
+    metrics: Option<CollectGauges>,
 }
 
 /// The id of a record line: (`run`, `seq`).
@@ -98,7 +101,30 @@ impl Collector {
             written: 0,
             duplicates: 0,
             malformed: 0,
+            metrics: None,
         })
+    }
+
+    /// Counts what becomes of every message in `metrics` too.
+    pub fn with_metrics(mut self, metrics: CollectGauges) -> Collector {
+        self.metrics = Some(metrics);
+        self
+    }
+
+    /// Writes a record of `site` unless it is a copy ([`Collector::store`]), and tells the
+    /// metrics.
+    pub fn take(&mut self, site: &str, payload: &[u8]) -> Result<Taken> {
+        let taken = self.store(site, payload)?;
+        if let Some(m) = &self.metrics {
+            m.taken(site, &taken, self.missing(site));
+        }
+        Ok(taken)
+    }
+
+    /// Records of `site` that never arrived (in the holes of its runs).
+    pub fn missing(&self, site: &str) -> u64 {
+        let Some(f) = self.sites.get(site) else { return 0 };
+        f.runs.values().flat_map(|r| r.holes()).map(|(a, b)| b - a).sum()
     }
 
     /// Opens a site's file for appending, learning the ids it already holds.
@@ -126,7 +152,7 @@ impl Collector {
 
     /// Writes a record of `site` unless it is a copy; returns after the line is flushed (only
     /// then may the broker be told it arrived).
-    pub fn take(&mut self, site: &str, payload: &[u8]) -> Result<Taken> {
+    fn store(&mut self, site: &str, payload: &[u8]) -> Result<Taken> {
         let (Ok(line), Ok(())) = (std::str::from_utf8(payload), crate::net::mqtt::check_site(site))
         else {
             self.malformed += 1;

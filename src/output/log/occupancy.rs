@@ -36,7 +36,8 @@ pub struct OccupancyLog<W: Write> {
     site: Option<String>,
     run_id: String,
     next_seq: u64,
-    tap: Option<Box<dyn RecordTap>>,
+    /// Whatever else takes every record (a publisher, the metrics), in the order added.
+    taps: Vec<Box<dyn RecordTap>>,
     /// Gaps not yet written, at most one per cause (see [`GAP_MERGE_S`]).
     pending_gaps: Vec<PendingGap>,
     /// The run, as told at its start, for writing gathered gaps between its calls.
@@ -101,7 +102,7 @@ impl<W: Write> OccupancyLog<W> {
             site: None,
             run_id: new_run_id(),
             next_seq: 0,
-            tap: None,
+            taps: Vec::new(),
             pending_gaps: Vec::new(),
             run_info: None,
             alarms: None,
@@ -120,9 +121,9 @@ impl<W: Write> OccupancyLog<W> {
         self
     }
 
-    /// Hands every record to `tap` too, after it is written.
+    /// Hands every record to `tap` too, after it is written (after any taps added before).
     pub fn with_tap(mut self, tap: Box<dyn RecordTap>) -> Self {
-        self.tap = Some(tap);
+        self.taps.push(tap);
         self
     }
 
@@ -139,7 +140,7 @@ impl<W: Write> OccupancyLog<W> {
             Some(w) => w.write(line)?,
             None => return Err(io::Error::other("the log has no file open")),
         }
-        if let Some(t) = self.tap.as_mut() {
+        for t in &mut self.taps {
             t.record(line);
         }
         Ok(())
@@ -277,7 +278,7 @@ impl<W: Write> Consumer for OccupancyLog<W> {
                 }
             }
         }
-        if let Some(t) = self.tap.as_mut() {
+        for t in &mut self.taps {
             for h in &self.headers {
                 t.record(h);
             }
@@ -387,7 +388,7 @@ fn round_to(x: f64, decimals: i32) -> f64 {
 }
 
 #[cfg(test)]
-mod tests {
+pub(crate) mod tests {
     use super::*;
     use crate::dsp::{DspConfig, WindowKind};
     use crate::measure::occupancy::tests::{band, Keyed, CENTER, FS};
@@ -401,7 +402,7 @@ mod tests {
     use time::format_description::well_known::Rfc3339;
     use time::OffsetDateTime;
 
-    fn setup(interval_s: f64) -> (OccupancySetup, Plan, SourceInfo) {
+    pub(crate) fn setup(interval_s: f64) -> (OccupancySetup, Plan, SourceInfo) {
         let info = SourceInfo { live: true, ..SourceInfo::synthetic(FS, CENTER) };
         let dsp = DspConfig { fft_size: 512, window: WindowKind::Hann, overlap: 0.5, threads: 1 };
         let channels =
@@ -416,7 +417,11 @@ mod tests {
         (OccupancySetup::new(&info, &dsp, &plan, &req).unwrap(), plan, info)
     }
 
-    fn spec(setup: &OccupancySetup, info: &SourceInfo, start: Option<OffsetDateTime>) -> RunSpec {
+    pub(crate) fn spec(
+        setup: &OccupancySetup,
+        info: &SourceInfo,
+        start: Option<OffsetDateTime>,
+    ) -> RunSpec {
         let mut spec = RunSpec::new(info.clone(), setup.engine.clone(), 1);
         spec.tracker = Some(setup.tracker());
         spec.start_time = start;
