@@ -77,8 +77,11 @@ fn encode(q: &str) -> String {
         .collect()
 }
 
-/// An instant query through Prometheus's HTTP API: each series' labels and value.
-fn query(port: u16, q: &str) -> Vec<(BTreeMap<String, String>, f64)> {
+/// Series of an instant query: each one's labels and value.
+type Series = Vec<(BTreeMap<String, String>, f64)>;
+
+/// An instant query through Prometheus's HTTP API.
+fn query(port: u16, q: &str) -> Series {
     let Some((200, body)) = http_get(port, &format!("/api/v1/query?query={}", encode(q))) else {
         return Vec::new();
     };
@@ -188,22 +191,49 @@ fn prometheus_scrapes_the_occupancy_the_log_wrote() {
         String::from_utf8_lossy(&lint.stderr)
     );
 
-    // Wait until Prometheus holds a scrape with every channel's occupancy and interval end,
-    // taken in one evaluation (one scrape stores all its samples under one timestamp).
+    let first = scrape_matches_log(prom, &log, &dir, 0.0);
+    let scraped_after = began.elapsed();
+    // A later interval too, some seconds on: the values follow the log, not only its start.
+    let later = scrape_matches_log(prom, &log, &dir, first + 2.0);
+    eprintln!("matched the intervals ending at {first} and {later} (Unix s)");
+
+    // The delivered-sample counter gives the input rate through PromQL.
+    let rate = query(prom, "rate(bandwarden_input_samples_total[3s])");
+    assert_eq!(rate.len(), 1, "{rate:?}");
+    eprintln!(
+        "first full scrape {:.1} s after start; delivered rate by PromQL {:.0} S/s",
+        scraped_after.as_secs_f64(),
+        rate[0].1
+    );
+    assert!(
+        rate[0].1 > 0.0 && rate[0].1 < 1.5e6,
+        "the paced demo runs at 1 MS/s (PromQL extrapolates over a 3 s window): {rate:?}"
+    );
+    drop(reaper);
+    let _ = std::fs::remove_dir_all(&dir);
+}
+
+/// Waits until Prometheus holds a scrape with every channel's occupancy and the end of its
+/// interval, both from one instant query (one scrape stores all its samples at one timestamp,
+/// and the log sets a record's values under one lock), for an interval ending after `after`;
+/// checks each against the log's interval record of that channel and end, and returns the end.
+fn scrape_matches_log(prom: u16, log: &Path, dir: &Path, after: f64) -> f64 {
     let q = "{__name__=~\"bandwarden_channel_occupancy_ratio|bandwarden_channel_interval_end_timestamp_seconds\",job=\"bandwarden\"}";
     let deadline = Instant::now() + Duration::from_secs(20);
+    let fresh = |s: &Series| {
+        s.len() == 14 && s.iter().all(|(l, v)| !l["__name__"].ends_with("_seconds") || *v > after)
+    };
     let series = loop {
         let s = query(prom, q);
-        if s.len() == 14 {
+        if fresh(&s) {
             break s;
         }
         if Instant::now() > deadline {
             let out = std::fs::read_to_string(dir.join("prometheus.out")).unwrap_or_default();
-            panic!("Prometheus has no full scrape after 20 s: {s:?}\n{out}");
+            panic!("Prometheus has no full scrape of an interval ending after {after} within 20 s: {s:?}\n{out}");
         }
         std::thread::sleep(Duration::from_millis(250));
     };
-    let scraped_after = began.elapsed();
     let value = |name: &str, channel: &str| {
         let found: Vec<f64> = series
             .iter()
@@ -216,15 +246,14 @@ fn prometheus_scrapes_the_occupancy_the_log_wrote() {
         assert_eq!(found.len(), 1, "{name} {channel}: {series:?}");
         found[0]
     };
-    let records: Vec<Value> =
-        lines(&log).iter().map(|l| serde_json::from_str(l).unwrap()).collect();
+    let records: Vec<Value> = lines(log).iter().map(|l| serde_json::from_str(l).unwrap()).collect();
     let channels: Vec<&str> = records
         .iter()
         .filter(|r| r["kind"] == "channel")
         .map(|r| r["channel"].as_str().unwrap())
         .collect();
     assert_eq!(channels.len(), 7);
-    let mut busy = 0;
+    let (mut busy, mut last_end) = (0, 0.0_f64);
     for ch in channels {
         let end = value("bandwarden_channel_interval_end_timestamp_seconds", ch);
         let occupancy = value("bandwarden_channel_occupancy_ratio", ch);
@@ -241,21 +270,10 @@ fn prometheus_scrapes_the_occupancy_the_log_wrote() {
         eprintln!("{ch}: Prometheus {occupancy}, log {pct} % (interval ending {})", record["end"]);
         assert!((occupancy - pct / 100.0).abs() < 1e-12, "{ch}: {occupancy} against {pct} %");
         busy += usize::from(occupancy > 0.0);
+        last_end = last_end.max(end);
     }
     assert!(busy >= 3, "the demo scene keeps several channels busy");
-
-    // The delivered-sample counter gives the input rate through PromQL.
-    std::thread::sleep(Duration::from_millis(2500));
-    let rate = query(prom, "rate(bandwarden_input_samples_total[3s])");
-    assert_eq!(rate.len(), 1, "{rate:?}");
-    eprintln!(
-        "first full scrape {:.1} s after start; delivered rate by PromQL {:.0} S/s",
-        scraped_after.as_secs_f64(),
-        rate[0].1
-    );
-    assert!(rate[0].1 > 0.0 && rate[0].1 < 1.2e6, "the paced demo runs at 1 MS/s: {rate:?}");
-    drop(reaper);
-    let _ = std::fs::remove_dir_all(&dir);
+    last_end
 }
 
 /// Seconds since the epoch of an RFC 3339 time, as the log writes them (milliseconds, `Z`).

@@ -4,7 +4,7 @@
 
 use crate::net::collect::Taken;
 use crate::net::metrics::log::{FloatGauge, SiteLabels};
-use crate::net::metrics::{register_all, MetricsServer, PREFIX};
+use crate::net::metrics::{register_all, Consistency, MetricsServer, PREFIX};
 use anyhow::Result;
 use prometheus_client::metrics::counter::Counter;
 use prometheus_client::metrics::family::Family;
@@ -97,7 +97,9 @@ impl CollectMetrics {
     pub fn serve(addr: SocketAddr) -> Result<CollectMetrics> {
         let mut registry = Registry::with_prefix(PREFIX);
         let gauges = CollectGauges::register(&mut registry);
-        Ok(CollectMetrics { gauges, server: MetricsServer::start(addr, registry)? })
+        // Each message sets values of its own: nothing to keep together.
+        let server = MetricsServer::start(addr, registry, Consistency::default())?;
+        Ok(CollectMetrics { gauges, server })
     }
 
     /// The address served (the port chosen, for port 0).

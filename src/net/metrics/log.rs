@@ -12,7 +12,7 @@
 //! are dBFS, which has no Prometheus base unit, so the unit stays in the name (`_dbfs`,
 //! `_dbfs_per_hz`) and in the help text.
 
-use crate::net::metrics::{register_all, MetricsServer, PREFIX};
+use crate::net::metrics::{hold, register_all, Consistency, MetricsServer, PREFIX};
 use crate::output::log::occupancy::RecordTap;
 use crate::output::log::{AlarmRecord, IntervalRecord, Record, Stamped};
 use crate::output::summary::zone::epoch_of;
@@ -60,6 +60,8 @@ pub struct AlarmLabels {
 #[derive(Clone, Debug, Default)]
 pub struct LogGauges {
     site: String,
+    /// Held while one record's values are set (see [`Consistency`]).
+    consistency: Consistency,
     occupancy: Family<ChannelLabels, FloatGauge>,
     power: Family<ChannelLabels, FloatGauge>,
     peak: Family<ChannelLabels, FloatGauge>,
@@ -162,6 +164,7 @@ impl LogGauges {
 
 impl RecordTap for LogGauges {
     fn record(&mut self, line: &Stamped) {
+        let _whole = hold(&self.consistency);
         match &line.record {
             Record::Start(s) => {
                 self.sample_rate.get_or_create(&self.site_labels()).set(s.sample_rate_hz);
@@ -211,7 +214,8 @@ impl LogMetrics {
     pub fn serve(addr: SocketAddr, site: Option<&str>) -> Result<LogMetrics> {
         let mut registry = Registry::with_prefix(PREFIX);
         let gauges = LogGauges::register(&mut registry, site);
-        Ok(LogMetrics { gauges, server: MetricsServer::start(addr, registry)? })
+        let server = MetricsServer::start(addr, registry, gauges.consistency.clone())?;
+        Ok(LogMetrics { gauges, server })
     }
 
     /// What the log hands its records to.

@@ -17,7 +17,7 @@ use anyhow::{bail, Context, Result};
 use prometheus_client::encoding::prometheus_text::{encode, CONTENT_TYPE};
 use prometheus_client::registry::{Metric, Registry};
 use std::net::{IpAddr, Ipv4Addr, SocketAddr};
-use std::sync::Arc;
+use std::sync::{Arc, Mutex, MutexGuard, PoisonError};
 use std::thread::JoinHandle;
 
 /// The prefix of every metric's name.
@@ -73,6 +73,16 @@ pub fn exposition(registry: &Registry) -> String {
     text
 }
 
+/// Held while the values of one record are set and while a scrape is encoded, so that a scrape
+/// never sees half a record (a channel's new occupancy beside its old interval end).
+pub type Consistency = Arc<Mutex<()>>;
+
+/// Waits for [`Consistency`]; a panic elsewhere while it was held leaves only values behind,
+/// which are still worth serving.
+pub fn hold(lock: &Consistency) -> MutexGuard<'_, ()> {
+    lock.lock().unwrap_or_else(PoisonError::into_inner)
+}
+
 /// Serves a registry at `/metrics` until dropped.
 pub struct MetricsServer {
     server: Arc<tiny_http::Server>,
@@ -82,7 +92,11 @@ pub struct MetricsServer {
 
 impl MetricsServer {
     /// Listens on `addr` and answers scrapes on a thread of its own.
-    pub fn start(addr: SocketAddr, registry: Registry) -> Result<MetricsServer> {
+    pub fn start(
+        addr: SocketAddr,
+        registry: Registry,
+        consistency: Consistency,
+    ) -> Result<MetricsServer> {
         let server =
             tiny_http::Server::http(addr).map_err(|e| anyhow::anyhow!("{e}")).with_context(
                 || format!("cannot serve the metrics on {addr}: give a free port with --metrics"),
@@ -92,7 +106,7 @@ impl MetricsServer {
         let serving = Arc::clone(&server);
         let thread = std::thread::Builder::new()
             .name("metrics".into())
-            .spawn(move || answer(&serving, &registry))
+            .spawn(move || answer(&serving, &registry, &consistency))
             .context("cannot start the metrics thread")?;
         Ok(MetricsServer { server, addr, thread: Some(thread) })
     }
@@ -115,14 +129,18 @@ impl Drop for MetricsServer {
 /// Answers requests until the server is unblocked: `GET /metrics` (any query string) gets the
 /// exposition, other paths 404, other methods 405. A scraper that hangs up early costs nothing
 /// but its own answer.
-fn answer(server: &tiny_http::Server, registry: &Registry) {
+fn answer(server: &tiny_http::Server, registry: &Registry, consistency: &Consistency) {
     use tiny_http::{Header, Method, Response};
     for request in server.incoming_requests() {
         let path = request.url().split('?').next().unwrap_or("");
         let response = match (request.method(), path) {
             (Method::Get | Method::Head, "/metrics") => {
                 let header = Header::from_bytes("Content-Type", CONTENT_TYPE).expect("ASCII");
-                Response::from_string(exposition(registry)).with_header(header)
+                let text = {
+                    let _whole = hold(consistency);
+                    exposition(registry)
+                };
+                Response::from_string(text).with_header(header)
             }
             (Method::Get | Method::Head, _) => {
                 Response::from_string("bandwarden serves only /metrics\n").with_status_code(404)
@@ -228,8 +246,12 @@ pub(crate) mod tests {
         let c: prometheus_client::metrics::counter::Counter = Default::default();
         registry.register("test_things", "Things counted by the test", c.clone());
         c.inc_by(3);
-        let server =
-            MetricsServer::start(listen_address("127.0.0.1:0", false).unwrap(), registry).unwrap();
+        let server = MetricsServer::start(
+            listen_address("127.0.0.1:0", false).unwrap(),
+            registry,
+            Consistency::default(),
+        )
+        .unwrap();
         assert_ne!(server.addr().port(), 0);
         let close = "Connection: close\r\n\r\n";
         let ok = get(server.addr(), &format!("GET /metrics HTTP/1.1\r\nHost: x\r\n{close}"));
@@ -251,7 +273,10 @@ pub(crate) mod tests {
         );
         assert!(post.starts_with("HTTP/1.1 405"), "{post}");
         // A second server on the same port is refused with the port named.
-        let again = MetricsServer::start(server.addr(), Registry::default()).err().unwrap();
+        let again =
+            MetricsServer::start(server.addr(), Registry::default(), Consistency::default())
+                .err()
+                .unwrap();
         assert!(format!("{again:#}").contains(&server.addr().to_string()), "{again:#}");
         drop(server);
     }
