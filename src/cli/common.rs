@@ -42,8 +42,9 @@ pub struct InputArgs {
     /// 0).
     #[arg(long, value_name = "C", allow_negative_numbers = true, value_parser = parse_count::<u64>)]
     pub input_channel: Option<u64>,
-    /// With INPUT tcp-listen://ADDR:PORT on an address beyond loopback (e.g. 0.0.0.0): accept
-    /// samples from other hosts. Without it only loopback addresses may be used.
+    /// Listen beyond loopback (e.g. 0.0.0.0): with INPUT tcp-listen://ADDR:PORT, accept samples
+    /// from other hosts; in `log`, serve --metrics there too. Without it only loopback addresses
+    /// may be used.
     #[arg(long)]
     pub listen_public: bool,
     /// With INPUT vita49://ADDR:PORT: read the VITA 49 stream with this ID (decimal or 0x hex);

@@ -4,6 +4,7 @@ use super::alarms::{AlarmArgs, AlarmConfig};
 use super::common::{
     parse_progress, parse_seconds, ChannelArgs, ChannelConfig, DspArgs, InputArgs,
 };
+use super::metrics::MetricsArgs;
 use super::net::PublishArgs;
 use super::sigmf_out::{EmissionOutArgs, RecordArgs, SigmfOut};
 use crate::dsp::DspConfig;
@@ -67,6 +68,8 @@ pub struct LogArgs {
     pub emissions: EmissionOutArgs,
     #[command(flatten)]
     pub alarms: AlarmArgs,
+    #[command(flatten)]
+    pub metrics: MetricsArgs,
 }
 
 /// A validated `log`.
@@ -94,6 +97,8 @@ pub struct LogConfig {
     pub progress: Option<f64>,
     /// `--alarms` and its settings.
     pub alarms: Option<AlarmConfig>,
+    /// `--metrics`: where to serve the Prometheus metrics.
+    pub metrics: Option<std::net::SocketAddr>,
 }
 
 impl LogArgs {
@@ -131,6 +136,7 @@ impl LogArgs {
             sigmf,
             progress: self.progress,
             alarms,
+            metrics: self.metrics.validate(self.source.listen_public)?,
         })
     }
 }

@@ -12,6 +12,7 @@ pub mod common;
 pub mod demo;
 pub mod log;
 pub mod measure;
+pub mod metrics;
 pub mod net;
 pub mod package;
 pub mod report;

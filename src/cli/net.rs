@@ -163,6 +163,10 @@ pub struct CollectArgs {
     pub client_id: Option<String>,
     #[command(flatten)]
     pub broker: BrokerArgs,
+    #[command(flatten)]
+    pub metrics: super::metrics::MetricsArgs,
+    #[command(flatten)]
+    pub public: super::metrics::PublicArgs,
 }
 
 /// A validated `collect`.
@@ -171,6 +175,8 @@ pub struct CollectConfig {
     pub broker: Broker,
     pub out: PathBuf,
     pub client_id: String,
+    /// `--metrics`: where to serve the Prometheus metrics.
+    pub metrics: Option<std::net::SocketAddr>,
 }
 
 impl CollectArgs {
@@ -185,6 +191,7 @@ impl CollectArgs {
         if client_id.is_empty() || client_id.len() > 23 * 8 {
             bail!("--client-id must be 1 to 184 characters");
         }
-        Ok(CollectConfig { broker, out: self.out, client_id })
+        let metrics = self.metrics.validate(self.public.check(&self.metrics)?)?;
+        Ok(CollectConfig { broker, out: self.out, client_id, metrics })
     }
 }

@@ -4,6 +4,7 @@
 use crate::cli::CollectConfig;
 use crate::messages::note;
 use crate::net::collect::Collector;
+use crate::net::metrics::collect::CollectMetrics;
 use crate::net::subscribe::collect;
 use crate::pipeline::stop::Escalation;
 use crate::pipeline::StopSignals;
@@ -12,6 +13,11 @@ use std::process::ExitCode;
 
 pub fn run(cfg: CollectConfig) -> Result<ExitCode> {
     let mut collector = Collector::new(&cfg.out)?;
+    let metrics = cfg.metrics.map(CollectMetrics::serve).transpose()?;
+    if let Some(m) = &metrics {
+        note(&format!("metrics at http://{}/metrics", m.addr()));
+        collector = collector.with_metrics(m.gauges.clone());
+    }
     let signals = StopSignals::install(false, Escalation::SecondSignalExits)?;
     let stopped = || signals.reason().is_some();
     note(&format!(

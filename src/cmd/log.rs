@@ -14,6 +14,7 @@
 use crate::cli::alarms::AlarmConfig;
 use crate::cli::LogConfig;
 use crate::messages::{note, notes};
+use crate::net::metrics::log::LogMetrics;
 use crate::net::publish::Publisher;
 use crate::output::log::alarms::{load_baseline, AlarmLog};
 use crate::output::log::occupancy::OccupancyLog;
@@ -26,7 +27,6 @@ use crate::pipeline::input::unattended_options;
 use crate::pipeline::occupancy::{OccupancyRequest, OccupancySetup};
 use crate::pipeline::stop::Escalation;
 use crate::pipeline::{open_input, run_to_end, Consumer, Run, RunSpec, StopSignals, TimeSource};
-
 use crate::plan::Plan;
 use anyhow::{bail, Context, Result};
 use std::path::PathBuf;
@@ -44,6 +44,11 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
     };
     let setup = OccupancySetup::new(&info, &cfg.dsp, plan, &request)?;
     notes(&setup.notes(plan));
+    // Before any file is opened: a port in use stops the run with nothing written.
+    let mut metrics = cfg.metrics.map(|a| LogMetrics::serve(a, cfg.site.as_deref())).transpose()?;
+    if let Some(m) = &metrics {
+        note(&format!("metrics at http://{}/metrics", m.addr()));
+    }
 
     let mut inputs: Vec<PathBuf> = cfg.channels.plan_path.iter().map(PathBuf::from).collect();
     inputs.extend(cfg.input.files());
@@ -71,6 +76,9 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
     if let Some(p) = &publisher {
         log = log.with_tap(p.tap());
     }
+    if let Some(m) = &metrics {
+        log = log.with_tap(m.tap());
+    }
     let mut spec = RunSpec::new(info.clone(), setup.engine.clone(), cfg.dsp.threads);
     spec.tracker = Some(setup.tracker());
     // Each emission's kind, from its samples when it ends (bounded: see pipeline::kinds).
@@ -93,6 +101,7 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
     let mut consumers: Vec<&mut dyn Consumer> = vec![&mut progress, &mut status];
     consumers.extend(sigmf_out.consumers());
     consumers.push(&mut log);
+    consumers.extend(metrics.as_mut().map(|m| &mut m.gauges as &mut dyn Consumer));
     let outcome = run_to_end(src, opts, Run::new(spec, consumers), Some(&signals));
     drop(log);
     let mut refused_login = None;

@@ -18,6 +18,7 @@
 //! the run). A site that sends nothing for longer than its rhythm allows is reported as silent
 //! ([`Collector::silent_sites`]), never taken for idle: a live site sends every interval.
 
+use crate::net::metrics::collect::CollectGauges;
 use anyhow::{bail, Context, Result};
 use serde_json::Value;
 use std::collections::HashMap;
@@ -219,6 +220,8 @@ pub struct Collector {
     pub written: u64,
     pub duplicates: u64,
     pub malformed: u64,
+    /// `collect --metrics`: told what became of every message.
+    metrics: Option<CollectGauges>,
 }
 
 /// What the collector reads of a record: its id, kind, and a start record's interval.
@@ -254,7 +257,20 @@ impl Collector {
             written: 0,
             duplicates: 0,
             malformed: 0,
+            metrics: None,
         })
+    }
+
+    /// Counts what becomes of every message in `metrics` too.
+    pub fn with_metrics(mut self, metrics: CollectGauges) -> Collector {
+        self.metrics = Some(metrics);
+        self
+    }
+
+    /// Records of `site` that never arrived (in the holes of its runs).
+    pub fn missing(&self, site: &str) -> u64 {
+        let Some(f) = self.sites.get(site) else { return 0 };
+        f.runs.values().flat_map(|r| r.seen.holes()).map(|(a, b)| b - a).sum()
     }
 
     /// Opens a site's file for appending, learning the ids it already holds.
@@ -295,8 +311,17 @@ impl Collector {
         self.take_at(site, payload, Instant::now())
     }
 
-    /// [`Collector::take`] of a record that came at `now`.
+    /// [`Collector::take`] of a record that came at `now`; tells the metrics what became of it.
     pub fn take_at(&mut self, site: &str, payload: &[u8], now: Instant) -> Result<Taken> {
+        let taken = self.store(site, payload, now)?;
+        if let Some(m) = &self.metrics {
+            m.taken(site, &taken, self.missing(site));
+        }
+        Ok(taken)
+    }
+
+    /// Writes a record of `site` unless it is a copy (the body of [`Collector::take_at`]).
+    fn store(&mut self, site: &str, payload: &[u8], now: Instant) -> Result<Taken> {
         let (Ok(line), Ok(())) = (std::str::from_utf8(payload), crate::net::mqtt::check_site(site))
         else {
             self.malformed += 1;

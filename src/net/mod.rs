@@ -3,11 +3,12 @@
 //! that publishes its log ([`publish`]) and the collector's side that subscribes ([`subscribe`])
 //! and writes one file per site ([`collect`]). End to end, the collector asks a site again for
 //! what a forgetful broker lost ([`resend`]); the site answers ([`answer`]) from its spool or
-//! its local log ([`lookup`]).
+//! its local log ([`lookup`]). The Prometheus metrics of `log` and `collect` ([`metrics`]).
 
 pub mod answer;
 pub mod collect;
 pub mod lookup;
+pub mod metrics;
 pub mod mqtt;
 pub mod publish;
 pub mod resend;

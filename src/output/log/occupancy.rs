@@ -69,7 +69,8 @@ pub struct OccupancyLog<W: Write> {
     site: Option<String>,
     run_id: String,
     next_seq: u64,
-    tap: Option<Box<dyn RecordTap>>,
+    /// Whatever else takes every record (a publisher, the metrics), in the order added.
+    taps: Vec<Box<dyn RecordTap>>,
     /// Gaps not yet written, at most one per cause (see [`GAP_MERGE_S`]).
     pending_gaps: Vec<PendingGap>,
     /// The run, as told at its start, for writing gathered gaps between its calls.
@@ -134,7 +135,7 @@ impl<W: Write> OccupancyLog<W> {
             site: None,
             run_id: new_run_id(),
             next_seq: 0,
-            tap: None,
+            taps: Vec::new(),
             pending_gaps: Vec::new(),
             run_info: None,
             alarms: None,
@@ -153,9 +154,9 @@ impl<W: Write> OccupancyLog<W> {
         self
     }
 
-    /// Hands every record to `tap` too, after it is written.
+    /// Hands every record to `tap` too, after it is written (after any taps added before).
     pub fn with_tap(mut self, tap: Box<dyn RecordTap>) -> Self {
-        self.tap = Some(tap);
+        self.taps.push(tap);
         self
     }
 
@@ -172,7 +173,7 @@ impl<W: Write> OccupancyLog<W> {
             Some(w) => w.write(line)?,
             None => return Err(io::Error::other("the log has no file open")),
         }
-        if let Some(t) = self.tap.as_mut() {
+        for t in &mut self.taps {
             t.record(line);
         }
         Ok(())
@@ -288,7 +289,7 @@ impl<W: Write> Consumer for OccupancyLog<W> {
                 }
             }
         }
-        if let Some(t) = self.tap.as_mut() {
+        for t in &mut self.taps {
             for h in &self.headers {
                 t.record(h);
             }
@@ -393,7 +394,7 @@ fn merge_window(run: &RunInfo) -> u64 {
 }
 
 #[cfg(test)]
-mod tests {
+pub(crate) mod tests {
     use super::*;
     use crate::dsp::{DspConfig, WindowKind};
     use crate::measure::occupancy::tests::{band, Keyed, CENTER, FS};
@@ -407,7 +408,7 @@ mod tests {
     use time::format_description::well_known::Rfc3339;
     use time::OffsetDateTime;
 
-    fn setup(interval_s: f64) -> (OccupancySetup, Plan, SourceInfo) {
+    pub(crate) fn setup(interval_s: f64) -> (OccupancySetup, Plan, SourceInfo) {
         let info = SourceInfo { live: true, ..SourceInfo::synthetic(FS, CENTER) };
         let dsp = DspConfig { fft_size: 512, window: WindowKind::Hann, overlap: 0.5, threads: 1 };
         let channels =
@@ -422,7 +423,11 @@ mod tests {
         (OccupancySetup::new(&info, &dsp, &plan, &req).unwrap(), plan, info)
     }
 
-    fn spec(setup: &OccupancySetup, info: &SourceInfo, start: Option<OffsetDateTime>) -> RunSpec {
+    pub(crate) fn spec(
+        setup: &OccupancySetup,
+        info: &SourceInfo,
+        start: Option<OffsetDateTime>,
+    ) -> RunSpec {
         let mut spec = RunSpec::new(info.clone(), setup.engine.clone(), 1);
         spec.tracker = Some(setup.tracker());
         spec.start_time = start;
