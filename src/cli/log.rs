@@ -2,11 +2,12 @@
 
 use super::alarms::{AlarmArgs, AlarmConfig};
 use super::common::{
-    parse_progress, parse_seconds, ChannelArgs, ChannelConfig, DspArgs, InputArgs,
+    parse_progress, parse_seconds, ChannelArgs, ChannelConfig, DspArgs, InputArgs, LevelArgs,
 };
 use super::net::PublishArgs;
 use super::sigmf_out::{EmissionOutArgs, RecordArgs, SigmfOut};
 use crate::dsp::DspConfig;
+use crate::measure::calibration::Calibration;
 use crate::measure::change::baseline::BAND;
 use crate::net::publish::PublishConfig;
 use crate::output::log::rotation::{parse_rotate, Rotate};
@@ -27,6 +28,8 @@ pub struct LogArgs {
     pub source: InputArgs,
     #[command(flatten)]
     pub dsp: DspArgs,
+    #[command(flatten)]
+    pub levels: LevelArgs,
     /// Length of each occupancy record (interval), e.g. 10s, 15m, 1h.
     #[arg(long, value_name = "DURATION", default_value = "60s", allow_hyphen_values = true, value_parser = parse_duration)]
     pub interval: Duration,
@@ -94,6 +97,8 @@ pub struct LogConfig {
     pub progress: Option<f64>,
     /// `--alarms` and its settings.
     pub alarms: Option<AlarmConfig>,
+    /// dBFS → dBm, when calibrated (`--calibration`, `--ref-offset`).
+    pub calibration: Option<Calibration>,
 }
 
 impl LogArgs {
@@ -131,6 +136,7 @@ impl LogArgs {
             sigmf,
             progress: self.progress,
             alarms,
+            calibration: self.levels.validate()?,
         })
     }
 }

@@ -64,7 +64,7 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
         }
     };
     let publisher = cfg.publish.clone().map(Publisher::start).transpose()?;
-    let mut log = log.with_site(cfg.site.clone());
+    let mut log = log.with_site(cfg.site.clone()).with_calibration(cfg.calibration.clone());
     if let Some(a) = &cfg.alarms {
         log = log.with_alarms(alarm_log(a, plan, cfg.site.as_deref(), cfg.interval_s)?);
     }

@@ -68,8 +68,10 @@ pub fn run(cfg: SnapshotConfig) -> Result<ExitCode> {
     let outcome =
         run_to_end(src, opts, Run::new(spec, vec![&mut progress, &mut snapshot]), Some(&signals))?;
     outcome.conclude(&info.label)?;
-    let offset = cfg.ref_offset.unwrap_or(0.0);
-    let unit = if cfg.ref_offset.is_some() { "dBm" } else { "dBFS" };
+    // One offset for the picture: the calibration's at the centre frequency.
+    let ref_offset = cfg.calibration.as_ref().map(|c| c.offset_db(info.center_hz));
+    let offset = ref_offset.unwrap_or(0.0);
+    let unit = if ref_offset.is_some() { "dBm" } else { "dBFS" };
     let Some(got) = snapshot.collect(offset, unit) else {
         bail!(
             "no spectrum of '{}' to draw: the input (after --skip) is shorter than one FFT frame of {}; use a smaller --fft or --skip",
@@ -82,7 +84,7 @@ pub fn run(cfg: SnapshotConfig) -> Result<ExitCode> {
         height: cfg.height,
         map: cfg.map,
         scale: cfg.scale,
-        ref_offset_db: cfg.ref_offset,
+        ref_offset_db: ref_offset,
         title: cfg.title.clone().unwrap_or_else(|| got.title()),
         footer: got.footer(),
         channels: cfg

@@ -94,7 +94,8 @@ pub fn run(cfg: WatchConfig) -> Result<ExitCode> {
         ColourChoice::Forced(d) => d,
     };
     let marks = marks(&cfg.plan);
-    let mut app = App::new(summary, cfg.rows, depth, cfg.ref_offset, marks, Instant::now())
+    let ref_offset = cfg.calibration.as_ref().map(|c| c.offset_db(info.center_hz));
+    let mut app = App::new(summary, cfg.rows, depth, ref_offset, marks, Instant::now())
         .with_detection(cfg.detection)
         .with_files_dir(&cfg.evidence_dir)
         .with_kinds(kinds);
