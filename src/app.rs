@@ -46,6 +46,11 @@ pub fn exit_code(args: impl IntoIterator<Item = OsString>) -> u8 {
             if is_broken_pipe(&err) {
                 return 0;
             }
+            // A stop asked for before the input had said what it is: orderly, nothing read.
+            if let Some(s) = err.downcast_ref::<crate::source::StoppedWhileOpening>() {
+                crate::messages::line_to_stderr(&format!("bandwarden: {}", sanitize_message(&s.0)));
+                return 0;
+            }
             crate::messages::line_to_stderr(&format!(
                 "bandwarden: {}",
                 sanitize_message(&format!("{err:#}"))

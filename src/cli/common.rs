@@ -67,6 +67,7 @@ impl InputArgs {
             input_channel: self.input_channel,
             listen_public: self.listen_public,
             stream_id: self.stream_id,
+            stop: None,
         }
     }
 }

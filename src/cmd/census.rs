@@ -23,7 +23,7 @@ use crate::output::sink;
 use crate::pipeline::input::unattended_options;
 use crate::pipeline::occupancy::{OccupancyRequest, OccupancySetup};
 use crate::pipeline::stop::Escalation;
-use crate::pipeline::{open_input, run_to_end, Consumer, Run, RunSpec, StopSignals};
+use crate::pipeline::{open_input_stoppable, run_to_end, Consumer, Run, RunSpec, StopSignals};
 use crate::plan::{Plan, DEFAULT_THRESHOLD_DB};
 use crate::source::sanitize;
 use anyhow::{bail, Result};
@@ -35,7 +35,8 @@ const MAX_SIGNALS: usize = 64;
 const MAX_EMITTERS: usize = 256;
 
 pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
-    let src = open_input(&cfg.input)?;
+    let signals = StopSignals::install(false, Escalation::SecondSignalExits)?;
+    let src = open_input_stoppable(&cfg.input, &signals)?;
     let info = src.info().clone();
     let request = OccupancyRequest {
         dwell_s: cfg.dwell_s,
@@ -63,7 +64,6 @@ pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
     let spec = RunSpec::new(info.clone(), setup.engine.clone(), cfg.dsp.threads);
     spec.check_work()?;
 
-    let signals = StopSignals::install(false, Escalation::SecondSignalExits)?;
     let (opts, total) = unattended_options(&info, cfg.seconds, cfg.no_drop);
     // The census writes its own annotations (labelled with the emitters' names).
     let sigmf_request =

@@ -14,7 +14,7 @@ use crate::output::picture::waterfall::{
 use crate::output::progress::Progress;
 use crate::output::sink;
 use crate::pipeline::stop::Escalation;
-use crate::pipeline::{open_input, run_to_end, Run, RunSpec, StopSignals, TimeSource};
+use crate::pipeline::{open_input_stoppable, run_to_end, Run, RunSpec, StopSignals, TimeSource};
 use crate::source::reader::ReaderOptions;
 use crate::source::sanitize;
 use anyhow::{bail, Result};
@@ -26,7 +26,8 @@ use std::process::ExitCode;
 const ROW_S_UNKNOWN: f64 = 0.05;
 
 pub fn run(cfg: SnapshotConfig) -> Result<ExitCode> {
-    let src = open_input(&cfg.input)?;
+    let signals = StopSignals::install(false, Escalation::SecondSignalExits)?;
+    let src = open_input_stoppable(&cfg.input, &signals)?;
     let info = src.info().clone();
     let rate = info.sample_rate_hz;
     if !cfg.plan.is_empty() {
@@ -63,7 +64,6 @@ pub fn run(cfg: SnapshotConfig) -> Result<ExitCode> {
         find_emissions: cfg.outline,
     });
     let mut progress = Progress::for_file(total, rate);
-    let signals = StopSignals::install(false, Escalation::SecondSignalExits)?;
     let opts = ReaderOptions { max_samples, ..Default::default() };
     let outcome =
         run_to_end(src, opts, Run::new(spec, vec![&mut progress, &mut snapshot]), Some(&signals))?;
