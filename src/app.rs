@@ -46,6 +46,11 @@ pub fn exit_code(args: impl IntoIterator<Item = OsString>) -> u8 {
             if is_broken_pipe(&err) {
                 return 0;
             }
+            // A stop asked for before the input had said what it is: orderly, nothing read.
+            if let Some(s) = err.downcast_ref::<crate::source::StoppedWhileOpening>() {
+                crate::messages::line_to_stderr(&format!("bandwarden: {}", sanitize_message(&s.0)));
+                return 0;
+            }
             crate::messages::line_to_stderr(&format!(
                 "bandwarden: {}",
                 sanitize_message(&format!("{err:#}"))
@@ -66,6 +71,7 @@ pub fn run(cli: Cli) -> anyhow::Result<ExitCode> {
         Some(Command::Snapshot(args)) => cmd::snapshot::run(args.validate()?),
         Some(Command::Report(args)) => cmd::report::run(args.validate()?),
         Some(Command::Collect(args)) => cmd::collect::run(args.validate()?),
+        Some(Command::Calibrate(args)) => cmd::calibrate::run(args.validate()?),
         Some(Command::Completions(args)) => {
             package::write_completions(args.shell, &mut std::io::stdout().lock())?;
             Ok(ExitCode::SUCCESS)

@@ -31,9 +31,14 @@ fn radix20(hz: f64) -> [u32; 2] {
 /// A context packet: CIF0 bits 27 (RF reference), 24 (reference level), 21 (sample rate),
 /// 15 (payload format: complex Cartesian, signed fixed point, 16-bit items in 16-bit fields).
 fn context(count: u32) -> Vec<u8> {
+    context_at(count, 145.5e6)
+}
+
+/// A context packet as [`context`], tuned to `centre_hz`.
+fn context_at(count: u32, centre_hz: f64) -> Vec<u8> {
     let cif0 = (1 << 27) | (1 << 24) | (1 << 21) | (1 << 15);
     let mut w = vec![0u32, STREAM, cif0];
-    w.extend(radix20(145.5e6));
+    w.extend(radix20(centre_hz));
     w.push((-20.0f64 * 128.0) as i16 as u16 as u32);
     w.extend(radix20(FS));
     let pf: u64 = (1 << 61) | (15 << 38) | (15 << 32);
@@ -65,31 +70,10 @@ fn data(k: usize, samples: &[u8]) -> Vec<u8> {
 #[test]
 fn lost_reordered_and_repeated_packets_are_counted_exactly() {
     let out = common::scratch("vita49", "site.jsonl");
-    let port = UdpSocket::bind("127.0.0.1:0").unwrap().local_addr().unwrap().port();
-    let addr = format!("vita49://127.0.0.1:{port}");
-    let mut child = Command::new(env!("CARGO_BIN_EXE_bandwarden"))
-        .args(["log", &addr, "--channel", "a=145.52M:10k", "--interval", "1s"])
-        .args(["--fft", "512", "--threads", "1", "-o", out.to_str().unwrap()])
-        .stderr(Stdio::piped())
-        .spawn()
-        .unwrap();
-    let on = |_: u64| true;
-    let x = keyed_band(
-        PACKETS * PER_PACKET,
-        FS,
-        1e-4,
-        &[Keyed { offset_hz: 20e3, level_dbfs: -30.0, on: &on }],
-        3,
-    );
-    let mut samples = Vec::new();
-    SampleFormat::Ci16Be.encode(&x, &mut samples);
-    let tx = UdpSocket::bind("127.0.0.1:0").unwrap();
-    let to = format!("127.0.0.1:{port}");
-    // Context until bandwarden has surely bound its port.
-    for i in 0..10 {
-        let _ = tx.send_to(&context(i), &to);
-        std::thread::sleep(Duration::from_millis(100));
-    }
+    let port = free_udp_port();
+    let mut child = spawn_log(port, &out);
+    let samples = carrier(PACKETS, 3);
+    let (tx, to) = announce(port);
     let lost: Vec<usize> = std::iter::once(50).chain(100..120).collect();
     let mut order: Vec<usize> = (0..PACKETS).filter(|k| !lost.contains(k)).collect();
     let at = order.iter().position(|&k| k == 150).unwrap();
@@ -144,4 +128,95 @@ fn a_public_address_needs_listen_public_and_a_silent_port_says_what_it_waited_fo
     assert!(!o.status.success() && err.contains("--listen-public"), "{err}");
     let o = common::run(&["measure", "vita49://127.0.0.1:notaport"]);
     assert!(!o.status.success() && common::stderr(&o).contains("vita49://127.0.0.1:4991"));
+}
+
+/// `log` on `vita49://` at a free port, writing to `out`.
+fn spawn_log(port: u16, out: &std::path::Path) -> std::process::Child {
+    Command::new(env!("CARGO_BIN_EXE_bandwarden"))
+        .args(["log", &format!("vita49://127.0.0.1:{port}"), "--channel", "a=145.52M:10k"])
+        .args(["--interval", "1s", "--fft", "512", "--threads", "1", "-o", out.to_str().unwrap()])
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap()
+}
+
+/// `packets` packets' worth of a −30 dBFS carrier 20 kHz above the centre in noise, ci16_be.
+fn carrier(packets: usize, seed: u64) -> Vec<u8> {
+    let on = |_: u64| true;
+    let tone = [Keyed { offset_hz: 20e3, level_dbfs: -30.0, on: &on }];
+    let x = keyed_band(packets * PER_PACKET, FS, 1e-4, &tone, seed);
+    let mut samples = Vec::new();
+    SampleFormat::Ci16Be.encode(&x, &mut samples);
+    samples
+}
+
+/// A sender and where it sends, after a second of context packets (until bandwarden has
+/// surely bound its port).
+fn announce(port: u16) -> (UdpSocket, String) {
+    let tx = UdpSocket::bind("127.0.0.1:0").unwrap();
+    let to = format!("127.0.0.1:{port}");
+    for i in 0..10 {
+        let _ = tx.send_to(&context(i), &to);
+        std::thread::sleep(Duration::from_millis(100));
+    }
+    (tx, to)
+}
+
+fn free_udp_port() -> u16 {
+    UdpSocket::bind("127.0.0.1:0").unwrap().local_addr().unwrap().port()
+}
+
+#[test]
+fn a_retune_mid_stream_ends_the_input_after_the_samples_before_it() {
+    let out = common::scratch("vita49", "retune.jsonl");
+    let port = free_udp_port();
+    let child = spawn_log(port, &out);
+    let samples = carrier(80, 4);
+    let (tx, to) = announce(port);
+    // 50 packets at 145.5 MHz, the same context repeated on the way (no change), then the
+    // receiver moves to 146.5 MHz and sends 30 more.
+    for k in 0..80 {
+        if k == 25 {
+            tx.send_to(&context(11), &to).unwrap();
+        }
+        if k == 50 {
+            tx.send_to(&context_at(12, 146.5e6), &to).unwrap();
+        }
+        tx.send_to(&data(k, &samples), &to).unwrap();
+        std::thread::sleep(Duration::from_secs_f64(PER_PACKET as f64 / FS));
+    }
+    let o = child.wait_with_output().unwrap();
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert_eq!(o.status.code(), Some(1), "{err}");
+    assert!(
+        err.contains("changed its centre from 145500000 to 146500000 Hz at sample 50000"),
+        "{err}"
+    );
+    let recs: Vec<Value> = std::fs::read_to_string(&out)
+        .unwrap()
+        .lines()
+        .map(|l| serde_json::from_str(l).unwrap())
+        .collect();
+    let stop = recs.last().unwrap();
+    assert_eq!(stop["kind"], "stop", "{recs:?}");
+    assert_eq!(stop["reason"], "input_error");
+    // Every sample from before the change was measured, none from after it.
+    assert_eq!(stop["iq_samples"].as_u64().unwrap(), 50 * PER_PACKET as u64, "{stop}");
+}
+
+#[test]
+fn a_signal_while_waiting_for_the_context_is_an_orderly_stop() {
+    for signal in ["-TERM", "-HUP", "-INT"] {
+        let out = common::scratch("vita49", "silent.jsonl");
+        let child = spawn_log(free_udp_port(), &out);
+        std::thread::sleep(Duration::from_millis(500));
+        Command::new("kill").args([signal, &child.id().to_string()]).status().unwrap();
+        let t0 = Instant::now();
+        let o = child.wait_with_output().unwrap();
+        let err = String::from_utf8_lossy(&o.stderr);
+        // Before: killed by the signal's default action (exit 129 for SIGHUP).
+        assert_eq!(o.status.code(), Some(0), "{signal}: {err}");
+        assert!(err.contains("while waiting for the first context packet"), "{signal}: {err}");
+        assert!(t0.elapsed() < Duration::from_secs(3), "{signal}: it waited on");
+    }
 }

@@ -1,9 +1,10 @@
 //! `census` flags and their validation.
 
 use super::change::ChangeArgs;
-use super::common::{parse_progress, parse_seconds, DetectArgs, DspArgs, InputArgs};
+use super::common::{parse_progress, parse_seconds, DetectArgs, DspArgs, InputArgs, LevelArgs};
 use super::sigmf_out::{EmissionOutArgs, RecordArgs, SigmfOut};
 use crate::dsp::DspConfig;
+use crate::measure::calibration::Calibration;
 use crate::measure::change::Thresholds;
 use crate::measure::occupancy::timing::OBW_PERCENT;
 use crate::measure::Detection;
@@ -23,6 +24,8 @@ pub struct CensusArgs {
     pub source: InputArgs,
     #[command(flatten)]
     pub dsp: DspArgs,
+    #[command(flatten)]
+    pub levels: LevelArgs,
     #[command(flatten)]
     pub detect: DetectArgs,
     /// Length of one row (an average of FFT frames) in which emissions are detected, e.g. 10ms;
@@ -84,6 +87,8 @@ pub struct CensusConfig {
     pub baseline: Option<String>,
     pub save_baseline: Option<String>,
     pub thresholds: Thresholds,
+    /// dBFS → dBm, when calibrated (`--calibration`, `--ref-offset`).
+    pub calibration: Option<Calibration>,
 }
 
 impl CensusArgs {
@@ -114,6 +119,7 @@ impl CensusArgs {
             baseline: self.baseline,
             save_baseline: self.save_baseline,
             thresholds,
+            calibration: self.levels.validate()?,
         })
     }
 }

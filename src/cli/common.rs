@@ -2,6 +2,7 @@
 //! which channels are measured; and the value parsers every flag uses, each written once.
 
 use crate::dsp::{DspConfig, EngineConfig, WindowKind};
+use crate::measure::calibration::Calibration;
 use crate::measure::signals::DEFAULT_FALSE_ALARM;
 use crate::measure::Detection;
 use crate::messages::sanitize;
@@ -67,6 +68,7 @@ impl InputArgs {
             input_channel: self.input_channel,
             listen_public: self.listen_public,
             stream_id: self.stream_id,
+            stop: None,
         }
     }
 }
@@ -292,6 +294,29 @@ pub fn parse_seconds(text: &str) -> Result<f64, String> {
         ));
     }
     Ok(s)
+}
+
+/// Levels in dBm instead of dBFS: a calibration file (`bandwarden calibrate`) or one offset.
+#[derive(Args, Debug, Clone, Default)]
+pub struct LevelArgs {
+    /// Add this many dB to every level, turning dBFS into dBm at the antenna port of a
+    /// calibrated receiver (the same at every frequency).
+    #[arg(long, value_name = "DB", allow_negative_numbers = true, value_parser = parse_db, conflicts_with = "calibration")]
+    pub ref_offset: Option<f64>,
+    /// Levels in dBm from a calibration file written by `bandwarden calibrate` (an offset per
+    /// frequency, interpolated between its points).
+    #[arg(long, value_name = "FILE")]
+    pub calibration: Option<String>,
+}
+
+impl LevelArgs {
+    /// The calibration asked for, read and checked; `None`: levels stay in dBFS.
+    pub fn validate(&self) -> Result<Option<Calibration>> {
+        if let Some(path) = &self.calibration {
+            return Calibration::load(std::path::Path::new(path)).map(Some);
+        }
+        self.ref_offset.map(Calibration::flat).transpose()
+    }
 }
 
 /// Largest magnitude of a plain number option (`--overlap`, `--fps`, `--speed`, …): far beyond

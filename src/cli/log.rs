@@ -2,12 +2,13 @@
 
 use super::alarms::{AlarmArgs, AlarmConfig};
 use super::common::{
-    parse_progress, parse_seconds, ChannelArgs, ChannelConfig, DspArgs, InputArgs,
+    parse_progress, parse_seconds, ChannelArgs, ChannelConfig, DspArgs, InputArgs, LevelArgs,
 };
 use super::metrics::MetricsArgs;
 use super::net::PublishArgs;
 use super::sigmf_out::{EmissionOutArgs, RecordArgs, SigmfOut};
 use crate::dsp::DspConfig;
+use crate::measure::calibration::Calibration;
 use crate::measure::change::baseline::BAND;
 use crate::net::publish::PublishConfig;
 use crate::output::log::rotation::{parse_rotate, Rotate};
@@ -28,6 +29,8 @@ pub struct LogArgs {
     pub source: InputArgs,
     #[command(flatten)]
     pub dsp: DspArgs,
+    #[command(flatten)]
+    pub levels: LevelArgs,
     /// Length of each occupancy record (interval), e.g. 10s, 15m, 1h.
     #[arg(long, value_name = "DURATION", default_value = "60s", allow_hyphen_values = true, value_parser = parse_duration)]
     pub interval: Duration,
@@ -99,6 +102,8 @@ pub struct LogConfig {
     pub alarms: Option<AlarmConfig>,
     /// `--metrics`: where to serve the Prometheus metrics.
     pub metrics: Option<std::net::SocketAddr>,
+    /// dBFS → dBm, when calibrated (`--calibration`, `--ref-offset`).
+    pub calibration: Option<Calibration>,
 }
 
 impl LogArgs {
@@ -137,6 +142,7 @@ impl LogArgs {
             progress: self.progress,
             alarms,
             metrics: self.metrics.validate(self.source.listen_public)?,
+            calibration: self.levels.validate()?,
         })
     }
 }

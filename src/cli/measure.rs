@@ -3,8 +3,9 @@
 use super::common::{
     parse_band, parse_count, parse_db, parse_number, parse_seconds, ChannelArgs, ChannelConfig,
 };
-use super::common::{DetectArgs, DspArgs, InputArgs};
+use super::common::{DetectArgs, DspArgs, InputArgs, LevelArgs};
 use crate::dsp::DspConfig;
+use crate::measure::calibration::Calibration;
 use crate::measure::Detection;
 use crate::output::report::Band;
 use crate::source::InputRequest;
@@ -31,6 +32,8 @@ pub struct MeasureArgs {
     pub source: InputArgs,
     #[command(flatten)]
     pub dsp: DspArgs,
+    #[command(flatten)]
+    pub levels: LevelArgs,
     /// Read at most this many seconds of input (the demo scene defaults to 2 s).
     #[arg(long, value_name = "SECONDS", allow_negative_numbers = true, value_parser = parse_seconds)]
     pub seconds: Option<f64>,
@@ -75,6 +78,8 @@ pub struct MeasureConfig {
     /// How signals are told from noise.
     pub detection: Detection,
     pub channels: ChannelConfig,
+    /// dBFS → dBm, when calibrated (`--calibration`, `--ref-offset`).
+    pub calibration: Option<Calibration>,
 }
 
 impl MeasureArgs {
@@ -113,6 +118,7 @@ impl MeasureArgs {
             json: self.json,
             detection,
             channels,
+            calibration: self.levels.validate()?,
         })
     }
 }

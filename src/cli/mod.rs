@@ -6,6 +6,7 @@
 //! imports clap or an `*Args` type.
 
 pub mod alarms;
+pub mod calibrate;
 pub mod census;
 pub mod change;
 pub mod common;
@@ -20,6 +21,7 @@ pub mod sigmf_out;
 pub mod snapshot;
 pub mod watch;
 
+pub use calibrate::{CalibrateArgs, CalibrateConfig};
 pub use census::{CensusArgs, CensusConfig};
 pub use common::{ChannelArgs, ChannelConfig, DspArgs, InputArgs, PlanArgs};
 pub use demo::{DemoArgs, DemoConfig};
@@ -71,6 +73,9 @@ pub enum Command {
     /// Summarise occupancy logs written by `log`: per channel, the whole period and each hour, as
     /// a table, CSV, JSON or a heat map picture.
     Report(ReportArgs),
+    /// Calibrate levels to dBm: measure generator tones of known power into a calibration file
+    /// for --calibration, or the noise figure of a terminated input.
+    Calibrate(CalibrateArgs),
     /// Gather what sites publish to an MQTT broker (log --publish) into one JSON Lines file per
     /// site, as if each had logged locally; runs until Ctrl-C or SIGTERM.
     Collect(CollectArgs),

@@ -1,8 +1,10 @@
 //! `snapshot` flags and their validation.
 
-use super::common::{parse_count, parse_db, parse_seconds, DspArgs, InputArgs, PlanArgs};
-use super::watch::MAX_REF_OFFSET_DB;
+use super::common::{
+    parse_count, parse_db, parse_seconds, DspArgs, InputArgs, LevelArgs, PlanArgs,
+};
 use crate::dsp::DspConfig;
+use crate::measure::calibration::Calibration;
 use crate::output::picture::canvas::{PictureFormat, MAX_SIDE, MIN_SIDE};
 use crate::output::picture::colour::MapKind;
 use crate::plan::Plan;
@@ -46,9 +48,8 @@ pub struct SnapshotArgs {
     /// the noise to the strongest level.
     #[arg(long, value_name = "LOW:HIGH", allow_hyphen_values = true, value_parser = parse_scale)]
     pub scale: Option<(f64, f64)>,
-    /// Add this many dB to every level, turning dBFS into dBm for a calibrated receiver.
-    #[arg(long, value_name = "DB", allow_negative_numbers = true, value_parser = parse_db)]
-    pub ref_offset: Option<f64>,
+    #[command(flatten)]
+    pub levels: LevelArgs,
     /// Title of the picture (default: the input and its time).
     #[arg(long, value_name = "TEXT")]
     pub title: Option<String>,
@@ -70,7 +71,8 @@ pub struct SnapshotConfig {
     pub height: u32,
     pub map: MapKind,
     pub scale: Option<(f64, f64)>,
-    pub ref_offset: Option<f64>,
+    /// dBFS → dBm, when calibrated.
+    pub calibration: Option<Calibration>,
     pub title: Option<String>,
 }
 
@@ -107,9 +109,6 @@ impl SnapshotArgs {
                 bail!("{name} {v} is out of range; choose {MIN_SIDE} ..= {MAX_SIDE} pixels");
             }
         }
-        if self.ref_offset.is_some_and(|o| o.abs() > MAX_REF_OFFSET_DB) {
-            bail!("--ref-offset must be a number of dB within ±{MAX_REF_OFFSET_DB}");
-        }
         Ok(SnapshotConfig {
             input: self.source.request(Some(self.input)),
             out: self.out,
@@ -124,7 +123,7 @@ impl SnapshotArgs {
             height: self.height,
             map: self.colour_map,
             scale: self.scale,
-            ref_offset: self.ref_offset,
+            calibration: self.levels.validate()?,
             title: self.title,
         })
     }
@@ -165,7 +164,7 @@ mod tests {
         assert_eq!((c.skip_s, c.seconds), (1.5, Some(2.0)));
         assert_eq!(c.map, MapKind::Magma);
         assert_eq!(c.scale, Some((-110.0, -20.0)));
-        assert_eq!(c.ref_offset, Some(-12.0));
+        assert_eq!(c.calibration.map(|c| c.offset_db(433e6)), Some(-12.0));
         assert_eq!((c.width, c.height), (800, 900));
         assert!(c.outline);
         let bad = |args: &[&str]| {

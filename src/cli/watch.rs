@@ -1,8 +1,9 @@
 //! `watch` flags and their validation.
 
 use super::alarms::{AlarmArgs, AlarmConfig};
-use super::common::{parse_db, parse_number, DetectArgs, DspArgs, InputArgs, PlanArgs};
+use super::common::{parse_number, DetectArgs, DspArgs, InputArgs, LevelArgs, PlanArgs};
 use super::sigmf_out::RecordArgs;
+use crate::measure::calibration::Calibration;
 use crate::measure::Detection;
 use crate::pipeline::latest::RowSettings;
 use crate::plan::Plan;
@@ -37,9 +38,8 @@ pub struct WatchArgs {
     /// Start a file again when it ends.
     #[arg(long = "loop")]
     pub loop_input: bool,
-    /// Add this many dB to every level shown, turning dBFS into dBm for a calibrated receiver.
-    #[arg(long, value_name = "DB", allow_negative_numbers = true, value_parser = parse_db)]
-    pub ref_offset: Option<f64>,
+    #[command(flatten)]
+    pub levels: LevelArgs,
     #[command(flatten)]
     pub channels: PlanArgs,
     /// Colours: auto (24-bit when COLORTERM says truecolor or 24bit, none under NO_COLOR,
@@ -81,9 +81,6 @@ pub struct WatchArgs {
 /// show, and a thousand times it is faster than the screen can show rows anyway.
 pub const MIN_SPEED: f64 = 0.001;
 pub const MAX_SPEED: f64 = 1000.0;
-/// Largest calibration offset: gains between a receiver's full scale and its antenna port lie
-/// well within ±200 dB (common practice), and levels beyond it would leave the scale's range.
-pub const MAX_REF_OFFSET_DB: f64 = 200.0;
 
 /// `--colour`: automatic or forced.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -110,7 +107,8 @@ pub struct WatchConfig {
     pub fps: f64,
     pub speed: f64,
     pub loop_input: bool,
-    pub ref_offset: Option<f64>,
+    /// dBFS → dBm, when calibrated.
+    pub calibration: Option<Calibration>,
     pub plan: Plan,
     pub colour: ColourChoice,
     pub scroll_region: bool,
@@ -148,9 +146,7 @@ impl WatchArgs {
                 format_num(self.speed)
             );
         }
-        if self.ref_offset.is_some_and(|o| o.is_nan() || o.abs() > MAX_REF_OFFSET_DB) {
-            bail!("--ref-offset must be a number of dB within ±{MAX_REF_OFFSET_DB}");
-        }
+        let calibration = self.levels.validate()?;
         let plan = self.channels.validate()?;
         let alarms = self.alarms.validate()?;
         if alarms.is_some() && plan.channels.is_empty() {
@@ -167,7 +163,7 @@ impl WatchArgs {
             fps: self.fps,
             speed: self.speed,
             loop_input: self.loop_input,
-            ref_offset: self.ref_offset,
+            calibration,
             plan,
             colour: self.colour,
             scroll_region: !self.no_scroll_region,
@@ -259,7 +255,7 @@ mod tests {
         assert_eq!(w.dsp.fft_size, 8192);
         assert_eq!(w.speed, 4.0);
         assert!(w.loop_input);
-        assert_eq!(w.ref_offset, Some(-30.5));
+        assert_eq!(w.levels.ref_offset, Some(-30.5));
         let c = &w.channels.channels[0];
         assert_eq!((c.name.as_str(), c.center_hz), ("gate", 433.2625e6));
         assert_eq!(w.channels.plan.as_deref(), Some("site.toml"));

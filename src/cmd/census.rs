@@ -1,14 +1,12 @@
 //! `bandwarden census`: every emitter in the band, found without a plan.
 //!
 //! The pipeline turns blocks into rows (one measurement sample each, as `log` uses); the census
-//! ([`crate::measure::census`]) detects, tracks and groups emissions row by row. When the input
-//! ends, or on SIGINT/SIGTERM for live input, the inventory is printed (table or JSON) and, with
-//! `--plan-out`, written as a channel plan. A second signal during the wind-down exits at once.
+//! ([`crate::measure::census`]) detects, tracks and groups emissions row by row. At the end of
+//! input (or SIGINT/SIGTERM) the inventory is printed (table or JSON; dBm when calibrated) and,
+//! with `--plan-out`, written as a plan. A second signal during the wind-down exits at once.
 //!
-//! The SigMF outputs are those of `log`: `--record` tees the input, `--annotate` writes every
-//! emission (labelled with its emitter's name) when the census ends, `--capture` saves each
-//! emission's IQ as it happens (named from its detected centre, as emitters are named; the JSON
-//! output lists the capture records).
+//! SigMF outputs as `log`'s: `--record` tees the input, `--annotate` writes every emission
+//! (labelled with its emitter) at the end, `--capture` saves each emission's IQ as it happens.
 
 use crate::cli::CensusConfig;
 use crate::measure::census::{Census, CensusSettings};
@@ -25,7 +23,7 @@ use crate::output::sink;
 use crate::pipeline::input::unattended_options;
 use crate::pipeline::occupancy::{OccupancyRequest, OccupancySetup};
 use crate::pipeline::stop::Escalation;
-use crate::pipeline::{open_input, run_to_end, Consumer, Run, RunSpec, StopSignals};
+use crate::pipeline::{open_input_stoppable, run_to_end, Consumer, Run, RunSpec, StopSignals};
 use crate::plan::{Plan, DEFAULT_THRESHOLD_DB};
 use crate::source::sanitize;
 use anyhow::{bail, Result};
@@ -37,7 +35,8 @@ const MAX_SIGNALS: usize = 64;
 const MAX_EMITTERS: usize = 256;
 
 pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
-    let src = open_input(&cfg.input)?;
+    let signals = StopSignals::install(false, Escalation::SecondSignalExits)?;
+    let src = open_input_stoppable(&cfg.input, &signals)?;
     let info = src.info().clone();
     let request = OccupancyRequest {
         dwell_s: cfg.dwell_s,
@@ -65,7 +64,6 @@ pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
     let spec = RunSpec::new(info.clone(), setup.engine.clone(), cfg.dsp.threads);
     spec.check_work()?;
 
-    let signals = StopSignals::install(false, Escalation::SecondSignalExits)?;
     let (opts, total) = unattended_options(&info, cfg.seconds, cfg.no_drop);
     // The census writes its own annotations (labelled with the emitters' names).
     let sigmf_request =
@@ -123,16 +121,18 @@ pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
     let mut v = to_json_value(result);
     // The kinds go in before the comparison, which reads today's census from this JSON.
     add_kinds(&mut v, &census.emitter_kinds);
+    let (kinds, cal) = (&census.emitter_kinds, cfg.calibration.as_ref());
     let mut text = if cfg.json {
         String::new()
     } else {
-        to_table_with_kinds(result, &sanitize(&info.label), &census.emitter_kinds)
+        to_table_with_kinds(result, &sanitize(&info.label), kinds, cal)
     };
     let saved = baseline.apply(&mut v, &mut text, cfg.json)?;
     if cfg.json {
         if cfg.sigmf.capture.is_some() {
             v["captures"] = capture_list(&census.captures);
         }
+        cal.iter().for_each(|c| crate::output::levels::add_dbm(&mut v, c, info.center_hz));
         text = format!("{v}\n")
     }
     let mut out = sink::open("-", false, "census")?.out;

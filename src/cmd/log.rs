@@ -26,14 +26,17 @@ use crate::output::sink;
 use crate::pipeline::input::unattended_options;
 use crate::pipeline::occupancy::{OccupancyRequest, OccupancySetup};
 use crate::pipeline::stop::Escalation;
-use crate::pipeline::{open_input, run_to_end, Consumer, Run, RunSpec, StopSignals, TimeSource};
+use crate::pipeline::{
+    open_input_stoppable, run_to_end, Consumer, Run, RunSpec, StopSignals, TimeSource,
+};
 use crate::plan::Plan;
 use anyhow::{bail, Context, Result};
 use std::path::PathBuf;
 use std::process::ExitCode;
 
 pub fn run(cfg: LogConfig) -> Result<ExitCode> {
-    let src = open_input(&cfg.input)?;
+    let signals = StopSignals::install(false, Escalation::SecondSignalExits)?;
+    let src = open_input_stoppable(&cfg.input, &signals)?;
     let info = src.info().clone();
     let plan = &cfg.channels.plan;
     let request = OccupancyRequest {
@@ -69,7 +72,7 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
         }
     };
     let publisher = cfg.publish.clone().map(Publisher::start).transpose()?;
-    let mut log = log.with_site(cfg.site.clone());
+    let mut log = log.with_site(cfg.site.clone()).with_calibration(cfg.calibration.clone());
     if let Some(a) = &cfg.alarms {
         log = log.with_alarms(alarm_log(a, plan, cfg.site.as_deref(), cfg.interval_s)?);
     }
@@ -89,7 +92,6 @@ pub fn run(cfg: LogConfig) -> Result<ExitCode> {
         note("the time of the first sample is unknown (give --start): start/end fields are null");
     }
 
-    let signals = StopSignals::install(false, Escalation::SecondSignalExits)?;
     let (opts, total) = unattended_options(&info, cfg.seconds, cfg.no_drop);
     let request = SigmfRequest::of(&cfg.sigmf, cfg.no_drop);
     let mut sigmf_out =

@@ -3,6 +3,7 @@
 use crate::cli::MeasureConfig;
 use crate::measure::occupancy::{ChannelDef, DEFAULT_HANG_S, DEFAULT_INTERVAL_S};
 use crate::output::class_fields::ClassFields;
+use crate::output::levels::add_dbm;
 use crate::output::report::on_air::OnAirBands;
 use crate::output::report::whole::WholeInput;
 use crate::output::report::{build_report, channel_rows, InputCounts, ReportSettings};
@@ -95,10 +96,15 @@ pub fn run(cfg: MeasureConfig) -> Result<ExitCode> {
     if !plan.is_empty() {
         report.channels = channel_rows(plan, &spectrum, &whole.occupancy, dwell_s, cfg.obw_percent);
     }
-    let text = if cfg.json {
-        format!("{}\n", report.to_json())
-    } else {
-        report.to_table(cfg.obw_percent, cfg.xdb)
+    let cal = cfg.calibration.as_ref();
+    let text = match (cfg.json, cal) {
+        (true, None) => format!("{}\n", report.to_json()),
+        (true, Some(c)) => {
+            let mut v = serde_json::to_value(&report)?;
+            add_dbm(&mut v, c, info.center_hz);
+            format!("{}\n", serde_json::to_string_pretty(&v)?)
+        }
+        (false, _) => report.to_table(cfg.obw_percent, cfg.xdb, cal),
     };
     let mut out = sink::open("-", false, "report")?.out;
     out.write_all(text.as_bytes())?;

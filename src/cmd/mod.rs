@@ -1,6 +1,7 @@
 //! One module per subcommand; each turns a validated config into consumers and runs the
 //! pipeline. No engine loop lives here.
 
+pub mod calibrate;
 pub mod census;
 pub mod collect;
 pub mod demo;

@@ -14,7 +14,7 @@ use crate::output::picture::waterfall::{
 use crate::output::progress::Progress;
 use crate::output::sink;
 use crate::pipeline::stop::Escalation;
-use crate::pipeline::{open_input, run_to_end, Run, RunSpec, StopSignals, TimeSource};
+use crate::pipeline::{open_input_stoppable, run_to_end, Run, RunSpec, StopSignals, TimeSource};
 use crate::source::reader::ReaderOptions;
 use crate::source::sanitize;
 use anyhow::{bail, Result};
@@ -26,7 +26,8 @@ use std::process::ExitCode;
 const ROW_S_UNKNOWN: f64 = 0.05;
 
 pub fn run(cfg: SnapshotConfig) -> Result<ExitCode> {
-    let src = open_input(&cfg.input)?;
+    let signals = StopSignals::install(false, Escalation::SecondSignalExits)?;
+    let src = open_input_stoppable(&cfg.input, &signals)?;
     let info = src.info().clone();
     let rate = info.sample_rate_hz;
     if !cfg.plan.is_empty() {
@@ -63,13 +64,14 @@ pub fn run(cfg: SnapshotConfig) -> Result<ExitCode> {
         find_emissions: cfg.outline,
     });
     let mut progress = Progress::for_file(total, rate);
-    let signals = StopSignals::install(false, Escalation::SecondSignalExits)?;
     let opts = ReaderOptions { max_samples, ..Default::default() };
     let outcome =
         run_to_end(src, opts, Run::new(spec, vec![&mut progress, &mut snapshot]), Some(&signals))?;
     outcome.conclude(&info.label)?;
-    let offset = cfg.ref_offset.unwrap_or(0.0);
-    let unit = if cfg.ref_offset.is_some() { "dBm" } else { "dBFS" };
+    // One offset for the picture: the calibration's at the centre frequency.
+    let ref_offset = cfg.calibration.as_ref().map(|c| c.offset_db(info.center_hz));
+    let offset = ref_offset.unwrap_or(0.0);
+    let unit = if ref_offset.is_some() { "dBm" } else { "dBFS" };
     let Some(got) = snapshot.collect(offset, unit) else {
         bail!(
             "no spectrum of '{}' to draw: the input (after --skip) is shorter than one FFT frame of {}; use a smaller --fft or --skip",
@@ -82,7 +84,7 @@ pub fn run(cfg: SnapshotConfig) -> Result<ExitCode> {
         height: cfg.height,
         map: cfg.map,
         scale: cfg.scale,
-        ref_offset_db: cfg.ref_offset,
+        ref_offset_db: ref_offset,
         title: cfg.title.clone().unwrap_or_else(|| got.title()),
         footer: got.footer(),
         channels: cfg

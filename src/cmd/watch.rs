@@ -17,7 +17,8 @@ use crate::pipeline::clock::Clock;
 use crate::pipeline::input::live_block_len;
 use crate::pipeline::kinds::live;
 use crate::pipeline::latest::RowFeed;
-use crate::pipeline::{open_input, Consumer, Input, RunSpec};
+use crate::pipeline::stop::Escalation;
+use crate::pipeline::{open_input_stoppable, Consumer, Input, RunSpec, StopSignals};
 use crate::plan::{Plan, DEFAULT_THRESHOLD_DB};
 use crate::source::reader::ReaderOptions;
 use crate::source::SourceInfo;
@@ -41,7 +42,10 @@ pub fn run_default() -> Result<ExitCode> {
 }
 
 pub fn run(cfg: WatchConfig) -> Result<ExitCode> {
-    let src = open_input(&cfg.input)?;
+    // Signals caught while the input opens (the monitor installs its own once drawing).
+    let opening = StopSignals::install(false, Escalation::SecondSignalExits)?;
+    let src = open_input_stoppable(&cfg.input, &opening)?;
+    drop(opening);
     let info = src.info().clone();
     let half = info.sample_rate_hz / 2.0;
     cfg.plan.check_span(info.center_hz - half, info.center_hz + half)?;
@@ -104,7 +108,8 @@ pub fn run(cfg: WatchConfig) -> Result<ExitCode> {
         ColourChoice::Forced(d) => d,
     };
     let marks = marks(&cfg.plan);
-    let mut app = App::new(summary, cfg.rows, depth, cfg.ref_offset, marks, Instant::now())
+    let ref_offset = cfg.calibration.as_ref().map(|c| c.offset_db(info.center_hz));
+    let mut app = App::new(summary, cfg.rows, depth, ref_offset, marks, Instant::now())
         .with_detection(cfg.detection)
         .with_files_dir(&cfg.evidence_dir)
         .with_kinds(kinds)

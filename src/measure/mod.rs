@@ -2,6 +2,7 @@
 //! `log` and `watch`, and tested without threads or I/O.
 
 pub mod band;
+pub mod calibration;
 pub mod census;
 pub mod change;
 pub mod classify;

@@ -2,12 +2,14 @@
 //! and a channel plan in the TOML format `log --plan` reads.
 
 use crate::dsp::Spectrum;
+use crate::measure::calibration::Calibration;
 use crate::measure::census::floor::FloorProfile;
 use crate::measure::census::{
     frequency_name, Attributed, Census, CensusEvent, CensusResult, Emission, EmitterFigures,
 };
 use crate::measure::classify::{Class, Classification};
 use crate::measure::vote::{EmitterKind, Vote};
+use crate::output::levels::level_unit;
 use crate::output::log::CaptureRecord;
 use crate::output::sigmf::annotate::{comment, AnnotateSummary, AnnotationWriter, EmissionNote};
 use crate::output::sigmf::capture::Trigger;
@@ -428,13 +430,21 @@ pub fn kind_word(class: Class) -> &'static str {
 
 /// The census as a table, strongest first, units in the header.
 pub fn to_table(r: &CensusResult, label: &str) -> String {
-    to_table_with_kinds(r, label, &[])
+    to_table_with_kinds(r, label, &[], None)
 }
 
 /// [`to_table`] with each emitter's kind and designator in two last columns (none when `kinds`
 /// is empty). The rows are wider than 80 columns already; a narrow terminal wraps them, and
 /// these columns come last so that the figures stay in place.
-pub fn to_table_with_kinds(r: &CensusResult, label: &str, kinds: &[EmitterKind]) -> String {
+/// With a calibration, levels are dBm, each at its emitter's own frequency.
+pub fn to_table_with_kinds(
+    r: &CensusResult,
+    label: &str,
+    kinds: &[EmitterKind],
+    cal: Option<&Calibration>,
+) -> String {
+    let unit = level_unit(cal);
+    let at = |dbfs: f64, freq_hz: f64| dbfs + cal.map_or(0.0, |c| c.offset_db(freq_hz));
     let kind_cells = |i: usize| {
         kinds
             .get(i)
@@ -443,13 +453,13 @@ pub fn to_table_with_kinds(r: &CensusResult, label: &str, kinds: &[EmitterKind])
     let mut s = String::new();
     let _ = writeln!(
         s,
-        "census of {label}: {:.3} s, {} S/s around {} Hz, FFT {}, RBW {:.1} Hz, noise {:.1} dBFS/Hz",
+        "census of {label}: {:.3} s, {} S/s around {} Hz, FFT {}, RBW {:.1} Hz, noise {:.1} {unit}/Hz",
         r.duration_s,
         crate::units::format_num(r.sample_rate_hz),
         crate::units::format_num(r.center_hz),
         r.fft_size,
         r.rbw_hz,
-        r.noise_floor_dbfs_per_hz
+        at(r.noise_floor_dbfs_per_hz, r.center_hz)
     );
     if r.emitters.is_empty() {
         s.push_str("no emitters found\n");
@@ -465,8 +475,8 @@ pub fn to_table_with_kinds(r: &CensusResult, label: &str, kinds: &[EmitterKind])
         "last (s)",
         "emissions",
         "airtime %",
-        "peak dBFS",
-        "power dBFS",
+        format!("peak {unit}"),
+        format!("power {unit}"),
         if kinds.is_empty() {
             String::new()
         } else {
@@ -484,8 +494,8 @@ pub fn to_table_with_kinds(r: &CensusResult, label: &str, kinds: &[EmitterKind])
             e.last_s,
             e.emissions,
             e.airtime_pct,
-            e.peak_dbfs,
-            e.power_dbfs,
+            at(e.peak_dbfs, e.center_hz),
+            at(e.power_dbfs, e.center_hz),
             kind_cells(i)
         );
     }

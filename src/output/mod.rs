@@ -10,6 +10,7 @@
 pub mod census;
 pub mod change;
 pub mod class_fields;
+pub mod levels;
 pub mod log;
 pub mod picture;
 pub mod progress;

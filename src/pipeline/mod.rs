@@ -45,7 +45,7 @@ pub use clock::Clock;
 pub use input::Input;
 pub use outbox::{Letter, Post};
 pub use run::{run_input, Outcome, Run, RunSpec};
-pub use session::{open_input, run_to_end};
+pub use session::{open_input, open_input_stoppable, run_to_end};
 pub use stop::{StopReason, StopSignals};
 
 use crate::dsp::{EngineConfig, Spectrum};

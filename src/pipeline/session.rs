@@ -25,6 +25,18 @@ pub fn open_input(request: &InputRequest) -> Result<Box<dyn SampleSource>> {
     Ok(src)
 }
 
+/// [`open_input`] with the stop signals already caught, so that a signal while the input is
+/// still opening (a VITA 49 stream's first context packet awaited) ends the command as an
+/// orderly stop instead of killing it.
+pub fn open_input_stoppable(
+    request: &InputRequest,
+    signals: &StopSignals,
+) -> Result<Box<dyn SampleSource>> {
+    let mut req = request.clone();
+    req.stop = Some(signals.flag());
+    open_input(&req)
+}
+
 /// Starts the reader on `src` and runs `run` over it to the end of the input, a signal or a
 /// consumer's stop. What the reader finds about the rate live input arrives at
 /// ([`ReaderStats::rate_note`](crate::source::reader::ReaderStats::rate_note)) is printed as

@@ -62,6 +62,8 @@ pub enum Escalation {
 /// Installed signal handlers and the flag they set; dropping it gives the signals back.
 pub struct StopSignals {
     caught: Arc<AtomicI32>,
+    /// Set with the first signal, for a source that waits before the run begins.
+    stopped: Arc<AtomicBool>,
     done: Arc<AtomicBool>,
     handle: Handle,
     thread: Option<JoinHandle<()>>,
@@ -80,13 +82,15 @@ impl StopSignals {
         let handle = signals.handle();
         let caught = Arc::new(AtomicI32::new(0));
         let done = Arc::new(AtomicBool::new(false));
-        let (caught2, done2) = (caught.clone(), done.clone());
+        let stopped = Arc::new(AtomicBool::new(false));
+        let (caught2, done2, stopped2) = (caught.clone(), done.clone(), stopped.clone());
         let thread = std::thread::Builder::new()
             .name("signals".into())
             .spawn(move || {
                 for sig in signals.forever() {
                     let first =
                         caught2.compare_exchange(0, sig, Ordering::SeqCst, Ordering::SeqCst);
+                    stopped2.store(true, Ordering::SeqCst);
                     match escalation {
                         Escalation::SecondSignalExits => {
                             if first.is_err() {
@@ -107,7 +111,12 @@ impl StopSignals {
                 }
             })
             .context("cannot start the signal thread")?;
-        Ok(StopSignals { caught, done, handle, thread: Some(thread) })
+        Ok(StopSignals { caught, stopped, done, handle, thread: Some(thread) })
+    }
+
+    /// A flag set by the first signal caught (a source waiting to start looks at it).
+    pub fn flag(&self) -> Arc<AtomicBool> {
+        self.stopped.clone()
     }
 
     /// The reason a caught signal gives, if one came.

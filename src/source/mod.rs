@@ -189,7 +189,23 @@ pub struct InputRequest {
     pub listen_public: bool,
     /// Of a VITA 49 input, the stream to read (`None`: the first seen).
     pub stream_id: Option<u32>,
+    /// Set by a stop signal: a source that waits while opening gives up
+    /// ([`StoppedWhileOpening`]).
+    pub stop: Option<std::sync::Arc<std::sync::atomic::AtomicBool>>,
 }
+
+/// A stop signal came while the input was still opening (waiting for a network stream to say
+/// what it is): nothing was read, and the command ends as an orderly stop.
+#[derive(Debug)]
+pub struct StoppedWhileOpening(pub String);
+
+impl std::fmt::Display for StoppedWhileOpening {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(&self.0)
+    }
+}
+
+impl std::error::Error for StoppedWhileOpening {}
 
 impl InputRequest {
     /// The files the run reads (none for the demo, stdin and network input): the path and, for

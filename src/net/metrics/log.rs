@@ -380,6 +380,10 @@ mod tests {
             dropped_samples: 60_000_000,
             partial: false,
             channel_floor_dbfs_per_hz: None,
+            mean_dbm: None,
+            peak_dbm: None,
+            noise_floor_dbm_per_hz: None,
+            channel_floor_dbm_per_hz: None,
         };
         gauges.record(&stamped(Record::Interval(lost)));
         let labels = [("site", ""), ("channel", "telem"), ("what", "busier")];

@@ -141,7 +141,7 @@ impl Consumer for ChangeWatch {
     fn event(&mut self, event: &Event, run: &RunInfo) -> io::Result<()> {
         let Event::Interval(i) = event else { return Ok(()) };
         let Some(channel) = self.plan.channels.get(i.channel) else { return Ok(()) };
-        let r = interval_record(i, channel, &run.clock);
+        let r = interval_record(i, channel, &run.clock, None);
         for change in self.alarms.interval(i.start_sample, &r, &run.clock) {
             self.board.apply(&change);
             self.write(&change);

@@ -18,7 +18,13 @@
 //! - `start` (first line): the settings. `version, source, sample_rate_hz, center_hz, fft_size,
 //!   window, overlap, rbw_hz, dwell_s` (one measurement sample), `frames_per_sample, interval_s,
 //!   hang_s, threshold_db` (default threshold), `obw_percent, floor_memory_s, floor_smoothing_s,
-//!   t_start_s, start, time_source` (`sigmf`, `option`, `wall_clock` or `none`).
+//!   t_start_s, start, time_source` (`sigmf`, `option`, `wall_clock` or `none`); with a
+//!   calibration (`--calibration`, `--ref-offset`) also `calibration` (where it came from) and
+//!   `level_offset_db` (its offset at `center_hz`).
+//! - Levels in dBm: with a calibration, every `_dbfs` level of `interval` and `emission` records
+//!   gets a twin beside it (`mean_dbm`, `peak_dbm`, `noise_floor_dbm_per_hz`,
+//!   `channel_floor_dbm_per_hz`) at the offset of the channel's centre. `_dbfs` keys always hold
+//!   dBFS, so a reader never mistakes one unit for the other.
 //! - `channel` (one per plan channel): `channel, center_hz, width_hz, threshold_db`.
 //! - `interval` (one per channel per interval): `channel, center_hz, width_hz, t_start_s, t_end_s,
 //!   start, end, occupancy_pct` (occupied samples / samples × 100, ITU-R SM.1880), `mean_dbfs`
@@ -207,6 +213,8 @@ mod tests {
                 t_start_s: 0.0,
                 start: None,
                 time_source: "none".into(),
+                calibration: Some("file wrenhollow-cal.toml".into()),
+                level_offset_db: Some(-21.5),
             }),
             Record::Channel(ChannelRecord {
                 channel: "north-gate".into(),
@@ -231,6 +239,10 @@ mod tests {
                 dropped_samples: 0,
                 partial: false,
                 channel_floor_dbfs_per_hz: Some(-112.1),
+                mean_dbm: Some(-57.9),
+                peak_dbm: Some(-52.4),
+                noise_floor_dbm_per_hz: Some(-133.8),
+                channel_floor_dbm_per_hz: Some(-133.6),
             }),
             Record::Emission(EmissionRecord {
                 channel: "north-gate".into(),
@@ -242,6 +254,8 @@ mod tests {
                 duration_s: 0.3,
                 peak_dbfs: -31.0,
                 mean_dbfs: -31.4,
+                peak_dbm: Some(-52.5),
+                mean_dbm: Some(-52.9),
                 obw_hz: None,
                 samples: 32,
                 partial: true,

@@ -1,10 +1,12 @@
 //! The occupancy log as a pipeline consumer: the run's settings, then every interval, emission
 //! and gap as it becomes final, then why the run stopped. The record schema is in [`crate::output::log`].
 
+use crate::measure::calibration::Calibration;
 use crate::measure::occupancy::{
     Event, IntervalSummary, FLOOR_MEMORY_S, FLOOR_SMOOTHING_S, OBW_PERCENT,
 };
 use crate::output::class_fields::ClassFields;
+use crate::output::levels::round_to;
 use crate::output::log::alarms::AlarmLog;
 use crate::output::log::rotation::Rotation;
 use crate::output::log::{
@@ -17,7 +19,6 @@ use crate::pipeline::{Consumer, GapCause, Letter, RunEnd, RunInfo};
 use crate::plan::Plan;
 use crate::source::reader::Block;
 use crate::units::db;
-use crate::units::round_dp as round_to;
 use std::io::{self, Write};
 use time::OffsetDateTime;
 
@@ -26,8 +27,18 @@ pub fn interval_record(
     i: &IntervalSummary,
     l: &crate::plan::Channel,
     c: &crate::pipeline::clock::Clock,
+    calibration: Option<&Calibration>,
 ) -> IntervalRecord {
     let measured = i.samples > 0;
+    let mean_dbfs = measured.then(|| round_to(db(i.mean_power), 2));
+    let peak_dbfs = measured.then(|| round_to(db(i.peak_power), 2));
+    let floor = measured.then(|| round_to(db(i.noise_density), 2));
+    let channel_floor = (i.quiet_samples > 0).then(|| round_to(db(i.quiet_power / l.width_hz), 2));
+    // dBm twins at the channel's centre, when calibrated.
+    let dbm = |v: Option<f64>| {
+        let cal = calibration?;
+        v.map(|v| round_to(v + cal.offset_db(l.center_hz), 2))
+    };
     IntervalRecord {
         channel: l.name.clone(),
         center_hz: l.center_hz,
@@ -38,16 +49,19 @@ pub fn interval_record(
         end: c.stamp_end(i.end_sample),
         // An interval whose input was all lost has no level and no occupancy.
         occupancy_pct: measured.then(|| round_to(i.occupancy_pct(), 3)),
-        mean_dbfs: measured.then(|| round_to(db(i.mean_power), 2)),
-        peak_dbfs: measured.then(|| round_to(db(i.peak_power), 2)),
-        noise_floor_dbfs_per_hz: measured.then(|| round_to(db(i.noise_density), 2)),
+        mean_dbfs,
+        peak_dbfs,
+        noise_floor_dbfs_per_hz: floor,
         samples: i.samples,
         // Shares to a thousandth of a sample: finer says nothing.
         occupied_samples: (i.occupied * 1000.0).round() / 1000.0,
         dropped_samples: i.dropped_samples,
         partial: i.partial,
-        channel_floor_dbfs_per_hz: (i.quiet_samples > 0)
-            .then(|| round_to(db(i.quiet_power / l.width_hz), 2)),
+        channel_floor_dbfs_per_hz: channel_floor,
+        mean_dbm: dbm(mean_dbfs),
+        peak_dbm: dbm(peak_dbfs),
+        noise_floor_dbm_per_hz: dbm(floor),
+        channel_floor_dbm_per_hz: dbm(channel_floor),
     }
 }
 
@@ -77,6 +91,8 @@ pub struct OccupancyLog<W: Write> {
     run_info: Option<RunInfo>,
     /// Change alarms (`--alarms`): fed every interval record.
     alarms: Option<AlarmLog>,
+    /// dBFS → dBm: with it every level gets a `_dbm` twin.
+    calibration: Option<Calibration>,
 }
 
 /// Gaps of one cause that begin within this many seconds of input of the first one are written
@@ -139,7 +155,21 @@ impl<W: Write> OccupancyLog<W> {
             pending_gaps: Vec::new(),
             run_info: None,
             alarms: None,
+            calibration: None,
         }
+    }
+
+    /// Adds levels in dBm beside the dBFS ones, and names the calibration in the start record.
+    pub fn with_calibration(mut self, calibration: Option<Calibration>) -> Self {
+        self.calibration = calibration;
+        self
+    }
+
+    /// `dbfs` (already rounded) in dBm at `freq_hz`, rounded alike; `None` without a
+    /// calibration.
+    fn dbm(&self, dbfs: Option<f64>, freq_hz: f64) -> Option<f64> {
+        let cal = self.calibration.as_ref()?;
+        dbfs.map(|v| round_to(v + cal.offset_db(freq_hz), 2))
     }
 
     /// Names the site in the start record.
@@ -232,6 +262,11 @@ impl<W: Write> OccupancyLog<W> {
             t_start_s: 0.0,
             start: run.clock.start.and_then(rfc3339_ms),
             time_source: run.time_source.as_str().to_string(),
+            calibration: self.calibration.as_ref().map(|c| c.origin.clone()),
+            level_offset_db: self
+                .calibration
+                .as_ref()
+                .map(|c| round_to(c.offset_db(run.source.center_hz), 3)),
         }
     }
 
@@ -241,10 +276,13 @@ impl<W: Write> OccupancyLog<W> {
         let c = &run.clock;
         match event {
             Event::Interval(i) => {
-                Some(Record::Interval(interval_record(i, &self.plan.channels[i.channel], c)))
+                let l = &self.plan.channels[i.channel];
+                Some(Record::Interval(interval_record(i, l, c, self.calibration.as_ref())))
             }
             Event::Emission(e) => {
                 let l = &self.plan.channels[e.channel];
+                let peak_dbfs = round_to(db(e.peak_power), 2);
+                let mean_dbfs = round_to(db(e.mean_power), 2);
                 Some(Record::Emission(EmissionRecord {
                     channel: l.name.clone(),
                     center_hz: l.center_hz,
@@ -253,8 +291,10 @@ impl<W: Write> OccupancyLog<W> {
                     start: c.stamp(e.start_sample),
                     end: c.stamp_end(e.end_sample),
                     duration_s: (e.end_sample - e.start_sample) as f64 / c.rate,
-                    peak_dbfs: round_to(db(e.peak_power), 2),
-                    mean_dbfs: round_to(db(e.mean_power), 2),
+                    peak_dbfs,
+                    mean_dbfs,
+                    peak_dbm: self.dbm(Some(peak_dbfs), l.center_hz),
+                    mean_dbm: self.dbm(Some(mean_dbfs), l.center_hz),
                     obw_hz: e.obw_hz.map(|w| round_to(w, 1)),
                     samples: e.samples,
                     partial: e.partial,

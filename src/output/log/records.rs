@@ -61,6 +61,13 @@ pub struct StartRecord {
     pub start: Option<String>,
     /// Where `start` comes from: `sigmf`, `option`, `wall_clock` or `none`.
     pub time_source: String,
+    /// With a calibration: where it came from (`file cal.toml`, `--ref-offset -21.5`); then
+    /// every level has a `_dbm` twin beside its `_dbfs` key.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub calibration: Option<String>,
+    /// With a calibration: its offset at `center_hz`, dB (dBm = dBFS + this).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub level_offset_db: Option<f64>,
 }
 
 /// One per channel of the plan, after the start record.
@@ -92,6 +99,15 @@ pub struct IntervalRecord {
     /// The channel's own floor: its mean power density over the samples no emission touched;
     /// `null` when every sample was occupied or none measured.
     pub channel_floor_dbfs_per_hz: Option<f64>,
+    /// With a calibration: the levels above in dBm (dBm/Hz), beside them, never instead.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub mean_dbm: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub peak_dbm: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub noise_floor_dbm_per_hz: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub channel_floor_dbm_per_hz: Option<f64>,
 }
 
 #[derive(Serialize, Debug, Clone, PartialEq)]
@@ -105,6 +121,11 @@ pub struct EmissionRecord {
     pub duration_s: f64,
     pub peak_dbfs: f64,
     pub mean_dbfs: f64,
+    /// With a calibration: the levels above in dBm, beside them.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub peak_dbm: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub mean_dbm: Option<f64>,
     pub obw_hz: Option<f64>,
     pub samples: u64,
     pub partial: bool,
@@ -260,4 +281,10 @@ pub const CSV_COLUMNS: &[&str] = &[
     "class_confidence",
     "class_params",
     "designator",
+    "calibration",
+    "level_offset_db",
+    "mean_dbm",
+    "peak_dbm",
+    "noise_floor_dbm_per_hz",
+    "channel_floor_dbm_per_hz",
 ];

@@ -15,16 +15,20 @@
 //! see [`crate::output::report::on_air`]).
 //! `channels[]` (only with `--channel`/`--plan`): `name, center_hz, width_hz, power_dbfs, obw_hz,
 //! occupancy_pct, samples, dwell_s`.
+//! With a calibration every `_dbfs` key gets a `_dbm` twin, and `calibration` and
+//! `level_offset_db` are added ([`crate::output::levels`]); the table prints dBm.
 
 pub mod on_air;
 pub mod whole;
 
 use crate::dsp::{Spectrum, Window};
+use crate::measure::calibration::Calibration;
 use crate::measure::stats::gamma_quantile_unit_mean;
 use crate::measure::{
     band_power, find_signals, noise_floor, occupied_bandwidth, xdb_bandwidth, Detection,
 };
 use crate::output::class_fields::ClassFields;
+use crate::output::levels::level_unit;
 use crate::output::report::on_air::OnAirFigures;
 use crate::plan::Plan;
 use crate::source::InputIssues;
@@ -273,8 +277,11 @@ impl Report {
         serde_json::to_string_pretty(self).expect("report is plain data")
     }
 
-    /// The table printed without `--json`.
-    pub fn to_table(&self, obw_percent: f64, xdb: f64) -> String {
+    /// The table printed without `--json`; with a calibration, levels in dBm, each at its own
+    /// frequency.
+    pub fn to_table(&self, obw_percent: f64, xdb: f64, cal: Option<&Calibration>) -> String {
+        let unit = level_unit(cal);
+        let at = |dbfs: f64, freq_hz: f64| dbfs + cal.map_or(0.0, |c| c.offset_db(freq_hz));
         let mut s = String::new();
         let _ = writeln!(s, "source     {}", self.source);
         let _ = writeln!(
@@ -295,8 +302,12 @@ impl Report {
             self.dof,
             self.psd_uncertainty_db
         );
-        let _ = writeln!(s, "total      {:.2} dBFS", self.total_power_dbfs);
-        let _ = writeln!(s, "noise      {:.2} dBFS/Hz", self.noise_floor_dbfs_per_hz);
+        let centre = self.center_hz;
+        let _ = writeln!(s, "total      {:.2} {unit}", at(self.total_power_dbfs, centre));
+        let _ = writeln!(s, "noise      {:.2} {unit}/Hz", at(self.noise_floor_dbfs_per_hz, centre));
+        if let Some(c) = cal {
+            let _ = writeln!(s, "levels     dBm at the antenna port, calibrated by {}", c.origin);
+        }
         let _ = writeln!(s);
         if self.peaks.is_empty() {
             let _ = writeln!(s, "no signal stands clear of the noise floor");
@@ -306,8 +317,8 @@ impl Report {
                 "{:>3}  {:>18}  {:>11}  {:>13}  {:>8}  {:>12}",
                 "#",
                 "frequency",
-                "power dBFS",
-                "peak/RBW dBFS",
+                format!("power {unit}"),
+                format!("peak/RBW {unit}"),
                 "SNR dB",
                 format!("OBW {obw_percent}%")
             );
@@ -317,8 +328,8 @@ impl Report {
                     "{:>3}  {:>18}  {:>11.2}  {:>13.2}  {:>8.1}  {:>12}",
                     i + 1,
                     format_hz(p.freq_hz),
-                    p.power_dbfs,
-                    p.level_dbfs,
+                    at(p.power_dbfs, p.freq_hz),
+                    at(p.level_dbfs, p.freq_hz),
                     p.snr_db,
                     format_hz_short(p.obw_hz, 2)
                 );
@@ -339,7 +350,7 @@ impl Report {
                 "{:>18}  {:>10}  {:>11}  {:>12}  {:>12}  {:>7}  {:>12}  {:>12}",
                 "band centre",
                 "width",
-                "power dBFS",
+                format!("power {unit}"),
                 format!("OBW {obw_percent}%"),
                 format!("{xdb} dB BW"),
                 "on air",
@@ -353,7 +364,7 @@ impl Report {
                     "{:>18}  {:>10}  {:>11.2}  {:>12}  {:>12}  {:>5.1} %  {:>12}  {:>12}",
                     format_hz(b.center_hz),
                     format_hz_short(b.width_hz, 2),
-                    b.power_dbfs,
+                    at(b.power_dbfs, b.center_hz),
                     format_hz_short(b.obw_hz, 2),
                     format_hz_short(b.xdb_bandwidth_hz, 2),
                     b.on_air_pct,
@@ -374,7 +385,7 @@ impl Report {
                 "channel",
                 "centre",
                 "width",
-                "power dBFS",
+                format!("power {unit}"),
                 format!("OBW {obw_percent}%"),
                 "occupancy"
             );
@@ -385,7 +396,7 @@ impl Report {
                     c.name,
                     format_hz(c.center_hz),
                     format_hz_short(c.width_hz, 2),
-                    c.power_dbfs,
+                    at(c.power_dbfs, c.center_hz),
                     format_hz_short(c.obw_hz, 2),
                     c.occupancy_pct
                 );

@@ -15,9 +15,17 @@
 //! given no context is needed. The payload format maps onto a SigMF datatype: complex
 //! Cartesian, signed fixed point of 8/16/32 bits or IEEE single/double, items packed in their
 //! own width, big-endian (VITA 49's byte order); other formats are refused with the reason.
-//! Reference level and gain are kept for the start note. A context packet that changes the
-//! rate or the centre mid-stream is noted; the stream is not re-tuned (panoramas are not built
-//! yet).
+//! Reference level and gain are kept for the start note.
+//!
+//! **Context changes.** A context packet that changes the sample rate, the RF reference
+//! frequency (or offset) or the payload format after samples have begun means the samples that
+//! follow are of another band or must be decoded otherwise; one run measures one tuning, so the
+//! source delivers every sample it holds from before the change, then ends the input with an
+//! error naming the change and the sample where it happened (the run stops as `input_error`,
+//! every log record is flushed, the exit status is 1). Data packets that arrive after the change
+//! are not taken as samples. A context packet that repeats the same values (senders repeat
+//! them) changes nothing; nor does one that changes only the reference level or gain (noted).
+//! The values compared are the context's own, so flags that override them do not hide a change.
 //!
 //! **Time and loss.** Each data packet's place on the time line comes from its time stamps:
 //! TSF sample count (with a UTC/GPS/other integer second: seconds × rate + count), real time
@@ -110,6 +118,29 @@ pub fn datatype_of(f: &PayloadFormat) -> Result<SampleFormat, String> {
     }
 }
 
+/// How `new` differs from `old` in what the samples mean (rate, centre, format), in words;
+/// `None` when it does not. Frequencies within 0.5 Hz are the same (the 64-bit radix-20 fields
+/// resolve about 1 µHz, so this is no rounding, only a guard against arithmetic noise).
+fn change_between(old: &packet::Context, new: &packet::Context) -> Option<String> {
+    let moved = |a: Option<f64>, b: Option<f64>| match (a, b) {
+        (Some(a), Some(b)) if (a - b).abs() > 0.5 => Some((a, b)),
+        _ => None,
+    };
+    if let Some((a, b)) = moved(old.sample_rate_hz, new.sample_rate_hz) {
+        return Some(format!("its sample rate from {a} to {b} S/s"));
+    }
+    let centre = |c: &packet::Context| c.rf_reference_hz.map(|f| f + c.rf_offset_hz.unwrap_or(0.0));
+    let new_centre =
+        new.rf_reference_hz.map(|f| f + new.rf_offset_hz.or(old.rf_offset_hz).unwrap_or(0.0));
+    if let Some((a, b)) = moved(centre(old), new_centre) {
+        return Some(format!("its centre from {a} to {b} Hz"));
+    }
+    match (&old.payload_format, &new.payload_format) {
+        (Some(a), Some(b)) if a != b => Some("its payload format".to_string()),
+        _ => None,
+    }
+}
+
 /// A data packet waiting for its turn.
 struct Held {
     samples: Vec<Complex32>,
@@ -136,6 +167,11 @@ pub struct Vita49Source {
     issues: InputIssues,
     stop: Option<Arc<AtomicBool>>,
     tuning: Tuning,
+    /// The stream's own context as first seen: what a later context is compared with.
+    seen: Option<packet::Context>,
+    /// A change of tuning mid-stream (module doc): why the input ends once what came before it
+    /// is delivered.
+    changed: Option<String>,
     /// Counts for the notes.
     pub counts: Counts,
 }
@@ -173,13 +209,15 @@ pub fn open(addr: SocketAddr, req: &InputRequest, notes: &mut Vec<String>) -> Re
         offset: 0,
         lost: 0,
         issues: InputIssues::default(),
-        stop: None,
+        stop: req.stop.clone(),
         tuning: Tuning {
             rate: req.sample_rate_hz,
             center: req.center_hz,
             format: req.format,
             ..Tuning::default()
         },
+        seen: None,
+        changed: None,
         counts: Counts::default(),
     };
     src.await_context(notes)?;
@@ -196,6 +234,13 @@ impl Vita49Source {
             || self.tuning.center.is_none()
             || self.tuning.format.is_none()
         {
+            if self.stop.as_ref().is_some_and(|s| s.load(Ordering::Relaxed)) {
+                return Err(super::StoppedWhileOpening(format!(
+                    "stopped by a signal while waiting for the first context packet of {}; nothing was read",
+                    self.info.label
+                ))
+                .into());
+            }
             if started.elapsed() > CONTEXT_WAIT {
                 let missing: Vec<&str> = [
                     (self.tuning.rate.is_none(), "--rate"),
@@ -322,17 +367,30 @@ impl Vita49Source {
         }
         t.reference_level_dbm = c.reference_level_dbm.or(t.reference_level_dbm);
         t.gain_db = c.gain_db.or(t.gain_db);
+        self.remember(c);
         let _ = notes;
         Ok(())
     }
 
-    /// Notes a context change after the start (module doc: not re-tuned).
+    /// Keeps the fields of a context packet as the stream's own (each field as last given).
+    fn remember(&mut self, c: &packet::Context) {
+        let seen = self.seen.get_or_insert_with(|| c.clone());
+        seen.sample_rate_hz = c.sample_rate_hz.or(seen.sample_rate_hz);
+        seen.rf_reference_hz = c.rf_reference_hz.or(seen.rf_reference_hz);
+        seen.rf_offset_hz = c.rf_offset_hz.or(seen.rf_offset_hz);
+        seen.payload_format = c.payload_format.or(seen.payload_format);
+    }
+
+    /// A context after the start: a change of rate, centre or format ends the input once what
+    /// came before it is delivered (module doc).
     fn later_context(&mut self, c: &packet::Context) {
-        let moved = c.rf_reference_hz.is_some_and(|f| (f - self.info.center_hz).abs() > 0.5)
-            || c.sample_rate_hz.is_some_and(|r| (r - self.info.sample_rate_hz).abs() > 0.5);
-        if moved {
-            self.counts.retunes += 1;
+        if self.changed.is_none() {
+            if let Some(what) = self.seen.as_ref().and_then(|seen| change_between(seen, c)) {
+                self.counts.retunes += 1;
+                self.changed = Some(what);
+            }
         }
+        self.remember(c);
     }
 
     /// Where a data packet's first sample lies on the time line (module doc), or `None` for a
@@ -456,10 +514,18 @@ impl SampleSource for Vita49Source {
             if self.release(false) {
                 continue;
             }
-            if self.stopped() {
+            if self.stopped() || self.changed.is_some() {
                 // Deliver what is held, then end.
                 if self.release(true) {
                     continue;
+                }
+                if let Some(what) = &self.changed {
+                    bail!(
+                        "{}: the stream's context changed {what} at sample {} ({:.3} s in); one run measures one tuning, so the input ends here (every sample before the change was measured); start again for the new tuning",
+                        self.info.label,
+                        self.next,
+                        self.next as f64 / self.info.sample_rate_hz
+                    );
                 }
                 return Ok(0);
             }
@@ -468,7 +534,8 @@ impl SampleSource for Vita49Source {
             match packet::parse(&bytes) {
                 Err(e) => self.malformed(&e.0, &mut notes),
                 Ok(Packet::Data { header, payload }) => {
-                    if self.take_stream(&header, &mut notes) {
+                    // After a change of tuning, samples are of another band: not taken.
+                    if self.take_stream(&header, &mut notes) && self.changed.is_none() {
                         self.place(&header, payload);
                     }
                 }
