@@ -94,6 +94,7 @@ pub fn run(cfg: SnapshotConfig) -> Result<ExitCode> {
             .map(|c| ChannelBand { name: c.name.clone(), low_hz: c.low_hz(), high_hz: c.high_hz() })
             .collect(),
         marks: got.marks.clone(),
+        newest_at_top: false,
     };
     let bytes =
         draw_waterfall(&WaterfallView::of(&got.held), &got.timeline, &settings, cfg.format)?;

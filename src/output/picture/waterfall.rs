@@ -161,6 +161,9 @@ pub struct PictureSettings {
     pub footer: Vec<String>,
     pub channels: Vec<ChannelBand>,
     pub marks: Vec<Mark>,
+    /// Time runs upward, newest row at the top, as on the live monitor's screen (its `g`
+    /// picture); otherwise down the page, oldest at the top, as a report reads (`snapshot`).
+    pub newest_at_top: bool,
 }
 
 /// Pixels of the fixed parts of the layout.
@@ -368,8 +371,12 @@ fn draw_image<DB: DrawingBackend>(
     let duration = timeline.duration_s().max(1e-9);
     let fticks = freq_ticks(view.low_hz, view.high_hz, unit, 10);
     let tticks = time_ticks(timeline.start, duration, 10);
-    // Time runs downward: the chart's y is minus the seconds from the start.
-    let yk: Vec<f64> = tticks.iter().map(|t| -t.0).collect();
+    // Time runs downward: the chart's y is minus the seconds from the start; upward (newest
+    // at the top): the seconds themselves.
+    let up = settings.newest_at_top;
+    let sign = if up { 1.0 } else { -1.0 };
+    let yk: Vec<f64> = tticks.iter().map(|t| sign * t.0).collect();
+    let (y_low, y_high) = if up { (0.0, duration) } else { (-duration, 0.0) };
     let mut chart = ChartBuilder::on(area)
         .margin_top(6)
         .margin_left(AXIS_TITLE_MARGIN)
@@ -382,11 +389,11 @@ fn draw_image<DB: DrawingBackend>(
                 high: view.high_hz,
                 ticks: fticks.iter().map(|t| t.0).collect(),
             },
-            TickedAxis { low: -duration, high: 0.0, ticks: yk },
+            TickedAxis { low: y_low, high: y_high, ticks: yk },
         )
         .map_err(drawing)?;
     let freq_label = |v: &f64| nearest_label(&fticks, *v);
-    let time_label = |v: &f64| nearest_label(&tticks, -*v);
+    let time_label = |v: &f64| nearest_label(&tticks, sign * *v);
     let time_desc = match timeline.start {
         Some(t) => format!("time (UTC, {})", t.date()),
         None => "time (s from the first sample)".to_string(),
@@ -404,16 +411,21 @@ fn draw_image<DB: DrawingBackend>(
         .map_err(drawing)?;
     let (xr, yr) = chart.plotting_area().get_pixel_range();
     let (w, h) = ((xr.end - xr.start).max(1) as u32, (yr.end - yr.start).max(1) as u32);
-    let rgb = waterfall_pixels(view, timeline, settings, scale, w, h);
+    let mut rgb = waterfall_pixels(view, timeline, settings, scale, w, h);
+    if up {
+        flip_rows(&mut rgb, w as usize * 3);
+    }
     let element = BitMapElement::with_owned_buffer((xr.start, yr.start), (w, h), rgb)
         .ok_or_else(|| drawing("the waterfall image has the wrong size"))?;
     root.draw(&element).map_err(drawing)?;
-    let t = |sample: u64| -(sample.saturating_sub(timeline.first_sample) as f64 / timeline.rate_hz);
+    let t = |sample: u64| {
+        sign * (sample.saturating_sub(timeline.first_sample) as f64 / timeline.rate_hz)
+    };
     let edge = WHITE.mix(0.45);
     for ch in &settings.channels {
         for f in [ch.low_hz, ch.high_hz] {
             chart
-                .draw_series([PathElement::new([(f, 0.0), (f, -duration)], edge.stroke_width(1))])
+                .draw_series([PathElement::new([(f, y_low), (f, y_high)], edge.stroke_width(1))])
                 .map_err(drawing)?;
         }
     }
@@ -456,6 +468,15 @@ fn draw_image<DB: DrawingBackend>(
         root.draw(&Text::new(label, (at.0 + 2, at.1 + 1), style)).map_err(drawing)?;
     }
     Ok(())
+}
+
+/// Turns an image of rows `stride` bytes long upside down.
+fn flip_rows(rgb: &mut [u8], stride: usize) {
+    let rows = rgb.len() / stride.max(1);
+    for r in 0..rows / 2 {
+        let (top, bottom) = rgb.split_at_mut((rows - 1 - r) * stride);
+        top[r * stride..(r + 1) * stride].swap_with_slice(&mut bottom[..stride]);
+    }
 }
 
 fn nearest_label(ticks: &[(f64, String)], v: f64) -> String {

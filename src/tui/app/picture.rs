@@ -7,7 +7,7 @@
 //! levels the screen keeps (a hundredth of a dB; above 8192 bins the largest of neighbouring
 //! bins, as the screen shows them). The colour scale is the screen's (reference level and range)
 //! and the frequencies are the screen's (the zoomed view, in whole bins), so the picture looks
-//! like what the operator saw.
+//! like what the operator saw. Time runs as on the screen: the newest row at the top.
 
 use super::super::history::Row;
 use super::super::view::BinGrid;
@@ -89,6 +89,7 @@ impl App {
                 .filter(|c| c.high_hz > low_hz && c.low_hz < high_hz)
                 .collect(),
             marks: Vec::new(),
+            newest_at_top: true,
         };
         let bytes = draw_waterfall(&view, &timeline, &settings, PictureFormat::Png)?;
         let path = format!("{dir}/{}.png", super::evidence::file_stem(now));
