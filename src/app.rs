@@ -66,6 +66,7 @@ pub fn run(cli: Cli) -> anyhow::Result<ExitCode> {
         Some(Command::Snapshot(args)) => cmd::snapshot::run(args.validate()?),
         Some(Command::Report(args)) => cmd::report::run(args.validate()?),
         Some(Command::Collect(args)) => cmd::collect::run(args.validate()?),
+        Some(Command::Import(args)) => cmd::import::run(args.validate()?),
         Some(Command::Completions(args)) => {
             package::write_completions(args.shell, &mut std::io::stdout().lock())?;
             Ok(ExitCode::SUCCESS)

@@ -138,22 +138,26 @@ pub struct CollectArgs {
     #[arg(value_name = "URL")]
     pub url: String,
     /// Directory of the per-site logs (SITE.jsonl), created if missing; existing files are
-    /// continued, and their records are not written again.
+    /// continued, and their records are not written again. --out, --db or both.
     #[arg(long, value_name = "DIR")]
-    pub out: PathBuf,
+    pub out: Option<PathBuf>,
     /// Client id at the broker; the broker keeps this collector's queue under it while it is
     /// away (a persistent session), so keep it the same from run to run.
     #[arg(long, value_name = "ID")]
     pub client_id: Option<String>,
     #[command(flatten)]
     pub broker: BrokerArgs,
+    /// Also (or instead of --out) store every record once in this database.
+    #[command(flatten)]
+    pub db: crate::cli::db::DbArgs,
 }
 
 /// A validated `collect`.
 #[derive(Clone, Debug)]
 pub struct CollectConfig {
     pub broker: Broker,
-    pub out: PathBuf,
+    pub out: Option<PathBuf>,
+    pub db: Option<crate::store::DbUrl>,
     pub client_id: String,
 }
 
@@ -169,6 +173,10 @@ impl CollectArgs {
         if client_id.is_empty() || client_id.len() > 23 * 8 {
             bail!("--client-id must be 1 to 184 characters");
         }
-        Ok(CollectConfig { broker, out: self.out, client_id })
+        let db = self.db.validate()?;
+        if self.out.is_none() && db.is_none() {
+            bail!("collect needs somewhere to put the records: --out DIR, --db URL, or both");
+        }
+        Ok(CollectConfig { broker, out: self.out, db, client_id })
     }
 }

@@ -4,6 +4,7 @@
 pub mod census;
 pub mod collect;
 pub mod demo;
+pub mod import;
 pub mod log;
 pub mod measure;
 pub mod report;

@@ -10,7 +10,12 @@
 //! acknowledges what it gets: see [`crate::net::subscribe`].) A hole is a record that never came (the site's spool was full, or a
 //! broker lost it in a crash); it is reported, and filled if the record comes late.
 //! The files are read back at start, so a collector that restarts writes nothing twice.
+//!
+//! With `--db` the records also go into the database ([`crate::store::write`]), which keeps
+//! each (site, run, seq) once by itself; its transactions are committed in batches, and
+//! [`Collector::uncommitted`] tells the link to the broker what it may not yet acknowledge.
 
+use crate::store::write::{Stored, Writer};
 use anyhow::{bail, Context, Result};
 use serde_json::Value;
 use std::collections::HashMap;
@@ -69,9 +74,11 @@ struct SiteFile {
     runs: HashMap<String, RunSeen>,
 }
 
-/// Per-site files and what each has seen.
+/// Per-site files and what each has seen, and the database.
 pub struct Collector {
-    dir: PathBuf,
+    /// `--out`: `None` with only a database.
+    dir: Option<PathBuf>,
+    db: Option<Writer>,
     sites: HashMap<String, SiteFile>,
     pub written: u64,
     pub duplicates: u64,
@@ -87,13 +94,21 @@ fn record_id(line: &str) -> Option<(String, u64)> {
 
 impl Collector {
     pub fn new(dir: &Path) -> Result<Collector> {
-        std::fs::create_dir_all(dir)
-            .with_context(|| format!("cannot create the directory '{}'", dir.display()))?;
-        if !dir.is_dir() {
-            bail!("'{}' is not a directory", dir.display());
+        Collector::open(Some(dir), None)
+    }
+
+    /// Files in `dir`, records in `db`, or both.
+    pub fn open(dir: Option<&Path>, db: Option<Writer>) -> Result<Collector> {
+        if let Some(dir) = dir {
+            std::fs::create_dir_all(dir)
+                .with_context(|| format!("cannot create the directory '{}'", dir.display()))?;
+            if !dir.is_dir() {
+                bail!("'{}' is not a directory", dir.display());
+            }
         }
         Ok(Collector {
-            dir: dir.to_path_buf(),
+            dir: dir.map(Path::to_path_buf),
+            db,
             sites: HashMap::new(),
             written: 0,
             duplicates: 0,
@@ -104,7 +119,8 @@ impl Collector {
     /// Opens a site's file for appending, learning the ids it already holds.
     fn site(&mut self, site: &str) -> Result<&mut SiteFile> {
         if !self.sites.contains_key(site) {
-            let path = self.dir.join(format!("{site}.jsonl"));
+            let dir = self.dir.as_ref().expect("files only with --out");
+            let path = dir.join(format!("{site}.jsonl"));
             let mut runs: HashMap<String, RunSeen> = HashMap::new();
             if let Ok(f) = File::open(&path) {
                 for line in BufReader::new(f).lines() {
@@ -137,10 +153,16 @@ impl Collector {
             self.malformed += 1;
             return Ok(Taken::Malformed);
         };
+        let stored = match &mut self.db {
+            Some(db) => db.take(site, line)? == Stored::New,
+            None => false,
+        };
+        if self.dir.is_none() {
+            return Ok(self.count(stored));
+        }
         let s = self.site(site)?;
         if !s.runs.entry(run).or_default().take(seq) {
-            self.duplicates += 1;
-            return Ok(Taken::Duplicate);
+            return Ok(self.count(stored));
         }
         let mut buf = Vec::with_capacity(line.len() + 1);
         buf.extend_from_slice(line.as_bytes());
@@ -149,6 +171,31 @@ impl Collector {
         s.file.flush()?;
         self.written += 1;
         Ok(Taken::Written)
+    }
+
+    fn count(&mut self, new: bool) -> Taken {
+        if new {
+            self.written += 1;
+            Taken::Written
+        } else {
+            self.duplicates += 1;
+            Taken::Duplicate
+        }
+    }
+
+    /// Records taken into the database but not yet committed (none without a database).
+    pub fn uncommitted(&self) -> usize {
+        self.db.as_ref().map_or(0, Writer::uncommitted)
+    }
+
+    /// Commits the database's batch if it is due; `now`: whatever its age (the link is idle,
+    /// or the collector stops).
+    pub fn commit(&mut self, now: bool) -> Result<()> {
+        match &mut self.db {
+            Some(db) if now => db.commit(),
+            Some(db) => db.tick(),
+            None => Ok(()),
+        }
     }
 
     /// Records that never came, per site and run: `(site, run, from, to)`.
