@@ -7,11 +7,14 @@
 
 #[path = "support/network_logs.rs"]
 mod network_logs;
+#[path = "support/reports.rs"]
+mod reports;
 
 use bandwarden::net::collect::{Collector, Taken};
 use bandwarden::store::write::{Batch, Writer};
 use bandwarden::store::{open, DbUrl};
 use network_logs::{write_run, RunSpec};
+use reports::spec;
 use serde_json::Value;
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
@@ -31,18 +34,6 @@ fn run(args: &[&str]) -> Output {
     let out = Command::new(bin()).args(args).output().unwrap();
     assert!(out.status.success(), "{args:?}: {}", String::from_utf8_lossy(&out.stderr));
     out
-}
-
-fn spec(site: &str, run: &str, minutes: u64, start_epoch: i64, seed: u64) -> RunSpec {
-    RunSpec {
-        site: site.into(),
-        run: run.into(),
-        channels: 3,
-        start_epoch,
-        minutes,
-        seed,
-        no_clock: false,
-    }
 }
 
 fn lines(spec: &RunSpec) -> Vec<String> {
@@ -153,107 +144,12 @@ fn a_start_record_that_comes_last_still_places_its_intervals() {
     assert!(a.iter().any(|r| (r.3 - 0.25).abs() < 1e-9), "{:?}", &a[..3]);
 }
 
-/// `report` over `logs` and `report --db` with the same options.
-fn both(db: &str, logs: &[PathBuf], options: &[&str]) -> (String, String) {
-    let mut files: Vec<&str> = vec!["report"];
-    files.extend_from_slice(options);
-    let paths: Vec<String> = logs.iter().map(|p| p.display().to_string()).collect();
-    files.extend(paths.iter().map(String::as_str));
-    let mut stored: Vec<&str> = vec!["report", "--db", db];
-    stored.extend_from_slice(options);
-    let a = String::from_utf8(run(&files).stdout).unwrap();
-    let b = String::from_utf8(run(&stored).stdout).unwrap();
-    (a, b)
-}
-
 #[test]
 fn report_from_the_database_equals_report_from_the_logs() {
     let dir = scratch("report");
-    let root = Path::new(env!("CARGO_MANIFEST_DIR"));
-    let demo = root.join("recordings/wrenhollow-demo.sigmf-meta");
-    let plan = root.join("recordings/wrenhollow-plan.toml");
-    let mut logs = Vec::new();
-    // Real logs of the demo scene at two sites, one across an hour's end.
-    for (site, start) in [("north", "2026-12-03T22:59:59.5Z"), ("hut", "2026-12-04T06:10:00Z")] {
-        let log = dir.join(format!("{site}.jsonl"));
-        run(&[
-            "log",
-            demo.to_str().unwrap(),
-            "--plan",
-            plan.to_str().unwrap(),
-            "--interval",
-            "100ms",
-            "--threads",
-            "1",
-            "--site",
-            site,
-            "--start",
-            start,
-            "-o",
-            log.to_str().unwrap(),
-        ]);
-        logs.push(log);
-    }
-    // Made-up days of a mast and a shed (the shed's log has no clock), and a copy of part of
-    // the mast's log, as a daily file would repeat it.
-    let mast = dir.join("mast.jsonl");
-    let mut text = Vec::new();
-    write_run(&mut text, &spec("mast", "20261130T210000Z-31", 3 * 1440, 1_796_072_400, 5)).unwrap();
-    write_run(&mut text, &spec("mast", "20261203T220000Z-32", 600, 1_796_335_200, 6)).unwrap();
-    std::fs::write(&mast, &text).unwrap();
-    logs.push(mast);
-    let copy = dir.join("mast.2026-12-01.jsonl");
-    let part: Vec<&[u8]> = text.split(|b| *b == b'\n').skip(2000).take(3000).collect();
-    std::fs::write(&copy, part.join(&b'\n')).unwrap();
-    logs.push(copy);
-    let shed = dir.join("shed.jsonl");
-    let mut file = std::fs::File::create(&shed).unwrap();
-    write_run(
-        &mut file,
-        &RunSpec { no_clock: true, ..spec("shed", "20261201T000000Z-41", 300, 0, 9) },
-    )
-    .unwrap();
-    logs.push(shed);
+    let logs = reports::network_logs(&dir);
     let db = format!("sqlite:{}", dir.join("net.db").display());
-    let paths: Vec<String> = logs.iter().map(|p| p.display().to_string()).collect();
-    let mut args = vec!["import", "--db", &db];
-    args.extend(paths.iter().map(String::as_str));
-    let out = run(&args);
-    assert!(String::from_utf8_lossy(&out.stderr).contains("records/s"));
-    // Imported twice: nothing is stored twice.
-    let again = run(&args);
-    assert!(
-        String::from_utf8_lossy(&again.stderr).contains("stored 0 records"),
-        "{}",
-        String::from_utf8_lossy(&again.stderr)
-    );
-
-    let cases: [&[&str]; 5] = [
-        &[],
-        &["--from", "2026-12-01T05:30", "--to", "2026-12-03T23:00:00.2Z"],
-        &["--site", "mast", "--site", "north"],
-        &["--site", "all=mast,north,hut", "--tz", "+05:30"],
-        &["--tz=-03:00", "--from", "2026-12-02"],
-    ];
-    for options in cases {
-        let (a, b) = both(&db, &logs, &[&["--csv"], options].concat());
-        assert_eq!(a, b, "--csv {options:?}");
-        let (a, b) = both(&db, &logs, &[&["--json"], options].concat());
-        let (a, b): (Value, Value) =
-            (serde_json::from_str(&a).unwrap(), serde_json::from_str(&b).unwrap());
-        let channels = a["channels"].as_array().unwrap();
-        assert!(channels.len() >= 3, "{options:?}: {channels:?}");
-        for (x, y) in channels.iter().zip(b["channels"].as_array().unwrap()) {
-            assert_eq!(x, y, "{options:?}: channel {} {}", x["site"], x["name"]);
-        }
-        assert_eq!(
-            a["channels"].as_array().unwrap().len(),
-            b["channels"].as_array().unwrap().len()
-        );
-        for key in ["period", "zone", "hours_are", "sites", "coverage", "alarms"] {
-            assert_eq!(a[key], b[key], "{options:?}: {key}");
-        }
-    }
+    reports::import_and_compare(&db, &logs, &[]);
     // The table and the heat map are drawn from the same summary.
     let png = dir.join("map.png");
     let out = run(&["report", "--db", &db, "--png", png.to_str().unwrap()]);
