@@ -1,11 +1,12 @@
 //! Writes the occupancy logs of a made-up network of Wrenhollow Ridge sites, one JSON Lines
 //! file per site, for scripts/bench-report:
-//! `cargo run --release --example network_logs -- DIR SITES CHANNELS MINUTES`.
+//! `cargo run --release --example network_logs -- DIR SITES CHANNELS MINUTES`; DIR `-` writes
+//! every site's log, one after another, on standard output (to pipe into `import --db URL -`).
 
 #[path = "../tests/support/network_logs.rs"]
 mod network_logs;
 
-use std::io::BufWriter;
+use std::io::{BufWriter, Write};
 
 fn main() {
     let args: Vec<String> = std::env::args().skip(1).collect();
@@ -15,12 +16,19 @@ fn main() {
     };
     let (sites, channels, minutes): (usize, usize, u64) =
         (sites.parse().unwrap(), channels.parse().unwrap(), minutes.parse().unwrap());
-    std::fs::create_dir_all(dir).unwrap();
+    let stdout = dir == "-";
+    if !stdout {
+        std::fs::create_dir_all(dir).unwrap();
+    }
     let mut total = 0;
     for s in 0..sites {
         let site = format!("ridge-{s:02}");
-        let path = std::path::Path::new(dir).join(format!("{site}.jsonl"));
-        let mut out = BufWriter::new(std::fs::File::create(&path).unwrap());
+        let mut out: BufWriter<Box<dyn Write>> = BufWriter::new(if stdout {
+            Box::new(std::io::stdout().lock())
+        } else {
+            let path = std::path::Path::new(dir).join(format!("{site}.jsonl"));
+            Box::new(std::fs::File::create(&path).unwrap())
+        });
         let spec = network_logs::RunSpec {
             site,
             run: format!("20261101T000000Z-{}", 1000 + s),
@@ -32,5 +40,5 @@ fn main() {
         };
         total += network_logs::write_run(&mut out, &spec).unwrap();
     }
-    println!("{total}");
+    eprintln!("{total} records");
 }

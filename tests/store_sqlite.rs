@@ -170,6 +170,7 @@ fn bad_database_flags_are_refused() {
     fail(&["report", "--db", "postgres://ridge:pw@localhost/net"], "no password in the URL");
     fail(&["collect", "mqtt://localhost/wrenhollow"], "--out DIR, --db URL");
     fail(&["report", "--db", "sqlite:x.db", "a.jsonl"], "not both");
+    fail(&["report", "--db", "sqlite:/nowhere/wrenhollow.db"], "no database at");
     let junk = dir.join("junk.db");
     std::fs::write(&junk, "this is no database, it only has a name that says so").unwrap();
     let out = Command::new(bin())

@@ -32,7 +32,8 @@ impl DbArgs {
 /// `bandwarden import` flags.
 #[derive(Args, Debug)]
 pub struct ImportArgs {
-    /// Occupancy logs written by `bandwarden log` or `collect --out` (JSON Lines or --csv).
+    /// Occupancy logs written by `bandwarden log` or `collect --out` (JSON Lines or --csv);
+    /// `-` reads standard input.
     #[arg(value_name = "LOG", required = true)]
     pub logs: Vec<String>,
     #[command(flatten)]

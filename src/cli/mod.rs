@@ -73,7 +73,8 @@ pub enum Command {
     /// a table, CSV, JSON or a heat map picture.
     Report(ReportArgs),
     /// Gather what sites publish to an MQTT broker (log --publish) into one JSON Lines file per
-    /// site, as if each had logged locally; runs until Ctrl-C or SIGTERM.
+    /// site, as if each had logged locally, and/or a database (--db); runs until Ctrl-C or
+    /// SIGTERM.
     Collect(CollectArgs),
     /// Store occupancy logs (JSON Lines or CSV) in a database (--db), each record once, for
     /// `report --db`; logs imported twice, or also collected, are stored once.

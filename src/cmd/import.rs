@@ -17,10 +17,14 @@ pub fn run(cfg: ImportConfig) -> Result<ExitCode> {
     let (mut stored, mut duplicates, mut without_id) = (0, 0, 0);
     for path in &cfg.logs {
         let shown = sanitize(path);
-        let file = std::fs::File::open(path)
-            .with_context(|| format!("cannot open the log '{shown}'; check the path"))?;
-        let got = import(&mut w, path, BufReader::new(file))
-            .with_context(|| format!("cannot import the log '{shown}'"))?;
+        let got = if path == "-" {
+            import(&mut w, "stdin", std::io::stdin().lock())
+        } else {
+            let file = std::fs::File::open(path)
+                .with_context(|| format!("cannot open the log '{shown}'; check the path"))?;
+            import(&mut w, path, BufReader::new(file))
+        }
+        .with_context(|| format!("cannot import the log '{shown}'"))?;
         notes(&got.notes);
         stored += got.stored;
         duplicates += got.duplicates;

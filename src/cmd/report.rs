@@ -35,6 +35,14 @@ fn read_logs(paths: &[String], settings: Settings, learn: bool) -> Result<LogSum
 pub fn run(cfg: ReportConfig) -> Result<ExitCode> {
     let mut summary = match &cfg.db {
         Some(url) => {
+            if let crate::store::DbUrl::Sqlite(path) = url {
+                if !path.exists() {
+                    bail!(
+                        "no database at '{}'; check the path (collect --db or import make one)",
+                        path.display()
+                    );
+                }
+            }
             let mut db = crate::store::open(url)?;
             crate::store::read::summarise(db.as_mut(), cfg.settings.clone(), &url.shown())?
         }
