@@ -72,6 +72,7 @@ pub fn run(cli: Cli) -> anyhow::Result<ExitCode> {
         Some(Command::Report(args)) => cmd::report::run(args.validate()?),
         Some(Command::Collect(args)) => cmd::collect::run(args.validate()?),
         Some(Command::Calibrate(args)) => cmd::calibrate::run(args.validate()?),
+        Some(Command::Import(args)) => cmd::import::run(args.validate()?),
         Some(Command::Completions(args)) => {
             package::write_completions(args.shell, &mut std::io::stdout().lock())?;
             Ok(ExitCode::SUCCESS)

@@ -12,11 +12,12 @@
 //! 6. `measure`: pure measurements (noise, signals, band, occupancy, census)
 //! 7. `pipeline`: the one run (blocks to rows to events), its outbox, stop rules, command set-up
 //! 8. `output`: consumers that write (log, SigMF, pictures, reports, summaries)
-//! 9. `net`: the monitoring network (MQTT, spool, publish, collect)
-//! 10. `tui`: the live monitor's screen
-//! 11. `cli`: command-line flags to validated configs
-//! 12. `cmd`: configs to consumers and a run, one file per command
-//! 13. `app`: dispatch and exit codes
+//! 9. `store`: the database of a network's records (SQLite, PostgreSQL), written and summed
+//! 10. `net`: the monitoring network (MQTT, spool, publish, collect)
+//! 11. `tui`: the live monitor's screen
+//! 12. `cli`: command-line flags to validated configs
+//! 13. `cmd`: configs to consumers and a run, one file per command
+//! 14. `app`: dispatch and exit codes
 //!
 //! DEVELOPERS.md has a map of which folder to open for what.
 
@@ -32,6 +33,7 @@ pub mod output;
 pub mod pipeline;
 pub mod plan;
 pub mod source;
+pub mod store;
 #[doc(hidden)]
 pub mod testkit;
 pub mod tui;

@@ -10,6 +10,7 @@ pub mod calibrate;
 pub mod census;
 pub mod change;
 pub mod common;
+pub mod db;
 pub mod demo;
 pub mod log;
 pub mod measure;
@@ -24,6 +25,7 @@ pub mod watch;
 pub use calibrate::{CalibrateArgs, CalibrateConfig};
 pub use census::{CensusArgs, CensusConfig};
 pub use common::{ChannelArgs, ChannelConfig, DspArgs, InputArgs, PlanArgs};
+pub use db::{DbArgs, ImportArgs, ImportConfig};
 pub use demo::{DemoArgs, DemoConfig};
 pub use log::{LogArgs, LogConfig};
 pub use measure::{MeasureArgs, MeasureConfig};
@@ -77,8 +79,12 @@ pub enum Command {
     /// for --calibration, or the noise figure of a terminated input.
     Calibrate(CalibrateArgs),
     /// Gather what sites publish to an MQTT broker (log --publish) into one JSON Lines file per
-    /// site, as if each had logged locally; runs until Ctrl-C or SIGTERM.
+    /// site, as if each had logged locally, and/or a database (--db); runs until Ctrl-C or
+    /// SIGTERM.
     Collect(CollectArgs),
+    /// Store occupancy logs (JSON Lines or CSV) in a database (--db), each record once, for
+    /// `report --db`; logs imported twice, or also collected, are stored once.
+    Import(ImportArgs),
     /// Print a shell completion script (bash, zsh or fish) on stdout.
     Completions(package::CompletionsArgs),
     /// Print the manual page (roff) on stdout, e.g. `bandwarden manual > bandwarden.1`.

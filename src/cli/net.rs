@@ -154,9 +154,9 @@ pub struct CollectArgs {
     #[arg(value_name = "URL")]
     pub url: String,
     /// Directory of the per-site logs (SITE.jsonl), created if missing; existing files are
-    /// continued, and their records are not written again.
+    /// continued, and their records are not written again. --out, --db or both.
     #[arg(long, value_name = "DIR")]
-    pub out: PathBuf,
+    pub out: Option<PathBuf>,
     /// Client id at the broker; the broker keeps this collector's queue under it while it is
     /// away (a persistent session), so keep it the same from run to run.
     #[arg(long, value_name = "ID")]
@@ -167,13 +167,17 @@ pub struct CollectArgs {
     pub metrics: super::metrics::MetricsArgs,
     #[command(flatten)]
     pub public: super::metrics::PublicArgs,
+    /// Also (or instead of --out) store every record once in this database.
+    #[command(flatten)]
+    pub db: crate::cli::db::DbArgs,
 }
 
 /// A validated `collect`.
 #[derive(Clone, Debug)]
 pub struct CollectConfig {
     pub broker: Broker,
-    pub out: PathBuf,
+    pub out: Option<PathBuf>,
+    pub db: Option<crate::store::DbUrl>,
     pub client_id: String,
     /// `--metrics`: where to serve the Prometheus metrics.
     pub metrics: Option<std::net::SocketAddr>,
@@ -192,6 +196,10 @@ impl CollectArgs {
             bail!("--client-id must be 1 to 184 characters");
         }
         let metrics = self.metrics.validate(self.public.check(&self.metrics)?)?;
-        Ok(CollectConfig { broker, out: self.out, client_id, metrics })
+        let db = self.db.validate()?;
+        if self.out.is_none() && db.is_none() {
+            bail!("collect needs somewhere to put the records: --out DIR, --db URL, or both");
+        }
+        Ok(CollectConfig { broker, out: self.out, db, client_id, metrics })
     }
 }

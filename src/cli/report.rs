@@ -14,8 +14,11 @@ use clap::Args;
 pub struct ReportArgs {
     /// Occupancy logs written by `bandwarden log` (JSON Lines or --csv): rotated, appended,
     /// daily and several sites' files alike.
-    #[arg(value_name = "LOG", required = true)]
+    #[arg(value_name = "LOG", required_unless_present = "db")]
     pub logs: Vec<String>,
+    /// Sum the records stored in this database (collect --db, import) instead of log files.
+    #[command(flatten)]
+    pub db: crate::cli::db::DbArgs,
     /// Only this site (repeatable); NAME=SITE,SITE reports those sites merged as one, NAME.
     #[arg(long, value_name = "NAME[=SITE,…]")]
     pub site: Vec<String>,
@@ -69,6 +72,8 @@ pub enum ReportFormat {
 #[derive(Clone, Debug)]
 pub struct ReportConfig {
     pub logs: Vec<String>,
+    /// `--db`: the database to sum instead of `logs`.
+    pub db: Option<crate::store::DbUrl>,
     pub format: ReportFormat,
     pub png: Option<String>,
     pub map: MapKind,
@@ -106,6 +111,13 @@ impl ReportArgs {
         if !self.baseline_log.is_empty() && self.csv {
             bail!("--baseline-log lists its changes in the table or --json; drop --csv");
         }
+        let db = self.db.validate()?;
+        if db.is_some() && !self.logs.is_empty() {
+            bail!("report reads log files or --db, not both; import the logs into the database first (bandwarden import --db URL LOG…)");
+        }
+        if db.is_some() && self.save_baseline.is_some() {
+            bail!("--save-baseline learns from log files; give the logs instead of --db");
+        }
         let thresholds = self.change.validate()?;
         let zone: Zone = parse_zone(&self.tz)?;
         let from = self.from.as_deref().map(|t| parse_instant(t, &zone, "--from")).transpose()?;
@@ -125,6 +137,7 @@ impl ReportArgs {
         };
         Ok(ReportConfig {
             logs: self.logs,
+            db,
             format,
             png: self.png,
             map: self.colour_map,

@@ -1,5 +1,5 @@
 //! `bandwarden collect`: gather what the sites of a monitoring network publish into one JSON
-//! Lines file per site ([`crate::net::collect`]), until Ctrl-C or SIGTERM.
+//! Lines file per site and/or a database ([`crate::net::collect`]), until Ctrl-C or SIGTERM.
 
 use crate::cli::CollectConfig;
 use crate::messages::note;
@@ -8,11 +8,16 @@ use crate::net::metrics::collect::CollectMetrics;
 use crate::net::subscribe::collect;
 use crate::pipeline::stop::Escalation;
 use crate::pipeline::StopSignals;
+use crate::store::write::{Batch, Writer};
 use anyhow::Result;
 use std::process::ExitCode;
 
 pub fn run(cfg: CollectConfig) -> Result<ExitCode> {
-    let mut collector = Collector::new(&cfg.out)?;
+    let db = match &cfg.db {
+        Some(url) => Some(Writer::new(crate::store::open(url)?, Batch::default())),
+        None => None,
+    };
+    let mut collector = Collector::open(cfg.out.as_deref(), db)?;
     let metrics = cfg.metrics.map(CollectMetrics::serve).transpose()?;
     if let Some(m) = &metrics {
         note(&format!("metrics at http://{}/metrics", m.addr()));
@@ -20,14 +25,21 @@ pub fn run(cfg: CollectConfig) -> Result<ExitCode> {
     }
     let signals = StopSignals::install(false, Escalation::SecondSignalExits)?;
     let stopped = || signals.reason().is_some();
+    let into: Vec<String> = cfg
+        .out
+        .iter()
+        .map(|o| o.display().to_string())
+        .chain(cfg.db.iter().map(|d| d.shown()))
+        .collect();
     note(&format!(
         "collecting {} from {}:{} into {}",
         cfg.broker.collect_filter(),
         cfg.broker.host,
         cfg.broker.port,
-        cfg.out.display()
+        into.join(" and ")
     ));
     let result = collect(&cfg.broker, &cfg.client_id, &mut collector, &stopped, &mut |n| note(&n));
+    let committed = collector.commit(true);
     collector.sync();
     note(&format!(
         "wrote {} records; dropped {} copies and {} messages that were not records",
@@ -44,5 +56,6 @@ pub fn run(cfg: CollectConfig) -> Result<ExitCode> {
         note(&silent.note());
     }
     result?;
+    committed?;
     Ok(ExitCode::SUCCESS)
 }

@@ -5,6 +5,7 @@ pub mod calibrate;
 pub mod census;
 pub mod collect;
 pub mod demo;
+pub mod import;
 pub mod log;
 pub mod measure;
 pub mod report;

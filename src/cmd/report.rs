@@ -33,7 +33,21 @@ fn read_logs(paths: &[String], settings: Settings, learn: bool) -> Result<LogSum
 }
 
 pub fn run(cfg: ReportConfig) -> Result<ExitCode> {
-    let mut summary = read_logs(&cfg.logs, cfg.settings.clone(), cfg.save_baseline.is_some())?;
+    let mut summary = match &cfg.db {
+        Some(url) => {
+            if let crate::store::DbUrl::Sqlite(path) = url {
+                if !path.exists() {
+                    bail!(
+                        "no database at '{}'; check the path (collect --db or import make one)",
+                        path.display()
+                    );
+                }
+            }
+            let mut db = crate::store::open(url)?;
+            crate::store::read::summarise(db.as_mut(), cfg.settings.clone(), &url.shown())?
+        }
+        None => read_logs(&cfg.logs, cfg.settings.clone(), cfg.save_baseline.is_some())?,
+    };
     let missing = cfg.settings.sites.missing(&summary.sites_seen);
     if !missing.is_empty() {
         bail!(
@@ -52,7 +66,10 @@ pub fn run(cfg: ReportConfig) -> Result<ExitCode> {
         bail!(
             "no interval or emission records{} in {}; report reads the logs written by `bandwarden log` (JSON Lines or --csv)",
             if cfg.settings.from.is_some() || cfg.settings.to.is_some() { " within --from/--to" } else { "" },
-            cfg.logs.iter().map(|l| format!("'{}'", sanitize(l))).collect::<Vec<_>>().join(", ")
+            match &cfg.db {
+                Some(url) => format!("the database {}", url.shown()),
+                None => cfg.logs.iter().map(|l| format!("'{}'", sanitize(l))).collect::<Vec<_>>().join(", "),
+            }
         );
     }
     let changes = if cfg.baseline_logs.is_empty() {

@@ -17,8 +17,13 @@
 //! of a run that fell quiet without its `stop` record (the last record of a run; its `seq` ends
 //! the run). A site that sends nothing for longer than its rhythm allows is reported as silent
 //! ([`Collector::silent_sites`]), never taken for idle: a live site sends every interval.
+//!
+//! With `--db` the records also go into the database ([`crate::store::write`]), which keeps
+//! each (site, run, seq) once by itself; its transactions are committed in batches, and
+//! [`Collector::uncommitted`] tells the link to the broker what it may not yet acknowledge.
 
 use crate::net::metrics::collect::CollectGauges;
+use crate::store::write::{Stored, Writer};
 use anyhow::{bail, Context, Result};
 use serde_json::Value;
 use std::collections::HashMap;
@@ -213,9 +218,11 @@ impl SiteFile {
     }
 }
 
-/// Per-site files and what each has seen.
+/// Per-site files and what each has seen, and the database.
 pub struct Collector {
-    dir: PathBuf,
+    /// `--out`: `None` with only a database.
+    dir: Option<PathBuf>,
+    db: Option<Writer>,
     sites: HashMap<String, SiteFile>,
     pub written: u64,
     pub duplicates: u64,
@@ -246,13 +253,21 @@ fn record_head(line: &str) -> Option<Head> {
 
 impl Collector {
     pub fn new(dir: &Path) -> Result<Collector> {
-        std::fs::create_dir_all(dir)
-            .with_context(|| format!("cannot create the directory '{}'", dir.display()))?;
-        if !dir.is_dir() {
-            bail!("'{}' is not a directory", dir.display());
+        Collector::open(Some(dir), None)
+    }
+
+    /// Files in `dir`, records in `db`, or both.
+    pub fn open(dir: Option<&Path>, db: Option<Writer>) -> Result<Collector> {
+        if let Some(dir) = dir {
+            std::fs::create_dir_all(dir)
+                .with_context(|| format!("cannot create the directory '{}'", dir.display()))?;
+            if !dir.is_dir() {
+                bail!("'{}' is not a directory", dir.display());
+            }
         }
         Ok(Collector {
-            dir: dir.to_path_buf(),
+            dir: dir.map(Path::to_path_buf),
+            db,
             sites: HashMap::new(),
             written: 0,
             duplicates: 0,
@@ -276,7 +291,8 @@ impl Collector {
     /// Opens a site's file for appending, learning the ids it already holds.
     fn site(&mut self, site: &str) -> Result<&mut SiteFile> {
         if !self.sites.contains_key(site) {
-            let path = self.dir.join(format!("{site}.jsonl"));
+            let dir = self.dir.as_ref().expect("files only with --out");
+            let path = dir.join(format!("{site}.jsonl"));
             let mut runs: HashMap<String, RunState> = HashMap::new();
             if let Ok(f) = File::open(&path) {
                 for line in BufReader::new(f).lines() {
@@ -332,13 +348,19 @@ impl Collector {
             self.malformed += 1;
             return Ok(Taken::Malformed);
         };
+        let stored = match &mut self.db {
+            Some(db) => db.take(site, line)? == Stored::New,
+            None => false,
+        };
+        if self.dir.is_none() {
+            return Ok(self.count(stored));
+        }
         let s = self.site(site)?;
         s.heard = Some(now);
         let state = s.runs.entry(h.run.clone()).or_default();
         let fresh = h.seq >= state.seen.next();
         if !state.take(h.seq, &h.kind, h.interval_s, Some(now)) {
-            self.duplicates += 1;
-            return Ok(Taken::Duplicate);
+            return Ok(self.count(stored));
         }
         if fresh {
             s.current_run = Some(h.run);
@@ -351,6 +373,31 @@ impl Collector {
         s.file.flush()?;
         self.written += 1;
         Ok(Taken::Written)
+    }
+
+    fn count(&mut self, new: bool) -> Taken {
+        if new {
+            self.written += 1;
+            Taken::Written
+        } else {
+            self.duplicates += 1;
+            Taken::Duplicate
+        }
+    }
+
+    /// Records taken into the database but not yet committed (none without a database).
+    pub fn uncommitted(&self) -> usize {
+        self.db.as_ref().map_or(0, Writer::uncommitted)
+    }
+
+    /// Commits the database's batch if it is due; `now`: whatever its age (the link is idle,
+    /// or the collector stops).
+    pub fn commit(&mut self, now: bool) -> Result<()> {
+        match &mut self.db {
+            Some(db) if now => db.commit(),
+            Some(db) => db.tick(),
+            None => Ok(()),
+        }
     }
 
     /// Records that never came, per site and run: `(site, run, from, to)`.

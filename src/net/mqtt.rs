@@ -125,6 +125,12 @@ pub fn topic_level(name: &str) -> String {
 /// Reads the broker password: from `file` if given (its first line), else from
 /// [`PASSWORD_ENV`].
 pub fn read_password(file: Option<&std::path::Path>) -> Result<Option<String>> {
+    read_secret(file, PASSWORD_ENV)
+}
+
+/// A password: the first line of `file`, else the environment variable `env` (also for the
+/// database's, [`crate::store::PASSWORD_ENV`]).
+pub fn read_secret(file: Option<&std::path::Path>, env: &str) -> Result<Option<String>> {
     if let Some(f) = file {
         let text = std::fs::read_to_string(f)
             .with_context(|| format!("cannot read the password file '{}'", f.display()))?;
@@ -134,7 +140,7 @@ pub fn read_password(file: Option<&std::path::Path>) -> Result<Option<String>> {
         }
         return Ok(Some(line));
     }
-    Ok(std::env::var(PASSWORD_ENV).ok().filter(|p| !p.is_empty()))
+    Ok(std::env::var(env).ok().filter(|p| !p.is_empty()))
 }
 
 impl Broker {

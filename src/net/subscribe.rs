@@ -1,7 +1,9 @@
 //! The collector's link to the broker: a persistent session (the broker queues what sites
 //! publish while the collector is away), QoS 1 subscription to `PREFIX/+/+`, and manual
 //! acknowledgement: a record is acknowledged only after it is written and flushed
-//! ([`Collector::take`]), so a collector that dies in between gets it again, never loses it.
+//! ([`Collector::take`]), so a collector that dies in between gets it again, never loses it;
+//! with a database, only after the transaction holding it is committed (at most 0.2 s, or at
+//! once when the link is idle or [`HELD_MAX`] messages wait).
 //! The link is re-established with a back-off doubling from 0.5 s to 30 s. While connected it
 //! also sends the collector's resend requests ([`Collector::due_requests`]) on
 //! `PREFIX/SITE/ask/resend` and says when a site falls silent or is heard again.
@@ -16,6 +18,11 @@ use serde_json::Value;
 use std::collections::VecDeque;
 use std::sync::atomic::AtomicBool;
 use std::time::{Duration, Instant};
+
+/// Messages held unacknowledged for a database commit before it is made at once: below the
+/// broker's window of unacknowledged messages per client (Mosquitto's `max_inflight_messages`,
+/// 20 by default), so delivery never stalls waiting for the batch to age.
+const HELD_MAX: usize = 16;
 
 /// What the collector tells its user as it goes (site status, lost links).
 pub type Notes<'a> = &'a mut dyn FnMut(String);
@@ -56,8 +63,14 @@ pub fn collect(
         let mut looked = Instant::now();
         loop {
             if stopped() {
+                collector.commit(true)?;
+                acks.held = 0;
                 acks.flush_then_disconnect(&client, &mut conn);
                 return Ok(());
+            }
+            collector.commit(acks.held >= HELD_MAX)?;
+            if collector.uncommitted() == 0 {
+                acks.held = 0;
             }
             acks.hand_over(&client);
             if looked.elapsed() >= LOOK_EVERY {
@@ -82,10 +95,15 @@ pub fn collect(
                         Some(_) | None => {}
                     }
                     acks.waiting.push_back(p);
+                    if collector.uncommitted() > 0 {
+                        acks.held += 1;
+                    }
                 }
                 Ok(Ok(Event::Outgoing(Outgoing::PubAck(_)))) => acks.sent += 1,
-                Ok(Ok(_)) | Err(_) => {}
+                Ok(Ok(_)) => {}
+                Err(_) => collector.commit(true)?, // idle: nothing to batch with
                 Ok(Err(e)) => {
+                    collector.commit(true)?;
                     notes(format!("lost the broker ({e}); reconnecting"));
                     break;
                 }
@@ -125,6 +143,8 @@ fn ask_and_watch(
 #[derive(Default)]
 struct Acks {
     waiting: VecDeque<Publish>,
+    /// The last messages of `waiting`, whose records wait for the database's commit.
+    held: usize,
     /// Handed to the client, and written to the socket (its `Outgoing::PubAck` events).
     handed: u64,
     sent: u64,
@@ -132,7 +152,7 @@ struct Acks {
 
 impl Acks {
     fn hand_over(&mut self, client: &Client) {
-        while let Some(p) = self.waiting.front() {
+        while let Some(p) = self.waiting.front().filter(|_| self.waiting.len() > self.held) {
             if client.try_ack(p).is_err() {
                 break;
             }

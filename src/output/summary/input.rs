@@ -75,9 +75,20 @@ impl Skipped<'_> {
 /// go to `notes`.
 pub fn read_records(
     name: &str,
-    mut reader: impl BufRead,
+    reader: impl BufRead,
     notes: &mut Vec<String>,
     mut each: impl FnMut(&Value),
+) -> std::io::Result<()> {
+    read_records_with_lines(name, reader, notes, |v, _| each(v))
+}
+
+/// As [`read_records`], with each record's line as written when the log is JSON Lines (`None`
+/// for a CSV row), for those that keep the original text.
+pub fn read_records_with_lines(
+    name: &str,
+    mut reader: impl BufRead,
+    notes: &mut Vec<String>,
+    mut each: impl FnMut(&Value, Option<&str>),
 ) -> std::io::Result<()> {
     let shown = crate::messages::sanitize(name);
     let mut skipped = Skipped { shown: &shown, count: 0, notes };
@@ -108,8 +119,9 @@ pub fn read_records(
             Some(columns) => csv_fields(text).and_then(|f| csv_record(columns, &f)),
             None => serde_json::from_str::<Value>(text).ok().filter(Value::is_object),
         };
+        let json_line = header.is_none().then_some(text);
         match record {
-            Some(v) => each(&v),
+            Some(v) => each(&v, json_line),
             None => bad = Some((number, line.len())),
         }
     }

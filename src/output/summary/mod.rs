@@ -117,8 +117,83 @@ pub struct ChannelSum {
     pub longest: Vec<Heard>,
     /// The emission that ended last.
     pub last_heard: Option<Heard>,
-    /// Noise floor of each interval (dBFS/Hz) with its time (epoch, or run seconds).
-    pub noise: Vec<(f64, f64)>,
+    /// Noise floor of the intervals (dBFS/Hz): first and last in time, and how often each value.
+    pub noise: NoiseTally,
+}
+
+/// The noise floors of a channel's intervals, kept as a count of each value (the log writes
+/// them to 0.01 dB, so a month of intervals holds a few hundred values), with the first and the
+/// last in time: enough for [`NoiseTrend`], and what a database can sum ([`crate::store`]).
+#[derive(Clone, Debug, Default)]
+pub struct NoiseTally {
+    /// (time, value) of the earliest interval (the first read among equal times).
+    pub first: Option<(f64, f64)>,
+    /// (time, value) of the latest interval (the last read among equal times).
+    pub last: Option<(f64, f64)>,
+    /// How many intervals had each value.
+    pub counts: BTreeMap<NoiseValue, u64>,
+}
+
+/// A noise floor value, ordered by [`f64::total_cmp`].
+#[derive(Clone, Copy, Debug)]
+pub struct NoiseValue(pub f64);
+
+impl PartialEq for NoiseValue {
+    fn eq(&self, other: &Self) -> bool {
+        self.0.total_cmp(&other.0).is_eq()
+    }
+}
+impl Eq for NoiseValue {}
+impl PartialOrd for NoiseValue {
+    fn partial_cmp(&self, other: &Self) -> Option<std::cmp::Ordering> {
+        Some(self.cmp(other))
+    }
+}
+impl Ord for NoiseValue {
+    fn cmp(&self, other: &Self) -> std::cmp::Ordering {
+        self.0.total_cmp(&other.0)
+    }
+}
+
+impl NoiseTally {
+    /// One interval's floor `value` at time `t`.
+    pub fn push(&mut self, t: f64, value: f64) {
+        self.count(value, 1);
+        self.ends((t, value), (t, value));
+    }
+
+    /// `n` intervals of floor `value`.
+    pub fn count(&mut self, value: f64, n: u64) {
+        *self.counts.entry(NoiseValue(value)).or_default() += n;
+    }
+
+    /// Widens the first and last to these (a later read wins a tie for the last).
+    pub fn ends(&mut self, first: (f64, f64), last: (f64, f64)) {
+        if self.first.map_or(true, |f| first.0 < f.0) {
+            self.first = Some(first);
+        }
+        if self.last.map_or(true, |l| last.0 >= l.0) {
+            self.last = Some(last);
+        }
+    }
+
+    /// The `p`-th percentile by nearest rank, as [`percentile`] over every value.
+    pub fn percentile(&self, p: f64) -> Option<f64> {
+        let n: u64 = self.counts.values().sum();
+        if n == 0 {
+            return None;
+        }
+        let rank = ((p / 100.0) * n as f64).ceil().max(1.0) as u64;
+        let rank = rank.min(n);
+        let mut seen = 0;
+        for (v, c) in &self.counts {
+            seen += c;
+            if seen >= rank {
+                return Some(v.0);
+            }
+        }
+        None
+    }
 }
 
 /// Everything read from the logs.
@@ -158,11 +233,13 @@ pub struct LogSummary {
     waiting: BTreeMap<String, Vec<Value>>,
     /// (site, channel) with an alarm up, whose intervals the baseline does not learn.
     alarms_open: HashSet<(String, String)>,
+    /// The database summed, when not files (`report --db`).
+    pub database: Option<String>,
 }
 
 /// The state of one file's reading: the run it is in.
 #[derive(Clone, Debug)]
-struct Reading {
+pub struct Reading {
     /// The site the run counts under (`None`: left out by `--site`).
     site: Option<String>,
     run: String,
@@ -198,8 +275,25 @@ impl LogSummary {
         Ok(())
     }
 
+    /// The reading of a run stored in a database ([`crate::store`]): its records, all but the
+    /// intervals (which the database sums), go to [`LogSummary::stored_record`] in order.
+    pub fn stored_run(
+        &mut self,
+        site: &str,
+        run: &str,
+        origin: Option<f64>,
+        rate_hz: f64,
+    ) -> Reading {
+        Reading { site: self.site_named(site), run: run.to_string(), origin, rate_hz }
+    }
+
+    /// One record of a stored run; `site` is the run's site in the database.
+    pub fn stored_record(&mut self, v: &Value, st: &mut Reading, site: &str) {
+        self.record(v, st, site);
+    }
+
     /// Records `raw` as seen and returns the site it counts under.
-    fn site_named(&mut self, raw: &str) -> Option<String> {
+    pub fn site_named(&mut self, raw: &str) -> Option<String> {
         if !self.sites_seen.iter().any(|s| s == raw) {
             self.sites_seen.push(raw.to_string());
         }
@@ -367,7 +461,7 @@ impl LogSummary {
             ch.peak_dbfs = Some(ch.peak_dbfs.map_or(p, |q| q.max(p)));
         }
         if let Some(n) = v["noise_floor_dbfs_per_hz"].as_f64() {
-            ch.noise.push((start.unwrap_or(num(v, "t_start_s")), n));
+            ch.noise.push(start.unwrap_or(num(v, "t_start_s")), n);
         }
         if let Some(t) = start {
             let end = t + span;
@@ -437,13 +531,10 @@ impl ChannelSum {
 
     /// The noise floor's trend, in time order.
     pub fn noise_trend(&self) -> Option<NoiseTrend> {
-        let mut v = self.noise.clone();
-        v.sort_by(|a, b| a.0.total_cmp(&b.0));
-        let values: Vec<f64> = v.iter().map(|p| p.1).collect();
         Some(NoiseTrend {
-            start: *values.first()?,
-            median: percentile(&values, 50.0)?,
-            end: *values.last()?,
+            start: self.noise.first?.1,
+            median: self.noise.percentile(50.0)?,
+            end: self.noise.last?.1,
         })
     }
 

@@ -33,11 +33,18 @@ fn opt(x: Option<f64>, decimals: usize) -> String {
 pub fn to_table(summary: &LogSummary) -> String {
     let zone = &summary.settings.zone;
     let mut out = String::new();
+    let from = match &summary.database {
+        Some(db) => format!("the database {db}"),
+        None => format!("{} file(s)", summary.files),
+    };
     let _ = writeln!(
         out,
-        "Channel occupancy from {} file(s); times {}; terms of ITU-R SM.1880 and Report ITU-R SM.2256",
-        summary.files,
-        if summary.has_clock() { zone.label() } else { "from the start of each run (the log has no clock times)".into() }
+        "Channel occupancy from {from}; times {}; terms of ITU-R SM.1880 and Report ITU-R SM.2256",
+        if summary.has_clock() {
+            zone.label()
+        } else {
+            "from the start of each run (the log has no clock times)".into()
+        }
     );
     for site in &summary.sites {
         coverage_text(&mut out, summary, &site_coverage(summary, site));

@@ -1,0 +1,139 @@
+//! The schema, one for SQLite and PostgreSQL, and its version.
+//!
+//! - `sites`: one row per site name; `runs`: one per run of `log` at a site (`run` of its
+//!   records), with what its `start` record says (the clock at its time 0, its sample rate),
+//!   how it stopped, and the run times its records reach;
+//! - `channels`: one per channel name at a site;
+//! - `records`: every record, once: (run, `seq`) UNIQUE, its kind, times, and its JSON line;
+//! - `intervals`, `emissions`, `alarms`, `captures`: the fields of those records in columns,
+//!   keyed by the record. `intervals` is stored in the order of (channel, hour, time), so a
+//!   report sums each channel's hours in one pass without sorting, and has an index on time for
+//!   `--from`/`--to`; a channel belongs to one site, so the channel is the (site, …) key.
+//!
+//! Interval columns are what `report` computes per interval ([`crate::output::summary`]):
+//! `valid` (measured: samples > 0 and an occupancy), `measured_s` and `lost_s` (the span less
+//! the dropped samples at the run's rate), `occupied` (clamped to the samples), `power_w`
+//! (samples × linear mean power), so the database only adds them up.
+//!
+//! `schema_version` holds the version; [`migrate`] creates a new database and refuses one
+//! written by a newer bandwarden.
+
+use super::Backend;
+use anyhow::{bail, Result};
+
+/// The version this bandwarden writes.
+pub const VERSION: i64 = 1;
+
+const V1: &str = "
+CREATE TABLE sites (id {id}, name TEXT NOT NULL UNIQUE);
+CREATE TABLE runs (
+    id {id},
+    site_id {int} NOT NULL REFERENCES sites(id),
+    run TEXT NOT NULL,
+    origin {real},
+    rate_hz {real},
+    has_start {int} NOT NULL DEFAULT 0,
+    stop_reason TEXT,
+    t_min {real},
+    t_max {real},
+    UNIQUE (site_id, run)
+);
+CREATE TABLE channels (
+    id {id},
+    site_id {int} NOT NULL REFERENCES sites(id),
+    name TEXT NOT NULL,
+    UNIQUE (site_id, name)
+);
+CREATE TABLE records (
+    id {id},
+    run_id {int} NOT NULL REFERENCES runs(id),
+    seq {int} NOT NULL,
+    kind TEXT NOT NULL,
+    t_start_s {real} NOT NULL,
+    t_end_s {real} NOT NULL,
+    t_epoch {real},
+    line TEXT NOT NULL,
+    UNIQUE (run_id, seq)
+);
+CREATE INDEX records_not_intervals ON records (run_id, seq) WHERE kind <> 'interval';
+CREATE TABLE intervals (
+    channel_id {int} NOT NULL REFERENCES channels(id),
+    clock {int} NOT NULL,
+    hour_key {int} NOT NULL,
+    t_key {real} NOT NULL,
+    record_id {int} NOT NULL REFERENCES records(id),
+    t_epoch {real},
+    span_s {real} NOT NULL,
+    valid {int} NOT NULL,
+    samples {int} NOT NULL,
+    occupied {real} NOT NULL,
+    measured_s {real} NOT NULL,
+    lost_s {real} NOT NULL,
+    dropped {int} NOT NULL,
+    power_w {real},
+    power_n {int} NOT NULL,
+    peak_dbfs {real},
+    noise {real},
+    center_hz {real},
+    width_hz {real},
+    PRIMARY KEY (channel_id, clock, hour_key, t_key, record_id)
+){clustered};
+CREATE INDEX intervals_time ON intervals (t_epoch);
+CREATE INDEX intervals_noise ON intervals (channel_id, noise, t_epoch);
+CREATE TABLE emissions (
+    record_id {int} PRIMARY KEY REFERENCES records(id),
+    channel_id {int} NOT NULL REFERENCES channels(id),
+    t_epoch {real},
+    end_epoch {real},
+    duration_s {real},
+    peak_dbfs {real},
+    mean_dbfs {real},
+    obw_hz {real},
+    class TEXT,
+    designator TEXT
+);
+CREATE INDEX emissions_time ON emissions (channel_id, t_epoch);
+CREATE TABLE alarms (
+    record_id {int} PRIMARY KEY REFERENCES records(id),
+    channel TEXT,
+    kind TEXT NOT NULL,
+    what TEXT,
+    t_epoch {real},
+    statistic {real},
+    threshold {real},
+    baseline {real},
+    present {real},
+    unit TEXT,
+    method TEXT
+);
+CREATE TABLE captures (
+    record_id {int} PRIMARY KEY REFERENCES records(id),
+    channel TEXT,
+    status TEXT,
+    file TEXT,
+    t_epoch {real},
+    iq_samples {int},
+    bytes {int},
+    truncated {int}
+);
+";
+
+/// Creates the schema in an empty database, or checks the version of an existing one.
+pub fn migrate(db: &mut dyn Backend) -> Result<()> {
+    let d = db.dialect();
+    db.batch(&d.ddl("CREATE TABLE IF NOT EXISTS schema_version (version {int} NOT NULL);"))?;
+    let version = db.rows("SELECT MAX(version) FROM schema_version", &[])?;
+    match version.first().and_then(|r| r[0].i64()) {
+        None => {
+            db.batch("BEGIN")?;
+            db.batch(&d.ddl(V1))?;
+            db.exec("INSERT INTO schema_version (version) VALUES (?1)", &[VERSION.into()])?;
+            db.batch("COMMIT")
+        }
+        Some(VERSION) => Ok(()),
+        Some(v) if v > VERSION => bail!(
+            "the database has schema version {v}, written by a newer bandwarden (this one knows {VERSION}); use that version"
+        ),
+        Some(v) => bail!("the database has schema version {v}, which this bandwarden cannot migrate"),
+    }
+}

@@ -1,0 +1,182 @@
+//! The database of `collect --db`, `import` and `report --db`, on SQLite (no server needed).
+//!
+//! Checked against: `report` over the same log files (itself checked against sums made
+//! independently in tests/report_cli.rs): `report --db` must print the same channels, hours,
+//! coverage and CSV; and SQLite's own count of the rows stored (a second connection, the
+//! `rusqlite` crate), which must hold each (site, run, seq) once however often it came.
+
+#[path = "support/network_logs.rs"]
+mod network_logs;
+#[path = "support/reports.rs"]
+mod reports;
+
+use bandwarden::net::collect::{Collector, Taken};
+use bandwarden::store::write::{Batch, Writer};
+use bandwarden::store::{open, DbUrl};
+use network_logs::{write_run, RunSpec};
+use reports::spec;
+use serde_json::Value;
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+
+fn bin() -> &'static str {
+    env!("CARGO_BIN_EXE_bandwarden")
+}
+
+fn scratch(name: &str) -> PathBuf {
+    let dir = Path::new(env!("CARGO_TARGET_TMPDIR")).join("store").join(name);
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).unwrap();
+    dir
+}
+
+fn run(args: &[&str]) -> Output {
+    let out = Command::new(bin()).args(args).output().unwrap();
+    assert!(out.status.success(), "{args:?}: {}", String::from_utf8_lossy(&out.stderr));
+    out
+}
+
+fn lines(spec: &RunSpec) -> Vec<String> {
+    let mut out = Vec::new();
+    write_run(&mut out, spec).unwrap();
+    String::from_utf8(out).unwrap().lines().map(String::from).collect()
+}
+
+fn count(db: &Path, sql: &str) -> i64 {
+    let c = rusqlite::Connection::open(db).unwrap();
+    c.query_row(sql, [], |r| r.get(0)).unwrap()
+}
+
+fn writer(path: &Path) -> Writer {
+    Writer::new(open(&DbUrl::Sqlite(path.into())).unwrap(), Batch::default())
+}
+
+#[test]
+fn the_collector_stores_each_record_once() {
+    let dir = scratch("collect");
+    let db = dir.join("net.db");
+    let ridge = lines(&spec("ridge", "20261203T220000Z-11", 30, 1_796_335_200, 7));
+    let north = lines(&spec("north", "20261203T220000Z-12", 20, 1_796_335_200, 8));
+    let mut c = Collector::open(None, Some(writer(&db))).unwrap();
+    // Every record, then a third of them again (a broker redelivering), then one that is no record.
+    for (site, l) in ridge.iter().map(|l| ("ridge", l)).chain(north.iter().map(|l| ("north", l))) {
+        assert_eq!(c.take(site, l.as_bytes()).unwrap(), Taken::Written);
+    }
+    for l in ridge.iter().step_by(3) {
+        assert_eq!(c.take("ridge", l.as_bytes()).unwrap(), Taken::Duplicate);
+    }
+    assert_eq!(c.take("ridge", b"{\"kind\":\"interval\"").unwrap(), Taken::Malformed);
+    assert!(c.uncommitted() > 0, "a batch of 1000 records or 0.2 s is not committed at once");
+    c.commit(true).unwrap();
+    assert_eq!(c.uncommitted(), 0);
+    drop(c);
+    let total = (ridge.len() + north.len()) as i64;
+    assert_eq!(count(&db, "SELECT COUNT(*) FROM records"), total);
+    let intervals =
+        ridge.iter().chain(&north).filter(|l| l.contains("\"kind\":\"interval\"")).count();
+    assert_eq!(count(&db, "SELECT COUNT(*) FROM intervals"), intervals as i64);
+    assert_eq!(count(&db, "SELECT COUNT(*) FROM sites"), 2);
+    assert_eq!(count(&db, "SELECT COUNT(*) FROM runs WHERE has_start = 1"), 2);
+    // The original line is kept, byte for byte.
+    let c = rusqlite::Connection::open(&db).unwrap();
+    let first: String =
+        c.query_row("SELECT line FROM records ORDER BY id LIMIT 1", [], |r| r.get(0)).unwrap();
+    assert_eq!(first, ridge[0]);
+    drop(c);
+    // A collector started again (a restart) stores nothing twice.
+    let mut c = Collector::open(None, Some(writer(&db))).unwrap();
+    for l in &north {
+        assert_eq!(c.take("north", l.as_bytes()).unwrap(), Taken::Duplicate);
+    }
+    c.commit(true).unwrap();
+    assert_eq!(count(&db, "SELECT COUNT(*) FROM records"), total);
+}
+
+#[test]
+fn a_start_record_that_comes_last_still_places_its_intervals() {
+    let dir = scratch("late-start");
+    let ridge = lines(&spec("ridge", "20261203T220000Z-21", 90, 1_796_335_200, 3));
+    // The same records in order, and with the start record (which holds the run's clock and
+    // sample rate) delivered last, as a resend would.
+    let mut late = ridge[1..].to_vec();
+    late.push(ridge[0].clone());
+    // Without clock stamps the intervals are placed by the run's clock alone.
+    let unstamped: Vec<String> = late
+        .iter()
+        .map(|l| {
+            let mut v: Value = serde_json::from_str(l).unwrap();
+            if v["kind"] == "interval" {
+                v.as_object_mut().unwrap().remove("start");
+                v["dropped_samples"] = 250_000.into();
+            }
+            v.to_string()
+        })
+        .collect();
+    let mut ordered: Vec<String> = unstamped.clone();
+    ordered.rotate_right(1);
+    let table = |name: &str, records: &[String]| {
+        let db = dir.join(name);
+        let mut w = writer(&db);
+        for l in records {
+            w.take("ridge", l).unwrap();
+        }
+        w.commit().unwrap();
+        let c = rusqlite::Connection::open(&db).unwrap();
+        let mut st = c
+            .prepare(
+                "SELECT i.t_epoch, i.hour_key, i.measured_s, i.lost_s FROM intervals i \
+                 JOIN records r ON r.id = i.record_id ORDER BY r.seq",
+            )
+            .unwrap();
+        let rows: Vec<(Option<f64>, i64, f64, f64)> = st
+            .query_map([], |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?)))
+            .unwrap()
+            .map(Result::unwrap)
+            .collect();
+        rows
+    };
+    let a = table("late.db", &unstamped);
+    let b = table("ordered.db", &ordered);
+    assert_eq!(a.len(), 270);
+    assert_eq!(a, b);
+    // Dropped samples at the run's 1 MS/s: 0.25 s of each measured interval lost.
+    assert!(a.iter().all(|r| r.0.is_some()), "every interval placed by the run's clock");
+    assert!(a.iter().any(|r| (r.3 - 0.25).abs() < 1e-9), "{:?}", &a[..3]);
+}
+
+#[test]
+fn report_from_the_database_equals_report_from_the_logs() {
+    let dir = scratch("report");
+    let logs = reports::network_logs(&dir);
+    let db = format!("sqlite:{}", dir.join("net.db").display());
+    reports::import_and_compare(&db, &logs, &[]);
+    // The table and the heat map are drawn from the same summary.
+    let png = dir.join("map.png");
+    let out = run(&["report", "--db", &db, "--png", png.to_str().unwrap()]);
+    assert!(String::from_utf8_lossy(&out.stdout).contains("from the database"));
+    assert!(std::fs::metadata(&png).unwrap().len() > 1000);
+}
+
+#[test]
+fn bad_database_flags_are_refused() {
+    let dir = scratch("bad");
+    let fail = |args: &[&str], says: &str| {
+        let out = Command::new(bin()).args(args).output().unwrap();
+        assert_eq!(out.status.code(), Some(1), "{args:?}");
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert!(err.contains(says), "{args:?}: {err}");
+    };
+    fail(&["report", "--db", "mysql://x/y"], "sqlite:PATH");
+    fail(&["report", "--db", "postgres://ridge:pw@localhost/net"], "no password in the URL");
+    fail(&["collect", "mqtt://localhost/wrenhollow"], "--out DIR, --db URL");
+    fail(&["report", "--db", "sqlite:x.db", "a.jsonl"], "not both");
+    fail(&["report", "--db", "sqlite:/nowhere/wrenhollow.db"], "no database at");
+    let junk = dir.join("junk.db");
+    std::fs::write(&junk, "this is no database, it only has a name that says so").unwrap();
+    let out = Command::new(bin())
+        .args(["report", "--db", &format!("sqlite:{}", junk.display())])
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(1));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("not a SQLite database"));
+}
