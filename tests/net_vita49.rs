@@ -220,3 +220,99 @@ fn a_signal_while_waiting_for_the_context_is_an_orderly_stop() {
         assert!(t0.elapsed() < Duration::from_secs(3), "{signal}: it waited on");
     }
 }
+
+/// Runs bandwarden with `args` (the subcommand first) on `vita49://` at a free port against
+/// `packets` packets of the −30 dBFS carrier, after the context (reference level −20 dBm).
+fn run_against_stream(args: &[&str], packets: usize) -> std::process::Output {
+    let port = free_udp_port();
+    let child = Command::new(env!("CARGO_BIN_EXE_bandwarden"))
+        .arg(args[0])
+        .arg(format!("vita49://127.0.0.1:{port}"))
+        .args(&args[1..])
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    let samples = carrier(packets, 5);
+    let (tx, to) = announce(port);
+    for k in 0..packets {
+        let _ = tx.send_to(&data(k, &samples), &to);
+        std::thread::sleep(Duration::from_secs_f64(PER_PACKET as f64 / FS));
+    }
+    child.wait_with_output().unwrap()
+}
+
+const MEASURE: [&str; 10] = [
+    "measure",
+    "--json",
+    "--seconds",
+    "0.5",
+    "--channel",
+    "a=145.52M:10k",
+    "--threads",
+    "1",
+    "--fft",
+    "1024",
+];
+
+#[test]
+fn the_reference_level_turns_levels_into_dbm() {
+    // VITA-49.0 §7.1.5.9 (from memory): the reference level is the dBm at the reference point
+    // that 0 dBFS stands for, so dBm = dBFS + reference level: a −30 dBFS carrier under a
+    // −20 dBm reference level is −50 dBm. The carrier fills the 10 kHz channel; the noise in
+    // it (1e-4 over 200 kHz, −53 dBFS in 10 kHz) adds 0.02 dB.
+    let o = run_against_stream(&MEASURE, 120);
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(o.status.success(), "{err}");
+    assert!(err.contains("levels in dBm from the stream's VITA 49 reference level"), "{err}");
+    let v: Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(v["calibration"], "vita49 reference level", "{v}");
+    assert_eq!(v["level_offset_db"].as_f64(), Some(-20.0), "{v}");
+    let power = v["channels"][0]["power_dbm"].as_f64().unwrap();
+    assert!((power - -50.0).abs() < 0.1, "{power} dBm, not -50");
+
+    // `log`: the start record names the calibration, each interval gives dBm.
+    let out = common::scratch("vita49", "reflevel.jsonl");
+    let log = [
+        "log",
+        "--seconds",
+        "0.5",
+        "--interval",
+        "0.25s",
+        "--channel",
+        "a=145.52M:10k",
+        "--fft",
+        "512",
+        "--threads",
+        "1",
+        "-o",
+        out.to_str().unwrap(),
+    ];
+    let o = run_against_stream(&log, 120);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let recs: Vec<Value> = std::fs::read_to_string(&out)
+        .unwrap()
+        .lines()
+        .map(|l| serde_json::from_str(l).unwrap())
+        .collect();
+    assert_eq!(recs[0]["calibration"], "vita49 reference level", "{}", recs[0]);
+    assert_eq!(recs[0]["level_offset_db"].as_f64(), Some(-20.0));
+    let intervals: Vec<&Value> = recs.iter().filter(|r| r["kind"] == "interval").collect();
+    assert!(!intervals.is_empty(), "{recs:?}");
+    for i in intervals {
+        let mean = i["mean_dbm"].as_f64().unwrap();
+        assert!((mean - -50.0).abs() < 0.1, "{mean} dBm, not -50: {i}");
+    }
+}
+
+#[test]
+fn ref_offset_wins_over_the_stream_reference_level() {
+    let o = run_against_stream(&[&MEASURE[..], &["--ref-offset", "-7"]].concat(), 120);
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(o.status.success(), "{err}");
+    assert!(err.contains("not from the stream's reference level of -20.00 dBm"), "{err}");
+    let v: Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(v["calibration"], "--ref-offset -7", "{v}");
+    let power = v["channels"][0]["power_dbm"].as_f64().unwrap();
+    assert!((power - -37.0).abs() < 0.1, "{power} dBm, not -37");
+}

@@ -34,10 +34,11 @@ use std::process::ExitCode;
 const MAX_SIGNALS: usize = 64;
 const MAX_EMITTERS: usize = 256;
 
-pub fn run(cfg: CensusConfig) -> Result<ExitCode> {
+pub fn run(mut cfg: CensusConfig) -> Result<ExitCode> {
     let signals = StopSignals::install(false, Escalation::SecondSignalExits)?;
     let src = open_input_stoppable(&cfg.input, &signals)?;
     let info = src.info().clone();
+    super::settle_calibration(&mut cfg.calibration, &info)?;
     let request = OccupancyRequest {
         dwell_s: cfg.dwell_s,
         threshold_db: DEFAULT_THRESHOLD_DB,

@@ -34,10 +34,11 @@ use anyhow::{bail, Context, Result};
 use std::path::PathBuf;
 use std::process::ExitCode;
 
-pub fn run(cfg: LogConfig) -> Result<ExitCode> {
+pub fn run(mut cfg: LogConfig) -> Result<ExitCode> {
     let signals = StopSignals::install(false, Escalation::SecondSignalExits)?;
     let src = open_input_stoppable(&cfg.input, &signals)?;
     let info = src.info().clone();
+    super::settle_calibration(&mut cfg.calibration, &info)?;
     let plan = &cfg.channels.plan;
     let request = OccupancyRequest {
         dwell_s: cfg.channels.dwell_s,

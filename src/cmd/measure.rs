@@ -18,9 +18,10 @@ use anyhow::{bail, Result};
 use std::io::Write;
 use std::process::ExitCode;
 
-pub fn run(cfg: MeasureConfig) -> Result<ExitCode> {
+pub fn run(mut cfg: MeasureConfig) -> Result<ExitCode> {
     let src = open_input(&cfg.input)?;
     let info = src.info().clone();
+    super::settle_calibration(&mut cfg.calibration, &info)?;
     let max_samples = cfg.seconds.map(|s| (s * info.sample_rate_hz).round() as u64);
     let skip_samples = samples_in(cfg.skip, info.sample_rate_hz).map_err(anyhow::Error::msg)?;
     let plan = &cfg.channels.plan;

@@ -25,10 +25,11 @@ use std::process::ExitCode;
 /// Length of a row when the input's length is unknown.
 const ROW_S_UNKNOWN: f64 = 0.05;
 
-pub fn run(cfg: SnapshotConfig) -> Result<ExitCode> {
+pub fn run(mut cfg: SnapshotConfig) -> Result<ExitCode> {
     let signals = StopSignals::install(false, Escalation::SecondSignalExits)?;
     let src = open_input_stoppable(&cfg.input, &signals)?;
     let info = src.info().clone();
+    super::settle_calibration(&mut cfg.calibration, &info)?;
     let rate = info.sample_rate_hz;
     if !cfg.plan.is_empty() {
         let (lo, hi) = (info.center_hz - rate / 2.0, info.center_hz + rate / 2.0);

@@ -41,12 +41,13 @@ pub fn run_default() -> Result<ExitCode> {
     run(crate::cli::default_watch().validate()?)
 }
 
-pub fn run(cfg: WatchConfig) -> Result<ExitCode> {
+pub fn run(mut cfg: WatchConfig) -> Result<ExitCode> {
     // Signals caught while the input opens (the monitor installs its own once drawing).
     let opening = StopSignals::install(false, Escalation::SecondSignalExits)?;
     let src = open_input_stoppable(&cfg.input, &opening)?;
     drop(opening);
     let info = src.info().clone();
+    super::settle_calibration(&mut cfg.calibration, &info)?;
     let half = info.sample_rate_hz / 2.0;
     cfg.plan.check_span(info.center_hz - half, info.center_hz + half)?;
     check_evidence_dir(&cfg.evidence_dir)?;

@@ -88,6 +88,15 @@ impl Calibration {
         })
     }
 
+    /// The flat offset a stream's own reference level implies (see [`from_stream`]).
+    pub fn reference_level(level_dbm: f64) -> Result<Calibration> {
+        check_offset(level_dbm, "the stream's reference level")?;
+        Ok(Calibration {
+            points: vec![CalPoint::new(0.0, level_dbm)],
+            origin: "vita49 reference level".to_string(),
+        })
+    }
+
     /// From measured points (any order; one per frequency).
     pub fn from_points(mut points: Vec<CalPoint>, origin: String) -> Result<Calibration> {
         if points.is_empty() {
@@ -154,6 +163,39 @@ impl Calibration {
     }
 }
 
+/// The run's calibration: the one the flags give (`--calibration`, `--ref-offset`) or else the
+/// stream's own reference level, with a note for the user saying which and why.
+///
+/// VITA-49.0 §7.1.5.9 (from memory): the Reference Level field is the power in dBm at the
+/// stream's Reference Point that corresponds to a full-scale sample (0 dBFS), so dBm = dBFS +
+/// reference level, the same flat offset as `--ref-offset`. The Gain field (§7.1.5.10) gives
+/// the gain of the stages between the reference point and the converter; since the reference
+/// level already refers to the reference point, that gain is inside it and is not added again
+/// (it is only named in the start note). A calibration the user measured or typed knows the
+/// actual antenna port, so the flags win over the stream.
+pub fn from_stream(
+    given: Option<Calibration>,
+    stream_level_dbm: Option<f64>,
+) -> Result<(Option<Calibration>, Option<String>)> {
+    match (given, stream_level_dbm) {
+        (Some(c), Some(level)) => {
+            let note = format!(
+                "levels in dBm from {}, not from the stream's reference level of {level:.2} dBm",
+                c.origin
+            );
+            Ok((Some(c), Some(note)))
+        }
+        (None, Some(level)) => {
+            let cal = Calibration::reference_level(level)?;
+            let note = format!(
+                "levels in dBm from the stream's VITA 49 reference level ({level:.2} dBm at 0 dBFS); --ref-offset or --calibration overrides it"
+            );
+            Ok((Some(cal), Some(note)))
+        }
+        (given, None) => Ok((given, None)),
+    }
+}
+
 fn check_offset(offset_db: f64, what: &str) -> Result<()> {
     if !(offset_db.is_finite() && offset_db.abs() <= MAX_OFFSET_DB) {
         bail!("{what}: an offset of {offset_db} dB is not a calibration; it must be a number of dB within ±{MAX_OFFSET_DB}");
@@ -201,6 +243,20 @@ mod tests {
         assert!(Calibration::from_points(vec![pt(1.0, 1.0), pt(1.0, 2.0)], "t".into()).is_err());
         assert!(Calibration::flat(f64::NAN).is_err());
         assert!(Calibration::flat(250.0).is_err());
+    }
+
+    #[test]
+    fn a_stream_reference_level_calibrates_unless_a_flag_is_given() {
+        // VITA-49.0 §7.1.5.9 (from memory): dBm = dBFS + reference level.
+        let (c, note) = from_stream(None, Some(-20.0)).unwrap();
+        let c = c.unwrap();
+        assert_eq!((c.offset_db(433.92e6), c.origin.as_str()), (-20.0, "vita49 reference level"));
+        assert!(note.unwrap().contains("-20.00 dBm"));
+        let (c, note) = from_stream(Some(Calibration::flat(-31.0).unwrap()), Some(-20.0)).unwrap();
+        assert_eq!(c.unwrap().offset_db(0.0), -31.0);
+        assert!(note.unwrap().contains("not from the stream's reference level"));
+        assert_eq!(from_stream(None, None).unwrap(), (None, None));
+        assert!(from_stream(None, Some(f64::NAN)).is_err());
     }
 
     impl Calibration {

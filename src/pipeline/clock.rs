@@ -117,6 +117,7 @@ mod tests {
             total_samples: None,
             live: false,
             segments,
+            reference_level_dbm: None,
         }
     }
 

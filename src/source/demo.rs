@@ -286,6 +286,7 @@ impl DemoSource {
                 total_samples: None,
                 live: realtime,
                 segments: Vec::new(),
+                reference_level_dbm: None,
             },
             realtime,
             started: None,

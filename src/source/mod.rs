@@ -41,6 +41,9 @@ pub struct SourceInfo {
     /// The recording's capture segments in the order delivered (SigMF `captures`); empty for
     /// sources without segments. The first one starts at sample 0.
     pub segments: Vec<Segment>,
+    /// The power (dBm) at the stream's reference point that full scale (0 dBFS) stands for,
+    /// when the stream says (a VITA 49 context's reference level); `None` for other sources.
+    pub reference_level_dbm: Option<f64>,
 }
 
 impl SourceInfo {
@@ -56,6 +59,7 @@ impl SourceInfo {
             total_samples: None,
             live: false,
             segments: Vec::new(),
+            reference_level_dbm: None,
         }
     }
 
@@ -70,6 +74,7 @@ impl SourceInfo {
             total_samples: None,
             live: true,
             segments: Vec::new(),
+            reference_level_dbm: None,
         }
     }
 }

@@ -87,6 +87,7 @@ pub fn open_file(
         total_samples: Some(len / format.bytes_per_sample() as u64),
         live: false,
         segments: Vec::new(),
+        reference_level_dbm: None,
     };
     Ok(Box::new(RawSource::new(Box::new(FileStream { file, offset: 0 }), format, info)))
 }
@@ -225,6 +226,7 @@ mod tests {
             total_samples: None,
             live: false,
             segments: Vec::new(),
+            reference_level_dbm: None,
         }
     }
 

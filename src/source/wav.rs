@@ -66,6 +66,7 @@ pub fn open(
         total_samples: Some(held.min(promised)),
         live: false,
         segments: Vec::new(),
+        reference_level_dbm: None,
     };
     Ok(Box::new(WavSource {
         path: path.to_string(),

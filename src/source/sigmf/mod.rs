@@ -88,6 +88,7 @@ pub fn open(path: &str, req: &InputRequest) -> Result<Box<dyn SampleSource>> {
         total_samples: Some(lay.total_samples),
         live: false,
         segments: lay.segments,
+        reference_level_dbm: None,
     };
     Ok(Box::new(RawSource::new(Box::new(stream), format, info)))
 }

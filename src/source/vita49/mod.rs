@@ -15,7 +15,9 @@
 //! given no context is needed. The payload format maps onto a SigMF datatype: complex
 //! Cartesian, signed fixed point of 8/16/32 bits or IEEE single/double, items packed in their
 //! own width, big-endian (VITA 49's byte order); other formats are refused with the reason.
-//! Reference level and gain are kept for the start note.
+//! The reference level (CIF0 bit 24) goes into [`SourceInfo::reference_level_dbm`], from which
+//! the run takes its dBm calibration unless `--calibration` or `--ref-offset` is given (see
+//! `measure::calibration::from_stream`); the gain (bit 23) is only named in the start note.
 //!
 //! **Context changes.** A context packet that changes the sample rate, the RF reference
 //! frequency (or offset) or the payload format after samples have begun means the samples that
@@ -281,11 +283,12 @@ impl Vita49Source {
         self.info.sample_rate_hz = t.rate.unwrap_or(1.0);
         self.info.center_hz = t.center.unwrap_or(0.0);
         self.info.format = Some(self.format);
+        self.info.reference_level_dbm = t.reference_level_dbm;
         if let Some(level) = t.reference_level_dbm {
             let gain =
                 t.gain_db.map(|(a, b)| format!(", gain {a:.2} + {b:.2} dB")).unwrap_or_default();
             notes.push(format!(
-                "{}: the stream's context gives a reference level of {level:.2} dBm{gain}; levels are still shown in dBFS",
+                "{}: the stream's context gives a reference level of {level:.2} dBm{gain}",
                 self.info.label
             ));
         }

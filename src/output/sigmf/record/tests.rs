@@ -18,6 +18,7 @@ fn info(format: SampleFormat, live: bool, segments: Vec<Segment>) -> SourceInfo 
         total_samples: None,
         live,
         segments,
+        reference_level_dbm: None,
     }
 }
 
