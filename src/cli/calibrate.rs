@@ -1,6 +1,7 @@
 //! `calibrate` flags and their validation.
 
 use super::common::{parse_count, parse_db, parse_seconds, InputArgs, LevelArgs};
+use crate::cli::common::input_help;
 use crate::dsp::{DspConfig, EngineConfig, WindowKind};
 use crate::measure::calibration::Calibration;
 use crate::messages::sanitize;
@@ -11,9 +12,7 @@ use clap::Args;
 
 #[derive(Args, Debug)]
 pub struct CalibrateArgs {
-    /// Input: the receiver's samples of a generator tone (with --tone) or of its terminated
-    /// input (with --terminated); any input `measure` reads.
-    #[arg(value_name = "INPUT")]
+    #[arg(value_name = "INPUT", help = concat!(input_help!(), " The generator tone, or the terminated input with --terminated."))]
     pub input: String,
     #[command(flatten)]
     pub source: InputArgs,

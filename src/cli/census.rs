@@ -1,8 +1,9 @@
 //! `census` flags and their validation.
 
 use super::change::ChangeArgs;
-use super::common::{parse_progress, parse_seconds, DetectArgs, DspArgs, InputArgs, LevelArgs};
+use super::common::{parse_progress, parse_seconds, AnalysisArgs, DetectArgs};
 use super::sigmf_out::{EmissionOutArgs, RecordArgs, SigmfOut};
+use crate::cli::common::input_help;
 use crate::dsp::DspConfig;
 use crate::measure::calibration::Calibration;
 use crate::measure::change::Thresholds;
@@ -16,16 +17,10 @@ use std::time::Duration;
 
 #[derive(Args, Debug)]
 pub struct CensusArgs {
-    /// Input: a file (raw, .sigmf-meta/.sigmf-data, .wav) or - for stdin (live: runs until the
-    /// end of input, Ctrl-C or SIGTERM, then prints).
-    #[arg(value_name = "INPUT")]
+    #[arg(value_name = "INPUT", help = concat!(input_help!(), " Live input runs until its end, Ctrl-C or SIGTERM, then prints."))]
     pub input: String,
     #[command(flatten)]
-    pub source: InputArgs,
-    #[command(flatten)]
-    pub dsp: DspArgs,
-    #[command(flatten)]
-    pub levels: LevelArgs,
+    pub analysis: AnalysisArgs,
     #[command(flatten)]
     pub detect: DetectArgs,
     /// Length of one row (an average of FFT frames) in which emissions are detected, e.g. 10ms;
@@ -105,9 +100,9 @@ impl CensusArgs {
         let thresholds = self.change.validate()?;
         let sigmf = SigmfOut::validate(self.record, self.emissions, &self.input)?;
         Ok(CensusConfig {
-            dsp: self.dsp.validate()?,
+            dsp: self.analysis.dsp.validate()?,
             detection: self.detect.validate(OBW_PERCENT)?,
-            input: self.source.request(Some(self.input)),
+            input: self.analysis.source.request(Some(self.input)),
             dwell_s: self.dwell.map(|d| d.as_secs_f64()),
             hang_s: self.hang.as_secs_f64(),
             json: self.json,
@@ -119,7 +114,7 @@ impl CensusArgs {
             baseline: self.baseline,
             save_baseline: self.save_baseline,
             thresholds,
-            calibration: self.levels.validate()?,
+            calibration: self.analysis.levels.validate()?,
         })
     }
 }

@@ -18,6 +18,17 @@ use std::time::Duration;
 use time::format_description::well_known::Rfc3339;
 use time::OffsetDateTime;
 
+/// The help of every command's INPUT, written once: each kind of input every command reads.
+/// A macro, not a const, so that a command can `concat!` its own sentence after it.
+macro_rules! input_help {
+    () => {
+        "Input: a file (raw, .sigmf-meta/.sigmf-data, .wav), - for stdin, tcp://HOST:PORT \
+         (connect to a receiver serving raw IQ), tcp-listen://ADDR:PORT (accept one sender) or \
+         vita49://ADDR:PORT (VITA 49 packets over UDP)."
+    };
+}
+pub(crate) use input_help;
+
 /// Where samples come from and how to read them.
 #[derive(Args, Debug, Clone, Default)]
 pub struct InputArgs {
@@ -71,6 +82,18 @@ impl InputArgs {
             stop: None,
         }
     }
+}
+
+/// The flags of every command that analyses an input, declared once: where the samples come
+/// from, how the spectrum is estimated, and what its levels mean.
+#[derive(Args, Debug, Clone)]
+pub struct AnalysisArgs {
+    #[command(flatten)]
+    pub source: InputArgs,
+    #[command(flatten)]
+    pub dsp: DspArgs,
+    #[command(flatten)]
+    pub levels: LevelArgs,
 }
 
 /// How the spectrum is estimated.

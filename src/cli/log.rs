@@ -1,12 +1,11 @@
 //! `log` flags and their validation.
 
 use super::alarms::{AlarmArgs, AlarmConfig};
-use super::common::{
-    parse_progress, parse_seconds, ChannelArgs, ChannelConfig, DspArgs, InputArgs, LevelArgs,
-};
+use super::common::{parse_progress, parse_seconds, AnalysisArgs, ChannelArgs, ChannelConfig};
 use super::metrics::MetricsArgs;
 use super::net::PublishArgs;
 use super::sigmf_out::{EmissionOutArgs, RecordArgs, SigmfOut};
+use crate::cli::common::input_help;
 use crate::dsp::DspConfig;
 use crate::measure::calibration::Calibration;
 use crate::measure::change::baseline::BAND;
@@ -21,16 +20,10 @@ use std::time::Duration;
 
 #[derive(Args, Debug)]
 pub struct LogArgs {
-    /// Input: a file (raw, .sigmf-meta/.sigmf-data, .wav), - for stdin (live), tcp://HOST:PORT
-    /// (connect to a receiver serving raw IQ) or tcp-listen://ADDR:PORT (accept one sender).
-    #[arg(value_name = "INPUT")]
+    #[arg(value_name = "INPUT", help = input_help!())]
     pub input: String,
     #[command(flatten)]
-    pub source: InputArgs,
-    #[command(flatten)]
-    pub dsp: DspArgs,
-    #[command(flatten)]
-    pub levels: LevelArgs,
+    pub analysis: AnalysisArgs,
     /// Length of each occupancy record (interval), e.g. 10s, 15m, 1h.
     #[arg(long, value_name = "DURATION", default_value = "60s", allow_hyphen_values = true, value_parser = parse_duration)]
     pub interval: Duration,
@@ -127,8 +120,8 @@ impl LogArgs {
         Ok(LogConfig {
             site: self.publish.site.clone(),
             publish,
-            dsp: self.dsp.validate()?,
-            input: self.source.request(Some(self.input)),
+            dsp: self.analysis.dsp.validate()?,
+            input: self.analysis.source.request(Some(self.input)),
             channels,
             interval_s: self.interval.as_secs_f64(),
             hang_s: self.hang.as_secs_f64(),
@@ -141,8 +134,8 @@ impl LogArgs {
             sigmf,
             progress: self.progress,
             alarms,
-            metrics: self.metrics.validate(self.source.listen_public)?,
-            calibration: self.levels.validate()?,
+            metrics: self.metrics.validate(self.analysis.source.listen_public)?,
+            calibration: self.analysis.levels.validate()?,
         })
     }
 }

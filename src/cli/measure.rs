@@ -3,7 +3,8 @@
 use super::common::{
     parse_band, parse_count, parse_db, parse_number, parse_seconds, ChannelArgs, ChannelConfig,
 };
-use super::common::{DetectArgs, DspArgs, InputArgs, LevelArgs};
+use super::common::{AnalysisArgs, DetectArgs};
+use crate::cli::common::input_help;
 use crate::dsp::DspConfig;
 use crate::measure::calibration::Calibration;
 use crate::measure::Detection;
@@ -24,16 +25,10 @@ pub const MAX_XDB: f64 = 300.0;
 
 #[derive(Args, Debug)]
 pub struct MeasureArgs {
-    /// Input: a file (raw, .sigmf-meta/.sigmf-data, .wav), - for stdin, tcp://HOST:PORT or
-    /// tcp-listen://ADDR:PORT (raw IQ over TCP). Default: the demo scene.
-    #[arg(value_name = "INPUT")]
+    #[arg(value_name = "INPUT", help = concat!(input_help!(), " Default: the demo scene."))]
     pub input: Option<String>,
     #[command(flatten)]
-    pub source: InputArgs,
-    #[command(flatten)]
-    pub dsp: DspArgs,
-    #[command(flatten)]
-    pub levels: LevelArgs,
+    pub analysis: AnalysisArgs,
     /// Read at most this many seconds of input (the demo scene defaults to 2 s).
     #[arg(long, value_name = "SECONDS", allow_negative_numbers = true, value_parser = parse_seconds)]
     pub seconds: Option<f64>,
@@ -102,12 +97,12 @@ impl MeasureArgs {
                 self.peaks
             );
         }
-        let dsp = self.dsp.validate()?;
+        let dsp = self.analysis.dsp.validate()?;
         let detection = self.detect.validate(self.obw_percent)?;
         let channels = self.channels.validate()?;
         let demo = self.input.is_none();
         Ok(MeasureConfig {
-            input: self.source.request(self.input),
+            input: self.analysis.source.request(self.input),
             dsp,
             seconds: self.seconds.or(demo.then_some(DEMO_SECONDS)),
             skip: self.skip.unwrap_or(0.0),
@@ -118,7 +113,7 @@ impl MeasureArgs {
             json: self.json,
             detection,
             channels,
-            calibration: self.levels.validate()?,
+            calibration: self.analysis.levels.validate()?,
         })
     }
 }

@@ -156,10 +156,10 @@ mod tests {
         ])
         .unwrap();
         let Some(Command::Measure(m)) = cli.command else { panic!("not measure") };
-        assert_eq!(m.source.rate, Some(2.4e6));
-        assert_eq!(m.source.center, Some(433.92e6));
-        assert_eq!(m.dsp.fft_size, 1000);
-        assert_eq!(m.dsp.window, WindowKind::Kaiser(7.0));
+        assert_eq!(m.analysis.source.rate, Some(2.4e6));
+        assert_eq!(m.analysis.source.center, Some(433.92e6));
+        assert_eq!(m.analysis.dsp.fft_size, 1000);
+        assert_eq!(m.analysis.dsp.window, WindowKind::Kaiser(7.0));
         assert_eq!(m.bands.len(), 1);
         assert!(m.json);
         let c = m.validate().unwrap();

@@ -1,8 +1,7 @@
 //! `snapshot` flags and their validation.
 
-use super::common::{
-    parse_count, parse_db, parse_seconds, DspArgs, InputArgs, LevelArgs, PlanArgs,
-};
+use super::common::{parse_count, parse_db, parse_seconds, AnalysisArgs, PlanArgs};
+use crate::cli::common::input_help;
 use crate::dsp::DspConfig;
 use crate::measure::calibration::Calibration;
 use crate::output::picture::canvas::{PictureFormat, MAX_SIDE, MIN_SIDE};
@@ -14,16 +13,13 @@ use clap::Args;
 
 #[derive(Args, Debug)]
 pub struct SnapshotArgs {
-    /// Input: a file (raw, .sigmf-meta/.sigmf-data, .wav) or - for stdin.
-    #[arg(value_name = "INPUT")]
+    #[arg(value_name = "INPUT", help = input_help!())]
     pub input: String,
     /// The picture to write: FILE.png or FILE.svg (the extension chooses the format).
     #[arg(short = 'o', long = "out", value_name = "FILE")]
     pub out: String,
     #[command(flatten)]
-    pub source: InputArgs,
-    #[command(flatten)]
-    pub dsp: DspArgs,
+    pub analysis: AnalysisArgs,
     /// Leave out this many seconds at the start of the input.
     #[arg(long, value_name = "SECONDS", allow_negative_numbers = true, value_parser = parse_seconds)]
     pub skip: Option<f64>,
@@ -48,8 +44,6 @@ pub struct SnapshotArgs {
     /// the noise to the strongest level.
     #[arg(long, value_name = "LOW:HIGH", allow_hyphen_values = true, value_parser = parse_scale)]
     pub scale: Option<(f64, f64)>,
-    #[command(flatten)]
-    pub levels: LevelArgs,
     /// Title of the picture (default: the input and its time).
     #[arg(long, value_name = "TEXT")]
     pub title: Option<String>,
@@ -110,10 +104,10 @@ impl SnapshotArgs {
             }
         }
         Ok(SnapshotConfig {
-            input: self.source.request(Some(self.input)),
+            input: self.analysis.source.request(Some(self.input)),
             out: self.out,
             format,
-            dsp: self.dsp.validate()?,
+            dsp: self.analysis.dsp.validate()?,
             skip_s: self.skip.unwrap_or(0.0),
             seconds: self.seconds,
             plan: self.channels.validate()?,
@@ -123,7 +117,7 @@ impl SnapshotArgs {
             height: self.height,
             map: self.colour_map,
             scale: self.scale,
-            calibration: self.levels.validate()?,
+            calibration: self.analysis.levels.validate()?,
             title: self.title,
         })
     }

@@ -1,8 +1,9 @@
 //! `watch` flags and their validation.
 
 use super::alarms::{AlarmArgs, AlarmConfig};
-use super::common::{parse_number, DetectArgs, DspArgs, InputArgs, LevelArgs, PlanArgs};
+use super::common::{parse_number, AnalysisArgs, DetectArgs, PlanArgs};
 use super::sigmf_out::RecordArgs;
+use crate::cli::common::input_help;
 use crate::measure::calibration::Calibration;
 use crate::measure::Detection;
 use crate::pipeline::latest::RowSettings;
@@ -15,14 +16,10 @@ use clap::Args;
 
 #[derive(Args, Debug)]
 pub struct WatchArgs {
-    /// Input: a file (raw, .sigmf-meta/.sigmf-data, .wav), - for stdin, tcp://HOST:PORT or
-    /// tcp-listen://ADDR:PORT (raw IQ over TCP). Default: the demo scene.
-    #[arg(value_name = "INPUT")]
+    #[arg(value_name = "INPUT", help = concat!(input_help!(), " Default: the demo scene."))]
     pub input: Option<String>,
     #[command(flatten)]
-    pub source: InputArgs,
-    #[command(flatten)]
-    pub dsp: DspArgs,
+    pub analysis: AnalysisArgs,
     #[command(flatten)]
     pub detect: DetectArgs,
     /// Screen updates per second at most, 1 ..= 60.
@@ -38,8 +35,6 @@ pub struct WatchArgs {
     /// Start a file again when it ends.
     #[arg(long = "loop")]
     pub loop_input: bool,
-    #[command(flatten)]
-    pub levels: LevelArgs,
     #[command(flatten)]
     pub channels: PlanArgs,
     /// Colours: auto (24-bit when COLORTERM says truecolor or 24bit, none under NO_COLOR,
@@ -129,7 +124,7 @@ pub struct WatchConfig {
 
 impl WatchArgs {
     pub fn validate(self) -> Result<WatchConfig> {
-        let dsp = self.dsp.validate()?;
+        let dsp = self.analysis.dsp.validate()?;
         let detection = self.detect.validate(Detection::default().obw_percent)?;
         if !(1.0..=60.0).contains(&self.fps) {
             bail!("--fps {} is out of range; choose 1 ..= 60 (20 is usual)", format_num(self.fps));
@@ -146,7 +141,7 @@ impl WatchArgs {
                 format_num(self.speed)
             );
         }
-        let calibration = self.levels.validate()?;
+        let calibration = self.analysis.levels.validate()?;
         let plan = self.channels.validate()?;
         let alarms = self.alarms.validate()?;
         if alarms.is_some() && plan.channels.is_empty() {
@@ -155,7 +150,7 @@ impl WatchArgs {
         if self.interval.is_zero() {
             bail!("--interval must be longer than zero (e.g. 60s)");
         }
-        let mut input = self.source.request(self.input);
+        let mut input = self.analysis.source.request(self.input);
         input.realtime = input.path.is_none();
         Ok(WatchConfig {
             input,
@@ -252,10 +247,10 @@ mod tests {
             "15",
         ]);
         assert_eq!(w.input.as_deref(), Some("rec.sigmf-meta"));
-        assert_eq!(w.dsp.fft_size, 8192);
+        assert_eq!(w.analysis.dsp.fft_size, 8192);
         assert_eq!(w.speed, 4.0);
         assert!(w.loop_input);
-        assert_eq!(w.levels.ref_offset, Some(-30.5));
+        assert_eq!(w.analysis.levels.ref_offset, Some(-30.5));
         let c = &w.channels.channels[0];
         assert_eq!((c.name.as_str(), c.center_hz), ("gate", 433.2625e6));
         assert_eq!(w.channels.plan.as_deref(), Some("site.toml"));

@@ -19,7 +19,6 @@ use crate::pipeline::kinds::live;
 use crate::pipeline::latest::RowFeed;
 use crate::pipeline::stop::Escalation;
 use crate::pipeline::{open_input_stoppable, Consumer, Input, RunSpec, StopSignals};
-use crate::plan::{Plan, DEFAULT_THRESHOLD_DB};
 use crate::source::reader::ReaderOptions;
 use crate::source::SourceInfo;
 use crate::tui::app::{AlarmLog, App, ChannelMark, SourceSummary};
@@ -50,7 +49,7 @@ pub fn run(mut cfg: WatchConfig) -> Result<ExitCode> {
     super::settle_calibration(&mut cfg.calibration, &info)?;
     let half = info.sample_rate_hz / 2.0;
     cfg.plan.check_span(info.center_hz - half, info.center_hz + half)?;
-    check_evidence_dir(&cfg.evidence_dir)?;
+    sink::check_folder(&cfg.evidence_dir, "--evidence-dir")?;
     // Checked after the input and the plan, so their mistakes are reported first.
     if !std::io::stdout().is_terminal() {
         bail!("watch draws on a terminal and standard output is not one; use `bandwarden measure` for a report");
@@ -108,7 +107,7 @@ pub fn run(mut cfg: WatchConfig) -> Result<ExitCode> {
         ColourChoice::Auto => Depth::detect(),
         ColourChoice::Forced(d) => d,
     };
-    let marks = marks(&cfg.plan);
+    let marks = ChannelMark::from_plan(&cfg.plan);
     let ref_offset = cfg.calibration.as_ref().map(|c| c.offset_db(info.center_hz));
     let mut app = App::new(summary, cfg.rows, depth, ref_offset, marks, Instant::now())
         .with_detection(cfg.detection)
@@ -141,55 +140,4 @@ fn change_watch(cfg: &WatchConfig, a: &AlarmConfig, info: &SourceInfo) -> Result
     let seed = a.baseline.as_deref().map(|p| load_baseline(p, None)).transpose()?;
     let out = open_change_log(cfg.alarm_log.as_deref())?;
     WatchChanges::new(info, &cfg.rows, &cfg.plan, a.settings, seed.as_ref(), cfg.interval_s, out)
-}
-
-/// Checks at start that the folder for the `e` and `g` files exists and takes files, so the
-/// keys do not fail later in front of the user.
-fn check_evidence_dir(dir: &str) -> Result<()> {
-    let shown = sanitize(dir);
-    match std::fs::metadata(dir) {
-        Err(e) if e.kind() == std::io::ErrorKind::NotFound => {
-            bail!("--evidence-dir {shown}: no such folder; create it or name another")
-        }
-        Err(e) => bail!("--evidence-dir {shown}: {e}"),
-        Ok(m) if !m.is_dir() => bail!("--evidence-dir {shown} is not a folder"),
-        Ok(_) => {}
-    }
-    let probe = std::path::Path::new(dir).join(format!(".bandwarden-probe-{}", std::process::id()));
-    match std::fs::File::create(&probe) {
-        Ok(_) => {
-            let _ = std::fs::remove_file(&probe);
-            Ok(())
-        }
-        Err(e) => bail!(
-            "--evidence-dir {shown}: cannot write there ({e}); name a folder you can write to"
-        ),
-    }
-}
-
-/// The plan's channels as the monitor marks them.
-fn marks(plan: &Plan) -> Vec<ChannelMark> {
-    plan.channels
-        .iter()
-        .map(|c| ChannelMark {
-            threshold_db: c.threshold_db.unwrap_or(DEFAULT_THRESHOLD_DB),
-            alarm_dbfs: c.alarm_dbfs,
-            ..ChannelMark::new(&sanitize(&c.name), c.center_hz, c.width_hz)
-        })
-        .collect()
-}
-
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn plans_become_the_marks() {
-        let plan = Plan::parse(
-            "[[channel]]\nname = \"gate\"\ncenter = \"433.2625M\"\nwidth = \"12.5k\"\n",
-            "t.toml",
-        )
-        .unwrap();
-        assert_eq!(marks(&plan), vec![ChannelMark::new("gate", 433.2625e6, 12.5e3)]);
-    }
 }

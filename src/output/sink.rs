@@ -48,6 +48,28 @@ pub fn open(path: &str, append: bool, what: &str) -> Result<Sink> {
     Ok(Sink { out: Box::new(out), empty: len == 0 })
 }
 
+/// Checks at start that folder `dir` (given with `flag`) exists and takes files, so what is
+/// written there later (on a key press, at an event) does not fail in front of the user.
+pub fn check_folder(dir: &str, flag: &str) -> Result<()> {
+    let shown = crate::messages::sanitize(dir);
+    match std::fs::metadata(dir) {
+        Err(e) if e.kind() == io::ErrorKind::NotFound => {
+            bail!("{flag} {shown}: no such folder; create it or name another")
+        }
+        Err(e) => bail!("{flag} {shown}: {e}"),
+        Ok(m) if !m.is_dir() => bail!("{flag} {shown} is not a folder"),
+        Ok(_) => {}
+    }
+    let probe = std::path::Path::new(dir).join(format!(".bandwarden-probe-{}", std::process::id()));
+    match std::fs::File::create(&probe) {
+        Ok(_) => {
+            let _ = std::fs::remove_file(&probe);
+            Ok(())
+        }
+        Err(e) => bail!("{flag} {shown}: cannot write there ({e}); name a folder you can write to"),
+    }
+}
+
 /// Refuses to write over any of `inputs` (the input recording, the plan): opening the output
 /// would truncate what is about to be read.
 /// Refuses to write `out` (given with `flag`) when it is one of the files the run reads.

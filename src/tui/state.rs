@@ -43,6 +43,19 @@ impl ChannelMark {
         }
     }
 
+    /// The plan's channels as the monitor marks them: names freed of control characters, each
+    /// channel's own threshold (else the default) and power alarm.
+    pub fn from_plan(plan: &crate::plan::Plan) -> Vec<ChannelMark> {
+        plan.channels
+            .iter()
+            .map(|c| ChannelMark {
+                threshold_db: c.threshold_db.unwrap_or(crate::plan::DEFAULT_THRESHOLD_DB),
+                alarm_dbfs: c.alarm_dbfs,
+                ..ChannelMark::new(&crate::messages::sanitize(&c.name), c.center_hz, c.width_hz)
+            })
+            .collect()
+    }
+
     pub fn contains(&self, freq_hz: f64) -> bool {
         (freq_hz - self.center_hz).abs() <= 0.5 * self.width_hz
     }
@@ -208,5 +221,23 @@ impl AlarmLog {
         if let Err(e) = r {
             self.failed = Some(format!("{e:#}"));
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn plans_become_the_marks() {
+        let plan = crate::plan::Plan::parse(
+            "[[channel]]\nname = \"gate\"\ncenter = \"433.2625M\"\nwidth = \"12.5k\"\n",
+            "t.toml",
+        )
+        .unwrap();
+        assert_eq!(
+            ChannelMark::from_plan(&plan),
+            vec![ChannelMark::new("gate", 433.2625e6, 12.5e3)]
+        );
     }
 }
