@@ -7,7 +7,7 @@
 
 use super::spectrum::{Geometry, Spectrum};
 use super::stft::{welch_dof, FrameSet, Stft, MAX_FFT, MIN_FFT};
-use super::window::WindowKind;
+use super::window::{Window, WindowKind};
 use super::worker::{Batch, Team};
 use crate::kernels::Kernels;
 use num_complex::Complex32;
@@ -89,18 +89,57 @@ pub struct Engine {
     /// Samples not yet covered by a transformed frame; always starts at a frame boundary.
     tail: Vec<Complex32>,
     tail_start: u64,
-    acc: Vec<f64>,
     /// Per-group f32 sums of the current batch, `fft_size` floats each.
     slots: Vec<f32>,
     /// Frame ranges of the current batch, one per slot at most.
     groups: Vec<(usize, usize)>,
-    acc_frames: u64,
-    acc_first: u64,
-    acc_end: u64,
+    sums: Sums,
+}
+
+/// The running f64 total of the current output and what becomes of it; apart from the
+/// transforms so that groups are folded while the transforms of later groups go on.
+struct Sums {
+    acc: Vec<f64>,
+    frames: u64,
+    first: u64,
+    end: u64,
+    hop: usize,
+    frames_per_output: Option<u64>,
+    /// The window, for the degrees of freedom of each output.
+    window: Window,
     /// The spectrum handed to `emit`, refilled for every output.
     out: Spectrum,
     kernels: Kernels,
 }
+
+impl Sums {
+    /// Adds one group's sum (frames `first ..` of an output, ending at sample `end`) and emits
+    /// the output it completes.
+    fn fold(&mut self, sum: &[f32], first: u64, end: u64, frames: u64, emit: Emit<'_>) {
+        if self.frames == 0 {
+            self.first = first;
+        }
+        self.kernels.add_wide(&mut self.acc, sum);
+        self.frames += frames;
+        self.end = end;
+        if Some(self.frames) == self.frames_per_output {
+            emit(self.take());
+        }
+    }
+
+    /// Turns the accumulated sums into the output spectrum (whose buffer is reused, so rows
+    /// allocate nothing) and starts the next accumulation.
+    fn take(&mut self) -> &Spectrum {
+        let dof = welch_dof(&self.window, self.hop, self.frames);
+        self.out.fill_from_power_sum(&self.acc, self.frames, dof, self.first, self.end);
+        self.acc.iter_mut().for_each(|a| *a = 0.0);
+        self.frames = 0;
+        &self.out
+    }
+}
+
+/// Where finished spectra go.
+type Emit<'e> = &'e mut dyn FnMut(&Spectrum);
 
 /// Memory the per-group sums may use; bounds the groups of very long transforms.
 const SLOT_BYTES: usize = 8 << 20;
@@ -114,10 +153,19 @@ impl Engine {
     pub fn new(cfg: EngineConfig, sample_rate_hz: f64, center_hz: f64) -> Engine {
         let stft = Stft::new(cfg.fft_size, cfg.window);
         let geometry = Geometry::new(stft.window(), sample_rate_hz, center_hz);
-        let mut e = Engine {
-            out: Spectrum::empty(Arc::new(geometry)),
-            hop: cfg.hop(),
+        let sums = Sums {
             acc: vec![0.0; cfg.fft_size],
+            frames: 0,
+            first: 0,
+            end: 0,
+            hop: cfg.hop(),
+            frames_per_output: cfg.frames_per_output,
+            window: stft.window().clone(),
+            out: Spectrum::empty(Arc::new(geometry)),
+            kernels: Kernels::detect(),
+        };
+        let mut e = Engine {
+            hop: cfg.hop(),
             slots: Vec::new(),
             groups: Vec::new(),
             tail: Vec::with_capacity(cfg.fft_size * 2),
@@ -125,10 +173,7 @@ impl Engine {
             team: Team::new(0, cfg.fft_size, cfg.window),
             cfg,
             tail_start: 0,
-            acc_frames: 0,
-            acc_first: 0,
-            acc_end: 0,
-            kernels: Kernels::detect(),
+            sums,
         };
         e.size_slots();
         e
@@ -238,57 +283,42 @@ impl Engine {
         emit: &mut dyn FnMut(&Spectrum),
     ) {
         let (n, hop) = (self.cfg.fft_size, self.hop);
-        let slots = self.slots.len() / n;
+        let Engine { cfg, stft, team, slots, groups, sums, .. } = self;
+        let slots_len = slots.len() / n;
         let mut k = 0;
         while k < count {
             // Cut the next batch into at most `slots` groups, none crossing an output boundary.
-            self.groups.clear();
-            let size = (count - k).div_ceil(slots);
-            let mut held = self.acc_frames;
-            while self.groups.len() < slots && k < count {
-                let room = self.cfg.frames_per_output.map_or(u64::MAX, |f| f - held);
+            groups.clear();
+            let size = (count - k).div_ceil(slots_len);
+            let mut held = sums.frames;
+            while groups.len() < slots_len && k < count {
+                let room = cfg.frames_per_output.map_or(u64::MAX, |f| f - held);
                 let len = (size.min(count - k) as u64).min(room) as usize;
-                self.groups.push((k, k + len));
+                groups.push((k, k + len));
                 k += len;
                 held += len as u64;
-                if Some(held) == self.cfg.frames_per_output {
+                if Some(held) == cfg.frames_per_output {
                     held = 0;
                 }
             }
-            let batch = Batch::new(frames, &self.groups, &mut self.slots);
-            self.team.run(&batch, &mut self.stft);
-            // Fold the groups in order, so the sums do not depend on which thread did which.
-            for g in 0..self.groups.len() {
-                let (first, end) = self.groups[g];
-                if self.acc_frames == 0 {
-                    self.acc_first = origin + (first * hop) as u64;
-                }
-                self.kernels.add_wide(&mut self.acc, &self.slots[g * n..(g + 1) * n]);
-                self.acc_frames += (end - first) as u64;
-                self.acc_end = origin + ((end - 1) * hop + n) as u64;
-                if Some(self.acc_frames) == self.cfg.frames_per_output {
-                    emit(self.take());
-                }
-            }
+            let batch = Batch::new(frames, groups, slots);
+            // Fold the groups in order, so the sums do not depend on which thread did which;
+            // each row is emitted while the helpers transform the groups after it.
+            team.run_folding(&batch, stft, |g| {
+                let (first, end) = batch.groups[g];
+                let start = origin + (first * hop) as u64;
+                let stop = origin + ((end - 1) * hop + n) as u64;
+                sums.fold(batch.slot(g), start, stop, (end - first) as u64, emit);
+            });
         }
     }
 
     /// Emits what has been accumulated (if any frame was); call at end of input.
-    pub fn finish(&mut self, emit: &mut dyn FnMut(&Spectrum)) {
+    pub fn finish(&mut self, emit: Emit<'_>) {
         self.flush_tail(emit);
-        if self.acc_frames > 0 {
-            emit(self.take());
+        if self.sums.frames > 0 {
+            emit(self.sums.take());
         }
-    }
-
-    /// Turns the accumulated sums into the output spectrum (whose buffer is reused, so rows
-    /// allocate nothing) and starts the next accumulation.
-    fn take(&mut self) -> &Spectrum {
-        let dof = welch_dof(self.stft.window(), self.hop, self.acc_frames);
-        self.out.fill_from_power_sum(&self.acc, self.acc_frames, dof, self.acc_first, self.acc_end);
-        self.acc.iter_mut().for_each(|a| *a = 0.0);
-        self.acc_frames = 0;
-        &self.out
     }
 }
 
