@@ -33,6 +33,10 @@ pub struct CensusArgs {
     /// Print one JSON object instead of the table.
     #[arg(long)]
     pub json: bool,
+    /// Leave out each emitter's kind and designator (no classification): the quickest census,
+    /// and the reference that scripts/bench-census times classification against.
+    #[arg(long)]
+    pub no_kinds: bool,
     /// Also write a channel plan (TOML, as `log --plan` reads) with one channel per emitter.
     #[arg(long, value_name = "FILE.toml")]
     pub plan_out: Option<String>,
@@ -72,6 +76,8 @@ pub struct CensusConfig {
     pub dwell_s: Option<f64>,
     pub hang_s: f64,
     pub json: bool,
+    /// Classify emissions (false with `--no-kinds`).
+    pub kinds: bool,
     pub plan_out: Option<String>,
     pub seconds: Option<f64>,
     pub no_drop: bool,
@@ -106,6 +112,7 @@ impl CensusArgs {
             dwell_s: self.dwell.map(|d| d.as_secs_f64()),
             hang_s: self.hang.as_secs_f64(),
             json: self.json,
+            kinds: !self.no_kinds,
             plan_out: self.plan_out,
             seconds: self.seconds,
             no_drop: self.no_drop,

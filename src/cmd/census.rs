@@ -77,8 +77,10 @@ pub fn run(mut cfg: CensusConfig) -> Result<ExitCode> {
         &inputs,
         opts.block_len,
     )?;
-    let mut census =
-        CensusConsumer::new(Census::new(settings)).with_kinds(info.sample_rate_hz, info.center_hz);
+    let mut census = CensusConsumer::new(Census::new(settings));
+    if cfg.kinds {
+        census = census.with_kinds(info.sample_rate_hz, info.center_hz);
+    }
     if let Some(path) = &cfg.sigmf.annotate {
         census =
             census.with_annotations(sigmf_out.annotation_writer(path, &cfg.input, &info, &inputs)?);

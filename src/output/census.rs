@@ -40,7 +40,10 @@ pub struct CensusConsumer {
     open: HashMap<u64, String>,
     /// The samples emissions are classified from, when asked for.
     kinds: Option<Kinds>,
-    /// Every emission classified as it ended.
+    /// Every emission sent to be classified as it ended (start, end, centre Hz), in the order
+    /// of [`Kinds::collect`]'s answers.
+    sent: Vec<(u64, u64, f64)>,
+    /// Those emissions with their classes, once collected at the end of the run.
     classified: Vec<Classified>,
     /// Places in frequency already classified (centre, width) and how many of their emissions.
     places: Vec<(f64, f64, u32)>,
@@ -70,6 +73,7 @@ impl CensusConsumer {
             captures: Vec::new(),
             open: HashMap::new(),
             kinds: None,
+            sent: Vec::new(),
             classified: Vec::new(),
             places: Vec::new(),
             rbw_hz: 0.0,
@@ -112,7 +116,7 @@ impl CensusConsumer {
         for ev in c.take_events() {
             if let (CensusEvent::Closed { emission, .. }, Some(k)) = (&ev, self.kinds.as_mut()) {
                 if take_place(&mut self.places, emission) {
-                    self.classified.push(classify_emission(k, emission, self.rbw_hz));
+                    self.sent.push(classify_emission(k, emission, self.rbw_hz));
                 }
             }
             let Some(q) = self.triggers.as_ref() else { continue };
@@ -134,6 +138,19 @@ impl CensusConsumer {
     /// Gives each emission of the result the classification of the one it grew from, and each
     /// emitter the vote of its emissions.
     fn settle_kinds(&mut self) -> Vec<Option<Box<Classification>>> {
+        if let Some(k) = self.kinds.as_mut() {
+            let answers = k.collect();
+            self.classified = std::mem::take(&mut self.sent)
+                .into_iter()
+                .zip(answers)
+                .map(|((start, end, center_hz), c)| Classified {
+                    start,
+                    end,
+                    center_hz,
+                    class: Box::new(c),
+                })
+                .collect();
+        }
         let Some(r) = self.result.as_ref().filter(|_| self.kinds.is_some()) else {
             return Vec::new();
         };
@@ -182,9 +199,10 @@ fn take_place(places: &mut Vec<(f64, f64, u32)>, e: &Emission) -> bool {
     }
 }
 
-/// Classifies a census emission from the samples held: its detected band's centre and width,
-/// and the noise density its figures were measured against.
-fn classify_emission(k: &mut Kinds, e: &Emission, rbw_hz: f64) -> Classified {
+/// Sends a census emission to be classified from the samples held (its detected band's centre
+/// and width, and the noise density its figures were measured against); its start, end and
+/// centre.
+fn classify_emission(k: &mut Kinds, e: &Emission, rbw_hz: f64) -> (u64, u64, f64) {
     let width = e.high_hz - e.low_hz;
     let noise_psd = Some(e.figures.noise / width.max(rbw_hz)).filter(|d| d.is_finite() && *d > 0.0);
     let span = Span {
@@ -194,12 +212,8 @@ fn classify_emission(k: &mut Kinds, e: &Emission, rbw_hz: f64) -> Classified {
         obw_hz: width,
         noise_psd,
     };
-    Classified {
-        start: span.start,
-        end: span.end,
-        center_hz: span.center_hz,
-        class: Box::new(k.classify(&span)),
-    }
+    k.classify_later(&span);
+    (span.start, span.end, span.center_hz)
 }
 
 /// For each classified emission, the emission of the result it is part of: the one it overlaps

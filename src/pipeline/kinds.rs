@@ -9,7 +9,7 @@
 
 use super::history::{IqHistory, Part, HISTORY_SECONDS};
 use super::{Consumer, RunInfo};
-use crate::measure::classify::{classify, Class, Classification, EmissionIq};
+use crate::measure::classify::{classify, designator, Class, Classification, EmissionIq};
 use crate::source::reader::Block;
 use num_complex::Complex32;
 use std::io;
@@ -44,6 +44,11 @@ pub struct Kinds {
     rate_hz: f64,
     center_hz: f64,
     buf: Vec<Complex32>,
+    /// Workers of [`Kinds::classify_later`], started on first use.
+    pool: Option<Pool>,
+    /// Classifications asked of the workers (or done at once when they could not start).
+    /// Each with its OBW, for the designator of one whose worker failed.
+    later: Vec<(f64, Option<Classification>)>,
 }
 
 impl Kinds {
@@ -61,7 +66,7 @@ impl Kinds {
     }
 
     pub fn with_history(history: IqHistory, rate_hz: f64, center_hz: f64) -> Kinds {
-        Kinds { history, rate_hz, center_hz, buf: Vec::new() }
+        Kinds { history, rate_hz, center_hz, buf: Vec::new(), pool: None, later: Vec::new() }
     }
 
     pub fn push(&mut self, start: u64, samples: &[Complex32]) {
@@ -100,6 +105,61 @@ impl Kinds {
         self.classify_range(range, &span)
     }
 
+    /// As [`Kinds::classify`], on a worker thread: the samples are copied out now and the
+    /// answer is collected, in the order asked, by [`Kinds::collect`]. The run's thread then only
+    /// copies; the workers ([`WORKERS`]) overlap the transforms of the run, and the emissions
+    /// that end together when the input does are shared among them.
+    pub fn classify_later(&mut self, span: &Span) {
+        if self.pool.is_none() {
+            self.pool = Pool::start();
+        }
+        let Some(pool) = self.pool.as_ref() else {
+            // No thread could be started: classify here, as before.
+            let c = self.classify(span);
+            self.later.push((span.obw_hz, Some(c)));
+            return;
+        };
+        let mut samples = Vec::new();
+        if let Some((a, b)) = self.cut(span) {
+            self.history.copy_range(a, b, &mut samples);
+        }
+        let job = Job {
+            index: self.later.len(),
+            samples,
+            rate_hz: self.rate_hz,
+            offset_hz: span.center_hz - self.center_hz,
+            obw_hz: span.obw_hz,
+            noise_psd: span.noise_psd,
+        };
+        self.later.push((span.obw_hz, None));
+        pool.send(job);
+    }
+
+    /// The answers to every [`Kinds::classify_later`] so far, in the order asked (waiting for
+    /// the workers to finish them); the list starts again empty.
+    pub fn collect(&mut self) -> Vec<Classification> {
+        let mut later = std::mem::take(&mut self.later);
+        if let Some(pool) = self.pool.take() {
+            for (i, c) in pool.finish() {
+                if let Some(slot) = later.get_mut(i) {
+                    slot.1 = Some(c);
+                }
+            }
+        }
+        later
+            .into_iter()
+            .map(|(obw_hz, c)| {
+                c.unwrap_or_else(|| Classification {
+                    class: Class::Unknown,
+                    confidence: 0.0,
+                    params: Default::default(),
+                    designator: designator(obw_hz, Class::Unknown),
+                    note: Some("the classifying thread stopped before this emission".into()),
+                })
+            })
+            .collect()
+    }
+
     fn classify_range(&mut self, range: Option<(u64, u64)>, span: &Span) -> Classification {
         self.buf.clear();
         if let Some((a, b)) = range {
@@ -112,6 +172,77 @@ impl Kinds {
             obw_hz: span.obw_hz,
             noise_psd: span.noise_psd,
         })
+    }
+}
+
+/// Worker threads of [`Kinds::classify_later`]: two, so that one overlaps the run's transforms
+/// and the emissions left open at the end of input (all closed at once) are done two at a time.
+pub const WORKERS: usize = 2;
+/// Emissions waiting for a worker before the run's thread waits too (each holds at most
+/// [`TAKE_MAX`] samples, 2 MiB).
+const QUEUE: usize = 8;
+
+/// One emission's samples and where it lay, for a worker.
+struct Job {
+    index: usize,
+    samples: Vec<Complex32>,
+    rate_hz: f64,
+    offset_hz: f64,
+    obw_hz: f64,
+    noise_psd: Option<f64>,
+}
+
+struct Pool {
+    jobs: crossbeam_channel::Sender<Job>,
+    done: crossbeam_channel::Receiver<(usize, Classification)>,
+    threads: Vec<JoinHandle<()>>,
+}
+
+impl Pool {
+    /// None when not even one thread can be started.
+    fn start() -> Option<Pool> {
+        let (jobs, queue) = crossbeam_channel::bounded::<Job>(QUEUE);
+        let (answer, done) = crossbeam_channel::unbounded();
+        let threads: Vec<JoinHandle<()>> = (0..WORKERS)
+            .filter_map(|i| {
+                let (queue, answer) = (queue.clone(), answer.clone());
+                std::thread::Builder::new()
+                    .name(format!("kinds-{i}"))
+                    .spawn(move || {
+                        for job in queue {
+                            let c = classify(&EmissionIq {
+                                samples: &job.samples,
+                                rate_hz: job.rate_hz,
+                                offset_hz: job.offset_hz,
+                                obw_hz: job.obw_hz,
+                                noise_psd: job.noise_psd,
+                            });
+                            if answer.send((job.index, c)).is_err() {
+                                return;
+                            }
+                        }
+                    })
+                    .ok()
+            })
+            .collect();
+        (!threads.is_empty()).then_some(Pool { jobs, done, threads })
+    }
+
+    /// Waits while [`QUEUE`] emissions are waiting already.
+    fn send(&self, job: Job) {
+        // The workers end only when the queue closes, so a send fails only if they all died;
+        // that emission is then reported unclassified by `collect`.
+        let _ = self.jobs.send(job);
+    }
+
+    /// Closes the queue, waits for the workers and hands back every answer.
+    fn finish(self) -> Vec<(usize, Classification)> {
+        let Pool { jobs, done, threads } = self;
+        drop(jobs);
+        for t in threads {
+            let _ = t.join();
+        }
+        done.try_iter().collect()
     }
 }
 
@@ -287,6 +418,30 @@ mod tests {
             std::thread::sleep(Duration::from_millis(10));
         }
         assert_eq!(kinds.latest().iter().map(|g| g.0).collect::<Vec<_>>(), [99.8e6]);
+    }
+
+    #[test]
+    fn classified_later_on_the_workers_is_classified_as_at_once() {
+        // Noise with a carrier at +100 kHz and a second at -200 kHz, 1 MS/s.
+        let mut x = crate::testkit::noise64(&mut crate::testkit::Rng::new(7), 300_000, 1e-5);
+        crate::testkit::add_tone(&mut x, 1e6, 100e3, -20.0, 0.0);
+        crate::testkit::add_tone(&mut x, 1e6, -200e3, -30.0, 1.0);
+        let x = crate::testkit::to_f32(&x);
+        let spans = [
+            Span { start: 0, end: 200_000, center_hz: 100.1e6, obw_hz: 2e3, noise_psd: None },
+            Span { start: 50_000, end: 300_000, center_hz: 99.8e6, obw_hz: 2e3, noise_psd: None },
+            Span { start: 0, end: 300_000, center_hz: 100.4e6, obw_hz: 30e3, noise_psd: None },
+        ];
+        let mut now = Kinds::new(1e6, 100e6);
+        now.push(0, &x);
+        let at_once: Vec<Classification> = spans.iter().map(|s| now.classify(s)).collect();
+        let mut later = Kinds::new(1e6, 100e6);
+        later.push(0, &x);
+        spans.iter().for_each(|s| later.classify_later(s));
+        assert_eq!(later.collect(), at_once);
+        assert_eq!(at_once[0].class, Class::Cw);
+        // Collected: the list starts again.
+        assert!(later.collect().is_empty());
     }
 
     #[test]

@@ -88,16 +88,7 @@ pub(super) fn channelise(input: &EmissionIq) -> Result<Baseband, String> {
     let n_out = ((n_in as f64 * out_rate_goal / rate).round() as usize).clamp(1, n_in);
     let out_rate = n_out as f64 * rate / n_in as f64;
 
-    let step = -2.0 * std::f64::consts::PI * offset / rate;
-    let mut spec: Vec<Complex64> = input.samples[..n_in]
-        .iter()
-        .enumerate()
-        .map(|(n, s)| {
-            let v = Complex64::new(s.re as f64, s.im as f64);
-            let v = if v.re.is_finite() && v.im.is_finite() { v } else { Complex64::new(0.0, 0.0) };
-            v * Complex64::from_polar(1.0, step * n as f64)
-        })
-        .collect();
+    let mut spec = shifted(&input.samples[..n_in], -offset / rate);
     fft(&mut spec, false);
 
     let noise_given = input.noise_psd.is_some_and(|p| p.is_finite() && p >= 0.0);
@@ -147,6 +138,31 @@ pub(super) fn channelise(input: &EmissionIq) -> Result<Baseband, String> {
     })
 }
 
+/// Samples between two exact phasors of the shift: the phasor in between is stepped by one
+/// complex multiplication per sample (a sine and cosine per sample cost more than the FFT),
+/// and its rounding error, about 1e-16 per step, stays under 1e-12 over this many.
+const PHASOR_RESYNC: usize = 1024;
+
+/// `x` in f64 shifted by `cycles` per sample (e^{j2π·cycles·n}); non-finite samples are zero.
+fn shifted(x: &[num_complex::Complex32], cycles: f64) -> Vec<Complex64> {
+    let step = 2.0 * std::f64::consts::PI * cycles;
+    let rot = Complex64::from_polar(1.0, step);
+    let mut phasor = Complex64::new(1.0, 0.0);
+    x.iter()
+        .enumerate()
+        .map(|(n, s)| {
+            if n % PHASOR_RESYNC == 0 {
+                phasor = Complex64::from_polar(1.0, step * n as f64);
+            }
+            let v = Complex64::new(s.re as f64, s.im as f64);
+            let v = if v.re.is_finite() && v.im.is_finite() { v } else { Complex64::new(0.0, 0.0) };
+            let out = v * phasor;
+            phasor *= rot;
+            out
+        })
+        .collect()
+}
+
 /// Noise PSD from the bins of the input spectrum (already shifted) well outside the emission,
 /// away from the band edges (where a receiver's anti-alias filter falls): the median of an
 /// exponential variable is ln 2 times its mean (design notes §3), and the median ignores other
@@ -164,4 +180,29 @@ fn estimate_noise_psd(spec: &[Complex64], rate: f64, obw: f64, offset: f64) -> O
         return None;
     }
     Some(quantile(&p, 0.5) / std::f64::consts::LN_2)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn the_stepped_phasor_shifts_as_sine_and_cosine_do() {
+        let x: Vec<num_complex::Complex32> =
+            (0..100_000).map(|i| num_complex::Complex32::new(1.0, (i % 7) as f32 * 0.1)).collect();
+        let cycles = 0.123_456_789;
+        let got = shifted(&x, cycles);
+        let worst = x
+            .iter()
+            .zip(&got)
+            .enumerate()
+            .map(|(n, (v, g))| {
+                let v = Complex64::new(v.re as f64, v.im as f64);
+                let want =
+                    v * Complex64::from_polar(1.0, 2.0 * std::f64::consts::PI * cycles * n as f64);
+                (want - g).norm()
+            })
+            .fold(0.0, f64::max);
+        assert!(worst < 1e-9, "{worst}");
+    }
 }

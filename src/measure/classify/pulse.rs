@@ -70,10 +70,7 @@ pub fn find(x: &[Complex64], rate_hz: f64, noise_power: f64) -> Option<Pulses> {
     if pulses.len() < 3 || duty >= 0.5 {
         return None;
     }
-    let off: Vec<f64> = (0..n)
-        .filter(|&i| pulses.iter().all(|&(s, e)| (i as f64) < s - 2.0 || (i as f64) > e + 2.0))
-        .map(|i| p[i])
-        .collect();
+    let off = off_samples(&p, &pulses);
     let off_ratio = quantile(&off, 0.5) / on_level;
     if off_ratio > 10f64.powf(-1.5) {
         return None;
@@ -88,6 +85,26 @@ pub fn find(x: &[Complex64], rate_hz: f64, noise_power: f64) -> Option<Pulses> {
         duty,
         off_ratio,
     })
+}
+
+/// The samples of `p` more than two samples away from every pulse `(start, end)`. The pulses
+/// come in time order and do not overlap, so one sweep over both finds them (a noisy envelope
+/// can hold thousands of "pulses", and testing every sample against every pulse cost more than
+/// all the rest of the classification).
+fn off_samples(p: &[f64], pulses: &[(f64, f64)]) -> Vec<f64> {
+    let mut next = 0;
+    let mut off = Vec::with_capacity(p.len());
+    for (i, &v) in p.iter().enumerate() {
+        let t = i as f64;
+        // Pulses ending more than two samples before this one are past for every later sample.
+        while next < pulses.len() && t > pulses[next].1 + 2.0 {
+            next += 1;
+        }
+        if pulses.get(next).map_or(true, |&(s, _)| t < s - 2.0) {
+            off.push(v);
+        }
+    }
+    off
 }
 
 /// The interval of a regular train of edges (missing edges allowed): each edge gets its whole

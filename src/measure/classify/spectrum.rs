@@ -11,14 +11,54 @@ pub(super) fn above(a: f64, b: f64) -> bool {
 }
 
 /// Forward (or inverse, unnormalised) FFT of `x` in place, any length (rustfft plans primes too).
+/// Plans are kept per thread ([`Plans`]): one classification transforms the same few lengths
+/// many times, and planning a long transform (its twiddle factors) costs more than running it.
 pub(super) fn fft(x: &mut [Complex64], inverse: bool) {
     if x.is_empty() {
         return;
     }
-    let mut planner = FftPlanner::<f64>::new();
-    let plan =
-        if inverse { planner.plan_fft_inverse(x.len()) } else { planner.plan_fft_forward(x.len()) };
+    let plan = PLANS.with(|p| p.borrow_mut().plan(x.len(), inverse));
     plan.process(x);
+}
+
+/// Most points of all the plans kept by one thread before they are dropped and planning starts
+/// afresh: twiddles of 2^22 complex f64 are 64 MiB at most, while the lengths of one emission's
+/// analysis (a few of them, up to 2^20) fit several times over.
+const PLANNED_POINTS_MAX: usize = 1 << 22;
+
+/// rustfft's planner (which keeps every plan it made) with a bound on what it keeps: the lengths
+/// differ from emission to emission, so a long run would otherwise keep plans without end.
+struct Plans {
+    planner: FftPlanner<f64>,
+    points: usize,
+    lengths: std::collections::HashSet<(usize, bool)>,
+}
+
+impl Plans {
+    fn plan(&mut self, len: usize, inverse: bool) -> std::sync::Arc<dyn rustfft::Fft<f64>> {
+        if self.lengths.insert((len, inverse)) {
+            self.points += len;
+            if self.points > PLANNED_POINTS_MAX {
+                self.planner = FftPlanner::new();
+                self.lengths.clear();
+                self.lengths.insert((len, inverse));
+                self.points = len;
+            }
+        }
+        if inverse {
+            self.planner.plan_fft_inverse(len)
+        } else {
+            self.planner.plan_fft_forward(len)
+        }
+    }
+}
+
+thread_local! {
+    static PLANS: std::cell::RefCell<Plans> = std::cell::RefCell::new(Plans {
+        planner: FftPlanner::new(),
+        points: 0,
+        lengths: std::collections::HashSet::new(),
+    });
 }
 
 /// Signed frequency of bin `k` of an `n`-point FFT at `rate_hz`.
