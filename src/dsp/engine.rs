@@ -281,6 +281,14 @@ impl Engine {
         }
     }
 
+    /// Emits what has been accumulated and drops the samples of an unfinished frame: the end of
+    /// a dwell of a retuned stream, whose last partial frame must not run on into the next
+    /// tuning's samples.
+    pub fn end_dwell(&mut self, emit: &mut dyn FnMut(&Spectrum)) {
+        self.finish(emit);
+        self.tail.clear();
+    }
+
     /// Turns the accumulated sums into the output spectrum (whose buffer is reused, so rows
     /// allocate nothing) and starts the next accumulation.
     fn take(&mut self) -> &Spectrum {
