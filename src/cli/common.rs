@@ -47,7 +47,7 @@ pub struct InputArgs {
     #[arg(long, value_name = "TIME", value_parser = parse_time)]
     pub start: Option<OffsetDateTime>,
     /// Of a SigMF recording, read only capture segment N (its index in "captures", from 0);
-    /// needed when the segments were recorded at different frequencies.
+    /// segments recorded at different frequencies are otherwise stitched into a panorama.
     #[arg(long, value_name = "N", allow_negative_numbers = true, value_parser = parse_count::<usize>)]
     pub segment: Option<usize>,
     /// Of a multi-channel SigMF recording (core:num_channels above 1), analyse channel C (from
@@ -63,6 +63,23 @@ pub struct InputArgs {
     /// without it the first stream seen is read.
     #[arg(long, value_name = "ID", value_parser = crate::source::vita49::parse_stream_id)]
     pub stream_id: Option<u32>,
+    /// A retuned raw stream: FILE lists the centres the receiver visits in order, one
+    /// 'CENTRE DWELL' a line (e.g. '433.05M 50ms'), repeated until the input ends; the steps
+    /// are stitched into one panorama.
+    #[arg(long, value_name = "FILE")]
+    pub hop_plan: Option<String>,
+    /// Of a retuned input, skip this long after every retune (the receiver settling), e.g. 2ms.
+    #[arg(long, value_name = "DURATION", value_parser = parse_settle)]
+    pub settle: Option<f64>,
+    /// Of a retuned input, the share of each step's span stitched into the panorama (default
+    /// 0.8: the central 80 %, clear of the receiver's filter edges).
+    #[arg(long, value_name = "FRACTION", value_parser = crate::source::tuning::parse_usable)]
+    pub usable: Option<f64>,
+}
+
+/// `--settle`: a duration, zero allowed.
+fn parse_settle(text: &str) -> Result<f64, String> {
+    crate::units::parse_duration(text).map(|d| d.as_secs_f64())
 }
 
 impl InputArgs {
@@ -79,6 +96,9 @@ impl InputArgs {
             input_channel: self.input_channel,
             listen_public: self.listen_public,
             stream_id: self.stream_id,
+            hop_plan: self.hop_plan.clone(),
+            settle_s: self.settle,
+            usable: self.usable,
             stop: None,
         }
     }

@@ -32,6 +32,7 @@ const MAX_TONE_DBFS: f64 = -6.0;
 pub fn run(cfg: CalibrateConfig) -> Result<ExitCode> {
     let src = open_input(&cfg.input)?;
     let info = src.info().clone();
+    crate::pipeline::stitch::refuse_panorama(&info, "calibrate")?;
     let label = sanitize(&info.label);
     let max_samples = cfg.seconds.map(|s| (s * info.sample_rate_hz).round() as u64);
     let spec = RunSpec::new(info.clone(), cfg.dsp.engine(None), cfg.dsp.threads);

@@ -38,6 +38,7 @@ pub fn run(mut cfg: CensusConfig) -> Result<ExitCode> {
     let signals = StopSignals::install(false, Escalation::SecondSignalExits)?;
     let src = open_input_stoppable(&cfg.input, &signals)?;
     let info = src.info().clone();
+    crate::pipeline::stitch::refuse_panorama(&info, "census")?;
     super::settle_calibration(&mut cfg.calibration, &info)?;
     let request = OccupancyRequest {
         dwell_s: cfg.dwell_s,

@@ -25,6 +25,8 @@ pub fn run(mut cfg: MeasureConfig) -> Result<ExitCode> {
     let max_samples = cfg.seconds.map(|s| (s * info.sample_rate_hz).round() as u64);
     let skip_samples = samples_in(cfg.skip, info.sample_rate_hz).map_err(anyhow::Error::msg)?;
     let plan = &cfg.channels.plan;
+    // A retuned input is measured as one panorama; a hole between its steps is refused here.
+    crate::pipeline::stitch::span_of(&info, cfg.dsp.fft_size)?;
     let mut spec = RunSpec::new(info.clone(), cfg.dsp.engine(None), cfg.dsp.threads);
     let request = OccupancyRequest {
         dwell_s: cfg.channels.dwell_s,
@@ -88,6 +90,13 @@ pub fn run(mut cfg: MeasureConfig) -> Result<ExitCode> {
     };
     let counts = InputCounts { samples: whole.samples, issues, dropped: outcome.reader_dropped };
     let mut report = build_report(&settings, &info.label, &spectrum, &counts)?;
+    if info.tuning.is_some() {
+        // A panorama's geometry is its grid (its "rate" the span): say the input's own rate and
+        // time, and the step's FFT size.
+        report.sample_rate_hz = info.sample_rate_hz;
+        report.duration_s = counts.samples as f64 / info.sample_rate_hz;
+        report.fft_size = cfg.dsp.fft_size;
+    }
     for p in &mut report.peaks {
         p.classified = Some(ClassFields::of(&kinds.classify_newest(p.freq_hz, p.obw_hz)));
     }

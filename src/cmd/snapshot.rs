@@ -31,8 +31,9 @@ pub fn run(mut cfg: SnapshotConfig) -> Result<ExitCode> {
     let info = src.info().clone();
     super::settle_calibration(&mut cfg.calibration, &info)?;
     let rate = info.sample_rate_hz;
+    // A retuned input is one panorama (its span the steps' union); a hole in it is refused here.
+    let (lo, hi) = crate::pipeline::stitch::span_of(&info, cfg.dsp.fft_size)?;
     if !cfg.plan.is_empty() {
-        let (lo, hi) = (info.center_hz - rate / 2.0, info.center_hz + rate / 2.0);
         cfg.plan.check_span(lo, hi)?;
     }
     let mut inputs: Vec<PathBuf> = cfg.plan_path.iter().map(PathBuf::from).collect();

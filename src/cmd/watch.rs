@@ -46,6 +46,7 @@ pub fn run(mut cfg: WatchConfig) -> Result<ExitCode> {
     let src = open_input_stoppable(&cfg.input, &opening)?;
     drop(opening);
     let info = src.info().clone();
+    crate::pipeline::stitch::refuse_panorama(&info, "watch")?;
     super::settle_calibration(&mut cfg.calibration, &info)?;
     let half = info.sample_rate_hz / 2.0;
     cfg.plan.check_span(info.center_hz - half, info.center_hz + half)?;

@@ -320,6 +320,14 @@ impl Engine {
             emit(self.sums.take());
         }
     }
+
+    /// Emits what has been accumulated and drops the samples of an unfinished frame: the end of
+    /// a dwell of a retuned stream, whose last partial frame must not run on into the next
+    /// tuning's samples.
+    pub fn end_dwell(&mut self, emit: Emit<'_>) {
+        self.finish(emit);
+        self.tail.clear();
+    }
 }
 
 #[cfg(test)]

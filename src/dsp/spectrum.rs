@@ -37,6 +37,18 @@ impl Geometry {
         }
     }
 
+    /// The geometry of a panorama of `bins` bins of this width, centred on `center_hz` (see
+    /// `measure::panorama`): `fft_size` is then the bin count and `sample_rate_hz` the span it
+    /// covers, so every reading of bins and span holds; window, ENBW and RBW stay the step's.
+    pub fn widened(&self, center_hz: f64, bins: usize) -> Geometry {
+        Geometry {
+            center_hz,
+            sample_rate_hz: self.bin_hz() * bins as f64,
+            fft_size: bins,
+            ..self.clone()
+        }
+    }
+
     /// Width of one FFT bin in hertz.
     pub fn bin_hz(&self) -> f64 {
         self.sample_rate_hz / self.fft_size as f64

@@ -8,6 +8,7 @@ pub mod change;
 pub mod classify;
 pub mod noise;
 pub mod occupancy;
+pub mod panorama;
 pub mod signals;
 pub mod stats;
 pub mod vote;

@@ -118,6 +118,7 @@ mod tests {
             live: false,
             segments,
             reference_level_dbm: None,
+            tuning: None,
         }
     }
 

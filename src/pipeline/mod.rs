@@ -39,6 +39,7 @@ pub mod occupancy;
 pub mod outbox;
 pub mod run;
 pub mod session;
+pub mod stitch;
 pub mod stop;
 
 pub use clock::Clock;

@@ -49,8 +49,8 @@ impl OccupancySetup {
         let rate = info.sample_rate_hz;
         let n = dsp.fft_size;
         let bin = rate / n as f64;
-        let span_lo = info.center_hz - (n / 2) as f64 * bin - bin / 2.0;
-        plan.check_span_within(span_lo, span_lo + rate, bin)?;
+        let (span_lo, span_hi) = super::stitch::span_of(info, n)?;
+        plan.check_span_within(span_lo, span_hi, bin)?;
         let hop = dsp.hop();
         let k = frames_per_sample(rate, hop, req.dwell_s).map_err(anyhow::Error::msg)?;
         let timing =

@@ -9,6 +9,7 @@
 use super::input::Input;
 use super::kinds::{Kinds, Span};
 use super::outbox::Outbox;
+use super::stitch::Stitch;
 use super::stop::{StopReason, StopSignals};
 use super::{Clock, Consumer, Flow, GapCause, Lost, RunEnd, RunInfo, TimeSource};
 use crate::dsp::{Engine, EngineConfig, Spectrum};
@@ -89,11 +90,19 @@ pub struct Run<'a> {
     /// Why the run cannot go on (a row that is not finite), once found.
     failure: Option<String>,
     kernels: Kernels,
+    /// A retuned input's dwells being stitched into a panorama (`None`: the input stays put).
+    stitch: Option<Stitch>,
 }
 
 impl<'a> Run<'a> {
     pub fn new(spec: RunSpec, consumers: Vec<&'a mut dyn Consumer>) -> Run<'a> {
         let engine = new_engine(&spec.engine, &spec.source, spec.threads);
+        // Commands check the grid before they build a run (`stitch::span_of`); should one not,
+        // its error stops the run at the first block.
+        let (stitch, failure) = match Stitch::new(&spec.source, &spec.engine) {
+            Ok(s) => (s, None),
+            Err(e) => (None, Some(e.to_string())),
+        };
         let time_source =
             if spec.start_time.is_some() { spec.time_source } else { TimeSource::None };
         let info = RunInfo {
@@ -122,8 +131,9 @@ impl<'a> Run<'a> {
             next_sample: 0,
             lost: Lost::default(),
             stop_asked: false,
-            failure: None,
+            failure,
             kernels: Kernels::detect(),
+            stitch,
         }
     }
 
@@ -218,20 +228,41 @@ impl<'a> Run<'a> {
         Ok(self.stop_asked.then_some(StopReason::Limit))
     }
 
-    /// Runs samples starting at index `start` through the engine.
+    /// Runs samples starting at index `start` through the engine (dwell by dwell for a retuned
+    /// input).
     fn push(&mut self, start: u64, samples: &[Complex32]) -> io::Result<()> {
+        if self.stitch.is_some() {
+            return self.deliver_with(|engine, stitch, emit| {
+                if let Some(s) = stitch {
+                    s.push(engine, start, samples, emit);
+                }
+            });
+        }
         self.drive(|engine, emit| engine.push(start, samples, emit))
     }
 
-    /// Lets `step` work the engine, handing every row it emits on (see [`Delivery`]).
+    /// Lets `step` work the engine, handing every row it emits on (see [`Delivery`]); a row is
+    /// complete when it holds one output's worth of frames.
     fn drive(
         &mut self,
         step: impl FnOnce(&mut Engine, &mut dyn FnMut(&Spectrum)),
     ) -> io::Result<()> {
         let k = self.info.engine.frames_per_output;
-        let Run { engine, tracker, events, consumers, stop_asked, failure, info, .. } = self;
+        self.deliver_with(|engine, _, emit| {
+            step(engine, &mut |row| emit(row, !matches!(k, Some(k) if row.frames != k)))
+        })
+    }
+
+    /// Lets `step` work the engine (and the stitch), handing every row it emits, complete or
+    /// not, on (see [`Delivery`]).
+    fn deliver_with(
+        &mut self,
+        step: impl FnOnce(&mut Engine, &mut Option<Stitch>, &mut dyn FnMut(&Spectrum, bool)),
+    ) -> io::Result<()> {
+        let Run { engine, stitch, tracker, events, consumers, stop_asked, failure, info, .. } =
+            self;
         let mut failed = None;
-        step(engine, &mut |row: &Spectrum| {
+        step(engine, stitch, &mut |row: &Spectrum, complete| {
             let mut ctx = Delivery {
                 consumers,
                 tracker,
@@ -241,7 +272,7 @@ impl<'a> Run<'a> {
                 info,
                 failed: &mut failed,
             };
-            ctx.deliver(row, k);
+            ctx.deliver(row, complete);
         });
         failed.map_or(Ok(()), Err)
     }
@@ -336,11 +367,22 @@ impl<'a> Run<'a> {
     /// Hands every row still inside the engine on: complete ones as rows, the last, shorter one
     /// as a partial row (it would be a shorter sample, or straddle a gap).
     fn drain_rows(&mut self) -> io::Result<()> {
+        if self.stitch.is_some() {
+            return self.deliver_with(|engine, stitch, emit| {
+                if let Some(s) = stitch {
+                    s.finish(engine, emit);
+                }
+            });
+        }
         self.drive(|engine, emit| engine.finish(emit))
     }
 
     fn gap(&mut self, from: u64, to: u64, cause: GapCause) -> io::Result<()> {
-        self.drain_rows()?;
+        match self.stitch.as_mut() {
+            // The dwell goes on after the gap; its sweep is not over.
+            Some(s) => s.gap(&mut self.engine),
+            None => self.drain_rows()?,
+        }
         if let Some(t) = self.tracker.as_mut() {
             t.gap(from, to, &mut self.events);
         }
@@ -397,7 +439,7 @@ struct Delivery<'r, 'a> {
 }
 
 impl Delivery<'_, '_> {
-    fn deliver(&mut self, row: &Spectrum, frames_per_output: Option<u64>) {
+    fn deliver(&mut self, row: &Spectrum, complete: bool) {
         if self.failed.is_some() || self.failure.is_some() {
             return;
         }
@@ -405,7 +447,6 @@ impl Delivery<'_, '_> {
             *self.failure = Some(overflow_message(&self.info.source));
             return;
         }
-        let complete = !matches!(frames_per_output, Some(k) if row.frames != k);
         if complete {
             if let Some(t) = self.tracker.as_mut() {
                 t.push(row, self.events);

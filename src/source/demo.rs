@@ -287,6 +287,7 @@ impl DemoSource {
                 live: realtime,
                 segments: Vec::new(),
                 reference_level_dbm: None,
+                tuning: None,
             },
             realtime,
             started: None,

@@ -12,6 +12,7 @@ pub mod reader;
 pub mod real;
 pub mod sigmf;
 pub mod tcp;
+pub mod tuning;
 pub mod vita49;
 pub mod wav;
 
@@ -44,6 +45,9 @@ pub struct SourceInfo {
     /// The power (dBm) at the stream's reference point that full scale (0 dBFS) stands for,
     /// when the stream says (a VITA 49 context's reference level); `None` for other sources.
     pub reference_level_dbm: Option<f64>,
+    /// Where the receiver was tuned over the stream, when it was retuned (SigMF captures at
+    /// different `core:frequency`, `--hop-plan`): the run then stitches a panorama.
+    pub tuning: Option<tuning::Tuning>,
 }
 
 impl SourceInfo {
@@ -60,6 +64,7 @@ impl SourceInfo {
             live: false,
             segments: Vec::new(),
             reference_level_dbm: None,
+            tuning: None,
         }
     }
 
@@ -75,6 +80,7 @@ impl SourceInfo {
             live: true,
             segments: Vec::new(),
             reference_level_dbm: None,
+            tuning: None,
         }
     }
 }
@@ -194,6 +200,12 @@ pub struct InputRequest {
     pub listen_public: bool,
     /// Of a VITA 49 input, the stream to read (`None`: the first seen).
     pub stream_id: Option<u32>,
+    /// A raw stream's tuning: a file of `CENTRE DWELL` lines (see [`tuning::parse_hop_plan`]).
+    pub hop_plan: Option<String>,
+    /// Seconds skipped after every retune of a retuned input.
+    pub settle_s: Option<f64>,
+    /// Share of each step's span kept in a panorama (default [`tuning::DEFAULT_USABLE`]).
+    pub usable: Option<f64>,
     /// Set by a stop signal: a source that waits while opening gives up
     /// ([`StoppedWhileOpening`]).
     pub stop: Option<std::sync::Arc<std::sync::atomic::AtomicBool>>,
@@ -244,7 +256,7 @@ pub fn open(req: &InputRequest, notes: &mut Vec<String>) -> Result<Box<dyn Sampl
     if !req.path.as_deref().is_some_and(is_sigmf_name) {
         refuse_sigmf_choices(req)?;
     }
-    let src = open_unchecked(req, notes)?;
+    let src = tuning::apply(open_unchecked(req, notes)?, req)?;
     check_info(src.info(), notes)?;
     Ok(src)
 }

@@ -88,6 +88,7 @@ pub fn open_file(
         live: false,
         segments: Vec::new(),
         reference_level_dbm: None,
+        tuning: None,
     };
     Ok(Box::new(RawSource::new(Box::new(FileStream { file, offset: 0 }), format, info)))
 }
@@ -227,6 +228,7 @@ mod tests {
             live: false,
             segments: Vec::new(),
             reference_level_dbm: None,
+            tuning: None,
         }
     }
 

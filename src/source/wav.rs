@@ -67,6 +67,7 @@ pub fn open(
         live: false,
         segments: Vec::new(),
         reference_level_dbm: None,
+        tuning: None,
     };
     Ok(Box::new(WavSource {
         path: path.to_string(),

@@ -384,6 +384,8 @@ mod tests {
             peak_dbm: None,
             noise_floor_dbm_per_hz: None,
             channel_floor_dbm_per_hz: None,
+            observation_s: None,
+            revisit_s: None,
         };
         gauges.record(&stamped(Record::Interval(lost)));
         let labels = [("site", ""), ("channel", "telem"), ("what", "busier")];

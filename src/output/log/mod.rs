@@ -243,6 +243,8 @@ mod tests {
                 peak_dbm: Some(-52.4),
                 noise_floor_dbm_per_hz: Some(-133.8),
                 channel_floor_dbm_per_hz: Some(-133.6),
+                observation_s: None,
+                revisit_s: None,
             }),
             Record::Emission(EmissionRecord {
                 channel: "north-gate".into(),

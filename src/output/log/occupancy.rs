@@ -5,6 +5,7 @@ use crate::measure::calibration::Calibration;
 use crate::measure::occupancy::{
     Event, IntervalSummary, FLOOR_MEMORY_S, FLOOR_SMOOTHING_S, OBW_PERCENT,
 };
+use crate::measure::panorama::{view_times, ViewTimes};
 use crate::output::class_fields::ClassFields;
 use crate::output::levels::round_to;
 use crate::output::log::alarms::AlarmLog;
@@ -15,6 +16,7 @@ use crate::output::log::{
 };
 use crate::pipeline::clock::rfc3339_ms;
 use crate::pipeline::occupancy::OccupancySetup;
+use crate::pipeline::stitch::grid_of;
 use crate::pipeline::{Consumer, GapCause, Letter, RunEnd, RunInfo};
 use crate::plan::Plan;
 use crate::source::reader::Block;
@@ -62,6 +64,8 @@ pub fn interval_record(
         peak_dbm: dbm(peak_dbfs),
         noise_floor_dbm_per_hz: dbm(floor),
         channel_floor_dbm_per_hz: dbm(channel_floor),
+        observation_s: None,
+        revisit_s: None,
     }
 }
 
@@ -89,6 +93,8 @@ pub struct OccupancyLog<W: Write> {
     pending_gaps: Vec<PendingGap>,
     /// The run, as told at its start, for writing gathered gaps between its calls.
     run_info: Option<RunInfo>,
+    /// Of a panorama, per plan channel: how long it is in view (see [`ViewTimes`]).
+    views: Vec<Option<ViewTimes>>,
     /// Change alarms (`--alarms`): fed every interval record.
     alarms: Option<AlarmLog>,
     /// dBFS → dBm: with it every level gets a `_dbm` twin.
@@ -154,6 +160,7 @@ impl<W: Write> OccupancyLog<W> {
             taps: Vec::new(),
             pending_gaps: Vec::new(),
             run_info: None,
+            views: Vec::new(),
             alarms: None,
             calibration: None,
         }
@@ -277,7 +284,14 @@ impl<W: Write> OccupancyLog<W> {
         match event {
             Event::Interval(i) => {
                 let l = &self.plan.channels[i.channel];
-                Some(Record::Interval(interval_record(i, l, c, self.calibration.as_ref())))
+                let mut r = interval_record(i, l, c, self.calibration.as_ref());
+                if let Some(v) = self.views.get(i.channel).copied().flatten() {
+                    // One measurement sample per sweep: each is one sweep's visits.
+                    r.observation_s =
+                        Some(round_to(i.samples as f64 * v.observation_per_sweep_s, 6));
+                    r.revisit_s = v.revisit_s.map(|s| round_to(s, 6));
+                }
+                Some(Record::Interval(r))
             }
             Event::Emission(e) => {
                 let l = &self.plan.channels[e.channel];
@@ -309,6 +323,15 @@ impl<W: Write> OccupancyLog<W> {
 impl<W: Write> Consumer for OccupancyLog<W> {
     fn start(&mut self, run: &RunInfo) -> io::Result<()> {
         self.run_info = Some(run.clone());
+        let src = &run.source;
+        if let (Some(t), Ok(Some(grid))) = (&src.tuning, grid_of(src, self.setup.engine.fft_size)) {
+            self.views = self
+                .plan
+                .channels
+                .iter()
+                .map(|c| view_times(t, &grid, src.sample_rate_hz, c.low_hz(), c.high_hz()))
+                .collect();
+        }
         let mut headers = vec![Record::Start(self.start_record(run))];
         for (c, def) in self.plan.channels.iter().zip(&self.setup.channels) {
             headers.push(Record::Channel(ChannelRecord {

@@ -108,6 +108,13 @@ pub struct IntervalRecord {
     pub noise_floor_dbm_per_hz: Option<f64>,
     #[serde(skip_serializing_if = "Option::is_none")]
     pub channel_floor_dbm_per_hz: Option<f64>,
+    /// Of a panorama: seconds the channel was in view in this interval (ITU-R Report SM.2256's
+    /// observation time, summed over its visits), and the time from one visit to the next
+    /// (its revisit time). Absent for an input that stays at one centre (always in view).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub observation_s: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub revisit_s: Option<f64>,
 }
 
 #[derive(Serialize, Debug, Clone, PartialEq)]
@@ -287,4 +294,6 @@ pub const CSV_COLUMNS: &[&str] = &[
     "peak_dbm",
     "noise_floor_dbm_per_hz",
     "channel_floor_dbm_per_hz",
+    "observation_s",
+    "revisit_s",
 ];

@@ -115,23 +115,9 @@ pub fn layout(
         ranges.push(start..end);
     }
 
-    // One centre frequency per run unless one segment is chosen.
+    // Captures at different centres are dwells of a retuned receiver: stitched into a panorama
+    // (see `source::tuning`), unless one segment is chosen.
     let stated = caps.iter().find_map(|c| c.center_hz);
-    if choice.segment.is_none() {
-        if let Some((k, f)) = caps
-            .iter()
-            .enumerate()
-            .find_map(|(k, c)| c.center_hz.filter(|f| Some(*f) != stated).map(|f| (k, f)))
-        {
-            let first = caps.iter().position(|c| c.center_hz.is_some()).unwrap_or(0);
-            bail!(
-                "'{name}': capture segments have different core:frequency (captures[{first}] at {} Hz, captures[{k}] at {f} Hz); bandwarden analyses one centre frequency at a time: measure one segment with --segment N (0 to {}), or split the recording",
-                stated.unwrap_or(0.0),
-                caps.len() - 1
-            );
-        }
-    }
-
     let chosen: Vec<usize> = match choice.segment {
         Some(k) => vec![k],
         None => (0..caps.len()).collect(),

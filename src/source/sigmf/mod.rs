@@ -6,8 +6,9 @@
 //! `core:trailing_bytes`, `core:dataset`, `core:metadata_only`, and of every capture segment
 //! `core:sample_start`, `core:global_index`, `core:frequency`, `core:datetime` and
 //! `core:header_bytes` (see [`layout`] for where samples lie). Every segment is read in order,
-//! header and trailing bytes skipped; segments of different frequencies are refused unless one
-//! is chosen (`--segment`), and a multi-channel recording is refused unless one channel is
+//! header and trailing bytes skipped; segments of different frequencies are the dwells of a
+//! retuned receiver, stitched into a panorama ([`super::tuning`]) unless one is chosen
+//! (`--segment`), and a multi-channel recording is refused unless one channel is
 //! chosen (`--input-channel`). Command-line options override what the file says.
 //!
 //! `core:dataset` is resolved against the meta file's folder and must stay inside it: an
@@ -24,6 +25,7 @@ mod stream;
 pub use meta::{parse_meta, Capture, Meta, MAX_META_BYTES};
 
 use super::raw::RawSource;
+use super::tuning::Tuning;
 use super::{sanitize, InputRequest, SampleFormat, SampleSource, SourceInfo};
 use anyhow::{bail, Context, Result};
 use layout::{Choice, Overrides};
@@ -87,6 +89,9 @@ pub fn open(path: &str, req: &InputRequest) -> Result<Box<dyn SampleSource>> {
         start_time: first.start_time,
         total_samples: Some(lay.total_samples),
         live: false,
+        tuning: Tuning::from_segments(
+            &lay.segments.iter().map(|s| (s.sample_start, s.center_hz)).collect::<Vec<_>>(),
+        ),
         segments: lay.segments,
         reference_level_dbm: None,
     };

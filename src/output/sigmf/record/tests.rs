@@ -19,6 +19,7 @@ fn info(format: SampleFormat, live: bool, segments: Vec<Segment>) -> SourceInfo 
         live,
         segments,
         reference_level_dbm: None,
+        tuning: None,
     }
 }
 

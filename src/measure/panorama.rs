@@ -1,0 +1,368 @@
+//! A panorama: the spectra of a retuned receiver's dwells stitched onto one fixed wide grid.
+//!
+//! Why this shape: every consumer (tracker, `measure`'s average, pictures, census) already reads
+//! a [`Spectrum`] through its [`Geometry`]; a panorama row is such a spectrum whose bins run over
+//! every centre visited, at the same bin width as one step (rate / FFT size), so downstream
+//! nothing needs to know the receiver moved. The grid is fixed before the first sample: each
+//! distinct centre keeps its usable bins (those whose centres lie in the central `usable`
+//! share of the rate), and a grid bin takes the bin of the same frequency (nearest centre, so within half a
+//! bin). The union must leave no hole: a bin never in view would be neither busy nor idle.
+//!
+//! Per grid bin the accumulator keeps the power sum of the current sweep, its frame count and
+//! degrees of freedom, and the end sample of the last dwell that saw it ([`Panorama::last_seen`]).
+//! A sweep is complete when every distinct centre has been visited once since the last row;
+//! then [`Panorama::take`] turns the sums into one wide row (linear power averaged over the
+//! frames that saw each bin, Welch 1967) and starts the next sweep.
+
+use crate::dsp::{Geometry, Spectrum};
+use crate::source::tuning::Tuning;
+use crate::units::format_hz;
+use std::sync::Arc;
+
+/// Where one distinct centre's usable bins land on the grid.
+#[derive(Clone, Debug, PartialEq)]
+struct Placement {
+    center_hz: f64,
+    /// First and last usable bin of a dwell's spectrum (fftshift order).
+    first: usize,
+    last: usize,
+    /// Grid index = dwell bin index + `offset`.
+    offset: isize,
+}
+
+/// The wide grid a tuning's steps are stitched onto.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Grid {
+    places: Vec<Placement>,
+    /// Grid index of each of the tuning's steps' centre (into `places`).
+    step_place: Vec<usize>,
+    pub bins: usize,
+    pub bin_hz: f64,
+    /// Centre of grid bin 0.
+    pub first_hz: f64,
+}
+
+impl Grid {
+    /// Lays out the grid for a tuning at `rate_hz` with `fft_size` bins per step; an error names
+    /// a hole between two steps' usable bands and how to close it.
+    pub fn new(tuning: &Tuning, rate_hz: f64, fft_size: usize) -> Result<Grid, String> {
+        let bin_hz = rate_hz / fft_size as f64;
+        let half = (fft_size / 2) as f64;
+        let keep = tuning.usable * rate_hz / 2.0 / bin_hz;
+        // Bin i lies (i − N/2) bins from the centre: keep it when that is in [−keep, +keep), so
+        // that steps `usable · rate` apart tile the grid without hole or overlap.
+        let first = (half - keep - 1e-9).ceil().max(0.0) as usize;
+        let last = (((half + keep - 1e-9).ceil() as usize).max(1) - 1).min(fft_size - 1);
+        if last < first {
+            return Err(format!(
+                "--usable {} keeps no whole bin of a {fft_size}-point FFT; give a larger share",
+                tuning.usable
+            ));
+        }
+        let centres = tuning.centres();
+        let low = |c: f64| c + (first as f64 - half) * bin_hz;
+        let first_hz = centres.iter().map(|&c| low(c)).fold(f64::INFINITY, f64::min);
+        let places: Vec<Placement> = centres
+            .iter()
+            .map(|&c| Placement {
+                center_hz: c,
+                first,
+                last,
+                offset: ((low(c) - first_hz) / bin_hz).round() as isize - first as isize,
+            })
+            .collect();
+        let bins =
+            places.iter().map(|p| (p.last as isize + p.offset) as usize + 1).max().unwrap_or(0);
+        let mut covered = vec![false; bins];
+        for p in &places {
+            let from = (p.first as isize + p.offset) as usize;
+            covered[from..=(p.last as isize + p.offset) as usize]
+                .iter_mut()
+                .for_each(|c| *c = true);
+        }
+        if let Some(hole) = covered.iter().position(|c| !c) {
+            let end = covered[hole..].iter().position(|c| *c).map_or(bins, |k| hole + k);
+            return Err(format!(
+                "the steps leave {} .. {} never in view (each step keeps the central {:.0} % of {}): a panorama must be gapless; give a larger --usable, a hop plan with closer centres, or analyse one capture with --segment N",
+                format_hz(first_hz + hole as f64 * bin_hz),
+                format_hz(first_hz + end as f64 * bin_hz),
+                tuning.usable * 100.0,
+                format_hz(rate_hz)
+            ));
+        }
+        let step_place = tuning
+            .steps
+            .iter()
+            .map(|s| centres.iter().position(|&c| c == s.center_hz).unwrap_or(0))
+            .collect();
+        Ok(Grid { places, step_place, bins, bin_hz, first_hz })
+    }
+
+    /// Lowest and highest frequency of the panorama (outer bin edges).
+    pub fn span_hz(&self) -> (f64, f64) {
+        let lo = self.first_hz - self.bin_hz / 2.0;
+        (lo, lo + self.bins as f64 * self.bin_hz)
+    }
+
+    /// Distinct centres visited, lowest first.
+    pub fn centres(&self) -> Vec<f64> {
+        self.places.iter().map(|p| p.center_hz).collect()
+    }
+
+    /// Which distinct centres see the band `[low_hz, high_hz]` whole.
+    pub fn centres_seeing(&self, low_hz: f64, high_hz: f64) -> Vec<usize> {
+        let eps = 1e-6 * self.bin_hz;
+        (0..self.places.len())
+            .filter(|&k| {
+                let p = &self.places[k];
+                let lo = self.first_hz + (p.first as isize + p.offset) as f64 * self.bin_hz;
+                let hi = self.first_hz + (p.last as isize + p.offset) as f64 * self.bin_hz;
+                lo - self.bin_hz / 2.0 <= low_hz + eps && high_hz - eps <= hi + self.bin_hz / 2.0
+            })
+            .collect()
+    }
+
+    /// The distinct centre (index into [`Grid::centres`]) of the tuning's step `step`.
+    pub fn place_of_step(&self, step: usize) -> usize {
+        self.step_place[step]
+    }
+}
+
+/// How long a channel is in view in a panorama, in ITU-R Report SM.2256's terms (from memory):
+/// the observation time is the time the receiver spends on the channel, the revisit time the
+/// time from the start of one visit to the start of the next.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct ViewTimes {
+    /// Seconds in view per sweep (every dwell whose usable band holds the whole channel, less
+    /// the settling time).
+    pub observation_per_sweep_s: f64,
+    /// Mean seconds between the starts of successive visits; `None` with fewer than two.
+    pub revisit_s: Option<f64>,
+}
+
+/// The view times of the channel `[low_hz, high_hz]`; `None` when no step sees it whole.
+pub fn view_times(
+    tuning: &Tuning,
+    grid: &Grid,
+    rate_hz: f64,
+    low_hz: f64,
+    high_hz: f64,
+) -> Option<ViewTimes> {
+    let seeing = grid.centres_seeing(low_hz, high_hz);
+    let steps = &tuning.steps;
+    let mut visits = Vec::new();
+    let mut observed = 0u64;
+    for (k, s) in steps.iter().enumerate() {
+        if !seeing.contains(&grid.place_of_step(k)) {
+            continue;
+        }
+        visits.push(s.start);
+        // The last dwell of a recording has no known end: its length is left out.
+        let end = steps.get(k + 1).map(|n| n.start).or(tuning.period);
+        if let Some(end) = end {
+            observed += (end - s.start).saturating_sub(tuning.settle_samples);
+        }
+    }
+    if visits.is_empty() {
+        return None;
+    }
+    // Sweeps in the timeline: a hop plan is one; a recording visits its least seen centre once
+    // a sweep.
+    let sweeps = match tuning.period {
+        Some(_) => 1,
+        None => (0..grid.places.len())
+            .map(|p| (0..steps.len()).filter(|&k| grid.place_of_step(k) == p).count())
+            .min()
+            .unwrap_or(1)
+            .max(1),
+    };
+    let revisit = match tuning.period {
+        Some(p) => Some(p as f64 / visits.len() as f64),
+        None if visits.len() > 1 => {
+            Some((visits[visits.len() - 1] - visits[0]) as f64 / (visits.len() - 1) as f64)
+        }
+        None => None,
+    };
+    Some(ViewTimes {
+        observation_per_sweep_s: observed as f64 / sweeps as f64 / rate_hz,
+        revisit_s: revisit.map(|r| r / rate_hz),
+    })
+}
+
+/// The accumulator of one panorama.
+pub struct Panorama {
+    grid: Grid,
+    sum: Vec<f64>,
+    frames: Vec<u64>,
+    dof: Vec<f64>,
+    /// End sample (one past) of the last dwell that saw each bin; `None`: never yet.
+    last_seen: Vec<Option<u64>>,
+    /// Distinct centres visited in the current sweep.
+    visited: Vec<bool>,
+    first_sample: Option<u64>,
+    end_sample: u64,
+    out: Spectrum,
+}
+
+impl Panorama {
+    /// `step` is the geometry of one dwell's spectra (window, rate, FFT size).
+    pub fn new(grid: Grid, step: &Geometry) -> Panorama {
+        let n = grid.bins;
+        let center = grid.first_hz + (n / 2) as f64 * grid.bin_hz;
+        let out = Spectrum::empty(Arc::new(step.widened(center, n)));
+        Panorama {
+            sum: vec![0.0; n],
+            frames: vec![0; n],
+            dof: vec![0.0; n],
+            last_seen: vec![None; n],
+            visited: vec![false; grid.places.len()],
+            first_sample: None,
+            end_sample: 0,
+            out,
+            grid,
+        }
+    }
+
+    pub fn grid(&self) -> &Grid {
+        &self.grid
+    }
+
+    /// Adds one spectrum of a dwell at the tuning's step `step`: its usable bins, weighted by
+    /// its frames.
+    pub fn add(&mut self, step: usize, row: &Spectrum) {
+        let place = &self.grid.places[self.grid.place_of_step(step)];
+        let w = row.frames as f64;
+        for i in place.first..=place.last {
+            let j = (i as isize + place.offset) as usize;
+            self.sum[j] += row.psd[i] * w;
+            self.frames[j] += row.frames;
+            self.dof[j] += row.dof;
+            self.last_seen[j] = Some(row.end_sample);
+        }
+        self.first_sample.get_or_insert(row.first_sample);
+        self.end_sample = self.end_sample.max(row.end_sample);
+    }
+
+    /// Marks the dwell at step `step` over; true when the sweep is now complete (every centre
+    /// visited since the last row).
+    pub fn dwell_done(&mut self, step: usize) -> bool {
+        let k = self.grid.place_of_step(step);
+        self.visited[k] = true;
+        self.visited.iter().all(|v| *v)
+    }
+
+    /// True when frames were added since the last row.
+    pub fn pending(&self) -> bool {
+        self.first_sample.is_some()
+    }
+
+    /// End sample of the last dwell that saw each grid bin (`None`: never in view yet).
+    pub fn last_seen(&self) -> &[Option<u64>] {
+        &self.last_seen
+    }
+
+    /// The current sweep as one wide row, and a new sweep begun. A bin not seen in this sweep
+    /// (only at the end of input, a partial sweep) keeps its last value, stale.
+    pub fn take(&mut self) -> &Spectrum {
+        let out = &mut self.out;
+        let mut min_frames = u64::MAX;
+        let mut min_dof = f64::INFINITY;
+        for j in 0..self.sum.len() {
+            if self.frames[j] > 0 {
+                out.psd[j] = self.sum[j] / self.frames[j] as f64;
+                min_frames = min_frames.min(self.frames[j]);
+                min_dof = min_dof.min(self.dof[j]);
+            }
+        }
+        out.frames = if min_frames == u64::MAX { 0 } else { min_frames };
+        out.dof = if min_dof.is_finite() { min_dof } else { 0.0 };
+        out.first_sample = self.first_sample.take().unwrap_or(self.end_sample);
+        out.end_sample = self.end_sample;
+        self.sum.iter_mut().for_each(|s| *s = 0.0);
+        self.frames.iter_mut().for_each(|f| *f = 0);
+        self.dof.iter_mut().for_each(|d| *d = 0.0);
+        self.visited.iter_mut().for_each(|v| *v = false);
+        &self.out
+    }
+
+    /// True when some grid bin has never been in view (only before the first sweep ends).
+    pub fn has_unseen(&self) -> bool {
+        self.last_seen.iter().any(Option::is_none)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::dsp::{Window, WindowKind};
+    use crate::source::tuning::{Step, Tuning};
+
+    fn tuning(centres: &[f64], usable: f64) -> Tuning {
+        let steps = centres
+            .iter()
+            .enumerate()
+            .map(|(k, &c)| Step { start: 1000 * k as u64, center_hz: c })
+            .collect();
+        Tuning { steps, period: None, settle_samples: 0, usable }
+    }
+
+    #[test]
+    fn steps_tile_the_grid_at_the_step_bin_width() {
+        // 1 MS/s, 1000 bins of 1 kHz, 80 % usable: 800 bins per step; centres 800 kHz apart
+        // tile 4 × 800 = 3200 bins exactly.
+        let t = tuning(&[100e6, 100.8e6, 101.6e6, 102.4e6], 0.8);
+        let g = Grid::new(&t, 1e6, 1000).unwrap();
+        assert_eq!((g.bins, g.bin_hz), (3200, 1e3));
+        let (lo, hi) = g.span_hz();
+        // Bin centres 99.6 MHz .. 102.799 MHz, edges half a bin beyond.
+        assert!((lo - 99.5995e6).abs() < 1.0 && (hi - 102.7995e6).abs() < 1.0, "{lo} {hi}");
+        assert_eq!(g.centres_seeing(100.79e6, 100.81e6), vec![1]);
+    }
+
+    #[test]
+    fn a_channel_is_in_view_for_its_dwells_less_settling() {
+        // A hop plan of four 50 ms dwells at 1 MS/s, 2 ms settling: a channel inside one step
+        // is observed 48 ms a sweep and revisited every 200 ms (one sweep).
+        let mut t = tuning(&[100e6, 100.8e6, 101.6e6, 102.4e6], 0.8);
+        t.steps.iter_mut().enumerate().for_each(|(k, s)| s.start = 50_000 * k as u64);
+        t.period = Some(200_000);
+        t.settle_samples = 2_000;
+        let g = Grid::new(&t, 1e6, 1000).unwrap();
+        let v = view_times(&t, &g, 1e6, 100.79e6, 100.795e6).unwrap();
+        assert!((v.observation_per_sweep_s - 0.048).abs() < 1e-12, "{v:?}");
+        assert_eq!(v.revisit_s, Some(0.2));
+        assert!(view_times(&t, &g, 1e6, 103e6, 103.01e6).is_none(), "never in view");
+    }
+
+    #[test]
+    fn a_hole_between_steps_is_refused_with_its_edges() {
+        let t = tuning(&[100e6, 101e6], 0.8);
+        let e = Grid::new(&t, 1e6, 1000).unwrap_err();
+        assert!(e.contains("100.4") && e.contains("100.6") && e.contains("--usable"), "{e}");
+    }
+
+    #[test]
+    fn a_dwell_lands_on_its_own_frequencies_and_sweeps_complete() {
+        let t = tuning(&[100e6, 100.8e6], 0.8);
+        let g = Grid::new(&t, 1e6, 1000).unwrap();
+        let w = Window::new(WindowKind::Hann, 1000);
+        let step = Geometry::new(&w, 1e6, 0.0);
+        let mut p = Panorama::new(g, &step);
+        let mut row = Spectrum::empty(Arc::new(step.clone()));
+        row.frames = 2;
+        row.psd[600] = 1.0; // +100 kHz from the second centre: 100.9 MHz
+        row.end_sample = 1500;
+        p.add(1, &row);
+        assert!(!p.dwell_done(1));
+        assert!(p.has_unseen(), "the first centre's bins are not seen yet");
+        row.psd[600] = 0.0;
+        p.add(0, &row);
+        assert!(p.dwell_done(0));
+        let wide = p.take();
+        let peak =
+            (0..wide.psd.len()).max_by(|&a, &b| wide.psd[a].total_cmp(&wide.psd[b])).unwrap();
+        assert!((wide.freq_of_bin(peak as f64) - 100.9e6).abs() < 1.0);
+        assert_eq!(wide.frames, 2);
+        assert!(!p.has_unseen());
+    }
+}

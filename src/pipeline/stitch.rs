@@ -1,0 +1,131 @@
+//! The run's side of a panorama: cutting a retuned stream into dwells for the engine and handing
+//! each dwell's spectra to the [`Panorama`] accumulator.
+//!
+//! The source's tuning timeline ([`Tuning`]) says which centre every sample was taken at. The
+//! run gives the engine one dwell at a time: the first `settle` samples of a dwell are never
+//! pushed, and at the dwell's end the engine emits what it holds and forgets the unfinished
+//! frame ([`Engine::end_dwell`]), so no frame ever mixes two tunings. The spectra of a dwell go
+//! to the panorama, not to the consumers; the consumers see one wide row per complete sweep.
+//! A stream without a tuning never comes here: its path through the run is unchanged.
+
+use crate::dsp::{Engine, EngineConfig, Geometry, Spectrum, Window};
+use crate::measure::panorama::{Grid, Panorama};
+use crate::source::tuning::{Dwell, Tuning};
+use crate::source::SourceInfo;
+use anyhow::Result;
+use num_complex::Complex32;
+
+/// The panorama grid of a retuned input (`None` for one that stays put); an error when the
+/// steps leave a hole, naming it and the fix.
+pub fn grid_of(info: &SourceInfo, fft_size: usize) -> Result<Option<Grid>> {
+    let Some(t) = info.tuning.as_ref() else { return Ok(None) };
+    t.check_settle(info.sample_rate_hz)?;
+    let grid = Grid::new(t, info.sample_rate_hz, fft_size)
+        .map_err(|e| anyhow::anyhow!("'{}': {e}", crate::messages::sanitize(&info.label)))?;
+    Ok(Some(grid))
+}
+
+/// The frequencies an analysis of `info` with `fft_size` bins covers (outer bin edges): one
+/// step's span, or the panorama's.
+pub fn span_of(info: &SourceInfo, fft_size: usize) -> Result<(f64, f64)> {
+    if let Some(g) = grid_of(info, fft_size)? {
+        return Ok(g.span_hz());
+    }
+    let bin = info.sample_rate_hz / fft_size as f64;
+    let lo = info.center_hz - (fft_size / 2) as f64 * bin - bin / 2.0;
+    Ok((lo, lo + info.sample_rate_hz))
+}
+
+/// Refuses a retuned input in a command that does not stitch panoramas yet, saying what does.
+pub fn refuse_panorama(info: &SourceInfo, command: &str) -> Result<()> {
+    if info.tuning.is_some() {
+        anyhow::bail!(
+            "'{}' was retuned (several centres): `{command}` does not stitch panoramas yet; use `measure`, `log` or `snapshot` for the panorama, or read one capture with --segment N",
+            crate::messages::sanitize(&info.label)
+        );
+    }
+    Ok(())
+}
+
+/// A retuned input being stitched.
+pub struct Stitch {
+    tuning: Tuning,
+    panorama: Panorama,
+    /// The dwell the engine is in.
+    current: Option<Dwell>,
+}
+
+impl Stitch {
+    /// For a run of `cfg` over `info`; `Ok(None)` when the input is not retuned.
+    pub fn new(info: &SourceInfo, cfg: &EngineConfig) -> Result<Option<Stitch>> {
+        let Some(grid) = grid_of(info, cfg.fft_size)? else { return Ok(None) };
+        let window = Window::new(cfg.window, cfg.fft_size);
+        let step = Geometry::new(&window, info.sample_rate_hz, info.center_hz);
+        Ok(info.tuning.clone().map(|tuning| Stitch {
+            tuning,
+            panorama: Panorama::new(grid, &step),
+            current: None,
+        }))
+    }
+
+    pub fn panorama(&self) -> &Panorama {
+        &self.panorama
+    }
+
+    /// Pushes `samples` (the first at index `start`) dwell by dwell, settling time left out;
+    /// `row` is called with every complete sweep (and `true`: complete).
+    pub fn push(
+        &mut self,
+        engine: &mut Engine,
+        start: u64,
+        samples: &[Complex32],
+        row: &mut dyn FnMut(&Spectrum, bool),
+    ) {
+        let mut at = 0usize;
+        while at < samples.len() {
+            let dwell = self.tuning.dwell_at(start + at as u64);
+            if self.current.map(|d| d.visit) != Some(dwell.visit) {
+                self.end_dwell(engine, row);
+                self.current = Some(dwell);
+            }
+            let end =
+                dwell.end.map_or(samples.len(), |e| ((e - start) as usize).min(samples.len()));
+            let settled = (dwell.start + self.tuning.settle_samples).saturating_sub(start);
+            let from = (settled.min(end as u64) as usize).max(at);
+            if from < end {
+                let (panorama, step) = (&mut self.panorama, dwell.step);
+                engine
+                    .push(start + from as u64, &samples[from..end], &mut |s| panorama.add(step, s));
+            }
+            at = end;
+        }
+    }
+
+    /// Ends the dwell the engine is in: its spectra into the panorama, and the sweep's row to
+    /// `row` when this dwell completed it.
+    pub fn end_dwell(&mut self, engine: &mut Engine, row: &mut dyn FnMut(&Spectrum, bool)) {
+        let Some(d) = self.current.take() else { return };
+        let panorama = &mut self.panorama;
+        engine.end_dwell(&mut |s| panorama.add(d.step, s));
+        if panorama.dwell_done(d.step) {
+            row(panorama.take(), true);
+        }
+    }
+
+    /// Samples were lost inside the current dwell: what the engine holds goes into the
+    /// panorama and the unfinished frame is dropped; the dwell goes on after the gap.
+    pub fn gap(&mut self, engine: &mut Engine) {
+        let Some(d) = self.current else { return };
+        let panorama = &mut self.panorama;
+        engine.end_dwell(&mut |s| panorama.add(d.step, s));
+    }
+
+    /// At the end of input: the last dwell, then an unfinished sweep as a partial row (its
+    /// bins not revisited keep their last values) unless some bin was never seen at all.
+    pub fn finish(&mut self, engine: &mut Engine, row: &mut dyn FnMut(&Spectrum, bool)) {
+        self.end_dwell(engine, row);
+        if self.panorama.pending() && !self.panorama.has_unseen() {
+            row(self.panorama.take(), false);
+        }
+    }
+}

@@ -1,0 +1,288 @@
+//! The tuning timeline of a retuned stream: which centre frequency each stretch of samples was
+//! taken at, so that the DSP can cut frames per dwell and stitch the steps into one panorama.
+//!
+//! It travels with the samples in [`SourceInfo::tuning`](super::SourceInfo): a SigMF recording's
+//! captures at different `core:frequency` make one (the captures *are* the dwells), and a raw
+//! stream with `--hop-plan FILE` makes a periodic one (the plan repeats until the input ends).
+//! Each dwell's first [`Tuning::settle_samples`] are skipped (a receiver's synthesiser and AGC
+//! settle after a retune), and only [`Tuning::usable`] of each step's rate is kept (the outer
+//! bins lie in the receiver's anti-alias filter roll-off).
+
+use super::{InputIssues, InputRequest, LinkLoss, SampleSource, SourceInfo};
+use crate::units::{format_hz, parse_duration, parse_hz};
+use anyhow::{bail, Context, Result};
+use num_complex::Complex32;
+use std::sync::atomic::AtomicBool;
+use std::sync::Arc;
+
+/// Default share of each step's span that is kept: 80 %. Common practice: a receiver's
+/// decimating filter is flat over about the central 80 % of its output rate and rolls off (and
+/// aliases) in the outer 10 % on each side; the FFT window itself spoils only a few bins at the
+/// edges (its main lobe), far less than the filter does.
+pub const DEFAULT_USABLE: f64 = 0.8;
+
+/// One retune: from `start` (index in the delivered stream) the receiver sat at `center_hz`.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Step {
+    pub start: u64,
+    pub center_hz: f64,
+}
+
+/// Where the receiver was tuned over the stream.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Tuning {
+    /// Retunes in order; the first starts at sample 0.
+    pub steps: Vec<Step>,
+    /// For a hop plan: the plan repeats every `period` samples (`steps` is one cycle).
+    pub period: Option<u64>,
+    /// Samples skipped at the start of every dwell (`--settle`).
+    pub settle_samples: u64,
+    /// Share of each step's span kept, 0 < usable ≤ 1 (`--usable`).
+    pub usable: f64,
+}
+
+/// One stay at one centre.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Dwell {
+    /// Counts every dwell of the stream in order (a hop plan's cycles included).
+    pub visit: u64,
+    /// Index of its step in [`Tuning::steps`].
+    pub step: usize,
+    pub center_hz: f64,
+    pub start: u64,
+    /// One past its last sample; `None` for the last dwell of a recording.
+    pub end: Option<u64>,
+}
+
+impl Tuning {
+    /// A timeline from a recording's segments (sample start, centre); `None` when every segment
+    /// has the same centre (nothing to stitch).
+    pub fn from_segments(segments: &[(u64, f64)]) -> Option<Tuning> {
+        let first = segments.first()?.1;
+        if segments.iter().all(|s| s.1 == first) {
+            return None;
+        }
+        let steps = segments.iter().map(|&(start, center_hz)| Step { start, center_hz }).collect();
+        Some(Tuning { steps, period: None, settle_samples: 0, usable: DEFAULT_USABLE })
+    }
+
+    /// The distinct centres visited, lowest first.
+    pub fn centres(&self) -> Vec<f64> {
+        let mut c: Vec<f64> = self.steps.iter().map(|s| s.center_hz).collect();
+        c.sort_by(f64::total_cmp);
+        c.dedup();
+        c
+    }
+
+    /// The dwell holding sample `at`.
+    pub fn dwell_at(&self, at: u64) -> Dwell {
+        let (cycle, within) = match self.period {
+            Some(p) => (at / p, at % p),
+            None => (0, at),
+        };
+        let step = self.steps.partition_point(|s| s.start <= within).saturating_sub(1);
+        let base = cycle * self.period.unwrap_or(0);
+        let end = match (self.steps.get(step + 1), self.period) {
+            (Some(next), _) => Some(base + next.start),
+            (None, Some(p)) => Some(base + p),
+            (None, None) => None,
+        };
+        Dwell {
+            visit: cycle * self.steps.len() as u64 + step as u64,
+            step,
+            center_hz: self.steps[step].center_hz,
+            start: base + self.steps[step].start,
+            end,
+        }
+    }
+
+    /// Checks every dwell is longer than the settling time (else nothing would be measured).
+    pub fn check_settle(&self, rate_hz: f64) -> Result<()> {
+        let mut starts: Vec<u64> = self.steps.iter().map(|s| s.start).collect();
+        starts.extend(self.period);
+        for (k, w) in starts.windows(2).enumerate() {
+            if w[1] - w[0] <= self.settle_samples {
+                bail!(
+                    "step {} (at {}) lasts {:.6} s, no longer than the settling time {:.6} s: nothing of it would be measured; give a shorter --settle",
+                    k + 1,
+                    format_hz(self.steps[k].center_hz),
+                    (w[1] - w[0]) as f64 / rate_hz,
+                    self.settle_samples as f64 / rate_hz
+                );
+            }
+        }
+        Ok(())
+    }
+}
+
+/// Reads a hop plan: one step a line, `CENTRE DWELL` (`433.05M 50ms`), in the order the receiver
+/// visits them; blank lines and `#` comments are skipped. The plan repeats until the input ends.
+/// `name` is the file's name for messages.
+pub fn parse_hop_plan(text: &str, name: &str, rate_hz: f64) -> Result<Tuning> {
+    let mut steps = Vec::new();
+    let mut at = 0u64;
+    for (i, raw) in text.lines().enumerate() {
+        let line = raw.split('#').next().unwrap_or("").trim();
+        if line.is_empty() {
+            continue;
+        }
+        let n = i + 1;
+        let fields: Vec<&str> = line.split_whitespace().collect();
+        let [centre, dwell] = fields[..] else {
+            bail!(
+                "{name} line {n}: expected two fields, a centre frequency and a dwell time (e.g. '433.05M 50ms'), found {}; fix the line",
+                fields.len()
+            );
+        };
+        let center_hz = parse_hz(centre).map_err(|e| {
+            anyhow::anyhow!(
+                "{name} line {n}: the centre frequency: {e}; write it in Hz, e.g. 433.05M"
+            )
+        })?;
+        let dwell = parse_duration(dwell).map_err(|e| {
+            anyhow::anyhow!("{name} line {n}: the dwell time: {e}; write it with a unit, e.g. 50ms")
+        })?;
+        let samples = (dwell.as_secs_f64() * rate_hz).round() as u64;
+        if samples == 0 {
+            bail!(
+                "{name} line {n}: a dwell of {} s holds no sample at {} samples/s; give a longer dwell",
+                dwell.as_secs_f64(),
+                rate_hz
+            );
+        }
+        steps.push(Step { start: at, center_hz });
+        at = at.checked_add(samples).ok_or_else(|| {
+            anyhow::anyhow!(
+                "{name} line {n}: the plan's dwells add up beyond 2^64 samples; shorten them"
+            )
+        })?;
+    }
+    if steps.len() < 2 {
+        bail!(
+            "{name}: a hop plan needs at least two steps (lines 'CENTRE DWELL'), found {}; add the centres the receiver visits",
+            steps.len()
+        );
+    }
+    Ok(Tuning { steps, period: Some(at), settle_samples: 0, usable: DEFAULT_USABLE })
+}
+
+/// Applies the request's `--hop-plan`, `--settle` and `--usable` to an opened source; refuses
+/// them where they cannot apply.
+pub fn apply(src: Box<dyn SampleSource>, req: &InputRequest) -> Result<Box<dyn SampleSource>> {
+    if req.hop_plan.is_none() && req.settle_s.is_none() && req.usable.is_none() {
+        return Ok(src);
+    }
+    let mut info = src.info().clone();
+    if let Some(path) = req.hop_plan.as_deref() {
+        if info.tuning.is_some() {
+            bail!(
+                "'{}' says where it was tuned itself (captures at different core:frequency); drop --hop-plan, or read one capture with --segment N",
+                super::sanitize(&info.label)
+            );
+        }
+        let shown = super::sanitize(path);
+        let text = std::fs::read_to_string(path)
+            .with_context(|| format!("cannot read the hop plan '{shown}'"))?;
+        info.tuning = Some(parse_hop_plan(&text, &shown, info.sample_rate_hz)?);
+    }
+    let Some(t) = info.tuning.as_mut() else {
+        bail!(
+            "--settle and --usable apply to a retuned input only (a SigMF recording whose captures change core:frequency, or --hop-plan FILE); '{}' stays at one centre",
+            super::sanitize(&info.label)
+        );
+    };
+    if let Some(s) = req.settle_s {
+        t.settle_samples = (s * info.sample_rate_hz).round() as u64;
+    }
+    if let Some(u) = req.usable {
+        t.usable = u;
+    }
+    t.check_settle(info.sample_rate_hz)?;
+    Ok(Box::new(Retuned { inner: src, info }))
+}
+
+/// A source whose description carries a tuning given on the command line.
+struct Retuned {
+    inner: Box<dyn SampleSource>,
+    info: SourceInfo,
+}
+
+impl SampleSource for Retuned {
+    fn info(&self) -> &SourceInfo {
+        &self.info
+    }
+
+    fn read(&mut self, out: &mut [Complex32]) -> Result<usize> {
+        self.inner.read(out)
+    }
+
+    fn issues(&self) -> InputIssues {
+        self.inner.issues()
+    }
+
+    fn rewind(&mut self) -> Result<()> {
+        self.inner.rewind()
+    }
+
+    fn take_lost(&mut self) -> u64 {
+        self.inner.take_lost()
+    }
+
+    fn lost_cause(&self) -> LinkLoss {
+        self.inner.lost_cause()
+    }
+
+    fn watch_stop(&mut self, stop: Arc<AtomicBool>) {
+        self.inner.watch_stop(stop)
+    }
+}
+
+/// Parses `--usable`: a fraction in (0, 1].
+pub fn parse_usable(text: &str) -> Result<f64, String> {
+    match text.trim().parse::<f64>() {
+        Ok(f) if f > 0.0 && f <= 1.0 => Ok(f),
+        _ => Err(format!(
+            "'{}' is not a share of the span: give a number above 0 and at most 1 (e.g. 0.8 keeps the central 80 %)",
+            crate::messages::sanitize(text)
+        )),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_hop_plan_repeats_and_finds_its_dwells() {
+        let t = parse_hop_plan("# Wrenhollow Ridge\n433.0M 1ms\n\n435M 2ms # second\n", "p", 1e6)
+            .unwrap();
+        assert_eq!(t.period, Some(3000));
+        let d = t.dwell_at(3500);
+        assert_eq!((d.visit, d.step, d.center_hz, d.start, d.end), (2, 0, 433e6, 3000, Some(4000)));
+        let d = t.dwell_at(2999);
+        assert_eq!((d.visit, d.step, d.start, d.end), (1, 1, 1000, Some(3000)));
+    }
+
+    #[test]
+    fn bad_hop_plans_say_line_what_and_fix() {
+        let e = parse_hop_plan("433M 1ms\n434M\n", "plan.txt", 1e6).unwrap_err().to_string();
+        assert!(e.contains("plan.txt line 2") && e.contains("two fields"), "{e}");
+        let e = parse_hop_plan("433M 1ms\nfoo 1ms\n", "p", 1e6).unwrap_err().to_string();
+        assert!(e.contains("line 2") && e.contains("centre frequency"), "{e}");
+        let e = parse_hop_plan("433M 1ms\n434M 1parsec\n", "p", 1e6).unwrap_err().to_string();
+        assert!(e.contains("line 2") && e.contains("dwell time"), "{e}");
+        let e = parse_hop_plan("433M 1ms\n", "p", 1e6).unwrap_err().to_string();
+        assert!(e.contains("at least two steps"), "{e}");
+        let e = parse_hop_plan("433M 0.1us\n434M 1ms\n", "p", 1e6).unwrap_err().to_string();
+        assert!(e.contains("line 1") && e.contains("no sample"), "{e}");
+    }
+
+    #[test]
+    fn recordings_at_one_centre_need_no_stitching() {
+        assert!(Tuning::from_segments(&[(0, 1e6), (10, 1e6)]).is_none());
+        let t = Tuning::from_segments(&[(0, 1e6), (10, 2e6)]).unwrap();
+        assert_eq!(t.dwell_at(5).end, Some(10));
+        assert_eq!(t.dwell_at(50).end, None);
+        assert_eq!(t.centres(), vec![1e6, 2e6]);
+    }
+}
