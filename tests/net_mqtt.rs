@@ -10,80 +10,13 @@
 mod common;
 
 use std::io::Read;
-use std::path::{Path, PathBuf};
 use std::process::{Child, Command, Stdio};
 use std::time::{Duration, Instant};
 
 const BIN: &str = env!("CARGO_BIN_EXE_bandwarden");
 
-use common::mqtt::{mosquitto_or_skip, signal, site, wait_for_port, Relay};
-use common::{free_port, lines};
-
-/// A broker of our own: persistence on (so a restart keeps the collector's queue) and no cap on
-/// queued messages (Mosquitto's default of 1000 would drop records while the collector is away).
-struct Broker {
-    bin: PathBuf,
-    conf: PathBuf,
-    port: u16,
-    child: Option<Child>,
-}
-
-impl Broker {
-    fn start(bin: PathBuf, dir: &Path) -> Broker {
-        let port = free_port();
-        let conf = dir.join("mosquitto.conf");
-        // Started as root, Mosquitto drops to its own user (`mosquitto` in the distribution's
-        // package) before it saves its state: that user must be able to write the folder, or the
-        // restart loses the collector's session and with it the records queued for it.
-        let store = dir.join("store");
-        std::fs::create_dir_all(&store).unwrap();
-        std::fs::set_permissions(&store, std::os::unix::fs::PermissionsExt::from_mode(0o777))
-            .unwrap();
-        let text = format!(
-            "listener {port} 127.0.0.1\nallow_anonymous true\npersistence true\npersistence_location {}/\nmax_queued_messages 0\nautosave_interval 1\n",
-            store.display()
-        );
-        std::fs::write(&conf, text).unwrap();
-        let mut b = Broker { bin, conf, port, child: None };
-        b.run();
-        b
-    }
-
-    fn run(&mut self) {
-        let child = Command::new(&self.bin)
-            .arg("-c")
-            .arg(&self.conf)
-            .stdout(Stdio::null())
-            .stderr(Stdio::null())
-            .spawn()
-            .expect("starting mosquitto");
-        self.child = Some(child);
-        wait_for_port(self.port);
-    }
-
-    /// SIGTERM: Mosquitto saves its persistent state and exits.
-    fn stop(&mut self) {
-        if let Some(mut c) = self.child.take() {
-            signal(&c, "TERM");
-            let _ = c.wait();
-        }
-        let db = self.conf.with_file_name("store").join("mosquitto.db");
-        assert!(
-            db.exists(),
-            "the broker saved no persistent state in {}: a restart would lose the collector's queue",
-            db.display()
-        );
-    }
-}
-
-impl Drop for Broker {
-    fn drop(&mut self) {
-        if let Some(mut c) = self.child.take() {
-            let _ = c.kill();
-            let _ = c.wait();
-        }
-    }
-}
+use common::lines;
+use common::mqtt::{mosquitto_or_skip, signal, site, Broker, Persistence, Relay};
 
 #[test]
 fn two_sites_lose_nothing_across_a_cut_link_and_a_broker_restart() {
@@ -91,7 +24,7 @@ fn two_sites_lose_nothing_across_a_cut_link_and_a_broker_restart() {
     let dir = std::env::temp_dir().join(format!("bw-net-mqtt-{}", std::process::id()));
     let _ = std::fs::remove_dir_all(&dir);
     std::fs::create_dir_all(&dir).unwrap();
-    let mut broker = Broker::start(bin, &dir);
+    let mut broker = Broker::start(bin, &dir, Persistence::Kept);
     let relay = Relay::start(broker.port);
     let out = dir.join("collected");
     let mut collector = Command::new(BIN)
@@ -161,7 +94,7 @@ fn a_burst_from_two_sites_arrives_whole_and_in_order() {
     let dir = std::env::temp_dir().join(format!("bw-net-burst-{}", std::process::id()));
     let _ = std::fs::remove_dir_all(&dir);
     std::fs::create_dir_all(&dir).unwrap();
-    let broker = Broker::start(bin, &dir);
+    let broker = Broker::start(bin, &dir, Persistence::Kept);
     let url = format!("mqtt://127.0.0.1:{}/wrenhollow/burst", broker.port);
     let rec = dir.join("rec.cf32");
     let ok = Command::new(BIN)

@@ -189,7 +189,8 @@ pub enum Taken {
 }
 
 struct SiteFile {
-    file: File,
+    /// `DIR/SITE.jsonl` with `--out`; `None` with only a database.
+    file: Option<File>,
     runs: HashMap<String, RunState>,
     /// When this collector last heard anything from the site (`None`: never, in this process).
     heard: Option<Instant>,
@@ -251,6 +252,23 @@ fn record_head(line: &str) -> Option<Head> {
     })
 }
 
+/// Opens a site's file for appending, after reading the ids it holds into `runs`.
+fn open_site_file(path: &Path, runs: &mut HashMap<String, RunState>) -> Result<File> {
+    if let Ok(f) = File::open(path) {
+        for line in BufReader::new(f).lines() {
+            let line = line.with_context(|| format!("reading '{}'", path.display()))?;
+            if let Some(h) = record_head(&line) {
+                runs.entry(h.run).or_default().take(h.seq, &h.kind, h.interval_s, None);
+            }
+        }
+    }
+    OpenOptions::new()
+        .create(true)
+        .append(true)
+        .open(path)
+        .with_context(|| format!("cannot write '{}'", path.display()))
+}
+
 impl Collector {
     pub fn new(dir: &Path) -> Result<Collector> {
         Collector::open(Some(dir), None)
@@ -288,25 +306,24 @@ impl Collector {
         f.runs.values().flat_map(|r| r.seen.holes()).map(|(a, b)| b - a).sum()
     }
 
-    /// Opens a site's file for appending, learning the ids it already holds.
+    /// A site's state: its file opened for appending, learning the ids it already holds; with
+    /// only a database, the ids the database holds (so holes are asked for either way).
     fn site(&mut self, site: &str) -> Result<&mut SiteFile> {
         if !self.sites.contains_key(site) {
-            let dir = self.dir.as_ref().expect("files only with --out");
-            let path = dir.join(format!("{site}.jsonl"));
             let mut runs: HashMap<String, RunState> = HashMap::new();
-            if let Ok(f) = File::open(&path) {
-                for line in BufReader::new(f).lines() {
-                    let line = line.with_context(|| format!("reading '{}'", path.display()))?;
-                    if let Some(h) = record_head(&line) {
-                        runs.entry(h.run).or_default().take(h.seq, &h.kind, h.interval_s, None);
-                    }
+            let file = match (&self.dir, &mut self.db) {
+                (Some(dir), _) => {
+                    Some(open_site_file(&dir.join(format!("{site}.jsonl")), &mut runs)?)
                 }
-            }
-            let file = OpenOptions::new()
-                .create(true)
-                .append(true)
-                .open(&path)
-                .with_context(|| format!("cannot write '{}'", path.display()))?;
+                (None, Some(db)) => {
+                    for k in db.known(site)? {
+                        let interval_s = k.interval_s;
+                        runs.entry(k.run).or_default().take(k.seq, &k.kind, interval_s, None);
+                    }
+                    None
+                }
+                (None, None) => bail!("the collector has neither --out nor --db"),
+            };
             let f = SiteFile {
                 file,
                 runs,
@@ -352,9 +369,6 @@ impl Collector {
             Some(db) => db.take(site, line)? == Stored::New,
             None => false,
         };
-        if self.dir.is_none() {
-            return Ok(self.count(stored));
-        }
         let s = self.site(site)?;
         s.heard = Some(now);
         let state = s.runs.entry(h.run.clone()).or_default();
@@ -366,11 +380,12 @@ impl Collector {
             s.current_run = Some(h.run);
             s.said_stopped = false;
         }
+        let Some(file) = &mut s.file else { return Ok(self.count(stored)) };
         let mut buf = Vec::with_capacity(line.len() + 1);
         buf.extend_from_slice(line.as_bytes());
         buf.push(b'\n');
-        s.file.write_all(&buf)?;
-        s.file.flush()?;
+        file.write_all(&buf)?;
+        file.flush()?;
         self.written += 1;
         Ok(Taken::Written)
     }
@@ -500,8 +515,8 @@ impl Collector {
 
     /// Syncs every file to disk.
     pub fn sync(&mut self) {
-        for f in self.sites.values_mut() {
-            let _ = f.file.sync_data();
+        for f in self.sites.values_mut().filter_map(|f| f.file.as_mut()) {
+            let _ = f.sync_data();
         }
     }
 }

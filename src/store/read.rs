@@ -153,6 +153,66 @@ fn hour_expr(d: Dialect, offset_s: i32) -> String {
     }
 }
 
+/// The hours a window holds whole, `[lo, hi)` in hours since the epoch: those of hour keys
+/// strictly after the hour of `--from` and before the hour of `--to`, so that every interval of
+/// them lies in the window (as `t / 3600` never orders two times otherwise than `t` does).
+fn whole_hours(settings: &Settings) -> (Option<i64>, Option<i64>) {
+    let lo = settings.from.map(|f| (f / 3600.0).floor() as i64 + 1);
+    let hi = settings.to.map(|t| (t / 3600.0).floor() as i64);
+    (lo, hi)
+}
+
+/// The query of the intervals' sums per channel, clock and hour (columns: channel, clock, hour,
+/// samples, occupied, measured, lost, dropped, power, power samples, peak, first and last valid
+/// time, intervals, valid intervals), in (channel, clock, hour) order, and its parameters.
+///
+/// Whole hours come from `interval_hours`; the hours a window cuts, and every hour of a zone
+/// whose offset is not whole hours (its hours are not the stored ones), from the intervals.
+fn sums_query(d: Dialect, settings: &Settings, only: &str) -> (String, Vec<Val>) {
+    let offset = settings.zone.offset_s;
+    let raw_cols = |h: &str| {
+        format!(
+            "SELECT channel_id, clock, {h} AS h, CAST(SUM(samples) AS BIGINT), SUM(occupied), \
+             SUM(measured_s), SUM(lost_s), CAST(SUM(dropped) AS BIGINT), SUM(power_w), \
+             CAST(SUM(power_n) AS BIGINT), MAX(peak_dbfs), \
+             MIN(CASE WHEN valid = 1 THEN t_epoch END), \
+             MAX(CASE WHEN valid = 1 THEN t_epoch + span_s END), \
+             COUNT(*), CAST(SUM(valid) AS BIGINT) FROM intervals"
+        )
+    };
+    let (w, params) = interval_window(settings, 1);
+    if offset % 3600 != 0 {
+        let sql = format!(
+            "{} WHERE 1 = 1{w}{only} GROUP BY channel_id, clock, h",
+            raw_cols(&hour_expr(d, offset))
+        );
+        return (sql, params);
+    }
+    let stored = "SELECT channel_id, clock, hour_key AS h, samples, occupied, measured_s, lost_s, \
+                  dropped, power_w, power_n, peak_dbfs, first_t, last_t, n, n_valid \
+                  FROM interval_hours";
+    if params.is_empty() {
+        let sql = format!("{stored} WHERE 1 = 1{only} ORDER BY channel_id, clock, hour_key");
+        return (sql, params);
+    }
+    let (lo, hi) = whole_hours(settings);
+    let bound =
+        |op: &str, h: Option<i64>| h.map_or(String::new(), |h| format!(" AND hour_key {op} {h}"));
+    let inner = format!("{}{}", bound(">=", lo), bound("<", hi));
+    let cut = match (lo, hi) {
+        (Some(lo), Some(hi)) => format!(" AND (hour_key < {lo} OR hour_key >= {hi})"),
+        (Some(lo), None) => format!(" AND hour_key < {lo}"),
+        (None, Some(hi)) => format!(" AND hour_key >= {hi}"),
+        (None, None) => String::new(),
+    };
+    let sql = format!(
+        "SELECT * FROM ({stored} WHERE clock = 1{inner}{only} UNION ALL \
+         {} WHERE 1 = 1{w}{cut}{only} GROUP BY channel_id, clock, hour_key) AS u ORDER BY 1, 2, 3",
+        raw_cols("hour_key")
+    );
+    (sql, params)
+}
+
 /// The intervals summed per channel and hour into the summary; returns the channels counted.
 fn interval_sums(
     db: &mut dyn Backend,
@@ -163,16 +223,7 @@ fn interval_sums(
 ) -> Result<Vec<i64>> {
     let offset = settings.zone.offset_s;
     let shift = if offset % 3600 == 0 { i64::from(offset / 3600) } else { 0 };
-    let (w, params) = interval_window(settings, 1);
-    let sql = format!(
-        "SELECT channel_id, clock, {h} AS h, CAST(SUM(samples) AS BIGINT), SUM(occupied), \
-         SUM(measured_s), SUM(lost_s), CAST(SUM(dropped) AS BIGINT), SUM(power_w), \
-         CAST(SUM(power_n) AS BIGINT), MAX(peak_dbfs), \
-         MIN(CASE WHEN valid = 1 THEN t_epoch END), MAX(CASE WHEN valid = 1 THEN t_epoch + span_s END), \
-         COUNT(*), CAST(SUM(valid) AS BIGINT) \
-         FROM intervals WHERE 1 = 1{w}{only} GROUP BY channel_id, clock, h",
-        h = hour_expr(db.dialect(), offset)
-    );
+    let (sql, params) = sums_query(db.dialect(), settings, only);
     let mut counted = Vec::new();
     db.each(&sql, &params, &mut |r| {
         let id = r[0].i64().context("an interval without a channel")?;

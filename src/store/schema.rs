@@ -15,14 +15,73 @@
 //! the dropped samples at the run's rate), `occupied` (clamped to the samples), `power_w`
 //! (samples × linear mean power), so the database only adds them up.
 //!
-//! `schema_version` holds the version; [`migrate`] creates a new database and refuses one
-//! written by a newer bandwarden.
+//! `interval_hours` (version 2) holds the same sums per (channel, clock, hour): what `report`
+//! reads for every whole hour, 60 times fewer rows than the intervals at one a minute. The
+//! writer recomputes the hours a transaction touched from their intervals before it commits
+//! ([`refresh_hour`]), so an hour is always the sum of its rows, however late or often they came.
+//!
+//! `schema_version` holds the version; [`migrate`] creates a new database, brings a version 1
+//! database up (its hours summed once), and refuses one written by a newer bandwarden.
 
 use super::Backend;
 use anyhow::{bail, Result};
 
+/// The columns an interval and an hour of intervals have alike: what `report` adds up.
+const SUMMED: &str = "samples {int} NOT NULL,
+    occupied {real} NOT NULL,
+    measured_s {real} NOT NULL,
+    lost_s {real} NOT NULL,
+    dropped {int} NOT NULL,
+    power_w {real},
+    power_n {int} NOT NULL,
+    peak_dbfs {real},";
+
+/// A table's statement in the database's words, with the [`SUMMED`] columns.
+fn ddl(d: super::Dialect, text: &str) -> String {
+    d.ddl(&text.replace("{summed}", SUMMED))
+}
+
 /// The version this bandwarden writes.
-pub const VERSION: i64 = 1;
+pub const VERSION: i64 = 2;
+
+/// Version 2: the intervals summed per (channel, clock, hour).
+const V2: &str = "
+CREATE TABLE interval_hours (
+    channel_id {int} NOT NULL REFERENCES channels(id),
+    clock {int} NOT NULL,
+    hour_key {int} NOT NULL,
+    n {int} NOT NULL,
+    n_valid {int} NOT NULL,
+    {summed}
+    first_t {real},
+    last_t {real},
+    PRIMARY KEY (channel_id, clock, hour_key)
+){clustered};
+";
+
+/// The sums of `interval_hours`, over rows of `intervals` (in the order of its columns).
+pub const HOUR_SUMS: &str = "COUNT(*), SUM(valid), SUM(samples), SUM(occupied), \
+     SUM(measured_s), SUM(lost_s), SUM(dropped), SUM(power_w), SUM(power_n), MAX(peak_dbfs), \
+     MIN(CASE WHEN valid = 1 THEN t_epoch END), MAX(CASE WHEN valid = 1 THEN t_epoch + span_s END)";
+
+/// `INSERT INTO interval_hours … SELECT` of the intervals matching `filter`.
+fn sum_hours(filter: &str) -> String {
+    format!(
+        "INSERT INTO interval_hours (channel_id, clock, hour_key, n, n_valid, samples, occupied, \
+         measured_s, lost_s, dropped, power_w, power_n, peak_dbfs, first_t, last_t) \
+         SELECT channel_id, clock, hour_key, {HOUR_SUMS} FROM intervals{filter} \
+         GROUP BY channel_id, clock, hour_key"
+    )
+}
+
+/// Sums one hour of one channel again from its intervals (none left: no row).
+pub fn refresh_hour(db: &mut dyn Backend, (channel, clock, hour): (i64, i64, i64)) -> Result<()> {
+    let key = [channel.into(), clock.into(), hour.into()];
+    let filter = " WHERE channel_id = ?1 AND clock = ?2 AND hour_key = ?3";
+    db.exec(&format!("DELETE FROM interval_hours{filter}"), &key)?;
+    db.exec(&sum_hours(filter), &key)?;
+    Ok(())
+}
 
 const V1: &str = "
 CREATE TABLE sites (id {id}, name TEXT NOT NULL UNIQUE);
@@ -65,14 +124,7 @@ CREATE TABLE intervals (
     t_epoch {real},
     span_s {real} NOT NULL,
     valid {int} NOT NULL,
-    samples {int} NOT NULL,
-    occupied {real} NOT NULL,
-    measured_s {real} NOT NULL,
-    lost_s {real} NOT NULL,
-    dropped {int} NOT NULL,
-    power_w {real},
-    power_n {int} NOT NULL,
-    peak_dbfs {real},
+    {summed}
     noise {real},
     center_hz {real},
     width_hz {real},
@@ -126,7 +178,15 @@ pub fn migrate(db: &mut dyn Backend) -> Result<()> {
     match version.first().and_then(|r| r[0].i64()) {
         None => {
             db.batch("BEGIN")?;
-            db.batch(&d.ddl(V1))?;
+            db.batch(&ddl(d, V1))?;
+            db.batch(&ddl(d, V2))?;
+            db.exec("INSERT INTO schema_version (version) VALUES (?1)", &[VERSION.into()])?;
+            db.batch("COMMIT")
+        }
+        Some(1) => {
+            db.batch("BEGIN")?;
+            db.batch(&ddl(d, V2))?;
+            db.exec(&sum_hours(""), &[])?;
             db.exec("INSERT INTO schema_version (version) VALUES (?1)", &[VERSION.into()])?;
             db.batch("COMMIT")
         }

@@ -15,7 +15,7 @@ use crate::output::summary::site::site_of_file;
 use crate::output::summary::zone::epoch_of;
 use anyhow::{Context, Result};
 use serde_json::Value;
-use std::collections::HashMap;
+use std::collections::{BTreeSet, HashMap};
 use std::io::BufRead;
 use std::time::{Duration, Instant};
 
@@ -32,6 +32,16 @@ impl Default for Batch {
     fn default() -> Batch {
         Batch { records: 1000, age: Duration::from_millis(200) }
     }
+}
+
+/// A record of a site already stored: what a collector that starts again must know of it to
+/// see holes and copies (its id, kind, and a start record's interval).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Known {
+    pub run: String,
+    pub seq: u64,
+    pub kind: String,
+    pub interval_s: Option<f64>,
 }
 
 /// What became of one record.
@@ -63,6 +73,8 @@ pub struct Writer {
     /// Records in the open transaction, and when it began.
     open: usize,
     since: Option<Instant>,
+    /// The (channel, clock, hour) keys whose intervals changed in the open transaction.
+    touched: BTreeSet<(i64, i64, i64)>,
     pub stored: u64,
     pub duplicates: u64,
     pub not_records: u64,
@@ -88,6 +100,7 @@ impl Writer {
             channels: HashMap::new(),
             open: 0,
             since: None,
+            touched: BTreeSet::new(),
             stored: 0,
             duplicates: 0,
             not_records: 0,
@@ -97,6 +110,30 @@ impl Writer {
     /// Records taken but not yet committed.
     pub fn uncommitted(&self) -> usize {
         self.open
+    }
+
+    /// The records of `site` stored so far, run by run in `seq` order.
+    pub fn known(&mut self, site: &str) -> Result<Vec<Known>> {
+        let rows = self.db.rows(
+            "SELECT u.run, r.seq, r.kind, CASE WHEN r.kind = 'start' THEN r.line END \
+             FROM records r JOIN runs u ON u.id = r.run_id JOIN sites s ON s.id = u.site_id \
+             WHERE s.name = ?1 ORDER BY u.id, r.seq",
+            &[site.into()],
+        )?;
+        let interval = |line: &str| {
+            serde_json::from_str::<Value>(line).ok().and_then(|v| v["interval_s"].as_f64())
+        };
+        Ok(rows
+            .iter()
+            .filter_map(|r| {
+                Some(Known {
+                    run: r[0].text()?.to_string(),
+                    seq: u64::try_from(r[1].i64()?).ok()?,
+                    kind: r[2].text()?.to_string(),
+                    interval_s: r[3].text().and_then(interval),
+                })
+            })
+            .collect())
     }
 
     /// Stores one record line of `site` unless it is there already.
@@ -198,6 +235,9 @@ impl Writer {
             self.db.exec(&sql, &[r.t_min.into(), r.t_max.into(), r.id.into()])?;
             r.dirty = false;
         }
+        for key in std::mem::take(&mut self.touched) {
+            super::schema::refresh_hour(self.db.as_mut(), key)?;
+        }
         self.db.batch("COMMIT").context("cannot commit to the database")?;
         self.open = 0;
         self.since = None;
@@ -293,16 +333,17 @@ impl Writer {
         rate: f64,
     ) -> Result<()> {
         let rows = self.db.rows(
-            "SELECT r.id, r.line, i.channel_id FROM records r JOIN intervals i ON i.record_id = r.id \
-             WHERE r.run_id = ?1 AND r.kind = 'interval'",
+            "SELECT r.id, r.line, i.channel_id, i.clock, i.hour_key FROM records r \
+             JOIN intervals i ON i.record_id = r.id WHERE r.run_id = ?1 AND r.kind = 'interval'",
             &[run_id.into()],
         )?;
         for row in rows {
-            let (Some(id), Some(line), Some(channel_id)) =
-                (row[0].i64(), row[1].text(), row[2].i64())
+            let (Some(id), Some(line), Some(channel_id), Some(clock), Some(hour)) =
+                (row[0].i64(), row[1].text(), row[2].i64(), row[3].i64(), row[4].i64())
             else {
                 continue;
             };
+            self.touched.insert((channel_id, clock, hour));
             let v: Value = serde_json::from_str(line)?;
             self.db.exec(
                 "DELETE FROM intervals WHERE channel_id = ?1 AND record_id = ?2",
@@ -329,6 +370,7 @@ impl Writer {
         let Some(name) = v["channel"].as_str() else { return Ok(()) };
         let channel_id = self.channel(site_id, name)?;
         let c = IntervalCols::of(v, origin, rate);
+        self.touched.insert((channel_id, i64::from(c.t_epoch.is_some()), c.hour_key));
         self.db.exec(
             "INSERT INTO intervals (channel_id, clock, hour_key, t_key, record_id, t_epoch, span_s, \
              valid, samples, occupied, measured_s, lost_s, dropped, power_w, power_n, peak_dbfs, \

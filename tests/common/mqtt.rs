@@ -46,22 +46,51 @@ pub fn signal(child: &Child, sig: &str) {
     Command::new("kill").args([&format!("-{sig}"), &child.id().to_string()]).status().unwrap();
 }
 
-/// A broker that keeps nothing across a restart (`persistence false`): what it had queued for
-/// the collector, and the collector's subscription itself, are gone when it comes back.
-pub struct ForgetfulBroker {
+/// Whether a broker keeps its state across a restart.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Persistence {
+    /// `persistence true`, saved every second into the test's folder, and no cap on queued
+    /// messages (Mosquitto's default of 1000 would drop records while the collector is away):
+    /// a restart keeps the collector's session and queue.
+    Kept,
+    /// `persistence false`: what the broker had queued for the collector, and the collector's
+    /// subscription itself, are gone when it comes back.
+    Forgotten,
+}
+
+/// A Mosquitto broker of the test's own on a free loopback port, restartable.
+pub struct Broker {
     bin: PathBuf,
     conf: PathBuf,
     pub port: u16,
+    persistence: Persistence,
     child: Option<Child>,
 }
 
-impl ForgetfulBroker {
-    pub fn start(bin: PathBuf, dir: &Path) -> ForgetfulBroker {
+impl Broker {
+    pub fn start(bin: PathBuf, dir: &Path, persistence: Persistence) -> Broker {
         let port = super::free_port();
         let conf = dir.join("mosquitto.conf");
-        let text = format!("listener {port} 127.0.0.1\nallow_anonymous true\npersistence false\n");
+        let mut text = format!("listener {port} 127.0.0.1\nallow_anonymous true\n");
+        match persistence {
+            Persistence::Forgotten => text += "persistence false\n",
+            Persistence::Kept => {
+                // Started as root, Mosquitto drops to its own user (`mosquitto` in the
+                // distribution's package) before it saves its state: that user must be able to
+                // write the folder, or the restart loses the collector's session and with it
+                // the records queued for it.
+                let store = dir.join("store");
+                std::fs::create_dir_all(&store).unwrap();
+                let mode = std::os::unix::fs::PermissionsExt::from_mode(0o777);
+                std::fs::set_permissions(&store, mode).unwrap();
+                text += &format!(
+                    "persistence true\npersistence_location {}/\nmax_queued_messages 0\nautosave_interval 1\n",
+                    store.display()
+                );
+            }
+        }
         std::fs::write(&conf, text).unwrap();
-        let mut b = ForgetfulBroker { bin, conf, port, child: None };
+        let mut b = Broker { bin, conf, port, persistence, child: None };
         b.run();
         b
     }
@@ -78,16 +107,24 @@ impl ForgetfulBroker {
         wait_for_port(self.port);
     }
 
-    /// SIGTERM, and wait for it to be gone.
+    /// SIGTERM, and wait for it to be gone (a persistent broker saves its state first: checked).
     pub fn stop(&mut self) {
         if let Some(mut c) = self.child.take() {
             signal(&c, "TERM");
             let _ = c.wait();
         }
+        if self.persistence == Persistence::Kept {
+            let db = self.conf.with_file_name("store").join("mosquitto.db");
+            assert!(
+                db.exists(),
+                "the broker saved no persistent state in {}: a restart would lose the collector's queue",
+                db.display()
+            );
+        }
     }
 }
 
-impl Drop for ForgetfulBroker {
+impl Drop for Broker {
     fn drop(&mut self) {
         if let Some(mut c) = self.child.take() {
             let _ = c.kill();
