@@ -452,3 +452,77 @@ fn change_alarms_show_on_the_top_line_and_in_the_alarm_log_at_80x24() {
     assert!(alarm["since"].as_str().unwrap().starts_with("2031-04-17T06:01:"), "{alarm}");
     let _ = std::fs::remove_file(&log);
 }
+
+/// The channels named or numbered on the screen's plan row (the line starting " plan "), ranges
+/// (`1-3`) and lists (`1,2`) expanded, in plan numbers (from 1), sorted.
+fn plan_row_channels(screen: &str, names: &[&str]) -> Vec<usize> {
+    let row =
+        screen.lines().find(|l| l.starts_with(" plan ")).unwrap_or_else(|| panic!("{screen}"));
+    let mut out = Vec::new();
+    let tokens = row[" plan ".len()..]
+        .split(|c: char| !(c.is_ascii_alphanumeric() || c == ',' || c == '-'))
+        .filter(|t| !t.is_empty());
+    for token in tokens {
+        if let Some(i) = names.iter().position(|n| *n == token) {
+            out.push(i + 1);
+            continue;
+        }
+        for part in token.split(',') {
+            let (a, b) = part.split_once('-').unwrap_or((part, part));
+            let (a, b): (usize, usize) = (
+                a.parse().unwrap_or_else(|_| panic!("{row}")),
+                b.parse().unwrap_or_else(|_| panic!("{row}")),
+            );
+            out.extend(a..=b);
+        }
+    }
+    out.sort_unstable();
+    out
+}
+
+/// The Wrenhollow Ridge plan seen over 4 MHz (the recording read as 4 MS/s, so the full span is
+/// four times its own): ops, yard, gate and ferry lie 50 to 75 kHz apart, one to three columns
+/// at 80 columns, yet every channel is named or numbered exactly once on the plan row; zoomed in
+/// twice, the same holds.
+fn plan_row_at(cols: u16, rows: u16) {
+    if !tmux_available() {
+        assert!(std::env::var("CI").is_err(), "tmux is not installed");
+        eprintln!("skipping the tmux end-to-end test: tmux is not installed");
+        return;
+    }
+    let (rec, plan) = demo_files();
+    let names = ["ops", "yard", "gate", "ferry", "beacon", "telem", "backhaul"];
+    let tmux = Tmux::start(&format!("plan-{cols}x{rows}"), cols, rows);
+    tmux.wait_for("the shell prompt", Duration::from_secs(10), |s| !s.trim().is_empty());
+    let line = format!(
+        "{} watch {rec} --plan {plan} --rate 4M --speed 0.25 --loop; echo BW-DONE-$?",
+        env!("CARGO_BIN_EXE_bandwarden"),
+    );
+    tmux.keys(&[&line, "Enter"]);
+    let wait = Duration::from_secs(60);
+    // The top line says "view …" once zoomed in (and "span 4 MHz" before, where it fits).
+    let top = |s: &str| s.lines().next().unwrap_or("").to_string();
+    let s = tmux.wait_for("the 4 MHz span", wait, |s| {
+        top(s).contains("4 MS/s") && !top(s).contains("view") && s.contains(" plan ")
+    });
+    assert_eq!(plan_row_channels(&s, &names), (1..=7).collect::<Vec<_>>(), "{s}");
+    // Zoomed in around the marker: the channels still in view, each once.
+    tmux.keys(&["+", "+"]);
+    let s = tmux.wait_for("the narrower span", wait, |s| top(s).contains("view 1 MHz"));
+    let shown = plan_row_channels(&s, &names);
+    let mut once = shown.clone();
+    once.dedup();
+    assert!(!shown.is_empty() && once == shown, "{s}");
+    tmux.keys(&["q"]);
+    tmux.wait_for("the shell after quitting", Duration::from_secs(20), |s| s.contains("BW-DONE-0"));
+}
+
+#[test]
+fn every_plan_channel_is_numbered_once_on_a_crowded_plan_row_at_80x24() {
+    plan_row_at(80, 24);
+}
+
+#[test]
+fn every_plan_channel_is_numbered_once_on_a_crowded_plan_row_at_160x48() {
+    plan_row_at(160, 48);
+}

@@ -11,7 +11,7 @@
 use crate::output::picture::canvas::{drawing, render_png, TickedAxis, FAMILY};
 use crate::output::picture::colour::MapKind;
 use crate::output::summary::table::ordered;
-use crate::output::summary::{is_thin, LogSummary, Tally, THIN_SHARE};
+use crate::output::summary::{floor, is_thin, LogSummary, Tally, THIN_SHARE};
 use anyhow::Result;
 use plotters::coord::Shift;
 use plotters::prelude::*;
@@ -24,6 +24,10 @@ const WIDTH: u32 = 1200;
 const ROW_H: u32 = 30;
 const NO_DATA: RGBColor = RGBColor(200, 200, 200);
 const TEXT: RGBColor = RGBColor(20, 20, 20);
+/// Width of the noise-floor column, pixels.
+const SPARK_W: u32 = 230;
+/// A row's sparkline spans at least this many dB, so a steady floor stays a flat line.
+const SPARK_MIN_DB: f64 = 3.0;
 
 /// What the columns are.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -38,6 +42,8 @@ pub struct Grid {
     pub columns: Columns,
     pub keys: Vec<i64>,
     pub rows: Vec<(String, BTreeMap<i64, Tally>)>,
+    /// Per row, the noise floor over time: (time s, mean floor dBFS/Hz), in time order.
+    pub floors: Vec<Vec<(f64, f64)>>,
 }
 
 /// The cells of `summary`.
@@ -65,7 +71,8 @@ pub fn grid(summary: &LogSummary) -> Grid {
         Columns::HourOfDay | Columns::HourFromStart => summary.hour_axis(),
         Columns::Day => days.into_iter().collect(),
     };
-    Grid { columns, keys, rows }
+    let floors = chans.iter().map(|c| c.noise.series.points()).collect();
+    Grid { columns, keys, rows, floors }
 }
 
 /// What the picture shows, for its title.
@@ -129,6 +136,7 @@ fn draw_on<DB: DrawingBackend>(
     let rest_h = rest.dim_in_pixel().1;
     let (main, footer) = rest.split_vertically(rest_h.saturating_sub(30));
     let (grid_area, bar_area) = main.split_horizontally(WIDTH - 110);
+    let (grid_area, spark_area) = grid_area.split_horizontally(WIDTH - 110 - SPARK_W);
     let n_rows = g.rows.len().max(1) as f64;
     let n_cols = g.keys.len().max(1) as f64;
     let longest = g.rows.iter().map(|r| r.0.chars().count()).max().unwrap_or(4);
@@ -208,6 +216,7 @@ fn draw_on<DB: DrawingBackend>(
             }
         }
     }
+    draw_floors(&spark_area, g)?;
     draw_legend(root, &bar_area, map)?;
     let note = format!(
         "channel occupancy = occupied / measured samples (ITU-R SM.1880), % · grey: not measured · hatched, *: under {:.0} % of the cell measured · {} file(s){}",
@@ -222,6 +231,68 @@ fn draw_on<DB: DrawingBackend>(
         .draw(&Text::new(note, (12, 6), (FAMILY, 13).into_font().color(&TEXT)))
         .map_err(drawing)?;
     Ok(())
+}
+
+/// Beside each row, its noise floor over the whole period as a sparkline (the same time axis
+/// for every row, cut where the logs have a gap), each row on its own scale, whose lowest and
+/// highest bucket means are written beside it.
+fn draw_floors<DB: DrawingBackend>(area: &DrawingArea<DB, Shift>, g: &Grid) -> Result<()> {
+    let n_rows = g.rows.len().max(1) as f64;
+    let times = g.floors.iter().flatten().map(|p| p.0);
+    let (t0, t1) = times.fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), t| (a.min(t), b.max(t)));
+    let (t0, t1) = if t0 < t1 { (t0, t1) } else { (t0 - 1.0, t0 + 1.0) };
+    // The line takes the left 60 % of the column, its range the rest.
+    let line_end = t0 + (t1 - t0) / 0.6;
+    let mut chart = ChartBuilder::on(area)
+        .margin(10)
+        .margin_left(8)
+        .x_label_area_size(44)
+        .build_cartesian_2d(
+            TickedAxis { low: t0, high: line_end, ticks: vec![] },
+            TickedAxis { low: 0.0, high: n_rows, ticks: vec![] },
+        )
+        .map_err(drawing)?;
+    chart
+        .configure_mesh()
+        .disable_mesh()
+        .disable_y_axis()
+        .x_desc("noise floor, dBFS/Hz (row min..max)")
+        .axis_desc_style((FAMILY, 13).into_font().color(&TEXT))
+        .draw()
+        .map_err(drawing)?;
+    let line = RGBColor(40, 70, 160);
+    for (r, points) in g.floors.iter().enumerate() {
+        let y0 = n_rows - 1.0 - r as f64;
+        let label = (t0 + (t1 - t0) * 1.04, y0 + 0.5);
+        let style = (FAMILY, 11).into_font().color(&TEXT).pos(Pos::new(HPos::Left, VPos::Center));
+        let Some((lo, hi)) = spark_range(points) else {
+            chart.draw_series([Text::new("no floor logged", label, style)]).map_err(drawing)?;
+            continue;
+        };
+        let mid = 0.5 * (lo + hi);
+        let span = (hi - lo).max(SPARK_MIN_DB);
+        let y = |v: f64| y0 + 0.5 + 0.7 * (v - mid) / span;
+        for run in floor::runs(points) {
+            if let [(t, v)] = run {
+                chart.draw_series([Circle::new((*t, y(*v)), 2, line.filled())]).map_err(drawing)?;
+            } else {
+                let path: Vec<(f64, f64)> = run.iter().map(|&(t, v)| (t, y(v))).collect();
+                chart
+                    .draw_series([PathElement::new(path, line.stroke_width(1))])
+                    .map_err(drawing)?;
+            }
+        }
+        let text = format!("{lo:.1}..{hi:.1}");
+        chart.draw_series([Text::new(text, label, style)]).map_err(drawing)?;
+    }
+    Ok(())
+}
+
+/// The lowest and highest point of a sparkline, or `None` when it has none.
+fn spark_range(points: &[(f64, f64)]) -> Option<(f64, f64)> {
+    let lo = points.iter().map(|p| p.1).min_by(f64::total_cmp)?;
+    let hi = points.iter().map(|p| p.1).max_by(f64::total_cmp)?;
+    Some((lo, hi))
 }
 
 /// Diagonal strokes across the cell whose lower left corner is (`x`, `y`).
@@ -269,4 +340,55 @@ fn draw_legend<DB: DrawingBackend>(
         chart.plotting_area().get_pixel_range(),
         map,
     )
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::output::summary::Settings;
+
+    /// Two hours of one-minute intervals of channel "gate" whose logged floor steps from
+    /// -170 to -164 dBFS/Hz after the first hour; then a gap of an hour and a last half hour.
+    fn stepped_log() -> String {
+        let mut text = String::from(
+            r#"{"kind":"start","site":"ridge","run":"r1","seq":0,"sample_rate_hz":1e6,"start":"2026-12-04T20:00:00Z","t_start_s":0.0,"interval_s":60.0}"#,
+        );
+        text.push('\n');
+        let minutes = (0..120).chain(180..210);
+        for (seq, m) in (1..).zip(minutes) {
+            let t = 60.0 * m as f64;
+            let floor = if m < 60 { -170.0 } else { -164.0 };
+            text.push_str(&format!(
+                r#"{{"kind":"interval","channel":"gate","center_hz":433.2625e6,"width_hz":12.5e3,"t_start_s":{t},"t_end_s":{},"duration_s":60.0,"samples":60000000,"occupied_samples":0,"occupancy_pct":0.0,"mean_dbfs":-60.0,"noise_floor_dbfs_per_hz":{floor},"dropped_samples":0,"run":"r1","seq":{seq}}}"#,
+                t + 60.0
+            ));
+            text.push('\n');
+        }
+        text
+    }
+
+    #[test]
+    fn the_floor_sparkline_comes_from_the_logged_floors() {
+        let mut s = LogSummary::new(Settings::default());
+        s.read("ridge.jsonl", stepped_log().as_bytes()).unwrap();
+        let g = grid(&s);
+        let points = &g.floors[0];
+        // Every logged floor is one of the two levels, each bucket one side of the step: the
+        // sparkline holds -170 before 21:00 UTC and -164 after, in time order.
+        let step = 1_796_414_400.0 + 3600.0; // 2026-12-04T21:00:00Z, seconds since the epoch
+        assert!(points.len() >= 100, "{}", points.len());
+        assert!(points.windows(2).all(|w| w[0].0 < w[1].0));
+        for &(t, v) in points {
+            let want = if t < step { -170.0 } else { -164.0 };
+            assert_eq!(v, want, "at {t}");
+        }
+        assert_eq!(spark_range(points), Some((-170.0, -164.0)));
+        // The hour without intervals cuts the line in two.
+        assert_eq!(floor::runs(points).len(), 2);
+        let png = draw_heatmap(&s, MapKind::Viridis, "floor step").unwrap();
+        assert!(png.starts_with(b"\x89PNG"));
+        if let Ok(dir) = std::env::var("BW_KEEP_PICTURES") {
+            std::fs::write(format!("{dir}/floor-step.png"), png).unwrap();
+        }
+    }
 }

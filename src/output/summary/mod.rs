@@ -26,6 +26,7 @@ pub mod alarms;
 pub mod change;
 pub mod coverage;
 pub mod export;
+pub mod floor;
 pub mod input;
 pub mod site;
 pub mod table;
@@ -132,6 +133,8 @@ pub struct NoiseTally {
     pub last: Option<(f64, f64)>,
     /// How many intervals had each value.
     pub counts: BTreeMap<NoiseValue, u64>,
+    /// The floor over time (from the intervals read from logs), for the picture's sparkline.
+    pub series: floor::FloorSeries,
 }
 
 /// A noise floor value, ordered by [`f64::total_cmp`].
@@ -159,6 +162,7 @@ impl NoiseTally {
     /// One interval's floor `value` at time `t`.
     pub fn push(&mut self, t: f64, value: f64) {
         self.count(value, 1);
+        self.series.push(t, value);
         self.ends((t, value), (t, value));
     }
 

@@ -63,6 +63,9 @@ const HOLD_LIMIT: Duration = Duration::from_millis(200);
 const TICK: Duration = Duration::from_millis(100);
 /// Largest UDP datagram.
 const MAX_DATAGRAM: usize = 65_536;
+/// The UDP receive buffer asked for: about 0.8 s of 20 MS/s of 16-bit complex samples, so a
+/// pause of the reader (a page fault, the scheduler) does not make the kernel drop packets.
+pub const RECEIVE_BUFFER: usize = 64 << 20;
 
 /// Reads `vita49://ADDR:PORT`; `None` for any other input name.
 pub fn parse_endpoint(input: &str) -> Option<Result<SocketAddr>> {
@@ -197,6 +200,9 @@ pub fn open(addr: SocketAddr, req: &InputRequest, notes: &mut Vec<String>) -> Re
     }
     let socket = UdpSocket::bind(addr).with_context(|| format!("cannot bind UDP {addr}"))?;
     socket.set_read_timeout(Some(TICK))?;
+    if let Some(note) = size_receive_buffer(&socket, RECEIVE_BUFFER, addr) {
+        notes.push(note);
+    }
     let mut src = Vita49Source {
         socket,
         info: SourceInfo::live(format!("vita49://{addr}"), SampleFormat::Ci16Be, 1.0, req),
@@ -224,6 +230,22 @@ pub fn open(addr: SocketAddr, req: &InputRequest, notes: &mut Vec<String>) -> Re
     };
     src.await_context(notes)?;
     Ok(src)
+}
+
+/// Asks the kernel for a receive buffer of `bytes`; a note when it grants less (Linux caps it at
+/// net.core.rmem_max, and reports twice what it keeps for its own bookkeeping).
+fn size_receive_buffer(socket: &UdpSocket, bytes: usize, addr: SocketAddr) -> Option<String> {
+    let sock = socket2::SockRef::from(socket);
+    let asked = sock.set_recv_buffer_size(bytes);
+    let granted = sock.recv_buffer_size().ok()?;
+    let mib = |b: usize| b as f64 / (1 << 20) as f64;
+    (asked.is_err() || granted < bytes).then(|| {
+        format!(
+            "vita49://{addr}: the kernel granted a receive buffer of {:.1} MiB of the {:.0} MiB asked; a fast sender may lose packets (counted as packet_lost) when the reader pauses; on Linux raise the cap with sysctl -w net.core.rmem_max={bytes}",
+            mib(granted),
+            mib(bytes)
+        )
+    })
 }
 
 impl Vita49Source {

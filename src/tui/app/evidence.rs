@@ -15,7 +15,7 @@
 use super::App;
 use crate::output::sink;
 use crate::pipeline::clock::rfc3339_ms;
-use crate::units::db;
+use crate::units::{db, round_dp};
 use anyhow::Result;
 use std::io::Write;
 use time::OffsetDateTime;
@@ -68,13 +68,13 @@ impl App {
             .iter()
             .map(|s| {
                 serde_json::json!({
-                    "freq_hz": s.freq_hz,
-                    "power_dbfs": s.power_dbfs,
-                    "peak_dbfs": s.level_dbfs,
-                    "snr_db": s.snr_db,
-                    "obw_hz": s.obw.width_hz(),
-                    "obw_low_hz": s.obw.low_hz,
-                    "obw_high_hz": s.obw.high_hz,
+                    "freq_hz": round_dp(s.freq_hz, 1),
+                    "power_dbfs": round_dp(s.power_dbfs, 2),
+                    "peak_dbfs": round_dp(s.level_dbfs, 2),
+                    "snr_db": round_dp(s.snr_db, 2),
+                    "obw_hz": round_dp(s.obw.width_hz(), 1),
+                    "obw_low_hz": round_dp(s.obw.low_hz, 1),
+                    "obw_high_hz": round_dp(s.obw.high_hz, 1),
                     "channel": self.plan.channel_at(s.freq_hz).map(|c| c.name.clone()),
                 })
             })
@@ -91,11 +91,12 @@ impl App {
             "row_time": self.times.utc_at(end).and_then(rfc3339_ms),
             "row_input_s": self.times.clock.seconds(end),
             "scrolled_back": self.cursor.index.is_some(),
-            "noise_floor_dbfs_per_hz": self.measured.floor_density.map(db),
+            "noise_floor_dbfs_per_hz": self.measured.floor_density.map(|d| round_dp(db(d), 2)),
             "ref_offset_db": self.levels.offset_db,
             "band": self.markers.band.map(|b| serde_json::json!({
-                "low_hz": b.low_hz, "high_hz": b.high_hz, "power_dbfs": b.power_dbfs,
-                "obw_hz": b.obw.map(|e| e.width_hz()),
+                "low_hz": round_dp(b.low_hz, 1), "high_hz": round_dp(b.high_hz, 1),
+                "power_dbfs": b.power_dbfs.map(|p| round_dp(p, 2)),
+                "obw_hz": b.obw.map(|e| round_dp(e.width_hz(), 1)),
             })),
             "traces_csv": csv,
             "signals": signals,
@@ -158,8 +159,11 @@ mod tests {
             serde_json::from_str(&std::fs::read_to_string(&json).unwrap()).unwrap();
         assert_eq!(v["written"], "2031-04-17T06:30:02.500Z");
         assert_eq!(v["signals"].as_array().unwrap().len(), a.table.signals.len());
-        assert_eq!(v["signals"][0]["freq_hz"], a.table.signals[0].freq_hz);
-        assert_eq!(v["signals"][0]["power_dbfs"], a.table.signals[0].power_dbfs);
+        // Rounded as the logs round: 0.1 Hz, 0.01 dB.
+        let (freq, power) = (&v["signals"][0]["freq_hz"], &v["signals"][0]["power_dbfs"]);
+        assert!((freq.as_f64().unwrap() - a.table.signals[0].freq_hz).abs() <= 0.05, "{freq}");
+        assert!((power.as_f64().unwrap() - a.table.signals[0].power_dbfs).abs() <= 0.005);
+        assert_eq!(power, &serde_json::json!(round_dp(a.table.signals[0].power_dbfs, 2)));
         let _ = std::fs::remove_dir_all(&dir);
         // A directory that does not exist is an error with the path, not a panic.
         let err = a.write_evidence("/nonexistent-bw-dir", now).unwrap_err();

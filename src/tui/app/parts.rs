@@ -9,7 +9,7 @@ use super::super::state::{AlarmLog, BandReading, ChannelMark, SortKey, TableMode
 use crate::dsp::{Spectrum, Window};
 use crate::measure::{Detection, Signal};
 use crate::pipeline::clock::rfc3339_ms;
-use crate::units::{db, undb};
+use crate::units::{db, round_dp, undb};
 use std::time::Instant;
 
 /// The two markers and what they read.
@@ -174,8 +174,8 @@ impl PlanState {
                 "channel": ch.name,
                 "center_hz": ch.center_hz,
                 "width_hz": ch.width_hz,
-                "power_dbfs": st.power_dbfs,
-                "threshold_dbfs": ch.alarm_dbfs,
+                "power_dbfs": st.power_dbfs.map(|p| round_dp(p, 2)),
+                "threshold_dbfs": ch.alarm_dbfs.map(|p| round_dp(p, 2)),
             });
             if let AlarmEvent::End { start_s, end_s, peak_dbfs, .. } = e {
                 let at = |s: f64| {
@@ -191,8 +191,8 @@ impl PlanState {
                     "width_hz": ch.width_hz,
                     "started": at(*start_s),
                     "last_over": at(*end_s),
-                    "duration_s": crate::units::round_dp(end_s - start_s, 3),
-                    "peak_power_dbfs": crate::units::round_dp(*peak_dbfs, 2),
+                    "duration_s": round_dp(end_s - start_s, 3),
+                    "peak_power_dbfs": round_dp(*peak_dbfs, 2),
                     "hold_s": hold_s,
                     "ended": why_ended,
                 });
@@ -312,7 +312,9 @@ mod tests {
         assert_eq!(recs[0]["channel"], "yard");
         assert_eq!(recs[0]["time"], "2031-04-17T06:30:02.000Z");
         let p = recs[0]["power_dbfs"].as_f64().unwrap();
-        assert!((p - db(1e-2 + 1e-5)).abs() < 1e-9, "{p}");
+        // Rounded to 0.01 dB as every level in the logs.
+        assert!((p - db(1e-2 + 1e-5)).abs() <= 0.005, "{p}");
+        assert_eq!(p, (p * 100.0).round() / 100.0, "{p}");
         // First alarm: from the row ending at 2 s to the last row over, ending at 5 s; it ends
         // with the row ending at 10 s.
         assert_eq!(recs[1]["input_s"], 10.0);
