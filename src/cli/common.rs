@@ -64,7 +64,7 @@ pub struct InputArgs {
     #[arg(long, value_name = "ID", value_parser = crate::source::vita49::parse_stream_id)]
     pub stream_id: Option<u32>,
     /// A retuned raw stream: FILE lists the centres the receiver visits in order, one
-    /// 'CENTRE DWELL' a line (e.g. '433.05M 50ms'), repeated until the input ends; the steps
+    /// 'CENTER DWELL' a line (e.g. '433.05M 50ms'), repeated until the input ends; the steps
     /// are stitched into one panorama.
     #[arg(long, value_name = "FILE")]
     pub hop_plan: Option<String>,

@@ -200,7 +200,7 @@ pub struct InputRequest {
     pub listen_public: bool,
     /// Of a VITA 49 input, the stream to read (`None`: the first seen).
     pub stream_id: Option<u32>,
-    /// A raw stream's tuning: a file of `CENTRE DWELL` lines (see [`tuning::parse_hop_plan`]).
+    /// A raw stream's tuning: a file of `CENTER DWELL` lines (see [`tuning::parse_hop_plan`]).
     pub hop_plan: Option<String>,
     /// Seconds skipped after every retune of a retuned input.
     pub settle_s: Option<f64>,

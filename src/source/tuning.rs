@@ -115,7 +115,7 @@ impl Tuning {
     }
 }
 
-/// Reads a hop plan: one step a line, `CENTRE DWELL` (`433.05M 50ms`), in the order the receiver
+/// Reads a hop plan: one step a line, `CENTER DWELL` (`433.05M 50ms`), in the order the receiver
 /// visits them; blank lines and `#` comments are skipped. The plan repeats until the input ends.
 /// `name` is the file's name for messages.
 pub fn parse_hop_plan(text: &str, name: &str, rate_hz: f64) -> Result<Tuning> {
@@ -159,7 +159,7 @@ pub fn parse_hop_plan(text: &str, name: &str, rate_hz: f64) -> Result<Tuning> {
     }
     if steps.len() < 2 {
         bail!(
-            "{name}: a hop plan needs at least two steps (lines 'CENTRE DWELL'), found {}; add the centres the receiver visits",
+            "{name}: a hop plan needs at least two steps (lines 'CENTER DWELL'), found {}; add the centres the receiver visits",
             steps.len()
         );
     }
