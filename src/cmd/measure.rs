@@ -97,8 +97,9 @@ pub fn run(mut cfg: MeasureConfig) -> Result<ExitCode> {
         report.duration_s = counts.samples as f64 / info.sample_rate_hz;
         report.fft_size = cfg.dsp.fft_size;
     }
-    for p in &mut report.peaks {
-        p.classified = Some(ClassFields::of(&kinds.classify_newest(p.freq_hz, p.obw_hz)));
+    let wanted: Vec<(f64, f64)> = report.peaks.iter().map(|p| (p.freq_hz, p.obw_hz)).collect();
+    for (p, c) in report.peaks.iter_mut().zip(kinds.classify_newest_all(&wanted)) {
+        p.classified = Some(ClassFields::of(&c));
     }
     for (row, f) in report.bands.iter_mut().zip(on_air.figures(cfg.obw_percent, cfg.xdb)) {
         row.set_on_air(&f);

@@ -105,6 +105,19 @@ impl Kinds {
         self.classify_range(range, &span)
     }
 
+    /// [`Kinds::classify_newest`] of every `(center_hz, obw_hz)`, shared among the workers (two
+    /// at a time on two cores), answers in the order given: the listing made once the input is
+    /// over waits for the slowest pair rather than the sum of them all.
+    pub fn classify_newest_all(&mut self, emissions: &[(f64, f64)]) -> Vec<Classification> {
+        // The newest `take_max` samples, as `classify_newest` takes them.
+        let end = self.history.end();
+        let start = end.saturating_sub(self.take_max() as u64).max(self.history.first());
+        for &(center_hz, obw_hz) in emissions {
+            self.classify_later(&Span { start, end, center_hz, obw_hz, noise_psd: None });
+        }
+        self.collect()
+    }
+
     /// As [`Kinds::classify`], on a worker thread: the samples are copied out now and the
     /// answer is collected, in the order asked, by [`Kinds::collect`]. The run's thread then only
     /// copies; the workers ([`WORKERS`]) overlap the transforms of the run, and the emissions
