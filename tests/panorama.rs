@@ -99,14 +99,14 @@ fn measure(args: &[&str]) -> Value {
 /// Every tone is found within one bin (1 kHz) of its frequency and 0.5 dB of its power, and
 /// nothing stronger than the weakest tone is found elsewhere.
 fn assert_tones(report: &Value, what: &str) {
-    let (lo, hi) = (report["span_low_hz"].as_f64(), report["span_high_hz"].as_f64());
+    let span = report["panorama_span_hz"].as_f64();
     let peaks = report["peaks"].as_array().unwrap();
     for (f, l) in TONES {
         let p = peaks
             .iter()
             .find(|p| (p["freq_hz"].as_f64().unwrap() - f).abs() <= 1e3)
             .unwrap_or_else(|| {
-                panic!("{what}: no peak at {f} Hz in {peaks:?} (span {lo:?} .. {hi:?})")
+                panic!("{what}: no peak at {f} Hz in {peaks:?} (panorama span {span:?} Hz)")
             });
         let got = p["power_dbfs"].as_f64().unwrap();
         assert!((got - l).abs() < 0.5, "{what}: tone at {f} Hz reads {got} dBFS, truth {l}");
@@ -127,7 +127,11 @@ fn a_four_step_sweep_is_one_panorama_with_every_tone_right() {
     let plan = hop_plan(&dir);
     let v = measure(&[&data, "--rate", "1M", "--hop-plan", &plan, "--settle", "2ms"]);
     assert_tones(&v, "--hop-plan");
-    // The panorama spans the four steps' usable bands: 445.6 .. 448.8 MHz (3200 bins of 1 kHz).
+    // The panorama spans the four steps' usable bands: 445.6 .. 448.8 MHz (3200 bins of 1 kHz),
+    // centred at 447.2 MHz; the sample rate stays the receiver's.
+    assert_eq!(v["panorama_span_hz"].as_f64(), Some(3.2e6), "{v}");
+    assert_eq!(v["center_hz"].as_f64(), Some(447.2e6), "{v}");
+    assert_eq!(v["sample_rate_hz"].as_f64(), Some(1e6), "{v}");
     let rbw = v["rbw_hz"].as_f64().unwrap();
     assert!((rbw - 1.5e3).abs() < 1.0, "RBW stays the step's (Hann, 1.5 bins): {rbw}");
     let peaks = v["peaks"].as_array().unwrap();

@@ -93,6 +93,7 @@ pub fn run(mut cfg: MeasureConfig) -> Result<ExitCode> {
     if info.tuning.is_some() {
         // A panorama's geometry is its grid (its "rate" the span): say the input's own rate and
         // time, and the step's FFT size.
+        report.panorama_span_hz = Some(report.sample_rate_hz);
         report.sample_rate_hz = info.sample_rate_hz;
         report.duration_s = counts.samples as f64 / info.sample_rate_hz;
         report.fft_size = cfg.dsp.fft_size;

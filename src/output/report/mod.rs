@@ -131,6 +131,7 @@ pub fn build_report(
         frames: spec.frames,
         samples: counts.samples,
         duration_s: counts.samples as f64 / spec.sample_rate_hz,
+        panorama_span_hz: None,
         dof: spec.dof,
         psd_uncertainty_db: uncertainty_db(spec.dof),
         total_power_dbfs: db(spec.total_power()),
@@ -193,6 +194,11 @@ pub struct Report {
     pub frames: u64,
     pub samples: u64,
     pub duration_s: f64,
+    /// Of a panorama (a retuned input stitched into one spectrum), the width it covers, Hz;
+    /// `sample_rate_hz` is then the receiver's own rate. Absent from the JSON otherwise, where
+    /// the span is the sample rate.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub panorama_span_hz: Option<f64>,
     /// Equivalent degrees of freedom of each PSD bin.
     pub dof: f64,
     /// Half-width of the 95 % confidence interval of a noise-only PSD bin, in dB.
@@ -288,7 +294,7 @@ impl Report {
             s,
             "span       {} ± {}   ({} samples, {:.3} s)",
             format_hz(self.center_hz),
-            format_hz(self.sample_rate_hz / 2.0),
+            format_hz(self.panorama_span_hz.unwrap_or(self.sample_rate_hz) / 2.0),
             self.samples,
             self.duration_s
         );
