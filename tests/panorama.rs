@@ -88,6 +88,13 @@ fn run(args: &[&str]) -> Output {
     Command::new(BIN).args(args).output().unwrap()
 }
 
+/// `COMMAND DATA --rate 1M --fft FFT --hop-plan PLAN EXTRA…`: the sweep as the tests read it.
+fn on_sweep(command: &str, data: &str, plan: &str, extra: &[&str]) -> Output {
+    let mut all = vec![command, data, "--rate", "1M", "--fft", FFT, "--hop-plan", plan];
+    all.extend_from_slice(extra);
+    run(&all)
+}
+
 fn measure(args: &[&str]) -> Value {
     let mut all = vec!["measure", "--json", "--fft", FFT];
     all.extend_from_slice(args);
@@ -169,33 +176,11 @@ fn a_plan_channel_beyond_the_panorama_is_refused_and_a_hole_is_named() {
     std::fs::write(&data, capture(1)).unwrap();
     let plan = hop_plan(&dir);
     // 449.5 MHz is never in view: refused, never reported idle.
-    let o = run(&[
-        "measure",
-        &data,
-        "--rate",
-        "1M",
-        "--fft",
-        FFT,
-        "--hop-plan",
-        &plan,
-        "--channel",
-        "far=449.5M:12.5k",
-    ]);
+    let o = on_sweep("measure", &data, &plan, &["--channel", "far=449.5M:12.5k"]);
     let err = String::from_utf8_lossy(&o.stderr);
     assert!(!o.status.success() && err.contains("outside the captured span"), "{err}");
     // At 60 % usable the steps (800 kHz apart, 600 kHz kept) leave holes.
-    let o = run(&[
-        "measure",
-        &data,
-        "--rate",
-        "1M",
-        "--fft",
-        FFT,
-        "--hop-plan",
-        &plan,
-        "--usable",
-        "0.6",
-    ]);
+    let o = on_sweep("measure", &data, &plan, &["--usable", "0.6"]);
     let err = String::from_utf8_lossy(&o.stderr);
     assert!(
         !o.status.success() && err.contains("never in view") && err.contains("--usable"),
@@ -216,24 +201,21 @@ fn log_follows_a_channel_across_the_panorama() {
     let data = dir.file("sweep.cf32");
     std::fs::write(&data, capture(4)).unwrap();
     let plan = hop_plan(&dir);
-    let out = run(&[
+    let out = on_sweep(
         "log",
         &data,
-        "--rate",
-        "1M",
-        "--fft",
-        FFT,
-        "--hop-plan",
         &plan,
-        "--settle",
-        "2ms",
-        "--channel",
-        "relay=447.2035M:12.5k",
-        "--channel",
-        "quiet=448.2M:12.5k",
-        "--interval",
-        "1s",
-    ]);
+        &[
+            "--settle",
+            "2ms",
+            "--channel",
+            "relay=447.2035M:12.5k",
+            "--channel",
+            "quiet=448.2M:12.5k",
+            "--interval",
+            "1s",
+        ],
+    );
     assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
     let lines: Vec<Value> = String::from_utf8_lossy(&out.stdout)
         .lines()
