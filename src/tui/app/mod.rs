@@ -327,7 +327,9 @@ impl App {
             row = row.with_stale(&stale);
         }
         self.history.push(row);
-        let events = self.plan.activity.push(&spec, &self.plan.marks, self.measured.floor_density);
+        let rate = self.source.sample_rate_hz;
+        let floor = self.measured.floor_density;
+        let events = self.plan.activity.push(&spec, rate, &self.plan.marks, floor);
         if events.iter().any(|e| matches!(e, AlarmEvent::Onset { .. })) {
             self.alerts.bells += 1;
         }
