@@ -179,6 +179,18 @@ fn a_plan_channel_beyond_the_panorama_is_refused_and_a_hole_is_named() {
     let o = on_sweep("measure", &data, &plan, &["--channel", "far=449.5M:12.5k"]);
     let err = String::from_utf8_lossy(&o.stderr);
     assert!(!o.status.success() && err.contains("outside the captured span"), "{err}");
+    // A tone calibration needs one tuning: refused, saying why and what to do.
+    let cal = dir.file("cal.toml");
+    let o = on_sweep("calibrate", &data, &plan, &["--tone", "446.39M:-50dBm", "-o", &cal]);
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(
+        !o.status.success() && err.contains("one tuning") && err.contains("--segment"),
+        "{err}"
+    );
+    // A census capture would cut IQ from whatever dwell the receiver was in: refused.
+    let o = on_sweep("census", &data, &plan, &["--capture", &dir.file("caps")]);
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(!o.status.success() && err.contains("--capture") && err.contains("sweep"), "{err}");
     // At 60 % usable the steps (800 kHz apart, 600 kHz kept) leave holes.
     let o = on_sweep("measure", &data, &plan, &["--usable", "0.6"]);
     let err = String::from_utf8_lossy(&o.stderr);

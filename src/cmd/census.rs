@@ -45,7 +45,7 @@ pub fn run(mut cfg: CensusConfig) -> Result<ExitCode> {
     let sweep = sweep_view(&info, cfg.dsp.fft_size)?;
     if sweep.is_some() && cfg.sigmf.capture.is_some() {
         bail!(
-            "'{}' was retuned (a sweep): --capture would cut each emission's samples from whatever dwell the receiver was in; capture from one capture with --segment N, or use --record",
+            "'{}' was retuned (a sweep): --capture would cut each emission's samples from whatever dwell the receiver was in; to capture, read one recorded capture with --segment N (or keep the whole input with --record)",
             sanitize(&info.label)
         );
     }
