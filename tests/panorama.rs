@@ -179,6 +179,18 @@ fn a_plan_channel_beyond_the_panorama_is_refused_and_a_hole_is_named() {
     let o = on_sweep("measure", &data, &plan, &["--channel", "far=449.5M:12.5k"]);
     let err = String::from_utf8_lossy(&o.stderr);
     assert!(!o.status.success() && err.contains("outside the captured span"), "{err}");
+    // A tone calibration needs one tuning: refused, saying why and what to do.
+    let cal = dir.file("cal.toml");
+    let o = on_sweep("calibrate", &data, &plan, &["--tone", "446.39M:-50dBm", "-o", &cal]);
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(
+        !o.status.success() && err.contains("one tuning") && err.contains("--segment"),
+        "{err}"
+    );
+    // A census capture would cut IQ from whatever dwell the receiver was in: refused.
+    let o = on_sweep("census", &data, &plan, &["--capture", &dir.file("caps")]);
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(!o.status.success() && err.contains("--capture") && err.contains("sweep"), "{err}");
     // At 60 % usable the steps (800 kHz apart, 600 kHz kept) leave holes.
     let o = on_sweep("measure", &data, &plan, &["--usable", "0.6"]);
     let err = String::from_utf8_lossy(&o.stderr);
@@ -240,4 +252,86 @@ fn log_follows_a_channel_across_the_panorama() {
     assert!((quiet["observation_s"].as_f64().unwrap() - 0.192).abs() < 1e-9, "{quiet}");
     assert_eq!(quiet["revisit_s"].as_f64(), Some(0.2), "{quiet}");
     assert!(relay.get("observation_s").is_none(), "{relay}");
+}
+
+/// A tone keyed on for the first two of four sweeps only, inside step 0's usable band.
+const KEYED: (f64, f64) = (446.2e6, -35.0);
+
+/// `capture(4)` plus [`KEYED`]: on the air in the dwells of sweeps 0 and 1 that see it.
+fn census_capture() -> Vec<u8> {
+    let mut bytes = Vec::new();
+    for s in 0..4 {
+        for (k, &c) in CENTRES.iter().enumerate() {
+            let mut x = dwell(c, (s * 4 + k) as u64 + 1);
+            if s < 2 && (KEYED.0 - c).abs() < FS / 2.0 {
+                let tone = Keyed::steady(KEYED.0 - c, KEYED.1);
+                let t = keyed_band(DWELL, FS, 0.0, &[tone], 99);
+                x.iter_mut().zip(&t).for_each(|(a, b)| *a += b);
+            }
+            SampleFormat::Cf32Le.encode(&x, &mut bytes);
+        }
+    }
+    bytes
+}
+
+#[test]
+fn census_of_a_sweep_counts_airtime_over_the_time_in_view() {
+    let dir = Scratch::new("census");
+    let data = dir.file("sweep.cf32");
+    std::fs::write(&data, census_capture()).unwrap();
+    let plan = hop_plan(&dir);
+    let plan_out = dir.file("found.toml");
+    let out =
+        on_sweep("census", &data, &plan, &["--settle", "2ms", "--json", "--plan-out", &plan_out]);
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let v: Value = serde_json::from_slice(&out.stdout).unwrap();
+    // The sweep is said: 445.6 .. 448.8 MHz in four steps, revisited every 200 ms.
+    let sweep = &v["sweep"];
+    assert_eq!(sweep["span_hz"], json!([445.5995e6, 448.7995e6]), "{v}");
+    assert_eq!((sweep["steps"].as_u64(), sweep["revisit_s"].as_f64()), (Some(4), Some(0.2)));
+    assert_eq!(v["fft_size"].as_u64(), Some(1000), "one step's FFT: {v}");
+    let emitters = v["emitters"].as_array().unwrap();
+    let find = |f: f64| {
+        let found: Vec<&Value> = emitters
+            .iter()
+            .filter(|e| (e["center_hz"].as_f64().unwrap() - f).abs() <= 1e3)
+            .collect();
+        assert_eq!(found.len(), 1, "one emitter at {f} Hz (one bin): {emitters:?}");
+        found[0].clone()
+    };
+    // Every tone is one row at its frequency and power (Parseval: A² for a stated level), the
+    // one across the step 1/2 boundary included.
+    for (f, l) in TONES.into_iter().chain([KEYED]) {
+        let e = find(f);
+        let p = e["power_dbfs"].as_f64().unwrap();
+        assert!((p - l).abs() < 0.5, "{f} Hz reads {p} dBFS, truth {l}: {e}");
+    }
+    // A tone inside one step is in view 48 ms a sweep (50 ms dwell less 2 ms settling), four
+    // sweeps: 0.192 s observed. The steady tones are on all of it; the keyed one half of it,
+    // though the receiver was away from it three quarters of every sweep.
+    for (f, on_s, pct) in [(TONES[2].0, 0.192, 100.0), (KEYED.0, 0.096, 50.0)] {
+        let e = find(f);
+        let obs = e["observation_s"].as_f64().unwrap();
+        assert!((obs - 0.192).abs() < 1e-9, "{f} Hz observed {obs} s: {e}");
+        let on = e["airtime_s"].as_f64().unwrap();
+        assert!((on - on_s).abs() < 0.005, "{f} Hz on {on} s of view, truth {on_s}: {e}");
+        let got = e["airtime_pct"].as_f64().unwrap();
+        assert!((got - pct).abs() < 2.5, "{f} Hz duty {got} %, truth {pct}: {e}");
+    }
+    // Kinds need a dwell's samples: none are kept, and the reason is given.
+    let e = find(TONES[0].0);
+    assert_eq!(e["class"], "unknown", "{e}");
+    assert!(e["class_reason"].as_str().unwrap().contains("sweep"), "{e}");
+    // The plan written loads in `log` on the same input, and logs the tones as occupied.
+    let out = on_sweep("log", &data, &plan, &["--settle", "2ms", "--plan", &plan_out]);
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(text.lines().any(|l| l.contains("\"interval\"")), "{text}");
+    // The table says it was a sweep and gives each emitter's time in view.
+    let out = on_sweep("census", &data, &plan, &["--settle", "2ms", "--no-kinds"]);
+    let table = String::from_utf8_lossy(&out.stdout);
+    assert!(
+        out.status.success() && table.contains("a sweep: ") && table.contains("observed s"),
+        "{table}"
+    );
 }

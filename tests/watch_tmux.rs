@@ -33,6 +33,20 @@ fn tmux_available() -> bool {
     Command::new("tmux").arg("-V").output().is_ok_and(|o| o.status.success())
 }
 
+/// True (and said) when tmux is not installed, so the test is skipped; in CI (`CI=true`) a
+/// missing tmux fails instead.
+fn tmux_missing() -> bool {
+    if tmux_available() {
+        return false;
+    }
+    assert!(
+        std::env::var("CI").is_err(),
+        "tmux is not installed; .ci/run installs it (apt-get install tmux)"
+    );
+    eprintln!("skipping the tmux end-to-end test: tmux is not installed");
+    true
+}
+
 /// A tmux server of our own (its own socket), killed when dropped.
 struct Tmux {
     socket: String,
@@ -67,6 +81,14 @@ impl Tmux {
         let mut c = Command::new("tmux");
         c.arg("-L").arg(&self.socket).args(args);
         c
+    }
+
+    /// Once the shell is up, runs `bandwarden watch ARGS` in it, then echoes `BW-DONE-` and
+    /// its exit status.
+    fn watch(&self, args: &str) {
+        self.wait_for("the shell prompt", Duration::from_secs(10), |s| !s.trim().is_empty());
+        let line = format!("{} watch {args}; echo BW-DONE-$?", env!("CARGO_BIN_EXE_bandwarden"));
+        self.keys(&[&line, "Enter"]);
     }
 
     fn keys(&self, keys: &[&str]) {
@@ -177,9 +199,7 @@ fn bottom(screen: &str) -> (String, String) {
 }
 
 fn small_screen_at(cols: u16, rows: u16) {
-    if !tmux_available() {
-        assert!(std::env::var("CI").is_err(), "tmux is not installed");
-        eprintln!("skipping the tmux end-to-end test: tmux is not installed");
+    if tmux_missing() {
         return;
     }
     let wait = Duration::from_secs(20);
@@ -187,13 +207,7 @@ fn small_screen_at(cols: u16, rows: u16) {
     std::fs::create_dir_all(&dir).unwrap();
     let (rec, plan) = demo_files();
     let tmux = Tmux::start(&format!("small-{cols}x{rows}"), cols, rows);
-    tmux.wait_for("the shell prompt", Duration::from_secs(10), |s| !s.trim().is_empty());
-    let line = format!(
-        "{} watch {rec} --plan {plan} --loop --evidence-dir {}; echo BW-DONE-$?",
-        env!("CARGO_BIN_EXE_bandwarden"),
-        dir.display()
-    );
-    tmux.keys(&[&line, "Enter"]);
+    tmux.watch(&format!("{rec} --plan {plan} --loop --evidence-dir {}", dir.display()));
     tmux.wait_for("the signal table", Duration::from_secs(60), |s| s.contains("Power dBFS"));
     // The channel panel: seven channels, fewer rows; n walks them all into view.
     tmux.keys(&["t"]);
@@ -255,12 +269,7 @@ enum End {
 
 fn run_at(cols: u16, rows: u16, end: End) {
     let t0 = Instant::now();
-    if !tmux_available() {
-        assert!(
-            std::env::var("CI").is_err(),
-            "tmux is not installed; .ci/run installs it (apt-get install tmux)"
-        );
-        eprintln!("skipping the tmux end-to-end test: tmux is not installed");
+    if tmux_missing() {
         return;
     }
     let dir = std::env::temp_dir().join(format!("bw-e2e-{}-{cols}x{rows}", std::process::id()));
@@ -335,9 +344,7 @@ fn sigterm_also_restores_the_terminal() {
 /// hold-off. Every opening has its end record.
 #[test]
 fn channel_alarms_open_once_and_end_after_the_hold_off() {
-    if !tmux_available() {
-        assert!(std::env::var("CI").is_err(), "tmux is not installed");
-        eprintln!("skipping the tmux end-to-end test: tmux is not installed");
+    if tmux_missing() {
         return;
     }
     let dir = std::env::temp_dir().join(format!("bw-e2e-alarms-{}", std::process::id()));
@@ -404,9 +411,7 @@ fn channel_alarms_open_once_and_end_after_the_hold_off() {
 /// must hold the same `alarm` record `log --alarms` writes.
 #[test]
 fn change_alarms_show_on_the_top_line_and_in_the_alarm_log_at_80x24() {
-    if !tmux_available() {
-        assert!(std::env::var("CI").is_err(), "tmux is not installed");
-        eprintln!("skipping the tmux end-to-end test: tmux is not installed");
+    if tmux_missing() {
         return;
     }
     let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/reference/alarms");
@@ -485,9 +490,7 @@ fn plan_row_channels(screen: &str, names: &[&str]) -> Vec<usize> {
 /// at 80 columns, yet every channel is named or numbered exactly once on the plan row; zoomed in
 /// twice, the same holds.
 fn plan_row_at(cols: u16, rows: u16) {
-    if !tmux_available() {
-        assert!(std::env::var("CI").is_err(), "tmux is not installed");
-        eprintln!("skipping the tmux end-to-end test: tmux is not installed");
+    if tmux_missing() {
         return;
     }
     let (rec, plan) = demo_files();
@@ -525,4 +528,76 @@ fn every_plan_channel_is_numbered_once_on_a_crowded_plan_row_at_80x24() {
 #[test]
 fn every_plan_channel_is_numbered_once_on_a_crowded_plan_row_at_160x48() {
     plan_row_at(160, 48);
+}
+
+/// Four steps of a Wrenhollow Ridge sweep, 800 kHz apart (the default 80 % of 1 MS/s each):
+/// they tile 445.6 .. 448.8 MHz.
+const SWEEP_CENTRES: [f64; 4] = [446.0e6, 446.8e6, 447.6e6, 448.4e6];
+const SWEEP_DWELL: usize = 50_000;
+
+/// A SigMF recording of three sweeps, one capture per dwell, tones at 446.2 and 447.7 MHz. The
+/// last sweep's first capture is 500 samples, shorter than one 1000-point frame: the last row's
+/// lowest step (445.6 .. 446.4 MHz) keeps the second sweep's levels, seen some 300 ms before the
+/// row's end, more than the revisit time (the recording's length over three sweeps, 183 ms).
+fn write_sweep(dir: &Path) -> PathBuf {
+    std::fs::create_dir_all(dir).unwrap();
+    let tones = [(446.2e6, -30.0), (447.7e6, -35.0)];
+    let (mut bytes, mut captures, mut at) = (Vec::new(), Vec::new(), 0usize);
+    for k in 0..12 {
+        let c = SWEEP_CENTRES[k % 4];
+        let n = if k == 8 { 500 } else { SWEEP_DWELL };
+        let carriers: Vec<Keyed> = tones
+            .iter()
+            .filter(|(f, _)| (f - c).abs() < RATE_HZ / 2.0)
+            .map(|&(f, l)| Keyed::steady(f - c, l))
+            .collect();
+        SampleFormat::Cf32Le
+            .encode(&keyed_band(n, RATE_HZ, 1e-7, &carriers, k as u64 + 1), &mut bytes);
+        captures.push(format!(r#"{{"core:sample_start": {at}, "core:frequency": {c}}}"#));
+        at += n;
+    }
+    std::fs::write(dir.join("sweep.sigmf-data"), bytes).unwrap();
+    let meta = format!(
+        r#"{{"global": {{"core:datatype": "cf32_le", "core:sample_rate": {RATE_HZ}, "core:version": "1.0.0", "core:description": "Wrenhollow Ridge sweep"}}, "captures": [{}], "annotations": []}}"#,
+        captures.join(",")
+    );
+    let path = dir.join("sweep.sigmf-meta");
+    std::fs::write(&path, meta).unwrap();
+    path
+}
+
+#[test]
+fn a_sweep_is_drawn_whole_with_its_old_bins_marked_at_80x24() {
+    if tmux_missing() {
+        return;
+    }
+    let dir = std::env::temp_dir().join(format!("bw-e2e-sweep-{}", std::process::id()));
+    let rec = write_sweep(&dir);
+    let tmux = Tmux::start("sweep", 80, 24);
+    tmux.watch(&format!("{} --fft 1000", rec.display()));
+    let s = tmux.wait_for("the end of the sweep", Duration::from_secs(60), |s| {
+        s.contains("end of input") && s.lines().skip(1).any(|l| l.contains('┊'))
+    });
+    // The header says it is a sweep, its steps and revisit time, and what the marker means.
+    assert!(s.contains("sweep 4 steps, revisit 184 ms, ┊ older"), "{s}");
+    // The whole panorama is drawn: the axis runs over the steps' union, 445.6 .. 448.8 MHz.
+    let axis = s.lines().find(|l| l.trim_start().starts_with("MHz")).unwrap_or_default();
+    assert!(axis.contains("446.0") && axis.contains("448.5"), "{s}");
+    // The marker stands on the lowest step's columns only (its quarter of the plot, GUTTER
+    // columns in), in every waterfall line that shows the last row.
+    let marked: Vec<&str> = s.lines().filter(|l| l.contains('┊') && !l.contains("older")).collect();
+    assert!(!marked.is_empty(), "{s}");
+    for l in &marked {
+        let cols: Vec<usize> =
+            l.chars().enumerate().filter(|(_, c)| *c == '┊').map(|(i, _)| i).collect();
+        let plot = 80 - 6;
+        assert!(
+            cols.iter().all(|&c| c >= 6 && c < 6 + plot / 4 + 1),
+            "a mark outside the lowest step: {cols:?} in\n{s}"
+        );
+    }
+    tmux.keys(&["q"]);
+    tmux.wait_for("the shell after quitting", Duration::from_secs(20), |s| s.contains("BW-DONE-0"));
+    drop(tmux);
+    let _ = std::fs::remove_dir_all(&dir);
 }

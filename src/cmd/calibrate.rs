@@ -32,8 +32,14 @@ const MAX_TONE_DBFS: f64 = -6.0;
 pub fn run(cfg: CalibrateConfig) -> Result<ExitCode> {
     let src = open_input(&cfg.input)?;
     let info = src.info().clone();
-    crate::pipeline::stitch::refuse_panorama(&info, "calibrate")?;
     let label = sanitize(&info.label);
+    if info.tuning.is_some() {
+        // A tone calibration reads one generator tone at one tuning; a sweep's steps each have
+        // a gain of their own.
+        bail!(
+            "'{label}' was retuned (several centres): a calibration measures a tone at one tuning, and each step of a sweep has its own receiver gain; record the tone (or the terminated input) at one centre, or pick one capture with --segment N"
+        );
+    }
     let max_samples = cfg.seconds.map(|s| (s * info.sample_rate_hz).round() as u64);
     let spec = RunSpec::new(info.clone(), cfg.dsp.engine(None), cfg.dsp.threads);
     let mut whole = WholeInput::new(0);

@@ -9,11 +9,13 @@
 //! (labelled with its emitter) at the end, `--capture` saves each emission's IQ as it happens.
 
 use crate::cli::CensusConfig;
+use crate::measure::census::sweep::SweepView;
 use crate::measure::census::{Census, CensusSettings};
 use crate::measure::occupancy::DEFAULT_INTERVAL_S;
 use crate::messages::note;
 use crate::output::census::{
-    add_kinds, capture_list, to_json_value, to_plan, to_table_with_kinds, CensusConsumer,
+    add_kind_reason, add_kinds, capture_list, to_json_value, to_plan, to_table_with_kinds,
+    unknown_kinds, CensusConsumer,
 };
 use crate::output::change::BaselineStep;
 use crate::output::progress::{Progress, StatusLine};
@@ -22,10 +24,11 @@ use crate::output::sigmf::write as sigmf_write;
 use crate::output::sink;
 use crate::pipeline::input::unattended_options;
 use crate::pipeline::occupancy::{OccupancyRequest, OccupancySetup};
+use crate::pipeline::stitch::grid_of;
 use crate::pipeline::stop::Escalation;
 use crate::pipeline::{open_input_stoppable, run_to_end, Consumer, Run, RunSpec, StopSignals};
 use crate::plan::{Plan, DEFAULT_THRESHOLD_DB};
-use crate::source::sanitize;
+use crate::source::{sanitize, SourceInfo};
 use anyhow::{bail, Result};
 use std::io::Write;
 use std::process::ExitCode;
@@ -38,8 +41,14 @@ pub fn run(mut cfg: CensusConfig) -> Result<ExitCode> {
     let signals = StopSignals::install(false, Escalation::SecondSignalExits)?;
     let src = open_input_stoppable(&cfg.input, &signals)?;
     let info = src.info().clone();
-    crate::pipeline::stitch::refuse_panorama(&info, "census")?;
     super::settle_calibration(&mut cfg.calibration, &info)?;
+    let sweep = sweep_view(&info, cfg.dsp.fft_size)?;
+    if sweep.is_some() && cfg.sigmf.capture.is_some() {
+        bail!(
+            "'{}' was retuned (a sweep): --capture would cut each emission's samples from whatever dwell the receiver was in; to capture, read one recorded capture with --segment N (or keep the whole input with --record)",
+            sanitize(&info.label)
+        );
+    }
     let request = OccupancyRequest {
         dwell_s: cfg.dwell_s,
         threshold_db: DEFAULT_THRESHOLD_DB,
@@ -51,13 +60,19 @@ pub fn run(mut cfg: CensusConfig) -> Result<ExitCode> {
     if let Some(out) = &cfg.plan_out {
         sink::refuse_overwrite(out, "--plan-out", &inputs)?;
     }
-    let settings = CensusSettings {
+    let mut settings = CensusSettings {
         detection: cfg.detection,
         timing: setup.timing.clone(),
         hang_rows: setup.timing.hang_samples as u32,
         max_signals: MAX_SIGNALS,
         max_emitters: MAX_EMITTERS,
     };
+    if let Some(v) = &sweep {
+        // A row is a sweep: its span is the sweep's, and the hang is counted in whole sweeps
+        // (a sweep in which the emitter's own dwell did not see it ends the emission).
+        settings.timing.stride = v.sweep_samples;
+        settings.hang_rows = (cfg.hang_s * v.rate_hz / v.sweep_samples as f64).floor() as u32;
+    }
     if let Some(out) = &cfg.save_baseline {
         sink::refuse_overwrite(out, "--save-baseline", &inputs)?;
     }
@@ -78,8 +93,12 @@ pub fn run(mut cfg: CensusConfig) -> Result<ExitCode> {
         &inputs,
         opts.block_len,
     )?;
-    let mut census = CensusConsumer::new(Census::new(settings));
-    if cfg.kinds {
+    let mut census = Census::new(settings);
+    if let Some(v) = sweep.clone() {
+        census = census.with_sweep(v);
+    }
+    let mut census = CensusConsumer::new(census);
+    if cfg.kinds && sweep.is_none() {
         census = census.with_kinds(info.sample_rate_hz, info.center_hz);
     }
     if let Some(path) = &cfg.sigmf.annotate {
@@ -123,9 +142,15 @@ pub fn run(mut cfg: CensusConfig) -> Result<ExitCode> {
         );
     };
     let mut v = to_json_value(result);
+    let unclassified = (cfg.kinds && sweep.is_some()).then(|| unknown_kinds(result));
+    let kinds = unclassified.as_ref().unwrap_or(&census.emitter_kinds);
     // The kinds go in before the comparison, which reads today's census from this JSON.
-    add_kinds(&mut v, &census.emitter_kinds);
-    let (kinds, cal) = (&census.emitter_kinds, cfg.calibration.as_ref());
+    add_kinds(&mut v, kinds);
+    if unclassified.is_some() {
+        add_kind_reason(&mut v, SWEEP_KIND_REASON);
+        note(SWEEP_KIND_REASON);
+    }
+    let cal = cfg.calibration.as_ref();
     let mut text = if cfg.json {
         String::new()
     } else {
@@ -151,4 +176,16 @@ pub fn run(mut cfg: CensusConfig) -> Result<ExitCode> {
         note(&n);
     }
     Ok(ExitCode::SUCCESS)
+}
+
+/// Why a sweep's emitters have kind `unknown`: classifying takes an emitter's IQ from a dwell
+/// that saw it, and the census of a sweep keeps none.
+const SWEEP_KIND_REASON: &str = "a sweep: the IQ of the dwells that saw each emitter is not kept, so kinds are not classified (unknown); classify one capture with --segment N";
+
+/// Of a retuned input: the sweep the census runs on (`None` for a receiver that stays put).
+fn sweep_view(info: &SourceInfo, fft_size: usize) -> Result<Option<SweepView>> {
+    let (Some(grid), Some(t)) = (grid_of(info, fft_size)?, info.tuning.clone()) else {
+        return Ok(None);
+    };
+    Ok(Some(SweepView::new(t, grid, (info.sample_rate_hz, fft_size), info.total_samples)))
 }

@@ -8,6 +8,7 @@
 
 use crate::cli::alarms::AlarmConfig;
 use crate::cli::{ColourChoice, WatchConfig};
+use crate::measure::census::sweep::SweepView;
 use crate::messages::{note, sanitize};
 use crate::output::log::alarms::load_baseline;
 use crate::output::log::changes::{open_change_log, WatchChanges};
@@ -17,11 +18,12 @@ use crate::pipeline::clock::Clock;
 use crate::pipeline::input::live_block_len;
 use crate::pipeline::kinds::live;
 use crate::pipeline::latest::RowFeed;
+use crate::pipeline::stitch::{grid_of, span_of};
 use crate::pipeline::stop::Escalation;
 use crate::pipeline::{open_input_stoppable, Consumer, Input, RunSpec, StopSignals};
 use crate::source::reader::ReaderOptions;
 use crate::source::SourceInfo;
-use crate::tui::app::{AlarmLog, App, ChannelMark, SourceSummary};
+use crate::tui::app::{AlarmLog, App, ChannelMark, SourceSummary, SweepSummary};
 use crate::tui::colour::Depth;
 use crate::tui::{self, RunOptions};
 use anyhow::{bail, Result};
@@ -46,10 +48,11 @@ pub fn run(mut cfg: WatchConfig) -> Result<ExitCode> {
     let src = open_input_stoppable(&cfg.input, &opening)?;
     drop(opening);
     let info = src.info().clone();
-    crate::pipeline::stitch::refuse_panorama(&info, "watch")?;
     super::settle_calibration(&mut cfg.calibration, &info)?;
-    let half = info.sample_rate_hz / 2.0;
-    cfg.plan.check_span(info.center_hz - half, info.center_hz + half)?;
+    // A retuned input is one panorama: its span is the steps' union (a hole is refused here).
+    let (lo, hi) = span_of(&info, cfg.rows.dsp().fft_size)?;
+    cfg.plan.check_span(lo, hi)?;
+    let sweep = sweep_summary(&info, cfg.rows.dsp().fft_size)?;
     sink::check_folder(&cfg.evidence_dir, "--evidence-dir")?;
     // Checked after the input and the plan, so their mistakes are reported first.
     if !std::io::stdout().is_terminal() {
@@ -81,9 +84,16 @@ pub fn run(mut cfg: WatchConfig) -> Result<ExitCode> {
     let status = recorder.as_ref().map(|r| (r.status(), r.meta_path().to_path_buf()));
     let mut extra: Vec<Box<dyn Consumer + Send>> =
         recorder.into_iter().map(|r| Box::new(r) as Box<dyn Consumer + Send>).collect();
-    // Each listed signal's kind, classified on a thread of its own (pipeline::kinds).
-    let (tap, kinds) = live(rate, info.center_hz)?;
-    extra.push(Box::new(tap));
+    // Each listed signal's kind, classified on a thread of its own (pipeline::kinds); not over
+    // a sweep, whose samples come from whichever step the receiver is in.
+    let kinds = match sweep {
+        None => {
+            let (tap, kinds) = live(rate, info.center_hz)?;
+            extra.push(Box::new(tap));
+            Some(kinds)
+        }
+        Some(_) => None,
+    };
     let board = changes.map(|c| {
         spec.tracker = Some(c.tracker);
         extra.push(Box::new(c.consumer));
@@ -93,7 +103,7 @@ pub fn run(mut cfg: WatchConfig) -> Result<ExitCode> {
     let summary = SourceSummary {
         label: sanitize(&info.label),
         sample_rate_hz: rate,
-        center_hz: info.center_hz,
+        center_hz: sweep.map_or(info.center_hz, |s| s.center_hz),
         total_samples: info.total_samples,
         live: info.live,
         speed: (is_file || piped).then_some(cfg.speed),
@@ -113,8 +123,13 @@ pub fn run(mut cfg: WatchConfig) -> Result<ExitCode> {
     let mut app = App::new(summary, cfg.rows, depth, ref_offset, marks, Instant::now())
         .with_detection(cfg.detection)
         .with_files_dir(&cfg.evidence_dir)
-        .with_kinds(kinds)
         .with_alarm_hold(cfg.alarm_hold_s);
+    if let Some(k) = kinds {
+        app = app.with_kinds(k);
+    }
+    if let Some(s) = sweep {
+        app = app.with_sweep(s);
+    }
     if let Some(path) = &cfg.alarm_log {
         app = app.with_alarm_log(AlarmLog::new(sink::open(path, true, "alarm log")?.out));
     }
@@ -133,6 +148,23 @@ pub fn run(mut cfg: WatchConfig) -> Result<ExitCode> {
         recorded_note(&*status.lock().map_err(|_| anyhow::anyhow!("the recorder failed"))?, &meta)?;
     }
     Ok(ExitCode::SUCCESS)
+}
+
+/// Of a retuned input: the sweep as the header tells it (steps, revisit time) and the age past
+/// which a bin is drawn stale, one revisit time; `None` for a receiver that stays put.
+fn sweep_summary(info: &SourceInfo, fft_size: usize) -> Result<Option<SweepSummary>> {
+    let (Some(grid), Some(t)) = (grid_of(info, fft_size)?, info.tuning.clone()) else {
+        return Ok(None);
+    };
+    let view = SweepView::new(t, grid, (info.sample_rate_hz, fft_size), info.total_samples);
+    let facts = view.facts();
+    let g = &view.grid;
+    Ok(Some(SweepSummary {
+        center_hz: g.first_hz + (g.bins / 2) as f64 * g.bin_hz,
+        steps: facts.steps,
+        revisit_s: facts.revisit_s,
+        stale_after: view.sweep_samples,
+    }))
 }
 
 /// `--alarms`: the change watch of every plan channel on the monitor's rows, seeded from

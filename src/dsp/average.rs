@@ -57,6 +57,7 @@ impl SpectrumSum {
             end_sample: self.end_sample,
             first_sample: self.first_sample,
             geometry: geometry.clone(),
+            last_seen: None,
         })
     }
 }

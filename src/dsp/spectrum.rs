@@ -91,6 +91,10 @@ pub struct Spectrum {
     pub first_sample: u64,
     /// One past the last sample that contributed.
     pub end_sample: u64,
+    /// Of a panorama's row: per bin, one past the last sample of the dwell that last saw it
+    /// (0: never yet), so a screen can tell a bin not refreshed in this sweep; `None` for a
+    /// receiver that stays put (every bin is as new as the row).
+    pub last_seen: Option<Arc<Vec<u64>>>,
 }
 
 impl Deref for Spectrum {
@@ -112,6 +116,7 @@ impl Spectrum {
             dof: 0.0,
             first_sample: 0,
             end_sample: 0,
+            last_seen: None,
         }
     }
 

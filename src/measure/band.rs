@@ -150,7 +150,15 @@ pub(crate) mod tests {
         let n = psd.len();
         let window = crate::dsp::Window::new(WindowKind::Rect, n);
         let geometry = std::sync::Arc::new(crate::dsp::Geometry::new(&window, 1e6, 100e6));
-        Spectrum { geometry, psd, frames: 1, dof: 2.0, first_sample: 0, end_sample: n as u64 }
+        Spectrum {
+            geometry,
+            psd,
+            frames: 1,
+            dof: 2.0,
+            first_sample: 0,
+            end_sample: n as u64,
+            last_seen: None,
+        }
     }
 
     #[test]

@@ -278,6 +278,7 @@ impl Panorama {
         out.dof = if min_dof.is_finite() { min_dof } else { 0.0 };
         out.first_sample = self.first_sample.take().unwrap_or(self.end_sample);
         out.end_sample = self.end_sample;
+        out.last_seen = Some(Arc::new(self.last_seen.iter().map(|s| s.unwrap_or(0)).collect()));
         self.sum.iter_mut().for_each(|s| *s = 0.0);
         self.frames.iter_mut().for_each(|f| *f = 0);
         self.dof.iter_mut().for_each(|d| *d = 0.0);

@@ -4,6 +4,7 @@
 use crate::dsp::Spectrum;
 use crate::measure::calibration::Calibration;
 use crate::measure::census::floor::FloorProfile;
+use crate::measure::census::sweep::SweepFacts;
 use crate::measure::census::{
     frequency_name, Attributed, Census, CensusEvent, CensusResult, Emission, EmitterFigures,
 };
@@ -352,7 +353,7 @@ pub fn to_json_value(r: &CensusResult) -> serde_json::Value {
         .emitters
         .iter()
         .map(|e| {
-            json!({
+            let mut v = json!({
                 "name": e.name,
                 "center_hz": round(e.center_hz, 1),
                 "obw_hz": round(e.obw_hz, 1),
@@ -363,10 +364,15 @@ pub fn to_json_value(r: &CensusResult) -> serde_json::Value {
                 "peak_dbfs": round(e.peak_dbfs, 2),
                 "power_dbfs": round(e.power_dbfs, 2),
                 "attributed": attributed_json(&e.attributed),
-            })
+            });
+            if let Some(o) = e.observation_s {
+                v["observation_s"] = round(o, 4).into();
+                v["airtime_s"] = round(e.airtime_s, 4).into();
+            }
+            v
         })
         .collect();
-    json!({
+    let mut v = json!({
         "sample_rate_hz": r.sample_rate_hz,
         "center_hz": r.center_hz,
         "fft_size": r.fft_size,
@@ -375,7 +381,38 @@ pub fn to_json_value(r: &CensusResult) -> serde_json::Value {
         "noise_floor_dbfs_per_hz": round(r.noise_floor_dbfs_per_hz, 2),
         "floor": floor_json(&r.floor),
         "emitters": emitters,
+    });
+    if let Some(w) = &r.sweep {
+        // The rows' bin count is the panorama's; the FFT is one step's.
+        v["fft_size"] = w.fft_size.into();
+        v["sweep"] = sweep_json(w);
+    }
+    v
+}
+
+/// The sweep a panorama census ran on, for `--json`.
+fn sweep_json(w: &SweepFacts) -> serde_json::Value {
+    json!({
+        "span_hz": [round(w.low_hz, 1), round(w.high_hz, 1)],
+        "steps": w.steps,
+        "centres": w.centres,
+        "bins": w.bins,
+        "revisit_s": round(w.revisit_s, 6),
+        "settle_s": round(w.settle_s, 6),
     })
+}
+
+/// The table's line on the sweep: what a panorama census covered and how often.
+fn sweep_line(w: &SweepFacts) -> String {
+    format!(
+        "a sweep: {} .. {} MHz in {} steps ({} centres), revisited every {:.3} s, {:.1} ms settling skipped; airtime % is over the time each emitter was in view (observed s)\n",
+        crate::units::format_num(w.low_hz / 1e6),
+        crate::units::format_num(w.high_hz / 1e6),
+        w.steps,
+        w.centres,
+        w.revisit_s,
+        w.settle_s * 1e3
+    )
 }
 
 /// What was attributed to an emitter, for `--json`: counts always, energies (dBc, relative to
@@ -434,6 +471,19 @@ pub fn add_kinds(v: &mut serde_json::Value, kinds: &[EmitterKind]) {
     }
 }
 
+/// Kind `unknown` for every emitter of `r` (none was classified).
+pub fn unknown_kinds(r: &CensusResult) -> Vec<EmitterKind> {
+    r.emitters.iter().map(|e| Vote::default().result(e.obw_hz)).collect()
+}
+
+/// Says beside each emitter's kind why it was not classified.
+pub fn add_kind_reason(v: &mut serde_json::Value, reason: &str) {
+    let Some(list) = v.get_mut("emitters").and_then(|e| e.as_array_mut()) else { return };
+    for e in list.iter_mut().filter_map(|e| e.as_object_mut()) {
+        e.insert("class_reason".into(), reason.into());
+    }
+}
+
 /// The kind column's word: the class's name, `?` for unknown.
 pub fn kind_word(class: Class) -> &'static str {
     match class {
@@ -471,17 +521,24 @@ pub fn to_table_with_kinds(
         r.duration_s,
         crate::units::format_num(r.sample_rate_hz),
         crate::units::format_num(r.center_hz),
-        r.fft_size,
+        r.sweep.as_ref().map_or(r.fft_size, |w| w.fft_size),
         r.rbw_hz,
         at(r.noise_floor_dbfs_per_hz, r.center_hz)
     );
+    if let Some(w) = &r.sweep {
+        s.push_str(&sweep_line(w));
+    }
+    let observed =
+        |e: &EmitterFigures| e.observation_s.map_or(String::new(), |o| format!(" {o:>10.3}"));
+    let observed_head =
+        if r.sweep.is_some() { format!(" {:>10}", "observed s") } else { String::new() };
     if r.emitters.is_empty() {
         s.push_str("no emitters found\n");
         return s;
     }
     let _ = writeln!(
         s,
-        "{:<14} {:>15} {:>10} {:>9} {:>9} {:>9} {:>9} {:>10} {:>10}{}",
+        "{:<14} {:>15} {:>10} {:>9} {:>9} {:>9} {:>9}{} {:>10} {:>10}{}",
         "name",
         "centre (MHz)",
         "OBW (kHz)",
@@ -489,6 +546,7 @@ pub fn to_table_with_kinds(
         "last (s)",
         "emissions",
         "airtime %",
+        observed_head,
         format!("peak {unit}"),
         format!("power {unit}"),
         if kinds.is_empty() {
@@ -500,7 +558,7 @@ pub fn to_table_with_kinds(
     for (i, e) in r.emitters.iter().enumerate() {
         let _ = writeln!(
             s,
-            "{:<14} {:>15.6} {:>10.3} {:>9.3} {:>9.3} {:>9} {:>9.2} {:>10.2} {:>10.2}{}",
+            "{:<14} {:>15.6} {:>10.3} {:>9.3} {:>9.3} {:>9} {:>9.2}{} {:>10.2} {:>10.2}{}",
             e.name,
             e.center_hz / 1e6,
             e.obw_hz / 1e3,
@@ -508,6 +566,7 @@ pub fn to_table_with_kinds(
             e.last_s,
             e.emissions,
             e.airtime_pct,
+            observed(e),
             at(e.peak_dbfs, e.center_hz),
             at(e.power_dbfs, e.center_hz),
             kind_cells(i)
@@ -676,6 +735,7 @@ mod tests {
             emissions: 1,
             airtime_pct: 50.0,
             airtime_s: 0.5,
+            observation_s: None,
             peak_dbfs: -40.0,
             power_dbfs: -40.0,
             attributed: Default::default(),
@@ -694,6 +754,7 @@ mod tests {
             emitters,
             emissions: Vec::new(),
             emitters_dropped: 0,
+            sweep: None,
         }
     }
 

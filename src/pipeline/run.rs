@@ -360,6 +360,14 @@ impl<'a> Run<'a> {
     }
 
     fn retune(&mut self, cfg: EngineConfig) {
+        if self.stitch.is_some() {
+            // A panorama's grid follows the FFT size: stitched anew from the next dwell, or the
+            // settings kept when the new size leaves no whole usable bin of a step.
+            match Stitch::new(&self.info.source, &cfg) {
+                Ok(Some(s)) => self.stitch = Some(s),
+                _ => return,
+            }
+        }
         self.engine = new_engine(&cfg, &self.info.source, self.threads);
         self.info.engine = cfg;
     }

@@ -134,14 +134,16 @@ impl ChannelActivity {
 
     /// Takes one row. `floor_density` is the noise density (FS²/Hz); without it occupancy is
     /// not judged yet (power is still shown). Returns the alarms that opened or ended with
-    /// this row.
+    /// this row. `rate_hz` is the input's sample rate, which times the row (a panorama's row
+    /// has the sweep's span as its own rate).
     pub fn push(
         &mut self,
         row: &Spectrum,
+        rate_hz: f64,
         marks: &[ChannelMark],
         floor_density: Option<f64>,
     ) -> Vec<AlarmEvent> {
-        let time_s = row.end_sample as f64 / row.sample_rate_hz;
+        let time_s = row.end_sample as f64 / rate_hz;
         let hold_s = self.hold_s;
         let mut events = Vec::new();
         for (i, (st, ch)) in self.channels.iter_mut().zip(marks).enumerate() {
@@ -238,7 +240,7 @@ mod tests {
         for k in 0..180u64 {
             let busy = k % 60 < 15;
             let end = ((k + 1) as f64 * rate) as u64;
-            a.push(&row(if busy { 1e-6 } else { 0.0 }, end), &m, Some(1e-9));
+            a.push(&row(if busy { 1e-6 } else { 0.0 }, end), rate, &m, Some(1e-9));
             let st = &a.channels[0];
             assert_eq!(st.occupied_now, busy);
             let want = if busy { -20.0 } else { -50.0 };
@@ -270,7 +272,7 @@ mod tests {
         for k in 0..25u64 {
             let busy = matches!(k, 1 | 2 | 5 | 20);
             let end = ((k + 1) as f64 * rate) as u64;
-            for e in a.push(&row(if busy { 1e-6 } else { 0.0 }, end), &m, None) {
+            for e in a.push(&row(if busy { 1e-6 } else { 0.0 }, end), rate, &m, None) {
                 events.push((k, e));
             }
         }

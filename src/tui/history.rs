@@ -53,6 +53,9 @@ pub struct Row {
     pub end_sample: u64,
     /// Present when every bin was kept.
     pub source: Option<RowSource>,
+    /// Of a sweep: per stored bin, whether it was not seen within a revisit time of the row's
+    /// end (its level is an older sweep's).
+    pub stale: Option<Vec<bool>>,
 }
 
 impl Row {
@@ -86,7 +89,25 @@ impl Row {
     /// A row of levels (dB) on a grid, with no spectrum behind it.
     pub fn new(grid: BinGrid, levels_db: &[f32], time_s: f64) -> Row {
         let level_cdb = levels_db.iter().map(|&l| to_cdb(l)).collect();
-        Row { grid, level_cdb, time_s, end_sample: 0, source: None }
+        Row { grid, level_cdb, time_s, end_sample: 0, source: None, stale: None }
+    }
+
+    /// The row with `stale` (one flag per bin of its spectrum) kept at its stored resolution:
+    /// a stored bin that groups several is stale when any of them is.
+    pub fn with_stale(mut self, stale: &[bool]) -> Row {
+        let group = stale.len().div_ceil(self.level_cdb.len().max(1)).max(1);
+        self.stale = Some(stale.chunks(group).map(|c| c.iter().any(|s| *s)).collect());
+        self
+    }
+
+    /// Whether each range of stored bins holds a stale one; `None` when no bin is stale.
+    pub fn stale_columns(&self, map: &[Range<usize>]) -> Option<Vec<bool>> {
+        let stale = self.stale.as_ref().filter(|s| s.iter().any(|x| *x))?;
+        Some(
+            map.iter()
+                .map(|r| stale.get(r.clone()).is_some_and(|s| s.iter().any(|x| *x)))
+                .collect(),
+        )
     }
 
     /// Level of stored bin `i`, dB.
@@ -117,12 +138,15 @@ impl Row {
             dof: src.dof,
             first_sample: src.first_sample,
             end_sample: self.end_sample,
+            last_seen: None,
         })
     }
 
     /// Memory the row is counted as taking.
     fn bytes(&self) -> usize {
-        self.level_cdb.len() * std::mem::size_of::<i16>() + ROW_OVERHEAD
+        self.level_cdb.len() * std::mem::size_of::<i16>()
+            + self.stale.as_ref().map_or(0, Vec::len)
+            + ROW_OVERHEAD
     }
 }
 

@@ -61,6 +61,21 @@ impl ChannelMark {
     }
 }
 
+/// Of a sweep (a retuned receiver's steps stitched into one panorama): what the header says,
+/// and when a bin is drawn stale.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct SweepSummary {
+    /// Centre of the panorama (its middle bin), Hz.
+    pub center_hz: f64,
+    /// Dwells in one sweep.
+    pub steps: usize,
+    /// Time from one sweep's start to the next's, s.
+    pub revisit_s: f64,
+    /// A bin not seen for longer than this (one revisit time, in samples of the input) before
+    /// its row's end is stale: its level is an older sweep's.
+    pub stale_after: u64,
+}
+
 /// What the status line says about the input.
 #[derive(Clone, Debug, PartialEq)]
 pub struct SourceSummary {

@@ -184,6 +184,7 @@ impl EmitterAcc {
             emissions: self.emissions,
             airtime_pct: 100.0 * self.airtime as f64 / g.duration_samples.max(1) as f64,
             airtime_s: self.airtime as f64 / g.sample_rate_hz,
+            observation_s: None,
             peak_dbfs: db(peak),
             power_dbfs: db(power.max(1e-30)),
             attributed: Default::default(),

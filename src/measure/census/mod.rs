@@ -44,6 +44,7 @@
 pub mod attribute;
 pub mod emitter;
 pub mod floor;
+pub mod sweep;
 pub mod track;
 
 use crate::dsp::{Spectrum, Window};
@@ -54,6 +55,7 @@ use crate::units::{db, undb};
 use attribute::{Fate, Piece, Scale, Span};
 use emitter::EmitterAcc;
 use floor::{floor_profile, FloorInput, FloorProfile};
+use sweep::{SweepFacts, SweepView};
 use track::Track;
 
 /// Emitters seen in fewer rows than this are dropped as false alarms of the detector (noise
@@ -87,8 +89,12 @@ pub struct EmitterFigures {
     pub first_s: f64,
     pub last_s: f64,
     pub emissions: u64,
+    /// Airtime over the time observed (a sweep: over the time it was in view).
     pub airtime_pct: f64,
     pub airtime_s: f64,
+    /// Of a sweep: the time it was in view ([`sweep`]); `None` for a receiver that stays put,
+    /// which observes every emitter the whole input.
+    pub observation_s: Option<f64>,
     /// Level in one RBW at its peak (a sinusoid's level for a narrow emitter), while on the air.
     pub peak_dbfs: f64,
     /// Mean channel power while on the air, noise taken off.
@@ -195,6 +201,8 @@ pub struct CensusResult {
     pub emitters: Vec<EmitterFigures>,
     pub emissions: Vec<Emission>,
     pub emitters_dropped: u64,
+    /// Of a panorama: the sweep it ran on (`sample_rate_hz` is then the receiver's rate).
+    pub sweep: Option<SweepFacts>,
 }
 
 /// The numbers an emitter's figures are measured with.
@@ -255,6 +263,9 @@ pub struct Census {
     next_track: u64,
     /// Noise density of the latest row, FS²/Hz.
     density: f64,
+    /// Of a panorama: the sweep, and the span of every row (one a sweep) for its view times.
+    sweep: Option<SweepView>,
+    row_spans: Vec<(u64, u64)>,
 }
 
 impl Census {
@@ -279,7 +290,16 @@ impl Census {
             events: None,
             next_track: 0,
             density: 0.0,
+            sweep: None,
+            row_spans: Vec::new(),
         }
+    }
+
+    /// Runs on the wide rows of a panorama (one a sweep): airtime and duty are counted over
+    /// the time each emitter was in view ([`sweep`]), and times read at the receiver's rate.
+    pub fn with_sweep(mut self, view: SweepView) -> Census {
+        self.sweep = Some(view);
+        self
     }
 
     /// Keeps a [`CensusEvent`] for every emission that opens or closes; the caller drains them
@@ -301,7 +321,7 @@ impl Census {
             self.prev = row.psd.clone();
             self.psd_sum = vec![0.0; row.psd.len()];
             self.layout = Some(Layout {
-                sample_rate_hz: row.sample_rate_hz,
+                sample_rate_hz: self.sweep.as_ref().map_or(row.sample_rate_hz, |v| v.rate_hz),
                 center_hz: row.center_hz,
                 fft_size: row.fft_size,
                 bin_hz: row.bin_hz(),
@@ -318,6 +338,9 @@ impl Census {
         self.dof_sum += row.dof;
         let span = self.settings.timing.row_span(row);
         self.last_span_end = span.1;
+        if self.sweep.is_some() {
+            self.row_spans.push(span);
+        }
         let window = self.window.as_ref().expect("set above");
         let found =
             find_signals(row, window, density, self.settings.max_signals, self.settings.detection);
@@ -492,8 +515,19 @@ impl Census {
     pub fn end_tracks(&mut self, end: u64) {
         let Some(last_row) = self.row.checked_sub(1) else { return };
         for t in std::mem::take(&mut self.tracks) {
-            let to_end = (t.last_row == last_row).then_some(end.max(self.last_span_end));
+            let to_end = (t.last_row == last_row).then_some(self.input_end(end));
             self.close(&t, to_end, false);
+        }
+    }
+
+    /// Where the input ends for the figures: `end`, or past it the span of the last row (a row
+    /// stands for a stride of input); a sweep's row spans a whole sweep, and its time out of
+    /// view past the input's end would be counted as in view.
+    fn input_end(&self, end: u64) -> u64 {
+        if self.sweep.is_some() {
+            end
+        } else {
+            end.max(self.last_span_end)
         }
     }
 
@@ -502,7 +536,7 @@ impl Census {
     pub fn finish(mut self, end: u64) -> Option<CensusResult> {
         self.end_tracks(end);
         let mut layout = self.layout.take()?;
-        layout.duration_samples = end.max(self.last_span_end);
+        layout.duration_samples = self.input_end(end);
         let window = self.window.take()?;
         let floor = self.floor_profile(&layout);
         let home = self.merge_neighbours(layout.rbw_hz);
@@ -535,6 +569,9 @@ impl Census {
             })
             .collect();
         emissions.sort_by_key(|e| e.sample_start);
+        if let Some(v) = &self.sweep {
+            v.apply(&mut emitters, &emissions, &self.row_spans, layout.duration_samples);
+        }
         Some(CensusResult {
             sample_rate_hz: layout.sample_rate_hz,
             center_hz: layout.center_hz,
@@ -546,6 +583,7 @@ impl Census {
             emitters,
             emissions,
             emitters_dropped: self.emitters_dropped,
+            sweep: self.sweep.as_ref().map(SweepView::facts),
         })
     }
 }

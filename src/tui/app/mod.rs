@@ -24,7 +24,8 @@ use super::history::{History, Row, HISTORY_BYTES};
 use super::input::Intent;
 use super::layout::Screen;
 pub use super::state::{
-    AlarmLog, BandReading, ChannelMark, Levels, Mode, SortKey, SourceSummary, Stats, TableMode,
+    AlarmLog, BandReading, ChannelMark, Levels, Mode, SortKey, SourceSummary, Stats, SweepSummary,
+    TableMode,
 };
 use super::timeline::TimeBase;
 use super::traces::Traces;
@@ -96,6 +97,8 @@ pub struct App {
     kind_list: Vec<(f64, f64, Class)>,
     /// The change alarms up (`--alarms`), raised and cleared on the run's thread.
     changes: Option<ChangeBoard>,
+    /// Of a sweep: what the header says, and when a bin is stale.
+    sweep: Option<SweepSummary>,
 }
 
 impl App {
@@ -134,7 +137,33 @@ impl App {
             kinds: None,
             kind_list: Vec::new(),
             changes: None,
+            sweep: None,
         }
+    }
+
+    /// The input is a sweep stitched into a panorama: the header says so, and bins not seen
+    /// for longer than its revisit time are drawn stale.
+    pub fn with_sweep(mut self, sweep: SweepSummary) -> App {
+        self.sweep = Some(sweep);
+        self
+    }
+
+    /// Of a sweep's row: per bin, whether it was not seen within a revisit time of the row's
+    /// end; `None` for a receiver that stays put.
+    fn stale_bins(&self, s: &Spectrum) -> Option<Vec<bool>> {
+        let (sweep, seen) = (self.sweep?, s.last_seen.as_ref()?);
+        Some(seen.iter().map(|&t| s.end_sample.saturating_sub(t) > sweep.stale_after).collect())
+    }
+
+    /// Per column of `ncols` across the view, whether the current row's bins there are stale
+    /// (empty when none is).
+    pub fn stale_columns(&self, ncols: usize) -> Vec<bool> {
+        let (Some(cur), Some(view)) = (self.traces.current(), self.view) else { return Vec::new() };
+        let Some(stale) = self.stale_bins(cur).filter(|s| s.iter().any(|x| *x)) else {
+            return Vec::new();
+        };
+        let map = grid_of(cur).column_map(&view, ncols);
+        map.into_iter().map(|r| stale.get(r).is_some_and(|s| s.iter().any(|x| *x))).collect()
     }
 
     /// Shows the change alarms up on `board` (`--alarms`) on the top line.
@@ -287,11 +316,20 @@ impl App {
     /// Takes a new row from the DSP. Frozen, the row still goes into the history and the
     /// channel panel (nothing is lost), but not into the traces on show.
     pub fn push_row(&mut self, spec: Spectrum) {
-        self.stats.position_s = Some(spec.end_sample as f64 / spec.sample_rate_hz);
+        // Times at the input's rate: a panorama's rows have the sweep's span as their rate.
+        let time_s = spec.end_sample as f64 / self.source.sample_rate_hz;
+        self.stats.position_s = Some(time_s);
         self.stats.rows += 1;
         self.stats.rows_total += 1;
-        self.history.push(Row::from_spectrum(&spec));
-        let events = self.plan.activity.push(&spec, &self.plan.marks, self.measured.floor_density);
+        let mut row = Row::from_spectrum(&spec);
+        row.time_s = time_s;
+        if let Some(stale) = self.stale_bins(&spec) {
+            row = row.with_stale(&stale);
+        }
+        self.history.push(row);
+        let rate = self.source.sample_rate_hz;
+        let floor = self.measured.floor_density;
+        let events = self.plan.activity.push(&spec, rate, &self.plan.marks, floor);
         if events.iter().any(|e| matches!(e, AlarmEvent::Onset { .. })) {
             self.alerts.bells += 1;
         }
@@ -731,6 +769,10 @@ impl App {
 
     /// Rows per second the DSP delivers (the request, limited by the frames the input has).
     pub fn effective_row_rate(&self) -> f64 {
+        // A sweep gives one row a sweep, whatever the rate asked for.
+        if let Some(s) = self.sweep {
+            return 1.0 / s.revisit_s;
+        }
         let cfg = self.settings.engine(self.source.sample_rate_hz);
         self.source.sample_rate_hz / cfg.hop() as f64 / cfg.frames_per_output.unwrap_or(1) as f64
     }

@@ -73,6 +73,7 @@ impl App {
             time: self.shown_time(),
             dropped: s.live.then_some(self.stats.dropped),
             changes: self.changes.as_ref().map(|b| change_summary(&b.open())),
+            sweep: self.sweep.map(|w| (w.steps, w.revisit_s)),
             theme: self.look.theme,
         }
     }
@@ -102,6 +103,8 @@ impl App {
 
     fn settings_view(&self) -> SettingsView {
         let (fft_size, window, rbw_hz) = match self.traces.current() {
+            // A sweep's row has the panorama's bins; the FFT is one step's.
+            Some(c) if self.sweep.is_some() => (self.settings.fft_size, c.window, Some(c.rbw_hz)),
             Some(c) => (c.fft_size, c.window, Some(c.rbw_hz)),
             None => (self.settings.fft_size, self.settings.window, None),
         };
@@ -111,7 +114,7 @@ impl App {
             rbw_hz,
             floor_dbfs_per_hz: self.measured.floor_density.map(db),
             levels: self.levels,
-            row_rate: self.settings.row_rate,
+            row_rate: self.sweep.map_or(self.settings.row_rate, |s| 1.0 / s.revisit_s),
             fps: self.stats.fps,
             rows_per_s: self.stats.rows_per_s,
             skipped: self.stats.skipped,
@@ -138,6 +141,7 @@ impl App {
             ref_marker_col: col(self.markers.reference),
             floor_dbfs: self.measured.floor_dbfs,
             message,
+            stale: self.stale_columns(2 * width),
         }
     }
 
@@ -184,7 +188,8 @@ impl App {
             label_every_s: label_interval(rows_per_s),
             times: &self.times,
             end: self.cursor.index.map_or(u64::MAX, |c| c + 1),
-            pairs_only: rows_per_s >= PAIRS_ONLY_FROM_ROWS_PER_S,
+            // A sweep's lone newest row is shown at once: it is the newest look at the band.
+            pairs_only: self.sweep.is_none() && rows_per_s >= PAIRS_ONLY_FROM_ROWS_PER_S,
         })
     }
 }

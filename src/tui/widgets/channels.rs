@@ -106,7 +106,7 @@ mod tests {
         // noise of −50 dBFS), then quiet: 25 % busy, last heard at the end of the first row.
         for k in 0..4u64 {
             let extra = if k == 0 { 1e-6 } else { 0.0 };
-            act.push(&row(extra, (k + 1) * 1_024_000), &channels, Some(1e-9));
+            act.push(&row(extra, (k + 1) * 1_024_000), 1.024e6, &channels, Some(1e-9));
         }
         let start = OffsetDateTime::parse("2031-04-17T06:30:00Z", &Rfc3339).unwrap();
         let times = TimeBase::new(Clock::new(1.024e6, Some(start)), None);

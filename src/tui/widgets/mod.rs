@@ -41,6 +41,8 @@ pub struct SpectrumView {
     pub floor_dbfs: Option<f64>,
     /// Said in the plot while there is nothing to draw.
     pub message: Option<&'static str>,
+    /// Of a sweep: per half column, whether the current row's bins there are stale.
+    pub stale: Vec<bool>,
 }
 
 /// What the table area shows.
@@ -88,6 +90,7 @@ impl ScreenView<'_> {
             marker_col: sp.marker_col,
             ref_marker_col: sp.ref_marker_col,
             floor: sp.floor_dbfs.map(|f| l.shown(f)),
+            stale: &sp.stale,
             theme: &self.theme,
         };
         (&plot).render(s.spectrum, buf);

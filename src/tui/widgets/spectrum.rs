@@ -12,7 +12,7 @@ use super::super::layout::GUTTER;
 use super::super::view::level_step;
 use ratatui::buffer::Buffer;
 use ratatui::layout::Rect;
-use ratatui::style::Style;
+use ratatui::style::{Modifier, Style};
 use ratatui::widgets::Widget;
 
 /// Offset of the braille block and the bit of each dot (column, row) in a 2×4 cell (Unicode
@@ -42,7 +42,16 @@ pub struct SpectrumPlot<'a> {
     pub ref_marker_col: Option<u16>,
     /// Noise power in one RBW, printed units: marked by a dotted line where no trace is.
     pub floor: Option<f64>,
+    /// Of a sweep: per half column, whether its bins were not seen within a revisit time;
+    /// there the traces are drawn dotted (the left dots of each cell only) and dimmed.
+    pub stale: &'a [bool],
     pub theme: &'a Theme,
+}
+
+/// A stale cell's dots: all moved to its left column (dots 1-2-3-7), so a trace there reads as
+/// dotted, one column of dots in two.
+fn left_dots(bits: u8) -> u8 {
+    (bits & 0x47) | ((bits >> 3) & 0x07) | ((bits >> 1) & 0x40)
 }
 
 impl SpectrumPlot<'_> {
@@ -149,8 +158,14 @@ impl Widget for &SpectrumPlot<'_> {
         for y in 0..h {
             for x in 0..w {
                 let i = y * w + x;
-                let bits = layers.iter().fold(0u8, |acc, (m, _)| acc | m[i]);
-                let style = layers.iter().find(|(m, _)| m[i] != 0).map(|(_, s)| *s);
+                let mut bits = layers.iter().fold(0u8, |acc, (m, _)| acc | m[i]);
+                let mut style = layers.iter().find(|(m, _)| m[i] != 0).map(|(_, s)| *s);
+                if self.stale.get(2 * x).copied().unwrap_or(false)
+                    || self.stale.get(2 * x + 1).copied().unwrap_or(false)
+                {
+                    bits = left_dots(bits);
+                    style = style.map(|s| s.add_modifier(Modifier::DIM));
+                }
                 let cell = &mut buf[(plot.x + x as u16, plot.y + y as u16)];
                 let hold = holds.iter().find(|(m, _)| mono && m[i] != 0).map(|(_, g)| *g);
                 if bits != 0 {
@@ -245,8 +260,32 @@ mod tests {
             marker_col: None,
             ref_marker_col: None,
             floor: None,
+            stale: &[],
             theme,
         }
+    }
+
+    #[test]
+    fn stale_columns_draw_a_dotted_trace() {
+        // A flat trace over 10 cells (20 half columns), the last four cells stale: there only
+        // the left dots are drawn (braille dots 1-2-3-7), elsewhere both columns.
+        let t = Theme::new(Depth::Mono);
+        let flat = vec![-40.0; 20];
+        let stale: Vec<bool> = (0..20).map(|i| i >= 12).collect();
+        let p = SpectrumPlot { stale: &stale, ..plot(&flat, &[], &[], &t) };
+        let mut buf = Buffer::empty(Rect::new(0, 0, GUTTER + 10, 4));
+        (&p).render(buf.area, &mut buf);
+        let row: Vec<u32> = (0..10)
+            .filter_map(|x| {
+                (0..4).find_map(|y| {
+                    let c = buf[(GUTTER + x, y)].symbol().chars().next()?;
+                    is_braille(c).then(|| c as u32 - BRAILLE_BASE)
+                })
+            })
+            .collect();
+        assert_eq!(row.len(), 10, "a dot in every cell");
+        assert!(row[..6].iter().all(|b| b & 0xb8 != 0), "fresh cells have right dots: {row:?}");
+        assert!(row[6..].iter().all(|b| b & 0xb8 == 0), "stale cells only left dots: {row:?}");
     }
 
     #[test]

@@ -6,6 +6,7 @@
 
 use super::super::colour::Theme;
 use super::super::state::{BandReading, Levels};
+use super::waterfall::STALE_GLYPH;
 use crate::units::{format_clock, format_hz, format_hz_compact, format_rate, format_rows_per_s};
 use ratatui::buffer::Buffer;
 use ratatui::layout::Rect;
@@ -100,6 +101,8 @@ pub struct SourceView {
     pub dropped: Option<u64>,
     /// The change alarms up, in words (`watch --alarms` only).
     pub changes: Option<String>,
+    /// Of a sweep: its steps and revisit time, s.
+    pub sweep: Option<(usize, f64)>,
     pub theme: Theme,
 }
 
@@ -187,6 +190,15 @@ fn tail(text: &str, max: usize) -> String {
     format!("{head}…{ext}")
 }
 
+/// A revisit time as it reads best: milliseconds under a second, else seconds.
+fn short_duration(s: f64) -> String {
+    if s < 1.0 {
+        format!("{:.0} ms", s * 1e3)
+    } else {
+        format!("{s:.1} s")
+    }
+}
+
 impl SourceView {
     pub fn line(&self, width: usize) -> Line<'static> {
         let t = &self.theme;
@@ -205,6 +217,14 @@ impl SourceView {
             segs.push((rank, Span::styled(text, t.label)));
         }
         segs.push((1, self.state_span()));
+        if let Some((steps, revisit_s)) = self.sweep {
+            // Said even on a narrow screen: the picture is stitched, and old bins are marked.
+            let text = format!(
+                "sweep {steps} steps, revisit {}, {STALE_GLYPH} older",
+                short_duration(revisit_s)
+            );
+            segs.push((1, Span::styled(text, t.label)));
+        }
         if let Some((label, back)) = &self.time {
             let text = match back {
                 Some(s) => format!("◀ {label}, {} back", format_clock(*s)),

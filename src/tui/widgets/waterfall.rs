@@ -40,6 +40,9 @@ pub struct WaterfallPlot<'a> {
     pub pairs_only: bool,
 }
 
+/// Drawn in the waterfall where a sweep's bins were not seen within a revisit time.
+pub const STALE_GLYPH: char = '┊';
+
 /// Row rate from which lines wait for both their rows.
 pub const PAIRS_ONLY_FROM_ROWS_PER_S: f64 = 5.0;
 
@@ -81,12 +84,35 @@ impl WaterfallPlot<'_> {
         let ncols = width.saturating_sub(GUTTER) as usize;
         let lo = self.steps(lower, ncols);
         let hi = upper.map(|u| self.steps(u, ncols));
+        let stale = |r: &Row| r.stale_columns(&r.grid.column_map(&self.view, ncols));
+        let stale = [Some(lower), upper].into_iter().flatten().filter_map(stale).fold(
+            Vec::new(),
+            |acc: Vec<bool>, s| {
+                if acc.is_empty() {
+                    s
+                } else {
+                    acc.iter().zip(&s).map(|(a, b)| *a || *b).collect()
+                }
+            },
+        );
         for (x, cell) in cells.iter_mut().skip(GUTTER as usize).enumerate() {
             let l = lo[x];
             let u = hi.as_ref().map_or(l, |h| h[x]);
             self.fill(cell, u, l);
+            if stale.get(x).copied().unwrap_or(false) {
+                self.mark_stale(cell, l);
+            }
         }
         cells
+    }
+
+    /// A cell of a sweep's bins not seen within a revisit time: [`STALE_GLYPH`] over its
+    /// level's colour (in monochrome, in place of the shade), so it reads without colour.
+    fn mark_stale(&self, cell: &mut Cell, lower: Option<u8>) {
+        cell.set_char(STALE_GLYPH).set_fg(self.theme.label.fg.unwrap_or(Color::Reset));
+        if self.palette.depth != Depth::Mono {
+            cell.set_bg(lower.map_or(Color::Reset, |s| self.palette.colour(s)));
+        }
     }
 
     /// One plot cell from the steps of its upper and lower rows.
@@ -218,6 +244,25 @@ mod tests {
         (&plot(&h, &p, &t)).render(buf.area, &mut buf);
         assert_eq!(crate::tui::widgets::text_lines(&buf), ["00:00     █   ", "              "]);
         assert_eq!(buf[(GUTTER + 4, 0)].fg, Color::Reset);
+    }
+
+    #[test]
+    fn stale_bins_carry_a_marker_readable_without_colour() {
+        // Bins 5..8 of a sweep's row were not seen within a revisit time: marked in mono and in
+        // colour (over their level's colour), the others drawn as before.
+        let mut h = History::new(1 << 20);
+        let stale: Vec<bool> = (0..8).map(|i| i >= 5).collect();
+        h.push(row(-80.0, 2, 0.0).with_stale(&stale));
+        for depth in [Depth::Mono, Depth::TrueColour] {
+            let p = Palette::new(depth, MapKind::Grey);
+            let t = Theme::new(depth);
+            let cells = plot(&h, &p, &t).line_cells(0, GUTTER + 8);
+            let marks: Vec<bool> = cells[GUTTER as usize..]
+                .iter()
+                .map(|c| c.symbol() == STALE_GLYPH.to_string())
+                .collect();
+            assert_eq!(marks, stale, "{depth:?}");
+        }
     }
 
     #[test]
