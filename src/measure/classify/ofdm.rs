@@ -50,8 +50,8 @@ pub fn cp_peak(x: &[Complex64], rate_hz: f64, obw_hz: f64, noise_power: f64) -> 
         (lo..hi).map(|l| buf[l].norm() / size as f64 / ((n - l) as f64 * power)).collect();
     let (i, &peak) = corr.iter().enumerate().max_by(|a, b| a.1.total_cmp(b.1))?;
     let mut sorted = corr.clone();
-    sorted.sort_by(f64::total_cmp);
-    let median = sorted[sorted.len() / 2];
+    let mid = sorted.len() / 2;
+    let median = *sorted.select_nth_unstable_by(mid, f64::total_cmp).1;
     let prominence = if median > 0.0 { peak / median } else { f64::INFINITY };
     let delta = if i > 0 && i + 1 < corr.len() {
         let (a, b, c) = (corr[i - 1], corr[i], corr[i + 1]);
