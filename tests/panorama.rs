@@ -7,8 +7,9 @@
 //! Truth: a complex tone `A·e^{jωn}` has power A² (Parseval), so a tone stated at L dBFS must
 //! read L dBFS of integrated power, at its own frequency within one bin.
 
+mod common;
+
 use bandwarden::source::SampleFormat;
-use bandwarden::testkit::{keyed_band, Keyed};
 use serde_json::{json, Value};
 use std::path::PathBuf;
 use std::process::{Command, Output};
@@ -30,16 +31,7 @@ const SPUR_HZ: f64 = 447.5e6;
 
 /// One dwell at `center`: the tones its receiver sees, the spur in its first `SETTLE` samples.
 fn dwell(center: f64, seed: u64) -> Vec<num_complex::Complex32> {
-    let settling = |i: u64| i < SETTLE as u64;
-    let mut carriers: Vec<Keyed> = TONES
-        .iter()
-        .filter(|(f, _)| (f - center).abs() < FS / 2.0)
-        .map(|&(f, l)| Keyed::steady(f - center, l))
-        .collect();
-    if (SPUR_HZ - center).abs() < FS / 2.0 {
-        carriers.push(Keyed { offset_hz: SPUR_HZ - center, level_dbfs: -10.0, on: &settling });
-    }
-    keyed_band(DWELL, FS, 1e-7, &carriers, seed)
+    common::dwell(center, FS, DWELL, &TONES, (SPUR_HZ, SETTLE as u64), seed)
 }
 
 /// A scratch directory removed at the end of the test.
@@ -106,24 +98,7 @@ fn measure(args: &[&str]) -> Value {
 /// Every tone is found within one bin (1 kHz) of its frequency and 0.5 dB of its power, and
 /// nothing stronger than the weakest tone is found elsewhere.
 fn assert_tones(report: &Value, what: &str) {
-    let span = report["panorama_span_hz"].as_f64();
-    let peaks = report["peaks"].as_array().unwrap();
-    for (f, l) in TONES {
-        let p = peaks
-            .iter()
-            .find(|p| (p["freq_hz"].as_f64().unwrap() - f).abs() <= 1e3)
-            .unwrap_or_else(|| {
-                panic!("{what}: no peak at {f} Hz in {peaks:?} (panorama span {span:?} Hz)")
-            });
-        let got = p["power_dbfs"].as_f64().unwrap();
-        assert!((got - l).abs() < 0.5, "{what}: tone at {f} Hz reads {got} dBFS, truth {l}");
-    }
-    for p in peaks {
-        let f = p["freq_hz"].as_f64().unwrap();
-        if TONES.iter().all(|(t, _)| (f - t).abs() > 1e3) {
-            assert!(p["power_dbfs"].as_f64().unwrap() < -45.0, "{what}: a stray peak {p}");
-        }
-    }
+    common::assert_tones(report, &TONES, 1e3, what);
 }
 
 #[test]

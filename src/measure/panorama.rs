@@ -122,6 +122,11 @@ impl Grid {
             .collect()
     }
 
+    /// The distinct centre (index into [`Grid::centres`]) at `center_hz`, if the grid has it.
+    pub fn place_of_centre(&self, center_hz: f64) -> Option<usize> {
+        self.places.iter().position(|p| crate::source::tuning::same_centre(p.center_hz, center_hz))
+    }
+
     /// The distinct centre (index into [`Grid::centres`]) of the tuning's step `step`.
     pub fn place_of_step(&self, step: usize) -> usize {
         self.step_place[step]
@@ -230,7 +235,13 @@ impl Panorama {
     /// Adds one spectrum of a dwell at the tuning's step `step`: its usable bins, weighted by
     /// its frames.
     pub fn add(&mut self, step: usize, row: &Spectrum) {
-        let place = &self.grid.places[self.grid.place_of_step(step)];
+        self.add_at(self.grid.place_of_step(step), row);
+    }
+
+    /// Adds one spectrum of a dwell at the grid's distinct centre `place` (index into
+    /// [`Grid::centres`]): its usable bins, weighted by its frames.
+    pub fn add_at(&mut self, place: usize, row: &Spectrum) {
+        let place = &self.grid.places[place];
         let w = row.frames as f64;
         for i in place.first..=place.last {
             let j = (i as isize + place.offset) as usize;
@@ -246,8 +257,12 @@ impl Panorama {
     /// Marks the dwell at step `step` over; true when the sweep is now complete (every centre
     /// visited since the last row).
     pub fn dwell_done(&mut self, step: usize) -> bool {
-        let k = self.grid.place_of_step(step);
-        self.visited[k] = true;
+        self.dwell_done_at(self.grid.place_of_step(step))
+    }
+
+    /// Marks a dwell at the distinct centre `place` over; true when the sweep is now complete.
+    pub fn dwell_done_at(&mut self, place: usize) -> bool {
+        self.visited[place] = true;
         self.visited.iter().all(|v| *v)
     }
 
@@ -303,7 +318,7 @@ mod tests {
             .enumerate()
             .map(|(k, &c)| Step { start: 1000 * k as u64, center_hz: c })
             .collect();
-        Tuning { steps, period: None, settle_samples: 0, usable }
+        Tuning { steps, period: None, settle_samples: 0, usable, follows_stream: false }
     }
 
     #[test]
