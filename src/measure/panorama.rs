@@ -136,16 +136,23 @@ impl Grid {
 /// How long a channel is in view in a panorama, in ITU-R Report SM.2256's terms (from memory):
 /// the observation time is the time the receiver spends on the channel, the revisit time the
 /// time from the start of one visit to the start of the next.
+///
+/// A channel lying across a step boundary is seen part by part, each part in its own dwell;
+/// the stitched row holds every part once a sweep. Its observation time is that of its least
+/// observed bin (every bin of it was seen at least that long), its revisit time that bin's: for
+/// a channel inside one step that is the step's dwells, for one across a boundary the shorter
+/// of its parts' dwells, once a sweep.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct ViewTimes {
-    /// Seconds in view per sweep (every dwell whose usable band holds the whole channel, less
-    /// the settling time).
+    /// Seconds in view per sweep (the dwells that hold its least observed bin, less the
+    /// settling time).
     pub observation_per_sweep_s: f64,
     /// Mean seconds between the starts of successive visits; `None` with fewer than two.
     pub revisit_s: Option<f64>,
 }
 
-/// The view times of the channel `[low_hz, high_hz]`; `None` when no step sees it whole.
+/// The view times of the channel `[low_hz, high_hz]`; `None` when some part of it is never in
+/// view.
 pub fn view_times(
     tuning: &Tuning,
     grid: &Grid,
@@ -153,7 +160,39 @@ pub fn view_times(
     low_hz: f64,
     high_hz: f64,
 ) -> Option<ViewTimes> {
-    let seeing = grid.centres_seeing(low_hz, high_hz);
+    let (lo, hi) = grid.span_hz();
+    let eps = 1e-6 * grid.bin_hz;
+    if low_hz < lo - eps || high_hz > hi + eps {
+        return None;
+    }
+    // The grid bins whose centres lie in the channel (its centre bin when it is narrower).
+    let bin = |f: f64| (f - grid.first_hz) / grid.bin_hz;
+    let top = grid.bins.saturating_sub(1);
+    let mut first = (bin(low_hz).ceil().max(0.0) as usize).min(top);
+    let mut last = (bin(high_hz).floor().max(0.0) as usize).min(top);
+    if first > last {
+        first = (bin(0.5 * (low_hz + high_hz)).round().max(0.0) as usize).min(top);
+        last = first;
+    }
+    let mut least: Option<(u64, ViewTimes)> = None;
+    for b in first..=last {
+        let f = grid.first_hz + b as f64 * grid.bin_hz;
+        let (observed, v) = bin_view_times(tuning, grid, rate_hz, &grid.centres_seeing(f, f))?;
+        if !least.is_some_and(|(o, _)| observed >= o) {
+            least = Some((observed, v));
+        }
+    }
+    least.map(|(_, v)| v)
+}
+
+/// The view times of a band seen by the grid's distinct centres `seeing`, with the samples it
+/// is observed in the timeline; `None` when no step sees it.
+fn bin_view_times(
+    tuning: &Tuning,
+    grid: &Grid,
+    rate_hz: f64,
+    seeing: &[usize],
+) -> Option<(u64, ViewTimes)> {
     let steps = &tuning.steps;
     let mut visits = Vec::new();
     let mut observed = 0u64;
@@ -188,10 +227,11 @@ pub fn view_times(
         }
         None => None,
     };
-    Some(ViewTimes {
+    let v = ViewTimes {
         observation_per_sweep_s: observed as f64 / sweeps as f64 / rate_hz,
         revisit_s: revisit.map(|r| r / rate_hz),
-    })
+    };
+    Some((observed, v))
 }
 
 /// The accumulator of one panorama.
@@ -347,6 +387,13 @@ mod tests {
         assert!((v.observation_per_sweep_s - 0.048).abs() < 1e-12, "{v:?}");
         assert_eq!(v.revisit_s, Some(0.2));
         assert!(view_times(&t, &g, 1e6, 103e6, 103.01e6).is_none(), "never in view");
+        // Across the boundary of steps 0 and 1 (100.4 MHz): each part is seen in its own 48 ms
+        // a sweep, so every bin of it is seen 48 ms a sweep, once a sweep.
+        let v = view_times(&t, &g, 1e6, 100.39e6, 100.41e6).unwrap();
+        assert!((v.observation_per_sweep_s - 0.048).abs() < 1e-12, "{v:?}");
+        assert_eq!(v.revisit_s, Some(0.2));
+        // Half beyond the last step's band: part of it is never in view.
+        assert!(view_times(&t, &g, 1e6, 102.79e6, 102.81e6).is_none());
     }
 
     #[test]
