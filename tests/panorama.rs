@@ -203,6 +203,25 @@ fn log_follows_a_channel_across_the_panorama() {
             .unwrap_or_else(|| panic!("no interval of {name} in {lines:?}"))
             .clone()
     };
+    // The start record describes the sweep: span, centres, dwells, settling, usable share.
+    let start = &lines[0];
+    let pano = &start["panorama"];
+    assert_eq!(pano["span_low_hz"].as_f64(), Some(445.5995e6), "{start}");
+    assert_eq!(pano["span_high_hz"].as_f64(), Some(448.7995e6), "{start}");
+    let centres: Vec<f64> =
+        pano["step_centers_hz"].as_array().unwrap().iter().map(|c| c.as_f64().unwrap()).collect();
+    assert_eq!(centres, CENTRES, "{start}");
+    assert_eq!(pano["dwell_s"], json!([0.05, 0.05, 0.05, 0.05]), "{start}");
+    assert_eq!(pano["settle_s"].as_f64(), Some(0.002), "{start}");
+    assert_eq!(pano["usable"].as_f64(), Some(0.8), "{start}");
+    assert_eq!(pano["timeline"], "hop_plan", "{start}");
+    // `report` says the run was a sweep, and of what.
+    let log = dir.file("sweep.jsonl");
+    std::fs::write(&log, &out.stdout).unwrap();
+    let report = run(&["report", &log]);
+    let text = String::from_utf8_lossy(&report.stdout);
+    assert!(report.status.success(), "{}", String::from_utf8_lossy(&report.stderr));
+    assert!(text.contains("a sweep of 445.5995 .. 448.7995 MHz in 4 steps of 50 ms"), "{text}");
     let (relay, quiet) = (interval("relay"), interval("quiet"));
     assert_eq!(relay["occupancy_pct"].as_f64(), Some(100.0), "{relay}");
     assert_eq!(quiet["occupancy_pct"].as_f64(), Some(0.0), "{quiet}");
