@@ -66,6 +66,16 @@ fn capture(sweeps: usize) -> Vec<u8> {
     bytes
 }
 
+/// A scratch folder named `name` holding `sweeps` sweeps of the capture and the hop plan:
+/// (folder, capture path, plan path).
+fn sweep_files(name: &str, sweeps: usize) -> (Scratch, String, String) {
+    let dir = Scratch::new(name);
+    let data = dir.file("sweep.cf32");
+    std::fs::write(&data, capture(sweeps)).unwrap();
+    let plan = hop_plan(&dir);
+    (dir, data, plan)
+}
+
 fn hop_plan(dir: &Scratch) -> String {
     let path = dir.file("sweep.txt");
     let mut text = String::from("# Wrenhollow Ridge: four steps of 50 ms\n");
@@ -103,10 +113,7 @@ fn assert_tones(report: &Value, what: &str) {
 
 #[test]
 fn a_four_step_sweep_is_one_panorama_with_every_tone_right() {
-    let dir = Scratch::new("hop");
-    let data = dir.file("sweep.cf32");
-    std::fs::write(&data, capture(2)).unwrap();
-    let plan = hop_plan(&dir);
+    let (_dir, data, plan) = sweep_files("hop", 2);
     let v = measure(&[&data, "--rate", "1M", "--hop-plan", &plan, "--settle", "2ms"]);
     assert_tones(&v, "--hop-plan");
     // The panorama spans the four steps' usable bands: 445.6 .. 448.8 MHz (3200 bins of 1 kHz),
@@ -146,10 +153,7 @@ fn a_sigmf_recording_with_one_capture_per_dwell_is_one_panorama() {
 
 #[test]
 fn a_plan_channel_beyond_the_panorama_is_refused_and_a_hole_is_named() {
-    let dir = Scratch::new("bad");
-    let data = dir.file("sweep.cf32");
-    std::fs::write(&data, capture(1)).unwrap();
-    let plan = hop_plan(&dir);
+    let (_dir, data, plan) = sweep_files("bad", 1);
     // 449.5 MHz is never in view: refused, never reported idle.
     let o = on_sweep("measure", &data, &plan, &["--channel", "far=449.5M:12.5k"]);
     let err = String::from_utf8_lossy(&o.stderr);
@@ -172,10 +176,7 @@ fn a_plan_channel_beyond_the_panorama_is_refused_and_a_hole_is_named() {
 fn log_follows_a_channel_across_the_panorama() {
     // A channel around the tone at 447.2035 MHz, which lies across a step boundary: on the air
     // in every sweep, so 100 % occupied; one at 448.2 MHz holds noise only: 0 %.
-    let dir = Scratch::new("log");
-    let data = dir.file("sweep.cf32");
-    std::fs::write(&data, capture(4)).unwrap();
-    let plan = hop_plan(&dir);
+    let (dir, data, plan) = sweep_files("log", 4);
     let out = on_sweep(
         "log",
         &data,
@@ -236,4 +237,22 @@ fn log_follows_a_channel_across_the_panorama() {
         assert!((ch["observation_s"].as_f64().unwrap() - 0.192).abs() < 1e-9, "{ch}");
         assert_eq!(ch["revisit_s"].as_f64(), Some(0.2), "{ch}");
     }
+}
+
+#[test]
+fn a_snapshot_of_a_panorama_names_the_sweep_not_the_grid_as_an_fft() {
+    let (dir, data, plan) = sweep_files("snapshot", 2);
+    let svg = dir.file("sweep.svg");
+    let o = on_sweep("snapshot", &data, &plan, &["--settle", "2ms", "-o", &svg]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let text = std::fs::read_to_string(&svg).unwrap();
+    // The step's FFT (1000 at 1 MS/s), the grid (3200 bins of 1 kHz) and its span (3.2 MHz).
+    assert!(text.contains("FFT 1000 a step"), "{text}");
+    assert!(text.contains("3200 grid bins"), "{text}");
+    assert!(text.contains("4 steps"), "{text}");
+    assert!(!text.contains("FFT 3200"), "the grid size is no FFT size: {text}");
+    // Frames a sweep: a 50 ms dwell less 2 ms settling is 48 000 samples, which hold
+    // ⌊(48 000 − 1000) / 500⌋ + 1 = 95 frames of 1000 at the default hop of 500 (50 % overlap).
+    assert!(text.contains("95 FFT frames a sweep"), "{text}");
+    assert!(!text.contains("1 FFT frame "), "{text}");
 }

@@ -234,6 +234,33 @@ fn bin_view_times(
     Some((observed, v))
 }
 
+/// FFT frames of `fft_size` at `hop` that one sweep of `tuning` gives its least seen grid bin:
+/// each dwell yields ⌊(length − settle − N) / hop⌋ + 1 whole frames (the engine drops the
+/// unfinished one at a dwell's end), summed over the dwells whose step sees the bin. A hop plan
+/// is one sweep; a recording's dwells are shared over as many sweeps as it visits its least
+/// visited centre, and its last dwell (no known end) is left out. For a stream that reports its
+/// retunes these are the plan's expected dwells.
+pub fn frames_per_sweep(tuning: &Tuning, grid: &Grid, fft_size: usize, hop: usize) -> u64 {
+    let steps = &tuning.steps;
+    let mut frames = vec![0u64; grid.places.len()];
+    let mut visits = vec![0u64; grid.places.len()];
+    for (k, s) in steps.iter().enumerate() {
+        let place = grid.place_of_step(k);
+        visits[place] += 1;
+        let Some(end) = steps.get(k + 1).map(|n| n.start).or(tuning.period) else { continue };
+        let len = (end - s.start).saturating_sub(tuning.settle_samples);
+        if len >= fft_size as u64 {
+            frames[place] += (len - fft_size as u64) / hop.max(1) as u64 + 1;
+        }
+    }
+    let sweeps =
+        if tuning.period.is_some() { 1 } else { visits.iter().copied().min().unwrap_or(1) };
+    let per_place = frames.iter().map(|f| f / sweeps.max(1));
+    // Where steps overlap a bin is seen by more than one; every bin is seen by at least one
+    // place, so the least seen bin sees at least the least place's frames.
+    per_place.min().unwrap_or(0)
+}
+
 /// The accumulator of one panorama.
 pub struct Panorama {
     grid: Grid,
@@ -394,6 +421,9 @@ mod tests {
         assert_eq!(v.revisit_s, Some(0.2));
         // Half beyond the last step's band: part of it is never in view.
         assert!(view_times(&t, &g, 1e6, 102.79e6, 102.81e6).is_none());
+        // Frames a sweep: each 48 ms settled dwell of 48 000 samples holds
+        // ⌊(48 000 − 1000) / 500⌋ + 1 = 95 whole frames of 1000 at hop 500.
+        assert_eq!(frames_per_sweep(&t, &g, 1000, 500), 95);
     }
 
     #[test]
