@@ -153,6 +153,11 @@ fn carrier(packets: usize, seed: u64) -> Vec<u8> {
 /// A sender and where it sends, after a second of context packets (until bandwarden has
 /// surely bound its port).
 fn announce(port: u16) -> (UdpSocket, String) {
+    announce_with(port, context)
+}
+
+/// As [`announce`], with the context packets `context(count)` makes.
+fn announce_with(port: u16, context: impl Fn(u32) -> Vec<u8>) -> (UdpSocket, String) {
     let tx = UdpSocket::bind("127.0.0.1:0").unwrap();
     let to = format!("127.0.0.1:{port}");
     for i in 0..10 {
@@ -192,6 +197,7 @@ fn a_retune_mid_stream_ends_the_input_after_the_samples_before_it() {
         err.contains("changed its centre from 145500000 to 146500000 Hz at sample 50000"),
         "{err}"
     );
+    assert!(err.contains("give --hop-plan FILE"), "the way to stitch it is named: {err}");
     let recs: Vec<Value> = std::fs::read_to_string(&out)
         .unwrap()
         .lines()
@@ -315,4 +321,83 @@ fn ref_offset_wins_over_the_stream_reference_level() {
     assert_eq!(v["calibration"], "--ref-offset -7", "{v}");
     let power = v["channels"][0]["power_dbm"].as_f64().unwrap();
     assert!((power - -37.0).abs() < 0.1, "{power} dBm, not -37");
+}
+
+/// A Wrenhollow Ridge sweep: four steps 160 kHz apart, the receiver's bandwidth 160 kHz
+/// (80 % of the rate), so the steps' usable bands tile 144.92 .. 145.56 MHz without a hole.
+const SWEEP: [f64; 4] = [145.0e6, 145.16e6, 145.32e6, 145.48e6];
+/// Packets per dwell (50 ms) and packets of settling at its start (5 ms).
+const DWELL_PACKETS: usize = 10;
+/// Tones (absolute Hz, dBFS): one inside step 0, one 1.5 kHz inside step 2's usable band (its
+/// window skirt falls across the boundary into step 1's bins).
+const SWEEP_TONES: [(f64, f64); 2] = [(145.05e6, -30.0), (145.2415e6, -40.0)];
+/// A strong spur in the first packet (the settling time) of every dwell that sees it.
+const SWEEP_SPUR_HZ: f64 = 145.3e6;
+
+/// A context packet of the sweep: CIF0 bits 29 (bandwidth), 27 (RF reference), 21 (sample
+/// rate), 15 (payload format), in the standard's field order (highest bit first).
+fn sweep_context(count: u32, centre_hz: f64) -> Vec<u8> {
+    let cif0 = (1 << 29) | (1 << 27) | (1 << 21) | (1 << 15);
+    let mut w = vec![0u32, STREAM, cif0];
+    w.extend(radix20(0.8 * FS));
+    w.extend(radix20(centre_hz));
+    w.extend(radix20(FS));
+    let pf: u64 = (1 << 61) | (15 << 38) | (15 << 32);
+    w.extend([(pf >> 32) as u32, pf as u32]);
+    w[0] = (4 << 28) | ((count & 0xf) << 16) | w.len() as u32;
+    words(&w)
+}
+
+/// `sweeps` sweeps as ci16_be bytes: each dwell holds the tones inside its receiver's span at
+/// their offset from its centre, and the spur in its settling time.
+fn sweep_samples(sweeps: usize) -> Vec<u8> {
+    let mut bytes = Vec::new();
+    for s in 0..sweeps {
+        for (k, &c) in SWEEP.iter().enumerate() {
+            let n = DWELL_PACKETS * PER_PACKET;
+            let spur = (SWEEP_SPUR_HZ, PER_PACKET as u64);
+            let x = common::dwell(c, FS, n, &SWEEP_TONES, spur, (s * 4 + k) as u64);
+            SampleFormat::Ci16Be.encode(&x, &mut bytes);
+        }
+    }
+    bytes
+}
+
+#[test]
+fn a_four_step_sweep_over_udp_is_one_panorama_with_both_tones_right() {
+    let dir = common::scratch("vita49", "sweep.txt");
+    let plan = dir.to_str().unwrap().to_string();
+    let lines: Vec<String> = SWEEP.iter().map(|c| format!("{}M 50ms", c / 1e6)).collect();
+    std::fs::write(&plan, lines.join("\n")).unwrap();
+    let port = free_udp_port();
+    let child = Command::new(env!("CARGO_BIN_EXE_bandwarden"))
+        .args(["measure", &format!("vita49://127.0.0.1:{port}"), "--json", "--fft", "1000"])
+        .args(["--hop-plan", &plan, "--settle", "5ms", "--seconds", "0.4", "--threads", "1"])
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    let samples = sweep_samples(2);
+    let (tx, to) = announce_with(port, |i| sweep_context(i, SWEEP[0]));
+    for k in 0..2 * SWEEP.len() * DWELL_PACKETS {
+        if k % DWELL_PACKETS == 0 {
+            // The receiver says where it is before the first packet there, as a sender does.
+            let centre = SWEEP[(k / DWELL_PACKETS) % SWEEP.len()];
+            tx.send_to(&sweep_context(10 + k as u32, centre), &to).unwrap();
+        }
+        tx.send_to(&data(k, &samples), &to).unwrap();
+        std::thread::sleep(Duration::from_secs_f64(PER_PACKET as f64 / FS));
+    }
+    let o = child.wait_with_output().unwrap();
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(o.status.success(), "{err}");
+    let v: Value = serde_json::from_slice(&o.stdout).unwrap();
+    // The context's 160 kHz bandwidth is each step's usable band: 4 × 160 kHz = 640 kHz of
+    // panorama, 144.92 .. 145.56 MHz, centred at 145.24 MHz.
+    assert_eq!(v["panorama_span_hz"].as_f64(), Some(640e3), "{v}");
+    assert_eq!(v["center_hz"].as_f64(), Some(145.24e6), "{v}");
+    // Parseval: a complex tone A·e^{jωn} has power A², so each reads its stated dBFS, at its
+    // own frequency within one bin (200 Hz); the spur sent only while the receiver settled was
+    // skipped, so nothing else stands out.
+    common::assert_tones(&v, &SWEEP_TONES, 200.0, "VITA 49 sweep");
 }

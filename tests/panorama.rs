@@ -7,6 +7,8 @@
 //! Truth: a complex tone `A·e^{jωn}` has power A² (Parseval), so a tone stated at L dBFS must
 //! read L dBFS of integrated power, at its own frequency within one bin.
 
+mod common;
+
 use bandwarden::source::SampleFormat;
 use bandwarden::testkit::{keyed_band, Keyed};
 use serde_json::{json, Value};
@@ -30,16 +32,7 @@ const SPUR_HZ: f64 = 447.5e6;
 
 /// One dwell at `center`: the tones its receiver sees, the spur in its first `SETTLE` samples.
 fn dwell(center: f64, seed: u64) -> Vec<num_complex::Complex32> {
-    let settling = |i: u64| i < SETTLE as u64;
-    let mut carriers: Vec<Keyed> = TONES
-        .iter()
-        .filter(|(f, _)| (f - center).abs() < FS / 2.0)
-        .map(|&(f, l)| Keyed::steady(f - center, l))
-        .collect();
-    if (SPUR_HZ - center).abs() < FS / 2.0 {
-        carriers.push(Keyed { offset_hz: SPUR_HZ - center, level_dbfs: -10.0, on: &settling });
-    }
-    keyed_band(DWELL, FS, 1e-7, &carriers, seed)
+    common::dwell(center, FS, DWELL, &TONES, (SPUR_HZ, SETTLE as u64), seed)
 }
 
 /// A scratch directory removed at the end of the test.
@@ -74,6 +67,16 @@ fn capture(sweeps: usize) -> Vec<u8> {
     bytes
 }
 
+/// A scratch folder named `name` holding `sweeps` sweeps of the capture and the hop plan:
+/// (folder, capture path, plan path).
+fn sweep_files(name: &str, sweeps: usize) -> (Scratch, String, String) {
+    let dir = Scratch::new(name);
+    let data = dir.file("sweep.cf32");
+    std::fs::write(&data, capture(sweeps)).unwrap();
+    let plan = hop_plan(&dir);
+    (dir, data, plan)
+}
+
 fn hop_plan(dir: &Scratch) -> String {
     let path = dir.file("sweep.txt");
     let mut text = String::from("# Wrenhollow Ridge: four steps of 50 ms\n");
@@ -106,32 +109,12 @@ fn measure(args: &[&str]) -> Value {
 /// Every tone is found within one bin (1 kHz) of its frequency and 0.5 dB of its power, and
 /// nothing stronger than the weakest tone is found elsewhere.
 fn assert_tones(report: &Value, what: &str) {
-    let span = report["panorama_span_hz"].as_f64();
-    let peaks = report["peaks"].as_array().unwrap();
-    for (f, l) in TONES {
-        let p = peaks
-            .iter()
-            .find(|p| (p["freq_hz"].as_f64().unwrap() - f).abs() <= 1e3)
-            .unwrap_or_else(|| {
-                panic!("{what}: no peak at {f} Hz in {peaks:?} (panorama span {span:?} Hz)")
-            });
-        let got = p["power_dbfs"].as_f64().unwrap();
-        assert!((got - l).abs() < 0.5, "{what}: tone at {f} Hz reads {got} dBFS, truth {l}");
-    }
-    for p in peaks {
-        let f = p["freq_hz"].as_f64().unwrap();
-        if TONES.iter().all(|(t, _)| (f - t).abs() > 1e3) {
-            assert!(p["power_dbfs"].as_f64().unwrap() < -45.0, "{what}: a stray peak {p}");
-        }
-    }
+    common::assert_tones(report, &TONES, 1e3, what);
 }
 
 #[test]
 fn a_four_step_sweep_is_one_panorama_with_every_tone_right() {
-    let dir = Scratch::new("hop");
-    let data = dir.file("sweep.cf32");
-    std::fs::write(&data, capture(2)).unwrap();
-    let plan = hop_plan(&dir);
+    let (_dir, data, plan) = sweep_files("hop", 2);
     let v = measure(&[&data, "--rate", "1M", "--hop-plan", &plan, "--settle", "2ms"]);
     assert_tones(&v, "--hop-plan");
     // The panorama spans the four steps' usable bands: 445.6 .. 448.8 MHz (3200 bins of 1 kHz),
@@ -171,10 +154,7 @@ fn a_sigmf_recording_with_one_capture_per_dwell_is_one_panorama() {
 
 #[test]
 fn a_plan_channel_beyond_the_panorama_is_refused_and_a_hole_is_named() {
-    let dir = Scratch::new("bad");
-    let data = dir.file("sweep.cf32");
-    std::fs::write(&data, capture(1)).unwrap();
-    let plan = hop_plan(&dir);
+    let (dir, data, plan) = sweep_files("bad", 1);
     // 449.5 MHz is never in view: refused, never reported idle.
     let o = on_sweep("measure", &data, &plan, &["--channel", "far=449.5M:12.5k"]);
     let err = String::from_utf8_lossy(&o.stderr);
@@ -209,10 +189,7 @@ fn a_plan_channel_beyond_the_panorama_is_refused_and_a_hole_is_named() {
 fn log_follows_a_channel_across_the_panorama() {
     // A channel around the tone at 447.2035 MHz, which lies across a step boundary: on the air
     // in every sweep, so 100 % occupied; one at 448.2 MHz holds noise only: 0 %.
-    let dir = Scratch::new("log");
-    let data = dir.file("sweep.cf32");
-    std::fs::write(&data, capture(4)).unwrap();
-    let plan = hop_plan(&dir);
+    let (dir, data, plan) = sweep_files("log", 4);
     let out = on_sweep(
         "log",
         &data,
@@ -240,6 +217,25 @@ fn log_follows_a_channel_across_the_panorama() {
             .unwrap_or_else(|| panic!("no interval of {name} in {lines:?}"))
             .clone()
     };
+    // The start record describes the sweep: span, centres, dwells, settling, usable share.
+    let start = &lines[0];
+    let pano = &start["panorama"];
+    assert_eq!(pano["span_low_hz"].as_f64(), Some(445.5995e6), "{start}");
+    assert_eq!(pano["span_high_hz"].as_f64(), Some(448.7995e6), "{start}");
+    let centres: Vec<f64> =
+        pano["step_centers_hz"].as_array().unwrap().iter().map(|c| c.as_f64().unwrap()).collect();
+    assert_eq!(centres, CENTRES, "{start}");
+    assert_eq!(pano["dwell_s"], json!([0.05, 0.05, 0.05, 0.05]), "{start}");
+    assert_eq!(pano["settle_s"].as_f64(), Some(0.002), "{start}");
+    assert_eq!(pano["usable"].as_f64(), Some(0.8), "{start}");
+    assert_eq!(pano["timeline"], "hop_plan", "{start}");
+    // `report` says the run was a sweep, and of what.
+    let log = dir.file("sweep.jsonl");
+    std::fs::write(&log, &out.stdout).unwrap();
+    let report = run(&["report", &log]);
+    let text = String::from_utf8_lossy(&report.stdout);
+    assert!(report.status.success(), "{}", String::from_utf8_lossy(&report.stderr));
+    assert!(text.contains("a sweep of 445.5995 .. 448.7995 MHz in 4 steps of 50 ms"), "{text}");
     let (relay, quiet) = (interval("relay"), interval("quiet"));
     assert_eq!(relay["occupancy_pct"].as_f64(), Some(100.0), "{relay}");
     assert_eq!(quiet["occupancy_pct"].as_f64(), Some(0.0), "{quiet}");
@@ -248,10 +244,30 @@ fn log_follows_a_channel_across_the_panorama() {
     // ITU-R Report SM.2256 (from memory): observation time, the time on the channel; revisit
     // time, from one visit to the next. The quiet channel lies inside the last step only: 48 ms
     // a sweep (50 ms less 2 ms settling) × 4 sweeps, revisited every 200 ms. The relay straddles
-    // the boundary of steps 1 and 2, so no one dwell holds it whole: no observation time.
-    assert!((quiet["observation_s"].as_f64().unwrap() - 0.192).abs() < 1e-9, "{quiet}");
-    assert_eq!(quiet["revisit_s"].as_f64(), Some(0.2), "{quiet}");
-    assert!(relay.get("observation_s").is_none(), "{relay}");
+    // the boundary of steps 1 and 2: each part is in view in its own dwell, so every bin of it
+    // is seen 48 ms a sweep, once a sweep (its least observed bin's times).
+    for ch in [&quiet, &relay] {
+        assert!((ch["observation_s"].as_f64().unwrap() - 0.192).abs() < 1e-9, "{ch}");
+        assert_eq!(ch["revisit_s"].as_f64(), Some(0.2), "{ch}");
+    }
+}
+
+#[test]
+fn a_snapshot_of_a_panorama_names_the_sweep_not_the_grid_as_an_fft() {
+    let (dir, data, plan) = sweep_files("snapshot", 2);
+    let svg = dir.file("sweep.svg");
+    let o = on_sweep("snapshot", &data, &plan, &["--settle", "2ms", "-o", &svg]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let text = std::fs::read_to_string(&svg).unwrap();
+    // The step's FFT (1000 at 1 MS/s), the grid (3200 bins of 1 kHz) and its span (3.2 MHz).
+    assert!(text.contains("FFT 1000 a step"), "{text}");
+    assert!(text.contains("3200 grid bins"), "{text}");
+    assert!(text.contains("4 steps"), "{text}");
+    assert!(!text.contains("FFT 3200"), "the grid size is no FFT size: {text}");
+    // Frames a sweep: a 50 ms dwell less 2 ms settling is 48 000 samples, which hold
+    // ⌊(48 000 − 1000) / 500⌋ + 1 = 95 frames of 1000 at the default hop of 500 (50 % overlap).
+    assert!(text.contains("95 FFT frames a sweep"), "{text}");
+    assert!(!text.contains("1 FFT frame "), "{text}");
 }
 
 /// A tone keyed on for the first two of four sweeps only, inside step 0's usable band.

@@ -122,6 +122,11 @@ impl Grid {
             .collect()
     }
 
+    /// The distinct centre (index into [`Grid::centres`]) at `center_hz`, if the grid has it.
+    pub fn place_of_centre(&self, center_hz: f64) -> Option<usize> {
+        self.places.iter().position(|p| crate::source::tuning::same_centre(p.center_hz, center_hz))
+    }
+
     /// The distinct centre (index into [`Grid::centres`]) of the tuning's step `step`.
     pub fn place_of_step(&self, step: usize) -> usize {
         self.step_place[step]
@@ -131,16 +136,23 @@ impl Grid {
 /// How long a channel is in view in a panorama, in ITU-R Report SM.2256's terms (from memory):
 /// the observation time is the time the receiver spends on the channel, the revisit time the
 /// time from the start of one visit to the start of the next.
+///
+/// A channel lying across a step boundary is seen part by part, each part in its own dwell;
+/// the stitched row holds every part once a sweep. Its observation time is that of its least
+/// observed bin (every bin of it was seen at least that long), its revisit time that bin's: for
+/// a channel inside one step that is the step's dwells, for one across a boundary the shorter
+/// of its parts' dwells, once a sweep.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct ViewTimes {
-    /// Seconds in view per sweep (every dwell whose usable band holds the whole channel, less
-    /// the settling time).
+    /// Seconds in view per sweep (the dwells that hold its least observed bin, less the
+    /// settling time).
     pub observation_per_sweep_s: f64,
     /// Mean seconds between the starts of successive visits; `None` with fewer than two.
     pub revisit_s: Option<f64>,
 }
 
-/// The view times of the channel `[low_hz, high_hz]`; `None` when no step sees it whole.
+/// The view times of the channel `[low_hz, high_hz]`; `None` when some part of it is never in
+/// view.
 pub fn view_times(
     tuning: &Tuning,
     grid: &Grid,
@@ -148,7 +160,39 @@ pub fn view_times(
     low_hz: f64,
     high_hz: f64,
 ) -> Option<ViewTimes> {
-    let seeing = grid.centres_seeing(low_hz, high_hz);
+    let (lo, hi) = grid.span_hz();
+    let eps = 1e-6 * grid.bin_hz;
+    if low_hz < lo - eps || high_hz > hi + eps {
+        return None;
+    }
+    // The grid bins whose centres lie in the channel (its centre bin when it is narrower).
+    let bin = |f: f64| (f - grid.first_hz) / grid.bin_hz;
+    let top = grid.bins.saturating_sub(1);
+    let mut first = (bin(low_hz).ceil().max(0.0) as usize).min(top);
+    let mut last = (bin(high_hz).floor().max(0.0) as usize).min(top);
+    if first > last {
+        first = (bin(0.5 * (low_hz + high_hz)).round().max(0.0) as usize).min(top);
+        last = first;
+    }
+    let mut least: Option<(u64, ViewTimes)> = None;
+    for b in first..=last {
+        let f = grid.first_hz + b as f64 * grid.bin_hz;
+        let (observed, v) = bin_view_times(tuning, grid, rate_hz, &grid.centres_seeing(f, f))?;
+        if !least.is_some_and(|(o, _)| observed >= o) {
+            least = Some((observed, v));
+        }
+    }
+    least.map(|(_, v)| v)
+}
+
+/// The view times of a band seen by the grid's distinct centres `seeing`, with the samples it
+/// is observed in the timeline; `None` when no step sees it.
+fn bin_view_times(
+    tuning: &Tuning,
+    grid: &Grid,
+    rate_hz: f64,
+    seeing: &[usize],
+) -> Option<(u64, ViewTimes)> {
     let steps = &tuning.steps;
     let mut visits = Vec::new();
     let mut observed = 0u64;
@@ -183,10 +227,38 @@ pub fn view_times(
         }
         None => None,
     };
-    Some(ViewTimes {
+    let v = ViewTimes {
         observation_per_sweep_s: observed as f64 / sweeps as f64 / rate_hz,
         revisit_s: revisit.map(|r| r / rate_hz),
-    })
+    };
+    Some((observed, v))
+}
+
+/// FFT frames of `fft_size` at `hop` that one sweep of `tuning` gives its least seen grid bin:
+/// each dwell yields ⌊(length − settle − N) / hop⌋ + 1 whole frames (the engine drops the
+/// unfinished one at a dwell's end), summed over the dwells whose step sees the bin. A hop plan
+/// is one sweep; a recording's dwells are shared over as many sweeps as it visits its least
+/// visited centre, and its last dwell (no known end) is left out. For a stream that reports its
+/// retunes these are the plan's expected dwells.
+pub fn frames_per_sweep(tuning: &Tuning, grid: &Grid, fft_size: usize, hop: usize) -> u64 {
+    let steps = &tuning.steps;
+    let mut frames = vec![0u64; grid.places.len()];
+    let mut visits = vec![0u64; grid.places.len()];
+    for (k, s) in steps.iter().enumerate() {
+        let place = grid.place_of_step(k);
+        visits[place] += 1;
+        let Some(end) = steps.get(k + 1).map(|n| n.start).or(tuning.period) else { continue };
+        let len = (end - s.start).saturating_sub(tuning.settle_samples);
+        if len >= fft_size as u64 {
+            frames[place] += (len - fft_size as u64) / hop.max(1) as u64 + 1;
+        }
+    }
+    let sweeps =
+        if tuning.period.is_some() { 1 } else { visits.iter().copied().min().unwrap_or(1) };
+    let per_place = frames.iter().map(|f| f / sweeps.max(1));
+    // Where steps overlap a bin is seen by more than one; every bin is seen by at least one
+    // place, so the least seen bin sees at least the least place's frames.
+    per_place.min().unwrap_or(0)
 }
 
 /// The accumulator of one panorama.
@@ -230,7 +302,13 @@ impl Panorama {
     /// Adds one spectrum of a dwell at the tuning's step `step`: its usable bins, weighted by
     /// its frames.
     pub fn add(&mut self, step: usize, row: &Spectrum) {
-        let place = &self.grid.places[self.grid.place_of_step(step)];
+        self.add_at(self.grid.place_of_step(step), row);
+    }
+
+    /// Adds one spectrum of a dwell at the grid's distinct centre `place` (index into
+    /// [`Grid::centres`]): its usable bins, weighted by its frames.
+    pub fn add_at(&mut self, place: usize, row: &Spectrum) {
+        let place = &self.grid.places[place];
         let w = row.frames as f64;
         for i in place.first..=place.last {
             let j = (i as isize + place.offset) as usize;
@@ -246,8 +324,12 @@ impl Panorama {
     /// Marks the dwell at step `step` over; true when the sweep is now complete (every centre
     /// visited since the last row).
     pub fn dwell_done(&mut self, step: usize) -> bool {
-        let k = self.grid.place_of_step(step);
-        self.visited[k] = true;
+        self.dwell_done_at(self.grid.place_of_step(step))
+    }
+
+    /// Marks a dwell at the distinct centre `place` over; true when the sweep is now complete.
+    pub fn dwell_done_at(&mut self, place: usize) -> bool {
+        self.visited[place] = true;
         self.visited.iter().all(|v| *v)
     }
 
@@ -304,7 +386,7 @@ mod tests {
             .enumerate()
             .map(|(k, &c)| Step { start: 1000 * k as u64, center_hz: c })
             .collect();
-        Tuning { steps, period: None, settle_samples: 0, usable }
+        Tuning { steps, period: None, settle_samples: 0, usable, follows_stream: false }
     }
 
     #[test]
@@ -333,6 +415,16 @@ mod tests {
         assert!((v.observation_per_sweep_s - 0.048).abs() < 1e-12, "{v:?}");
         assert_eq!(v.revisit_s, Some(0.2));
         assert!(view_times(&t, &g, 1e6, 103e6, 103.01e6).is_none(), "never in view");
+        // Across the boundary of steps 0 and 1 (100.4 MHz): each part is seen in its own 48 ms
+        // a sweep, so every bin of it is seen 48 ms a sweep, once a sweep.
+        let v = view_times(&t, &g, 1e6, 100.39e6, 100.41e6).unwrap();
+        assert!((v.observation_per_sweep_s - 0.048).abs() < 1e-12, "{v:?}");
+        assert_eq!(v.revisit_s, Some(0.2));
+        // Half beyond the last step's band: part of it is never in view.
+        assert!(view_times(&t, &g, 1e6, 102.79e6, 102.81e6).is_none());
+        // Frames a sweep: each 48 ms settled dwell of 48 000 samples holds
+        // ⌊(48 000 − 1000) / 500⌋ + 1 = 95 whole frames of 1000 at hop 500.
+        assert_eq!(frames_per_sweep(&t, &g, 1000, 500), 95);
     }
 
     #[test]

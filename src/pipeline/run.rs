@@ -171,6 +171,7 @@ impl<'a> Run<'a> {
             }
         }
         self.begin()?;
+        self.retune(&block.retunes);
         if block.start > self.next_sample {
             // A disconnection is announced with the block after it; samples dropped while the
             // DSP was behind come first in the jump (they were read before the link went down).
@@ -284,7 +285,7 @@ impl<'a> Run<'a> {
             match self.consumers[i].poll() {
                 Flow::Continue => {}
                 Flow::Stop => self.stop_asked = true,
-                Flow::Retune(cfg) => self.retune(cfg),
+                Flow::Retune(cfg) => self.reconfigure(cfg),
             }
         }
         self.stop_asked.then_some(StopReason::Limit)
@@ -359,7 +360,21 @@ impl<'a> Run<'a> {
         Ok(())
     }
 
-    fn retune(&mut self, cfg: EngineConfig) {
+    /// The retunes a stream reported with a block, before its samples: the stitch learns where
+    /// its dwells begin. One to a centre the panorama has no place for stops the run.
+    fn retune(&mut self, retunes: &[crate::source::tuning::Step]) {
+        let Some(stitch) = self.stitch.as_mut() else { return };
+        for r in retunes {
+            if let Err(e) = stitch.retune(r) {
+                self.failure.get_or_insert(format!(
+                    "'{}': {e}",
+                    crate::messages::sanitize(&self.info.source.label)
+                ));
+            }
+        }
+    }
+
+    fn reconfigure(&mut self, cfg: EngineConfig) {
         if self.stitch.is_some() {
             // A panorama's grid follows the FFT size: stitched anew from the next dwell, or the
             // settings kept when the new size leaves no whole usable bin of a step.

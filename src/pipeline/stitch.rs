@@ -7,11 +7,16 @@
 //! frame ([`Engine::end_dwell`]), so no frame ever mixes two tunings. The spectra of a dwell go
 //! to the panorama, not to the consumers; the consumers see one wide row per complete sweep.
 //! A stream without a tuning never comes here: its path through the run is unchanged.
+//!
+//! A stream that reports its own retunes ([`Tuning::follows_stream`]) starts with one open
+//! dwell at its first centre; each retune the reader brings ([`Stitch::retune`]) closes the
+//! dwell before it, so the stitching is the same as for a timeline known in advance.
 
 use crate::dsp::{Engine, EngineConfig, Geometry, Spectrum, Window};
 use crate::measure::panorama::{Grid, Panorama};
-use crate::source::tuning::{Dwell, Tuning};
+use crate::source::tuning::{Dwell, Step, Tuning};
 use crate::source::SourceInfo;
+use crate::units::format_hz;
 use anyhow::Result;
 use num_complex::Complex32;
 
@@ -49,6 +54,8 @@ pub fn refuse_panorama(info: &SourceInfo, command: &str) -> Result<()> {
 
 /// A retuned input being stitched.
 pub struct Stitch {
+    /// The dwells: the input's tuning, or for a stream that reports its retunes, the timeline
+    /// learnt so far.
     tuning: Tuning,
     panorama: Panorama,
     /// The dwell the engine is in.
@@ -61,11 +68,37 @@ impl Stitch {
         let Some(grid) = grid_of(info, cfg.fft_size)? else { return Ok(None) };
         let window = Window::new(cfg.window, cfg.fft_size);
         let step = Geometry::new(&window, info.sample_rate_hz, info.center_hz);
-        Ok(info.tuning.clone().map(|tuning| Stitch {
-            tuning,
+        Ok(info.tuning.as_ref().map(|t| Stitch {
+            tuning: if t.follows_stream { t.following(info.center_hz) } else { t.clone() },
             panorama: Panorama::new(grid, &step),
             current: None,
         }))
+    }
+
+    /// A retune the stream reported (the first sample at `step.start` was taken at
+    /// `step.center_hz`); an error when the panorama's grid has no place for that centre.
+    pub fn retune(&mut self, step: &Step) -> Result<(), String> {
+        if self.panorama.grid().place_of_centre(step.center_hz).is_none() {
+            let listed: Vec<String> =
+                self.panorama.grid().centres().iter().map(|&c| format_hz(c)).collect();
+            return Err(format!(
+                "the stream retuned to {} at sample {}, which is not one of the hop plan's centres ({}); add it to the plan",
+                format_hz(step.center_hz),
+                step.start,
+                listed.join(", ")
+            ));
+        }
+        if let Some(d) = self.current {
+            self.tuning.forget_before(d.start);
+        }
+        self.tuning.retune(step.clone());
+        Ok(())
+    }
+
+    /// The grid place of a dwell's centre (every centre of the tuning has one: the grid is laid
+    /// out from them, and [`Stitch::retune`] refuses others).
+    fn place(&self, d: &Dwell) -> usize {
+        self.panorama.grid().place_of_centre(d.center_hz).unwrap_or(0)
     }
 
     pub fn panorama(&self) -> &Panorama {
@@ -84,7 +117,7 @@ impl Stitch {
         let mut at = 0usize;
         while at < samples.len() {
             let dwell = self.tuning.dwell_at(start + at as u64);
-            if self.current.map(|d| d.visit) != Some(dwell.visit) {
+            if self.current.map(|d| d.start) != Some(dwell.start) {
                 self.end_dwell(engine, row);
                 self.current = Some(dwell);
             }
@@ -93,9 +126,11 @@ impl Stitch {
             let settled = (dwell.start + self.tuning.settle_samples).saturating_sub(start);
             let from = (settled.min(end as u64) as usize).max(at);
             if from < end {
-                let (panorama, step) = (&mut self.panorama, dwell.step);
-                engine
-                    .push(start + from as u64, &samples[from..end], &mut |s| panorama.add(step, s));
+                let place = self.place(&dwell);
+                let panorama = &mut self.panorama;
+                engine.push(start + from as u64, &samples[from..end], &mut |s| {
+                    panorama.add_at(place, s)
+                });
             }
             at = end;
         }
@@ -105,9 +140,10 @@ impl Stitch {
     /// `row` when this dwell completed it.
     pub fn end_dwell(&mut self, engine: &mut Engine, row: &mut dyn FnMut(&Spectrum, bool)) {
         let Some(d) = self.current.take() else { return };
+        let place = self.place(&d);
         let panorama = &mut self.panorama;
-        engine.end_dwell(&mut |s| panorama.add(d.step, s));
-        if panorama.dwell_done(d.step) {
+        engine.end_dwell(&mut |s| panorama.add_at(place, s));
+        if panorama.dwell_done_at(place) {
             row(panorama.take(), true);
         }
     }
@@ -116,8 +152,9 @@ impl Stitch {
     /// panorama and the unfinished frame is dropped; the dwell goes on after the gap.
     pub fn gap(&mut self, engine: &mut Engine) {
         let Some(d) = self.current else { return };
+        let place = self.place(&d);
         let panorama = &mut self.panorama;
-        engine.end_dwell(&mut |s| panorama.add(d.step, s));
+        engine.end_dwell(&mut |s| panorama.add_at(place, s));
     }
 
     /// At the end of input: the last dwell, then an unfinished sweep as a partial row (its

@@ -168,6 +168,18 @@ pub trait SampleSource: Send {
     /// The reader's stop flag, for sources whose `read` may wait long (a network input waiting
     /// to reconnect): they return 0 soon after it is set.
     fn watch_stop(&mut self, _stop: std::sync::Arc<std::sync::atomic::AtomicBool>) {}
+
+    /// `Some` for a source that reports its own retunes while it runs (a VITA 49 stream read
+    /// with `--hop-plan`, see [`tuning`]): what it says about its steps.
+    fn retunes(&self) -> Option<tuning::StreamRetunes> {
+        None
+    }
+
+    /// The retunes found since the last call, each with the index of the first sample it applies
+    /// to. A source hands a retune out no later than with the `read` that delivers that sample.
+    fn take_retunes(&mut self) -> Vec<tuning::Step> {
+        Vec::new()
+    }
 }
 
 /// How a network input lost samples.

@@ -34,6 +34,10 @@ pub struct Block {
     pub disconnected: u64,
     /// What those samples were lost to.
     pub lost_cause: super::LinkLoss,
+    /// Retunes of a stream that reports them (see [`super::tuning`]), in order, each with the
+    /// index of the first sample it applies to: none of them lies beyond this block's end
+    /// unseen, so the DSP applies them before the block's samples.
+    pub retunes: Vec<super::tuning::Step>,
     home: Option<Sender<Vec<Complex32>>>,
 }
 
@@ -50,6 +54,7 @@ impl Block {
             samples,
             disconnected: 0,
             lost_cause: super::LinkLoss::Disconnected,
+            retunes: Vec::new(),
             home: None,
         }
     }
@@ -174,6 +179,8 @@ fn run(
     let mut rate_check: Option<RateCheck> = None;
     // Samples lost to a disconnection and not yet announced by a delivered block.
     let mut disconnected = 0u64;
+    // Retunes not yet carried by a delivered block (one dropped while behind keeps them).
+    let mut retunes: Vec<super::tuning::Step> = Vec::new();
     let mut skipped = 0u64;
     if opts.skip_samples > 0 {
         let mut scratch = vec![Complex32::default(); opts.block_len.max(1)];
@@ -198,6 +205,10 @@ fn run(
         samples.resize(want, Complex32::default());
         let n = src.read(&mut samples)?;
         samples.truncate(n);
+        retunes.extend(src.take_retunes().into_iter().map(|mut r| {
+            r.start = r.start.saturating_sub(skipped);
+            r
+        }));
         let lost = src.take_lost();
         index += lost;
         disconnected += lost;
@@ -234,14 +245,16 @@ fn run(
             samples,
             disconnected,
             lost_cause: src.lost_cause(),
+            retunes: std::mem::take(&mut retunes),
             home: Some(home.clone()),
         };
         index += n as u64;
         stats.samples.fetch_add(n as u64, Ordering::Relaxed);
         match tx.try_send(block) {
             Ok(()) => disconnected = 0,
-            Err(TrySendError::Full(b)) if opts.drop_when_full && !recording => {
+            Err(TrySendError::Full(mut b)) if opts.drop_when_full && !recording => {
                 stats.dropped.fetch_add(b.samples.len() as u64, Ordering::Relaxed);
+                retunes = std::mem::take(&mut b.retunes);
             }
             Err(TrySendError::Full(b)) => {
                 // File input, or a pipe that delivers faster than real time (a recording, not

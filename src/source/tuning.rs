@@ -4,6 +4,18 @@
 //! It travels with the samples in [`SourceInfo::tuning`](super::SourceInfo): a SigMF recording's
 //! captures at different `core:frequency` make one (the captures *are* the dwells), and a raw
 //! stream with `--hop-plan FILE` makes a periodic one (the plan repeats until the input ends).
+//!
+//! A stream that says where it is tuned while it runs (VITA 49 context packets) cannot have its
+//! timeline fixed before the run: its retunes travel with the samples instead, as [`Step`]s on
+//! the blocks the reader delivers ([`SampleSource::take_retunes`]), each before the first sample
+//! it applies to. What must be fixed before the first sample is the panorama's grid (every
+//! consumer is sized from it), so such a stream needs `--hop-plan`: the plan's centres make the
+//! grid and its dwell times the expected observation and revisit times, while the stream's own
+//! retunes say when each dwell begins ([`Tuning::follows_stream`]). Learning the grid from the
+//! first sweep instead would leave every sample before the first repeated centre unmeasured or
+//! held, and a receiver that never repeats a centre (a one-off scan) without any grid at all;
+//! a plan is one line per centre, and a stream that visits a centre not in it ends the input
+//! with an error naming the centre.
 //! Each dwell's first [`Tuning::settle_samples`] are skipped (a receiver's synthesiser and AGC
 //! settle after a retune), and only [`Tuning::usable`] of each step's rate is kept (the outer
 //! bins lie in the receiver's anti-alias filter roll-off).
@@ -39,6 +51,18 @@ pub struct Tuning {
     pub settle_samples: u64,
     /// Share of each step's span kept, 0 < usable ≤ 1 (`--usable`).
     pub usable: f64,
+    /// The stream itself says when it retunes (VITA 49 with `--hop-plan`): `steps` and `period`
+    /// are the plan (the grid's centres, the expected dwells), and the dwells measured come from
+    /// the stream's retunes ([`Tuning::following`]).
+    pub follows_stream: bool,
+}
+
+/// What a source that reports its own retunes says about them (see the module doc).
+#[derive(Clone, Copy, Debug, Default, PartialEq)]
+pub struct StreamRetunes {
+    /// The band each step passes, when the stream says (a VITA 49 context's bandwidth field):
+    /// the usable share of the span unless `--usable` is given.
+    pub bandwidth_hz: Option<f64>,
 }
 
 /// One stay at one centre.
@@ -63,7 +87,44 @@ impl Tuning {
             return None;
         }
         let steps = segments.iter().map(|&(start, center_hz)| Step { start, center_hz }).collect();
-        Some(Tuning { steps, period: None, settle_samples: 0, usable: DEFAULT_USABLE })
+        Some(Tuning {
+            steps,
+            period: None,
+            settle_samples: 0,
+            usable: DEFAULT_USABLE,
+            follows_stream: false,
+        })
+    }
+
+    /// The timeline of a stream that reports its own retunes, begun at `center_hz`: one open
+    /// dwell, to which [`Tuning::retune`] adds the stream's retunes as they arrive.
+    pub fn following(&self, center_hz: f64) -> Tuning {
+        Tuning { steps: vec![Step { start: 0, center_hz }], period: None, ..self.clone() }
+    }
+
+    /// Adds a retune of a followed stream. One that takes effect before the last known retune
+    /// (a context packet stamped earlier than one already seen) replaces those after it.
+    pub fn retune(&mut self, step: Step) {
+        let keep = self.steps.partition_point(|s| s.start < step.start).max(1);
+        if step.start == 0 {
+            self.steps[0].center_hz = step.center_hz;
+            self.steps.truncate(1);
+            return;
+        }
+        self.steps.truncate(keep);
+        if self.steps.last().map(|s| s.center_hz) != Some(step.center_hz) {
+            self.steps.push(step);
+        }
+    }
+
+    /// Forgets the dwells of a followed stream that end before sample `at`, so a long run
+    /// keeps a few steps, not one per retune (their `visit` numbers then start again at 0:
+    /// dwells are told apart by their `start`).
+    pub fn forget_before(&mut self, at: u64) {
+        let k = self.steps.partition_point(|s| s.start <= at).saturating_sub(1);
+        if self.follows_stream && k > 0 {
+            self.steps.drain(..k);
+        }
     }
 
     /// The distinct centres visited, lowest first.
@@ -163,7 +224,13 @@ pub fn parse_hop_plan(text: &str, name: &str, rate_hz: f64) -> Result<Tuning> {
             steps.len()
         );
     }
-    Ok(Tuning { steps, period: Some(at), settle_samples: 0, usable: DEFAULT_USABLE })
+    Ok(Tuning {
+        steps,
+        period: Some(at),
+        settle_samples: 0,
+        usable: DEFAULT_USABLE,
+        follows_stream: false,
+    })
 }
 
 /// Applies the request's `--hop-plan`, `--settle` and `--usable` to an opened source; refuses
@@ -183,7 +250,11 @@ pub fn apply(src: Box<dyn SampleSource>, req: &InputRequest) -> Result<Box<dyn S
         let shown = super::sanitize(path);
         let text = std::fs::read_to_string(path)
             .with_context(|| format!("cannot read the hop plan '{shown}'"))?;
-        info.tuning = Some(parse_hop_plan(&text, &shown, info.sample_rate_hz)?);
+        let mut plan = parse_hop_plan(&text, &shown, info.sample_rate_hz)?;
+        if let Some(stream) = src.retunes() {
+            follow_stream(&mut plan, &stream, &info, &shown)?;
+        }
+        info.tuning = Some(plan);
     }
     let Some(t) = info.tuning.as_mut() else {
         bail!(
@@ -197,8 +268,42 @@ pub fn apply(src: Box<dyn SampleSource>, req: &InputRequest) -> Result<Box<dyn S
     if let Some(u) = req.usable {
         t.usable = u;
     }
+    if t.follows_stream {
+        // Only a retune the stream reports ends a dwell: the plan's dwell times are the
+        // expected ones, not checked against the settling time here.
+        return Ok(Box::new(Retuned { inner: src, info }));
+    }
     t.check_settle(info.sample_rate_hz)?;
     Ok(Box::new(Retuned { inner: src, info }))
+}
+
+/// Makes `plan` the grid of a stream that reports its own retunes (module doc): its first
+/// centre must be one of the plan's, and the stream's bandwidth, when it gives one, is the
+/// usable share of each step.
+fn follow_stream(
+    plan: &mut Tuning,
+    stream: &StreamRetunes,
+    info: &SourceInfo,
+    shown: &str,
+) -> Result<()> {
+    plan.follows_stream = true;
+    if !plan.centres().iter().any(|&c| same_centre(c, info.center_hz)) {
+        bail!(
+            "'{}' starts at {}, which the hop plan '{shown}' does not list; add it (the plan's centres make the panorama)",
+            super::sanitize(&info.label),
+            format_hz(info.center_hz)
+        );
+    }
+    if let Some(b) = stream.bandwidth_hz.filter(|b| *b > 0.0) {
+        plan.usable = (b / info.sample_rate_hz).min(1.0);
+    }
+    Ok(())
+}
+
+/// True when two centre frequencies are one tuning: within 0.5 Hz (a VITA 49 context's radix-20
+/// field resolves about 1 µHz, so this is a guard against arithmetic noise only).
+pub fn same_centre(a: f64, b: f64) -> bool {
+    (a - b).abs() <= 0.5
 }
 
 /// A source whose description carries a tuning given on the command line.
@@ -234,6 +339,14 @@ impl SampleSource for Retuned {
 
     fn watch_stop(&mut self, stop: Arc<AtomicBool>) {
         self.inner.watch_stop(stop)
+    }
+
+    fn retunes(&self) -> Option<StreamRetunes> {
+        self.inner.retunes()
+    }
+
+    fn take_retunes(&mut self) -> Vec<Step> {
+        self.inner.take_retunes()
     }
 }
 
@@ -275,6 +388,23 @@ mod tests {
         assert!(e.contains("at least two steps"), "{e}");
         let e = parse_hop_plan("433M 0.1us\n434M 1ms\n", "p", 1e6).unwrap_err().to_string();
         assert!(e.contains("line 1") && e.contains("no sample"), "{e}");
+    }
+
+    #[test]
+    fn a_followed_stream_learns_its_dwells_as_it_retunes() {
+        let plan = parse_hop_plan("433M 1ms\n434M 1ms\n", "p", 1e6).unwrap();
+        let mut t = Tuning { follows_stream: true, ..plan }.following(433e6);
+        assert_eq!(t.dwell_at(5_000).end, None, "one open dwell until the stream retunes");
+        t.retune(Step { start: 700, center_hz: 434e6 });
+        t.retune(Step { start: 1900, center_hz: 433e6 });
+        let d = t.dwell_at(1000);
+        assert_eq!((d.center_hz, d.start, d.end), (434e6, 700, Some(1900)));
+        // A retune stamped before one already known replaces it.
+        t.retune(Step { start: 1500, center_hz: 433e6 });
+        assert_eq!(t.dwell_at(1600).start, 1500);
+        t.forget_before(1600);
+        assert_eq!(t.steps, vec![Step { start: 1500, center_hz: 433e6 }]);
+        assert_eq!(t.dwell_at(9_000).start, 1500);
     }
 
     #[test]

@@ -180,7 +180,13 @@ mod tests {
         let steps = (0..4)
             .map(|k| Step { start: 50_000 * k as u64, center_hz: 446e6 + 0.8e6 * k as f64 })
             .collect();
-        let t = Tuning { steps, period: Some(200_000), settle_samples: 2_000, usable: 0.8 };
+        let t = Tuning {
+            steps,
+            period: Some(200_000),
+            settle_samples: 2_000,
+            usable: 0.8,
+            follows_stream: false,
+        };
         let grid = Grid::new(&t, 1e6, 1000).unwrap();
         SweepView::new(t, grid, (1e6, 1000), None)
     }

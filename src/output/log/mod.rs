@@ -215,6 +215,7 @@ mod tests {
                 time_source: "none".into(),
                 calibration: Some("file wrenhollow-cal.toml".into()),
                 level_offset_db: Some(-21.5),
+                panorama: None,
             }),
             Record::Channel(ChannelRecord {
                 channel: "north-gate".into(),

@@ -5,14 +5,14 @@ use crate::measure::calibration::Calibration;
 use crate::measure::occupancy::{
     Event, IntervalSummary, FLOOR_MEMORY_S, FLOOR_SMOOTHING_S, OBW_PERCENT,
 };
-use crate::measure::panorama::{view_times, ViewTimes};
+use crate::measure::panorama::{view_times, Grid, ViewTimes};
 use crate::output::class_fields::ClassFields;
 use crate::output::levels::round_to;
 use crate::output::log::alarms::AlarmLog;
 use crate::output::log::rotation::Rotation;
 use crate::output::log::{
-    CaptureRecord, ChannelRecord, DroppedRecord, EmissionRecord, IntervalRecord, LogWriter, Record,
-    Stamped, StartRecord, StopRecord,
+    CaptureRecord, ChannelRecord, DroppedRecord, EmissionRecord, IntervalRecord, LogWriter,
+    PanoramaSetup, Record, Stamped, StartRecord, StopRecord,
 };
 use crate::pipeline::clock::rfc3339_ms;
 use crate::pipeline::occupancy::OccupancySetup;
@@ -20,6 +20,7 @@ use crate::pipeline::stitch::grid_of;
 use crate::pipeline::{Consumer, GapCause, Letter, RunEnd, RunInfo};
 use crate::plan::Plan;
 use crate::source::reader::Block;
+use crate::source::tuning::Tuning;
 use crate::units::db;
 use std::io::{self, Write};
 use time::OffsetDateTime;
@@ -248,6 +249,11 @@ impl<W: Write> OccupancyLog<W> {
 
     fn start_record(&self, run: &RunInfo) -> StartRecord {
         let s = &self.setup;
+        let src = &run.source;
+        let panorama = match (&src.tuning, grid_of(src, s.engine.fft_size)) {
+            (Some(t), Ok(Some(grid))) => Some(panorama_setup(t, &grid, src.sample_rate_hz)),
+            _ => None,
+        };
         StartRecord {
             version: env!("CARGO_PKG_VERSION").to_string(),
             site: self.site.clone(),
@@ -274,6 +280,7 @@ impl<W: Write> OccupancyLog<W> {
                 .calibration
                 .as_ref()
                 .map(|c| round_to(c.offset_db(run.source.center_hz), 3)),
+            panorama,
         }
     }
 
@@ -317,6 +324,32 @@ impl<W: Write> OccupancyLog<W> {
             }
             Event::Opened(_) => None,
         }
+    }
+}
+
+/// The start record's account of a panorama run (see [`PanoramaSetup`]).
+fn panorama_setup(t: &Tuning, grid: &Grid, rate_hz: f64) -> PanoramaSetup {
+    let (lo, hi) = grid.span_hz();
+    let ends = t.steps.iter().skip(1).map(|s| Some(s.start)).chain([t.period]);
+    let dwell_s = t
+        .steps
+        .iter()
+        .zip(ends)
+        .filter_map(|(s, end)| end.map(|e| round_to((e - s.start) as f64 / rate_hz, 9)))
+        .collect();
+    let timeline = match (t.follows_stream, t.period) {
+        (true, _) => "stream",
+        (false, Some(_)) => "hop_plan",
+        (false, None) => "captures",
+    };
+    PanoramaSetup {
+        span_low_hz: round_to(lo, 2),
+        span_high_hz: round_to(hi, 2),
+        step_centers_hz: grid.centres(),
+        dwell_s,
+        settle_s: round_to(t.settle_samples as f64 / rate_hz, 9),
+        usable: t.usable,
+        timeline: timeline.to_string(),
     }
 }
 

@@ -68,6 +68,28 @@ pub struct StartRecord {
     /// With a calibration: its offset at `center_hz`, dB (dBm = dBFS + this).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub level_offset_db: Option<f64>,
+    /// Of a retuned input, the sweep stitched into a panorama (`center_hz` is then the first
+    /// step's centre, where the receiver began).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub panorama: Option<PanoramaSetup>,
+}
+
+/// What a panorama run swept: its span, steps and their timing.
+#[derive(Serialize, Debug, Clone, PartialEq)]
+pub struct PanoramaSetup {
+    /// Outer edges of the stitched span.
+    pub span_low_hz: f64,
+    pub span_high_hz: f64,
+    /// The distinct centres visited, lowest first.
+    pub step_centers_hz: Vec<f64>,
+    /// Each step's dwell in the order visited (the plan's, or the recording's captures); for
+    /// a stream that reports its retunes, the plan's expected dwells.
+    pub dwell_s: Vec<f64>,
+    pub settle_s: f64,
+    /// Share of each step's span stitched in.
+    pub usable: f64,
+    /// Where the dwells come from: `hop_plan`, `captures` or `stream` (VITA 49 retunes).
+    pub timeline: String,
 }
 
 /// One per channel of the plan, after the start record.

@@ -151,6 +151,9 @@ impl Collected {
             (Some(_), TimeSource::Recording) => "time from the recording (SigMF core:datetime)",
             (Some(_), _) => "time from the wall clock",
         };
+        if let Some(lines) = self.panorama_footer(time) {
+            return lines;
+        }
         vec![
             format!(
                 "source {} · centre {} · span {} · RBW {} · FFT {} · {} window · {} % overlap",
@@ -171,6 +174,44 @@ impl Collected {
             ),
             format!("levels: largest bin per pixel column · {time}"),
         ]
+    }
+
+    /// The footer of a panorama: each row is a sweep, so the step's FFT, the grid's bins, the
+    /// span and the frames a sweep gives (computed from the tuning) are named, not the grid size
+    /// as an FFT; `None` for an input at one centre.
+    fn panorama_footer(&self, time: &str) -> Option<Vec<String>> {
+        let src = &self.info.source;
+        let t = src.tuning.as_ref()?;
+        let e = &self.info.engine;
+        let grid = crate::pipeline::stitch::grid_of(src, e.fft_size).ok()??;
+        let g = &self.held.geometry;
+        let (lo, hi) = grid.span_hz();
+        let steps = grid.centres().len();
+        let frames = crate::measure::panorama::frames_per_sweep(t, &grid, e.fft_size, e.hop());
+        let expected = if t.follows_stream { " (the hop plan's dwells)" } else { "" };
+        Some(vec![
+            format!(
+                "source {} · panorama {} .. {} (span {}) · {steps} steps · FFT {} a step at {} · {} grid bins of {} · RBW {} · {} window · {} % overlap",
+                crate::messages::sanitize(&src.label),
+                format_hz(lo),
+                format_hz(hi),
+                format_hz(hi - lo),
+                e.fft_size,
+                format_hz(src.sample_rate_hz),
+                grid.bins,
+                format_hz(grid.bin_hz),
+                format_hz(g.rbw_hz),
+                g.window,
+                format_num((e.overlap * 100.0).round()),
+            ),
+            format!(
+                "each spectrum is one sweep of {steps} dwells: {frames} FFT frame{} a sweep at its least seen bin{expected}; {} sweeps in all, {} per stored row, averaged in power into pixel rows",
+                if frames == 1 { "" } else { "s" },
+                self.held.input_rows,
+                self.held.rows_per_stored,
+            ),
+            format!("levels: largest bin per pixel column · {time}"),
+        ])
     }
 }
 

@@ -24,6 +24,9 @@ pub struct RunSum {
     /// The `reason` of its stop record; `None` when it has none (cut off, or still running).
     pub stop: Option<String>,
     pub drops: Vec<DropSpan>,
+    /// Of a run over a retuned receiver, what it swept (from its start record's `panorama`),
+    /// in words: its channels were in view only part of the time.
+    pub sweep: Option<String>,
 }
 
 /// Input dropped inside a run (a `dropped` record).
@@ -76,6 +79,8 @@ pub struct RunView {
     pub to: Option<f64>,
     pub length_s: f64,
     pub stop: Option<String>,
+    /// What the run swept, when it was a panorama ([`RunSum::sweep`]).
+    pub sweep: Option<String>,
 }
 
 /// A site's observation time over the period.
@@ -148,6 +153,7 @@ pub fn site_coverage(summary: &LogSummary, site: &str) -> SiteCoverage {
                     to: Some(b),
                     length_s: b - a,
                     stop: r.stop.clone(),
+                    sweep: r.sweep.clone(),
                 });
                 let o = r.origin.unwrap_or(0.0);
                 for d in &r.drops {
@@ -169,6 +175,7 @@ pub fn site_coverage(summary: &LogSummary, site: &str) -> SiteCoverage {
                     to: None,
                     length_s: r.length_s(),
                     stop: r.stop.clone(),
+                    sweep: r.sweep.clone(),
                 });
             }
             None => {}

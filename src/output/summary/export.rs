@@ -154,7 +154,7 @@ pub fn to_json(summary: &LogSummary) -> Value {
             let runs: Vec<Value> = c
                 .runs
                 .iter()
-                .map(|r| json!({"start": at(r.from), "end": at(r.to), "length_s": secs(r.length_s), "stop": r.stop}))
+                .map(|r| json!({"start": at(r.from), "end": at(r.to), "length_s": secs(r.length_s), "stop": r.stop, "sweep": r.sweep}))
                 .collect();
             let gaps: Vec<Value> = c
                 .gaps

@@ -33,6 +33,7 @@ pub mod table;
 pub mod zone;
 
 use crate::measure::change::baseline::BaselineFile;
+use crate::output::picture::snapshot::format_duration;
 use coverage::{DropSpan, RunSum};
 use serde_json::Value;
 use site::SiteRules;
@@ -367,6 +368,7 @@ impl LogSummary {
         run.origin = run.origin.or(st.origin);
         run.reach(num(v, "t_start_s"), v["t_end_s"].as_f64());
         match kind {
+            "start" => run.sweep = run.sweep.take().or_else(|| sweep_words(&v["panorama"])),
             "stop" => run.stop = v["reason"].as_str().map(str::to_string),
             "dropped" => run.drops.push(DropSpan {
                 t_start_s: num(v, "t_start_s"),
@@ -615,6 +617,20 @@ impl LogSummary {
             (0..=last).collect()
         }
     }
+}
+
+/// A start record's `panorama` in words ("a sweep of 445.5995 .. 448.7995 MHz in 4 steps of
+/// 50 ms"); `None` for a run at one centre.
+fn sweep_words(p: &Value) -> Option<String> {
+    let lo = p["span_low_hz"].as_f64()?;
+    let hi = p["span_high_hz"].as_f64()?;
+    let steps = p["step_centers_hz"].as_array().map_or(0, Vec::len);
+    let dwells: Vec<f64> = p["dwell_s"].as_array()?.iter().filter_map(Value::as_f64).collect();
+    let dwell = match dwells.first() {
+        Some(&d) if dwells.iter().all(|&x| x == d) => format!(" of {}", format_duration(d)),
+        _ => String::new(),
+    };
+    Some(format!("a sweep of {:.4} .. {:.4} MHz in {steps} steps{dwell}", lo / 1e6, hi / 1e6))
 }
 
 #[cfg(test)]

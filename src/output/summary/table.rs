@@ -87,9 +87,10 @@ fn coverage_text(out: &mut String, summary: &LogSummary, c: &SiteCoverage) {
             (Some(a), Some(b)) => format!("{} to {}", zone.format(a), zone.format(b)),
             _ => "time unknown".to_string(),
         };
+        let sweep = r.sweep.as_deref().map(|w| format!("; {w}")).unwrap_or_default();
         let _ = writeln!(
             out,
-            "    {when}  {:>12}  {}",
+            "    {when}  {:>12}  {}{sweep}",
             format_duration(r.length_s),
             stop_words(r.stop.as_deref())
         );

@@ -19,8 +19,18 @@
 //! the run takes its dBm calibration unless `--calibration` or `--ref-offset` is given (see
 //! `measure::calibration::from_stream`); the gain (bit 23) is only named in the start note.
 //!
-//! **Context changes.** A context packet that changes the sample rate, the RF reference
-//! frequency (or offset) or the payload format after samples have begun means the samples that
+//! **Retunes.** With `--hop-plan FILE` the stream may move its centre (RF reference frequency
+//! or offset) between the plan's centres: each move is a retune handed to the reader
+//! ([`SampleSource::take_retunes`]) with the index of the first sample it applies to, and the
+//! run stitches the dwells into one panorama (see [`super::tuning`] for why the plan gives the
+//! grid). That index is the context packet's own time stamp when it has a fractional one
+//! (placed on the time line as a data packet's would be), else the end of the data placed so
+//! far: a sender that sends the context before the first packet at the new centre, as the
+//! standard expects, is then exact. The context's bandwidth field, when present, gives the
+//! usable band of every step (unless `--usable`).
+//!
+//! **Other context changes.** A context packet that changes the sample rate or the payload
+//! format after samples have begun (or the centre, without `--hop-plan`) means the samples that
 //! follow are of another band or must be decoded otherwise; one run measures one tuning, so the
 //! source delivers every sample it holds from before the change, then ends the input with an
 //! error naming the change and the sample where it happened (the run stops as `input_error`,
@@ -61,6 +71,8 @@ pub const REORDER_WINDOW: usize = 32;
 const HOLD_LIMIT: Duration = Duration::from_millis(200);
 /// How often a blocked receive looks at the stop flag.
 const TICK: Duration = Duration::from_millis(100);
+/// Delivered packets' sample buffers kept for reuse (more than the reorder window holds).
+const SPARE_PACKETS: usize = 2 * REORDER_WINDOW;
 /// Largest UDP datagram.
 const MAX_DATAGRAM: usize = 65_536;
 /// The UDP receive buffer asked for: about 0.8 s of 20 MS/s of 16-bit complex samples, so a
@@ -124,26 +136,36 @@ pub fn datatype_of(f: &PayloadFormat) -> Result<SampleFormat, String> {
 }
 
 /// How `new` differs from `old` in what the samples mean (rate, centre, format), in words;
-/// `None` when it does not. Frequencies within 0.5 Hz are the same (the 64-bit radix-20 fields
-/// resolve about 1 µHz, so this is no rounding, only a guard against arithmetic noise).
-fn change_between(old: &packet::Context, new: &packet::Context) -> Option<String> {
-    let moved = |a: Option<f64>, b: Option<f64>| match (a, b) {
-        (Some(a), Some(b)) if (a - b).abs() > 0.5 => Some((a, b)),
-        _ => None,
-    };
+/// `None` when it does not. The centre is left out when `retunes` (a retune is then no change
+/// of meaning: see [`moved_centre`]).
+fn change_between(old: &packet::Context, new: &packet::Context, retunes: bool) -> Option<String> {
     if let Some((a, b)) = moved(old.sample_rate_hz, new.sample_rate_hz) {
         return Some(format!("its sample rate from {a} to {b} S/s"));
     }
-    let centre = |c: &packet::Context| c.rf_reference_hz.map(|f| f + c.rf_offset_hz.unwrap_or(0.0));
-    let new_centre =
-        new.rf_reference_hz.map(|f| f + new.rf_offset_hz.or(old.rf_offset_hz).unwrap_or(0.0));
-    if let Some((a, b)) = moved(centre(old), new_centre) {
+    if let Some((a, b)) = moved_centre(old, new).filter(|_| !retunes) {
         return Some(format!("its centre from {a} to {b} Hz"));
     }
     match (&old.payload_format, &new.payload_format) {
         (Some(a), Some(b)) if a != b => Some("its payload format".to_string()),
         _ => None,
     }
+}
+
+/// Two frequencies when they differ by more than 0.5 Hz (the 64-bit radix-20 fields resolve
+/// about 1 µHz, so this is no rounding, only a guard against arithmetic noise).
+fn moved(a: Option<f64>, b: Option<f64>) -> Option<(f64, f64)> {
+    match (a, b) {
+        (Some(a), Some(b)) if !super::tuning::same_centre(a, b) => Some((a, b)),
+        _ => None,
+    }
+}
+
+/// The centre (RF reference plus offset) before and after, when `new` moves it.
+fn moved_centre(old: &packet::Context, new: &packet::Context) -> Option<(f64, f64)> {
+    let centre = |c: &packet::Context| c.rf_reference_hz.map(|f| f + c.rf_offset_hz.unwrap_or(0.0));
+    let new_centre =
+        new.rf_reference_hz.map(|f| f + new.rf_offset_hz.or(old.rf_offset_hz).unwrap_or(0.0));
+    moved(centre(old), new_centre)
 }
 
 /// A data packet waiting for its turn.
@@ -177,6 +199,13 @@ pub struct Vita49Source {
     /// A change of tuning mid-stream (module doc): why the input ends once what came before it
     /// is delivered.
     changed: Option<String>,
+    /// Retunes are followed, not an end (`--hop-plan` given): what the stream says of them.
+    follow: Option<super::tuning::StreamRetunes>,
+    /// Sample buffers of packets already delivered, for the next packets (no allocation per
+    /// packet once the stream runs).
+    spare: Vec<Vec<Complex32>>,
+    /// Retunes found and not yet taken by the reader.
+    retuned: Vec<super::tuning::Step>,
     /// Counts for the notes.
     pub counts: Counts,
 }
@@ -226,6 +255,9 @@ pub fn open(addr: SocketAddr, req: &InputRequest, notes: &mut Vec<String>) -> Re
         },
         seen: None,
         changed: None,
+        follow: req.hop_plan.is_some().then(super::tuning::StreamRetunes::default),
+        retuned: Vec::new(),
+        spare: Vec::new(),
         counts: Counts::default(),
     };
     src.await_context(notes)?;
@@ -392,6 +424,9 @@ impl Vita49Source {
         }
         t.reference_level_dbm = c.reference_level_dbm.or(t.reference_level_dbm);
         t.gain_db = c.gain_db.or(t.gain_db);
+        if let Some(f) = self.follow.as_mut() {
+            f.bandwidth_hz = c.bandwidth_hz.or(f.bandwidth_hz);
+        }
         self.remember(c);
         let _ = notes;
         Ok(())
@@ -406,16 +441,38 @@ impl Vita49Source {
         seen.payload_format = c.payload_format.or(seen.payload_format);
     }
 
-    /// A context after the start: a change of rate, centre or format ends the input once what
-    /// came before it is delivered (module doc).
-    fn later_context(&mut self, c: &packet::Context) {
+    /// A context after the start: a retune is handed on when followed; any other change of
+    /// rate, centre or format ends the input once what came before it is delivered (module doc).
+    fn later_context(&mut self, h: &Header, c: &packet::Context) {
+        let Some(seen) = self.seen.as_ref() else { return self.remember(c) };
         if self.changed.is_none() {
-            if let Some(what) = self.seen.as_ref().and_then(|seen| change_between(seen, c)) {
+            let follow = self.follow.is_some();
+            if let Some(what) = change_between(seen, c, follow) {
                 self.counts.retunes += 1;
                 self.changed = Some(what);
+            } else if let Some((_, to)) = moved_centre(seen, c).filter(|_| follow) {
+                self.counts.retunes += 1;
+                let start = self.stamped_index(h).unwrap_or_else(|| self.end_of_placed());
+                self.retuned.push(super::tuning::Step { start, center_hz: to });
             }
         }
         self.remember(c);
+    }
+
+    /// Where a packet's time stamp lies on the time line when it has a fractional one (module
+    /// doc), without moving the packet count; `None` without one, or before the first packet.
+    fn stamped_index(&self, h: &Header) -> Option<u64> {
+        let (int0, frac0) = self.origin?;
+        let rate = self.info.sample_rate_hz;
+        let seconds = i64::from(h.integer_ts.unwrap_or(0)) - i64::from(int0);
+        let frac = h.fractional_ts.unwrap_or(0) as i64 - frac0 as i64;
+        let index = match (h.tsf, h.tsi) {
+            (Tsf::SampleCount, Tsi::None) | (Tsf::FreeRunning, _) => frac,
+            (Tsf::SampleCount, _) => (seconds as f64 * rate).round() as i64 + frac,
+            (Tsf::RealTime, _) => ((seconds as f64 + frac as f64 * 1e-12) * rate).round() as i64,
+            (Tsf::None, _) => return None,
+        };
+        u64::try_from(index).ok()
     }
 
     /// Where a data packet's first sample lies on the time line (module doc), or `None` for a
@@ -424,7 +481,7 @@ impl Vita49Source {
         let rate = self.info.sample_rate_hz;
         let int = h.integer_ts.unwrap_or(0);
         let frac = h.fractional_ts.unwrap_or(0);
-        let Some((int0, frac0)) = self.origin else {
+        let Some((int0, _)) = self.origin else {
             self.origin = Some((int, frac));
             if h.tsi == Tsi::Utc {
                 let t = OffsetDateTime::from_unix_timestamp(i64::from(int)).ok();
@@ -441,13 +498,9 @@ impl Vita49Source {
         };
         let seconds = i64::from(int) - i64::from(int0);
         let index = match (h.tsf, h.tsi) {
-            (Tsf::SampleCount, Tsi::None) | (Tsf::FreeRunning, _) => frac as i64 - frac0 as i64,
-            (Tsf::SampleCount, _) => {
-                (seconds as f64 * rate).round() as i64 + frac as i64 - frac0 as i64
-            }
-            (Tsf::RealTime, _) => {
-                let ps = frac as i64 - frac0 as i64;
-                ((seconds as f64 + ps as f64 * 1e-12) * rate).round() as i64
+            (Tsf::SampleCount | Tsf::FreeRunning | Tsf::RealTime, _) => {
+                self.last_count = Some((h.count, samples));
+                return self.stamped_index(h);
             }
             (Tsf::None, Tsi::None) => {
                 // Packet count only: the packets missed since the last one placed.
@@ -478,7 +531,9 @@ impl Vita49Source {
         if whole == 0 {
             return;
         }
-        let mut samples = vec![Complex32::default(); whole];
+        let mut samples = self.spare.pop().unwrap_or_default();
+        samples.clear();
+        samples.resize(whole, Complex32::default());
         let screened = self.format.decode(&payload[..whole * bps], &mut samples);
         self.issues.non_finite += screened.non_finite;
         self.issues.beyond_scale += screened.beyond_scale;
@@ -511,7 +566,10 @@ impl Vita49Source {
         let Some(held) = self.held.remove(&at) else { return false };
         self.lost += at.saturating_sub(self.next);
         self.next = at;
-        self.current = held.samples;
+        let done = std::mem::replace(&mut self.current, held.samples);
+        if self.spare.len() < SPARE_PACKETS {
+            self.spare.push(done);
+        }
         self.offset = 0;
         true
     }
@@ -546,17 +604,23 @@ impl SampleSource for Vita49Source {
                 }
                 if let Some(what) = &self.changed {
                     bail!(
-                        "{}: the stream's context changed {what} at sample {} ({:.3} s in); one run measures one tuning, so the input ends here (every sample before the change was measured); start again for the new tuning",
+                        "{}: the stream's context changed {what} at sample {} ({:.3} s in); one run measures one tuning, so the input ends here (every sample before the change was measured); start again for the new tuning{}",
                         self.info.label,
                         self.next,
-                        self.next as f64 / self.info.sample_rate_hz
+                        self.next as f64 / self.info.sample_rate_hz,
+                        if self.follow.is_none() && what.starts_with("its centre") {
+                            ", or give --hop-plan FILE listing the centres it visits to stitch them into one panorama"
+                        } else {
+                            ""
+                        }
                     );
                 }
                 return Ok(0);
             }
             let Some(n) = self.receive()? else { continue };
-            let bytes = self.datagram[..n].to_vec();
-            match packet::parse(&bytes) {
+            // Parsed in place: the datagram buffer is lent out, not copied, per packet.
+            let bytes = std::mem::take(&mut self.datagram);
+            match packet::parse(&bytes[..n]) {
                 Err(e) => self.malformed(&e.0, &mut notes),
                 Ok(Packet::Data { header, payload }) => {
                     // After a change of tuning, samples are of another band: not taken.
@@ -566,11 +630,12 @@ impl SampleSource for Vita49Source {
                 }
                 Ok(Packet::Context { header, context }) => {
                     if self.take_stream(&header, &mut notes) {
-                        self.later_context(&context);
+                        self.later_context(&header, &context);
                     }
                 }
                 Ok(Packet::Other { .. }) => {}
             }
+            self.datagram = bytes;
         }
     }
 
@@ -588,5 +653,13 @@ impl SampleSource for Vita49Source {
 
     fn watch_stop(&mut self, stop: Arc<AtomicBool>) {
         self.stop = Some(stop);
+    }
+
+    fn retunes(&self) -> Option<super::tuning::StreamRetunes> {
+        self.follow
+    }
+
+    fn take_retunes(&mut self) -> Vec<super::tuning::Step> {
+        std::mem::take(&mut self.retuned)
     }
 }
