@@ -121,6 +121,32 @@ pub fn import_and_compare(db: &str, logs: &[PathBuf], access: &[&str]) {
             assert_eq!(a[key], b[key], "{options:?}: {key}");
         }
     }
+    // The heat maps, noise-floor lines beside the channels included, byte for byte.
+    let dir = logs[0].parent().unwrap();
+    for (i, options) in cases[..3].iter().enumerate() {
+        let png = |name: &str| dir.join(format!("{name}-{i}.png")).display().to_string();
+        let (from_logs, from_db) = (png("logs"), png("db"));
+        let paths: Vec<String> = logs.iter().map(|p| p.display().to_string()).collect();
+        let mut files: Vec<&str> = vec!["report", "--png", &from_logs];
+        files.extend_from_slice(options);
+        files.extend(paths.iter().map(String::as_str));
+        run(&files);
+        let mut stored: Vec<&str> = vec!["report", "--db", db, "--png", &from_db];
+        stored.extend_from_slice(access);
+        stored.extend_from_slice(options);
+        run(&stored);
+        // Pixel for pixel but the footer line, which says where the numbers came from.
+        let (a, b) = (pixels(&from_logs), pixels(&from_db));
+        assert_eq!((a.0, a.1), (b.0, b.1), "{options:?}: sizes");
+        let above_footer = (a.1 - FOOTER_PX) * a.2;
+        let first = (0..above_footer).find(|&i| a.3[i] != b.3[i]);
+        assert!(
+            first.is_none(),
+            "{options:?}: the heat maps differ at row {:?}",
+            first.map(|i| i / a.2)
+        );
+        assert_ne!(a.3, b.3, "the footers name the logs and the database");
+    }
 }
 
 /// Copies within and across batches, and a second writer: `url` (named `db` with `access` for
@@ -195,4 +221,17 @@ pub fn copies_in_batches(url: &bandwarden::store::DbUrl, db: &str, access: &[&st
     assert_eq!(count(&mut d, "SELECT COUNT(*) FROM interval_hours"), hours);
     let (files, stored) = both(db, access, &[log], &["--csv"]);
     assert_eq!(files, stored);
+}
+
+/// The rows of the heat map's footer (one line of small text at the bottom).
+const FOOTER_PX: usize = 32;
+
+/// A PNG's width, height, bytes a row and pixels.
+fn pixels(path: &str) -> (usize, usize, usize, Vec<u8>) {
+    let decoder = png::Decoder::new(std::fs::File::open(path).unwrap());
+    let mut reader = decoder.read_info().unwrap();
+    let mut buf = vec![0; reader.output_buffer_size()];
+    let info = reader.next_frame(&mut buf).unwrap();
+    buf.truncate(info.buffer_size());
+    (info.width as usize, info.height as usize, info.line_size, buf)
 }
