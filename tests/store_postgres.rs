@@ -189,4 +189,18 @@ fn postgres_stores_once_and_reports_as_the_logs() {
     let logs = reports::network_logs(&dir);
     let pwflag = pw.display().to_string();
     reports::import_and_compare(&server.url("network"), &logs, &["--db-password-file", &pwflag]);
+
+    // Copies in and across batches (COPY then INSERT … ON CONFLICT DO NOTHING), in a database
+    // of their own.
+    let mut admin = open(&url).unwrap();
+    admin.batch("CREATE DATABASE batches").unwrap();
+    drop(admin);
+    let batches = DbUrl::parse(&server.url("batches"), Some(PASSWORD.into())).unwrap();
+    let dir = scratch("batches");
+    reports::copies_in_batches(
+        &batches,
+        &server.url("batches"),
+        &["--db-password-file", &pwflag],
+        &dir,
+    );
 }

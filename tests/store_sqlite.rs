@@ -159,6 +159,14 @@ fn report_from_the_database_equals_report_from_the_logs() {
 }
 
 #[test]
+fn copies_in_and_across_batches_and_from_a_second_writer_are_stored_once() {
+    let dir = scratch("batches");
+    let db = dir.join("net.db");
+    let url = format!("sqlite:{}", db.display());
+    reports::copies_in_batches(&DbUrl::Sqlite(db), &url, &[], &dir);
+}
+
+#[test]
 fn bad_database_flags_are_refused() {
     let dir = scratch("bad");
     let fail = |args: &[&str], says: &str| {

@@ -44,7 +44,8 @@ pub fn run(cfg: ReportConfig) -> Result<ExitCode> {
                 }
             }
             let mut db = crate::store::open(url)?;
-            crate::store::read::summarise(db.as_mut(), cfg.settings.clone(), &url.shown())?
+            let floors = cfg.png.is_some();
+            crate::store::read::summarise(db.as_mut(), cfg.settings.clone(), &url.shown(), floors)?
         }
         None => read_logs(&cfg.logs, cfg.settings.clone(), cfg.save_baseline.is_some())?,
     };

@@ -19,6 +19,7 @@
 pub mod pg;
 pub mod read;
 pub mod schema;
+pub mod seen;
 pub mod sqlite;
 pub mod write;
 
@@ -182,6 +183,29 @@ impl Dialect {
         }
     }
 
+    /// The statement that opens a writer's transaction. SQLite's takes the write lock at once,
+    /// so the record ids the writer hands out (after the largest stored) are nobody else's;
+    /// PostgreSQL's come from the table's sequence ([`Dialect::record_ids`]).
+    pub fn begin(self) -> &'static str {
+        match self {
+            Dialect::Sqlite => "BEGIN IMMEDIATE",
+            Dialect::Postgres => "BEGIN",
+        }
+    }
+
+    /// A query of new record ids: `?1` of them from PostgreSQL's sequence (never handed out
+    /// twice, whatever other writers do); from SQLite, the largest stored (the writer counts on
+    /// from it inside the transaction that holds the write lock).
+    pub fn record_ids(self) -> &'static str {
+        match self {
+            Dialect::Sqlite => "SELECT COALESCE(MAX(id), 0) FROM records",
+            Dialect::Postgres => {
+                "SELECT nextval(pg_get_serial_sequence('records', 'id')) \
+                 FROM generate_series(1, CAST(?1 AS INTEGER))"
+            }
+        }
+    }
+
     /// The smaller and the larger of two values.
     pub fn least(self) -> &'static str {
         match self {
@@ -198,9 +222,84 @@ impl Dialect {
     }
 }
 
+/// Rows for one table, inserted in one go at the end of a batch ([`Backend::insert`]).
+#[derive(Clone, Debug, Default)]
+pub struct Rows {
+    pub table: &'static str,
+    /// The columns, as the statement names them: `"a, b, c"`.
+    pub columns: &'static str,
+    /// The values, row after row ([`Rows::width`] to a row).
+    pub values: Vec<Val>,
+}
+
+impl Rows {
+    pub fn new(table: &'static str, columns: &'static str) -> Rows {
+        Rows { table, columns, values: Vec::new() }
+    }
+
+    /// Values to a row.
+    pub fn width(&self) -> usize {
+        self.columns.split(',').count()
+    }
+
+    /// Where `name` is among the columns.
+    pub fn column(&self, name: &str) -> Option<usize> {
+        self.columns.split(',').position(|c| c.trim() == name)
+    }
+
+    /// Adds a row (as many values as columns).
+    pub fn push(&mut self, row: impl IntoIterator<Item = Val>) {
+        let before = self.values.len();
+        self.values.extend(row);
+        debug_assert_eq!(self.values.len() - before, self.width(), "{}", self.table);
+    }
+
+    pub fn len(&self) -> usize {
+        self.values.len() / self.width()
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.values.is_empty()
+    }
+
+    /// Keeps the rows for which `keep` (given a row) says so.
+    pub fn retain(&mut self, mut keep: impl FnMut(&[Val]) -> bool) {
+        let old = std::mem::take(&mut self.values);
+        for row in old.chunks(self.width()) {
+            if keep(row) {
+                self.values.extend_from_slice(row);
+            }
+        }
+    }
+
+    /// The statement inserting one row of these, with `?1`… placeholders, skipping a row that
+    /// conflicts with a unique key.
+    pub fn insert_one(&self) -> String {
+        let marks: Vec<String> = (1..=self.width()).map(|i| format!("?{i}")).collect();
+        format!(
+            "INSERT INTO {} ({}) VALUES ({}) ON CONFLICT DO NOTHING",
+            self.table,
+            self.columns,
+            marks.join(", ")
+        )
+    }
+}
+
 /// What a back end does: run statements. Statements are written with `?1`, `?2`… placeholders.
 pub trait Backend: Send {
     fn dialect(&self) -> Dialect;
+    /// Inserts `rows`, skipping those that conflict with a unique key; returns the rows
+    /// inserted. One statement a row here (SQLite runs in this process,
+    /// so a statement costs no round trip); a server's back end sends them in bulk.
+    fn insert(&mut self, rows: &Rows) -> Result<u64> {
+        let sql = rows.insert_one();
+        let n = rows.width();
+        let mut inserted = 0;
+        for row in rows.values.chunks(n) {
+            inserted += self.exec(&sql, row)?;
+        }
+        Ok(inserted)
+    }
     /// Runs statements without parameters (schema, BEGIN, COMMIT).
     fn batch(&mut self, sql: &str) -> Result<()>;
     /// Runs one statement; returns the rows it changed.

@@ -8,6 +8,7 @@
 
 use super::{Backend, Dialect, Val};
 use crate::output::summary::coverage::RunSum;
+use crate::output::summary::floor::{FloorSeries, MAX_BUCKETS};
 use crate::output::summary::{ChannelSum, HourKey, LogSummary, Settings, Tally};
 use anyhow::{Context, Result};
 use serde_json::Value;
@@ -56,8 +57,14 @@ struct Chan {
     name: String,
 }
 
-/// Sums the database as `report` sums logs.
-pub fn summarise(db: &mut dyn Backend, settings: Settings, shown: &str) -> Result<LogSummary> {
+/// Sums the database as `report` sums logs; `floors`: also each channel's noise floor over
+/// time, for the picture ([`floor_series`]: one more pass over the intervals).
+pub fn summarise(
+    db: &mut dyn Backend,
+    settings: Settings,
+    shown: &str,
+    floors: bool,
+) -> Result<LogSummary> {
     let mut s = LogSummary::new(settings.clone());
     s.database = Some(shown.to_string());
     runs_and_records(db, &mut s, &settings)?;
@@ -85,7 +92,7 @@ pub fn summarise(db: &mut dyn Backend, settings: Settings, shown: &str) -> Resul
     };
     let counted = interval_sums(db, &mut s, &settings, &chans, &only)?;
     for id in counted {
-        channel_ends(db, &mut s, &settings, id, &chans[&id])?;
+        channel_ends(db, &mut s, &settings, id, &chans[&id], floors)?;
     }
     if settings.from.is_some() || settings.to.is_some() {
         let rows =
@@ -274,18 +281,25 @@ fn interval_sums(
     Ok(counted)
 }
 
+/// [`interval_window`] for the channel `id`, which is `?1`.
+fn channel_window(settings: &Settings, id: i64) -> (String, Vec<Val>) {
+    let (w, mut params) = interval_window(settings, 2);
+    params.insert(0, Val::Int(id));
+    (w, params)
+}
+
 /// A channel's noise floor (count per value, first and last in time) and its frequency and width
-/// (from its last interval).
+/// (from its last interval); `floors`: also its floor over time ([`floor_series`]).
 fn channel_ends(
     db: &mut dyn Backend,
     s: &mut LogSummary,
     settings: &Settings,
     id: i64,
     c: &Chan,
+    floors: bool,
 ) -> Result<()> {
     let Some(site) = settings.sites.map(&c.site) else { return Ok(()) };
-    let (w, mut params) = interval_window(settings, 2);
-    params.insert(0, Val::Int(id));
+    let (w, params) = channel_window(settings, id);
     let counts = db.rows(
         &format!(
             "SELECT noise, COUNT(*) FROM intervals WHERE channel_id = ?1 AND noise IS NOT NULL{w} \
@@ -317,5 +331,46 @@ fn channel_ends(
         ch.center_hz = r[2].f64().or(ch.center_hz);
         ch.width_hz = r[3].f64().or(ch.width_hz);
     }
+    if floors {
+        ch.noise.series = floor_series(db, &w, &params)?;
+    }
     Ok(())
+}
+
+/// A channel's noise floor over time, the buckets of [`FloorSeries`] summed in the database:
+/// the same buckets as the logs give (the mean of each may differ in its last bit, as sums
+/// added in another order do: a point moves by a pixel only if it lies on a pixel's edge).
+///
+/// The logs' width is the narrowest power of two (from 1 s) that holds the floors in
+/// [`MAX_BUCKETS`] buckets. The span from the first floor to the last bounds it from above;
+/// the floors are summed at an eighth of that bound, and at 1/64 of the width tried as long as
+/// that width holds them in no more buckets than allowed (a smaller one might too), down to 1 s.
+/// (`w`, `params`: the channel's window, [`channel_window`].)
+fn floor_series(db: &mut dyn Backend, w: &str, params: &[Val]) -> Result<FloorSeries> {
+    let filter = format!("FROM intervals WHERE channel_id = ?1 AND noise IS NOT NULL{w}");
+    let span = db.rows(&format!("SELECT MIN(t_key), MAX(t_key) {filter}"), params)?;
+    let (Some(t0), Some(t1)) = (span[0][0].f64(), span[0][1].f64()) else {
+        return Ok(FloorSeries::default());
+    };
+    let mut bound = 1.0_f64;
+    while (t1 / bound).floor() - (t0 / bound).floor() + 1.0 > MAX_BUCKETS as f64 {
+        bound *= 2.0;
+    }
+    let mut width = (bound / 8.0).max(1.0);
+    let d = db.dialect();
+    Ok(loop {
+        // A power of two written in full: the division by it is exact, as in the logs' reading.
+        let bucket = d.floor(&format!("t_key / {width:?}"));
+        let rows = db.rows(
+            &format!("SELECT {bucket} AS b, SUM(noise), COUNT(*) {filter} GROUP BY b"),
+            params,
+        )?;
+        let held = rows.len() <= MAX_BUCKETS;
+        let sums = rows.iter().filter_map(|r| Some((r[0].i64()?, r[1].f64()?, r[2].i64()? as u64)));
+        let series = FloorSeries::from_buckets(width, sums);
+        if !held || width <= 1.0 {
+            break series;
+        }
+        width = (width / 64.0).max(1.0);
+    })
 }

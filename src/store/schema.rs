@@ -18,12 +18,12 @@
 //! `interval_hours` (version 2) holds the same sums per (channel, clock, hour): what `report`
 //! reads for every whole hour, 60 times fewer rows than the intervals at one a minute. The
 //! writer recomputes the hours a transaction touched from their intervals before it commits
-//! ([`refresh_hour`]), so an hour is always the sum of its rows, however late or often they came.
+//! ([`refresh_hours`]), so an hour is always the sum of its rows, however late or often they came.
 //!
 //! `schema_version` holds the version; [`migrate`] creates a new database, brings a version 1
 //! database up (its hours summed once), and refuses one written by a newer bandwarden.
 
-use super::Backend;
+use super::{Backend, Dialect};
 use anyhow::{bail, Result};
 
 /// The columns an interval and an hour of intervals have alike: what `report` adds up.
@@ -74,8 +74,42 @@ fn sum_hours(filter: &str) -> String {
     )
 }
 
-/// Sums one hour of one channel again from its intervals (none left: no row).
-pub fn refresh_hour(db: &mut dyn Backend, (channel, clock, hour): (i64, i64, i64)) -> Result<()> {
+/// Sums the given hours (channel, clock, hour) again from their intervals (an hour with none
+/// left: no row): the hours a batch touched, after its rows. SQLite runs in this process, so
+/// one hour at a time with two prepared statements costs no round trip, and measured about half
+/// the time of the statements written for many hours at once (parsed each time, the hours'
+/// rows grouped through a temporary tree); a server gets a few hundred hours a statement.
+pub fn refresh_hours(db: &mut dyn Backend, keys: &[(i64, i64, i64)]) -> Result<()> {
+    if db.dialect() == Dialect::Sqlite {
+        for &key in keys {
+            refresh_hour(db, key)?;
+        }
+        return Ok(());
+    }
+    for chunk in keys.chunks(400) {
+        // The keys are the writer's own integers, written into the statement as literals.
+        let values: Vec<String> =
+            chunk.iter().map(|(c, k, h)| format!("({c}, {k}, {h})")).collect();
+        let with =
+            format!("WITH t (channel_id, clock, hour_key) AS (VALUES {})", values.join(", "));
+        // Both statements in one go (one round trip to a server), not kept prepared: each is
+        // written once.
+        db.batch(&format!(
+            "{with} DELETE FROM interval_hours WHERE (channel_id, clock, hour_key) IN \
+             (SELECT channel_id, clock, hour_key FROM t); \
+             {with} INSERT INTO interval_hours (channel_id, clock, hour_key, n, n_valid, \
+             samples, occupied, measured_s, lost_s, dropped, power_w, power_n, peak_dbfs, \
+             first_t, last_t) SELECT i.channel_id, i.clock, i.hour_key, {HOUR_SUMS} \
+             FROM t JOIN intervals i ON i.channel_id = t.channel_id AND i.clock = t.clock \
+             AND i.hour_key = t.hour_key GROUP BY i.channel_id, i.clock, i.hour_key"
+        ))?;
+    }
+    Ok(())
+}
+
+/// Sums one hour of one channel again from its intervals (none left: no row), with statements
+/// kept prepared: the hour's intervals are read in key order, grouped without sorting.
+fn refresh_hour(db: &mut dyn Backend, (channel, clock, hour): (i64, i64, i64)) -> Result<()> {
     let key = [channel.into(), clock.into(), hour.into()];
     let filter = " WHERE channel_id = ?1 AND clock = ?2 AND hour_key = ?3";
     db.exec(&format!("DELETE FROM interval_hours{filter}"), &key)?;

@@ -1,21 +1,30 @@
 //! Records into the database, each once, in batched transactions.
 //!
-//! A record is written into the open transaction at once (so [`Writer::take`] knows whether it
-//! was new or a copy) and the transaction is committed every [`Batch::records`] records or
-//! [`Batch::age`] after its first, whichever comes first, and at the end ([`Writer::commit`]).
+//! [`Writer::take`] knows at once whether a record is new or a copy: it keeps per run what was
+//! stored ([`RunSeen`], read from the database the first time the run is met), so a copy costs
+//! the database nothing. A new record gets its id from the writer ([`Dialect::record_ids`]) and
+//! its rows wait in memory ([`Rows`]); they go in together when the transaction is committed,
+//! every [`Batch::records`] records or [`Batch::age`] after its first, whichever comes first,
+//! and at the end ([`Writer::commit`]): one statement a row on SQLite (in this process, no round
+//! trip), one `COPY` a table on PostgreSQL (one round trip a table instead of two a record).
 //! The collector acknowledges a message to the broker only after the commit that holds it.
+//!
+//! The database still holds each (run, `seq`) once by itself (`ON CONFLICT DO NOTHING`, and a
+//! record's other rows only if the record went in): a second writer that stored a record since
+//! this one read its run makes this one's copy a no-op, counted as a duplicate at the commit.
 //!
 //! The interval columns depend on the run's `start` record (its clock and sample rate): an
 //! interval that arrives before its run's `start` (a resent start record) is stored with what
 //! is known, and the run's intervals are worked out again when the start record comes.
 
-use super::{Backend, Val};
+use super::seen::RunSeen;
+use super::{Backend, Dialect, Rows, Val};
 use crate::output::summary::input::read_records_with_lines;
 use crate::output::summary::site::site_of_file;
 use crate::output::summary::zone::epoch_of;
 use anyhow::{Context, Result};
 use serde_json::Value;
-use std::collections::{BTreeSet, HashMap};
+use std::collections::{BTreeSet, HashMap, HashSet};
 use std::io::BufRead;
 use std::time::{Duration, Instant};
 
@@ -61,6 +70,50 @@ struct RunState {
     t_min: f64,
     t_max: f64,
     dirty: bool,
+    /// The `seq`s of the run stored (or waiting in the open transaction).
+    seen: RunSeen,
+}
+
+const RECORDS: &str = "id, run_id, seq, kind, t_start_s, t_end_s, t_epoch, line";
+const INTERVALS: &str = "channel_id, clock, hour_key, t_key, record_id, t_epoch, span_s, valid, \
+     samples, occupied, measured_s, lost_s, dropped, power_w, power_n, peak_dbfs, noise, \
+     center_hz, width_hz";
+const EMISSIONS: &str = "record_id, channel_id, t_epoch, end_epoch, duration_s, peak_dbfs, \
+     mean_dbfs, obw_hz, class, designator";
+const ALARMS: &str = "record_id, channel, kind, what, t_epoch, statistic, threshold, baseline, \
+     present, unit, method";
+const CAPTURES: &str = "record_id, channel, status, file, t_epoch, iq_samples, bytes, truncated";
+
+/// The rows of the open transaction not yet sent, per table (records first: the others name
+/// them).
+struct Pending {
+    records: Rows,
+    intervals: Rows,
+    emissions: Rows,
+    alarms: Rows,
+    captures: Rows,
+}
+
+impl Pending {
+    fn new() -> Pending {
+        Pending {
+            records: Rows::new("records", RECORDS),
+            intervals: Rows::new("intervals", INTERVALS),
+            emissions: Rows::new("emissions", EMISSIONS),
+            alarms: Rows::new("alarms", ALARMS),
+            captures: Rows::new("captures", CAPTURES),
+        }
+    }
+
+    fn tables(&mut self) -> [&mut Rows; 5] {
+        [
+            &mut self.records,
+            &mut self.intervals,
+            &mut self.emissions,
+            &mut self.alarms,
+            &mut self.captures,
+        ]
+    }
 }
 
 /// The writer of one database.
@@ -75,6 +128,11 @@ pub struct Writer {
     since: Option<Instant>,
     /// The (channel, clock, hour) keys whose intervals changed in the open transaction.
     touched: BTreeSet<(i64, i64, i64)>,
+    pending: Pending,
+    /// Record ids to hand out, the next last (PostgreSQL: reserved from its sequence).
+    ids: Vec<i64>,
+    /// SQLite: the next record id in the open transaction.
+    next_id: Option<i64>,
     pub stored: u64,
     pub duplicates: u64,
     pub not_records: u64,
@@ -101,6 +159,9 @@ impl Writer {
             open: 0,
             since: None,
             touched: BTreeSet::new(),
+            pending: Pending::new(),
+            ids: Vec::new(),
+            next_id: None,
             stored: 0,
             duplicates: 0,
             not_records: 0,
@@ -114,6 +175,7 @@ impl Writer {
 
     /// The records of `site` stored so far, run by run in `seq` order.
     pub fn known(&mut self, site: &str) -> Result<Vec<Known>> {
+        self.flush()?;
         let rows = self.db.rows(
             "SELECT u.run, r.seq, r.kind, CASE WHEN r.kind = 'start' THEN r.line END \
              FROM records r JOIN runs u ON u.id = r.run_id JOIN sites s ON s.id = u.site_id \
@@ -148,37 +210,34 @@ impl Writer {
             self.not_records += 1;
             return Ok(Stored::NotARecord);
         };
-        if self.open == 0 {
-            self.db.batch("BEGIN")?;
-            self.since = Some(Instant::now());
-        }
-        self.open += 1;
         let site_id = self.site(site)?;
         let run_key = (site_id, run.to_string());
-        let (run_id, origin) = {
+        let (run_id, origin, new) = {
             let r = self.run(site_id, run)?;
-            (r.id, r.origin)
+            (r.id, r.origin, r.seen.take(seq))
         };
+        if !new {
+            self.duplicates += 1;
+            return Ok(Stored::Duplicate);
+        }
+        if self.open == 0 {
+            self.begin()?;
+        }
+        self.open += 1;
+        let id = self.record_id()?;
         let t_start = num(&v, "t_start_s");
         let t_end = v["t_end_s"].as_f64().unwrap_or(t_start);
         let t_epoch = when(&v, "start", "t_start_s", origin);
-        let id = self.db.rows(
-            "INSERT INTO records (run_id, seq, kind, t_start_s, t_end_s, t_epoch, line) \
-             VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7) ON CONFLICT DO NOTHING RETURNING id",
-            &[
-                run_id.into(),
-                (seq as i64).into(),
-                kind.into(),
-                t_start.into(),
-                t_end.into(),
-                t_epoch.into(),
-                line.into(),
-            ],
-        )?;
-        let Some(id) = id.first().and_then(|r| r[0].i64()) else {
-            self.duplicates += 1;
-            return Ok(Stored::Duplicate);
-        };
+        self.pending.records.push([
+            id.into(),
+            run_id.into(),
+            (seq as i64).into(),
+            kind.into(),
+            t_start.into(),
+            t_end.into(),
+            t_epoch.into(),
+            line.into(),
+        ]);
         self.stored += 1;
         let r = self.runs.get_mut(&run_key).expect("loaded above");
         r.t_min = r.t_min.min(t_start);
@@ -219,11 +278,83 @@ impl Writer {
         Ok(())
     }
 
+    /// Opens the transaction of a batch.
+    fn begin(&mut self) -> Result<()> {
+        let d = self.db.dialect();
+        self.db.batch(d.begin())?;
+        self.since = Some(Instant::now());
+        if d == Dialect::Sqlite {
+            let max = self.db.rows(d.record_ids(), &[])?;
+            self.next_id = Some(max[0][0].i64().unwrap_or(0) + 1);
+        }
+        Ok(())
+    }
+
+    /// A new record's id.
+    fn record_id(&mut self) -> Result<i64> {
+        if let Some(id) = self.next_id.as_mut() {
+            *id += 1;
+            return Ok(*id - 1);
+        }
+        if self.ids.is_empty() {
+            let n = self.batch.records.clamp(100, 10_000) as i64;
+            let rows = self.db.rows(self.db.dialect().record_ids(), &[n.into()])?;
+            self.ids = rows.iter().rev().filter_map(|r| r[0].i64()).collect();
+        }
+        self.ids.pop().context("the database gave no record id")
+    }
+
+    /// Sends the rows waiting in memory (inside the open transaction), records first. A record
+    /// the database already held (stored by another writer since this one read its run) is not
+    /// stored again, nor its other rows: counted as a copy here.
+    fn flush(&mut self) -> Result<()> {
+        let [records, mut others @ ..] = self.pending.tables();
+        let sent = records.len() as u64;
+        let inserted = match sent {
+            0 => 0,
+            _ => self.db.insert(records).context("cannot store the records")?,
+        };
+        if inserted < sent {
+            // The ids are this writer's alone (its transaction's or reserved from the sequence):
+            // those of them found in the table are the records that went in.
+            let ours: HashSet<i64> =
+                records.values.chunks(records.width()).filter_map(|r| r[0].i64()).collect();
+            let lo = ours.iter().min().copied().unwrap_or(0);
+            let hi = ours.iter().max().copied().unwrap_or(0);
+            let mut skipped = ours.clone();
+            self.db.each(
+                "SELECT id FROM records WHERE id >= ?1 AND id <= ?2",
+                &[lo.into(), hi.into()],
+                &mut |r| {
+                    if let Some(id) = r[0].i64() {
+                        skipped.remove(&id);
+                    }
+                    Ok(())
+                },
+            )?;
+            for rows in others.iter_mut() {
+                let at = rows.column("record_id").expect("rows of a record");
+                rows.retain(|r| r[at].i64().is_some_and(|id| !skipped.contains(&id)));
+            }
+            self.stored -= sent - inserted;
+            self.duplicates += sent - inserted;
+        }
+        records.values.clear();
+        for rows in others {
+            if !rows.is_empty() {
+                self.db.insert(rows).with_context(|| format!("cannot store the {}", rows.table))?;
+                rows.values.clear();
+            }
+        }
+        Ok(())
+    }
+
     /// Commits what was taken.
     pub fn commit(&mut self) -> Result<()> {
         if self.open == 0 {
             return Ok(());
         }
+        self.flush()?;
         let d = self.db.dialect();
         let sql = format!(
             "UPDATE runs SET t_min = {least}(COALESCE(t_min, ?1), ?1), \
@@ -235,12 +366,12 @@ impl Writer {
             self.db.exec(&sql, &[r.t_min.into(), r.t_max.into(), r.id.into()])?;
             r.dirty = false;
         }
-        for key in std::mem::take(&mut self.touched) {
-            super::schema::refresh_hour(self.db.as_mut(), key)?;
-        }
+        let touched: Vec<_> = std::mem::take(&mut self.touched).into_iter().collect();
+        super::schema::refresh_hours(self.db.as_mut(), &touched)?;
         self.db.batch("COMMIT").context("cannot commit to the database")?;
         self.open = 0;
         self.since = None;
+        self.next_id = None;
         Ok(())
     }
 
@@ -271,16 +402,29 @@ impl Writer {
                 &p,
             )?;
             let r = &row[0];
+            let id = r[0].i64().context("a run without an id")?;
+            let mut seen = RunSeen::default();
+            self.db.each(
+                "SELECT seq FROM records WHERE run_id = ?1 ORDER BY seq",
+                &[id.into()],
+                &mut |s| {
+                    if let Some(seq) = s[0].i64().and_then(|s| u64::try_from(s).ok()) {
+                        seen.take(seq);
+                    }
+                    Ok(())
+                },
+            )?;
             self.runs.insert(
                 key.clone(),
                 RunState {
-                    id: r[0].i64().context("a run without an id")?,
+                    id,
                     origin: r[1].f64(),
                     rate_hz: r[2].f64().unwrap_or(0.0),
                     has_start: r[3].i64() == Some(1),
                     t_min: r[4].f64().unwrap_or(f64::INFINITY),
                     t_max: r[5].f64().unwrap_or(f64::NEG_INFINITY),
                     dirty: false,
+                    seen,
                 },
             );
         }
@@ -332,6 +476,7 @@ impl Writer {
         origin: Option<f64>,
         rate: f64,
     ) -> Result<()> {
+        self.flush()?;
         let rows = self.db.rows(
             "SELECT r.id, r.line, i.channel_id, i.clock, i.hour_key FROM records r \
              JOIN intervals i ON i.record_id = r.id WHERE r.run_id = ?1 AND r.kind = 'interval'",
@@ -371,33 +516,27 @@ impl Writer {
         let channel_id = self.channel(site_id, name)?;
         let c = IntervalCols::of(v, origin, rate);
         self.touched.insert((channel_id, i64::from(c.t_epoch.is_some()), c.hour_key));
-        self.db.exec(
-            "INSERT INTO intervals (channel_id, clock, hour_key, t_key, record_id, t_epoch, span_s, \
-             valid, samples, occupied, measured_s, lost_s, dropped, power_w, power_n, peak_dbfs, \
-             noise, center_hz, width_hz) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, \
-             ?12, ?13, ?14, ?15, ?16, ?17, ?18, ?19)",
-            &[
-                channel_id.into(),
-                i64::from(c.t_epoch.is_some()).into(),
-                c.hour_key.into(),
-                c.t_key.into(),
-                id.into(),
-                c.t_epoch.into(),
-                c.span_s.into(),
-                i64::from(c.valid).into(),
-                (c.samples as i64).into(),
-                c.occupied.into(),
-                c.measured_s.into(),
-                c.lost_s.into(),
-                (c.dropped as i64).into(),
-                c.power_w.into(),
-                (c.power_n as i64).into(),
-                c.peak_dbfs.into(),
-                c.noise.into(),
-                v["center_hz"].as_f64().into(),
-                v["width_hz"].as_f64().into(),
-            ],
-        )?;
+        self.pending.intervals.push([
+            channel_id.into(),
+            i64::from(c.t_epoch.is_some()).into(),
+            c.hour_key.into(),
+            c.t_key.into(),
+            id.into(),
+            c.t_epoch.into(),
+            c.span_s.into(),
+            i64::from(c.valid).into(),
+            (c.samples as i64).into(),
+            c.occupied.into(),
+            c.measured_s.into(),
+            c.lost_s.into(),
+            (c.dropped as i64).into(),
+            c.power_w.into(),
+            (c.power_n as i64).into(),
+            c.peak_dbfs.into(),
+            c.noise.into(),
+            v["center_hz"].as_f64().into(),
+            v["width_hz"].as_f64().into(),
+        ]);
         Ok(())
     }
 
@@ -405,64 +544,52 @@ impl Writer {
         let Some(name) = v["channel"].as_str() else { return Ok(()) };
         let channel_id = self.channel(site_id, name)?;
         let end = v["end"].as_str().and_then(epoch_of);
-        self.db.exec(
-            "INSERT INTO emissions (record_id, channel_id, t_epoch, end_epoch, duration_s, peak_dbfs, \
-             mean_dbfs, obw_hz, class, designator) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10)",
-            &[
-                id.into(),
-                channel_id.into(),
-                t_epoch.into(),
-                end.into(),
-                v["duration_s"].as_f64().into(),
-                v["peak_dbfs"].as_f64().into(),
-                v["mean_dbfs"].as_f64().into(),
-                v["obw_hz"].as_f64().into(),
-                v["class"].as_str().into(),
-                v["designator"].as_str().into(),
-            ],
-        )?;
+        self.pending.emissions.push([
+            id.into(),
+            channel_id.into(),
+            t_epoch.into(),
+            end.into(),
+            v["duration_s"].as_f64().into(),
+            v["peak_dbfs"].as_f64().into(),
+            v["mean_dbfs"].as_f64().into(),
+            v["obw_hz"].as_f64().into(),
+            v["class"].as_str().into(),
+            v["designator"].as_str().into(),
+        ]);
         Ok(())
     }
 
     fn alarm(&mut self, id: i64, kind: &str, v: &Value, t_epoch: Option<f64>) -> Result<()> {
         let f = |k: &str| Val::from(v[k].as_f64());
         let s = |k: &str| Val::from(v[k].as_str());
-        self.db.exec(
-            "INSERT INTO alarms (record_id, channel, kind, what, t_epoch, statistic, threshold, \
-             baseline, present, unit, method) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11)",
-            &[
-                id.into(),
-                s("channel"),
-                kind.into(),
-                s("what"),
-                t_epoch.into(),
-                f("statistic"),
-                f("threshold"),
-                f("baseline"),
-                f("present"),
-                s("unit"),
-                s("method"),
-            ],
-        )?;
+        self.pending.alarms.push([
+            id.into(),
+            s("channel"),
+            kind.into(),
+            s("what"),
+            t_epoch.into(),
+            f("statistic"),
+            f("threshold"),
+            f("baseline"),
+            f("present"),
+            s("unit"),
+            s("method"),
+        ]);
         Ok(())
     }
 
     fn capture(&mut self, id: i64, v: &Value, t_epoch: Option<f64>) -> Result<()> {
         let n = |k: &str| v[k].as_u64().map_or(Val::Null, |x| Val::Int(x as i64));
-        self.db.exec(
-            "INSERT INTO captures (record_id, channel, status, file, t_epoch, iq_samples, bytes, \
-             truncated) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8)",
-            &[
-                id.into(),
-                v["channel"].as_str().into(),
-                v["status"].as_str().into(),
-                v["file"].as_str().into(),
-                t_epoch.into(),
-                n("iq_samples"),
-                n("bytes"),
-                v["truncated"].as_bool().map_or(Val::Null, |b| Val::Int(b.into())),
-            ],
-        )?;
+        self.pending.captures.push([
+            id.into(),
+            v["channel"].as_str().into(),
+            v["status"].as_str().into(),
+            v["file"].as_str().into(),
+            t_epoch.into(),
+            n("iq_samples"),
+            n("bytes"),
+            v["truncated"].as_bool().map_or(Val::Null, |b| Val::Int(b.into())),
+        ]);
         Ok(())
     }
 }

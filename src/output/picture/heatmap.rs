@@ -219,9 +219,12 @@ fn draw_on<DB: DrawingBackend>(
     draw_floors(&spark_area, g)?;
     draw_legend(root, &bar_area, map)?;
     let note = format!(
-        "channel occupancy = occupied / measured samples (ITU-R SM.1880), % · grey: not measured · hatched, *: under {:.0} % of the cell measured · {} file(s){}",
+        "channel occupancy = occupied / measured samples (ITU-R SM.1880), % · grey: not measured · hatched, *: under {:.0} % of the cell measured · {}{}",
         THIN_SHARE * 100.0,
-        summary.files,
+        match summary.database {
+            Some(_) => "from the database".to_string(),
+            None => format!("{} file(s)", summary.files),
+        },
         match (summary.first, summary.last) {
             (Some(a), Some(b)) => format!(" · {} to {} {}", zone.format(a), zone.format(b), zone.label()),
             _ => String::new(),

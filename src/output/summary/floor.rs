@@ -47,6 +47,29 @@ impl FloorSeries {
         }
     }
 
+    /// The series whose buckets, `width_s` wide (a power of two, at least 1 s), hold these
+    /// (bucket index, Σ floor dB, intervals): widened as the pushes of those intervals would
+    /// have widened it, so a database that sums the buckets ([`crate::store::read`]) gives the
+    /// buckets of the logs, provided no narrower width would have held them all
+    /// ([`FloorSeries::bucket_s`] above `width_s`, or `width_s` is 1 s).
+    pub fn from_buckets(width_s: f64, buckets: impl IntoIterator<Item = (i64, f64, u64)>) -> Self {
+        let mut s = FloorSeries { bucket_s: width_s, buckets: BTreeMap::new() };
+        for (k, sum, n) in buckets {
+            let e = s.buckets.entry(k).or_default();
+            e.0 += sum;
+            e.1 += n;
+        }
+        while s.buckets.len() > MAX_BUCKETS {
+            s.widen();
+        }
+        s
+    }
+
+    /// Width of a bucket, seconds.
+    pub fn bucket_s(&self) -> f64 {
+        self.bucket_s
+    }
+
     /// (middle of the bucket, mean floor dB) in time order.
     pub fn points(&self) -> Vec<(f64, f64)> {
         self.buckets
@@ -108,6 +131,27 @@ mod tests {
         }
         assert_eq!(p.iter().find(|q| q.0 == 1800.0).map(|q| q.1), Some(-167.0));
         assert_eq!(runs(&p).len(), 1);
+    }
+
+    #[test]
+    fn buckets_summed_elsewhere_widen_as_the_pushes_do() {
+        // Two days of one-minute floors with a gap of a day between them: pushed one by one,
+        // and summed per 64 s bucket (as a database groups them), the same buckets come out.
+        // The floors are quarters of a dB, so every sum is exact whatever the order of adding.
+        let mut pushed = FloorSeries::default();
+        let mut fine: BTreeMap<i64, (f64, u64)> = BTreeMap::new();
+        let times = (0..1440).chain(2880..4320).map(|m| 1_796_335_200.0 + 60.0 * m as f64);
+        for (i, t) in times.enumerate() {
+            let v = -170.0 + (i % 7) as f64 * 0.25;
+            pushed.push(t, v);
+            let e = fine.entry((t / 64.0).floor() as i64).or_default();
+            e.0 += v;
+            e.1 += 1;
+        }
+        let summed = FloorSeries::from_buckets(64.0, fine.iter().map(|(k, (s, n))| (*k, *s, *n)));
+        assert!(summed.bucket_s() > 64.0, "wider than the buckets summed");
+        assert_eq!(summed.bucket_s(), pushed.bucket_s());
+        assert_eq!(summed.points(), pushed.points());
     }
 
     #[test]
