@@ -83,4 +83,11 @@ fn each_single_emitter_scene_is_named_the_class_it_was_built_as() {
     assert!((am["mod_depth"].as_f64().unwrap() - 0.8).abs() < 0.15, "{am}");
     let pulses = &census("pulse-train.ci8", 500e3)["emitters"][0]["class_params"];
     assert!((pulses["pri_s"].as_f64().unwrap() - 2e-3).abs() < 2e-5, "{pulses}");
+    // Written rounded as every output writes them (0.01 Hz, depth 1e-4), not as raw float
+    // averages of the emitter's votes.
+    for (p, key, dp) in [(fsk, "shift_hz", 2), (msk, "symbol_rate_hz", 2), (am, "mod_depth", 4)] {
+        let v = p[key].as_f64().unwrap();
+        let scale = 10f64.powi(dp);
+        assert_eq!((v * scale).round() / scale, v, "{key} {v} not rounded to {dp} places");
+    }
 }

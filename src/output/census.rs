@@ -466,7 +466,10 @@ pub fn add_kinds(v: &mut serde_json::Value, kinds: &[EmitterKind]) {
         let Some(obj) = e.as_object_mut() else { continue };
         obj.insert("class".into(), k.class.as_str().into());
         obj.insert("class_confidence".into(), round(k.confidence, 3).into());
-        obj.insert("class_params".into(), serde_json::to_value(&k.params).unwrap_or_default());
+        obj.insert(
+            "class_params".into(),
+            serde_json::to_value(super::class_fields::rounded(&k.params)).unwrap_or_default(),
+        );
         obj.insert("designator".into(), k.designator.clone().into());
     }
 }

@@ -27,8 +27,8 @@ impl ClassFields {
     }
 }
 
-/// `p` rounded as the module doc says.
-fn rounded(p: &ClassParams) -> ClassParams {
+/// `p` rounded as the module doc says (also for the census's voted parameters).
+pub fn rounded(p: &ClassParams) -> ClassParams {
     let r = |v: Option<f64>, dp: i32| v.map(|x| crate::units::round_dp(x, dp));
     ClassParams {
         symbol_rate_hz: r(p.symbol_rate_hz, 2),
