@@ -229,6 +229,8 @@ fn log_follows_a_channel_across_the_panorama() {
     assert_eq!(pano["settle_s"].as_f64(), Some(0.002), "{start}");
     assert_eq!(pano["usable"].as_f64(), Some(0.8), "{start}");
     assert_eq!(pano["timeline"], "hop_plan", "{start}");
+    // Where the receiver began: the plan's first centre (the raw stream gave no --center).
+    assert_eq!(start["center_hz"].as_f64(), Some(CENTRES[0]), "{start}");
     // `report` says the run was a sweep, and of what.
     let log = dir.file("sweep.jsonl");
     std::fs::write(&log, &out.stdout).unwrap();

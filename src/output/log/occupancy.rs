@@ -254,12 +254,18 @@ impl<W: Write> OccupancyLog<W> {
             (Some(t), Ok(Some(grid))) => Some(panorama_setup(t, &grid, src.sample_rate_hz)),
             _ => None,
         };
+        // A sweep's start record names where the receiver began: the first step's centre (a raw
+        // stream's own `--center` means nothing once a hop plan gives absolute centres).
+        let center_hz = match (&panorama, src.tuning.as_ref().and_then(|t| t.steps.first())) {
+            (Some(_), Some(first)) => first.center_hz,
+            _ => src.center_hz,
+        };
         StartRecord {
             version: env!("CARGO_PKG_VERSION").to_string(),
             site: self.site.clone(),
             source: run.source.label.clone(),
             sample_rate_hz: s.sample_rate_hz,
-            center_hz: run.source.center_hz,
+            center_hz,
             fft_size: s.engine.fft_size,
             window: s.engine.window.to_string(),
             overlap: s.engine.overlap,
@@ -276,10 +282,7 @@ impl<W: Write> OccupancyLog<W> {
             start: run.clock.start.and_then(rfc3339_ms),
             time_source: run.time_source.as_str().to_string(),
             calibration: self.calibration.as_ref().map(|c| c.origin.clone()),
-            level_offset_db: self
-                .calibration
-                .as_ref()
-                .map(|c| round_to(c.offset_db(run.source.center_hz), 3)),
+            level_offset_db: self.calibration.as_ref().map(|c| round_to(c.offset_db(center_hz), 3)),
             panorama,
         }
     }
