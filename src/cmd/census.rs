@@ -9,13 +9,11 @@
 //! (labelled with its emitter) at the end, `--capture` saves each emission's IQ as it happens.
 
 use crate::cli::CensusConfig;
-use crate::measure::census::sweep::SweepView;
 use crate::measure::census::{Census, CensusSettings};
 use crate::measure::occupancy::DEFAULT_INTERVAL_S;
 use crate::messages::note;
 use crate::output::census::{
-    add_kind_reason, add_kinds, capture_list, to_json_value, to_plan, to_table_with_kinds,
-    unknown_kinds, CensusConsumer,
+    capture_list, settle_kinds, to_json_value, to_plan, to_table_with_kinds, CensusConsumer,
 };
 use crate::output::change::BaselineStep;
 use crate::output::progress::{Progress, StatusLine};
@@ -24,11 +22,11 @@ use crate::output::sigmf::write as sigmf_write;
 use crate::output::sink;
 use crate::pipeline::input::unattended_options;
 use crate::pipeline::occupancy::{OccupancyRequest, OccupancySetup};
-use crate::pipeline::stitch::grid_of;
+use crate::pipeline::stitch::sweep_view;
 use crate::pipeline::stop::Escalation;
 use crate::pipeline::{open_input_stoppable, run_to_end, Consumer, Run, RunSpec, StopSignals};
 use crate::plan::{Plan, DEFAULT_THRESHOLD_DB};
-use crate::source::{sanitize, SourceInfo};
+use crate::source::sanitize;
 use anyhow::{bail, Result};
 use std::io::Write;
 use std::process::ExitCode;
@@ -42,13 +40,7 @@ pub fn run(mut cfg: CensusConfig) -> Result<ExitCode> {
     let src = open_input_stoppable(&cfg.input, &signals)?;
     let info = src.info().clone();
     super::settle_calibration(&mut cfg.calibration, &info)?;
-    let sweep = sweep_view(&info, cfg.dsp.fft_size)?;
-    if sweep.is_some() && cfg.sigmf.capture.is_some() {
-        bail!(
-            "'{}' was retuned (a sweep): --capture would cut each emission's samples from whatever dwell the receiver was in; to capture, read one recorded capture with --segment N (or keep the whole input with --record)",
-            sanitize(&info.label)
-        );
-    }
+    let sweep = sweep_view(&info, cfg.dsp.fft_size, cfg.sigmf.capture.is_some())?;
     let request = OccupancyRequest {
         dwell_s: cfg.dwell_s,
         threshold_db: DEFAULT_THRESHOLD_DB,
@@ -68,10 +60,7 @@ pub fn run(mut cfg: CensusConfig) -> Result<ExitCode> {
         max_emitters: MAX_EMITTERS,
     };
     if let Some(v) = &sweep {
-        // A row is a sweep: its span is the sweep's, and the hang is counted in whole sweeps
-        // (a sweep in which the emitter's own dwell did not see it ends the emission).
-        settings.timing.stride = v.sweep_samples;
-        settings.hang_rows = (cfg.hang_s * v.rate_hz / v.sweep_samples as f64).floor() as u32;
+        v.fit(&mut settings, cfg.hang_s);
     }
     if let Some(out) = &cfg.save_baseline {
         sink::refuse_overwrite(out, "--save-baseline", &inputs)?;
@@ -142,14 +131,8 @@ pub fn run(mut cfg: CensusConfig) -> Result<ExitCode> {
         );
     };
     let mut v = to_json_value(result);
-    let unclassified = (cfg.kinds && sweep.is_some()).then(|| unknown_kinds(result));
-    let kinds = unclassified.as_ref().unwrap_or(&census.emitter_kinds);
     // The kinds go in before the comparison, which reads today's census from this JSON.
-    add_kinds(&mut v, kinds);
-    if unclassified.is_some() {
-        add_kind_reason(&mut v, SWEEP_KIND_REASON);
-        note(SWEEP_KIND_REASON);
-    }
+    let kinds = &settle_kinds(&mut v, result, &census.emitter_kinds, cfg.kinds && sweep.is_some());
     let cal = cfg.calibration.as_ref();
     let mut text = if cfg.json {
         String::new()
@@ -176,16 +159,4 @@ pub fn run(mut cfg: CensusConfig) -> Result<ExitCode> {
         note(&n);
     }
     Ok(ExitCode::SUCCESS)
-}
-
-/// Why a sweep's emitters have kind `unknown`: classifying takes an emitter's IQ from a dwell
-/// that saw it, and the census of a sweep keeps none.
-const SWEEP_KIND_REASON: &str = "a sweep: the IQ of the dwells that saw each emitter is not kept, so kinds are not classified (unknown); classify one capture with --segment N";
-
-/// Of a retuned input: the sweep the census runs on (`None` for a receiver that stays put).
-fn sweep_view(info: &SourceInfo, fft_size: usize) -> Result<Option<SweepView>> {
-    let (Some(grid), Some(t)) = (grid_of(info, fft_size)?, info.tuning.clone()) else {
-        return Ok(None);
-    };
-    Ok(Some(SweepView::new(t, grid, (info.sample_rate_hz, fft_size), info.total_samples)))
 }

@@ -479,6 +479,28 @@ pub fn unknown_kinds(r: &CensusResult) -> Vec<EmitterKind> {
     r.emitters.iter().map(|e| Vote::default().result(e.obw_hz)).collect()
 }
 
+/// Why a sweep's emitters have kind `unknown`: classifying takes an emitter's IQ from a dwell
+/// that saw it, and the census of a sweep keeps none.
+pub const SWEEP_KIND_REASON: &str = "a sweep: the IQ of the dwells that saw each emitter is not kept, so kinds are not classified (unknown); classify one capture with --segment N";
+
+/// Adds the kinds a census reports to its JSON `v` and gives them back: those classified, or
+/// for a sweep whose kinds were asked (`sweep`) `unknown` for every emitter of `r`, with
+/// [`SWEEP_KIND_REASON`] beside each and said once on standard error.
+pub fn settle_kinds(
+    v: &mut serde_json::Value,
+    r: &CensusResult,
+    classified: &[EmitterKind],
+    sweep: bool,
+) -> Vec<EmitterKind> {
+    let kinds = if sweep { unknown_kinds(r) } else { classified.to_vec() };
+    add_kinds(v, &kinds);
+    if sweep {
+        add_kind_reason(v, SWEEP_KIND_REASON);
+        crate::messages::note(SWEEP_KIND_REASON);
+    }
+    kinds
+}
+
 /// Says beside each emitter's kind why it was not classified.
 pub fn add_kind_reason(v: &mut serde_json::Value, reason: &str) {
     let Some(list) = v.get_mut("emitters").and_then(|e| e.as_array_mut()) else { return };

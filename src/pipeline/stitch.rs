@@ -13,6 +13,7 @@
 //! dwell before it, so the stitching is the same as for a timeline known in advance.
 
 use crate::dsp::{Engine, EngineConfig, Geometry, Spectrum, Window};
+use crate::measure::census::sweep::SweepView;
 use crate::measure::panorama::{Grid, Panorama};
 use crate::source::tuning::{Dwell, Step, Tuning};
 use crate::source::SourceInfo;
@@ -41,15 +42,19 @@ pub fn span_of(info: &SourceInfo, fft_size: usize) -> Result<(f64, f64)> {
     Ok((lo, lo + info.sample_rate_hz))
 }
 
-/// Refuses a retuned input in a command that does not stitch panoramas yet, saying what does.
-pub fn refuse_panorama(info: &SourceInfo, command: &str) -> Result<()> {
-    if info.tuning.is_some() {
+/// Of a retuned input, the sweep a census runs on (`None` for a receiver that stays put); an
+/// error when the census would `capture` emissions' IQ, which a sweep cannot give whole.
+pub fn sweep_view(info: &SourceInfo, fft_size: usize, capture: bool) -> Result<Option<SweepView>> {
+    let (Some(grid), Some(t)) = (grid_of(info, fft_size)?, info.tuning.clone()) else {
+        return Ok(None);
+    };
+    if capture {
         anyhow::bail!(
-            "'{}' was retuned (several centres): `{command}` does not stitch panoramas yet; use `measure`, `log` or `snapshot` for the panorama, or read one capture with --segment N",
+            "'{}' was retuned (a sweep): --capture would cut each emission's samples from whatever dwell the receiver was in; to capture, read one recorded capture with --segment N (or keep the whole input with --record)",
             crate::messages::sanitize(&info.label)
         );
     }
-    Ok(())
+    Ok(Some(SweepView::new(t, grid, (info.sample_rate_hz, fft_size), info.total_samples)))
 }
 
 /// A retuned input being stitched.

@@ -11,7 +11,7 @@
 //! share of the emitter's own dwell) times the time it was in view in that sweep; its duty is
 //! that airtime over its observation time. Time away is neither on nor idle.
 
-use super::{Emission, EmitterFigures};
+use super::{CensusSettings, Emission, EmitterFigures};
 use crate::measure::panorama::Grid;
 use crate::source::tuning::Tuning;
 
@@ -73,6 +73,14 @@ impl SweepView {
             }
         };
         SweepView { tuning, grid, rate_hz, fft_size, sweep_samples }
+    }
+
+    /// Fits a census's settings to the sweep: a row is a sweep, so its stride is the sweep's,
+    /// and the hang (`hang_s`) is counted in whole sweeps (a sweep in which the emitter's own
+    /// dwell did not see it ends the emission).
+    pub fn fit(&self, settings: &mut CensusSettings, hang_s: f64) {
+        settings.timing.stride = self.sweep_samples;
+        settings.hang_rows = (hang_s * self.rate_hz / self.sweep_samples as f64).floor() as u32;
     }
 
     pub fn facts(&self) -> SweepFacts {
