@@ -73,15 +73,25 @@ impl Grid {
             .collect();
         let bins =
             places.iter().map(|p| (p.last as isize + p.offset) as usize + 1).max().unwrap_or(0);
-        let mut covered = vec![false; bins];
-        for p in &places {
-            let from = (p.first as isize + p.offset) as usize;
-            covered[from..=(p.last as isize + p.offset) as usize]
-                .iter_mut()
-                .for_each(|c| *c = true);
+        // The first hole between the steps' bands, from the bands sorted by their first bin
+        // (no per-bin table: centres far apart would make it as long as the span).
+        let mut bands: Vec<(usize, usize)> = places
+            .iter()
+            .map(|p| {
+                ((p.first as isize + p.offset) as usize, (p.last as isize + p.offset) as usize)
+            })
+            .collect();
+        bands.sort_unstable();
+        let mut reach = 0usize;
+        let mut hole = None;
+        for &(from, to) in &bands {
+            if from > reach {
+                hole = Some((reach, from));
+                break;
+            }
+            reach = reach.max(to.saturating_add(1));
         }
-        if let Some(hole) = covered.iter().position(|c| !c) {
-            let end = covered[hole..].iter().position(|c| *c).map_or(bins, |k| hole + k);
+        if let Some((hole, end)) = hole {
             return Err(format!(
                 "the steps leave {} .. {} never in view (each step keeps the central {:.0} % of {}): a panorama must be gapless; give a larger --usable, a hop plan with closer centres, or analyse one capture with --segment N",
                 format_hz(first_hz + hole as f64 * bin_hz),
@@ -432,6 +442,13 @@ mod tests {
         let t = tuning(&[100e6, 101e6], 0.8);
         let e = Grid::new(&t, 1e6, 1000).unwrap_err();
         assert!(e.contains("100.4") && e.contains("100.6") && e.contains("--usable"), "{e}");
+        // Steps listed out of order: the hole above the three that tile, 102.0 .. 102.6 MHz.
+        let e = Grid::new(&tuning(&[101.6e6, 100e6, 100.8e6, 103e6], 0.8), 1e6, 1000).unwrap_err();
+        assert!(e.contains("102") && e.contains("102.6"), "{e}");
+        // Centres 9 PHz apart (a hostile recording): named as a hole, without a table of every
+        // bin between them (it would take terabytes).
+        let e = Grid::new(&tuning(&[1e6, 9e15], 0.8), 1e6, 1000).unwrap_err();
+        assert!(e.contains("never in view"), "{e}");
     }
 
     #[test]
