@@ -481,7 +481,7 @@ pub fn unknown_kinds(r: &CensusResult) -> Vec<EmitterKind> {
 
 /// Why a sweep's emitters have kind `unknown`: classifying takes an emitter's IQ from a dwell
 /// that saw it, and the census of a sweep keeps none.
-pub const SWEEP_KIND_REASON: &str = "a sweep: the IQ of the dwells that saw each emitter is not kept, so kinds are not classified (unknown); classify one capture with --segment N";
+pub const SWEEP_KIND_REASON: &str = "a sweep: the IQ of the dwells that saw each emitter is not kept, so kinds are not classified (unknown); classify a single dwell on its own (a SigMF capture with --segment N, or a recording made at one centre)";
 
 /// Adds the kinds a census reports to its JSON `v` and gives them back: those classified, or
 /// for a sweep whose kinds were asked (`sweep`) `unknown` for every emitter of `r`, with
