@@ -7,13 +7,28 @@ use crate::source::reader::{self, Block, ReaderOptions, ReaderStats};
 use crate::source::{InputIssues, SampleSource, SourceInfo};
 use anyhow::{anyhow, Result};
 use crossbeam_channel::{bounded, Receiver};
+use num_complex::Complex32;
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::Arc;
 use std::thread::JoinHandle;
 
-/// Blocks in flight between the reader and a live source's DSP: with 64k-sample blocks, 32 MiB,
-/// about 0.2 s at 20 MS/s, so a brief stall of the DSP loses nothing.
+/// Fewest blocks in flight between the reader and a live source's DSP.
 pub const LIVE_QUEUE_BLOCKS: usize = 64;
+/// Seconds of signal the live queue holds when memory allows: a stall of the DSP (the machine
+/// busy with other work, a slow disk under the log) shorter than this loses nothing.
+pub const LIVE_QUEUE_SECONDS: f64 = 0.5;
+/// Most bytes the live queue may hold (at 100 MS/s in 64k-sample blocks, about 0.17 s).
+pub const LIVE_QUEUE_MAX_BYTES: usize = 128 << 20;
+
+/// Blocks of `block_len` samples in the queue of a live source at `sample_rate_hz`: half a second
+/// of signal within [`LIVE_QUEUE_MAX_BYTES`], never fewer than [`LIVE_QUEUE_BLOCKS`]. At 20 MS/s in
+/// 64k-sample blocks, 153 blocks (80 MiB); at 1 MS/s in 10k-sample blocks, 64.
+pub fn live_queue_blocks(sample_rate_hz: f64, block_len: usize) -> usize {
+    let block_len = block_len.max(1);
+    let for_time = (LIVE_QUEUE_SECONDS * sample_rate_hz / block_len as f64).ceil();
+    let for_bytes = LIVE_QUEUE_MAX_BYTES / (block_len * std::mem::size_of::<Complex32>());
+    (for_time.min(for_bytes as f64).max(0.0) as usize).max(LIVE_QUEUE_BLOCKS)
+}
 /// For files a short queue suffices (the reader simply waits) and keeps memory low.
 pub const FILE_QUEUE_BLOCKS: usize = 8;
 
@@ -62,7 +77,12 @@ pub struct Input {
 impl Input {
     pub fn start(src: Box<dyn SampleSource>, opts: ReaderOptions) -> Input {
         let info = src.info().clone();
-        let (tx, rx) = bounded(if info.live { LIVE_QUEUE_BLOCKS } else { FILE_QUEUE_BLOCKS });
+        let depth = if info.live {
+            live_queue_blocks(info.sample_rate_hz, opts.block_len)
+        } else {
+            FILE_QUEUE_BLOCKS
+        };
+        let (tx, rx) = bounded(depth);
         let stats = Arc::new(ReaderStats::default());
         let stop = Arc::new(AtomicBool::new(false));
         let max_samples = opts.max_samples;
@@ -101,5 +121,20 @@ impl Input {
         let Some(handle) = self.handle.take() else { return Ok(InputIssues::default()) };
         drop(self.blocks);
         handle.join().map_err(|_| anyhow!("the reader thread panicked"))?
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn live_queue_holds_half_a_second_within_its_byte_cap() {
+        // 20 MS/s in 65 536-sample blocks: 0.5 s is 152.6 blocks, 80 MiB.
+        assert_eq!(live_queue_blocks(20e6, live_block_len(20e6)), 153);
+        // 100 MS/s: the 128 MiB cap (256 blocks of 512 KiB) binds before 0.5 s.
+        assert_eq!(live_queue_blocks(100e6, live_block_len(100e6)), 256);
+        // Slow streams keep the floor.
+        assert_eq!(live_queue_blocks(1e6, live_block_len(1e6)), LIVE_QUEUE_BLOCKS);
     }
 }
