@@ -479,7 +479,11 @@ impl FromStr for SampleFormat {
 
     fn from_str(s: &str) -> Result<Self, Self::Err> {
         let lower = s.trim().to_ascii_lowercase();
-        SampleFormat::ALL.into_iter().find(|f| f.name() == lower).ok_or_else(|| {
+        // A multi-byte name without its byte order (`cf32`, `ci16`, as file extensions are
+        // written) means little-endian, the order of the machines that record most captures.
+        let le = format!("{lower}_le");
+        let named = |f: &SampleFormat| f.name() == lower || f.name() == le;
+        SampleFormat::ALL.into_iter().find(named).ok_or_else(|| {
             let names: Vec<_> = SampleFormat::ALL.iter().map(|f| f.name()).collect();
             format!("unknown sample format '{s}'; choose one of: {}", names.join(", "))
         })
@@ -533,6 +537,14 @@ mod tests {
                 assert!((a - b).norm() < tol, "{fmt}: {a} vs {b}");
             }
         }
+    }
+
+    #[test]
+    fn a_name_without_byte_order_is_little_endian() {
+        assert_eq!("cf32".parse::<SampleFormat>(), Ok(SampleFormat::Cf32Le));
+        assert_eq!("CI16".parse::<SampleFormat>(), Ok(SampleFormat::Ci16Le));
+        assert_eq!("cu8".parse::<SampleFormat>(), Ok(SampleFormat::Cu8));
+        assert!("cf33".parse::<SampleFormat>().unwrap_err().contains("cf32_le"));
     }
 
     #[test]
