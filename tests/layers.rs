@@ -261,3 +261,38 @@ fn the_checker_finds_an_upward_path_and_exempts_tests() {
     assert!(refs.crate_modules.contains("tui"));
     assert!(!refs.crate_modules.contains("app"));
 }
+
+/// Code lines of a file: not blank, not a comment, and before its first `#[cfg(test)]`.
+fn code_lines(text: &str) -> usize {
+    text.lines()
+        .take_while(|l| l.trim() != "#[cfg(test)]")
+        .filter(|l| {
+            let t = l.trim();
+            !t.is_empty() && !t.starts_with("//")
+        })
+        .count()
+}
+
+/// A command module is wiring: it reads its options, starts the pipeline and hands results to
+/// outputs. Work that grows it past this belongs in the layer whose meaning it has.
+const WIRING_MAX_LINES: usize = 150;
+
+#[test]
+fn command_modules_are_wiring_only() {
+    let mut files = Vec::new();
+    visit(&src().join("cmd"), &mut files);
+    assert!(files.len() > 5, "src/cmd holds {} files", files.len());
+    let long: Vec<String> = files
+        .iter()
+        .map(|f| (f, code_lines(&std::fs::read_to_string(f).unwrap())))
+        .filter(|(_, n)| *n > WIRING_MAX_LINES)
+        .map(|(f, n)| format!("{} has {n} code lines", f.display()))
+        .collect();
+    assert!(long.is_empty(), "over {WIRING_MAX_LINES} code lines: {long:?}");
+}
+
+#[test]
+fn code_lines_skip_blanks_comments_and_tests() {
+    let text = "//! doc\nfn a() {}\n\n    // note\nlet x = 1;\n#[cfg(test)]\nmod tests {}\n";
+    assert_eq!(code_lines(text), 2);
+}
