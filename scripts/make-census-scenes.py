@@ -31,6 +31,12 @@ import scipy.signal
 OUT = os.path.join(os.path.dirname(os.path.abspath(__file__)), os.pardir, "tests", "reference",
                    "census")
 SEED = 20261204
+# Other random draws into another folder, for a one-off check that the committed ones are not a
+# lucky draw: CENSUS_SCENES_SEED=5150 CENSUS_SCENES_OUT=/tmp/c python3 scripts/make-census-scenes.py,
+# then CENSUS_DIR=/tmp/c cargo test --test census_scenes.
+if os.environ.get("CENSUS_SCENES_SEED"):
+    SEED = int(os.environ["CENSUS_SCENES_SEED"])
+    OUT = os.environ.get("CENSUS_SCENES_OUT", OUT)
 SNR_DB = 30.0
 # Below this total noise power (dBFS) the ci8 quantisation (one step is 1/128, about -50 dBFS
 # of complex power) would no longer be covered by the noise.

@@ -17,8 +17,13 @@ use std::process::Command;
 
 const BIN: &str = env!("CARGO_BIN_EXE_bandwarden");
 
+/// The committed scenes, or those of another draw in `$CENSUS_DIR` (see
+/// scripts/make-census-scenes.py) for a one-off check.
 fn dir() -> PathBuf {
-    PathBuf::from(concat!(env!("CARGO_MANIFEST_DIR"), "/tests/reference/census"))
+    match std::env::var_os("CENSUS_DIR").filter(|d| !d.is_empty()) {
+        Some(d) => PathBuf::from(d),
+        None => PathBuf::from(concat!(env!("CARGO_MANIFEST_DIR"), "/tests/reference/census")),
+    }
 }
 
 fn truth() -> Vec<Value> {
@@ -143,11 +148,14 @@ fn two_emitters_keyed_together_stay_two() {
     assert!(c.matched.iter().all(Option::is_some), "{r}");
     assert!(power_off(&s, &r, &c).is_empty(), "{r}");
     // Keyed at the same instants (truth.json), 40 kHz apart, 3 dB apart: two rows, each on
-    // the air for the truth's keying (3 bursts).
+    // the air for the truth's keying (3 bursts). Neither is taken for the other's skirt: had
+    // one absorbed the other, its attributed skirt energy would be about -3 dBc; an emitter's
+    // own out-of-band skirt (the FM one's sidebands falling away) lies tens of dB down.
     let rows = r["emitters"].as_array().unwrap();
     for m in c.matched.iter().flatten() {
         assert_eq!(rows[*m]["emissions"], 3, "{r}");
-        assert_eq!(rows[*m]["attributed"]["skirts"], 0, "{r}");
+        let skirt = &rows[*m]["attributed"]["skirt_energy_dbc"];
+        assert!(skirt.is_null() || skirt.as_f64().unwrap() < -20.0, "{r}");
     }
 }
 
