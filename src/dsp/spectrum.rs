@@ -106,6 +106,13 @@ impl Deref for Spectrum {
 }
 
 impl Spectrum {
+    /// Per bin, whether it was ever in view: `None` for a receiver that stays put (every bin
+    /// is); of a panorama's row, false for the bins of a hole between its steps (their PSD is 0,
+    /// no level), which measurements leave out and pictures draw as a gap.
+    pub fn seen(&self) -> Option<impl Iterator<Item = bool> + '_> {
+        self.last_seen.as_ref().map(|l| l.iter().map(|&s| s > 0))
+    }
+
     /// A spectrum of this geometry with no frames yet; its PSD is allocated once here.
     pub fn empty(geometry: Arc<Geometry>) -> Spectrum {
         let n = geometry.fft_size;

@@ -25,7 +25,7 @@ use crate::dsp::{Spectrum, Window};
 use crate::measure::calibration::Calibration;
 use crate::measure::stats::gamma_quantile_unit_mean;
 use crate::measure::{
-    band_power, find_signals, noise_floor, occupied_bandwidth, xdb_bandwidth, Detection,
+    band_power, find_signals, occupied_bandwidth, spectrum_floor, xdb_bandwidth, Detection,
 };
 use crate::output::class_fields::ClassFields;
 use crate::output::levels::level_unit;
@@ -72,7 +72,7 @@ pub fn build_report(
     counts: &InputCounts,
 ) -> Result<Report> {
     let window = Window::new(spec.window, spec.fft_size);
-    let floor = noise_floor(&spec.psd, spec.dof);
+    let floor = spectrum_floor(spec);
     let det = Detection {
         obw_percent: settings.obw_percent,
         false_alarm_per_bin: settings.false_alarm_per_bin,

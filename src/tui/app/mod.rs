@@ -32,7 +32,7 @@ use super::traces::Traces;
 use super::view::{column_max, BinGrid, View, MIN_VIEW_BINS};
 use crate::dsp::{Spectrum, Window, WindowKind};
 use crate::measure::classify::Class;
-use crate::measure::{find_signals, noise_floor, Detection};
+use crate::measure::{find_signals, spectrum_floor, Detection};
 use crate::output::log::changes::ChangeBoard;
 use crate::pipeline::kinds::LiveKinds;
 use crate::pipeline::latest::RowSettings;
@@ -391,7 +391,7 @@ impl App {
             Some(w) if w.kind == avg.window && w.len() == avg.fft_size => w,
             _ => Window::new(avg.window, avg.fft_size),
         };
-        let floor = noise_floor(&avg.psd, avg.dof);
+        let floor = spectrum_floor(&avg);
         self.table.signals =
             find_signals(&avg, &window, floor, MAX_SIGNALS, self.measured.detection);
         self.table.sort.apply(&mut self.table.signals);
