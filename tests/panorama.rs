@@ -238,6 +238,20 @@ fn a_sweep_with_a_hole_reads_its_tones_and_logs_unseen_channels_not_measured() {
         "--settle",
         "2ms",
     ];
+    // `measure` with the same channels: the unseen ones not measured (no level, no 0 %).
+    let o = on_sweep(
+        "measure",
+        &data,
+        &plan,
+        &[&channels[..8], &["--settle", "2ms", "--json"]].concat(),
+    );
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let v: Value = serde_json::from_slice(&o.stdout).unwrap();
+    for c in v["channels"].as_array().unwrap() {
+        let seen = c["name"] == "gate";
+        assert_eq!(c["occupancy_pct"].as_f64(), seen.then_some(100.0), "{c}");
+        assert_eq!(c["power_dbfs"].is_null(), !seen, "{c}");
+    }
     let out = on_sweep("log", &data, &plan, &channels);
     assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
     let lines: Vec<Value> = String::from_utf8_lossy(&out.stdout)

@@ -429,6 +429,14 @@ mod tests {
         Tuning { steps, period: None, settle_samples: 0, usable, follows_stream: false }
     }
 
+    /// A panorama of `centres` at 1 MS/s, 1000-point Hann, 80 % kept, and an empty dwell row.
+    fn panorama_of(centres: &[f64]) -> (Panorama, Spectrum) {
+        let g = Grid::new(&tuning(centres, 0.8), 1e6, 1000).unwrap();
+        let step = Geometry::new(&Window::new(WindowKind::Hann, 1000), 1e6, 0.0);
+        let row = Spectrum::empty(Arc::new(step.clone()));
+        (Panorama::new(g, &step), row)
+    }
+
     #[test]
     fn steps_tile_the_grid_at_the_step_bin_width() {
         // 1 MS/s, 1000 bins of 1 kHz, 80 % usable: 800 bins per step; centres 800 kHz apart
@@ -496,12 +504,7 @@ mod tests {
 
     #[test]
     fn a_dwell_lands_on_its_own_frequencies_and_sweeps_complete() {
-        let t = tuning(&[100e6, 100.8e6], 0.8);
-        let g = Grid::new(&t, 1e6, 1000).unwrap();
-        let w = Window::new(WindowKind::Hann, 1000);
-        let step = Geometry::new(&w, 1e6, 0.0);
-        let mut p = Panorama::new(g, &step);
-        let mut row = Spectrum::empty(Arc::new(step.clone()));
+        let (mut p, mut row) = panorama_of(&[100e6, 100.8e6]);
         row.frames = 2;
         row.psd[600] = 1.0; // +100 kHz from the second centre: 100.9 MHz
         row.end_sample = 1500;
@@ -517,5 +520,31 @@ mod tests {
         assert!((wide.freq_of_bin(peak as f64) - 100.9e6).abs() < 1.0);
         assert_eq!(wide.frames, 2);
         assert!(!p.has_unseen());
+    }
+
+    #[test]
+    fn a_sweep_with_a_hole_completes_and_its_row_says_what_was_never_seen() {
+        // 100 MHz sees 99.6 .. 100.4 MHz, 101 MHz 100.6 .. 101.4: a hole between.
+        let (mut p, mut row) = panorama_of(&[100e6, 101e6]);
+        row.frames = 1;
+        row.psd.iter_mut().for_each(|x| *x = 1.0);
+        row.end_sample = 10;
+        p.add(0, &row);
+        assert!(!p.dwell_done(0) && p.has_unseen());
+        p.add(1, &row);
+        assert!(p.dwell_done(1));
+        assert!(!p.has_unseen(), "the hole's bins are never seen and do not hold the sweep");
+        let wide = p.take();
+        assert!(!wide.never_saw(100.0e6, 100.01e6) && !wide.never_saw(101.0e6, 101.01e6));
+        assert!(wide.never_saw(100.5e6, 100.51e6), "in the hole");
+        assert!(wide.never_saw(100.39e6, 100.41e6), "half over the hole");
+        assert!(wide.never_saw(101.5e6, 101.51e6), "beyond the span");
+        // The hole's bins hold no level; the noise floor is read over the bins in view (all at
+        // 1: FCME's truncation correction for the χ² model leaves it within 0.1 dB of that).
+        let floor = crate::measure::spectrum_floor(wide);
+        assert!(crate::units::db(floor).abs() < 0.1, "{floor}");
+        // Counted in, the hole's zeros (200 of 1800 bins) would drag it down.
+        let all = crate::measure::noise_floor(&wide.psd, wide.dof);
+        assert!(all < 0.95 * floor, "{all} {floor}");
     }
 }
