@@ -270,6 +270,7 @@ fn a_sweep_with_a_hole_reads_its_tones_and_logs_unseen_channels_not_measured() {
             assert_eq!(r["state"], "not_measured", "{r}");
             assert!(r["occupancy_pct"].is_null() && r["mean_dbfs"].is_null(), "{r}");
             assert_eq!(r["observation_s"].as_f64(), Some(0.0), "{r}");
+            assert_eq!(r["samples"].as_u64(), Some(0), "nothing of it measured: {r}");
         }
         assert!(of("emission", name).is_empty(), "{name}");
     }

@@ -57,7 +57,8 @@ pub fn interval_record(
         mean_dbfs,
         peak_dbfs,
         noise_floor_dbfs_per_hz: floor,
-        samples: i.samples,
+        // A panorama's channel never in view had no sample measured.
+        samples: if i.in_view { i.samples } else { 0 },
         // Shares to a thousandth of a sample: finer says nothing.
         occupied_samples: (i.occupied * 1000.0).round() / 1000.0,
         dropped_samples: i.dropped_samples,
