@@ -258,6 +258,8 @@ fn a_sweep_with_a_hole_reads_its_tones_and_logs_unseen_channels_not_measured() {
         .lines()
         .map(|l| serde_json::from_str(l).unwrap())
         .collect();
+    // The start record names the hole: 447.1995 .. 447.9995 MHz (outer bin edges).
+    assert_eq!(lines[0]["panorama"]["holes_hz"], json!([[447.1995e6, 447.9995e6]]), "{}", lines[0]);
     let of = |kind: &str, name: &str| -> Vec<Value> {
         lines.iter().filter(|v| v["kind"] == kind && v["channel"] == name).cloned().collect()
     };
@@ -389,6 +391,7 @@ fn log_follows_a_channel_across_the_panorama() {
     assert_eq!(pano["settle_s"].as_f64(), Some(0.002), "{start}");
     assert_eq!(pano["usable"].as_f64(), Some(0.8), "{start}");
     assert_eq!(pano["timeline"], "hop_plan", "{start}");
+    assert!(pano.get("holes_hz").is_none(), "the steps tile the span: {start}");
     // Where the receiver began: the plan's first centre (the raw stream gave no --center).
     assert_eq!(start["center_hz"].as_f64(), Some(CENTRES[0]), "{start}");
     // `report` says the run was a sweep, and of what.

@@ -366,6 +366,7 @@ fn panorama_setup(t: &Tuning, grid: &Grid, rate_hz: f64) -> PanoramaSetup {
         settle_s: round_to(t.settle_samples as f64 / rate_hz, 9),
         usable: t.usable,
         timeline: timeline.to_string(),
+        holes_hz: grid.holes_hz().iter().map(|&(a, b)| [round_to(a, 2), round_to(b, 2)]).collect(),
     }
 }
 

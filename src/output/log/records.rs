@@ -90,6 +90,10 @@ pub struct PanoramaSetup {
     pub usable: f64,
     /// Where the dwells come from: `hop_plan`, `captures` or `stream` (VITA 49 retunes).
     pub timeline: String,
+    /// The holes between the steps' bands, never in view (low and high edge each), lowest
+    /// first; absent when the steps tile the span.
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub holes_hz: Vec<[f64; 2]>,
 }
 
 /// One per channel of the plan, after the start record.
