@@ -153,12 +153,8 @@ fn a_sigmf_recording_with_one_capture_per_dwell_is_one_panorama() {
 }
 
 #[test]
-fn a_plan_channel_beyond_the_panorama_is_refused_and_a_hole_is_named() {
+fn a_sweep_refuses_what_it_cannot_give_and_a_hole_is_allowed() {
     let (dir, data, plan) = sweep_files("bad", 1);
-    // 449.5 MHz is never in view: refused, never reported idle.
-    let o = on_sweep("measure", &data, &plan, &["--channel", "far=449.5M:12.5k"]);
-    let err = String::from_utf8_lossy(&o.stderr);
-    assert!(!o.status.success() && err.contains("outside the captured span"), "{err}");
     // A tone calibration needs one tuning: refused, saying why and what to do.
     let cal = dir.file("cal.toml");
     let o = on_sweep("calibrate", &data, &plan, &["--tone", "446.39M:-50dBm", "-o", &cal]);
@@ -171,18 +167,184 @@ fn a_plan_channel_beyond_the_panorama_is_refused_and_a_hole_is_named() {
     let o = on_sweep("census", &data, &plan, &["--capture", &dir.file("caps")]);
     let err = String::from_utf8_lossy(&o.stderr);
     assert!(!o.status.success() && err.contains("--capture") && err.contains("sweep"), "{err}");
-    // At 60 % usable the steps (800 kHz apart, 600 kHz kept) leave holes.
-    let o = on_sweep("measure", &data, &plan, &["--usable", "0.6"]);
+    // At 60 % usable the steps (800 kHz apart, 600 kHz kept) leave holes: measured all the
+    // same, the floor read over the bins in view only (the holes' empty bins left out).
+    let o = on_sweep("measure", &data, &plan, &["--usable", "0.6", "--json"]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let v: Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_floor(&v, "--usable 0.6");
+    // A plan over a span too wide for the grid at this bin width: refused, saying what to do.
+    std::fs::write(&plan, "446M 50ms\n40G 50ms\n").unwrap();
+    let o = run(&["measure", &data, "--rate", "1M", "--fft", FFT, "--hop-plan", &plan]);
     let err = String::from_utf8_lossy(&o.stderr);
-    assert!(
-        !o.status.success() && err.contains("never in view") && err.contains("--usable"),
-        "{err}"
-    );
+    assert!(!o.status.success() && err.contains("grid bins") && err.contains("--fft"), "{err}");
     // A bad hop plan names its line.
     std::fs::write(&plan, "446M 50ms\n446.8M fifty\n").unwrap();
     let o = run(&["measure", &data, "--rate", "1M", "--hop-plan", &plan]);
     let err = String::from_utf8_lossy(&o.stderr);
     assert!(!o.status.success() && err.contains("line 2") && err.contains("dwell"), "{err}");
+}
+
+/// The dwells' white noise, 1e-7 FS² over 1 MHz, is 1e-13 FS²/Hz: −130 dBFS/Hz, read within
+/// 0.5 dB over the bins in view (a hole's empty bins would pull an FCME start to nothing).
+fn assert_floor(v: &Value, what: &str) {
+    let floor = v["noise_floor_dbfs_per_hz"].as_f64().unwrap();
+    assert!((floor + 130.0).abs() < 0.5, "{what}: floor {floor} dBFS/Hz, truth -130: {v}");
+}
+
+/// Three steps over two separate sub-bands: 446.0 and 446.8 MHz tile 445.6 .. 447.2 MHz, then
+/// a hole to 448.0 MHz, then 448.4 MHz sees 448.0 .. 448.8 MHz.
+const HOLED: [f64; 3] = [446.0e6, 446.8e6, 448.4e6];
+
+/// `sweeps` sweeps of [`HOLED`] with the [`TONES`] each step sees: folder, capture, hop plan.
+fn holed_files(name: &str, sweeps: usize) -> (Scratch, String, String) {
+    let dir = Scratch::new(name);
+    let mut bytes = Vec::new();
+    for s in 0..sweeps {
+        for (k, &c) in HOLED.iter().enumerate() {
+            SampleFormat::Cf32Le.encode(&dwell(c, (s * 3 + k) as u64 + 1), &mut bytes);
+        }
+    }
+    let data = dir.file("holed.cf32");
+    std::fs::write(&data, bytes).unwrap();
+    let plan = dir.file("holed.txt");
+    let text: String = HOLED.iter().map(|c| format!("{}M 50ms\n", c / 1e6)).collect();
+    std::fs::write(&plan, format!("# Wrenhollow Ridge: two sub-bands\n{text}")).unwrap();
+    (dir, data, plan)
+}
+
+#[test]
+fn a_sweep_with_a_hole_reads_its_tones_and_logs_unseen_channels_not_measured() {
+    let (dir, data, plan) = holed_files("holed", 4);
+    // The tones in view (446.39 MHz in step 0, 448.7 MHz in step 2) read within one bin and
+    // 0.5 dB (Parseval: A² for a stated level); 447.2035 MHz lies in the hole: not found, and
+    // the hole's empty bins neither pull the floor down nor make peaks.
+    let o = on_sweep("measure", &data, &plan, &["--settle", "2ms", "--json"]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let v: Value = serde_json::from_slice(&o.stdout).unwrap();
+    common::assert_tones(&v, &[TONES[0], TONES[2]], 1e3, "a plan with a hole");
+    assert_floor(&v, "a plan with a hole");
+    let channels = [
+        "--channel",
+        "gate=446.39M:12.5k",
+        "--channel",
+        "hole=447.6M:12.5k",
+        "--channel",
+        "far=449.5M:12.5k",
+        "--channel",
+        "edge=447.2M:12.5k",
+        "--interval",
+        "1s",
+        "--settle",
+        "2ms",
+    ];
+    // `measure` with the same channels: the unseen ones not measured (no level, no 0 %).
+    let o = on_sweep(
+        "measure",
+        &data,
+        &plan,
+        &[&channels[..8], &["--settle", "2ms", "--json"]].concat(),
+    );
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let v: Value = serde_json::from_slice(&o.stdout).unwrap();
+    for c in v["channels"].as_array().unwrap() {
+        let seen = c["name"] == "gate";
+        assert_eq!(c["occupancy_pct"].as_f64(), seen.then_some(100.0), "{c}");
+        assert_eq!(c["power_dbfs"].is_null(), !seen, "{c}");
+    }
+    let out = on_sweep("log", &data, &plan, &channels);
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let lines: Vec<Value> = String::from_utf8_lossy(&out.stdout)
+        .lines()
+        .map(|l| serde_json::from_str(l).unwrap())
+        .collect();
+    // The start record names the hole: 447.1995 .. 447.9995 MHz (outer bin edges).
+    assert_eq!(lines[0]["panorama"]["holes_hz"], json!([[447.1995e6, 447.9995e6]]), "{}", lines[0]);
+    let of = |kind: &str, name: &str| -> Vec<Value> {
+        lines.iter().filter(|v| v["kind"] == kind && v["channel"] == name).cloned().collect()
+    };
+    // In a hole (447.6 MHz), beyond the span (449.5 MHz) and partly in view (447.2 MHz, half
+    // over the hole): never idle, never busy: "not measured" in every interval, no emission.
+    for name in ["hole", "far", "edge"] {
+        let intervals = of("interval", name);
+        assert!(!intervals.is_empty(), "{name}: {lines:?}");
+        for r in &intervals {
+            assert_eq!(r["state"], "not_measured", "{r}");
+            assert!(r["occupancy_pct"].is_null() && r["mean_dbfs"].is_null(), "{r}");
+            assert_eq!(r["observation_s"].as_f64(), Some(0.0), "{r}");
+            assert_eq!(r["samples"].as_u64(), Some(0), "nothing of it measured: {r}");
+        }
+        assert!(of("emission", name).is_empty(), "{name}");
+    }
+    // ITU-R Report SM.2256 (from memory): observation time, the time on the channel. The gate
+    // lies inside step 0: 48 ms a sweep (50 ms less 2 ms settling) × 4 sweeps, revisited every
+    // 150 ms (one sweep of three 50 ms steps).
+    let gate = of("interval", "gate");
+    assert_eq!(gate.len(), 1, "{gate:?}");
+    assert_eq!(gate[0]["state"], "measured", "{}", gate[0]);
+    assert_eq!(gate[0]["occupancy_pct"].as_f64(), Some(100.0), "{}", gate[0]);
+    assert!((gate[0]["observation_s"].as_f64().unwrap() - 0.192).abs() < 1e-9, "{}", gate[0]);
+    assert_eq!(gate[0]["revisit_s"].as_f64(), Some(0.15), "{}", gate[0]);
+    // `report`, from the JSON log and from the CSV one: the unseen rows say not measured (no
+    // 0 %), and a channel's observed time is its observation time (sum of observation_s),
+    // so that occupancy is busy over observed.
+    let log = dir.file("holed.jsonl");
+    std::fs::write(&log, &out.stdout).unwrap();
+    let out = on_sweep("log", &data, &plan, &[&channels[..], &["--csv"]].concat());
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let csv = dir.file("holed.csv");
+    std::fs::write(&csv, &out.stdout).unwrap();
+    assert!(String::from_utf8_lossy(&out.stdout).contains("not_measured"));
+    for file in [&log, &csv] {
+        let report = run(&["report", file]);
+        let text = String::from_utf8_lossy(&report.stdout);
+        assert!(report.status.success(), "{}", String::from_utf8_lossy(&report.stderr));
+        for name in ["hole", "far", "edge"] {
+            let row =
+                text.lines().find(|l| l.starts_with(name)).unwrap_or_else(|| panic!("{text}"));
+            assert!(row.contains("not measured") && !row.contains(" 0.00 "), "{row}");
+        }
+        let report = run(&["report", file, "--json"]);
+        assert!(report.status.success(), "{}", String::from_utf8_lossy(&report.stderr));
+        let v: Value = serde_json::from_slice(&report.stdout).unwrap();
+        let ch = |name: &str| {
+            v["channels"].as_array().unwrap().iter().find(|c| c["name"] == name).unwrap().clone()
+        };
+        let g = ch("gate");
+        assert!((g["observed_s"].as_f64().unwrap() - 0.192).abs() < 1e-6, "{g}");
+        assert_eq!(g["occupancy_pct"].as_f64(), Some(100.0), "{g}");
+        let h = ch("hole");
+        assert!(h["occupancy_pct"].is_null() && h["not_measured_s"].as_f64() > Some(0.0), "{h}");
+        assert_eq!(h["lost_s"].as_f64(), Some(0.0), "not measured is not lost: {h}");
+    }
+    // Stored in a database, the distinction stays: `report --db` gives the same channels (the
+    // unseen ones not measured, the gate's observed time its observation time).
+    let db = format!("sqlite:{}", dir.file("holed.db"));
+    let o = run(&["import", "--db", &db, &log]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let from_db = run(&["report", "--json", "--db", &db]);
+    let from_log = run(&["report", "--json", &log]);
+    let (a, b): (Value, Value) = (
+        serde_json::from_slice(&from_db.stdout).unwrap(),
+        serde_json::from_slice(&from_log.stdout).unwrap(),
+    );
+    assert_eq!(a["channels"], b["channels"]);
+    let text = String::from_utf8_lossy(&run(&["report", "--db", &db]).stdout).to_string();
+    let row = text.lines().find(|l| l.starts_with("hole")).unwrap_or_else(|| panic!("{text}"));
+    assert!(row.contains("not measured"), "{row}");
+    // The snapshot draws the hole as a gap (its own grey), the census finds nothing in it.
+    let svg = dir.file("holed.svg");
+    let o = on_sweep("snapshot", &data, &plan, &["--settle", "2ms", "-o", &svg]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let text = std::fs::read_to_string(&svg).unwrap();
+    assert!(text.contains("never in view, 447.199500 MHz .. 447.999500 MHz"), "{text}");
+    let out = on_sweep("census", &data, &plan, &["--settle", "2ms", "--json", "--no-kinds"]);
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let v: Value = serde_json::from_slice(&out.stdout).unwrap();
+    for e in v["emitters"].as_array().unwrap() {
+        let f = e["center_hz"].as_f64().unwrap();
+        assert!(!(447.2e6..448.0e6).contains(&f), "an emitter in the hole: {e}");
+    }
 }
 
 #[test]
@@ -229,6 +391,7 @@ fn log_follows_a_channel_across_the_panorama() {
     assert_eq!(pano["settle_s"].as_f64(), Some(0.002), "{start}");
     assert_eq!(pano["usable"].as_f64(), Some(0.8), "{start}");
     assert_eq!(pano["timeline"], "hop_plan", "{start}");
+    assert!(pano.get("holes_hz").is_none(), "the steps tile the span: {start}");
     // Where the receiver began: the plan's first centre (the raw stream gave no --center).
     assert_eq!(start["center_hz"].as_f64(), Some(CENTRES[0]), "{start}");
     // `report` says the run was a sweep, and of what.

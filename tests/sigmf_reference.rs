@@ -92,14 +92,30 @@ fn each_segment_reads_its_own_tone() {
 }
 
 #[test]
-fn frequencies_too_far_apart_for_one_panorama_are_refused_without_a_segment() {
-    // 433.92 MHz and 868.3 MHz at 1 MS/s leave hundreds of MHz never in view: a panorama of them
-    // would be mostly unmeasured, so the recording is refused, naming the hole and --segment.
-    let (path, _) = recording("freqs");
+fn frequencies_far_apart_are_one_panorama_with_a_hole_unless_its_grid_is_too_large() {
+    // 433.92 MHz and 868.3 MHz at 100 kS/s: at the 4096-point FFT's 24.4 Hz bins the span
+    // between them needs 17.8 million grid bins, more than a panorama holds (2^24): refused,
+    // saying how to read it (a smaller FFT, or one segment).
+    let (path, segs) = recording("freqs");
     let o = run(&["measure", path]);
     let err = String::from_utf8_lossy(&o.stderr);
     assert!(!o.status.success() && err.starts_with("bandwarden:"), "{err}");
-    assert!(err.contains("never in view") && err.contains("--segment"), "{err}");
+    assert!(err.contains("grid bins") && err.contains("--segment"), "{err}");
+    // At 256 points (390.625 Hz bins) it is one panorama of 1.1 million bins, nearly all a
+    // hole never in view: each segment's tone at its absolute frequency (within one bin) and
+    // the level the reference read (flat-top, 0.2 dB), as when read segment by segment.
+    let (report, _) = measure(path, &["--fft", "256"]);
+    let peaks = report["peaks"].as_array().unwrap();
+    for seg in segs {
+        let (tf, tl) = (seg["tone_hz"].as_f64().unwrap(), seg["tone_dbfs"].as_f64().unwrap());
+        let bin = manifest()["rate_hz"].as_f64().unwrap() / 256.0;
+        let p = peaks
+            .iter()
+            .find(|p| (p["freq_hz"].as_f64().unwrap() - tf).abs() <= bin)
+            .unwrap_or_else(|| panic!("no peak at {tf} Hz: {peaks:?}"));
+        let l = p["level_dbfs"].as_f64().unwrap();
+        assert!((l - tl).abs() <= 0.2, "{l} dBFS at {tf} Hz, the reference reads {tl} dBFS");
+    }
 }
 
 #[test]

@@ -540,12 +540,18 @@ const SWEEP_DWELL: usize = 50_000;
 /// lowest step (445.6 .. 446.4 MHz) keeps the second sweep's levels, seen some 300 ms before the
 /// row's end, more than the revisit time (the recording's length over three sweeps, 183 ms).
 fn write_sweep(dir: &Path) -> PathBuf {
+    write_sweep_of(dir, &SWEEP_CENTRES, 3, Some(8))
+}
+
+/// A SigMF recording of `sweeps` sweeps of `centres`, one capture per dwell, tones at 446.2 and
+/// 447.7 MHz where a step sees them; capture `short` (if any) is 500 samples.
+fn write_sweep_of(dir: &Path, centres: &[f64], sweeps: usize, short: Option<usize>) -> PathBuf {
     std::fs::create_dir_all(dir).unwrap();
     let tones = [(446.2e6, -30.0), (447.7e6, -35.0)];
     let (mut bytes, mut captures, mut at) = (Vec::new(), Vec::new(), 0usize);
-    for k in 0..12 {
-        let c = SWEEP_CENTRES[k % 4];
-        let n = if k == 8 { 500 } else { SWEEP_DWELL };
+    for k in 0..sweeps * centres.len() {
+        let c = centres[k % centres.len()];
+        let n = if Some(k) == short { 500 } else { SWEEP_DWELL };
         let carriers: Vec<Keyed> = tones
             .iter()
             .filter(|(f, _)| (f - c).abs() < RATE_HZ / 2.0)
@@ -596,6 +602,41 @@ fn a_sweep_is_drawn_whole_with_its_old_bins_marked_at_80x24() {
             "a mark outside the lowest step: {cols:?} in\n{s}"
         );
     }
+    tmux.keys(&["q"]);
+    tmux.wait_for("the shell after quitting", Duration::from_secs(20), |s| s.contains("BW-DONE-0"));
+    drop(tmux);
+    let _ = std::fs::remove_dir_all(&dir);
+}
+
+#[test]
+fn a_sweep_with_a_hole_draws_no_trace_over_it_at_120x40() {
+    if tmux_missing() {
+        return;
+    }
+    // Steps at 446.0, 446.8 and 448.4 MHz: 445.6 .. 447.2 MHz, a hole, 448.0 .. 448.8 MHz.
+    let dir = std::env::temp_dir().join(format!("bw-e2e-hole-{}", std::process::id()));
+    let rec = write_sweep_of(&dir, &[446.0e6, 446.8e6, 448.4e6], 3, None);
+    let tmux = Tmux::start("hole", 120, 40);
+    tmux.watch(&format!("{} --fft 1000", rec.display()));
+    let s = tmux.wait_for("the end of the sweep", Duration::from_secs(60), |s| {
+        s.contains("end of input") && s.lines().skip(1).any(|l| l.contains('┊'))
+    });
+    // The spectrum's lines (after the header and its legend, down to the frequency axis): no
+    // trace (braille dots) over the middle of the hole, 447.3 .. 447.9 MHz, a share 0.53 ..
+    // 0.72 of the plot; the trace is drawn on either side of it.
+    let lines: Vec<&str> = s.lines().collect();
+    let axis = lines.iter().position(|l| l.trim_start().starts_with("MHz")).expect("an axis");
+    let plot = 120 - 6;
+    let (from, to) = (6 + plot * 53 / 100, 6 + plot * 72 / 100);
+    let braille = |c: char| ('\u{2801}'..='\u{28ff}').contains(&c);
+    let mut beside = 0;
+    for l in lines[1..axis].iter().filter(|l| !l.contains("average")) {
+        let chars: Vec<char> = l.chars().collect();
+        let inside = chars.get(from..to.min(chars.len())).unwrap_or(&[]);
+        assert!(!inside.iter().any(|&c| braille(c)), "a trace over the hole:\n{s}");
+        beside += chars.iter().take(from).filter(|&&c| braille(c)).count();
+    }
+    assert!(beside > 0, "no trace beside the hole:\n{s}");
     tmux.keys(&["q"]);
     tmux.wait_for("the shell after quitting", Duration::from_secs(20), |s| s.contains("BW-DONE-0"));
     drop(tmux);

@@ -25,7 +25,7 @@ pub fn run(mut cfg: MeasureConfig) -> Result<ExitCode> {
     let max_samples = cfg.seconds.map(|s| (s * info.sample_rate_hz).round() as u64);
     let skip_samples = samples_in(cfg.skip, info.sample_rate_hz).map_err(anyhow::Error::msg)?;
     let plan = &cfg.channels.plan;
-    // A retuned input is measured as one panorama; a hole between its steps is refused here.
+    // A retuned input is measured as one panorama; a grid too large is refused here.
     crate::pipeline::stitch::span_of(&info, cfg.dsp.fft_size)?;
     let mut spec = RunSpec::new(info.clone(), cfg.dsp.engine(None), cfg.dsp.threads);
     let request = OccupancyRequest {

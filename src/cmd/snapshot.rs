@@ -31,7 +31,7 @@ pub fn run(mut cfg: SnapshotConfig) -> Result<ExitCode> {
     let info = src.info().clone();
     super::settle_calibration(&mut cfg.calibration, &info)?;
     let rate = info.sample_rate_hz;
-    // A retuned input is one panorama (its span the steps' union); a hole in it is refused here.
+    // A retuned input is one panorama (holes drawn as gaps); a grid too large is refused here.
     let (lo, hi) = crate::pipeline::stitch::span_of(&info, cfg.dsp.fft_size)?;
     if !cfg.plan.is_empty() {
         cfg.plan.check_span(lo, hi)?;

@@ -49,7 +49,7 @@ pub fn run(mut cfg: WatchConfig) -> Result<ExitCode> {
     drop(opening);
     let info = src.info().clone();
     super::settle_calibration(&mut cfg.calibration, &info)?;
-    // A retuned input is one panorama: its span is the steps' union (a hole is refused here).
+    // A retuned input is one panorama (holes drawn stale); a grid too large is refused here.
     let (lo, hi) = span_of(&info, cfg.rows.dsp().fft_size)?;
     cfg.plan.check_span(lo, hi)?;
     let sweep = sweep_summary(&info, cfg.rows.dsp().fft_size)?;

@@ -22,6 +22,8 @@ pub struct SpectrumSum {
     geometry: Option<Arc<Geometry>>,
     first_sample: u64,
     end_sample: u64,
+    /// Of a panorama's rows, the last one's `last_seen` (bins never in view stay 0 in every one).
+    last_seen: Option<Arc<Vec<u64>>>,
 }
 
 impl SpectrumSum {
@@ -42,6 +44,7 @@ impl SpectrumSum {
         }
         self.frames += s.frames;
         self.end_sample = s.end_sample;
+        self.last_seen.clone_from(&s.last_seen);
     }
 
     /// The average over every frame added, with the degrees of freedom of that many frames taken
@@ -57,7 +60,7 @@ impl SpectrumSum {
             end_sample: self.end_sample,
             first_sample: self.first_sample,
             geometry: geometry.clone(),
-            last_seen: None,
+            last_seen: self.last_seen.clone(),
         })
     }
 }

@@ -106,6 +106,33 @@ impl Deref for Spectrum {
 }
 
 impl Spectrum {
+    /// Per bin, whether it was ever in view: `None` for a receiver that stays put (every bin
+    /// is); of a panorama's row, false for the bins of a hole between its steps (their PSD is 0,
+    /// no level), which measurements leave out and pictures draw as a gap.
+    pub fn seen(&self) -> Option<impl Iterator<Item = bool> + '_> {
+        self.last_seen.as_ref().map(|l| l.iter().map(|&s| s > 0))
+    }
+
+    /// Whether some part of the band `[low_hz, high_hz]` was never in view: beyond the span,
+    /// or over a bin of a panorama's hole (its bins whose centres lie in the band, or the bin
+    /// nearest its centre when it is narrower than a bin).
+    pub fn never_saw(&self, low_hz: f64, high_hz: f64) -> bool {
+        let (lo, hi) = self.span_hz();
+        // A millihertz of rounding is forgiven, as the plan check does.
+        if low_hz < lo - 1e-3 || high_hz > hi + 1e-3 {
+            return true;
+        }
+        let Some(seen) = self.last_seen.as_ref() else { return false };
+        let top = seen.len().saturating_sub(1);
+        let mut first = (self.bin_of_freq(low_hz).ceil().max(0.0) as usize).min(top);
+        let mut last = (self.bin_of_freq(high_hz).floor().max(0.0) as usize).min(top);
+        if first > last {
+            first = (self.bin_of_freq(0.5 * (low_hz + high_hz)).round().max(0.0) as usize).min(top);
+            last = first;
+        }
+        seen.get(first..=last).is_some_and(|b| b.contains(&0))
+    }
+
     /// A spectrum of this geometry with no frames yet; its PSD is allocated once here.
     pub fn empty(geometry: Arc<Geometry>) -> Spectrum {
         let n = geometry.fft_size;

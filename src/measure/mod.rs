@@ -16,5 +16,5 @@ pub mod vote;
 pub use band::{
     band_power, occupied_bandwidth, occupied_bandwidth_of, xdb_bandwidth, BinRun, Edges,
 };
-pub use noise::{noise_floor, NoiseFloor};
+pub use noise::{noise_floor, spectrum_floor, NoiseFloor};
 pub use signals::{find_signals, Detection, Signal};

@@ -6,7 +6,10 @@
 //! nothing needs to know the receiver moved. The grid is fixed before the first sample: each
 //! distinct centre keeps its usable bins (those whose centres lie in the central `usable`
 //! share of the rate), and a grid bin takes the bin of the same frequency (nearest centre, so within half a
-//! bin). The union must leave no hole: a bin never in view would be neither busy nor idle.
+//! bin). The steps need not touch: a plan over separate sub-bands leaves holes between them,
+//! whose bins are never in view. Such a bin keeps no level (its PSD stays 0 and its
+//! `last_seen` 0, "never"): pictures draw it as a gap, noise-floor estimates leave it out, no
+//! emitter is found in it, and a plan channel over it is logged "not measured", never idle.
 //!
 //! Per grid bin the accumulator keeps the power sum of the current sweep, its frame count and
 //! degrees of freedom, and the end sample of the last dwell that saw it ([`Panorama::last_seen`]).
@@ -18,6 +21,11 @@ use crate::dsp::{Geometry, Spectrum};
 use crate::source::tuning::Tuning;
 use crate::units::format_hz;
 use std::sync::Arc;
+
+/// The most bins a panorama's grid may hold: 2^24 (128 MiB for each per-bin table of f64), far
+/// beyond any real sweep at a useful resolution (a 6 GHz span at 400 Hz bins), small enough that a
+/// hostile recording cannot make the run allocate terabytes.
+pub const MAX_GRID_BINS: usize = 1 << 24;
 
 /// Where one distinct centre's usable bins land on the grid.
 #[derive(Clone, Debug, PartialEq)]
@@ -36,6 +44,9 @@ pub struct Grid {
     places: Vec<Placement>,
     /// Grid index of each of the tuning's steps' centre (into `places`).
     step_place: Vec<usize>,
+    /// The runs of grid bins some step sees (first, last), lowest first, merged where they
+    /// touch: between them lie holes, never in view.
+    in_view: Vec<(usize, usize)>,
     pub bins: usize,
     pub bin_hz: f64,
     /// Centre of grid bin 0.
@@ -43,8 +54,9 @@ pub struct Grid {
 }
 
 impl Grid {
-    /// Lays out the grid for a tuning at `rate_hz` with `fft_size` bins per step; an error names
-    /// a hole between two steps' usable bands and how to close it.
+    /// Lays out the grid for a tuning at `rate_hz` with `fft_size` bins per step, holes between
+    /// the steps' usable bands included (bins there are never in view); an error when no whole
+    /// bin is kept or the span would need more than [`MAX_GRID_BINS`] bins.
     pub fn new(tuning: &Tuning, rate_hz: f64, fft_size: usize) -> Result<Grid, String> {
         let bin_hz = rate_hz / fft_size as f64;
         let half = (fft_size / 2) as f64;
@@ -62,6 +74,21 @@ impl Grid {
         let centres = tuning.centres();
         let low = |c: f64| c + (first as f64 - half) * bin_hz;
         let first_hz = centres.iter().map(|&c| low(c)).fold(f64::INFINITY, f64::min);
+        let last_hz = centres.iter().map(|&c| low(c)).fold(f64::NEG_INFINITY, f64::max);
+        // The grid holds every bin between the lowest and the highest step, holes included:
+        // refuse one too large to hold before anything of its size is made (a hostile recording
+        // with captures petahertz apart, or a plan over a whole band at a narrow bin).
+        let span_bins = (last_hz - first_hz) / bin_hz + (last - first + 1) as f64;
+        if span_bins.is_nan() || span_bins > MAX_GRID_BINS as f64 {
+            return Err(format!(
+                "the steps span {} .. {} ({} wide): at bins of {} that is {:.0} grid bins, more than the {MAX_GRID_BINS} a panorama holds; give a smaller --fft (wider bins), a hop plan over a narrower band, or analyse one capture with --segment N",
+                format_hz(first_hz - bin_hz / 2.0),
+                format_hz(last_hz + (last - first) as f64 * bin_hz + bin_hz / 2.0),
+                format_hz(last_hz - first_hz + (last - first + 1) as f64 * bin_hz),
+                format_hz(bin_hz),
+                span_bins.round()
+            ));
+        }
         let places: Vec<Placement> = centres
             .iter()
             .map(|&c| Placement {
@@ -73,8 +100,8 @@ impl Grid {
             .collect();
         let bins =
             places.iter().map(|p| (p.last as isize + p.offset) as usize + 1).max().unwrap_or(0);
-        // The first hole between the steps' bands, from the bands sorted by their first bin
-        // (no per-bin table: centres far apart would make it as long as the span).
+        // The bands in view, merged, from the steps' bands sorted by their first bin (no per-bin
+        // table: a plan over separate sub-bands leaves most of its span in holes).
         let mut bands: Vec<(usize, usize)> = places
             .iter()
             .map(|p| {
@@ -82,36 +109,38 @@ impl Grid {
             })
             .collect();
         bands.sort_unstable();
-        let mut reach = 0usize;
-        let mut hole = None;
-        for &(from, to) in &bands {
-            if from > reach {
-                hole = Some((reach, from));
-                break;
+        let mut in_view: Vec<(usize, usize)> = Vec::new();
+        for (from, to) in bands {
+            match in_view.last_mut() {
+                Some(last) if from <= last.1 + 1 => last.1 = last.1.max(to),
+                _ => in_view.push((from, to)),
             }
-            reach = reach.max(to.saturating_add(1));
-        }
-        if let Some((hole, end)) = hole {
-            return Err(format!(
-                "the steps leave {} .. {} never in view (each step keeps the central {:.0} % of {}): a panorama must be gapless; give a larger --usable, a hop plan with closer centres, or analyse one capture with --segment N",
-                format_hz(first_hz + hole as f64 * bin_hz),
-                format_hz(first_hz + end as f64 * bin_hz),
-                tuning.usable * 100.0,
-                format_hz(rate_hz)
-            ));
         }
         let step_place = tuning
             .steps
             .iter()
             .map(|s| centres.iter().position(|&c| c == s.center_hz).unwrap_or(0))
             .collect();
-        Ok(Grid { places, step_place, bins, bin_hz, first_hz })
+        Ok(Grid { places, step_place, in_view, bins, bin_hz, first_hz })
     }
 
     /// Lowest and highest frequency of the panorama (outer bin edges).
     pub fn span_hz(&self) -> (f64, f64) {
         let lo = self.first_hz - self.bin_hz / 2.0;
         (lo, lo + self.bins as f64 * self.bin_hz)
+    }
+
+    /// Whether some step sees grid bin `bin` (false in a hole between steps).
+    pub fn in_view(&self, bin: usize) -> bool {
+        let at = self.in_view.partition_point(|&(_, to)| to < bin);
+        self.in_view.get(at).is_some_and(|&(from, _)| from <= bin)
+    }
+
+    /// The holes of the panorama: frequency ranges (outer bin edges) between the steps' bands,
+    /// lowest first; none when the steps tile the span.
+    pub fn holes_hz(&self) -> Vec<(f64, f64)> {
+        let edge = |bin: usize| self.first_hz + (bin as f64 - 0.5) * self.bin_hz;
+        self.in_view.windows(2).map(|w| (edge(w[0].1 + 1), edge(w[1].0))).collect()
     }
 
     /// Distinct centres visited, lowest first.
@@ -266,8 +295,8 @@ pub fn frames_per_sweep(tuning: &Tuning, grid: &Grid, fft_size: usize, hop: usiz
     let sweeps =
         if tuning.period.is_some() { 1 } else { visits.iter().copied().min().unwrap_or(1) };
     let per_place = frames.iter().map(|f| f / sweeps.max(1));
-    // Where steps overlap a bin is seen by more than one; every bin is seen by at least one
-    // place, so the least seen bin sees at least the least place's frames.
+    // Where steps overlap a bin is seen by more than one; every bin in view is seen by at least
+    // one place, so the least seen bin sees at least the least place's frames.
     per_place.min().unwrap_or(0)
 }
 
@@ -378,9 +407,10 @@ impl Panorama {
         &self.out
     }
 
-    /// True when some grid bin has never been in view (only before the first sweep ends).
+    /// True when some grid bin that a step sees has not been seen yet (only before the first
+    /// sweep ends); the bins of holes are never seen and do not count.
     pub fn has_unseen(&self) -> bool {
-        self.last_seen.iter().any(Option::is_none)
+        self.last_seen.iter().enumerate().any(|(j, s)| s.is_none() && self.grid.in_view(j))
     }
 }
 
@@ -397,6 +427,14 @@ mod tests {
             .map(|(k, &c)| Step { start: 1000 * k as u64, center_hz: c })
             .collect();
         Tuning { steps, period: None, settle_samples: 0, usable, follows_stream: false }
+    }
+
+    /// A panorama of `centres` at 1 MS/s, 1000-point Hann, 80 % kept, and an empty dwell row.
+    fn panorama_of(centres: &[f64]) -> (Panorama, Spectrum) {
+        let g = Grid::new(&tuning(centres, 0.8), 1e6, 1000).unwrap();
+        let step = Geometry::new(&Window::new(WindowKind::Hann, 1000), 1e6, 0.0);
+        let row = Spectrum::empty(Arc::new(step.clone()));
+        (Panorama::new(g, &step), row)
     }
 
     #[test]
@@ -438,27 +476,35 @@ mod tests {
     }
 
     #[test]
-    fn a_hole_between_steps_is_refused_with_its_edges() {
+    fn a_hole_between_steps_is_never_in_view_and_a_huge_span_is_refused() {
+        // 1 MS/s, 1 kHz bins, 80 % kept: 100 MHz sees 99.6 .. 100.4 MHz, 101 MHz 100.6 .. 101.4:
+        // 200 bins between them are never in view.
         let t = tuning(&[100e6, 101e6], 0.8);
-        let e = Grid::new(&t, 1e6, 1000).unwrap_err();
-        assert!(e.contains("100.4") && e.contains("100.6") && e.contains("--usable"), "{e}");
-        // Steps listed out of order: the hole above the three that tile, 102.0 .. 102.6 MHz.
-        let e = Grid::new(&tuning(&[101.6e6, 100e6, 100.8e6, 103e6], 0.8), 1e6, 1000).unwrap_err();
-        assert!(e.contains("102") && e.contains("102.6"), "{e}");
-        // Centres 9 PHz apart (a hostile recording): named as a hole, without a table of every
-        // bin between them (it would take terabytes).
+        let g = Grid::new(&t, 1e6, 1000).unwrap();
+        assert_eq!(g.bins, 1800);
+        assert!(g.in_view(0) && g.in_view(799) && !g.in_view(800) && !g.in_view(999));
+        assert!(g.in_view(1000) && g.in_view(1799) && !g.in_view(1800));
+        let holes = g.holes_hz();
+        assert_eq!(holes.len(), 1, "{holes:?}");
+        assert!((holes[0].0 - 100.3995e6).abs() < 1.0 && (holes[0].1 - 100.5995e6).abs() < 1.0);
+        // Steps listed out of order: three tile, the fourth lies beyond a hole.
+        let g = Grid::new(&tuning(&[101.6e6, 100e6, 100.8e6, 103e6], 0.8), 1e6, 1000).unwrap();
+        assert_eq!(g.holes_hz().len(), 1);
+        // Bins from 99.6 MHz: the hole 102.0 .. 102.6 MHz is bins 2400 ..= 2999.
+        assert!(g.in_view(2399) && !g.in_view(2400) && !g.in_view(2999) && g.in_view(3000));
+        // The hole has no view times; the steps on either side do.
+        assert!(
+            view_times(&t, &Grid::new(&t, 1e6, 1000).unwrap(), 1e6, 100.5e6, 100.51e6).is_none()
+        );
+        // Centres 9 PHz apart (a hostile recording): refused by its bin count, before any table
+        // of its size is made.
         let e = Grid::new(&tuning(&[1e6, 9e15], 0.8), 1e6, 1000).unwrap_err();
-        assert!(e.contains("never in view"), "{e}");
+        assert!(e.contains("grid bins") && e.contains("--fft") && e.contains("16777216"), "{e}");
     }
 
     #[test]
     fn a_dwell_lands_on_its_own_frequencies_and_sweeps_complete() {
-        let t = tuning(&[100e6, 100.8e6], 0.8);
-        let g = Grid::new(&t, 1e6, 1000).unwrap();
-        let w = Window::new(WindowKind::Hann, 1000);
-        let step = Geometry::new(&w, 1e6, 0.0);
-        let mut p = Panorama::new(g, &step);
-        let mut row = Spectrum::empty(Arc::new(step.clone()));
+        let (mut p, mut row) = panorama_of(&[100e6, 100.8e6]);
         row.frames = 2;
         row.psd[600] = 1.0; // +100 kHz from the second centre: 100.9 MHz
         row.end_sample = 1500;
@@ -474,5 +520,31 @@ mod tests {
         assert!((wide.freq_of_bin(peak as f64) - 100.9e6).abs() < 1.0);
         assert_eq!(wide.frames, 2);
         assert!(!p.has_unseen());
+    }
+
+    #[test]
+    fn a_sweep_with_a_hole_completes_and_its_row_says_what_was_never_seen() {
+        // 100 MHz sees 99.6 .. 100.4 MHz, 101 MHz 100.6 .. 101.4: a hole between.
+        let (mut p, mut row) = panorama_of(&[100e6, 101e6]);
+        row.frames = 1;
+        row.psd.iter_mut().for_each(|x| *x = 1.0);
+        row.end_sample = 10;
+        p.add(0, &row);
+        assert!(!p.dwell_done(0) && p.has_unseen());
+        p.add(1, &row);
+        assert!(p.dwell_done(1));
+        assert!(!p.has_unseen(), "the hole's bins are never seen and do not hold the sweep");
+        let wide = p.take();
+        assert!(!wide.never_saw(100.0e6, 100.01e6) && !wide.never_saw(101.0e6, 101.01e6));
+        assert!(wide.never_saw(100.5e6, 100.51e6), "in the hole");
+        assert!(wide.never_saw(100.39e6, 100.41e6), "half over the hole");
+        assert!(wide.never_saw(101.5e6, 101.51e6), "beyond the span");
+        // The hole's bins hold no level; the noise floor is read over the bins in view (all at
+        // 1: FCME's truncation correction for the χ² model leaves it within 0.1 dB of that).
+        let floor = crate::measure::spectrum_floor(wide);
+        assert!(crate::units::db(floor).abs() < 0.1, "{floor}");
+        // Counted in, the hole's zeros (200 of 1800 bins) would drag it down.
+        let all = crate::measure::noise_floor(&wide.psd, wide.dof);
+        assert!(all < 0.95 * floor, "{all} {floor}");
     }
 }

@@ -7,6 +7,7 @@ use crate::dsp::{DspConfig, EngineConfig, Window};
 use crate::measure::occupancy::{
     frames_per_sample, noise_false_occupancy, ChannelDef, Occupancy, Timing, DEFAULT_MAX_DWELL_S,
 };
+use crate::measure::panorama::view_times;
 use crate::plan::Plan;
 use crate::source::SourceInfo;
 use anyhow::Result;
@@ -36,6 +37,28 @@ pub struct OccupancySetup {
     pub rbw_hz: f64,
     /// Degrees of freedom of one measurement sample's PSD.
     pub row_dof: f64,
+    /// Per plan channel, whether the input ever has it whole in view: always for a receiver
+    /// that stays put; of a panorama, false for a channel in a hole or beyond the span.
+    pub in_view: Vec<bool>,
+}
+
+/// Per plan channel, whether the input has it whole in view. A receiver that stays put must
+/// have every channel inside its span (a channel outside it is a mistake in the plan: an
+/// error); a panorama's channel that no step sees whole is kept, and logged "not measured".
+fn channels_in_view(info: &SourceInfo, fft_size: usize, plan: &Plan) -> Result<Vec<bool>> {
+    let rate = info.sample_rate_hz;
+    match (super::stitch::grid_of(info, fft_size)?, info.tuning.as_ref()) {
+        (Some(grid), Some(t)) => Ok(plan
+            .channels
+            .iter()
+            .map(|c| view_times(t, &grid, rate, c.low_hz(), c.high_hz()).is_some())
+            .collect()),
+        _ => {
+            let (span_lo, span_hi) = super::stitch::span_of(info, fft_size)?;
+            plan.check_span_within(span_lo, span_hi, rate / fft_size as f64)?;
+            Ok(vec![true; plan.channels.len()])
+        }
+    }
 }
 
 impl OccupancySetup {
@@ -49,8 +72,7 @@ impl OccupancySetup {
         let rate = info.sample_rate_hz;
         let n = dsp.fft_size;
         let bin = rate / n as f64;
-        let (span_lo, span_hi) = super::stitch::span_of(info, n)?;
-        plan.check_span_within(span_lo, span_hi, bin)?;
+        let in_view = channels_in_view(info, n, plan)?;
         let hop = dsp.hop();
         let k = frames_per_sample(rate, hop, req.dwell_s).map_err(anyhow::Error::msg)?;
         let timing =
@@ -75,12 +97,13 @@ impl OccupancySetup {
             default_threshold_db: req.threshold_db,
             rbw_hz: window.enbw_bins() * bin,
             row_dof: welch_dof(&window, hop, k),
+            in_view,
         })
     }
 
     /// A tracker for these settings.
     pub fn tracker(&self) -> Occupancy {
-        Occupancy::new(self.timing.clone(), self.channels.clone())
+        Occupancy::new(self.timing.clone(), self.channels.clone()).with_view(&self.in_view)
     }
 
     /// The same settings with one interval spanning the whole input (for `measure`).

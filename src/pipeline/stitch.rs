@@ -21,8 +21,8 @@ use crate::units::format_hz;
 use anyhow::Result;
 use num_complex::Complex32;
 
-/// The panorama grid of a retuned input (`None` for one that stays put); an error when the
-/// steps leave a hole, naming it and the fix.
+/// The panorama grid of a retuned input (`None` for one that stays put); an error when its span
+/// needs more bins than a grid holds, naming it and the fix.
 pub fn grid_of(info: &SourceInfo, fft_size: usize) -> Result<Option<Grid>> {
     let Some(t) = info.tuning.as_ref() else { return Ok(None) };
     t.check_settle(info.sample_rate_hz)?;

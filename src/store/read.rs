@@ -314,10 +314,19 @@ fn channel_ends(
             if noise { " AND noise IS NOT NULL" } else { "" }
         )
     };
+    // A panorama's intervals never in view: invalid, with no time lost (see `IntervalCols`).
+    let unseen = db.rows(
+        &format!(
+            "SELECT SUM(span_s) FROM intervals WHERE channel_id = ?1 AND valid = 0 \
+             AND lost_s = 0 AND span_s > 0{w}"
+        ),
+        &params,
+    )?;
     let first = db.rows(&end("ASC", true), &params)?;
     let last = db.rows(&end("DESC", true), &params)?;
     let latest = db.rows(&end("DESC", false), &params)?;
     let ch = s.channels.get_mut(&(site, c.name.clone())).context("a channel summed")?;
+    ch.not_measured_s += unseen.first().and_then(|r| r[0].f64()).unwrap_or(0.0);
     for r in &counts {
         if let (Some(v), Some(n)) = (r[0].f64(), r[1].i64()) {
             ch.noise.count(v, n as u64);

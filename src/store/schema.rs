@@ -12,8 +12,11 @@
 //!
 //! Interval columns are what `report` computes per interval ([`crate::output::summary`]):
 //! `valid` (measured: samples > 0 and an occupancy), `measured_s` and `lost_s` (the span less
-//! the dropped samples at the run's rate), `occupied` (clamped to the samples), `power_w`
-//! (samples × linear mean power), so the database only adds them up.
+//! the dropped samples at the run's rate; of a panorama, `measured_s` is its `observation_s`, the
+//! time the channel was in view), `occupied` (clamped to the samples), `power_w` (samples ×
+//! linear mean power), so the database only adds them up. An interval of a panorama's channel
+//! never in view (`state` "not_measured") is stored invalid with no time lost: the only invalid
+//! interval whose `lost_s` is 0, which is how `report --db` tells it "not measured".
 //!
 //! `interval_hours` (version 2) holds the same sums per (channel, clock, hour): what `report`
 //! reads for every whole hour, 60 times fewer rows than the intervals at one a minute. The

@@ -643,12 +643,19 @@ impl IntervalCols {
             peak_dbfs: None,
             noise: None,
         };
+        if v["state"] == "not_measured" {
+            // A panorama's channel never in view: not measured and not lost either (the only
+            // invalid interval with no lost time: what `report --db` counts as not measured).
+            c.valid = false;
+            c.lost_s = 0.0;
+            return c;
+        }
         if !valid {
             return c;
         }
         let lost = if rate_hz > 0.0 { (dropped as f64 / rate_hz).min(span_s) } else { 0.0 };
         c.lost_s = lost;
-        c.measured_s = span_s - lost;
+        c.measured_s = crate::output::summary::observed_s(v, span_s - lost);
         c.samples = samples;
         c.occupied = v["occupied_samples"].as_f64().unwrap_or(0.0).clamp(0.0, samples as f64);
         if let Some(m) = v["mean_dbfs"].as_f64() {

@@ -152,6 +152,12 @@ impl ChannelActivity {
                 high_hz: ch.center_hz + 0.5 * ch.width_hz,
                 threshold_db: ch.threshold_db,
             };
+            // A panorama's channel never in view has no power and no occupancy to show.
+            if row.never_saw(def.low_hz, def.high_hz) {
+                st.power_dbfs = None;
+                st.occupied_now = false;
+                continue;
+            }
             // Without a floor the power is still read; occupancy waits for one.
             let reading = read_channel(row, &def, floor_density.unwrap_or(f64::INFINITY));
             let p = reading.power;

@@ -16,6 +16,7 @@
 pub mod tracker;
 
 use super::stats::{gamma_quantile_unit_mean, truncated_mean_unit};
+use crate::dsp::Spectrum;
 use crate::kernels::Kernels;
 
 /// Probability that a noise-only bin is excised as "signal".
@@ -26,6 +27,11 @@ const EXCISION_FALSE_ALARM: f64 = 1e-3;
 /// the floor of every row keeps a [`NoiseFloor`] instead.
 pub fn noise_floor(psd: &[f64], dof: f64) -> f64 {
     NoiseFloor::new().estimate(psd, dof)
+}
+
+/// The noise density of a spectrum over the bins ever in view (all but a panorama's holes).
+pub fn spectrum_floor(spec: &Spectrum) -> f64 {
+    NoiseFloor::new().estimate_seen(&spec.psd, spec.dof, spec.seen())
 }
 
 /// FCME with its working space (a copy of the finite bins) kept between calls, so that
@@ -56,6 +62,26 @@ impl NoiseFloor {
     pub fn estimate(&mut self, psd: &[f64], dof: f64) -> f64 {
         self.values.clear();
         self.values.extend(psd.iter().copied().filter(|v| v.is_finite()));
+        self.settle(dof)
+    }
+
+    /// As [`NoiseFloor::estimate`] over the bins of `psd` that were ever in view (`seen`: per
+    /// bin, see [`Spectrum::seen`]; `None`: all): a panorama's holes hold no level, and their
+    /// zeros would drag the floor down.
+    pub fn estimate_seen(
+        &mut self,
+        psd: &[f64],
+        dof: f64,
+        seen: Option<impl Iterator<Item = bool>>,
+    ) -> f64 {
+        let Some(seen) = seen else { return self.estimate(psd, dof) };
+        self.values.clear();
+        self.values.extend(psd.iter().zip(seen).filter(|(v, s)| *s && v.is_finite()).map(|p| *p.0));
+        self.settle(dof)
+    }
+
+    /// FCME over the values gathered.
+    fn settle(&mut self, dof: f64) -> f64 {
         if self.values.is_empty() {
             return 0.0;
         }

@@ -98,7 +98,7 @@ impl NoiseTracker {
     /// Takes a row and returns the tracked density (FS²/Hz).
     pub fn push(&mut self, row: &Spectrum) -> f64 {
         let (psd, dof) = self.smoothed.push(row);
-        self.median.push(self.fcme.estimate(psd, dof))
+        self.median.push(self.fcme.estimate_seen(psd, dof, row.seen()))
     }
 
     /// The tracked density, 0 before the first row.

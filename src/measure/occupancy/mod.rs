@@ -114,6 +114,11 @@ pub struct IntervalSummary {
     pub dropped_samples: u64,
     /// The interval was cut short (end of input, stop).
     pub partial: bool,
+    /// False for a channel of a panorama that no step sees whole (in a hole between steps,
+    /// or beyond the span): nothing of it was measured, so its interval is "not measured",
+    /// never idle (ITU-R Report SM.2256, from memory: occupancy is over the observation time,
+    /// and it has none).
+    pub in_view: bool,
 }
 
 impl IntervalSummary {

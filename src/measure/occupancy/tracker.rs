@@ -88,6 +88,9 @@ struct RowNote {
 #[derive(Clone, Debug)]
 struct ChannelState {
     def: ChannelDef,
+    /// False for a channel of a panorama never in view (in a hole, or beyond its span): it is
+    /// never read, never occupied, and its intervals say "not measured".
+    in_view: bool,
     bins: (usize, usize),
     acc: IntervalAcc,
     open: Option<OpenEmission>,
@@ -132,6 +135,7 @@ impl Occupancy {
             .into_iter()
             .map(|def| ChannelState {
                 def,
+                in_view: true,
                 bins: (0, 0),
                 acc: IntervalAcc::default(),
                 open: None,
@@ -153,6 +157,15 @@ impl Occupancy {
             gaps: Vec::new(),
             grid: None,
         }
+    }
+
+    /// Marks the channels whose `in_view` is false (by plan order) as never in view: see
+    /// [`IntervalSummary::in_view`].
+    pub fn with_view(mut self, in_view: &[bool]) -> Occupancy {
+        for (ch, &v) in self.channels.iter_mut().zip(in_view) {
+            ch.in_view = v;
+        }
+        self
     }
 
     pub fn timing(&self) -> &Timing {
@@ -178,10 +191,13 @@ impl Occupancy {
         self.rows[SPAN - 1] =
             Some(RowNote { start, end, interval: start / self.timing.interval, density, slot });
         for ch in self.channels.iter_mut() {
-            let r = read_channel(row, &ch.def, density);
             ch.seen.rotate_left(1);
-            ch.seen[SPAN - 1] =
-                Seen { power: r.power, noise_power: r.noise_power, occupied: r.occupied };
+            ch.seen[SPAN - 1] = if ch.in_view {
+                let r = read_channel(row, &ch.def, density);
+                Seen { power: r.power, noise_power: r.noise_power, occupied: r.occupied }
+            } else {
+                Seen::default()
+            };
             let w = ch.width();
             ch.ring[slot * w..(slot + 1) * w].copy_from_slice(&row.psd[ch.bins.0..=ch.bins.1]);
         }
@@ -348,6 +364,7 @@ impl Occupancy {
                 quiet_power: acc.quiet_power_sum / acc.quiet_rows.max(1) as f64,
                 dropped_samples: dropped,
                 partial,
+                in_view: ch.in_view,
             }));
         }
     }

@@ -386,6 +386,7 @@ mod tests {
             channel_floor_dbm_per_hz: None,
             observation_s: None,
             revisit_s: None,
+            state: None,
         };
         gauges.record(&stamped(Record::Interval(lost)));
         let labels = [("site", ""), ("channel", "telem"), ("what", "busier")];

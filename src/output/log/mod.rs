@@ -246,6 +246,7 @@ mod tests {
                 channel_floor_dbm_per_hz: Some(-133.6),
                 observation_s: None,
                 revisit_s: None,
+                state: None,
             }),
             Record::Emission(EmissionRecord {
                 channel: "north-gate".into(),

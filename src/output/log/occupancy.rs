@@ -32,11 +32,14 @@ pub fn interval_record(
     c: &crate::pipeline::clock::Clock,
     calibration: Option<&Calibration>,
 ) -> IntervalRecord {
-    let measured = i.samples > 0;
+    // An interval whose input was all lost, or of a panorama's channel never in view, has no
+    // level and no occupancy.
+    let measured = i.samples > 0 && i.in_view;
     let mean_dbfs = measured.then(|| round_to(db(i.mean_power), 2));
     let peak_dbfs = measured.then(|| round_to(db(i.peak_power), 2));
     let floor = measured.then(|| round_to(db(i.noise_density), 2));
-    let channel_floor = (i.quiet_samples > 0).then(|| round_to(db(i.quiet_power / l.width_hz), 2));
+    let channel_floor =
+        (measured && i.quiet_samples > 0).then(|| round_to(db(i.quiet_power / l.width_hz), 2));
     // dBm twins at the channel's centre, when calibrated.
     let dbm = |v: Option<f64>| {
         let cal = calibration?;
@@ -50,12 +53,12 @@ pub fn interval_record(
         t_end_s: c.seconds(i.end_sample),
         start: c.stamp(i.start_sample),
         end: c.stamp_end(i.end_sample),
-        // An interval whose input was all lost has no level and no occupancy.
         occupancy_pct: measured.then(|| round_to(i.occupancy_pct(), 3)),
         mean_dbfs,
         peak_dbfs,
         noise_floor_dbfs_per_hz: floor,
-        samples: i.samples,
+        // A panorama's channel never in view had no sample measured.
+        samples: if i.in_view { i.samples } else { 0 },
         // Shares to a thousandth of a sample: finer says nothing.
         occupied_samples: (i.occupied * 1000.0).round() / 1000.0,
         dropped_samples: i.dropped_samples,
@@ -67,6 +70,7 @@ pub fn interval_record(
         channel_floor_dbm_per_hz: dbm(channel_floor),
         observation_s: None,
         revisit_s: None,
+        state: None,
     }
 }
 
@@ -295,11 +299,20 @@ impl<W: Write> OccupancyLog<W> {
             Event::Interval(i) => {
                 let l = &self.plan.channels[i.channel];
                 let mut r = interval_record(i, l, c, self.calibration.as_ref());
-                if let Some(v) = self.views.get(i.channel).copied().flatten() {
-                    // One measurement sample per sweep: each is one sweep's visits.
-                    r.observation_s =
-                        Some(round_to(i.samples as f64 * v.observation_per_sweep_s, 6));
-                    r.revisit_s = v.revisit_s.map(|s| round_to(s, 6));
+                match self.views.get(i.channel) {
+                    Some(Some(v)) if i.in_view => {
+                        // One measurement sample per sweep: each is one sweep's visits.
+                        r.observation_s =
+                            Some(round_to(i.samples as f64 * v.observation_per_sweep_s, 6));
+                        r.revisit_s = v.revisit_s.map(|s| round_to(s, 6));
+                        r.state = Some("measured".into());
+                    }
+                    // A panorama's channel never in view: no observation time at all.
+                    Some(_) => {
+                        r.observation_s = Some(0.0);
+                        r.state = Some("not_measured".into());
+                    }
+                    None => {}
                 }
                 Some(Record::Interval(r))
             }
@@ -353,6 +366,7 @@ fn panorama_setup(t: &Tuning, grid: &Grid, rate_hz: f64) -> PanoramaSetup {
         settle_s: round_to(t.settle_samples as f64 / rate_hz, 9),
         usable: t.usable,
         timeline: timeline.to_string(),
+        holes_hz: grid.holes_hz().iter().map(|&(a, b)| [round_to(a, 2), round_to(b, 2)]).collect(),
     }
 }
 

@@ -90,6 +90,10 @@ pub struct PanoramaSetup {
     pub usable: f64,
     /// Where the dwells come from: `hop_plan`, `captures` or `stream` (VITA 49 retunes).
     pub timeline: String,
+    /// The holes between the steps' bands, never in view (low and high edge each), lowest
+    /// first; absent when the steps tile the span.
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub holes_hz: Vec<[f64; 2]>,
 }
 
 /// One per channel of the plan, after the start record.
@@ -137,6 +141,12 @@ pub struct IntervalRecord {
     pub observation_s: Option<f64>,
     #[serde(skip_serializing_if = "Option::is_none")]
     pub revisit_s: Option<f64>,
+    /// Of a panorama: `measured`, or `not_measured` for a channel that no step has whole in
+    /// view (in a hole between steps, or beyond the span): its occupancy and levels are then
+    /// `null` and its `observation_s` 0, never idle, never busy. Absent for an input that stays
+    /// at one centre.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub state: Option<String>,
 }
 
 #[derive(Serialize, Debug, Clone, PartialEq)]
@@ -318,4 +328,5 @@ pub const CSV_COLUMNS: &[&str] = &[
     "channel_floor_dbm_per_hz",
     "observation_s",
     "revisit_s",
+    "state",
 ];

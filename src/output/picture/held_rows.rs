@@ -29,7 +29,8 @@ pub struct HeldRow {
     pub first_sample: u64,
     /// One past its last sample.
     pub end_sample: u64,
-    /// Level of each column, dBFS in one RBW.
+    /// Level of each column, dBFS in one RBW; NaN for a column of a panorama's hole (never in
+    /// view: no level, drawn as a gap).
     pub level_db: Vec<f32>,
 }
 
@@ -85,6 +86,8 @@ pub struct RowAccumulator {
     total: Vec<f64>,
     total_frames: f64,
     input_rows: u64,
+    /// Per column, true when none of its bins was ever in view (a panorama's hole).
+    never_seen: Vec<bool>,
 }
 
 impl RowAccumulator {
@@ -104,6 +107,7 @@ impl RowAccumulator {
             total: Vec::new(),
             total_frames: 0.0,
             input_rows: 0,
+            never_seen: Vec::new(),
         }
     }
 
@@ -118,6 +122,11 @@ impl RowAccumulator {
                 self.column = vec![0.0; cols];
                 self.total = vec![0.0; cols];
                 self.geometry = Some(row.geometry.clone());
+                if let Some(seen) = row.seen() {
+                    let seen: Vec<bool> = seen.collect();
+                    self.never_seen =
+                        seen.chunks(self.group).map(|c| c.iter().all(|s| !s)).collect();
+                }
             }
             Some(g) if **g != *row.geometry => return false,
             Some(_) => {}
@@ -177,24 +186,37 @@ impl RowAccumulator {
     pub fn finish(mut self) -> Option<HeldRows> {
         let geometry = self.geometry.clone()?;
         self.store();
-        let level = |p: f64, frames: f64| db(p / frames.max(1.0)) as f32;
+        let never = |i: usize| self.never_seen.get(i).copied().unwrap_or(false);
+        let levels = |power: &[f64], frames: f64| -> Vec<f32> {
+            let level = |(i, &p): (usize, &f64)| {
+                if never(i) {
+                    f32::NAN
+                } else {
+                    db(p / frames.max(1.0)) as f32
+                }
+            };
+            power.iter().enumerate().map(level).collect()
+        };
         let rows: Vec<HeldRow> = self
             .rows
             .iter()
             .map(|s| HeldRow {
                 first_sample: s.first,
                 end_sample: s.end,
-                level_db: s.power.iter().map(|&p| level(p, s.frames)).collect(),
+                level_db: levels(&s.power, s.frames),
             })
             .collect();
         let cols = self.total.len();
-        let mut peak_db = vec![f32::NEG_INFINITY; cols];
+        let mut peak_db: Vec<f32> =
+            (0..cols).map(|i| if never(i) { f32::NAN } else { f32::NEG_INFINITY }).collect();
         for r in &rows {
             for (m, &v) in peak_db.iter_mut().zip(&r.level_db) {
-                *m = m.max(v);
+                if !m.is_nan() {
+                    *m = m.max(v);
+                }
             }
         }
-        let average_db = self.total.iter().map(|&p| level(p, self.total_frames)).collect();
+        let average_db = levels(&self.total, self.total_frames);
         let bin_hz = geometry.bin_hz();
         let low_hz = geometry.freq_of_bin(-0.5);
         let high_hz = low_hz + (cols * self.group) as f64 * bin_hz;

@@ -111,7 +111,7 @@ impl EmissionFinder {
             self.window = Some(Window::new(row.window, row.fft_size));
         }
         let window = self.window.as_ref().expect("set above");
-        let floor = self.floor.estimate(&row.psd, row.dof);
+        let floor = self.floor.estimate_seen(&row.psd, row.dof, row.seen());
         let found = find_signals(row, window, floor, PER_ROW, Detection::default());
         let slack = row.rbw_hz;
         for o in self.open.iter_mut() {

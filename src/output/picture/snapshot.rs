@@ -210,7 +210,7 @@ impl Collected {
                 self.held.input_rows,
                 self.held.rows_per_stored,
             ),
-            format!("levels: largest bin per pixel column · {time}"),
+            format!("levels: largest bin per pixel column{} · {time}", holes_words(&grid)),
         ])
     }
 }
@@ -235,6 +235,18 @@ pub fn format_duration(s: f64) -> String {
         let minutes = (s / 60.0).round() as u64;
         format!("{} h {} min", minutes / 60, minutes % 60)
     }
+}
+
+/// The holes of a panorama in words for the footer (" · grey: never in view, 447.1995 ..
+/// 447.9995 MHz"), or nothing when its steps tile the span.
+fn holes_words(grid: &crate::measure::panorama::Grid) -> String {
+    let holes = grid.holes_hz();
+    if holes.is_empty() {
+        return String::new();
+    }
+    let listed: Vec<String> =
+        holes.iter().map(|&(a, b)| format!("{} .. {}", format_hz(a), format_hz(b))).collect();
+    format!(" · grey: never in view, {}", listed.join(", "))
 }
 
 #[cfg(test)]

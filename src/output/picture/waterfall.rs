@@ -279,6 +279,28 @@ fn label_font<'a>() -> TextStyle<'a> {
     (FAMILY, 13).into_font().color(&TEXT)
 }
 
+/// The grey of a stretch with no data (the waterfall's checker uses its two shades).
+const NO_DATA: RGBColor = RGBColor(130, 130, 130);
+
+/// The frequency ranges of a panorama's holes in `view` (columns whose average is NaN: never
+/// in view), each as its columns' outer edges.
+fn holes(view: &WaterfallView<'_>) -> Vec<(f64, f64)> {
+    let Some(a) = view.average_db else { return Vec::new() };
+    let step = (view.high_hz - view.low_hz) / a.len().max(1) as f64;
+    let mut out: Vec<(f64, f64)> = Vec::new();
+    for (i, v) in a.iter().enumerate() {
+        if !v.is_nan() {
+            continue;
+        }
+        let (x0, x1) = (view.low_hz + i as f64 * step, view.low_hz + (i + 1) as f64 * step);
+        match out.last_mut() {
+            Some(last) if (last.1 - x0).abs() < step * 1e-6 => last.1 = x1,
+            _ => out.push((x0, x1)),
+        }
+    }
+    out
+}
+
 fn draw_spectrum<DB: DrawingBackend>(
     area: &DrawingArea<DB, Shift>,
     view: &WaterfallView<'_>,
@@ -320,27 +342,41 @@ fn draw_spectrum<DB: DrawingBackend>(
         chart.draw_series([Text::new(ch.name.clone(), at, style)]).map_err(drawing)?;
     }
     let off = settings.ref_offset_db.unwrap_or(0.0);
-    let columns = |levels: &[f32]| -> Vec<(f64, f64)> {
+    // The traces as runs of columns with a level: a panorama's hole (NaN, never in view)
+    // breaks the line, so it shows as a gap, never as a floor.
+    let columns = |levels: &[f32]| -> Vec<Vec<(f64, f64)>> {
         let n = levels.len().max(1) as f64;
         let step = (view.high_hz - view.low_hz) / n;
-        levels
-            .iter()
-            .enumerate()
-            .map(|(i, &v)| {
-                (view.low_hz + (i as f64 + 0.5) * step, (v as f64 + off).clamp(low, high))
-            })
-            .collect()
+        let mut runs: Vec<Vec<(f64, f64)>> = vec![Vec::new()];
+        for (i, &v) in levels.iter().enumerate() {
+            if v.is_nan() {
+                runs.push(Vec::new());
+                continue;
+            }
+            let at = (view.low_hz + (i as f64 + 0.5) * step, (v as f64 + off).clamp(low, high));
+            runs.last_mut().expect("one run at least").push(at);
+        }
+        runs.retain(|r| !r.is_empty());
+        runs
     };
+    let trace = |levels: &[f32], style: ShapeStyle| {
+        columns(levels).into_iter().map(move |r| PathElement::new(r, style))
+    };
+    for (x0, x1) in holes(view) {
+        chart
+            .draw_series([Rectangle::new([(x0, low), (x1, high)], NO_DATA.mix(0.35).filled())])
+            .map_err(drawing)?;
+    }
     if let Some(p) = view.peak_db {
         chart
-            .draw_series(LineSeries::new(columns(p), PEAK.stroke_width(1)))
+            .draw_series(trace(p, PEAK.stroke_width(1)))
             .map_err(drawing)?
             .label("highest")
             .legend(|(x, y)| PathElement::new([(x, y), (x + 18, y)], PEAK.stroke_width(2)));
     }
     if let Some(a) = view.average_db {
         chart
-            .draw_series(LineSeries::new(columns(a), AVERAGE.stroke_width(1)))
+            .draw_series(trace(a, AVERAGE.stroke_width(1)))
             .map_err(drawing)?
             .label("average")
             .legend(|(x, y)| PathElement::new([(x, y), (x + 18, y)], AVERAGE.stroke_width(2)));
@@ -539,6 +575,12 @@ pub fn waterfall_pixels(
             }
             let c0 = i * cols / w;
             let c1 = ((i + 1) * cols / w).max(c0 + 1).min(cols);
+            if power[c0..c1].iter().all(|p| p.is_nan()) {
+                // A panorama's hole, never in view: the grey of "no data", never a floor.
+                let light = ((i / 4) + (j / 4)) % 2 == 0;
+                px.copy_from_slice(if light { &[150, 150, 150] } else { &[115, 115, 115] });
+                continue;
+            }
             let p = power[c0..c1].iter().copied().fold(0.0, f64::max) / weight;
             px.copy_from_slice(&level_colour(settings.map, db(p) + off, scale));
         }

@@ -25,7 +25,7 @@ use crate::dsp::{Spectrum, Window};
 use crate::measure::calibration::Calibration;
 use crate::measure::stats::gamma_quantile_unit_mean;
 use crate::measure::{
-    band_power, find_signals, noise_floor, occupied_bandwidth, xdb_bandwidth, Detection,
+    band_power, find_signals, occupied_bandwidth, spectrum_floor, xdb_bandwidth, Detection,
 };
 use crate::output::class_fields::ClassFields;
 use crate::output::levels::level_unit;
@@ -72,7 +72,7 @@ pub fn build_report(
     counts: &InputCounts,
 ) -> Result<Report> {
     let window = Window::new(spec.window, spec.fft_size);
-    let floor = noise_floor(&spec.psd, spec.dof);
+    let floor = spectrum_floor(spec);
     let det = Detection {
         obw_percent: settings.obw_percent,
         false_alarm_per_bin: settings.false_alarm_per_bin,
@@ -149,11 +149,12 @@ pub fn build_report(
 }
 
 /// Power and occupied bandwidth of each plan channel in the whole-input average, with the
-/// channel's occupancy over the whole input: (occupancy %, measurement samples) per channel.
+/// channel's occupancy over the whole input: (occupancy %, measurement samples) per channel,
+/// the occupancy `None` for a panorama's channel never in view (not measured).
 pub fn channel_rows(
     plan: &Plan,
     spec: &Spectrum,
-    occupancy: &[(f64, u64)],
+    occupancy: &[(Option<f64>, u64)],
     dwell_s: f64,
     obw_percent: f64,
 ) -> Vec<ChannelRow> {
@@ -164,7 +165,8 @@ pub fn channel_rows(
             name: c.name.clone(),
             center_hz: c.center_hz,
             width_hz: c.width_hz,
-            power_dbfs: db(band_power(spec, c.low_hz(), c.high_hz())),
+            // A panorama's channel never in view has no level (its bins hold none).
+            power_dbfs: pct.map(|_| db(band_power(spec, c.low_hz(), c.high_hz()))),
             obw_hz: occupied_bandwidth(spec, c.low_hz(), c.high_hz(), obw_percent)
                 .map_or(0.0, |e| e.width_hz()),
             occupancy_pct: pct,
@@ -262,9 +264,10 @@ pub struct ChannelRow {
     pub name: String,
     pub center_hz: f64,
     pub width_hz: f64,
-    pub power_dbfs: f64,
+    /// `null` for a panorama's channel never in view (not measured), as its occupancy.
+    pub power_dbfs: Option<f64>,
     pub obw_hz: f64,
-    pub occupancy_pct: f64,
+    pub occupancy_pct: Option<f64>,
     pub samples: u64,
     pub dwell_s: f64,
 }
@@ -396,15 +399,19 @@ impl Report {
                 "occupancy"
             );
             for c in &self.channels {
+                let (power, occupancy) = match (c.power_dbfs, c.occupancy_pct) {
+                    (Some(p), Some(o)) => {
+                        (format!("{:.2}", at(p, c.center_hz)), format!("{o:.1} %"))
+                    }
+                    _ => ("-".to_string(), "not measured".to_string()),
+                };
                 let _ = writeln!(
                     s,
-                    "{:<16}  {:>18}  {:>9}  {:>11.2}  {:>12}  {:>8.1} %",
+                    "{:<16}  {:>18}  {:>9}  {power:>11}  {:>12}  {occupancy:>10}",
                     c.name,
                     format_hz(c.center_hz),
                     format_hz_short(c.width_hz, 2),
-                    at(c.power_dbfs, c.center_hz),
                     format_hz_short(c.obw_hz, 2),
-                    c.occupancy_pct
                 );
             }
             if let Some(c) = self.channels.first() {

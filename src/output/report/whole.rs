@@ -17,13 +17,14 @@ pub struct WholeInput {
     rows: u64,
     /// Samples handed to the run.
     pub samples: u64,
-    /// Per plan channel: (occupancy %, measurement samples).
-    pub occupancy: Vec<(f64, u64)>,
+    /// Per plan channel: (occupancy %, measurement samples); the occupancy `None` for a
+    /// panorama's channel never in view.
+    pub occupancy: Vec<(Option<f64>, u64)>,
 }
 
 impl WholeInput {
     pub fn new(channels: usize) -> WholeInput {
-        WholeInput { occupancy: vec![(0.0, 0); channels], ..WholeInput::default() }
+        WholeInput { occupancy: vec![(Some(0.0), 0); channels], ..WholeInput::default() }
     }
 
     /// The average over every frame, with the degrees of freedom of frames `hop` apart.
@@ -62,7 +63,7 @@ impl Consumer for WholeInput {
 
     fn event(&mut self, event: &Event, _run: &RunInfo) -> io::Result<()> {
         if let Event::Interval(i) = event {
-            self.occupancy[i.channel] = (i.occupancy_pct(), i.samples);
+            self.occupancy[i.channel] = (i.in_view.then(|| i.occupancy_pct()), i.samples);
         }
         Ok(())
     }

@@ -33,7 +33,7 @@ pub fn to_csv(summary: &LogSummary) -> String {
     let zone = &summary.settings.zone;
     let hours = summary.hour_axis();
     let mut out = String::from(
-        "site,channel,center_hz,width_hz,occupancy_pct,samples,occupied_samples,dropped_samples,observed_s,lost_s,emissions,duration_median_s,duration_p90_s,duration_max_s,mean_dbfs,peak_dbfs,busy_hour,busy_hour_occupancy_pct,last_heard,noise_floor_start,noise_floor_median,noise_floor_end",
+        "site,channel,center_hz,width_hz,occupancy_pct,samples,occupied_samples,dropped_samples,observed_s,lost_s,not_measured_s,emissions,duration_median_s,duration_p90_s,duration_max_s,mean_dbfs,peak_dbfs,busy_hour,busy_hour_occupancy_pct,last_heard,noise_floor_start,noise_floor_median,noise_floor_end",
     );
     for h in &hours {
         let _ = write!(out, ",h{h:02}");
@@ -56,6 +56,7 @@ pub fn to_csv(summary: &LogSummary) -> String {
             c.dropped_samples.to_string(),
             field(Some(secs(c.total.seconds))),
             field(Some(secs(c.lost_s))),
+            field(Some(secs(c.not_measured_s))),
             c.durations_s.len().to_string(),
             d(50.0),
             d(90.0),
@@ -128,6 +129,8 @@ pub fn to_json(summary: &LogSummary) -> Value {
                 "dropped_samples": c.dropped_samples,
                 "observed_s": secs(c.total.seconds),
                 "lost_s": secs(c.lost_s),
+                // A panorama's channel never in view: seconds not measured (occupancy null).
+                "not_measured_s": secs(c.not_measured_s),
                 "emissions": c.durations_s.len(),
                 "emission_duration_s": {
                     "median": percentile(&c.durations_s, 50.0).map(secs),

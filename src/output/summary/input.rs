@@ -30,6 +30,7 @@ const TEXT_COLUMNS: &[&str] = &[
     "method",
     "class",
     "designator",
+    "state",
 ];
 
 /// Columns holding JSON text (an object in the record).

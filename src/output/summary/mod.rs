@@ -12,7 +12,9 @@
 //! in the hour in which it starts (intervals of the default 60 s started on a whole minute never
 //! straddle an hour), and in the window `--from`/`--to` when it starts inside it. Intervals whose
 //! input was lost (`samples` 0, `occupancy_pct` null) and the `dropped_samples` of the others are
-//! counted as *not measured*, never as idle.
+//! counted as *not measured*, never as idle; so are the intervals of a panorama's channel that
+//! no step has in view (`state` "not_measured"), kept apart from lost input. A panorama's
+//! intervals count the time their channel was in view (`observation_s`) as observed.
 //!
 //! **Many files.** Rotated files, files written with `--append` and the files of a daily loop are
 //! read alike: each `start` record begins a run; a record already seen (the start record repeated
@@ -108,6 +110,9 @@ pub struct ChannelSum {
     pub dropped_samples: u64,
     /// Seconds of input lost (dropped samples, intervals without samples).
     pub lost_s: f64,
+    /// Seconds of a panorama's intervals in which the channel was never in view (their
+    /// `state` "not_measured"): not measured, not lost, never idle.
+    pub not_measured_s: f64,
     pub hours: BTreeMap<HourKey, Tally>,
     /// Σ samples × linear mean power of each interval (for the sample-weighted mean).
     pub power_weighted: f64,
@@ -442,6 +447,10 @@ impl LogSummary {
         let dropped = v["dropped_samples"].as_u64().unwrap_or(0);
         ch.dropped_samples += dropped;
         let span = (num(v, "t_end_s") - num(v, "t_start_s")).max(0.0);
+        if v["state"] == "not_measured" {
+            ch.not_measured_s += span;
+            return;
+        }
         if samples == 0 || v["occupancy_pct"].is_null() {
             ch.lost_s += span;
             return;
@@ -449,7 +458,7 @@ impl LogSummary {
         let lost = if st.rate_hz > 0.0 { (dropped as f64 / st.rate_hz).min(span) } else { 0.0 };
         ch.lost_s += lost;
         let occupied = v["occupied_samples"].as_f64().unwrap_or(0.0).clamp(0.0, samples as f64);
-        let tally = Tally { samples, occupied, seconds: span - lost };
+        let tally = Tally { samples, occupied, seconds: observed_s(v, span - lost) };
         ch.total.add(&tally);
         let hour = match start {
             Some(t) => HourKey::Clock(zone.hour_of(t)),
@@ -479,6 +488,13 @@ impl LogSummary {
 
 fn num(v: &Value, field: &str) -> f64 {
     v[field].as_f64().unwrap_or(0.0)
+}
+
+/// The seconds an interval record measured its channel: of a panorama, the time it was in view
+/// (its `observation_s`, ITU-R Report SM.2256's observation time), so that occupancy is busy
+/// over observed time; otherwise `input_s`, the interval's input less what was lost.
+pub fn observed_s(v: &Value, input_s: f64) -> f64 {
+    v["observation_s"].as_f64().filter(|o| o.is_finite() && *o >= 0.0).unwrap_or(input_s)
 }
 
 /// The start record without the `id` a publisher adds: the same run read from a file and from a

@@ -29,6 +29,15 @@ fn opt(x: Option<f64>, decimals: usize) -> String {
     x.map_or_else(|| "-".to_string(), |v| format!("{v:.decimals$}"))
 }
 
+/// A channel's occupancy, or "not measured" for a panorama's channel never in view (never a
+/// 0 % that would read as idle).
+fn occupancy_cell(c: &ChannelSum) -> String {
+    match c.total.pct() {
+        None if c.not_measured_s > 0.0 => "not measured".to_string(),
+        p => opt(p, 2),
+    }
+}
+
 /// The text report.
 pub fn to_table(summary: &LogSummary) -> String {
     let zone = &summary.settings.zone;
@@ -153,7 +162,7 @@ fn channel_rows(out: &mut String, summary: &LogSummary) {
         let busy = c.busy_hour().map_or("-".to_string(), |(h, p)| format!("{h:02}h {p:.1} %"));
         r.extend([
             c.name.clone(),
-            opt(c.total.pct(), 2),
+            occupancy_cell(c),
             c.durations_s.len().to_string(),
             opt(percentile(&c.durations_s, 50.0), 3),
             opt(percentile(&c.durations_s, 90.0), 3),
@@ -168,6 +177,12 @@ fn channel_rows(out: &mut String, summary: &LogSummary) {
     }
     let text_columns = if sites { 2 } else { 1 };
     aligned(out, &rows, text_columns);
+    if summary.channels.values().any(|c| c.not_measured_s > 0.0) {
+        let _ = writeln!(
+            out,
+            "not measured: a sweep's channel that no step had whole in view (in a hole between steps, or beyond the span): no occupancy, never idle"
+        );
+    }
     let _ = writeln!(
         out,
         "occupancy: occupied / measured samples; durations of emissions (nearest rank); busy hour: the hour of day with the highest occupancy, when one is higher than the rest (hours measured under 6 min left out)"

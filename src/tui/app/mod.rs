@@ -32,7 +32,7 @@ use super::traces::Traces;
 use super::view::{column_max, BinGrid, View, MIN_VIEW_BINS};
 use crate::dsp::{Spectrum, Window, WindowKind};
 use crate::measure::classify::Class;
-use crate::measure::{find_signals, noise_floor, Detection};
+use crate::measure::{find_signals, spectrum_floor, Detection};
 use crate::output::log::changes::ChangeBoard;
 use crate::pipeline::kinds::LiveKinds;
 use crate::pipeline::latest::RowSettings;
@@ -391,7 +391,7 @@ impl App {
             Some(w) if w.kind == avg.window && w.len() == avg.fft_size => w,
             _ => Window::new(avg.window, avg.fft_size),
         };
-        let floor = noise_floor(&avg.psd, avg.dof);
+        let floor = spectrum_floor(&avg);
         self.table.signals =
             find_signals(&avg, &window, floor, MAX_SIGNALS, self.measured.detection);
         self.table.sort.apply(&mut self.table.signals);
@@ -754,12 +754,21 @@ impl App {
         // Scrolled back, the current trace is the time cursor's row.
         let shown = self.cursor.spectrum.as_ref().unwrap_or(cur);
         let shown_map = grid_of(shown).column_map(&view, ncols);
-        Some([
+        let mut traces = [
             to_db(column_max(&shown.psd, &shown_map), shown.rbw_hz),
             to_db(column_max(self.traces.average_psd(), &map), cur.rbw_hz),
             to_db(column_max(self.traces.hold_psd(), &map), cur.rbw_hz),
             to_db(column_max(self.traces.min_hold_psd(), &map), cur.rbw_hz),
-        ])
+        ];
+        // A panorama's hole was never in view: no level, so no trace there (a gap, not a floor).
+        if let Some(seen) = cur.last_seen.as_ref() {
+            for (c, r) in map.iter().enumerate() {
+                if seen.get(r.clone()).is_some_and(|b| !b.is_empty() && b.iter().all(|&s| s == 0)) {
+                    traces.iter_mut().for_each(|t| t[c] = f64::NEG_INFINITY);
+                }
+            }
+        }
+        Some(traces)
     }
 
     /// Whether the channel-plan row is on screen.
