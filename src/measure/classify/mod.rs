@@ -4,8 +4,10 @@
 //!
 //! Steps ([`classify`]):
 //! 1. channelise ([`baseband`]): shift the emission to 0 Hz, low-pass it to 1.2–1.5 × its OBW
-//!    and decimate to 4 × OBW (one FFT; at most [`MAX_INPUT_SAMPLES`] samples in and
-//!    [`MAX_BASEBAND_SAMPLES`] out, which bounds the cost); the in-band noise power follows from
+//!    and decimate to 4 × OBW (one forward FFT of the input, shared by the emissions classified
+//!    from the same samples ([`classify_shared`]), and a short inverse one of the band's bins;
+//!    at most [`MAX_INPUT_SAMPLES`] samples in and [`MAX_BASEBAND_SAMPLES`] out, which bounds
+//!    the cost); the in-band noise power follows from
 //!    the caller's noise PSD or from the spectrum outside the emission;
 //! 2. decide down a hierarchy, each step on features that are closed-form and noise-corrected:
 //!    - pulsed: on/off envelope, on under half the time ([`pulse`]);
@@ -36,7 +38,7 @@ mod pulse;
 mod rate;
 mod spectrum;
 
-pub use baseband::{MAX_BASEBAND_SAMPLES, MAX_INPUT_SAMPLES};
+pub use baseband::{Forward, MAX_BASEBAND_SAMPLES, MAX_INPUT_SAMPLES};
 pub use designator::{bandwidth_code, class_symbols, designator};
 pub use features::EnvelopeFeatures;
 
@@ -209,8 +211,19 @@ pub fn classify(input: &EmissionIq) -> Classification {
     classify_with_trace(input).0
 }
 
+/// As [`classify`], reading the input's forward transform from `forward`, which every emission
+/// classified from the same `samples` (and rate) may share: the first to need it makes it (see
+/// [`Forward`]). The answer is the one [`classify`] gives.
+pub fn classify_shared(input: &EmissionIq, forward: &Forward) -> Classification {
+    traced(input, forward).0
+}
+
 /// As [`classify`], with the features it decided on.
 pub fn classify_with_trace(input: &EmissionIq) -> (Classification, Trace) {
+    traced(input, &Forward::default())
+}
+
+fn traced(input: &EmissionIq, forward: &Forward) -> (Classification, Trace) {
     let mut trace = Trace {
         snr_db: f64::NAN,
         power_variance: f64::NAN,
@@ -218,7 +231,7 @@ pub fn classify_with_trace(input: &EmissionIq) -> (Classification, Trace) {
         power_lines: [f64::NAN; 3],
         ..Trace::default()
     };
-    let d = decide(input, &mut trace);
+    let d = decide(input, forward, &mut trace);
     let class = d.class;
     (
         Classification {
@@ -266,8 +279,8 @@ fn seconds(s: f64) -> String {
     }
 }
 
-fn decide(input: &EmissionIq, trace: &mut Trace) -> Decision {
-    let mut bb = match baseband::channelise(input) {
+fn decide(input: &EmissionIq, forward: &Forward, trace: &mut Trace) -> Decision {
+    let mut bb = match baseband::channelise(input, forward) {
         Ok(bb) => bb,
         Err(e) => return unknown(format!("cannot analyse: {e}")),
     };
@@ -340,7 +353,7 @@ fn decide(input: &EmissionIq, trace: &mut Trace) -> Decision {
         varying_envelope(&bb, rho, carrier, trace)
     };
     if d.class == Class::Am {
-        if let Some(depth) = wide_am_depth(input) {
+        if let Some(depth) = wide_am_depth(input, forward) {
             d.params.mod_depth = Some(depth);
         }
     }
@@ -352,9 +365,9 @@ fn decide(input: &EmissionIq, trace: &mut Trace) -> Decision {
 /// a channel filter at the OBW strips the message's upper tones and reads the depth low. Its
 /// depth is measured on a band [`AM_WIDEN`] times as wide (the moment estimate takes the
 /// wider band's noise off).
-fn wide_am_depth(input: &EmissionIq) -> Option<f64> {
+fn wide_am_depth(input: &EmissionIq, forward: &Forward) -> Option<f64> {
     let wide = EmissionIq { obw_hz: input.obw_hz * AM_WIDEN, ..*input };
-    let mut bb = baseband::channelise(&wide).ok()?;
+    let mut bb = baseband::channelise(&wide, forward).ok()?;
     if let Some((a, b)) = keyed::on_stretch(&bb.x, bb.noise_power) {
         bb.keep(a, b);
     }
