@@ -79,8 +79,10 @@ pub struct Forward {
 /// The spectrum of the first `n` samples (unshifted, FFT order) and its power per bin.
 struct Transform {
     spec: Vec<Complex32>,
-    /// |X|² / (n · rate) per bin, the PSD the noise estimate takes its median of.
-    psd: Vec<f64>,
+    /// |X|² / (n · rate) per bin, the PSD the noise estimate takes its median of (made when
+    /// first asked: not at all when the caller gives the noise).
+    psd: OnceLock<Vec<f64>>,
+    rate: f64,
 }
 
 impl Forward {
@@ -99,9 +101,14 @@ impl Transform {
         let mut spec: Vec<Complex32> =
             x.iter().map(|v| if v.is_finite() { *v } else { Complex32::new(0.0, 0.0) }).collect();
         fft_f32(&mut spec, false);
-        let scale = 1.0 / (spec.len() as f64 * rate);
-        let psd = spec.iter().map(|v| v.norm_sqr() as f64 * scale).collect();
-        Transform { spec, psd }
+        Transform { spec, psd: OnceLock::new(), rate }
+    }
+
+    fn psd(&self) -> &[f64] {
+        self.psd.get_or_init(|| {
+            let scale = 1.0 / (self.spec.len() as f64 * self.rate);
+            self.spec.iter().map(|v| v.norm_sqr() as f64 * scale).collect()
+        })
     }
 }
 
@@ -148,7 +155,7 @@ pub(super) fn channelise(input: &EmissionIq, forward: &Forward) -> Result<Baseba
     let noise_given = input.noise_psd.is_some_and(|p| p.is_finite() && p >= 0.0);
     let noise_psd = match input.noise_psd {
         Some(p) if noise_given => p,
-        _ => estimate_noise_psd(&t.psd, rate, obw, k0).unwrap_or(0.0),
+        _ => estimate_noise_psd(t.psd(), rate, obw, k0).unwrap_or(0.0),
     };
 
     let response_at = |f: f64| -> f64 {

@@ -541,7 +541,13 @@ fn varying_envelope(
     if carrier > AM_CARRIER {
         return amplitude_modulated(bb, carrier, margin(rho, CONSTANT_ENVELOPE, 0.04));
     }
-    let cp = ofdm::cp_peak(&bb.x, bb.rate_hz, bb.obw_hz, bb.noise_power);
+    // The two searches, each a long transform of the whole baseband, run side by side on a
+    // long input: the emission classified last when the input ends has the other worker idle.
+    let (cp, line) = alongside(
+        || ofdm::cp_peak(&bb.x, bb.rate_hz, bb.obw_hz, bb.noise_power),
+        || rate::envelope_line(&bb.x, bb.rate_hz, bb.obw_hz),
+        bb.x.len() >= ALONGSIDE_MIN,
+    );
     trace.cp = cp.map(|c| (c.strength, c.prominence));
     if let Some(c) =
         cp.filter(|c| c.strength >= ofdm::MIN_STRENGTH && c.prominence >= ofdm::MIN_PROMINENCE)
@@ -556,7 +562,7 @@ fn varying_envelope(
             ClassParams { subcarrier_spacing_hz: Some(1.0 / c.lag_s), ..ClassParams::default() },
         );
     }
-    if let Some(line) = rate::envelope_line(&bb.x, bb.rate_hz, bb.obw_hz) {
+    if let Some(line) = line {
         trace.envelope_line = Some(line.prominence);
         return linear(bb, line.freq_hz, trace);
     }
@@ -572,6 +578,31 @@ fn varying_envelope(
     ))
 }
 
+/// Baseband samples from which [`varying_envelope`]'s two searches run on two threads: below
+/// it a thread's start (tens of µs) is a fair share of their cost.
+pub const ALONGSIDE_MIN: usize = 1 << 14;
+
+/// `(a(), b())`, with `b` on a thread of its own while `a` runs here when `parallel` (and here
+/// after `a` when no thread can be started). Either way the answers are the same.
+fn alongside<A, B: Send>(
+    a: impl FnOnce() -> A,
+    b: impl Fn() -> B + Sync,
+    parallel: bool,
+) -> (A, B) {
+    if !parallel {
+        return (a(), b());
+    }
+    std::thread::scope(|s| {
+        let other = std::thread::Builder::new().spawn_scoped(s, &b).ok();
+        let first = a();
+        let second = match other.map(|h| h.join()) {
+            Some(Ok(v)) => v,
+            Some(Err(panic)) => std::panic::resume_unwind(panic),
+            None => b(),
+        };
+        (first, second)
+    })
+}
 /// AM: a carrier line holding most of the power and an envelope that varies (`varies`: how
 /// sure of that, 0..1).
 fn amplitude_modulated(bb: &baseband::Baseband, carrier: f64, varies: f64) -> Decision {
