@@ -404,13 +404,15 @@ fn live_worker(s: &LiveShared, take: usize) {
                     h.copy_range(a, b, &mut buf);
                 }
             }
-            let c = classify(&EmissionIq {
+            // On this thread only: its rest below bounds its share of one core.
+            let input = EmissionIq {
                 samples: &buf,
                 rate_hz: s.rate_hz,
                 offset_hz: center_hz - s.center_hz,
                 obw_hz,
                 noise_psd: None,
-            });
+            };
+            let c = classify_shared(&input, &Forward::one_thread());
             {
                 let mut got = lock(&s.got);
                 got.retain(|g| (g.0 - center_hz).abs() > 0.5 * obw_hz.max(g.1));

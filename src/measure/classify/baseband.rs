@@ -74,6 +74,8 @@ impl Baseband {
 #[derive(Default)]
 pub struct Forward {
     cell: OnceLock<Transform>,
+    /// Classify on the calling thread only (see [`Forward::one_thread`]).
+    pub(super) one_thread: bool,
 }
 
 /// The spectrum of the first `n` samples (unshifted, FFT order) and its power per bin.
@@ -86,6 +88,12 @@ struct Transform {
 }
 
 impl Forward {
+    /// A transform for a caller that bounds its share of a core by the time it works (the live
+    /// monitor's classifier): no work of the classification runs on another thread.
+    pub fn one_thread() -> Forward {
+        Forward { cell: OnceLock::new(), one_thread: true }
+    }
+
     /// The transform of `samples[..n]` at `rate`, made now if this is the first call (every
     /// call must pass the same samples, `n` and rate: the first one's are kept).
     fn get(&self, samples: &[Complex32], n: usize, rate: f64) -> &Transform {

@@ -350,7 +350,7 @@ fn decide(input: &EmissionIq, forward: &Forward, trace: &mut Trace) -> Decision 
     let mut d = if rho < CONSTANT_ENVELOPE {
         constant_envelope(&bb, rho, carrier, trace)
     } else {
-        varying_envelope(&bb, rho, carrier, trace)
+        varying_envelope(&bb, rho, carrier, !forward.one_thread, trace)
     };
     if d.class == Class::Am {
         if let Some(depth) = wide_am_depth(input, forward) {
@@ -532,10 +532,12 @@ fn constant_envelope_psk(bb: &baseband::Baseband, ce: f64) -> Option<Decision> {
     None
 }
 
+/// `threads`: whether its two long searches may run on two threads.
 fn varying_envelope(
     bb: &baseband::Baseband,
     rho: f64,
     carrier: f64,
+    threads: bool,
     trace: &mut Trace,
 ) -> Decision {
     if carrier > AM_CARRIER {
@@ -546,7 +548,7 @@ fn varying_envelope(
     let (cp, line) = alongside(
         || ofdm::cp_peak(&bb.x, bb.rate_hz, bb.obw_hz, bb.noise_power),
         || rate::envelope_line(&bb.x, bb.rate_hz, bb.obw_hz),
-        bb.x.len() >= ALONGSIDE_MIN,
+        threads && bb.x.len() >= ALONGSIDE_MIN,
     );
     trace.cp = cp.map(|c| (c.strength, c.prominence));
     if let Some(c) =
