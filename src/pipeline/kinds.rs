@@ -9,7 +9,9 @@
 
 use super::history::{IqHistory, Part, HISTORY_SECONDS};
 use super::{Consumer, RunInfo};
-use crate::measure::classify::{classify, designator, Class, Classification, EmissionIq};
+use crate::measure::classify::{
+    classify, classify_shared, designator, Class, Classification, EmissionIq, Forward,
+};
 use crate::source::reader::Block;
 use num_complex::Complex32;
 use std::io;
@@ -107,13 +109,21 @@ impl Kinds {
 
     /// [`Kinds::classify_newest`] of every `(center_hz, obw_hz)`, shared among the workers (two
     /// at a time on two cores), answers in the order given: the listing made once the input is
-    /// over waits for the slowest pair rather than the sum of them all.
+    /// over waits for the slowest pair rather than the sum of them all. All are cut from the
+    /// same newest samples, copied out once, and share one forward transform of them
+    /// ([`Forward`]): each emission then costs only its band's short inverse transform and
+    /// features.
     pub fn classify_newest_all(&mut self, emissions: &[(f64, f64)]) -> Vec<Classification> {
         // The newest `take_max` samples, as `classify_newest` takes them.
-        let end = self.history.end();
-        let start = end.saturating_sub(self.take_max() as u64).max(self.history.first());
+        let (first, end) = (self.history.first(), self.history.end());
+        let mut samples = Vec::new();
+        if let Some((a, b)) = self.history.cut(first, end, self.take_max(), Part::Last) {
+            self.history.copy_range(a, b, &mut samples);
+        }
+        let shared = Arc::new(SharedIq { samples, forward: Forward::default() });
         for &(center_hz, obw_hz) in emissions {
-            self.classify_later(&Span { start, end, center_hz, obw_hz, noise_psd: None });
+            let span = Span { start: first, end, center_hz, obw_hz, noise_psd: None };
+            self.send(&span, shared.clone());
         }
         self.collect()
     }
@@ -123,26 +133,31 @@ impl Kinds {
     /// copies; the workers ([`WORKERS`]) overlap the transforms of the run, and the emissions
     /// that end together when the input does are shared among them.
     pub fn classify_later(&mut self, span: &Span) {
-        if self.pool.is_none() {
-            self.pool = Pool::start();
-        }
-        let Some(pool) = self.pool.as_ref() else {
-            // No thread could be started: classify here, as before.
-            let c = self.classify(span);
-            self.later.push((span.obw_hz, Some(c)));
-            return;
-        };
         let mut samples = Vec::new();
         if let Some((a, b)) = self.cut(span) {
             self.history.copy_range(a, b, &mut samples);
         }
+        self.send(span, Arc::new(SharedIq { samples, forward: Forward::default() }));
+    }
+
+    /// Hands the emission `span`, whose samples are `iq`, to a worker (or classifies it here
+    /// when no worker could start).
+    fn send(&mut self, span: &Span, iq: Arc<SharedIq>) {
+        if self.pool.is_none() {
+            self.pool = Pool::start();
+        }
         let job = Job {
             index: self.later.len(),
-            samples,
+            iq,
             rate_hz: self.rate_hz,
             offset_hz: span.center_hz - self.center_hz,
             obw_hz: span.obw_hz,
             noise_psd: span.noise_psd,
+        };
+        let Some(pool) = self.pool.as_ref() else {
+            // No thread could be started: classify here, as before.
+            self.later.push((span.obw_hz, Some(job.classify())));
+            return;
         };
         self.later.push((span.obw_hz, None));
         pool.send(job);
@@ -195,14 +210,34 @@ pub const WORKERS: usize = 2;
 /// [`TAKE_MAX`] samples, 2 MiB).
 const QUEUE: usize = 8;
 
+/// Samples copied out of the history for one or more emissions, with their forward transform
+/// once one of them has made it.
+struct SharedIq {
+    samples: Vec<Complex32>,
+    forward: Forward,
+}
+
 /// One emission's samples and where it lay, for a worker.
 struct Job {
     index: usize,
-    samples: Vec<Complex32>,
+    iq: Arc<SharedIq>,
     rate_hz: f64,
     offset_hz: f64,
     obw_hz: f64,
     noise_psd: Option<f64>,
+}
+
+impl Job {
+    fn classify(&self) -> Classification {
+        let input = EmissionIq {
+            samples: &self.iq.samples,
+            rate_hz: self.rate_hz,
+            offset_hz: self.offset_hz,
+            obw_hz: self.obw_hz,
+            noise_psd: self.noise_psd,
+        };
+        classify_shared(&input, &self.iq.forward)
+    }
 }
 
 struct Pool {
@@ -223,14 +258,7 @@ impl Pool {
                     .name(format!("kinds-{i}"))
                     .spawn(move || {
                         for job in queue {
-                            let c = classify(&EmissionIq {
-                                samples: &job.samples,
-                                rate_hz: job.rate_hz,
-                                offset_hz: job.offset_hz,
-                                obw_hz: job.obw_hz,
-                                noise_psd: job.noise_psd,
-                            });
-                            if answer.send((job.index, c)).is_err() {
+                            if answer.send((job.index, job.classify())).is_err() {
                                 return;
                             }
                         }
@@ -376,13 +404,15 @@ fn live_worker(s: &LiveShared, take: usize) {
                     h.copy_range(a, b, &mut buf);
                 }
             }
-            let c = classify(&EmissionIq {
+            // On this thread only: its rest below bounds its share of one core.
+            let input = EmissionIq {
                 samples: &buf,
                 rate_hz: s.rate_hz,
                 offset_hz: center_hz - s.center_hz,
                 obw_hz,
                 noise_psd: None,
-            });
+            };
+            let c = classify_shared(&input, &Forward::one_thread());
             {
                 let mut got = lock(&s.got);
                 got.retain(|g| (g.0 - center_hz).abs() > 0.5 * obw_hz.max(g.1));

@@ -7,6 +7,7 @@
 use super::spectrum::{bin_hz, fft, fft_f32, quantile};
 use super::EmissionIq;
 use num_complex::{Complex32, Complex64};
+use std::sync::OnceLock;
 
 /// At most this many input samples are read (the first ones): one FFT of this size bounds the
 /// cost of channelising (about 2^20 · 20 operations).
@@ -65,8 +66,62 @@ impl Baseband {
     }
 }
 
+/// The forward transform of one stretch of input, made once and read by every emission
+/// channelised from that stretch: `measure` classifies all its peaks from the same newest
+/// samples, and each peak then only copies its band's bins into its own short inverse
+/// transform. Safe to share between threads (`Arc<Forward>`); the transform is made by the
+/// first emission that needs it.
+#[derive(Default)]
+pub struct Forward {
+    cell: OnceLock<Transform>,
+    /// Classify on the calling thread only (see [`Forward::one_thread`]).
+    pub(super) one_thread: bool,
+}
+
+/// The spectrum of the first `n` samples (unshifted, FFT order) and its power per bin.
+struct Transform {
+    spec: Vec<Complex32>,
+    /// |X|² / (n · rate) per bin, the PSD the noise estimate takes its median of (made when
+    /// first asked: not at all when the caller gives the noise).
+    psd: OnceLock<Vec<f64>>,
+    rate: f64,
+}
+
+impl Forward {
+    /// A transform for a caller that bounds its share of a core by the time it works (the live
+    /// monitor's classifier): no work of the classification runs on another thread.
+    pub fn one_thread() -> Forward {
+        Forward { cell: OnceLock::new(), one_thread: true }
+    }
+
+    /// The transform of `samples[..n]` at `rate`, made now if this is the first call (every
+    /// call must pass the same samples, `n` and rate: the first one's are kept).
+    fn get(&self, samples: &[Complex32], n: usize, rate: f64) -> &Transform {
+        self.cell.get_or_init(|| Transform::of(&samples[..n], rate))
+    }
+}
+
+impl Transform {
+    fn of(x: &[Complex32], rate: f64) -> Transform {
+        // The long transform in single precision, as the input is: its rounding (about 1e-7 of
+        // the strongest bin, 140 dB down) stays far below any noise floor the classifier works
+        // at. Non-finite samples count as zero.
+        let mut spec: Vec<Complex32> =
+            x.iter().map(|v| if v.is_finite() { *v } else { Complex32::new(0.0, 0.0) }).collect();
+        fft_f32(&mut spec, false);
+        Transform { spec, psd: OnceLock::new(), rate }
+    }
+
+    fn psd(&self) -> &[f64] {
+        self.psd.get_or_init(|| {
+            let scale = 1.0 / (self.spec.len() as f64 * self.rate);
+            self.spec.iter().map(|v| v.norm_sqr() as f64 * scale).collect()
+        })
+    }
+}
+
 /// Why the input could not be channelised.
-pub(super) fn channelise(input: &EmissionIq) -> Result<Baseband, String> {
+pub(super) fn channelise(input: &EmissionIq, forward: &Forward) -> Result<Baseband, String> {
     let rate = input.rate_hz;
     if !(rate.is_finite() && rate > 0.0) {
         return Err(format!("sample rate {rate} Hz is not a positive number"));
@@ -75,8 +130,8 @@ pub(super) fn channelise(input: &EmissionIq) -> Result<Baseband, String> {
         return Err("no samples".into());
     }
     let offset = if input.offset_hz.is_finite() { input.offset_hz } else { 0.0 };
-    let mut n_in = input.samples.len().min(MAX_INPUT_SAMPLES);
-    let floor = MIN_BINS * rate / n_in as f64;
+    let n_all = input.samples.len().min(MAX_INPUT_SAMPLES);
+    let floor = MIN_BINS * rate / n_all as f64;
     let obw = if input.obw_hz.is_finite() && input.obw_hz > 0.0 {
         input.obw_hz.clamp(floor.min(rate), rate)
     } else {
@@ -84,19 +139,31 @@ pub(super) fn channelise(input: &EmissionIq) -> Result<Baseband, String> {
     };
     let out_rate_goal = (RATE_OVER_OBW * obw).min(rate);
     let max_in = (MAX_BASEBAND_SAMPLES as f64 * rate / out_rate_goal).floor() as usize;
-    n_in = n_in.min(max_in.max(1));
+    let n_in = n_all.min(max_in.max(1));
     let n_out = ((n_in as f64 * out_rate_goal / rate).round() as usize).clamp(1, n_in);
     let out_rate = n_out as f64 * rate / n_in as f64;
 
-    // The long transform in single precision, as the input is: its rounding (about 1e-7 of the
-    // strongest bin, 140 dB down) stays far below any noise floor the classifier works at.
-    let mut spec = shifted(&input.samples[..n_in], -offset / rate);
-    fft_f32(&mut spec, false);
+    // The shared transform holds all the input; an emission too wide for that many samples
+    // at its output rate transforms its own, shorter, input.
+    let own;
+    let t = if n_in == n_all {
+        forward.get(input.samples, n_all, rate)
+    } else {
+        own = Transform::of(&input.samples[..n_in], rate);
+        &own
+    };
+    // The shift to 0 Hz: a whole number of bins by reading the spectrum from bin `k0`, the
+    // rest (under half a bin) by mixing the short output.
+    let bin_width = rate / n_in as f64;
+    let k0 = (offset / bin_width).round();
+    let residual = offset - k0 * bin_width;
+    let k0 = (k0 as i64).rem_euclid(n_in as i64) as usize;
+    let at = |k: usize| (k + k0) % n_in;
 
     let noise_given = input.noise_psd.is_some_and(|p| p.is_finite() && p >= 0.0);
     let noise_psd = match input.noise_psd {
         Some(p) if noise_given => p,
-        _ => estimate_noise_psd(&spec, rate, obw, offset).unwrap_or(0.0),
+        _ => estimate_noise_psd(t.psd(), rate, obw, k0).unwrap_or(0.0),
     };
 
     let response_at = |f: f64| -> f64 {
@@ -123,11 +190,11 @@ pub(super) fn channelise(input: &EmissionIq) -> Result<Baseband, String> {
         }
         let h2 = response_at(f);
         *r = h2;
-        let v = spec[kin];
+        let v = t.spec[at(kin)];
         *o = Complex64::new(v.re as f64, v.im as f64) * h2.sqrt() / n_in as f64;
     }
     fft(&mut out, true);
-    let bin_width = rate / n_in as f64;
+    mix(&mut out, -residual / out_rate);
     let noise_power = noise_psd * response.iter().sum::<f64>() * bin_width;
     Ok(Baseband {
         x: out,
@@ -146,39 +213,36 @@ pub(super) fn channelise(input: &EmissionIq) -> Result<Baseband, String> {
 /// and its rounding error, about 1e-16 per step, stays under 1e-12 over this many.
 const PHASOR_RESYNC: usize = 1024;
 
-/// `x` shifted by `cycles` per sample (e^{j2π·cycles·n}), the product taken in f64; non-finite
-/// samples are zero.
-fn shifted(x: &[Complex32], cycles: f64) -> Vec<Complex32> {
+/// `x` shifted in place by `cycles` per sample (times e^{j2π·cycles·n}).
+fn mix(x: &mut [Complex64], cycles: f64) {
+    if cycles == 0.0 {
+        return;
+    }
     let step = 2.0 * std::f64::consts::PI * cycles;
     let rot = Complex64::from_polar(1.0, step);
     let mut phasor = Complex64::new(1.0, 0.0);
-    x.iter()
-        .enumerate()
-        .map(|(n, s)| {
-            if n % PHASOR_RESYNC == 0 {
-                phasor = Complex64::from_polar(1.0, step * n as f64);
-            }
-            let v = Complex64::new(s.re as f64, s.im as f64);
-            let v = if v.re.is_finite() && v.im.is_finite() { v } else { Complex64::new(0.0, 0.0) };
-            let out = v * phasor;
-            phasor *= rot;
-            Complex32::new(out.re as f32, out.im as f32)
-        })
-        .collect()
+    for (n, v) in x.iter_mut().enumerate() {
+        if n % PHASOR_RESYNC == 0 {
+            phasor = Complex64::from_polar(1.0, step * n as f64);
+        }
+        *v *= phasor;
+        phasor *= rot;
+    }
 }
 
-/// Noise PSD from the bins of the input spectrum (already shifted) well outside the emission,
-/// away from the band edges (where a receiver's anti-alias filter falls): the median of an
-/// exponential variable is ln 2 times its mean (design notes §3), and the median ignores other
-/// emitters that take less than half of those bins. None when fewer than 64 bins qualify.
-fn estimate_noise_psd(spec: &[Complex32], rate: f64, obw: f64, offset: f64) -> Option<f64> {
-    let n = spec.len();
+/// Noise PSD from the bins of the input spectrum (`psd`, unshifted; the emission's centre at
+/// bin `k0`) well outside the emission, away from the band edges (where a receiver's anti-alias
+/// filter falls): the median of an exponential variable is ln 2 times its mean (design notes
+/// §3), and the median ignores other emitters that take less than half of those bins. None
+/// when fewer than 64 bins qualify.
+fn estimate_noise_psd(psd: &[f64], rate: f64, obw: f64, k0: usize) -> Option<f64> {
+    let n = psd.len();
     let p: Vec<f64> = (0..n)
         .filter(|&k| {
-            let f = bin_hz(k, n, rate);
-            f.abs() > STOP * obw * 1.2 && (f + offset).abs() < 0.45 * rate
+            let from_emission = bin_hz((k + n - k0) % n, n, rate);
+            from_emission.abs() > STOP * obw * 1.2 && bin_hz(k, n, rate).abs() < 0.45 * rate
         })
-        .map(|k| spec[k].norm_sqr() as f64 / (n as f64 * rate))
+        .map(|k| psd[k])
         .collect();
     if p.len() < 64 {
         return None;
@@ -192,22 +256,69 @@ mod tests {
 
     #[test]
     fn the_stepped_phasor_shifts_as_sine_and_cosine_do() {
-        let x: Vec<Complex32> =
-            (0..100_000).map(|i| Complex32::new(1.0, (i % 7) as f32 * 0.1)).collect();
+        let x: Vec<Complex64> =
+            (0..100_000).map(|i| Complex64::new(1.0, (i % 7) as f64 * 0.1)).collect();
         let cycles = 0.123_456_789;
-        let got = shifted(&x, cycles);
+        let mut got = x.clone();
+        mix(&mut got, cycles);
         let worst = x
             .iter()
             .zip(&got)
             .enumerate()
             .map(|(n, (v, g))| {
-                let v = Complex64::new(v.re as f64, v.im as f64);
                 let want =
                     v * Complex64::from_polar(1.0, 2.0 * std::f64::consts::PI * cycles * n as f64);
-                (want - Complex64::new(g.re as f64, g.im as f64)).norm()
+                (want - g).norm()
             })
             .fold(0.0, f64::max);
-        // Within the f32 rounding of the result: half an ulp of each part, 6e-8 for parts under 2.
-        assert!(worst < 1e-7, "{worst}");
+        // The resync bound above (1024 steps of about 1e-16 each), plus the rounding of the
+        // reference itself: its phase, up to 8e4 rad here, is held to about 1e-11 rad.
+        assert!(worst < 1e-10, "{worst}");
+    }
+
+    /// A tone between two bins of the input grid comes out at 0 Hz: the whole bins are read
+    /// off the spectrum, the fraction mixed off the output. A complex exponential shifted by its
+    /// own frequency is a constant (e^{j2πfn}·e^{−j2πfn} = 1, common practice).
+    #[test]
+    fn a_tone_off_the_bin_grid_is_shifted_to_zero_hz() {
+        let (rate, n) = (1e6, 1 << 16);
+        let f0 = 123_456.789;
+        let x: Vec<Complex32> = (0..n)
+            .map(|i| {
+                let v =
+                    Complex64::from_polar(1.0, 2.0 * std::f64::consts::PI * f0 * i as f64 / rate);
+                Complex32::new(v.re as f32, v.im as f32)
+            })
+            .collect();
+        let input =
+            EmissionIq { samples: &x, rate_hz: rate, offset_hz: f0, obw_hz: 2e3, noise_psd: None };
+        let bb = channelise(&input, &Forward::default()).unwrap();
+        // Away from the ends (the filter's transient wraps round a circular transform), the
+        // phase is flat: under a degree of drift from first to last.
+        let m = bb.x.len();
+        let (a, b) = (bb.x[m / 8], bb.x[7 * m / 8]);
+        let drift = (b / a).arg().abs();
+        assert!(drift < 1f64.to_radians(), "{drift} rad over {m} samples");
+        assert!((a.norm() - 1.0).abs() < 0.01, "{}", a.norm());
+    }
+
+    /// Emissions channelised from one shared transform come out as from a transform each.
+    #[test]
+    fn a_shared_transform_gives_what_one_of_its_own_gives() {
+        let x = crate::testkit::noise(50_000, 1e-2, 11);
+        let shared = Forward::default();
+        for (offset, obw) in [(1e3, 5e3), (-2e5, 2e4), (3.3e5, 1e3), (0.0, 4.5e5)] {
+            let input = EmissionIq {
+                samples: &x,
+                rate_hz: 1e6,
+                offset_hz: offset,
+                obw_hz: obw,
+                noise_psd: None,
+            };
+            let one = channelise(&input, &Forward::default()).unwrap();
+            let both = channelise(&input, &shared).unwrap();
+            assert_eq!(one.x, both.x);
+            assert_eq!(one.noise_psd, both.noise_psd);
+        }
     }
 }

@@ -4,8 +4,10 @@
 //!
 //! Steps ([`classify`]):
 //! 1. channelise ([`baseband`]): shift the emission to 0 Hz, low-pass it to 1.2–1.5 × its OBW
-//!    and decimate to 4 × OBW (one FFT; at most [`MAX_INPUT_SAMPLES`] samples in and
-//!    [`MAX_BASEBAND_SAMPLES`] out, which bounds the cost); the in-band noise power follows from
+//!    and decimate to 4 × OBW (one forward FFT of the input, shared by the emissions classified
+//!    from the same samples ([`classify_shared`]), and a short inverse one of the band's bins;
+//!    at most [`MAX_INPUT_SAMPLES`] samples in and [`MAX_BASEBAND_SAMPLES`] out, which bounds
+//!    the cost); the in-band noise power follows from
 //!    the caller's noise PSD or from the spectrum outside the emission;
 //! 2. decide down a hierarchy, each step on features that are closed-form and noise-corrected:
 //!    - pulsed: on/off envelope, on under half the time ([`pulse`]);
@@ -36,7 +38,7 @@ mod pulse;
 mod rate;
 mod spectrum;
 
-pub use baseband::{MAX_BASEBAND_SAMPLES, MAX_INPUT_SAMPLES};
+pub use baseband::{Forward, MAX_BASEBAND_SAMPLES, MAX_INPUT_SAMPLES};
 pub use designator::{bandwidth_code, class_symbols, designator};
 pub use features::EnvelopeFeatures;
 
@@ -209,8 +211,19 @@ pub fn classify(input: &EmissionIq) -> Classification {
     classify_with_trace(input).0
 }
 
+/// As [`classify`], reading the input's forward transform from `forward`, which every emission
+/// classified from the same `samples` (and rate) may share: the first to need it makes it (see
+/// [`Forward`]). The answer is the one [`classify`] gives.
+pub fn classify_shared(input: &EmissionIq, forward: &Forward) -> Classification {
+    traced(input, forward).0
+}
+
 /// As [`classify`], with the features it decided on.
 pub fn classify_with_trace(input: &EmissionIq) -> (Classification, Trace) {
+    traced(input, &Forward::default())
+}
+
+fn traced(input: &EmissionIq, forward: &Forward) -> (Classification, Trace) {
     let mut trace = Trace {
         snr_db: f64::NAN,
         power_variance: f64::NAN,
@@ -218,7 +231,7 @@ pub fn classify_with_trace(input: &EmissionIq) -> (Classification, Trace) {
         power_lines: [f64::NAN; 3],
         ..Trace::default()
     };
-    let d = decide(input, &mut trace);
+    let d = decide(input, forward, &mut trace);
     let class = d.class;
     (
         Classification {
@@ -266,8 +279,8 @@ fn seconds(s: f64) -> String {
     }
 }
 
-fn decide(input: &EmissionIq, trace: &mut Trace) -> Decision {
-    let mut bb = match baseband::channelise(input) {
+fn decide(input: &EmissionIq, forward: &Forward, trace: &mut Trace) -> Decision {
+    let mut bb = match baseband::channelise(input, forward) {
         Ok(bb) => bb,
         Err(e) => return unknown(format!("cannot analyse: {e}")),
     };
@@ -337,10 +350,10 @@ fn decide(input: &EmissionIq, trace: &mut Trace) -> Decision {
     let mut d = if rho < CONSTANT_ENVELOPE {
         constant_envelope(&bb, rho, carrier, trace)
     } else {
-        varying_envelope(&bb, rho, carrier, trace)
+        varying_envelope(&bb, rho, carrier, !forward.one_thread, trace)
     };
     if d.class == Class::Am {
-        if let Some(depth) = wide_am_depth(input) {
+        if let Some(depth) = wide_am_depth(input, forward) {
             d.params.mod_depth = Some(depth);
         }
     }
@@ -352,9 +365,9 @@ fn decide(input: &EmissionIq, trace: &mut Trace) -> Decision {
 /// a channel filter at the OBW strips the message's upper tones and reads the depth low. Its
 /// depth is measured on a band [`AM_WIDEN`] times as wide (the moment estimate takes the
 /// wider band's noise off).
-fn wide_am_depth(input: &EmissionIq) -> Option<f64> {
+fn wide_am_depth(input: &EmissionIq, forward: &Forward) -> Option<f64> {
     let wide = EmissionIq { obw_hz: input.obw_hz * AM_WIDEN, ..*input };
-    let mut bb = baseband::channelise(&wide).ok()?;
+    let mut bb = baseband::channelise(&wide, forward).ok()?;
     if let Some((a, b)) = keyed::on_stretch(&bb.x, bb.noise_power) {
         bb.keep(a, b);
     }
@@ -519,16 +532,24 @@ fn constant_envelope_psk(bb: &baseband::Baseband, ce: f64) -> Option<Decision> {
     None
 }
 
+/// `threads`: whether its two long searches may run on two threads.
 fn varying_envelope(
     bb: &baseband::Baseband,
     rho: f64,
     carrier: f64,
+    threads: bool,
     trace: &mut Trace,
 ) -> Decision {
     if carrier > AM_CARRIER {
         return amplitude_modulated(bb, carrier, margin(rho, CONSTANT_ENVELOPE, 0.04));
     }
-    let cp = ofdm::cp_peak(&bb.x, bb.rate_hz, bb.obw_hz, bb.noise_power);
+    // The two searches, each a long transform of the whole baseband, run side by side on a
+    // long input: the emission classified last when the input ends has the other worker idle.
+    let (cp, line) = alongside(
+        || ofdm::cp_peak(&bb.x, bb.rate_hz, bb.obw_hz, bb.noise_power),
+        || rate::envelope_line(&bb.x, bb.rate_hz, bb.obw_hz),
+        threads && bb.x.len() >= ALONGSIDE_MIN,
+    );
     trace.cp = cp.map(|c| (c.strength, c.prominence));
     if let Some(c) =
         cp.filter(|c| c.strength >= ofdm::MIN_STRENGTH && c.prominence >= ofdm::MIN_PROMINENCE)
@@ -543,7 +564,7 @@ fn varying_envelope(
             ClassParams { subcarrier_spacing_hz: Some(1.0 / c.lag_s), ..ClassParams::default() },
         );
     }
-    if let Some(line) = rate::envelope_line(&bb.x, bb.rate_hz, bb.obw_hz) {
+    if let Some(line) = line {
         trace.envelope_line = Some(line.prominence);
         return linear(bb, line.freq_hz, trace);
     }
@@ -559,6 +580,31 @@ fn varying_envelope(
     ))
 }
 
+/// Baseband samples from which [`varying_envelope`]'s two searches run on two threads: below
+/// it a thread's start (tens of µs) is a fair share of their cost.
+pub const ALONGSIDE_MIN: usize = 1 << 14;
+
+/// `(a(), b())`, with `b` on a thread of its own while `a` runs here when `parallel` (and here
+/// after `a` when no thread can be started). Either way the answers are the same.
+fn alongside<A, B: Send>(
+    a: impl FnOnce() -> A,
+    b: impl Fn() -> B + Sync,
+    parallel: bool,
+) -> (A, B) {
+    if !parallel {
+        return (a(), b());
+    }
+    std::thread::scope(|s| {
+        let other = std::thread::Builder::new().spawn_scoped(s, &b).ok();
+        let first = a();
+        let second = match other.map(|h| h.join()) {
+            Some(Ok(v)) => v,
+            Some(Err(panic)) => std::panic::resume_unwind(panic),
+            None => b(),
+        };
+        (first, second)
+    })
+}
 /// AM: a carrier line holding most of the power and an envelope that varies (`varies`: how
 /// sure of that, 0..1).
 fn amplitude_modulated(bb: &baseband::Baseband, carrier: f64, varies: f64) -> Decision {
