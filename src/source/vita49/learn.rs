@@ -27,8 +27,9 @@
 //! socket is drained as fast as without learning and loss, reordering and duplicates are counted
 //! exactly as in the live stream. The held samples are then delivered as fast as the run takes
 //! them ([`SampleSource::replaying`](crate::source::SampleSource::replaying): the reader never
-//! drops them as behind, nor times them), while the socket's receive buffer keeps what arrives
-//! meanwhile. A stop signal while learning ends the run before it starts (the
+//! drops them as behind, nor times them), and each delivery first takes in, without waiting,
+//! what the socket received meanwhile, so the kernel's buffer does not fill behind the replay
+//! (while the run lags the stream, up to [`HOLD_BYTES`]). A stop signal while learning ends the run before it starts (the
 //! held samples are not measured; the message says how much).
 
 use super::Vita49Source;
@@ -80,7 +81,10 @@ struct Chunk {
 #[derive(Default)]
 pub(super) struct Ahead {
     chunks: VecDeque<Chunk>,
+    /// Samples in `chunks` (a chunk's until it is wholly delivered).
     held: usize,
+    /// The buffer samples are read into before they are held.
+    scratch: Vec<Complex32>,
     /// The input ended while learning (a change of rate or format): its error, raised once what
     /// was held is delivered.
     pub ending: Option<anyhow::Error>,
@@ -111,11 +115,13 @@ impl Ahead {
     ) -> Option<usize> {
         let chunk = self.chunks.front_mut()?;
         *lost += std::mem::take(&mut chunk.lost);
-        retunes.append(&mut chunk.retunes);
+        // Before any the live stream has already reported (those come after what is held).
+        retunes.splice(0..0, chunk.retunes.drain(..));
         let n = out.len().min(chunk.samples.len() - chunk.offset);
         out[..n].copy_from_slice(&chunk.samples[chunk.offset..chunk.offset + n]);
         chunk.offset += n;
         if chunk.offset == chunk.samples.len() {
+            self.held -= chunk.samples.len();
             self.chunks.pop_front();
         }
         Some(n)
@@ -241,11 +247,8 @@ impl Vita49Source {
                 Some(0) => return Ok(Ending::Stopped),
                 Some(n) => {
                     heard = Instant::now();
-                    let retunes = std::mem::take(&mut self.retuned);
+                    let retunes = self.hold_read(&buf[..n]);
                     let closed = retunes.iter().fold(None, |c, r| c.or(learner.retune(r)));
-                    let lost = std::mem::take(&mut self.lost);
-                    let samples = buf[..n].to_vec();
-                    self.ahead.hold(Chunk { lost, retunes, samples, offset: 0 });
                     if let Some(plan) = closed {
                         return Ok(Ending::Closed(plan));
                     }
@@ -270,6 +273,44 @@ impl Vita49Source {
                 );
             }
         }
+    }
+
+    /// While held samples are delivered: what the socket has received meanwhile joins them,
+    /// without waiting, so the kernel's buffer never fills behind the replay (up to
+    /// [`HOLD_BYTES`] held; past that the socket keeps what it can, and what it drops is found
+    /// as `packet_lost`).
+    pub(super) fn top_up(&mut self) -> Result<()> {
+        if self.ahead.ending.is_some() || self.ahead.bytes() >= HOLD_BYTES {
+            return Ok(());
+        }
+        self.socket.set_nonblocking(true)?;
+        let mut buf = std::mem::take(&mut self.ahead.scratch);
+        buf.resize(1 << 16, Complex32::default());
+        while self.ahead.bytes() < HOLD_BYTES {
+            match self.read_within(&mut buf, false) {
+                Ok(Some(n)) if n > 0 => {
+                    self.hold_read(&buf[..n]);
+                }
+                Ok(_) => break,
+                Err(e) => {
+                    self.ahead.ending = Some(e);
+                    break;
+                }
+            }
+        }
+        self.ahead.scratch = buf;
+        self.socket.set_nonblocking(false)?;
+        Ok(())
+    }
+
+    /// Holds samples just read, with the losses before them and the retunes read with them;
+    /// returns those retunes (for the learner).
+    fn hold_read(&mut self, samples: &[Complex32]) -> Vec<Step> {
+        let retunes = std::mem::take(&mut self.retuned);
+        let lost = std::mem::take(&mut self.lost);
+        let chunk = Chunk { lost, retunes: retunes.clone(), samples: samples.to_vec(), offset: 0 };
+        self.ahead.hold(chunk);
+        retunes
     }
 
     /// No sweep: the stream is read at one tuning, and a retune ends it (module doc of
@@ -363,13 +404,17 @@ mod tests {
         });
         a.hold(Chunk { lost: 5, retunes: vec![step(8, 1.0)], samples: vec![x(4.0)], offset: 0 });
         assert_eq!(a.bytes(), 4 * 8);
-        let (mut lost, mut retunes, mut out) = (0, Vec::new(), [x(0.0); 2]);
+        let (mut lost, mut out) = (0, [x(0.0); 2]);
+        // A retune the live stream reported meanwhile stays after the held ones.
+        let mut retunes = vec![step(50, 2.0)];
         assert_eq!(a.replay(&mut out, &mut lost, &mut retunes), Some(2));
         assert_eq!(a.replay(&mut out, &mut lost, &mut retunes), Some(1));
         assert_eq!((out[0], lost), (x(3.0), 0));
         assert_eq!(a.replay(&mut out, &mut lost, &mut retunes), Some(1));
-        assert_eq!((out[0], lost, &retunes[..]), (x(4.0), 5, &[step(8, 1.0)][..]));
+        assert_eq!((out[0], lost), (x(4.0), 5));
+        assert_eq!(retunes, vec![step(8, 1.0), step(50, 2.0)]);
         assert_eq!(a.replay(&mut out, &mut lost, &mut retunes), None);
+        assert!(!a.holds() && a.bytes() == 0, "nothing held once delivered");
     }
 
     #[test]

@@ -658,6 +658,9 @@ impl SampleSource for Vita49Source {
     }
 
     fn read(&mut self, out: &mut [Complex32]) -> Result<usize> {
+        if self.ahead.holds() {
+            self.top_up()?;
+        }
         if let Some(n) = self.ahead.replay(out, &mut self.lost, &mut self.retuned) {
             return Ok(n);
         }
