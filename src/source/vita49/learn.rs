@@ -29,7 +29,8 @@
 //! them ([`SampleSource::replaying`](crate::source::SampleSource::replaying): the reader never
 //! drops them as behind, nor times them), and each delivery first takes in, without waiting,
 //! what the socket received meanwhile, so the kernel's buffer does not fill behind the replay
-//! (while the run lags the stream, up to [`HOLD_BYTES`]). A stop signal while learning ends the run before it starts (the
+//! (up to as much as learning held: the run never lags the stream by more than the read-ahead).
+//! A stop signal while learning ends the run before it starts (the
 //! held samples are not measured; the message says how much).
 
 use super::Vita49Source;
@@ -83,6 +84,9 @@ pub(super) struct Ahead {
     chunks: VecDeque<Chunk>,
     /// Samples in `chunks` (a chunk's until it is wholly delivered).
     held: usize,
+    /// The most held while delivering: what learning held, so the run never lags the stream by
+    /// more than the read-ahead did.
+    cap: usize,
     /// The buffer samples are read into before they are held.
     scratch: Vec<Complex32>,
     /// The input ended while learning (a change of rate or format): its error, raised once what
@@ -207,6 +211,7 @@ impl Vita49Source {
         let rate = self.info.sample_rate_hz;
         let mut learner = Learner::new(self.info.center_hz, (wait.as_secs_f64() * rate) as u64);
         let ending = self.read_ahead(&mut learner, wait)?;
+        self.ahead.cap = self.ahead.bytes();
         let end = self.next;
         let plan = match ending {
             Ending::Closed(plan) => Some(plan),
@@ -276,17 +281,17 @@ impl Vita49Source {
     }
 
     /// While held samples are delivered: what the socket has received meanwhile joins them,
-    /// without waiting, so the kernel's buffer never fills behind the replay (up to
-    /// [`HOLD_BYTES`] held; past that the socket keeps what it can, and what it drops is found
-    /// as `packet_lost`).
+    /// without waiting, so the kernel's buffer does not fill behind the replay (up to as much
+    /// as learning held: a run slower than the stream then lags it by no more than the
+    /// read-ahead, and the socket keeps what it can; what it drops is found as `packet_lost`).
     pub(super) fn top_up(&mut self) -> Result<()> {
-        if self.ahead.ending.is_some() || self.ahead.bytes() >= HOLD_BYTES {
+        if self.ahead.ending.is_some() || self.ahead.bytes() >= self.ahead.cap {
             return Ok(());
         }
         self.socket.set_nonblocking(true)?;
         let mut buf = std::mem::take(&mut self.ahead.scratch);
         buf.resize(1 << 16, Complex32::default());
-        while self.ahead.bytes() < HOLD_BYTES {
+        while self.ahead.bytes() < self.ahead.cap {
             match self.read_within(&mut buf, false) {
                 Ok(Some(n)) if n > 0 => {
                     self.hold_read(&buf[..n]);
