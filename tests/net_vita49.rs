@@ -132,9 +132,15 @@ fn a_public_address_needs_listen_public_and_a_silent_port_says_what_it_waited_fo
 
 /// `log` on `vita49://` at a free port, writing to `out`.
 fn spawn_log(port: u16, out: &std::path::Path) -> std::process::Child {
+    spawn_log_with(port, out, &[])
+}
+
+/// [`spawn_log`] with `extra` flags.
+fn spawn_log_with(port: u16, out: &std::path::Path, extra: &[&str]) -> std::process::Child {
     Command::new(env!("CARGO_BIN_EXE_bandwarden"))
         .args(["log", &format!("vita49://127.0.0.1:{port}"), "--channel", "a=145.52M:10k"])
         .args(["--interval", "1s", "--fft", "512", "--threads", "1", "-o", out.to_str().unwrap()])
+        .args(extra)
         .stderr(Stdio::piped())
         .spawn()
         .unwrap()
@@ -175,7 +181,8 @@ fn free_udp_port() -> u16 {
 fn a_retune_mid_stream_ends_the_input_after_the_samples_before_it() {
     let out = common::scratch("vita49", "retune.jsonl");
     let port = free_udp_port();
-    let child = spawn_log(port, &out);
+    // Learning off: a retune is then an end, as for a stream that retunes after --learn.
+    let child = spawn_log_with(port, &out, &["--learn", "0"]);
     let samples = carrier(80, 4);
     let (tx, to) = announce(port);
     // 50 packets at 145.5 MHz, the same context repeated on the way (no change), then the
@@ -302,6 +309,8 @@ fn the_reference_level_turns_levels_into_dbm() {
         .map(|l| serde_json::from_str(l).unwrap())
         .collect();
     assert_eq!(recs[0]["calibration"], "vita49 reference level", "{}", recs[0]);
+    // A stream at one centre, read ahead for a retune that never came: no panorama.
+    assert!(recs[0]["panorama"].is_null(), "{}", recs[0]);
     assert_eq!(recs[0]["level_offset_db"].as_f64(), Some(-20.0));
     let intervals: Vec<&Value> = recs.iter().filter(|r| r["kind"] == "interval").collect();
     assert!(!intervals.is_empty(), "{recs:?}");
@@ -400,4 +409,164 @@ fn a_four_step_sweep_over_udp_is_one_panorama_with_both_tones_right() {
     // own frequency within one bin (200 Hz); the spur sent only while the receiver settled was
     // skipped, so nothing else stands out.
     common::assert_tones(&v, &SWEEP_TONES, 200.0, "VITA 49 sweep");
+}
+
+/// `sweeps` sweeps of `steps` (centre, packets a dwell) as ci16_be bytes, built as
+/// [`sweep_samples`] builds the even sweep.
+fn steps_samples(steps: &[(f64, usize)], sweeps: usize) -> Vec<u8> {
+    let mut bytes = Vec::new();
+    for s in 0..sweeps {
+        for (k, &(c, packets)) in steps.iter().enumerate() {
+            let spur = (SWEEP_SPUR_HZ, PER_PACKET as u64);
+            let seed = (s * steps.len() + k) as u64;
+            let x = common::dwell(c, FS, packets * PER_PACKET, &SWEEP_TONES, spur, seed);
+            SampleFormat::Ci16Be.encode(&x, &mut bytes);
+        }
+    }
+    bytes
+}
+
+/// Sends `sweeps` sweeps of `steps` to bandwarden on `port` at the stream's rate, a context at
+/// every dwell's start, after announcing the first centre; then the datagrams of `after`.
+fn send_steps(port: u16, steps: &[(f64, usize)], sweeps: usize, after: &[Vec<u8>]) {
+    let samples = steps_samples(steps, sweeps);
+    let (tx, to) = announce_with(port, |i| sweep_context(i, steps[0].0));
+    let mut k = 0;
+    for _ in 0..sweeps {
+        for &(centre, packets) in steps {
+            tx.send_to(&sweep_context(10 + k as u32, centre), &to).unwrap();
+            for _ in 0..packets {
+                tx.send_to(&data(k, &samples), &to).unwrap();
+                std::thread::sleep(Duration::from_secs_f64(PER_PACKET as f64 / FS));
+                k += 1;
+            }
+        }
+    }
+    for d in after {
+        tx.send_to(d, &to).unwrap();
+    }
+}
+
+/// `command` on `vita49://` at a free port with `args`, fed `sweeps` sweeps of `steps`, then
+/// `after`.
+fn on_steps(
+    command: &str,
+    args: &[&str],
+    steps: &[(f64, usize)],
+    sweeps: usize,
+    after: &[Vec<u8>],
+) -> std::process::Output {
+    let port = free_udp_port();
+    let child = Command::new(env!("CARGO_BIN_EXE_bandwarden"))
+        .args([command, &format!("vita49://127.0.0.1:{port}")])
+        .args(args)
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    send_steps(port, steps, sweeps, after);
+    child.wait_with_output().unwrap()
+}
+
+/// The log at `out`, one JSON value a record.
+fn records(out: &std::path::Path) -> Vec<Value> {
+    std::fs::read_to_string(out)
+        .unwrap()
+        .lines()
+        .map(|l| serde_json::from_str(l).unwrap())
+        .collect()
+}
+
+#[test]
+fn a_four_step_sweep_without_a_hop_plan_is_learnt_from_its_first_sweep() {
+    let steps: Vec<(f64, usize)> = SWEEP.iter().map(|&c| (c, DWELL_PACKETS)).collect();
+    let args = ["--json", "--fft", "1000", "--settle", "5ms", "--seconds", "0.4", "--threads", "1"];
+    let o = on_steps("measure", &args, &steps, 2, &[]);
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(o.status.success(), "{err}");
+    // Read ahead until the first packet back at the first centre.
+    assert!(err.contains("its sweep was learnt from the first 0.205 s"), "{err}");
+    assert!(err.contains("145.480000 MHz 50.0 ms"), "{err}");
+    let v: Value = serde_json::from_slice(&o.stdout).unwrap();
+    // As with the plan (the test above): 4 × 160 kHz usable = 640 kHz centred at 145.24 MHz.
+    assert_eq!(v["panorama_span_hz"].as_f64(), Some(640e3), "{v}");
+    assert_eq!(v["center_hz"].as_f64(), Some(145.24e6), "{v}");
+    // The first sweep, held while it was learnt, is measured too: both sweeps' samples.
+    assert_eq!(v["samples"].as_u64(), Some(80_000), "{v}");
+    // Parseval: each tone reads its stated dBFS within 0.5 dB, at its frequency within one
+    // bin (200 Hz); the spur in the settling time stays out.
+    common::assert_tones(&v, &SWEEP_TONES, 200.0, "learnt VITA 49 sweep");
+}
+
+#[test]
+fn a_learnt_sweep_keeps_unequal_dwells_in_the_order_visited() {
+    // Unsorted centres, dwells of 30, 50, 70 and 40 ms.
+    let steps = [(145.16e6, 6), (145.0e6, 10), (145.48e6, 14), (145.32e6, 8)];
+    let out = common::scratch("vita49", "learnt.jsonl");
+    let o = out.to_str().unwrap();
+    // A channel inside the 145.16 MHz step's usable band only (145.08 .. 145.24 MHz).
+    let args = ["--channel", "b=145.12M:10k", "--interval", "1s", "--fft", "500", "--settle"];
+    let args = [&args[..], &["5ms", "--seconds", "0.38", "--threads", "1", "-o", o]].concat();
+    let run = on_steps("log", &args, &steps, 2, &[]);
+    assert!(run.status.success(), "{}", String::from_utf8_lossy(&run.stderr));
+    let recs = records(&out);
+    let pano = &recs[0]["panorama"];
+    assert_eq!(pano["dwell_s"], serde_json::json!([0.03, 0.05, 0.07, 0.04]), "{pano}");
+    assert_eq!(pano["timeline"], "stream", "{pano}");
+    let centres: Vec<f64> =
+        pano["step_centers_hz"].as_array().unwrap().iter().map(|c| c.as_f64().unwrap()).collect();
+    assert_eq!(centres, SWEEP, "the grid's centres, lowest first: {pano}");
+    let stop = recs.last().unwrap();
+    assert_eq!(stop["iq_samples"].as_u64(), Some(2 * 38 * PER_PACKET as u64), "{stop}");
+    // ITU-R Report SM.2256 (from memory): observation time is the time the channel was in
+    // view: its step's 30 ms dwell less 5 ms settling, in both sweeps (the first one learnt).
+    let b = recs.iter().find(|r| r["kind"] == "interval" && r["channel"] == "b").unwrap();
+    assert!((b["observation_s"].as_f64().unwrap() - 0.05).abs() < 1e-9, "{b}");
+}
+
+#[test]
+fn input_ending_mid_first_sweep_stitches_the_centres_seen() {
+    // Two steps, then the receiver changes its sample rate: the input ends there.
+    let steps = [(145.0e6, 10), (145.16e6, 10)];
+    let mut ends = sweep_context(30, 145.16e6);
+    ends[28..36].copy_from_slice(&words(&radix20(2.0 * FS)));
+    let out = common::scratch("vita49", "cut.jsonl");
+    let args = ["--channel", "a=145.05M:10k", "--interval", "1s", "--fft", "500"];
+    let args = [&args[..], &["--threads", "1", "-o", out.to_str().unwrap()]].concat();
+    let o = on_steps("log", &args, &steps, 1, &[ends]);
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert_eq!(o.status.code(), Some(1), "{err}");
+    assert!(err.contains("its unfinished sweep was learnt"), "{err}");
+    assert!(err.contains("changed its sample rate"), "{err}");
+    let recs = records(&out);
+    let pano = &recs[0]["panorama"];
+    assert_eq!(pano["step_centers_hz"], serde_json::json!([145.0e6, 145.16e6]), "{pano}");
+    let stop = recs.last().unwrap();
+    assert_eq!(stop["reason"], "input_error", "{stop}");
+    assert_eq!(stop["iq_samples"].as_u64(), Some(20 * PER_PACKET as u64), "{stop}");
+}
+
+#[test]
+fn a_retune_to_a_centre_not_in_the_learnt_sweep_stops_the_run_naming_it() {
+    let steps: Vec<(f64, usize)> = SWEEP.iter().map(|&c| (c, DWELL_PACKETS)).collect();
+    // After two sweeps the receiver moves to 146 MHz and sends a dwell there.
+    let after: Vec<Vec<u8>> = std::iter::once(sweep_context(3, 146.0e6))
+        .chain((80..90).map(|k| data(k, &sweep_samples(3))))
+        .collect();
+    let args = ["--json", "--fft", "1000", "--threads", "1"];
+    let o = on_steps("measure", &args, &steps, 2, &after);
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert_eq!(o.status.code(), Some(1), "{err}");
+    assert!(err.contains("retuned to 146.000000 MHz at sample 80000"), "{err}");
+    assert!(err.contains("--hop-plan"), "{err}");
+}
+
+#[test]
+fn learn_is_refused_with_a_hop_plan_and_off_vita49() {
+    let o = common::run(&["measure", "vita49://127.0.0.1:0", "--learn", "1s", "--hop-plan", "p"]);
+    let err = common::stderr(&o);
+    assert!(!o.status.success() && err.contains("give one of the two"), "{err}");
+    let o = common::run(&["measure", "x.cf32", "--rate", "1M", "--learn", "2s"]);
+    let err = common::stderr(&o);
+    assert!(!o.status.success() && err.contains("--learn applies to vita49://"), "{err}");
 }

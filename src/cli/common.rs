@@ -75,9 +75,14 @@ pub struct InputArgs {
     /// 0.8: the central 80 %, clear of the receiver's filter edges).
     #[arg(long, value_name = "FRACTION", value_parser = crate::source::tuning::parse_usable)]
     pub usable: Option<f64>,
+    /// With INPUT vita49://ADDR:PORT and no --hop-plan: read this much of the stream ahead
+    /// (default 1s) for a first retune; a stream that retunes in it has its first sweep learnt
+    /// and stitched into a panorama; 0 never learns (a retune ends the input).
+    #[arg(long, value_name = "DURATION", value_parser = parse_settle)]
+    pub learn: Option<f64>,
 }
 
-/// `--settle`: a duration, zero allowed.
+/// `--settle` and `--learn`: a duration, zero allowed.
 fn parse_settle(text: &str) -> Result<f64, String> {
     crate::units::parse_duration(text).map(|d| d.as_secs_f64())
 }
@@ -99,6 +104,7 @@ impl InputArgs {
             hop_plan: self.hop_plan.clone(),
             settle_s: self.settle,
             usable: self.usable,
+            learn_s: self.learn,
             stop: None,
         }
     }

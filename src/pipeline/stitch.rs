@@ -87,7 +87,7 @@ impl Stitch {
             let listed: Vec<String> =
                 self.panorama.grid().centres().iter().map(|&c| format_hz(c)).collect();
             return Err(format!(
-                "the stream retuned to {} at sample {}, which is not one of the hop plan's centres ({}); add it to the plan",
+                "the stream retuned to {} at sample {}, which is not one of the panorama's centres ({}, from the hop plan or the stream's first sweep); list every centre it visits in --hop-plan FILE",
                 format_hz(step.center_hz),
                 step.start,
                 listed.join(", ")

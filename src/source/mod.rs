@@ -175,6 +175,13 @@ pub trait SampleSource: Send {
         None
     }
 
+    /// True while the source delivers samples it read ahead before the run began (a VITA 49
+    /// stream whose sweep was learnt): they arrived at the stream's rate while it was read
+    /// ahead, so the reader neither drops them when it is behind nor times them.
+    fn replaying(&self) -> bool {
+        false
+    }
+
     /// The retunes found since the last call, each with the index of the first sample it applies
     /// to. A source hands a retune out no later than with the `read` that delivers that sample.
     fn take_retunes(&mut self) -> Vec<tuning::Step> {
@@ -218,6 +225,9 @@ pub struct InputRequest {
     pub settle_s: Option<f64>,
     /// Share of each step's span kept in a panorama (default [`tuning::DEFAULT_USABLE`]).
     pub usable: Option<f64>,
+    /// `--learn`: of a VITA 49 stream without `--hop-plan`, how long of it is read ahead for a
+    /// first retune (zero: never learn; `None`: [`vita49::DEFAULT_LEARN`]).
+    pub learn_s: Option<f64>,
     /// Set by a stop signal: a source that waits while opening gives up
     /// ([`StoppedWhileOpening`]).
     pub stop: Option<std::sync::Arc<std::sync::atomic::AtomicBool>>,
@@ -267,6 +277,11 @@ pub fn open(req: &InputRequest, notes: &mut Vec<String>) -> Result<Box<dyn Sampl
     }
     if !req.path.as_deref().is_some_and(is_sigmf_name) {
         refuse_sigmf_choices(req)?;
+    }
+    if req.learn_s.is_some() && !req.path.as_deref().is_some_and(|p| p.starts_with("vita49://")) {
+        bail!(
+            "--learn applies to vita49://ADDR:PORT input only (a VITA 49 stream whose context says where it is tuned); drop it, or give --hop-plan FILE for a retuned raw stream"
+        );
     }
     let src = tuning::apply(open_unchecked(req, notes)?, req)?;
     check_info(src.info(), notes)?;

@@ -182,6 +182,8 @@ fn run(
     // Retunes not yet carried by a delivered block (one dropped while behind keeps them).
     let mut retunes: Vec<super::tuning::Step> = Vec::new();
     let mut skipped = 0u64;
+    // Samples (and losses) up to the end of those the source read ahead before the run.
+    let mut replayed = 0u64;
     if opts.skip_samples > 0 {
         let mut scratch = vec![Complex32::default(); opts.block_len.max(1)];
         while skipped < opts.skip_samples && !stop.load(Ordering::Relaxed) {
@@ -203,6 +205,8 @@ fn run(
         }
         let mut samples = spare.try_recv().unwrap_or_default();
         samples.resize(want, Complex32::default());
+        // Samples the source read ahead before the run: delivered whole, not timed.
+        let read_ahead = src.replaying();
         let n = src.read(&mut samples)?;
         samples.truncate(n);
         retunes.extend(src.take_retunes().into_iter().map(|mut r| {
@@ -219,9 +223,11 @@ fn run(
             }
             break;
         }
+        if read_ahead {
+            replayed = index + n as u64;
+        }
         let arrived = Instant::now();
-        let first = *first_block.get_or_insert(arrived);
-        if live {
+        if live && !read_ahead {
             let check = rate_check.get_or_insert_with(|| RateCheck::new(rate, arrived));
             if lost > 0 {
                 check.disturbed(arrived);
@@ -235,7 +241,10 @@ fn run(
         }
         // Seen once ahead of real time, the input is a recording: it may wait, never drop, and
         // from now on plays at its recorded rate when asked to.
-        if !recording && ahead_of_real_time(index + n as u64, rate, first, opts) {
+        let live_since = (!read_ahead).then(|| *first_block.get_or_insert(arrived));
+        let since_replay = index + n as u64 - replayed;
+        if !recording && live_since.is_some_and(|t| ahead_of_real_time(since_replay, rate, t, opts))
+        {
             recording = true;
             pacer = pacer.or(opts.pace_recordings.map(Pacer::new));
         }
@@ -252,7 +261,7 @@ fn run(
         stats.samples.fetch_add(n as u64, Ordering::Relaxed);
         match tx.try_send(block) {
             Ok(()) => disconnected = 0,
-            Err(TrySendError::Full(mut b)) if opts.drop_when_full && !recording => {
+            Err(TrySendError::Full(mut b)) if opts.drop_when_full && !recording && !read_ahead => {
                 stats.dropped.fetch_add(b.samples.len() as u64, Ordering::Relaxed);
                 retunes = std::mem::take(&mut b.retunes);
             }

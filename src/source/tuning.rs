@@ -9,13 +9,12 @@
 //! timeline fixed before the run: its retunes travel with the samples instead, as [`Step`]s on
 //! the blocks the reader delivers ([`SampleSource::take_retunes`]), each before the first sample
 //! it applies to. What must be fixed before the first sample is the panorama's grid (every
-//! consumer is sized from it), so such a stream needs `--hop-plan`: the plan's centres make the
-//! grid and its dwell times the expected observation and revisit times, while the stream's own
-//! retunes say when each dwell begins ([`Tuning::follows_stream`]). Learning the grid from the
-//! first sweep instead would leave every sample before the first repeated centre unmeasured or
-//! held, and a receiver that never repeats a centre (a one-off scan) without any grid at all;
-//! a plan is one line per centre, and a stream that visits a centre not in it ends the input
-//! with an error naming the centre.
+//! consumer is sized from it): `--hop-plan` gives it (the plan's centres make the grid and its
+//! dwell times the expected observation and revisit times), or without a plan a VITA 49 source
+//! learns the same from the stream's first sweep, read ahead and held before the run starts
+//! (`vita49::learn`); either way the stream's own retunes say when each dwell begins
+//! ([`Tuning::follows_stream`]), and a stream that visits a centre not in the grid ends the
+//! input with an error naming the centre.
 //! Each dwell's first [`Tuning::settle_samples`] are skipped (a receiver's synthesiser and AGC
 //! settle after a retune), and only [`Tuning::usable`] of each step's rate is kept (the outer
 //! bins lie in the receiver's anti-alias filter roll-off).
@@ -294,10 +293,15 @@ fn follow_stream(
             format_hz(info.center_hz)
         );
     }
-    if let Some(b) = stream.bandwidth_hz.filter(|b| *b > 0.0) {
-        plan.usable = (b / info.sample_rate_hz).min(1.0);
-    }
+    keep_stream_band(plan, stream, info.sample_rate_hz);
     Ok(())
+}
+
+/// The stream's bandwidth, when it gives one, as the usable share of each step of `plan`.
+pub(super) fn keep_stream_band(plan: &mut Tuning, stream: &StreamRetunes, rate_hz: f64) {
+    if let Some(b) = stream.bandwidth_hz.filter(|b| *b > 0.0) {
+        plan.usable = (b / rate_hz).min(1.0);
+    }
 }
 
 /// True when two centre frequencies are one tuning: within 0.5 Hz (a VITA 49 context's radix-20
@@ -347,6 +351,10 @@ impl SampleSource for Retuned {
 
     fn take_retunes(&mut self) -> Vec<Step> {
         self.inner.take_retunes()
+    }
+
+    fn replaying(&self) -> bool {
+        self.inner.replaying()
     }
 }
 

@@ -27,10 +27,12 @@
 //! (placed on the time line as a data packet's would be), else the end of the data placed so
 //! far: a sender that sends the context before the first packet at the new centre, as the
 //! standard expects, is then exact. The context's bandwidth field, when present, gives the
-//! usable band of every step (unless `--usable`).
+//! usable band of every step (unless `--usable`). Without `--hop-plan` the same is learnt from
+//! the stream's first sweep, read ahead at open (module `learn`); a stream that does not retune
+//! within `--learn` is read at one tuning.
 //!
 //! **Other context changes.** A context packet that changes the sample rate or the payload
-//! format after samples have begun (or the centre, without `--hop-plan`) means the samples that
+//! format after samples have begun (or the centre, when no sweep is followed) means the samples that
 //! follow are of another band or must be decoded otherwise; one run measures one tuning, so the
 //! source delivers every sample it holds from before the change, then ends the input with an
 //! error naming the change and the sample where it happened (the run stops as `input_error`,
@@ -50,6 +52,7 @@
 //! in order; a packet for a place already delivered (a duplicate or one too late) is dropped and
 //! counted. Malformed datagrams are counted, noted once, and never taken as samples.
 
+mod learn;
 pub mod packet;
 
 use super::{sanitize, InputIssues, InputRequest, SampleFormat, SampleSource, SourceInfo};
@@ -206,6 +209,8 @@ pub struct Vita49Source {
     spare: Vec<Vec<Complex32>>,
     /// Retunes found and not yet taken by the reader.
     retuned: Vec<super::tuning::Step>,
+    /// Samples read ahead while the tuning was learnt, delivered before the live stream.
+    ahead: learn::Ahead,
     /// Counts for the notes.
     pub counts: Counts,
 }
@@ -227,6 +232,7 @@ pub fn open(addr: SocketAddr, req: &InputRequest, notes: &mut Vec<String>) -> Re
             "vita49://{addr} would take packets from other hosts; add --listen-public to allow that, or bind a loopback address such as 127.0.0.1"
         );
     }
+    let learning = learn::wanted(req)?;
     let socket = UdpSocket::bind(addr).with_context(|| format!("cannot bind UDP {addr}"))?;
     socket.set_read_timeout(Some(TICK))?;
     if let Some(note) = size_receive_buffer(&socket, RECEIVE_BUFFER, addr) {
@@ -255,12 +261,17 @@ pub fn open(addr: SocketAddr, req: &InputRequest, notes: &mut Vec<String>) -> Re
         },
         seen: None,
         changed: None,
-        follow: req.hop_plan.is_some().then(super::tuning::StreamRetunes::default),
+        follow: (req.hop_plan.is_some() || learning.is_some())
+            .then(super::tuning::StreamRetunes::default),
         retuned: Vec::new(),
         spare: Vec::new(),
+        ahead: learn::Ahead::default(),
         counts: Counts::default(),
     };
     src.await_context(notes)?;
+    if let Some(wait) = learning {
+        src.learn(wait, notes)?;
+    }
     Ok(src)
 }
 
@@ -574,17 +585,9 @@ impl Vita49Source {
         true
     }
 
-    fn stopped(&self) -> bool {
-        self.stop.as_ref().is_some_and(|s| s.load(Ordering::Relaxed))
-    }
-}
-
-impl SampleSource for Vita49Source {
-    fn info(&self) -> &SourceInfo {
-        &self.info
-    }
-
-    fn read(&mut self, out: &mut [Complex32]) -> Result<usize> {
+    /// The stream's next samples into `out` (the source's `read`, without what was read ahead);
+    /// with `wait` false, `None` after a quiet tick with nothing to deliver.
+    fn read_within(&mut self, out: &mut [Complex32], wait: bool) -> Result<Option<usize>> {
         let mut notes = Vec::new();
         loop {
             if self.offset < self.current.len() {
@@ -592,7 +595,7 @@ impl SampleSource for Vita49Source {
                 out[..n].copy_from_slice(&self.current[self.offset..self.offset + n]);
                 self.offset += n;
                 self.next += n as u64;
-                return Ok(n);
+                return Ok(Some(n));
             }
             if self.release(false) {
                 continue;
@@ -609,15 +612,20 @@ impl SampleSource for Vita49Source {
                         self.next,
                         self.next as f64 / self.info.sample_rate_hz,
                         if self.follow.is_none() && what.starts_with("its centre") {
-                            ", or give --hop-plan FILE listing the centres it visits to stitch them into one panorama"
+                            ", or give --hop-plan FILE listing the centres it visits to stitch them into one panorama (without it a sweep is learnt only when the stream first retunes within --learn of its start, 1 s unless given)"
                         } else {
                             ""
                         }
                     );
                 }
-                return Ok(0);
+                return Ok(Some(0));
             }
-            let Some(n) = self.receive()? else { continue };
+            let Some(n) = self.receive()? else {
+                if wait {
+                    continue;
+                }
+                return Ok(None);
+            };
             // Parsed in place: the datagram buffer is lent out, not copied, per packet.
             let bytes = std::mem::take(&mut self.datagram);
             match packet::parse(&bytes[..n]) {
@@ -636,6 +644,33 @@ impl SampleSource for Vita49Source {
                 Ok(Packet::Other { .. }) => {}
             }
             self.datagram = bytes;
+        }
+    }
+
+    fn stopped(&self) -> bool {
+        self.stop.as_ref().is_some_and(|s| s.load(Ordering::Relaxed))
+    }
+}
+
+impl SampleSource for Vita49Source {
+    fn info(&self) -> &SourceInfo {
+        &self.info
+    }
+
+    fn read(&mut self, out: &mut [Complex32]) -> Result<usize> {
+        if self.ahead.holds() {
+            self.top_up()?;
+        }
+        if let Some(n) = self.ahead.replay(out, &mut self.lost, &mut self.retuned) {
+            return Ok(n);
+        }
+        if let Some(e) = self.ahead.ending.take() {
+            return Err(e);
+        }
+        loop {
+            if let Some(n) = self.read_within(out, true)? {
+                return Ok(n);
+            }
         }
     }
 
@@ -661,5 +696,9 @@ impl SampleSource for Vita49Source {
 
     fn take_retunes(&mut self) -> Vec<super::tuning::Step> {
         std::mem::take(&mut self.retuned)
+    }
+
+    fn replaying(&self) -> bool {
+        self.ahead.holds()
     }
 }
