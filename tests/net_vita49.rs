@@ -121,6 +121,33 @@ fn lost_reordered_and_repeated_packets_are_counted_exactly() {
     assert_eq!(start_rec["center_hz"].as_f64().unwrap(), 145.5e6, "{start_rec}");
 }
 
+/// A sender that stops well within `--learn` (a burst of 0.1 s of stream, sent at once) and a
+/// stop signal 0.6 s later: the read-ahead took the pause as the end of the stream's first part
+/// (quiet for 0.25 s), so what was held is measured and logged, every sample of it, and the run
+/// ends cleanly on the signal. Without that it ended before its start with nothing logged.
+#[test]
+fn a_short_burst_then_a_stop_signal_is_measured_not_lost_in_the_read_ahead() {
+    let out = common::scratch("vita49-burst", "site.jsonl");
+    let port = free_udp_port();
+    let mut child = spawn_log(port, &out);
+    let burst = 20;
+    let samples = carrier(burst, 5);
+    let (tx, to) = announce(port);
+    for k in 0..burst {
+        tx.send_to(&data(k, &samples), &to).unwrap();
+    }
+    std::thread::sleep(Duration::from_millis(600));
+    Command::new("kill").args(["-TERM", &child.id().to_string()]).status().unwrap();
+    let status = child.wait().unwrap();
+    assert!(status.success(), "log exits 0 after SIGTERM: {status:?}");
+    let recs = records(&out);
+    let stop = recs.last().unwrap();
+    assert_eq!(stop["kind"], "stop", "{recs:?}");
+    assert_eq!(stop["iq_samples"].as_u64().unwrap(), (burst * PER_PACKET) as u64, "{stop}");
+    assert_eq!(stop["dropped_samples"].as_u64().unwrap(), 0, "{stop}");
+    assert!(recs.iter().any(|r| r["kind"] == "interval" && r["channel"] == "a"), "{recs:?}");
+}
+
 #[test]
 fn a_public_address_needs_listen_public_and_a_silent_port_says_what_it_waited_for() {
     let o = common::run(&["measure", "vita49://0.0.0.0:0"]);

@@ -10,9 +10,9 @@
 //!   usable band of each step;
 //! - **no retune within `--learn`** (default [`DEFAULT_LEARN`], of stream time): a fixed-tune
 //!   stream, read as before (a retune later ends the input naming `--hop-plan`);
-//! - **the stream falls quiet** for `--learn` of wall time, or **ends** (a change of rate or
-//!   format): the centres seen so far are the sweep when there are two or more (the last dwell as
-//!   long as it was seen), else it was a fixed tuning.
+//! - **the stream falls quiet** for [`QUIET`] of wall time (or `--learn`, if shorter), or
+//!   **ends** (a change of rate or format): the centres seen so far are the sweep when there are
+//!   two or more (the last dwell as long as it was seen), else it was a fixed tuning.
 //!
 //! What was held is delivered first (the first sweep is measured too, from its first sample),
 //! then the live stream. A later retune to a centre the sweep did not visit stops the run naming
@@ -47,6 +47,23 @@ pub const DEFAULT_LEARN: Duration = Duration::from_secs(1);
 /// The most samples held while a sweep is learnt: 512 MiB (64 Mi complex samples, 3.4 s at
 /// 20 MS/s, 67 s at 1 MS/s).
 pub const HOLD_BYTES: usize = 512 << 20;
+/// Wall time without a datagram after which the stream is taken as quiet (or `--learn`, if
+/// shorter). A receiver streams continuously while it dwells and retunes in milliseconds, so a
+/// pause this long means the sender stopped: what is held is then measured at once, and a run
+/// stopped a moment later (a burst of packets, then Ctrl-C) has logged it instead of ending
+/// with everything still held.
+pub const QUIET: Duration = Duration::from_millis(250);
+/// How long without a datagram ends the read-ahead as quiet: [`QUIET`] (or `--learn`, if
+/// shorter) once samples are held; the whole `--learn` before any (a receiver announcing its
+/// context before it streams).
+fn quiet_after(wait: Duration, held_bytes: usize) -> Duration {
+    if held_bytes > 0 {
+        wait.min(QUIET)
+    } else {
+        wait
+    }
+}
+
 /// Bytes a held sample takes (a complex pair of f32).
 const SAMPLE_BYTES: usize = std::mem::size_of::<Complex32>();
 
@@ -258,7 +275,10 @@ impl Vita49Source {
                         return Ok(Ending::Closed(plan));
                     }
                 }
-                None if heard.elapsed() >= wait => return Ok(Ending::Quiet),
+                // Before the first samples (context packets only) the full `--learn` is waited.
+                None if heard.elapsed() >= quiet_after(wait, self.ahead.bytes()) => {
+                    return Ok(Ending::Quiet)
+                }
                 None => continue,
             }
             if learner.fixed(self.next) {
@@ -435,5 +455,13 @@ mod tests {
         assert_eq!(wanted(&req(true, None)).unwrap(), None);
         let e = wanted(&req(true, Some(1.0))).unwrap_err().to_string();
         assert!(e.contains("--learn") && e.contains("--hop-plan"), "{e}");
+    }
+
+    #[test]
+    fn quiet_is_short_once_samples_are_held() {
+        let learn = Duration::from_secs(1);
+        assert_eq!(quiet_after(learn, 0), learn);
+        assert_eq!(quiet_after(learn, 8), QUIET);
+        assert_eq!(quiet_after(Duration::from_millis(100), 8), Duration::from_millis(100));
     }
 }
