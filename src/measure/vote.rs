@@ -1,6 +1,7 @@
 //! One kind for an emitter from the kinds of its emissions: each emission classified on its own
-//! ([`crate::measure::classify`]) votes with its confidence times its length, so a long clear
-//! transmission outweighs a short doubtful one.
+//! ([`crate::measure::classify`]) votes with its confidence times its length (the census
+//! scales the length by the share of the emitter's band the emission covered), so a long clear
+//! transmission across the emitter's band outweighs a short doubtful one or a piece of it.
 //!
 //! - Emissions classed `unknown` (too short, features that disagree) do not vote: they say
 //!   nothing about the emitter. An emitter with no other vote is `unknown`, confidence 0.

@@ -41,9 +41,9 @@ pub struct CensusConsumer {
     open: HashMap<u64, String>,
     /// The samples emissions are classified from, when asked for.
     kinds: Option<Kinds>,
-    /// Every emission sent to be classified as it ended (start, end, centre Hz), in the order
-    /// of [`Kinds::collect`]'s answers.
-    sent: Vec<(u64, u64, f64)>,
+    /// Every emission sent to be classified as it ended (start, end, centre and width Hz), in
+    /// the order of [`Kinds::collect`]'s answers.
+    sent: Vec<(u64, u64, f64, f64)>,
     /// Those emissions with their classes, once collected at the end of the run.
     classified: Vec<Classified>,
     /// Places in frequency already classified (centre, width) and how many of their emissions.
@@ -60,6 +60,8 @@ struct Classified {
     start: u64,
     end: u64,
     center_hz: f64,
+    /// Width of the band it was classified in, Hz.
+    width_hz: f64,
     class: Box<Classification>,
 }
 
@@ -144,10 +146,11 @@ impl CensusConsumer {
             self.classified = std::mem::take(&mut self.sent)
                 .into_iter()
                 .zip(answers)
-                .map(|((start, end, center_hz), c)| Classified {
+                .map(|((start, end, center_hz, width_hz), c)| Classified {
                     start,
                     end,
                     center_hz,
+                    width_hz,
                     class: Box::new(c),
                 })
                 .collect();
@@ -156,10 +159,16 @@ impl CensusConsumer {
             return Vec::new();
         };
         let of_emission = match_classified(&r.emissions, &self.classified);
+        // Each votes with its length times the share of its emitter's band it was seen in: a
+        // piece of an emitter (one tone of an FSK, one sideband) says less about its kind than
+        // an emission across its whole band.
         let mut votes = vec![Vote::default(); r.emitters.len()];
         for (c, e) in self.classified.iter().zip(&of_emission) {
             if let Some(e) = e {
-                votes[r.emissions[*e].emitter].add(&c.class, (c.end - c.start) as f64);
+                let emitter = r.emissions[*e].emitter;
+                let obw = r.emitters[emitter].obw_hz;
+                let share = if obw > 0.0 { (c.width_hz / obw).clamp(0.0, 1.0) } else { 1.0 };
+                votes[emitter].add(&c.class, (c.end - c.start) as f64 * share);
             }
         }
         self.emitter_kinds =
@@ -201,9 +210,9 @@ fn take_place(places: &mut Vec<(f64, f64, u32)>, e: &Emission) -> bool {
 }
 
 /// Sends a census emission to be classified from the samples held (its detected band's centre
-/// and width, and the noise density its figures were measured against); its start, end and
-/// centre.
-fn classify_emission(k: &mut Kinds, e: &Emission, rbw_hz: f64) -> (u64, u64, f64) {
+/// and width, and the noise density its figures were measured against); its start, end,
+/// centre and width.
+fn classify_emission(k: &mut Kinds, e: &Emission, rbw_hz: f64) -> (u64, u64, f64, f64) {
     let width = e.high_hz - e.low_hz;
     let noise_psd = Some(e.figures.noise / width.max(rbw_hz)).filter(|d| d.is_finite() && *d > 0.0);
     let span = Span {
@@ -214,7 +223,7 @@ fn classify_emission(k: &mut Kinds, e: &Emission, rbw_hz: f64) -> (u64, u64, f64
         noise_psd,
     };
     k.classify_later(&span);
-    (span.start, span.end, span.center_hz)
+    (span.start, span.end, span.center_hz, width)
 }
 
 /// For each classified emission, the emission of the result it is part of: the one it overlaps

@@ -33,7 +33,9 @@ pub fn cp_peak(x: &[Complex64], rate_hz: f64, obw_hz: f64, noise_power: f64) -> 
     if n < 64 || lo + 3 >= hi {
         return None;
     }
-    let size = (2 * n).next_power_of_two();
+    // Zero-padded far enough that no lag searched wraps round: n + hi points, rounded up to a
+    // power of two or three times one (half the transform twice the length would be, at most).
+    let size = smooth_size(n + hi);
     let mut buf = vec![Complex64::new(0.0, 0.0); size];
     buf[..n].copy_from_slice(x);
     fft(&mut buf, false);
@@ -45,7 +47,7 @@ pub fn cp_peak(x: &[Complex64], rate_hz: f64, obw_hz: f64, noise_power: f64) -> 
     if !above(power, 0.0) {
         return None;
     }
-    // buf[L] / size = Σ x[i + L] x*[i] (no wrap: zero-padded to twice the length).
+    // buf[L] / size = Σ x[i + L] x*[i] (no wrap for L < hi: zero-padded to n + hi at least).
     let corr: Vec<f64> =
         (lo..hi).map(|l| buf[l].norm() / size as f64 / ((n - l) as f64 * power)).collect();
     let (i, &peak) = corr.iter().enumerate().max_by(|a, b| a.1.total_cmp(b.1))?;
@@ -65,4 +67,14 @@ pub fn cp_peak(x: &[Complex64], rate_hz: f64, obw_hz: f64, noise_power: f64) -> 
         0.0
     };
     Some(CpPeak { lag_s: ((lo + i) as f64 + delta) / rate_hz, strength: peak, prominence })
+}
+
+/// The smallest 2^k or 3·2^k at or above `n`.
+fn smooth_size(n: usize) -> usize {
+    let p = n.next_power_of_two();
+    if p / 4 * 3 >= n {
+        p / 4 * 3
+    } else {
+        p
+    }
 }
