@@ -130,20 +130,24 @@ pub fn lowpass_real(x: &[f64], rate_hz: f64, cutoff_hz: f64) -> Vec<f64> {
     }
     let mut spec: Vec<Complex64> = x.iter().map(|&v| Complex64::new(v, 0.0)).collect();
     fft(&mut spec, false);
-    let edge = (cutoff_hz * 0.1).max(rate_hz / n as f64);
     for (k, v) in spec.iter_mut().enumerate() {
-        let f = super::spectrum::bin_hz(k, n, rate_hz).abs();
-        let h = if f <= cutoff_hz - edge {
-            1.0
-        } else if f >= cutoff_hz + edge {
-            0.0
-        } else {
-            0.5 + 0.5 * (PI * (f - cutoff_hz + edge) / (2.0 * edge)).cos()
-        };
-        *v *= h;
+        *v *= lowpass_gain(super::spectrum::bin_hz(k, n, rate_hz), rate_hz, n, cutoff_hz);
     }
     fft(&mut spec, true);
     spec.iter().map(|v| v.re / n as f64).collect()
+}
+
+/// Amplitude response of [`lowpass_real`] on `n` samples at `rate_hz` at `f` Hz.
+pub fn lowpass_gain(f: f64, rate_hz: f64, n: usize, cutoff_hz: f64) -> f64 {
+    let edge = (cutoff_hz * 0.1).max(rate_hz / n as f64);
+    let f = f.abs();
+    if f <= cutoff_hz - edge {
+        1.0
+    } else if f >= cutoff_hz + edge {
+        0.0
+    } else {
+        0.5 + 0.5 * (PI * (f - cutoff_hz + edge) / (2.0 * edge)).cos()
+    }
 }
 
 /// Centred moving average of length `len` (shorter at the ends).
