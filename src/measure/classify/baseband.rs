@@ -13,9 +13,11 @@ use std::sync::OnceLock;
 /// At most this many input samples are read (the first ones): one FFT of this size bounds the
 /// cost of channelising (about 2^20 · 20 operations).
 pub const MAX_INPUT_SAMPLES: usize = 1 << 20;
-/// At most this many samples after decimation (about 2^17, e.g. 1.3 s of a 25 kHz-wide emission
-/// at 4 × OBW); longer input is cut to fit before the FFT.
-pub const MAX_BASEBAND_SAMPLES: usize = 1 << 17;
+/// At most this many samples after decimation (0.65 s of a 25 kHz-wide emission at 4 × OBW,
+/// 12 000 symbols of a PSK, four times the 16 000-sample scenes of tests/classify.rs); longer
+/// input is cut to fit before the FFT. The analysis of a wide emission (a dozen transforms of
+/// this length) is the tail of a listing made when the input ends: at 2^17 it was about 45 ms.
+pub const MAX_BASEBAND_SAMPLES: usize = 1 << 16;
 /// Output rate over the (effective) occupied bandwidth.
 const RATE_OVER_OBW: f64 = 4.0;
 /// Pass band, each side of the centre, as a fraction of the OBW; the response falls as a raised
