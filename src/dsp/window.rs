@@ -159,7 +159,14 @@ pub struct Window {
     /// [`Window::tone_offset`], which would otherwise evaluate the full sum some eighty times per
     /// peak.
     response_table: OnceLock<Vec<f64>>,
+    /// [`Window::leakage_db`] by whole bins up to [`LEAKAGE_CACHED`], each made when first
+    /// asked: peak detection asks it for every pair of candidate and kept peak of every row,
+    /// and each answer is five sums over the window.
+    leakage: OnceLock<Vec<OnceLock<f64>>>,
 }
+
+/// Distances (bins) whose leakage [`Window::leakage_db`] keeps once computed.
+const LEAKAGE_CACHED: usize = 4096;
 
 /// Samples per bin of the response table; with cubic interpolation the table reproduces the
 /// response to better than 1e-7 (checked in the tests), far below what any level reading resolves.
@@ -171,7 +178,7 @@ impl Window {
         let s1 = exact.iter().sum();
         let s2 = exact.iter().map(|w| w * w).sum();
         let coeffs = exact.iter().map(|&w| w as f32).collect();
-        Window { kind, coeffs, s1, s2, response_table: OnceLock::new() }
+        Window { kind, coeffs, s1, s2, response_table: OnceLock::new(), leakage: OnceLock::new() }
     }
 
     pub fn len(&self) -> usize {
@@ -223,6 +230,25 @@ impl Window {
             (c, s) = (c * dc - s * ds, s * dc + c * ds);
         }
         (re * re + im * im).sqrt().copysign(re) / sum
+    }
+
+    /// The envelope of the power response `bins` whole bins from a tone, dB: the highest
+    /// response within half a bin of that distance, since the tone may sit anywhere within its
+    /// bin. Computed once per distance (up to [`LEAKAGE_CACHED`] bins) and kept.
+    pub fn leakage_db(&self, bins: usize) -> f64 {
+        let compute = || {
+            let worst = [-0.5, -0.25, 0.0, 0.25, 0.5]
+                .iter()
+                .map(|o| self.response((bins as f64 + o).max(0.0)))
+                .fold(0.0f64, f64::max);
+            20.0 * worst.max(1e-12).log10()
+        };
+        if bins >= LEAKAGE_CACHED {
+            return compute();
+        }
+        let table =
+            self.leakage.get_or_init(|| (0..LEAKAGE_CACHED).map(|_| OnceLock::new()).collect());
+        *table[bins].get_or_init(compute)
     }
 
     /// Loss in dB for a tone exactly half-way between two bins.

@@ -247,7 +247,7 @@ fn resolve(
         let stands = kept.iter().enumerate().all(|(m, &k)| {
             let dip = dips[m * len + (c - start) as usize];
             psd(c) >= split.valley * dip
-                && db(psd(c) / psd(k)) >= leakage_db(window, (c - k).abs() as f64) + split.lobe
+                && db(psd(c) / psd(k)) >= window.leakage_db(c.abs_diff(k) as usize) + split.lobe
         });
         if stands || kept.is_empty() {
             kept.push(c);
@@ -274,16 +274,6 @@ fn lowest_towards(psd: &impl Fn(i64) -> f64, start: i64, end: i64, peak: i64, ou
         low = low.min(psd(j));
         row[(j - start) as usize] = low;
     }
-}
-
-/// The envelope of the window's power response `d` bins from a tone, dB: the highest response
-/// within half a bin of `d`, since the tone may sit anywhere within its bin.
-fn leakage_db(window: &Window, d: f64) -> f64 {
-    let worst = [-0.5, -0.25, 0.0, 0.25, 0.5]
-        .iter()
-        .map(|o| window.response((d + o).max(0.0)))
-        .fold(0.0f64, f64::max);
-    20.0 * worst.max(1e-12).log10()
 }
 
 /// Measures the signal on the unwrapped bins `lo..=hi` with its peak at `peak`.
