@@ -30,7 +30,11 @@ pub enum Part {
 
 /// A ring of the newest samples, with the gaps among them.
 pub struct IqHistory {
+    /// The ring; it grows to `cap` as the first lap is written (never zero-filled ahead: a
+    /// history of 64 MiB filled with zeros up front cost a short run's start-up more than
+    /// its copies).
     buf: Vec<Complex32>,
+    cap: usize,
     /// Stream index one past the newest sample.
     end: u64,
     /// Stream indices covered back from `end` (held samples and gaps).
@@ -41,12 +45,8 @@ pub struct IqHistory {
 
 impl IqHistory {
     pub fn new(capacity: usize) -> IqHistory {
-        IqHistory {
-            buf: vec![Complex32::default(); capacity.max(1)],
-            end: 0,
-            len: 0,
-            gaps: VecDeque::new(),
-        }
+        let cap = capacity.max(1);
+        IqHistory { buf: Vec::with_capacity(cap), cap, end: 0, len: 0, gaps: VecDeque::new() }
     }
 
     /// A history of `seconds` at `rate_hz`, within [`HISTORY_MAX_BYTES`].
@@ -58,13 +58,13 @@ impl IqHistory {
     }
 
     pub fn capacity(&self) -> usize {
-        self.buf.len()
+        self.cap
     }
 
     /// Appends samples whose first has stream index `start`. A jump forward is a gap; a jump
     /// back (a new stream) forgets everything.
     pub fn push(&mut self, start: u64, samples: &[Complex32]) {
-        let cap = self.buf.len();
+        let cap = self.cap;
         if start < self.end || start - self.end >= cap as u64 {
             self.clear();
         } else if start > self.end && self.len > 0 {
@@ -75,14 +75,25 @@ impl IqHistory {
         let skipped = (samples.len() - take.len()) as u64;
         let at = ((start + skipped) % cap as u64) as usize;
         let first = (cap - at).min(take.len());
-        self.buf[at..at + first].copy_from_slice(&take[..first]);
-        self.buf[..take.len() - first].copy_from_slice(&take[first..]);
+        self.write_at(at, &take[..first]);
+        self.write_at(0, &take[first..]);
         self.end = start + samples.len() as u64;
         self.len = (self.len + take.len()).min(cap);
         let oldest = self.first();
         while self.gaps.front().is_some_and(|g| g.1 <= oldest) {
             self.gaps.pop_front();
         }
+    }
+
+    /// Writes `data` into the ring from index `at` (`at + data.len() <= cap`), growing it
+    /// as far as needed.
+    fn write_at(&mut self, at: usize, data: &[Complex32]) {
+        if at > self.buf.len() {
+            self.buf.resize(at, Complex32::default());
+        }
+        let over = (self.buf.len() - at).min(data.len());
+        self.buf[at..at + over].copy_from_slice(&data[..over]);
+        self.buf.extend_from_slice(&data[over..]);
     }
 
     /// Oldest stream index covered (held, or inside a gap).
@@ -145,10 +156,10 @@ impl IqHistory {
         if to <= from {
             return;
         }
-        let cap = self.buf.len() as u64;
+        let cap = self.cap as u64;
         let a = (from % cap) as usize;
         let n = (to - from) as usize;
-        let first = (self.buf.len() - a).min(n);
+        let first = (self.cap - a).min(n);
         out.extend_from_slice(&self.buf[a..a + first]);
         out.extend_from_slice(&self.buf[..n - first]);
     }
