@@ -14,6 +14,7 @@ use crate::measure::classify::{
 };
 use crate::source::reader::Block;
 use num_complex::Complex32;
+use std::collections::VecDeque;
 use std::io;
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::{Arc, Mutex, PoisonError};
@@ -48,9 +49,12 @@ pub struct Kinds {
     buf: Vec<Complex32>,
     /// Workers of [`Kinds::classify_later`], started on first use.
     pool: Option<Pool>,
-    /// Classifications asked of the workers (or done at once when they could not start).
-    /// Each with its OBW, for the designator of one whose worker failed.
-    later: Vec<(f64, Option<Classification>)>,
+    /// Classifications asked of the workers (or done at once when they could not start) and
+    /// not yet handed back, oldest first. Each with its OBW, for the designator of one whose
+    /// worker failed.
+    later: VecDeque<(f64, Option<Classification>)>,
+    /// How many were handed back before `later[0]` (the index of `later[0]` among all asked).
+    base: usize,
 }
 
 impl Kinds {
@@ -68,7 +72,15 @@ impl Kinds {
     }
 
     pub fn with_history(history: IqHistory, rate_hz: f64, center_hz: f64) -> Kinds {
-        Kinds { history, rate_hz, center_hz, buf: Vec::new(), pool: None, later: Vec::new() }
+        Kinds {
+            history,
+            rate_hz,
+            center_hz,
+            buf: Vec::new(),
+            pool: None,
+            later: VecDeque::new(),
+            base: 0,
+        }
     }
 
     pub fn push(&mut self, start: u64, samples: &[Complex32]) {
@@ -147,7 +159,7 @@ impl Kinds {
             self.pool = Pool::start();
         }
         let job = Job {
-            index: self.later.len(),
+            index: self.base + self.later.len(),
             iq,
             rate_hz: self.rate_hz,
             offset_hz: span.center_hz - self.center_hz,
@@ -156,36 +168,63 @@ impl Kinds {
         };
         let Some(pool) = self.pool.as_ref() else {
             // No thread could be started: classify here, as before.
-            self.later.push((span.obw_hz, Some(job.classify())));
+            self.later.push_back((span.obw_hz, Some(job.classify())));
             return;
         };
-        self.later.push((span.obw_hz, None));
+        self.later.push_back((span.obw_hz, None));
         pool.send(job);
     }
 
-    /// The answers to every [`Kinds::classify_later`] so far, in the order asked (waiting for
-    /// the workers to finish them); the list starts again empty.
+    /// The answers to every [`Kinds::classify_later`] not yet handed back, in the order asked
+    /// (waiting for the workers to finish them); the list starts again empty.
     pub fn collect(&mut self) -> Vec<Classification> {
-        let mut later = std::mem::take(&mut self.later);
         if let Some(pool) = self.pool.take() {
             for (i, c) in pool.finish() {
-                if let Some(slot) = later.get_mut(i) {
-                    slot.1 = Some(c);
+                self.fill(i, c);
+            }
+        }
+        self.base += self.later.len();
+        std::mem::take(&mut self.later)
+            .into_iter()
+            .map(|(obw, c)| c.unwrap_or_else(|| stopped(obw)))
+            .collect()
+    }
+
+    /// The answer to the oldest [`Kinds::classify_later`] not yet handed back: `None` while its
+    /// worker is still at it (or when none is asked), unless `wait`, which waits for it. A run
+    /// hands on its emissions in order as their answers come, without waiting on each.
+    pub fn next_answer(&mut self, wait: bool) -> Option<Classification> {
+        let (obw, ready) = self.later.front().map(|f| (f.0, f.1.is_some()))?;
+        if !ready {
+            if let Some(pool) = self.pool.as_ref() {
+                let answers: Vec<(usize, Classification)> = pool.done.try_iter().collect();
+                for (i, c) in answers {
+                    self.fill(i, c);
+                }
+            }
+            if wait && self.later.front().is_some_and(|f| f.1.is_none()) {
+                // The workers finish what is queued and stop (a new pool starts if more is
+                // asked); an answer still missing then will never come.
+                if let Some(pool) = self.pool.take() {
+                    for (i, c) in pool.finish() {
+                        self.fill(i, c);
+                    }
+                }
+                if let Some(front) = self.later.front_mut().filter(|f| f.1.is_none()) {
+                    front.1 = Some(stopped(obw));
                 }
             }
         }
-        later
-            .into_iter()
-            .map(|(obw_hz, c)| {
-                c.unwrap_or_else(|| Classification {
-                    class: Class::Unknown,
-                    confidence: 0.0,
-                    params: Default::default(),
-                    designator: designator(obw_hz, Class::Unknown),
-                    note: Some("the classifying thread stopped before this emission".into()),
-                })
-            })
-            .collect()
+        self.later.front()?.1.as_ref()?;
+        self.base += 1;
+        self.later.pop_front().and_then(|f| f.1)
+    }
+
+    /// Puts the answer to the `index`-th classification asked in its slot.
+    fn fill(&mut self, index: usize, c: Classification) {
+        if let Some(slot) = index.checked_sub(self.base).and_then(|i| self.later.get_mut(i)) {
+            slot.1 = Some(c);
+        }
     }
 
     fn classify_range(&mut self, range: Option<(u64, u64)>, span: &Span) -> Classification {
@@ -200,6 +239,17 @@ impl Kinds {
             obw_hz: span.obw_hz,
             noise_psd: span.noise_psd,
         })
+    }
+}
+
+/// What an emission is classified as when its worker stopped before it.
+fn stopped(obw_hz: f64) -> Classification {
+    Classification {
+        class: Class::Unknown,
+        confidence: 0.0,
+        params: Default::default(),
+        designator: designator(obw_hz, Class::Unknown),
+        note: Some("the classifying thread stopped before this emission".into()),
     }
 }
 
@@ -484,6 +534,19 @@ mod tests {
         assert_eq!(later.collect(), at_once);
         assert_eq!(at_once[0].class, Class::Cw);
         // Collected: the list starts again.
+        assert!(later.collect().is_empty());
+        // Taken one by one, as a run takes them: in the order asked, whether or not it waits
+        // (an answer not yet made is None, never another's).
+        spans.iter().for_each(|s| later.classify_later(s));
+        let mut got = Vec::new();
+        while got.len() < spans.len() {
+            match later.next_answer(got.len() == 2) {
+                Some(c) => got.push(c),
+                None => std::thread::sleep(Duration::from_millis(1)),
+            }
+        }
+        assert_eq!(got, at_once);
+        assert_eq!(later.next_answer(true), None);
         assert!(later.collect().is_empty());
     }
 

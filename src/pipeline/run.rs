@@ -20,6 +20,7 @@ use crate::source::{InputIssues, LinkLoss, SourceInfo};
 use anyhow::Result;
 use crossbeam_channel::{Receiver, RecvTimeoutError};
 use num_complex::Complex32;
+use std::collections::VecDeque;
 use std::io;
 use std::time::Duration;
 use time::OffsetDateTime;
@@ -81,6 +82,9 @@ pub struct Run<'a> {
     /// The samples the tracker's emissions are classified from (with `RunSpec::classify`).
     kinds: Option<Kinds>,
     events: Vec<Event>,
+    /// Events waiting, in order, for the kind of an emission among them (true: this one's
+    /// answer is still to be taken from `kinds`).
+    held: VecDeque<(Event, bool)>,
     consumers: Vec<&'a mut dyn Consumer>,
     outbox: Outbox,
     started: bool,
@@ -125,6 +129,7 @@ impl<'a> Run<'a> {
             tracker: spec.tracker,
             kinds,
             events: Vec::new(),
+            held: VecDeque::new(),
             consumers,
             outbox,
             started: false,
@@ -309,7 +314,7 @@ impl<'a> Run<'a> {
         if let Some(t) = self.tracker.as_mut() {
             t.finish(self.next_sample, &mut self.events);
         }
-        self.dispatch_events()?;
+        self.dispatch(true)?;
         self.deliver_mail()?;
         let end =
             RunEnd { reason, end_sample: self.next_sample, dropped_samples: self.lost.total() };
@@ -428,20 +433,41 @@ impl<'a> Run<'a> {
         Ok(())
     }
 
+    /// Hands the tracker's new events on, in order. An emission is classified on the
+    /// classifying workers ([`Kinds::classify_later`]) while the run goes on; it and every
+    /// event after it wait until its answer has come (all of them, with `wait`, when the run
+    /// ends).
     fn dispatch_events(&mut self) -> io::Result<()> {
+        self.dispatch(false)
+    }
+
+    fn dispatch(&mut self, wait: bool) -> io::Result<()> {
         let noise_psd = self.tracker.as_ref().map(Occupancy::noise_density).filter(|d| *d > 0.0);
-        for mut event in self.events.drain(..) {
-            if let (Event::Emission(e), Some(k)) = (&mut event, self.kinds.as_mut()) {
-                e.class = e.obw.map(|edges| {
-                    Box::new(k.classify(&Span {
+        for event in self.events.drain(..) {
+            let asked = match (&event, self.kinds.as_mut()) {
+                (Event::Emission(e), Some(k)) => e.obw.map(|edges| {
+                    k.classify_later(&Span {
                         start: e.start_sample,
                         end: e.end_sample,
                         center_hz: 0.5 * (edges.low_hz + edges.high_hz),
                         obw_hz: edges.width_hz(),
                         noise_psd,
-                    }))
-                });
+                    })
+                }),
+                _ => None,
+            };
+            self.held.push_back((event, asked.is_some()));
+        }
+        while let Some((_, asked)) = self.held.front() {
+            if *asked {
+                let Some(c) = self.kinds.as_mut().and_then(|k| k.next_answer(wait)) else {
+                    break;
+                };
+                if let Some((Event::Emission(e), _)) = self.held.front_mut() {
+                    e.class = Some(Box::new(c));
+                }
             }
+            let Some((event, _)) = self.held.pop_front() else { break };
             for c in self.consumers.iter_mut() {
                 c.event(&event, &self.info)?;
             }
