@@ -444,19 +444,20 @@ impl<'a> Run<'a> {
     fn dispatch(&mut self, wait: bool) -> io::Result<()> {
         let noise_psd = self.tracker.as_ref().map(Occupancy::noise_density).filter(|d| *d > 0.0);
         for event in self.events.drain(..) {
-            let asked = match (&event, self.kinds.as_mut()) {
-                (Event::Emission(e), Some(k)) => e.obw.map(|edges| {
+            let mut asked = false;
+            if let (Event::Emission(e), Some(k)) = (&event, self.kinds.as_mut()) {
+                if let Some(edges) = e.obw {
                     k.classify_later(&Span {
                         start: e.start_sample,
                         end: e.end_sample,
                         center_hz: 0.5 * (edges.low_hz + edges.high_hz),
                         obw_hz: edges.width_hz(),
                         noise_psd,
-                    })
-                }),
-                _ => None,
-            };
-            self.held.push_back((event, asked.is_some()));
+                    });
+                    asked = true;
+                }
+            }
+            self.held.push_back((event, asked));
         }
         while let Some((_, asked)) = self.held.front() {
             if *asked {

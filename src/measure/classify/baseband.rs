@@ -4,7 +4,7 @@
 //! noise power of the result, from the caller's noise PSD or estimated from the bins outside
 //! the emission.
 
-use super::spectrum::{above, bin_hz, fft, fft_f32, quantile};
+use super::spectrum::{above, bin_hz, fft, fft_f32, phasors, quantile};
 use super::EmissionIq;
 use super::MIN_BASEBAND;
 use num_complex::{Complex32, Complex64};
@@ -390,25 +390,10 @@ fn smooth_above(n: usize) -> usize {
     (n.max(1)..).find(|&m| smooth(m)).unwrap_or(n)
 }
 
-/// Samples between two exact phasors of the shift: the phasor in between is stepped by one
-/// complex multiplication per sample (a sine and cosine per sample cost more than the FFT),
-/// and its rounding error, about 1e-16 per step, stays under 1e-12 over this many.
-const PHASOR_RESYNC: usize = 1024;
-
 /// `x` shifted in place by `cycles` per sample (times e^{j2π·cycles·n}).
 fn mix(x: &mut [Complex64], cycles: f64) {
-    if cycles == 0.0 {
-        return;
-    }
-    let step = 2.0 * std::f64::consts::PI * cycles;
-    let rot = Complex64::from_polar(1.0, step);
-    let mut phasor = Complex64::new(1.0, 0.0);
-    for (n, v) in x.iter_mut().enumerate() {
-        if n % PHASOR_RESYNC == 0 {
-            phasor = Complex64::from_polar(1.0, step * n as f64);
-        }
-        *v *= phasor;
-        phasor *= rot;
+    if cycles != 0.0 {
+        x.iter_mut().zip(phasors(cycles)).for_each(|(v, p)| *v *= p);
     }
 }
 

@@ -8,7 +8,7 @@
 //! such links; another roll-off leaves a little inter-symbol interference, which pulls the
 //! cumulants slightly towards zero).
 
-use super::spectrum::{above, bin_hz, fft, find_line, Line};
+use super::spectrum::{above, bin_hz, fft, find_line, phasors, Line};
 use num_complex::Complex64;
 use std::f64::consts::PI;
 
@@ -165,6 +165,5 @@ pub fn power_line(z: &[Complex64], symbol_rate: f64, m: i32) -> Option<(f64, f64
 
 /// `z` with a carrier offset of `freq_hz` (at `symbol_rate` samples per second) removed.
 pub fn derotate(z: &[Complex64], symbol_rate: f64, freq_hz: f64) -> Vec<Complex64> {
-    let w = -2.0 * PI * freq_hz / symbol_rate;
-    z.iter().enumerate().map(|(k, v)| v * Complex64::from_polar(1.0, w * k as f64)).collect()
+    z.iter().zip(phasors(-freq_hz / symbol_rate)).map(|(v, p)| v * p).collect()
 }

@@ -136,7 +136,7 @@ const REFINED_LOBES: usize = 3;
 ///
 /// The padded spectrum is not made whole: it is the unpadded one (length `n` rounded up to a
 /// power of two, whose bins are every [`PAD`]th bin of the padded one) with the padded bins
-/// around its strongest lobes computed directly ([`Dtft`]). The answer is the one the whole
+/// around its strongest lobes computed directly ([`dft_sum`]). The answer is the one the whole
 /// padded transform gives, save that the background's median is taken over the unpadded bins
 /// (a quarter of the same bins, the same distribution), at a quarter of the transform's length
 /// and without planning a transform four times as long.
@@ -184,13 +184,16 @@ pub(super) fn find_line_complex(
     // the padded spectrum's peak.
     let strongest = coarse(tops[0]);
     tops.retain(|&k| coarse(k) * SCALLOP_MAX >= strongest);
-    let dtft = Dtft::new(&centred, m);
     let mut fine: Vec<(usize, f64)> = Vec::new();
     let value = |j: usize, fine: &mut Vec<(usize, f64)>| -> f64 {
         if let Some(&(_, v)) = fine.iter().find(|e| e.0 == j) {
             return v;
         }
-        let v = if j % PAD == 0 { buf[j / PAD].norm() } else { dtft.at(j).norm() };
+        let v = if j % PAD == 0 {
+            buf[j / PAD].norm()
+        } else {
+            dft_sum(centred.iter().copied(), j as f64 / m as f64).norm()
+        };
         fine.push((j, v));
         v
     };
@@ -300,37 +303,30 @@ fn find_line_padded(
     Some(Line { freq_hz, prominence })
 }
 
-/// The DFT of a sequence zero-padded to `m` points, one bin at a time: Σ x[n]·e^(−j2πjn/m),
-/// the phasor stepped by one complex multiplication per sample and set exactly every
-/// [`RESYNC`] samples (its rounding, about 1e-16 a step, stays under 1e-12).
-struct Dtft<'a> {
-    x: &'a [Complex64],
-    m: usize,
+/// Samples between two exact phasors of [`phasors`]: between them the phasor is stepped by one
+/// complex multiplication per sample (a sine and cosine per sample cost more than an FFT), and
+/// its rounding, about 1e-16 a step, stays under 1e-12 over this many.
+const PHASOR_RESYNC: usize = 1024;
+
+/// e^(j2π·cycles·n) for n = 0, 1, 2, …: the shift of a frequency shift, and the kernel of one
+/// DFT bin, without a sine and cosine per sample.
+pub(super) fn phasors(cycles: f64) -> impl Iterator<Item = Complex64> {
+    let step = 2.0 * std::f64::consts::PI * cycles;
+    let rot = Complex64::from_polar(1.0, step);
+    let mut phasor = Complex64::new(1.0, 0.0);
+    (0usize..).map(move |n| {
+        if n % PHASOR_RESYNC == 0 {
+            phasor = Complex64::from_polar(1.0, step * n as f64);
+        }
+        let now = phasor;
+        phasor *= rot;
+        now
+    })
 }
 
-const RESYNC: usize = 1024;
-
-impl<'a> Dtft<'a> {
-    fn new(x: &'a [Complex64], m: usize) -> Dtft<'a> {
-        Dtft { x, m }
-    }
-
-    fn at(&self, j: usize) -> Complex64 {
-        let w = -2.0 * std::f64::consts::PI * j as f64 / self.m as f64;
-        let step = Complex64::from_polar(1.0, w);
-        let mut sum = Complex64::new(0.0, 0.0);
-        for (b, chunk) in self.x.chunks(RESYNC).enumerate() {
-            // The exact phase of the chunk's first sample, reduced modulo m first.
-            let start = ((b * RESYNC) as u128 * j as u128 % self.m as u128) as f64;
-            let mut phasor =
-                Complex64::from_polar(1.0, -2.0 * std::f64::consts::PI * start / self.m as f64);
-            for v in chunk {
-                sum += v * phasor;
-                phasor *= step;
-            }
-        }
-        sum
-    }
+/// Σ x[n]·e^(−j2π·cycles·n): the DFT of `x` at one frequency (`cycles` per sample), unnormalised.
+pub(super) fn dft_sum(x: impl IntoIterator<Item = Complex64>, cycles: f64) -> Complex64 {
+    x.into_iter().zip(phasors(-cycles)).map(|(v, p)| v * p).sum()
 }
 
 /// The DFT of `x` at one frequency (Hz), normalised by the length: the mean of
@@ -339,9 +335,7 @@ pub(super) fn dft_at(x: &[f64], rate_hz: f64, freq_hz: f64) -> Complex64 {
     if x.is_empty() {
         return Complex64::new(0.0, 0.0);
     }
-    let w = -2.0 * std::f64::consts::PI * freq_hz / rate_hz;
-    let sum: Complex64 =
-        x.iter().enumerate().map(|(n, &v)| v * Complex64::from_polar(1.0, w * n as f64)).sum();
+    let sum = dft_sum(x.iter().map(|&v| Complex64::new(v, 0.0)), freq_hz / rate_hz);
     sum / x.len() as f64
 }
 
@@ -407,9 +401,9 @@ mod tests {
         let mut buf = vec![Complex64::new(0.0, 0.0); m];
         buf[..x.len()].copy_from_slice(&x);
         fft(&mut buf, false);
-        let d = Dtft::new(&x, m);
         for j in [0, 1, 3, 77, 4095, 8191, 8192, 12_345, m - 1] {
-            assert!((d.at(j) - buf[j]).norm() < 1e-9 * buf[j].norm().max(1.0), "{j}");
+            let at = dft_sum(x.iter().copied(), j as f64 / m as f64);
+            assert!((at - buf[j]).norm() < 1e-9 * buf[j].norm().max(1.0), "{j}");
         }
     }
 }
