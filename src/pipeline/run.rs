@@ -200,7 +200,7 @@ impl<'a> Run<'a> {
             k.push(block.start, &block.samples);
         }
         let samples = &block.samples[..];
-        if !self.kernels.any_outside(samples, f32::MAX) {
+        if block.finite || !self.kernels.any_outside(samples, f32::MAX) {
             self.push(block.start, samples)?;
         } else {
             // Samples that are not numbers are a hole in the signal, not a shorter signal: the

@@ -143,6 +143,12 @@ pub trait SampleSource: Send {
     /// of input. Filling a caller's buffer lets the reader reuse its blocks.
     fn read(&mut self, out: &mut [Complex32]) -> Result<usize>;
 
+    /// True when every sample of the last read is known to be finite (the source screened them
+    /// as it decoded), so the run need not look at them again; false when not known.
+    fn last_read_finite(&self) -> bool {
+        false
+    }
+
     /// Problems seen so far.
     fn issues(&self) -> InputIssues {
         InputIssues::default()

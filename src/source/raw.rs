@@ -52,12 +52,15 @@ pub struct RawSource {
     finished: bool,
     /// Whether the bytes look like `format` at all (see [`super::plausible`]).
     check: FormatCheck,
+    /// Every sample of the last read was screened and found finite.
+    last_finite: bool,
 }
 
 impl RawSource {
     pub fn new(stream: Box<dyn ByteStream>, format: SampleFormat, info: SourceInfo) -> RawSource {
         RawSource {
             check: FormatCheck::new(format, info.sample_rate_hz),
+            last_finite: false,
             stream,
             format,
             info,
@@ -148,6 +151,7 @@ impl RawSource {
                 self.wrong_format(&why)?;
             }
             if kept > 0 {
+                self.last_finite = screened.non_finite == 0;
                 return Ok(kept);
             }
             // Every sample was dropped: read on after the incomplete one.
@@ -194,10 +198,15 @@ impl SampleSource for RawSource {
     }
 
     fn read(&mut self, out: &mut [Complex32]) -> Result<usize> {
+        self.last_finite = false;
         if self.finished || out.is_empty() {
             return Ok(0);
         }
         self.read_into(out)
+    }
+
+    fn last_read_finite(&self) -> bool {
+        self.last_finite
     }
 
     fn issues(&self) -> InputIssues {
@@ -312,6 +321,31 @@ mod tests {
                     assert_eq!(src.issues().trailing_bytes, 3, "{case}");
                 }
             }
+        }
+    }
+    #[test]
+    fn a_read_says_whether_its_samples_are_all_finite() {
+        // The run skips its own look for non-numbers only when the source vouches for every
+        // sample of the block: a read holding a NaN or an infinity must not.
+        for fmt in
+            [SampleFormat::Cf32Le, SampleFormat::Cf32Be, SampleFormat::Cf64Le, SampleFormat::Ci16Le]
+        {
+            let mut x = vec![Complex32::new(0.25, -0.5); 8];
+            if fmt != SampleFormat::Ci16Le {
+                x[5] = Complex32::new(0.0, f32::INFINITY);
+            }
+            let mut bytes = Vec::new();
+            fmt.encode(&x, &mut bytes);
+            let mut src = RawSource::new(Box::new(Cursor::new(bytes)), fmt, info());
+            let mut buf = vec![Complex32::default(); 4];
+            let mut seen = Vec::new();
+            while src.read(&mut buf).unwrap() > 0 {
+                seen.push(src.last_read_finite());
+            }
+            let want =
+                if fmt == SampleFormat::Ci16Le { vec![true, true] } else { vec![true, false] };
+            assert_eq!(seen, want, "{fmt}");
+            assert!(!src.last_read_finite(), "{fmt}: the end of input holds no samples");
         }
     }
 }

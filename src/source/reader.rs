@@ -34,6 +34,9 @@ pub struct Block {
     pub disconnected: u64,
     /// What those samples were lost to.
     pub lost_cause: super::LinkLoss,
+    /// Every sample is known to be finite (the source screened them); false when not known,
+    /// and the run looks for itself.
+    pub finite: bool,
     /// Retunes of a stream that reports them (see [`super::tuning`]), in order, each with the
     /// index of the first sample it applies to: none of them lies beyond this block's end
     /// unseen, so the DSP applies them before the block's samples.
@@ -54,6 +57,7 @@ impl Block {
             samples,
             disconnected: 0,
             lost_cause: super::LinkLoss::Disconnected,
+            finite: false,
             retunes: Vec::new(),
             home: None,
         }
@@ -251,6 +255,7 @@ fn run(
         let mut held = pacer.as_mut().is_some_and(|p| p.wait(n as u64, rate, stop));
         let block = Block {
             start: index,
+            finite: src.last_read_finite(),
             samples,
             disconnected,
             lost_cause: src.lost_cause(),
