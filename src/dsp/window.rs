@@ -324,23 +324,55 @@ impl Window {
             let b = self.response_interpolated(d);
             (a * a) / (b * b)
         };
-        let (mut lo, mut hi) = (0.0f64, 0.5f64);
-        if target <= ratio(0.0) {
-            hi = 0.0;
-        } else {
-            for _ in 0..40 {
-                let mid = 0.5 * (lo + hi);
-                if ratio(mid) < target {
-                    lo = mid;
-                } else {
-                    hi = mid;
-                }
-            }
-        }
-        let d = 0.5 * (lo + hi);
+        let d = root_between(|d| ratio(d) - target, 0.0, 0.5);
         let g = self.response_interpolated(d);
         (side * d, g * g)
     }
+}
+
+/// The `d` in `lo..=hi` where the increasing `f` crosses zero (`lo` when `f(lo) ≥ 0`, `hi` when
+/// `f(hi) ≤ 0`), to 1e-13. By the Illinois variant of the false-position method (Dowell &
+/// Jarratt, BIT 11, 1971): each step keeps the root bracketed, as bisection does, and halves the
+/// weight of an end that stayed twice running, so it converges superlinearly. A tone's offset is
+/// found in about eight steps of the window's response, where bisection took forty; this runs
+/// for every signal of every row.
+fn root_between(f: impl Fn(f64) -> f64, lo: f64, hi: f64) -> f64 {
+    let (mut a, mut b) = (lo, hi);
+    let (mut fa, mut fb) = (f(a), f(b));
+    if fa >= 0.0 || !fa.is_finite() {
+        return a;
+    }
+    if fb <= 0.0 || !fb.is_finite() {
+        return b;
+    }
+    let mut last = 0i8;
+    for _ in 0..100 {
+        let mut c = (a * fb - b * fa) / (fb - fa);
+        if !(c > a && c < b) {
+            c = 0.5 * (a + b);
+        }
+        let fc = f(c);
+        if fc == 0.0 || !fc.is_finite() {
+            return c;
+        }
+        if fc < 0.0 {
+            (a, fa) = (c, fc);
+            if last < 0 {
+                fb *= 0.5;
+            }
+            last = -1;
+        } else {
+            (b, fb) = (c, fc);
+            if last > 0 {
+                fa *= 0.5;
+            }
+            last = 1;
+        }
+        if b - a < 1e-13 {
+            break;
+        }
+    }
+    0.5 * (a + b)
 }
 
 /// Modified Bessel function of the first kind, order zero, by its power series
@@ -420,6 +452,43 @@ mod tests {
         {
             assert!((bessel_i0(x) - expect).abs() / expect < 1e-9, "I0({x}) = {}", bessel_i0(x));
         }
+    }
+
+    /// The false-position search finds the crossing bisection finds (bisection to 2^-40 of the
+    /// half bin is the reference: it cannot miss a bracketed crossing of an increasing
+    /// function), over every window and neighbour ratios from a null to an equal pair.
+    #[test]
+    fn the_offset_search_agrees_with_bisection() {
+        let bisect = |f: &dyn Fn(f64) -> f64| {
+            let (mut lo, mut hi) = (0.0f64, 0.5f64);
+            if f(0.0) >= 0.0 {
+                return 0.0;
+            }
+            for _ in 0..40 {
+                let mid = 0.5 * (lo + hi);
+                if f(mid) < 0.0 {
+                    lo = mid;
+                } else {
+                    hi = mid;
+                }
+            }
+            0.5 * (lo + hi)
+        };
+        for kind in WindowKind::ALL {
+            let w = Window::new(kind, 512);
+            let ratio =
+                |d: f64| (w.response_interpolated(1.0 - d) / w.response_interpolated(d)).powi(2);
+            for k in 0..=200 {
+                let target = k as f64 / 200.0;
+                let f = |d: f64| ratio(d) - target;
+                let (got, want) = (root_between(f, 0.0, 0.5), bisect(&f));
+                assert!((got - want).abs() < 1e-9, "{kind} at {target}: {got} vs {want}");
+            }
+        }
+        // An increasing line: its crossing, and the ends when it has none inside.
+        assert!((root_between(|d| d - 0.3, 0.0, 0.5) - 0.3).abs() < 1e-13);
+        assert_eq!(root_between(|d| d + 1.0, 0.0, 0.5), 0.0);
+        assert_eq!(root_between(|d| d - 1.0, 0.0, 0.5), 0.5);
     }
 
     #[test]

@@ -233,46 +233,55 @@ fn resolve(
     detect: f64,
     split: Split,
 ) -> Vec<i64> {
-    let mut candidates: Vec<i64> = (start..=end)
-        .filter(|&i| psd(i) > detect && psd(i) >= psd(i - 1) && psd(i) > psd(i + 1))
+    // The run and one bin either side, read once off the circle: `seg[j]` is bin `start + j − 1`.
+    let seg: Vec<f64> = (start - 1..=end + 1).map(psd).collect();
+    let at = |i: i64| seg[(i - start + 1) as usize];
+    // Local maxima above the detection threshold, strongest first (the lower bin first among
+    // equals, as a stable sort of the bins in order would leave them).
+    let mut candidates: Vec<(f64, i64)> = seg
+        .windows(3)
+        .zip(start..)
+        .filter(|(w, _)| w[1] > detect && w[1] >= w[0] && w[1] > w[2])
+        .map(|(w, i)| (w[1], i))
         .collect();
-    candidates.sort_by(|&x, &y| psd(y).total_cmp(&psd(x)));
+    candidates.sort_unstable_by(|x, y| y.0.total_cmp(&x.0).then(x.1.cmp(&y.1)));
     let len = (end - start + 1) as usize;
     let mut kept: Vec<i64> = Vec::new();
     // For the m-th kept peak, `dips[m·len + j]` is the lowest bin between it and bin `start + j`
     // (both included): each candidate then reads its valley to every kept peak at once, where a
     // scan per pair cost a wide noise-like run (hundreds of candidates) most of the row's time.
     let mut dips: Vec<f64> = Vec::new();
-    for c in candidates {
+    for (p, c) in candidates {
         let stands = kept.iter().enumerate().all(|(m, &k)| {
             let dip = dips[m * len + (c - start) as usize];
-            psd(c) >= split.valley * dip
-                && db(psd(c) / psd(k)) >= window.leakage_db(c.abs_diff(k) as usize) + split.lobe
+            p >= split.valley * dip
+                && db(p / at(k)) >= window.leakage_db(c.abs_diff(k) as usize) + split.lobe
         });
         if stands || kept.is_empty() {
             kept.push(c);
-            lowest_towards(psd, start, end, c, &mut dips);
+            lowest_towards(&seg[1..=len], (c - start) as usize, &mut dips);
         }
     }
     kept.sort_unstable();
     kept
 }
 
-/// Appends, for every bin `j` of the run `start..=end`, the lowest bin between `peak` and `j`
-/// (both included). A minimum involves no rounding, so this is the scan of each range, exactly.
-fn lowest_towards(psd: &impl Fn(i64) -> f64, start: i64, end: i64, peak: i64, out: &mut Vec<f64>) {
+/// Appends, for every bin `j` of the run `run`, the lowest bin between `peak` and `j` (both
+/// included; indices into `run`). A minimum involves no rounding, so this is the scan of each
+/// range, exactly.
+fn lowest_towards(run: &[f64], peak: usize, out: &mut Vec<f64>) {
     let base = out.len();
-    out.resize(base + (end - start + 1) as usize, 0.0);
+    out.resize(base + run.len(), 0.0);
     let row = &mut out[base..];
     let mut low = f64::INFINITY;
-    for j in (start..=peak).rev() {
-        low = low.min(psd(j));
-        row[(j - start) as usize] = low;
+    for j in (0..=peak).rev() {
+        low = low.min(run[j]);
+        row[j] = low;
     }
     low = f64::INFINITY;
-    for j in peak..=end {
-        low = low.min(psd(j));
-        row[(j - start) as usize] = low;
+    for j in peak..run.len() {
+        low = low.min(run[j]);
+        row[j] = low;
     }
 }
 

@@ -46,8 +46,8 @@ pub struct CensusConsumer {
     sent: Vec<(u64, u64, f64, f64)>,
     /// Those emissions with their classes, once collected at the end of the run.
     classified: Vec<Classified>,
-    /// Places in frequency already classified (centre, width) and how many of their emissions.
-    places: Vec<(f64, f64, u32)>,
+    /// Places in frequency already classified, and how much of them.
+    places: Vec<Place>,
     /// RBW of the rows, for the noise density of an emission's band.
     rbw_hz: f64,
     /// Each emitter's kind (in the order of the result's emitters), once the run has finished.
@@ -118,8 +118,12 @@ impl CensusConsumer {
         let Some(c) = self.census.as_mut() else { return };
         for ev in c.take_events() {
             if let (CensusEvent::Closed { emission, .. }, Some(k)) = (&ev, self.kinds.as_mut()) {
-                if take_place(&mut self.places, emission) {
-                    self.sent.push(classify_emission(k, emission, self.rbw_hz));
+                let span = emission_span(emission, self.rbw_hz);
+                let taken = k.cut(&span).map_or(0, |(a, b)| b - a);
+                let full = k.take_max() as u64;
+                if take_place(&mut self.places, (span.center_hz, span.obw_hz), taken, full) {
+                    k.classify_later(&span);
+                    self.sent.push((span.start, span.end, span.center_hz, span.obw_hz));
                 }
             }
             let Some(q) = self.triggers.as_ref() else { continue };
@@ -192,38 +196,52 @@ impl CensusConsumer {
 /// census itself (about 70 ms per half second of 1 MS/s input) and tell little more.
 pub const CLASSIFIED_PER_PLACE: u32 = 3;
 
-/// Whether emission `e` is still to be classified: fewer than [`CLASSIFIED_PER_PLACE`] have
-/// been at its place (centres within half the wider width); counts it if so.
-fn take_place(places: &mut Vec<(f64, f64, u32)>, e: &Emission) -> bool {
-    let (centre, width) = (0.5 * (e.low_hz + e.high_hz), e.high_hz - e.low_hz);
-    match places.iter_mut().find(|p| (p.0 - centre).abs() <= 0.5 * p.1.max(width)) {
-        Some(p) if p.2 >= CLASSIFIED_PER_PLACE => false,
+/// A place in frequency whose emissions have been classified: its centre and width (of the
+/// first emission there), how many emissions and how many samples of them.
+#[derive(Clone, Copy, Debug)]
+struct Place {
+    centre_hz: f64,
+    width_hz: f64,
+    emissions: u32,
+    samples: u64,
+}
+
+/// Whether the emission at `(centre, width)` Hz, of which the classifier would be given `taken`
+/// samples, is still to be classified; counts it if so. A place is classified until it has had
+/// [`CLASSIFIED_PER_PLACE`] emissions or, sooner, `full` samples in all (what one
+/// classification takes at most, [`Kinds::take_max`]): the bursts of a keyed channel each add
+/// evidence, while a long transmission has given all one classification can use by its first
+/// emission, and a second or third cut of the same length (about 25 ms of a worker's time each
+/// for a narrow FM voice channel at 1 MS/s) would tell the vote little more. The choice depends
+/// only on the emissions' lengths, never on an answer, so a census comes out the same however
+/// fast its workers run. Places are matched by centres within half the wider width.
+fn take_place(places: &mut Vec<Place>, (centre, width): (f64, f64), taken: u64, full: u64) -> bool {
+    match places.iter_mut().find(|p| (p.centre_hz - centre).abs() <= 0.5 * p.width_hz.max(width)) {
+        Some(p) if p.emissions >= CLASSIFIED_PER_PLACE || p.samples >= full => false,
         Some(p) => {
-            p.2 += 1;
+            p.emissions += 1;
+            p.samples += taken;
             true
         }
         None => {
-            places.push((centre, width, 1));
+            places.push(Place { centre_hz: centre, width_hz: width, emissions: 1, samples: taken });
             true
         }
     }
 }
 
-/// Sends a census emission to be classified from the samples held (its detected band's centre
-/// and width, and the noise density its figures were measured against); its start, end,
-/// centre and width.
-fn classify_emission(k: &mut Kinds, e: &Emission, rbw_hz: f64) -> (u64, u64, f64, f64) {
+/// Where a census emission lay, for the classifier: its detected band's centre and width, and
+/// the noise density its figures were measured against.
+fn emission_span(e: &Emission, rbw_hz: f64) -> Span {
     let width = e.high_hz - e.low_hz;
     let noise_psd = Some(e.figures.noise / width.max(rbw_hz)).filter(|d| d.is_finite() && *d > 0.0);
-    let span = Span {
+    Span {
         start: e.sample_start,
         end: e.sample_start + e.sample_count,
         center_hz: 0.5 * (e.low_hz + e.high_hz),
         obw_hz: width,
         noise_psd,
-    };
-    k.classify_later(&span);
-    (span.start, span.end, span.center_hz, width)
+    }
 }
 
 /// For each classified emission, the emission of the result it is part of: the one it overlaps
@@ -946,6 +964,27 @@ mod tests {
         let names: Vec<&str> = plan.channels.iter().map(|c| c.name.as_str()).collect();
         assert_eq!(names, ["strong", "rare-strong", "weak-busy"]);
         assert!(to_plan(&r, "t").contains("# Left out: 1 emitter(s)"));
+    }
+
+    #[test]
+    fn a_place_is_classified_until_it_has_given_three_emissions_or_one_full_cut() {
+        let mut places = Vec::new();
+        let full = 500_000;
+        // A keyed channel's short bursts: three of them, then no more.
+        let keyed: Vec<bool> =
+            (0..5).map(|_| take_place(&mut places, (433.30e6, 12e3), 40_000, full)).collect();
+        assert_eq!(keyed, [true, true, true, false, false]);
+        // A long transmission: its first emission gave a full cut, so its next is not taken;
+        // a wider one centred within half its width is the same place.
+        assert!(take_place(&mut places, (433.40e6, 4e3), full, full));
+        assert!(!take_place(&mut places, (433.4019e6, 4e3), 10_000, full));
+        assert!(!take_place(&mut places, (433.404e6, 10e3), 10_000, full));
+        // Short ones add up to a full cut before the third.
+        assert!(take_place(&mut places, (433.60e6, 4e3), 300_000, full));
+        assert!(take_place(&mut places, (433.60e6, 4e3), 200_000, full));
+        assert!(!take_place(&mut places, (433.60e6, 4e3), 1, full));
+        // A place just beyond half the width is a new one.
+        assert!(take_place(&mut places, (433.4021e6, 4e3), full, full));
     }
 
     #[test]
