@@ -244,22 +244,30 @@ fn resolve(
         .filter(|(w, _)| w[1] > detect && w[1] >= w[0] && w[1] > w[2])
         .map(|(w, i)| (w[1], i))
         .collect();
-    candidates.sort_unstable_by(|x, y| y.0.total_cmp(&x.0).then(x.1.cmp(&y.1)));
+    let order = |x: &(f64, i64), y: &(f64, i64)| y.0.total_cmp(&x.0).then(x.1.cmp(&y.1));
+    // The strongest is always kept, and every other must stand beside it: those that cannot are
+    // dropped before the sort (in a wide noise-like run, nearly all of them).
+    let Some(&top) = candidates.iter().min_by(|x, y| order(x, y)) else { return Vec::new() };
     let len = (end - start + 1) as usize;
-    let mut kept: Vec<i64> = Vec::new();
+    let mut kept: Vec<i64> = vec![top.1];
     // For the m-th kept peak, `dips[m·len + j]` is the lowest bin between it and bin `start + j`
     // (both included): each candidate then reads its valley to every kept peak at once, where a
     // scan per pair cost a wide noise-like run (hundreds of candidates) most of the row's time.
     let mut dips: Vec<f64> = Vec::new();
-    for (p, c) in candidates {
-        let stands = kept.iter().enumerate().all(|(m, &k)| {
+    lowest_towards(&seg[1..=len], (top.1 - start) as usize, &mut dips);
+    let stands = |(p, c): (f64, i64), kept: &[i64], dips: &[f64]| {
+        kept.iter().enumerate().all(|(m, &k)| {
             let dip = dips[m * len + (c - start) as usize];
             p >= split.valley * dip
                 && db(p / at(k)) >= window.leakage_db(c.abs_diff(k) as usize) + split.lobe
-        });
-        if stands || kept.is_empty() {
-            kept.push(c);
-            lowest_towards(&seg[1..=len], (c - start) as usize, &mut dips);
+        })
+    };
+    candidates.retain(|&c| c.1 != top.1 && stands(c, &kept, &dips));
+    candidates.sort_unstable_by(order);
+    for c in candidates {
+        if stands(c, &kept, &dips) {
+            kept.push(c.1);
+            lowest_towards(&seg[1..=len], (c.1 - start) as usize, &mut dips);
         }
     }
     kept.sort_unstable();
