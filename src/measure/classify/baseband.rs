@@ -394,7 +394,7 @@ fn smooth_below(n: usize) -> usize {
 }
 
 /// The smallest product of powers of 2, 3, 5 and 7 at or above `n` (≥ 1).
-fn smooth_above(n: usize) -> usize {
+pub(super) fn smooth_above(n: usize) -> usize {
     let smooth = |mut m: usize| {
         for p in [2, 3, 5, 7] {
             while m % p == 0 {
