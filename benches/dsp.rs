@@ -69,6 +69,35 @@ fn kernels(c: &mut Criterion) {
         });
     }
     g.finish();
+    history_copy(c);
+}
+
+/// A stream's samples copied block by block into a ring of 4 s at 1 MS/s (the classifier's
+/// history), by `copy_from_slice` and by the copy that bypasses the cache.
+fn history_copy(c: &mut Criterion) {
+    let (block, ring_len) = (65_536, 4_000_000);
+    let x = test_signal(block);
+    let mut ring = vec![Complex32::default(); ring_len];
+    let mut g = c.benchmark_group("kernels_history_copy");
+    g.throughput(Throughput::Elements(block as u64));
+    let mut at = 0;
+    g.bench_function("copy_from_slice", |b| {
+        b.iter(|| {
+            let n = block.min(ring_len - at);
+            ring[at..at + n].copy_from_slice(black_box(&x[..n]));
+            at = (at + n) % ring_len;
+        })
+    });
+    let mut ring: Vec<std::mem::MaybeUninit<Complex32>> =
+        ring.into_iter().map(std::mem::MaybeUninit::new).collect();
+    g.bench_function("streaming", |b| {
+        b.iter(|| {
+            let n = block.min(ring_len - at);
+            bandwarden::kernels::copy_streaming(&mut ring[at..at + n], black_box(&x[..n]));
+            at = (at + n) % ring_len;
+        })
+    });
+    g.finish();
 }
 
 fn averaged_spectrum() -> Spectrum {

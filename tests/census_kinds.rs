@@ -91,3 +91,48 @@ fn each_single_emitter_scene_is_named_the_class_it_was_built_as() {
         assert_eq!((v * scale).round() / scale, v, "{key} {v} not rounded to {dp} places");
     }
 }
+
+/// A steady emission longer than most of the classifier's history (4 s) is classified while it
+/// is still on the air, from its first samples, in the band measured so far; the answer must be
+/// the one its construction gives, as for the short scenes. Eight copies of a 0.6 s scene end to
+/// end (4.8 s at 250 kS/s; at the joins the symbols or tones simply go on from the start).
+#[test]
+fn a_long_steady_emission_is_classified_as_it_was_built() {
+    let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/reference/census");
+    let tmp = std::env::temp_dir().join(format!("bw-long-kinds-{}", std::process::id()));
+    std::fs::create_dir_all(&tmp).unwrap();
+    let long = |file: &str| {
+        let one = std::fs::read(dir.join(file)).unwrap();
+        let path = tmp.join(file);
+        std::fs::write(&path, one.repeat(8)).unwrap();
+        let o = Command::new(env!("CARGO_BIN_EXE_bandwarden"))
+            .arg("census")
+            .arg(&path)
+            .args(["--format", "ci8", "--rate", "250000", "--json"])
+            .output()
+            .unwrap();
+        assert!(o.status.success(), "{file}: {}", String::from_utf8_lossy(&o.stderr));
+        let v: Value = serde_json::from_slice(&o.stdout).unwrap();
+        v["emitters"][0].clone()
+    };
+    // The 16QAM scene is built at round(250 k / 20 k) = 12 samples per symbol
+    // (scripts/make-census-scenes.py, `linear`): 20 833 Bd.
+    let qam = long("qam16.ci8");
+    assert_eq!(qam["class"], "qam", "{qam}");
+    let rate = qam["class_params"]["symbol_rate_hz"].as_f64().unwrap();
+    assert!((rate / (250e3 / 12.0) - 1.0).abs() < 0.01, "{qam}");
+    // truth.json "what": BPSK at 5 kBd; 4-FSK at 2400 Bd, tones 2400 Hz apart.
+    let bpsk = long("bpsk.ci8");
+    assert_eq!(bpsk["class"], "psk", "{bpsk}");
+    assert_eq!(bpsk["class_params"]["psk_order"], 2, "{bpsk}");
+    let rate = bpsk["class_params"]["symbol_rate_hz"].as_f64().unwrap();
+    assert!((rate - 5000.0).abs() < 50.0, "{bpsk}");
+    let fsk = long("fsk4.ci8");
+    assert_eq!(fsk["class"], "fsk", "{fsk}");
+    assert_eq!(fsk["class_params"]["tones"], 4, "{fsk}");
+    let shift = fsk["class_params"]["shift_hz"].as_f64().unwrap();
+    assert!((shift - 2400.0).abs() < 120.0, "{fsk}");
+    let cw = long("cw.ci8");
+    assert_eq!(cw["class"], "cw", "{cw}");
+    let _ = std::fs::remove_dir_all(&tmp);
+}

@@ -48,6 +48,9 @@ pub struct CensusConsumer {
     classified: Vec<Classified>,
     /// Places in frequency already classified, and how much of them.
     places: Vec<Place>,
+    /// Emissions still open that were classified once they had lasted long enough (by track
+    /// id: their index in `sent`), or passed over then (`None`: their place had enough).
+    early: HashMap<u64, Option<usize>>,
     /// RBW of the rows, for the noise density of an emission's band.
     rbw_hz: f64,
     /// Each emitter's kind (in the order of the result's emitters), once the run has finished.
@@ -79,6 +82,7 @@ impl CensusConsumer {
             sent: Vec::new(),
             classified: Vec::new(),
             places: Vec::new(),
+            early: HashMap::new(),
             rbw_hz: 0.0,
             emitter_kinds: Vec::new(),
         }
@@ -117,8 +121,16 @@ impl CensusConsumer {
     fn pass_events(&mut self) {
         let Some(c) = self.census.as_mut() else { return };
         for ev in c.take_events() {
-            if let (CensusEvent::Closed { emission, .. }, Some(k)) = (&ev, self.kinds.as_mut()) {
+            if let (CensusEvent::Closed { id, emission }, Some(k)) = (&ev, self.kinds.as_mut()) {
                 let span = emission_span(emission, self.rbw_hz);
+                if let Some(early) = self.early.remove(id) {
+                    // Classified (or passed over) while it was open: it now counts for its
+                    // whole length.
+                    if let Some(sent) = early.and_then(|i| self.sent.get_mut(i)) {
+                        (sent.0, sent.1) = (span.start, span.end);
+                    }
+                    continue;
+                }
                 let taken = k.cut(&span).map_or(0, |(a, b)| b - a);
                 let full = k.take_max() as u64;
                 if take_place(&mut self.places, (span.center_hz, span.obw_hz), taken, full) {
@@ -139,6 +151,41 @@ impl CensusConsumer {
                     q.send(Trigger::End { key: id, note: emission_note(&emission, label, None) });
                 }
             }
+        }
+    }
+
+    /// Classifies each open emission of one full cut ([`Kinds::take_max`] samples) or more once
+    /// its start has been in the history for [`EARLY_SHARE`] of the history's length, before it
+    /// is dropped: from its first samples, as when it ends, but in the band measured so far (a
+    /// long emission's detected band has long settled by then). A long emission was otherwise
+    /// classified when it ended, from its newest samples, and those still open when the input
+    /// ended were all classified at once (a 200 kHz link alone kept one worker busy for about
+    /// 50 ms after the last row: the tail of a census). Emissions that end sooner are classified
+    /// when they end, as before; so is one whose start left the history before a row came (a
+    /// block longer than a quarter of the history, at low rates).
+    fn classify_long(&mut self) {
+        let (Some(c), Some(k)) = (self.census.as_ref(), self.kinds.as_mut()) else { return };
+        let full = k.take_max() as u64;
+        let long = (k.history().capacity() as f64 * EARLY_SHARE) as u64;
+        for (id, e) in c.open_emissions(full) {
+            let span = emission_span(&e, self.rbw_hz);
+            let held_for = k.history().end().saturating_sub(span.start);
+            if held_for < long || self.early.contains_key(&id) {
+                continue;
+            }
+            if span.start < k.history().first() {
+                continue;
+            }
+            let span = Span { end: span.start + full, ..span };
+            let taken = k.cut(&span).map_or(0, |(a, b)| b - a);
+            let sent = &mut self.sent;
+            let slot = take_place(&mut self.places, (span.center_hz, span.obw_hz), taken, full)
+                .then(|| {
+                    k.classify_later(&span);
+                    sent.push((span.start, span.end, span.center_hz, span.obw_hz));
+                    sent.len() - 1
+                });
+            self.early.insert(id, slot);
         }
     }
 
@@ -190,6 +237,12 @@ impl CensusConsumer {
         per_emission.into_iter().map(|p| p.map(|(_, c)| c.class.clone())).collect()
     }
 }
+
+/// Share of the classifier's history a long open emission's start has been held before the
+/// emission is classified (see `CensusConsumer::classify_long`): late enough that its band has
+/// settled, early enough that its start is still held when the next rows come (a quarter of
+/// the history is left, a second at 1 MS/s).
+pub const EARLY_SHARE: f64 = 0.75;
 
 /// Emissions classified at one place in frequency: an emitter's kind is the vote of its first
 /// ones. Classifying each of a busy channel's hundreds of bursts would cost far more than the
@@ -321,6 +374,7 @@ impl Consumer for CensusConsumer {
             c.push(row);
         }
         self.pass_events();
+        self.classify_long();
         Ok(Flow::Continue)
     }
 

@@ -4,15 +4,17 @@
 //!
 //! **Bound.** The buffer is allocated once; [`IqHistory::for_rate`] sizes it for
 //! [`HISTORY_SECONDS`] of input but never more than [`HISTORY_MAX_BYTES`] (64 MiB, 8 Mi
-//! samples: 4 s at 2 MS/s, 0.42 s at 20 MS/s). Pushing a block copies it in (one `memcpy`),
-//! nothing else.
+//! samples: 4 s at 2 MS/s, 0.42 s at 20 MS/s). Pushing a block copies it in (one copy that bypasses the
+//! cache), nothing else.
 //!
 //! **Gaps.** A jump in the stream index (samples lost while the DSP was behind) is remembered as
 //! a gap rather than forgetting what came before, so a range that spans it is still answered:
 //! [`IqHistory::cut`] gives the longest contiguous piece of the range that is held.
 
+use crate::kernels::copy_streaming;
 use num_complex::Complex32;
 use std::collections::VecDeque;
+use std::mem::MaybeUninit;
 
 /// Most bytes a history sized by [`IqHistory::for_rate`] takes.
 pub const HISTORY_MAX_BYTES: usize = 64 << 20;
@@ -87,13 +89,25 @@ impl IqHistory {
 
     /// Writes `data` into the ring from index `at` (`at + data.len() <= cap`), growing it
     /// as far as needed.
+    /// The copy goes around the cache ([`copy_streaming`]): the ring is far larger than the
+    /// cache and read only when an emission is classified.
     fn write_at(&mut self, at: usize, data: &[Complex32]) {
         if at > self.buf.len() {
             self.buf.resize(at, Complex32::default());
         }
         let over = (self.buf.len() - at).min(data.len());
-        self.buf[at..at + over].copy_from_slice(&data[..over]);
-        self.buf.extend_from_slice(&data[over..]);
+        let held = &mut self.buf[at..at + over];
+        // SAFETY: a `Complex32` written through `MaybeUninit` is still a valid `Complex32`, and
+        // the copy writes every element of the slice.
+        let held: &mut [MaybeUninit<Complex32>] =
+            unsafe { &mut *(std::ptr::from_mut(held) as *mut [MaybeUninit<Complex32>]) };
+        copy_streaming(held, &data[..over]);
+        let rest = &data[over..];
+        self.buf.reserve(rest.len());
+        let len = self.buf.len();
+        copy_streaming(&mut self.buf.spare_capacity_mut()[..rest.len()], rest);
+        // SAFETY: the copy initialised the `rest.len()` elements past `len`, within capacity.
+        unsafe { self.buf.set_len(len + rest.len()) };
     }
 
     /// Oldest stream index covered (held, or inside a gap).

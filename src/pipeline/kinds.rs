@@ -307,6 +307,7 @@ impl Pool {
                 std::thread::Builder::new()
                     .name(format!("kinds-{i}"))
                     .spawn(move || {
+                        yield_to_the_run();
                         for job in queue {
                             if answer.send((job.index, job.classify())).is_err() {
                                 return;
@@ -335,6 +336,21 @@ impl Pool {
         }
         done.try_iter().collect()
     }
+}
+
+/// How much lower than the run's threads the classifying threads are scheduled (added to the
+/// nice value).
+pub const KINDS_NICE: i32 = 10;
+
+/// Lowers the calling thread's scheduling priority by [`KINDS_NICE`]. The run's thread measures
+/// every row (the critical path of a census: it works all the time while the DSP helper idles
+/// between batches); at equal priority a classification takes its core from it. Lowered, a
+/// classification runs mostly in the helper's idle time, and at full speed once nothing else is
+/// left to run. Answers do not depend on it. On Linux the nice value is the calling thread's own
+/// (threads it starts inherit it); where it cannot be changed, nothing changes.
+fn yield_to_the_run() {
+    // SAFETY: nice only reads its argument; on Linux it changes the calling thread only.
+    let _ = unsafe { libc::nice(KINDS_NICE) };
 }
 
 impl Consumer for Kinds {

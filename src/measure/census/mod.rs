@@ -478,35 +478,56 @@ impl Census {
 
     /// Ends track `t`; `cut` when lost samples or the end of the input ended it.
     fn close(&mut self, t: &Track, input_end: Option<u64>, cut: bool) {
-        let x = t.extent(t.first_row == 0, input_end);
         self.emitters[t.emitter].detected_rows += t.detected as u64;
-        let rbw = self.layout.as_ref().map_or(0.0, |l| l.rbw_hz);
-        let figures = EmissionFigures {
-            mean: t.full_energy(),
-            peak: t.e_peak,
-            noise: self.density * (t.high_hz - t.low_hz).max(rbw),
-            partial: cut || t.first_row == 0 || input_end.is_some(),
-        };
+        let emission = self.emission_of(t, input_end, cut);
         let closed = Closed {
             emitter: t.emitter,
-            start: x.start,
-            end: x.end,
+            start: emission.sample_start,
+            end: emission.sample_start + emission.sample_count,
             low_hz: t.low_hz,
             high_hz: t.high_hz,
-            figures,
+            figures: emission.figures,
         };
         if let Some(ev) = self.events.as_mut() {
-            let emission = Emission {
-                emitter: t.emitter,
-                sample_start: x.start,
-                sample_count: x.end - x.start,
-                low_hz: t.low_hz,
-                high_hz: t.high_hz,
-                figures,
-            };
             ev.push(CensusEvent::Closed { id: t.id, emission });
         }
         self.closed.push(closed);
+    }
+
+    /// Track `t` as an emission ending where it was last seen (or at `input_end`), its band the
+    /// union of its detections so far, its noise that of the latest row.
+    fn emission_of(&self, t: &Track, input_end: Option<u64>, cut: bool) -> Emission {
+        let x = t.extent(t.first_row == 0, input_end);
+        let rbw = self.layout.as_ref().map_or(0.0, |l| l.rbw_hz);
+        Emission {
+            emitter: t.emitter,
+            sample_start: x.start,
+            sample_count: x.end - x.start,
+            low_hz: t.low_hz,
+            high_hz: t.high_hz,
+            figures: EmissionFigures {
+                mean: t.full_energy(),
+                peak: t.e_peak,
+                noise: self.density * (t.high_hz - t.low_hz).max(rbw),
+                partial: cut || t.first_row == 0 || input_end.is_some(),
+            },
+        }
+    }
+
+    /// The emissions still open that have lasted `min_samples` or more, by track id (as in
+    /// [`CensusEvent`]), each as if it had ended where it was last seen: for a consumer that
+    /// acts on a long emission before it ends (the classifier, which takes only its first
+    /// part). `emitter` is an index of the census so far, not yet of the result.
+    pub fn open_emissions(&self, min_samples: u64) -> impl Iterator<Item = (u64, Emission)> + '_ {
+        self.tracks
+            .iter()
+            // The extent reaches at most one row before the first row that saw it.
+            .filter(move |t| {
+                let row = t.first_span.1 - t.first_span.0;
+                t.last_span.1.saturating_sub(t.first_span.0) + row >= min_samples
+            })
+            .map(|t| (t.id, self.emission_of(t, None, false)))
+            .filter(move |(_, e)| e.sample_count >= min_samples)
     }
 
     /// Closes every open emission at the end of the input, `end` (one past its last sample):
