@@ -167,15 +167,15 @@ impl CensusConsumer {
         let (Some(c), Some(k)) = (self.census.as_ref(), self.kinds.as_mut()) else { return };
         let full = k.take_max() as u64;
         let long = (k.history().capacity() as f64 * EARLY_SHARE) as u64;
+        let (first, end) = (k.history().first(), k.history().end());
         for (id, e) in c.open_emissions(full) {
+            // Already handled; not yet held long enough; or its start is gone (it is then
+            // classified when it ends).
+            let start = e.sample_start;
+            if self.early.contains_key(&id) || end.saturating_sub(start) < long || start < first {
+                continue;
+            }
             let span = emission_span(&e, self.rbw_hz);
-            let held_for = k.history().end().saturating_sub(span.start);
-            if held_for < long || self.early.contains_key(&id) {
-                continue;
-            }
-            if span.start < k.history().first() {
-                continue;
-            }
             let span = Span { end: span.start + full, ..span };
             let taken = k.cut(&span).map_or(0, |(a, b)| b - a);
             let sent = &mut self.sent;

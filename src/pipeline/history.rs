@@ -4,8 +4,8 @@
 //!
 //! **Bound.** The buffer is allocated once; [`IqHistory::for_rate`] sizes it for
 //! [`HISTORY_SECONDS`] of input but never more than [`HISTORY_MAX_BYTES`] (64 MiB, 8 Mi
-//! samples: 4 s at 2 MS/s, 0.42 s at 20 MS/s). Pushing a block copies it in (one copy that bypasses the
-//! cache), nothing else.
+//! samples: 4 s at 2 MS/s, 0.42 s at 20 MS/s). Pushing a block copies it in (one copy that
+//! bypasses the cache), nothing else.
 //!
 //! **Gaps.** A jump in the stream index (samples lost while the DSP was behind) is remembered as
 //! a gap rather than forgetting what came before, so a range that spans it is still answered:
@@ -88,8 +88,7 @@ impl IqHistory {
     }
 
     /// Writes `data` into the ring from index `at` (`at + data.len() <= cap`), growing it
-    /// as far as needed.
-    /// The copy goes around the cache ([`copy_streaming`]): the ring is far larger than the
+    /// as far as needed. The copy goes around the cache ([`copy_streaming`]): the ring is far larger than the
     /// cache and read only when an emission is classified.
     fn write_at(&mut self, at: usize, data: &[Complex32]) {
         if at > self.buf.len() {

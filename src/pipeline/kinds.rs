@@ -2,7 +2,8 @@
 //! samples: an [`IqHistory`] of the stream, cut where the emission lay and handed to the
 //! classifier with its centre, occupied bandwidth and the noise density.
 //!
-//! **Cost.** One classification per emission, when it ends (never per row), on at most
+//! **Cost.** One classification per emission, when it ends (never per row; the census takes a
+//! long one while still open, see `output::census`), on at most
 //! [`TAKE_S`] seconds or [`TAKE_MAX`] samples of it, whichever is fewer: its first samples while
 //! they are still held, else (an emission longer than the history) its newest. The history's
 //! memory is bounded by [`HISTORY_MAX_BYTES`](super::history::HISTORY_MAX_BYTES).
